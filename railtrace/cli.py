@@ -1,0 +1,108 @@
+"""railtrace: measure bank shots, ball paths and cushion liveliness from overhead video.
+
+Commands:
+  render SCENE.toml --out CLIP.mp4   film a scene file (simulated balls, rendered camera) and
+                                     write its truth folder beside the clip
+"""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import sys
+import time
+from pathlib import Path
+
+from railtrace import __version__
+
+EPILOG = "Run 'railtrace COMMAND --help' for a command's options. Lengths are mm, times seconds."
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser for every command."""
+    parser = argparse.ArgumentParser(
+        prog="railtrace",
+        description="Measure bank shots, ball paths and cushion liveliness from a fixed overhead camera's clips.",
+        epilog=EPILOG,
+    )
+    parser.add_argument("--version", action="version", version=f"railtrace {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    render = sub.add_parser(
+        "render",
+        help="film a scene file: simulate its shots and render them as an overhead camera would",
+        description=(
+            "Simulate the shots of a scene file and film them through the scene's camera. Writes "
+            "the clip and, beside it, CLIP_STEM.truth/ with tracks.csv, events.csv, shots.csv, "
+            "calibration.json (the true camera) and scene.toml, in the results format."
+        ),
+    )
+    render.add_argument("scene", type=Path, help="scene file (TOML); see README 'Scene files'")
+    render.add_argument("--out", type=Path, required=True, help="clip to write (.mp4)")
+    render.add_argument("--force", action="store_true", help="replace an existing clip and its truth folder")
+    render.add_argument("--quiet", action="store_true", help="no progress bar")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Parse ``argv`` and run the command; returns the exit code (0 ok, 2 bad input)."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    logging.basicConfig(level=logging.WARNING, format="%(levelname)s %(name)s: %(message)s")
+    if args.command is None:
+        parser.print_help()
+        return 0
+    try:
+        return COMMANDS[args.command](args)
+    except ValueError as exc:
+        print(f"railtrace {args.command}: error: {exc}", file=sys.stderr)
+        return 2
+
+
+def _cmd_render(args: argparse.Namespace) -> int:
+    from railtrace.filming import film_scene
+    from railtrace.scene import load_scene
+
+    scene = load_scene(args.scene)
+    out: Path = args.out
+    if out.suffix.lower() not in (".mp4", ".mkv", ".avi", ".mov"):
+        raise ValueError(f"--out {out} should be a video file name ending in .mp4")
+    truth = out.with_name(out.stem + ".truth")
+    if not args.force and (out.exists() or truth.exists()):
+        raise ValueError(f"{out if out.exists() else truth} exists already; add --force to replace it")
+    progress = None if args.quiet or not sys.stderr.isatty() else _ProgressBar("rendering")
+    t0 = time.perf_counter()
+    truth_dir = film_scene(scene, out, progress=progress)
+    if progress is not None:
+        progress.done()
+    elapsed = time.perf_counter() - t0
+    print(f"wrote {out} and its truth in {truth_dir}/ ({elapsed:.1f} s)")
+    return 0
+
+
+class _ProgressBar:
+    """A one-line progress bar on stderr (only used on a terminal)."""
+
+    def __init__(self, label: str) -> None:
+        self.label = label
+        self.last = 0.0
+
+    def __call__(self, done: int, total: int) -> None:
+        now = time.monotonic()
+        if now - self.last < 0.2 and done < total:
+            return
+        self.last = now
+        width = 30
+        filled = int(width * done / max(total, 1))
+        sys.stderr.write(f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] {done}/{total} frames")
+        sys.stderr.flush()
+
+    def done(self) -> None:
+        sys.stderr.write("\n")
+
+
+COMMANDS = {"render": _cmd_render}
+
+
+if __name__ == "__main__":
+    sys.exit(main())
