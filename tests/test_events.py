@@ -1,0 +1,261 @@
+"""Event timing (cushion contacts, collisions, starts, stops, pockets) and shots, on analytic paths
+with known contact instants (generators and their sources in ``test_tracker.py``)."""
+
+from __future__ import annotations
+
+import math
+import os
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from test_tracker import (
+    D,
+    G,
+    TABLE,
+    bounce_path,
+    collision_paths,
+    decel_path,
+    detections,
+    stun_roll_path,
+)
+from tracking.events import EVENT_COLUMNS, SHOT_COLUMNS, EventConfig, find_events
+from tracking.tracker import track
+from vision.table import cushion_angles, rail_direction, rail_inward_normal
+
+
+def _bounce_case(rail, along, angle_deg, speed, e, t_c, decel=0.0):
+    """Incoming velocity at ``angle_deg`` from the normal into ``rail``, outgoing with normal
+    restitution ``e`` and the same along-rail component; optional deceleration ``decel`` mm/s^2
+    along each side's velocity (cloth friction)."""
+    n_in = np.asarray(rail_inward_normal(rail))
+    along_u = np.asarray(rail_direction(rail))
+    a = math.radians(angle_deg)
+    v_in = speed * (math.sin(a) * along_u - math.cos(a) * n_in)
+    v_out = speed * math.sin(a) * along_u + e * speed * math.cos(a) * n_in
+    acc_in = -decel * v_in / np.hypot(*v_in)
+    acc_out = -decel * v_out / np.hypot(*v_out)
+    return bounce_path(rail, along, t_c, v_in, v_out, acc_in, acc_out), v_in, v_out
+
+
+def _only(events, kind):
+    return events[events["kind"] == kind].reset_index(drop=True)
+
+
+@pytest.mark.parametrize("rail, along, angle", [
+    ("bottom", 700.0, 30.0), ("right", 500.0, -45.0), ("top", 1900.0, 0.0), ("left", 800.0, 60.0),
+])
+def test_mirror_bounce_recovered_exactly_without_noise(rail, along, angle):
+    fps = 60.0
+    times = np.arange(int(1.0 * fps)) / fps
+    t_c = 0.5 + 0.37 / fps  # between frames
+    f, v_in, v_out = _bounce_case(rail, along, angle, 1500.0, 1.0, t_c)
+    det = detections({"a": f}, times, np.random.default_rng(0), noise_mm=0.0)
+    det["sigma_mm"] = 1.0
+    tr = track(det, TABLE)
+    ev, _ = find_events(tr, TABLE, det)
+    cu = _only(ev, "cushion")
+    assert len(cu) == 1 and cu.loc[0, "rail"] == rail
+    # Exact: straight drag-free paths are reproduced exactly by the fits (analytic truth).
+    assert abs(cu.loc[0, "t"] - t_c) < 1e-6
+    truth = f(np.array([t_c]))[0]
+    assert abs(cu.loc[0, "x"] - truth[0]) < 1e-6 and abs(cu.loc[0, "y"] - truth[1]) < 1e-6
+    assert abs(cu.loc[0, "angle_in"] - angle) < 1e-6 and abs(cu.loc[0, "angle_out"] - angle) < 1e-6
+    assert abs(cu.loc[0, "restitution"] - 1.0) < 1e-9
+    assert cu.loc[0, "diamond"] == pytest.approx(TABLE.to_diamonds(rail, along), abs=1e-9)
+
+
+def test_noisy_bounces_meet_acceptance_targets():
+    """1 mm noise, 60 fps, several approach angles and speeds, cushion speed ratio 0.8 and cloth
+    deceleration mu_s g on both sides (Alciatore 2004 sliding friction 0.2). Targets are the
+    project's acceptance targets (brief)."""
+    fps = 60.0
+    dt = 1 / fps
+    times = np.arange(int(0.9 * fps)) / fps
+    rng = np.random.default_rng(2024)
+    errs = {k: [] for k in ("t", "along", "speed_in", "speed_out", "angle_in", "angle_out", "e")}
+    for angle in (-50.0, -20.0, 0.0, 15.0, 40.0):
+        for speed in (1000.0, 1800.0, 2600.0):
+            for rep in range(2):
+                t_c = 0.45 + rng.uniform(0, 1) * dt
+                rail = ("bottom", "top", "left", "right")[(rep + int(speed)) % 4]
+                along = 600.0 if rail in ("bottom", "top") else 640.0
+                e = 0.8
+                f, v_in, v_out = _bounce_case(rail, along, angle, speed, e, t_c, decel=0.2 * G)
+                det = detections({"a": f}, times, rng, noise_mm=1.0)
+                ev, _ = find_events(track(det, TABLE), TABLE, det)
+                cu = _only(ev, "cushion")
+                assert len(cu) == 1, (angle, speed, rail)
+                r = cu.loc[0]
+                a_in, a_out, e_true = cushion_angles(rail, v_in, v_out)
+                truth = f(np.array([t_c]))[0]
+                ax = 0 if rail in ("bottom", "top") else 1
+                errs["t"].append(abs(r["t"] - t_c))
+                errs["along"].append(abs((r["x"], r["y"])[ax] - truth[ax]))
+                errs["speed_in"].append(abs(r["speed_in"] / np.hypot(*v_in) - 1))
+                errs["speed_out"].append(abs(r["speed_out"] / np.hypot(*v_out) - 1))
+                errs["angle_in"].append(abs(r["angle_in"] - a_in))
+                errs["angle_out"].append(abs(r["angle_out"] - a_out))
+                errs["e"].append(abs(r["restitution"] - e_true))
+    med = {k: float(np.median(v)) for k, v in errs.items()}
+    worst = {k: float(np.max(v)) for k, v in errs.items()}
+    print("median", med, "\nworst", worst)
+    # Medians over the 30 cases against the acceptance targets. Worst cases measured at the
+    # default fit window (0.3 s): speed 3.2 %, angle 1.7 deg, e 0.027 (reported, not asserted).
+    assert med["t"] < dt / 4
+    assert med["along"] < 4.0 and worst["along"] < 4.0
+    assert med["speed_in"] < 0.03 and med["speed_out"] < 0.03
+    assert med["angle_in"] < 1.0 and med["angle_out"] < 1.0
+    assert med["e"] < 0.03
+
+
+def test_bounce_in_a_pocket_mouth_is_not_a_cushion_event():
+    fps = 60.0
+    times = np.arange(50) / fps
+    # Reflects on the bottom reversal line at the side pocket (x = L/2): inside the mouth.
+    f, _, _ = _bounce_case("bottom", TABLE.length_mm / 2, 20.0, 1500.0, 1.0, 0.4 + 0.5 / fps)
+    det = detections({"a": f}, times, np.random.default_rng(0), noise_mm=0.0)
+    det["sigma_mm"] = 1.0
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    assert (ev["kind"] == "cushion").sum() == 0
+
+
+@pytest.mark.parametrize("cut_deg", [0.0, 25.0, 45.0])
+def test_collision_time_within_half_a_frame(cut_deg):
+    fps = 60.0
+    dt = 1 / fps
+    times = np.arange(int(1.0 * fps)) / fps
+    rng = np.random.default_rng(int(cut_deg) + 7)
+    t_c = 0.5 + 0.6 * dt
+    cue, obj = collision_paths((1400.0, 640.0), (1700.0, 250.0), cut_deg, t_c)
+    det = detections({"cue": cue, "obj": obj}, times, rng, noise_mm=1.0,
+                     labels={"cue": ("white", "cue"), "obj": ("red", "solid")})
+    tr = track(det, TABLE)
+    ev, shots = find_events(tr, TABLE, det)
+    col = _only(ev, "collision")
+    assert len(col) == 2
+    assert set(col["track"]) == set(tr["track"]) and set(col["other"]) == set(tr["track"])
+    assert np.all(np.abs(col["t"] - t_c) < dt / 2)  # target (brief): half a frame interval
+    # The object ball was set moving by the collision, not the cue: it gets no start event.
+    cue_id = int(tr.loc[tr["ball"] == "cue", "track"].iloc[0])
+    starts = _only(ev, "start")
+    assert list(starts["track"]) == []  # cue ball already moving when the clip began
+    assert len(shots) == 1 and shots.loc[0, "collisions"] == 1
+    # Centres one diameter apart at the solved instant (definition of contact).
+    xy = col.set_index("track")[["x", "y"]]
+    assert np.hypot(*(xy.iloc[0] - xy.iloc[1])) == pytest.approx(D, abs=2.0)
+    assert cue_id in set(col["track"])
+
+
+def test_start_and_stop_times():
+    """A stun shot from rest (Alciatore 2004: slide then roll) and its stop."""
+    fps = 60.0
+    dt = 1 / fps
+    t_s = 0.3 + 0.45 * dt
+    v0 = 1200.0
+    f = stun_roll_path((300.0, 300.0), 10.0, v0, mu_s=0.2, mu_r=0.02, t_start=t_s)
+    t1 = 2 * v0 / (7 * 0.2 * G)
+    t_stop = t_s + t1 + (5 / 7 * v0) / (0.02 * G)  # rolls from 5/7 v0 at mu_r g to rest
+    times = np.arange(int((t_stop + 1.0) * fps)) / fps
+    rng = np.random.default_rng(12)
+    det = detections({"a": f}, times, rng, noise_mm=1.0)
+    det.loc[det["t"] < t_s, "pattern"] = "cue"
+    ev, shots = find_events(track(det, TABLE), TABLE, det)
+    st, sp = _only(ev, "start"), _only(ev, "stop")
+    assert len(st) == 1 and len(sp) == 1
+    assert abs(st.loc[0, "t"] - t_s) < dt / 2
+    assert st.loc[0, "speed_out"] == pytest.approx(v0, rel=0.05)
+    # The stop is ill-conditioned (speed fades slowly); 0.15 s is 2 % of the roll.
+    assert abs(sp.loc[0, "t"] - t_stop) < 0.15
+    assert len(shots) == 1
+    assert shots.loc[0, "t_start"] == pytest.approx(st.loc[0, "t"])
+    assert shots.loc[0, "t_end"] == pytest.approx(sp.loc[0, "t"])
+    assert list(ev["event"]) == list(range(len(ev)))
+
+
+def test_pocketed_ball_gets_pocket_event():
+    fps = 60.0
+    times = np.arange(90) / fps
+    a = decel_path((400.0, 400.0), 225.0, 1500.0, 200.0, t_start=0.1)
+    b = decel_path((1500.0, 700.0), 0.0, 0.0, 1.0)
+    pos = a(times)
+    pk = TABLE.pocket("bottom-left")
+    # Seen until the centre is a radius short of the mouth line x + y = a (the jaws hide it).
+    mouth = pk.jaw_a[0]
+    last = int(np.argmax(pos.sum(axis=1) < mouth + TABLE.radius_mm * math.sqrt(2))) - 1
+    det = detections({"a": a, "b": b}, times, np.random.default_rng(1), noise_mm=1.0,
+                     present={"a": (0, last)})
+    ev, shots = find_events(track(det, TABLE), TABLE, det)
+    pe = _only(ev, "pocket")
+    assert len(pe) == 1 and pe.loc[0, "pocket"] == "bottom-left"
+    # Crossing time of the mouth line from the analytic path.
+    s = np.linspace(0.1, 1.5, 200001)
+    t_cross = s[np.argmax(a(s).sum(axis=1) < mouth)]
+    assert abs(pe.loc[0, "t"] - t_cross) < 1 / fps
+    assert shots.loc[0, "pocketed"] == 1
+
+
+def test_two_shots_split_and_counted():
+    fps = 60.0
+    dt = 1 / fps
+    # Shot 0: ball a rolls (mu_r g, Alciatore 2004 rolling deceleration) and stops. Shot 1: ball b.
+    a = decel_path((400.0, 300.0), 0.0, 600.0, 0.05 * G, t_start=0.2)
+    b = decel_path((1500.0, 900.0), 90.0, 600.0, 0.05 * G, t_start=2.0)
+    t_end_a = 0.2 + 600.0 / (0.05 * G)
+    times = np.arange(int(3.6 * fps)) / fps
+    det = detections({"a": a, "b": b}, times, np.random.default_rng(8), noise_mm=1.0,
+                     labels={"a": ("white", "cue"), "b": ("white", "cue")})
+    tr = track(det, TABLE)
+    ev, shots = find_events(tr, TABLE, det)
+    assert list(shots["shot"]) == [0, 1]
+    assert shots.loc[0, "t_start"] == pytest.approx(0.2, abs=dt / 2)
+    assert shots.loc[0, "t_end"] == pytest.approx(t_end_a, abs=0.15)
+    assert shots.loc[1, "t_start"] == pytest.approx(2.0, abs=dt / 2)
+    assert list(shots["balls_moved"]) == [1, 1]
+    assert shots.loc[0, "cue_track"] != shots.loc[1, "cue_track"]
+    assert set(ev.loc[ev["shot"] == 1, "kind"]) == {"start", "stop"}
+    assert np.all(np.diff(ev["t"]) >= 0)
+
+
+def test_empty_and_bad_input():
+    empty = pd.DataFrame({c: [] for c in ("frame", "t", "track", "ball", "x", "y", "vx", "vy",
+                                          "seen")})
+    ev, shots = find_events(empty, TABLE)
+    assert list(ev.columns) == EVENT_COLUMNS and len(ev) == 0
+    assert list(shots.columns) == SHOT_COLUMNS and len(shots) == 0
+    with pytest.raises(ValueError, match="vx, vy"):
+        find_events(empty.drop(columns=["vx", "vy"]), TABLE)
+    with pytest.raises(ValueError, match="rest_speed_mm_s"):
+        EventConfig(rest_speed_mm_s=100.0, move_speed_mm_s=50.0)
+
+
+@pytest.mark.skipif(not os.path.exists(os.path.join(os.path.dirname(__file__), "..", "analysis",
+                                                    "physics.py")), reason="no simulator yet")
+def test_simulated_bank_shot_cushion_contact():
+    """A rolling bank off the top rail from our own simulator (cushion impact model of
+    Mathavan, Jackson & Parkin 2010): the solved contact against the simulator's event."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+
+    fps = 60.0
+    dt = 1 / fps
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": (700.0, 300.0)})
+    sim.strike(0.2, Strike("cue", 1800.0, math.radians(70.0), 0.0, 0.4))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    truth = [e for e in traj.events if e.kind == "cushion"][0]
+    times = np.arange(0.0, truth.t + 0.6, dt)
+    s = traj.sample(times)
+    rng = np.random.default_rng(5)
+    det = pd.DataFrame(dict(frame=np.arange(len(times)), t=times,
+                            x=s.pos[:, 0, 0] + rng.normal(0, 1.0, len(times)),
+                            y=s.pos[:, 0, 1] + rng.normal(0, 1.0, len(times)),
+                            sigma_mm=1.0, pattern="cue"))
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    cu = _only(ev, "cushion")
+    assert len(cu) >= 1 and cu.loc[0, "rail"] == truth.rail
+    a_in, a_out, e = cushion_angles(truth.rail, truth.vel_in, truth.vel_out)
+    print(cu.loc[0].to_dict(), truth.t, a_in, a_out, e)
+    assert abs(cu.loc[0, "t"] - truth.t) < dt / 4
+    assert abs(cu.loc[0, "x"] - truth.pos[0]) < 4.0
+    assert abs(cu.loc[0, "angle_in"] - a_in) < 1.0

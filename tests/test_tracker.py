@@ -1,0 +1,336 @@
+"""Multi-ball tracking on analytic ball paths with known truth.
+
+Ground truth is generated here, in closed form (no code under test involved):
+
+* constant deceleration along a straight line (a sliding or rolling ball under cloth friction);
+* the stun-to-roll path (Alciatore, The Illustrated Principles of Pool and Billiards, 2004,
+  technical proofs): a stun shot slides, decelerating at mu_s g, for 2 v0 / (7 mu_s g) over
+  12 v0^2 / (49 mu_s g), then rolls from 5/7 v0 decelerating at mu_r g;
+* reflections off a rail's reversal line (``TableSpec.reversal_line``) and a frictionless
+  equal-mass collision (object ball leaves along the line of centres, common practice).
+
+Detections are these positions plus Gaussian noise (``rng = np.random.default_rng(seed)``), with
+dropped frames and occlusion gaps.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from tracking.tracker import TRACK_COLUMNS, Tracker, TrackerConfig, track
+from vision.table import NINE_FOOT
+
+TABLE = NINE_FOOT
+G = 9810.0  # mm/s^2
+R = TABLE.radius_mm
+D = TABLE.ball_diameter_mm
+
+
+# --- analytic paths: each maps times (T,) -> positions (T, 2) mm, NaN where off the table -----
+def decel_path(p0, heading_deg, v0, decel, t_start=0.0):
+    """Straight line from p0, speed v0 at t_start, constant deceleration until rest."""
+    u = np.array([math.cos(math.radians(heading_deg)), math.sin(math.radians(heading_deg))])
+    t_stop = v0 / decel
+
+    def f(t):
+        tau = np.clip(np.asarray(t, float) - t_start, 0.0, t_stop)
+        s = v0 * tau - 0.5 * decel * tau**2
+        return np.asarray(p0, float) + s[:, None] * u
+    return f
+
+
+def stun_roll_path(p0, heading_deg, v0, mu_s=0.2, mu_r=0.01, t_start=0.0):
+    """Alciatore 2004 (technical proofs): slide at mu_s g for 2 v0/(7 mu_s g), then roll from
+    5/7 v0 at mu_r g until rest."""
+    u = np.array([math.cos(math.radians(heading_deg)), math.sin(math.radians(heading_deg))])
+    t1 = 2 * v0 / (7 * mu_s * G)
+    s1 = 12 * v0**2 / (49 * mu_s * G)
+    v1 = 5 / 7 * v0
+    t2 = v1 / (mu_r * G)
+
+    def f(t):
+        tau = np.asarray(t, float) - t_start
+        s = np.where(tau <= 0, 0.0, 0.0)
+        a = (tau > 0) & (tau <= t1)
+        s = np.where(a, v0 * tau - 0.5 * mu_s * G * tau**2, s)
+        r = tau > t1
+        tr = np.clip(tau - t1, 0, t2)
+        s = np.where(r, s1 + v1 * tr - 0.5 * mu_r * G * tr**2, s)
+        return np.asarray(p0, float) + s[:, None] * u
+    return f
+
+
+def bounce_path(rail, contact_along, t_contact, v_in, v_out, a_in=(0.0, 0.0), a_out=(0.0, 0.0),
+                table=TABLE):
+    """Ball centre meeting ``rail``'s reversal line at ``contact_along`` at ``t_contact``, with
+    constant velocity/acceleration pieces (mm/s, mm/s^2) before and after."""
+    c = table.reversal_line(rail)
+    pc = np.array([contact_along, c]) if rail in ("bottom", "top") else np.array([c, contact_along])
+
+    def f(t):
+        tau = (np.asarray(t, float) - t_contact)[:, None]
+        before = pc + np.asarray(v_in) * tau + 0.5 * np.asarray(a_in) * tau**2
+        after = pc + np.asarray(v_out) * tau + 0.5 * np.asarray(a_out) * tau**2
+        return np.where(tau < 0, before, after)
+    return f
+
+
+def collision_paths(p_obj, v_cue, cut_deg, t_c):
+    """Cue ball moving at constant v_cue (vector) hits a resting object ball at p_obj at t_c with
+    the line of centres ``cut_deg`` from the cue ball's heading. Frictionless equal masses:
+    the object ball takes the velocity component along the line of centres (common practice)."""
+    v = np.asarray(v_cue, float)
+    speed = float(np.hypot(*v))
+    h = math.atan2(v[1], v[0]) + math.radians(cut_deg)
+    n = np.array([math.cos(h), math.sin(h)])  # line of centres, cue -> object
+    p_cue_c = np.asarray(p_obj, float) - D * n
+    v_obj = (v @ n) * n
+    v_cue_out = v - v_obj
+
+    def cue(t):
+        tau = (np.asarray(t, float) - t_c)[:, None]
+        return np.where(tau < 0, p_cue_c + v * tau, p_cue_c + v_cue_out * tau)
+
+    def obj(t):
+        tau = (np.asarray(t, float) - t_c)[:, None]
+        return np.where(tau < 0, np.asarray(p_obj, float) + 0 * tau, p_obj + v_obj * tau)
+    assert speed > 0
+    return cue, obj
+
+
+def detections(paths, times, rng, noise_mm=1.0, drop=0.0, gaps=(), labels=None, present=None):
+    """Detections DataFrame of ``paths`` {name: f} at ``times`` (T,), Gaussian noise, random
+    drops (probability), ``gaps`` [(name, first frame, last frame)] of occlusion, ``labels``
+    {name: (colour, pattern)}, ``present`` {name: (first frame, last frame)}."""
+    rows = []
+    labels = labels or {}
+    present = present or {}
+    pos = {name: f(times) for name, f in paths.items()}
+    for k, t in enumerate(times):
+        for name in paths:
+            lo, hi = present.get(name, (0, len(times) - 1))
+            if not lo <= k <= hi:
+                continue
+            if any(g[0] == name and g[1] <= k <= g[2] for g in gaps):
+                continue
+            if drop and rng.random() < drop:
+                continue
+            p = pos[name][k] + rng.normal(0.0, noise_mm, 2)
+            colour, pattern = labels.get(name, ("", "unknown"))
+            rows.append(dict(frame=k, t=float(t), x=p[0], y=p[1], u=0.0, v=0.0, quality=0.9,
+                             colour=colour, pattern=pattern, blur_x=0.0, blur_y=0.0,
+                             sigma_mm=noise_mm, truth=name))
+    return pd.DataFrame(rows)
+
+
+def match_tracks(tracks, paths, times):
+    """{name: track id} by the most frequent nearest track, and per-name position errors (mm) of
+    that track against the truth over the frames it covers."""
+    out, errs = {}, {}
+    for name, f in paths.items():
+        truth = f(times)
+        votes = {}
+        for tid, g in tracks.groupby("track"):
+            k = g["frame"].to_numpy()
+            d = np.hypot(*(g[["x", "y"]].to_numpy() - truth[k]).T)
+            votes[tid] = np.sum(d < R)
+        tid = max(votes, key=votes.get)
+        g = tracks[tracks["track"] == tid]
+        out[name] = tid
+        errs[name] = np.hypot(*(g[["x", "y"]].to_numpy() - truth[g["frame"].to_numpy()]).T)
+    return out, errs
+
+
+# --- the analytic paths themselves ---------------------------------------------------------------
+def test_stun_roll_generator_matches_alciatore_worked_case():
+    # Alciatore 2004 (technical proofs) worked case, via shared/spec/references.md: a stun at
+    # 1 m/s with mu_s 0.2 slides 0.146 s over 0.125 m, then rolls from 0.714 m/s.
+    f = stun_roll_path((0.0, 0.0), 0.0, 1000.0)
+    t1 = 2 * 1000.0 / (7 * 0.2 * G)
+    assert t1 == pytest.approx(0.146, abs=5e-4)
+    assert f(np.array([t1]))[0, 0] == pytest.approx(125.0, abs=1.0)
+    h = 1e-6
+    v_roll = (f(np.array([t1 + h]))[0, 0] - f(np.array([t1]))[0, 0]) / h
+    assert v_roll == pytest.approx(714.0, abs=1.0)
+
+
+# --- single balls ------------------------------------------------------------------------------
+@pytest.mark.parametrize("fps", [60.0, 30.0])
+@pytest.mark.parametrize("kind", ["decel", "stun_roll"])
+def test_single_ball_paths_tracked_within_noise(fps, kind):
+    rng = np.random.default_rng(3)
+    times = np.arange(int(2.0 * fps)) / fps
+    if kind == "decel":
+        # Constant deceleration at mu_s g (Alciatore 2004: sliding ball).
+        f = decel_path((300.0, 250.0), 20.0, 2000.0, 0.2 * G, t_start=0.3)
+    else:
+        f = stun_roll_path((300.0, 250.0), 20.0, 2500.0, t_start=0.3)
+    noise = 3.0
+    det = detections({"a": f}, times, rng, noise_mm=noise, drop=0.05)
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 1  # identity intact: one ball, one track
+    _, errs = match_tracks(tr, {"a": f}, times)
+    # Target (brief): median error at most 1.5 x the measurement noise.
+    assert np.median(errs["a"]) <= 1.5 * noise
+    assert len(tr) == len(times)  # every frame from first to last, dropped ones coasted
+    assert (tr["seen"] == 0).sum() == len(times) - len(det)
+
+
+def test_bounce_keeps_one_track_and_follows_the_reflection():
+    fps = 60.0
+    times = np.arange(int(1.2 * fps)) / fps
+    rng = np.random.default_rng(5)
+    v_in = np.array([900.0, -1500.0])
+    v_out = np.array([850.0, 0.75 * 1500.0])  # cushion restitution 0.75 (Alciatore 2004 range)
+    f = bounce_path("bottom", 1200.0, 0.5 + 0.4 / fps, v_in, v_out)
+    det = detections({"a": f}, times, rng, noise_mm=2.0)
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 1
+    _, errs = match_tracks(tr, {"a": f}, times)
+    assert np.median(errs["a"]) <= 1.5 * 2.0
+    # Smoothing is cut at the bounce, so even the frames beside the contact stay close.
+    assert np.max(errs["a"]) < 8.0
+
+
+# --- several balls --------------------------------------------------------------------------------
+def test_close_pass_keeps_identity():
+    fps = 60.0
+    times = np.arange(int(1.0 * fps)) / fps
+    rng = np.random.default_rng(11)
+    # Two balls on parallel lines 60 mm apart (3 mm more than a diameter), opposite directions.
+    a = decel_path((600.0, 600.0), 0.0, 1500.0, 300.0)
+    b = decel_path((1800.0, 660.0), 180.0, 1500.0, 300.0)
+    det = detections({"a": a, "b": b}, times, rng, noise_mm=2.0)
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2
+    ids, errs = match_tracks(tr, {"a": a, "b": b}, times)
+    assert ids["a"] != ids["b"]
+    for name in ("a", "b"):
+        assert np.max(errs[name]) < 15.0, name  # never jumps to the other ball (60 mm away)
+
+
+def test_occlusion_gap_of_ten_frames_is_coasted():
+    fps = 60.0
+    times = np.arange(int(1.5 * fps)) / fps
+    rng = np.random.default_rng(2)
+    a = decel_path((400.0, 300.0), 35.0, 1800.0, 0.2 * G * 0.5, t_start=0.1)
+    b = decel_path((1500.0, 800.0), 0.0, 0.0, 1.0)  # at rest nearby
+    det = detections({"a": a, "b": b}, times, rng, noise_mm=2.0, gaps=[("a", 30, 39)])
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2
+    ids, errs = match_tracks(tr, {"a": a, "b": b}, times)
+    ga = tr[tr["track"] == ids["a"]].set_index("frame")
+    assert ga.loc[30:39, "seen"].eq(0).all() and len(ga.loc[30:39]) == 10
+    # Coasted rows are smoothed from both sides of the gap.
+    truth = a(times)
+    gap_err = np.hypot(*(ga.loc[30:39, ["x", "y"]].to_numpy() - truth[30:40]).T)
+    assert gap_err.max() < 15.0
+    assert np.median(errs["a"]) < 3.0
+
+
+@pytest.mark.parametrize("labelled", [True, False])
+@pytest.mark.parametrize("cut_deg", [0.0, 30.0])
+def test_collision_keeps_identity(labelled, cut_deg):
+    fps = 60.0
+    times = np.arange(int(1.0 * fps)) / fps
+    rng = np.random.default_rng(int(cut_deg) + 1)
+    cue, obj = collision_paths((1300.0, 640.0), (1800.0, 300.0), cut_deg, 0.5 + 0.3 / fps)
+    labels = {"cue": ("white", "cue"), "obj": ("red", "solid")} if labelled else None
+    det = detections({"cue": cue, "obj": obj}, times, rng, noise_mm=2.0, labels=labels)
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2
+    ids, errs = match_tracks(tr, {"cue": cue, "obj": obj}, times)
+    assert ids["cue"] != ids["obj"]
+    for name in ("cue", "obj"):
+        assert np.max(errs[name]) < 25.0, name  # a swap would show as about a diameter or more
+        assert np.median(errs[name]) < 3.0, name
+    if labelled:
+        balls = tr.groupby("track")["ball"].first()
+        assert balls[ids["cue"]] == "cue" and balls[ids["obj"]] == "object"
+        assert tr.groupby("track")["colour"].first()[ids["obj"]] == "red"
+
+
+def test_touching_balls_at_rest_keep_their_tracks():
+    fps = 60.0
+    times = np.arange(40) / fps
+    rng = np.random.default_rng(9)
+    a = decel_path((1000.0, 500.0), 0.0, 0.0, 1.0)
+    b = decel_path((1000.0 + D, 500.0), 0.0, 0.0, 1.0)
+    det = detections({"a": a, "b": b}, times, rng, noise_mm=1.0)
+    tr = track(det, TABLE)
+    ids, errs = match_tracks(tr, {"a": a, "b": b}, times)
+    assert tr["track"].nunique() == 2 and ids["a"] != ids["b"]
+    assert max(errs["a"].max(), errs["b"].max()) < 3.0
+
+
+def test_new_ball_gets_new_track_and_false_detections_none():
+    fps = 60.0
+    times = np.arange(60) / fps
+    rng = np.random.default_rng(4)
+    a = decel_path((500.0, 500.0), 0.0, 0.0, 1.0)
+    b = decel_path((2000.0, 900.0), 0.0, 0.0, 1.0)
+    det = detections({"a": a, "b": b}, times, rng, noise_mm=1.0, present={"b": (30, 59)})
+    # One-off false detections scattered over the cloth, never twice in the same place.
+    junk = pd.DataFrame([dict(frame=k, t=times[k], x=rng.uniform(100, 2400),
+                              y=rng.uniform(100, 1100), quality=0.9) for k in range(5, 55, 7)])
+    det = pd.concat([det, junk], ignore_index=True)
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2
+    ids, _ = match_tracks(tr, {"a": a, "b": b}, times)
+    first = tr.groupby("track")["frame"].min()
+    assert first[ids["a"]] == 0 and first[ids["b"]] == 30
+    assert ids["a"] == 0 and ids["b"] == 1  # ids from 0 in order of appearance
+
+
+@pytest.mark.parametrize("where, reason", [("pocket", "pocket"), ("cloth", "lifted")])
+def test_ball_leaving_ends_its_track(where, reason):
+    fps = 60.0
+    times = np.arange(90) / fps
+    rng = np.random.default_rng(6)
+    if where == "pocket":
+        # Heading for the bottom-left corner pocket; it disappears behind the mouth.
+        a = decel_path((400.0, 400.0), 225.0, 1500.0, 200.0)
+        last = int(np.argmax(np.sum(a(times), axis=1) < TABLE.corner_mouth_mm / math.sqrt(2)))
+    else:
+        a = decel_path((1200.0, 600.0), 0.0, 0.0, 1.0)
+        last = 40
+    det = detections({"a": a}, times, rng, noise_mm=1.0, present={"a": (0, last)})
+    tracker = Tracker(TrackerConfig(coast_s=0.3), TABLE)
+    for k, t in enumerate(times):
+        g = det[det["frame"] == k]
+        tracker.step(g, frame=k, t=float(t))
+    tr = tracker.result()
+    assert tr["frame"].max() == last  # the coasted tail after the last detection is dropped
+    ends = tracker.endings()
+    assert list(ends["reason"]) == [reason]
+
+
+def test_empty_and_bad_input():
+    empty = pd.DataFrame({c: [] for c in ("frame", "t", "x", "y")})
+    tr = track(empty, TABLE)
+    assert list(tr.columns[: len(TRACK_COLUMNS)]) == TRACK_COLUMNS and len(tr) == 0
+    assert tr["frame"].dtype == np.int64 and tr["x"].dtype == np.float64
+    with pytest.raises(ValueError, match="x, y"):
+        track(pd.DataFrame({"frame": [0], "t": [0.0]}), TABLE)
+    with pytest.raises(ValueError, match="pattern"):
+        track(pd.DataFrame({"frame": [0], "t": [0.0], "x": [1.0], "y": [1.0],
+                            "pattern": ["dotted"]}), TABLE)
+    with pytest.raises(ValueError, match="mu_s g|positive"):
+        TrackerConfig(accel_sigma_mm_s2=0.0)
+    tracker = Tracker(TrackerConfig(), TABLE)
+    tracker.step(empty, frame=0, t=0.0)
+    with pytest.raises(ValueError, match="not after"):
+        tracker.step(empty, frame=1, t=0.0)
+
+
+def test_input_not_modified():
+    times = np.arange(20) / 60.0
+    det = detections({"a": decel_path((500.0, 500.0), 0.0, 900.0, 300.0)}, times,
+                     np.random.default_rng(1))
+    before = det.copy()
+    track(det, TABLE)
+    pd.testing.assert_frame_equal(det, before)

@@ -1,0 +1,665 @@
+"""Multi-ball tracking: detections per frame -> one smoothed track per ball.
+
+Input: a tidy detections DataFrame, one row per detected ball per frame, in the table frame of
+``vision.table`` (mm, s):
+
+=========== =========================================================================== ========
+column      meaning                                                                     required
+=========== =========================================================================== ========
+frame       frame index (int)                                                           yes
+t           presentation time of the frame, s                                           yes
+x, y        ball centre, mm                                                             yes
+sigma_mm    standard deviation of the centre per axis, mm (NaN/absent: ``meas_sigma_mm``) no
+quality     detector confidence 0..1 (else 1); below ``birth_min_quality`` a detection no
+            can feed a track but never start one
+colour      colour label, "" unknown                                                    no
+pattern     ``cue``, ``solid``, ``stripe`` or ``unknown``                               no
+=========== =========================================================================== ========
+
+Other columns (``u``, ``v``, ``blur_x``, ``blur_y``) are accepted and ignored.
+
+Output (``Tracker.result`` / ``track``): one row per confirmed ball per frame from its first to its
+last detection, columns ``frame, t, track, ball, x, y, vx, vy, seen`` of
+``shared/spec/results-format.md`` (``x, y`` mm and ``vx, vy`` mm/s smoothed; ``seen`` 1 where the
+ball was detected, 0 where it was coasted), then the extra columns ``colour`` and ``pattern`` (the
+track's majority labels, "" / "unknown" when none) and ``x_meas, y_meas`` (the detection assigned
+in that frame, NaN when unseen), so later stages can fit raw measurements.
+
+Method
+------
+* One constant-velocity Kalman filter per ball (``tracking.kalman``); per frame every track is
+  predicted to the frame's time and detections are assigned by the Hungarian method
+  (``scipy.optimize.linear_sum_assignment``) on a cost built from three motion hypotheses:
+
+  - *predicted*: squared Mahalanobis distance of the innovation, ``d2 = y^T S^-1 y`` with
+    ``y = z - H x_pred`` and ``S = H P H^T + R``, accepted inside the chi-square gate
+    ``chi2.ppf(gate_prob, 2)`` (Bar-Shalom, Li & Kirubarajan 2001, sec. 7.3 "validation
+    region");
+  - *bounce*: the same distance to the prediction reflected off a rail's reversal line (the
+    normal component scaled by a nominal restitution), offered when the plain prediction has
+    crossed that line along a cushion (not in a pocket mouth);
+  - *jump*: a detection within ``max_speed_mm_s * dt`` of the ball's previous position, for the
+    velocity jumps of cue strikes and collisions. It always costs more than any gated prediction
+    and grows with the distance from the previous position, so at a collision each ball keeps the
+    detection nearest to where it was (balls cannot pass through each other).
+
+  Colour and pattern mismatches add to the cost; a ``cue`` pattern detection never goes to an
+  object track (nor a solid/stripe one to the cue track). Unassigned tracks and detections compete
+  through dummy rows and columns (the usual square augmentation), so a track may stay unassigned.
+* A detection matched through a bounce or jump, or with a predicted ``d2`` above
+  ``chi2.ppf(maneuver_prob, 2)``, marks a velocity breakpoint: the filter's velocity is restarted
+  there (a crude version of the maneuver detection in Bar-Shalom et al. 2001, ch. 11).
+* Tracks start tentative and are confirmed after ``confirm_hits`` detections within
+  ``confirm_window`` frames; an unconfirmed track that misses ``tentative_max_misses`` frames in a
+  row is dropped, so one-off false detections never make a track. A confirmed track coasts (rows
+  with ``seen = 0``) while undetected and ends after ``coast_s`` without a detection; its coasted
+  tail is dropped, and its end is classed ``pocket`` (last seen near a pocket mouth) or ``lifted``.
+* Offline, each track is cut at its breakpoints and the Rauch-Tung-Striebel smoother
+  (``tracking.kalman.rts_smooth``) runs within each piece, so smoothing never blurs a contact.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from collections import Counter
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import linear_sum_assignment
+from scipy.stats import chi2
+
+from tracking.kalman import (
+    INITIAL_SPEED_SIGMA_MM_S,
+    SLIDING_DECEL_MM_S2,
+    make_ball_filter,
+    motion_model,
+    rts_smooth,
+)
+from vision.table import RAILS, TableSpec
+
+log = logging.getLogger(__name__)
+
+REQUIRED_COLUMNS = ("frame", "t", "x", "y")
+TRACK_COLUMNS = ["frame", "t", "track", "ball", "x", "y", "vx", "vy", "seen"]
+EXTRA_COLUMNS = ["colour", "pattern", "x_meas", "y_meas"]
+PATTERNS = ("cue", "solid", "stripe", "unknown")
+
+# Cost of an impossible pairing in the assignment matrix (any value far above every real cost).
+_INFEASIBLE = 1e9
+
+
+@dataclass(frozen=True)
+class TrackerConfig:
+    """Knobs of the tracker, each with its physical meaning (mm, s, mm/s).
+
+    ``meas_sigma_mm``: position noise of a detection lacking ``sigma_mm`` (the detector gives
+    about 1 mm at rest, 3 mm moving). ``accel_sigma_mm_s2``: white-acceleration noise of the
+    motion model, the sliding deceleration ``mu_s g`` (``tracking.kalman``).
+    ``initial_speed_sigma_mm_s``: prior velocity spread of a new track and of a restarted
+    velocity. ``max_speed_mm_s``: fastest ball considered, bounds a velocity jump per frame (a
+    hard break reaches 8 to 10 m/s; from memory). ``gate_prob``: chi-square probability of the
+    Mahalanobis gate; ``maneuver_prob``: innovations beyond this probability restart the
+    velocity and cut the smoother. ``bounce_restitution`` / ``bounce_restitution_sigma``:
+    nominal cushion speed ratio of the reflected prediction and its spread (Alciatore 2004
+    ball-cushion restitution 0.6 to 0.9 [secondary]). ``colour_cost`` / ``pattern_cost``:
+    assignment cost (chi-square units) of a colour or solid/stripe mismatch. ``coast_s``: longest
+    gap a track survives undetected. ``confirm_hits`` in ``confirm_window`` frames confirm a new
+    track; ``tentative_max_misses`` consecutive misses drop an unconfirmed one.
+    ``birth_min_quality``: lowest detector quality that may start a track. ``pocket_reach_mm``:
+    a track last seen within this of a pocket mouth ended in the pocket.
+    """
+
+    meas_sigma_mm: float = 2.0
+    accel_sigma_mm_s2: float = SLIDING_DECEL_MM_S2
+    initial_speed_sigma_mm_s: float = INITIAL_SPEED_SIGMA_MM_S
+    max_speed_mm_s: float = 8000.0
+    gate_prob: float = 0.9999
+    maneuver_prob: float = 0.999
+    bounce_restitution: float = 0.75
+    bounce_restitution_sigma: float = 0.2
+    colour_cost: float = 6.0
+    pattern_cost: float = 6.0
+    coast_s: float = 0.5
+    confirm_hits: int = 3
+    confirm_window: int = 5
+    tentative_max_misses: int = 2
+    birth_min_quality: float = 0.3
+    pocket_reach_mm: float = 120.0
+
+    def __post_init__(self) -> None:
+        for name in ("meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
+                     "max_speed_mm_s", "coast_s", "pocket_reach_mm"):
+            value = getattr(self, name)
+            if not (math.isfinite(value) and value > 0):
+                raise ValueError(f"TrackerConfig.{name} = {value!r} must be a positive number")
+        for name in ("gate_prob", "maneuver_prob"):
+            value = getattr(self, name)
+            if not 0.5 < value < 1.0:
+                raise ValueError(f"TrackerConfig.{name} = {value!r} must lie in (0.5, 1), "
+                                 "e.g. 0.9999")
+        if self.maneuver_prob > self.gate_prob:
+            raise ValueError(f"maneuver_prob {self.maneuver_prob} must not exceed gate_prob "
+                             f"{self.gate_prob}: a restart must happen inside the gate")
+        if not 0.0 < self.bounce_restitution <= 1.0:
+            raise ValueError(f"bounce_restitution {self.bounce_restitution} must lie in (0, 1]")
+        if not 1 <= self.confirm_hits <= self.confirm_window:
+            raise ValueError(f"confirm_hits {self.confirm_hits} must lie in 1..confirm_window "
+                             f"({self.confirm_window})")
+        if self.tentative_max_misses < 1:
+            raise ValueError(f"tentative_max_misses {self.tentative_max_misses} must be >= 1")
+
+
+class _Track:
+    """Forward-pass state and history of one ball (internal)."""
+
+    def __init__(self, key: int, kf, frame: int, t: float):
+        self.key = key  # creation order, internal
+        self.track_id: int | None = None  # output id, set on confirmation
+        self.kf = kf
+        self.t_last = t
+        self.birth_frame = frame
+        self.hits = 0
+        self.misses = 0  # consecutive
+        self.last_seen_t = t
+        self.ended: str | None = None
+        self.colours: Counter = Counter()
+        self.patterns: Counter = Counter()
+        # History, one entry per processed frame since birth. Fs[k], Qs[k] carry k -> k + 1.
+        self.frames: list[int] = []
+        self.times: list[float] = []
+        self.xs: list[np.ndarray] = []
+        self.Ps: list[np.ndarray] = []
+        self.Fs: list[np.ndarray] = []
+        self.Qs: list[np.ndarray] = []
+        self.seen: list[int] = []
+        self.breaks: list[bool] = []
+        self.zs: list[tuple[float, float]] = []
+
+    @property
+    def confirmed(self) -> bool:
+        return self.track_id is not None
+
+    def kind(self) -> str:
+        """``cue``, ``object`` or ``unknown`` from the patterns of its detections so far."""
+        cue = self.patterns.get("cue", 0)
+        obj = self.patterns.get("solid", 0) + self.patterns.get("stripe", 0)
+        if cue >= 2 and cue > obj:
+            return "cue"
+        if obj >= 2 and obj > cue:
+            return "object"
+        return "unknown"
+
+    def label(self, counter: Counter, unknown: str) -> str:
+        known = [(n, lab) for lab, n in counter.items() if lab not in ("", "unknown")]
+        if not known:
+            return unknown
+        known.sort(key=lambda p: (-p[0], p[1]))
+        return known[0][1]
+
+    def record(self, frame, t, x, P, F, Q, seen, brk, z):
+        if self.Fs:
+            self.Fs[-1], self.Qs[-1] = F, Q
+        self.frames.append(frame)
+        self.times.append(t)
+        self.xs.append(x.reshape(4).copy())
+        self.Ps.append(P.copy())
+        self.Fs.append(np.eye(4))
+        self.Qs.append(np.zeros((4, 4)))
+        self.seen.append(int(seen))
+        self.breaks.append(bool(brk))
+        self.zs.append(z)
+        self.t_last = t
+
+    def trim_unseen_tail(self) -> None:
+        while self.seen and not self.seen[-1]:
+            for lst in (self.frames, self.times, self.xs, self.Ps, self.Fs, self.Qs, self.seen,
+                        self.breaks, self.zs):
+                lst.pop()
+
+
+class Tracker:
+    """Frame-by-frame multi-ball tracker; see the module docstring for the method.
+
+    ``step`` takes the detections of one frame (columns as in the module docstring); frames must
+    come in increasing time. ``result`` smooths every confirmed track and returns the tracks
+    DataFrame; ``endings`` says how each ended track left the table.
+    """
+
+    def __init__(self, config: TrackerConfig | None = None, table: TableSpec | None = None):
+        if table is None:
+            raise ValueError("Tracker needs the TableSpec of the clip, e.g. vision.table.NINE_FOOT")
+        self.config = config or TrackerConfig()
+        self.table = table
+        self._tracks: list[_Track] = []
+        self._next_key = 0
+        self._next_id = 0
+        self._frame: int | None = None
+        self._t: float | None = None
+        self._gate = float(chi2.ppf(self.config.gate_prob, 2))
+        self._maneuver = float(chi2.ppf(self.config.maneuver_prob, 2))
+        self._segments = {r: [] for r in RAILS}
+        for seg in table.cushions():
+            ax = 0 if seg.rail in ("bottom", "top") else 1
+            lo, hi = sorted((seg.start[ax], seg.end[ax]))
+            self._segments[seg.rail].append((lo, hi))
+
+    # --- public API ---------------------------------------------------------------------------
+    def step(self, frame_detections: pd.DataFrame, frame: int | None = None,
+             t: float | None = None) -> None:
+        """Process one frame's detections (a DataFrame with the columns of the module docstring).
+
+        ``frame`` and ``t`` are taken from the detections; give them explicitly for a frame with
+        no detections (every track then coasts). Raises ValueError on missing columns, several
+        frames in one call, or a time not after the previous frame's.
+        """
+        det = _checked(frame_detections, self.config)
+        if len(det):
+            frames = det["frame"].unique()
+            times = det["t"].unique()
+            if len(frames) != 1 or len(times) != 1:
+                raise ValueError(f"step() takes one frame at a time; got frames {list(frames)[:5]}"
+                                 " and times " f"{list(times)[:5]}; use track() for a whole clip")
+            frame, t = int(frames[0]), float(times[0])
+        elif frame is None or t is None:
+            raise ValueError("an empty frame needs its frame index and time: step(df, frame=, t=)")
+        frame, t = int(frame), float(t)
+        if self._t is not None and not t > self._t:
+            raise ValueError(f"frame {frame} at t = {t} s is not after the previous frame "
+                             f"(t = {self._t} s); feed frames in time order")
+        self._frame, self._t = frame, t
+
+        Z = det[["x", "y"]].to_numpy(float).reshape(-1, 2)
+        sig = det["sigma_mm"].to_numpy(float)
+        colours = det["colour"].tolist()
+        patterns = det["pattern"].tolist()
+        quality = det["quality"].to_numpy(float)
+
+        live = [tr for tr in self._tracks if tr.ended is None]
+        preds = {tr.key: self._predict(tr, t) for tr in live}
+        free = np.ones(len(Z), dtype=bool)
+        assigned: dict[int, tuple[int, str]] = {}
+        for group in ([tr for tr in live if tr.confirmed], [tr for tr in live if not tr.confirmed]):
+            idx = np.flatnonzero(free)
+            if not group or not len(idx):
+                continue
+            pairs = self._assign(group, preds, Z[idx], sig[idx],
+                                 [colours[i] for i in idx], [patterns[i] for i in idx])
+            for gi, dj, hyp in pairs:
+                assigned[group[gi].key] = (int(idx[dj]), hyp)
+                free[idx[dj]] = False
+
+        for tr in live:
+            pred = preds[tr.key]
+            if tr.key in assigned:
+                j, hyp = assigned[tr.key]
+                self._update(tr, pred, hyp, Z[j], sig[j], frame, t)
+                tr.colours[colours[j]] += 1
+                tr.patterns[patterns[j]] += 1
+                tr.hits += 1
+                tr.misses = 0
+                tr.last_seen_t = t
+                if not tr.confirmed and tr.hits >= self.config.confirm_hits:
+                    tr.track_id = self._next_id
+                    self._next_id += 1
+            else:
+                self._coast(tr, pred, frame, t)
+                tr.misses += 1
+                self._maybe_end(tr, t)
+
+        # New tentative tracks from detections no track took, unless they sit on a live ball
+        # (a duplicate detection of it).
+        occupied = np.array([tr.xs[-1][[0, 2]] for tr in self._tracks
+                             if tr.ended is None and tr.frames and tr.frames[-1] == frame])
+        order = sorted(np.flatnonzero(free), key=lambda j: (Z[j, 0], Z[j, 1]))
+        for j in order:
+            if quality[j] < self.config.birth_min_quality:
+                continue
+            if len(occupied) and np.min(np.hypot(*(occupied - Z[j]).T)) < self.table.radius_mm:
+                continue
+            self._birth(Z[j], sig[j], colours[j], patterns[j], frame, t)
+            occupied = np.vstack([occupied.reshape(-1, 2), Z[j]])
+
+    def result(self) -> pd.DataFrame:
+        """The smoothed tracks DataFrame (columns ``TRACK_COLUMNS + EXTRA_COLUMNS``), sorted by
+        frame then track. Tracks still on the table lose their undetected tail, as ended ones do.
+        """
+        rows = []
+        for tr in self._tracks:
+            if not tr.confirmed:
+                continue
+            tr.trim_unseen_tail()
+            if not tr.frames:
+                continue
+            xs = self._smooth(tr)
+            n = len(tr.frames)
+            z = np.array([zz for zz in tr.zs], dtype=float)
+            rows.append(pd.DataFrame({
+                "frame": np.asarray(tr.frames, dtype=np.int64),
+                "t": np.asarray(tr.times, dtype=float),
+                "track": np.full(n, tr.track_id, dtype=np.int64),
+                "ball": "cue" if tr.kind() == "cue" else "object",
+                "x": xs[:, 0], "y": xs[:, 2], "vx": xs[:, 1], "vy": xs[:, 3],
+                "seen": np.asarray(tr.seen, dtype=np.int64),
+                "colour": tr.label(tr.colours, ""),
+                "pattern": tr.label(tr.patterns, "unknown"),
+                "x_meas": z[:, 0], "y_meas": z[:, 1],
+            }))
+        if not rows:
+            return empty_tracks()
+        out = pd.concat(rows, ignore_index=True)
+        return out.sort_values(["frame", "track"], kind="stable").reset_index(drop=True)
+
+    def endings(self) -> pd.DataFrame:
+        """Ended tracks: columns ``track, frame, t, x, y, reason`` (``pocket`` or ``lifted``) at
+        the last detection."""
+        rows = [dict(track=tr.track_id, frame=tr.frames[-1], t=tr.times[-1], x=tr.xs[-1][0],
+                     y=tr.xs[-1][2], reason=tr.ended)
+                for tr in self._tracks if tr.confirmed and tr.ended and tr.frames]
+        cols = ["track", "frame", "t", "x", "y", "reason"]
+        if not rows:
+            return pd.DataFrame({c: pd.Series(dtype=d) for c, d in zip(
+                cols, ["int64", "int64", "float64", "float64", "float64", "str"])})
+        return pd.DataFrame(rows, columns=cols)
+
+    # --- internals ----------------------------------------------------------------------------
+    def _predict(self, tr: _Track, t: float) -> dict:
+        """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}."""
+        dt = t - tr.t_last
+        F, Q = motion_model(dt, self.config.accel_sigma_mm_s2)
+        x = F @ tr.kf.x.reshape(4)  # x_pred = F x
+        P = F @ tr.kf.P @ F.T + Q  # P_pred = F P F^T + Q
+        return {"x": x, "P": P, "F": F, "Q": Q, "dt": dt, "prev": tr.kf.x.reshape(4)[[0, 2]],
+                "prev_P": tr.kf.P[np.ix_([0, 2], [0, 2])], "bounces": self._bounces(x, P)}
+
+    def _on_cushion(self, rail: str, along_mm: float) -> bool:
+        return any(lo <= along_mm <= hi for lo, hi in self._segments[rail])
+
+    def _bounces(self, x: np.ndarray, P: np.ndarray) -> list[tuple[str, np.ndarray, np.ndarray]]:
+        """Predictions reflected off each reversal line the plain prediction has crossed.
+
+        A crossing in a pocket mouth is not reflected. The normal coordinate ``p`` becomes
+        ``c - e (p - c)`` and the normal velocity ``-e v`` for line ``c`` and nominal restitution
+        ``e``; ``P' = J P J^T`` plus the spread of ``e`` on both.
+        """
+        out = []
+        cfg = self.config
+        e, se = cfg.bounce_restitution, cfg.bounce_restitution_sigma
+        for rail in RAILS:
+            ax = 1 if rail in ("bottom", "top") else 0  # state block of the normal coordinate
+            c = self.table.reversal_line(rail)
+            inward = 1.0 if rail in ("bottom", "left") else -1.0
+            depth = inward * (x[2 * ax] - c)  # < 0: the centre is past the reversal line
+            if depth >= 0 or inward * x[2 * ax + 1] >= 0:
+                continue
+            along = x[2 * (1 - ax)]
+            if not self._on_cushion(rail, along):
+                continue
+            J = np.eye(4)
+            J[2 * ax, 2 * ax] = J[2 * ax + 1, 2 * ax + 1] = -e
+            xr = J @ x
+            xr[2 * ax] += (1 + e) * c  # p' = c (1 + e) - e p
+            Pr = J @ P @ J.T
+            Pr[2 * ax, 2 * ax] += (se * depth) ** 2
+            Pr[2 * ax + 1, 2 * ax + 1] += (se * x[2 * ax + 1]) ** 2
+            out.append((rail, xr, Pr))
+        return out
+
+    def _assign(self, group, preds, Z, sig, colours, patterns) -> list[tuple[int, int, str]]:
+        """Hungarian assignment of ``group`` tracks to detections Z (D, 2) mm.
+
+        Returns (track index, detection index, hypothesis) triples; hypothesis is ``predict``,
+        ``bounce:<rail>`` or ``jump``.
+        """
+        cfg = self.config
+        T, D = len(group), len(Z)
+        cost = np.full((T, D), _INFEASIBLE)
+        hyps = np.full((T, D), "", dtype=object)
+        g = self._gate
+        for i, tr in enumerate(group):
+            pr = preds[tr.key]
+            kind = tr.kind()
+            colour = tr.label(tr.colours, "")
+            ident = np.zeros(D)
+            for j in range(D):
+                if (kind == "object" and patterns[j] == "cue") or \
+                        (kind == "cue" and patterns[j] in ("solid", "stripe")):
+                    ident[j] = _INFEASIBLE
+                    continue
+                if colour and colours[j] and colours[j] != colour:
+                    ident[j] += cfg.colour_cost
+                tp = tr.label(tr.patterns, "unknown")
+                if {tp, patterns[j]} == {"solid", "stripe"}:
+                    ident[j] += cfg.pattern_cost
+            cands = [("predict", pr["x"], pr["P"])] + [
+                (f"bounce:{rail}", xr, Pr) for rail, xr, Pr in pr["bounces"]]
+            for name, x, P in cands:
+                d2 = _mahalanobis2(Z, x[[0, 2]], P[np.ix_([0, 2], [0, 2])], sig)
+                ok = (d2 <= g) & (d2 < cost[i])
+                cost[i, ok] = d2[ok]
+                hyps[i, ok] = name
+            # Velocity jump: anywhere a ball could reach from its previous position this frame.
+            reach = cfg.max_speed_mm_s * pr["dt"] + 3.0 * (
+                math.sqrt(np.trace(pr["prev_P"])) + sig)
+            dist = np.hypot(*(Z - pr["prev"]).T)
+            cj = g + g * (dist / reach) ** 2  # above every gated prediction, nearer is cheaper
+            ok = (dist <= reach) & (hyps[i] == "")
+            cost[i, ok] = cj[ok]
+            hyps[i, ok] = "jump"
+            cost[i] += ident
+        # Square augmentation: leaving a track or a detection unassigned costs `miss` each, so a
+        # feasible pair (at most 2 g plus identity terms) is always preferred to leaving both.
+        miss = g + 1.0 + max(cfg.colour_cost, cfg.pattern_cost)
+        big = np.full((T + D, T + D), _INFEASIBLE)
+        big[:T, :D] = cost
+        big[:T, D:] = np.where(np.eye(T) > 0, miss, _INFEASIBLE)
+        big[T:, :D] = np.where(np.eye(D) > 0, miss, _INFEASIBLE)
+        big[T:, D:] = 0.0
+        rows, cols = linear_sum_assignment(big)
+        return [(int(r), int(c), str(hyps[r, c])) for r, c in zip(rows, cols)
+                if r < T and c < D and cost[r, c] < _INFEASIBLE / 2]
+
+    def _restart_velocity(self, tr: _Track, pred: dict, z: np.ndarray, R: np.ndarray) -> None:
+        """Position from the detection, velocity from the last two positions, wide velocity
+        prior: the velocity changed at an unknown instant of the last interval."""
+        dt = max(pred["dt"], 1e-9)
+        v = (z - pred["prev"]) / dt  # finite difference; later frames refine it
+        sv = max(self.config.initial_speed_sigma_mm_s, float(np.hypot(*v)))
+        tr.kf.x = np.array([[z[0]], [v[0]], [z[1]], [v[1]]])
+        tr.kf.P = np.diag([R[0, 0], sv**2, R[1, 1], sv**2])
+
+    def _update(self, tr: _Track, pred: dict, hyp: str, z, sigma, frame, t) -> None:
+        R = float(sigma) ** 2 * np.eye(2)
+        z = np.asarray(z, dtype=float)
+        brk = False
+        if hyp == "jump":
+            self._restart_velocity(tr, pred, z, R)
+            brk = True
+        else:
+            if hyp.startswith("bounce:"):
+                rail = hyp.split(":", 1)[1]
+                _, x, P = next(b for b in pred["bounces"] if b[0] == rail)
+                brk = True
+            else:
+                x, P = pred["x"], pred["P"]
+                d2 = float(_mahalanobis2(z[None], x[[0, 2]], P[np.ix_([0, 2], [0, 2])],
+                                         np.array([sigma]))[0])
+                brk = d2 > self._maneuver and len(tr.frames) > 0
+            tr.kf.x, tr.kf.P = x.reshape(4, 1).copy(), P.copy()
+            if brk and hyp == "predict":
+                self._restart_velocity(tr, pred, z, R)
+            else:
+                tr.kf.update(z.reshape(2, 1), R=R)  # x += K (z - H x), P = (I - K H) P ...
+        tr.record(frame, t, tr.kf.x, tr.kf.P, pred["F"], pred["Q"], True, brk, (z[0], z[1]))
+
+    def _coast(self, tr: _Track, pred: dict, frame, t) -> None:
+        x, P = pred["x"], pred["P"]
+        if pred["bounces"]:  # an unseen ball still turns at the cushion
+            _, x, P = pred["bounces"][0]
+        tr.kf.x, tr.kf.P = x.reshape(4, 1).copy(), P.copy()
+        tr.record(frame, t, tr.kf.x, tr.kf.P, pred["F"], pred["Q"], False, bool(pred["bounces"]),
+                  (math.nan, math.nan))
+
+    def _maybe_end(self, tr: _Track, t: float) -> None:
+        cfg = self.config
+        if not tr.confirmed:
+            since_birth = (self._frame or 0) - tr.birth_frame + 1
+            if tr.misses >= cfg.tentative_max_misses or since_birth >= cfg.confirm_window:
+                tr.ended = "dropped"
+            return
+        if t - tr.last_seen_t > cfg.coast_s:
+            tr.trim_unseen_tail()
+            last = np.array([tr.xs[-1][0], tr.xs[-1][2]])
+            near = min(_segment_distance(last, p.jaw_a, p.jaw_b) for p in self.table.pockets())
+            tr.ended = "pocket" if near <= cfg.pocket_reach_mm else "lifted"
+            log.debug("track %s ended (%s) at t = %.3f s", tr.track_id, tr.ended, tr.times[-1])
+
+    def _birth(self, z, sigma, colour, pattern, frame, t) -> None:
+        cfg = self.config
+        dt_nominal = 1.0 / 60.0  # replaced by the true interval at every predict
+        kf = make_ball_filter(dt_nominal, float(sigma), cfg.accel_sigma_mm_s2,
+                              xy0_mm=(float(z[0]), float(z[1])),
+                              speed_sigma_mm_s=cfg.initial_speed_sigma_mm_s)
+        tr = _Track(self._next_key, kf, frame, t)
+        self._next_key += 1
+        tr.colours[colour] += 1
+        tr.patterns[pattern] += 1
+        tr.hits = 1
+        tr.record(frame, t, kf.x, kf.P, np.eye(4), np.zeros((4, 4)), True, True,
+                  (float(z[0]), float(z[1])))
+        if cfg.confirm_hits <= 1:
+            tr.track_id = self._next_id
+            self._next_id += 1
+        self._tracks.append(tr)
+
+    def _smooth(self, tr: _Track) -> np.ndarray:
+        """RTS-smoothed states (N, 4) of ``tr``, run separately between breakpoints."""
+        xs = np.array(tr.xs)
+        Ps = np.array(tr.Ps)
+        Fs = np.array(tr.Fs)
+        Qs = np.array(tr.Qs)
+        starts = [k for k, b in enumerate(tr.breaks) if b or k == 0] + [len(xs)]
+        out = np.empty_like(xs)
+        for a, b in zip(starts[:-1], starts[1:]):
+            out[a:b], _ = rts_smooth(xs[a:b], Ps[a:b], Fs[a:b], Qs[a:b])
+        return out
+
+    # Tracks are also reachable for tests and callers that want the raw forward estimates.
+    def filtered(self) -> pd.DataFrame:
+        """Forward-filter estimates (no smoothing): columns ``frame, t, track, x, y, vx, vy,
+        seen, brk`` for confirmed tracks (``brk`` marks velocity breakpoints)."""
+        rows = []
+        for tr in self._tracks:
+            if not tr.confirmed or not tr.frames:
+                continue
+            xs = np.array(tr.xs)
+            rows.append(pd.DataFrame({
+                "frame": np.asarray(tr.frames, dtype=np.int64), "t": tr.times,
+                "track": tr.track_id, "x": xs[:, 0], "y": xs[:, 2], "vx": xs[:, 1],
+                "vy": xs[:, 3], "seen": np.asarray(tr.seen, dtype=np.int64),
+                "brk": np.asarray(tr.breaks, dtype=bool)}))
+        if not rows:
+            return pd.DataFrame({c: pd.Series(dtype=d) for c, d in [
+                ("frame", "int64"), ("t", "float64"), ("track", "int64"), ("x", "float64"),
+                ("y", "float64"), ("vx", "float64"), ("vy", "float64"), ("seen", "int64"),
+                ("brk", "bool")]})
+        return pd.concat(rows, ignore_index=True).sort_values(["frame", "track"]).reset_index(
+            drop=True)
+
+
+def _mahalanobis2(Z: np.ndarray, mean: np.ndarray, Ppos: np.ndarray, sig: np.ndarray) -> np.ndarray:
+    """Squared Mahalanobis distances (D,) of detections Z (D, 2) from a predicted position.
+
+    ``S_j = H P H^T + sigma_j^2 I``; ``d2 = y^T S^-1 y`` with the closed-form 2x2 inverse.
+    """
+    y = Z - mean
+    a = Ppos[0, 0] + sig**2
+    d = Ppos[1, 1] + sig**2
+    b = Ppos[0, 1]
+    det = a * d - b * b
+    return (d * y[:, 0] ** 2 - 2 * b * y[:, 0] * y[:, 1] + a * y[:, 1] ** 2) / det
+
+
+def _segment_distance(p: np.ndarray, a, b) -> float:
+    """Distance (mm) from point p (2,) to the segment a-b."""
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    ab = b - a
+    s = np.clip(np.dot(p - a, ab) / np.dot(ab, ab), 0.0, 1.0)
+    return float(np.hypot(*(p - (a + s * ab))))
+
+
+def _checked(detections: pd.DataFrame, config: TrackerConfig) -> pd.DataFrame:
+    """A validated copy of ``detections`` with every optional column filled in."""
+    if not isinstance(detections, pd.DataFrame):
+        raise ValueError(f"detections must be a pandas DataFrame, got {type(detections).__name__}")
+    missing = [c for c in REQUIRED_COLUMNS if c not in detections.columns]
+    if missing:
+        raise ValueError(f"detections lack column(s) {', '.join(missing)}; the detector must give "
+                         f"at least {', '.join(REQUIRED_COLUMNS)} (frame, s, mm)")
+    det = detections.copy()
+    n = len(det)
+    # Missing or NaN noise and quality fall back to the configured noise and full confidence.
+    for col, fill in (("sigma_mm", config.meas_sigma_mm), ("quality", 1.0)):
+        det[col] = det[col].astype(float).fillna(fill) if col in det else fill
+    for col, fill in (("colour", ""), ("pattern", "unknown")):
+        if col not in det:
+            det[col] = [fill] * n
+        else:
+            det[col] = [fill if (v is None or (isinstance(v, float) and math.isnan(v))) else str(v)
+                        for v in det[col]]
+    if n:
+        num = det[["t", "x", "y", "sigma_mm"]].to_numpy(float)
+        if not np.all(np.isfinite(num)):
+            raise ValueError("detections hold non-finite t, x, y or sigma_mm; drop those rows")
+        if np.any(det["sigma_mm"].to_numpy(float) <= 0):
+            raise ValueError("detections hold sigma_mm <= 0; give each position's std in mm (> 0)")
+        bad = sorted(set(det["pattern"]) - set(PATTERNS))
+        if bad:
+            raise ValueError(f"unknown pattern label(s) {bad}; use one of {', '.join(PATTERNS)}")
+    return det
+
+
+def empty_tracks() -> pd.DataFrame:
+    """A tracks DataFrame with no rows and the output columns and dtypes."""
+    dtypes = {"frame": "int64", "t": "float64", "track": "int64", "ball": "str", "x": "float64",
+              "y": "float64", "vx": "float64", "vy": "float64", "seen": "int64", "colour": "str",
+              "pattern": "str", "x_meas": "float64", "y_meas": "float64"}
+    return pd.DataFrame({c: pd.Series(dtype=d) for c, d in dtypes.items()})
+
+
+def track(detections: pd.DataFrame, table: TableSpec,
+          config: TrackerConfig | None = None) -> pd.DataFrame:
+    """Track every ball of a clip: detections DataFrame -> tracks DataFrame.
+
+    Columns in and out as in the module docstring. Frames missing from ``detections`` between its
+    first and last frame are processed as frames without detections, their times interpolated
+    linearly in frame index from the frames present. The input is not modified.
+    """
+    cfg = config or TrackerConfig()
+    det = _checked(detections, cfg)
+    tracker = Tracker(cfg, table)
+    if det.empty:
+        return tracker.result()
+    det["frame"] = det["frame"].astype(np.int64)
+    det = det.sort_values(["frame"], kind="stable")
+    per_frame = det.groupby("frame")["t"].agg(["first", "nunique"])
+    if (per_frame["nunique"] > 1).any():
+        bad = per_frame.index[per_frame["nunique"] > 1][0]
+        raise ValueError(f"frame {bad} carries several times t; one frame has one presentation time")
+    known_f = per_frame.index.to_numpy(np.int64)
+    known_t = per_frame["first"].to_numpy(float)
+    if np.any(np.diff(known_t) <= 0):
+        raise ValueError("frame times t must increase with the frame index; check the timestamps")
+    all_f = np.arange(known_f[0], known_f[-1] + 1)
+    all_t = np.interp(all_f, known_f, known_t)
+    groups = dict(iter(det.groupby("frame", sort=True)))
+    empty = det.iloc[0:0]
+    for f, t in zip(all_f, all_t):
+        g = groups.get(int(f))
+        if g is None:
+            tracker.step(empty, frame=int(f), t=float(t))
+        else:
+            tracker.step(g)
+    return tracker.result()
