@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test bench clean
+.PHONY: demo test bench samples clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -23,3 +23,7 @@ bench: $(STAMP)
 
 clean:
 	rm -rf $(VENV) demo_output .pytest_cache
+
+# Re-film every sample scene (slow: minutes). The clips are committed.
+samples: $(STAMP)
+	for s in sample_clips/*.toml; do $(BIN)/railtrace render $$s --out $${s%.toml}.mp4 --force || exit 1; done

@@ -1,0 +1,187 @@
+"""Video files in and out, streaming, with exact presentation times (PyAV / FFmpeg).
+
+Frames are (H, W, 3) uint8 BGR arrays (OpenCV's channel order, ``img[v, u]``); times are seconds.
+"""
+
+from __future__ import annotations
+
+import os
+import uuid
+from dataclasses import dataclass
+from fractions import Fraction
+from pathlib import Path
+from typing import Iterable, Iterator
+
+import av
+import numpy as np
+
+_CODECS = {"h264": "libx264", "mpeg4": "mpeg4"}
+
+
+@dataclass(frozen=True)
+class VideoInfo:
+    """What a video file's first video stream holds: size (px), average frame rate (frames/s),
+    frame count (from the container, else estimated as duration x fps), duration (s) and codec."""
+
+    width: int
+    height: int
+    fps: float
+    frame_count: int
+    duration_s: float
+    codec: str
+
+
+def _rate(fps: float) -> Fraction:
+    """Frame rate as an exact fraction: 29.97 -> 2997/100, 30000/1001 stays 30000/1001."""
+    try:
+        value = float(fps)
+    except (TypeError, ValueError):
+        raise ValueError(f"fps {fps!r} is not a number; give frames per second, e.g. 60 or 29.97") from None
+    if not (0 < value <= 1000):
+        raise ValueError(f"fps {fps!r} is outside 0..1000; give frames per second, e.g. 60 or 29.97")
+    return Fraction(value).limit_denominator(10000)
+
+
+def write_video(path, frames: Iterable[np.ndarray], fps: float, codec: str = "h264", quality: int = 23, preset: str = "medium") -> int:
+    """Encode ``frames`` ((H, W, 3) uint8 BGR, all one size, even width and height) to ``path``.
+
+    ``codec`` is ``h264`` (libx264, yuv420p, constant rate factor ``quality`` 0..51, lower is
+    better; ``preset`` is libx264's speed preset) or ``mpeg4`` (yuv420p, fixed quantiser
+    ``quality`` 1..31). The container follows the file's extension (.mp4, .mkv, .avi, .mov).
+    Frame i is stamped at exactly i / fps s: the stream's time base is 1 / numerator of the
+    frame rate as a fraction, so 60, 29.97 (2997/100) and 30000/1001 are all exact. Frames are
+    encoded as they arrive (the clip is never held in memory); the file is written under a
+    temporary name in the same folder and renamed when complete, so an error leaves no file.
+    Returns the number of frames written.
+    """
+    if codec not in _CODECS:
+        raise ValueError(f"codec {codec!r} is not supported; use one of: {', '.join(_CODECS)}")
+    rate = _rate(fps)
+    q = int(quality)
+    if codec == "h264" and not 0 <= q <= 51:
+        raise ValueError(f"h264 quality (crf) {quality!r} is outside 0..51; 18-28 is usual")
+    if codec == "mpeg4" and not 1 <= q <= 31:
+        raise ValueError(f"mpeg4 quality (quantiser) {quality!r} is outside 1..31; 2-6 is usual")
+    path = Path(path)
+    if not path.parent.is_dir():
+        raise ValueError(f"folder {str(path.parent)!r} does not exist; create it first")
+    tmp = path.with_name(f".{path.stem}.{uuid.uuid4().hex[:8]}.partial{path.suffix}")
+    count = 0
+    container = None
+    try:
+        fmt = None if path.suffix else "mp4"
+        container = av.open(str(tmp), mode="w", format=fmt)
+        stream = None
+        for frame in frames:
+            arr = np.asarray(frame)
+            if arr.ndim != 3 or arr.shape[2] != 3 or arr.dtype != np.uint8:
+                raise ValueError(f"frame {count} has shape {arr.shape} and dtype {arr.dtype}; expected (H, W, 3) uint8 BGR")
+            if stream is None:
+                h, w = arr.shape[:2]
+                if h % 2 or w % 2:
+                    raise ValueError(f"frame size {w}x{h} is odd; yuv420p needs even width and height (crop a row or column)")
+                stream = container.add_stream(_CODECS[codec], rate=rate)
+                stream.width, stream.height = w, h
+                stream.pix_fmt = "yuv420p"
+                tb = Fraction(1, rate.numerator)
+                stream.time_base = tb
+                stream.codec_context.time_base = tb
+                if codec == "h264":
+                    stream.options = {"crf": str(q), "preset": preset}
+                else:
+                    stream.codec_context.qscale = q
+                size = (h, w)
+            elif arr.shape[:2] != size:
+                raise ValueError(f"frame {count} is {arr.shape[1]}x{arr.shape[0]}, but the clip is {size[1]}x{size[0]}")
+            vf = av.VideoFrame.from_ndarray(np.ascontiguousarray(arr), format="bgr24")
+            vf.pts = count * rate.denominator  # i / fps in units of 1 / numerator
+            vf.time_base = tb  # the muxer may rescale the stream's own time base once it opens
+            for packet in stream.encode(vf):
+                container.mux(packet)
+            count += 1
+        if stream is None:
+            raise ValueError("no frames to write; give at least one frame")
+        for packet in stream.encode():
+            container.mux(packet)
+        container.close()
+        container = None
+        os.replace(tmp, path)
+    except BaseException:
+        if container is not None:
+            try:
+                container.close()
+            except Exception:  # the original error matters, not a failure to close a broken file
+                pass
+        tmp.unlink(missing_ok=True)
+        raise
+    return count
+
+
+def _open(path) -> "av.container.InputContainer":
+    path = Path(path)
+    if not path.exists():
+        raise ValueError(f"video file {str(path)!r} does not exist")
+    try:
+        container = av.open(str(path))
+    except av.FFmpegError as exc:
+        raise ValueError(f"{str(path)!r} is not a readable video file ({exc.__class__.__name__})") from None
+    if not container.streams.video:
+        container.close()
+        raise ValueError(f"{str(path)!r} has no video stream")
+    return container
+
+
+def iter_frames(path) -> Iterator[tuple[int, float, np.ndarray]]:
+    """Stream ``(index from 0, presentation time s, (H, W, 3) uint8 BGR frame)`` from a video file.
+
+    Times come from the container's timestamps, relative to the first frame, so variable frame
+    rate clips are right. ValueError with a one-line message for a missing file, a file that is
+    not a video, or one without a video stream.
+    """
+    container = _open(path)
+    try:
+        stream = container.streams.video[0]
+        stream.thread_type = "AUTO"
+        first = None
+        rate = stream.average_rate or stream.guessed_rate
+        for i, frame in enumerate(container.decode(stream)):
+            if frame.pts is not None and frame.time_base is not None:
+                t = float(frame.pts * frame.time_base)
+            elif rate:
+                t = i / float(rate)
+            else:
+                raise ValueError(f"{str(path)!r}: frame {i} has no timestamp and the stream no frame rate")
+            if first is None:
+                first = t
+            yield i, t - first, frame.to_ndarray(format="bgr24")
+    except av.FFmpegError as exc:
+        raise ValueError(f"{str(path)!r}: decoding failed ({exc.__class__.__name__}: {exc})") from None
+    finally:
+        container.close()
+
+
+def probe(path) -> VideoInfo:
+    """Size, average frame rate, frame count, duration and codec of a video file's first video
+    stream, from its headers (no decoding); ValueError as :func:`iter_frames`."""
+    container = _open(path)
+    try:
+        s = container.streams.video[0]
+        rate = s.average_rate or s.guessed_rate
+        fps = float(rate) if rate else 0.0
+        if s.duration is not None and s.time_base is not None:
+            duration = float(s.duration * s.time_base)
+        elif container.duration is not None:
+            duration = container.duration / 1e6  # microseconds (FFmpeg's AV_TIME_BASE)
+        else:
+            duration = 0.0
+        frames = int(s.frames) if s.frames else int(round(duration * fps))
+        return VideoInfo(
+            width=int(s.codec_context.width),
+            height=int(s.codec_context.height),
+            fps=fps,
+            frame_count=frames,
+            duration_s=duration,
+            codec=str(s.codec_context.name),
+        )
+    finally:
+        container.close()
