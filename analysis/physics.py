@@ -824,8 +824,12 @@ class Trajectory:
             present[:, k] = pr
         return Samples(pos, vel, omega, present, times.copy(), self.ball_ids)
 
-    def rotations(self, times) -> np.ndarray:
+    def rotations(self, times, start: tuple[float, np.ndarray] | None = None) -> np.ndarray:
         """Body-to-table rotation matrices (T, B, 3, 3) at sorted ``times`` (T,) s.
+
+        ``start`` = (t0, (B, 3, 3) rotations at t0) continues an earlier integration from t0
+        instead of from the start of the simulation, so a clip can be sampled chunk by chunk in
+        linear time; ``times`` must then all be at or after t0.
 
         Identity at the start of the simulation (and before a ball first appears); integrated from
         the table-frame angular velocity, which is linear in time within each motion piece, by
@@ -838,18 +842,25 @@ class Trajectory:
         if times.size and np.any(np.diff(times) < 0):
             raise ValueError("rotation times must be sorted in increasing order; sort them first")
         B = len(self.ball_ids)
+        t_from, cur0 = self.t_start, np.broadcast_to(np.eye(3), (B, 3, 3))
+        if start is not None:
+            t_from, cur0 = max(float(start[0]), self.t_start), np.asarray(start[1], dtype=float)
+            if cur0.shape != (B, 3, 3):
+                raise ValueError(f"start rotations must have shape ({B}, 3, 3), got {cur0.shape}")
+            if times.size and times[0] < float(start[0]) - 1e-12:
+                raise ValueError("rotation times must not precede the start time")
         out = np.empty((times.size, B, 3, 3))
-        out[:] = np.eye(3)
+        out[:] = cur0
         if times.size == 0 or B == 0:
             return out
         t_stop = min(float(times[-1]), self.t_end)
-        if t_stop <= self.t_start:
+        if t_stop <= t_from:
             return out
-        knots = [self.t_start, t_stop]
+        knots = [t_from, t_stop]
         for arr in self._arr:
             knots.extend(arr["t0"].tolist())
         knots.extend(times.tolist())
-        knots = np.unique(np.clip(np.asarray(knots), self.t_start, t_stop))
+        knots = np.unique(np.clip(np.asarray(knots), t_from, t_stop))
         steps = []
         for a, b in zip(knots[:-1], knots[1:]):
             m = max(1, int(math.ceil((b - a) / _ROT_STEP_S - 1e-9)))
@@ -869,8 +880,8 @@ class Trajectory:
         D = _rodrigues(Om)
         # Sample k is reached after the steps whose end is <= its time.
         n_done = np.searchsorted(ends, np.minimum(times, t_stop), side="right")
-        n_done[times <= self.t_start] = 0
-        cur = np.broadcast_to(np.eye(3), (B, 3, 3)).copy()
+        n_done[times <= t_from] = 0
+        cur = np.array(cur0, dtype=float)
         q = 0
         while q < times.size and n_done[q] == 0:
             q += 1

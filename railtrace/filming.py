@@ -160,12 +160,22 @@ def film_scene(
         return renderers[k]
 
     def frames() -> Iterator[np.ndarray]:
+        rot_state = None
         for i0 in range(0, n_frames, 30):
             idx = np.arange(i0, min(i0 + 30, n_frames))
-            for i, sub_t in zip(idx, _exposure_times(traj, idx / fps, scene.film.shutter_s, scene.table)):
-                s = traj.sample(sub_t)
-                rot = traj.rotations(sub_t)
-                yield renderer_for(i / fps).render(s.pos, rot, s.present, sub_t)
+            subs = _exposure_times(traj, idx / fps, scene.film.shutter_s, scene.table)
+            all_t = np.concatenate(subs)
+            s_all = traj.sample(all_t)
+            # Orientation is integrated once through the clip, chunk after chunk.
+            rot_all = traj.rotations(all_t, start=rot_state)
+            rot_state = (float(all_t[-1]), rot_all[-1])
+            k = 0
+            for i, sub_t in zip(idx, subs):
+                n = len(sub_t)
+                yield renderer_for(i / fps).render(
+                    s_all.pos[k : k + n], rot_all[k : k + n], s_all.present[k : k + n], sub_t
+                )
+                k += n
                 if progress is not None:
                     progress(int(i) + 1, n_frames)
 

@@ -427,3 +427,18 @@ def test_lift_takes_a_moving_ball_off_and_the_rest_carry_on():
     assert len(removes) == 1 and removes[0].t == pytest.approx(0.5)
     with pytest.raises(ValueError, match="not on the table"):
         sim.lift(sim.t, "a")
+
+
+def test_rotations_continue_from_a_start_state():
+    # Integrating in two chunks (the second continuing from the first's end) must equal one pass.
+    sim = Simulator(NINE_FOOT, PhysicsParams(), {"a": (500.0, 400.0)})
+    sim.strike(0.1, Strike("a", 1500.0, 0.3, tip_side=0.3, tip_height=0.2))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    times = np.linspace(0.0, 2.0, 81)
+    whole = traj.rotations(times)
+    first = traj.rotations(times[:40])
+    second = traj.rotations(times[40:], start=(times[39], first[-1]))
+    assert np.max(np.abs(np.concatenate([first, second]) - whole)) < 1e-9
+    with pytest.raises(ValueError, match="precede"):
+        traj.rotations(times[:5], start=(1.0, first[-1]))
