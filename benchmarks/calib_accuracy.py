@@ -1,0 +1,300 @@
+"""Accuracy of automatic calibration (``vision.calibrate``) over many cameras, lenses, cloths,
+lights and tables, against the renderer's true camera.
+
+Usage::
+
+    .venv/bin/python benchmarks/calib_accuracy.py [--quick] [--clips] [--json OUT]
+
+Per case it renders the static scene (``Renderer.background()`` plus sensor noise, quantised to
+8 bits), calibrates it, and prints:
+
+* ``corner``: largest error of the four nose-rectangle corners, table mm (truth corner imaged by
+  the true camera at nose height, back-projected by the recovered one at nose height);
+* ``nose``: largest perpendicular error of points along the four nose lines, mm, same way;
+* ``dist rms/max``: the distortion residual on the nose lines, px: the true image points of each
+  nose line, undistorted by the recovered lens model, distance from their own best straight line;
+* ``reproj``: largest pixel error of the recovered camera re-imaging the nose lines;
+* ``f %``, ``k1``, ``cam mm``: focal length error, recovered and true k1, camera-centre error;
+* ``parallax``: ball centres on a grid over the cloth imaged by the true camera at height R and
+  back-projected by the recovered camera at height R: max error, mm (and, for scale, what a
+  cloth-plane mapping of the true camera would make of them: ``naive``).
+
+``--clips`` also films two short clips with balls, the cue and arms (one with a camera bump) and
+calibrates them from the video file. The summary gives medians and worst cases. Which corner the
+recovered table frame puts its origin at does not matter: the better of the two right-handed
+choices is compared.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+import tempfile
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from vision.calibrate import CalibConfig, CalibrationError, calibrate  # noqa: E402
+from vision.camera import Camera  # noqa: E402
+from vision.render import Lamp, Look, Renderer  # noqa: E402
+from vision.table import EIGHT_FOOT, NINE_FOOT, SEVEN_FOOT, TableSpec  # noqa: E402
+
+
+@dataclass(frozen=True)
+class Case:
+    name: str
+    table: TableSpec
+    height_mm: float
+    size: tuple[int, int]
+    dist: tuple[float, ...]
+    offset_mm: tuple[float, float] = (0.0, 0.0)
+    roll_deg: float = 0.0
+    cloth: tuple[int, int, int] = (62, 122, 30)
+    exposure: float = 1.0
+    noise: float = 2.0
+    vignetting: float = 0.6
+    lamps: str = "default"
+    aim_offset_mm: tuple[float, float] = (0.0, 0.0)
+
+
+CLOTHS = {
+    "green": (62, 122, 30),
+    "blue": (150, 95, 30),
+    "red": (35, 40, 150),
+    "tan": (95, 150, 175),
+    "grey": (120, 118, 115),
+}
+
+
+def cases(quick: bool) -> list[Case]:
+    c = [
+        Case("9ft green 2.4m k1-.15", NINE_FOOT, 2400, (1280, 720), (-0.15, 0.03, 0, 0, 0), (120, -90), 1.0),
+        Case("9ft blue 2.0m k1-.3 wide", NINE_FOOT, 2000, (1280, 720), (-0.3, 0.08, 0, 0, 0), (-60, 40), -0.8, CLOTHS["blue"]),
+        Case("9ft red 3.2m no lens", NINE_FOOT, 3200, (1920, 1080), (0, 0, 0, 0, 0), (0, 0), 0.0, CLOTHS["red"], 0.8),
+        Case("8ft tan 2.6m dim", EIGHT_FOOT, 2600, (1280, 720), (-0.1, 0.0, 0, 0, 0), (250, 120), 2.5, CLOTHS["tan"], 0.6, 3.0),
+        Case("7ft grey 1.8m k1-.25", SEVEN_FOOT, 1800, (1280, 720), (-0.25, 0.05, 0, 0, 0), (100, 60), -1.5, CLOTHS["grey"], 1.1),
+        Case("9ft green 3.5m 1080p tilt", NINE_FOOT, 3500, (1920, 1080), (-0.08, 0.01, 0, 0, 0), (500, -350), 0.5, vignetting=0.9),
+        Case("8ft blue 2.2m one lamp", EIGHT_FOOT, 2200, (1280, 720), (-0.2, 0.04, 0, 0, 0), (-150, -100), 3.0, CLOTHS["blue"], 1.2, lamps="one"),
+        Case("9ft red 2.8m rolled 90", NINE_FOOT, 2800, (1280, 720), (-0.12, 0.02, 0, 0, 0), (80, 0), 88.0, CLOTHS["red"]),
+        Case("7ft green 2.0m noisy", SEVEN_FOOT, 2000, (1280, 720), (-0.18, 0.03, 0, 0, 0), (0, -150), 0.0, noise=5.0, exposure=0.7),
+        Case("9ft grey 2.5m 1080p", NINE_FOOT, 2500, (1920, 1080), (-0.22, 0.05, 0, 0, 0), (-200, 150), -2.0, CLOTHS["grey"]),
+    ]
+    return c[:4] if quick else c
+
+
+def render_background(case: Case, seed: int) -> tuple[np.ndarray, Camera]:
+    cam = Camera.overhead(case.table, case.height_mm, case.size, offset_mm=case.offset_mm,
+                          aim_offset_mm=case.aim_offset_mm, roll_deg=case.roll_deg, dist=case.dist)
+    lamps = None
+    if case.lamps == "one":
+        lamps = (Lamp((case.table.length_mm * 0.4, case.table.width_mm * 0.6, 1100.0)),)
+    look = Look(cloth_bgr=case.cloth, cushion_bgr=tuple(int(0.85 * v) for v in case.cloth), exposure=case.exposure,
+                noise_sigma=case.noise, vignetting=case.vignetting, lamps=lamps, texture_seed=seed)
+    bg = Renderer(case.table, cam, look, []).background()
+    rng = np.random.default_rng(seed)
+    img = np.clip(bg + rng.normal(0, case.noise, bg.shape), 0, 255).round().astype(np.uint8)
+    return img, cam
+
+
+def _align(table: TableSpec, xy: np.ndarray, flip: bool) -> np.ndarray:
+    return np.column_stack([table.length_mm - xy[:, 0], table.width_mm - xy[:, 1]]) if flip else xy
+
+
+def measure(table: TableSpec, true: Camera, got: Camera) -> dict:
+    """Errors of ``got`` against ``true`` (see the module docstring)."""
+    h, R = table.nose_height_mm, table.radius_mm
+    L, W = table.length_mm, table.width_mm
+    corners = table.outline()
+    uv = true.project(np.column_stack([corners, np.full(4, h)]))
+    back = got.backproject(uv, h)[:, :2]
+    errs = [np.max(np.linalg.norm(_align(table, back, f) - corners, axis=1)) for f in (False, True)]
+    flip = bool(np.argmin(errs))
+    out = {"corner_mm": float(min(errs))}
+    s = np.linspace(0.0, 1.0, 60)
+    nose_err, reproj, straight = [], [], []
+    for p0, p1 in zip(corners, np.roll(corners, -1, axis=0)):
+        pts = p0[None] + s[:, None] * (p1 - p0)[None]
+        X = np.column_stack([pts, np.full(len(s), h)])
+        uv = true.project(X)
+        inside = np.all((uv > 0) & (uv < np.array(true.image_size) - 1), axis=1)
+        uv, pts, X = uv[inside], pts[inside], X[inside]
+        b = _align(table, got.backproject(uv, h)[:, :2], flip)
+        d = (p1 - p0) / np.linalg.norm(p1 - p0)
+        nrm = np.array([-d[1], d[0]])
+        nose_err.append(np.abs((b - pts) @ nrm))
+        Xg = np.column_stack([_align(table, pts, flip), np.full(len(pts), h)])
+        reproj.append(np.linalg.norm(got.project(Xg) - uv, axis=1))
+        und = got.undistort_normalised(uv) * got.K[0, 0]
+        m = und.mean(axis=0)
+        _, _, vt = np.linalg.svd(und - m, full_matrices=False)
+        straight.append((und - m) @ vt[1])
+    out["nose_mm"] = float(np.max(np.concatenate(nose_err)))
+    st = np.concatenate(straight)
+    out["dist_rms_px"] = float(np.sqrt(np.mean(st**2)))
+    out["dist_max_px"] = float(np.max(np.abs(st)))
+    out["reproj_max_px"] = float(np.max(np.concatenate(reproj)))
+    out["f_err_pct"] = float(100 * (got.K[0, 0] / true.K[0, 0] - 1))
+    out["k1"] = float(got.dist[0])
+    out["k1_true"] = float(true.dist[0])
+    cg = got.centre_mm.copy()
+    if flip:
+        cg[:2] = [L - cg[0], W - cg[1]]
+    out["cam_mm"] = float(np.linalg.norm(cg - true.centre_mm))
+    gx, gy = np.meshgrid(np.linspace(R, L - R, 25), np.linspace(R, W - R, 13))
+    balls = np.column_stack([gx.ravel(), gy.ravel()])
+    uvb = true.project(np.column_stack([balls, np.full(len(balls), R)]))
+    ok = np.all((uvb > 0) & (uvb < np.array(true.image_size) - 1), axis=1)
+    b = _align(table, got.backproject(uvb[ok], R)[:, :2], flip)
+    out["parallax_max_mm"] = float(np.max(np.linalg.norm(b - balls[ok], axis=1)))
+    out["parallax_rms_mm"] = float(np.sqrt(np.mean(np.sum((b - balls[ok]) ** 2, axis=1))))
+    naive = true.backproject(uvb[ok], 0.0)[:, :2]
+    out["naive_max_mm"] = float(np.max(np.linalg.norm(naive - balls[ok], axis=1)))
+    return out
+
+
+CLIP_SCENE = """
+name = "calibration benchmark clip"
+lead_s = 0.6
+tail_s = 0.3
+max_duration_s = {dur}
+seed = {seed}
+
+[table]
+preset = "{table}"
+
+[camera]
+height_mm = {height}
+offset_mm = [{ox}, {oy}]
+roll_deg = {roll}
+resolution = [960, 540]
+fps = 30
+distortion = [{k1}, 0.02, 0, 0, 0]
+quality = 20
+{bump}
+
+[look]
+cloth = "{cloth}"
+noise = 2.0
+occluder = true
+
+[[ball]]
+id = "cue"
+kind = "cue"
+at = [600, 400]
+
+[[ball]]
+id = "3"
+kind = "solid"
+colour = "#c02020"
+at = [1500, 640]
+
+[[ball]]
+id = "8"
+kind = "solid"
+colour = "#111111"
+at = [1700, 1230]
+
+[[shot]]
+ball = "cue"
+aim = {{ rail = "top", diamond = 5.5 }}
+speed_mm_s = 1500
+"""
+
+
+def clip_cases() -> list[dict]:
+    return [
+        dict(name="clip 9ft blue k1-.2", table="9ft", height=2300, ox=100, oy=-80, roll=0.7, k1=-0.2, cloth="#1e5f96", dur=3.0, seed=5, bump=""),
+        dict(name="clip 8ft green bump", table="8ft", height=2500, ox=-120, oy=60, roll=-1.0, k1=-0.12, cloth="#2e6b45", dur=4.0, seed=6,
+             bump="[[camera.bump]]\nt_s = 2.5\noffset_mm = [6, -4]\nroll_deg = 0.5"),
+    ]
+
+
+def run_clip(spec: dict, tmp: Path) -> tuple[dict, list]:
+    import tomllib
+
+    from railtrace.filming import camera_timeline, film_scene
+    from railtrace.scene import parse_scene
+
+    text = CLIP_SCENE.format(**spec)
+    scene = parse_scene(tomllib.loads(text), source_text=text)
+    clip = tmp / f"clip{spec['seed']}.mp4"
+    film_scene(scene, clip)
+    t0 = time.perf_counter()
+    cal = calibrate(clip, scene.table, CalibConfig())
+    secs = time.perf_counter() - t0
+    truth = camera_timeline(scene)
+    res = measure(scene.table, truth[0][1], cal.camera)
+    res["seconds"] = secs
+    res["bumps_true"] = [t for t, _ in truth[1:]]
+    res["bumps_found"] = [round(t, 3) for t, _ in cal.camera_changes[1:]]
+    extra = []
+    for (t_true, cam_true), (t_got, cam_got) in zip(truth[1:], cal.camera_changes[1:]):
+        extra.append(measure(scene.table, cam_true, cam_got))
+    if extra:
+        res["after_bump_corner_mm"] = extra[0]["corner_mm"]
+        res["after_bump_parallax_max_mm"] = extra[0]["parallax_max_mm"]
+    return res, cal
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--quick", action="store_true", help="four static cases only")
+    ap.add_argument("--clips", action="store_true", help="also film and calibrate two clips (slow)")
+    ap.add_argument("--json", type=Path, help="write all figures here")
+    args = ap.parse_args(argv)
+    rows = []
+    hdr = f"{'case':32s} {'corner':>6s} {'nose':>6s} {'dist rms/max':>12s} {'reproj':>6s} {'f %':>6s} {'k1 got/true':>13s} {'cam mm':>7s} {'parallax':>8s} {'naive':>6s} {'s':>5s}"
+    print(hdr)
+    for i, case in enumerate(cases(args.quick)):
+        img, cam = render_background(case, seed=100 + i)
+        t0 = time.perf_counter()
+        try:
+            cal = calibrate(img, case.table, CalibConfig())
+        except CalibrationError as exc:
+            print(f"{case.name:32s} REFUSED: {exc}")
+            rows.append({"case": case.name, "refused": str(exc)})
+            continue
+        secs = time.perf_counter() - t0
+        m = measure(case.table, cam, cal.camera)
+        m.update(case=case.name, seconds=secs, nose_rms_fit_px=cal.quality["nose_rms_px"], sights=cal.quality["sights_found"])
+        rows.append(m)
+        print(f"{case.name:32s} {m['corner_mm']:6.2f} {m['nose_mm']:6.2f} {m['dist_rms_px']:5.3f}/{m['dist_max_px']:5.3f} {m['reproj_max_px']:6.2f} "
+              f"{m['f_err_pct']:+6.1f} {m['k1']:+6.3f}/{m['k1_true']:+6.3f} {m['cam_mm']:7.1f} {m['parallax_max_mm']:8.2f} {m['naive_max_mm']:6.1f} {secs:5.1f}")
+    if args.clips:
+        with tempfile.TemporaryDirectory() as d:
+            for spec in clip_cases():
+                try:
+                    m, _ = run_clip(spec, Path(d))
+                except CalibrationError as exc:
+                    print(f"{spec['name']:32s} REFUSED: {exc}")
+                    rows.append({"case": spec["name"], "refused": str(exc)})
+                    continue
+                m["case"] = spec["name"]
+                rows.append(m)
+                print(f"{spec['name']:32s} {m['corner_mm']:6.2f} {m['nose_mm']:6.2f} {m['dist_rms_px']:5.3f}/{m['dist_max_px']:5.3f} {m['reproj_max_px']:6.2f} "
+                      f"{m['f_err_pct']:+6.1f} {m['k1']:+6.3f}/{m['k1_true']:+6.3f} {m['cam_mm']:7.1f} {m['parallax_max_mm']:8.2f} {'':6s} {m['seconds']:5.1f}"
+                      f"  bumps true {m['bumps_true']} found {m['bumps_found']}"
+                      + (f", after bump corner {m['after_bump_corner_mm']:.2f} mm parallax {m['after_bump_parallax_max_mm']:.2f} mm" if "after_bump_corner_mm" in m else ""))
+    ok = [r for r in rows if "refused" not in r]
+    if ok:
+        def col(k):
+            return np.array([r[k] for r in ok])
+        print(f"\n{len(ok)} of {len(rows)} calibrated")
+        for k in ("corner_mm", "nose_mm", "dist_rms_px", "dist_max_px", "reproj_max_px", "parallax_max_mm"):
+            v = col(k)
+            print(f"{k:16s} median {np.median(v):7.3f}  worst {np.max(v):7.3f}")
+        v = np.abs(col("f_err_pct"))
+        print(f"{'|f err| %':16s} median {np.median(v):7.3f}  worst {np.max(v):7.3f}")
+    if args.json:
+        args.json.write_text(json.dumps(rows, indent=2))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

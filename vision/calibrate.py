@@ -1,0 +1,1201 @@
+"""Automatic calibration of a fixed overhead camera from its own clip, and camera-bump detection.
+
+Frames (as written down in :mod:`vision.table` and :mod:`vision.camera`):
+
+* **table frame**: mm, ``x`` along a long cushion (0..L), ``y`` along a short one (0..W), ``z`` up
+  from the cloth; the cushion noses are the lines ``y = 0``, ``x = L``, ``y = W``, ``x = 0`` at
+  height ``z = table.nose_height_mm``; the sights sit on the rail top at ``rail_top_height_mm``,
+  ``sight_setback_mm`` behind the nose;
+* **image pixels**: ``(u, v)``, origin at the centre of pixel (0, 0), ``u`` right, ``v`` down;
+  images are (H, W, 3) uint8 BGR indexed ``img[v, u]``.
+
+How a clip becomes a :class:`~vision.camera.Camera`:
+
+1. **Background**: frames are streamed once; a frame is *still* when its mean absolute difference
+   from the previous frame (grey, downscaled) is small; a spread-out sample of still frames is
+   kept and their per-pixel temporal median is the background (moving balls, arms and the cue
+   vanish; resting balls stay and are rejected later as outliers).
+2. **Cloth region**: the connected region around the image centre whose chroma matches the
+   centre's (median and median absolute deviation in CIE Lab, lightness tolerant so lamps and
+   vignetting do not matter); its outline gives a rough quadrilateral.
+3. **Cushion noses**: along many normals to each rough side, intensity profiles are searched for
+   the narrow dark band under the nose (the shadowed face below the cushion) and the step from it
+   to the lit cushion top; a straight line must bend only by the lens, so candidates are kept by
+   RANSAC on a quadratic curve per side; each kept profile is then resampled along the curve's
+   normal and fitted with a blurred two-edge model (cloth -> band -> cushion top, Gaussian blur;
+   the outer edge is the nose at nose height) for a sub-pixel position. Profiles near pockets
+   are skipped; balls, arms and shadows fail the curve test and are dropped.
+4. **Lens distortion** from the straightness of the four nose lines: the plumb-line method
+   (Devernay & Faugeras, "Straight lines have to be straight", Machine Vision and Applications
+   13(1), 2001) with OpenCV's radial model, principal point at the image centre.
+5. **Focal length and pose** from the nose rectangle at nose height: the undistorted lines give
+   the four corners, a homography (direct linear transform, Hartley & Zisserman, Multiple View
+   Geometry, 2nd ed., alg. 4.2) and from it the focal length with a known principal point (Zhang,
+   "A flexible new technique for camera calibration", IEEE TPAMI 22(11), 2000: the two
+   constraints ``h1^T w h2 = 0`` and ``h1^T w h1 = h2^T w h2`` with ``w = K^-T K^-1``); the pose by
+   ``cv2.solvePnP`` (IPPE, Collins & Bartoli 2014) on the corners.
+6. **Refinement**: ``scipy.optimize.least_squares`` (trust-region, robust soft-L1 loss) over
+   focal length, ``k1`` (and ``k2``) and pose, from every nose point (its distance from its nose
+   line, in the plane of the noses, converted to px) and every sight found (reprojection, px).
+   A near-overhead camera sees the cloth almost square on, so the focal length and the camera's
+   height trade against each other (they are separated only by the slight tilt and the sights'
+   height above the noses); the ball-centre plane lies within 8 mm of the nose plane, so the
+   positions of balls barely depend on that trade, and ``camera_height_mm`` pins it if known.
+
+The resulting camera maps a ball centre (height R) to the cloth point below it by
+``camera.backproject(uv, table.radius_mm)``, the results format's ball position.
+
+**Origin rule** (the corner of the nose rectangle that becomes (0, 0)): take the two image
+directions of the table's long sides; if the long sides run more across the image than up it
+(within 45 degrees of the image's rows; exactly 45 counts as across), the origin is the corner
+that appears at the image's bottom-left, ``x`` to the image's right and ``y`` up the image; if the
+long sides run up the image, the origin is the corner at the image's bottom-right, ``x`` up the
+image and ``y`` to the image's left. ``y`` is always ``x`` turned 90 degrees anticlockwise as seen
+from above (the image of a camera looking down is not mirrored). ``CalibConfig.origin_near_px``
+pins the origin instead to whichever of the two corners allowed by that right-handed frame lies
+nearest a given pixel (as a previous calibration.json records it), and manual corners given in
+order pin it to the first one.
+
+**Camera bumps**: every ``bump_every_s`` a downscaled gradient image of the frame is aligned to
+the reference (``cv2.findTransformECC`` with a Euclidean motion, Evangelidis & Psarakis, IEEE
+TPAMI 30(10), 2008); a motion of the table's outline by more than ``bump_threshold_px`` that lasts
+``bump_persist`` samples (arms, cue and balls are transient or too small) starts a new segment,
+dated to the first frame that shows it; each segment gets its own background and camera (same
+lens, new pose).
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import os
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any, Iterable, Iterator
+
+import cv2
+import numpy as np
+from scipy import optimize
+
+from vision.camera import Camera, _rotation_to_rvec
+from vision.table import TableSpec
+
+log = logging.getLogger(__name__)
+
+RAIL_SIDES = ("bottom", "right", "top", "left")
+
+
+class CalibrationError(ValueError):
+    """Calibration failed or is not trustworthy. ``check_image`` is the (H, W, 3) uint8 BGR check
+    image where one could be drawn (else None), so the user can see why."""
+
+    def __init__(self, message: str, check_image: np.ndarray | None = None):
+        super().__init__(message)
+        self.check_image = check_image
+
+
+@dataclass(frozen=True)
+class CalibConfig:
+    """Everything that steers :func:`calibrate` (lengths in mm, times in s, image sizes in px).
+
+    * background: ``still_threshold_dn`` (mean absolute grey difference from the previous frame
+      below which a frame is still, DN on 0..255), ``max_still_frames`` kept for the median,
+      ``min_still_frames`` needed;
+    * noses: ``profiles_per_side`` normals sampled per cushion side; ``fit_k2`` also fits OpenCV's
+      ``k2``; ``use_sights`` refines on the rail-top sights;
+    * known values: ``camera_height_mm`` (lens above the cloth) pins the height/focal trade;
+      ``corners_px`` the four nose corners in the image, in table order (origin, then along x,
+      then the far corner, then along y), for rooms where the automatic search fails;
+      ``origin_near_px`` pins the origin corner (see the module's origin rule);
+    * refusal thresholds: ``max_nose_rms_px`` (RMS distance of nose points from their fitted
+      lines), ``max_sight_rms_px``, ``max_aspect_error`` (relative), plausible ``hfov_deg_range``
+      and ``height_mm_range``;
+    * bumps: ``detect_bumps``, ``bump_every_s``, ``bump_threshold_px`` (full-resolution motion of
+      the table's outline), ``bump_persist`` samples;
+    * check image: ``check_px_per_mm``.
+    """
+
+    still_threshold_dn: float = 1.5
+    max_still_frames: int = 15
+    min_still_frames: int = 1
+    profiles_per_side: int = 90
+    fit_k2: bool = True
+    use_sights: bool = True
+    camera_height_mm: float | None = None
+    corners_px: tuple[tuple[float, float], ...] | None = None
+    origin_near_px: tuple[float, float] | None = None
+    max_nose_rms_px: float = 1.0
+    max_sight_rms_px: float = 2.5
+    max_aspect_error: float = 0.03
+    hfov_deg_range: tuple[float, float] = (25.0, 150.0)
+    height_mm_range: tuple[float, float] = (900.0, 6000.0)
+    detect_bumps: bool = True
+    bump_every_s: float = 0.1
+    bump_threshold_px: float = 1.5
+    bump_persist: int = 3
+    check_px_per_mm: float = 0.4
+
+    def __post_init__(self) -> None:
+        if self.corners_px is not None:
+            c = np.asarray(self.corners_px, dtype=float)
+            if c.shape != (4, 2) or not np.all(np.isfinite(c)):
+                raise ValueError(f"corners_px must be four (u, v) pixel pairs, got {self.corners_px!r}")
+            object.__setattr__(self, "corners_px", tuple(tuple(map(float, p)) for p in c))
+        if self.camera_height_mm is not None and not (300.0 <= self.camera_height_mm <= 10000.0):
+            raise ValueError(f"camera height {self.camera_height_mm!r} mm is outside 300..10000 mm; give the lens's height above the cloth")
+        if self.profiles_per_side < 12:
+            raise ValueError(f"profiles_per_side {self.profiles_per_side} is too few; use at least 12")
+        if self.max_still_frames < 1 or self.min_still_frames < 1:
+            raise ValueError("max_still_frames and min_still_frames must be at least 1")
+
+
+@dataclass(frozen=True)
+class NoseFit:
+    """One cushion nose as seen: ``rail`` name (table frame), ``points_px`` (N, 2) sub-pixel nose
+    points (u, v) used in the fit, ``residuals_px`` (N,) their signed distances from the fitted
+    nose line (image px), ``offsets_mm`` (N,) their distances from the true nose line in the
+    nose plane (mm, positive outward)."""
+
+    rail: str
+    points_px: np.ndarray
+    residuals_px: np.ndarray
+    offsets_mm: np.ndarray
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """The result of :func:`calibrate`.
+
+    * ``camera``: the camera from the clip's start (table frame of the module's origin rule);
+    * ``quality``: plain numbers (JSON-ready): ``nose_rms_px``, ``nose_max_px``, ``sight_rms_px``,
+      ``sights_found``, ``aspect_measured`` (L/W the image supports), ``focal_px``,
+      ``camera_height_mm``, ``hfov_deg``, ``k1``, ``k2``, ``nose_points``, ``still_frames``...;
+    * ``corners_px``: (4, 2) image positions (u, v) of the nose rectangle's corners at nose height,
+      in table order (0,0), (L,0), (L,W), (0,W);
+    * ``noses``: one :class:`NoseFit` per rail (bottom, right, top, left);
+    * ``sights_px``: (M, 2) found sights (u, v) and ``sights_mm`` (M, 2) their table (x, y);
+    * ``check_image``: (H, W, 3) uint8 BGR top-down view with the fit drawn on it;
+    * ``origin``: the origin corner in words;
+    * ``camera_changes``: [(t_from_s, Camera)], first entry (0.0, camera); more after each bump;
+    * ``background``: (H, W, 3) uint8 BGR background frame of the first segment.
+    """
+
+    camera: Camera
+    quality: dict[str, Any]
+    corners_px: np.ndarray
+    noses: tuple[NoseFit, ...]
+    sights_px: np.ndarray
+    sights_mm: np.ndarray
+    check_image: np.ndarray
+    origin: str
+    camera_changes: tuple[tuple[float, Camera], ...]
+    background: np.ndarray = field(repr=False)
+
+
+# ================================================================================================
+# 1. Frames in, still backgrounds out (with bump detection)
+# ================================================================================================
+def _frames_of(source) -> Iterator[tuple[float, np.ndarray]]:
+    """(t_s, (H, W, 3) uint8 BGR) from a clip path, one frame, or an iterable of frames or of
+    (t_s, frame) pairs (bare frames are taken 1/30 s apart)."""
+    if isinstance(source, (str, os.PathLike)):
+        from vision.video import iter_frames
+
+        for _, t, frame in iter_frames(Path(source)):
+            yield t, frame
+        return
+    if isinstance(source, np.ndarray) and source.ndim == 3:
+        yield 0.0, source
+        return
+    for i, item in enumerate(source):
+        if isinstance(item, tuple):
+            yield float(item[0]), item[1]
+        else:
+            yield i / 30.0, item
+
+
+def _check_frame(frame: np.ndarray, shape: tuple | None) -> np.ndarray:
+    arr = np.asarray(frame)
+    if arr.ndim != 3 or arr.shape[2] != 3 or arr.dtype != np.uint8:
+        raise ValueError(f"frames must be (H, W, 3) uint8 BGR images, got shape {arr.shape} dtype {arr.dtype}")
+    if shape is not None and arr.shape != shape:
+        raise ValueError(f"frame size changed from {shape[1]}x{shape[0]} to {arr.shape[1]}x{arr.shape[0]} within the clip")
+    return arr
+
+
+def _edge_small(gray_small: np.ndarray) -> np.ndarray:
+    """Gradient magnitude of a downscaled grey image (float32), the image compared for bumps:
+    edges move with the camera, slow lighting changes do not."""
+    g = cv2.GaussianBlur(gray_small, (0, 0), 1.0)
+    gx = cv2.Sobel(g, cv2.CV_32F, 1, 0, ksize=3)
+    gy = cv2.Sobel(g, cv2.CV_32F, 0, 1, ksize=3)
+    return cv2.magnitude(gx, gy)
+
+
+@dataclass
+class _Segment:
+    """A stretch of the clip with one camera pose: start time, still frames kept, reference."""
+
+    t0: float
+    stills: list = field(default_factory=list)
+    seen_still: int = 0
+    ref_edge: np.ndarray | None = None
+    warp: np.ndarray | None = None  # 2x3 ECC warp from the first segment's reference (small px)
+
+
+def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
+    """Stream the clip once: still frames per camera segment, and the bump times.
+
+    Returns (segments, frames read, scale of the small images). Memory is bounded by
+    ``max_still_frames`` full frames per segment and a short ring of small frames.
+    """
+    segments: list[_Segment] = []
+    shape = None
+    prev_small = None
+    scale = 1.0
+    n = 0
+    last_t = -1e9
+    ring: list[tuple[float, np.ndarray, np.ndarray | None]] = []  # (t, small grey, full frame if still)
+    pending: list[tuple[float, np.ndarray]] = []  # (t, warp) of samples that disagree with the reference
+    seg = None
+    for t, frame in _frames_of(source):
+        frame = _check_frame(frame, shape)
+        if shape is None:
+            shape = frame.shape
+            scale = min(1.0, 320.0 / shape[1])
+            seg = _Segment(t0=0.0)
+            segments.append(seg)
+        n += 1
+        grey = cv2.cvtColor(frame, cv2.COLOR_BGR2GRAY)
+        small = cv2.resize(grey, None, fx=scale, fy=scale, interpolation=cv2.INTER_AREA).astype(np.float32)
+        still = prev_small is not None and float(np.mean(np.abs(small - prev_small))) < config.still_threshold_dn
+        if n == 1:
+            still = True  # the first frame stands in when nothing else is still
+        prev_small = small
+        if still:
+            _keep_still(seg, t, frame, config)
+        if seg.ref_edge is None and still:
+            seg.ref_edge = _edge_small(small)
+        if not config.detect_bumps or seg.ref_edge is None:
+            continue
+        ring.append((t, small))
+        ring = ring[-int(max(8, 4 * config.bump_persist * max(1, config.bump_every_s * 60))):]
+        if t - last_t < config.bump_every_s:
+            continue
+        last_t = t
+        warp = _ecc(seg.ref_edge, _edge_small(small))
+        if warp is None or _warp_motion_px(warp, small.shape, scale) < config.bump_threshold_px:
+            pending = []
+            continue
+        pending.append((t, warp))
+        if len(pending) < config.bump_persist:
+            continue
+        # Persistent and consistent: the camera moved. Date it to the first frame showing it.
+        ws = np.array([w for _, w in pending])
+        if np.max(np.abs(ws - ws.mean(axis=0)), axis=0)[:, 2].max() * 1.0 / scale > 3 * config.bump_threshold_px:
+            pending = pending[1:]
+            continue
+        t_bump = pending[0][0]
+        for tt, sm in ring:
+            if tt >= pending[0][0]:
+                break
+            w = _ecc(seg.ref_edge, _edge_small(sm))
+            if w is not None and _warp_motion_px(w, sm.shape, scale) >= config.bump_threshold_px:
+                t_bump = tt
+                break
+        log.info("camera moved at t = %.3f s", t_bump)
+        seg = _Segment(t0=t_bump)
+        seg.ref_edge = _edge_small(small)
+        segments.append(seg)
+        pending = []
+        # Frames after the bump already seen are not kept (the still sample restarts here).
+    if n == 0:
+        raise ValueError("the clip has no frames; give a clip that shows the table")
+    return segments, n, scale
+
+
+def _keep_still(seg: _Segment, t: float, frame: np.ndarray, config: CalibConfig) -> None:
+    """Keep an evenly thinned sample of a segment's still frames (every 2^k-th once full)."""
+    seg.seen_still += 1
+    stride = 1
+    while seg.seen_still > stride * config.max_still_frames:
+        stride *= 2
+    if (seg.seen_still - 1) % stride:
+        return
+    seg.stills.append((t, frame.copy(), seg.seen_still - 1))
+    if len(seg.stills) > config.max_still_frames:
+        seg.stills = [s for s in seg.stills if s[2] % (2 * stride) == 0] or seg.stills[-config.max_still_frames:]
+
+
+def _ecc(ref: np.ndarray, img: np.ndarray) -> np.ndarray | None:
+    """Euclidean 2x3 warp aligning ``img`` to ``ref`` (small px), or None if ECC fails."""
+    warp = np.eye(2, 3, dtype=np.float32)
+    crit = (cv2.TERM_CRITERIA_EPS | cv2.TERM_CRITERIA_COUNT, 60, 1e-5)
+    try:
+        _, warp = cv2.findTransformECC(ref, img, warp, cv2.MOTION_EUCLIDEAN, crit, None, 3)
+    except cv2.error:
+        return None
+    return warp
+
+
+def _warp_motion_px(warp: np.ndarray, shape: tuple[int, int], scale: float) -> float:
+    """Largest displacement (full-resolution px) the warp gives the small image's corners."""
+    h, w = shape
+    pts = np.array([[0, 0, 1], [w - 1, 0, 1], [w - 1, h - 1, 1], [0, h - 1, 1]], float)
+    moved = pts @ np.asarray(warp, float).T
+    return float(np.max(np.linalg.norm(moved - pts[:, :2], axis=1)) / scale)
+
+
+def _median_background(stills: list) -> np.ndarray:
+    """Per-pixel temporal median of the kept still frames, (H, W, 3) uint8."""
+    stack = np.stack([s[1] for s in stills])
+    return np.median(stack, axis=0).astype(np.uint8)
+
+
+# ================================================================================================
+# 2. Cloth region and rough quadrilateral
+# ================================================================================================
+def _rough_quad(bg: np.ndarray) -> np.ndarray:
+    """(4, 2) rough corners (u, v) of the cloth region, visually anticlockwise on screen starting
+    anywhere. ValueError with a one-line reason when no table is found."""
+    h, w = bg.shape[:2]
+    grey = cv2.cvtColor(bg, cv2.COLOR_BGR2GRAY)
+    centre = grey[int(h * 0.35) : int(h * 0.65), int(w * 0.35) : int(w * 0.65)]
+    if float(np.median(centre)) < 12.0:
+        raise ValueError(f"the picture is too dark (median grey {float(np.median(centre)):.0f} of 255 in the middle); light the table or raise the exposure")
+    s = min(1.0, 480.0 / w)
+    small = cv2.resize(bg, None, fx=s, fy=s, interpolation=cv2.INTER_AREA)
+    small = cv2.GaussianBlur(small, (0, 0), 1.5)
+    # Chromaticity (each channel over the sum) does not change with the light's strength, so lamps,
+    # falloff and vignetting do not break the cloth up; very dark pixels have no reliable colour.
+    f = small.astype(np.float32)
+    inten = f.sum(axis=2)
+    chrom = f / np.maximum(inten, 1.0)[..., None]
+    sh, sw = inten.shape
+    win = (slice(int(sh * 0.4), int(sh * 0.6)), slice(int(sw * 0.4), int(sw * 0.6)))
+    med_c = np.median(chrom[win].reshape(-1, 3), axis=0)
+    mad_c = np.median(np.abs(chrom[win].reshape(-1, 3) - med_c), axis=0) * 1.4826
+    med_i = float(np.median(inten[win]))
+    dist_c = np.linalg.norm(chrom - med_c, axis=2)
+    tol_c = max(0.035, 5.0 * float(np.linalg.norm(mad_c)))
+    mask = (dist_c < tol_c) & (inten > 0.3 * med_i) & (inten < 2.5 * med_i + 60)
+    mask = mask.astype(np.uint8)
+    mask = cv2.morphologyEx(mask, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+    nlab, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=4)
+    # The component holding most of the central window is the cloth.
+    central = labels[int(sh * 0.4) : int(sh * 0.6), int(sw * 0.4) : int(sw * 0.6)]
+    counts = np.bincount(central.ravel(), minlength=nlab)
+    counts[0] = 0
+    k = int(np.argmax(counts))
+    if counts[k] < 0.3 * central.size:
+        raise ValueError("no table in view: the middle of the picture is not one uniform cloth; aim the camera at the table")
+    region = (labels == k).astype(np.uint8)
+    region = cv2.morphologyEx(region, cv2.MORPH_CLOSE, np.ones((9, 9), np.uint8))
+    area_share = float(region.sum()) / region.size
+    if area_share < 0.12:
+        raise ValueError(f"no table in view: the cloth covers only {100 * area_share:.0f} % of the picture; aim the camera so the table fills most of it")
+    contours, _ = cv2.findContours(region, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+    contour = max(contours, key=cv2.contourArea).reshape(-1, 2).astype(float)
+    hull = cv2.convexHull(contour.astype(np.float32)).reshape(-1, 2)
+    quad = None
+    peri = cv2.arcLength(hull, True)
+    for eps in np.linspace(0.01, 0.12, 23):
+        approx = cv2.approxPolyDP(hull, eps * peri, True).reshape(-1, 2)
+        if len(approx) == 4:
+            quad = approx.astype(float)
+            break
+    if quad is None:
+        raise ValueError("the cloth's outline is not a four-sided shape; make sure the whole table is in view and nothing large covers it")
+    # Touching the frame edge: the table is cut off.
+    touch = (contour[:, 0] <= 1) | (contour[:, 0] >= sw - 2) | (contour[:, 1] <= 1) | (contour[:, 1] >= sh - 2)
+    sides_touched = sum(bool(np.any(m)) for m in (contour[:, 0] <= 1, contour[:, 0] >= sw - 2, contour[:, 1] <= 1, contour[:, 1] >= sh - 2))
+    if touch.mean() > 0.02 and sides_touched == 4:
+        raise ValueError("no table in view: nothing bounds the middle region like cushions and rails; aim the camera at the table")
+    if touch.mean() > 0.02:
+        raise ValueError("the table is cut off by the edge of the picture; move or zoom the camera out so all four cushions are in view")
+    quad = _refine_quad(quad, contour)
+    quad = (quad + 0.5) / s - 0.5
+    # Visually anticlockwise on screen = negative signed area in (u, v) with v down.
+    area = 0.5 * np.sum(quad[:, 0] * np.roll(quad[:, 1], -1) - np.roll(quad[:, 0], -1) * quad[:, 1])
+    if area > 0:
+        quad = quad[::-1]
+    return quad
+
+
+def _refine_quad(quad: np.ndarray, contour: np.ndarray) -> np.ndarray:
+    """Each side of a polygon approximation refitted to the outline points nearest it (middle 70 %
+    of the side, Huber-weighted line), corners re-intersected: the approximation can cut corners."""
+    lines = []
+    for k in range(4):
+        a, b = quad[k], quad[(k + 1) % 4]
+        d = b - a
+        ln = float(np.linalg.norm(d))
+        t = ((contour - a) @ d) / ln**2
+        dist = np.abs((contour - a) @ np.array([-d[1], d[0]]) / ln)
+        near = (t > 0.15) & (t < 0.85) & (dist < 0.08 * ln + 3)
+        if near.sum() < 10:
+            lines.append(np.cross(np.append(a, 1.0), np.append(b, 1.0)))
+            continue
+        vx, vy, x0, y0 = cv2.fitLine(contour[near].astype(np.float32), cv2.DIST_HUBER, 0, 0.01, 0.01).ravel()
+        lines.append(np.cross([x0, y0, 1.0], [x0 + vx, y0 + vy, 1.0]))
+    out = []
+    for k in range(4):
+        p = np.cross(lines[(k - 1) % 4], lines[k])
+        if abs(p[2]) < 1e-9:
+            return quad
+        out.append(p[:2] / p[2])
+    return np.array(out)
+
+
+# ================================================================================================
+# 3. Nose points
+# ================================================================================================
+def _sample(grey: np.ndarray, pts: np.ndarray) -> np.ndarray:
+    """Bilinear samples of a float32 image at (..., 2) points (u, v)."""
+    shp = pts.shape[:-1]
+    flat = pts.reshape(-1, 2).astype(np.float32)
+    rows = -(-len(flat) // 4096)
+    pad = np.full((rows * 4096, 2), -10.0, np.float32)
+    pad[: len(flat)] = flat
+    out = cv2.remap(grey, pad[:, 0].reshape(rows, 4096), pad[:, 1].reshape(rows, 4096), cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    return out.ravel()[: len(flat)].reshape(shp)
+
+
+def _side_stations(a: np.ndarray, b: np.ndarray, long_side: bool, n: int, table: TableSpec, length_mm: float) -> np.ndarray:
+    """Fractions (0..1) along a side from corner a to b where profiles are taken, away from the
+    pockets: corner pockets take the ends, a side pocket the middle of a long side."""
+    end = (table.corner_mouth_mm + 90.0) / length_mm
+    fr = np.linspace(end, 1 - end, n)
+    if long_side:
+        mid = (table.side_mouth_mm / 2 + 80.0) / length_mm
+        fr = fr[np.abs(fr - 0.5) > mid]
+    return fr
+
+
+def _band_candidates(prof: np.ndarray, step: float, max_band_px: float) -> list[tuple[float, float]]:
+    """Candidate nose positions along one outward profile: (position of the rise out of a narrow
+    dark band, score). A band is a local minimum at least 25 % below the levels on both sides
+    within ``max_band_px``."""
+    out = []
+    m = len(prof)
+    k = max(2, int(round(max_band_px / step)))
+    d = np.gradient(prof)
+    for i in range(k, m - k):
+        v = prof[i]
+        if v > prof[i - 1] or v > prof[i + 1]:
+            continue
+        left = prof[max(0, i - k) : i].max()
+        right = prof[i + 1 : i + 1 + k].max()
+        depth = min(left, right) - v
+        if depth < 0.2 * min(left, right) or depth < 4.0:
+            continue
+        j = i + int(np.argmax(d[i : i + k]))
+        out.append((j * step, depth / max(min(left, right), 1.0)))
+    return out
+
+
+def _fit_two_edges(s: np.ndarray, prof: np.ndarray, s_rise: float, sigma: float | None = None) -> tuple[float, float, float] | None:
+    """Fit ``I(s) = P_in + (B - P_in) Phi((s - a)/sig) + (P_out - B) Phi((s - b)/sig)`` (cloth,
+    band, cushion top under a Gaussian blur of ``sig`` px) to an outward profile; returns
+    (b, sig, rms) or None. ``b`` is the nose (the step from the band up to the cushion top).
+    With ``sigma`` given the blur is held at it (one blur per side steadies narrow bands)."""
+    from scipy.special import ndtr
+
+    step = float(s[1] - s[0])
+    near = np.nonzero(np.abs(s - s_rise) <= 4.0)[0]
+    i_min = int(near[np.argmin(prof[near])])
+    grad = np.gradient(prof)
+    k6 = max(2, int(round(6.0 / step)))
+    i_rise = i_min + int(np.argmax(grad[i_min : i_min + k6])) if i_min < len(s) - 2 else i_min
+    i_fall = max(0, i_min - k6) + int(np.argmin(grad[max(0, i_min - k6) : i_min + 1]))
+    B0 = float(prof[i_min])
+    P_out0 = float(np.max(prof[i_rise : i_rise + k6 + 1]))
+    P_in0 = float(np.max(prof[max(0, i_fall - k6) : i_fall + 1]))
+    x0 = np.array([P_in0, B0, P_out0, s[i_fall], s[i_rise], 0.8])
+
+    def model(p):
+        sg = p[5] if sigma is None else sigma
+        return p[0] + (p[1] - p[0]) * ndtr((s - p[3]) / sg) + (p[2] - p[1]) * ndtr((s - p[4]) / sg)
+
+    lo = np.array([-50, -50, -50, s[0], s[0], 0.25])
+    hi = np.array([400, 400, 400, s[-1], s[-1], 6.0])
+    x0 = np.clip(x0, lo + 1e-6, hi - 1e-6)
+    n_free = 6 if sigma is None else 5
+    try:
+        r = optimize.least_squares(lambda p: model(np.append(p, sigma) if sigma is not None else p) - prof, x0[:n_free],
+                                   bounds=(lo[:n_free], hi[:n_free]), method="trf", x_scale=[10, 10, 10, 1, 1, 0.5][:n_free])
+    except ValueError:
+        return None
+    if sigma is not None:
+        r.x = np.append(r.x, sigma)
+    p = r.x
+    if not (p[3] < p[4] and p[2] - p[1] > 3.0 and p[0] - p[1] > 1.0):
+        return None
+    rms = float(np.sqrt(np.mean(r.fun**2)))
+    return float(p[4]), float(p[5]), rms
+
+
+def _nose_points(grey: np.ndarray, quad: np.ndarray, table: TableSpec, config: CalibConfig) -> list[np.ndarray]:
+    """Sub-pixel nose points per side of ``quad`` (visually anticlockwise), list of four (N, 2)
+    arrays (u, v), side k running from quad[k] to quad[k+1]."""
+    centre = quad.mean(axis=0)
+    lens = np.linalg.norm(np.roll(quad, -1, axis=0) - quad, axis=1)
+    long_pair = 0 if lens[0] + lens[2] >= lens[1] + lens[3] else 1
+    px_per_mm = (lens[long_pair] + lens[long_pair + 2]) / (2 * table.length_mm)
+    out = []
+    for k in range(4):
+        a, b = quad[k], quad[(k + 1) % 4]
+        long_side = (k % 2) == long_pair
+        length_mm = table.length_mm if long_side else table.width_mm
+        tang = (b - a) / np.linalg.norm(b - a)
+        nrm = np.array([tang[1], -tang[0]])
+        if nrm @ (a - centre) < 0:
+            nrm = -nrm  # outward
+        fr = _side_stations(a, b, long_side, config.profiles_per_side, table, length_mm)
+        base = a[None] + fr[:, None] * (b - a)[None]
+        # Coarse pass: from well inside (cushion width and more) to beyond the rough outline.
+        step = 0.5
+        s = np.arange(-140.0 * px_per_mm - 12, 90.0 * px_per_mm + 12, step)
+        pts = base[:, None, :] + s[None, :, None] * nrm[None, None, :]
+        prof = sum(_sample(grey, pts + o * tang[None, None, :]) for o in (-1.0, 0.0, 1.0)) / 3
+        cands = []
+        for i in range(len(base)):
+            for pos, score in _band_candidates(prof[i], step, max(4.0, 40.0 * px_per_mm)):
+                cands.append((i, fr[i], s[0] + pos, score))
+        if len(cands) < 8:
+            log.debug("side %d: only %d band candidates", k, len(cands))
+            out.append(np.zeros((0, 2)))
+            continue
+        cands = np.array(cands)
+        # RANSAC: a quadratic curve s(f) through the candidates (a straight nose bent by the lens).
+        rng = np.random.default_rng(k)
+        best, best_score = None, -1.0
+        for _ in range(400):
+            pick = rng.choice(len(cands), 3, replace=False)
+            f3, s3 = cands[pick, 1], cands[pick, 2]
+            if np.ptp(f3) < 0.2 or np.min(np.abs(np.diff(np.sort(f3)))) < 0.03:
+                continue
+            coef = np.linalg.solve(np.vander(f3, 3), s3)
+            res = np.abs(np.polyval(coef, cands[:, 1]) - cands[:, 2])
+            inl = res < 1.5
+            # One point per profile counts; strong bands count more.
+            sc = 0.0
+            for i in np.unique(cands[inl, 0]):
+                sc += 1.0 + cands[inl & (cands[:, 0] == i), 3].max()
+            if sc > best_score:
+                best, best_score = coef, sc
+        if best is None:
+            out.append(np.zeros((0, 2)))
+            continue
+        res = np.abs(np.polyval(best, cands[:, 1]) - cands[:, 2])
+        inl = cands[res < 1.5]
+        if len(np.unique(inl[:, 0])) >= 6:
+            best = np.linalg.lstsq(np.vander(inl[:, 1], 3), inl[:, 2], rcond=None)[0]
+        # Fine pass: profiles along the curve's normal around it, two-edge model fit.
+        fr_f = fr
+        s_curve = np.polyval(best, fr_f)
+        dsdf = np.polyval(np.polyder(best), fr_f)
+        pts_c = a[None] + fr_f[:, None] * (b - a)[None] + s_curve[:, None] * nrm[None]
+        t_vec = (b - a)[None] + dsdf[:, None] * nrm[None]
+        t_vec /= np.linalg.norm(t_vec, axis=1, keepdims=True)
+        n_vec = np.column_stack([t_vec[:, 1], -t_vec[:, 0]])
+        n_vec *= np.sign(np.sum(n_vec * nrm[None], axis=1))[:, None]
+        step_f = 0.25
+        sf = np.arange(-max(10.0, 30 * px_per_mm), 8.0 + 1e-9, step_f)
+        fp = pts_c[:, None, :] + sf[None, :, None] * n_vec[:, None, :]
+        offs = np.linspace(-3.0, 3.0, 13)
+        prof_f = sum(_sample(grey, fp + o * t_vec[:, None, :]) for o in offs) / len(offs)
+        found = []
+        first = [_fit_two_edges(sf, prof_f[i], 0.0) for i in range(len(fr_f))]
+        sigs = [f[1] for f in first if f is not None and abs(f[0]) <= 2.5]
+        sig_side = float(np.median(sigs)) if sigs else None
+        for i in range(len(fr_f)):
+            if first[i] is None or sig_side is None:
+                continue
+            fit = _fit_two_edges(sf, prof_f[i], first[i][0], sig_side)
+            if fit is None:
+                continue
+            bpos, sig, rms = fit
+            if abs(bpos) > 2.5 or sig > 3.5:
+                continue
+            found.append((pts_c[i] + bpos * n_vec[i], rms))
+        log.debug("side %d: %d candidates, %d fine fits kept, blur %s px", k, len(cands), len(found), sig_side)
+        pts_k = np.array([p for p, _ in found]) if found else np.zeros((0, 2))
+        if len(found) >= 6:
+            rms_all = np.array([r for _, r in found])
+            keep = rms_all < np.median(rms_all) + 4 * 1.4826 * np.median(np.abs(rms_all - np.median(rms_all))) + 1e-6
+            pts_k = pts_k[keep]
+        out.append(pts_k)
+    return out
+
+
+# ================================================================================================
+# 4-6. Geometry: plumb lines, homography, focal length, pose, refinement
+# ================================================================================================
+def _centre(size: tuple[int, int]) -> np.ndarray:
+    return np.array([(size[0] - 1) / 2.0, (size[1] - 1) / 2.0])
+
+
+def _undistort_px(uv: np.ndarray, kappa: tuple[float, float], size: tuple[int, int]) -> np.ndarray:
+    """Undistort pixels with OpenCV's radial model written in pixel units about the image centre:
+    ``u_d - c = (u - c)(1 + kappa1 r^2 + kappa2 r^4)``, r in px (so ``kappa1 = k1 / f^2``,
+    ``kappa2 = k2 / f^4``); Newton's method on the radius."""
+    c = _centre(size)
+    d = uv - c
+    rd = np.linalg.norm(d, axis=1)
+    r = rd.copy()
+    k1, k2 = kappa
+    for _ in range(30):
+        g = r * (1 + k1 * r**2 + k2 * r**4) - rd
+        dg = 1 + 3 * k1 * r**2 + 5 * k2 * r**4
+        r = r - g / dg
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(rd > 1e-9, r / rd, 1.0)
+    return c + d * ratio[:, None]
+
+
+def _line_residuals(points: list[np.ndarray]) -> np.ndarray:
+    """Distances (px) of each set of points from its own total-least-squares line."""
+    res = []
+    for p in points:
+        if len(p) < 3:
+            continue
+        m = p.mean(axis=0)
+        _, _, vt = np.linalg.svd(p - m, full_matrices=False)
+        res.append((p - m) @ vt[1])
+    return np.concatenate(res) if res else np.zeros(0)
+
+
+def plumb_line_distortion(points: list[np.ndarray], image_size: tuple[int, int], fit_k2: bool = True) -> tuple[float, float]:
+    """Radial distortion in pixel units (kappa1, kappa2) that makes each set of (N, 2) image
+    points, which lie on one straight line in space, straight again (plumb-line method, Devernay &
+    Faugeras 2001), principal point at the image centre. ``k1 = kappa1 f^2``, ``k2 = kappa2 f^4``.
+    Raises ValueError when fewer than two lines have points."""
+    usable = [p for p in points if len(p) >= 5]
+    if len(usable) < 2:
+        raise ValueError(f"only {len(usable)} cushion noses were found; the lens cannot be measured (is the whole table in view?)")
+    c = _centre(image_size)
+    rmax = float(np.max(np.linalg.norm(np.concatenate(usable) - c, axis=1)))
+
+    def fun(p):
+        kap = (p[0] / rmax**2, (p[1] / rmax**4) if fit_k2 else 0.0)
+        return _line_residuals([_undistort_px(q, kap, image_size) for q in usable])
+
+    r = optimize.least_squares(fun, np.zeros(2), method="lm" if fit_k2 else "trf", x_scale=0.1) if fit_k2 else optimize.least_squares(lambda p: fun([p[0], 0.0]), np.zeros(1))
+    x = r.x if fit_k2 else np.array([r.x[0], 0.0])
+    return float(x[0] / rmax**2), float(x[1] / rmax**4) if fit_k2 else 0.0
+
+
+def _intersect(l1: np.ndarray, l2: np.ndarray) -> np.ndarray:
+    p = np.cross(l1, l2)
+    if abs(p[2]) < 1e-12:
+        raise ValueError("two cushion lines are parallel in the image; the table's outline is degenerate")
+    return p[:2] / p[2]
+
+
+def _tls_line(p: np.ndarray) -> np.ndarray:
+    m = p.mean(axis=0)
+    _, _, vt = np.linalg.svd(p - m, full_matrices=False)
+    n = vt[1]
+    return np.array([n[0], n[1], -n @ m])
+
+
+def focal_from_homography(H: np.ndarray, principal_px: np.ndarray) -> float | None:
+    """Focal length (px) from a plane-to-image homography with square pixels and a known
+    principal point (Zhang 2000, the two constraints on the image of the absolute conic, solved in
+    least squares for ``1/f^2``); None when the plane is too nearly square-on to tell."""
+    T = np.array([[1, 0, -principal_px[0]], [0, 1, -principal_px[1]], [0, 0, 1.0]])
+    Hc = T @ H
+    h1, h2 = Hc[:, 0], Hc[:, 1]
+    # (h1x h2x + h1y h2y) / f^2 + h1z h2z = 0 ; (|h1xy|^2 - |h2xy|^2) / f^2 + h1z^2 - h2z^2 = 0
+    a = np.array([h1[0] * h2[0] + h1[1] * h2[1], h1[0] ** 2 + h1[1] ** 2 - h2[0] ** 2 - h2[1] ** 2])
+    b = np.array([h1[2] * h2[2], h1[2] ** 2 - h2[2] ** 2])
+    scale = np.linalg.norm(Hc[:2, :2])
+    if np.linalg.norm(b) * scale**2 / max(np.linalg.norm(a), 1e-30) < 1e-9:
+        return None
+    inv_f2 = -(a @ b) / (a @ a)
+    if not inv_f2 > 0:
+        return None
+    return float(1.0 / math.sqrt(inv_f2))
+
+
+def dlt_homography(src: np.ndarray, dst: np.ndarray) -> np.ndarray:
+    """3x3 H with ``dst ~ H src`` from (N >= 4, 2) point pairs: normalised direct linear
+    transform (Hartley & Zisserman, Multiple View Geometry, 2nd ed., alg. 4.2)."""
+    def norm(p):
+        m = p.mean(axis=0)
+        s = math.sqrt(2) / np.mean(np.linalg.norm(p - m, axis=1))
+        return np.array([[s, 0, -s * m[0]], [0, s, -s * m[1]], [0, 0, 1]])
+
+    Ts, Td = norm(src), norm(dst)
+    sh = np.column_stack([src, np.ones(len(src))]) @ Ts.T
+    dh = np.column_stack([dst, np.ones(len(dst))]) @ Td.T
+    rows = []
+    for (x, y, w), (u, v, t) in zip(sh, dh):
+        rows.append([0, 0, 0, -t * x, -t * y, -t * w, v * x, v * y, v * w])
+        rows.append([t * x, t * y, t * w, 0, 0, 0, -u * x, -u * y, -u * w])
+    _, _, vt = np.linalg.svd(np.array(rows))
+    Hn = vt[-1].reshape(3, 3)
+    H = np.linalg.inv(Td) @ Hn @ Ts
+    return H / H[2, 2]
+
+
+def _table_order(quad_und: np.ndarray, table: TableSpec, origin_near_px: tuple[float, float] | None, quad_raw: np.ndarray) -> tuple[np.ndarray, str]:
+    """Index order of the (visually anticlockwise) quad's corners that puts them in table order
+    (0,0), (L,0), (L,W), (0,W), by the module's origin rule; and the rule's words."""
+    lens = np.linalg.norm(np.roll(quad_und, -1, axis=0) - quad_und, axis=1)
+    long_pair = 0 if lens[0] + lens[2] >= lens[1] + lens[3] else 1
+    # Start candidates: corner i such that side i (i -> i+1) is long, i.e. x along it.
+    starts = [long_pair, long_pair + 2]
+    if origin_near_px is not None:
+        p = np.asarray(origin_near_px, float)
+        i0 = min(starts, key=lambda i: np.linalg.norm(quad_raw[i] - p))
+        order = np.array([(i0 + j) % 4 for j in range(4)])
+        return order, "pinned by the calibration file: the corner nearest the recorded origin pixel"
+    d = quad_und[(long_pair + 1) % 4] - quad_und[long_pair]
+    across = abs(d[0]) >= abs(d[1])
+    if across:
+        i0 = next(i for i in starts if (quad_und[(i + 1) % 4] - quad_und[i])[0] > 0)
+        words = "bottom-left: x to the image's right, y up the image, as the camera sees it"
+    else:
+        i0 = next(i for i in starts if (quad_und[(i + 1) % 4] - quad_und[i])[1] < 0)
+        words = "bottom-right: x up the image, y to the image's left, as the camera sees it"
+    return np.array([(i0 + j) % 4 for j in range(4)]), words
+
+
+def _camera(params: np.ndarray, size: tuple[int, int], fixed_intr: tuple | None = None) -> Camera:
+    """Camera from the parameter vector [log f, k1, k2, rvec(3), tvec(3)] (or pose only)."""
+    c = _centre(size)
+    if fixed_intr is None:
+        f, k1, k2 = math.exp(params[0]), params[1], params[2]
+        pose = params[3:]
+    else:
+        f, k1, k2 = fixed_intr
+        pose = params
+    K = np.array([[f, 0, c[0]], [0, f, c[1]], [0, 0, 1.0]])
+    return Camera(K, np.array([k1, k2, 0, 0, 0]), pose[:3], pose[3:6], size)
+
+
+_RAIL_AXIS = {"bottom": (1, 0.0), "top": (1, None), "left": (0, 0.0), "right": (0, None)}
+
+
+def _nose_offsets_mm(cam: Camera, pts: np.ndarray, rail: str, table: TableSpec) -> tuple[np.ndarray, np.ndarray]:
+    """Distance (mm, positive outward) of each nose point's back-projection at nose height from
+    its nose line, and the local image scale (px per mm) there."""
+    X = cam.backproject(pts, table.nose_height_mm)
+    L, W = table.length_mm, table.width_mm
+    off = {"bottom": -X[:, 1], "top": X[:, 1] - W, "left": -X[:, 0], "right": X[:, 0] - L}[rail]
+    depth = (X @ cam.R.T + cam.tvec)[:, 2]
+    return off, cam.K[0, 0] / depth
+
+
+def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior):
+    cam = cam_of(params)
+    out = []
+    for rail, pts in noses:
+        if len(pts):
+            off, scale = _nose_offsets_mm(cam, pts, rail, table)
+            out.append(off * scale)
+    if len(sights_px):
+        pr = cam.project(sights_mm)
+        out.append(((pr - sights_px) * sight_weight).ravel())
+    if height_prior is not None:
+        out.append(np.array([(cam.centre_mm[2] - height_prior) / 5.0]))
+    r = np.concatenate(out)
+    return np.where(np.isfinite(r), r, 1e3)
+
+
+# ================================================================================================
+# Sights
+# ================================================================================================
+def _find_sights(grey: np.ndarray, cam: Camera, table: TableSpec) -> tuple[np.ndarray, np.ndarray]:
+    """Sights near where ``cam`` puts them: (M, 2) found (u, v) and (M, 3) table points. A sight
+    is a small blob brighter than the rail around it; its intensity-weighted centroid above the
+    local rail level is taken, and kept only when compact and close to the prediction."""
+    pts3 = np.array([[x, y, table.rail_top_height_mm] for _, _, (x, y) in table.sights()])
+    pred = cam.project(pts3)
+    # Pixel scale from a 10 mm step.
+    scale = np.linalg.norm(cam.project(pts3 + [10, 0, 0]) - pred, axis=1) / 10.0
+    h, w = grey.shape
+    found, obj = [], []
+    for p, X, s in zip(pred, pts3, scale):
+        r = int(max(6, math.ceil(28 * s)))
+        u0, v0 = int(round(p[0])) - r, int(round(p[1])) - r
+        if u0 < 0 or v0 < 0 or u0 + 2 * r + 1 > w or v0 + 2 * r + 1 > h:
+            continue
+        win = grey[v0 : v0 + 2 * r + 1, u0 : u0 + 2 * r + 1].astype(float)
+        bg = np.median(win)
+        spread = 1.4826 * np.median(np.abs(win - bg)) + 2.0
+        peak = win.max()
+        if peak - bg < max(25.0, 6 * spread):
+            continue
+        thr = bg + 0.5 * (peak - bg)
+        blob = win > thr
+        from scipy import ndimage
+
+        lab, nb = ndimage.label(blob)
+        vv, uu = np.unravel_index(int(np.argmax(win)), win.shape)
+        k = lab[vv, uu]
+        m = lab == k
+        area = int(m.sum())
+        if area > 40 * (s * 25) ** 2 + 20 or area < 2:
+            continue
+        wts = (win - thr) * m
+        cv_, cu = ndimage.center_of_mass(wts)
+        c = np.array([cu + u0, cv_ + v0])
+        if np.linalg.norm(c - p) > 22 * s + 2:
+            continue
+        found.append(c)
+        obj.append(X)
+    return np.array(found).reshape(-1, 2), np.array(obj).reshape(-1, 3)
+
+
+# ================================================================================================
+# One background -> one camera
+# ================================================================================================
+@dataclass(frozen=True)
+class _Fit:
+    camera: Camera
+    noses: tuple[NoseFit, ...]
+    sights_px: np.ndarray
+    sights_mm: np.ndarray
+    quality: dict
+    origin: str
+    corners_px: np.ndarray
+
+
+def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intrinsics: tuple | None = None) -> _Fit:
+    h, w = bg.shape[:2]
+    size = (w, h)
+    grey = cv2.cvtColor(bg, cv2.COLOR_BGR2GRAY).astype(np.float32)
+    if config.corners_px is not None:
+        quad_table = np.asarray(config.corners_px, float)
+        area = 0.5 * np.sum(quad_table[:, 0] * np.roll(quad_table[:, 1], -1) - np.roll(quad_table[:, 0], -1) * quad_table[:, 1])
+        if area > 0:
+            raise ValueError("--corners must go round the table anticlockwise as seen in the picture: origin, along x (the long side), the far corner, along y")
+        quad = quad_table
+    else:
+        quad = _rough_quad(bg)
+    side_pts = _nose_points(grey, quad, table, config)
+    counts = [len(p) for p in side_pts]
+    if sum(c >= 5 for c in counts) < 4 and config.corners_px is None:
+        raise ValueError(f"found cushion noses on only {sum(c >= 5 for c in counts)} of 4 sides ({counts} points); make sure all four cushions are in view and lit, or give --corners")
+    # Plumb-line distortion (pixel units), then the undistorted lines, corners and homography.
+    if sum(c >= 5 for c in counts) >= 2:
+        kappa = plumb_line_distortion(side_pts, size, config.fit_k2)
+    else:
+        kappa = (0.0, 0.0)
+    if all(c >= 5 for c in counts):
+        lines = [_tls_line(_undistort_px(p, kappa, size)) for p in side_pts]
+        quad_und = np.array([_intersect(lines[(k - 1) % 4], lines[k]) for k in range(4)])
+    else:
+        quad_und = _undistort_px(quad, kappa, size)
+    if config.corners_px is not None:
+        order, origin = np.arange(4), "pinned by the corners given: the first corner"
+    else:
+        order, origin = _table_order(quad_und, table, config.origin_near_px, quad)
+    # Side k of the quad runs from corner k to k+1; in table order side j runs from order[j].
+    rails_of_side = {}
+    for j, rail in enumerate(RAIL_SIDES):
+        rails_of_side[int(order[j])] = rail
+    corners_und = quad_und[order]
+    obj = table.outline()
+    H = dlt_homography(obj, corners_und)
+    c = _centre(size)
+    if intrinsics is not None:
+        f0 = intrinsics[0]
+    elif config.camera_height_mm is not None:
+        # Square-on: px per mm = f / (H - h).
+        spread = np.linalg.norm(corners_und[1] - corners_und[0]) / table.length_mm
+        f0 = spread * (config.camera_height_mm - table.nose_height_mm)
+    else:
+        f0 = focal_from_homography(H, c)
+        if f0 is None or not (0.2 * w < f0 < 5 * w):
+            f0 = 0.75 * w  # a plain guess; the refinement and sights take it from here
+    K0 = np.array([[f0, 0, c[0]], [0, f0, c[1]], [0, 0, 1.0]])
+    ok, rv, tv = cv2.solvePnP(np.column_stack([obj, np.zeros(4)]), corners_und.reshape(-1, 1, 2), K0, None, flags=cv2.SOLVEPNP_IPPE)
+    if not ok:
+        raise ValueError("the table's outline gives no camera pose; check that all four cushions are in view")
+    rv, tv = rv.ravel(), tv.ravel()
+    Rm = cv2.Rodrigues(rv)[0]
+    tv = tv - Rm[:, 2] * table.nose_height_mm  # the corners were at nose height, not on z = 0
+    k1_0, k2_0 = kappa[0] * f0**2, kappa[1] * f0**4
+    noses = [(rails_of_side[k], side_pts[k]) for k in range(4)]
+    sight_w = 0.5
+    if intrinsics is None:
+        x0 = np.concatenate([[math.log(f0), k1_0, k2_0], rv, tv])
+
+        def cam_of(p):
+            q = p.copy()
+            if not config.fit_k2:
+                q[2] = 0.0
+            return _camera(q, size)
+    else:
+        x0 = np.concatenate([rv, tv])
+
+        def cam_of(p):
+            return _camera(p, size, intrinsics)
+
+    hp = config.camera_height_mm
+
+    def solve(x_start, sights_px, sights_mm, loss="soft_l1"):
+        r = optimize.least_squares(
+            _residuals, x_start, args=(cam_of, noses, sights_px, sights_mm, table, sight_w, hp),
+            loss=loss, f_scale=0.5, method="trf", x_scale="jac", max_nfev=200,
+        )
+        return r.x
+
+    empty2, empty3 = np.zeros((0, 2)), np.zeros((0, 3))
+    x = solve(x0, empty2, empty3)
+    sights_px, sights_mm = empty2, empty3
+    if config.use_sights:
+        sights_px, sights_mm = _find_sights(grey, cam_of(x), table)
+        if len(sights_px) >= 4:
+            x = solve(x, sights_px, sights_mm)
+            # Drop sights the fit disagrees with (a ball, chalk, a glint), then solve again.
+            res = np.linalg.norm(cam_of(x).project(sights_mm) - sights_px, axis=1)
+            keep = res < max(1.5, 3 * np.median(res))
+            sights_px, sights_mm = sights_px[keep], sights_mm[keep]
+            x = solve(x, sights_px, sights_mm)
+        else:
+            sights_px, sights_mm = empty2, empty3
+    # Drop nose outliers (a resting ball on the cushion, an arm) and solve once more.
+    cam = cam_of(x)
+    cleaned = []
+    for rail, pts in noses:
+        if len(pts) == 0:
+            cleaned.append((rail, pts))
+            continue
+        off, scale = _nose_offsets_mm(cam, pts, rail, table)
+        rpx = off * scale
+        mad = 1.4826 * np.median(np.abs(rpx - np.median(rpx))) + 0.05
+        cleaned.append((rail, pts[np.abs(rpx) < max(4 * mad, 0.5)]))
+    noses = cleaned
+    x = solve(x, sights_px, sights_mm)
+    cam = cam_of(x)
+    fits = []
+    all_res = []
+    for rail, pts in noses:
+        off, scale = _nose_offsets_mm(cam, pts, rail, table) if len(pts) else (np.zeros(0), np.zeros(0))
+        fits.append(NoseFit(rail, pts, off * scale, off))
+        all_res.append(off * scale)
+    all_res = np.concatenate(all_res)
+    # Straightness alone (what the lens model leaves): each side's own best line after undistortion.
+    straight = _line_residuals([_undistort_to_pixels(cam, f.points_px) for f in fits if len(f.points_px) >= 3])
+    sres = np.linalg.norm(cam.project(sights_mm) - sights_px, axis=1) if len(sights_px) else np.zeros(0)
+    # The shape of the table the image supports: refit with the width free.
+    aspect = _measured_aspect(cam, fits, table)
+    f = float(cam.K[0, 0])
+    quality = {
+        "nose_rms_px": float(np.sqrt(np.mean(all_res**2))),
+        "nose_max_px": float(np.max(np.abs(all_res))),
+        "straightness_rms_px": float(np.sqrt(np.mean(straight**2))) if len(straight) else None,
+        "straightness_max_px": float(np.max(np.abs(straight))) if len(straight) else None,
+        "nose_points": int(len(all_res)),
+        "nose_points_per_rail": {f.rail: int(len(f.points_px)) for f in fits},
+        "sights_found": int(len(sights_px)),
+        "sight_rms_px": float(np.sqrt(np.mean(sres**2))) if len(sres) else None,
+        "aspect_measured": aspect,
+        "aspect_table": table.length_mm / table.width_mm,
+        "focal_px": f,
+        "hfov_deg": math.degrees(2 * math.atan(w / 2 / f)),
+        "k1": float(cam.dist[0]),
+        "k2": float(cam.dist[1]),
+        "camera_height_mm": float(cam.centre_mm[2]),
+        "camera_centre_mm": cam.centre_mm.tolist(),
+    }
+    corners = cam.project(np.column_stack([obj, np.full(4, table.nose_height_mm)]))
+    return _Fit(cam, tuple(fits), sights_px, sights_mm[:, :2] if len(sights_mm) else np.zeros((0, 2)), quality, origin, corners)
+
+
+def _undistort_to_pixels(cam: Camera, uv: np.ndarray) -> np.ndarray:
+    xy = cam.undistort_normalised(uv)
+    return xy * cam.K[0, 0] + cam.K[:2, 2]
+
+
+def _measured_aspect(cam: Camera, fits: tuple[NoseFit, ...], table: TableSpec) -> float | None:
+    """Length over width of the nose rectangle as this camera sees it: the mean separation of the
+    back-projected (nose-height) left/right and bottom/top nose points."""
+    by = {f.rail: f for f in fits}
+    if not all(len(by[r].points_px) >= 3 for r in RAIL_SIDES):
+        return None
+    X = {r: cam.backproject(by[r].points_px, table.nose_height_mm) for r in RAIL_SIDES}
+    length = float(np.median(X["right"][:, 0]) - np.median(X["left"][:, 0]))
+    width = float(np.median(X["top"][:, 1]) - np.median(X["bottom"][:, 1]))
+    return length / width if width > 0 else None
+
+
+# ================================================================================================
+# Check image
+# ================================================================================================
+def check_image(bg: np.ndarray, cam: Camera | None, table: TableSpec, fit: _Fit | None, px_per_mm: float, verdict: str, quad: np.ndarray | None = None) -> np.ndarray:
+    """(H, W, 3) uint8 BGR: ``bg`` rectified to a top-down view of the nose plane at ``px_per_mm``
+    (table x to the right, y up), with the model's nose rectangle (green), the nose points found
+    (coloured by residual: blue under 0.3 px, yellow under 1 px, red beyond), the corners, the
+    sights (found: circle; expected: cross) and the residuals and verdict printed. Without a camera
+    the background itself is returned with the rough outline and the verdict."""
+    if cam is None:
+        img = bg.copy()
+        if quad is not None:
+            cv2.polylines(img, [np.round(quad).astype(np.int32)], True, (0, 0, 255), 2)
+        _text(img, [verdict])
+        return img
+    m = table.rail_width_mm + 60.0
+    Wd = int(round((table.length_mm + 2 * m) * px_per_mm))
+    Hd = int(round((table.width_mm + 2 * m) * px_per_mm))
+    uu, vv = np.meshgrid(np.arange(Wd, dtype=float), np.arange(Hd, dtype=float))
+    x = uu / px_per_mm - m
+    y = (Hd - 1 - vv) / px_per_mm - m
+    pts = np.column_stack([x.ravel(), y.ravel(), np.full(x.size, table.nose_height_mm)])
+    uv = cam.project(pts).reshape(Hd, Wd, 2).astype(np.float32)
+    uv = np.nan_to_num(uv, nan=-100.0)
+    img = cv2.remap(bg, uv[..., 0], uv[..., 1], cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT, borderValue=(40, 40, 40))
+
+    def to_img(xy):
+        xy = np.asarray(xy, float).reshape(-1, 2)
+        return np.column_stack([(xy[:, 0] + m) * px_per_mm, Hd - 1 - (xy[:, 1] + m) * px_per_mm])
+
+    rect = to_img(table.outline())
+    cv2.polylines(img, [np.round(rect * 16).astype(np.int32)], True, (0, 220, 0), 1, cv2.LINE_AA, 4)
+    if fit is not None:
+        for nf in fit.noses:
+            if len(nf.points_px) == 0:
+                continue
+            X = cam.backproject(nf.points_px, table.nose_height_mm)[:, :2]
+            for p, r in zip(to_img(X), nf.residuals_px):
+                col = (255, 128, 0) if abs(r) < 0.3 else (0, 220, 255) if abs(r) < 1.0 else (0, 0, 255)
+                cv2.circle(img, (int(round(p[0])), int(round(p[1]))), 1, col, -1)
+        for p in rect:
+            cv2.drawMarker(img, (int(round(p[0])), int(round(p[1]))), (255, 255, 255), cv2.MARKER_CROSS, 18, 1)
+        exp = to_img(np.array([xy for _, _, xy in table.sights()]))
+        for p in exp:
+            cv2.drawMarker(img, (int(round(p[0])), int(round(p[1]))), (0, 200, 255), cv2.MARKER_TILTED_CROSS, 9, 1)
+        if len(fit.sights_px):
+            Xs = cam.backproject(fit.sights_px, table.rail_top_height_mm)[:, :2]
+            for p in to_img(Xs):
+                cv2.circle(img, (int(round(p[0])), int(round(p[1]))), 6, (255, 0, 255), 1, cv2.LINE_AA)
+        q = fit.quality
+        lines = [
+            verdict,
+            f"noses: rms {q['nose_rms_px']:.2f} px, max {q['nose_max_px']:.2f} px over {q['nose_points']} points",
+            f"sights: {q['sights_found']} of 18" + (f", rms {q['sight_rms_px']:.2f} px" if q["sight_rms_px"] is not None else ""),
+            f"f {q['focal_px']:.0f} px (hfov {q['hfov_deg']:.1f} deg), k1 {q['k1']:+.3f} k2 {q['k2']:+.3f}, height {q['camera_height_mm']:.0f} mm",
+            f"table {table.name} L/W {q['aspect_table']:.3f}, seen {q['aspect_measured']:.3f}" if q["aspect_measured"] else f"table {table.name}",
+            "origin (0,0) at the lower left of this view",
+        ]
+        _text(img, lines)
+    return img
+
+
+def _text(img: np.ndarray, lines: list[str]) -> None:
+    y = 22
+    for line in lines:
+        cv2.putText(img, line, (10, y), cv2.FONT_HERSHEY_SIMPLEX, 0.5, (0, 0, 0), 3, cv2.LINE_AA)
+        cv2.putText(img, line, (10, y), cv2.FONT_HERSHEY_SIMPLEX, 0.5, (255, 255, 255), 1, cv2.LINE_AA)
+        y += 20
+
+
+# ================================================================================================
+# Public entry points
+# ================================================================================================
+def _verdict_problems(fit: _Fit, table: TableSpec, config: CalibConfig, size: tuple[int, int]) -> str | None:
+    q = fit.quality
+    if q["aspect_measured"] is not None:
+        rel = q["aspect_measured"] / q["aspect_table"] - 1
+        if abs(rel) > config.max_aspect_error:
+            return (f"the table seen has length/width {q['aspect_measured']:.3f} but --table {table.name} has "
+                    f"{q['aspect_table']:.3f} ({100 * rel:+.1f} %); give the right --table (preset or LxW in mm)")
+    if q["nose_rms_px"] > config.max_nose_rms_px:
+        return (f"the cushion noses fit poorly (rms {q['nose_rms_px']:.2f} px > {config.max_nose_rms_px} px); "
+                "check the image for a wrong --table, a moved camera or clutter on the cushions, or give --corners")
+    if q["sight_rms_px"] is not None and q["sight_rms_px"] > config.max_sight_rms_px:
+        return (f"the rail sights disagree with the cushions (rms {q['sight_rms_px']:.2f} px > {config.max_sight_rms_px} px); "
+                "check --table and --ball, or calibrate from a clip with the rails clear")
+    lo, hi = config.hfov_deg_range
+    if not lo <= q["hfov_deg"] <= hi:
+        return f"implausible field of view {q['hfov_deg']:.1f} deg (focal {q['focal_px']:.0f} px); give --camera-height to pin it"
+    lo, hi = config.height_mm_range
+    if not lo <= q["camera_height_mm"] <= hi:
+        return f"implausible camera height {q['camera_height_mm']:.0f} mm above the cloth; give --camera-height to pin it"
+    return None
+
+
+def calibrate_background(bg: np.ndarray, table: TableSpec, config: CalibConfig = CalibConfig()) -> Calibration:
+    """Calibrate from one (H, W, 3) uint8 BGR frame of the empty (or still) table; see
+    :func:`calibrate`. No bump detection (one frame has one camera)."""
+    return _calibrate_segments([(0.0, bg)], table, config, n_frames=1, n_stills=[1])
+
+
+def calibrate(source, table: TableSpec, config: CalibConfig = CalibConfig()) -> Calibration:
+    """Calibrate the camera that filmed ``source`` (a clip path, one (H, W, 3) uint8 BGR frame,
+    or an iterable of frames or (t_s, frame) pairs) looking at ``table``.
+
+    Streams the frames once (never holds the clip), builds a background per camera segment from
+    still frames, finds the cushion noses and sights and fits the camera (module docstring).
+    Returns a :class:`Calibration`; raises :class:`CalibrationError` (a ValueError, with the check
+    image attached where one could be drawn) with a one-line message saying what is wrong and what
+    to do: no table in view, too dark, table cut off, a ``table`` whose shape disagrees with the
+    picture, or a fit too poor to trust.
+    """
+    if isinstance(source, np.ndarray) and source.ndim == 3:
+        return calibrate_background(_check_frame(source, None), table, config)
+    segments, n, _ = _collect(source, config)
+    bgs, counts = [], []
+    for seg in segments:
+        if len(seg.stills) < config.min_still_frames:
+            if seg is segments[0]:
+                raise ValueError("no still moment in the clip to see the table clearly; calibrate from a clip with a second or two before the first shot")
+            continue
+        bgs.append((seg.t0, _median_background(seg.stills)))
+        counts.append(len(seg.stills))
+    return _calibrate_segments(bgs, table, config, n_frames=n, n_stills=counts)
+
+
+def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, config: CalibConfig, n_frames: int, n_stills: list[int]) -> Calibration:
+    t0, bg = bgs[0]
+    size = (bg.shape[1], bg.shape[0])
+    try:
+        fit = _fit_background(bg, table, config)
+    except CalibrationError:
+        raise
+    except ValueError as exc:
+        quad = None
+        try:
+            quad = _rough_quad(bg)
+        except ValueError:
+            pass
+        raise CalibrationError(str(exc), check_image(bg, None, table, None, config.check_px_per_mm, f"FAILED: {exc}", quad)) from None
+    problem = _verdict_problems(fit, table, config, size)
+    verdict = "OK" if problem is None else f"REFUSED: {problem}"
+    img = check_image(bg, fit.camera, table, fit, config.check_px_per_mm, verdict)
+    if problem is not None:
+        raise CalibrationError(problem, img)
+    changes = [(0.0, fit.camera)]
+    intr = (float(fit.camera.K[0, 0]), float(fit.camera.dist[0]), float(fit.camera.dist[1]))
+    # After a bump: same lens, new pose, origin pinned to the same physical corner.
+    for t_k, bg_k in bgs[1:]:
+        cfg = replace(config, origin_near_px=tuple(fit.corners_px[0]), corners_px=None)
+        try:
+            fk = _fit_background(bg_k, table, cfg, intrinsics=intr)
+        except ValueError as exc:
+            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view could not be calibrated ({exc})", img) from None
+        pk = _verdict_problems(fk, table, config, size)
+        if pk is not None:
+            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view fits poorly: {pk}", img)
+        changes.append((float(t_k), fk.camera))
+    quality = dict(fit.quality)
+    quality["still_frames"] = int(n_stills[0])
+    quality["frames_read"] = int(n_frames)
+    quality["camera_changes"] = len(changes) - 1
+    return Calibration(
+        camera=fit.camera,
+        quality=quality,
+        corners_px=fit.corners_px,
+        noses=fit.noses,
+        sights_px=fit.sights_px,
+        sights_mm=fit.sights_mm,
+        check_image=img,
+        origin=fit.origin,
+        camera_changes=tuple(changes),
+        background=bg,
+    )
