@@ -259,3 +259,54 @@ def test_simulated_bank_shot_cushion_contact():
     assert abs(cu.loc[0, "t"] - truth.t) < dt / 4
     assert abs(cu.loc[0, "x"] - truth.pos[0]) < 4.0
     assert abs(cu.loc[0, "angle_in"] - a_in) < 1.0
+
+
+# --- realistic paths from our own simulator ---------------------------------------------------
+# Shots, detections and matching come from benchmarks/event_accuracy.py (its docstring gives the
+# noise model: exposure-averaged centres, 1 mm at rest, 2.5 mm moving, 2 % dropped frames).
+# The physics behind the paths: sliding at mu_s g along a constant slip direction until rolling,
+# then mu_r g along the velocity (Alciatore 2004); cushion impacts of Mathavan, Jackson & Parkin
+# (2010). Targets are the project's acceptance targets (issue "Follow every ball and time every
+# contact").
+@pytest.fixture(scope="module")
+def simulated_contacts():
+    from benchmarks.event_accuracy import random_shots, run_shot, summarise
+
+    rng = np.random.default_rng(2024)
+    shots = random_shots(rng, 8)
+    results = [run_shot(sh, 60.0, rng) for sh in shots]
+    return summarise(results, 60.0)
+
+
+@pytest.mark.xfail(strict=True, reason="misses one slow contact (draw shot, 102 mm/s into the "
+                   "bottom rail at t = 3.03 s): 17 of 18, recall 0.944; not yet investigated")
+def test_simulated_cushions_recall(simulated_contacts):
+    s = simulated_contacts
+    assert s["cushion recall"] >= 0.98
+
+
+def test_simulated_contacts_found_and_timed(simulated_contacts):
+    s = simulated_contacts
+    print(s)
+    assert s["cushion n_visible"] >= 10  # enough contacts for medians to mean something
+    assert s["cushion precision"] >= 0.98
+    assert s["collision recall"] >= 0.95
+    assert s["collision within half frame"] == 1.0
+    assert s["t_frames median"] <= 0.25  # a quarter of a frame interval
+    assert s["along_mm median"] <= 4.0 and s["along_mm p95"] <= 12.0
+
+
+def test_simulated_contacts_incoming_measures(simulated_contacts):
+    s = simulated_contacts
+    assert s["speed_in median"] <= 0.03
+    assert s["angle_in median"] <= 1.0
+
+
+@pytest.mark.xfail(strict=True, reason="departure after a cushion: sliding piece too short and "
+                   "noisy at 60 fps / 2.5 mm (benchmarks/event_accuracy.py: speed_out ~3.4 %, "
+                   "angle_out ~2 deg, restitution ~0.04); targets not yet met")
+def test_simulated_contacts_outgoing_measures(simulated_contacts):
+    s = simulated_contacts
+    assert s["speed_out median"] <= 0.03
+    assert s["angle_out median"] <= 1.0
+    assert s["restitution median"] <= 0.03

@@ -21,14 +21,22 @@ Method
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
    velocity changes.
-3. Each contact is then solved between frames. The path on each side is fitted by least squares
-   with per-axis quadratics in time, ``p(t) = c0 + c1 t + c2 t^2`` (constant acceleration: a
-   sliding ball decelerates at ``mu_s g`` along a parabola when it carries side or masse spin;
-   Alciatore 2004), from the samples between the neighbouring contacts of that ball (at most
-   ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact.
+3. Each contact is then solved between frames. Each side's path is fitted by least squares
+   from the raw samples between the neighbouring contacts of that ball (at most
+   ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, with
+   the physics of Alciatore 2004: a ball slides, decelerating at ``mu_s g`` along a constant slip
+   direction, until it rolls, then decelerates at ``mu_r g`` along its velocity; after a cushion,
+   a collision or a stun strike it slides first. ``_piecewise_fit`` chooses by the Bayesian
+   information criterion between a rolling piece (acceleration with the prior ``mu_r g`` against
+   the velocity), a free quadratic, and a sliding piece joined to a rolling one at a kink time
+   scanned on a sub-frame grid (linear in the coefficients for a given kink; sliding deceleration
+   with a loose prior about ``mu_s g``).
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
    meet it at the same instant, so the two crossing times are combined by inverse-variance
-   weighting (the linearised least-squares time where both fits cross the line). *Collision*:
+   weighting (the linearised least-squares time where both fits cross the line). Then both sides
+   are refitted with their normal coordinate pinned to the reversal line at a trial contact time,
+   scanned between the samples nearest the contact; the time with the least summed criterion
+   gives the contact, and the pinned fits give the speeds, angles and restitution. *Collision*:
    the time where the centres are one diameter apart, ``|p1(t) - p2(t)| = D``, is solved
    (a quartic) from the approach fits and from the departure fits and the two combined the same
    way. *Start*: the first moving samples' fit extrapolated back to the rest position. *Stop*:
@@ -47,6 +55,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from scipy.optimize import minimize_scalar
 from scipy.stats import chi2
 
 from vision.table import RAILS, TableSpec, cushion_angles, rail_inward_normal
@@ -78,6 +87,18 @@ class EventConfig:
     velocity change that marks a contact. ``start_fit_s`` / ``stop_fit_s``: samples fitted to
     solve a start / stop. ``pocket_reach_mm`` / ``pocket_horizon_s``: a track ending within this
     of a pocket mouth whose path crosses the mouth within this time was pocketed.
+    ``meas_sigma_mm``: detection noise assumed where it cannot be estimated.
+
+    Path model of each side of a contact (``_piecewise_fit``; Alciatore 2004 sliding then
+    rolling): ``kink_step_frames`` grid step of the slide-to-roll time, in frame intervals;
+    ``kink_min_samples`` fewest samples on the piece next to the contact; ``kink_params``
+    free parameters the criterion charges a kink beyond a rolling piece (its time and the slip
+    direction: the prior fixes the deceleration's size); ``roll_decel_mm_s2`` /
+    ``roll_decel_sigma_mm_s2`` prior of the rolling deceleration ``mu_r g`` (Alciatore 2004
+    mu_r 0.005-0.015, typical 0.01 [secondary]); ``slide_decel_mm_s2`` /
+    ``slide_decel_sigma_mm_s2`` prior of the sliding deceleration ``mu_s g`` (Alciatore 2004
+    typical 0.2, range 0.15-0.4 [secondary]; Mathavan et al. 2009: 1.75-2.40 m/s^2);
+    ``slide_decel_min_mm_s2`` / ``slide_decel_max_mm_s2`` hard bounds (0.05 g and 0.6 g).
     """
 
     rest_speed_mm_s: float = 50.0
@@ -94,6 +115,15 @@ class EventConfig:
     pocket_reach_mm: float = 150.0
     pocket_horizon_s: float = 0.5
     meas_sigma_mm: float = 2.0
+    kink_step_frames: float = 0.25
+    kink_min_samples: int = 2
+    slide_decel_min_mm_s2: float = 490.0
+    slide_decel_max_mm_s2: float = 5900.0
+    roll_decel_mm_s2: float = 98.1
+    kink_params: int = 2
+    slide_decel_mm_s2: float = 1962.0
+    slide_decel_sigma_mm_s2: float = 600.0
+    roll_decel_sigma_mm_s2: float = 50.0
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -111,10 +141,14 @@ class EventConfig:
 # --- path fits -------------------------------------------------------------------------------
 @dataclass
 class _Fit:
-    """Per-axis polynomial ``p(t) = sum_k coef[k] (t - t0)^k`` fitted to (n, 2) positions (mm).
+    """A fitted path ``p(t)`` (mm) of one side of a contact, per axis, about ``t0`` (s).
 
-    ``coef`` (3, 2) (unused orders are 0); ``cov`` (3, 3) is ``(A^T A)^-1`` of the design matrix
-    so ``var p(t) = s2 g^T cov g`` with ``g = [1, tau, tau^2]``; ``s2`` the per-axis residual
+    Near ``t0`` it is the quadratic ``p = c0 + c1 tau + c2 tau^2`` with ``tau = t - t0`` and
+    ``coef = [c0, c1, c2]`` (3, 2) (unused orders 0). A piecewise fit (``_piecewise_fit``) has a
+    kink at ``tau = tk``: beyond it (``|tau| > |tk|``, same sign) the acceleration changes to
+    ``2 far`` (``far`` (2,) mm/s^2 / 2) with position and velocity continuous. ``cov`` (3, 3) is
+    the block of ``(A^T A)^-1`` of the design matrix belonging to ``c0, c1, c2``, so near ``t0``
+    ``var p(t) = s2 g^T cov g`` with ``g = [1, tau, tau^2]``; ``s2`` the per-axis residual
     variance (mm^2).
     """
 
@@ -124,14 +158,27 @@ class _Fit:
     s2: float
     n: int
     deg: int
+    tk: float | None = None
+    far: np.ndarray | None = None
+    k: int = 6  # free parameters of the fit (both axes)
+    bic: float = math.nan  # Bayesian information criterion of the chosen model
+
+    def _split(self, tau: float) -> tuple[float, float]:
+        """(m, r): the part of tau before the kink and the part beyond it."""
+        if self.tk is None or abs(tau) <= abs(self.tk) or tau * self.tk <= 0:
+            return tau, 0.0
+        return self.tk, tau - self.tk
 
     def pos(self, t: float) -> np.ndarray:
-        tau = t - self.t0
-        return self.coef[0] + self.coef[1] * tau + self.coef[2] * tau**2
+        m, r = self._split(t - self.t0)
+        # p = c0 + c1 (m + r) + c2 (m^2 + 2 m r) + far r^2: continuous in p and p' at the kink
+        out = self.coef[0] + self.coef[1] * (m + r) + self.coef[2] * (m * m + 2 * m * r)
+        return out + self.far * r * r if r else out
 
     def vel(self, t: float) -> np.ndarray:
-        tau = t - self.t0
-        return self.coef[1] + 2.0 * self.coef[2] * tau
+        m, r = self._split(t - self.t0)
+        out = self.coef[1] + 2.0 * self.coef[2] * m
+        return out + 2.0 * self.far * r if r else out
 
     def var(self, t: float) -> float:
         tau = t - self.t0
@@ -159,6 +206,136 @@ def _fit(ts: np.ndarray, ps: np.ndarray, t0: float, deg: int, sigma_mm: float) -
     full = np.zeros((3, 2))
     full[: deg + 1] = coef
     return _Fit(t0, full, cov, s2, n, deg)
+
+
+def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, step_s: float,
+                   cfg: "EventConfig", pin: np.ndarray | None = None) -> _Fit | None:
+    """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
+
+    Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
+    direction (a constant acceleration vector) until it rolls; a rolling ball decelerates at
+    ``mu_r g`` along its velocity. After a cushion, a collision or a stun strike the ball slides
+    first, so one side of a contact is at most two constant-acceleration pieces, sliding then
+    rolling (forward in time), joined with continuous position and velocity at ``tau = tk``:
+
+        p(tau) = c0 + c1 tau + c2 (m^2 + 2 m r) + c3 r^2,  m = tau clipped to [0, tk], r = tau - m
+
+    (``2 c2`` the acceleration between t0 and the kink, ``2 c3`` beyond it; ``tau = t - t0``),
+    linear in (c0..c3) for a given tk. Candidates, per axis by least squares:
+
+    * *rolling*: one piece whose acceleration has the Gaussian prior ``-mu_r g v_hat``, sd
+      ``roll_decel_sigma_mm_s2`` (``roll_decel_mm_s2`` = mu_r g; v_hat from a straight-line fit),
+      added as ridge rows, so it costs no free parameter;
+    * *sliding*: one free quadratic;
+    * *slide then roll*: tk scanned over a grid of ``step_s`` between the samples (at least
+      ``kink_min_samples`` on the near piece, three on the far one), the rolling piece with the
+      same prior and the sliding one free but rejected unless ``|a|`` lies within
+      ``slide_decel_min_mm_s2 .. slide_decel_max_mm_s2`` and with a Gaussian prior on its size,
+      ``slide_decel_mm_s2`` sd ``slide_decel_sigma_mm_s2`` (loosely about mu_s g: the cloth's
+      mu_s is not known), added to the residual sum in units of the residual variance.
+
+    ``pin`` (2,) mm fixes ``c0`` (the contact point when both sides are refitted through it).
+    The best candidate has the least Bayesian information criterion (Schwarz 1978) for Gaussian
+    residuals of unknown variance, ``BIC = m ln(RSS / m) + k ln m`` over the m = 2 n coordinates
+    with k free parameters (rolling 4, sliding 6, slide-then-roll ``4 + kink_params``; one fewer
+    per pinned axis). Returns None for fewer than two samples.
+    """
+    n = len(ts)
+    if n < 2:
+        return None
+    tau = ts - t0
+    order = np.argsort(np.abs(tau), kind="stable")
+    tau, P = tau[order], ps[order].astype(float)
+    after = bool(tau[-1] > 0)  # departure side: the near piece is the earlier one (sliding)
+    pin = np.full(2, np.nan) if pin is None else np.asarray(pin, float)
+    free0 = np.isnan(pin)  # per axis: c0 fitted (True) or fixed at pin
+    n_pinned = int((~free0).sum())
+    m_obs = 2 * n
+    floor = m_obs * 1e-18  # exact data (1e-9 mm rounding): the penalty alone decides
+
+    def bic(rss, k):
+        return m_obs * np.log(np.maximum(rss, floor) / m_obs) + k * math.log(m_obs)
+
+    # Direction of travel for the rolling prior: a straight-line fit's velocity.
+    lc, *_ = np.linalg.lstsq(np.stack([np.ones(n), tau], axis=1), P, rcond=None)
+    speed = float(np.hypot(*lc[1]))
+    c_prior = -0.5 * cfg.roll_decel_mm_s2 * lc[1] / speed if speed > 0 else np.zeros(2)
+    lam = (2.0 * max(sigma_mm, 0.05) / cfg.roll_decel_sigma_mm_s2) ** 2  # (sigma / sd of c)^2
+
+    def solve(A, roll_col):
+        """A (G, n, q) columns c0..c{q-1}; per axis least squares with c0 pinned where asked
+        and the ridge prior on ``roll_col``. Returns coef (G, q, 2), rss (G,), inverse normal
+        matrices (G, 2, q, q) (zero rows/columns for a pinned c0)."""
+        G, _, q = A.shape
+        coef = np.zeros((G, q, 2))
+        inv = np.zeros((G, 2, q, q))
+        rss = np.zeros(G)
+        for ax in range(2):
+            j0 = 0 if free0[ax] else 1
+            Aa = A[:, :, j0:]
+            y = P[:, ax] - (0.0 if free0[ax] else pin[ax])
+            AtA = np.einsum("gni,gnj->gij", Aa, Aa)
+            Atb = np.einsum("gni,n->gi", Aa, y)
+            if roll_col is not None:
+                AtA[:, roll_col - j0, roll_col - j0] += lam
+                Atb[:, roll_col - j0] += lam * c_prior[ax]
+            try:
+                Ai = np.linalg.inv(AtA)
+            except np.linalg.LinAlgError:
+                return None
+            c = np.einsum("gij,gj->gi", Ai, Atb)
+            rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
+            coef[:, j0:, ax] = c
+            if not free0[ax]:
+                coef[:, 0, ax] = pin[ax]
+            inv[:, ax, j0:, j0:] = Ai
+        return coef, rss, inv
+
+    cands = []  # (score, coef (4, 2), inv (2, q, q), rss, k, tk)
+    one = np.stack([np.ones(n), tau, tau * tau], axis=1)[None]  # (1, n, 3)
+    for roll, k in ((True, 4), (False, 6)):
+        if n < (3 if roll else cfg.quadratic_min_samples):
+            continue
+        out = solve(one, 2 if roll else None)
+        if out is not None:
+            coef, rss, inv = out
+            k -= n_pinned
+            c4 = np.zeros((4, 2))
+            c4[:3] = coef[0]
+            cands.append((float(bic(rss, k)[0]), c4, inv[0], float(rss[0]), k, None))
+    k_near = max(cfg.kink_min_samples, 1)
+    if n >= max(k_near + 3, cfg.quadratic_min_samples) and abs(tau[n - 4]) > abs(tau[k_near - 1]):
+        grid = np.arange(abs(tau[k_near - 1]), abs(tau[n - 4]), step_s)
+        tk = (1.0 if after else -1.0) * grid
+        mm = np.where(np.abs(tau)[None, :] <= grid[:, None], tau[None, :], tk[:, None])
+        r = tau[None, :] - mm
+        A = np.stack([np.ones_like(mm), np.broadcast_to(tau, mm.shape), mm * mm + 2 * mm * r,
+                      r * r], axis=-1)
+        roll_col, slide_col = (3, 2) if after else (2, 3)
+        out = solve(A, roll_col)
+        if out is not None:
+            coef, rss, inv = out
+            a_slide = 2 * np.hypot(*coef[:, slide_col, :].T)
+            ok = (a_slide >= cfg.slide_decel_min_mm_s2) & (a_slide <= cfg.slide_decel_max_mm_s2)
+            k = 4 + cfg.kink_params - n_pinned
+            # Soft prior on the sliding deceleration's size, mu_s g (Alciatore 2004 typical 0.2,
+            # range 0.15-0.4; Mathavan et al. 2009 measured 1.75-2.40 m/s^2), as a Gaussian
+            # term in chi-square units (residual variance of the fit) added to the criterion.
+            s2_hat = np.maximum(rss, floor) / m_obs
+            prior = ((a_slide - cfg.slide_decel_mm_s2) / cfg.slide_decel_sigma_mm_s2) ** 2
+            sc = np.where(ok, bic(rss + prior * s2_hat, k), np.inf)
+            g = int(np.argmin(sc))
+            if np.isfinite(sc[g]):
+                cands.append((float(sc[g]), coef[g], inv[g], float(rss[g]), k, float(tk[g])))
+    if not cands:
+        return _fit(ts, ps, t0, 1, sigma_mm) if n_pinned == 0 else None
+    score, c4, inv, rss, k, tk = min(cands, key=lambda c: c[0])
+    dof = m_obs - k
+    s2 = max(rss / dof if dof >= 4 else sigma_mm**2, 1e-8)
+    # var p(t) per axis differs when one axis is pinned; keep the larger (free) axis' matrix.
+    cov = inv[int(np.argmax([np.trace(inv[0, :3, :3]), np.trace(inv[1, :3, :3])])), :3, :3]
+    return _Fit(t0, c4[:3].copy(), cov.copy(), s2, n, 2, tk=tk,
+                far=c4[3].copy() if tk is not None else None, k=k, bic=score)
 
 
 def _roots_near(coeffs_high_first, t_guess_tau: float, lo: float, hi: float) -> float | None:
@@ -373,33 +550,83 @@ class _Finder:
     def _deg(self, n: int) -> int:
         return 2 if n >= self.cfg.quadratic_min_samples else 1
 
-    def _grow(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, forward: bool):
-        """Fit samples (sorted by time) nearest ``t_c`` first, growing the window one sample at a
-        time while a quadratic still explains them to within the noise: the chi-square test
-        ``RSS / sigma^2 <= chi2.ppf(0.9999, dof)`` stops it at a kink in the acceleration (e.g.
-        where sliding turns to rolling) that a single parabola cannot follow."""
-        if not forward:
-            ts, ps = ts[::-1], ps[::-1]
-        n_min = self.cfg.quadratic_min_samples
-        if len(ts) < n_min:
-            return _fit(ts, ps, t_c, self._deg(len(ts)), sigma) if len(ts) >= 2 else None
-        best = _fit(ts[:n_min], ps[:n_min], t_c, 2, sigma)
-        for n in range(n_min + 1, len(ts) + 1):
-            f = _fit(ts[:n], ps[:n], t_c, 2, sigma)
-            dof = 2 * (n - 3)
-            if f.s2 * dof / max(sigma * sigma, 1e-12) > chi2.ppf(0.9999, dof):
-                break
-            best = f
-        return best
-
     def _side_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
         """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi)."""
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure) if exclude else None
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
-        return (self._grow(ta, pa, t_c, b.sigma, forward=False),
-                self._grow(td, pd_, t_c, b.sigma, forward=True))
+        step = self.cfg.kink_step_frames * self.dt
+        return (self._side(ta, pa, t_c, b.sigma, step), self._side(td, pd_, t_c, b.sigma, step))
+
+    def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float):
+        """Piecewise (slide then roll) fit of one side's samples (``_piecewise_fit``). A path the
+        chosen model still cannot explain within the noise (chi-square test
+        ``RSS / sigma^2 > chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the
+        half of the window nearest the contact, at most twice."""
+        for _ in range(3):
+            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg)
+            if f is None or len(ts) < 2 * self.cfg.quadratic_min_samples:
+                return f
+            dof = 2 * f.n - f.k
+            if dof <= 0 or f.s2 * dof / max(sigma * sigma, 1e-12) <= chi2.ppf(0.9999, dof):
+                return f
+            keep = np.abs(ts - t_c) <= np.median(np.abs(ts - t_c))
+            ts, ps = ts[keep], ps[keep]
+        return f
+
+    def _pinned_contact(self, b: _Ball, ax: int, c: float, t_c: float, lo: float, hi: float,
+                        n_a: int, n_d: int):
+        """Refine a cushion contact by fitting both sides through the reversal line.
+
+        In a rigid impact the centre is on the reversal line ``c`` (normal axis ``ax``) at the
+        contact instant on both sides, so for a trial time t both sides' fits
+        (``_piecewise_fit``) have their normal coordinate pinned, ``p_ax(t) = c``; the along-rail
+        coordinate stays free. Pinning ties the short sliding piece after the impact to the
+        contact point, which the samples of that piece alone fix poorly. t is scanned between the
+        last approach sample and the first departure sample whose exposures do not straddle it
+        (``n_a`` / ``n_d`` samples nearest the contact on each side, as chosen by the unpinned
+        fits), and the t with the least sum of both sides' BIC is kept.
+        Returns (t, approach fit, departure fit) or None.
+        """
+        w = self.cfg.fit_window_s
+        ex = (t_c, 0.5 * self.exposure)
+        ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
+        td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
+        if len(ta) < 3 or len(td) < 3:
+            return None
+        ta, pa = ta[-n_a:], pa[-n_a:]
+        td, pd_ = td[:n_d], pd_[:n_d]
+        t_lo, t_hi = ta[-1] + 0.5 * self.exposure, td[0] - 0.5 * self.exposure
+        if not t_hi > t_lo:
+            return None
+        step = self.cfg.kink_step_frames * self.dt
+        pin = np.full(2, np.nan)
+        pin[ax] = c
+
+        def fits(t: float):
+            fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin)
+            fd = _piecewise_fit(td, pd_, t, b.sigma, step, self.cfg, pin)
+            if fa is None or fd is None:
+                return math.inf, fa, fd
+            return fa.bic + fd.bic, fa, fd
+
+        # Grid of 1/20 frame, then Brent's bounded minimisation within a grid step of the best.
+        grid = np.linspace(t_lo, t_hi, max(3, int(math.ceil((t_hi - t_lo) / (0.05 * self.dt)))
+                                           + 1))
+        scores = [fits(float(t))[0] for t in grid]
+        g = int(np.argmin(scores))
+        if not math.isfinite(scores[g]):
+            return None
+        # Offsets u from the best grid time, so the optimiser's relative tolerance (sqrt(eps)
+        # times |u|) does not limit it to ~1e-8 s of the clip time.
+        tg = float(grid[g])
+        a, z = grid[max(g - 1, 0)] - tg, grid[min(g + 1, len(grid) - 1)] - tg
+        res = minimize_scalar(lambda u: fits(tg + float(u))[0], bounds=(a, z), method="bounded",
+                              options={"xatol": 1e-11})
+        t_best = tg + float(res.x) if res.fun <= scores[g] else tg
+        _, fa, fd = fits(t_best)
+        return t_best, fa, fd
 
     # --- cushions ---------------------------------------------------------------------------
     def rough_cushions(self, b: _Ball) -> list[tuple[float, str]]:
@@ -463,6 +690,9 @@ class _Finder:
         fa, fd = self._side_fits(b, t_c, lo, hi, exclude=True)
         if fa is None or fd is None:
             return None
+        pinned = self._pinned_contact(b, ax, c, t_c, lo, hi, fa.n, fd.n)
+        if pinned is not None:
+            t_c, fa, fd = pinned
         along = []
         for f in (fa, fd):
             along.append((f.pos(t_c)[1 - ax], max(f.var(t_c), 1e-30)))
