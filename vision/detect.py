@@ -1,0 +1,846 @@
+"""Ball detection: frames of a fixed overhead camera -> ball centres in the table frame.
+
+Frames are (H, W, 3) uint8 BGR; pixels follow ``vision.camera`` (origin at the centre of pixel
+(0, 0), u right, v down, ``img[v, u]``); positions follow ``vision.table`` (mm). A ball's position
+is its centre projected straight down: the centre is R above the cloth.
+
+Output (:data:`COLUMNS`), one row per detected ball per frame:
+
+========= ===================================================================================
+frame     frame index from 0
+t         presentation time, s
+x, y      ball centre, mm, table frame (at mid-exposure for a blurred ball)
+u, v      image of the ball centre, px
+quality   0..1: share of the outline found times how well it fits the sphere model
+colour    ``white``, ``yellow``, ``blue``, ``red``, ``purple``, ``orange``, ``green``,
+          ``maroon``, ``black``, or ``""`` when unsure (our own coarse hue bands)
+pattern   ``cue``, ``solid``, ``stripe`` or ``unknown``
+blur_x,   travel of the centre during the exposure, mm (table frame), from the streak's
+blur_y    length and direction; 0 when the streak is no longer than a ball (see Limits)
+sigma_mm  estimated standard deviation of x and y, mm
+========= ===================================================================================
+
+Method
+------
+1. *Background*: ``vision.background``: the empty table, with resting balls kept out, updated
+   for lighting drift.
+2. *Where to look*: a 1/8-scale copy of each frame is compared with the copy at the last
+   processing (frame differencing); only cells that changed, grown by a ball, are processed, and
+   detections elsewhere are carried over. A frame where nothing changed costs one resize.
+3. *Candidates*: pixels of the ball zone whose colour distance from the background exceeds a
+   noise-scaled threshold; connected components (``cv2.connectedComponentsWithStats``). A
+   compact, convex component seeds one ball (a disc, or a capsule along its principal axis from
+   its second moments when elongated by blur); a larger one (touching balls) seeds one ball per
+   peak of its distance transform at least ~0.7 ball radius deep; one that reaches the edge of
+   the ball zone (an arm or cue coming in over the rail) seeds only deep, isolated peaks and
+   its fits must pass stricter outline tests.
+4. *Outline*: along 48 rays from the predicted image centre, the outline is the strongest colour
+   step (sub-pixel, parabolic peak interpolation) within a window round the predicted silhouette,
+   counted only where the colour moves toward the background going outward (so interior
+   stripes, number discs and highlights are mostly rejected, and a shadow's soft edge loses to
+   the ball's sharp one).
+5. *Sphere fit*: each outline point is a ray (``Camera.rays``) that must graze the ball: its
+   distance from the ball centre (R above the cloth) equals R (a ray tangent to a sphere). For a
+   blurred ball the centre sweeps a segment during the exposure and the outline is that of the
+   swept sphere: the ray's distance from the *segment* equals R. Unknowns (x, y) or (x, y, half
+   length, heading) are solved by Levenberg-Marquardt (Marquardt 1963) with Tukey biweight
+   iteratively reweighted least squares (Holland & Welsch 1977) so touching neighbours, shadows
+   and the cue tip's edges drop out. This is exact under perspective and lens distortion (the
+   silhouette of a sphere seen off-axis is not a circle centred on the centre's image), uses
+   the known ball size, and needs only part of the outline. Two rounds: the second searches a
+   narrower window round the first fit's predicted silhouette.
+   A compact blob elongated to about two ball diameters is split in two when its width across
+   the principal axis pinches at the middle (two touching balls have a waist; a blur streak is
+   widest at its middle); a fitted streak shorter than 0.3 R each way is refitted as a sharp
+   ball (shading and shadow stretch a resting outline by a few mm).
+6. *Sub-pixel outline* (sharp balls): up to six further rounds place each outline point by the
+   two-colour mixing model of :meth:`BallDetector._edges_local` (ball rim colour just inside,
+   cloth or cast shadow just outside, crossing of half coverage), refitting the sphere each
+   round until the centre moves less than 0.05 mm; if that fit agrees worse with the sphere
+   than the coarse one, the coarse fit stands.
+7. *Identity*: pixels inside 0.88 of the fitted outline, in HSV: near-white, coloured (not of
+   the cloth's hue) and dark shares decide cue (almost all white, nothing tinted or dark),
+   stripe (a white share with colour), solid (colour, little white); the coloured pixels'
+   hue picks the colour label.
+
+Limits (named honestly): streaks shorter than 0.6 R of centre travel are found as a disc at
+the right mid-exposure centre but report ``blur_x = blur_y = 0``; the travel reported for long
+streaks is not yet right (the faint ends are found inside the swept outline); a ball whose dark
+rim fades into its own cast shadow (a dark stripe band on dark cloth) can be placed several mm
+off; a ball merged with an arm or cue in the image is reported only when its outline is clearly
+separate; colour labels are coarse; the speed is far below the issue's target (see the
+benchmarks).
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from dataclasses import dataclass, field
+
+import cv2
+import numpy as np
+import pandas as pd
+
+from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone
+from vision.camera import Camera
+from vision.table import TableSpec
+from vision.video import iter_frames
+
+log = logging.getLogger(__name__)
+
+COLUMNS = ["frame", "t", "x", "y", "u", "v", "quality", "colour", "pattern", "blur_x", "blur_y", "sigma_mm"]
+PATTERNS = ("cue", "solid", "stripe", "unknown")
+COLOURS = ("white", "yellow", "blue", "red", "purple", "orange", "green", "maroon", "black", "")
+
+_N_RAYS = 48
+# Prior spread of the outline's inward shift from limb darkening (mm): about a pixel at the
+# usual scale of 2 mm per pixel; not a measured figure.
+_BIAS_SIGMA_MM = 2.0
+_STEP_PX = 0.25
+# Reach (px) of the local two-colour edge either side of the predicted outline: the sample
+# bands sit 1.75..2.75 px either side, beyond a blurred edge's half-width (about 1.5 px for an
+# optical blur of 0.6 px plus the pixel's own box).
+_LOCAL_REACH_PX = 3.0
+# A fitted half streak shorter than this share of R is taken as a sharp ball: shading and a
+# cast shadow elongate a resting ball's outline by a few mm, which a free streak would absorb
+# (moving the centre); a ball that did travel so little is placed as well by the disc model.
+_MIN_HALF_STREAK_R = 0.3
+# Most rounds of the local edge; each starts from the previous fit, and the rounds stop once
+# the centre moves less than 0.05 mm (a coarse start several px off takes a few).
+_LOCAL_ROUNDS = 6
+# A step this share of the strongest on its ray, lying farther out, is taken as the silhouette.
+_OUTER_SHARE = 0.5
+
+
+@dataclass(frozen=True)
+class DetectConfig:
+    """Knobs of the detector (px, mm, noise sigmas).
+
+    ``fg_sigmas`` / ``fg_min_score``: a pixel is foreground when its :func:`ballness` exceeds
+    this many noise sigmas and this score. ``cell_px``: side of the change-detection
+    cells; ``change_dn``: mean change of a cell that marks it changed. ``min_inlier_share``:
+    least share of the 48 outline rays that must agree with the sphere; ``max_rms_mm``: largest
+    RMS distance of the agreeing rays from the model for a sharp ball (doubled for a blurred one).
+    ``max_half_travel_mm``: longest half streak accepted (4 m/s for 1/30 s is 67 mm).
+    ``local_min_sigmas``: least rim contrast, in noise sigmas of a colour
+    difference, for a ray of the local sub-pixel edge. ``update_every_s``: interval of the background's running update. ``background``: the
+    background model's own knobs.
+    """
+
+    fg_sigmas: float = 5.0
+    fg_min_score: float = 0.12
+    cell_px: int = 8
+    change_dn: float = 5.0
+    min_inlier_share: float = 0.45
+    max_rms_mm: float = 2.0
+    local_min_sigmas: float = 6.0
+    max_half_travel_mm: float = 200.0
+    update_every_s: float = 0.25
+    background: BackgroundConfig = field(default_factory=BackgroundConfig)
+
+    def __post_init__(self) -> None:
+        for name in ("fg_sigmas", "fg_min_score", "change_dn", "max_rms_mm", "max_half_travel_mm", "update_every_s"):
+            if not getattr(self, name) > 0:
+                raise ValueError(f"DetectConfig.{name} = {getattr(self, name)!r} must be positive")
+        if int(self.cell_px) < 2:
+            raise ValueError(f"DetectConfig.cell_px = {self.cell_px!r} must be at least 2 px")
+        if not 0 < self.min_inlier_share <= 1:
+            raise ValueError(f"DetectConfig.min_inlier_share = {self.min_inlier_share!r} must lie in (0, 1]")
+
+
+def empty_detections() -> pd.DataFrame:
+    """A correctly typed detections frame with no rows."""
+    return pd.DataFrame(
+        {
+            "frame": pd.Series(dtype="int64"),
+            "t": pd.Series(dtype="float64"),
+            **{c: pd.Series(dtype="float64") for c in ("x", "y", "u", "v", "quality")},
+            "colour": pd.Series(dtype="object"),
+            "pattern": pd.Series(dtype="object"),
+            **{c: pd.Series(dtype="float64") for c in ("blur_x", "blur_y", "sigma_mm")},
+        }
+    )
+
+
+def ballness(image: np.ndarray, background: np.ndarray) -> np.ndarray:
+    """How unlike the background, *other than by shade*, each pixel is: (...) float32 >= 0.
+
+    After Horprasert, Harwood & Davis ("A statistical approach for real-time robust background
+    subtraction and shadow detection", ICCV Frame-Rate Workshop 1999): a pixel's colour I against
+    the background B splits into a brightness distortion ``a = I.B / B.B`` and a chromaticity
+    distortion ``|I - a B|``. A shadow only dims the cloth (a < 1, small chromaticity change);
+    a ball changes the chromaticity (coloured and white balls on coloured cloth), or is brighter
+    than the cloth (white on grey), or darker than any cast shadow (black). So the score is the
+    chromaticity distortion over ``|B|`` (floored at 30 DN) plus the brightness beyond 1.15 plus
+    1.5 x the darkness below a = 0.5 (from memory: a lamp's cast shadow leaves at least half
+    the light on the cloth under several lamps and room light; not a measured figure).
+    ``image`` and ``background`` are (..., 3) arrays of the same shape.
+    """
+    I = np.asarray(image, np.float32)
+    B = np.asarray(background, np.float32)
+    bb = np.sum(B * B, axis=-1)
+    a = np.sum(I * B, axis=-1) / np.maximum(bb, 1.0)
+    cd = np.linalg.norm(I - a[..., None] * B, axis=-1) / np.maximum(np.sqrt(bb), 30.0)
+    return cd + np.maximum(a - 1.15, 0.0) + 1.5 * np.maximum(0.5 - a, 0.0)
+
+
+# --- geometry --------------------------------------------------------------------------------
+def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, n: int = 32) -> np.ndarray:
+    """(N, n, 2) pixels of the silhouettes of spheres centred at (N, 3) table points (mm).
+
+    The silhouette is the image of the tangency circle: centre ``X - v R^2 / |v|^2`` and radius
+    ``R sqrt(1 - R^2 / |v|^2)`` in the plane normal to ``v = X - C`` (C the camera centre).
+    """
+    X = np.asarray(centres_mm, float).reshape(-1, 3)
+    v = X - camera.centre_mm
+    d2 = np.sum(v * v, axis=1, keepdims=True)
+    q = X - v * radius_mm**2 / d2
+    rho = radius_mm * np.sqrt(1 - radius_mm**2 / d2)
+    vh = v / np.sqrt(d2)
+    a = np.where(np.abs(vh[:, 2:3]) < 0.9, np.array([[0.0, 0.0, 1.0]]), np.array([[1.0, 0.0, 0.0]]))
+    e1 = np.cross(vh, a)
+    e1 /= np.linalg.norm(e1, axis=1, keepdims=True)
+    e2 = np.cross(vh, e1)
+    ang = np.linspace(0, 2 * np.pi, n, endpoint=False)
+    pts = q[:, None] + rho[:, None] * (np.cos(ang)[None, :, None] * e1[:, None] + np.sin(ang)[None, :, None] * e2[:, None])
+    return camera.project(pts.reshape(-1, 3)).reshape(len(X), n, 2)
+
+
+def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float) -> np.ndarray:
+    """Convex hull (M, 2) px of the silhouette of a sphere swept along a segment (table frame)."""
+    k = 1 + 2 * int(math.ceil(half / (0.5 * R)))
+    s = np.linspace(-half, half, k)
+    cen = np.column_stack([x + s * math.cos(heading), y + s * math.sin(heading), np.full(k, R)])
+    pts = sphere_outline_px(camera, cen, R, 32).reshape(-1, 2)
+    if k == 1:
+        return pts
+    return cv2.convexHull(pts.astype(np.float32)).reshape(-1, 2).astype(float)
+
+
+def _ray_polygon(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarray:
+    """Distance from ``c`` along each (K, 2) unit direction to the boundary of the convex (or
+    star-shaped about c) polygon (M, 2); the farthest crossing, NaN if none."""
+    p0 = poly
+    p1 = np.roll(poly, -1, axis=0)
+    e = p1 - p0  # (M, 2)
+    w = p0 - c  # (M, 2)
+    # Solve c + t d = p0 + s e for t, s: cross products in 2-D.
+    den = dirs[:, None, 0] * e[None, :, 1] - dirs[:, None, 1] * e[None, :, 0]  # d x e
+    t = (w[None, :, 0] * e[None, :, 1] - w[None, :, 1] * e[None, :, 0]) / np.where(np.abs(den) < 1e-12, np.nan, den)
+    s = (w[None, :, 0] * dirs[:, None, 1] - w[None, :, 1] * dirs[:, None, 0]) / np.where(np.abs(den) < 1e-12, np.nan, den)
+    ok = (s >= -1e-9) & (s <= 1 + 1e-9) & (t > 0)
+    t = np.where(ok, t, np.nan)
+    with np.errstate(all="ignore"):
+        out = np.nanmax(np.where(np.isnan(t), -np.inf, t), axis=1)
+    out[~np.isfinite(out)] = np.nan
+    return out
+
+
+def _residuals(P: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool) -> np.ndarray:
+    """Distance (mm) of each grazing ray (origin C, unit directions d (K, 3)) from the ball's
+    centre (R above the cloth), or from the segment it swept, minus the outline radius
+    ``R - bias``: zero when the ray is tangent. ``P`` is (M, 3) rows (x, y, bias) or (M, 5) rows
+    (x, y, bias, half length, heading), evaluated together (the Jacobian's finite differences
+    are one call); ``bias`` (mm) absorbs the inward shift of the found outline where the
+    sphere's shading darkens toward its limb (symmetric, so it does not move the centre). A last
+    residual per row holds the bias to its prior, N(0, ``_BIAS_SIGMA_MM``). Returns (M, K + 1).
+    """
+    P = np.atleast_2d(np.asarray(P, float))
+    M = len(P)
+    w = np.column_stack([P[:, 0] - C[0], P[:, 1] - C[1], np.full(M, R - C[2])])  # (M, 3)
+    # w x d for every row and ray, written out: np.cross is slow on small arrays.
+    wxd = np.stack(
+        [
+            w[:, None, 1] * d[None, :, 2] - w[:, None, 2] * d[None, :, 1],
+            w[:, None, 2] * d[None, :, 0] - w[:, None, 0] * d[None, :, 2],
+            w[:, None, 0] * d[None, :, 1] - w[:, None, 1] * d[None, :, 0],
+        ],
+        axis=2,
+    )  # (M, K, 3)
+    if capsule:
+        half = np.maximum(P[:, 3], 0.0)[:, None]
+        ex, ey = np.cos(P[:, 4])[:, None], np.sin(P[:, 4])[:, None]
+        # e x d with e = (ex, ey, 0).
+        exd = np.stack([ey * d[None, :, 2], -ex * d[None, :, 2], ex * d[None, :, 1] - ey * d[None, :, 0]], axis=2)
+        den = np.maximum(np.sum(exd * exd, axis=2), 1e-12)
+        s = np.clip(-np.sum(wxd * exd, axis=2) / den, -half, half)
+        wxd = wxd + s[..., None] * exd
+    dist = np.sqrt(np.sum(wxd * wxd, axis=2))
+    return np.concatenate([dist - (R - P[:, 2:3]), P[:, 2:3] / _BIAS_SIGMA_MM], axis=1)
+
+
+def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
+    """Levenberg-Marquardt (Marquardt 1963) with Tukey biweight weights (Holland & Welsch 1977,
+    tuning constant 4.685 robust sigmas) on the ray residuals; the bias prior keeps weight 1.
+    The Jacobian is by forward differences, all parameters in one :func:`_residuals` call.
+    Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y (2, 2) mm^2)."""
+    p = np.array(p0, float)
+    n = len(p)
+    steps = np.array([0.05, 0.05, 0.05, 0.05, 1e-3])[:n]
+    lam = 1e-3
+    K = len(d)
+
+    def clamp(q):
+        q[..., 2] = np.clip(q[..., 2], -0.3 * R, 0.3 * R)
+        if capsule:
+            q[..., 3] = np.clip(q[..., 3], 0.0, 400.0)
+        return q
+
+    def jac(p):
+        Q = np.vstack([p, p + np.diag(steps)])
+        rr = _residuals(Q, C, d, R, capsule)
+        return rr[0], ((rr[1:] - rr[0]) / steps[:, None]).T
+
+    r, J = jac(p)
+    wts = np.ones(K + 1)
+    for _ in range(iters):
+        scale = max(1.4826 * float(np.median(np.abs(r[:K]))), 0.2)
+        u = r[:K] / (4.685 * scale)
+        wts[:K] = np.where(np.abs(u) < 1, (1 - u * u) ** 2, 0.0)
+        JW = J * wts[:, None]
+        A = JW.T @ J
+        g = JW.T @ r
+        cost = float(np.sum(wts * r * r))
+        # Candidate steps for a ladder of damping values, evaluated in one call.
+        lams = lam * 8.0 ** np.arange(4)
+        D = np.diag(np.diag(A) + 1e-6)
+        deltas = np.array([np.linalg.solve(A + lm * D, -g) for lm in lams])
+        Q = clamp(p[None] + deltas)
+        RQ = _residuals(Q, C, d, R, capsule)
+        costs = np.sum(wts[None] * RQ * RQ, axis=1)
+        ok = np.nonzero(costs <= cost)[0]
+        if len(ok) == 0:
+            break
+        k = int(ok[0])
+        p = Q[k]
+        lam = max(lams[k] / 5, 1e-6)
+        r, J = jac(p)
+        if np.max(np.abs(deltas[k, :2])) < 0.005:
+            break
+    A = (J * wts[:, None]).T @ J
+    good = wts[:K] > 0
+    dof = max(int(good.sum()) - n, 1)
+    s2 = float(np.sum(wts[:K] * r[:K] ** 2)) / dof
+    cov = np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
+    return p, r[:K], wts[:K], cov
+
+
+def _fit_rms(result) -> float:
+    """RMS (mm) of the agreeing rays' residuals (Tukey weight above 0.2) of a fit result."""
+    res, wts = result[1], result[2]
+    inl = wts > 0.2
+    return float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
+
+
+def _row_median(a: np.ndarray) -> np.ndarray:
+    """Median of each row of a 2-D array ignoring NaN (NaN for an all-NaN row); sorting puts
+    NaN last, so the median is read at half each row's count without ``np.nanmedian``'s loop."""
+    srt = np.sort(a, axis=1)
+    cnt = np.sum(~np.isnan(a), axis=1)
+    lo = np.clip((cnt - 1) // 2, 0, a.shape[1] - 1)
+    hi = np.clip(cnt // 2, 0, a.shape[1] - 1)
+    rows = np.arange(len(a))
+    out = 0.5 * (srt[rows, lo] + srt[rows, hi])
+    out[cnt == 0] = np.nan
+    return out
+
+
+# --- the detector ----------------------------------------------------------------------------
+class BallDetector:
+    """Streaming ball detector for one clip from one fixed camera.
+
+    ``process(frame_index, t_s, image)`` takes the frames in order and returns that frame's
+    detections (:data:`COLUMNS`); the first frame also builds the background. Configuration is
+    one frozen :class:`DetectConfig`; the detector holds the background and the previous
+    detections as its only state.
+    """
+
+    def __init__(self, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig()):
+        self.camera, self.table, self.config = camera, table, config
+        w, h = camera.image_size
+        self.size = (w, h)
+        self.R = table.radius_mm
+        self.zone = ball_zone(camera, table)
+        self.cloth = cloth_zone(camera, table)
+        if not self.zone.any():
+            raise ValueError("the table is nowhere in the camera's view; check the calibration (camera pose)")
+        # Ball diameter in pixels at the middle of the table, for scales.
+        mid = np.array([[table.length_mm / 2, table.width_mm / 2, self.R]])
+        out = sphere_outline_px(camera, mid, self.R)[0]
+        self.ball_px = float(2 * np.mean(np.linalg.norm(out - camera.project(mid)[0], axis=1)))
+        # Smallest apparent radius over the table, for the distance-transform seeds.
+        corners = np.array([[0, 0, self.R], [table.length_mm, 0, self.R], [table.length_mm, table.width_mm, self.R], [0, table.width_mm, self.R], mid[0]])
+        outs = sphere_outline_px(camera, corners, self.R)
+        cen = camera.project(corners)
+        rad = np.linalg.norm(outs - cen[:, None], axis=2)
+        self.r_min_px = float(rad.min())
+        self.r_max_px = float(rad.max())
+        self.background: Background | None = None
+        self._ref_small: np.ndarray | None = None
+        self._prev = empty_detections()
+        self._since_update = 0.0
+        self._last_t: float | None = None
+        self._white_v: float | None = None
+        cs = int(config.cell_px)
+        self._small_size = (max(w // cs, 1), max(h // cs, 1))
+        self._zone_small = cv2.resize(self.zone.astype(np.uint8), self._small_size, interpolation=cv2.INTER_NEAREST) > 0
+        # Zone border: pixels of the zone next to its outside (where arms and cues come in).
+        self._zone_edge = self.zone & ~cv2.erode(self.zone.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
+
+    # -- per frame --
+    def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
+        """Detections in one frame (a new DataFrame; the image is not modified)."""
+        img = np.asarray(image)
+        w, h = self.size
+        if img.shape != (h, w, 3) or img.dtype != np.uint8:
+            raise ValueError(f"frame {frame_index} is {img.shape} {img.dtype}; the camera expects ({h}, {w}, 3) uint8 BGR")
+        small = cv2.resize(img, self._small_size, interpolation=cv2.INTER_AREA).astype(np.float32)
+        if self.background is None:
+            self.background = Background([img], self.zone, self.cloth, self.ball_px, self.config.background)
+            norm = np.linalg.norm(self.background.image[self.cloth], axis=1)
+            self._b_norm = float(np.median(norm)) if norm.size else 100.0
+            changed = self._zone_small.copy()
+            self._ref_small = small
+        else:
+            diff = np.abs(small - self._ref_small).max(axis=2)
+            changed = (diff > self.config.change_dn) & self._zone_small
+        dt = 0.0 if self._last_t is None else max(t_s - self._last_t, 0.0)
+        self._last_t = t_s
+        if changed.any():
+            det = self._process_changed(img, changed)
+            self._ref_small[changed] = small[changed]
+        else:
+            det = self._prev
+        self._since_update += dt
+        if self._since_update >= self.config.update_every_s:
+            self._since_update = 0.0
+            self.background.update(img, self._protect_mask(det))
+        self._prev = det
+        out = det.copy()
+        out["frame"] = np.int64(frame_index)
+        out["t"] = float(t_s)
+        return out[COLUMNS].reset_index(drop=True)
+
+    @property
+    def _score_thr(self) -> float:
+        """Ball-score threshold: ``fg_sigmas`` noise sigmas of the chromaticity distortion
+        (sigma x sqrt(2) over the cloth's brightness), at least ``fg_min_score``."""
+        return max(self.config.fg_sigmas * self.background.sigma * math.sqrt(2) / max(self._b_norm, 30.0), self.config.fg_min_score)
+
+    def _protect_mask(self, det: pd.DataFrame) -> np.ndarray:
+        w, h = self.size
+        m = np.zeros((h, w), np.uint8)
+        travel = np.hypot(det["blur_x"].to_numpy(float), det["blur_y"].to_numpy(float))
+        rads = np.ceil(1.6 * self.r_max_px + travel * self.ball_px / (2 * self.R)).astype(int)
+        for u, v, rad in zip(np.round(det["u"].to_numpy(float)).astype(int), np.round(det["v"].to_numpy(float)).astype(int), rads):
+            cv2.circle(m, (int(u), int(v)), int(rad), 1, -1)
+        return m.astype(bool)
+
+    def _process_changed(self, img: np.ndarray, changed: np.ndarray) -> pd.DataFrame:
+        cs = int(self.config.cell_px)
+        grow = int(math.ceil(1.5 * self.r_max_px / cs)) + 1
+        k = cv2.getStructuringElement(cv2.MORPH_RECT, (2 * grow + 1, 2 * grow + 1))
+        region_small = cv2.dilate(changed.astype(np.uint8), k)
+        n, lab, stats, _ = cv2.connectedComponentsWithStats(region_small, connectivity=8)
+        w, h = self.size
+        boxes = []
+        for i in range(1, n):
+            x0, y0, bw, bh = stats[i, :4]
+            boxes.append((max(x0 * cs, 0), max(y0 * cs, 0), min((x0 + bw) * cs, w), min((y0 + bh) * cs, h)))
+        # Earlier detections outside the processed boxes are carried over.
+        prev = self._prev
+        inside = np.zeros(len(prev), bool)
+        if len(prev) and boxes:
+            bx = np.array(boxes, float)  # (nb, 4) u0, v0, u1, v1
+            u = prev["u"].to_numpy(float)[:, None]
+            v = prev["v"].to_numpy(float)[:, None]
+            inside = np.any((bx[None, :, 0] <= u) & (u < bx[None, :, 2]) & (bx[None, :, 1] <= v) & (v < bx[None, :, 3]), axis=1)
+        rows = prev[~inside].to_dict("records")
+        for b in boxes:
+            rows += self._detect_box(img, b)
+        rows = self._dedupe(rows)
+        if not rows:
+            return empty_detections()
+        return pd.DataFrame(rows, columns=COLUMNS)
+
+    def _dedupe(self, rows: list[dict]) -> list[dict]:
+        rows = sorted(rows, key=lambda r: -r["quality"])
+        out = []
+        for r in rows:
+            if all(math.hypot(r["x"] - o["x"], r["y"] - o["y"]) > 1.2 * self.R for o in out):
+                out.append(r)
+        return out
+
+    # -- candidates in a box --
+    def _detect_box(self, img: np.ndarray, box) -> list[dict]:
+        u0, v0, u1, v1 = box
+        bg = self.background
+        score = ballness(img[v0:v1, u0:u1], bg.image[v0:v1, u0:u1])
+        zone = self.zone[v0:v1, u0:u1]
+        fg = ((score > self._score_thr) & zone).astype(np.uint8)
+        fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        n, lab, stats, cents = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        edge = self._zone_edge[v0:v1, u0:u1]
+        seeds = []
+        area_min = math.pi * self.r_min_px**2
+        for i in range(1, n):
+            a = stats[i, cv2.CC_STAT_AREA]
+            if a < 0.3 * area_min:
+                continue
+            bx, by, bw, bh = stats[i, :4]
+            comp = (lab[by : by + bh, bx : bx + bw] == i).astype(np.uint8)
+            occluder = bool(np.any(edge[by : by + bh, bx : bx + bw] & (comp > 0)))
+            ys, xs = np.nonzero(comp)
+            pts = np.column_stack([xs + bx + u0, ys + by + v0]).astype(float)
+            seeds += self._seeds_of(comp, pts, (bx + u0, by + v0), occluder)
+        rows = []
+        for s in seeds:
+            r = self._fit_seed(img, s)
+            if r is not None:
+                rows.append(r)
+        return rows
+
+    def _seeds_of(self, comp: np.ndarray, pts: np.ndarray, origin, occluder: bool) -> list[dict]:
+        """Seeds (image centre, half streak px along a unit axis, strict flag) of one component."""
+        a = len(pts)
+        cen = pts.mean(axis=0)
+        X = self.camera.backproject(cen[None], self.R)[0]
+        r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16)[0] - self.camera.project(X[None])[0], axis=1)))
+        area_ball = math.pi * r_loc**2
+        if not occluder and a <= 6 * area_ball:
+            cov = np.cov((pts - cen).T) if a > 2 else np.eye(2)
+            evals, evecs = np.linalg.eigh(cov)
+            axis = evecs[:, 1]
+            proj = (pts - cen) @ axis
+            perp = (pts - cen) @ evecs[:, 0]
+            half_len = (proj.max() - proj.min() + 1) / 2
+            half_wid = (perp.max() - perp.min() + 1) / 2
+            hull = cv2.convexHull(pts.astype(np.float32))
+            solidity = a / max(cv2.contourArea(hull), 1.0)
+            if half_wid <= 1.35 * r_loc and solidity >= 0.9:
+                if half_len > 1.5 * r_loc and half_len < 2.6 * r_loc:
+                    # Two touching balls or one blurred ball? A sphere swept along a segment
+                    # is widest at the middle of its streak (every point there is covered
+                    # longest); two spheres pinch to a waist where they touch. Width profile
+                    # across the principal axis, in 1 px bins along it.
+                    bins = np.round(proj - proj.min()).astype(int)
+                    width = np.bincount(bins).astype(float)
+                    mid = int(round(-proj.min()))
+                    waist = width[max(mid - 1, 0) : mid + 2].mean()
+                    if waist < 0.8 * width.max():
+                        off = (half_len - r_loc) * axis
+                        return [
+                            {"uv": cen - off, "axis": axis, "half_px": 0.0, "strict": False},
+                            {"uv": cen + off, "axis": axis, "half_px": 0.0, "strict": False},
+                        ]
+                return [{"uv": cen, "axis": axis, "half_px": max(half_len - r_loc, 0.0), "strict": False}]
+        # Distance-transform peaks: one per ball of a touching group.
+        dtm = cv2.distanceTransform(comp, cv2.DIST_L2, 5)
+        floor = (0.8 if occluder else 0.65) * self.r_min_px
+        peaks = (dtm >= floor) & (dtm >= cv2.dilate(dtm, np.ones((3, 3), np.uint8)) - 1e-3)
+        ys, xs = np.nonzero(peaks)
+        order = np.argsort(-dtm[ys, xs])
+        chosen = []
+        for j in order:
+            p = np.array([xs[j] + origin[0], ys[j] + origin[1]], float)
+            if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen):
+                chosen.append(p)
+        return [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": occluder} for p in chosen]
+
+    # -- outline and fit --
+    def _edges(self, img: np.ndarray, c: np.ndarray, rho_pred: np.ndarray, half_win: float, dirs: np.ndarray):
+        """Outline points (K, 2) px (NaN where none) along rays from ``c``.
+
+        Along each ray the colour distance D = |I - I_out| / |B| from the colour I_out just outside
+        the predicted outline (the frame's own cloth or shadow there) is sampled from
+        half the predicted outline radius outward; the outline is where D first falls below half
+        its median over 0.5..0.8 of that radius (the half-coverage level of a blurred step, as an
+        anti-aliased and optically blurred edge of any contrast crosses it at the true edge),
+        linearly interpolated. Cast shadows (dimmed cloth) stay below the half level of a ball.
+        """
+        K = len(dirs)
+        lo = 0.5 * rho_pred
+        hi = rho_pred + half_win
+        nstep = int(math.ceil(float(np.max(hi - lo)) / _STEP_PX)) + 1
+        t = np.arange(nstep) * _STEP_PX
+        rho = lo[:, None] + t[None, :]
+        mx = (c[0] + rho * dirs[:, 0:1]).astype(np.float32)
+        my = (c[1] + rho * dirs[:, 1:2]).astype(np.float32)
+        prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        bprof = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        # Reference colour: the frame itself just outside the predicted outline (the last
+        # samples of each ray), so an imperfect background under a resting ball does not matter.
+        ref = np.median(prof[:, -5:], axis=1)
+        D = np.linalg.norm(prof - ref[:, None], axis=2) / np.maximum(np.linalg.norm(bprof, axis=2), 30.0)
+        inner_sel = rho <= 0.8 * rho_pred[:, None]
+        inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
+        # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
+        # above a cast shadow's dimming) marks the outline; its level is half the ball's value
+        # 1.5 px further in, so a stripe's band at the rim sets its own level.
+        idx = np.arange(nstep)
+        start = rho >= (rho_pred - half_win)[:, None]
+        on = (D > 0.4 * inner[:, None]) & start
+        has = on.any(axis=1)
+        k_out = nstep - 1 - np.argmax(on[:, ::-1], axis=1)
+        back = int(round(1.5 / _STEP_PX))
+        lo_k = np.clip(k_out - back, 0, nstep - 1)
+        local = np.max(np.where((idx[None, :] >= lo_k[:, None]) & (idx[None, :] <= k_out[:, None]), D, 0.0), axis=1)
+        level = 0.5 * local
+        after = (idx[None, :] >= lo_k[:, None]) & (D < level[:, None])
+        has &= after.any(axis=1)
+        j = np.argmax(after, axis=1)
+        jj = np.clip(j, 1, nstep - 1)
+        d0 = D[np.arange(K), jj - 1]
+        d1 = D[np.arange(K), jj]
+        frac = np.clip((d0 - level) / np.maximum(d0 - d1, 1e-6), 0.0, 1.0)
+        r_edge = rho[np.arange(K), jj - 1] + frac * _STEP_PX
+        ok = has & (j > 0) & (inner > 2 * self._score_thr) & (d0 >= level) & (k_out < nstep - 3)
+        pts = c[None] + r_edge[:, None] * dirs
+        pts[~ok] = np.nan
+        return pts
+
+    def _edges_local(self, img: np.ndarray, c: np.ndarray, rho_pred: np.ndarray, dirs: np.ndarray) -> np.ndarray:
+        """Sub-pixel outline points (K, 2) px (NaN where none) near a predicted silhouette.
+
+        Along each ray, within ``_LOCAL_REACH_PX`` of the predicted outline radius ``rho_pred``
+        (K,), the frame's colour is taken as a mixture of the ball's rim colour P (the mean of
+        the frame 1.75..2.75 px inside) and the surface just outside S (1.75..2.75 px outside,
+        cloth or the ball's own cast shadow, so a shadow sets the reference instead of biasing
+        the edge): the mixing share ``alpha = (I - S).(P - S) / |P - S|^2`` is the ball's
+        coverage of each sample, linear in it for a box-filtered edge, and the outline is where
+        it crosses 1/2 (common practice: the half-coverage point of a blurred step is the edge
+        for any symmetric point-spread function), linearly interpolated, nearest the
+        prediction. Rays whose rim contrast |P - S| is below ``local_min_sigmas`` noise sigmas
+        (a dark band against shadow) give NaN. Because P and S are local, the white cap and the
+        coloured band of a striped ball each set their own level.
+        """
+        off = np.arange(-_LOCAL_REACH_PX, _LOCAL_REACH_PX + 1e-9, _STEP_PX)
+        rho = np.maximum(rho_pred[:, None] + off[None, :], 0.0)
+        mx = (c[0] + rho * dirs[:, 0:1]).astype(np.float32)
+        my = (c[1] + rho * dirs[:, 1:2]).astype(np.float32)
+        prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        inner = (off >= -2.75) & (off <= -1.75)
+        outer = (off >= 1.75) & (off <= 2.75)
+        P = prof[:, inner].mean(axis=1)
+        S = prof[:, outer].mean(axis=1)
+        ps = P - S
+        n2 = np.sum(ps * ps, axis=1)
+        alpha = np.sum((prof - S[:, None]) * ps[:, None], axis=2) / np.maximum(n2, 1e-6)[:, None]
+        a0, a1 = alpha[:, :-1], alpha[:, 1:]
+        cross = (a0 >= 0.5) & (a1 < 0.5)
+        pos = off[None, :-1] + _STEP_PX * (a0 - 0.5) / np.where(cross, a0 - a1, 1.0)
+        pos = np.where(cross, pos, np.inf)
+        j = np.argmin(np.abs(pos), axis=1)
+        edge = pos[np.arange(len(pos)), j]
+        noise = max(self.background.sigma, 0.5) * math.sqrt(3)
+        ok = np.isfinite(edge) & (np.sqrt(n2) > self.config.local_min_sigmas * noise)
+        pts = c[None] + (rho_pred + np.where(ok, edge, 0.0))[:, None] * dirs
+        pts[~ok] = np.nan
+        return pts
+
+    def _fit_seed(self, img: np.ndarray, seed: dict) -> dict | None:
+        cam, R = self.camera, self.R
+        X = cam.backproject(seed["uv"][None], R)[0]
+        half_mm, heading = 0.0, 0.0
+        if seed["half_px"] > 0:
+            tip = cam.backproject((seed["uv"] + seed["axis"] * max(seed["half_px"], 1.0))[None], R)[0]
+            heading = math.atan2(tip[1] - X[1], tip[0] - X[0])
+            px_mm = math.hypot(tip[0] - X[0], tip[1] - X[1]) / max(seed["half_px"], 1.0)
+            half_mm = seed["half_px"] * px_mm
+        capsule = half_mm > 0.15 * R
+        p = np.array([X[0], X[1], 0.0, half_mm, heading]) if capsule else np.array([X[0], X[1], 0.0])
+        ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
+        dirs = np.column_stack([np.cos(ang), np.sin(ang)])
+        r_px = self.ball_px / 2
+        result = None
+        # Two rounds of the coarse outline, then (for a sharp ball) two of the local two-colour
+        # edge, each round searching round the previous fit's predicted silhouette.
+        prev_xy = None
+        coarse = None
+        for rnd, win in enumerate((0.45, 0.25) + (None,) * _LOCAL_ROUNDS):
+            if win is None and capsule:
+                break
+            if win is None and prev_xy is not None and math.hypot(p[0] - prev_xy[0], p[1] - prev_xy[1]) < 0.05:
+                break  # the local edge has converged
+            prev_xy = (p[0], p[1]) if win is None else None
+            half = p[3] if capsule else 0.0
+            hd = p[4] if capsule else 0.0
+            poly = _swept_outline_px(cam, p[0], p[1], half, hd, R)
+            c = cam.project(np.array([[p[0], p[1], R]]))[0]
+            if not np.all(np.isfinite(c)):
+                return None
+            rho = _ray_polygon(c, dirs, poly)
+            if np.any(~np.isfinite(rho)):
+                return None
+            r_loc = float(np.median(rho)) if not capsule else r_px
+            if win is None:
+                pts = self._edges_local(img, c, rho, dirs)
+            else:
+                pts = self._edges(img, c, rho, win * r_loc, dirs)
+            good = np.all(np.isfinite(pts), axis=1)
+            if good.sum() < self.config.min_inlier_share * _N_RAYS:
+                if win is None and result is not None:
+                    break  # keep the coarse fit: the rim is too faint for the local edge
+                return None
+            d = cam.rays(pts[good])
+            p, res, wts, cov = _robust_fit(p, cam.centre_mm, d, R, capsule)
+            if capsule and p[3] < _MIN_HALF_STREAK_R * R:
+                capsule = False
+                p = p[:3]
+                p, res, wts, cov = _robust_fit(p, cam.centre_mm, d, R, capsule)
+            result = (p, res, wts, cov, good, capsule)
+            if win is not None:
+                coarse = result
+        if result is not coarse and _fit_rms(result) > max(1.5 * _fit_rms(coarse), 1.0):
+            # The local edge disagrees with the sphere (a rim that fades into its own shadow):
+            # keep the coarse outline's fit.
+            result = coarse
+        p, res, wts, cov, good, capsule = result
+        inl = wts > 0.2
+        share = inl.sum() / _N_RAYS
+        rms = float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
+        max_rms = self.config.max_rms_mm * (2.0 if capsule else 1.0)
+        log.debug("fit at %.1f, %.1f: share %.2f rms %.2f mm bias %.2f mm", p[0], p[1], share, rms, p[2])
+        if share < self.config.min_inlier_share or rms > max_rms:
+            return None
+        # Angular coverage: the largest gap between agreeing rays.
+        angs = ang[good][inl]
+        gaps = np.diff(np.sort(np.append(angs, angs.min() + 2 * np.pi)))
+        if gaps.max() > (math.radians(150) if seed["strict"] else math.radians(200)):
+            return None
+        half = float(p[3]) if capsule else 0.0
+        if half > self.config.max_half_travel_mm:
+            return None
+        x, y = float(p[0]), float(p[1])
+        if not self._on_table(x, y):
+            return None
+        uv = cam.project(np.array([[x, y, R]]))[0]
+        if seed["strict"] and not self._isolated(img, uv):
+            return None
+        hd = float(p[4]) if capsule else 0.0
+        travel = 2 * half + 2 * R if capsule else 0.0
+        colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
+        sig = float(math.sqrt(max(np.trace(cov) / 2, 0.0)))
+        sig = max(sig, 0.15) + (0.1 * half if capsule else 0.0)
+        quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
+        return {
+            "frame": 0,
+            "t": 0.0,
+            "x": x,
+            "y": y,
+            "u": float(uv[0]),
+            "v": float(uv[1]),
+            "quality": quality,
+            "colour": colour,
+            "pattern": pattern,
+            "blur_x": travel * math.cos(hd),
+            "blur_y": travel * math.sin(hd),
+            "sigma_mm": sig,
+        }
+
+    def _on_table(self, x: float, y: float) -> bool:
+        """A centre can lie no farther out than the reversal line (a few mm of calibration slack),
+        except in a pocket's mouth, where a dropping ball may reach half a ball past the nose."""
+        t = self.table
+        slack = 12.0
+        d = t.reversal_offset_mm - slack
+        if d <= x <= t.length_mm - d and d <= y <= t.width_mm - d:
+            return True
+        for pk in t.pockets():
+            mx, my = pk.mouth_centre
+            if math.hypot(x - mx, y - my) < 0.5 * pk.mouth_mm:
+                out = max(-x, x - t.length_mm, -y, y - t.width_mm)
+                return out < 0.5 * self.R
+        return False
+
+    def _isolated(self, img: np.ndarray, uv: np.ndarray) -> bool:
+        """For seeds inside an arm or cue component: at least 55 % of a ring 1.4 ball radii from
+        the centre must be background, as round a ball lying next to the cue."""
+        r = 1.4 * self.ball_px / 2
+        a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
+        mx = (uv[0] + r * np.cos(a)).astype(np.float32)[None]
+        my = (uv[1] + r * np.sin(a)).astype(np.float32)[None]
+        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)[0]
+        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
+        return float(np.mean(ballness(f, b) < self._score_thr)) >= 0.55
+
+    def _identity(self, img: np.ndarray, uv: np.ndarray, r_px: float) -> tuple[str, str]:
+        """Colour label and pattern from the pixels inside 0.88 of the ball's image radius
+        ``r_px`` (the outer rim is kept: seen from above, a stripe's band lies round the rim).
+
+        In HSV, pixels are white (low saturation, bright against the ball's brightest), dark,
+        or coloured (saturated and not of the cloth's own hue: rim pixels mixed with the cloth
+        do not count). Shares decide: ``cue`` almost all white and no colour; ``stripe`` a
+        white share and a coloured share together; ``solid`` colour (or black) with little
+        white (the number disc); else ``unknown``. The coloured pixels' median hue picks the
+        label from our own coarse hue bands.
+        """
+        r = 0.88 * r_px
+        u0, v0 = int(math.floor(uv[0] - r)), int(math.floor(uv[1] - r))
+        u1, v1 = int(math.ceil(uv[0] + r)) + 1, int(math.ceil(uv[1] + r)) + 1
+        h, w = img.shape[:2]
+        if u0 < 0 or v0 < 0 or u1 > w or v1 > h:
+            return "", "unknown"
+        patch = img[v0:v1, u0:u1]
+        yy, xx = np.mgrid[v0:v1, u0:u1]
+        inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
+        hsv = cv2.cvtColor(patch, cv2.COLOR_BGR2HSV)[inside].astype(float)
+        if len(hsv) < 12:
+            return "", "unknown"
+        cloth = self.background.image[int(round(uv[1])), int(round(uv[0]))]
+        ch, cs, _ = cv2.cvtColor(np.clip(cloth, 0, 255).astype(np.uint8)[None, None], cv2.COLOR_BGR2HSV)[0, 0].astype(float)
+        H, S, V = hsv[:, 0], hsv[:, 1], hsv[:, 2]
+        v_hi = float(np.percentile(V, 95))
+        white = (S < 70) & (V > 0.55 * v_hi) & (V > 70)
+        dark = (V < 0.35 * max(v_hi, 1.0)) | (V < 45)
+        # Hue distance on OpenCV's 0..180 circle.
+        near_cloth = (cs >= 60) & (np.minimum(np.abs(H - ch), 180 - np.abs(H - ch)) < 10)
+        coloured = (S >= 90) & ~dark & ~white & ~near_cloth
+        # Tinted: any visible saturation off the cloth's hue (a dark band at the rim, shaded
+        # toward the limb, keeps only part of its saturation).
+        tinted = (S >= 50) & ~white & ~near_cloth
+        fw, fc, fd, ft = white.mean(), coloured.mean(), dark.mean(), tinted.mean()
+        if fw > 0.85 and ft < 0.03 and fd < 0.03:
+            self._white_v = float(np.median(V[white]))
+            return "white", "cue"
+        if fd > 0.55 and fc < 0.25:
+            return "black", "solid"
+        if fc < 0.04:
+            return "", ("stripe" if fw >= 0.5 else "unknown")
+        hue = float(np.median(H[coloured]))
+        # Red wraps round 0/180 in OpenCV's half-degree hue: take the circular median's side.
+        if np.mean((H[coloured] >= 160) | (H[coloured] < 8)) > 0.5:
+            hue = 0.0
+        vcol = float(np.median(V[coloured]))
+        if hue < 8 or hue >= 160:
+            ref = self._white_v if self._white_v else None
+            colour = "" if ref is None else ("maroon" if vcol < 0.6 * ref else "red")
+        elif hue < 17:
+            colour = "orange"
+        elif hue < 35:
+            colour = "yellow"
+        elif hue < 90:
+            colour = "green"
+        elif hue < 128:
+            colour = "blue"
+        else:
+            colour = "purple"
+        if fw >= 0.25:
+            pattern = "stripe"
+        elif fc >= 0.3:
+            pattern = "solid"
+        else:
+            pattern = "unknown"
+        return colour, pattern
+
+
+def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig()) -> pd.DataFrame:
+    """Detections (:data:`COLUMNS`) in every frame of the clip at ``path``, streamed (the clip is
+    never held in memory); frame times are the container's presentation times."""
+    det = BallDetector(camera, table, config)
+    parts = [det.process(i, t, img) for i, t, img in iter_frames(path)]
+    parts = [p for p in parts if len(p)]
+    if not parts:
+        return empty_detections()
+    return pd.concat(parts, ignore_index=True)
