@@ -1,6 +1,10 @@
 """railtrace: measure bank shots, ball paths and cushion liveliness from overhead video.
 
 Commands:
+  analyse CLIP --out DIR             calibrate, detect, track and time every event of a clip;
+                                     writes tracks.csv, events.csv, shots.csv, calibration.json
+  calibrate CLIP                     find the camera from the clip; writes calibration.json and a
+                                     check image
   render SCENE.toml --out CLIP.mp4   film a scene file (simulated balls, rendered camera) and
                                      write its truth folder beside the clip
 """
@@ -13,7 +17,7 @@ import sys
 import time
 from pathlib import Path
 
-from railtrace import __version__
+from railtrace import __version__, calibrate_cmd
 
 EPILOG = "Run 'railtrace COMMAND --help' for a command's options. Lengths are mm, times seconds."
 
@@ -27,6 +31,26 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"railtrace {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    analyse = sub.add_parser(
+        "analyse",
+        help="calibrate, detect and track every ball of a clip and time every event",
+        description=(
+            "Analyse a clip from a fixed overhead camera: calibrate the camera from the clip (or "
+            "use --calibration), detect and track every ball, find every cue strike, collision, "
+            "cushion contact, pocketing and stop. Writes DIR/tracks.csv, events.csv, shots.csv, "
+            "calibration.json, detections.csv and run.json (see the results format in the README)."
+        ),
+    )
+    analyse.add_argument("clip", type=Path, help="video file from the fixed overhead camera")
+    analyse.add_argument("--out", type=Path, required=True, help="results folder to create (must not exist)")
+    analyse.add_argument("--table", default="9ft", help="9ft, 8ft, 7ft or the playing area LxW in mm (default 9ft)")
+    analyse.add_argument("--ball", type=float, default=None, metavar="MM", help="ball diameter, mm (default 57.15)")
+    analyse.add_argument("--calibration", type=Path, default=None, metavar="FILE",
+                         help="calibration.json from 'railtrace calibrate' (else the clip is calibrated itself)")
+    analyse.add_argument("--quiet", action="store_true", help="no progress bar")
+
+    calibrate_cmd.add_parser(sub)
 
     render = sub.add_parser(
         "render",
@@ -57,6 +81,21 @@ def main(argv: list[str] | None = None) -> int:
     except ValueError as exc:
         print(f"railtrace {args.command}: error: {exc}", file=sys.stderr)
         return 2
+
+
+def _cmd_analyse(args: argparse.Namespace) -> int:
+    from railtrace.pipeline import AnalyseConfig, analyse_clip
+    from vision.table import parse_table
+
+    config = AnalyseConfig(table=parse_table(args.table, args.ball), calibration_path=args.calibration)
+    progress = None if args.quiet or not sys.stderr.isatty() else _ProgressBar("analysing")
+    summary = analyse_clip(args.clip, args.out, config, progress=progress)
+    if progress is not None:
+        progress.done()
+    print(summary.text())
+    if summary.shots == 0:
+        print("note: no ball moved in this clip, so there are no shots or events to report")
+    return 0
 
 
 def _cmd_render(args: argparse.Namespace) -> int:
@@ -101,7 +140,7 @@ class _ProgressBar:
         sys.stderr.write("\n")
 
 
-COMMANDS = {"render": _cmd_render}
+COMMANDS = {"analyse": _cmd_analyse, "calibrate": calibrate_cmd.run, "render": _cmd_render}
 
 
 if __name__ == "__main__":

@@ -362,4 +362,12 @@ def truth_shots(
                 "target": target if isinstance(target, str) else (f"{target[0]}:{target[1]:g}" if target else None),
             }
         )
-    return pd.DataFrame(rows)
+    return pd.DataFrame(rows, columns=_TRUTH_SHOT_COLUMNS)
+
+
+_TRUTH_SHOT_COLUMNS = [
+    "shot", "t_start", "t_end", "cue_track", "balls_moved", "cushions", "collisions", "pocketed",
+    "pocketed_tracks", "start_x", "start_y", "speed_set_mm_s", "tip_side", "tip_height", "aim_kind",
+    "aim_rail", "aim_diamond", "aim_x", "aim_y", "aim_ball", "heading_aimed_deg",
+    "heading_actual_deg", "target",
+]

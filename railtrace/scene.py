@@ -228,15 +228,23 @@ def _camera(r: "_Reader", table: TableSpec) -> Camera:
 
 def _look(r: "_Reader") -> Look:
     kwargs: dict[str, Any] = {}
-    for key, attr in (("cloth", "cloth_bgr"), ("rail", "rail_bgr"), ("floor", "floor_bgr")):
+    for key, attr in (
+        ("cloth", "cloth_bgr"), ("cushion", "cushion_bgr"), ("rail", "rail_bgr"), ("floor", "floor_bgr"),
+    ):
         if r.get(key) is not None:
             kwargs[attr] = r.colour(key)
+    if "cloth_bgr" in kwargs and "cushion_bgr" not in kwargs:
+        # Cushions are covered in the bed's cloth; their sloped top reads a little darker.
+        kwargs["cushion_bgr"] = tuple(int(round(0.84 * c)) for c in kwargs["cloth_bgr"])
     for key, attr, lo, hi in (
         ("noise", "noise_sigma", 0.0, 40.0),
         ("exposure", "exposure", 0.05, 5.0),
         ("ambient", "ambient", 0.0, 2.0),
         ("cloth_texture", "cloth_texture", 0.0, 1.0),
         ("vignetting", "vignetting", 0.0, 1.0),
+        ("specular", "specular", 0.0, 10.0),
+        ("blur_px", "blur_px", 0.0, 10.0),
+        ("flicker", "flicker", 0.0, 0.5),
     ):
         if r.get(key) is not None:
             kwargs[attr] = r.number(key, 0.0, lo, hi)
@@ -247,6 +255,7 @@ def _look(r: "_Reader") -> Look:
         ):
             raise SceneError("look.lamps must be a list of [x, y, z] positions in mm")
         kwargs["lamps"] = tuple(Lamp((float(a), float(b), float(c))) for a, b, c in lamps)
+    kwargs["texture_seed"] = int(r.number("texture_seed", 0, 0, 2**31))
     return Look(**kwargs)
 
 
