@@ -5,6 +5,8 @@ Commands:
                                      writes tracks.csv, events.csv, shots.csv, calibration.json
   calibrate CLIP                     find the camera from the clip; writes calibration.json and a
                                      check image
+  cushions DIR... [--before DIR...]  check each cushion's liveliness from analysed clips of one
+                                     table; writes cushions.csv and a rail map
   render SCENE.toml --out CLIP.mp4   film a scene file (simulated balls, rendered camera) and
                                      write its truth folder beside the clip
 """
@@ -17,7 +19,7 @@ import sys
 import time
 from pathlib import Path
 
-from railtrace import __version__, calibrate_cmd
+from railtrace import __version__, calibrate_cmd, cushions_cmd
 
 EPILOG = "Run 'railtrace COMMAND --help' for a command's options. Lengths are mm, times seconds."
 
@@ -51,6 +53,7 @@ def build_parser() -> argparse.ArgumentParser:
     analyse.add_argument("--quiet", action="store_true", help="no progress bar")
 
     calibrate_cmd.add_parser(sub)
+    cushions_cmd.add_parser(sub)
 
     render = sub.add_parser(
         "render",
@@ -140,7 +143,12 @@ class _ProgressBar:
         sys.stderr.write("\n")
 
 
-COMMANDS = {"analyse": _cmd_analyse, "calibrate": calibrate_cmd.run, "render": _cmd_render}
+COMMANDS = {
+    "analyse": _cmd_analyse,
+    "calibrate": calibrate_cmd.run,
+    "cushions": cushions_cmd.run,
+    "render": _cmd_render,
+}
 
 
 if __name__ == "__main__":
