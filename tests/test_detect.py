@@ -92,24 +92,15 @@ def test_resting_balls_found_and_placed(resting):
         assert np.abs(uv - det[["u", "v"]].to_numpy()).max() < 0.5
 
 
-# Not met on the blue cloth: the dark purple band of ball 12 fades into its own cast shadow on
-# one side, and its centre comes out about 8 mm off (see vision/detect.py Limits).
-BLUE_STRIPE_SHORT = pytest.mark.xfail(strict=True, reason="purple stripe on blue cloth placed ~8 mm off: its dark band fades into its shadow")
-
-
-def test_resting_ball_accuracy_meets_acceptance(resting, request):
+def test_resting_ball_accuracy_meets_acceptance(resting):
     name, s, out = resting
-    if name == "blue_low_wide":
-        request.applymarker(BLUE_STRIPE_SHORT)
     err = np.concatenate([_match(d, AT)[0] for d in out])
     # Issue acceptance: resting balls median centre error <= 1 mm, p95 <= 2.5 mm.
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (name, err)
 
 
-def test_resting_balls_within_a_few_mm(resting, request):
+def test_resting_balls_within_a_few_mm(resting):
     name, s, out = resting
-    if name == "blue_low_wide":
-        request.applymarker(BLUE_STRIPE_SHORT)
     err = np.concatenate([_match(d, AT)[0] for d in out])
     # What the detector achieves today (not the acceptance figure): every ball within 5 mm
     # (a fifth of a ball's radius), median within 2.5 mm.
@@ -194,3 +185,119 @@ def test_arm_and_cue_are_not_detected():
         err, _ = _match(out, pos[0])
         extra = len(out) - int(np.isfinite(err).sum())
         assert extra == 0, out
+
+
+CUSHION_SCENE = """
+name = "cushion contacts: a ball rolled into the bottom rail and back, two balls frozen to rails"
+lead_s = 0.1
+tail_s = 0.1
+max_duration_s = 1.3
+seed = 17
+[table]
+preset = "9ft"
+[camera]
+height_mm = 2300
+offset_mm = [-90, 140]
+roll_deg = -1.5
+resolution = [960, 540]
+fps = 60
+shutter_s = 0.002
+distortion = [-0.18, 0.03, 0.0, 0.0, 0.0]
+quality = 20
+[look]
+cloth = "#2f7a4a"
+noise = 2.5
+occluder = false
+[[ball]]
+id = "cue"
+kind = "cue"
+at = [800, 260]
+[[ball]]
+id = "7"
+kind = "solid"
+colour = "#7a2b1a"
+at = [1700, 1241.0]
+[[ball]]
+id = "10"
+kind = "stripe"
+colour = "#1d4fb0"
+at = [2300, 29.0]
+[[shot]]
+ball = "cue"
+aim = { heading_deg = -84.0 }
+speed_mm_s = 1500
+"""
+
+
+@pytest.fixture(scope="module")
+def cushion_clip(tmp_path_factory):
+    """Detections and truth of a filmed clip: the cue ball rolled nearly square into the bottom
+    cushion (contact at about 1.1 m/s) and back; a dark solid frozen against the top cushion and
+    a stripe against the bottom one (their centres on the reversal line, within a mm)."""
+    import tomllib
+
+    from railtrace.filming import film_scene
+    from railtrace.scene import parse_scene
+    from vision.calibfile import read_calibration
+    from vision.detect import detect_clip
+
+    clip = tmp_path_factory.mktemp("cushion") / "cushion.mp4"
+    truth_dir = film_scene(parse_scene(tomllib.loads(CUSHION_SCENE), source_text=CUSHION_SCENE), clip)
+    table, camera, _ = read_calibration(truth_dir / "calibration.json")
+    return detect_clip(clip, camera, table), pd.read_csv(truth_dir / "tracks.csv")
+
+
+def _errors_by_frame(det: pd.DataFrame, truth: pd.DataFrame, label: str) -> pd.DataFrame:
+    rows = []
+    for f, g in truth[truth["label"] == label].groupby("frame"):
+        d = det[det["frame"] == f]
+        err, _ = _match(d, g[["x", "y"]].to_numpy())
+        rows.append((f, float(g["y"].iloc[0]), float(np.hypot(g["vx"].iloc[0], g["vy"].iloc[0])), err[0]))
+    return pd.DataFrame(rows, columns=["frame", "y", "speed", "err"])
+
+
+def test_ball_into_a_cushion_and_back_is_measured_in_every_frame(cushion_clip):
+    det, truth = cushion_clip
+    E = _errors_by_frame(det, truth, "cue")
+    moving = E[E["speed"] > 1.0]
+    near = moving[moving["y"] < 3 * R]  # within a ball and a half of the nose: the contact frames
+    assert len(near) >= 3, near
+    # Issue acceptance for moving balls (median <= 3 mm, p95 <= 8 mm), held here to every single
+    # frame round the contact: one frame off by 8 mm hides the reversal from the event solver.
+    assert np.all(np.isfinite(moving["err"])), moving
+    assert moving["err"].max() <= 8.0 and moving["err"].median() <= 3.0, moving
+    assert near["err"].max() <= 3.0, near
+
+
+@pytest.mark.parametrize("label", ["7", "10"])
+def test_balls_frozen_against_a_cushion_are_found(cushion_clip, label):
+    det, truth = cushion_clip
+    E = _errors_by_frame(det, truth, label)
+    # Found in every frame, within a fifth of a ball's radius (5 mm), as balls in the open are
+    # (test_resting_balls_within_a_few_mm); no streak is reported for a ball at rest.
+    assert np.all(np.isfinite(E["err"])) and E["err"].max() <= 5.0, E.describe()
+
+
+def test_no_false_detections_along_the_cushions(cushion_clip):
+    det, truth = cushion_clip
+    extra = 0
+    for f, d in det.groupby("frame"):
+        g = truth[truth["frame"] == f]
+        q = d[["x", "y"]].to_numpy()
+        dist = np.linalg.norm(q[:, None] - g[["x", "y"]].to_numpy()[None], axis=2).min(axis=1)
+        extra += int(np.sum(dist > R))
+    assert extra == 0, extra
+
+
+def test_ray_map_agrees_with_the_camera():
+    from vision.detect import RayMap
+
+    cam = SETUPS["blue_low_wide"]["camera"]  # the strongest lens here, k1 = -0.3
+    rng = np.random.default_rng(4)
+    w, h = cam.image_size
+    uv = rng.uniform([0.0, 0.0], [w - 1.0, h - 1.0], (4000, 2))
+    # Reference: Camera.backproject (Newton's method on the lens model). Cross-check, two
+    # implementations of one mapping: within 0.02 mm at ball-centre height.
+    got = RayMap(cam).backproject(uv, R)
+    ref = cam.backproject(uv, R)
+    assert np.abs(got - ref).max() < 0.02

@@ -46,10 +46,6 @@ def test_analyse_agrees_with_the_truth(analysed):
     assert s["events"]["collision"]["recall"] == 1.0
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="detection near a cushion is off by 5-10 mm for 2-3 frames, so a slow contact is missed",
-)
 def test_analyse_finds_every_cushion_contact(analysed):
     # Issue target: cushion-contact recall at least 98 % (here: both contacts of the clip).
     out, truth = analysed

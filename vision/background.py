@@ -164,8 +164,10 @@ def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px:
 
     A blob is a connected set of pixels in ``zone`` whose colour distance from the cloth model
     (:func:`cloth_model`) exceeds ``config.blob_sigmas`` sigmas, from about a third of a ball's
-    area up to ``config.max_blob_balls`` balls' area; it is grown by ``fill_margin_radii`` ball
-    radii and filled from its surroundings by Telea inpainting (``cv2.inpaint``).
+    area up to ``config.max_blob_balls`` balls' area (counted without thin strips off the cloth);
+    its part that survives an opening by a disc half a ball across (not the cushion's nose line)
+    is grown by ``fill_margin_radii`` ball radii and filled: off the cloth from the same rail
+    further along (:func:`_fill_along_rails`), on it by Telea inpainting (``cv2.inpaint``).
     """
     img = np.asarray(image)
     model, _ = cloth_model(img, cloth, ball_px, config)
@@ -174,25 +176,82 @@ def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px:
     thr = max(config.blob_sigmas * noise * math.sqrt(3), config.blob_min_dn)
     mask = ((dist > thr) & zone).astype(np.uint8)
     mask = cv2.morphologyEx(mask, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-    n, lab, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+    # Opening by a disc half a ball across keeps balls (and groups of them) whole but removes
+    # thin structures: the cushion nose, its face and the shadow band under it stand out from
+    # the cloth model along every rail, in narrow strips, and are part of the empty table.
+    k = max(3, int(round(0.5 * ball_px)) | 1)
+    core = cv2.morphologyEx(mask, cv2.MORPH_OPEN, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (k, k)))
+    # The size test is on the whole connected blob (an arm with its cue is no ball however it
+    # is opened), counting the cloth and the core but not the thin strips off the cloth, so a
+    # ball frozen against a cushion is not joined to the whole rail's nose line.
+    n, lab = cv2.connectedComponents(mask, connectivity=8)
+    area = np.bincount(lab[(cloth | (core > 0)) & (mask > 0)], minlength=n)
     area_ball = math.pi * (ball_px / 2) ** 2
-    keep = np.zeros(n, bool)
-    for i in range(1, n):
-        a = stats[i, cv2.CC_STAT_AREA]
-        keep[i] = 0.3 * area_ball <= a <= config.max_blob_balls * area_ball
-    fill = keep[lab].astype(np.uint8)
+    keep = (area >= 0.3 * area_ball) & (area <= config.max_blob_balls * area_ball)
+    keep[0] = False
+    fill = (keep[lab] & (core > 0)).astype(np.uint8)
     if fill.any():
         grow = max(1, int(round(config.fill_margin_radii * ball_px / 2)))
         kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * grow + 1, 2 * grow + 1))
         fill = cv2.dilate(fill, kernel)
         radius = max(3.0, ball_px / 6)
-        out = cv2.inpaint(np.clip(img, 0, 255).astype(np.uint8), fill, radius, cv2.INPAINT_TELEA).astype(np.float32)
+        src = np.clip(img, 0, 255).astype(np.uint8)
+        along, got = _fill_along_rails(src, fill.astype(bool), zone, cloth, ball_px)
+        src[got] = along[got]
+        out = cv2.inpaint(src, (fill.astype(bool) & ~got).astype(np.uint8), radius, cv2.INPAINT_TELEA).astype(np.float32)
         # Keep the sub-DN precision of the input outside the filled area.
         keepers = fill == 0
         out[keepers] = img.astype(np.float32)[keepers]
     else:
         out = img.astype(np.float32)
     return out, fill.astype(bool)
+
+
+def _fill_along_rails(img: np.ndarray, fill: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: float) -> tuple[np.ndarray, np.ndarray]:
+    """Fill the pixels of ``fill`` that lie off the cloth (the cushion top, nose and the shadow
+    band under it) from the same rail a little way along it: (filled (H, W, 3) uint8, done (H, W)
+    bool).
+
+    The cushion looks the same all along a rail, so the view of it beside a ball that rests
+    against it is the best guess of what the ball hides; inpainting from the surroundings would
+    instead smear the cloth over the nose line. The direction along the rail is the image
+    tangent of the cloth mask's border (perpendicular to the gradient of the distance from the
+    cloth), which keeps the distance from the nose; samples 1.5 and 2.5 ball diameters either
+    way that are themselves outside ``fill`` and in ``zone`` are averaged. Pixels with no such
+    sample (pocket mouths, image borders) are left to the inpainting.
+    """
+    h, w = fill.shape
+    todo = fill & ~cloth & zone
+    done = np.zeros((h, w), bool)
+    out = img.copy()
+    if not todo.any():
+        return out, done
+    dist = cv2.distanceTransform((~cloth).astype(np.uint8), cv2.DIST_L2, 5)
+    gx = cv2.Sobel(dist, cv2.CV_32F, 1, 0, ksize=5)
+    gy = cv2.Sobel(dist, cv2.CV_32F, 0, 1, ksize=5)
+    vv, uu = np.nonzero(todo)
+    nx, ny = gx[vv, uu], gy[vv, uu]
+    norm = np.hypot(nx, ny)
+    ok = norm > 1e-6
+    tx, ty = np.where(ok, -ny / np.maximum(norm, 1e-6), 0.0), np.where(ok, nx / np.maximum(norm, 1e-6), 0.0)
+    acc = np.zeros((len(vv), 3), np.float32)
+    cnt = np.zeros(len(vv), np.float32)
+    for step in (1.5, -1.5, 2.5, -2.5):
+        su = uu + step * ball_px * tx
+        sv = vv + step * ball_px * ty
+        iu, iv = np.round(su).astype(int), np.round(sv).astype(int)
+        valid = ok & (iu >= 0) & (iu < w) & (iv >= 0) & (iv < h)
+        iu, iv = np.clip(iu, 0, w - 1), np.clip(iv, 0, h - 1)
+        valid &= ~fill[iv, iu] & zone[iv, iu] & ~cloth[iv, iu]
+        # The nearer pair is enough where it is clear; the farther one only fills what it left.
+        valid &= (cnt == 0) | (abs(step) < 2.0)
+        samp = cv2.remap(img, su.astype(np.float32)[None], sv.astype(np.float32)[None], cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
+        acc[valid] += samp[valid].astype(np.float32)
+        cnt[valid] += 1
+    have = cnt > 0
+    out[vv[have], uu[have]] = np.clip(acc[have] / cnt[have, None] + 0.5, 0, 255).astype(np.uint8)
+    done[vv[have], uu[have]] = True
+    return out, done
 
 
 class Background:
@@ -234,12 +293,58 @@ class Background:
         near = (diff <= thr) & free
         cv2.accumulateWeighted(cur, self.image, self.config.update_rate, near.astype(np.uint8))
         still = np.abs(cur - self._last).max(axis=2) <= thr
-        ghost = (diff > thr) & free & still & self.zone
-        if ghost.sum() > 0.25 * math.pi * (self.ball_px / 2) ** 2:
-            cleaned, _ = clean_frame(cur, self.zone, self.cloth, self.ball_px, self.config)
-            cv2.accumulateWeighted(cleaned, self.image, self.config.ghost_rate, ghost.astype(np.uint8))
+        ghost = ((diff > thr) & free & still & self.zone).astype(np.uint8)
+        # Single noisy pixels pass a per-pixel threshold somewhere in a large frame every time;
+        # a ghost is a compact patch, so isolated pixels are opened away first.
+        ghost = cv2.morphologyEx(ghost, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        for box in _patches(ghost, 0.25 * math.pi * (self.ball_px / 2) ** 2, self._context_px()):
+            self._reseed(cur, ghost, box)
         self._last = cur
         resid = (cur - self.image)[near & self.cloth]
         if resid.size > 1000:
             s = 1.4826 * float(np.median(np.abs(resid[:: max(1, len(resid) // 20000)])))
             self.sigma = 0.8 * self.sigma + 0.2 * max(s, 0.5)
+
+    def _context_px(self) -> int:
+        """Margin (px) round a patch to be cleaned: enough cloth for the cloth model's smoothing
+        (``cloth_scale_balls`` ball diameters) and for the inpainting to draw from."""
+        return int(math.ceil((self.config.cloth_scale_balls + 1.0) * self.ball_px))
+
+    def _reseed(self, cur: np.ndarray, ghost: np.ndarray, box: tuple[int, int, int, int]) -> None:
+        """Clean the frame inside ``box`` (u0, v0, u1, v1) only (:func:`clean_frame` on the
+        window: the work scales with the ghost, not with the frame) and blend it into the model
+        at ``ghost_rate`` over the ghost pixels in the box."""
+        u0, v0, u1, v1 = box
+        win = (slice(v0, v1), slice(u0, u1))
+        cleaned, _ = clean_frame(cur[win], self.zone[win], self.cloth[win], self.ball_px, self.config)
+        sub = np.ascontiguousarray(self.image[win])
+        cv2.accumulateWeighted(cleaned, sub, self.config.ghost_rate, np.ascontiguousarray(ghost[win]))
+        self.image[win] = sub
+
+
+def _patches(mask: np.ndarray, min_area: float, margin: int) -> list[tuple[int, int, int, int]]:
+    """Boxes (u0, v0, u1, v1) px round the connected patches of ``mask`` ((H, W) uint8) of at
+    least ``min_area`` pixels, each grown by ``margin`` px and clipped to the image; boxes that
+    then overlap are merged, so no pixel is cleaned twice."""
+    h, w = mask.shape
+    n, _, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+    boxes = []
+    for i in range(1, n):
+        if stats[i, cv2.CC_STAT_AREA] < min_area:
+            continue
+        x, y, bw, bh = stats[i, :4]
+        boxes.append([max(x - margin, 0), max(y - margin, 0), min(x + bw + margin, w), min(y + bh + margin, h)])
+    merged = True
+    while merged and len(boxes) > 1:
+        merged = False
+        for i in range(len(boxes)):
+            for j in range(i + 1, len(boxes)):
+                a, b = boxes[i], boxes[j]
+                if a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]:
+                    boxes[i] = [min(a[0], b[0]), min(a[1], b[1]), max(a[2], b[2]), max(a[3], b[3])]
+                    del boxes[j]
+                    merged = True
+                    break
+            if merged:
+                break
+    return [tuple(int(v) for v in b) for b in boxes]
