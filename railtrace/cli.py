@@ -3,6 +3,8 @@
 Commands:
   analyse CLIP --out DIR             calibrate, detect, track and time every event of a clip;
                                      writes tracks.csv, events.csv, shots.csv, calibration.json
+  banks DIR [--drill FILE] [--chart]  the bank audit of an analysed session: aim error, rebound,
+                                     long/short, per-session statistics, correction, bank chart
   calibrate CLIP                     find the camera from the clip; writes calibration.json and a
                                      check image
   cushions DIR... [--before DIR...]  check each cushion's liveliness from analysed clips of one
@@ -19,7 +21,7 @@ import sys
 import time
 from pathlib import Path
 
-from railtrace import __version__, calibrate_cmd, cushions_cmd
+from railtrace import __version__, banks_cmd, calibrate_cmd, cushions_cmd
 
 EPILOG = "Run 'railtrace COMMAND --help' for a command's options. Lengths are mm, times seconds."
 
@@ -52,6 +54,7 @@ def build_parser() -> argparse.ArgumentParser:
                          help="calibration.json from 'railtrace calibrate' (else the clip is calibrated itself)")
     analyse.add_argument("--quiet", action="store_true", help="no progress bar")
 
+    banks_cmd.add_parser(sub)
     calibrate_cmd.add_parser(sub)
     cushions_cmd.add_parser(sub)
 
@@ -145,6 +148,7 @@ class _ProgressBar:
 
 COMMANDS = {
     "analyse": _cmd_analyse,
+    "banks": banks_cmd.run,
     "calibrate": calibrate_cmd.run,
     "cushions": cushions_cmd.run,
     "render": _cmd_render,

@@ -1,0 +1,396 @@
+"""A bank chart for one table: fit its cushions and cloth to a session, then say where to aim.
+
+Fit (scipy ``least_squares``):
+
+* **cloth**: sliding friction ``mu_slide`` and rolling resistance ``mu_roll`` shared by every
+  straight leg from a ball's launch to its first cushion, each leg with its own launch speed and
+  slip, on the leg's tracked speeds (slide-then-roll law of ``analysis.banks.leg_speed``);
+* **cushion**: a liveliness scale ``s`` on the restitution curve of the Mathavan et al. (2010)
+  model (``e(v) = s * e_default(v)``, the default curve from Mathavan et al. 2009's measured
+  speed ratios [secondary]) and the cushion friction ``mu_cushion``, on every first contact's
+  measured angle out and restitution, given its measured speed and angle in and the slip from its
+  leg. Contacts of balls with side spin stated or unknown (cue-ball kicks without a stated tip)
+  are left out, since side spin is not a table property.
+
+Chart: for starting spots one diamond off each rail and the pockets on that rail, the sight on the
+opposite rail to aim through (ball launched without spin, as an object ball struck full) so the
+ball's centre reaches the pocket's mouth centre, at soft, medium and hard launch speeds, found by
+Brent's method on the signed long/short miss from the fitted model; beside it the mirror rule's
+sight (mirror at the reversal line) and the counting-by-sights answer (mirror at the sights). The
+chart is offered only when the fit is good enough (:class:`ChartConfig`).
+
+Units: mm, s, mm/s inside; diamonds and degrees in the outputs.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import brentq, least_squares
+
+from analysis.banks import (
+    Session, _axis, angle_out_of, ball_path, counting_sight, fit_leg_slip, leg_speed,
+    mirror_sight, model_rebound, spin_after, spin_with_slip, velocity_in,
+)
+from analysis.cushion import CushionParams
+from analysis.physics import PhysicsParams
+from vision.table import TableSpec
+
+
+@dataclass(frozen=True)
+class ChartConfig:
+    """Settings of the fit and the chart.
+
+    ``launch_speeds_mm_s``: soft, medium and hard launch speeds of the chart. ``min_contacts``,
+    ``max_angle_rms_deg``, ``max_e_rms``, ``max_se``: the fit must use at least that many contacts,
+    leave angle and restitution residuals (rms) within these, and give both cushion parameters a
+    standard error within ``max_se``, or no chart is offered. ``spot_depth_diamonds``: how far in
+    from its rail each starting spot lies; ``spot_step_diamonds``: spacing of the spots.
+    ``sigma_angle_deg`` and ``sigma_e``: residual weights of the cushion fit.
+    """
+
+    launch_speeds_mm_s: tuple[float, float, float] = (1300.0, 2000.0, 3000.0)
+    min_contacts: int = 6
+    max_angle_rms_deg: float = 1.0
+    max_e_rms: float = 0.05
+    max_se: float = 0.05
+    spot_depth_diamonds: float = 1.0
+    spot_step_diamonds: float = 1.0
+    sigma_angle_deg: float = 0.5
+    sigma_e: float = 0.02
+
+    def __post_init__(self) -> None:
+        a, b, c = self.launch_speeds_mm_s
+        if not 0 < a < b < c:
+            raise ValueError(f"launch speeds {self.launch_speeds_mm_s} mm/s must increase (soft, medium, hard)")
+        if self.min_contacts < 3:
+            raise ValueError(f"min_contacts {self.min_contacts} must be at least 3 (two parameters are fitted)")
+
+
+@dataclass(frozen=True)
+class TableFit:
+    """The fitted table: ``physics`` (fitted cloth and cushion), each parameter's standard error,
+    residuals (rms angle out deg, rms restitution), how many contacts and shots support it, and
+    ``good`` with ``reason`` when it is not good enough for a chart."""
+
+    physics: PhysicsParams
+    e_scale: float
+    e_scale_se: float
+    mu_cushion_se: float
+    mu_slide_se: float
+    mu_roll_se: float
+    angle_rms_deg: float
+    e_rms: float
+    n_contacts: int
+    n_shots: int
+    n_legs: int
+    good: bool
+    reason: str
+
+    def summary(self) -> str:
+        p = self.physics
+        return (f"cushion liveliness x{self.e_scale:.3f} +- {self.e_scale_se:.3f}, cushion friction "
+                f"{p.cushion.mu_cushion:.3f} +- {self.mu_cushion_se:.3f}, cloth sliding {p.mu_slide:.3f} +- "
+                f"{self.mu_slide_se:.3f}, rolling {p.mu_roll:.4f} +- {self.mu_roll_se:.4f}; residuals "
+                f"{self.angle_rms_deg:.2f} deg, restitution {self.e_rms:.3f}; {self.n_contacts} contacts "
+                f"from {self.n_shots} shots")
+
+
+def _legs_and_contacts(session: Session, audit_shots: pd.DataFrame, side_known: dict[int, float | None]):
+    """Per bank shot: the first leg (tau (N,), speeds (N,)) and the first contact's event row."""
+    out = []
+    ev = session.events
+    for _, r in audit_shots.iterrows():
+        shot, track = int(r["shot"]), int(r["track"])
+        e = ev[(ev["shot"] == shot) & (ev["track"] == track)].sort_values("t")
+        launch = e[e["kind"] == ("start" if r["kind"] == "kick" else "collision")]
+        cush = e[e["kind"] == "cushion"]
+        if launch.empty or cush.empty:
+            continue
+        l0, c0 = launch.iloc[0], cush[cush["t"] > launch.iloc[0]["t"]].iloc[0]
+        tr = session.tracks[(session.tracks["track"] == track) & (session.tracks["t"] > l0["t"] + 1e-6)
+                            & (session.tracks["t"] < c0["t"] - 1e-6)]
+        tau = np.r_[0.0, tr["t"].to_numpy() - l0["t"]]
+        spd = np.r_[l0["speed_out"], np.hypot(tr["vx"].to_numpy(), tr["vy"].to_numpy())]
+        usable = r["kind"] == "bank" or side_known.get(shot) == 0.0
+        out.append((shot, tau, spd, float(c0["t"] - l0["t"]), c0, usable))
+    return out
+
+
+def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig = ChartConfig(),
+              start: PhysicsParams = PhysicsParams(), side_known: dict[int, float | None] | None = None) -> TableFit:
+    """Fit cloth and cushion to a session's banks (see the module docstring)."""
+    table = session.table
+    items = _legs_and_contacts(session, audit_shots, side_known or {})
+    legs = [(tau, spd) for _, tau, spd, _, _, _ in items if len(tau) >= 6]
+    g = start.g_mm_s2
+    # Cloth: shared (mu_s, mu_r), per-leg (v0, u0).
+    mu_s, mu_r, se_s, se_r = start.mu_slide, start.mu_roll, np.nan, np.nan
+    if legs:
+        x0 = [start.mu_slide, start.mu_roll]
+        for tau, spd in legs:
+            x0 += [float(spd[0]), 0.5 * float(spd[0])]
+
+        def res_cloth(x):
+            out = []
+            for i, (tau, spd) in enumerate(legs):
+                out.append(leg_speed(tau, x[2 + 2 * i], x[3 + 2 * i], x[0], x[1], g) - spd)
+            return np.concatenate(out)
+
+        lo = [0.02, 0.0005] + [-np.inf, -np.inf] * len(legs)
+        hi = [1.0, 0.1] + [np.inf, np.inf] * len(legs)
+        fit = least_squares(res_cloth, x0, bounds=(lo, hi), x_scale="jac")
+        mu_s, mu_r = float(fit.x[0]), float(fit.x[1])
+        cov = _cov(fit)
+        se_s, se_r = float(math.sqrt(cov[0, 0])), float(math.sqrt(cov[1, 1]))
+    cloth = replace(start, mu_slide=mu_s, mu_roll=mu_r)
+    # Cushion: contacts with known (zero) side spin.
+    contacts = []
+    for shot, tau, spd, tc, c, usable in items:
+        if not usable:
+            continue
+        v0, u0 = fit_leg_slip(tau, spd, cloth) if len(tau) >= 3 else (float(spd[0]), 0.0)
+        slip = math.copysign(max(abs(u0) - 3.5 * mu_s * g * tc, 0.0), u0)
+        rail = str(c["rail"])
+        v_in = velocity_in(rail, float(c["speed_in"]), float(c["angle_in"]))
+        contacts.append((shot, rail, float(c["diamond"]), v_in, spin_with_slip(v_in, slip, table.radius_mm),
+                         float(c["angle_out"]), float(c["restitution"])))
+
+    def physics_of(x) -> PhysicsParams:
+        cp = start.cushion
+        vals = tuple(min(max(v * x[0], 0.0), 1.0) for v in CushionParams().e_values)
+        return replace(cloth, cushion=CushionParams(CushionParams().e_knots_mm_s, vals, float(x[1]),
+                                                    cp.rail_factor, cp.dead_spots))
+
+    def res_cushion(x):
+        p = physics_of(x)
+        out = []
+        for _, rail, dia, v_in, w_in, a_out, e_meas in contacts:
+            vo, _ = model_rebound(table, p, rail, dia, v_in, w_in)
+            n = -(np.asarray(v_in) @ _inward(rail))
+            e_pred = float(vo @ _inward(rail)) / n
+            out += [(angle_out_of(rail, vo) - a_out) / config.sigma_angle_deg, (e_pred - e_meas) / config.sigma_e]
+        return np.asarray(out)
+
+    n_shots = len({c[0] for c in contacts})
+    if len(contacts) < 3:
+        return TableFit(physics_of([1.0, start.cushion.mu_cushion]), 1.0, np.nan, np.nan, se_s, se_r,
+                        np.nan, np.nan, len(contacts), n_shots, len(legs), False,
+                        f"only {len(contacts)} usable cushion contacts; film at least {config.min_contacts} banks")
+    fit = least_squares(res_cushion, [1.0, start.cushion.mu_cushion], bounds=([0.3, 0.0], [1.3, 0.6]),
+                        diff_step=1e-3, ftol=1e-12, xtol=1e-12, gtol=1e-12)
+    cov = _cov(fit)
+    se = np.sqrt(np.diag(cov))
+    r = fit.fun
+    ang_rms = float(np.sqrt(np.mean((r[0::2] * config.sigma_angle_deg) ** 2)))
+    e_rms = float(np.sqrt(np.mean((r[1::2] * config.sigma_e) ** 2)))
+    reasons = []
+    if len(contacts) < config.min_contacts:
+        reasons.append(f"{len(contacts)} contacts (need {config.min_contacts})")
+    if ang_rms > config.max_angle_rms_deg:
+        reasons.append(f"angle residual {ang_rms:.2f} deg (allowed {config.max_angle_rms_deg})")
+    if e_rms > config.max_e_rms:
+        reasons.append(f"restitution residual {e_rms:.3f} (allowed {config.max_e_rms})")
+    if not (np.all(np.isfinite(se)) and np.all(se <= config.max_se)):
+        reasons.append(f"parameter uncertainty {np.max(se):.3f} (allowed {config.max_se})")
+    return TableFit(physics_of(fit.x), float(fit.x[0]), float(se[0]), float(se[1]), se_s, se_r, ang_rms,
+                    e_rms, len(contacts), n_shots, len(legs), not reasons,
+                    "; ".join(reasons) if reasons else "fit good enough for a chart")
+
+
+def _inward(rail: str) -> np.ndarray:
+    from vision.table import rail_inward_normal
+
+    return np.asarray(rail_inward_normal(rail))
+
+
+def _cov(fit) -> np.ndarray:
+    J = fit.jac
+    dof = max(J.shape[0] - J.shape[1], 1)
+    s2 = float(fit.fun @ fit.fun) / dof
+    return np.linalg.pinv(J.T @ J) * s2
+
+
+# --- prediction -------------------------------------------------------------------------------
+def predict_bank(table: TableSpec, physics: PhysicsParams, start, heading_rad: float, speed_mm_s: float,
+                 bank_rail: str, target_rail: str, omega0=(0.0, 0.0, 0.0)) -> dict:
+    """One-rail bank from ``start`` (2,) mm launched at ``speed_mm_s`` along ``heading_rad`` with
+    spin ``omega0`` (rad/s; default none, as an object ball struck full): the contact on
+    ``bank_rail`` (rail coordinate mm), the speed there, and where the centre's path crosses
+    ``target_rail``'s reversal line (rail coordinate mm, NaN if the ball stops first). Other
+    cushions and pockets are ignored (the lines are extended)."""
+    R = table.radius_mm
+    p0 = np.asarray(start, dtype=float)
+    d = np.array([math.cos(heading_rad), math.sin(heading_rad)])
+    v0 = speed_mm_s * d
+    w0 = np.asarray(omega0, dtype=float)
+    _, m = _axis(bank_rail)
+    c = table.reversal_line(bank_rail)
+    if d[m] * (c - p0[m]) <= 0:
+        return {"contact_mm": np.nan, "speed_in": np.nan, "met_mm": np.nan}
+    dist = (c - p0[m]) / d[m]
+    t_stop = _stop_time(v0, w0, physics, R)
+    reach, _ = ball_path(p0, v0, w0, [t_stop], physics, R)
+    if np.hypot(*(reach[0] - p0)) < dist:
+        return {"contact_mm": np.nan, "speed_in": np.nan, "met_mm": np.nan}
+    tc = brentq(lambda t: ball_path(p0, v0, w0, [t], physics, R)[0][0] @ d - p0 @ d - dist, 0.0, t_stop, xtol=1e-9)
+    pc, _ = ball_path(p0, v0, w0, [tc], physics, R)
+    v_in, w_in = spin_after(v0, w0, tc, physics, R)
+    k, _ = _axis(bank_rail)
+    along = float(pc[0][k])
+    vo, wo = model_rebound(table, physics, bank_rail, table.to_diamonds(bank_rail, along), v_in, w_in)
+    contact = pc[0].copy()
+    contact[m] = c
+    t2 = _stop_time(vo, wo, physics, R)
+    times = np.linspace(0.0, t2, 2000)
+    pos, _ = ball_path(contact, vo, wo, times, physics, R)
+    kt, mt = _axis(target_rail)
+    ct = table.reversal_line(target_rail)
+    s = pos[:, mt] - ct
+    cross = np.nonzero(np.sign(s[1:]) != np.sign(s[:-1]))[0]
+    met = np.nan
+    if cross.size:
+        i = int(cross[0])
+        f = s[i] / (s[i] - s[i + 1])
+        met = float(pos[i, kt] + f * (pos[i + 1, kt] - pos[i, kt]))
+    return {"contact_mm": along, "speed_in": float(np.hypot(*v_in)), "met_mm": met}
+
+
+def _stop_time(v0, w0, physics, R) -> float:
+    v0 = np.asarray(v0, dtype=float)
+    u = np.array([v0[0] - R * w0[1], v0[1] + R * w0[0]])
+    fs, fr = physics.mu_slide * physics.g_mm_s2, physics.mu_roll * physics.g_mm_s2
+    t_r = float(np.hypot(*u)) / (3.5 * fs)
+    _, v = ball_path((0, 0), v0, w0, [t_r], physics, R)
+    return t_r + float(np.hypot(*v[0])) / fr
+
+
+def solve_sight(table, physics, start, pocket: str, bank_rail: str, speed_mm_s: float) -> dict:
+    """The sight (diamonds on ``bank_rail``) to aim through from ``start`` so the centre reaches
+    ``pocket``'s mouth centre at launch speed ``speed_mm_s``; NaN when no aim within a diamond and
+    a half of the mirror rule's reaches it."""
+    from analysis.banks import target_line
+    from analysis.drill import Target
+
+    tgt = Target("pocket", pocket=pocket)
+    trail, tcoord = target_line(table, tgt, bank_rail)
+    mirror = mirror_sight(table, start, table.pocket(pocket).mouth_centre, bank_rail)
+    start = np.asarray(start, dtype=float)
+
+    def miss(sight):
+        q = table.rail_point(bank_rail, sight, table.sight_setback_mm)
+        h = math.atan2(q[1] - start[1], q[0] - start[0])
+        r = predict_bank(table, physics, start, h, speed_mm_s, bank_rail, trail)
+        return r["met_mm"] - tcoord, r
+
+    grid = mirror + np.linspace(-1.5, 1.5, 13)
+    vals = [miss(s)[0] for s in grid]
+    best = None
+    for a, b, fa, fb in zip(grid[:-1], grid[1:], vals[:-1], vals[1:]):
+        if np.isfinite(fa) and np.isfinite(fb) and np.sign(fa) != np.sign(fb):
+            root = brentq(lambda s: miss(s)[0], a, b, xtol=1e-4)
+            if best is None or abs(root - mirror) < abs(best - mirror):
+                best = root
+    if best is None:
+        return {"sight": np.nan, "speed_in": np.nan, "mirror": mirror}
+    return {"sight": float(best), "speed_in": miss(best)[1]["speed_in"], "mirror": mirror}
+
+
+CHART_COLUMNS = [
+    "start_rail", "start_x_mm", "start_y_mm", "pocket", "bank_rail", "mirror_sight", "counting_sight",
+    "soft_sight", "soft_speed_in_mm_s", "medium_sight", "medium_speed_in_mm_s", "hard_sight",
+    "hard_speed_in_mm_s",
+]
+
+
+def chart_spots(table: TableSpec, config: ChartConfig) -> list[tuple[str, np.ndarray, str, str]]:
+    """(start rail, spot (2,) mm, pocket, bank rail) for every chart entry: spots one diamond in
+    from each rail, every ``spot_step_diamonds`` along it (keeping a diamond clear of the corners),
+    each with the pockets on its rail, banked off the opposite rail."""
+    out = []
+    opposite = {"bottom": "top", "top": "bottom", "left": "right", "right": "left"}
+    for rail in ("bottom", "top", "left", "right"):
+        cross = "left" if rail in ("bottom", "top") else "bottom"
+        depth = config.spot_depth_diamonds * table.diamond_mm(cross)
+        n = 8 if rail in ("bottom", "top") else 4
+        pockets = [p.name for p in table.pockets() if p.name.startswith(rail) or p.name.endswith(rail)]
+        for dia in np.arange(1.0, n - 1 + 1e-9, config.spot_step_diamonds):
+            spot = np.array(table.rail_point(rail, float(dia), -depth))
+            for pocket in pockets:
+                out.append((rail, spot, pocket, opposite[rail]))
+    return out
+
+
+def bank_chart(table: TableSpec, fit: TableFit, config: ChartConfig = ChartConfig(),
+               spots: list | None = None) -> pd.DataFrame:
+    """One row per (spot, pocket): the sights at soft/medium/hard launch speed by the fitted model,
+    the mirror rule's and the counting answer (diamonds on the bank rail); see CHART_COLUMNS."""
+    rows = []
+    for rail, spot, pocket, bank in (spots if spots is not None else chart_spots(table, config)):
+        row = {"start_rail": rail, "start_x_mm": spot[0], "start_y_mm": spot[1], "pocket": pocket,
+               "bank_rail": bank,
+               "mirror_sight": mirror_sight(table, spot, table.pocket(pocket).mouth_centre, bank),
+               "counting_sight": counting_sight(table, spot, table.pocket(pocket).mouth_centre, bank)}
+        for name, speed in zip(("soft", "medium", "hard"), config.launch_speeds_mm_s):
+            r = solve_sight(table, fit.physics, spot, pocket, bank, speed)
+            row[f"{name}_sight"] = r["sight"]
+            row[f"{name}_speed_in_mm_s"] = r["speed_in"]
+        rows.append(row)
+    return pd.DataFrame(rows, columns=CHART_COLUMNS)
+
+
+def chart_svg(table: TableSpec, chart: pd.DataFrame, fit: TableFit, title: str) -> str:
+    """A printable chart (SVG text, A4 landscape proportions): the table with the starting spots
+    numbered, then one line per entry with the sights; fit quality and shot count printed on it."""
+    W, rows_h = 1120, 16
+    scale = 700 / table.length_mm
+    ox, oy = 40, 110
+    th = table.width_mm * scale
+    height = int(oy + th + 60 + rows_h * (len(chart) + 3))
+    out = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{W}" height="{height}" '
+           f'viewBox="0 0 {W} {height}" font-family="sans-serif" font-size="11">',
+           f'<rect width="{W}" height="{height}" fill="white"/>',
+           f'<text x="40" y="30" font-size="18">{_esc(title)}</text>',
+           f'<text x="40" y="52">{_esc(fit.summary())}</text>',
+           f'<text x="40" y="70">Sights in diamonds on the bank rail, counted from its lower-coordinate end. '
+           f'Fit quality: {_esc(fit.reason)}.</text>',
+           f'<text x="40" y="88">Mirror = mirror at the reversal line; count = mirror at the sights; '
+           f'soft/medium/hard = fitted table, ball launched without spin.</text>']
+
+    def px(x, y):
+        return ox + x * scale, oy + th - y * scale
+
+    x0, y0 = px(0, table.width_mm)
+    out.append(f'<rect x="{x0:.1f}" y="{y0:.1f}" width="{table.length_mm * scale:.1f}" height="{th:.1f}" '
+               'fill="none" stroke="black" stroke-width="2"/>')
+    for _, dia, (sx, sy) in table.sights():
+        u, v = px(sx, sy)
+        out.append(f'<circle cx="{u:.1f}" cy="{v:.1f}" r="2" fill="black"/>')
+    for p in table.pockets():
+        u, v = px(*p.mouth_centre)
+        out.append(f'<circle cx="{u:.1f}" cy="{v:.1f}" r="6" fill="none" stroke="black"/>')
+    spots = chart[["start_x_mm", "start_y_mm"]].drop_duplicates().reset_index(drop=True)
+    for i, s in spots.iterrows():
+        u, v = px(s["start_x_mm"], s["start_y_mm"])
+        out.append(f'<circle cx="{u:.1f}" cy="{v:.1f}" r="4" fill="grey"/>')
+        out.append(f'<text x="{u + 5:.1f}" y="{v - 5:.1f}" font-size="9">{i + 1}</text>')
+    y = oy + th + 40
+    head = "spot  pocket         bank   mirror  count   soft   medium  hard"
+    out.append(f'<text x="40" y="{y}" font-family="monospace" font-weight="bold">{_esc(head)}</text>')
+    key = {tuple(np.round(s.to_numpy(), 3)): i + 1 for i, s in spots.iterrows()}
+    for _, r in chart.iterrows():
+        y += rows_h
+        n = key[tuple(np.round([r["start_x_mm"], r["start_y_mm"]], 3))]
+        cells = [f"{n:>4}", f"{r['pocket']:<14}", f"{r['bank_rail']:<6}"] + [
+            f"{r[c]:6.2f}" if np.isfinite(r[c]) else "   -  "
+            for c in ("mirror_sight", "counting_sight", "soft_sight", "medium_sight", "hard_sight")]
+        out.append(f'<text x="40" y="{y}" font-family="monospace">{_esc("  ".join(cells))}</text>')
+    out.append("</svg>")
+    return "\n".join(out) + "\n"
+
+
+def _esc(s: str) -> str:
+    return str(s).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
