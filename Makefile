@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test bench samples clean
+.PHONY: demo test bench samples clean browser
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -15,8 +15,20 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/python -m railtrace.demo
 
-test: $(STAMP)
+test: $(STAMP) browser
 	$(BIN)/python -m pytest -q
+
+# Headless Chromium for the report's browser test (tests/test_browser.py), from Debian's packages.
+# Installed only when missing, and only where we are root with apt-get (CI); elsewhere the
+# browser test skips and says why.
+browser:
+	@if [ ! -x /usr/bin/chromium ]; then \
+	  if [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	    apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends chromium; \
+	  else \
+	    echo "note: /usr/bin/chromium is missing and this is not a root shell with apt-get: the browser test will be skipped"; \
+	  fi; \
+	fi
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/render_speed.py

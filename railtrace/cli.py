@@ -9,6 +9,11 @@ Commands:
                                      check image
   cushions DIR... [--before DIR...]  check each cushion's liveliness from analysed clips of one
                                      table; writes cushions.csv and a rail map
+  report DIR                         one self-contained HTML report of an analysed clip
+  overlay DIR                        the clip with paths, contacts and speeds drawn on it, and a
+                                     top-down version
+  history / export                   the session history (SQLite): trends per player or table;
+                                     export to CSV or Parquet
   render SCENE.toml --out CLIP.mp4   film a scene file (simulated balls, rendered camera) and
                                      write its truth folder beside the clip
 """
@@ -21,7 +26,7 @@ import sys
 import time
 from pathlib import Path
 
-from railtrace import __version__, banks_cmd, calibrate_cmd, cushions_cmd
+from railtrace import __version__, banks_cmd, calibrate_cmd, cushions_cmd, history_cmd, overlay, report_cmd
 
 EPILOG = "Run 'railtrace COMMAND --help' for a command's options. Lengths are mm, times seconds."
 
@@ -52,11 +57,19 @@ def build_parser() -> argparse.ArgumentParser:
     analyse.add_argument("--ball", type=float, default=None, metavar="MM", help="ball diameter, mm (default 57.15)")
     analyse.add_argument("--calibration", type=Path, default=None, metavar="FILE",
                          help="calibration.json from 'railtrace calibrate' (else the clip is calibrated itself)")
+    analyse.add_argument("--no-report", action="store_true", help="do not write DIR/report.html")
+    analyse.add_argument("--no-history", action="store_true", help="do not record the session in the history database")
+    analyse.add_argument("--db", type=Path, default=None, metavar="FILE", help="history database (default: in your data folder)")
+    analyse.add_argument("--player", default=None, help="player's name, for the history")
+    analyse.add_argument("--table-name", default=None, help="the table's name in the room, for the history")
     analyse.add_argument("--quiet", action="store_true", help="no progress bar")
 
     banks_cmd.add_parser(sub)
     calibrate_cmd.add_parser(sub)
     cushions_cmd.add_parser(sub)
+    report_cmd.add_parser(sub)
+    overlay.add_parser(sub)
+    history_cmd.add_parser(sub)
 
     render = sub.add_parser(
         "render",
@@ -99,6 +112,16 @@ def _cmd_analyse(args: argparse.Namespace) -> int:
     if progress is not None:
         progress.done()
     print(summary.text())
+    if not args.no_report:
+        from railtrace.report_cmd import write_report
+
+        print(f"report: {write_report(args.out)}")
+    if not args.no_history:
+        from railtrace.history import default_db_path, record_analysis
+
+        db = args.db or default_db_path()
+        record_analysis(db, args.out, player=args.player, table_name=args.table_name)
+        print(f"recorded in the history at {db}")
     if summary.shots == 0:
         print("note: no ball moved in this clip, so there are no shots or events to report")
     return 0
@@ -152,6 +175,10 @@ COMMANDS = {
     "calibrate": calibrate_cmd.run,
     "cushions": cushions_cmd.run,
     "render": _cmd_render,
+    "report": report_cmd.run,
+    "overlay": overlay.run,
+    "history": history_cmd.run,
+    "export": history_cmd.run,
 }
 
 

@@ -61,7 +61,8 @@ def run() -> int:
     if results.exists():
         shutil.rmtree(results)
     OUT.mkdir(exist_ok=True)
-    code = cli_main(["analyse", str(CLIP), "--out", str(results)])
+    # The demo keeps its own history database so it never mixes into a real player's history.
+    code = cli_main(["analyse", str(CLIP), "--out", str(results), "--db", str(OUT / "history.sqlite")])
     if code:
         return code
     sys.path.insert(0, str(ROOT))
@@ -71,7 +72,7 @@ def run() -> int:
     (OUT / "score.txt").write_text(report, encoding="utf-8")
     png = preview(CLIP, results, TRUTH, OUT / "preview.png")
     print(report)
-    print(f"demo: results in {results}/, score against the truth in {OUT / 'score.txt'}, preview {png}")
+    print(f"demo: results in {results}/ (open {results / 'report.html'} in a browser), score against the truth in {OUT / 'score.txt'}, preview {png}")
     return 0
 
 

@@ -20,15 +20,19 @@ from railtrace.scene import parse_scene
 @pytest.fixture(scope="module")
 def analysed(small_clip, tmp_path_factory):
     clip, truth = small_clip
-    out = tmp_path_factory.mktemp("analysed") / "run"
-    code = main(["analyse", str(clip), "--out", str(out), "--calibration", str(truth / "calibration.json"), "--quiet"])
+    base = tmp_path_factory.mktemp("analysed")
+    out = base / "run"
+    code = main([
+        "analyse", str(clip), "--out", str(out), "--calibration", str(truth / "calibration.json"),
+        "--quiet", "--db", str(base / "history.sqlite"), "--player", "Test Player",
+    ])
     assert code == 0
     return out, truth
 
 
 def test_analyse_writes_the_results_format(analysed):
     out, _ = analysed
-    for name in ("tracks.csv", "events.csv", "shots.csv", "calibration.json", "detections.csv", "run.json"):
+    for name in ("tracks.csv", "events.csv", "shots.csv", "calibration.json", "detections.csv", "run.json", "report.html"):
         assert (out / name).is_file(), name
     assert list(pd.read_csv(out / "tracks.csv").columns[: len(TRACK_COLUMNS)]) == TRACK_COLUMNS
     assert list(pd.read_csv(out / "events.csv").columns[: len(EVENT_COLUMNS)]) == EVENT_COLUMNS
@@ -52,11 +56,25 @@ def test_analyse_finds_every_cushion_contact(analysed):
     assert score(out, truth)["events"]["cushion"]["recall"] == 1.0
 
 
+def test_analyse_records_the_session_in_the_history(analysed):
+    import sqlite3
+
+    out, _ = analysed
+    con = sqlite3.connect(out.parent / "history.sqlite")
+    try:
+        n_events = con.execute("SELECT COUNT(*) FROM events").fetchone()[0]
+        players = [r[0] for r in con.execute("SELECT name FROM players")]
+    finally:
+        con.close()
+    assert n_events == len(pd.read_csv(out / "events.csv"))
+    assert players == ["Test Player"]
+
+
 def test_existing_output_folder_is_never_overwritten(analysed, small_clip, capsys):
     out, truth = analysed
     before = sorted(p.name for p in out.iterdir())
     stamp = (out / "tracks.csv").stat().st_mtime_ns
-    code = main(["analyse", str(small_clip[0]), "--out", str(out), "--calibration", str(truth / "calibration.json")])
+    code = main(["analyse", str(small_clip[0]), "--out", str(out), "--calibration", str(truth / "calibration.json"), "--no-history"])
     assert code == 2
     err = capsys.readouterr().err
     assert "exists already" in err and err.count("\n") == 1
@@ -74,7 +92,7 @@ def test_bad_clips_get_one_line_and_leave_nothing(kind, small_clip, tmp_path, ca
         data = clip.read_bytes()
         bad.write_bytes(data[: len(data) // 3])
     out = tmp_path / "out"
-    code = main(["analyse", str(bad), "--out", str(out), "--calibration", str(truth / "calibration.json")])
+    code = main(["analyse", str(bad), "--out", str(out), "--calibration", str(truth / "calibration.json"), "--no-history"])
     err = capsys.readouterr().err
     if kind == "truncated" and code == 0:
         pytest.fail("a truncated clip was analysed as if whole")
@@ -92,7 +110,7 @@ def test_clip_without_motion(tmp_path, capsys, small_scene):
     clip = tmp_path / "still.mp4"
     truth = film_scene(scene, clip)
     out = tmp_path / "res"
-    assert main(["analyse", str(clip), "--out", str(out), "--calibration", str(truth / "calibration.json"), "--quiet"]) == 0
+    assert main(["analyse", str(clip), "--out", str(out), "--calibration", str(truth / "calibration.json"), "--quiet", "--no-history"]) == 0
     printed = capsys.readouterr().out
     assert "no ball moved" in printed
     assert len(pd.read_csv(out / "shots.csv")) == 0
