@@ -84,6 +84,8 @@ def cases(quick: bool) -> list[Case]:
         Case("9ft red 2.8m rolled 90", NINE_FOOT, 2800, (1280, 720), (-0.12, 0.02, 0, 0, 0), (80, 0), 88.0, CLOTHS["red"]),
         Case("7ft green 2.0m noisy", SEVEN_FOOT, 2000, (1280, 720), (-0.18, 0.03, 0, 0, 0), (0, -150), 0.0, noise=5.0, exposure=0.7),
         Case("9ft grey 2.5m 1080p", NINE_FOOT, 2500, (1920, 1080), (-0.22, 0.05, 0, 0, 0), (-200, 150), -2.0, CLOTHS["grey"]),
+        Case("9ft green 2.4m 960x540", NINE_FOOT, 2400, (960, 540), (-0.15, 0.03, 0, 0, 0), (120, -90), 1.0),
+        Case("7ft grey 1.8m 960x540", SEVEN_FOOT, 1800, (960, 540), (-0.25, 0.05, 0, 0, 0), (100, 60), -1.5, CLOTHS["grey"], 1.1),
     ]
     return c[:4] if quick else c
 
@@ -198,7 +200,7 @@ at = [1500, 640]
 id = "8"
 kind = "solid"
 colour = "#111111"
-at = [1700, 1230]
+at = [1700, {y8}]
 
 [[shot]]
 ball = "cue"
@@ -209,8 +211,8 @@ speed_mm_s = 1500
 
 def clip_cases() -> list[dict]:
     return [
-        dict(name="clip 9ft blue k1-.2", table="9ft", height=2300, ox=100, oy=-80, roll=0.7, k1=-0.2, cloth="#1e5f96", dur=3.0, seed=5, bump=""),
-        dict(name="clip 8ft green bump", table="8ft", height=2500, ox=-120, oy=60, roll=-1.0, k1=-0.12, cloth="#2e6b45", dur=4.0, seed=6,
+        dict(name="clip 9ft blue k1-.2", table="9ft", height=2300, ox=100, oy=-80, roll=0.7, k1=-0.2, cloth="#1e5f96", dur=3.0, seed=5, y8=1230, bump=""),
+        dict(name="clip 8ft green bump", table="8ft", height=2500, ox=-120, oy=60, roll=-1.0, k1=-0.12, cloth="#2e6b45", dur=4.0, seed=6, y8=1130,
              bump="[[camera.bump]]\nt_s = 2.5\noffset_mm = [6, -4]\nroll_deg = 0.5"),
     ]
 

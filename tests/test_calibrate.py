@@ -9,6 +9,8 @@ camera and back-projected by the recovered one land within 2 mm of the truth.
 
 from __future__ import annotations
 
+import contextlib
+import io
 import math
 
 import cv2
@@ -31,7 +33,7 @@ from vision.render import Look, Renderer
 from vision.table import EIGHT_FOOT, NINE_FOOT, TableSpec
 from vision.video import write_video
 
-SIZE = (1280, 720)  # non-square, so swapped axes fail; 960x540 is not yet within 2 mm (see report)
+SIZE = (1280, 720)  # non-square, so swapped axes fail
 
 
 def _render(table, cam, look, seed):
@@ -41,11 +43,12 @@ def _render(table, cam, look, seed):
 
 
 CASES = {
-    # green cloth, strong barrel lens, camera off-centre and rolled
-    "green9": (NINE_FOOT, dict(height_mm=2300, offset_mm=(110, -80), roll_deg=1.2, dist=(-0.22, 0.04, 0, 0, 0)),
+    # green cloth, strong barrel lens, camera off-centre and rolled, a 960x540 sensor (a diamond is
+    # about 100 px, the nose band 2-6 px)
+    "green9": (NINE_FOOT, dict(image_size=(960, 540), height_mm=2300, offset_mm=(110, -80), roll_deg=1.2, dist=(-0.22, 0.04, 0, 0, 0)),
                Look(noise_sigma=2.0)),
     # grey cloth, dimmer, stronger vignetting, a tilted view (the checkerboard reference case)
-    "grey8": (EIGHT_FOOT, dict(height_mm=2000, offset_mm=(420, -300), roll_deg=-2.0, dist=(-0.15, 0.02, 0, 0, 0)),
+    "grey8": (EIGHT_FOOT, dict(image_size=SIZE, height_mm=2000, offset_mm=(420, -300), roll_deg=-2.0, dist=(-0.15, 0.02, 0, 0, 0)),
               Look(cloth_bgr=(120, 118, 115), cushion_bgr=(100, 98, 96), exposure=0.8, vignetting=0.9, noise_sigma=2.5, texture_seed=3)),
 }
 
@@ -54,7 +57,7 @@ CASES = {
 def rendered():
     out = {}
     for name, (table, cam_kw, look) in CASES.items():
-        cam = Camera.overhead(table, image_size=SIZE, **cam_kw)
+        cam = Camera.overhead(table, **cam_kw)
         out[name] = (table, cam, _render(table, cam, look, seed=len(out)))
     return out
 
@@ -115,10 +118,7 @@ def test_distortion_residual_on_nose_lines(rendered, calibrated, name):
     assert calibrated[name].quality["nose_rms_px"] < 0.3
 
 
-@pytest.mark.parametrize("name", [
-    "green9",
-    pytest.param("grey8", marks=pytest.mark.xfail(strict=True, reason="known: 2.01 mm on the tilted grey view; nose edges biased ~0.2 px inward")),
-])
+@pytest.mark.parametrize("name", list(CASES))
 def test_parallax_correction_against_renderer_truth(rendered, calibrated, name):
     # The renderer draws a ball's centre R above the cloth, imaged by the true camera
     # (tests/test_render.py checks that to 0.5 px). The recovered camera must bring those pixels
@@ -174,7 +174,6 @@ def test_focal_length_against_opencv_calibrate_camera(calibrated, opencv_referen
     assert abs(calibrated["grey8"].camera.K[0, 0] / ref.K[0, 0] - 1) < 0.02
 
 
-@pytest.mark.xfail(strict=True, reason="known: our lens model moves the table corners ~4 % (1.5 px) less than OpenCV's and the truth")
 def test_distortion_against_opencv_calibrate_camera(rendered, calibrated, opencv_reference):
     # Reference: cv2.calibrateCamera (fixture). Both lens models must move the image points at the
     # table's corners (beyond the last nose points, so extrapolated) by the same amount within
@@ -269,7 +268,7 @@ def test_too_dark(rendered):
 
 def test_table_cut_off(rendered):
     _, _, img = rendered["green9"]
-    cut = np.ascontiguousarray(img[:, : SIZE[0] * 2 // 3])
+    cut = np.ascontiguousarray(img[:, : img.shape[1] * 2 // 3])
     with pytest.raises(CalibrationError, match="cut off"):
         calibrate(cut, NINE_FOOT, CalibConfig())
 
@@ -294,11 +293,29 @@ def bump_clip(tmp_path_factory, rendered):
     return path, table, timeline
 
 
-def test_bump_detected_and_recalibrated(bump_clip):
+@pytest.fixture(scope="module")
+def command_on_bump_clip(bump_clip, tmp_path_factory):
+    """``railtrace calibrate`` run once on the bump clip: (exit code, calibration.json path, check
+    image path, stdout). The calibration file carries the camera after the bump, so the bump test
+    reads it from there (one calibration of the clip serves both tests)."""
+    path, _, _ = bump_clip
+    d = tmp_path_factory.mktemp("cmd")
+    out, check = d / "cal.json", d / "check.png"
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        code = calibrate_cmd.main([str(path), "--table", "9ft", "--out", str(out), "--check", str(check)])
+    return code, out, check, buf.getvalue()
+
+
+def test_bump_detected_and_recalibrated(bump_clip, command_on_bump_clip):
     path, table, timeline = bump_clip
-    cal = calibrate(path, table, CalibConfig())
-    assert len(cal.camera_changes) == 2
-    t_found, cam_after = cal.camera_changes[1]
+    code, out, _, _ = command_on_bump_clip
+    assert code == 0
+    _, _, doc = read_calibration(out)
+    changes = doc["camera_changes"]
+    assert len(changes) == 2
+    t_found, cam_after = changes[1]["t"], Camera.from_dict(changes[1]["camera"])
+    # The clip is 30 fps: the bump is dated to the first frame that shows it.
     assert abs(t_found - 0.8) <= 1 / 30 + 1e-6
     true_after = timeline[1][1]
     flip = _flip_if_needed(table, true_after, cam_after)
@@ -308,16 +325,15 @@ def test_bump_detected_and_recalibrated(bump_clip):
     assert np.max(np.linalg.norm(back - balls, axis=1)) < 2.0
 
 
-def test_command_writes_calibration_and_check(bump_clip, tmp_path, capsys):
-    path, table, _ = bump_clip
-    out = tmp_path / "cal.json"
-    check = tmp_path / "check.png"
-    assert calibrate_cmd.main([str(path), "--table", "9ft", "--out", str(out), "--check", str(check)]) == 0
+def test_command_writes_calibration_and_check(bump_clip, command_on_bump_clip):
+    _, table, _ = bump_clip
+    code, out, check, stdout = command_on_bump_clip
+    assert code == 0
     t, cam, doc = read_calibration(out)
     assert t.length_mm == table.length_mm and cam is not None
     assert len(doc["camera_changes"]) == 2 and doc["source"] == "auto"
     assert cv2.imread(str(check)) is not None
-    assert "wrote" in capsys.readouterr().out
+    assert stdout.startswith("wrote") and stdout.count("\n") == 1
 
 
 def test_command_refuses_in_one_line_and_writes_no_calibration(bump_clip, tmp_path, capsys):
@@ -330,3 +346,59 @@ def test_command_refuses_in_one_line_and_writes_no_calibration(bump_clip, tmp_pa
     assert err.count("\n") == 1 and "length/width" in err
     assert calibrate_cmd.main([str(path), "--corners", "1,2;3", "--out", str(out)]) == 2
     assert "--corners" in capsys.readouterr().err
+
+
+# --- the nose's image profile ------------------------------------------------------------------
+@pytest.mark.parametrize("name", [
+    "green9",
+    pytest.param("grey8", marks=pytest.mark.xfail(strict=True, reason="known: one side of the tilted grey view sits 0.151 px inward")),
+])
+def test_nose_points_unbiased_against_renderer_truth(rendered, calibrated, name):
+    # The renderer's true camera puts each found nose point some distance from the true nose
+    # line (at nose height): the median per side is the locator's bias, the main error source of
+    # the calibration. Our tolerance: 0.15 px, about 0.5 mm at these views' 0.3-0.45 px/mm, a
+    # quarter of the issue's 2 mm.
+    from vision.calibrate import _nose_offsets_mm
+
+    table, cam, _ = rendered[name]
+    got = calibrated[name].camera
+    flip = _flip_if_needed(table, cam, got)
+    opposite = {"bottom": "top", "top": "bottom", "left": "right", "right": "left"}
+    for nf in calibrated[name].noses:
+        assert len(nf.points_px) >= 30
+        off_mm, px_per_mm = _nose_offsets_mm(cam, nf.points_px, opposite[nf.rail] if flip else nf.rail, table)
+        assert abs(float(np.median(off_mm * px_per_mm))) < 0.15
+
+
+def test_nose_profile_fit_against_numerical_blur():
+    # Analytic reference: a sharp profile (cloth sloping down toward the cushion, a dark band that
+    # brightens toward the nose, a cushion top) convolved numerically with a Gaussian on a 0.005 px
+    # grid (scipy.ndimage) and sampled every 0.25 px with 0.3 DN noise (2 DN pixel noise averaged
+    # over the 13 samples along the nose each profile takes), located the way the calibration
+    # locates every side (both passes). Our tolerances: within 0.03 px (a tenth of the 0.3 px
+    # residual budget) for bands 4 px and wider; within 0.15 px (the nose-bias tolerance above)
+    # for bands of 0.7-2.5 px (a camera nearly above the rail), where band width, level and blur
+    # trade against each other under noise.
+    from scipy.ndimage import gaussian_filter1d
+
+    from vision.calibrate import _locate_noses
+
+    rng = np.random.default_rng(4)
+    fine = np.arange(-20.0, 12.0, 0.005)
+    s = np.arange(-14.0, 8.0, 0.25)
+    profs, widths, b_true = [], [], []
+    for width in (0.7, 1.0, 1.5, 2.5, 4.0, 6.0, 8.0):
+        for b in (-0.6, 0.0, 0.45):
+            a = b - width
+            sharp = np.where(fine < a, 60 - 0.8 * (fine - a), np.where(fine < b, 15 + 1.5 * (fine - b), 45 + 0.3 * (fine - b)))
+            blurred = gaussian_filter1d(sharp, 0.7 / 0.005, mode="nearest")
+            profs.append(np.interp(s, fine, blurred) + rng.normal(0, 0.3, len(s)))
+            widths.append(width)
+            b_true.append(b)
+    widths, b_true = np.array(widths), np.array(b_true)
+    b_fit, _, sig = _locate_noses(s, np.array(profs))
+    assert np.all(np.isfinite(b_fit))
+    assert sig is not None and abs(sig - 0.7) < 0.05
+    err = np.abs(b_fit - b_true)
+    assert np.max(err[widths >= 4.0]) < 0.03
+    assert np.max(err) < 0.15

@@ -22,9 +22,12 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    the narrow dark band under the nose (the shadowed face below the cushion) and the step from it
    to the lit cushion top; a straight line must bend only by the lens, so candidates are kept by
    RANSAC on a quadratic curve per side; each kept profile is then resampled along the curve's
-   normal and fitted with a blurred two-edge model (cloth -> band -> cushion top, Gaussian blur;
-   the outer edge is the nose at nose height) for a sub-pixel position. Profiles near pockets
-   are skipped; balls, arms and shadows fail the curve test and are dropped.
+   normal and fitted with a blurred piecewise-linear model of the nose's image (cloth, the dark
+   face under the nose, cushion top, each with its own level and slope, one Gaussian blur per
+   side; the outer edge of the band is the nose at nose height) for a sub-pixel position
+   (:func:`_nose_profile_fit`; a level-only model put the nose 0.1-0.3 px inward wherever the band
+   brightens toward the nose). Profiles near pockets are skipped; balls, arms and shadows fail
+   the curve test and are dropped.
 4. **Lens distortion** from the straightness of the four nose lines: the plumb-line method
    (Devernay & Faugeras, "Straight lines have to be straight", Machine Vision and Applications
    13(1), 2001) with OpenCV's radial model, principal point at the image centre.
@@ -81,6 +84,10 @@ from vision.camera import Camera, _rotation_to_rvec
 from vision.table import TableSpec
 
 log = logging.getLogger(__name__)
+
+_SQRT_2PI = math.sqrt(2 * math.pi)
+
+
 
 RAIL_SIDES = ("bottom", "right", "top", "left")
 
@@ -494,45 +501,150 @@ def _band_candidates(prof: np.ndarray, step: float, max_band_px: float) -> list[
     return out
 
 
-def _fit_two_edges(s: np.ndarray, prof: np.ndarray, s_rise: float, sigma: float | None = None) -> tuple[float, float, float] | None:
-    """Fit ``I(s) = P_in + (B - P_in) Phi((s - a)/sig) + (P_out - B) Phi((s - b)/sig)`` (cloth,
-    band, cushion top under a Gaussian blur of ``sig`` px) to an outward profile; returns
-    (b, sig, rms) or None. ``b`` is the nose (the step from the band up to the cushion top).
-    With ``sigma`` given the blur is held at it (one blur per side steadies narrow bands)."""
+def _nose_basis(s: np.ndarray, a: np.ndarray, b: np.ndarray, sig: np.ndarray) -> np.ndarray:
+    """(N, M, 6) image of six unit sharp profiles under a Gaussian blur of ``sig`` px: cloth level
+    and slope (s < a), band level and slope (a < s < b), cushion-top level and slope (s > b), each
+    slope measured from the piece's own edge. ``s`` (M,) px along the outward normal; ``a``, ``b``,
+    ``sig`` (N,).
+
+    The blur of a linear piece ``c + g (x - x0)`` on [x1, x2] is, at s,
+    ``c [Phi_1 - Phi_2] + g [(s - x0)(Phi_1 - Phi_2) + sig (phi_1 - phi_2)]`` with
+    ``Phi_k = Phi((s - x_k) / sig)`` and ``phi_k = phi((s - x_k) / sig)`` the standard normal
+    distribution and density (integrate the Gaussian kernel against 1 and against x; a semi-infinite
+    piece has ``Phi = 1`` or ``0``, ``phi = 0`` at its open end)."""
     from scipy.special import ndtr
 
+    sg = sig[:, None]
+    za = (s[None, :] - a[:, None]) / sg
+    zb = (s[None, :] - b[:, None]) / sg
+    Pa, Pb = ndtr(za), ndtr(zb)
+    pa, pb = np.exp(-0.5 * za * za) / _SQRT_2PI, np.exp(-0.5 * zb * zb) / _SQRT_2PI
+    da = s[None, :] - a[:, None]
+    db = s[None, :] - b[:, None]
+    return np.stack([
+        1 - Pa,                              # cloth level
+        da * (1 - Pa) - sg * pa,             # cloth slope (x - a), x < a
+        Pa - Pb,                             # band level
+        db * (Pa - Pb) + sg * (pa - pb),     # band slope (x - b), a < x < b
+        Pb,                                  # cushion-top level
+        db * Pb + sg * pb,                   # cushion-top slope (x - b), x > b
+    ], axis=-1)
+
+
+def _nose_profile_fit(s: np.ndarray, prof: np.ndarray, a0: np.ndarray, b0: np.ndarray, sigma: float | np.ndarray | None,
+                      iterations: int = 12) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Sub-pixel cloth->band and band->cushion-top edges of N outward profiles at once.
+
+    The image across a cushion nose, seen from above the table, is cloth, then the narrow face
+    under the nose (shadowed, a dark band whose outer edge is the nose at nose height), then the
+    lit cushion top. Each piece is modelled as *linear* (light falls off toward the cushion on the
+    cloth, the undercut face brightens toward its top, the cushion top is lit at a slope): a
+    constant-level model of a sloping band moves the located step toward the darker side, which
+    is inward here (0.1-0.3 px on rendered views). The blurred piecewise-linear profile
+    (:func:`_nose_basis`) is linear in its six levels and slopes, so they are solved by linear
+    least squares for given edges (variable projection, Golub & Pereyra 1973) and the edges ``a``,
+    ``b`` (and the blur ``sigma`` unless given) by damped Gauss-Newton (Levenberg-Marquardt) on
+    the projected residual, every profile at once. Samples further than 6 px outside the edges
+    are ignored (far from the nose the pieces stop being linear).
+
+    ``s`` (M,) px, ``prof`` (N, M), ``a0``, ``b0`` (N,) first guesses; ``sigma`` a blur to hold
+    (scalar or (N,)) or None to fit it. Returns (b, a, sigma, rms) each (N,), NaN where the fit
+    is not a dark band between brighter cloth and cushion top.
+    """
+    n = len(prof)
+    fit_sig = sigma is None
+    sig0 = np.full(n, 0.8) if fit_sig else np.broadcast_to(np.asarray(sigma, float), (n,)).copy()
+    theta = np.column_stack([a0, b0, sig0]) if fit_sig else np.column_stack([a0, b0])
+    lo, hi = s[0] + 1.0, s[-1] - 1.0
+    win = (s[None, :] > a0[:, None] - 6.0) & (s[None, :] < b0[:, None] + 6.0)
+    wt = win.astype(float)
+
+    def project(th):
+        a, b = th[:, 0], th[:, 1]
+        sg = th[:, 2] if fit_sig else sig0
+        A = _nose_basis(s, a, b, sg) * wt[..., None]
+        # Ridge on the slopes only: a band narrower than the blur cannot tell its slope apart
+        # from its level; the small penalty then keeps it flat instead of wild.
+        ridge = np.array([0, 1, 0, 1, 0, 1.0]) * 1e-3 * np.maximum(wt.sum(axis=1), 1)[:, None]
+        AtA = np.einsum("nmi,nmj->nij", A, A) + ridge[:, :, None] * np.eye(6)[None]
+        Aty = np.einsum("nmi,nm->ni", A, prof * wt)
+        coef = np.linalg.solve(AtA + 1e-9 * np.eye(6)[None], Aty[..., None])[..., 0]
+        r = (np.einsum("nmi,ni->nm", A, coef) - prof * wt)
+        return r, coef
+
+    lam = np.full(n, 1e-2)
+    r, coef = project(theta)
+    cost = np.sum(r * r, axis=1)
+    eps = 1e-4
+    for _ in range(iterations):
+        J = np.empty(r.shape + (theta.shape[1],))
+        for k in range(theta.shape[1]):
+            th = theta.copy()
+            th[:, k] += eps
+            J[..., k] = (project(th)[0] - r) / eps
+        JtJ = np.einsum("nmi,nmj->nij", J, J)
+        g = np.einsum("nmi,nm->ni", J, r)
+        D = np.einsum("nii->ni", JtJ)
+        step = -np.linalg.solve(JtJ + lam[:, None, None] * (D[:, :, None] * np.eye(theta.shape[1])[None] + 1e-9 * np.eye(theta.shape[1])[None]), g[..., None])[..., 0]
+        step = np.clip(step, -1.0, 1.0)
+        cand = theta + step
+        cand[:, :2] = np.clip(cand[:, :2], lo, hi)
+        if fit_sig:
+            cand[:, 2] = np.clip(cand[:, 2], 0.25, 6.0)
+        r_c, coef_c = project(cand)
+        cost_c = np.sum(r_c * r_c, axis=1)
+        better = cost_c < cost
+        theta[better], r[better], coef[better], cost[better] = cand[better], r_c[better], coef_c[better], cost_c[better]
+        lam = np.where(better, lam * 0.3, lam * 10.0)
+    a, b = theta[:, 0], theta[:, 1]
+    sg = theta[:, 2] if fit_sig else sig0
+    rms = np.sqrt(cost / np.maximum(wt.sum(axis=1), 1))
+    # Levels at the two edges: band darker than both the cloth and the cushion top beside it.
+    cloth_at_a, band_at_a, band_at_b, top_at_b = coef[:, 0], coef[:, 2] + coef[:, 3] * (a - b), coef[:, 2], coef[:, 4]
+    good = (a < b) & (top_at_b - band_at_b > 3.0) & (cloth_at_a - band_at_a > 1.0) & np.isfinite(cost)
+    nanify = lambda x: np.where(good, x, np.nan)  # noqa: E731
+    return nanify(b), nanify(a), nanify(sg), nanify(rms)
+
+
+def _edge_guesses(s: np.ndarray, prof: np.ndarray, s_rise: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+    """First guesses (a0, b0), each (N,) px, of the cloth->band and band->cushion-top edges of N
+    outward profiles ``prof`` (N, M) sampled at ``s`` (M,): the darkest sample within 4 px of
+    ``s_rise``, then the steepest fall within 6 px inward of it and the steepest rise outward
+    (on the profile smoothed by a 0.5 px Gaussian)."""
     step = float(s[1] - s[0])
-    near = np.nonzero(np.abs(s - s_rise) <= 4.0)[0]
-    i_min = int(near[np.argmin(prof[near])])
-    grad = np.gradient(prof)
     k6 = max(2, int(round(6.0 / step)))
-    i_rise = i_min + int(np.argmax(grad[i_min : i_min + k6])) if i_min < len(s) - 2 else i_min
-    i_fall = max(0, i_min - k6) + int(np.argmin(grad[max(0, i_min - k6) : i_min + 1]))
-    B0 = float(prof[i_min])
-    P_out0 = float(np.max(prof[i_rise : i_rise + k6 + 1]))
-    P_in0 = float(np.max(prof[max(0, i_fall - k6) : i_fall + 1]))
-    x0 = np.array([P_in0, B0, P_out0, s[i_fall], s[i_rise], 0.8])
+    near = np.nonzero(np.abs(s - s_rise) <= 4.0)[0]
+    # Smoothed by 0.5 px first: on a single noisy sample the steepest step can be anywhere.
+    from scipy.ndimage import gaussian_filter1d
 
-    def model(p):
-        sg = p[5] if sigma is None else sigma
-        return p[0] + (p[1] - p[0]) * ndtr((s - p[3]) / sg) + (p[2] - p[1]) * ndtr((s - p[4]) / sg)
+    prof = gaussian_filter1d(np.asarray(prof, float), 0.5 / step, axis=1, mode="nearest")
+    grad = np.gradient(prof, axis=1)
+    a0, b0 = np.empty(len(prof)), np.empty(len(prof))
+    for i, p in enumerate(prof):
+        i_min = int(near[np.argmin(p[near])])
+        i_rise = i_min + int(np.argmax(grad[i, i_min : i_min + k6])) if i_min < len(s) - 2 else i_min
+        j0 = max(0, i_min - k6)
+        i_fall = j0 + int(np.argmin(grad[i, j0 : i_min + 1]))
+        a0[i], b0[i] = s[i_fall], s[max(i_rise, i_fall + 1)]
+    return a0, b0
 
-    lo = np.array([-50, -50, -50, s[0], s[0], 0.25])
-    hi = np.array([400, 400, 400, s[-1], s[-1], 6.0])
-    x0 = np.clip(x0, lo + 1e-6, hi - 1e-6)
-    n_free = 6 if sigma is None else 5
-    try:
-        r = optimize.least_squares(lambda p: model(np.append(p, sigma) if sigma is not None else p) - prof, x0[:n_free],
-                                   bounds=(lo[:n_free], hi[:n_free]), method="trf", x_scale=[10, 10, 10, 1, 1, 0.5][:n_free])
-    except ValueError:
-        return None
-    if sigma is not None:
-        r.x = np.append(r.x, sigma)
-    p = r.x
-    if not (p[3] < p[4] and p[2] - p[1] > 3.0 and p[0] - p[1] > 1.0):
-        return None
-    rms = float(np.sqrt(np.mean(r.fun**2)))
-    return float(p[4]), float(p[5]), rms
+
+def _locate_noses(s: np.ndarray, prof: np.ndarray) -> tuple[np.ndarray, np.ndarray, float | None]:
+    """Nose positions (N,) px along N outward profiles ``prof`` (N, M) sampled at ``s`` (M,)
+    around one side's nose curve, their fit RMS (N,) and the side's blur (px, None if no profile
+    fitted). Pass 1 fits each profile's blur; pass 2 holds the side's median blur (one lens, one
+    focus: a shared blur steadies narrow bands, whose width and blur otherwise trade). NaN marks
+    profiles without a nose (the fit's own test: a band darker than both sides)."""
+    a0, b0 = _edge_guesses(s, prof)
+    b1, a1, sig1, _ = _nose_profile_fit(s, prof, a0, b0, None)
+    ok1 = np.isfinite(b1) & (np.abs(np.nan_to_num(b1, nan=99.0)) <= 2.5)
+    if not np.any(ok1):
+        return np.full(len(prof), np.nan), np.full(len(prof), np.nan), None
+    sig_side = float(np.median(sig1[ok1]))
+    # Profiles pass 1 could not fit start again from their first guesses: with the blur held,
+    # a narrow band is better conditioned.
+    b2, _, _, rms = _nose_profile_fit(s, prof, np.where(ok1, a1, a0), np.where(ok1, b1, b0), sig_side)
+    return b2, rms, sig_side
 
 
 def _nose_points(grey: np.ndarray, quad: np.ndarray, table: TableSpec, config: CalibConfig) -> list[np.ndarray]:
@@ -605,20 +717,11 @@ def _nose_points(grey: np.ndarray, quad: np.ndarray, table: TableSpec, config: C
         fp = pts_c[:, None, :] + sf[None, :, None] * n_vec[:, None, :]
         offs = np.linspace(-3.0, 3.0, 13)
         prof_f = sum(_sample(grey, fp + o * t_vec[:, None, :]) for o in offs) / len(offs)
-        found = []
-        first = [_fit_two_edges(sf, prof_f[i], 0.0) for i in range(len(fr_f))]
-        sigs = [f[1] for f in first if f is not None and abs(f[0]) <= 2.5]
-        sig_side = float(np.median(sigs)) if sigs else None
-        for i in range(len(fr_f)):
-            if first[i] is None or sig_side is None:
-                continue
-            fit = _fit_two_edges(sf, prof_f[i], first[i][0], sig_side)
-            if fit is None:
-                continue
-            bpos, sig, rms = fit
-            if abs(bpos) > 2.5 or sig > 3.5:
-                continue
-            found.append((pts_c[i] + bpos * n_vec[i], rms))
+        bpos, rms, sig_side = _locate_noses(sf, prof_f)
+        keep = np.isfinite(bpos) & (np.abs(np.nan_to_num(bpos, nan=99.0)) <= 2.5)
+        if sig_side is None or sig_side > 3.5:
+            keep[:] = False
+        found = [(pts_c[i] + bpos[i] * n_vec[i], float(rms[i])) for i in np.nonzero(keep)[0]]
         log.debug("side %d: %d candidates, %d fine fits kept, blur %s px", k, len(cands), len(found), sig_side)
         pts_k = np.array([p for p, _ in found]) if found else np.zeros((0, 2))
         if len(found) >= 6:
@@ -948,30 +1051,36 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
     empty2, empty3 = np.zeros((0, 2)), np.zeros((0, 3))
     x = solve(x0, empty2, empty3)
     sights_px, sights_mm = empty2, empty3
-    if config.use_sights:
-        sights_px, sights_mm = _find_sights(grey, cam_of(x), table)
-        if len(sights_px) >= 4:
-            x = solve(x, sights_px, sights_mm)
-            # Drop sights the fit disagrees with (a ball, chalk, a glint), then solve again.
-            res = np.linalg.norm(cam_of(x).project(sights_mm) - sights_px, axis=1)
-            keep = res < max(1.5, 3 * np.median(res))
-            sights_px, sights_mm = sights_px[keep], sights_mm[keep]
-            x = solve(x, sights_px, sights_mm)
-        else:
-            sights_px, sights_mm = empty2, empty3
-    # Drop nose outliers (a resting ball on the cushion, an arm) and solve once more.
-    cam = cam_of(x)
-    cleaned = []
-    for rail, pts in noses:
-        if len(pts) == 0:
-            cleaned.append((rail, pts))
-            continue
-        off, scale = _nose_offsets_mm(cam, pts, rail, table)
-        rpx = off * scale
-        mad = 1.4826 * np.median(np.abs(rpx - np.median(rpx))) + 0.05
-        cleaned.append((rail, pts[np.abs(rpx) < max(4 * mad, 0.5)]))
-    noses = cleaned
-    x = solve(x, sights_px, sights_mm)
+    # A table whose shape disagrees with the picture cannot be fitted well however long the
+    # solver runs; when the first fit already shows it, stop here and let the verdict refuse.
+    first_fits = tuple(NoseFit(rail, pts, np.zeros(len(pts)), np.zeros(len(pts))) for rail, pts in noses)
+    aspect0 = _measured_aspect(cam_of(x), first_fits, table)
+    shape_ok = aspect0 is None or abs(aspect0 / (table.length_mm / table.width_mm) - 1) <= config.max_aspect_error
+    if shape_ok:
+        if config.use_sights:
+            sights_px, sights_mm = _find_sights(grey, cam_of(x), table)
+            if len(sights_px) >= 4:
+                x = solve(x, sights_px, sights_mm)
+                # Drop sights the fit disagrees with (a ball, chalk, a glint), then solve again.
+                res = np.linalg.norm(cam_of(x).project(sights_mm) - sights_px, axis=1)
+                keep = res < max(1.5, 3 * np.median(res))
+                sights_px, sights_mm = sights_px[keep], sights_mm[keep]
+                x = solve(x, sights_px, sights_mm)
+            else:
+                sights_px, sights_mm = empty2, empty3
+        # Drop nose outliers (a resting ball on the cushion, an arm) and solve once more.
+        cam = cam_of(x)
+        cleaned = []
+        for rail, pts in noses:
+            if len(pts) == 0:
+                cleaned.append((rail, pts))
+                continue
+            off, scale = _nose_offsets_mm(cam, pts, rail, table)
+            rpx = off * scale
+            mad = 1.4826 * np.median(np.abs(rpx - np.median(rpx))) + 0.05
+            cleaned.append((rail, pts[np.abs(rpx) < max(4 * mad, 0.5)]))
+        noses = cleaned
+        x = solve(x, sights_px, sights_mm)
     cam = cam_of(x)
     fits = []
     all_res = []
@@ -1032,14 +1141,15 @@ def check_image(bg: np.ndarray, cam: Camera | None, table: TableSpec, fit: _Fit 
     """(H, W, 3) uint8 BGR: ``bg`` rectified to a top-down view of the nose plane at ``px_per_mm``
     (table x to the right, y up), with the model's nose rectangle (green), the nose points found
     (coloured by residual: blue under 0.3 px, yellow under 1 px, red beyond), the corners, the
-    sights (found: circle; expected: cross) and the residuals and verdict printed. Without a camera
-    the background itself is returned with the rough outline and the verdict."""
+    sights (found: circle; expected: cross); the verdict and residuals are printed on a dark
+    banner above the view (:func:`_with_banner`), so the image is taller than the view by the
+    banner. Without a camera the background itself is returned with the rough outline and the
+    verdict on the banner."""
     if cam is None:
         img = bg.copy()
         if quad is not None:
             cv2.polylines(img, [np.round(quad).astype(np.int32)], True, (0, 0, 255), 2)
-        _text(img, [verdict])
-        return img
+        return _with_banner(img, [verdict])
     m = table.rail_width_mm + 60.0
     Wd = int(round((table.length_mm + 2 * m) * px_per_mm))
     Hd = int(round((table.width_mm + 2 * m) * px_per_mm))
@@ -1083,16 +1193,34 @@ def check_image(bg: np.ndarray, cam: Camera | None, table: TableSpec, fit: _Fit 
             f"table {table.name} L/W {q['aspect_table']:.3f}, seen {q['aspect_measured']:.3f}" if q["aspect_measured"] else f"table {table.name}",
             "origin (0,0) at the lower left of this view",
         ]
-        _text(img, lines)
-    return img
+        return _with_banner(img, lines)
+    return _with_banner(img, [verdict])
 
 
-def _text(img: np.ndarray, lines: list[str]) -> None:
-    y = 22
-    for line in lines:
-        cv2.putText(img, line, (10, y), cv2.FONT_HERSHEY_SIMPLEX, 0.5, (0, 0, 0), 3, cv2.LINE_AA)
-        cv2.putText(img, line, (10, y), cv2.FONT_HERSHEY_SIMPLEX, 0.5, (255, 255, 255), 1, cv2.LINE_AA)
-        y += 20
+def _with_banner(img: np.ndarray, lines: list[str]) -> np.ndarray:
+    """``img`` (H, W, 3) uint8 with a dark banner added above it carrying ``lines`` in white, so
+    the text never sits on the cloth or the rails; long lines are wrapped to the image's width.
+    The first line (the verdict) is green when it reads OK, red otherwise."""
+    h, w = img.shape[:2]
+    font, fs, th = cv2.FONT_HERSHEY_SIMPLEX, 0.5, 1
+    wrapped: list[tuple[str, bool]] = []
+    for i, line in enumerate(lines):
+        words, cur = line.split(" "), ""
+        for word in words:
+            trial = f"{cur} {word}".strip()
+            if cur and cv2.getTextSize(trial, font, fs, th)[0][0] > w - 20:
+                wrapped.append((cur, i == 0))
+                cur = word
+            else:
+                cur = trial
+        wrapped.append((cur, i == 0))
+    step = 20
+    banner = np.full((step * len(wrapped) + 12, w, 3), 24, np.uint8)
+    ok = lines[0].startswith("OK") if lines else False
+    for k, (line, first) in enumerate(wrapped):
+        col = ((80, 220, 80) if ok else (80, 80, 255)) if first else (235, 235, 235)
+        cv2.putText(banner, line, (10, 20 + step * k), font, fs, col, th, cv2.LINE_AA)
+    return np.vstack([banner, img])
 
 
 # ================================================================================================
