@@ -302,11 +302,119 @@ def test_simulated_contacts_incoming_measures(simulated_contacts):
     assert s["angle_in median"] <= 1.0
 
 
-@pytest.mark.xfail(strict=True, reason="departure after a cushion: sliding piece too short and "
-                   "noisy at 60 fps / 2.5 mm (benchmarks/event_accuracy.py: speed_out ~3.4 %, "
-                   "angle_out ~2 deg, restitution ~0.04); targets not yet met")
 def test_simulated_contacts_outgoing_measures(simulated_contacts):
+    # With the cloth's sliding deceleration measured once per clip and held in the departure
+    # fits; measured on these 8 shots: speed_out 2.9 %, angle_out 0.87 deg, restitution 0.026.
     s = simulated_contacts
     assert s["speed_out median"] <= 0.03
     assert s["angle_out median"] <= 1.0
     assert s["restitution median"] <= 0.03
+
+
+def test_pocketed_ball_spotted_again_keeps_its_id_and_gets_no_stop():
+    # A ball rolls into the bottom-left corner pocket, is taken out and spotted at (1800, 800)
+    # a second later (the tracker gives it its id back). Its events are its start and the
+    # pocket: leaving the table is not coming to rest, and being put down is not a motion.
+    fps = 60.0
+    times = np.arange(int(4.0 * fps)) / fps
+    run = decel_path((400.0, 400.0), 225.0, 1500.0, 200.0, t_start=0.3)
+    pos = run(times)
+    pk = TABLE.pocket("bottom-left")
+    last = int(np.argmax(pos.sum(axis=1) < pk.jaw_a[0] + TABLE.radius_mm * math.sqrt(2))) - 1
+
+    def solid(t):
+        out = run(t)
+        out[np.asarray(t) >= 2.5] = (1800.0, 800.0)
+        return out
+    rest = decel_path((1500.0, 300.0), 0.0, 0.0, 1.0)
+    det = detections({"a": solid, "b": rest}, times, np.random.default_rng(3), noise_mm=1.0,
+                     labels={"a": ("yellow", "solid"), "b": ("white", "cue")})
+    det = det[~((det["truth"] == "a") & (det["frame"] > last) & (det["t"] < 2.5))]
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2
+    ev, shots = find_events(tr, TABLE, det)
+    a_id = int(tr.loc[tr["colour"] == "yellow", "track"].iloc[0])
+    mine = ev[ev["track"] == a_id]
+    assert list(mine["kind"]) == ["start", "pocket"]
+    assert mine.iloc[1]["pocket"] == "bottom-left"
+    assert len(shots) == 1
+
+
+def test_a_ball_that_nearly_halts_and_runs_on_has_one_stop():
+    # A stun-follow path (Alciatore 2004: a ball with topspin brought almost to a halt slides,
+    # friction speeding it up at mu_s g until it rolls, then it slows at mu_r g): its speed dips
+    # under the rest threshold for a few frames, but it never rests, so one motion, one stop.
+    fps = 60.0
+    dt = 1 / fps
+    t0, v0, a1 = 0.3, 800.0, 0.2 * G
+    t1 = t0 + (v0 - 10.0) / a1  # slowed to 10 mm/s
+    v2 = 400.0
+    t2 = t1 + (v2 - 10.0) / (0.2 * G)  # sped up by friction to rolling speed
+    t3 = t2 + v2 / (0.01 * G)  # rolls to rest
+
+    def speed(t):
+        return np.select([t < t0, t < t1, t < t2, t < t3],
+                         [0.0, v0 - a1 * (t - t0), 10.0 + 0.2 * G * (t - t1),
+                          v2 - 0.01 * G * (t - t2)], 0.0)
+    fine = np.arange(0.0, t3 + 1.0, 1e-4)
+    s = np.concatenate([[0.0], np.cumsum(0.5 * (speed(fine[1:]) + speed(fine[:-1])) * 1e-4)])
+
+    def f(t):
+        d = np.interp(np.asarray(t, float), fine, s)
+        return np.stack([500.0 + d, np.full_like(d, 600.0)], axis=1)
+    times = np.arange(int((t3 + 0.8) * fps)) / fps
+    det = detections({"a": f}, times, np.random.default_rng(7), noise_mm=1.0,
+                     labels={"a": ("white", "cue")})
+    ev, shots = find_events(track(det, TABLE), TABLE, det)
+    assert list(ev["kind"]) == ["start", "stop"]
+    assert abs(ev.iloc[0]["t"] - t0) < dt / 2
+    # The stop is ill-conditioned (speed fades slowly); 0.15 s as in test_start_and_stop_times.
+    assert abs(ev.iloc[1]["t"] - t3) < 0.15
+    assert len(shots) == 1
+
+
+def test_departure_fit_with_the_cloths_sliding_deceleration():
+    # A ball leaving a contact slides at mu_s g in a fixed direction (its slip's, opposite) for
+    # 4 frames, then rolls at mu_r g (Alciatore 2004, technical proofs: constant slip direction,
+    # deceleration mu_s g while sliding). With mu_s g known (one cloth; find_events measures it
+    # once per clip) the fitted speed at the contact is within the 3 % in the median over
+    # 1 mm noise draws, and speed and direction beat the fit with the loose prior on mu_s g.
+    from tracking.events import _piecewise_fit
+
+    fps = 60.0
+    dt = 1 / fps
+    cfg = EventConfig()
+    a_s = 0.2 * G
+    v0 = np.array([350.0, 900.0])  # just after the contact, mm/s
+    u = np.array([math.cos(math.radians(-120.0)), math.sin(math.radians(-120.0))])  # accel dir
+    tk = 0.07
+    vk = v0 + a_s * u * tk
+    pk = v0 * tk + 0.5 * a_s * u * tk**2
+    t_c = 0.37 * dt  # contact between frames 0 and 1
+    ts = np.arange(1, 19) * dt
+    tau = ts - t_c
+    r = np.clip(tau - tk, 0.0, None)
+    m = np.minimum(tau, tk)
+    roll = -0.01 * G * vk / np.hypot(*vk)
+    truth = np.where((tau <= tk)[:, None], v0 * m[:, None] + 0.5 * a_s * u * m[:, None] ** 2,
+                     pk + vk * r[:, None] + 0.5 * roll * r[:, None] ** 2)
+    rng = np.random.default_rng(31)
+    err = {"known": [], "loose": []}
+    for _ in range(20):
+        ps = truth + rng.normal(0.0, 1.0, truth.shape)
+        for name, sd in (("known", a_s), ("loose", None)):
+            # Normal coordinate pinned at the contact, as find_events refits a departure
+            # through the reversal line (the contact is at the origin here, rail y = 0).
+            f = _piecewise_fit(ts, ps, t_c, 1.0, 0.25 * dt, cfg, pin=np.array([np.nan, 0.0]),
+                               slide_decel=sd)
+            v = f.vel(t_c)
+            err[name].append((abs(np.hypot(*v) / np.hypot(*v0) - 1),
+                              abs(math.degrees(math.atan2(v[1], v[0]) - math.atan2(v0[1], v0[0])))))
+    known = np.median(np.array(err["known"]), axis=0)
+    loose = np.median(np.array(err["loose"]), axis=0)
+    print("known", known, "loose", loose)
+    # Measured (seed 31): known 0.6 % and 1.6 deg, loose 0.9 % and 2.3 deg. The speed meets the
+    # issue's 3 %; the direction of a 4-frame slide is not yet within 1 degree on its own (the
+    # cushion fit adds a prior on it), so here it must only improve on the loose fit.
+    assert known[0] <= 0.03
+    assert known[0] < loose[0] and known[1] < loose[1]

@@ -334,3 +334,119 @@ def test_input_not_modified():
     before = det.copy()
     track(det, TABLE)
     pd.testing.assert_frame_equal(det, before)
+
+
+# --- balls put down by hand between shots ---------------------------------------------------------
+def _still(p):
+    return decel_path(p, 0.0, 0.0, 1.0)
+
+
+def _respot_paths(times, moves):
+    """A path that rests at each of ``moves`` [(from time s, (x, y) mm)] in turn: a ball lifted
+    and put down elsewhere between shots (it jumps between two frames, as when the hand that
+    carried it hid it)."""
+    def f(t):
+        t = np.asarray(t, float)
+        out = np.empty((len(t), 2))
+        for t0, p in moves:
+            out[t >= t0] = p
+        return out
+    return f
+
+
+def test_respotted_and_replaced_balls_keep_their_ids():
+    # Between shots the cue ball and the yellow solid are lifted and put down elsewhere; later the
+    # solid rolls into the bottom-left corner pocket and is taken out and spotted again. The
+    # yellow stripe (same colour, other pattern) rests throughout. Each ball is one id
+    # (issue "Follow every ball": identity switches none).
+    fps = 60.0
+    times = np.arange(int(5.0 * fps)) / fps
+    rng = np.random.default_rng(21)
+    cue = _respot_paths(times, [(0.0, (900.0, 300.0)), (1.0, (1500.0, 500.0))])
+    pocket_run = decel_path((400.0, 400.0), 225.0, 1500.0, 200.0, t_start=2.0)
+    run = pocket_run(times)
+    k_gone = int(np.argmax(run.sum(axis=1) < TABLE.corner_mouth_mm / math.sqrt(2)))
+
+    def solid(t):
+        t = np.asarray(t, float)
+        out = pocket_run(t)  # rests at (400, 400) from 1 s, runs into the pocket from 2 s
+        out[t < 1.0] = (1000.0, 450.0)
+        out[t >= 4.0] = (1800.0, 800.0)
+        return out
+    stripe = _still((210.0, 260.0))
+    paths = {"cue": cue, "solid": solid, "stripe": stripe}
+    labels = {"cue": ("white", "cue"), "solid": ("yellow", "solid"),
+              "stripe": ("yellow", "stripe")}
+    det = detections(paths, times, rng, noise_mm=1.0, labels=labels)
+    # The solid is off the table from the pocket until it is spotted at t = 4 s.
+    gone = (det["truth"] == "solid") & (det["frame"] >= k_gone) & (det["t"] < 4.0)
+    det = det[~gone].reset_index(drop=True)
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 3
+    for name, (colour, pattern) in labels.items():
+        truth = paths[name](times)
+        g = det[det["truth"] == name]
+        # Every frame the ball is seen, one track sits on it, the same one all clip long.
+        on = []
+        for k in g["frame"].to_numpy()[::5]:
+            rows = tr[tr["frame"] == k]
+            d = np.hypot(rows["x"] - truth[k, 0], rows["y"] - truth[k, 1]).to_numpy()
+            on.append(int(rows["track"].to_numpy()[np.argmin(d)]))
+        assert len(set(on)) == 1, (name, sorted(set(on)))
+        mine = tr[tr["track"] == on[0]]
+        assert set(mine["pattern"]) == {pattern} and set(mine["colour"]) == {colour}
+        assert not mine.duplicated("frame").any()  # one row per frame for one id
+
+
+def test_put_down_ball_takes_no_ambiguous_or_moving_id():
+    fps = 60.0
+    times = np.arange(int(2.0 * fps)) / fps
+    rng = np.random.default_rng(22)
+    # Two red solids lifted at 0.5 s; one red solid put down at 1.5 s: which one is unknown,
+    # so it is a new id.
+    a = _still((500.0, 500.0))
+    b = _still((900.0, 500.0))
+    c = _still((1600.0, 700.0))
+    det = detections({"a": a, "b": b, "c": c}, times, rng, noise_mm=1.0,
+                     labels={k: ("red", "solid") for k in "abc"},
+                     present={"a": (0, 29), "b": (0, 29), "c": (90, len(times) - 1)})
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 3
+    # A ball of the lifted one's colours appearing while another ball runs is not put down by
+    # hand: it keeps a new id.
+    mover = decel_path((300.0, 900.0), 0.0, 1500.0, 0.2 * G * 0.3)
+    det = detections({"a": a, "c": c, "m": mover}, times, rng, noise_mm=1.0,
+                     labels={"a": ("red", "solid"), "c": ("red", "solid"),
+                             "m": ("white", "cue")},
+                     present={"a": (0, 29), "c": (90, len(times) - 1)})
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 3
+    # The same with every ball resting: the put-down ball is the lifted one again.
+    det = detections({"a": a, "c": c, "m": _still((300.0, 900.0))}, times, rng, noise_mm=1.0,
+                     labels={"a": ("red", "solid"), "c": ("red", "solid"),
+                             "m": ("white", "cue")},
+                     present={"a": (0, 29), "c": (90, len(times) - 1)})
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2
+
+
+
+def test_doubtful_cue_label_at_a_collision_keeps_identity():
+    # The object ball was hidden (under the arm) until the cue ball struck it, and in the first
+    # frames after the contact the detector, unsure where the two balls merge in its view
+    # (quality 0.37), calls the cue ball a stripe. A confident stripe label is forbidden to the
+    # cue track; this doubtful one only costs, so the cue track keeps its own ball and does not
+    # jump to the object ball appearing beside it.
+    fps = 60.0
+    times = np.arange(int(1.0 * fps)) / fps
+    t_c = 0.5 + 0.3 / fps
+    cue, obj = collision_paths((1300.0, 640.0), (1800.0, 300.0), 20.0, t_c)
+    det = detections({"cue": cue, "obj": obj}, times, np.random.default_rng(24), noise_mm=1.0,
+                     labels={"cue": ("white", "cue"), "obj": ("", "unknown")},
+                     present={"obj": (31, len(times) - 1)})
+    doubt = (det["truth"] == "cue") & det["frame"].between(31, 32)
+    det.loc[doubt, ["pattern", "colour", "quality"]] = ["stripe", "", 0.37]
+    tr = track(det, TABLE)
+    ids, errs = match_tracks(tr, {"cue": cue, "obj": obj}, times)
+    assert ids["cue"] != ids["obj"]
+    assert np.max(errs["cue"]) < 25.0  # a jump to the object ball would be a diameter or more

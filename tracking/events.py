@@ -16,7 +16,12 @@ Output, following the results format exactly:
 Method
 ------
 1. Each track is cut into moving stretches by its smoothed speed (hysteresis between
-   ``rest_speed_mm_s`` and ``move_speed_mm_s``).
+   ``rest_speed_mm_s`` and ``move_speed_mm_s``); a stretch counts only if the ball travels
+   ``min_travel_mm``, and two stretches less than ``min_rest_s`` apart are one motion (a ball
+   nearly halting and running on has not stopped). Where a track leaves out frames or jumps
+   (a ball pocketed or lifted and put back under the same id, ``tracking.tracker``), its path
+   is never fitted across the gap, and a motion running into the gap ends in a pocket event
+   or in none.
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
@@ -30,7 +35,10 @@ Method
    information criterion between a rolling piece (acceleration with the prior ``mu_r g`` against
    the velocity), a free quadratic, and a sliding piece joined to a rolling one at a kink time
    scanned on a sub-frame grid (linear in the coefficients for a given kink; sliding deceleration
-   with a loose prior about ``mu_s g``).
+   with a loose prior about ``mu_s g``). The cloth's sliding deceleration is then measured once
+   for the clip from all its slides (``_cloth_slide_decel``: one cloth) and held fixed in the
+   departure fits after a cushion, which leaves only the slip direction free
+   (``_piecewise_fit`` with ``slide_decel``), with a loose prior on that direction.
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
    meet it at the same instant, so the two crossing times are combined by inverse-variance
    weighting (the linearised least-squares time where both fits cross the line). Then both sides
@@ -39,10 +47,12 @@ Method
    gives the contact, and the pinned fits give the speeds, angles and restitution. *Collision*:
    the time where the centres are one diameter apart, ``|p1(t) - p2(t)| = D``, is solved
    (a quartic) from the approach fits and from the departure fits and the two combined the same
-   way. *Start*: the first moving samples' fit extrapolated back to the rest position. *Stop*:
+   way, from plain quadratic fits grown outward from the contact (``_Finder._grow``). *Start*:
+   the first moving samples' fit extrapolated back to the rest position. *Stop*:
    the instant the fitted velocity of the last moving samples vanishes, ``argmin |p'(t)|``.
-   *Pocket*: a track that ends (before the clip does) heading into a pocket mouth; the time its
-   fitted path crosses the mouth line (``TableSpec.pockets()``).
+   A ball that leaves the table within ``min_rest_s`` of slowing down (caught) gets no stop.
+   *Pocket*: a track that ends (before the clip does, or before a gap) heading into a pocket
+   mouth; the time its fitted path crosses the mouth line (``TableSpec.pockets()``).
 4. Shots are the unions of overlapping moving stretches; ``cue_track`` is the ball of the
    shot's first ``start``.
 """
@@ -76,18 +86,23 @@ class EventConfig:
 
     ``rest_speed_mm_s`` / ``move_speed_mm_s``: smoothed speeds below which a ball is at rest and
     above which it moves (hysteresis; above the speed noise of a resting track, about 20-30 mm/s
-    with 1 mm detections and up to 40 mm/s at the end of a rest stretch). ``min_move_s``: shortest motion kept. ``fit_window_s``: longest
-    stretch of samples fitted on each side of a contact. ``quadratic_min_samples``: fewer
-    samples on a side are fitted by a straight line. ``exposure_s``: exposure time of a frame;
-    samples whose exposure spans a contact are left out of its fits (None: half the frame
-    interval, a 180-degree shutter, common practice). ``cushion_reach_mm``: a normal-velocity
-    reversal counts as a cushion contact only with the centre this close to the reversal line
-    (plus one frame's travel). ``collision_margin_mm``: centres closer than a diameter plus this
-    (plus one frame's relative travel) may be touching. ``min_velocity_change_mm_s``: smallest
-    velocity change that marks a contact. ``start_fit_s`` / ``stop_fit_s``: samples fitted to
-    solve a start / stop. ``pocket_reach_mm`` / ``pocket_horizon_s``: a track ending within this
-    of a pocket mouth whose path crosses the mouth within this time was pocketed.
-    ``meas_sigma_mm``: detection noise assumed where it cannot be estimated.
+    with 1 mm detections and up to 40 mm/s at the end of a rest stretch). ``min_move_s``: shortest
+    motion kept. ``min_rest_s``: shortest rest between two motions of a ball (shorter dips are one
+    motion), and how long a ball must stay on the table after its motion for a ``stop`` (a ball
+    that vanishes sooner was caught or lifted, common practice). ``min_travel_mm``: least distance
+    a ball must travel in a motion (default a pool ball's radius: far beyond a resting ball's
+    position noise, and less than any stroke moves a ball). ``fit_window_s``: longest stretch of
+    samples fitted on each side of a contact. ``quadratic_min_samples``: fewer samples on a side
+    are fitted by a straight line. ``exposure_s``: exposure time of a frame; samples whose exposure
+    spans a contact are left out of its fits (None: half the frame interval, a 180-degree shutter,
+    common practice). ``cushion_reach_mm``: a normal-velocity reversal counts as a cushion contact
+    only with the centre this close to the reversal line (plus one frame's travel).
+    ``collision_margin_mm``: centres closer than a diameter plus this (plus one frame's relative
+    travel) may be touching. ``min_velocity_change_mm_s``: smallest velocity change that marks a
+    contact. ``start_fit_s`` / ``stop_fit_s``: samples fitted to solve a start / stop.
+    ``pocket_reach_mm`` / ``pocket_horizon_s``: a track ending within this of a pocket mouth whose
+    path crosses the mouth within this time was pocketed. ``meas_sigma_mm``: detection noise
+    assumed where it cannot be estimated.
 
     Path model of each side of a contact (``_piecewise_fit``; Alciatore 2004 sliding then
     rolling): ``kink_step_frames`` grid step of the slide-to-roll time, in frame intervals;
@@ -99,11 +114,18 @@ class EventConfig:
     ``slide_decel_sigma_mm_s2`` prior of the sliding deceleration ``mu_s g`` (Alciatore 2004
     typical 0.2, range 0.15-0.4 [secondary]; Mathavan et al. 2009: 1.75-2.40 m/s^2);
     ``slide_decel_min_mm_s2`` / ``slide_decel_max_mm_s2`` hard bounds (0.05 g and 0.6 g).
+    ``slide_min_samples``: fewest samples on a sliding piece for it to count as a measurement of
+    the cloth's sliding deceleration (``_cloth_slide_decel``). ``slide_dir_sigma_deg``: sd of
+    the prior on the direction of the slide after a cushion (``_Finder.cushion``).
+    ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
+    cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
     """
 
     rest_speed_mm_s: float = 50.0
     move_speed_mm_s: float = 150.0
     min_move_s: float = 0.05
+    min_rest_s: float = 0.3
+    min_travel_mm: float = 28.575
     fit_window_s: float = 0.3
     quadratic_min_samples: int = 6
     exposure_s: float | None = None
@@ -124,6 +146,9 @@ class EventConfig:
     slide_decel_mm_s2: float = 1962.0
     slide_decel_sigma_mm_s2: float = 600.0
     roll_decel_sigma_mm_s2: float = 50.0
+    slide_min_samples: int = 5
+    slide_dir_sigma_deg: float = 30.0
+    slide_fit_s: float = 0.8
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -209,7 +234,9 @@ def _fit(ts: np.ndarray, ps: np.ndarray, t0: float, deg: int, sigma_mm: float) -
 
 
 def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, step_s: float,
-                   cfg: "EventConfig", pin: np.ndarray | None = None) -> _Fit | None:
+                   cfg: "EventConfig", pin: np.ndarray | None = None,
+                   slide_decel: float | None = None,
+                   slide_dir: np.ndarray | None = None) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -233,6 +260,18 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
       ``slide_decel_min_mm_s2 .. slide_decel_max_mm_s2`` and with a Gaussian prior on its size,
       ``slide_decel_mm_s2`` sd ``slide_decel_sigma_mm_s2`` (loosely about mu_s g: the cloth's
       mu_s is not known), added to the residual sum in units of the residual variance.
+
+    ``slide_decel`` (mm/s^2, departure side only) is the cloth's sliding deceleration ``mu_s g``
+    when it is known (``_cloth_slide_decel``: one cloth, one value per clip). Then the sliding
+    piece's acceleration has exactly that size and only its direction is free (one parameter,
+    the angle of the constant slip direction): for a given tk the least-squares problem with
+    ``|2 c2| = slide_decel`` is reduced to the two slide coefficients (the others eliminated by
+    their normal equations, a Schur complement) and minimised over the angle to 0.5 degree.
+    The candidates are then rolling, sliding (no kink in the window; 5 parameters) and slide
+    then roll (6); the free quadratic is not offered, since physics leaves no other path.
+    ``slide_dir`` (2,) unit vector, with ``slide_decel``: the expected direction of the sliding
+    acceleration, a Gaussian prior on the angle with sd ``slide_dir_sigma_deg`` added to the
+    residual sum in units of ``sigma_mm^2`` (``_Finder.cushion`` says where it comes from).
 
     ``pin`` (2,) mm fixes ``c0`` (the contact point when both sides are refitted through it).
     The best candidate has the least Bayesian information criterion (Schwarz 1978) for Gaussian
@@ -291,10 +330,83 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             inv[:, ax, j0:, j0:] = Ai
         return coef, rss, inv
 
+    theta = np.radians(np.arange(0.0, 360.0, 10.0))
+    fine_offsets = np.radians(np.arange(-10.0, 10.25, 0.5))
+
+    def solve_fixed(A, slide_col, roll_col, r):
+        """As ``solve``, with the slide coefficients held to the circle ``|c_slide| = r``
+        (mm/s^2 / 2). Per axis the other coefficients b minimise ``J = c^T N c - 2 h^T c`` for a
+        given slide coefficient x, ``b = N_bb^-1 (h_b - N_bx x)``, which leaves
+        ``J(x) = alpha x^2 - 2 beta x + const`` (alpha the Schur complement of N_bb); the two
+        axes' x = r (cos th, sin th) are then chosen by the angle th."""
+        G, _, q = A.shape
+        coef = np.zeros((G, q, 2))
+        inv = np.zeros((G, 2, q, q))
+        parts = []
+        for ax in range(2):
+            j0 = 0 if free0[ax] else 1
+            Aa = A[:, :, j0:]
+            y = P[:, ax] - (0.0 if free0[ax] else pin[ax])
+            N = np.einsum("gni,gnj->gij", Aa, Aa)
+            h = np.einsum("gni,n->gi", Aa, y)
+            if roll_col is not None:
+                N[:, roll_col - j0, roll_col - j0] += lam
+                h[:, roll_col - j0] += lam * c_prior[ax]
+            sc = slide_col - j0
+            o = [i for i in range(N.shape[1]) if i != sc]
+            try:
+                Nbb_i = np.linalg.inv(N[:, o][:, :, o])
+                inv[:, ax, j0:, j0:] = np.linalg.inv(N)
+            except np.linalg.LinAlgError:
+                return None
+            Nbx, hb = N[:, o, sc], h[:, o]
+            alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
+            beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
+            parts.append((j0, o, sc, Aa, y, Nbb_i, Nbx, hb, alpha, beta))
+        (ax_, ay_) = parts
+
+        def J(th):  # th (G, K) angles -> J (G, K) up to a constant
+            c, s_ = np.cos(th), np.sin(th)
+            out = r * r * (ax_[8][:, None] * c**2 + ay_[8][:, None] * s_**2) \
+                - 2.0 * r * (ax_[9][:, None] * c + ay_[9][:, None] * s_)
+            if dir_prior is not None:
+                d = np.angle(np.exp(1j * (th - dir_prior)))  # wrapped to (-pi, pi]
+                out = out + sigma_mm**2 * (d / math.radians(cfg.slide_dir_sigma_deg)) ** 2
+            return out
+
+        # A 10-degree grid, then 0.5 degree within 10 degrees of its best (J has at most two
+        # minima on the circle: its stationary points solve a quartic).
+        coarse = np.broadcast_to(theta, (G, len(theta)))
+        th0 = coarse[np.arange(G), np.argmin(J(coarse), axis=1)]
+        fine = th0[:, None] + fine_offsets[None, :]
+        th = fine[np.arange(G), np.argmin(J(fine), axis=1)]
+        rss = np.zeros(G)
+        for ax, (j0, o, sc, Aa, y, Nbb_i, Nbx, hb, _, _) in enumerate(parts):
+            x = r * (np.cos(th) if ax == 0 else np.sin(th))  # (G,)
+            b = np.einsum("gij,gj->gi", Nbb_i, hb - Nbx * x[:, None])
+            c = np.zeros((G, Aa.shape[2]))
+            c[:, o] = b
+            c[:, sc] = x
+            rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
+            coef[:, j0:, ax] = c
+            if not free0[ax]:
+                coef[:, 0, ax] = pin[ax]
+        return coef, rss, inv
+
+    fixed = slide_decel is not None and after
+    dir_prior = None if slide_dir is None else math.atan2(slide_dir[1], slide_dir[0])
     cands = []  # (score, coef (4, 2), inv (2, q, q), rss, k, tk)
     one = np.stack([np.ones(n), tau, tau * tau], axis=1)[None]  # (1, n, 3)
+    if fixed and n >= 4:
+        out = solve_fixed(one, 2, None, 0.5 * slide_decel)
+        if out is not None:
+            coef, rss, inv = out
+            k = 5 - n_pinned
+            c4 = np.zeros((4, 2))
+            c4[:3] = coef[0]
+            cands.append((float(bic(rss, k)[0]), c4, inv[0], float(rss[0]), k, None))
     for roll, k in ((True, 4), (False, 6)):
-        if n < (3 if roll else cfg.quadratic_min_samples):
+        if n < (3 if roll else cfg.quadratic_min_samples) or (fixed and not roll):
             continue
         out = solve(one, 2 if roll else None)
         if out is not None:
@@ -312,7 +424,17 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         A = np.stack([np.ones_like(mm), np.broadcast_to(tau, mm.shape), mm * mm + 2 * mm * r,
                       r * r], axis=-1)
         roll_col, slide_col = (3, 2) if after else (2, 3)
-        out = solve(A, roll_col)
+        if fixed:
+            out = solve_fixed(A, slide_col, roll_col, 0.5 * slide_decel)
+            if out is not None:
+                coef, rss, inv = out
+                k = 6 - n_pinned  # c0, c1 per axis, the slip angle and tk
+                sc = bic(rss, k)
+                g = int(np.argmin(sc))
+                cands.append((float(sc[g]), coef[g], inv[g], float(rss[g]), k, float(tk[g])))
+            out = None
+        else:
+            out = solve(A, roll_col)
         if out is not None:
             coef, rss, inv = out
             a_slide = 2 * np.hypot(*coef[:, slide_col, :].T)
@@ -363,6 +485,7 @@ class _Ball:
     sigma: float = 1.0  # detection noise per axis, mm, estimated from the samples
     moves: list = field(default_factory=list)  # [(i0, i1)] index ranges, inclusive
     marks: list = field(default_factory=list)  # rough event times, s
+    respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
 
     def samples(self, t_lo: float, t_hi: float, exclude=None) -> tuple[np.ndarray, np.ndarray]:
         """Raw samples with t_lo < t < t_hi: ts (n,), ps (n, 2); ``exclude`` (t, half-width)
@@ -386,8 +509,12 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
         missing = [c for c in ("frame", "x", "y") if c not in detections.columns]
         if missing:
             raise ValueError(f"detections lack column(s) {', '.join(missing)}")
-        det_by_frame = {int(f): g[["x", "y"]].to_numpy(float)
-                        for f, g in detections.groupby("frame")}
+        # Split by frame with numpy: a pandas groupby per frame costs more than the fits.
+        f_all = detections["frame"].to_numpy(np.int64)
+        order = np.argsort(f_all, kind="stable")
+        xy_all = detections[["x", "y"]].to_numpy(float)[order]
+        uniq, first = np.unique(f_all[order], return_index=True)
+        det_by_frame = dict(zip(uniq.tolist(), np.split(xy_all, first[1:])))
     out = []
     for tid, g in tracks.groupby("track", sort=True):
         p = g[["x", "y"]].to_numpy(float)
@@ -430,7 +557,37 @@ def _motion(ball: _Ball, cfg: EventConfig) -> None:
             moving = False
     if moving:
         runs.append((i0, len(speed) - 1))
-    ball.moves = [(a, b) for a, b in runs if ball.t[b] - ball.t[a] >= cfg.min_move_s or b > a + 2]
+    # A motion is real only if the ball travels: a resting ball's jittery detections, a new
+    # track's first velocity estimates or a flickering false detection can lift the smoothed
+    # speed over the threshold in place.
+    runs = [(a, b) for a, b in runs
+            if (ball.t[b] - ball.t[a] >= cfg.min_move_s or b > a + 2)
+            and np.max(np.hypot(*(ball.p[a:b + 1] - ball.p[a]).T)) >= cfg.min_travel_mm]
+    # A ball at rest stays at rest until something strikes it, and a player needs far longer
+    # than ``min_rest_s`` to strike again; a shorter dip below the rest speed (a stun or a
+    # spinning ball slowing almost to a halt, then running on) is one motion, not two.
+    merged: list[tuple[int, int]] = []
+    for a, b in runs:
+        if merged and ball.t[a] - ball.t[merged[-1][1]] < cfg.min_rest_s:
+            merged[-1] = (merged[-1][0], b)
+        else:
+            merged.append((a, b))
+    ball.moves = merged
+
+
+def _respots(ball: _Ball, diameter_mm: float) -> list[float]:
+    """Times (s, midway) where the track leaves frames out (the ball was off the table) or
+    jumps between consecutive rows further than its smoothed speeds allow: a ball lifted and
+    put down elsewhere keeps its id (``tracking.tracker``) but its path must not be fitted
+    across the jump. Allowed: a diameter (a strike from rest within one frame) plus twice the
+    distance the faster of the two rows' speeds covers in the interval."""
+    if len(ball.t) < 2:
+        return []
+    step = np.hypot(*np.diff(ball.p, axis=0).T)
+    sp = np.hypot(*ball.v.T)
+    allow = diameter_mm + 2.0 * np.maximum(sp[:-1], sp[1:]) * np.diff(ball.t)
+    k = np.flatnonzero((step > allow) | (np.diff(ball.frame) > 1))  # a jump, or off the table
+    return [float(0.5 * (ball.t[i] + ball.t[i + 1])) for i in k]
 
 
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> float:
@@ -492,8 +649,10 @@ def find_events(
         # A motion that begins or ends at a contact is bounded by the contact itself.
         ends = [b.t[i] for move in b.moves for i in move]
         ends = [m for m in ends if all(abs(m - c) > 3 * dt for c in contacts)]
-        b.marks = sorted(ends + contacts)
+        b.respots = _respots(b, table.ball_diameter_mm)
+        b.marks = sorted(ends + contacts + b.respots)
     by_id = {b.track: b for b in balls}
+    finder.slide_decel = _cloth_slide_decel(finder, balls, rough_cushions, rough_collisions)
 
     rows: list[dict] = []
     for tg, i, j in rough_collisions:
@@ -508,6 +667,8 @@ def find_events(
                 rows.append(r)
     moves = []  # (track, t_begin, t_end)
     for b in balls:
+        # Last row of each stay on the table: before a gap in the frames or a jump.
+        pieces = sorted(int(np.searchsorted(b.t, t)) - 1 for t in b.respots)
         for i0, i1 in b.moves:
             t0 = b.t[i0]
             speed = np.hypot(*b.v[i0:i1 + 1].T)
@@ -522,13 +683,20 @@ def find_events(
                 r = finder.start(b, i0)
                 rows.append(r)
                 t_begin = r["t"]
-            if i1 == len(b.t) - 1 and b.t[i1] < t_clip_end - 0.5 * dt:
+            # The ball's stay on the table that this motion belongs to ends at ``last``: the
+            # track's end, or where it left and came back (a pocketed ball spotted again, a ball
+            # lifted and put down elsewhere, under the same id).
+            last = int(next((e for e in pieces if e >= i1), len(b.t) - 1))
+            gone = b.t[last] < t_clip_end - 0.5 * dt or last < len(b.t) - 1
+            if i1 == last and gone:
                 r = finder.pocket(b, i1)
                 if r is not None:
                     rows.append(r)
                 t_end = r["t"] if r is not None else float(b.t[i1])
-            elif i1 == len(b.t) - 1:
+            elif i1 == last:
                 t_end = float(b.t[i1])  # still moving when the clip ends
+            elif b.t[last] - b.t[i1] < cfg.min_rest_s and gone:
+                t_end = float(b.t[i1])  # gone soon after slowing down: caught, not stopped
             else:
                 last = max([x["t"] for x in rows if x["track"] == b.track and x["t"] <= b.t[i1]
                             + dt], default=t_begin)
@@ -539,9 +707,52 @@ def find_events(
     return _assemble(rows, moves, dt)
 
 
+def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: dict,
+                       rough_collisions: list) -> float | None:
+    """The cloth's sliding deceleration ``mu_s g`` (mm/s^2) measured once for the clip, or None.
+
+    One cloth covers the table, so every slide of the clip (Alciatore 2004: after a cushion, a
+    collision or a stun strike the ball slides at ``mu_s g`` in a fixed direction until it
+    rolls) decelerates alike. Each departure (after a rough cushion contact, a rough collision
+    or the start of a motion) is fitted on its own by ``_piecewise_fit`` with the sliding
+    deceleration free; where a sliding piece of at least ``slide_min_samples`` samples is
+    chosen (slide then roll, or sliding through the whole window), its ``|a|`` is one
+    measurement (with the loose prior about ``slide_decel_mm_s2`` that keeps a short slide's
+    estimate sane). The clip's value is their median (robust to a slide mis-cut at a third
+    piece); None without any, and the departure fits then keep the loose prior.
+    """
+    cfg = finder.cfg
+    dt = finder.dt
+    step = cfg.kink_step_frames * dt
+    found = []
+    for b in balls:
+        t_dep = [tg for tg, _ in rough_cushions[b.track]]
+        t_dep += [tg for tg, i, j in rough_collisions if b.track in (i, j)]
+        t_dep += [float(b.t[i0]) for i0, _ in b.moves if i0 > 0]
+        for tg in t_dep:
+            _, hi = b.bounds(tg, 1.5 * dt)
+            # From a frame past the rough time: the contact lies within a frame of it.
+            ts, ps = b.samples(tg + dt + 0.5 * finder.exposure,
+                               min(hi, tg + cfg.slide_fit_s))
+            if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
+                continue
+            f = _piecewise_fit(ts, ps, tg, b.sigma, step, cfg)
+            if f is None or f.k < 6:
+                continue  # the rolling model was chosen: no slide seen
+            n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
+            if n_slide < cfg.slide_min_samples:
+                continue
+            a = 2.0 * float(np.hypot(*f.coef[2]))
+            if cfg.slide_decel_min_mm_s2 <= a <= cfg.slide_decel_max_mm_s2:
+                found.append(a)
+    return float(np.median(found)) if found else None
+
+
 class _Finder:
     def __init__(self, table: TableSpec, cfg: EventConfig, dt: float, exposure: float):
         self.table, self.cfg, self.dt, self.exposure = table, cfg, dt, exposure
+        # The cloth's sliding deceleration mu_s g (mm/s^2), once measured (find_events).
+        self.slide_decel: float | None = None
         self.segments = {r: [] for r in RAILS}
         for seg in table.cushions():
             ax = 0 if seg.rail in ("bottom", "top") else 1
@@ -557,15 +768,47 @@ class _Finder:
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
-        return (self._side(ta, pa, t_c, b.sigma, step), self._side(td, pd_, t_c, b.sigma, step))
+        return (self._side(ta, pa, t_c, b.sigma, step),
+                self._side(td, pd_, t_c, b.sigma, step, self.slide_decel))
 
-    def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float):
+    def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
+        """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``."""
+        w = self.cfg.fit_window_s
+        ex = (t_c, 0.5 * self.exposure) if exclude else None
+        ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
+        td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
+        return (self._grow(ta, pa, t_c, b.sigma, forward=False),
+                self._grow(td, pd_, t_c, b.sigma, forward=True))
+
+    def _grow(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, forward: bool):
+        """Plain quadratic fit of the samples nearest ``t_c``, grown one sample at a time while
+        a quadratic still explains them within the noise (chi-square test ``RSS / sigma^2 <=
+        chi2.ppf(0.9999, dof)``), so it stops at a kink (sliding turning to rolling) that one
+        parabola cannot follow. Used for collisions: right at the contact the short pieces
+        of a slide-then-roll fit are less steady than one parabola over the samples nearest
+        the contact (event_accuracy.py at 30 fps)."""
+        if not forward:
+            ts, ps = ts[::-1], ps[::-1]
+        n_min = self.cfg.quadratic_min_samples
+        if len(ts) < n_min:
+            return _fit(ts, ps, t_c, self._deg(len(ts)), sigma) if len(ts) >= 2 else None
+        best = _fit(ts[:n_min], ps[:n_min], t_c, 2, sigma)
+        for n in range(n_min + 1, len(ts) + 1):
+            f = _fit(ts[:n], ps[:n], t_c, 2, sigma)
+            dof = 2 * (n - 3)
+            if f.s2 * dof / max(sigma * sigma, 1e-12) > chi2.ppf(0.9999, dof):
+                break
+            best = f
+        return best
+
+    def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float,
+              slide_decel: float | None = None):
         """Piecewise (slide then roll) fit of one side's samples (``_piecewise_fit``). A path the
         chosen model still cannot explain within the noise (chi-square test
         ``RSS / sigma^2 > chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the
         half of the window nearest the contact, at most twice."""
         for _ in range(3):
-            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg)
+            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg, slide_decel=slide_decel)
             if f is None or len(ts) < 2 * self.cfg.quadratic_min_samples:
                 return f
             dof = 2 * f.n - f.k
@@ -576,7 +819,7 @@ class _Finder:
         return f
 
     def _pinned_contact(self, b: _Ball, ax: int, c: float, t_c: float, lo: float, hi: float,
-                        n_a: int, n_d: int):
+                        n_a: int, n_d: int, slide_dir: np.ndarray | None = None):
         """Refine a cushion contact by fitting both sides through the reversal line.
 
         In a rigid impact the centre is on the reversal line ``c`` (normal axis ``ax``) at the
@@ -606,14 +849,18 @@ class _Finder:
 
         def fits(t: float):
             fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin)
-            fd = _piecewise_fit(td, pd_, t, b.sigma, step, self.cfg, pin)
+            fd = _piecewise_fit(td, pd_, t, b.sigma, step, self.cfg, pin, self.slide_decel,
+                                slide_dir)
             if fa is None or fd is None:
                 return math.inf, fa, fd
             return fa.bic + fd.bic, fa, fd
 
-        # Grid of 1/20 frame, then Brent's bounded minimisation within a grid step of the best.
-        grid = np.linspace(t_lo, t_hi, max(3, int(math.ceil((t_hi - t_lo) / (0.05 * self.dt)))
+        # Grid of 1/5 frame, then Brent's bounded minimisation within a grid step of the best.
+        grid = np.linspace(t_lo, t_hi, max(3, int(math.ceil((t_hi - t_lo) / (0.2 * self.dt)))
                                            + 1))
+        # The unpinned fits' crossing time is a grid point too: with little noise the criterion
+        # has a narrow well there that a grid of 1/5 frame can step over.
+        grid = np.unique(np.append(grid, np.clip(t_c, t_lo, t_hi)))
         scores = [fits(float(t))[0] for t in grid]
         g = int(np.argmin(scores))
         if not math.isfinite(scores[g]):
@@ -623,7 +870,7 @@ class _Finder:
         tg = float(grid[g])
         a, z = grid[max(g - 1, 0)] - tg, grid[min(g + 1, len(grid) - 1)] - tg
         res = minimize_scalar(lambda u: fits(tg + float(u))[0], bounds=(a, z), method="bounded",
-                              options={"xatol": 1e-11})
+                              options={"xatol": 1e-9})
         t_best = tg + float(res.x) if res.fun <= scores[g] else tg
         _, fa, fd = fits(t_best)
         return t_best, fa, fd
@@ -690,7 +937,18 @@ class _Finder:
         fa, fd = self._side_fits(b, t_c, lo, hi, exclude=True)
         if fa is None or fd is None:
             return None
-        pinned = self._pinned_contact(b, ax, c, t_c, lo, hi, fa.n, fd.n)
+        # Direction the ball slides after the impact. Arriving rolling (the approach's piece at
+        # the contact is rolling), its spin matches its velocity; the cushion's impulse changes
+        # the velocity by dv = v_out - v_in and, acting near the height of the centre, the spin
+        # much less, so the slip on the cloth just after is close to dv and friction pushes
+        # against it (Alciatore 2004: friction opposes the slip; the spin the nose adds above
+        # the centre shortens the slip but hardly turns it). Used as a loose prior.
+        slide_dir = None
+        if self.slide_decel is not None and (fa.tk is not None or fa.k <= 4):
+            dv = fd.vel(t_c) - fa.vel(t_c)
+            if float(np.hypot(*dv)) > 0:
+                slide_dir = -dv / float(np.hypot(*dv))
+        pinned = self._pinned_contact(b, ax, c, t_c, lo, hi, fa.n, fd.n, slide_dir)
         if pinned is not None:
             t_c, fa, fd = pinned
         along = []
@@ -773,8 +1031,8 @@ class _Finder:
         t_c = tg
         fits = None
         for it in range(3):
-            fa_in, fa_out = self._side_fits(a, t_c, la, ha, exclude=it > 0)
-            fb_in, fb_out = self._side_fits(b, t_c, lb, hb, exclude=it > 0)
+            fa_in, fa_out = self._quadratic_fits(a, t_c, la, ha, exclude=it > 0)
+            fb_in, fb_out = self._quadratic_fits(b, t_c, lb, hb, exclude=it > 0)
             sols = []
             if fa_in is not None and fb_in is not None:
                 sols.append(self._touch_time(fa_in, fb_in, tg, approach=True))
@@ -817,7 +1075,9 @@ class _Finder:
         off = np.hypot(*(ps - p_rest).T) > thr
         first = int(np.argmax(off)) if off.any() else 0
         ts, ps = ts[first:], ps[first:]
-        ts, ps = ts[ts <= ts[0] + self.cfg.start_fit_s], ps[ts <= ts[0] + self.cfg.start_fit_s]
+        if len(ts):  # none where the ball was unseen all along (coasted under an arm)
+            keep = ts <= ts[0] + self.cfg.start_fit_s
+            ts, ps = ts[keep], ps[keep]
         t_prev = float(rest_t[-1]) if len(rest_t) else b.t[i0] - self.dt
         if len(ts) >= 2:
             f = _fit(ts, ps, ts[0], self._deg(len(ts)), self.cfg.meas_sigma_mm)

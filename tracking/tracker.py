@@ -44,7 +44,8 @@ Method
     detection nearest to where it was (balls cannot pass through each other).
 
   Colour and pattern mismatches add to the cost; a ``cue`` pattern detection never goes to an
-  object track (nor a solid/stripe one to the cue track). Unassigned tracks and detections compete
+  object track (nor a solid/stripe one to the cue track) unless its quality is below
+  ``label_min_quality``, when the mismatch only costs. Unassigned tracks and detections compete
   through dummy rows and columns (the usual square augmentation), so a track may stay unassigned.
 * A detection matched through a bounce or jump, or with a predicted ``d2`` above
   ``chi2.ppf(maneuver_prob, 2)``, marks a velocity breakpoint: the filter's velocity is restarted
@@ -54,6 +55,11 @@ Method
   row is dropped, so one-off false detections never make a track. A confirmed track coasts (rows
   with ``seen = 0``) while undetected and ends after ``coast_s`` without a detection; its coasted
   tail is dropped, and its end is classed ``pocket`` (last seen near a pocket mouth) or ``lifted``.
+* A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
+  the ball it was: a new track confirmed at rest while every established ball rests takes back
+  the id of an ended (or unseen, coasting) track with the same identity labels, when exactly one
+  such id exists; the cue ball is one ball, so any earlier cue-ball id (``Tracker._respotted``).
+  That id's rows then have a gap or a jump between the two pieces.
 * Offline, each track is cut at its breakpoints and the Rauch-Tung-Striebel smoother
   (``tracking.kalman.rts_smooth``) runs within each piece, so smoothing never blurs a contact.
 """
@@ -109,6 +115,14 @@ class TrackerConfig:
     track; ``tentative_max_misses`` consecutive misses drop an unconfirmed one.
     ``birth_min_quality``: lowest detector quality that may start a track. ``pocket_reach_mm``:
     a track last seen within this of a pocket mouth ended in the pocket.
+    ``respot_rest_speed_mm_s``: a new track confirmed while it and every ball seen in that frame
+    are slower than this (filtered speed) is a ball put down by hand, and may take back the id
+    of the ball it was (see ``Tracker``); the events' ``move_speed_mm_s`` scale, above the
+    velocity noise of a resting track. ``respot_settle_s``: age below which a track is not
+    yet taken for a ball in that test (common practice: a hand hovers for well under a second).
+    ``label_min_quality``: below this detector quality a detection's cue/object label only costs
+    ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
+    balls merge or an edge blurs, and so does its labelling).
     """
 
     meas_sigma_mm: float = 2.0
@@ -127,10 +141,14 @@ class TrackerConfig:
     tentative_max_misses: int = 2
     birth_min_quality: float = 0.3
     pocket_reach_mm: float = 120.0
+    respot_rest_speed_mm_s: float = 150.0
+    respot_settle_s: float = 1.0
+    label_min_quality: float = 0.5
 
     def __post_init__(self) -> None:
         for name in ("meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
-                     "max_speed_mm_s", "coast_s", "pocket_reach_mm"):
+                     "max_speed_mm_s", "coast_s", "pocket_reach_mm", "respot_rest_speed_mm_s",
+                     "respot_settle_s"):
             value = getattr(self, name)
             if not (math.isfinite(value) and value > 0):
                 raise ValueError(f"TrackerConfig.{name} = {value!r} must be a positive number")
@@ -147,6 +165,8 @@ class TrackerConfig:
         if not 1 <= self.confirm_hits <= self.confirm_window:
             raise ValueError(f"confirm_hits {self.confirm_hits} must lie in 1..confirm_window "
                              f"({self.confirm_window})")
+        if not 0.0 <= self.label_min_quality <= 1.0:
+            raise ValueError(f"label_min_quality {self.label_min_quality} must lie in [0, 1]")
         if self.tentative_max_misses < 1:
             raise ValueError(f"tentative_max_misses {self.tentative_max_misses} must be >= 1")
 
@@ -285,11 +305,13 @@ class Tracker:
             if not group or not len(idx):
                 continue
             pairs = self._assign(group, preds, Z[idx], sig[idx],
-                                 [colours[i] for i in idx], [patterns[i] for i in idx])
+                                 [colours[i] for i in idx], [patterns[i] for i in idx],
+                                 quality[idx])
             for gi, dj, hyp in pairs:
                 assigned[group[gi].key] = (int(idx[dj]), hyp)
                 free[idx[dj]] = False
 
+        newly = []
         for tr in live:
             pred = preds[tr.key]
             if tr.key in assigned:
@@ -301,12 +323,15 @@ class Tracker:
                 tr.misses = 0
                 tr.last_seen_t = t
                 if not tr.confirmed and tr.hits >= self.config.confirm_hits:
-                    tr.track_id = self._next_id
-                    self._next_id += 1
+                    newly.append(tr)
             else:
                 self._coast(tr, pred, frame, t)
                 tr.misses += 1
                 self._maybe_end(tr, t)
+        # Ids are given once every track has this frame's row, so a ball put back by hand is
+        # told from one that is merely seen again.
+        for tr in newly:
+            self._confirm(tr, frame)
 
         # New tentative tracks from detections no track took, unless they sit on a live ball
         # (a duplicate detection of it).
@@ -406,7 +431,8 @@ class Tracker:
             out.append((rail, xr, Pr))
         return out
 
-    def _assign(self, group, preds, Z, sig, colours, patterns) -> list[tuple[int, int, str]]:
+    def _assign(self, group, preds, Z, sig, colours, patterns,
+                quality) -> list[tuple[int, int, str]]:
         """Hungarian assignment of ``group`` tracks to detections Z (D, 2) mm.
 
         Returns (track index, detection index, hypothesis) triples; hypothesis is ``predict``,
@@ -425,8 +451,12 @@ class Tracker:
             for j in range(D):
                 if (kind == "object" and patterns[j] == "cue") or \
                         (kind == "cue" and patterns[j] in ("solid", "stripe")):
-                    ident[j] = _INFEASIBLE
-                    continue
+                    # A confident label forbids the pair; a doubtful detection's (two balls
+                    # seen as one, a blurred edge) only costs like a solid/stripe mismatch.
+                    if quality[j] >= cfg.label_min_quality:
+                        ident[j] = _INFEASIBLE
+                        continue
+                    ident[j] += cfg.pattern_cost
                 if colour and colours[j] and colours[j] != colour:
                     ident[j] += cfg.colour_cost
                 tp = tr.label(tr.patterns, "unknown")
@@ -509,11 +539,16 @@ class Tracker:
                 tr.ended = "dropped"
             return
         if t - tr.last_seen_t > cfg.coast_s:
-            tr.trim_unseen_tail()
-            last = np.array([tr.xs[-1][0], tr.xs[-1][2]])
-            near = min(_segment_distance(last, p.jaw_a, p.jaw_b) for p in self.table.pockets())
-            tr.ended = "pocket" if near <= cfg.pocket_reach_mm else "lifted"
-            log.debug("track %s ended (%s) at t = %.3f s", tr.track_id, tr.ended, tr.times[-1])
+            self._end(tr)
+
+    def _end(self, tr: _Track) -> None:
+        """End a confirmed track at its last detection: ``pocket`` if last seen near a pocket
+        mouth, else ``lifted``."""
+        tr.trim_unseen_tail()
+        last = np.array([tr.xs[-1][0], tr.xs[-1][2]])
+        near = min(_segment_distance(last, p.jaw_a, p.jaw_b) for p in self.table.pockets())
+        tr.ended = "pocket" if near <= self.config.pocket_reach_mm else "lifted"
+        log.debug("track %s ended (%s) at t = %.3f s", tr.track_id, tr.ended, tr.times[-1])
 
     def _birth(self, z, sigma, colour, pattern, frame, t) -> None:
         cfg = self.config
@@ -528,10 +563,82 @@ class Tracker:
         tr.hits = 1
         tr.record(frame, t, kf.x, kf.P, np.eye(4), np.zeros((4, 4)), True, True,
                   (float(z[0]), float(z[1])))
+        self._tracks.append(tr)
         if cfg.confirm_hits <= 1:
+            self._confirm(tr, frame)
+
+    def _confirm(self, tr: _Track, frame: int) -> None:
+        """Give a newly confirmed track its id: the id of the ball it was, when it is a ball
+        put back by hand (``_respotted``), else the next new id."""
+        donor = self._respotted(tr, frame)
+        if donor is None:
             tr.track_id = self._next_id
             self._next_id += 1
-        self._tracks.append(tr)
+            return
+        tr.track_id = donor
+        # The same ball cannot also be coasting where it was: end those tracks now, at their
+        # last detection, so the two pieces of the id never share a frame.
+        for old in self._tracks:
+            if old is not tr and old.track_id == donor and old.ended is None:
+                self._end(old)
+        log.debug("track %s taken back at frame %s (ball put down by hand)", donor, frame)
+
+    def _respotted(self, tr: _Track, frame: int) -> int | None:
+        """The id a new track ``tr`` takes back, or None for a new ball.
+
+        Between shots a player lifts balls and puts them down elsewhere, or takes a pocketed
+        ball out and spots it: the ball is the same, so its id must be too. A new track
+        qualifies when it is confirmed while it and every ball seen in this frame rest (speeds
+        below ``respot_rest_speed_mm_s``); tracks younger than ``respot_settle_s`` do not count
+        as balls here (the hand and arm that place a ball come and go as short false tracks),
+        and a new cue ball need only rest itself (there is one cue ball). The candidates are ids whose tracks have all ended or are coasting unseen, last seen
+        before ``tr`` was born, with ``tr``'s identity labels. The cue ball is one ball, so a
+        cue ball takes the first cue-ball id among them. An object ball must carry the same
+        pattern (solid or stripe) and the same known colour, and takes the id only when exactly
+        one candidate remains (the labels then say which ball it is); else it is a new ball.
+        """
+        vmax = self.config.respot_rest_speed_mm_s
+        kind = tr.kind()
+        colour = tr.label(tr.colours, "")
+        pattern = tr.label(tr.patterns, "unknown")
+        if kind == "unknown" or (kind == "object" and (not colour or pattern == "unknown")):
+            return None
+        if float(np.hypot(tr.kf.x[1, 0], tr.kf.x[3, 0])) >= vmax:
+            return None
+        held: set[int] = set()
+        ids: dict[int, list[_Track]] = {}
+        for old in self._tracks:
+            if old is tr or not old.confirmed or not old.frames:
+                continue
+            seen_now = old.ended is None and old.frames[-1] == frame and old.seen[-1]
+            if seen_now:
+                settled = old.times[-1] - old.times[0] >= self.config.respot_settle_s
+                # A shot is running: not a ball put down between shots. The cue ball is
+                # exempt: there is one, so a resting cue ball is it whatever else moves
+                # (hands and arms make long false tracks while the player sets it down).
+                if kind != "cue" and settled and \
+                        float(np.hypot(old.kf.x[1, 0], old.kf.x[3, 0])) >= vmax:
+                    return None
+                held.add(old.track_id)
+            ids.setdefault(old.track_id, []).append(old)
+        cands = []
+        for tid, olds in ids.items():
+            if tid in held:
+                continue
+            last_seen = max(o.frames[max(k for k, s in enumerate(o.seen) if s)] for o in olds)
+            if last_seen >= tr.birth_frame:
+                continue
+            ref = olds[-1]
+            if kind == "cue":
+                ok = ref.kind() == "cue"
+            else:
+                ok = (ref.kind() == "object" and ref.label(ref.patterns, "unknown") == pattern
+                      and ref.label(ref.colours, "") == colour)
+            if ok:
+                cands.append(tid)
+        if kind == "cue":
+            return min(cands) if cands else None
+        return cands[0] if len(cands) == 1 else None
 
     def _smooth(self, tr: _Track) -> np.ndarray:
         """RTS-smoothed states (N, 4) of ``tr``, run separately between breakpoints."""

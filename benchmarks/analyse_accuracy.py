@@ -1,0 +1,167 @@
+"""Whole ``railtrace analyse`` on every sample clip, scored against each clip's truth.
+
+For each ``sample_clips/NAME.mp4`` this runs ``railtrace.pipeline.analyse_clip`` with the truth
+folder's calibration (``AnalyseConfig(calibration_path=NAME.truth/calibration.json)``, so the
+figures measure detection, tracking and events, not automatic calibration) into
+``OUT/NAME`` and scores the results folder with ``benchmarks/score.py`` against
+``NAME.truth``. Printed per clip, from the scorer (units: mm, ms, frame intervals, %, degrees):
+
+* tracks: truth and result track counts, identity switches (CLEAR-MOT, Bernardin &
+  Stiefelhagen 2008), recall and precision of ball-frames;
+* position error median and p95 (all ball-frames, and resting ones);
+* cushion contacts: recall, precision, median |error| of time (frames), along-rail position,
+  speed in/out, angle in/out and restitution;
+* collisions: recall, precision, median and max |time error| (frames);
+* pockets: truth, results, matched; stops: precision (spurious stops lower it);
+* seconds spent in tracking and in event finding (the vision stage is timed as a whole).
+
+``--reuse DIR`` skips the vision stage: it re-runs tracking and events on ``DIR/NAME/
+detections.csv`` written by an earlier run (same clip, same calibration), which is how the
+tracking and event stages are compared before and after a change while the detector stays
+fixed.
+
+Run: ``.venv/bin/python benchmarks/analyse_accuracy.py [--out DIR] [--clips NAME ...]
+[--reuse DIR] [--json FILE]``. Targets (issue "Follow every ball and time every contact") are
+printed beside the figures.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import pandas as pd
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from benchmarks.score import score  # noqa: E402
+from railtrace.pipeline import AnalyseConfig, analyse_clip  # noqa: E402
+from railtrace.results import write_results  # noqa: E402
+from tracking.events import find_events  # noqa: E402
+from tracking.tracker import track  # noqa: E402
+from vision.calibfile import read_calibration  # noqa: E402
+
+SAMPLES = ROOT / "sample_clips"
+TARGETS = ("targets: id switches 0; position median <= 3 mm; cushion recall/precision >= 0.98, "
+           "time median <= 0.25 frame, along median <= 4 mm, speed <= 3 %, angle <= 1 deg, "
+           "restitution <= 0.03; collision recall >= 0.95, time within 0.5 frame; all pockets")
+
+
+def clips(names: list[str] | None) -> list[str]:
+    """Sample clip names (stems with both ``.mp4`` and ``.truth``), all or the chosen ones."""
+    have = sorted(p.stem for p in SAMPLES.glob("*.mp4") if (SAMPLES / f"{p.stem}.truth").is_dir())
+    if not names:
+        return have
+    bad = [n for n in names if n not in have]
+    if bad:
+        raise SystemExit(f"analyse_accuracy.py: no sample clip {bad}; have {have}")
+    return names
+
+
+def run_clip(name: str, out: Path, reuse: Path | None) -> dict:
+    """Analyse one clip into ``out`` (replaced if present); seconds per stage."""
+    truth = SAMPLES / f"{name}.truth"
+    calib = truth / "calibration.json"
+    table, _, calib_doc = read_calibration(calib)
+    if out.exists():
+        shutil.rmtree(out)
+    timing = {}
+    if reuse is None:
+        t0 = time.perf_counter()
+        analyse_clip(SAMPLES / f"{name}.mp4", out,
+                     AnalyseConfig(table=table, calibration_path=calib))
+        timing["analyse_s"] = time.perf_counter() - t0
+        det = pd.read_csv(out / "detections.csv", dtype={"colour": str, "pattern": str})
+    else:
+        det = pd.read_csv(reuse / name / "detections.csv",
+                          dtype={"colour": str, "pattern": str})
+    # Tracking and events timed on their own (again, after a full run), on the same detections.
+    t0 = time.perf_counter()
+    tr = track(det, table)
+    timing["track_s"] = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    ev, sh = find_events(tr, table, det)
+    timing["events_s"] = time.perf_counter() - t0
+    if reuse is not None:
+        write_results(out, tr, ev, sh, calib_doc, overwrite=True,
+                      run_info={"reused_detections": str(reuse / name)})
+    return timing
+
+
+def key_figures(s: dict) -> dict:
+    """The scorer's key figures (a flat dict) from a :func:`benchmarks.score.score` dict."""
+    tr, pos, ev = s["tracks"], s["position_error_mm"], s["events"]
+    cu, co = ev["cushion"], ev["collision"]
+    ce = cu["errors"]
+    return {
+        "tracks truth/result": f"{tr['truth_tracks']}/{tr['result_tracks']}",
+        "id switches": tr["id_switches"],
+        "track recall": tr["recall"], "track precision": tr["precision"],
+        "position median mm": pos["all"]["median"], "position p95 mm": pos["all"]["p95"],
+        "resting median mm": pos["resting"]["median"],
+        "cushion truth/result": f"{cu['truth']}/{cu['results']}",
+        "cushion recall": cu["recall"], "cushion precision": cu["precision"],
+        "cushion |t| med frames": ce["time_frames"]["median_abs"],
+        "cushion along med mm": ce["along_mm"]["median_abs"],
+        "cushion along p95 mm": ce["along_mm"]["p95_abs"],
+        "speed_in med %": ce["speed_in_pct"]["median_abs"],
+        "speed_out med %": ce["speed_out_pct"]["median_abs"],
+        "angle_in med deg": ce["angle_in_deg"]["median_abs"],
+        "angle_out med deg": ce["angle_out_deg"]["median_abs"],
+        "restitution med": ce["restitution"]["median_abs"],
+        "collision truth/result": f"{co['truth']}/{co['results']}",
+        "collision recall": co["recall"], "collision precision": co["precision"],
+        "collision |t| med frames": co["errors"]["time_frames"]["median_abs"],
+        "collision |t| max frames": co["errors"]["time_frames"]["max_abs"],
+        "pockets truth/result/matched":
+            f"{ev['pocket']['truth']}/{ev['pocket']['results']}/{ev['pocket']['matched']}",
+        "start precision": ev["start"]["precision"], "stop precision": ev["stop"]["precision"],
+    }
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--out", type=Path, default=None,
+                    help="folder for the results folders (default: a temporary one, removed)")
+    ap.add_argument("--clips", nargs="+", default=None, help="sample clip names (default all)")
+    ap.add_argument("--reuse", type=Path, default=None,
+                    help="re-run tracking and events on DIR/NAME/detections.csv")
+    ap.add_argument("--json", type=Path, default=None, help="also write the figures as JSON")
+    args = ap.parse_args(argv)
+    names = clips(args.clips)
+    tmp = None
+    out_root = args.out
+    if out_root is None:
+        tmp = tempfile.mkdtemp(prefix="analyse_accuracy.")
+        out_root = Path(tmp)
+    out_root.mkdir(parents=True, exist_ok=True)
+    table = {}
+    try:
+        for name in names:
+            timing = run_clip(name, out_root / name, args.reuse)
+            figs = key_figures(score(out_root / name, SAMPLES / f"{name}.truth"))
+            figs.update({k: round(v, 1) for k, v in timing.items()})
+            table[name] = figs
+            print(f"{name}: done ({', '.join(f'{k} {v:.1f}' for k, v in timing.items())})",
+                  flush=True)
+    finally:
+        if tmp is not None:
+            shutil.rmtree(tmp, ignore_errors=True)
+    df = pd.DataFrame(table)
+    with pd.option_context("display.max_rows", 100, "display.width", 160,
+                           "display.float_format", "{:.3g}".format):
+        print(df.to_string())
+    print(TARGETS)
+    if args.json:
+        args.json.write_text(json.dumps(table, indent=2, default=str) + "\n")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
