@@ -301,3 +301,49 @@ def test_ray_map_agrees_with_the_camera():
     got = RayMap(cam).backproject(uv, R)
     ref = cam.backproject(uv, R)
     assert np.abs(got - ref).max() < 0.02
+
+
+def test_arm_over_the_table_from_the_first_frame_gives_no_ball():
+    # The player is down on the shot when the clip starts (0.5 s before the strike), so the
+    # first frame, which builds the empty-table model, holds the arm, bridge hand and cue; then
+    # they stroke and withdraw. Neither the occluder nor what it leaves in the model may give a
+    # ball (issue acceptance: no false detections on the occluder).
+    cam = Camera.overhead(NINE_FOOT, 2600.0, (1280, 720), offset_mm=(150, -100), roll_deg=1.5, dist=(-0.12, 0.02, 0.0004, -0.0003, 0.0))
+    occ = Occluder((CueStroke(0.5, (500.0, 640.0), math.radians(8.0)),))
+    ren = Renderer(NINE_FOOT, cam, Look(noise_sigma=2.0), BALLS[:2], occluder=occ, seed=7)
+    at = np.array([[500.0, 640.0], [1300.0, 300.0]])
+    det = BallDetector(cam, NINE_FOOT)
+    extra = []
+    for i, t in enumerate((0.0, 1 / 60, 0.1, 0.2, 0.3, 0.4, 0.45)):
+        frame = ren.render(at[None], _rot(2), np.ones((1, 2), bool), np.array([t]))
+        out = det.process(i, t, frame)
+        err, _ = _match(out, at)
+        extra.append(len(out) - int(np.isfinite(err).sum()))
+    assert sum(extra) == 0, extra
+
+
+@pytest.fixture(scope="module")
+def on_tan():
+    """A cue ball, a yellow stripe and a yellow solid on tan cloth: the object balls share the
+    cloth's hue (far more saturated)."""
+    cam = Camera.overhead(NINE_FOOT, 2300.0, (960, 540), offset_mm=(60, -40), roll_deg=0.5, dist=(-0.2, 0.05, 0, 0, 0))
+    look = Look(cloth_bgr=(106, 154, 176), noise_sigma=3.0, exposure=0.8)
+    balls = (BallLook("cue", "cue", (226, 234, 236)), BallLook("9", "stripe", (32, 176, 224)), BallLook("1", "solid", (32, 176, 224)))
+    at = np.array([[600.0, 500.0], [1500.0, 800.0], [2000.0, 400.0]])
+    ren = Renderer(NINE_FOOT, cam, look, balls, seed=11)
+    frame = ren.render(at[None], _rot(3), np.ones((1, 3), bool), np.zeros(1))
+    out = BallDetector(cam, NINE_FOOT).process(0, 0.0, frame)
+    err, j = _match(out, at)
+    assert np.all(np.isfinite(err)), err
+    return out["pattern"].to_numpy()[j]
+
+
+def test_solid_of_the_cloths_hue_is_a_solid(on_tan):
+    # Common practice: a solid is coloured all over but for a small white number disc; its
+    # colour is not the cloth's for being of the cloth's hue.
+    assert on_tan[0] == "cue" and on_tan[2] == "solid", on_tan
+
+
+@pytest.mark.xfail(strict=True, reason="a stripe whose band (of the cloth's hue) shows only as a thin ring at the rim is taken for the cue ball")
+def test_stripe_of_the_cloths_hue_is_no_cue_ball(on_tan):
+    assert on_tan[1] == "stripe", on_tan

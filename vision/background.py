@@ -8,12 +8,17 @@ clip would be baked in as background (and never detected), and the median of the
 may hold a player's arm. So the model is
 
 1. a frame (or the per-pixel median of a few frames: moving things drop out) with every compact
-   blob that stands out from the *cloth* removed and filled from the surrounding cloth by
-   inpainting (Telea, "An image inpainting technique based on the fast marching method", J.
-   Graphics Tools 9(1), 2004; ``cv2.inpaint``). The cloth is modelled as a smooth field (the
-   lamps' pool of light times the cloth's colour) estimated by robust normalised convolution
-   (Knutsson & Westin, "Normalized and differential convolution", CVPR 1993) with outlier
-   rejection, so balls, chalk and shadows do not pull it;
+   blob that stands out from the *empty table* removed and filled: on the open cloth from the
+   surrounding cloth by inpainting (Telea, "An image inpainting technique based on the fast
+   marching method", J. Graphics Tools 9(1), 2004; ``cv2.inpaint``), along the cushions from
+   the same rail further along. The open cloth is modelled as a smooth field (the lamps' pool
+   of light times the cloth's colour) estimated by robust normalised convolution (Knutsson &
+   Westin, "Normalized and differential convolution", CVPR 1993) with outlier rejection, so
+   balls, chalk and shadows do not pull it; the band along the cushions (nose, face, the shadow
+   under it) by a running median along the rail (:func:`rail_model`), so a ball frozen to a
+   cushion stands out and the cushion does not. What reaches the zone's outer border (an arm,
+   a cue, a pocket) is never filled: it is no resting ball, and filling part of it (a hand but
+   not the cue) would leave a free, ball-sized blob for the detector;
 2. a running average (exponential forgetting) of pixels that hold no detection, so slow lighting
    drift is followed; pixels that differ from the model but hold no detection and stay unchanged
    (a ghost left where an arm or a moved ball was when the model was made) are re-seeded from the
@@ -46,7 +51,10 @@ class BackgroundConfig:
     ball areas are not filled (an arm is no ball; the running update clears it once it leaves).
     ``update_rate``: weight of the current frame in each running update (drift), ``ghost_rate``
     the same for ghost pixels. ``downscale``: working scale of the cloth model (ball diameter in
-    pixels at that scale, at least 2).
+    pixels at that scale, at least 2). ``rail_band_balls``: how far onto the cloth, in ball
+    diameters, the empty table is modelled along the rail (:func:`rail_band`) instead of by the
+    cloth model: the shadow band under the cushion is narrower than this. ``weak_share``: pixels
+    above this share of the blob threshold join a blob within a ball radius of it (hysteresis).
     """
 
     cloth_scale_balls: float = 3.0
@@ -57,11 +65,17 @@ class BackgroundConfig:
     update_rate: float = 0.1
     ghost_rate: float = 0.5
     downscale_ball_px: float = 4.0
+    rail_band_balls: float = 0.5
+    weak_share: float = 0.5
 
     def __post_init__(self) -> None:
         for name in ("cloth_scale_balls", "blob_sigmas", "max_blob_balls", "downscale_ball_px"):
             if not getattr(self, name) > 0:
                 raise ValueError(f"BackgroundConfig.{name} = {getattr(self, name)!r} must be positive")
+        if not 0 < self.weak_share <= 1:
+            raise ValueError(f"BackgroundConfig.weak_share = {self.weak_share!r} must lie in (0, 1]")
+        if not self.rail_band_balls >= 0:
+            raise ValueError(f"BackgroundConfig.rail_band_balls = {self.rail_band_balls!r} must be at least 0")
         for name in ("update_rate", "ghost_rate"):
             if not 0 < getattr(self, name) <= 1:
                 raise ValueError(f"BackgroundConfig.{name} = {getattr(self, name)!r} must lie in (0, 1]")
@@ -100,6 +114,15 @@ def cloth_zone(camera: Camera, table: TableSpec, inset_mm: float = 5.0) -> np.nd
     out = np.nan_to_num(out, nan=1e6).astype(np.float32)
     full = cv2.resize(out, None, fx=step, fy=step, interpolation=cv2.INTER_LINEAR)[:h, :w]
     return full <= -inset_mm
+
+
+def max_abs_diff(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """(H, W) float32: the largest absolute per-channel difference of two (H, W, 3) images.
+
+    ``cv2.absdiff`` and channel-wise maxima: numpy's reduction over a last axis of 3 is an
+    order of magnitude slower on a full frame."""
+    d = cv2.absdiff(np.asarray(a, np.float32), np.asarray(b, np.float32))
+    return np.maximum(np.maximum(d[..., 0], d[..., 1]), d[..., 2])
 
 
 def noise_sigma(diff: np.ndarray, mask: np.ndarray) -> float:
@@ -162,96 +185,159 @@ def cloth_model(image: np.ndarray, cloth: np.ndarray, ball_px: float, config: Ba
 def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig()) -> tuple[np.ndarray, np.ndarray]:
     """``image`` with ball-like blobs removed: (cleaned (H, W, 3) float32, filled (H, W) bool).
 
-    A blob is a connected set of pixels in ``zone`` whose colour distance from the cloth model
-    (:func:`cloth_model`) exceeds ``config.blob_sigmas`` sigmas, from about a third of a ball's
-    area up to ``config.max_blob_balls`` balls' area (counted without thin strips off the cloth);
-    its part that survives an opening by a disc half a ball across (not the cushion's nose line)
-    is grown by ``fill_margin_radii`` ball radii and filled: off the cloth from the same rail
-    further along (:func:`_fill_along_rails`), on it by Telea inpainting (``cv2.inpaint``).
+    Each pixel of ``zone`` is compared with what the empty table shows there: on the open cloth
+    the smooth cloth model (:func:`cloth_model`); in the *rail band* (off the cloth, and up to
+    ``rail_band_balls`` ball diameters onto it: the cushion's top, nose and face and the shadow
+    band under it) the same rail a little way along it (:func:`rail_model`). A blob is a
+    connected set of pixels whose colour distance from that exceeds ``config.blob_sigmas``
+    noise sigmas, or ``weak_share`` of that within a ball radius of such a pixel, with enclosed
+    holes under a ball's area closed (a ball's highlight or number disc can match the cloth),
+    from about a third of a ball's area up to
+    ``config.max_blob_balls`` balls' area, and not reaching the outer border of ``zone``: what
+    comes in over the rail (an arm, a cue) or opens off it (a pocket) is no resting ball. Kept
+    blobs are grown by ``fill_margin_radii`` ball radii and filled: in the rail band from the
+    rail model, elsewhere by Telea inpainting (``cv2.inpaint``).
     """
     img = np.asarray(image)
+    f32 = img.astype(np.float32)
     model, _ = cloth_model(img, cloth, ball_px, config)
-    dist = np.linalg.norm(img.astype(np.float32) - model, axis=2)
-    noise = noise_sigma((img.astype(np.float32) - model), cloth)
+    band = rail_band(zone, cloth, ball_px, config)
+    open_cloth = cloth & ~band
+    noise = noise_sigma(f32 - model, open_cloth if open_cloth.any() else cloth)
     thr = max(config.blob_sigmas * noise * math.sqrt(3), config.blob_min_dn)
-    mask = ((dist > thr) & zone).astype(np.uint8)
-    mask = cv2.morphologyEx(mask, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-    # Opening by a disc half a ball across keeps balls (and groups of them) whole but removes
-    # thin structures: the cushion nose, its face and the shadow band under it stand out from
-    # the cloth model along every rail, in narrow strips, and are part of the empty table.
-    k = max(3, int(round(0.5 * ball_px)) | 1)
-    core = cv2.morphologyEx(mask, cv2.MORPH_OPEN, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (k, k)))
-    # The size test is on the whole connected blob (an arm with its cue is no ball however it
-    # is opened), counting the cloth and the core but not the thin strips off the cloth, so a
-    # ball frozen against a cushion is not joined to the whole rail's nose line.
-    n, lab = cv2.connectedComponents(mask, connectivity=8)
-    area = np.bincount(lab[(cloth | (core > 0)) & (mask > 0)], minlength=n)
+    rail = rail_model(f32, band, cloth, ball_px, 0.5 * thr)
+    ref = np.where(band[..., None], rail, model)
+    # Pixels with no model (rail band round the pockets) are taken as empty table.
+    dist = np.nan_to_num(np.linalg.norm(f32 - ref, axis=2), nan=0.0)
+    strong = ((dist > thr) & zone).astype(np.uint8)
+    # Hysteresis, bounded in reach: pixels above ``weak_share`` of the threshold within a ball
+    # radius of a strong one join it. A dark ball on cloth of its own hue stands out strongly only at its
+    # highlight and in a crescent of shade, a few px each; its body differs by less.
+    reach = int(ball_px) | 1
+    near = cv2.dilate(strong, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (reach, reach)))
+    raw = (strong | ((dist > config.weak_share * thr) & zone & (near > 0))).astype(np.uint8)
+    mask = cv2.morphologyEx(raw, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
     area_ball = math.pi * (ball_px / 2) ** 2
-    keep = (area >= 0.3 * area_ball) & (area <= config.max_blob_balls * area_ball)
+    mask = _close_holes(mask, area_ball)
+    n, lab, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+    area = stats[:, cv2.CC_STAT_AREA]
+    # The zone's outer border: 2 px of the zone next to its outside (the rails beyond the ball
+    # zone, or beyond a pocket's mouth).
+    border = zone & ~cv2.erode(zone.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
+    # Reaching is judged before the opening, with gaps of a pixel bridged: a cue a few px wide
+    # joins the bridge hand on the cloth to the arm over the rail.
+    n_raw, lab_raw = cv2.connectedComponents(cv2.dilate(raw, np.ones((3, 3), np.uint8)), connectivity=8)
+    out_raw = np.zeros(n_raw, bool)
+    out_raw[np.unique(lab_raw[border])] = True
+    out_raw[0] = False
+    reaches = np.zeros(n, bool)
+    reaches[np.unique(lab[(mask > 0) & out_raw[lab_raw]])] = True
+    keep = (area >= 0.3 * area_ball) & (area <= config.max_blob_balls * area_ball) & ~reaches
     keep[0] = False
-    fill = (keep[lab] & (core > 0)).astype(np.uint8)
+    fill = keep[lab].astype(np.uint8)
     if fill.any():
         grow = max(1, int(round(config.fill_margin_radii * ball_px / 2)))
         kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * grow + 1, 2 * grow + 1))
-        fill = cv2.dilate(fill, kernel)
-        radius = max(3.0, ball_px / 6)
+        fill = cv2.dilate(fill, kernel) & zone.astype(np.uint8)
         src = np.clip(img, 0, 255).astype(np.uint8)
-        along, got = _fill_along_rails(src, fill.astype(bool), zone, cloth, ball_px)
-        src[got] = along[got]
-        out = cv2.inpaint(src, (fill.astype(bool) & ~got).astype(np.uint8), radius, cv2.INPAINT_TELEA).astype(np.float32)
+        from_rail = (fill > 0) & band & np.all(np.isfinite(rail), axis=2)
+        src[from_rail] = np.clip(rail[from_rail] + 0.5, 0, 255).astype(np.uint8)
+        radius = max(3.0, ball_px / 6)
+        out = cv2.inpaint(src, ((fill > 0) & ~from_rail).astype(np.uint8), radius, cv2.INPAINT_TELEA).astype(np.float32)
         # Keep the sub-DN precision of the input outside the filled area.
         keepers = fill == 0
-        out[keepers] = img.astype(np.float32)[keepers]
+        out[keepers] = f32[keepers]
     else:
-        out = img.astype(np.float32)
+        out = f32
     return out, fill.astype(bool)
 
 
-def _fill_along_rails(img: np.ndarray, fill: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: float) -> tuple[np.ndarray, np.ndarray]:
-    """Fill the pixels of ``fill`` that lie off the cloth (the cushion top, nose and the shadow
-    band under it) from the same rail a little way along it: (filled (H, W, 3) uint8, done (H, W)
-    bool).
+def _sample(image: np.ndarray, u: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Bilinear samples (N, C) of ``image`` (H, W, C) at (N,) pixel coordinates, in rows of
+    4096 (``cv2.remap`` takes maps under 32767 px a side)."""
+    n = len(u)
+    cols = 4096
+    rows = max(1, -(-n // cols))
+    mu = np.zeros(rows * cols, np.float32)
+    mv = np.zeros(rows * cols, np.float32)
+    mu[:n], mv[:n] = u, v
+    got = cv2.remap(image, mu.reshape(rows, cols), mv.reshape(rows, cols), cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    return got.reshape(rows * cols, -1)[:n]
 
-    The cushion looks the same all along a rail, so the view of it beside a ball that rests
-    against it is the best guess of what the ball hides; inpainting from the surroundings would
-    instead smear the cloth over the nose line. The direction along the rail is the image
-    tangent of the cloth mask's border (perpendicular to the gradient of the distance from the
-    cloth), which keeps the distance from the nose; samples 1.5 and 2.5 ball diameters either
-    way that are themselves outside ``fill`` and in ``zone`` are averaged. Pixels with no such
-    sample (pocket mouths, image borders) are left to the inpainting.
+
+def _close_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
+    """``mask`` ((H, W) uint8 0/1) with its enclosed holes of at most ``max_area`` px set: the
+    connected components of the complement (4-connected) that touch no image border."""
+    n, lab, stats, _ = cv2.connectedComponentsWithStats((mask == 0).astype(np.uint8), connectivity=4)
+    h, w = mask.shape
+    x, y, bw, bh, a = stats[:, 0], stats[:, 1], stats[:, 2], stats[:, 3], stats[:, 4]
+    hole = (a <= max_area) & (x > 0) & (y > 0) & (x + bw < w) & (y + bh < h)
+    hole[0] = False  # label 0 is the mask itself
+    out = mask.copy()
+    if hole.any():
+        out[hole[lab] & (mask == 0)] = 1
+    return out
+
+
+def rail_band(zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig()) -> np.ndarray:
+    """(H, W) bool: the pixels of ``zone`` off the cloth or within ``rail_band_balls`` ball
+    diameters (``ball_px`` px each) of its edge, where the empty table's look is set by the
+    cushion (its nose, face and the shadow band under it) rather than by the open cloth."""
+    inside = cv2.distanceTransform(cloth.astype(np.uint8), cv2.DIST_L2, 5)
+    return zone & (inside <= config.rail_band_balls * ball_px)
+
+
+def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: float, max_spread_dn: float) -> np.ndarray:
+    """The rail band as the empty table shows it: (H, W, 3) float32, NaN off ``band`` and where
+    the rail is not uniform along itself.
+
+    A cushion looks the same all along its rail, at a fixed distance from its nose, and the
+    lamps' light changes over metres, not centimetres; so each band pixel's model is the
+    per-channel median of the frame at the pixel and at 1.5, 2.5 and 3.5 ball diameters either
+    way along the rail (samples off the band or the image dropped). One ball, or two touching
+    ones, cover at most three of the seven samples, so the median is the rail's own colour
+    (common practice: a running median along a structure that is constant along it). The
+    direction along the rail is the image tangent of the cloth's border: perpendicular to the
+    gradient of the signed distance from it. Where the median colour distance of the samples
+    from their median exceeds ``max_spread_dn`` (the rail changes along the tangent: pocket
+    jaws, corners), or fewer than five samples lie in the band, the model is NaN.
     """
-    h, w = fill.shape
-    todo = fill & ~cloth & zone
-    done = np.zeros((h, w), bool)
-    out = img.copy()
-    if not todo.any():
-        return out, done
-    dist = cv2.distanceTransform((~cloth).astype(np.uint8), cv2.DIST_L2, 5)
-    gx = cv2.Sobel(dist, cv2.CV_32F, 1, 0, ksize=5)
-    gy = cv2.Sobel(dist, cv2.CV_32F, 0, 1, ksize=5)
-    vv, uu = np.nonzero(todo)
-    nx, ny = gx[vv, uu], gy[vv, uu]
-    norm = np.hypot(nx, ny)
-    ok = norm > 1e-6
-    tx, ty = np.where(ok, -ny / np.maximum(norm, 1e-6), 0.0), np.where(ok, nx / np.maximum(norm, 1e-6), 0.0)
-    acc = np.zeros((len(vv), 3), np.float32)
-    cnt = np.zeros(len(vv), np.float32)
-    for step in (1.5, -1.5, 2.5, -2.5):
-        su = uu + step * ball_px * tx
-        sv = vv + step * ball_px * ty
+    h, w = band.shape
+    out = np.full((h, w, 3), np.nan, np.float32)
+    vv, uu = np.nonzero(band)
+    if len(vv) == 0:
+        return out
+    c8 = cloth.astype(np.uint8)
+    signed = cv2.distanceTransform(1 - c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE) - cv2.distanceTransform(c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+    # The cloth's border is a staircase of pixels; the direction along it must hold to a
+    # fraction of a pixel over 3.5 ball diameters, so the distance is smoothed over a ball.
+    signed = cv2.GaussianBlur(signed, (0, 0), ball_px)
+    gx = cv2.Sobel(signed, cv2.CV_32F, 1, 0, ksize=5)[vv, uu]
+    gy = cv2.Sobel(signed, cv2.CV_32F, 0, 1, ksize=5)[vv, uu]
+    norm = np.maximum(np.hypot(gx, gy), 1e-6)
+    tx, ty = -gy / norm, gx / norm
+    steps = (0.0, 1.5, -1.5, 2.5, -2.5, 3.5, -3.5)
+    samp = np.full((len(steps), len(vv), 3), np.nan, np.float32)
+    for k, s in enumerate(steps):
+        su = (uu + s * ball_px * tx).astype(np.float32)
+        sv = (vv + s * ball_px * ty).astype(np.float32)
         iu, iv = np.round(su).astype(int), np.round(sv).astype(int)
-        valid = ok & (iu >= 0) & (iu < w) & (iv >= 0) & (iv < h)
-        iu, iv = np.clip(iu, 0, w - 1), np.clip(iv, 0, h - 1)
-        valid &= ~fill[iv, iu] & zone[iv, iu] & ~cloth[iv, iu]
-        # The nearer pair is enough where it is clear; the farther one only fills what it left.
-        valid &= (cnt == 0) | (abs(step) < 2.0)
-        samp = cv2.remap(img, su.astype(np.float32)[None], sv.astype(np.float32)[None], cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
-        acc[valid] += samp[valid].astype(np.float32)
-        cnt[valid] += 1
-    have = cnt > 0
-    out[vv[have], uu[have]] = np.clip(acc[have] / cnt[have, None] + 0.5, 0, 255).astype(np.uint8)
-    done[vv[have], uu[have]] = True
-    return out, done
+        ok = (iu >= 0) & (iu < w) & (iv >= 0) & (iv < h)
+        ok[ok] &= band[iv[ok], iu[ok]]
+        samp[k, ok] = _sample(image, su[ok], sv[ok])
+    srt = np.sort(samp, axis=0)  # NaN last
+    cnt = np.sum(~np.isnan(samp[:, :, 0]), axis=0)
+    lo, hi = np.clip((cnt - 1) // 2, 0, None), cnt // 2
+    idx = np.arange(len(vv))
+    med = 0.5 * (srt[lo, idx] + srt[np.minimum(hi, len(steps) - 1), idx])
+    # Where the rail is not the same along the tangent (round a pocket's jaws, at the corners)
+    # or too few samples lie on it, the median is no model: NaN there.
+    dev = np.linalg.norm(samp - med[None], axis=2)  # (7, N), NaN for dropped samples
+    dev_srt = np.sort(dev, axis=0)
+    spread = dev_srt[np.clip((cnt - 1) // 2, 0, None), idx]
+    valid = (cnt >= 5) & (spread <= max_spread_dn)
+    out[vv[valid], uu[valid]] = med[valid]
+    return out
 
 
 class Background:
@@ -287,12 +373,12 @@ class Background:
         change since the previous update (ghosts) are re-seeded from the cleaned frame at
         ``ghost_rate``."""
         cur = frame.astype(np.float32)
-        diff = np.abs(cur - self.image).max(axis=2)
+        diff = max_abs_diff(cur, self.image)
         thr = fg_sigmas * self.sigma + 3.0
         free = ~protect
         near = (diff <= thr) & free
         cv2.accumulateWeighted(cur, self.image, self.config.update_rate, near.astype(np.uint8))
-        still = np.abs(cur - self._last).max(axis=2) <= thr
+        still = max_abs_diff(cur, self._last) <= thr
         ghost = ((diff > thr) & free & still & self.zone).astype(np.uint8)
         # Single noisy pixels pass a per-pixel threshold somewhere in a large frame every time;
         # a ghost is a compact patch, so isolated pixels are opened away first.

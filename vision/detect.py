@@ -38,14 +38,17 @@ Method
    step (sub-pixel, parabolic peak interpolation) within a window round the predicted silhouette,
    counted only where the colour moves toward the background going outward (so interior
    stripes, number discs and highlights are mostly rejected, and a shadow's soft edge loses to
-   the ball's sharp one).
+   the ball's sharp one). Samples beyond the predicted outline that only dim the empty table
+   (the model's own hue, no brighter), in a run out to the cloth, are cast shadow and measured
+   by :func:`ballness`, so a dark rim that fades into its shadow does not hand the outline to
+   the shadow's far edge; a seed that fails so is tried once without.
 5. *Sphere fit*: each outline point is a ray (``Camera.rays``) that must graze the ball: its
    distance from the ball centre (R above the cloth) equals R (a ray tangent to a sphere). For a
    blurred ball the centre sweeps a segment during the exposure and the outline is that of the
    swept sphere: the ray's distance from the *segment* equals R. Unknowns (x, y) or (x, y, half
    length, heading) are solved by Levenberg-Marquardt (Marquardt 1963) with Tukey biweight
    iteratively reweighted least squares (Holland & Welsch 1977) so touching neighbours, shadows
-   and the cue tip's edges drop out. This is exact under perspective and lens distortion (the
+   and the cue tip's edges drop out; the Jacobian is analytic. This is exact under perspective and lens distortion (the
    silhouette of a sphere seen off-axis is not a circle centred on the centre's image), uses
    the known ball size, and needs only part of the outline. Two rounds: the second searches a
    narrower window round the first fit's predicted silhouette.
@@ -67,8 +70,9 @@ Limits (named honestly): streaks shorter than R of centre travel each way are fo
 the right mid-exposure centre but report ``blur_x = blur_y = 0``; the travel reported for long
 streaks is not yet right (the faint ends are found inside the swept outline); a ball whose dark
 rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
-off; a ball merged with an arm or cue in the image is reported only when its outline is clearly
-separate; colour labels are coarse; the speed is far below the issue's target (see the
+off; a ball of the cloth's own hue (blue on blue, red on red) differs from the cloth mostly by
+its shading and is often missed or placed several mm off; a ball merged with an arm or cue in the
+image is reported only when its outline is clearly separate; colour labels are coarse; the speed is far below the issue's target (see the
 benchmarks).
 """
 
@@ -82,7 +86,7 @@ import cv2
 import numpy as np
 import pandas as pd
 
-from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone
+from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone, max_abs_diff
 from vision.camera import Camera
 from vision.table import TableSpec
 from vision.video import iter_frames
@@ -202,12 +206,31 @@ def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, 
     rho = radius_mm * np.sqrt(1 - radius_mm**2 / d2)
     vh = v / np.sqrt(d2)
     a = np.where(np.abs(vh[:, 2:3]) < 0.9, np.array([[0.0, 0.0, 1.0]]), np.array([[1.0, 0.0, 0.0]]))
-    e1 = np.cross(vh, a)
-    e1 /= np.linalg.norm(e1, axis=1, keepdims=True)
-    e2 = np.cross(vh, e1)
+    e1 = _cross(vh, a)
+    e1 /= np.sqrt(np.sum(e1 * e1, axis=1, keepdims=True))
+    e2 = _cross(vh, e1)
     ang = np.linspace(0, 2 * np.pi, n, endpoint=False)
     pts = q[:, None] + rho[:, None] * (np.cos(ang)[None, :, None] * e1[:, None] + np.sin(ang)[None, :, None] * e2[:, None])
     return camera.project(pts.reshape(-1, 3)).reshape(len(X), n, 2)
+
+
+def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Row-wise cross product of (N, 3) arrays, written out (``np.cross`` costs tens of us of
+    argument handling per call, more than the arithmetic on a few rows)."""
+    return np.column_stack(
+        [a[:, 1] * b[:, 2] - a[:, 2] * b[:, 1], a[:, 2] * b[:, 0] - a[:, 0] * b[:, 2], a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]]
+    )
+
+
+def _median(x: np.ndarray) -> float:
+    """Median of a short 1-D array by ``np.partition`` (``np.median``'s generic reduction
+    machinery dominates its cost on 48 values)."""
+    n = len(x)
+    h = n // 2
+    if n % 2:
+        return float(np.partition(x, h)[h])
+    q = np.partition(x, (h - 1, h))
+    return 0.5 * float(q[h - 1] + q[h])
 
 
 def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float) -> np.ndarray:
@@ -273,16 +296,66 @@ def _residuals(P: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: b
     return np.concatenate([dist - (R - P[:, 2:3]), P[:, 2:3] / _BIAS_SIGMA_MM], axis=1)
 
 
+def _residuals_jacobian(p: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Residuals (K + 1,) of :func:`_residuals` for one parameter row ``p`` and their Jacobian
+    (K + 1, len(p)), analytic.
+
+    With ``n = w x d + s (e x d)`` (``s`` the point of the segment nearest the ray, clipped to
+    the half length) and ``dist = |n|``: ``d dist / d q = n . (d n / d q) / dist``, holding
+    ``s`` fixed where it is inside the segment (there ``d dist / d s = 0``: the envelope
+    theorem) and moving it with the half length where it is clipped. ``d n / d x = e_x x d``,
+    ``d n / d y = e_y x d``, ``d n / d heading = s (e' x d)`` with ``e' = d e / d heading``;
+    the bias enters as ``+1`` (the outline radius is ``R - bias``), and its prior row as
+    ``1 / _BIAS_SIGMA_MM``.
+    """
+    K = len(d)
+    dx, dy, dz = d[:, 0], d[:, 1], d[:, 2]
+    wx, wy, wz = p[0] - C[0], p[1] - C[1], R - C[2]
+    # n = w x d, written out.
+    nx = wy * dz - wz * dy
+    ny = wz * dx - wx * dz
+    nz = wx * dy - wy * dx
+    J = np.zeros((K + 1, len(p)))
+    if capsule:
+        half = max(float(p[3]), 0.0)
+        ex, ey = math.cos(p[4]), math.sin(p[4])
+        # e x d with e = (ex, ey, 0).
+        ax, ay, az = ey * dz, -ex * dz, ex * dy - ey * dx
+        den = np.maximum(ax * ax + ay * ay + az * az, 1e-12)
+        s_free = -(nx * ax + ny * ay + nz * az) / den
+        s = np.clip(s_free, -half, half)
+        nx, ny, nz = nx + s * ax, ny + s * ay, nz + s * az
+    dist = np.sqrt(nx * nx + ny * ny + nz * nz)
+    inv = 1.0 / np.maximum(dist, 1e-12)
+    # e_x x d = (0, -dz, dy); e_y x d = (dz, 0, -dx).
+    J[:K, 0] = (-ny * dz + nz * dy) * inv
+    J[:K, 1] = (nx * dz - nz * dx) * inv
+    J[:K, 2] = 1.0
+    J[K, 2] = 1.0 / _BIAS_SIGMA_MM
+    if capsule:
+        clipped = (np.abs(s_free) > half) & (p[3] > 0)
+        J[:K, 3] = np.where(clipped, np.sign(s_free) * (nx * ax + ny * ay + nz * az) * inv, 0.0)
+        # e' x d with e' = (-sin, cos, 0).
+        bx, by, bz = ex * dz, ey * dz, -ey * dy - ex * dx
+        J[:K, 4] = s * (nx * bx + ny * by + nz * bz) * inv
+    r = np.empty(K + 1)
+    r[:K] = dist - (R - p[2])
+    r[K] = p[2] / _BIAS_SIGMA_MM
+    return r, J
+
+
 def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
     """Levenberg-Marquardt (Marquardt 1963) with Tukey biweight weights (Holland & Welsch 1977,
     tuning constant 4.685 robust sigmas) on the ray residuals; the bias prior keeps weight 1.
-    The Jacobian is by forward differences, all parameters in one :func:`_residuals` call.
+    The Jacobian is analytic (:func:`_residuals_jacobian`); each iteration tries a ladder of
+    four damping values in one batched solve and one :func:`_residuals` call.
     Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y (2, 2) mm^2)."""
     p = np.array(p0, float)
     n = len(p)
-    steps = np.array([0.05, 0.05, 0.05, 0.05, 1e-3])[:n]
     lam = 1e-3
     K = len(d)
+    lams = 8.0 ** np.arange(4)
+    eye = np.eye(n)
 
     def clamp(q):
         q[..., 2] = np.clip(q[..., 2], -0.3 * R, 0.3 * R)
@@ -290,25 +363,20 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
             q[..., 3] = np.clip(q[..., 3], 0.0, 400.0)
         return q
 
-    def jac(p):
-        Q = np.vstack([p, p + np.diag(steps)])
-        rr = _residuals(Q, C, d, R, capsule)
-        return rr[0], ((rr[1:] - rr[0]) / steps[:, None]).T
-
-    r, J = jac(p)
+    r, J = _residuals_jacobian(p, C, d, R, capsule)
     wts = np.ones(K + 1)
     for _ in range(iters):
-        scale = max(1.4826 * float(np.median(np.abs(r[:K]))), 0.2)
+        scale = max(1.4826 * _median(np.abs(r[:K])), 0.2)
         u = r[:K] / (4.685 * scale)
         wts[:K] = np.where(np.abs(u) < 1, (1 - u * u) ** 2, 0.0)
         JW = J * wts[:, None]
         A = JW.T @ J
         g = JW.T @ r
         cost = float(np.sum(wts * r * r))
-        # Candidate steps for a ladder of damping values, evaluated in one call.
-        lams = lam * 8.0 ** np.arange(4)
-        D = np.diag(np.diag(A) + 1e-6)
-        deltas = np.array([np.linalg.solve(A + lm * D, -g) for lm in lams])
+        # Candidate steps for a ladder of damping values, solved and evaluated together:
+        # (A + lambda diag(A)) delta = -g (Marquardt's scaling).
+        damp = (np.diag(A) + 1e-6) * eye
+        deltas = np.linalg.solve(A[None] + (lam * lams)[:, None, None] * damp[None], np.broadcast_to(-g, (4, n))[..., None])[..., 0]
         Q = clamp(p[None] + deltas)
         RQ = _residuals(Q, C, d, R, capsule)
         costs = np.sum(wts[None] * RQ * RQ, axis=1)
@@ -317,8 +385,8 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
             break
         k = int(ok[0])
         p = Q[k]
-        lam = max(lams[k] / 5, 1e-6)
-        r, J = jac(p)
+        lam = max(lam * lams[k] / 5, 1e-6)
+        r, J = _residuals_jacobian(p, C, d, R, capsule)
         if np.max(np.abs(deltas[k, :2])) < 0.005:
             break
     A = (J * wts[:, None]).T @ J
@@ -473,7 +541,7 @@ class BallDetector:
             changed = self._zone_small.copy()
             self._ref_small = small
         else:
-            diff = np.abs(small - self._ref_small).max(axis=2)
+            diff = max_abs_diff(small, self._ref_small)
             changed = (diff > self.config.change_dn) & self._zone_small
         dt = 0.0 if self._last_t is None else max(t_s - self._last_t, 0.0)
         self._last_t = t_s
@@ -567,6 +635,10 @@ class BallDetector:
         rows = []
         for s in seeds:
             r = self._fit_seed(img, s)
+            if r is None and not s["strict"]:
+                # The shadow test of the coarse outline can eat a dark rim between touching
+                # balls; a ball that fails with it is tried once without.
+                r = self._fit_seed(img, s, shadows=False)
             if r is not None:
                 rows.append(r)
         return rows
@@ -619,7 +691,7 @@ class BallDetector:
         return [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": occluder} for p in chosen]
 
     # -- outline and fit --
-    def _edges(self, img: np.ndarray, c: np.ndarray, rho_pred: np.ndarray, half_win: float, dirs: np.ndarray):
+    def _edges(self, img: np.ndarray, c: np.ndarray, rho_pred: np.ndarray, half_win: float, dirs: np.ndarray, shadows: bool = True):
         """Outline points (K, 2) px (NaN where none) along rays from ``c``.
 
         Along each ray the colour distance D = |I - I_out| / |B| from the colour I_out just outside
@@ -643,6 +715,23 @@ class BallDetector:
         # samples of each ray), so an imperfect background under a resting ball does not matter.
         ref = np.median(prof[:, -5:], axis=1)
         D = np.linalg.norm(prof - ref[:, None], axis=2) / np.maximum(np.linalg.norm(bprof, axis=2), 30.0)
+        # A cast shadow differs from the cloth just beyond it but only dims the empty table: a
+        # sample no brighter than the model and within ~4.6 degrees of its colour's direction
+        # (sin 0.08: the cloth's texture and noise; a stripe's band or a black ball lie tens of
+        # degrees off) is measured by :func:`ballness` too (Horprasert et al.'s split of shading
+        # from colour) and the smaller value counts, so the shadow's outer edge is not taken
+        # for the ball's while a ghost in the model, unlike the frame just outside, still does
+        # not count.
+        bb = np.maximum(np.sum(bprof * bprof, axis=2), 1.0)
+        a = np.sum(prof * bprof, axis=2) / bb
+        off_hue = np.linalg.norm(prof - a[..., None] * bprof, axis=2) / np.maximum(np.linalg.norm(prof, axis=2), 20.0)
+        shade = (a < 1.03) & (off_hue < 0.08)
+        # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
+        # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
+        # match the cloth's hue too. ``shadows`` False skips the test.
+        shade = np.flip(np.logical_and.accumulate(np.flip(shade, axis=1), axis=1), axis=1) & (rho >= rho_pred[:, None])
+        if shadows:
+            D = np.where(shade, np.minimum(D, ballness(prof, bprof)), D)
         inner_sel = rho <= 0.8 * rho_pred[:, None]
         inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
         # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
@@ -709,7 +798,10 @@ class BallDetector:
         pts[~ok] = np.nan
         return pts
 
-    def _fit_seed(self, img: np.ndarray, seed: dict) -> dict | None:
+    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True) -> dict | None:
+        """Fit one seed (:meth:`_seeds_of`): a detection row (:data:`COLUMNS`, frame and time
+        left at 0) or None. ``shadows``: whether the coarse outline discounts cast shadows
+        (:meth:`_edges`)."""
         cam, R = self.camera, self.R
         X = self.rays.backproject(seed["uv"][None], R)[0]
         half_mm, heading = 0.0, 0.0
@@ -743,11 +835,11 @@ class BallDetector:
             rho = _ray_polygon(c, dirs, poly)
             if np.any(~np.isfinite(rho)):
                 return None
-            r_loc = float(np.median(rho)) if not capsule else r_px
+            r_loc = _median(rho) if not capsule else r_px
             if win is None:
                 pts = self._edges_local(img, c, rho, dirs)
             else:
-                pts = self._edges(img, c, rho, win * r_loc, dirs)
+                pts = self._edges(img, c, rho, win * r_loc, dirs, shadows=shadows)
             good = np.all(np.isfinite(pts), axis=1)
             if good.sum() < self.config.min_inlier_share * _N_RAYS:
                 if win is None and result is not None:
@@ -788,6 +880,8 @@ class BallDetector:
         uv = cam.project(np.array([[x, y, R]]))[0]
         if seed["strict"] and not self._isolated(img, uv):
             return None
+        if not capsule and self._filled_share(img, uv, r_loc) < 0.6:
+            return None
         hd = float(p[4]) if capsule else 0.0
         travel = 2 * half + 2 * R if capsule else 0.0
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
@@ -823,6 +917,25 @@ class BallDetector:
                 out = max(-x, x - t.length_mm, -y, y - t.width_mm)
                 return out < 0.5 * self.R
         return False
+
+    def _filled_share(self, img: np.ndarray, uv: np.ndarray, r_px: float) -> float:
+        """Share of the pixels within 0.7 of a sharp ball's image radius ``r_px`` round ``uv``
+        that stand out from the empty table (:func:`ballness` above the threshold). A ball covers
+        its whole disc (the least seen on balls here is 0.75, a red ball on red cloth, whose
+        shaded body is of the cloth's own hue); an outline fitted to a thin cue, or to the ghost of
+        one left in the model, encloses mostly cloth (about 0.45)."""
+        r = 0.7 * r_px
+        h, w = img.shape[:2]
+        u0, v0 = max(int(math.floor(uv[0] - r)), 0), max(int(math.floor(uv[1] - r)), 0)
+        u1, v1 = min(int(math.ceil(uv[0] + r)) + 1, w), min(int(math.ceil(uv[1] + r)) + 1, h)
+        if u1 <= u0 or v1 <= v0:
+            return 0.0
+        yy, xx = np.mgrid[v0:v1, u0:u1]
+        inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
+        if not inside.any():
+            return 0.0
+        score = ballness(img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside])
+        return float(np.mean(score > self._score_thr))
 
     def _isolated(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """For seeds inside an arm or cue component: at least 55 % of a ring 1.4 ball radii from
@@ -865,7 +978,10 @@ class BallDetector:
         white = (S < 70) & (V > 0.55 * v_hi) & (V > 70)
         dark = (V < 0.35 * max(v_hi, 1.0)) | (V < 45)
         # Hue distance on OpenCV's 0..180 circle.
-        near_cloth = (cs >= 60) & (np.minimum(np.abs(H - ch), 180 - np.abs(H - ch)) < 10)
+        # Cloth-like: of the cloth's hue and no more saturated than it (plus 20 of 255 for noise
+        # and compression). A yellow ball on tan cloth shares the hue but is far more saturated;
+        # rim pixels mixed with the cloth, a white ball or a cast shadow are not.
+        near_cloth = (cs >= 60) & (np.minimum(np.abs(H - ch), 180 - np.abs(H - ch)) < 10) & (S < cs + 20)
         coloured = (S >= 90) & ~dark & ~white & ~near_cloth
         # Tinted: any visible saturation off the cloth's hue (a dark band at the rim, shaded
         # toward the limb, keeps only part of its saturation).
