@@ -1176,9 +1176,7 @@ def write_check(check: CushionCheck, out_dir, changes: pd.DataFrame | None = Non
     import json
     from dataclasses import asdict
 
-    import cv2
-
-    from vision.atomic import atomic_path, write_text_atomic
+    from vision.atomic import write_image_atomic, write_text_atomic
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -1187,9 +1185,7 @@ def write_check(check: CushionCheck, out_dir, changes: pd.DataFrame | None = Non
     write_text_atomic(paths["cushions.csv"], results_table(check, changes).to_csv(index=False, float_format="%.6g"))
     write_text_atomic(paths["cushion_contacts.csv"], check.contacts.to_csv(index=False, float_format="%.6g"))
     write_text_atomic(paths["cushion_report.txt"], format_report(check, changes) + "\n")
-    with atomic_path(paths["rail_map.png"]) as tmp:
-        if not cv2.imwrite(str(tmp), draw_rail_map(check)):
-            raise ValueError(f"could not write the rail map {paths['rail_map.png']}")
+    write_image_atomic(paths["rail_map.png"], draw_rail_map(check))
     cfg = {k: (list(v) if isinstance(v, tuple) else v) for k, v in asdict(check.config).items()}
     cfg["band_edges_mm_s"] = [e if math.isfinite(e) else "inf" for e in check.config.band_edges_mm_s]
     info = {"folders": list(check.folders), "config": cfg, **(run_info or {})}

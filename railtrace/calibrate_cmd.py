@@ -12,9 +12,7 @@ import argparse
 import sys
 from pathlib import Path
 
-import cv2
-
-from vision.atomic import atomic_path
+from vision.atomic import write_image_atomic
 from vision.calibfile import calibration_dict, write_calibration
 from vision.calibrate import CalibConfig, CalibrationError, calibrate
 from vision.table import parse_table
@@ -72,7 +70,7 @@ def run(args: argparse.Namespace) -> int:
         cal = calibrate(args.clip, table, config)
     except CalibrationError as exc:
         if exc.check_image is not None:
-            _write_image(check, exc.check_image)
+            write_image_atomic(check, exc.check_image)
             raise ValueError(f"{exc} (see {check})") from None
         raise
     source = "manual" if corners else "auto"
@@ -82,19 +80,13 @@ def run(args: argparse.Namespace) -> int:
         quality=cal.quality, origin=cal.origin,
     )
     doc["corners_px"] = cal.corners_px.tolist()
-    _write_image(check, cal.check_image)
+    write_image_atomic(check, cal.check_image)
     write_calibration(out, doc)
     q = cal.quality
     bumps = f", camera moved {len(cal.camera_changes) - 1} time(s)" if len(cal.camera_changes) > 1 else ""
     print(f"wrote {out} and {check}: noses rms {q['nose_rms_px']:.2f} px, {q['sights_found']} sights, "
           f"f {q['focal_px']:.0f} px, k1 {q['k1']:+.3f}, height {q['camera_height_mm']:.0f} mm{bumps}")
     return 0
-
-
-def _write_image(path: Path, img) -> None:
-    with atomic_path(path) as tmp:
-        if not cv2.imwrite(str(tmp), img):
-            raise ValueError(f"could not write the check image {path}")
 
 
 def main(argv=None) -> int:

@@ -38,3 +38,13 @@ def write_text_atomic(path: str | os.PathLike, text: str) -> None:
     """Write ``text`` (UTF-8) to ``path`` atomically."""
     with atomic_path(path) as tmp:
         tmp.write_text(text, encoding="utf-8")
+
+
+def write_image_atomic(path: str | os.PathLike, image) -> None:
+    """Write an (H, W, 3) uint8 BGR image (PNG or JPEG by the name's suffix) atomically;
+    ValueError naming the file when OpenCV cannot write it."""
+    import cv2
+
+    with atomic_path(path) as tmp:
+        if not cv2.imwrite(str(tmp), image):
+            raise ValueError(f"could not write the image {path}; check the folder and the suffix (.png or .jpg)")

@@ -5,8 +5,6 @@ Frames are (H, W, 3) uint8 BGR arrays (OpenCV's channel order, ``img[v, u]``); t
 
 from __future__ import annotations
 
-import os
-import uuid
 from dataclasses import dataclass
 from fractions import Fraction
 from pathlib import Path
@@ -14,6 +12,8 @@ from typing import Iterable, Iterator
 
 import av
 import numpy as np
+
+from vision.atomic import atomic_path
 
 _CODECS = {"h264": "libx264", "mpeg4": "mpeg4"}
 
@@ -65,55 +65,53 @@ def write_video(path, frames: Iterable[np.ndarray], fps: float, codec: str = "h2
     path = Path(path)
     if not path.parent.is_dir():
         raise ValueError(f"folder {str(path.parent)!r} does not exist; create it first")
-    tmp = path.with_name(f".{path.stem}.{uuid.uuid4().hex[:8]}.partial{path.suffix}")
     count = 0
     container = None
-    try:
-        fmt = None if path.suffix else "mp4"
-        container = av.open(str(tmp), mode="w", format=fmt)
-        stream = None
-        for frame in frames:
-            arr = np.asarray(frame)
-            if arr.ndim != 3 or arr.shape[2] != 3 or arr.dtype != np.uint8:
-                raise ValueError(f"frame {count} has shape {arr.shape} and dtype {arr.dtype}; expected (H, W, 3) uint8 BGR")
+    with atomic_path(path, suffix=f".partial{path.suffix}") as tmp:
+        try:
+            fmt = None if path.suffix else "mp4"
+            container = av.open(str(tmp), mode="w", format=fmt)
+            stream = None
+            for frame in frames:
+                arr = np.asarray(frame)
+                if arr.ndim != 3 or arr.shape[2] != 3 or arr.dtype != np.uint8:
+                    raise ValueError(f"frame {count} has shape {arr.shape} and dtype {arr.dtype}; expected (H, W, 3) uint8 BGR")
+                if stream is None:
+                    h, w = arr.shape[:2]
+                    if h % 2 or w % 2:
+                        raise ValueError(f"frame size {w}x{h} is odd; yuv420p needs even width and height (crop a row or column)")
+                    stream = container.add_stream(_CODECS[codec], rate=rate)
+                    stream.width, stream.height = w, h
+                    stream.pix_fmt = "yuv420p"
+                    tb = Fraction(1, rate.numerator)
+                    stream.time_base = tb
+                    stream.codec_context.time_base = tb
+                    if codec == "h264":
+                        stream.options = {"crf": str(q), "preset": preset}
+                    else:
+                        stream.codec_context.qscale = q
+                    size = (h, w)
+                elif arr.shape[:2] != size:
+                    raise ValueError(f"frame {count} is {arr.shape[1]}x{arr.shape[0]}, but the clip is {size[1]}x{size[0]}")
+                vf = av.VideoFrame.from_ndarray(np.ascontiguousarray(arr), format="bgr24")
+                vf.pts = count * rate.denominator  # i / fps in units of 1 / numerator
+                vf.time_base = tb  # the muxer may rescale the stream's own time base once it opens
+                for packet in stream.encode(vf):
+                    container.mux(packet)
+                count += 1
             if stream is None:
-                h, w = arr.shape[:2]
-                if h % 2 or w % 2:
-                    raise ValueError(f"frame size {w}x{h} is odd; yuv420p needs even width and height (crop a row or column)")
-                stream = container.add_stream(_CODECS[codec], rate=rate)
-                stream.width, stream.height = w, h
-                stream.pix_fmt = "yuv420p"
-                tb = Fraction(1, rate.numerator)
-                stream.time_base = tb
-                stream.codec_context.time_base = tb
-                if codec == "h264":
-                    stream.options = {"crf": str(q), "preset": preset}
-                else:
-                    stream.codec_context.qscale = q
-                size = (h, w)
-            elif arr.shape[:2] != size:
-                raise ValueError(f"frame {count} is {arr.shape[1]}x{arr.shape[0]}, but the clip is {size[1]}x{size[0]}")
-            vf = av.VideoFrame.from_ndarray(np.ascontiguousarray(arr), format="bgr24")
-            vf.pts = count * rate.denominator  # i / fps in units of 1 / numerator
-            vf.time_base = tb  # the muxer may rescale the stream's own time base once it opens
-            for packet in stream.encode(vf):
+                raise ValueError("no frames to write; give at least one frame")
+            for packet in stream.encode():
                 container.mux(packet)
-            count += 1
-        if stream is None:
-            raise ValueError("no frames to write; give at least one frame")
-        for packet in stream.encode():
-            container.mux(packet)
-        container.close()
-        container = None
-        os.replace(tmp, path)
-    except BaseException:
-        if container is not None:
-            try:
-                container.close()
-            except Exception:  # the original error matters, not a failure to close a broken file
-                pass
-        tmp.unlink(missing_ok=True)
-        raise
+            container.close()
+            container = None
+        except BaseException:
+            if container is not None:
+                try:
+                    container.close()
+                except Exception:  # the original error matters, not a failure to close a broken file
+                    pass
+            raise
     return count
 
 
