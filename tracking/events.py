@@ -301,6 +301,19 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     c_prior = -0.5 * cfg.roll_decel_mm_s2 * lc[1] / speed if speed > 0 else np.zeros(2)
     lam = (2.0 * max(sigma_mm, 0.05) / cfg.roll_decel_sigma_mm_s2) ** 2  # (sigma / sd of c)^2
 
+    def normal_equations(A, ax, roll_col):
+        """Per axis ``ax``: (j0, A without a pinned c0, pin-shifted y, N = A^T A, h = A^T y),
+        with the ridge prior ``lam (c - c_prior)^2`` on ``roll_col`` added to N and h."""
+        j0 = 0 if free0[ax] else 1
+        Aa = A[:, :, j0:]
+        y = P[:, ax] - (0.0 if free0[ax] else pin[ax])
+        N = np.einsum("gni,gnj->gij", Aa, Aa)
+        h = np.einsum("gni,n->gi", Aa, y)
+        if roll_col is not None:
+            N[:, roll_col - j0, roll_col - j0] += lam
+            h[:, roll_col - j0] += lam * c_prior[ax]
+        return j0, Aa, y, N, h
+
     def solve(A, roll_col):
         """A (G, n, q) columns c0..c{q-1}; per axis least squares with c0 pinned where asked
         and the ridge prior on ``roll_col``. Returns coef (G, q, 2), rss (G,), inverse normal
@@ -310,14 +323,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         inv = np.zeros((G, 2, q, q))
         rss = np.zeros(G)
         for ax in range(2):
-            j0 = 0 if free0[ax] else 1
-            Aa = A[:, :, j0:]
-            y = P[:, ax] - (0.0 if free0[ax] else pin[ax])
-            AtA = np.einsum("gni,gnj->gij", Aa, Aa)
-            Atb = np.einsum("gni,n->gi", Aa, y)
-            if roll_col is not None:
-                AtA[:, roll_col - j0, roll_col - j0] += lam
-                Atb[:, roll_col - j0] += lam * c_prior[ax]
+            j0, Aa, y, AtA, Atb = normal_equations(A, ax, roll_col)
             try:
                 Ai = np.linalg.inv(AtA)
             except np.linalg.LinAlgError:
@@ -344,14 +350,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         inv = np.zeros((G, 2, q, q))
         parts = []
         for ax in range(2):
-            j0 = 0 if free0[ax] else 1
-            Aa = A[:, :, j0:]
-            y = P[:, ax] - (0.0 if free0[ax] else pin[ax])
-            N = np.einsum("gni,gnj->gij", Aa, Aa)
-            h = np.einsum("gni,n->gi", Aa, y)
-            if roll_col is not None:
-                N[:, roll_col - j0, roll_col - j0] += lam
-                h[:, roll_col - j0] += lam * c_prior[ax]
+            j0, Aa, y, N, h = normal_equations(A, ax, roll_col)
             sc = slide_col - j0
             o = [i for i in range(N.shape[1]) if i != sc]
             try:
