@@ -1155,6 +1155,13 @@ def draw_rail_map(check: CushionCheck, scale_px_per_mm: float = 0.36) -> np.ndar
         for o, s_ in zip(org, txt):
             cv2.putText(img, s_, o, font, 0.48, _MAP_INK, 1, cv2.LINE_AA)
     cv2.putText(img, "Cushion speed ratio by segment between sights (rolling arrivals)", (m, 30), font, 0.6, _MAP_INK, 1, cv2.LINE_AA)
+    if not c["usable"].any():
+        # An empty map reads as "every cushion even"; say plainly that nothing was measured.
+        cx, cy = P(t.length_mm / 2, t.width_mm / 2)
+        for k, line in enumerate(("No contact in these clips arrived rolling, so no stretch",
+                                  "was measured. Roll balls into the cushions to check them.")):
+            size = cv2.getTextSize(line, font, 0.7, 1)[0]
+            cv2.putText(img, line, (cx - size[0] // 2, cy - 10 + 30 * k), font, 0.7, (235, 235, 235), 1, cv2.LINE_AA)
     # Legend: the colour ramp.
     x0, y0 = m, Hpx - 40
     for i in range(200):

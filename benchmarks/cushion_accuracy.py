@@ -44,6 +44,40 @@ from railtrace.scene import Scene, load_scene, parse_scene  # noqa: E402
 from vision.table import NINE_FOOT, RAILS, TableSpec, rail_direction, rail_inward_normal  # noqa: E402
 
 
+def rolled_shot(rng: np.random.Generator, table: TableSpec, rail: str, span: tuple[float, float],
+                mu_roll: float = 0.01) -> dict:
+    """One rolled single-contact shot into ``rail`` meeting it between diamonds ``span``, as a
+    scene ``[[shot]]`` dict: arrival speed log-uniform over 0.3-3.6 m/s normal to the rail, angle
+    uniform within +-25 degrees, caught by hand 0.2 s after the contact."""
+    a_roll = mu_roll * 9810.0
+    d_rev = table.reversal_offset_mm
+    n = np.asarray(rail_inward_normal(rail))
+    u = np.asarray(rail_direction(rail))
+    long_rail = rail in ("bottom", "top")
+    for _attempt in range(100):
+        p = rng.uniform(*span)
+        if long_rail and abs(p - 4.0) < 0.3:
+            continue  # the side pocket's mouth
+        ang = math.radians(rng.uniform(-25.0, 25.0))
+        depth = rng.uniform(250.0, 0.6 * (table.width_mm if long_rail else table.length_mm))
+        contact = np.asarray(table.rail_point(rail, p, -d_rev))
+        direction = math.sin(ang) * u - math.cos(ang) * n
+        D = depth / math.cos(ang)
+        start = contact - D * direction
+        margin = 90.0
+        if margin <= start[0] <= table.length_mm - margin and margin <= start[1] <= table.width_mm - margin:
+            break
+    v_arr = math.exp(rng.uniform(math.log(300.0), math.log(3600.0))) / math.cos(ang)
+    v0 = math.sqrt(v_arr**2 + 2 * a_roll * D)
+    t_arrive = (v0 - v_arr) / a_roll
+    return {
+        "ball": "cue", "setup": {"cue": [float(start[0]), float(start[1])]},
+        "aim": {"heading_deg": math.degrees(math.atan2(direction[1], direction[0]))},
+        "speed_mm_s": v0, "spin": {"height": 0.4}, "pause_s": 0.3,
+        "lift_after_s": t_arrive + 0.2,
+    }
+
+
 def session_doc(
     rng: np.random.Generator,
     n_rolled: int = 160,
@@ -53,47 +87,24 @@ def session_doc(
     table: TableSpec = NINE_FOOT,
     mu_roll: float = 0.01,
     spot_shot_mm_s: float | None = 3000.0,
+    focus: tuple[str, float, float, int] | None = None,
 ) -> dict:
     """A room-staff check session as a parsed-TOML scene dict (see the module docstring).
 
-    ``n_rolled`` rolled single-contact shots spread over the four rails in proportion to their
-    length, arrival speeds drawn log-uniformly over 0.3-3.6 m/s and angles uniformly within
-    +-25 degrees; ``n_free`` free-running rolled shots; ``dead_spot`` = (rail, from, to, factor)
-    and ``rail_factor`` go to ``[physics]``.
+    ``n_rolled`` rolled single-contact shots (:func:`rolled_shot`) spread over the four rails in
+    proportion to their length; ``focus`` = (rail, from, to, n) adds ``n`` more into one stretch
+    the staff suspect; ``n_free`` free-running rolled shots; ``dead_spot`` = (rail, from, to,
+    factor) and ``rail_factor`` go to ``[physics]``.
     """
-    g = 9810.0
-    a_roll = mu_roll * g
-    d_rev = table.reversal_offset_mm
-    shots = []
     weights = np.array([table.length_mm if r in ("bottom", "top") else table.width_mm for r in RAILS])
     rails = rng.choice(len(RAILS), size=n_rolled, p=weights / weights.sum())
+    shots = []
     for k in rails:
-        rail = RAILS[k]
-        n = np.asarray(rail_inward_normal(rail))
-        u = np.asarray(rail_direction(rail))
-        span = 8.0 if rail in ("bottom", "top") else 4.0
-        for _attempt in range(100):
-            p = rng.uniform(0.35, span - 0.35)
-            if span == 8.0 and abs(p - 4.0) < 0.3:
-                continue  # the side pocket's mouth
-            ang = math.radians(rng.uniform(-25.0, 25.0))
-            depth = rng.uniform(250.0, 0.6 * (table.width_mm if rail in ("bottom", "top") else table.length_mm))
-            contact = np.asarray(table.rail_point(rail, p, -d_rev))
-            direction = math.sin(ang) * u - math.cos(ang) * n
-            D = depth / math.cos(ang)
-            start = contact - D * direction
-            margin = 90.0
-            if margin <= start[0] <= table.length_mm - margin and margin <= start[1] <= table.width_mm - margin:
-                break
-        v_arr = math.exp(rng.uniform(math.log(300.0), math.log(3600.0))) / math.cos(ang)
-        v0 = math.sqrt(v_arr**2 + 2 * a_roll * D)
-        t_arrive = (v0 - v_arr) / a_roll
-        shots.append({
-            "ball": "cue", "setup": {"cue": [float(start[0]), float(start[1])]},
-            "aim": {"heading_deg": math.degrees(math.atan2(direction[1], direction[0]))},
-            "speed_mm_s": v0, "spin": {"height": 0.4}, "pause_s": 0.3,
-            "lift_after_s": t_arrive + 0.2,
-        })
+        span = 8.0 if RAILS[k] in ("bottom", "top") else 4.0
+        shots.append(rolled_shot(rng, table, RAILS[k], (0.35, span - 0.35), mu_roll))
+    if focus is not None:
+        rail, lo, hi, n_focus = focus
+        shots += [rolled_shot(rng, table, rail, (lo + 0.1, hi - 0.1), mu_roll) for _ in range(n_focus)]
     for _ in range(n_free):
         along = rng.random() < 0.5
         start = [rng.uniform(600, 1900), rng.uniform(300, 970)]

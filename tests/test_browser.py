@@ -112,7 +112,7 @@ def test_controls_catch_broken_image_network_and_console_error(tmp_path):
     assert got["fetched"] == ["http://127.0.0.1:9/none.png"]
 
 
-@pytest.mark.parametrize("name", ["bank_practice", "cushion_check"])
+@pytest.mark.parametrize("name", ["bank_practice", "cushion_check", "cut_bank", "multi_rail_30fps"])
 def test_report_opens_offline_with_every_figure(tmp_path, name):
     folder = tmp_path / name
     shutil.copytree(SAMPLES / f"{name}.truth", folder)
