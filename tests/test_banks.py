@@ -282,7 +282,8 @@ def test_a_bank_that_dies_short_is_measured_along_its_rolled_line(sample_truth):
     s = read_session(folder)
     d = load_drill(drill, s.table)
     intents = intents_for_shots(d.intents, d.repeat, len(s.shots), d.source)
-    clean = audit_session(s, intents).shots
+    clean_audit = audit_session(s, intents)
+    clean = clean_audit.shots
     rng = np.random.default_rng(11)
     tr = s.tracks.copy()
     n = len(tr)
@@ -290,10 +291,14 @@ def test_a_bank_that_dies_short_is_measured_along_its_rolled_line(sample_truth):
         tr[col] = tr[col] + rng.normal(0, sd, n)
     from dataclasses import replace
 
-    noisy = audit_session(replace(s, tracks=tr), intents).shots
+    noisy_audit = audit_session(replace(s, tracks=tr), intents)
+    noisy = noisy_audit.shots
     died = clean[(clean["ended_by"] == "stop") & (clean["target_rail"] == "bottom")]
     assert len(died) >= 2  # the two soft banks
     for k in died.index:
         # Both soft banks stop more than 1 m from the target line: a pure extrapolation.
         assert abs(noisy.loc[k, "long_mm"] - clean.loc[k, "long_mm"]) < 15.0  # mm, 5x the estimate
         assert abs(noisy.loc[k, "correction_diamonds"] - clean.loc[k, "correction_diamonds"]) < 0.05
+    # ... nor the session's fitted correction per band (issue 5: within 0.05 diamond of the truth's).
+    for band, p in clean_audit.correction["by_band"].items():
+        assert abs(noisy_audit.correction["by_band"][band]["correction_diamonds"] - p["correction_diamonds"]) < 0.05
