@@ -536,10 +536,10 @@ def _audit_shot(session: Session, shot: int, row: pd.Series, intent: ShotIntent 
         ball = intent.ball
     track = _resolve_ball(session, ev, cue, ball)
     mine = ev[ev["track"] == track]
-    if track == cue:
-        launch = mine[mine["kind"] == "start"]
-    else:
-        launch = mine[mine["kind"] == "collision"]
+    # A ball the cue set moving (a `start` event) is kicked, whichever track the shot row calls
+    # the cue ball; any other ball is launched by its first collision.
+    struck = mine[mine["kind"] == "start"]
+    launch = struck if not struck.empty else mine[mine["kind"] == "collision"]
     if launch.empty:
         raise _Skip(f"track {track} never set off in this shot")
     launch = launch.iloc[0]
@@ -572,7 +572,7 @@ def _audit_shot(session: Session, shot: int, row: pd.Series, intent: ShotIntent 
             contacts = contacts[:1]
             end = after[after["t"] > contacts[0]["t"]].iloc[0] if (after["t"] > contacts[0]["t"]).any() else None
     tracks = session.tracks[session.tracks["track"] == track].sort_values("t")
-    kind = "kick" if track == cue else "bank"
+    kind = "kick" if not struck.empty else "bank"
     # Per cushion: model split and side spin.
     cushion_rows = []
     w_next = None
