@@ -302,3 +302,18 @@ def test_a_bank_that_dies_short_is_measured_along_its_rolled_line(sample_truth):
     # ... nor the session's fitted correction per band (issue 5: within 0.05 diamond of the truth's).
     for band, p in clean_audit.correction["by_band"].items():
         assert abs(noisy_audit.correction["by_band"][band]["correction_diamonds"] - p["correction_diamonds"]) < 0.05
+
+
+def test_a_ball_named_by_track_is_audited_as_a_kick_from_its_start(spin_session):
+    # A tracker may name another track as a shot's cue ball (something else seen moving); a drill
+    # naming the struck ball by its track must still give the same kick, launched at its start.
+    from dataclasses import replace
+
+    session, audit, _ = spin_session
+    shots = session.shots.copy()
+    shots["cue_track"] = 99
+    intents = [replace(intent_from_shots_row(r, session.table), ball="0") for _, r in session.shots.iterrows()]
+    again = audit_session(replace(session, shots=shots), intents).shots
+    assert list(again["kind"]) == ["kick"] * len(SPIN_SHOTS)
+    assert np.allclose(again["aim_error_mm"], audit.shots["aim_error_mm"], atol=1e-9)
+    assert np.allclose(again["long_mm"], audit.shots["long_mm"], atol=1e-9)
