@@ -74,7 +74,8 @@ class ChartConfig:
 class TableFit:
     """The fitted table: ``physics`` (fitted cloth and cushion), each parameter's standard error,
     residuals (rms angle out deg, rms restitution), how many contacts and shots support it, and
-    ``good`` with ``reason`` when it is not good enough for a chart."""
+    ``good`` with ``reason`` when it is not good enough for a chart; ``n_set_aside``: contacts
+    left out of the fit as outliers (badly measured)."""
 
     physics: PhysicsParams
     e_scale: float
@@ -89,6 +90,7 @@ class TableFit:
     n_legs: int
     good: bool
     reason: str
+    n_set_aside: int = 0
 
     def summary(self) -> str:
         p = self.physics
@@ -96,7 +98,8 @@ class TableFit:
                 f"{p.cushion.mu_cushion:.3f} +- {self.mu_cushion_se:.3f}, cloth sliding {p.mu_slide:.3f} +- "
                 f"{self.mu_slide_se:.3f}, rolling {p.mu_roll:.4f} +- {self.mu_roll_se:.4f}; residuals "
                 f"{self.angle_rms_deg:.2f} deg, restitution {self.e_rms:.3f}; {self.n_contacts} contacts "
-                f"from {self.n_shots} shots")
+                f"from {self.n_shots} shots" + (f" ({self.n_set_aside} more set aside as badly measured)"
+                                                if self.n_set_aside else ""))
 
 
 def _legs_and_contacts(session: Session, audit_shots: pd.DataFrame, side_known: dict[int, float | None]):
@@ -180,8 +183,21 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
         return TableFit(physics_of([1.0, start.cushion.mu_cushion]), 1.0, np.nan, np.nan, se_s, se_r,
                         np.nan, np.nan, len(contacts), n_shots, len(legs), False,
                         f"only {len(contacts)} usable cushion contacts; film at least {config.min_contacts} banks")
-    fit = least_squares(res_cushion, [1.0, start.cushion.mu_cushion], bounds=([0.3, 0.0], [1.3, 0.6]),
-                        diff_step=1e-3, ftol=1e-12, xtol=1e-12, gtol=1e-12)
+    kw = dict(bounds=([0.3, 0.0], [1.3, 0.6]), diff_step=1e-3, ftol=1e-12, xtol=1e-12, gtol=1e-12)
+    # A contact whose departure was badly measured (a slow ball seen over a few centimetres, a
+    # ball hidden by an arm) must not drag the table's parameters: a robust first fit (soft-L1
+    # loss, Huber-like beyond one sigma) finds such contacts, they are set aside when their
+    # residual is beyond three robust standard deviations (:func:`_inliers`), at most a quarter
+    # of them, and the plain fit is redone on the rest.
+    fit = least_squares(res_cushion, [1.0, start.cushion.mu_cushion], loss="soft_l1", f_scale=1.0, **kw)
+    keep = _inliers(fit.fun, config)
+    set_aside = len(contacts) - int(keep.sum())
+    if 0 < set_aside <= len(contacts) // 4:
+        contacts = [c for c, k in zip(contacts, keep) if k]
+        n_shots = len({c[0] for c in contacts})
+    else:
+        set_aside = 0
+    fit = least_squares(res_cushion, fit.x, **kw)
     cov = _cov(fit)
     se = np.sqrt(np.diag(cov))
     r = fit.fun
@@ -198,7 +214,19 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
         reasons.append(f"parameter uncertainty {np.max(se):.3f} (allowed {config.max_se})")
     return TableFit(physics_of(fit.x), float(fit.x[0]), float(se[0]), float(se[1]), se_s, se_r, ang_rms,
                     e_rms, len(contacts), n_shots, len(legs), not reasons,
-                    "; ".join(reasons) if reasons else "fit good enough for a chart")
+                    "; ".join(reasons) if reasons else "fit good enough for a chart", set_aside)
+
+
+def _inliers(residuals: np.ndarray, config: ChartConfig) -> np.ndarray:
+    """(N,) bool: contacts whose angle and restitution residuals (interleaved, (2N,), each in
+    units of its stated sigma in ``config``) both lie within three robust standard deviations of
+    their median (1.4826 x the median absolute deviation, Rousseeuw & Croux 1993, from memory;
+    never less than one stated sigma, so a clean session sets nothing aside)."""
+    out = np.ones(residuals.size // 2, dtype=bool)
+    for r in (residuals[0::2], residuals[1::2]):
+        scale = max(1.4826 * float(np.median(np.abs(r - np.median(r)))), 1.0)
+        out &= np.abs(r - np.median(r)) <= 3.0 * scale
+    return out
 
 
 def _inward(rail: str) -> np.ndarray:

@@ -536,10 +536,10 @@ def _audit_shot(session: Session, shot: int, row: pd.Series, intent: ShotIntent 
         ball = intent.ball
     track = _resolve_ball(session, ev, cue, ball)
     mine = ev[ev["track"] == track]
-    if track == cue:
-        launch = mine[mine["kind"] == "start"]
-    else:
-        launch = mine[mine["kind"] == "collision"]
+    # A ball the cue set moving (a `start` event) is kicked, whichever track the shot row calls
+    # the cue ball; any other ball is launched by its first collision.
+    struck = mine[mine["kind"] == "start"]
+    launch = struck if not struck.empty else mine[mine["kind"] == "collision"]
     if launch.empty:
         raise _Skip(f"track {track} never set off in this shot")
     launch = launch.iloc[0]
@@ -572,7 +572,7 @@ def _audit_shot(session: Session, shot: int, row: pd.Series, intent: ShotIntent 
             contacts = contacts[:1]
             end = after[after["t"] > contacts[0]["t"]].iloc[0] if (after["t"] > contacts[0]["t"]).any() else None
     tracks = session.tracks[session.tracks["track"] == track].sort_values("t")
-    kind = "kick" if track == cue else "bank"
+    kind = "kick" if not struck.empty else "bank"
     # Per cushion: model split and side spin.
     cushion_rows = []
     w_next = None
@@ -651,11 +651,16 @@ def _audit_shot(session: Session, shot: int, row: pd.Series, intent: ShotIntent 
     leg_end = float(end["t"]) if end is not None else math.inf
     leg = tracks[(tracks["t"] > float(last["t"]) + 1e-6) & (tracks["t"] <= leg_end + 1e-9)]
     pts = np.vstack([[last["x"], last["y"]], leg[["x", "y"]].to_numpy()])
-    vel_last = leg[["vx", "vy"]].to_numpy()[-1] if len(leg) else None
+    # The cushion leaves the ball sliding (its roll now turns against the rebound), and a sliding
+    # ball's path curves; once it rolls it runs straight (Leckie & Greenspan 2006 phases), so the
+    # heading is taken from the path after the model's sliding time only.
+    u_out = np.array([vo[0] - table.radius_mm * wo[1], vo[1] + table.radius_mm * wo[0]])
+    t_slide = float(np.hypot(*u_out)) / (3.5 * physics.mu_slide * physics.g_mm_s2)
+    rolled_from = 1 + int(np.searchsorted(leg["t"].to_numpy(), float(last["t"]) + t_slide))
     if end is not None and end["kind"] in ("pocket", "cushion", "collision", "stop"):
         pts = np.vstack([pts, [end["x"], end["y"]]])
     if tl is not None:
-        met = _meet_line(table, pts, vel_last, tl[0])
+        met = _meet_line(table, pts, tl[0], rolled_from)
         k, _ = _axis(tl[0])
         travel = np.sign(pts[-1][k] - pts[0][k]) or 1.0
         long_mm = (met - tl[1]) * travel
@@ -713,9 +718,15 @@ def _pocket_of(table: TableSpec, ev: pd.Series) -> str:
     return min(table.pockets(), key=lambda p: float(np.hypot(*(np.array(p.mouth_centre) - xy)))).name
 
 
-def _meet_line(table: TableSpec, pts: np.ndarray, vel_last, rail: str) -> float:
-    """Rail coordinate (mm) where the path ``pts`` (N, 2) crosses ``rail``'s reversal line; if it
-    never does, where its last straight stretch, extended, would."""
+def _meet_line(table: TableSpec, pts: np.ndarray, rail: str, rolled_from: int = 0) -> float:
+    """Rail coordinate (mm) where the path ``pts`` (N, 2) mm crosses ``rail``'s reversal line; if
+    it never does (it stopped, or met something first), where the straight line fitted to its
+    rolled stretch ``pts[rolled_from:]`` (total least squares: the principal axis of the points),
+    extended in the direction of travel, would.
+
+    A line fitted to the whole rolled stretch, not the last velocity sample: a ball coming to rest
+    has a velocity whose direction is all noise, and a heading error is multiplied by the distance
+    still to go (a soft bank may die a metre short of its target line)."""
     k, m = _axis(rail)
     c = table.reversal_line(rail)
     s = pts[:, m] - c
@@ -725,15 +736,15 @@ def _meet_line(table: TableSpec, pts: np.ndarray, vel_last, rail: str) -> float:
             return float(pts[i - 1, k] + f * (pts[i, k] - pts[i - 1, k]))
         if s[i] == 0:
             return float(pts[i, k])
-    p = pts[-1]
-    if vel_last is not None and np.hypot(*vel_last) > 1.0:
-        d = np.asarray(vel_last, dtype=float)
-    else:
-        j = len(pts) - 2
-        while j > 0 and np.hypot(*(pts[-1] - pts[j])) < 20.0:
-            j -= 1
-        d = pts[-1] - pts[max(j, 0)]
-    return line_meets_line(table, p, p + d, rail, -table.reversal_offset_mm)
+    seg = pts[min(rolled_from, len(pts) - 2):]
+    chord = seg[-1] - seg[0]
+    if len(seg) < 3 or np.hypot(*chord) < 1e-6:
+        seg, chord = pts, pts[-1] - pts[0]
+    centre = seg.mean(axis=0)
+    _, _, vt = np.linalg.svd(seg - centre, full_matrices=False)
+    d = vt[0] if np.hypot(*chord) > 1e-6 else chord
+    d = d if float(d @ chord) >= 0 else -d
+    return line_meets_line(table, centre, centre + d, rail, -table.reversal_offset_mm)
 
 
 def _point_miss(pts: np.ndarray, tpt: np.ndarray, dev_sign: float) -> float:

@@ -114,7 +114,14 @@ def load_drill(path: str | Path, table: TableSpec) -> Drill:
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise DrillError(f"{p}: not valid TOML ({exc}); see docs/drills.md for the format") from None
+        # tomllib puts the place at the end of its message, "(at line 2, column 22)" or "(at end
+        # of document)"; it goes in front here, where every other drill error names its line.
+        m = re.search(r"\s*\(at line (\d+), column (\d+)\)$", str(exc))
+        line = m.group(1) if m else str(text.count("\n") + 1)
+        what = str(exc)[: m.start()] if m else re.sub(r"\s*\(at end of document\)$", "", str(exc))
+        col = f" at column {m.group(2)}" if m else " at the end"
+        raise DrillError(f"{p}:{line}: not valid TOML: {what}{col}; check the quotes, brackets and "
+                         "= signs on that line (format: docs/drills.md)") from None
     lines = _LineFinder(text)
     unknown = sorted(set(doc) - {"player", "table", "drill", "shot", "name", "notes"})
     if unknown:

@@ -56,7 +56,8 @@ TRUE_E_SCALE = 0.9
 def bank_scene_text(shots: list[dict], physics: str = TRUE_PHYSICS, name: str = "bank drill") -> str:
     """A scene (TOML text) with one cue ball banked through sights: each entry of ``shots`` has
     ``at`` (x, y) mm, ``rail``, ``diamond``, ``speed`` mm/s and optionally ``side``, ``height``,
-    ``aim_error_deg`` and ``target``. A lone cue ball struck through a sight is a kick to a
+    ``aim_error_deg``, ``target`` and ``lift_after_s`` (a hand catches the ball then, s after
+    the strike, to keep a filmed session short). A lone cue ball struck through a sight is a kick to a
     pocket or rail point (scenario invented for railtrace)."""
     lines = [f'name = "{name}"', "lead_s = 0.3", "tail_s = 0.2", "seed = 5", "[table]",
              'preset = "9ft"', "[camera]", "fps = 60", "[look]", "occluder = false", physics,
@@ -68,6 +69,8 @@ def bank_scene_text(shots: list[dict], physics: str = TRUE_PHYSICS, name: str = 
                   f"speed_mm_s = {s['speed']}",
                   f"spin = {{ side = {s.get('side', 0.0)}, height = {s.get('height', 0.0)} }}",
                   f"aim_error_deg = {s.get('aim_error_deg', 0.0)}", "pause_s = 0.5"]
+        if "lift_after_s" in s:
+            lines.append(f"lift_after_s = {s['lift_after_s']:.3f}")
         if "target" in s:
             lines.append(f'target = "{s["target"]}"')
     return "\n".join(lines) + "\n"

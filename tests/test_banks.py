@@ -270,3 +270,50 @@ def test_drill_on_a_truth_folder_matches_its_scene(sample_truth):
     a = audit_session(s, intents_for_shots(d.intents, d.repeat, len(s.shots), d.source), BankConfig())
     # The drill's sights are those the scene sent the 1 through (ghost-ball aims straight behind).
     assert a.shots["declared_diamond"].round(2).tolist()[:2] == [3.48, 4.42]
+
+
+def test_a_bank_that_dies_short_is_measured_along_its_rolled_line(sample_truth):
+    # The sample's soft banks stop a metre short of the bottom rail, so long/short is where their
+    # line, extended, meets it. Tracker-sized noise (positions 0.5 mm, velocities 8 mm/s; the
+    # analysed sample's resting balls show velocities of that size) must not swing it: a heading
+    # fitted over ~80 mm of rolled path with 0.5 mm noise is good to about 0.15 deg, i.e. about
+    # 3 mm after 1.1 m (least-squares slope error sigma / (L sqrt(N / 12)), standard regression).
+    folder, drill, _ = sample_truth
+    s = read_session(folder)
+    d = load_drill(drill, s.table)
+    intents = intents_for_shots(d.intents, d.repeat, len(s.shots), d.source)
+    clean_audit = audit_session(s, intents)
+    clean = clean_audit.shots
+    rng = np.random.default_rng(11)
+    tr = s.tracks.copy()
+    n = len(tr)
+    for col, sd in (("x", 0.5), ("y", 0.5), ("vx", 8.0), ("vy", 8.0)):
+        tr[col] = tr[col] + rng.normal(0, sd, n)
+    from dataclasses import replace
+
+    noisy_audit = audit_session(replace(s, tracks=tr), intents)
+    noisy = noisy_audit.shots
+    died = clean[(clean["ended_by"] == "stop") & (clean["target_rail"] == "bottom")]
+    assert len(died) >= 2  # the two soft banks
+    for k in died.index:
+        # Both soft banks stop more than 1 m from the target line: a pure extrapolation.
+        assert abs(noisy.loc[k, "long_mm"] - clean.loc[k, "long_mm"]) < 15.0  # mm, 5x the estimate
+        assert abs(noisy.loc[k, "correction_diamonds"] - clean.loc[k, "correction_diamonds"]) < 0.05
+    # ... nor the session's fitted correction per band (issue 5: within 0.05 diamond of the truth's).
+    for band, p in clean_audit.correction["by_band"].items():
+        assert abs(noisy_audit.correction["by_band"][band]["correction_diamonds"] - p["correction_diamonds"]) < 0.05
+
+
+def test_a_ball_named_by_track_is_audited_as_a_kick_from_its_start(spin_session):
+    # A tracker may name another track as a shot's cue ball (something else seen moving); a drill
+    # naming the struck ball by its track must still give the same kick, launched at its start.
+    from dataclasses import replace
+
+    session, audit, _ = spin_session
+    shots = session.shots.copy()
+    shots["cue_track"] = 99
+    intents = [replace(intent_from_shots_row(r, session.table), ball="0") for _, r in session.shots.iterrows()]
+    again = audit_session(replace(session, shots=shots), intents).shots
+    assert list(again["kind"]) == ["kick"] * len(SPIN_SHOTS)
+    assert np.allclose(again["aim_error_mm"], audit.shots["aim_error_mm"], atol=1e-9)
+    assert np.allclose(again["long_mm"], audit.shots["long_mm"], atol=1e-9)

@@ -61,6 +61,9 @@ def test_repeating_drill_applies_to_every_shot(tmp_path):
     ('\n\n[[shot]]\naim = { rail = "top", diamond = "3" }\n', 4, ["must be a number"]),
     ('[[shot]]\nspin = { side = 0.5, height = 0.5 }\n', 2, ["miscue"]),
     ('[[shot]]\ntarget = "bottom-side"\ncolour = "red"\n', 3, ["unknown key 'colour'"]),
+    ('[[shot]]\ntarget = "bottom-side\n', 2, ["not valid TOML", "column", "quotes"]),
+    ('[[shot]]\ntarget = 5\n', 2, ["target must be a pocket name"]),
+    ('[[shot]]\naim = "top 3"\n', 2, ["aim must be a sight"]),
 ])
 def test_bad_drill_gets_one_line_with_file_line_and_fix(tmp_path, text, line, words):
     p = _write(tmp_path, text)
