@@ -33,7 +33,11 @@ Method
    its second moments when elongated by blur); a larger one (touching balls) seeds one ball per
    peak of its distance transform at least ~0.7 ball radius deep; one that reaches the edge of
    the ball zone (an arm or cue coming in over the rail) seeds only deep, isolated peaks and
-   its fits must pass stricter outline tests.
+   its fits must pass stricter outline tests, among them a ring round the ball mostly free (as
+   round a whole ball touching the arm, not a hand or knuckle continued by it). Whether a
+   component cut off by the side of its box reaches the zone's edge is judged on the whole
+   frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
+   ball. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak.
 4. *Outline*: along 48 rays from the predicted image centre, the outline is the strongest colour
    step (sub-pixel, parabolic peak interpolation) within a window round the predicted silhouette,
    counted only where the colour moves toward the background going outward (so interior
@@ -118,6 +122,11 @@ _MIN_HALF_STREAK_R = 1.0
 _LOCAL_ROUNDS = 6
 # A step this share of the strongest on its ray, lying farther out, is taken as the silhouette.
 _OUTER_SHARE = 0.5
+# Ring round a candidate inside an arm or cue component, in ball radii, and the least share of
+# it that must be free of foreground: what a whole ball touching a straight edge leaves free
+# (the edge, R from the centre, hides 2 acos(1 / 1.4) of the ring), less one of 64 samples.
+_RING_R = 1.4
+_ISOLATED_SHARE = 1.0 - math.acos(1.0 / _RING_R) / math.pi - 1.0 / 64
 
 
 @dataclass(frozen=True)
@@ -517,6 +526,9 @@ class BallDetector:
         self.background: Background | None = None
         self._ref_small: np.ndarray | None = None
         self._prev = empty_detections()
+        # Per frame: which foreground of the whole frame reaches the zone's border (built on
+        # demand by :meth:`_reaching`), keyed by the frame's identity.
+        self._reach: tuple[np.ndarray, np.ndarray] | None = None
         self._since_update = 0.0
         self._last_t: float | None = None
         self._white_v: float | None = None
@@ -525,6 +537,11 @@ class BallDetector:
         self._zone_small = cv2.resize(self.zone.astype(np.uint8), self._small_size, interpolation=cv2.INTER_NEAREST) > 0
         # Zone border: pixels of the zone next to its outside (where arms and cues come in).
         self._zone_edge = self.zone & ~cv2.erode(self.zone.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
+        # The same at half scale, for the whole-frame reach test.
+        self._half_size = (max(w // 2, 1), max(h // 2, 1))
+        zone_h = cv2.resize(self.zone.astype(np.uint8), self._half_size, interpolation=cv2.INTER_NEAREST)
+        self._zone_half = zone_h > 0
+        self._zone_edge_half = self._zone_half & ~cv2.erode(zone_h, np.ones((3, 3), np.uint8)).astype(bool)
 
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
@@ -620,6 +637,7 @@ class BallDetector:
         fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
         n, lab, stats, cents = cv2.connectedComponentsWithStats(fg, connectivity=8)
         edge = self._zone_edge[v0:v1, u0:u1]
+        h, w = img.shape[:2]
         seeds = []
         area_min = math.pi * self.r_min_px**2
         for i in range(1, n):
@@ -630,6 +648,13 @@ class BallDetector:
             comp = (lab[by : by + bh, bx : bx + bw] == i).astype(np.uint8)
             occluder = bool(np.any(edge[by : by + bh, bx : bx + bw] & (comp > 0)))
             ys, xs = np.nonzero(comp)
+            cut = (bx == 0 and u0 > 0) or (by == 0 and v0 > 0) or (bx + bw == u1 - u0 and u1 < w) or (by + bh == v1 - v0 and v1 < h)
+            if cut and not occluder:
+                # The box holds only what changed: a still arm over the rail with a moving
+                # bridge hand is cut at the box's side, and the hand alone looks like a free
+                # ball. Whether the piece belongs to something reaching in over the rail is
+                # judged on the whole frame.
+                occluder = bool(np.any(self._reaching(img)[(ys + by + v0) // 2, (xs + bx + u0) // 2]))
             pts = np.column_stack([xs + bx + u0, ys + by + v0]).astype(float)
             seeds += self._seeds_of(comp, pts, (bx + u0, by + v0), occluder)
         rows = []
@@ -642,6 +667,25 @@ class BallDetector:
             if r is not None:
                 rows.append(r)
         return rows
+
+    def _reaching(self, img: np.ndarray) -> np.ndarray:
+        """(H/2, W/2) bool at half scale (pixel (v, u) of the frame is ``[v // 2, u // 2]``):
+        foreground of the whole frame whose connected component (8-connected) reaches the ball
+        zone's border, i.e. enters over the rail like an arm or cue. Built once per frame, on
+        demand; half scale keeps a cue (about 6 px wide at 2 mm per px) connected at a quarter
+        of the cost of the full frame."""
+        if self._reach is not None and self._reach[0] is img:
+            return self._reach[1]
+        small = cv2.resize(img, self._half_size, interpolation=cv2.INTER_AREA)
+        bg = cv2.resize(self.background.image, self._half_size, interpolation=cv2.INTER_AREA)
+        fg = ((ballness(small, bg) > self._score_thr) & self._zone_half).astype(np.uint8)
+        n, lab = cv2.connectedComponents(fg, connectivity=8)
+        hit = np.zeros(n, bool)
+        hit[lab[self._zone_edge_half & (fg > 0)]] = True
+        hit[0] = False
+        out = hit[lab]
+        self._reach = (img, out)
+        return out
 
     def _seeds_of(self, comp: np.ndarray, pts: np.ndarray, origin, occluder: bool) -> list[dict]:
         """Seeds (image centre, half streak px along a unit axis, strict flag) of one component."""
@@ -660,7 +704,12 @@ class BallDetector:
             half_wid = (perp.max() - perp.min() + 1) / 2
             hull = cv2.convexHull(pts.astype(np.float32))
             solidity = a / max(cv2.contourArea(hull), 1.0)
-            if half_wid <= 1.35 * r_loc and solidity >= 0.9:
+            # A ball, sharp or swept along its motion, is a ball's width across: at lateral
+            # offset y the swept sphere's chord is 2 sqrt(R^2 - y^2), so a streak's foreground
+            # narrows below R only where its middle barely clears the threshold (coverage at
+            # 0.5 R off the axis is still 87 % of the middle's). A thinner piece is a cue, a
+            # finger or an edge, not a ball.
+            if 0.5 * r_loc <= half_wid <= 1.35 * r_loc and solidity >= 0.9:
                 if half_len > 1.5 * r_loc and half_len < 2.6 * r_loc:
                     # Two touching balls or one blurred ball? A sphere swept along a segment
                     # is widest at the middle of its streak (every point there is covered
@@ -938,15 +987,24 @@ class BallDetector:
         return float(np.mean(score > self._score_thr))
 
     def _isolated(self, img: np.ndarray, uv: np.ndarray) -> bool:
-        """For seeds inside an arm or cue component: at least 55 % of a ring 1.4 ball radii from
-        the centre must be background, as round a ball lying next to the cue."""
-        r = 1.4 * self.ball_px / 2
+        """For seeds inside an arm or cue component: a ring ``_RING_R`` ball radii from the
+        centre (64 samples) must be background (:func:`ballness` below the threshold) on at
+        least ``_ISOLATED_SHARE`` of its length.
+
+        A whole ball lying against an arm, hand or cue touches its (straight or convex) edge at
+        one point, R from the centre, and the ring is hidden only beyond that edge: an arc of
+        ``2 acos(1 / _RING_R)`` (89 degrees), a quarter of the ring; one more sample is allowed
+        for sampling. A piece of the occluder itself (a hand between the wrist and the cue, a
+        knuckle) is continued by the rest of the occluder and usually hides more; the bare
+        rounded end of something exactly a ball wide hides 2 asin(1 / 1.4) (91 degrees) and is
+        not told apart by this test."""
+        r = _RING_R * self.ball_px / 2
         a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
         mx = (uv[0] + r * np.cos(a)).astype(np.float32)[None]
         my = (uv[1] + r * np.sin(a)).astype(np.float32)[None]
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)[0]
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
-        return float(np.mean(ballness(f, b) < self._score_thr)) >= 0.55
+        return float(np.mean(ballness(f, b) < self._score_thr)) >= _ISOLATED_SHARE
 
     def _identity(self, img: np.ndarray, uv: np.ndarray, r_px: float) -> tuple[str, str]:
         """Colour label and pattern from the pixels inside 0.88 of the ball's image radius
