@@ -37,7 +37,10 @@ Method
    round a whole ball touching the arm, not a hand or knuckle continued by it). Whether a
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
-   ball. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak.
+   ball. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
+   fitted streak must fade in and out along its motion over about a ball's length, as a swept
+   ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded, ends
+   sharply.
 4. *Outline*: along 48 rays from the predicted image centre, the outline is the strongest colour
    step (sub-pixel, parabolic peak interpolation) within a window round the predicted silhouette,
    counted only where the colour moves toward the background going outward (so interior
@@ -664,9 +667,57 @@ class BallDetector:
                 # The shadow test of the coarse outline can eat a dark rim between touching
                 # balls; a ball that fails with it is tried once without.
                 r = self._fit_seed(img, s, shadows=False)
+            if r is not None and (r["blur_x"] or r["blur_y"]) and not self._soft_ends(img, r):
+                r = None
             if r is not None:
                 rows.append(r)
         return rows
+
+    def _soft_ends(self, img: np.ndarray, row: dict) -> bool:
+        """Whether a fitted streak (a detection row with a nonzero blur vector) fades in and out
+        along its motion as a swept ball does.
+
+        A sphere whose centre sweeps ``[-h, h]`` at an even pace during the exposure covers a
+        point of the axis at ``s`` for ``|[s - R, s + R] & [-h, h]| / 2h`` of it: for h >= R (every
+        streak fitted as one, see ``_MIN_HALF_STREAK_R``) a plateau that falls linearly to 0 over
+        ``2R`` at each end, so the colour's departure from the empty table, linear in the
+        coverage, falls from 75 % to 25 % of the plateau over R. Something still and ball-wide but
+        elongated (a hand, a forearm's end) ends sharply, within the optics' blur (a pixel or
+        two). The profile is sampled along the fitted axis at ball-centre height (mean of three
+        lines 0.3 R apart across it); the softer end must fall over at least half of R.
+        """
+        R = self.R
+        bx, by = float(row["blur_x"]), float(row["blur_y"])
+        h = max(math.hypot(bx, by) / 2 - R, R)
+        e = np.array([bx, by]) / max(math.hypot(bx, by), 1e-9)
+        n = np.array([-e[1], e[0]])
+        step = 0.5 * 2 * R / self.ball_px  # half a pixel, mm
+        s = np.arange(-(h + 2 * R), h + 2 * R + 1e-9, step)
+        c = np.array([row["x"], row["y"]])
+        xy = c[None, None] + s[None, :, None] * e + np.array([-0.3 * R, 0.0, 0.3 * R])[:, None, None] * n
+        pts = self.camera.project(np.column_stack([xy.reshape(-1, 2), np.full(xy.shape[0] * xy.shape[1], R)]))
+        mx = pts[:, 0].astype(np.float32).reshape(xy.shape[:2])
+        my = pts[:, 1].astype(np.float32).reshape(xy.shape[:2])
+        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        # |I - B| is linear in the coverage for a ball of one colour (I = c P + (1 - c) B).
+        D = (np.linalg.norm(f - b, axis=2) / np.maximum(np.linalg.norm(b, axis=2), 30.0)).mean(axis=0)
+        D = np.convolve(D, np.ones(3) / 3, mode="same")
+        plateau = float(np.percentile(D[np.abs(s) <= h], 90))
+        if plateau <= 0:
+            return False
+        widths = []
+        for side in (1, -1):
+            out = side * s > 0
+            ss, dd = side * s[out], D[out]
+            order = np.argsort(ss)
+            ss, dd = ss[order], dd[order]
+            hi = ss[dd >= 0.75 * plateau]
+            lo = ss[dd >= 0.25 * plateau]
+            if len(hi) == 0 or len(lo) == 0:
+                continue
+            widths.append(float(lo.max() - hi.max()))
+        return bool(widths) and max(widths) >= 0.5 * R
 
     def _reaching(self, img: np.ndarray) -> np.ndarray:
         """(H/2, W/2) bool at half scale (pixel (v, u) of the frame is ``[v // 2, u // 2]``):
