@@ -37,7 +37,9 @@ Method
    round a whole ball touching the arm, not a hand or knuckle continued by it). Whether a
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
-   ball. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
+   ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
+   half inside its box is not half a ball. Small holes in a component (a highlight or mark of
+   the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
    fitted streak must fade in and out along its motion over about a ball's length, as a swept
    ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded, ends
    sharply.
@@ -416,6 +418,21 @@ def _fit_rms(result) -> float:
     return float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
 
 
+def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
+    """(h, w) uint8 0/1 mask with its holes (background regions, 4-connected, that do not
+    reach the mask's edge) of at most ``max_area`` px filled."""
+    inv = np.pad(1 - mask, 1, constant_values=1).astype(np.uint8)
+    n, lab, stats, _ = cv2.connectedComponentsWithStats(inv, connectivity=4)
+    if n <= 2:
+        return mask
+    outer = lab[0, 0]
+    small = (stats[:, cv2.CC_STAT_AREA] <= max_area) & (np.arange(n) != outer)
+    small[0] = False
+    out = mask.copy()
+    out[small[lab[1:-1, 1:-1]]] = 1
+    return out
+
+
 def _row_median(a: np.ndarray) -> np.ndarray:
     """Median of each row of a 2-D array ignoring NaN (NaN for an all-NaN row); sorting puts
     NaN last, so the median is read at half each row's count without ``np.nanmedian``'s loop."""
@@ -652,14 +669,25 @@ class BallDetector:
             occluder = bool(np.any(edge[by : by + bh, bx : bx + bw] & (comp > 0)))
             ys, xs = np.nonzero(comp)
             cut = (bx == 0 and u0 > 0) or (by == 0 and v0 > 0) or (bx + bw == u1 - u0 and u1 < w) or (by + bh == v1 - v0 and v1 < h)
-            if cut and not occluder:
+            origin = (bx + u0, by + v0)
+            if cut:
                 # The box holds only what changed: a still arm over the rail with a moving
                 # bridge hand is cut at the box's side, and the hand alone looks like a free
-                # ball. Whether the piece belongs to something reaching in over the rail is
-                # judged on the whole frame.
-                occluder = bool(np.any(self._reaching(img)[(ys + by + v0) // 2, (xs + bx + u0) // 2]))
-            pts = np.column_stack([xs + bx + u0, ys + by + v0]).astype(float)
-            seeds += self._seeds_of(comp, pts, (bx + u0, by + v0), occluder)
+                # ball; a ball half in the box looks like half a ball. Whether the piece belongs
+                # to something reaching in over the rail is judged on the whole frame, and its
+                # seeds are taken from the piece made whole within two ball diameters.
+                if not occluder:
+                    occluder = bool(np.any(self._reaching(img)[(ys + by + v0) // 2, (xs + bx + u0) // 2]))
+                comp, origin, at_edge = self._whole_piece(img, xs + bx + u0, ys + by + v0)
+                occluder |= at_edge
+                ys, xs = np.nonzero(comp)
+            pts = np.column_stack([xs + origin[0], ys + origin[1]]).astype(float)
+            found = self._seeds_of(comp, pts, origin, occluder)
+            if cut:
+                # What lies outside the box has not changed: its detections are carried over.
+                m = self.r_max_px
+                found = [q for q in found if u0 - m <= q["uv"][0] < u1 + m and v0 - m <= q["uv"][1] < v1 + m]
+            seeds += found
         rows = []
         for s in seeds:
             r = self._fit_seed(img, s)
@@ -719,6 +747,32 @@ class BallDetector:
             widths.append(float(lo.max() - hi.max()))
         return bool(widths) and max(widths) >= 0.5 * R
 
+    def _whole_piece(self, img: np.ndarray, us: np.ndarray, vs: np.ndarray) -> tuple[np.ndarray, tuple[int, int], bool]:
+        """The foreground component (as in :meth:`_detect_box`) holding the pixels ``us``,
+        ``vs`` (int arrays, px) of a piece cut by its box, found in a window grown round the
+        piece by two ball diameters: (mask (h, w) uint8 cropped to the component, its origin
+        (u, v) px, whether it touches the ball zone's border)."""
+        H, W = img.shape[:2]
+        g = int(math.ceil(2 * self.ball_px))
+        wu0, wv0 = max(int(us.min()) - g, 0), max(int(vs.min()) - g, 0)
+        wu1, wv1 = min(int(us.max()) + g + 1, W), min(int(vs.max()) + g + 1, H)
+        score = ballness(img[wv0:wv1, wu0:wu1], self.background.image[wv0:wv1, wu0:wu1])
+        fg = ((score > self._score_thr) & self.zone[wv0:wv1, wu0:wu1]).astype(np.uint8)
+        fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        hit = lab[vs - wv0, us - wu0]
+        hit = hit[hit > 0]
+        if len(hit) == 0:  # cannot happen (same pixels, same test), but keep the piece then
+            u_, v_ = int(us.min()), int(vs.min())
+            comp = np.zeros((int(vs.max()) - v_ + 1, int(us.max()) - u_ + 1), np.uint8)
+            comp[vs - v_, us - u_] = 1
+            return comp, (u_, v_), bool(np.any(self._zone_edge[vs, us]))
+        k = int(np.bincount(hit).argmax())
+        bx, by, bw, bh = stats[k, :4]
+        comp = (lab[by : by + bh, bx : bx + bw] == k).astype(np.uint8)
+        edge = self._zone_edge[wv0 + by : wv0 + by + bh, wu0 + bx : wu0 + bx + bw]
+        return comp, (wu0 + int(bx), wv0 + int(by)), bool(np.any(edge & (comp > 0)))
+
     def _reaching(self, img: np.ndarray) -> np.ndarray:
         """(H/2, W/2) bool at half scale (pixel (v, u) of the frame is ``[v // 2, u // 2]``):
         foreground of the whole frame whose connected component (8-connected) reaches the ball
@@ -777,8 +831,10 @@ class BallDetector:
                             {"uv": cen + off, "axis": axis, "half_px": 0.0, "strict": False},
                         ]
                 return [{"uv": cen, "axis": axis, "half_px": max(half_len - r_loc, 0.0), "strict": False}]
-        # Distance-transform peaks: one per ball of a touching group.
-        dtm = cv2.distanceTransform(comp, cv2.DIST_L2, 5)
+        # Distance-transform peaks: one per ball of a touching group. A ball's image is a whole
+        # disc: holes in it smaller than half a ball (a highlight or mark that happens to match
+        # the cloth) are filled first, or a one-pixel hole at its middle would halve its depth.
+        dtm = cv2.distanceTransform(_fill_small_holes(comp, 0.5 * area_ball), cv2.DIST_L2, 5)
         floor = (0.8 if occluder else 0.65) * self.r_min_px
         peaks = (dtm >= floor) & (dtm >= cv2.dilate(dtm, np.ones((3, 3), np.uint8)) - 1e-3)
         ys, xs = np.nonzero(peaks)
