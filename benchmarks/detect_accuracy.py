@@ -377,7 +377,7 @@ def sample_clip(name: str, first: int, last: int) -> int:
     truth = {f: g[["x", "y"]].to_numpy() for f, g in tr.groupby("frame")}
     det = BallDetector(camera, table)
     false, missed, balls, ms = 0, 0, 0, []
-    false_frames = set()
+    false_frames, missed_frames = set(), []
     for i, t, img in iter_frames(root / f"{name}.mp4"):
         if i >= last:
             break
@@ -393,9 +393,14 @@ def sample_clip(name: str, first: int, last: int) -> int:
         false += nf
         if nf:
             false_frames.add(i)
-        missed += int(np.sum(D.min(axis=0, initial=np.inf) > table.radius_mm))
+        nm = int(np.sum(D.min(axis=0, initial=np.inf) > table.radius_mm))
+        missed += nm
+        if nm:
+            missed_frames.append(i)
         balls += len(P)
     print(f"{name} frames {first}..{last - 1}: {false} false detections in {len(false_frames)} frames; {missed} of {balls} true ball-frames missed")
+    print(f"frames with false detections: {sorted(false_frames)}")
+    print(f"frames with a missed ball: {missed_frames}")
     print(f"detector time per frame: median {np.median(ms):.1f} ms, mean {np.mean(ms):.1f} ms")
     return 0
 

@@ -215,6 +215,25 @@ def test_arm_and_hand_over_blue_cloth_give_no_ball(phase, t0, t1):
     assert sum(missed) == 0, (phase, missed)
 
 
+def test_small_holes_are_filled_and_large_ones_kept():
+    from vision.detect import _fill_small_holes
+
+    # Analytic masks: a disc of radius 12 px with a 2 x 2 px hole at its middle, and a ring
+    # (radii 12 and 30 px) round a hole of about 450 px; holes up to 100 px are filled.
+    yy, xx = np.mgrid[:80, :100]
+    r = np.hypot(xx - 40.0, yy - 40.0)
+    disc = (r <= 12).astype(np.uint8)
+    disc[39:41, 39:41] = 0
+    ring = ((r <= 30) & (r > 12)).astype(np.uint8)
+    assert _fill_small_holes(disc, 100.0)[39:41, 39:41].all()
+    assert int(_fill_small_holes(disc, 100.0).sum()) == int(disc.sum()) + 4
+    np.testing.assert_array_equal(_fill_small_holes(ring, 100.0), ring)
+    # Background that reaches the mask's edge is no hole, however small.
+    edge = np.ones((10, 10), np.uint8)
+    edge[0, 4] = 0
+    np.testing.assert_array_equal(_fill_small_holes(edge, 100.0), edge)
+
+
 CUSHION_SCENE = """
 name = "cushion contacts: a ball rolled into the bottom rail and back, two balls frozen to rails"
 lead_s = 0.1
