@@ -81,7 +81,10 @@ streaks is not yet right (the faint ends are found inside the swept outline); a 
 rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
 off; a ball of the cloth's own hue (blue on blue, red on red) differs from the cloth mostly by
 its shading and is often missed or placed several mm off; a ball merged with an arm or cue in the
-image is reported only when its outline is clearly separate; colour labels are coarse; the speed is far below the issue's target (see the
+image is reported only when its outline is clearly separate and at most about a quarter of the
+ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
+lost for those frames); the end of an arm exactly a ball wide and still is not told from a ball
+by its ring; colour labels are coarse; the speed is far below the issue's target (see the
 benchmarks).
 """
 
