@@ -399,8 +399,8 @@ def sample_clip(name: str, first: int, last: int) -> int:
             missed_frames.append(i)
         balls += len(P)
     print(f"{name} frames {first}..{last - 1}: {false} false detections in {len(false_frames)} frames; {missed} of {balls} true ball-frames missed")
-    print(f"frames with false detections: {sorted(false_frames)}")
-    print(f"frames with a missed ball: {missed_frames}")
+    for what, fr in (("false detections", sorted(false_frames)), ("a missed ball", missed_frames)):
+        print(f"frames with {what}: {fr[:40]}{' ...' if len(fr) > 40 else ''}")
     print(f"detector time per frame: median {np.median(ms):.1f} ms, mean {np.mean(ms):.1f} ms")
     return 0
 
