@@ -12,7 +12,15 @@ gate of one ball radius); prints
   occluder's image footprint, from the scene's strokes and the renderer's own occluder model);
 * false detections: all, and how many lie on the occluder or in a pocket.
 
-Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...]``.
+With ``--clip NAME`` it instead runs the detector on frames ``--frames FIRST LAST`` of the
+sample clip ``sample_clips/NAME.mp4`` (true camera from ``NAME.truth``) and counts detections
+farther than a ball radius from every true ball of their frame (false detections: in the sample
+clips these lie on the cue, hands and arms or in pockets, as no other objects are filmed) and
+true balls with no detection within a ball radius (missed; under the occluder too), and prints
+the detector's time per frame (median and mean, ms).
+
+Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...]`` or
+``.venv/bin/python benchmarks/detect_accuracy.py --clip cushion_check --frames 0 1200``.
 """
 
 from __future__ import annotations
@@ -358,6 +366,45 @@ def evaluate(name: str, work: Path) -> dict:
     return {"name": name, "errors": E, "false": F, "fps": scene.camera and scene.film.fps, "shutter": scene.film.shutter_s, "seconds": elapsed, "frames": int(tr["frame"].max()) + 1}
 
 
+def sample_clip(name: str, first: int, last: int) -> int:
+    """False and missed detections on frames ``first`` .. ``last`` - 1 of a sample clip."""
+    from vision.detect import BallDetector
+    from vision.video import iter_frames
+
+    root = Path(__file__).resolve().parents[1] / "sample_clips"
+    table, camera, _ = read_calibration(root / f"{name}.truth" / "calibration.json")
+    tr = pd.read_csv(root / f"{name}.truth" / "tracks.csv")
+    truth = {f: g[["x", "y"]].to_numpy() for f, g in tr.groupby("frame")}
+    det = BallDetector(camera, table)
+    false, missed, balls, ms = 0, 0, 0, []
+    false_frames, missed_frames = set(), []
+    for i, t, img in iter_frames(root / f"{name}.mp4"):
+        if i >= last:
+            break
+        t0 = time.perf_counter()
+        out = det.process(i, t, img)
+        if i < first:
+            continue
+        ms.append(1000 * (time.perf_counter() - t0))
+        P = truth.get(i, np.zeros((0, 2)))
+        Q = out[["x", "y"]].to_numpy()
+        D = np.linalg.norm(Q[:, None] - P[None], axis=2) if len(P) and len(Q) else np.full((len(Q), len(P)), np.inf)
+        nf = int(np.sum(D.min(axis=1, initial=np.inf) > table.radius_mm))
+        false += nf
+        if nf:
+            false_frames.add(i)
+        nm = int(np.sum(D.min(axis=0, initial=np.inf) > table.radius_mm))
+        missed += nm
+        if nm:
+            missed_frames.append(i)
+        balls += len(P)
+    print(f"{name} frames {first}..{last - 1}: {false} false detections in {len(false_frames)} frames; {missed} of {balls} true ball-frames missed")
+    for what, fr in (("false detections", sorted(false_frames)), ("a missed ball", missed_frames)):
+        print(f"frames with {what}: {fr[:40]}{' ...' if len(fr) > 40 else ''}")
+    print(f"detector time per frame: median {np.median(ms):.1f} ms, mean {np.mean(ms):.1f} ms")
+    return 0
+
+
 def _q(s: pd.Series, q: float) -> str:
     return f"{s.quantile(q):6.2f}" if len(s) else "   n/a"
 
@@ -366,7 +413,11 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--work", default="/tmp/railtrace_detect_bench", help="folder for the filmed clips (reused)")
     ap.add_argument("--only", nargs="*", default=None, help="scene names to run (default all)")
+    ap.add_argument("--clip", default=None, help="a sample clip's name (sample_clips/NAME.mp4): count false and missed detections instead")
+    ap.add_argument("--frames", nargs=2, type=int, default=(0, 300), metavar=("FIRST", "LAST"), help="with --clip: the frames to score, FIRST to LAST - 1")
     args = ap.parse_args(argv)
+    if args.clip:
+        return sample_clip(args.clip, *args.frames)
     names = args.only or list(SCENES)
     unknown = [n for n in names if n not in SCENES]
     if unknown:

@@ -345,7 +345,8 @@ class Background:
 
     ``Background(frames, zone, cloth, ball_px, config)`` builds the model from one or more frames
     (per-pixel median, then :func:`clean_frame`). ``image`` is the (H, W, 3) float32 model;
-    ``sigma`` the per-channel noise sigma (DN) of frames about it.
+    ``sigma`` the per-channel noise sigma (DN) of frames about it; ``updates`` counts the calls
+    of :meth:`update` (what a cached copy of ``image`` is checked against).
     """
 
     def __init__(self, frames, zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig()):
@@ -365,6 +366,7 @@ class Background:
         self.image, _ = clean_frame(base, self.zone, self.cloth, self.ball_px, config)
         self.sigma = noise_sigma(stack[-1].astype(np.float32) - self.image, self.cloth)
         self._last = stack[-1].astype(np.float32)
+        self.updates = 0
 
     def update(self, frame: np.ndarray, protect: np.ndarray, fg_sigmas: float = 4.0) -> None:
         """Fold ``frame`` into the model, leaving ``protect`` ((H, W) bool, e.g. discs round the
@@ -372,6 +374,7 @@ class Background:
         ``update_rate`` (lighting drift); pixels far from it that held no detection and did not
         change since the previous update (ghosts) are re-seeded from the cleaned frame at
         ``ghost_rate``."""
+        self.updates += 1
         cur = frame.astype(np.float32)
         diff = max_abs_diff(cur, self.image)
         thr = fg_sigmas * self.sigma + 3.0

@@ -33,7 +33,16 @@ Method
    its second moments when elongated by blur); a larger one (touching balls) seeds one ball per
    peak of its distance transform at least ~0.7 ball radius deep; one that reaches the edge of
    the ball zone (an arm or cue coming in over the rail) seeds only deep, isolated peaks and
-   its fits must pass stricter outline tests.
+   its fits must pass stricter outline tests, among them a ring round the ball mostly free (as
+   round a whole ball touching the arm, not a hand or knuckle continued by it). Whether a
+   component cut off by the side of its box reaches the zone's edge is judged on the whole
+   frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
+   ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
+   half inside its box is not half a ball. Small holes in a component (a highlight or mark of
+   the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
+   fitted streak must fade in and out along its motion over about a ball's length, as a swept
+   ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded, ends
+   sharply.
 4. *Outline*: along 48 rays from the predicted image centre, the outline is the strongest colour
    step (sub-pixel, parabolic peak interpolation) within a window round the predicted silhouette,
    counted only where the colour moves toward the background going outward (so interior
@@ -72,7 +81,10 @@ streaks is not yet right (the faint ends are found inside the swept outline); a 
 rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
 off; a ball of the cloth's own hue (blue on blue, red on red) differs from the cloth mostly by
 its shading and is often missed or placed several mm off; a ball merged with an arm or cue in the
-image is reported only when its outline is clearly separate; colour labels are coarse; the speed is far below the issue's target (see the
+image is reported only when its outline is clearly separate and at most about a quarter of the
+ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
+lost for those frames); the end of an arm exactly a ball wide and still is not told from a ball
+by its ring; colour labels are coarse; the speed is far below the issue's target (see the
 benchmarks).
 """
 
@@ -118,6 +130,11 @@ _MIN_HALF_STREAK_R = 1.0
 _LOCAL_ROUNDS = 6
 # A step this share of the strongest on its ray, lying farther out, is taken as the silhouette.
 _OUTER_SHARE = 0.5
+# Ring round a candidate inside an arm or cue component, in ball radii, and the least share of
+# it that must be free of foreground: what a whole ball touching a straight edge leaves free
+# (the edge, R from the centre, hides 2 acos(1 / 1.4) of the ring), less one of 64 samples.
+_RING_R = 1.4
+_ISOLATED_SHARE = 1.0 - math.acos(1.0 / _RING_R) / math.pi - 1.0 / 64
 
 
 @dataclass(frozen=True)
@@ -186,9 +203,13 @@ def ballness(image: np.ndarray, background: np.ndarray) -> np.ndarray:
     """
     I = np.asarray(image, np.float32)
     B = np.asarray(background, np.float32)
-    bb = np.sum(B * B, axis=-1)
-    a = np.sum(I * B, axis=-1) / np.maximum(bb, 1.0)
-    cd = np.linalg.norm(I - a[..., None] * B, axis=-1) / np.maximum(np.sqrt(bb), 30.0)
+    ib = np.einsum("...c,...c->...", I, B)
+    bb = np.einsum("...c,...c->...", B, B)
+    ii = np.einsum("...c,...c->...", I, I)
+    a = ib / np.maximum(bb, 1.0)
+    # |I - a B|^2 = I.I - 2 a I.B + a^2 B.B: three dot products instead of a (..., 3) temporary
+    # (float32 rounding of the difference is below 0.1 DN here, far under any threshold).
+    cd = np.sqrt(np.maximum(ii - 2.0 * a * ib + a * a * bb, 0.0)) / np.maximum(np.sqrt(bb), 30.0)
     return cd + np.maximum(a - 1.15, 0.0) + 1.5 * np.maximum(0.5 - a, 0.0)
 
 
@@ -404,6 +425,21 @@ def _fit_rms(result) -> float:
     return float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
 
 
+def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
+    """(h, w) uint8 0/1 mask with its holes (background regions, 4-connected, that do not
+    reach the mask's edge) of at most ``max_area`` px filled."""
+    inv = np.pad(1 - mask, 1, constant_values=1).astype(np.uint8)
+    n, lab, stats, _ = cv2.connectedComponentsWithStats(inv, connectivity=4)
+    if n <= 2:
+        return mask
+    outer = lab[0, 0]
+    small = (stats[:, cv2.CC_STAT_AREA] <= max_area) & (np.arange(n) != outer)
+    small[0] = False
+    out = mask.copy()
+    out[small[lab[1:-1, 1:-1]]] = 1
+    return out
+
+
 def _row_median(a: np.ndarray) -> np.ndarray:
     """Median of each row of a 2-D array ignoring NaN (NaN for an all-NaN row); sorting puts
     NaN last, so the median is read at half each row's count without ``np.nanmedian``'s loop."""
@@ -517,6 +553,9 @@ class BallDetector:
         self.background: Background | None = None
         self._ref_small: np.ndarray | None = None
         self._prev = empty_detections()
+        # Per frame: which foreground of the whole frame reaches the zone's border (built on
+        # demand by :meth:`_reaching`), keyed by the frame's identity.
+        self._reach: tuple[np.ndarray, np.ndarray] | None = None
         self._since_update = 0.0
         self._last_t: float | None = None
         self._white_v: float | None = None
@@ -525,6 +564,14 @@ class BallDetector:
         self._zone_small = cv2.resize(self.zone.astype(np.uint8), self._small_size, interpolation=cv2.INTER_NEAREST) > 0
         # Zone border: pixels of the zone next to its outside (where arms and cues come in).
         self._zone_edge = self.zone & ~cv2.erode(self.zone.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
+        # The same at half scale, for the whole-frame reach test.
+        self._half_size = (max(w // 2, 1), max(h // 2, 1))
+        zone_h = cv2.resize(self.zone.astype(np.uint8), self._half_size, interpolation=cv2.INTER_NEAREST)
+        self._zone_half = zone_h > 0
+        self._zone_edge_half = self._zone_half & ~cv2.erode(zone_h, np.ones((3, 3), np.uint8)).astype(bool)
+        ys, xs = np.nonzero(self._zone_half)
+        self._zone_half_box = (int(xs.min()), int(ys.min()), int(xs.max()) + 1, int(ys.max()) + 1)
+        self._bg_half: tuple[int, np.ndarray] | None = None
 
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
@@ -620,6 +667,7 @@ class BallDetector:
         fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
         n, lab, stats, cents = cv2.connectedComponentsWithStats(fg, connectivity=8)
         edge = self._zone_edge[v0:v1, u0:u1]
+        h, w = img.shape[:2]
         seeds = []
         area_min = math.pi * self.r_min_px**2
         for i in range(1, n):
@@ -630,8 +678,26 @@ class BallDetector:
             comp = (lab[by : by + bh, bx : bx + bw] == i).astype(np.uint8)
             occluder = bool(np.any(edge[by : by + bh, bx : bx + bw] & (comp > 0)))
             ys, xs = np.nonzero(comp)
-            pts = np.column_stack([xs + bx + u0, ys + by + v0]).astype(float)
-            seeds += self._seeds_of(comp, pts, (bx + u0, by + v0), occluder)
+            cut = (bx == 0 and u0 > 0) or (by == 0 and v0 > 0) or (bx + bw == u1 - u0 and u1 < w) or (by + bh == v1 - v0 and v1 < h)
+            origin = (bx + u0, by + v0)
+            if cut:
+                # The box holds only what changed: a still arm over the rail with a moving
+                # bridge hand is cut at the box's side, and the hand alone looks like a free
+                # ball; a ball half in the box looks like half a ball. Whether the piece belongs
+                # to something reaching in over the rail is judged on the whole frame, and its
+                # seeds are taken from the piece made whole within two ball diameters.
+                if not occluder:
+                    occluder = bool(np.any(self._reaching(img)[(ys + by + v0) // 2, (xs + bx + u0) // 2]))
+                comp, origin, at_edge = self._whole_piece(img, xs + bx + u0, ys + by + v0)
+                occluder |= at_edge
+                ys, xs = np.nonzero(comp)
+            pts = np.column_stack([xs + origin[0], ys + origin[1]]).astype(float)
+            found = self._seeds_of(comp, pts, origin, occluder)
+            if cut:
+                # What lies outside the box has not changed: its detections are carried over.
+                m = self.r_max_px
+                found = [q for q in found if u0 - m <= q["uv"][0] < u1 + m and v0 - m <= q["uv"][1] < v1 + m]
+            seeds += found
         rows = []
         for s in seeds:
             r = self._fit_seed(img, s)
@@ -639,9 +705,107 @@ class BallDetector:
                 # The shadow test of the coarse outline can eat a dark rim between touching
                 # balls; a ball that fails with it is tried once without.
                 r = self._fit_seed(img, s, shadows=False)
+            if r is not None and (r["blur_x"] or r["blur_y"]) and not self._soft_ends(img, r):
+                r = None
             if r is not None:
                 rows.append(r)
         return rows
+
+    def _soft_ends(self, img: np.ndarray, row: dict) -> bool:
+        """Whether a fitted streak (a detection row with a nonzero blur vector) fades in and out
+        along its motion as a swept ball does.
+
+        A sphere whose centre sweeps ``[-h, h]`` at an even pace during the exposure covers a
+        point of the axis at ``s`` for ``|[s - R, s + R] & [-h, h]| / 2h`` of it: for h >= R (every
+        streak fitted as one, see ``_MIN_HALF_STREAK_R``) a plateau that falls linearly to 0 over
+        ``2R`` at each end, so the colour's departure from the empty table, linear in the
+        coverage, falls from 75 % to 25 % of the plateau over R. Something still and ball-wide but
+        elongated (a hand, a forearm's end) ends sharply, within the optics' blur (a pixel or
+        two). The profile is sampled along the fitted axis at ball-centre height (mean of three
+        lines 0.3 R apart across it); the softer end must fall over at least half of R.
+        """
+        R = self.R
+        bx, by = float(row["blur_x"]), float(row["blur_y"])
+        h = max(math.hypot(bx, by) / 2 - R, R)
+        e = np.array([bx, by]) / max(math.hypot(bx, by), 1e-9)
+        n = np.array([-e[1], e[0]])
+        step = 0.5 * 2 * R / self.ball_px  # half a pixel, mm
+        s = np.arange(-(h + 2 * R), h + 2 * R + 1e-9, step)
+        c = np.array([row["x"], row["y"]])
+        xy = c[None, None] + s[None, :, None] * e + np.array([-0.3 * R, 0.0, 0.3 * R])[:, None, None] * n
+        pts = self.camera.project(np.column_stack([xy.reshape(-1, 2), np.full(xy.shape[0] * xy.shape[1], R)]))
+        mx = pts[:, 0].astype(np.float32).reshape(xy.shape[:2])
+        my = pts[:, 1].astype(np.float32).reshape(xy.shape[:2])
+        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        # |I - B| is linear in the coverage for a ball of one colour (I = c P + (1 - c) B).
+        D = (np.linalg.norm(f - b, axis=2) / np.maximum(np.linalg.norm(b, axis=2), 30.0)).mean(axis=0)
+        D = np.convolve(D, np.ones(3) / 3, mode="same")
+        plateau = float(np.percentile(D[np.abs(s) <= h], 90))
+        if plateau <= 0:
+            return False
+        widths = []
+        for side in (1, -1):
+            out = side * s > 0
+            ss, dd = side * s[out], D[out]
+            order = np.argsort(ss)
+            ss, dd = ss[order], dd[order]
+            hi = ss[dd >= 0.75 * plateau]
+            lo = ss[dd >= 0.25 * plateau]
+            if len(hi) == 0 or len(lo) == 0:
+                continue
+            widths.append(float(lo.max() - hi.max()))
+        return bool(widths) and max(widths) >= 0.5 * R
+
+    def _whole_piece(self, img: np.ndarray, us: np.ndarray, vs: np.ndarray) -> tuple[np.ndarray, tuple[int, int], bool]:
+        """The foreground component (as in :meth:`_detect_box`) holding the pixels ``us``,
+        ``vs`` (int arrays, px) of a piece cut by its box, found in a window grown round the
+        piece by two ball diameters: (mask (h, w) uint8 cropped to the component, its origin
+        (u, v) px, whether it touches the ball zone's border)."""
+        H, W = img.shape[:2]
+        g = int(math.ceil(2 * self.ball_px))
+        wu0, wv0 = max(int(us.min()) - g, 0), max(int(vs.min()) - g, 0)
+        wu1, wv1 = min(int(us.max()) + g + 1, W), min(int(vs.max()) + g + 1, H)
+        score = ballness(img[wv0:wv1, wu0:wu1], self.background.image[wv0:wv1, wu0:wu1])
+        fg = ((score > self._score_thr) & self.zone[wv0:wv1, wu0:wu1]).astype(np.uint8)
+        fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        hit = lab[vs - wv0, us - wu0]
+        hit = hit[hit > 0]
+        if len(hit) == 0:  # cannot happen (same pixels, same test), but keep the piece then
+            u_, v_ = int(us.min()), int(vs.min())
+            comp = np.zeros((int(vs.max()) - v_ + 1, int(us.max()) - u_ + 1), np.uint8)
+            comp[vs - v_, us - u_] = 1
+            return comp, (u_, v_), bool(np.any(self._zone_edge[vs, us]))
+        k = int(np.bincount(hit).argmax())
+        bx, by, bw, bh = stats[k, :4]
+        comp = (lab[by : by + bh, bx : bx + bw] == k).astype(np.uint8)
+        edge = self._zone_edge[wv0 + by : wv0 + by + bh, wu0 + bx : wu0 + bx + bw]
+        return comp, (wu0 + int(bx), wv0 + int(by)), bool(np.any(edge & (comp > 0)))
+
+    def _reaching(self, img: np.ndarray) -> np.ndarray:
+        """(H/2, W/2) bool at half scale (pixel (v, u) of the frame is ``[v // 2, u // 2]``):
+        foreground of the whole frame whose connected component (8-connected) reaches the ball
+        zone's border, i.e. enters over the rail like an arm or cue. Built once per frame, on
+        demand; half scale keeps a cue (about 6 px wide at 2 mm per px) connected at a quarter
+        of the cost of the full frame."""
+        if self._reach is not None and self._reach[0] is img:
+            return self._reach[1]
+        bg = self.background
+        if self._bg_half is None or self._bg_half[0] != bg.updates:
+            self._bg_half = (bg.updates, cv2.resize(bg.image, self._half_size, interpolation=cv2.INTER_AREA))
+        a0, b0, a1, b1 = self._zone_half_box
+        small = cv2.resize(img, self._half_size, interpolation=cv2.INTER_AREA)[b0:b1, a0:a1]
+        zone = self._zone_half[b0:b1, a0:a1]
+        fg = ((ballness(small, self._bg_half[1][b0:b1, a0:a1]) > self._score_thr) & zone).astype(np.uint8)
+        n, lab = cv2.connectedComponents(fg, connectivity=8)
+        hit = np.zeros(n, bool)
+        hit[lab[self._zone_edge_half[b0:b1, a0:a1] & (fg > 0)]] = True
+        hit[0] = False
+        out = np.zeros(self._zone_half.shape, bool)
+        out[b0:b1, a0:a1] = hit[lab]
+        self._reach = (img, out)
+        return out
 
     def _seeds_of(self, comp: np.ndarray, pts: np.ndarray, origin, occluder: bool) -> list[dict]:
         """Seeds (image centre, half streak px along a unit axis, strict flag) of one component."""
@@ -660,7 +824,12 @@ class BallDetector:
             half_wid = (perp.max() - perp.min() + 1) / 2
             hull = cv2.convexHull(pts.astype(np.float32))
             solidity = a / max(cv2.contourArea(hull), 1.0)
-            if half_wid <= 1.35 * r_loc and solidity >= 0.9:
+            # A ball, sharp or swept along its motion, is a ball's width across: at lateral
+            # offset y the swept sphere's chord is 2 sqrt(R^2 - y^2), so a streak's foreground
+            # narrows below R only where its middle barely clears the threshold (coverage at
+            # 0.5 R off the axis is still 87 % of the middle's). A thinner piece is a cue, a
+            # finger or an edge, not a ball.
+            if 0.5 * r_loc <= half_wid <= 1.35 * r_loc and solidity >= 0.9:
                 if half_len > 1.5 * r_loc and half_len < 2.6 * r_loc:
                     # Two touching balls or one blurred ball? A sphere swept along a segment
                     # is widest at the middle of its streak (every point there is covered
@@ -677,8 +846,10 @@ class BallDetector:
                             {"uv": cen + off, "axis": axis, "half_px": 0.0, "strict": False},
                         ]
                 return [{"uv": cen, "axis": axis, "half_px": max(half_len - r_loc, 0.0), "strict": False}]
-        # Distance-transform peaks: one per ball of a touching group.
-        dtm = cv2.distanceTransform(comp, cv2.DIST_L2, 5)
+        # Distance-transform peaks: one per ball of a touching group. A ball's image is a whole
+        # disc: holes in it smaller than half a ball (a highlight or mark that happens to match
+        # the cloth) are filled first, or a one-pixel hole at its middle would halve its depth.
+        dtm = cv2.distanceTransform(_fill_small_holes(comp, 0.5 * area_ball), cv2.DIST_L2, 5)
         floor = (0.8 if occluder else 0.65) * self.r_min_px
         peaks = (dtm >= floor) & (dtm >= cv2.dilate(dtm, np.ones((3, 3), np.uint8)) - 1e-3)
         ys, xs = np.nonzero(peaks)
@@ -938,15 +1109,24 @@ class BallDetector:
         return float(np.mean(score > self._score_thr))
 
     def _isolated(self, img: np.ndarray, uv: np.ndarray) -> bool:
-        """For seeds inside an arm or cue component: at least 55 % of a ring 1.4 ball radii from
-        the centre must be background, as round a ball lying next to the cue."""
-        r = 1.4 * self.ball_px / 2
+        """For seeds inside an arm or cue component: a ring ``_RING_R`` ball radii from the
+        centre (64 samples) must be background (:func:`ballness` below the threshold) on at
+        least ``_ISOLATED_SHARE`` of its length.
+
+        A whole ball lying against an arm, hand or cue touches its (straight or convex) edge at
+        one point, R from the centre, and the ring is hidden only beyond that edge: an arc of
+        ``2 acos(1 / _RING_R)`` (89 degrees), a quarter of the ring; one more sample is allowed
+        for sampling. A piece of the occluder itself (a hand between the wrist and the cue, a
+        knuckle) is continued by the rest of the occluder and usually hides more; the bare
+        rounded end of something exactly a ball wide hides 2 asin(1 / 1.4) (91 degrees) and is
+        not told apart by this test."""
+        r = _RING_R * self.ball_px / 2
         a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
         mx = (uv[0] + r * np.cos(a)).astype(np.float32)[None]
         my = (uv[1] + r * np.sin(a)).astype(np.float32)[None]
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)[0]
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
-        return float(np.mean(ballness(f, b) < self._score_thr)) >= 0.55
+        return float(np.mean(ballness(f, b) < self._score_thr)) >= _ISOLATED_SHARE
 
     def _identity(self, img: np.ndarray, uv: np.ndarray, r_px: float) -> tuple[str, str]:
         """Colour label and pattern from the pixels inside 0.88 of the ball's image radius
