@@ -12,6 +12,7 @@ import pytest
 
 from test_tracker import (
     D,
+    R,
     G,
     TABLE,
     bounce_path,
@@ -418,3 +419,63 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
     # cushion fit adds a prior on it), so here it must only improve on the loose fit.
     assert known[0] <= 0.03
     assert known[0] < loose[0] and known[1] < loose[1]
+
+
+# --- a cushion-check session from our own simulator -------------------------------------------
+def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0):
+    """Room staff rolling the cue ball (struck 0.4 R above centre, so it rolls at once,
+    Alciatore 2004) into the bottom and top cushions 12 times at 0.3-1.5 m/s normal speed and
+    up to 30 degrees off square, catching it 0.45 s after the contact; simulated by
+    ``analysis.physics`` (cushion impacts of Mathavan, Jackson & Parkin 2010). Detections as in
+    ``benchmarks/event_accuracy.py`` (exposure-averaged centres) with ``noise_mm`` per axis
+    moving, half that at rest. Returns (found cushion events, the simulator's cushion events)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    rng = np.random.default_rng(seed)
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": (400.0, 320.0)})
+    t = 0.5
+    xs = np.r_[np.linspace(400.0, 1000.0, 6), np.linspace(1550.0, 2150.0, 6)]  # clear of pockets
+    for i, x0 in enumerate(xs):
+        bottom = i % 2 == 0
+        vn = float(np.exp(rng.uniform(math.log(300.0), math.log(1500.0))))
+        ang = float(rng.uniform(-30.0, 30.0))
+        if i:
+            sim.place(t, "cue", (x0, 320.0 if bottom else TABLE.width_mm - 320.0))
+        speed = vn / math.cos(math.radians(ang))
+        sim.strike(t + 0.4, Strike("cue", speed, math.radians((-90.0 if bottom else 90.0) + ang),
+                                   0.0, 0.4))
+        t_lift = t + 0.4 + (320.0 - R) / vn + 0.45
+        sim.lift(t_lift, "cue")
+        t = t_lift + 0.4
+    traj = sim.trajectory()
+    det = detections(traj, t, fps, rng, rest_sigma_mm=0.5 * noise_mm, moving_sigma_mm=noise_mm,
+                     drop=0.0)
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    truth = truth_events(TABLE, traj, t)
+    return _only(ev, "cushion"), truth[truth["kind"] == "cushion"].reset_index(drop=True)
+
+
+def test_cushion_session_outgoing_measures():
+    # After a cushion a rolling ball slides a few frames, its slip along the rail's normal
+    # (the spin still carries it toward the rail); fitting that slide is what the outgoing
+    # speed, angle and restitution rest on. Targets are the issue's (speed 3 %, angle 1 degree,
+    # restitution 0.03, medians); the truth is the simulator's impact (analytic between events).
+    errs = []
+    for seed in (1, 2):
+        found, truth = _cushion_session(seed)
+        assert len(found) == len(truth) >= 10
+        for _, tr in truth.iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            errs.append((abs(r["t"] - tr["t"]) * 60.0,
+                         abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print("median |t| frames, |speed_out|, |angle_out| deg, |restitution|:", med)
+    # Measured: 0.044 frame, 1.1 %, 0.62 deg, 0.017; with the slide's direction prior from the
+    # velocity change and a free rolling departure (before): 0.047, 1.4 %, 1.09 deg, 0.022.
+    assert med[0] <= 0.25
+    assert med[1] <= 0.03
+    assert med[2] <= 1.0
+    assert med[3] <= 0.03
