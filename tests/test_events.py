@@ -479,3 +479,21 @@ def test_cushion_session_outgoing_measures():
     assert med[1] <= 0.03
     assert med[2] <= 1.0
     assert med[3] <= 0.03
+
+
+def test_a_path_leaving_the_rail_faster_than_it_came_is_no_cushion_contact():
+    # A cushion returns less normal speed than it takes (speed ratio below 1; Mathavan et al.
+    # 2009 measured at most about 0.95 [secondary]); a track turning at the rail and leaving at
+    # twice its arriving normal speed (a hand sweeping past) is no contact. The same path with
+    # speed ratio 0.9 is one (control).
+    fps = 60.0
+    times = np.arange(int(1.0 * fps)) / fps
+    t_c = 0.5 + 0.3 / fps
+    found = {}
+    for e in (0.9, 2.0):
+        f, _, _ = _bounce_case("left", 400.0, 10.0, 1100.0, e, t_c)
+        det = detections({"a": f}, times, np.random.default_rng(4), noise_mm=1.0)
+        ev, _ = find_events(track(det, TABLE), TABLE, det)
+        found[e] = _only(ev, "cushion")
+    assert len(found[0.9]) == 1 and abs(found[0.9].loc[0, "restitution"] - 0.9) < 0.03
+    assert len(found[2.0]) == 0

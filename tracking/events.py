@@ -49,7 +49,10 @@ Method
    weighting (the linearised least-squares time where both fits cross the line). Then both sides
    are refitted with their normal coordinate pinned to the reversal line at a trial contact time,
    scanned between the samples nearest the contact; the time with the least summed criterion
-   gives the contact, and the pinned fits give the speeds, angles and restitution. *Collision*:
+   gives the contact, and the pinned fits give the speeds, angles and restitution. A contact
+   whose samples scatter about the fits far beyond the detection noise, or that leaves the line
+   faster than it came (a cushion's speed ratio is below 1), is not a ball's bounce (a hand or a
+   false track) and is dropped. *Collision*:
    the time where the centres are one diameter apart, ``|p1(t) - p2(t)| = D``, is solved
    (a quartic) from the approach fits and from the departure fits and the two combined the same
    way, from plain quadratic fits grown outward from the contact (``_Finder._grow``). *Start*:
@@ -1043,6 +1046,18 @@ class _Finder:
         xy = [0.0, 0.0]
         xy[ax], xy[1 - ax] = c, s
         v_in, v_out = fa.vel(t_c), fd.vel(t_c)
+        # Not a ball bouncing (a hand or a false track sweeping past the rail): samples that
+        # scatter about the fits far beyond the detection noise (rms above five times the
+        # ball's noise, and above the 3 mm of the position target), or a path leaving
+        # the line much faster than it came (beyond three standard deviations of the two
+        # fitted speeds), since a cushion gives back less normal speed than it took (speed
+        # ratio below 1; Mathavan et al. 2009 measured at most about 0.95).
+        if max(fa.s2, fd.s2) > max(5.0 * b.sigma, 3.0) ** 2:
+            return None
+        vn_in, vn_out = -float(v_in @ n_in), float(v_out @ n_in)
+        sd = math.sqrt(fa.s2 * fa.cov[1, 1] + fd.s2 * fd.cov[1, 1])
+        if vn_out - vn_in > 3.0 * sd:
+            return None
         a_in, a_out, e = cushion_angles(rail, v_in, v_out)
         return _row(t_c, "cushion", b.track, xy, speed_in=float(np.hypot(*v_in)),
                     speed_out=float(np.hypot(*v_out)), rail=rail,
