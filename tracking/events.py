@@ -705,13 +705,21 @@ def find_events(
     collisions_by_ball: dict[int, list[float]] = {}
     for r in rows:
         collisions_by_ball.setdefault(r["track"], []).append(r["t"])
-    cushion_rows = [r for b in balls for tg, rail in rough_cushions[b.track]
-                    if (r := finder.cushion(b, rail, tg)) is not None]
+    first = []  # (ball, rail, rough time, row or None, slide seen in enough samples)
+    for b in balls:
+        for tg, rail in rough_cushions[b.track]:
+            n_slides = len(finder.slides)
+            r = finder.cushion(b, rail, tg)
+            well_seen = len(finder.slides) > n_slides and \
+                finder.slides[-1][2] >= cfg.slide_min_samples
+            first.append((b, rail, tg, r, well_seen))
     finder.slide_ratio = _cushion_slide_ratio(finder)
-    if finder.slide_ratio is not None:
-        cushion_rows = [r for b in balls for tg, rail in rough_cushions[b.track]
-                        if (r := finder.cushion(b, rail, tg)) is not None]
-    rows += cushion_rows
+    for b, rail, tg, r, well_seen in first:
+        # The slide's duration prior matters only where its samples leave it loose.
+        if finder.slide_ratio is not None and not well_seen:
+            r = finder.cushion(b, rail, tg)
+        if r is not None:
+            rows.append(r)
     moves = []  # (track, t_begin, t_end)
     for b in balls:
         # Last row of each stay on the table: before a gap in the frames or a jump.
