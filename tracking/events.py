@@ -28,7 +28,10 @@ Method
    velocity changes.
 3. Each contact is then solved between frames. Each side's path is fitted by least squares
    from the raw samples between the neighbouring contacts of that ball (at most
-   ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, with
+   ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, each
+   weighted by the detector's ``sigma_mm`` relative to the track's typical one where the
+   detections carry it (weighted least squares; a detection the detector itself doubts, such
+   as a ball half in a cushion's shadow, counts less), with
    the physics of Alciatore 2004: a ball slides, decelerating at ``mu_s g`` along a constant slip
    direction, until it rolls, then decelerates at ``mu_r g`` along its velocity; after a cushion,
    a collision or a stun strike it slides first. ``_piecewise_fit`` chooses by the Bayesian
@@ -50,7 +53,7 @@ Method
    are refitted with their normal coordinate pinned to the reversal line at a trial contact time,
    scanned between the samples nearest the contact; the time with the least summed criterion
    gives the contact, and the pinned fits give the speeds, angles and restitution. A contact
-   whose samples scatter about the fits far beyond the detection noise, or that leaves the line
+   whose samples scatter about the fits by more than a ball's radius, or that leaves the line
    faster than it came (a cushion's speed ratio is below 1), is not a ball's bounce (a hand or a
    false track) and is dropped. *Collision*:
    the time where the centres are one diameter apart, ``|p1(t) - p2(t)| = D``, is solved
@@ -254,7 +257,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                    cfg: "EventConfig", pin: np.ndarray | None = None,
                    slide_decel: float | None = None,
                    slide_dir: np.ndarray | None = None,
-                   slide_tk: tuple[float, float] | None = None) -> _Fit | None:
+                   slide_tk: tuple[float, float] | None = None,
+                   weight: np.ndarray | None = None) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -296,6 +300,9 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     added to the criterion like the prior on ``mu_s g`` (a slide through the whole window is
     charged only if the mean is shorter than the window).
 
+    ``weight`` (n,): relative weight of each sample (typical detection sigma over its own; rows
+    of the least squares scaled by it), None for equal weights.
+
     ``pin`` (2,) mm fixes ``c0`` (the contact point when both sides are refitted through it).
     The best candidate has the least Bayesian information criterion (Schwarz 1978) for Gaussian
     residuals of unknown variance, ``BIC = m ln(RSS / m) + k ln m`` over the m = 2 n coordinates
@@ -308,6 +315,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     tau = ts - t0
     order = np.argsort(np.abs(tau), kind="stable")
     tau, P = tau[order], ps[order].astype(float)
+    wt = np.ones(n) if weight is None else np.asarray(weight, float)[order]
     after = bool(tau[-1] > 0)  # departure side: the near piece is the earlier one (sliding)
     pin = np.full(2, np.nan) if pin is None else np.asarray(pin, float)
     free0 = np.isnan(pin)  # per axis: c0 fitted (True) or fixed at pin
@@ -328,8 +336,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         """Per axis ``ax``: (j0, A without a pinned c0, pin-shifted y, N = A^T A, h = A^T y),
         with the ridge prior ``lam (c - c_prior)^2`` on ``roll_col`` added to N and h."""
         j0 = 0 if free0[ax] else 1
-        Aa = A[:, :, j0:]
-        y = P[:, ax] - (0.0 if free0[ax] else pin[ax])
+        Aa = A[:, :, j0:] * wt[None, :, None]  # weighted rows: sigma_i / sigma_typical
+        y = (P[:, ax] - (0.0 if free0[ax] else pin[ax])) * wt
         N = np.einsum("gni,gnj->gij", Aa, Aa)
         h = np.einsum("gni,n->gi", Aa, y)
         if roll_col is not None:
@@ -531,6 +539,13 @@ class _Ball:
     moves: list = field(default_factory=list)  # [(i0, i1)] index ranges, inclusive
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
+    weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
+
+    def weights(self, ts: np.ndarray) -> np.ndarray | None:
+        """Relative weights (n,) of the samples at times ts (from ``samples``), or None."""
+        if self.weight is None:
+            return None
+        return self.weight[np.searchsorted(self.t, ts)]
 
     def samples(self, t_lo: float, t_hi: float, exclude=None) -> tuple[np.ndarray, np.ndarray]:
         """Raw samples with t_lo < t < t_hi: ts (n,), ps (n, 2); ``exclude`` (t, half-width)
@@ -558,23 +573,35 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
         f_all = detections["frame"].to_numpy(np.int64)
         order = np.argsort(f_all, kind="stable")
         xy_all = detections[["x", "y"]].to_numpy(float)[order]
+        sig_all = (detections["sigma_mm"].to_numpy(float)[order] if "sigma_mm" in detections
+                   else np.full(len(order), np.nan))
         uniq, first = np.unique(f_all[order], return_index=True)
-        det_by_frame = dict(zip(uniq.tolist(), np.split(xy_all, first[1:])))
+        det_by_frame = dict(zip(uniq.tolist(), zip(np.split(xy_all, first[1:]),
+                                                   np.split(sig_all, first[1:]))))
     out = []
     for tid, g in tracks.groupby("track", sort=True):
         p = g[["x", "y"]].to_numpy(float)
         seen = g["seen"].to_numpy() > 0
         frames = g["frame"].to_numpy(np.int64)
+        weight = None
         if det_by_frame is not None:
             raw = np.full_like(p, np.nan)
+            sig = np.full(len(p), np.nan)
             for k in np.flatnonzero(seen):
-                cand = det_by_frame.get(int(frames[k]))
+                cand, cs = det_by_frame.get(int(frames[k]), (None, None))
                 if cand is None:
                     continue
                 d = np.hypot(*(cand - p[k]).T)
                 j = int(np.argmin(d))
                 if d[j] < radius_mm:
                     raw[k] = cand[j]
+                    sig[k] = cs[j]
+            ok = np.isfinite(sig) & (sig > 0)
+            if ok.any():
+                # Each sample weighs by the detector's own noise estimate relative to the
+                # track's typical one (weighted least squares; the scale stays the residuals').
+                weight = np.ones(len(p))
+                weight[ok] = np.median(sig[ok]) / sig[ok]
         elif {"x_meas", "y_meas"} <= set(g.columns):
             raw = g[["x_meas", "y_meas"]].to_numpy(float).copy()
             raw[~seen] = np.nan
@@ -582,7 +609,7 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
             raw = p.copy()
             raw[~seen] = np.nan
         out.append(_Ball(int(tid), g["t"].to_numpy(float), frames, p,
-                         g[["vx", "vy"]].to_numpy(float), raw))
+                         g[["vx", "vy"]].to_numpy(float), raw, weight=weight))
     return out
 
 
@@ -791,7 +818,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f = _piecewise_fit(ts, ps, tg, b.sigma, step, cfg)
+            f = _piecewise_fit(ts, ps, tg, b.sigma, step, cfg, weight=b.weights(ts))
             if f is None or f.k < 6:
                 continue  # the rolling model was chosen: no slide seen
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
@@ -848,8 +875,8 @@ class _Finder:
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
-        return (self._side(ta, pa, t_c, b.sigma, step),
-                self._side(td, pd_, t_c, b.sigma, step, self.slide_decel))
+        return (self._side(ta, pa, t_c, b.sigma, step, weight=b.weights(ta)),
+                self._side(td, pd_, t_c, b.sigma, step, self.slide_decel, b.weights(td)))
 
     def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
         """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``."""
@@ -882,13 +909,14 @@ class _Finder:
         return best
 
     def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float,
-              slide_decel: float | None = None):
+              slide_decel: float | None = None, weight: np.ndarray | None = None):
         """Piecewise (slide then roll) fit of one side's samples (``_piecewise_fit``). A path the
         chosen model still cannot explain within the noise (chi-square test
         ``RSS / sigma^2 > chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the
         half of the window nearest the contact, at most twice."""
         for _ in range(3):
-            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg, slide_decel=slide_decel)
+            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg, slide_decel=slide_decel,
+                               weight=weight)
             if f is None or len(ts) < 2 * self.cfg.quadratic_min_samples:
                 return f
             dof = 2 * f.n - f.k
@@ -896,6 +924,7 @@ class _Finder:
                 return f
             keep = np.abs(ts - t_c) <= np.median(np.abs(ts - t_c))
             ts, ps = ts[keep], ps[keep]
+            weight = None if weight is None else weight[keep]
         return f
 
     def _pinned_contact(self, b: _Ball, ax: int, c: float, t_c: float, lo: float, hi: float,
@@ -928,10 +957,12 @@ class _Finder:
         pin = np.full(2, np.nan)
         pin[ax] = c
 
+        wa, wd = b.weights(ta), b.weights(td)
+
         def fits(t: float):
-            fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin)
+            fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin, weight=wa)
             fd = _piecewise_fit(td, pd_, t, b.sigma, step, self.cfg, pin, self.slide_decel,
-                                slide_dir, slide_tk)
+                                slide_dir, slide_tk, weight=wd)
             if fa is None or fd is None:
                 return math.inf, fa, fd
             return fa.bic + fd.bic, fa, fd
@@ -1055,12 +1086,12 @@ class _Finder:
         xy[ax], xy[1 - ax] = c, s
         v_in, v_out = fa.vel(t_c), fd.vel(t_c)
         # Not a ball bouncing (a hand or a false track sweeping past the rail): samples that
-        # scatter about the fits far beyond the detection noise (rms above five times the
-        # ball's noise, and above the 3 mm of the issue's position target), or a path leaving
-        # the line much faster than it came (beyond three standard deviations of the two
-        # fitted speeds), since a cushion gives back less normal speed than it took (speed
-        # ratio below 1; Mathavan et al. 2009 measured at most about 0.95).
-        if max(fa.s2, fd.s2) > max(5.0 * b.sigma, 3.0) ** 2:
+        # scatter about the fits by more than a ball's radius (rms; no detection of that ball
+        # is so far off, while one poor detection among many moves the rms far less), or a
+        # path leaving the line much faster than it came (beyond three standard deviations of
+        # the two fitted speeds), since a cushion gives back less normal speed than it took
+        # (speed ratio below 1; Mathavan et al. 2009 measured at most about 0.95).
+        if max(fa.s2, fd.s2) > self.table.radius_mm ** 2:
             return None
         vn_in, vn_out = -float(v_in @ n_in), float(v_out @ n_in)
         sd = math.sqrt(fa.s2 * fa.cov[1, 1] + fd.s2 * fd.cov[1, 1])
