@@ -3,8 +3,9 @@
 Input: the tracks DataFrame of ``tracking.tracker`` (columns ``frame, t, track, ball, x, y, vx,
 vy, seen`` of ``shared/spec/results-format.md``; mm, s, mm/s, table frame of ``vision.table``),
 optionally with ``x_meas, y_meas`` (the raw detection of each seen row); or the raw detections
-themselves (``frame, x, y``), matched to the tracks frame by frame. Contacts are solved from the
-raw measurements where there are any, since smoothing pulls positions toward the model.
+themselves (``frame, x, y``, optionally ``sigma_mm``), matched to the tracks frame by frame.
+Contacts are solved from the raw measurements where there are any, since smoothing pulls
+positions toward the model.
 
 Output, following the results format exactly:
 
