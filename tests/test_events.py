@@ -12,6 +12,7 @@ import pytest
 
 from test_tracker import (
     D,
+    R,
     G,
     TABLE,
     bounce_path,
@@ -304,7 +305,7 @@ def test_simulated_contacts_incoming_measures(simulated_contacts):
 
 def test_simulated_contacts_outgoing_measures(simulated_contacts):
     # With the cloth's sliding deceleration measured once per clip and held in the departure
-    # fits; measured on these 8 shots: speed_out 2.9 %, angle_out 0.87 deg, restitution 0.026.
+    # fits; measured on these 8 shots: speed_out 2.9 %, angle_out 0.81 deg, restitution 0.026.
     s = simulated_contacts
     assert s["speed_out median"] <= 0.03
     assert s["angle_out median"] <= 1.0
@@ -418,3 +419,109 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
     # cushion fit adds a prior on it), so here it must only improve on the loose fit.
     assert known[0] <= 0.03
     assert known[0] < loose[0] and known[1] < loose[1]
+
+
+# --- a cushion-check session from our own simulator -------------------------------------------
+def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0):
+    """Room staff rolling the cue ball (struck 0.4 R above centre, so it rolls at once,
+    Alciatore 2004) into the bottom and top cushions 12 times at 0.3-1.5 m/s normal speed and
+    up to 30 degrees off square, catching it 0.45 s after the contact; simulated by
+    ``analysis.physics`` (cushion impacts of Mathavan, Jackson & Parkin 2010). Detections as in
+    ``benchmarks/event_accuracy.py`` (exposure-averaged centres) with ``noise_mm`` per axis
+    moving, half that at rest. Returns (found cushion events, the simulator's cushion events)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    rng = np.random.default_rng(seed)
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": (400.0, 320.0)})
+    t = 0.5
+    xs = np.r_[np.linspace(400.0, 1000.0, 6), np.linspace(1550.0, 2150.0, 6)]  # clear of pockets
+    for i, x0 in enumerate(xs):
+        bottom = i % 2 == 0
+        vn = float(np.exp(rng.uniform(math.log(300.0), math.log(1500.0))))
+        ang = float(rng.uniform(-30.0, 30.0))
+        if i:
+            sim.place(t, "cue", (x0, 320.0 if bottom else TABLE.width_mm - 320.0))
+        speed = vn / math.cos(math.radians(ang))
+        sim.strike(t + 0.4, Strike("cue", speed, math.radians((-90.0 if bottom else 90.0) + ang),
+                                   0.0, 0.4))
+        t_lift = t + 0.4 + (320.0 - R) / vn + 0.45
+        sim.lift(t_lift, "cue")
+        t = t_lift + 0.4
+    traj = sim.trajectory()
+    det = detections(traj, t, fps, rng, rest_sigma_mm=0.5 * noise_mm, moving_sigma_mm=noise_mm,
+                     drop=0.0)
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    truth = truth_events(TABLE, traj, t)
+    return _only(ev, "cushion"), truth[truth["kind"] == "cushion"].reset_index(drop=True)
+
+
+def test_cushion_session_outgoing_measures():
+    # After a cushion a rolling ball slides a few frames, its slip along the rail's normal
+    # (the spin still carries it toward the rail); fitting that slide is what the outgoing
+    # speed, angle and restitution rest on. Targets are the issue's (speed 3 %, angle 1 degree,
+    # restitution 0.03, medians); the truth is the simulator's impact (analytic between events).
+    errs = []
+    for seed in (1, 2):
+        found, truth = _cushion_session(seed)
+        assert len(found) == len(truth) >= 10
+        for _, tr in truth.iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            errs.append((abs(r["t"] - tr["t"]) * 60.0,
+                         abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print("median |t| frames, |speed_out|, |angle_out| deg, |restitution|:", med)
+    # Measured: 0.045 frame, 1.1 %, 0.66 deg, 0.018; with the slide's direction prior from the
+    # velocity change and a free rolling departure (before): 0.047, 1.4 %, 1.09 deg, 0.022.
+    assert med[0] <= 0.25
+    assert med[1] <= 0.03
+    assert med[2] <= 1.0
+    assert med[3] <= 0.03
+
+
+def test_a_path_leaving_the_rail_faster_than_it_came_is_no_cushion_contact():
+    # A cushion returns less normal speed than it takes (speed ratio below 1; Mathavan et al.
+    # 2009 measured at most about 0.95 [secondary]); a track turning at the rail and leaving at
+    # twice its arriving normal speed (a hand sweeping past) is no contact. The same path with
+    # speed ratio 0.9 is one (control).
+    fps = 60.0
+    times = np.arange(int(1.0 * fps)) / fps
+    t_c = 0.5 + 0.3 / fps
+    found = {}
+    for e in (0.9, 2.0):
+        f, _, _ = _bounce_case("left", 400.0, 10.0, 1100.0, e, t_c)
+        det = detections({"a": f}, times, np.random.default_rng(4), noise_mm=1.0)
+        ev, _ = find_events(track(det, TABLE), TABLE, det)
+        found[e] = _only(ev, "cushion")
+    assert len(found[0.9]) == 1 and abs(found[0.9].loc[0, "restitution"] - 0.9) < 0.03
+    assert len(found[2.0]) == 0
+
+
+def test_a_detection_flagged_as_poor_weighs_less_at_a_contact():
+    # One detection just after the contact lands 12 mm off (a ball half hidden by the cushion's
+    # shadow), and the detector says so: its sigma_mm is 12 times the others'. Weighted least
+    # squares (each sample by the detector's noise, Gauss-Markov) keeps the contact's measures
+    # to the issue's targets (speed 3 %, angle 1 degree, restitution 0.03).
+    fps = 60.0
+    times = np.arange(int(1.0 * fps)) / fps
+    t_c = 0.5 + 0.45 / fps
+    speed, e = 900.0, 0.8
+    f, v_in, v_out = _bounce_case("right", 600.0, 25.0, speed, e, t_c, decel=0.01 * G)
+    errs = []
+    for seed in range(6):
+        det = detections({"a": f}, times, np.random.default_rng(seed), noise_mm=0.5)
+        k = int(np.searchsorted(times, t_c)) + 1  # the second frame after the contact
+        row = det.index[det["frame"] == k][0]
+        det.loc[row, "x"] -= 12.0  # toward the table's centre, off the right rail
+        det.loc[row, "sigma_mm"] = 6.0
+        ev, _ = find_events(track(det, TABLE), TABLE, det)
+        cu = _only(ev, "cushion")
+        assert len(cu) == 1
+        _, a_out, _ = cushion_angles("right", v_in, v_out)
+        errs.append((abs(cu.loc[0, "speed_out"] / np.hypot(*v_out) - 1),
+                     abs(cu.loc[0, "angle_out"] - a_out), abs(cu.loc[0, "restitution"] - e)))
+    med = np.median(np.array(errs), axis=0)
+    print("median |speed_out|, |angle_out|, |restitution|:", med)
+    assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03

@@ -3,8 +3,9 @@
 Input: the tracks DataFrame of ``tracking.tracker`` (columns ``frame, t, track, ball, x, y, vx,
 vy, seen`` of ``shared/spec/results-format.md``; mm, s, mm/s, table frame of ``vision.table``),
 optionally with ``x_meas, y_meas`` (the raw detection of each seen row); or the raw detections
-themselves (``frame, x, y``), matched to the tracks frame by frame. Contacts are solved from the
-raw measurements where there are any, since smoothing pulls positions toward the model.
+themselves (``frame, x, y``, optionally ``sigma_mm``), matched to the tracks frame by frame.
+Contacts are solved from the raw measurements where there are any, since smoothing pulls
+positions toward the model.
 
 Output, following the results format exactly:
 
@@ -28,7 +29,10 @@ Method
    velocity changes.
 3. Each contact is then solved between frames. Each side's path is fitted by least squares
    from the raw samples between the neighbouring contacts of that ball (at most
-   ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, with
+   ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, each
+   weighted by the detector's ``sigma_mm`` relative to the track's typical one where the
+   detections carry it (weighted least squares; a detection the detector itself doubts, such
+   as a ball half in a cushion's shadow, counts less), with
    the physics of Alciatore 2004: a ball slides, decelerating at ``mu_s g`` along a constant slip
    direction, until it rolls, then decelerates at ``mu_r g`` along its velocity; after a cushion,
    a collision or a stun strike it slides first. ``_piecewise_fit`` chooses by the Bayesian
@@ -37,14 +41,22 @@ Method
    scanned on a sub-frame grid (linear in the coefficients for a given kink; sliding deceleration
    with a loose prior about ``mu_s g``). The cloth's sliding deceleration is then measured once
    for the clip from all its slides (``_cloth_slide_decel``: one cloth) and held fixed in the
-   departure fits after a cushion, which leaves only the slip direction free
-   (``_piecewise_fit`` with ``slide_decel``), with a loose prior on that direction.
+   departure fits after a cushion, which leaves only the slip direction and the slide's
+   duration free (``_piecewise_fit`` with ``slide_decel``). After a cushion a ball always
+   slides (its spin still carries it toward the rail), so a departure is never fitted as
+   rolling from the contact on, and the slide of a ball that arrived rolling gets a prior along
+   the rail's normal; its duration gets a prior from the clip's other cushion contacts
+   (``_cushion_slide_ratio``: the normal speed lost sliding is about a fixed fraction of the
+   normal speed arriving).
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
    meet it at the same instant, so the two crossing times are combined by inverse-variance
    weighting (the linearised least-squares time where both fits cross the line). Then both sides
    are refitted with their normal coordinate pinned to the reversal line at a trial contact time,
    scanned between the samples nearest the contact; the time with the least summed criterion
-   gives the contact, and the pinned fits give the speeds, angles and restitution. *Collision*:
+   gives the contact, and the pinned fits give the speeds, angles and restitution. A contact
+   whose samples scatter about the fits by more than a ball's radius, or that leaves the line
+   faster than it came (a cushion's speed ratio is below 1), is not a ball's bounce (a hand or a
+   false track) and is dropped. *Collision*:
    the time where the centres are one diameter apart, ``|p1(t) - p2(t)| = D``, is solved
    (a quartic) from the approach fits and from the departure fits and the two combined the same
    way, from plain quadratic fits grown outward from the contact (``_Finder._grow``). *Start*:
@@ -116,7 +128,14 @@ class EventConfig:
     ``slide_decel_min_mm_s2`` / ``slide_decel_max_mm_s2`` hard bounds (0.05 g and 0.6 g).
     ``slide_min_samples``: fewest samples on a sliding piece for it to count as a measurement of
     the cloth's sliding deceleration (``_cloth_slide_decel``). ``slide_dir_sigma_deg``: sd of
-    the prior on the direction of the slide after a cushion (``_Finder.cushion``).
+    the prior on the direction of the slide after a cushion (``_Finder.cushion``; in the impact
+    model of Mathavan, Jackson & Parkin 2010 as ``analysis.cushion`` implements it, a ball
+    arriving rolling slides within 3 degrees of the normal over the shots of
+    ``benchmarks/event_accuracy.py``, so 10 degrees leaves room for real cushions).
+    ``slide_ratio_sigma``: sd of the prior on the fraction of its normal speed a ball arriving
+    rolling loses sliding after a cushion (``_cushion_slide_ratio``; 0.28 to 0.43 in that model
+    over normal speeds of 0.1 to 3.1 m/s arriving), and ``slide_ratio_min_contacts`` the fewest well-seen slides
+    that measure the clip's fraction.
     ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
     cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
     """
@@ -147,8 +166,10 @@ class EventConfig:
     slide_decel_sigma_mm_s2: float = 600.0
     roll_decel_sigma_mm_s2: float = 50.0
     slide_min_samples: int = 5
-    slide_dir_sigma_deg: float = 30.0
+    slide_dir_sigma_deg: float = 10.0
     slide_fit_s: float = 0.8
+    slide_ratio_sigma: float = 0.05
+    slide_ratio_min_contacts: int = 3
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -236,7 +257,9 @@ def _fit(ts: np.ndarray, ps: np.ndarray, t0: float, deg: int, sigma_mm: float) -
 def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, step_s: float,
                    cfg: "EventConfig", pin: np.ndarray | None = None,
                    slide_decel: float | None = None,
-                   slide_dir: np.ndarray | None = None) -> _Fit | None:
+                   slide_dir: np.ndarray | None = None,
+                   slide_tk: tuple[float, float] | None = None,
+                   weight: np.ndarray | None = None) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -267,11 +290,19 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     the angle of the constant slip direction): for a given tk the least-squares problem with
     ``|2 c2| = slide_decel`` is reduced to the two slide coefficients (the others eliminated by
     their normal equations, a Schur complement) and minimised over the angle to 0.5 degree.
-    The candidates are then rolling, sliding (no kink in the window; 5 parameters) and slide
-    then roll (6); the free quadratic is not offered, since physics leaves no other path.
-    ``slide_dir`` (2,) unit vector, with ``slide_decel``: the expected direction of the sliding
-    acceleration, a Gaussian prior on the angle with sd ``slide_dir_sigma_deg`` added to the
-    residual sum in units of ``sigma_mm^2`` (``_Finder.cushion`` says where it comes from).
+    The candidates are then sliding (no kink in the window; 5 parameters) and slide then roll
+    (6), the kink from the first sample on; neither rolling from the contact nor the free
+    quadratic is offered, since after a cushion physics leaves no other path (the ball slides
+    first, ``_Finder.cushion``). ``slide_dir`` (2,) unit vector, with ``slide_decel``: the
+    expected direction of the sliding acceleration, a Gaussian prior on the angle with sd
+    ``slide_dir_sigma_deg`` added to the residual sum in units of the measurement variance (the
+    larger of ``sigma_mm^2`` and the residual variance of the fit without the prior).
+    ``slide_tk`` (mean, sd) s, with ``slide_decel``: a Gaussian prior on the slide's duration,
+    added to the criterion like the prior on ``mu_s g`` (a slide through the whole window is
+    charged only if the mean is shorter than the window).
+
+    ``weight`` (n,): relative weight of each sample (typical detection sigma over its own; rows
+    of the least squares scaled by it), None for equal weights.
 
     ``pin`` (2,) mm fixes ``c0`` (the contact point when both sides are refitted through it).
     The best candidate has the least Bayesian information criterion (Schwarz 1978) for Gaussian
@@ -285,6 +316,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     tau = ts - t0
     order = np.argsort(np.abs(tau), kind="stable")
     tau, P = tau[order], ps[order].astype(float)
+    wt = np.ones(n) if weight is None else np.asarray(weight, float)[order]
     after = bool(tau[-1] > 0)  # departure side: the near piece is the earlier one (sliding)
     pin = np.full(2, np.nan) if pin is None else np.asarray(pin, float)
     free0 = np.isnan(pin)  # per axis: c0 fitted (True) or fixed at pin
@@ -305,8 +337,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         """Per axis ``ax``: (j0, A without a pinned c0, pin-shifted y, N = A^T A, h = A^T y),
         with the ridge prior ``lam (c - c_prior)^2`` on ``roll_col`` added to N and h."""
         j0 = 0 if free0[ax] else 1
-        Aa = A[:, :, j0:]
-        y = P[:, ax] - (0.0 if free0[ax] else pin[ax])
+        Aa = A[:, :, j0:] * wt[None, :, None]  # weighted rows: sigma_i / sigma_typical
+        y = (P[:, ax] - (0.0 if free0[ax] else pin[ax])) * wt
         N = np.einsum("gni,gnj->gij", Aa, Aa)
         h = np.einsum("gni,n->gi", Aa, y)
         if roll_col is not None:
@@ -364,35 +396,55 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             parts.append((j0, o, sc, Aa, y, Nbb_i, Nbx, hb, alpha, beta))
         (ax_, ay_) = parts
 
-        def J(th):  # th (G, K) angles -> J (G, K) up to a constant
+        def J(th, w):  # th (G, K) angles, w (G,) prior weight mm^2 -> J (G, K) up to a constant
             c, s_ = np.cos(th), np.sin(th)
             out = r * r * (ax_[8][:, None] * c**2 + ay_[8][:, None] * s_**2) \
                 - 2.0 * r * (ax_[9][:, None] * c + ay_[9][:, None] * s_)
             if dir_prior is not None:
                 d = np.angle(np.exp(1j * (th - dir_prior)))  # wrapped to (-pi, pi]
-                out = out + sigma_mm**2 * (d / math.radians(cfg.slide_dir_sigma_deg)) ** 2
+                out = out + w[:, None] * (d / math.radians(cfg.slide_dir_sigma_deg)) ** 2
             return out
 
-        # A 10-degree grid, then 0.5 degree within 10 degrees of its best (J has at most two
-        # minima on the circle: its stationary points solve a quartic).
-        coarse = np.broadcast_to(theta, (G, len(theta)))
-        th0 = coarse[np.arange(G), np.argmin(J(coarse), axis=1)]
-        fine = th0[:, None] + fine_offsets[None, :]
-        th = fine[np.arange(G), np.argmin(J(fine), axis=1)]
-        rss = np.zeros(G)
-        for ax, (j0, o, sc, Aa, y, Nbb_i, Nbx, hb, _, _) in enumerate(parts):
-            x = r * (np.cos(th) if ax == 0 else np.sin(th))  # (G,)
-            b = np.einsum("gij,gj->gi", Nbb_i, hb - Nbx * x[:, None])
-            c = np.zeros((G, Aa.shape[2]))
-            c[:, o] = b
-            c[:, sc] = x
-            rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
-            coef[:, j0:, ax] = c
-            if not free0[ax]:
-                coef[:, 0, ax] = pin[ax]
+        def pick(w):
+            """Best angle (G,) for prior weight w, then coef and rss there."""
+            # A 10-degree grid, then 0.5 degree within 10 degrees of its best (J has at most
+            # two minima on the circle: its stationary points solve a quartic).
+            coarse = np.broadcast_to(theta, (G, len(theta)))
+            th0 = coarse[np.arange(G), np.argmin(J(coarse, w), axis=1)]
+            fine = th0[:, None] + fine_offsets[None, :]
+            th = fine[np.arange(G), np.argmin(J(fine, w), axis=1)]
+            rss = np.zeros(G)
+            for ax, (j0, o, sc, Aa, y, Nbb_i, Nbx, hb, _, _) in enumerate(parts):
+                x = r * (np.cos(th) if ax == 0 else np.sin(th))  # (G,)
+                b = np.einsum("gij,gj->gi", Nbb_i, hb - Nbx * x[:, None])
+                c = np.zeros((G, Aa.shape[2]))
+                c[:, o] = b
+                c[:, sc] = x
+                rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
+                coef[:, j0:, ax] = c
+                if not free0[ax]:
+                    coef[:, 0, ax] = pin[ax]
+            return rss
+
+        rss = pick(np.zeros(G))
+        if dir_prior is not None:
+            # The prior counts in units of the measurement variance: the larger of the nominal
+            # one and what the samples scatter about the fit (real detections carry errors
+            # that third differences miss, e.g. a bias that drifts along the path).
+            rss = pick(np.maximum(sigma_mm**2, rss / m_obs))
         return coef, rss, inv
 
     fixed = slide_decel is not None and after
+
+    def tk_prior(tk: np.ndarray, at_least: bool = False) -> np.ndarray:
+        """Gaussian prior on the slide's duration (chi-square units, ``slide_tk`` = (mean,
+        sd) s); ``at_least``: the duration is tk or longer, so only a shorter mean costs."""
+        if slide_tk is None:
+            return np.zeros(len(tk))
+        d = slide_tk[0] - tk
+        if at_least:
+            d = np.minimum(d, 0.0)
+        return (d / slide_tk[1]) ** 2
     dir_prior = None if slide_dir is None else math.atan2(slide_dir[1], slide_dir[0])
     cands = []  # (score, coef (4, 2), inv (2, q, q), rss, k, tk)
     one = np.stack([np.ones(n), tau, tau * tau], axis=1)[None]  # (1, n, 3)
@@ -403,9 +455,11 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             k = 5 - n_pinned
             c4 = np.zeros((4, 2))
             c4[:3] = coef[0]
-            cands.append((float(bic(rss, k)[0]), c4, inv[0], float(rss[0]), k, None))
+            # Sliding through the window: the slide lasts at least to the last sample.
+            pen = tk_prior(np.array([abs(tau[-1])]), at_least=True) * np.maximum(rss, floor) / m_obs
+            cands.append((float(bic(rss + pen, k)[0]), c4, inv[0], float(rss[0]), k, None))
     for roll, k in ((True, 4), (False, 6)):
-        if n < (3 if roll else cfg.quadratic_min_samples) or (fixed and not roll):
+        if n < (3 if roll else cfg.quadratic_min_samples) or fixed:
             continue
         out = solve(one, 2 if roll else None)
         if out is not None:
@@ -414,9 +468,10 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             c4 = np.zeros((4, 2))
             c4[:3] = coef[0]
             cands.append((float(bic(rss, k)[0]), c4, inv[0], float(rss[0]), k, None))
-    k_near = max(cfg.kink_min_samples, 1)
-    if n >= max(k_near + 3, cfg.quadratic_min_samples) and abs(tau[n - 4]) > abs(tau[k_near - 1]):
-        grid = np.arange(abs(tau[k_near - 1]), abs(tau[n - 4]), step_s)
+    k_near = 1 if fixed else max(cfg.kink_min_samples, 1)
+    tk_lo = abs(tau[k_near - 1])
+    if n >= max(k_near + 3, cfg.quadratic_min_samples) and abs(tau[n - 4]) > tk_lo:
+        grid = np.arange(tk_lo, abs(tau[n - 4]), step_s)
         tk = (1.0 if after else -1.0) * grid
         mm = np.where(np.abs(tau)[None, :] <= grid[:, None], tau[None, :], tk[:, None])
         r = tau[None, :] - mm
@@ -428,7 +483,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             if out is not None:
                 coef, rss, inv = out
                 k = 6 - n_pinned  # c0, c1 per axis, the slip angle and tk
-                sc = bic(rss, k)
+                sc = bic(rss + tk_prior(grid) * np.maximum(rss, floor) / m_obs, k)
                 g = int(np.argmin(sc))
                 cands.append((float(sc[g]), coef[g], inv[g], float(rss[g]), k, float(tk[g])))
             out = None
@@ -485,6 +540,13 @@ class _Ball:
     moves: list = field(default_factory=list)  # [(i0, i1)] index ranges, inclusive
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
+    weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
+
+    def weights(self, ts: np.ndarray) -> np.ndarray | None:
+        """Relative weights (n,) of the samples at times ts (from ``samples``), or None."""
+        if self.weight is None:
+            return None
+        return self.weight[np.searchsorted(self.t, ts)]
 
     def samples(self, t_lo: float, t_hi: float, exclude=None) -> tuple[np.ndarray, np.ndarray]:
         """Raw samples with t_lo < t < t_hi: ts (n,), ps (n, 2); ``exclude`` (t, half-width)
@@ -512,23 +574,35 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
         f_all = detections["frame"].to_numpy(np.int64)
         order = np.argsort(f_all, kind="stable")
         xy_all = detections[["x", "y"]].to_numpy(float)[order]
+        sig_all = (detections["sigma_mm"].to_numpy(float)[order] if "sigma_mm" in detections
+                   else np.full(len(order), np.nan))
         uniq, first = np.unique(f_all[order], return_index=True)
-        det_by_frame = dict(zip(uniq.tolist(), np.split(xy_all, first[1:])))
+        det_by_frame = dict(zip(uniq.tolist(), zip(np.split(xy_all, first[1:]),
+                                                   np.split(sig_all, first[1:]))))
     out = []
     for tid, g in tracks.groupby("track", sort=True):
         p = g[["x", "y"]].to_numpy(float)
         seen = g["seen"].to_numpy() > 0
         frames = g["frame"].to_numpy(np.int64)
+        weight = None
         if det_by_frame is not None:
             raw = np.full_like(p, np.nan)
+            sig = np.full(len(p), np.nan)
             for k in np.flatnonzero(seen):
-                cand = det_by_frame.get(int(frames[k]))
+                cand, cs = det_by_frame.get(int(frames[k]), (None, None))
                 if cand is None:
                     continue
                 d = np.hypot(*(cand - p[k]).T)
                 j = int(np.argmin(d))
                 if d[j] < radius_mm:
                     raw[k] = cand[j]
+                    sig[k] = cs[j]
+            ok = np.isfinite(sig) & (sig > 0)
+            if ok.any():
+                # Each sample weighs by the detector's own noise estimate relative to the
+                # track's typical one (weighted least squares; the scale stays the residuals').
+                weight = np.ones(len(p))
+                weight[ok] = np.median(sig[ok]) / sig[ok]
         elif {"x_meas", "y_meas"} <= set(g.columns):
             raw = g[["x_meas", "y_meas"]].to_numpy(float).copy()
             raw[~seen] = np.nan
@@ -536,7 +610,7 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
             raw = p.copy()
             raw[~seen] = np.nan
         out.append(_Ball(int(tid), g["t"].to_numpy(float), frames, p,
-                         g[["vx", "vy"]].to_numpy(float), raw))
+                         g[["vx", "vy"]].to_numpy(float), raw, weight=weight))
     return out
 
 
@@ -659,11 +733,21 @@ def find_events(
     collisions_by_ball: dict[int, list[float]] = {}
     for r in rows:
         collisions_by_ball.setdefault(r["track"], []).append(r["t"])
+    first = []  # (ball, rail, rough time, row or None, slide seen in enough samples)
     for b in balls:
         for tg, rail in rough_cushions[b.track]:
+            n_slides = len(finder.slides)
             r = finder.cushion(b, rail, tg)
-            if r is not None:
-                rows.append(r)
+            well_seen = len(finder.slides) > n_slides and \
+                finder.slides[-1][2] >= cfg.slide_min_samples
+            first.append((b, rail, tg, r, well_seen))
+    finder.slide_ratio = _cushion_slide_ratio(finder)
+    for b, rail, tg, r, well_seen in first:
+        # The slide's duration prior matters only where its samples leave it loose.
+        if finder.slide_ratio is not None and not well_seen:
+            r = finder.cushion(b, rail, tg)
+        if r is not None:
+            rows.append(r)
     moves = []  # (track, t_begin, t_end)
     for b in balls:
         # Last row of each stay on the table: before a gap in the frames or a jump.
@@ -735,7 +819,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f = _piecewise_fit(ts, ps, tg, b.sigma, step, cfg)
+            f = _piecewise_fit(ts, ps, tg, b.sigma, step, cfg, weight=b.weights(ts))
             if f is None or f.k < 6:
                 continue  # the rolling model was chosen: no slide seen
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
@@ -747,11 +831,36 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     return float(np.median(found)) if found else None
 
 
+def _cushion_slide_ratio(finder: "_Finder") -> float | None:
+    """Normal speed a ball loses sliding after a cushion, over its normal speed arriving
+    (rolling), measured once for the clip from its well-seen slides, or None.
+
+    A rolling ball's spin carries it toward the rail after the impact has reversed its normal
+    velocity, so it slides with the slip along the rail's normal, friction ``mu_s g`` pulling it
+    back toward the rail until it rolls (Alciatore 2004; the cushion impulse above the centre
+    takes part of the spin, Mathavan, Jackson & Parkin 2010). In the impact model the normal
+    speed lost by then is close to a fixed fraction of the normal speed arriving (that fraction
+    depends on the cushion: its nose height, friction and restitution), so, like the cloth's
+    ``mu_s g``, it is measured once per clip: the median over the contacts whose slide spans at
+    least ``slide_min_samples`` samples of ``mu_s g * slide / vn_in``. The short slides of slow
+    balls, which their few samples hardly fix, then get it as a prior (``_Finder.cushion``).
+    """
+    if finder.slide_decel is None:
+        return None
+    r = [finder.slide_decel * tk / vn for vn, tk, n in finder.slides
+         if n >= finder.cfg.slide_min_samples and vn > 0]
+    return float(np.median(r)) if len(r) >= finder.cfg.slide_ratio_min_contacts else None
+
+
 class _Finder:
     def __init__(self, table: TableSpec, cfg: EventConfig, dt: float, exposure: float):
         self.table, self.cfg, self.dt, self.exposure = table, cfg, dt, exposure
         # The cloth's sliding deceleration mu_s g (mm/s^2), once measured (find_events).
         self.slide_decel: float | None = None
+        # Normal speed lost in the slide after a cushion over the normal speed arriving
+        # (``find_events``), once measured; and the measurements (vn_in, slide s, samples).
+        self.slide_ratio: float | None = None
+        self.slides: list[tuple[float, float, int]] = []
         self.segments = {r: [] for r in RAILS}
         for seg in table.cushions():
             ax = 0 if seg.rail in ("bottom", "top") else 1
@@ -767,8 +876,8 @@ class _Finder:
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
-        return (self._side(ta, pa, t_c, b.sigma, step),
-                self._side(td, pd_, t_c, b.sigma, step, self.slide_decel))
+        return (self._side(ta, pa, t_c, b.sigma, step, weight=b.weights(ta)),
+                self._side(td, pd_, t_c, b.sigma, step, self.slide_decel, b.weights(td)))
 
     def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
         """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``."""
@@ -801,13 +910,14 @@ class _Finder:
         return best
 
     def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float,
-              slide_decel: float | None = None):
+              slide_decel: float | None = None, weight: np.ndarray | None = None):
         """Piecewise (slide then roll) fit of one side's samples (``_piecewise_fit``). A path the
         chosen model still cannot explain within the noise (chi-square test
         ``RSS / sigma^2 > chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the
         half of the window nearest the contact, at most twice."""
         for _ in range(3):
-            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg, slide_decel=slide_decel)
+            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg, slide_decel=slide_decel,
+                               weight=weight)
             if f is None or len(ts) < 2 * self.cfg.quadratic_min_samples:
                 return f
             dof = 2 * f.n - f.k
@@ -815,10 +925,12 @@ class _Finder:
                 return f
             keep = np.abs(ts - t_c) <= np.median(np.abs(ts - t_c))
             ts, ps = ts[keep], ps[keep]
+            weight = None if weight is None else weight[keep]
         return f
 
     def _pinned_contact(self, b: _Ball, ax: int, c: float, t_c: float, lo: float, hi: float,
-                        n_a: int, n_d: int, slide_dir: np.ndarray | None = None):
+                        n_a: int, n_d: int, slide_dir: np.ndarray | None = None,
+                        slide_tk: tuple[float, float] | None = None):
         """Refine a cushion contact by fitting both sides through the reversal line.
 
         In a rigid impact the centre is on the reversal line ``c`` (normal axis ``ax``) at the
@@ -846,10 +958,12 @@ class _Finder:
         pin = np.full(2, np.nan)
         pin[ax] = c
 
+        wa, wd = b.weights(ta), b.weights(td)
+
         def fits(t: float):
-            fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin)
+            fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin, weight=wa)
             fd = _piecewise_fit(td, pd_, t, b.sigma, step, self.cfg, pin, self.slide_decel,
-                                slide_dir)
+                                slide_dir, slide_tk, weight=wd)
             if fa is None or fd is None:
                 return math.inf, fa, fd
             return fa.bic + fd.bic, fa, fd
@@ -937,19 +1051,31 @@ class _Finder:
         if fa is None or fd is None:
             return None
         # Direction the ball slides after the impact. Arriving rolling (the approach's piece at
-        # the contact is rolling), its spin matches its velocity; the cushion's impulse changes
-        # the velocity by dv = v_out - v_in and, acting near the height of the centre, the spin
-        # much less, so the slip on the cloth just after is close to dv and friction pushes
-        # against it (Alciatore 2004: friction opposes the slip; the spin the nose adds above
-        # the centre shortens the slip but hardly turns it). Used as a loose prior.
-        slide_dir = None
-        if self.slide_decel is not None and (fa.tk is not None or fa.k <= 4):
-            dv = fd.vel(t_c) - fa.vel(t_c)
-            if float(np.hypot(*dv)) > 0:
-                slide_dir = -dv / float(np.hypot(*dv))
-        pinned = self._pinned_contact(b, ax, c, t_c, lo, hi, fa.n, fd.n, slide_dir)
+        # the contact is rolling), its spin matches its velocity. The cushion reverses the
+        # normal velocity but not the spin about the rail's axis, so just after the impact the
+        # ball's bottom slips along the rail's normal and friction pulls it back toward the rail
+        # (Alciatore 2004: friction opposes the slip). Along the rail, the cushion's friction
+        # slows the velocity and the matching spin together (Mathavan, Jackson & Parkin 2010),
+        # so the along-rail slip stays small: the prior is the rail's outward normal, sd
+        # ``slide_dir_sigma_deg``. How long the slide lasts scales with the normal speed
+        # arriving (``_cushion_slide_ratio``), a prior once the clip has measured it.
+        slide_dir = slide_tk = None
+        rolling_in = self.slide_decel is not None and (fa.tk is not None or fa.k <= 4)
+        n_in = np.asarray(rail_inward_normal(rail), dtype=float)
+        if rolling_in:
+            slide_dir = -n_in
+            vn_in = max(-float(fa.vel(t_c) @ n_in), 0.0)
+            if self.slide_ratio is not None:
+                tk = self.slide_ratio * vn_in / self.slide_decel
+                slide_tk = (tk, max(self.cfg.slide_ratio_sigma * vn_in / self.slide_decel,
+                                    0.25 * self.dt))
+        pinned = self._pinned_contact(b, ax, c, t_c, lo, hi, fa.n, fd.n, slide_dir, slide_tk)
         if pinned is not None:
             t_c, fa, fd = pinned
+            if rolling_in and fd.tk is not None:
+                n_slide = int(np.sum((b.t > t_c) & (b.t <= t_c + fd.tk)
+                                     & np.isfinite(b.raw[:, 0])))
+                self.slides.append((vn_in, fd.tk, n_slide))
         along = []
         for f in (fa, fd):
             along.append((f.pos(t_c)[1 - ax], max(f.var(t_c), 1e-30)))
@@ -960,6 +1086,18 @@ class _Finder:
         xy = [0.0, 0.0]
         xy[ax], xy[1 - ax] = c, s
         v_in, v_out = fa.vel(t_c), fd.vel(t_c)
+        # Not a ball bouncing (a hand or a false track sweeping past the rail): samples that
+        # scatter about the fits by more than a ball's radius (rms; no detection of that ball
+        # is so far off, while one poor detection among many moves the rms far less), or a
+        # path leaving the line much faster than it came (beyond three standard deviations of
+        # the two fitted speeds), since a cushion gives back less normal speed than it took
+        # (speed ratio below 1; Mathavan et al. 2009 measured at most about 0.95).
+        if max(fa.s2, fd.s2) > self.table.radius_mm ** 2:
+            return None
+        vn_in, vn_out = -float(v_in @ n_in), float(v_out @ n_in)
+        sd = math.sqrt(fa.s2 * fa.cov[1, 1] + fd.s2 * fd.cov[1, 1])
+        if vn_out - vn_in > 3.0 * sd:
+            return None
         a_in, a_out, e = cushion_angles(rail, v_in, v_out)
         return _row(t_c, "cushion", b.track, xy, speed_in=float(np.hypot(*v_in)),
                     speed_out=float(np.hypot(*v_out)), rail=rail,

@@ -43,6 +43,12 @@ Method
     and grows with the distance from the previous position, so at a collision each ball keeps the
     detection nearest to where it was (balls cannot pass through each other).
 
+  The assignment runs as a matching cascade (Wojke, Bewley & Paulus 2017, "Simple online and
+  realtime tracking with a deep association metric"): confirmed tracks seen in the previous
+  frame first, then confirmed tracks coasting unseen, then tentative tracks, each on the
+  detections the earlier ones left, so a coasting track's spreading prediction never out-bids a
+  ball followed frame by frame.
+
   Colour and pattern mismatches add to the cost; a ``cue`` pattern detection never goes to an
   object track (nor a solid/stripe one to the cue track) unless its quality is below
   ``label_min_quality``, when the mismatch only costs. Unassigned tracks and detections compete
@@ -300,7 +306,15 @@ class Tracker:
         preds = {tr.key: self._predict(tr, t) for tr in live}
         free = np.ones(len(Z), dtype=bool)
         assigned: dict[int, tuple[int, str]] = {}
-        for group in ([tr for tr in live if tr.confirmed], [tr for tr in live if not tr.confirmed]):
+        # A matching cascade (Wojke, Bewley & Paulus 2017): balls seen in the last frame choose
+        # first, then those coasting unseen, then tentative tracks. A coasting track's prediction
+        # spreads with every missed frame, so on its own gate it would out-bid a ball followed
+        # frame by frame for that ball's detection (a false track from a hand, coasting on at
+        # the hand's speed, taking over a ball it crosses).
+        confirmed = [tr for tr in live if tr.confirmed]
+        groups = ([tr for tr in confirmed if tr.misses == 0], [tr for tr in confirmed if tr.misses],
+                  [tr for tr in live if not tr.confirmed])
+        for group in groups:
             idx = np.flatnonzero(free)
             if not group or not len(idx):
                 continue
