@@ -42,8 +42,14 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    line, in the plane of the noses, converted to px) and every sight found (reprojection, px).
    A near-overhead camera sees the cloth almost square on, so the focal length and the camera's
    height trade against each other (they are separated only by the slight tilt and the sights'
-   height above the noses); the ball-centre plane lies within 8 mm of the nose plane, so the
-   positions of balls barely depend on that trade, and ``camera_height_mm`` pins it if known.
+   height above the noses, which is itself known only to a few mm); the ball-centre plane lies
+   within 8 mm of the nose plane, so the positions of balls depend on that trade only weakly, and
+   ``camera_height_mm`` pins it if known.
+7. **Uncertainty** (:func:`_uncertainty`): the linearised covariance of the fit, with the table's
+   tolerances and a nose-locator bias counted, gives standard deviations of the camera's height
+   and of ball positions; a view that does not fix the height to ``max_height_sd_rel`` is
+   reported as such (``quality["height_determined"]``, the check image's banner) instead of
+   passing a focal length it cannot know for a measured one.
 
 The resulting camera maps a ball centre (height R) to the cloth point below it by
 ``camera.backproject(uv, table.radius_mm)``, the results format's ball position.
@@ -193,7 +199,9 @@ class Calibration:
     * ``camera``: the camera from the clip's start (table frame of the module's origin rule);
     * ``quality``: plain numbers (JSON-ready): ``nose_rms_px``, ``nose_max_px``, ``sight_rms_px``,
       ``sights_found``, ``aspect_measured`` (L/W the image supports), ``focal_px``,
-      ``camera_height_mm``, ``hfov_deg``, ``k1``, ``k2``, ``nose_points``, ``still_frames``...;
+      ``camera_height_mm``, ``hfov_deg``, ``k1``, ``k2``, ``nose_points``, ``still_frames``, and
+      the uncertainty (:func:`_uncertainty`): ``camera_height_sd_mm``, ``focal_sd_pct``,
+      ``ball_position_sd_mm``, ``height_determined``...;
     * ``corners_px``: (4, 2) image positions (u, v) of the nose rectangle's corners at nose height,
       in table order (0,0), (L,0), (L,W), (0,W);
     * ``noses``: one :class:`NoseFit` per rail (bottom, right, top, left);
