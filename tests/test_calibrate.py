@@ -349,10 +349,7 @@ def test_command_refuses_in_one_line_and_writes_no_calibration(bump_clip, tmp_pa
 
 
 # --- the nose's image profile ------------------------------------------------------------------
-@pytest.mark.parametrize("name", [
-    "green9",
-    pytest.param("grey8", marks=pytest.mark.xfail(strict=True, reason="known: one side of the tilted grey view sits 0.151 px inward")),
-])
+@pytest.mark.parametrize("name", list(CASES))
 def test_nose_points_unbiased_against_renderer_truth(rendered, calibrated, name):
     # The renderer's true camera puts each found nose point some distance from the true nose
     # line (at nose height): the median per side is the locator's bias, the main error source of
