@@ -25,9 +25,9 @@ Per case it renders the static scene (``Renderer.background()`` plus sensor nois
 ``--clips`` also films two short clips with balls, the cue and arms (one with a camera bump) and
 calibrates them from the video file, once automatically and once given the true camera height
 (``+height``, as ``--camera-height`` would). The clips are kept in ``--work`` (default
-``/tmp/railtrace_calib_accuracy``) and reused while their scene text is unchanged. The summary
-gives medians and worst cases. Which corner the recovered table frame puts its origin at does not
-matter: the better of the two right-handed choices is compared.
+``/tmp/railtrace_calib_accuracy``) and reused while their scene text and the renderer's source
+are unchanged. The summary gives medians and worst cases. Which corner the recovered table frame
+puts its origin at does not matter: the better of the two right-handed choices is compared.
 """
 
 from __future__ import annotations
@@ -231,9 +231,15 @@ def run_clip(spec: dict, work: Path, height_given: bool = False) -> tuple[dict, 
     scene = parse_scene(tomllib.loads(text), source_text=text)
     clip = work / f"clip{spec['seed']}.mp4"
     stamp = work / f"clip{spec['seed']}.toml"
-    if not (clip.exists() and stamp.exists() and stamp.read_text() == text):
+    # A clip is reused only while its scene and the renderer that filmed it are unchanged.
+    import hashlib
+
+    import vision.render
+
+    key = text + "\n# renderer " + hashlib.sha256(Path(vision.render.__file__).read_bytes()).hexdigest() + "\n"
+    if not (clip.exists() and stamp.exists() and stamp.read_text() == key):
         film_scene(scene, clip)
-        stamp.write_text(text)
+        stamp.write_text(key)
     truth = camera_timeline(scene)
     config = CalibConfig(camera_height_mm=float(truth[0][1].centre_mm[2])) if height_given else CalibConfig()
     t0 = time.perf_counter()
