@@ -3,7 +3,7 @@ lights and tables, against the renderer's true camera.
 
 Usage::
 
-    .venv/bin/python benchmarks/calib_accuracy.py [--quick] [--clips] [--json OUT]
+    nice -n 10 .venv/bin/python benchmarks/calib_accuracy.py [--quick] [--clips] [--work DIR] [--json OUT]
 
 Per case it renders the static scene (``Renderer.background()`` plus sensor noise, quantised to
 8 bits), calibrates it, and prints:
@@ -17,12 +17,17 @@ Per case it renders the static scene (``Renderer.background()`` plus sensor nois
 * ``f %``, ``k1``, ``cam mm``: focal length error, recovered and true k1, camera-centre error;
 * ``parallax``: ball centres on a grid over the cloth imaged by the true camera at height R and
   back-projected by the recovered camera at height R: max error, mm (and, for scale, what a
-  cloth-plane mapping of the true camera would make of them: ``naive``).
+  cloth-plane mapping of the true camera would make of them: ``naive``);
+* ``H sd``, ``ball sd``, ``det``: what the calibration itself says of its camera height (1 sd,
+  mm), of ball positions (1 sd, worst over the table, mm) and whether the view determines the
+  height (``vision.calibrate._uncertainty``); ``H/sd``: the true height error in those sds.
 
 ``--clips`` also films two short clips with balls, the cue and arms (one with a camera bump) and
-calibrates them from the video file. The summary gives medians and worst cases. Which corner the
-recovered table frame puts its origin at does not matter: the better of the two right-handed
-choices is compared.
+calibrates them from the video file, once automatically and once given the true camera height
+(``+height``, as ``--camera-height`` would). The clips are kept in ``--work`` (default
+``/tmp/railtrace_calib_accuracy``) and reused while their scene text and the renderer's source
+are unchanged. The summary gives medians and worst cases. Which corner the recovered table frame
+puts its origin at does not matter: the better of the two right-handed choices is compared.
 """
 
 from __future__ import annotations
@@ -31,7 +36,6 @@ import argparse
 import json
 import math
 import sys
-import tempfile
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -217,7 +221,7 @@ def clip_cases() -> list[dict]:
     ]
 
 
-def run_clip(spec: dict, tmp: Path) -> tuple[dict, list]:
+def run_clip(spec: dict, work: Path, height_given: bool = False) -> tuple[dict, object]:
     import tomllib
 
     from railtrace.filming import camera_timeline, film_scene
@@ -225,13 +229,24 @@ def run_clip(spec: dict, tmp: Path) -> tuple[dict, list]:
 
     text = CLIP_SCENE.format(**spec)
     scene = parse_scene(tomllib.loads(text), source_text=text)
-    clip = tmp / f"clip{spec['seed']}.mp4"
-    film_scene(scene, clip)
-    t0 = time.perf_counter()
-    cal = calibrate(clip, scene.table, CalibConfig())
-    secs = time.perf_counter() - t0
+    clip = work / f"clip{spec['seed']}.mp4"
+    stamp = work / f"clip{spec['seed']}.toml"
+    # A clip is reused only while its scene and the renderer that filmed it are unchanged.
+    import hashlib
+
+    import vision.render
+
+    key = text + "\n# renderer " + hashlib.sha256(Path(vision.render.__file__).read_bytes()).hexdigest() + "\n"
+    if not (clip.exists() and stamp.exists() and stamp.read_text() == key):
+        film_scene(scene, clip)
+        stamp.write_text(key)
     truth = camera_timeline(scene)
+    config = CalibConfig(camera_height_mm=float(truth[0][1].centre_mm[2])) if height_given else CalibConfig()
+    t0 = time.perf_counter()
+    cal = calibrate(clip, scene.table, config)
+    secs = time.perf_counter() - t0
     res = measure(scene.table, truth[0][1], cal.camera)
+    res.update(_stated(cal.quality, truth[0][1]))
     res["seconds"] = secs
     res["bumps_true"] = [t for t, _ in truth[1:]]
     res["bumps_found"] = [round(t, 3) for t, _ in cal.camera_changes[1:]]
@@ -244,14 +259,29 @@ def run_clip(spec: dict, tmp: Path) -> tuple[dict, list]:
     return res, cal
 
 
+def _stated(q: dict, true: Camera) -> dict:
+    """The calibration's own uncertainty statement and the true height error in its sds."""
+    sd = q["camera_height_sd_mm"]
+    return {"height_sd_mm": sd, "ball_sd_mm": q["ball_position_sd_mm"], "height_determined": q["height_determined"],
+            "height_err_in_sd": (q["camera_height_mm"] - float(true.centre_mm[2])) / sd if sd > 0 else float("nan")}
+
+
+def _row(name: str, m: dict, naive: str) -> str:
+    return (f"{name:32s} {m['corner_mm']:6.2f} {m['nose_mm']:6.2f} {m['dist_rms_px']:5.3f}/{m['dist_max_px']:5.3f} {m['reproj_max_px']:6.2f} "
+            f"{m['f_err_pct']:+6.1f} {m['k1']:+6.3f}/{m['k1_true']:+6.3f} {m['cam_mm']:7.1f} {m['parallax_max_mm']:8.2f} {naive:>6s} "
+            f"{m['height_sd_mm']:6.0f} {m['height_err_in_sd']:+5.1f} {m['ball_sd_mm']:7.2f} {'yes' if m['height_determined'] else 'no':>3s} {m['seconds']:5.1f}")
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--quick", action="store_true", help="four static cases only")
     ap.add_argument("--clips", action="store_true", help="also film and calibrate two clips (slow)")
+    ap.add_argument("--work", type=Path, default=Path("/tmp/railtrace_calib_accuracy"), help="where the filmed clips are kept and reused")
     ap.add_argument("--json", type=Path, help="write all figures here")
     args = ap.parse_args(argv)
     rows = []
-    hdr = f"{'case':32s} {'corner':>6s} {'nose':>6s} {'dist rms/max':>12s} {'reproj':>6s} {'f %':>6s} {'k1 got/true':>13s} {'cam mm':>7s} {'parallax':>8s} {'naive':>6s} {'s':>5s}"
+    hdr = (f"{'case':32s} {'corner':>6s} {'nose':>6s} {'dist rms/max':>12s} {'reproj':>6s} {'f %':>6s} {'k1 got/true':>13s} "
+           f"{'cam mm':>7s} {'parallax':>8s} {'naive':>6s} {'H sd':>6s} {'H/sd':>5s} {'ball sd':>7s} {'det':>3s} {'s':>5s}")
     print(hdr)
     for i, case in enumerate(cases(args.quick)):
         img, cam = render_background(case, seed=100 + i)
@@ -264,24 +294,25 @@ def main(argv=None) -> int:
             continue
         secs = time.perf_counter() - t0
         m = measure(case.table, cam, cal.camera)
+        m.update(_stated(cal.quality, cam))
         m.update(case=case.name, seconds=secs, nose_rms_fit_px=cal.quality["nose_rms_px"], sights=cal.quality["sights_found"])
         rows.append(m)
-        print(f"{case.name:32s} {m['corner_mm']:6.2f} {m['nose_mm']:6.2f} {m['dist_rms_px']:5.3f}/{m['dist_max_px']:5.3f} {m['reproj_max_px']:6.2f} "
-              f"{m['f_err_pct']:+6.1f} {m['k1']:+6.3f}/{m['k1_true']:+6.3f} {m['cam_mm']:7.1f} {m['parallax_max_mm']:8.2f} {m['naive_max_mm']:6.1f} {secs:5.1f}")
+        print(_row(case.name, m, f"{m['naive_max_mm']:6.1f}"))
     if args.clips:
-        with tempfile.TemporaryDirectory() as d:
-            for spec in clip_cases():
+        args.work.mkdir(parents=True, exist_ok=True)
+        for spec in clip_cases():
+            for given in (False, True):
+                name = spec["name"] + (" +height" if given else "")
                 try:
-                    m, _ = run_clip(spec, Path(d))
+                    m, _ = run_clip(spec, args.work, given)
                 except CalibrationError as exc:
-                    print(f"{spec['name']:32s} REFUSED: {exc}")
-                    rows.append({"case": spec["name"], "refused": str(exc)})
+                    print(f"{name:32s} REFUSED: {exc}")
+                    rows.append({"case": name, "refused": str(exc)})
                     continue
-                m["case"] = spec["name"]
+                m["case"] = name
                 rows.append(m)
-                print(f"{spec['name']:32s} {m['corner_mm']:6.2f} {m['nose_mm']:6.2f} {m['dist_rms_px']:5.3f}/{m['dist_max_px']:5.3f} {m['reproj_max_px']:6.2f} "
-                      f"{m['f_err_pct']:+6.1f} {m['k1']:+6.3f}/{m['k1_true']:+6.3f} {m['cam_mm']:7.1f} {m['parallax_max_mm']:8.2f} {'':6s} {m['seconds']:5.1f}"
-                      f"  bumps true {m['bumps_true']} found {m['bumps_found']}"
+                print(_row(name, m, "")
+                      + f"  bumps true {m['bumps_true']} found {m['bumps_found']}"
                       + (f", after bump corner {m['after_bump_corner_mm']:.2f} mm parallax {m['after_bump_parallax_max_mm']:.2f} mm" if "after_bump_corner_mm" in m else ""))
     ok = [r for r in rows if "refused" not in r]
     if ok:
@@ -293,6 +324,10 @@ def main(argv=None) -> int:
             print(f"{k:16s} median {np.median(v):7.3f}  worst {np.max(v):7.3f}")
         v = np.abs(col("f_err_pct"))
         print(f"{'|f err| %':16s} median {np.median(v):7.3f}  worst {np.max(v):7.3f}")
+        v = np.abs(col("height_err_in_sd"))
+        print(f"{'|H err| / sd':16s} median {np.median(v):7.3f}  worst {np.max(v):7.3f}")
+        v = col("parallax_max_mm") / col("ball_sd_mm")
+        print(f"{'parallax / sd':16s} median {np.median(v):7.3f}  worst {np.max(v):7.3f}")
     if args.json:
         args.json.write_text(json.dumps(rows, indent=2))
     return 0

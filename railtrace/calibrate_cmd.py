@@ -35,7 +35,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("--ball", type=float, default=None, metavar="MM", help="ball diameter, mm (default 57.15)")
     p.add_argument("--corners", default=None, metavar="U,V;U,V;U,V;U,V",
                    help="the four cushion-nose corners in the picture, px: origin, along the long side, far corner, along the short side (anticlockwise)")
-    p.add_argument("--camera-height", type=float, default=None, metavar="MM", help="lens height above the cloth, mm, if known")
+    p.add_argument("--camera-height", type=float, default=None, metavar="MM", help="lens height above the cloth, mm, if known; pins the distance a view from straight above cannot tell")
     p.add_argument("--out", type=Path, default=Path("calibration.json"), help="calibration file to write (default calibration.json)")
     p.add_argument("--check", type=Path, default=None, help="check image to write (default: beside --out, *_check.png)")
     return p
@@ -84,8 +84,10 @@ def run(args: argparse.Namespace) -> int:
     write_calibration(out, doc)
     q = cal.quality
     bumps = f", camera moved {len(cal.camera_changes) - 1} time(s)" if len(cal.camera_changes) > 1 else ""
+    height = (f"height {q['camera_height_mm']:.0f} +- {q['camera_height_sd_mm']:.0f} mm" if q["height_determined"] else
+              f"height not determined by this view ({q['camera_height_mm']:.0f} +- {q['camera_height_sd_mm']:.0f} mm; give --camera-height)")
     print(f"wrote {out} and {check}: noses rms {q['nose_rms_px']:.2f} px, {q['sights_found']} sights, "
-          f"f {q['focal_px']:.0f} px, k1 {q['k1']:+.3f}, height {q['camera_height_mm']:.0f} mm{bumps}")
+          f"f {q['focal_px']:.0f} px, k1 {q['k1']:+.3f}, {height}, ball positions +- {q['ball_position_sd_mm']:.1f} mm (1 sd){bumps}")
     return 0
 
 

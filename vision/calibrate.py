@@ -42,8 +42,14 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    line, in the plane of the noses, converted to px) and every sight found (reprojection, px).
    A near-overhead camera sees the cloth almost square on, so the focal length and the camera's
    height trade against each other (they are separated only by the slight tilt and the sights'
-   height above the noses); the ball-centre plane lies within 8 mm of the nose plane, so the
-   positions of balls barely depend on that trade, and ``camera_height_mm`` pins it if known.
+   height above the noses, which is itself known only to a few mm); the ball-centre plane lies
+   within 8 mm of the nose plane, so the positions of balls depend on that trade only weakly, and
+   ``camera_height_mm`` pins it if known.
+7. **Uncertainty** (:func:`_uncertainty`): the linearised covariance of the fit, with the table's
+   tolerances and a nose-locator bias counted, gives standard deviations of the camera's height
+   and of ball positions; a view that does not fix the height to ``max_height_sd_rel`` is
+   reported as such (``quality["height_determined"]``, the check image's banner) instead of
+   passing a focal length it cannot know for a measured one.
 
 The resulting camera maps a ball centre (height R) to the cloth point below it by
 ``camera.backproject(uv, table.radius_mm)``, the results format's ball position.
@@ -117,6 +123,16 @@ class CalibConfig:
     * refusal thresholds: ``max_nose_rms_px`` (RMS distance of nose points from their fitted
       lines), ``max_sight_rms_px``, ``max_aspect_error`` (relative), plausible ``hfov_deg_range``
       and ``height_mm_range``;
+    * how well the table is known, for the uncertainty of the camera (standard deviations; see
+      :func:`_uncertainty`): ``camera_height_sd_mm`` of a given ``camera_height_mm`` (a tape
+      to the lens; from memory), ``table_size_sd_mm`` of the playing area's length and width,
+      ``nose_height_sd_mm`` and ``sight_setback_sd_mm`` (each uniform within its WPA tolerance,
+      references.md: +-3.2 mm, 35.7-36.9 mm, +-3.2 mm, so the half-range over sqrt 3),
+      ``rail_top_sd_mm`` of the sights' height above the nose (from memory: a few mm, so half the
+      model's 8 mm), ``nose_bias_sd_px`` (a per-side bias of the nose locator; our tests hold it
+      to 0.15 px on rendered views);
+      ``max_height_sd_rel``: the camera height counts as determined by the view when its
+      standard deviation is at most this fraction of it;
     * bumps: ``detect_bumps``, ``bump_every_s``, ``bump_threshold_px`` (full-resolution motion of
       the table's outline), ``bump_persist`` samples;
     * check image: ``check_px_per_mm``.
@@ -136,6 +152,13 @@ class CalibConfig:
     max_aspect_error: float = 0.03
     hfov_deg_range: tuple[float, float] = (25.0, 150.0)
     height_mm_range: tuple[float, float] = (900.0, 6000.0)
+    camera_height_sd_mm: float = 20.0
+    table_size_sd_mm: float = 1.85
+    nose_height_sd_mm: float = 0.35
+    rail_top_sd_mm: float = 4.0
+    sight_setback_sd_mm: float = 1.85
+    nose_bias_sd_px: float = 0.15
+    max_height_sd_rel: float = 0.05
     detect_bumps: bool = True
     bump_every_s: float = 0.1
     bump_threshold_px: float = 1.5
@@ -176,7 +199,9 @@ class Calibration:
     * ``camera``: the camera from the clip's start (table frame of the module's origin rule);
     * ``quality``: plain numbers (JSON-ready): ``nose_rms_px``, ``nose_max_px``, ``sight_rms_px``,
       ``sights_found``, ``aspect_measured`` (L/W the image supports), ``focal_px``,
-      ``camera_height_mm``, ``hfov_deg``, ``k1``, ``k2``, ``nose_points``, ``still_frames``...;
+      ``camera_height_mm``, ``hfov_deg``, ``k1``, ``k2``, ``nose_points``, ``still_frames``, and
+      the uncertainty (:func:`_uncertainty`): ``camera_height_sd_mm``, ``focal_sd_pct``,
+      ``ball_position_sd_mm``, ``height_determined``...;
     * ``corners_px``: (4, 2) image positions (u, v) of the nose rectangle's corners at nose height,
       in table order (0,0), (L,0), (L,W), (0,W);
     * ``noses``: one :class:`NoseFit` per rail (bottom, right, top, left);
@@ -908,6 +933,129 @@ def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight,
     return np.where(np.isfinite(r), r, 1e3)
 
 
+def _table_varied(table: TableSpec, d_mm: np.ndarray) -> TableSpec:
+    """``table`` with its length, width, nose height, rail-top height and sight setback changed by
+    the (5,) ``d_mm`` (mm), in that order."""
+    return replace(
+        table, length_mm=table.length_mm + d_mm[0], width_mm=table.width_mm + d_mm[1],
+        nose_height_mm=table.nose_height_mm + d_mm[2], rail_top_height_mm=table.rail_top_height_mm + d_mm[3],
+        sight_setback_mm=table.sight_setback_mm + d_mm[4],
+    )
+
+
+def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm: np.ndarray, table: TableSpec,
+                 sight_w: float, height_prior: float | None, config: CalibConfig) -> dict[str, Any]:
+    """How well the fitted camera is determined: standard deviations of the camera's height above
+    the cloth (mm), of its focal length (%) and of ball positions (mm, the largest over the table).
+
+    Linearised error propagation for a least-squares estimate (Hartley & Zisserman, Multiple View
+    Geometry, 2nd ed., sec. 5.2.3, "forward propagation of covariance"): with ``J`` the Jacobian
+    of the fit's weighted residuals in its parameters ``theta`` (:func:`_residuals`, central
+    differences), ``G = (J^T J)^-1 J^T`` maps a change of the residuals to a change of the
+    estimate, so
+    ``cov(theta) = G diag(sigma^2) G^T + (G J_nu) diag(sd_nu^2) (G J_nu)^T``: the first term from
+    the scatter of the nose points and sights (``sigma`` each one's robust spread, floored at
+    0.05 px for noses and 0.1 px for sights), the second from what the model assumes about the
+    table, ``nu``: its length and width, nose height, the sights' height and setback, and a bias
+    of the nose locator (one shared by all four sides, the same locator on the same cushions,
+    plus one per side, each ``nose_bias_sd_px / sqrt 2``), with the standard deviations of
+    :class:`CalibConfig`. A shared bias matters most: it changes the size of the nose rectangle
+    against the sights, which is where a square-on view's sense of distance comes from. A given
+    ``camera_height_mm`` enters as one more residual with ``camera_height_sd_mm``.
+
+    Seen square-on, a plane does not separate the focal length from the camera's distance
+    (Zhang, IEEE TPAMI 22(11), 2000): only the sights' few mm above the noses and the view's tilt
+    do, so there the height's standard deviation comes out large and says so; ball positions
+    depend on the height only through the radius-to-nose-height gap, so their bound stays small.
+    Returns JSON-ready numbers: ``camera_height_sd_mm``, ``focal_sd_pct``, ``ball_position_sd_mm``
+    (root of the trace of each ball's 2x2 covariance, worst over a 9 x 5 grid of ball centres),
+    ``height_determined`` (sd at most ``max_height_sd_rel`` of the height).
+    """
+    all_sights = [xy for _, _, xy in table.sights()]
+    sight_idx = np.array([int(np.argmin([math.hypot(s[0] - a, s[1] - b) for a, b in all_sights])) for s in sights_mm[:, :2]], int)
+
+    def residuals(theta, nu):
+        t = _table_varied(table, nu[:5])
+        smm = np.array([[x_, y_, t.rail_top_height_mm] for _, _, (x_, y_) in t.sights()])[sight_idx] if len(sight_idx) else sights_mm
+        cam = cam_of(theta)
+        out = []
+        for rail, pts in noses:
+            if len(pts):
+                off, scale = _nose_offsets_mm(cam, pts, rail, t)
+                out.append(off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)])
+        if len(sights_px):
+            out.append(((cam.project(smm) - sights_px) * sight_w).ravel())
+        if height_prior is not None:
+            out.append(np.array([(cam.centre_mm[2] - height_prior) / 5.0]))  # as in _residuals
+        return np.concatenate(out)
+
+    def jac(fun, v, steps):
+        cols = []
+        for k, h in enumerate(steps):
+            e = np.zeros(len(v))
+            e[k] = h
+            cols.append((fun(v + e) - fun(v - e)) / (2 * h))
+        return np.array(cols).T
+
+    nu0 = np.zeros(10)
+    n_t = len(x)
+    # Steps: log f and k's dimensionless, rotation in rad, translation in mm.
+    steps_t = np.array(([1e-5, 1e-5, 1e-5] if n_t == 9 else []) + [1e-6] * 3 + [1e-2] * 3)
+    J = jac(lambda th: residuals(th, nu0), x, steps_t)
+    Jn = jac(lambda v: residuals(x, v), nu0, np.array([0.1] * 5 + [0.01] * 5))
+    norms = np.linalg.norm(J, axis=0)
+    live = norms > 1e-12  # k2 when it is held at zero
+    G = np.zeros((n_t, len(J)))
+    # Pseudo-inverse of the column-scaled J itself (SVD), not of J^T J: square-on, J^T J's
+    # condition number (1e13 and more) would lose the weak focal-height direction to rounding.
+    G[live] = np.linalg.pinv(J[:, live] / norms[live], rcond=1e-12) / norms[live][:, None]
+    # Per-residual noise, in the residuals' own (weighted) units.
+    n_nose = sum(len(p) for _, p in noses)
+    r0 = residuals(x, nu0)
+    rn = r0[:n_nose]
+    sd_nose = max(0.05, 1.4826 * float(np.median(np.abs(rn - np.median(rn))))) if n_nose else 0.05
+    noise = [np.full(n_nose, sd_nose)]
+    if len(sights_px):
+        rs = r0[n_nose : n_nose + 2 * len(sights_px)] / sight_w
+        sd_s = max(0.1, 1.4826 * float(np.median(np.abs(rs - np.median(rs))))) if len(rs) >= 8 else 0.5
+        noise.append(np.full(2 * len(sights_px), sd_s * sight_w))
+    if height_prior is not None:
+        noise.append(np.array([config.camera_height_sd_mm / 5.0]))
+    noise = np.concatenate(noise)
+    sd_nu = np.array([config.table_size_sd_mm] * 2 + [config.nose_height_sd_mm, config.rail_top_sd_mm, config.sight_setback_sd_mm]
+                     + [config.nose_bias_sd_px / math.sqrt(2)] * 5)
+    A = G @ Jn  # the estimate moves by -A d_nu when the table differs by d_nu
+    cov = (G * noise**2) @ G.T + (A * sd_nu**2) @ A.T
+
+    cam = cam_of(x)
+    R = table.radius_mm
+    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 9), np.linspace(R, table.width_mm - R, 5))
+    uv_balls = cam.project(np.column_stack([gx.ravel(), gy.ravel(), np.full(gx.size, R)]))
+
+    def derived(th, nu):
+        # Ball positions in the frame of the noses as they really are: a table 2 mm longer than
+        # its model moves every position in mm, but not relative to the cushions, which is what
+        # the results format's frame means; so they are rescaled to the varied table's size.
+        c = cam_of(th)
+        xy = c.backproject(uv_balls, R)[:, :2] * [table.length_mm / (table.length_mm + nu[0]), table.width_mm / (table.width_mm + nu[1])]
+        return np.concatenate([[c.centre_mm[2]], xy.ravel()])
+
+    D = jac(lambda th: derived(th, nu0), x, steps_t)
+    Dn = jac(lambda v: derived(x, v), nu0, np.array([0.1] * 5 + [0.01] * 5))
+    B = Dn - D @ A
+    var = np.diag((D @ G * noise**2) @ (D @ G).T + (B * sd_nu**2) @ B.T)
+    h_sd = float(math.sqrt(max(var[0], 0.0)))
+    ball_var = var[1:].reshape(-1, 2).sum(axis=1)
+    height = float(cam.centre_mm[2])
+    f_sd = float(100 * math.sqrt(max(cov[0, 0], 0.0))) if n_t == 9 else 0.0
+    return {
+        "camera_height_sd_mm": h_sd,
+        "focal_sd_pct": f_sd,
+        "ball_position_sd_mm": float(math.sqrt(max(float(np.max(ball_var)), 0.0))),
+        "height_determined": bool(h_sd <= config.max_height_sd_rel * height),
+    }
+
+
 # ================================================================================================
 # Sights
 # ================================================================================================
@@ -1095,6 +1243,7 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
     # The shape of the table the image supports: refit with the width free.
     aspect = _measured_aspect(cam, fits, table)
     f = float(cam.K[0, 0])
+    unc = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, hp, config)
     quality = {
         "nose_rms_px": float(np.sqrt(np.mean(all_res**2))),
         "nose_max_px": float(np.max(np.abs(all_res))),
@@ -1112,6 +1261,7 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
         "k2": float(cam.dist[1]),
         "camera_height_mm": float(cam.centre_mm[2]),
         "camera_centre_mm": cam.centre_mm.tolist(),
+        **unc,
     }
     corners = cam.project(np.column_stack([obj, np.full(4, table.nose_height_mm)]))
     return _Fit(cam, tuple(fits), sights_px, sights_mm[:, :2] if len(sights_mm) else np.zeros((0, 2)), quality, origin, corners)
@@ -1190,11 +1340,22 @@ def check_image(bg: np.ndarray, cam: Camera | None, table: TableSpec, fit: _Fit 
             f"noses: rms {q['nose_rms_px']:.2f} px, max {q['nose_max_px']:.2f} px over {q['nose_points']} points",
             f"sights: {q['sights_found']} of 18" + (f", rms {q['sight_rms_px']:.2f} px" if q["sight_rms_px"] is not None else ""),
             f"f {q['focal_px']:.0f} px (hfov {q['hfov_deg']:.1f} deg), k1 {q['k1']:+.3f} k2 {q['k2']:+.3f}, height {q['camera_height_mm']:.0f} mm",
+            _height_line(q),
             f"table {table.name} L/W {q['aspect_table']:.3f}, seen {q['aspect_measured']:.3f}" if q["aspect_measured"] else f"table {table.name}",
             "origin (0,0) at the lower left of this view",
         ]
         return _with_banner(img, lines)
     return _with_banner(img, [verdict])
+
+
+def _height_line(q: dict) -> str:
+    """The check image's words on how well the view fixes the camera's distance (quality of
+    :func:`_uncertainty`)."""
+    h, sd, ball = q["camera_height_mm"], q["camera_height_sd_mm"], q["ball_position_sd_mm"]
+    if q["height_determined"]:
+        return f"camera height {h:.0f} +- {sd:.0f} mm; ball positions +- {ball:.1f} mm (1 sd) from the calibration"
+    return (f"camera height NOT determined by this view ({h:.0f} +- {sd:.0f} mm, too square-on); ball positions "
+            f"+- {ball:.1f} mm (1 sd) from it; give --camera-height to pin it")
 
 
 def _with_banner(img: np.ndarray, lines: list[str]) -> np.ndarray:

@@ -485,7 +485,11 @@ class Renderer:
             ya = C[1] + lo * d[idx, 1]
             lab_a = self._surface(xa, ya)[1]
             lab = lab_b.copy()
-            wall = got & (zs_b - zray_b > 0.5)
+            # A ray ending below the surface beside it hit a vertical face. The bisection leaves
+            # under 0.001 mm on a sloped top, so 0.01 mm tells them apart; a coarser threshold
+            # drew the top of each face as cushion top and moved the imaged nose toward the
+            # camera's nadir by that height times d / (H - h) (0.1-0.16 px on tilted views).
+            wall = got & (zs_b - zray_b > 0.01)
             nose = wall & (lab_b == CUSHION) & (lab_a != SHELF) & (lab_a != HOLE)
             lab[wall] = FACING
             lab[nose] = NOSE_FACE
