@@ -30,6 +30,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -39,7 +40,11 @@ from cushion_accuracy import _print_errors, band_errors, session_doc  # noqa: E4
 from analysis.cushions import CushionCheckConfig, check_session, load_session  # noqa: E402
 from railtrace.filming import film_scene  # noqa: E402
 from railtrace.pipeline import AnalyseConfig, analyse_clip  # noqa: E402
+from railtrace.results import write_results  # noqa: E402
 from railtrace.scene import parse_scene  # noqa: E402
+from tracking.events import find_events  # noqa: E402
+from tracking.tracker import track  # noqa: E402
+from vision.calibfile import read_calibration  # noqa: E402
 
 #: name -> (seed, rail factors, dead spot, focus stretch, camera, look); cameras and looks unlike
 #: the sample clip's.
@@ -68,6 +73,19 @@ def session_scene(name: str, n_rolled: int):
     return parse_scene(doc), dead
 
 
+def retrack(analysed: Path, table) -> Path:
+    """Tracking and events re-run on ``analysed/detections.csv`` into ``<analysed>_retracked``
+    (replaced), with that analysis's calibration; returns the new folder."""
+    det = pd.read_csv(analysed / "detections.csv", dtype={"colour": str, "pattern": str})
+    tracks = track(det, table)
+    events, shots = find_events(tracks, table, det)
+    out = analysed.with_name(analysed.name + "_retracked")
+    _table, _camera, calib_doc = read_calibration(analysed / "calibration.json")
+    write_results(out, tracks, events, shots, calib_doc, overwrite=True,
+                  run_info={"reused_detections": str(analysed)})
+    return out
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--work", type=Path, default=Path("/tmp/railtrace_cushion_rendered"))
@@ -76,6 +94,8 @@ def main(argv=None) -> int:
     ap.add_argument("--auto", action="store_true", help="calibrate from the clip, not from the truth")
     ap.add_argument("--force", action="store_true", help="re-film and re-analyse")
     ap.add_argument("--film-only", action="store_true", help="only film the sessions (and cache them)")
+    ap.add_argument("--retrack", action="store_true",
+                    help="re-run tracking and events on the cached analysis's detections.csv")
     args = ap.parse_args(argv)
     args.work.mkdir(parents=True, exist_ok=True)
     config = CushionCheckConfig()
@@ -95,6 +115,8 @@ def main(argv=None) -> int:
         if not out.exists():
             cfg = AnalyseConfig(table=scene.table, calibration_path=None if args.auto else truth / "calibration.json")
             analyse_clip(clip, out, cfg)
+        if args.retrack:
+            out = retrack(out, scene.table)
         t2 = time.perf_counter()
         check = check_session(load_session([out], config), config, np.random.default_rng(0))
         print(f"{name}: {scene.film.fps:g} fps, {len(scene.shots)} shots; filmed in {t1 - t0:.0f} s, "
