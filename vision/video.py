@@ -5,6 +5,8 @@ Frames are (H, W, 3) uint8 BGR arrays (OpenCV's channel order, ``img[v, u]``); t
 
 from __future__ import annotations
 
+import queue
+import threading
 from dataclasses import dataclass
 from fractions import Fraction
 from pathlib import Path
@@ -129,13 +131,28 @@ def _open(path) -> "av.container.InputContainer":
     return container
 
 
-def iter_frames(path) -> Iterator[tuple[int, float, np.ndarray]]:
+def iter_frames(path, read_ahead: int = 0) -> Iterator[tuple[int, float, np.ndarray]]:
     """Stream ``(index from 0, presentation time s, (H, W, 3) uint8 BGR frame)`` from a video file.
 
     Times come from the container's timestamps, relative to the first frame, so variable frame
     rate clips are right. ValueError with a one-line message for a missing file, a file that is
     not a video, or one without a video stream.
+
+    ``read_ahead`` > 0 decodes in a background thread up to that many frames ahead of the
+    caller (FFmpeg's decoding and colour conversion release Python's global lock, so on a
+    machine with a spare core decoding overlaps the caller's work); the frames, times and
+    errors are the same as with 0, which decodes in the caller's thread.
     """
+    if read_ahead < 0:
+        raise ValueError(f"read_ahead {read_ahead!r} is negative; give 0 (no decoding thread) or a frame count such as 8")
+    if read_ahead == 0:
+        yield from _decode(path)
+        return
+    yield from _threaded(_decode(path), int(read_ahead))
+
+
+def _decode(path) -> Iterator[tuple[int, float, np.ndarray]]:
+    """:func:`iter_frames` in the caller's thread."""
     container = _open(path)
     try:
         stream = container.streams.video[0]
@@ -156,6 +173,53 @@ def iter_frames(path) -> Iterator[tuple[int, float, np.ndarray]]:
         raise ValueError(f"{str(path)!r}: decoding failed ({exc.__class__.__name__}: {exc})") from None
     finally:
         container.close()
+
+
+_END = object()
+
+
+def _threaded(items: Iterator, depth: int) -> Iterator:
+    """Run the iterator ``items`` in a background thread, ``depth`` items ahead of the consumer;
+    its exception, if any, is raised in the consumer where the item would have come. Closing
+    the returned generator early stops the thread and closes ``items``."""
+    q: queue.Queue = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+
+    def put(item) -> bool:
+        # A bounded wait so a consumer that stopped reading never leaves the thread blocked.
+        while not stop.is_set():
+            try:
+                q.put(item, timeout=0.1)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def run() -> None:
+        try:
+            for item in items:
+                if not put((item, None)):
+                    break
+            else:
+                put((_END, None))
+        except BaseException as exc:  # handed to the consumer, which raises it
+            put((_END, exc))
+        finally:
+            items.close()
+
+    worker = threading.Thread(target=run, name="railtrace-decode", daemon=True)
+    worker.start()
+    try:
+        while True:
+            item, exc = q.get()
+            if exc is not None:
+                raise exc
+            if item is _END:
+                return
+            yield item
+    finally:
+        stop.set()
+        worker.join()
 
 
 def probe(path) -> VideoInfo:
