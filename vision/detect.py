@@ -222,6 +222,18 @@ def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     )
 
 
+def _dot3(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Dot products over a last axis of length 3, (...): channel by channel, in the order
+    ``np.sum`` adds three values (numpy's reduction over a short last axis costs several times
+    the arithmetic)."""
+    return a[..., 0] * b[..., 0] + a[..., 1] * b[..., 1] + a[..., 2] * b[..., 2]
+
+
+def _norm3(a: np.ndarray) -> np.ndarray:
+    """Euclidean norms over a last axis of length 3, (...); as ``np.linalg.norm(a, axis=-1)``."""
+    return np.sqrt(_dot3(a, a))
+
+
 def _median(x: np.ndarray) -> float:
     """Median of a short 1-D array by ``np.partition`` (``np.median``'s generic reduction
     machinery dominates its cost on 48 values)."""
@@ -273,26 +285,24 @@ def _residuals(P: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: b
     residual per row holds the bias to its prior, N(0, ``_BIAS_SIGMA_MM``). Returns (M, K + 1).
     """
     P = np.atleast_2d(np.asarray(P, float))
-    M = len(P)
-    w = np.column_stack([P[:, 0] - C[0], P[:, 1] - C[1], np.full(M, R - C[2])])  # (M, 3)
-    # w x d for every row and ray, written out: np.cross is slow on small arrays.
-    wxd = np.stack(
-        [
-            w[:, None, 1] * d[None, :, 2] - w[:, None, 2] * d[None, :, 1],
-            w[:, None, 2] * d[None, :, 0] - w[:, None, 0] * d[None, :, 2],
-            w[:, None, 0] * d[None, :, 1] - w[:, None, 1] * d[None, :, 0],
-        ],
-        axis=2,
-    )  # (M, K, 3)
+    wx = (P[:, 0] - C[0])[:, None]
+    wy = (P[:, 1] - C[1])[:, None]
+    wz = R - C[2]
+    dx, dy, dz = d[None, :, 0], d[None, :, 1], d[None, :, 2]
+    # n = w x d for every row and ray, (M, K) per component (stacking costs more than the
+    # arithmetic on a few hundred values).
+    nx = wy * dz - wz * dy
+    ny = wz * dx - wx * dz
+    nz = wx * dy - wy * dx
     if capsule:
         half = np.maximum(P[:, 3], 0.0)[:, None]
         ex, ey = np.cos(P[:, 4])[:, None], np.sin(P[:, 4])[:, None]
-        # e x d with e = (ex, ey, 0).
-        exd = np.stack([ey * d[None, :, 2], -ex * d[None, :, 2], ex * d[None, :, 1] - ey * d[None, :, 0]], axis=2)
-        den = np.maximum(np.sum(exd * exd, axis=2), 1e-12)
-        s = np.clip(-np.sum(wxd * exd, axis=2) / den, -half, half)
-        wxd = wxd + s[..., None] * exd
-    dist = np.sqrt(np.sum(wxd * wxd, axis=2))
+        # a = e x d with e = (ex, ey, 0); s the point of the segment nearest the ray.
+        ax, ay, az = ey * dz, -ex * dz, ex * dy - ey * dx
+        den = np.maximum(ax * ax + ay * ay + az * az, 1e-12)
+        s = np.clip(-(nx * ax + ny * ay + nz * az) / den, -half, half)
+        nx, ny, nz = nx + s * ax, ny + s * ay, nz + s * az
+    dist = np.sqrt(nx * nx + ny * ny + nz * nz)
     return np.concatenate([dist - (R - P[:, 2:3]), P[:, 2:3] / _BIAS_SIGMA_MM], axis=1)
 
 
@@ -713,8 +723,8 @@ class BallDetector:
         bprof = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
         # Reference colour: the frame itself just outside the predicted outline (the last
         # samples of each ray), so an imperfect background under a resting ball does not matter.
-        ref = np.median(prof[:, -5:], axis=1)
-        D = np.linalg.norm(prof - ref[:, None], axis=2) / np.maximum(np.linalg.norm(bprof, axis=2), 30.0)
+        ref = np.sort(prof[:, -5:], axis=1)[:, 2]  # the median of five
+        D = _norm3(prof - ref[:, None]) / np.maximum(_norm3(bprof), 30.0)
         # A cast shadow differs from the cloth just beyond it but only dims the empty table: a
         # sample no brighter than the model and within ~4.6 degrees of its colour's direction
         # (sin 0.08: the cloth's texture and noise; a stripe's band or a black ball lie tens of
@@ -722,9 +732,9 @@ class BallDetector:
         # from colour) and the smaller value counts, so the shadow's outer edge is not taken
         # for the ball's while a ghost in the model, unlike the frame just outside, still does
         # not count.
-        bb = np.maximum(np.sum(bprof * bprof, axis=2), 1.0)
-        a = np.sum(prof * bprof, axis=2) / bb
-        off_hue = np.linalg.norm(prof - a[..., None] * bprof, axis=2) / np.maximum(np.linalg.norm(prof, axis=2), 20.0)
+        bb = np.maximum(_dot3(bprof, bprof), 1.0)
+        a = _dot3(prof, bprof) / bb
+        off_hue = _norm3(prof - a[..., None] * bprof) / np.maximum(_norm3(prof), 20.0)
         shade = (a < 1.03) & (off_hue < 0.08)
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
@@ -785,7 +795,7 @@ class BallDetector:
         S = prof[:, outer].mean(axis=1)
         ps = P - S
         n2 = np.sum(ps * ps, axis=1)
-        alpha = np.sum((prof - S[:, None]) * ps[:, None], axis=2) / np.maximum(n2, 1e-6)[:, None]
+        alpha = _dot3(prof - S[:, None], ps[:, None]) / np.maximum(n2, 1e-6)[:, None]
         a0, a1 = alpha[:, :-1], alpha[:, 1:]
         cross = (a0 >= 0.5) & (a1 < 0.5)
         pos = off[None, :-1] + _STEP_PX * (a0 - 0.5) / np.where(cross, a0 - a1, 1.0)
