@@ -539,6 +539,16 @@ class BallDetector:
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
         """Detections in one frame (a new DataFrame; the image is not modified)."""
+        out = self.step(frame_index, t_s, image).copy()
+        out["frame"] = np.int64(frame_index)
+        out["t"] = float(t_s)
+        return out[COLUMNS].reset_index(drop=True)
+
+    def step(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
+        """:meth:`process` without the per-frame copy: this frame's detections with ``frame``
+        and ``t`` not filled in. When nothing changed it is the very frame returned for the
+        previous frame, so it must not be modified; :func:`stack_detections` turns a clip's
+        steps into one table."""
         img = np.asarray(image)
         w, h = self.size
         if img.shape != (h, w, 3) or img.dtype != np.uint8:
@@ -565,10 +575,7 @@ class BallDetector:
             self._since_update = 0.0
             self.background.update(img, self._protect_mask(det))
         self._prev = det
-        out = det.copy()
-        out["frame"] = np.int64(frame_index)
-        out["t"] = float(t_s)
-        return out[COLUMNS].reset_index(drop=True)
+        return det
 
     @property
     def _score_thr(self) -> float:
@@ -1031,12 +1038,35 @@ class BallDetector:
         return colour, pattern
 
 
-def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig()) -> pd.DataFrame:
+def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig(), read_ahead: int = 0) -> pd.DataFrame:
     """Detections (:data:`COLUMNS`) in every frame of the clip at ``path``, streamed (the clip is
-    never held in memory); frame times are the container's presentation times."""
+    never held in memory); frame times are the container's presentation times. ``read_ahead``:
+    frames decoded ahead in a background thread (:func:`vision.video.iter_frames`)."""
     det = BallDetector(camera, table, config)
-    parts = [det.process(i, t, img) for i, t, img in iter_frames(path)]
-    parts = [p for p in parts if len(p)]
-    if not parts:
+    return stack_detections([(i, t, det.step(i, t, img)) for i, t, img in iter_frames(path, read_ahead=read_ahead)])
+
+
+def stack_detections(steps) -> pd.DataFrame:
+    """One detections table (:data:`COLUMNS`, rows in frame order) from a clip's
+    ``(frame index, t s, BallDetector.step(...))`` triples; the same as concatenating
+    :meth:`BallDetector.process`'s frames. A frame repeated from the previous one (nothing
+    changed) is turned into arrays once, so a still stretch costs a few array copies."""
+    cols = [c for c in COLUMNS if c not in ("frame", "t")]
+    arrays: dict[int, list[np.ndarray]] = {}
+    data: list[list[np.ndarray]] = [[] for _ in COLUMNS]
+    for frame_index, t_s, det in steps:
+        n = len(det)
+        if n == 0:
+            continue
+        # ``steps`` holds every frame alive, so an object's id is not reused meanwhile.
+        got = arrays.get(id(det))
+        if got is None:
+            got = arrays[id(det)] = [det[c].to_numpy() for c in cols]
+        data[0].append(np.full(n, frame_index, np.int64))
+        data[1].append(np.full(n, float(t_s)))
+        for k, a in enumerate(got):
+            data[2 + k].append(a)
+    if not data[0]:
         return empty_detections()
-    return pd.concat(parts, ignore_index=True)
+    out = pd.DataFrame({c: np.concatenate(v) for c, v in zip(COLUMNS, data)}, columns=COLUMNS)
+    return out.astype(empty_detections().dtypes.to_dict())
