@@ -114,3 +114,17 @@ def test_read_ahead_stops_when_the_reader_stops_and_reports_errors(tmp_path):
     with pytest.raises(ValueError, match="negative"):
         list(iter_frames(path, read_ahead=-1))
     assert _decode_threads() == []
+
+
+def test_frame_range_gives_the_same_frames_as_the_whole_clip(tmp_path):
+    path = tmp_path / "clip.mp4"
+    write_video(path, iter(_frames(24)), 29.97, quality=18)
+    whole = list(iter_frames(path))
+    for start, stop, ahead in [(0, 5, 0), (7, 19, 0), (7, 19, 3), (20, None, 0), (24, None, 0)]:
+        part = list(iter_frames(path, read_ahead=ahead, start=start, stop=stop))
+        want = whole[start:stop]
+        # Indices and times of the whole clip, identical pixels (same decoder, same frames).
+        assert [(i, t) for i, t, _ in part] == [(i, t) for i, t, _ in want]
+        assert all(np.array_equal(a[2], b[2]) for a, b in zip(part, want))
+    with pytest.raises(ValueError, match="start"):
+        list(iter_frames(path, start=5, stop=2))

@@ -131,7 +131,7 @@ def _open(path) -> "av.container.InputContainer":
     return container
 
 
-def iter_frames(path, read_ahead: int = 0) -> Iterator[tuple[int, float, np.ndarray]]:
+def iter_frames(path, read_ahead: int = 0, start: int = 0, stop: int | None = None) -> Iterator[tuple[int, float, np.ndarray]]:
     """Stream ``(index from 0, presentation time s, (H, W, 3) uint8 BGR frame)`` from a video file.
 
     Times come from the container's timestamps, relative to the first frame, so variable frame
@@ -142,16 +142,23 @@ def iter_frames(path, read_ahead: int = 0) -> Iterator[tuple[int, float, np.ndar
     caller (FFmpeg's decoding and colour conversion release Python's global lock, so on a
     machine with a spare core decoding overlaps the caller's work); the frames, times and
     errors are the same as with 0, which decodes in the caller's thread.
+
+    ``start`` / ``stop``: only frames with ``start <= index < stop`` are yielded (indices and
+    times stay those of the whole clip). Earlier frames are still decoded, as later frames are
+    predicted from them, but not converted to BGR, which is most of a plain read's cost after
+    decoding; reading stops after ``stop - 1``.
     """
     if read_ahead < 0:
         raise ValueError(f"read_ahead {read_ahead!r} is negative; give 0 (no decoding thread) or a frame count such as 8")
+    if start < 0 or (stop is not None and stop < start):
+        raise ValueError(f"frame range {start}..{stop} is not 0 <= start <= stop")
     if read_ahead == 0:
-        yield from _decode(path)
+        yield from _decode(path, start, stop)
         return
-    yield from _threaded(_decode(path), int(read_ahead))
+    yield from _threaded(_decode(path, start, stop), int(read_ahead))
 
 
-def _decode(path) -> Iterator[tuple[int, float, np.ndarray]]:
+def _decode(path, start: int = 0, stop: int | None = None) -> Iterator[tuple[int, float, np.ndarray]]:
     """:func:`iter_frames` in the caller's thread."""
     container = _open(path)
     try:
@@ -160,6 +167,8 @@ def _decode(path) -> Iterator[tuple[int, float, np.ndarray]]:
         first = None
         rate = stream.average_rate or stream.guessed_rate
         for i, frame in enumerate(container.decode(stream)):
+            if stop is not None and i >= stop:
+                break
             if frame.pts is not None and frame.time_base is not None:
                 t = float(frame.pts * frame.time_base)
             elif rate:
@@ -168,7 +177,8 @@ def _decode(path) -> Iterator[tuple[int, float, np.ndarray]]:
                 raise ValueError(f"{str(path)!r}: frame {i} has no timestamp and the stream no frame rate")
             if first is None:
                 first = t
-            yield i, t - first, frame.to_ndarray(format="bgr24")
+            if i >= start:
+                yield i, t - first, frame.to_ndarray(format="bgr24")
     except av.FFmpegError as exc:
         raise ValueError(f"{str(path)!r}: decoding failed ({exc.__class__.__name__}: {exc})") from None
     finally:
