@@ -46,7 +46,9 @@ def main(argv=None) -> int:
         table = read_calibration(args.calibration)[0]
     else:
         table = parse_table(args.table, None)
-    config = AnalyseConfig(table=table, calibration_path=args.calibration, workers=args.workers)
+    # workers 0 leaves the pipeline's default (so the script also times revisions before it).
+    extra = {"workers": args.workers} if args.workers else {}
+    config = AnalyseConfig(table=table, calibration_path=args.calibration, **extra)
     dec, full = [], []
     work = Path(tempfile.mkdtemp(prefix="analyse_speed."))
     try:

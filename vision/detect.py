@@ -359,7 +359,9 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
     tuning constant 4.685 robust sigmas) on the ray residuals; the bias prior keeps weight 1.
     The Jacobian is analytic (:func:`_residuals_jacobian`); each iteration tries a ladder of
     four damping values in one batched solve and one :func:`_residuals` call.
-    Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y (2, 2) mm^2)."""
+    Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y): the last a
+    function returning the (2, 2) mm^2 matrix, evaluated only for the fit that is kept (most
+    rounds' fits are starting points for the next)."""
     p = np.array(p0, float)
     n = len(p)
     lam = 1e-3
@@ -403,8 +405,7 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
     good = wts[:K] > 0
     dof = max(int(good.sum()) - n, 1)
     s2 = float(np.sum(wts[:K] * r[:K] ** 2)) / dof
-    cov = np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
-    return p, r[:K], wts[:K], cov
+    return p, r[:K], wts[:K], lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
 
 
 def _fit_rms(result) -> float:
@@ -902,7 +903,7 @@ class BallDetector:
         hd = float(p[4]) if capsule else 0.0
         travel = 2 * half + 2 * R if capsule else 0.0
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
-        sig = float(math.sqrt(max(np.trace(cov) / 2, 0.0)))
+        sig = float(math.sqrt(max(np.trace(cov()) / 2, 0.0)))
         sig = max(sig, 0.15) + (0.1 * half if capsule else 0.0)
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         return {
