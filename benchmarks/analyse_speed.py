@@ -6,7 +6,7 @@ thread of ours, FFmpeg's own decoding threads as in the pipeline), and (b)
 ``railtrace.pipeline.analyse_clip`` into a fresh folder: automatic calibration (as
 ``railtrace analyse`` does without ``--calibration``; ``--calibration FILE`` skips it),
 detection, tracking, events and the results folder (not the HTML report or the history).
-Prints each run and the medians: frames per second, the ratio to real time (clip duration over
+Prints each run (with each stage's wall seconds) and the medians: frames per second, the ratio to real time (clip duration over
 wall time) and the ratio of (b) to (a). ``--workers`` is ``AnalyseConfig.workers`` (0: one
 detection process per core this process may use, so ``taskset`` limits it).
 
@@ -58,11 +58,12 @@ def main(argv=None) -> int:
             dec.append(n / (time.perf_counter() - t0))
             out = work / f"run{k}"
             t0 = time.perf_counter()
-            analyse_clip(args.clip, out, config)
+            summary = analyse_clip(args.clip, out, config)
             secs = time.perf_counter() - t0
             full.append(n / secs)
             shutil.rmtree(out)
-            print(f"run {k}: decode {dec[-1]:7.1f} frames/s; analyse {secs:6.1f} s = {full[-1]:6.1f} frames/s", flush=True)
+            stages = ", ".join(f"{k} {v:.1f}" for k, v in getattr(summary, "stage_seconds", {}).items())
+            print(f"run {k}: decode {dec[-1]:7.1f} frames/s; analyse {secs:6.1f} s = {full[-1]:6.1f} frames/s ({stages or 'no stage times'})", flush=True)
     finally:
         shutil.rmtree(work, ignore_errors=True)
     d, f = statistics.median(dec), statistics.median(full)

@@ -70,7 +70,9 @@ class AnalyseConfig:
 
 @dataclass(frozen=True)
 class AnalyseSummary:
-    """What one analysis found, for the closing summary line (times in s)."""
+    """What one analysis found, for the closing summary line (times in s). ``stage_seconds``:
+    wall time of each stage (``calibration``, ``detection``, ``tracking``, ``events``,
+    ``writing``)."""
 
     out_dir: Path
     frames: int
@@ -83,6 +85,7 @@ class AnalyseSummary:
     calibration_source: str
     calibration_quality: dict
     seconds: float
+    stage_seconds: dict = field(default_factory=dict)
 
     def text(self) -> str:
         """A short human summary."""
@@ -109,10 +112,16 @@ def analyse_clip(
     if out.exists():
         raise ValueError(f"output folder {out} exists already; choose a new --out or remove it first")
     info = probe(clip)
+    stages = {}
+    t = time.perf_counter()
     table, cameras, source, quality, calib_doc = _calibration(clip, config)
+    stages["calibration"], t = time.perf_counter() - t, time.perf_counter()
     detections = _detect_parallel(clip, table, cameras, config, info, progress)
+    stages["detection"], t = time.perf_counter() - t, time.perf_counter()
     tracks = track(detections, table, config.tracker)
+    stages["tracking"], t = time.perf_counter() - t, time.perf_counter()
     events, shots = find_events(tracks, table, detections, config.events)
+    stages["events"], t = time.perf_counter() - t, time.perf_counter()
     run_info = {
         "clip": str(clip),
         "frames": int(detections["frame"].max() + 1) if len(detections) else info.frame_count,
@@ -122,6 +131,7 @@ def analyse_clip(
         out, tracks, events, shots, calib_doc, overwrite=False, run_info=run_info,
         extra_files={"detections.csv": detections.to_csv(index=False, float_format="%.4f")},
     )
+    stages["writing"] = time.perf_counter() - t
     counts = events["kind"].value_counts() if len(events) else pd.Series(dtype=int)
     return AnalyseSummary(
         out_dir=out,
@@ -135,6 +145,7 @@ def analyse_clip(
         calibration_source=source,
         calibration_quality=quality,
         seconds=time.perf_counter() - t0,
+        stage_seconds=stages,
     )
 
 
@@ -229,7 +240,9 @@ def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, prog
             if index >= first:
                 steps.append((index, t, det))
             if progress is not None:
-                progress(index + 1, n_frames if end is None else end)
+                # The first part stands for the whole clip: the other parts run alongside it.
+                done = index + 1 if end is None else (index + 1) * n_frames // end
+                progress(min(done, n_frames), n_frames)
     except ValueError:
         raise
     except Exception as exc:  # a decoder error part-way through: the file is damaged
