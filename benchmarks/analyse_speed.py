@@ -1,8 +1,9 @@
 """Whole ``railtrace analyse`` speed against plain decoding of the same clip.
 
 Times, in the same run and alternating, ``--runs`` times each: (a) plain decoding of the clip
-to (H, W, 3) uint8 BGR frames, what the detector consumes (``vision.video.iter_frames``, one
-thread of ours, FFmpeg's own decoding threads as in the pipeline), and (b)
+to (H, W, 3) uint8 BGR frames, what the detector consumes (``vision.video.iter_frames`` with
+its defaults: FFmpeg's own decoding threads and, where there is a spare core, our read-ahead
+thread, as calibration and single-process detection use it), and (b)
 ``railtrace.pipeline.analyse_clip`` into a fresh folder: automatic calibration (as
 ``railtrace analyse`` does without ``--calibration``; ``--calibration FILE`` skips it),
 detection, tracking, events and the results folder (not the HTML report or the history).

@@ -46,10 +46,10 @@ def main(argv=None) -> int:
     dec, full, cpu = [], [], []
     for k in range(args.runs):
         t0 = time.perf_counter()
-        n = sum(1 for _ in iter_frames(clip))
+        n = sum(1 for _ in iter_frames(clip, read_ahead=0))
         dec.append(n / (time.perf_counter() - t0))
         t0, c0 = time.perf_counter(), time.process_time()
-        detect_clip(clip, camera, table)
+        detect_clip(clip, camera, table, read_ahead=0)
         full.append(n / (time.perf_counter() - t0))
         cpu.append(1000 * (time.process_time() - c0) / n)
         print(f"run {k}: decode {dec[-1]:7.1f} frames/s, decode+detect {full[-1]:7.1f} frames/s ({cpu[-1]:.1f} ms of processor time per frame)")

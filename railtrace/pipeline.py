@@ -18,7 +18,6 @@ from __future__ import annotations
 import logging
 import math
 import multiprocessing
-import os
 import time
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import asdict, dataclass, field
@@ -35,7 +34,7 @@ from vision.calibrate import CalibConfig, calibrate
 from vision.camera import Camera
 from vision.detect import BallDetector, DetectConfig, stack_detections
 from vision.table import TableSpec
-from vision.video import iter_frames, probe
+from vision.video import iter_frames, probe, usable_cores
 
 log = logging.getLogger(__name__)
 
@@ -183,19 +182,10 @@ def split_frames(n_frames: int, parts: int, warmup: int) -> list[tuple[int, int,
     return out
 
 
-def _cores() -> int:
-    """Cores this process may run on (``taskset`` and container limits respected where the
-    system reports them)."""
-    try:
-        return max(len(os.sched_getaffinity(0)), 1)
-    except AttributeError:  # not every system has affinity masks
-        return max(os.cpu_count() or 1, 1)
-
-
 def _detect_parallel(clip, table, cameras, config: AnalyseConfig, info, progress) -> pd.DataFrame:
     """Detections of the whole clip, its parts (:func:`split_frames`) detected in parallel
     processes; the first part runs in this process, so it alone reports progress."""
-    cores = _cores()
+    cores = usable_cores()
     workers = int(config.workers) or cores
     fps = info.fps if info.fps > 0 else 30.0
     n = info.frame_count

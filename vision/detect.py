@@ -1039,10 +1039,11 @@ class BallDetector:
         return colour, pattern
 
 
-def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig(), read_ahead: int = 0) -> pd.DataFrame:
+def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig(), read_ahead: int | None = None) -> pd.DataFrame:
     """Detections (:data:`COLUMNS`) in every frame of the clip at ``path``, streamed (the clip is
     never held in memory); frame times are the container's presentation times. ``read_ahead``:
-    frames decoded ahead in a background thread (:func:`vision.video.iter_frames`)."""
+    frames decoded ahead in a background thread (:func:`vision.video.iter_frames`; None: its
+    default, a thread where there is a spare core)."""
     det = BallDetector(camera, table, config)
     return stack_detections([(i, t, det.step(i, t, img)) for i, t, img in iter_frames(path, read_ahead=read_ahead)])
 

@@ -5,6 +5,7 @@ Frames are (H, W, 3) uint8 BGR arrays (OpenCV's channel order, ``img[v, u]``); t
 
 from __future__ import annotations
 
+import os
 import queue
 import threading
 from dataclasses import dataclass
@@ -131,7 +132,16 @@ def _open(path) -> "av.container.InputContainer":
     return container
 
 
-def iter_frames(path, read_ahead: int = 0, start: int = 0, stop: int | None = None) -> Iterator[tuple[int, float, np.ndarray]]:
+def usable_cores() -> int:
+    """Cores this process may run on (``taskset`` and container limits respected where the
+    system reports them)."""
+    try:
+        return max(len(os.sched_getaffinity(0)), 1)
+    except AttributeError:  # not every system has affinity masks
+        return max(os.cpu_count() or 1, 1)
+
+
+def iter_frames(path, read_ahead: int | None = None, start: int = 0, stop: int | None = None) -> Iterator[tuple[int, float, np.ndarray]]:
     """Stream ``(index from 0, presentation time s, (H, W, 3) uint8 BGR frame)`` from a video file.
 
     Times come from the container's timestamps, relative to the first frame, so variable frame
@@ -141,13 +151,16 @@ def iter_frames(path, read_ahead: int = 0, start: int = 0, stop: int | None = No
     ``read_ahead`` > 0 decodes in a background thread up to that many frames ahead of the
     caller (FFmpeg's decoding and colour conversion release Python's global lock, so on a
     machine with a spare core decoding overlaps the caller's work); the frames, times and
-    errors are the same as with 0, which decodes in the caller's thread.
+    errors are the same as with 0, which decodes in the caller's thread. None: 4 where this
+    process may use more than one core (:func:`usable_cores`), else 0.
 
     ``start`` / ``stop``: only frames with ``start <= index < stop`` are yielded (indices and
     times stay those of the whole clip). Earlier frames are still decoded, as later frames are
     predicted from them, but not converted to BGR, which is most of a plain read's cost after
     decoding; reading stops after ``stop - 1``.
     """
+    if read_ahead is None:
+        read_ahead = 4 if usable_cores() > 1 else 0
     if read_ahead < 0:
         raise ValueError(f"read_ahead {read_ahead!r} is negative; give 0 (no decoding thread) or a frame count such as 8")
     if start < 0 or (stop is not None and stop < start):
