@@ -7,7 +7,8 @@ thread, as calibration and single-process detection use it), and (b)
 ``railtrace.pipeline.analyse_clip`` into a fresh folder: automatic calibration (as
 ``railtrace analyse`` does without ``--calibration``; ``--calibration FILE`` skips it),
 detection, tracking, events and the results folder (not the HTML report or the history).
-Prints each run (with each stage's wall seconds) and the medians: frames per second, the ratio to real time (clip duration over
+Prints each run (with the processor seconds of this process and its workers, and each
+stage's wall seconds) and the medians: frames per second, the ratio to real time (clip duration over
 wall time) and the ratio of (b) to (a). ``--workers`` is ``AnalyseConfig.workers`` (0: one
 detection process per core this process may use, so ``taskset`` limits it).
 
@@ -18,6 +19,7 @@ Run: ``.venv/bin/python benchmarks/analyse_speed.py --runs 3`` (default clip
 from __future__ import annotations
 
 import argparse
+import resource
 import shutil
 import statistics
 import sys
@@ -32,6 +34,14 @@ from railtrace.pipeline import AnalyseConfig, analyse_clip  # noqa: E402
 from vision.calibfile import read_calibration  # noqa: E402
 from vision.table import parse_table  # noqa: E402
 from vision.video import iter_frames, probe  # noqa: E402
+
+
+def _cpu_s() -> float:
+    """Processor seconds used so far by this process and its finished worker processes (a
+    shared machine's load stretches wall time far more than this)."""
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    kids = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
 
 
 def main(argv=None) -> int:
@@ -58,13 +68,14 @@ def main(argv=None) -> int:
             n = sum(1 for _ in iter_frames(args.clip))
             dec.append(n / (time.perf_counter() - t0))
             out = work / f"run{k}"
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), _cpu_s()
             summary = analyse_clip(args.clip, out, config)
             secs = time.perf_counter() - t0
+            cpu = _cpu_s() - c0
             full.append(n / secs)
             shutil.rmtree(out)
             stages = ", ".join(f"{k} {v:.1f}" for k, v in getattr(summary, "stage_seconds", {}).items())
-            print(f"run {k}: decode {dec[-1]:7.1f} frames/s; analyse {secs:6.1f} s = {full[-1]:6.1f} frames/s ({stages or 'no stage times'})", flush=True)
+            print(f"run {k}: decode {dec[-1]:7.1f} frames/s; analyse {secs:6.1f} s = {full[-1]:6.1f} frames/s, {cpu:.1f} processor s ({stages or 'no stage times'})", flush=True)
     finally:
         shutil.rmtree(work, ignore_errors=True)
     d, f = statistics.median(dec), statistics.median(full)
