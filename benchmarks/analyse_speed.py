@@ -9,8 +9,9 @@ thread, as calibration and single-process detection use it), and (b)
 detection, tracking, events and the results folder (not the HTML report or the history).
 Prints each run (with the processor seconds of this process and its workers, and each
 stage's wall seconds) and the medians: frames per second, the ratio to real time (clip duration over
-wall time) and the ratio of (b) to (a). ``--workers`` is ``AnalyseConfig.workers`` (0: one
-detection process per core this process may use, so ``taskset`` limits it).
+wall time) and the ratio of (b) to (a). ``--workers`` sets ``AnalyseConfig.workers`` (0: one
+detection process per core this process may use, so ``taskset`` limits it; default: the
+pipeline's default, one process).
 
 Run: ``.venv/bin/python benchmarks/analyse_speed.py --runs 3`` (default clip
 ``sample_clips/bank_practice.mp4``, 720p60, 38 s).
@@ -49,7 +50,7 @@ def main(argv=None) -> int:
     ap.add_argument("--clip", type=Path, default=ROOT / "sample_clips" / "bank_practice.mp4")
     ap.add_argument("--table", default="9ft", help="table for automatic calibration (default 9ft)")
     ap.add_argument("--calibration", type=Path, default=None, help="calibration file: skip automatic calibration")
-    ap.add_argument("--workers", type=int, default=0)
+    ap.add_argument("--workers", type=int, default=None, help="AnalyseConfig.workers (default: the pipeline's own)")
     ap.add_argument("--runs", type=int, default=3)
     args = ap.parse_args(argv)
     info = probe(args.clip)
@@ -57,8 +58,8 @@ def main(argv=None) -> int:
         table = read_calibration(args.calibration)[0]
     else:
         table = parse_table(args.table, None)
-    # workers 0 leaves the pipeline's default (so the script also times revisions before it).
-    extra = {"workers": args.workers} if args.workers else {}
+    # No --workers leaves the pipeline's default (so the script also times revisions before it).
+    extra = {} if args.workers is None else {"workers": args.workers}
     config = AnalyseConfig(table=table, calibration_path=args.calibration, **extra)
     dec, full = [], []
     work = Path(tempfile.mkdtemp(prefix="analyse_speed."))
@@ -80,7 +81,7 @@ def main(argv=None) -> int:
         shutil.rmtree(work, ignore_errors=True)
     d, f = statistics.median(dec), statistics.median(full)
     print(f"clip {args.clip.name}: {info.width}x{info.height} at {info.fps:g} fps, {n} frames ({info.duration_s:.1f} s); "
-          f"calibration {'from file' if args.calibration else 'automatic'}, workers {args.workers or 'one per core'}")
+          f"calibration {'from file' if args.calibration else 'automatic'}, workers {'default' if args.workers is None else args.workers or 'one per core'}")
     print(f"median decode only {d:.1f} frames/s; analyse {f:.1f} frames/s = {f / info.fps:.2f}x real time, {f / d:.2f} of decode-only speed")
     return 0
 
