@@ -19,7 +19,8 @@ What is measured, and how
   about 0.07 slower than one arriving rolling. Spin is not seen, but a sliding ball decelerates at
   about ``mu_slide g`` (~2 m/s^2) and a rolling one at ``mu_roll g`` (~0.1 m/s^2) (Mathavan,
   Jackson & Parkin 2009). Each contact's approach deceleration is the magnitude of the
-  least-squares slope of (vx, vy) over the last ``approach_window_s`` before it; below
+  least-squares slope of (vx, vy) over the last ``approach_window_s`` before it (at least
+  ``min_approach_samples`` frames); below
   ``rolling_decel_max_mm_s2`` the ball arrived *rolling*. Liveliness is measured on rolling
   arrivals only, the condition of Mathavan et al. 2009's measured curve; other contacts are listed
   but not fitted.
@@ -277,17 +278,22 @@ def _contacts(events, tracks, table, config, folder) -> pd.DataFrame:
 
 def _approach_decel(contacts, events, tracks, config) -> np.ndarray:
     """|d(vx, vy)/dt| (mm/s^2) by least squares over the last ``approach_window_s`` before each
-    contact, after the ball's previous event plus ``event_margin_s``; NaN with too few samples."""
+    contact (lengthened to hold ``min_approach_samples`` frames at the clip's frame interval, so
+    30 fps clips are measured too), after the ball's previous event plus ``event_margin_s``; NaN
+    with too few samples."""
     out = np.full(len(contacts), np.nan)
     by_track = {k: g.sort_values("t") for k, g in tracks.groupby("track")}
     ev_times = {k: np.sort(g["t"].to_numpy(dtype=float)) for k, g in events.groupby("track")}
+    steps = np.diff(np.sort(tracks["t"].unique())) if len(tracks) else np.array([])
+    frame_s = float(np.median(steps)) if steps.size else 0.0
+    window = max(config.approach_window_s, config.event_margin_s + (config.min_approach_samples + 0.5) * frame_s)
     for i, (track, t_c) in enumerate(zip(contacts["track"], contacts["t_s"])):
         g = by_track.get(track)
         if g is None:
             continue
         times = ev_times.get(track, np.array([]))
         prev = times[times < t_c - 1e-9]
-        t_lo = max(t_c - config.approach_window_s, (prev[-1] if prev.size else -INF) + config.event_margin_s)
+        t_lo = max(t_c - window, (prev[-1] if prev.size else -INF) + config.event_margin_s)
         t_hi = t_c - config.event_margin_s
         t = g["t"].to_numpy(dtype=float)
         m = (t >= t_lo) & (t <= t_hi)
