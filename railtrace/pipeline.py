@@ -5,13 +5,21 @@ detections (``vision.detect``) -> tracks (``tracking.tracker``) -> events and sh
 (``tracking.events``) -> ``tracks.csv``, ``events.csv``, ``shots.csv``, ``calibration.json``,
 ``detections.csv`` and ``run.json`` (``railtrace.results``), written all at once or not at all.
 
-The clip is streamed: frames are decoded, detected and dropped one at a time.
+The clip is streamed: frames are decoded, detected and dropped one at a time. Detection, most
+of the work, runs in parallel where there are spare cores: the clip is cut in time into one
+part per worker process (:func:`split_frames`), each part's detector starting
+``chunk_warmup_s`` before its part (its first frame builds the background, as at the start of a
+clip) and keeping only its own frames; tracking and events then run once over the joined
+detections. With one worker the frames are decoded in a thread ahead of the detector.
 """
 
 from __future__ import annotations
 
 import logging
+import math
+import multiprocessing
 import time
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -24,9 +32,9 @@ from tracking.tracker import TrackerConfig, track
 from vision.calibfile import calibration_dict, read_calibration
 from vision.calibrate import CalibConfig, calibrate
 from vision.camera import Camera
-from vision.detect import BallDetector, DetectConfig, empty_detections
+from vision.detect import BallDetector, DetectConfig, stack_detections
 from vision.table import TableSpec
-from vision.video import iter_frames, probe
+from vision.video import iter_frames, probe, usable_cores
 
 log = logging.getLogger(__name__)
 
@@ -34,7 +42,13 @@ log = logging.getLogger(__name__)
 @dataclass(frozen=True)
 class AnalyseConfig:
     """Everything that steers one analysis: the table, an optional calibration file, and each
-    stage's own configuration."""
+    stage's own configuration.
+
+    ``workers``: processes that detect balls, each on its own part of the clip (0: one per core
+    this process may run on); a clip shorter than ``2 * chunk_min_s`` s is not split.
+    ``chunk_warmup_s``: how long before its part each later part's detector starts, so its
+    background and change state have settled when its own frames begin.
+    """
 
     table: TableSpec
     calibration_path: Path | None = None
@@ -42,11 +56,22 @@ class AnalyseConfig:
     detect: DetectConfig = field(default_factory=DetectConfig)
     tracker: TrackerConfig = field(default_factory=TrackerConfig)
     events: EventConfig = field(default_factory=EventConfig)
+    workers: int = 0
+    chunk_warmup_s: float = 1.0
+    chunk_min_s: float = 8.0
+
+    def __post_init__(self) -> None:
+        if int(self.workers) < 0:
+            raise ValueError(f"workers = {self.workers!r} must be 0 (one per core) or a positive count")
+        if not self.chunk_warmup_s >= 0 or not self.chunk_min_s > 0:
+            raise ValueError(f"chunk_warmup_s = {self.chunk_warmup_s!r} must be >= 0 and chunk_min_s = {self.chunk_min_s!r} positive")
 
 
 @dataclass(frozen=True)
 class AnalyseSummary:
-    """What one analysis found, for the closing summary line (times in s)."""
+    """What one analysis found, for the closing summary line (times in s). ``stage_seconds``:
+    wall time of each stage (``calibration``, ``detection``, ``tracking``, ``events``,
+    ``writing``)."""
 
     out_dir: Path
     frames: int
@@ -59,6 +84,7 @@ class AnalyseSummary:
     calibration_source: str
     calibration_quality: dict
     seconds: float
+    stage_seconds: dict = field(default_factory=dict)
 
     def text(self) -> str:
         """A short human summary."""
@@ -85,10 +111,16 @@ def analyse_clip(
     if out.exists():
         raise ValueError(f"output folder {out} exists already; choose a new --out or remove it first")
     info = probe(clip)
+    stages = {}
+    t = time.perf_counter()
     table, cameras, source, quality, calib_doc = _calibration(clip, config)
-    detections = _detect(clip, table, cameras, config.detect, info.frame_count, progress)
+    stages["calibration"], t = time.perf_counter() - t, time.perf_counter()
+    detections = _detect_parallel(clip, table, cameras, config, info, progress)
+    stages["detection"], t = time.perf_counter() - t, time.perf_counter()
     tracks = track(detections, table, config.tracker)
+    stages["tracking"], t = time.perf_counter() - t, time.perf_counter()
     events, shots = find_events(tracks, table, detections, config.events)
+    stages["events"], t = time.perf_counter() - t, time.perf_counter()
     run_info = {
         "clip": str(clip),
         "frames": int(detections["frame"].max() + 1) if len(detections) else info.frame_count,
@@ -98,6 +130,7 @@ def analyse_clip(
         out, tracks, events, shots, calib_doc, overwrite=False, run_info=run_info,
         extra_files={"detections.csv": detections.to_csv(index=False, float_format="%.4f")},
     )
+    stages["writing"] = time.perf_counter() - t
     counts = events["kind"].value_counts() if len(events) else pd.Series(dtype=int)
     return AnalyseSummary(
         out_dir=out,
@@ -111,6 +144,7 @@ def analyse_clip(
         calibration_source=source,
         calibration_quality=quality,
         seconds=time.perf_counter() - t0,
+        stage_seconds=stages,
     )
 
 
@@ -132,27 +166,80 @@ def _calibration(clip: Path, config: AnalyseConfig):
     return config.table, changes, "auto", cal.quality, doc
 
 
-def _detect(clip, table, cameras, detect_config, n_frames, progress) -> pd.DataFrame:
-    """Stream the clip through a detector, switching to a new one where the camera moved."""
-    parts = []
+def split_frames(n_frames: int, parts: int, warmup: int) -> list[tuple[int, int, int | None]]:
+    """Cut frames ``0 .. n_frames - 1`` into ``parts`` consecutive parts of near-equal length:
+    a list of ``(first frame read, first frame kept, end)`` per part; the first part reads from
+    0, a later one ``warmup`` frames before its own; ``end`` is exclusive and None for the last
+    part (read to the end of the file, whatever the header's frame count said)."""
+    if n_frames < 1 or parts < 1 or warmup < 0:
+        raise ValueError(f"cannot split {n_frames} frames into {parts} parts with {warmup} warm-up frames")
+    parts = min(parts, n_frames)
+    cuts = [round(k * n_frames / parts) for k in range(parts + 1)]
+    out = []
+    for k in range(parts):
+        keep = cuts[k]
+        out.append((max(keep - warmup, 0), keep, None if k == parts - 1 else cuts[k + 1]))
+    return out
+
+
+def _detect_parallel(clip, table, cameras, config: AnalyseConfig, info, progress) -> pd.DataFrame:
+    """Detections of the whole clip, its parts (:func:`split_frames`) detected in parallel
+    processes; the first part runs in this process, so it alone reports progress."""
+    cores = usable_cores()
+    workers = int(config.workers) or cores
+    fps = info.fps if info.fps > 0 else 30.0
+    n = info.frame_count
+    if n < 2 * config.chunk_min_s * fps:
+        workers = 1
+    else:
+        workers = max(1, min(workers, int(n // (config.chunk_min_s * fps))))
+    if workers == 1:
+        # A decoding thread only helps with a spare core.
+        return _detect(clip, table, cameras, config.detect, 0, None, n, progress, read_ahead=8 if cores > 1 else 0)
+    parts = split_frames(n, workers, int(math.ceil(config.chunk_warmup_s * fps)))
+    # Spawned, not forked: a fork copies this process's decoder and OpenCV thread pools in
+    # whatever state they are.
+    ctx = multiprocessing.get_context("spawn")
+    with ProcessPoolExecutor(max_workers=workers - 1, mp_context=ctx) as pool:
+        futures = [pool.submit(_detect, clip, table, cameras, config.detect, a, (b, e), n, None) for a, b, e in parts[1:]]
+        try:
+            a, b, e = parts[0]
+            results = [_detect(clip, table, cameras, config.detect, a, (b, e), n, progress)]
+            results += [f.result() for f in futures]
+        except BaseException:
+            pool.shutdown(wait=True, cancel_futures=True)
+            raise
+    filled = [r for r in results if len(r)]
+    return pd.concat(filled, ignore_index=True) if filled else results[0]
+
+
+def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, progress, read_ahead: int = 0) -> pd.DataFrame:
+    """Stream the clip through a detector from frame ``read_from``, switching to a new one
+    where the camera moved; ``keep`` None keeps every frame read, else ``(first, end)`` keeps
+    frames ``first <= index < end`` (end None: to the end of the clip). Top-level, so a worker
+    process can run it."""
+    first, end = (read_from, None) if keep is None else keep
+    steps = []
     k, detector = -1, None
     try:
-        for index, t, img in iter_frames(clip):
+        for index, t, img in iter_frames(clip, read_ahead=read_ahead, start=read_from, stop=end):
             while k + 1 < len(cameras) and cameras[k + 1][0] <= t + 1e-9:
                 k += 1
                 detector = BallDetector(cameras[k][1], table, detect_config)
-            part = detector.process(index, t, img)
-            if len(part):
-                parts.append(part)
+            det = detector.step(index, t, img)
+            if index >= first:
+                steps.append((index, t, det))
             if progress is not None:
-                progress(index + 1, n_frames)
+                # The first part stands for the whole clip: the other parts run alongside it.
+                done = index + 1 if end is None else (index + 1) * n_frames // end
+                progress(min(done, n_frames), n_frames)
     except ValueError:
         raise
     except Exception as exc:  # a decoder error part-way through: the file is damaged
         raise ValueError(f"{clip} could not be decoded to the end ({type(exc).__name__}: {exc}); the file may be truncated") from None
-    if not parts:
-        return empty_detections()
-    return pd.concat(parts, ignore_index=True)
+    if read_from > 0 and not steps:
+        raise ValueError(f"{clip} ends before frame {first} although its header promises {n_frames} frames; the file may be truncated")
+    return stack_detections(steps)
 
 
 def _jsonable(obj):

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 import pytest
 
@@ -70,3 +72,59 @@ def test_failed_write_leaves_nothing(tmp_path):
     with pytest.raises(ValueError, match="codec"):
         write_video(path, _frames(2), 60, codec="vp9")
     assert list(tmp_path.iterdir()) == []
+
+
+def _decode_threads() -> list:
+    return [t for t in threading.enumerate() if t.name == "railtrace-decode"]
+
+
+@pytest.mark.parametrize("read_ahead", [1, 4])
+def test_read_ahead_gives_the_same_frames_and_times(tmp_path, read_ahead):
+    # A decoding thread must change nothing but when the work is done: identical indices,
+    # times and pixels (exact equality; same decoder, same conversion).
+    path = tmp_path / "clip.mp4"
+    write_video(path, iter(_frames(20)), 60.0, quality=18)
+    plain = list(iter_frames(path))
+    ahead = list(iter_frames(path, read_ahead=read_ahead))
+    assert [(i, t) for i, t, _ in ahead] == [(i, t) for i, t, _ in plain]
+    assert all(np.array_equal(a[2], b[2]) for a, b in zip(ahead, plain))
+    assert _decode_threads() == []
+
+
+def test_read_ahead_stops_when_the_reader_stops_and_reports_errors(tmp_path):
+    path = tmp_path / "clip.mp4"
+    write_video(path, iter(_frames(30)), 60.0, quality=18)
+    frames = iter_frames(path, read_ahead=2)
+    first = [next(frames) for _ in range(3)]
+    assert [i for i, _, _ in first] == [0, 1, 2]
+    frames.close()  # the thread must end although the clip is not finished
+    assert _decode_threads() == []
+    with pytest.raises(ValueError, match="does not exist"):
+        list(iter_frames(tmp_path / "nope.mp4", read_ahead=2))
+    data = path.read_bytes()
+    cut = tmp_path / "cut.mp4"
+    cut.write_bytes(data[: len(data) // 3])
+    # A truncated file fails the same way (or yields the same frames) with and without the thread.
+    def outcome(k):
+        try:
+            return [i for i, _, _ in iter_frames(cut, read_ahead=k)]
+        except ValueError as exc:
+            return str(exc)
+    assert outcome(0) == outcome(3)
+    with pytest.raises(ValueError, match="negative"):
+        list(iter_frames(path, read_ahead=-1))
+    assert _decode_threads() == []
+
+
+def test_frame_range_gives_the_same_frames_as_the_whole_clip(tmp_path):
+    path = tmp_path / "clip.mp4"
+    write_video(path, iter(_frames(24)), 29.97, quality=18)
+    whole = list(iter_frames(path))
+    for start, stop, ahead in [(0, 5, 0), (7, 19, 0), (7, 19, 3), (20, None, 0), (24, None, 0)]:
+        part = list(iter_frames(path, read_ahead=ahead, start=start, stop=stop))
+        want = whole[start:stop]
+        # Indices and times of the whole clip, identical pixels (same decoder, same frames).
+        assert [(i, t) for i, t, _ in part] == [(i, t) for i, t, _ in want]
+        assert all(np.array_equal(a[2], b[2]) for a, b in zip(part, want))
+    with pytest.raises(ValueError, match="start"):
+        list(iter_frames(path, start=5, stop=2))

@@ -243,6 +243,18 @@ def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     )
 
 
+def _dot3(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Dot products over a last axis of length 3, (...): channel by channel, in the order
+    ``np.sum`` adds three values (numpy's reduction over a short last axis costs several times
+    the arithmetic)."""
+    return a[..., 0] * b[..., 0] + a[..., 1] * b[..., 1] + a[..., 2] * b[..., 2]
+
+
+def _norm3(a: np.ndarray) -> np.ndarray:
+    """Euclidean norms over a last axis of length 3, (...); as ``np.linalg.norm(a, axis=-1)``."""
+    return np.sqrt(_dot3(a, a))
+
+
 def _median(x: np.ndarray) -> float:
     """Median of a short 1-D array by ``np.partition`` (``np.median``'s generic reduction
     machinery dominates its cost on 48 values)."""
@@ -294,26 +306,24 @@ def _residuals(P: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: b
     residual per row holds the bias to its prior, N(0, ``_BIAS_SIGMA_MM``). Returns (M, K + 1).
     """
     P = np.atleast_2d(np.asarray(P, float))
-    M = len(P)
-    w = np.column_stack([P[:, 0] - C[0], P[:, 1] - C[1], np.full(M, R - C[2])])  # (M, 3)
-    # w x d for every row and ray, written out: np.cross is slow on small arrays.
-    wxd = np.stack(
-        [
-            w[:, None, 1] * d[None, :, 2] - w[:, None, 2] * d[None, :, 1],
-            w[:, None, 2] * d[None, :, 0] - w[:, None, 0] * d[None, :, 2],
-            w[:, None, 0] * d[None, :, 1] - w[:, None, 1] * d[None, :, 0],
-        ],
-        axis=2,
-    )  # (M, K, 3)
+    wx = (P[:, 0] - C[0])[:, None]
+    wy = (P[:, 1] - C[1])[:, None]
+    wz = R - C[2]
+    dx, dy, dz = d[None, :, 0], d[None, :, 1], d[None, :, 2]
+    # n = w x d for every row and ray, (M, K) per component (stacking costs more than the
+    # arithmetic on a few hundred values).
+    nx = wy * dz - wz * dy
+    ny = wz * dx - wx * dz
+    nz = wx * dy - wy * dx
     if capsule:
         half = np.maximum(P[:, 3], 0.0)[:, None]
         ex, ey = np.cos(P[:, 4])[:, None], np.sin(P[:, 4])[:, None]
-        # e x d with e = (ex, ey, 0).
-        exd = np.stack([ey * d[None, :, 2], -ex * d[None, :, 2], ex * d[None, :, 1] - ey * d[None, :, 0]], axis=2)
-        den = np.maximum(np.sum(exd * exd, axis=2), 1e-12)
-        s = np.clip(-np.sum(wxd * exd, axis=2) / den, -half, half)
-        wxd = wxd + s[..., None] * exd
-    dist = np.sqrt(np.sum(wxd * wxd, axis=2))
+        # a = e x d with e = (ex, ey, 0); s the point of the segment nearest the ray.
+        ax, ay, az = ey * dz, -ex * dz, ex * dy - ey * dx
+        den = np.maximum(ax * ax + ay * ay + az * az, 1e-12)
+        s = np.clip(-(nx * ax + ny * ay + nz * az) / den, -half, half)
+        nx, ny, nz = nx + s * ax, ny + s * ay, nz + s * az
+    dist = np.sqrt(nx * nx + ny * ny + nz * nz)
     return np.concatenate([dist - (R - P[:, 2:3]), P[:, 2:3] / _BIAS_SIGMA_MM], axis=1)
 
 
@@ -370,7 +380,9 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
     tuning constant 4.685 robust sigmas) on the ray residuals; the bias prior keeps weight 1.
     The Jacobian is analytic (:func:`_residuals_jacobian`); each iteration tries a ladder of
     four damping values in one batched solve and one :func:`_residuals` call.
-    Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y (2, 2) mm^2)."""
+    Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y): the last a
+    function returning the (2, 2) mm^2 matrix, evaluated only for the fit that is kept (most
+    rounds' fits are starting points for the next)."""
     p = np.array(p0, float)
     n = len(p)
     lam = 1e-3
@@ -414,8 +426,7 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
     good = wts[:K] > 0
     dof = max(int(good.sum()) - n, 1)
     s2 = float(np.sum(wts[:K] * r[:K] ** 2)) / dof
-    cov = np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
-    return p, r[:K], wts[:K], cov
+    return p, r[:K], wts[:K], lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
 
 
 def _fit_rms(result) -> float:
@@ -576,6 +587,16 @@ class BallDetector:
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
         """Detections in one frame (a new DataFrame; the image is not modified)."""
+        out = self.step(frame_index, t_s, image).copy()
+        out["frame"] = np.int64(frame_index)
+        out["t"] = float(t_s)
+        return out[COLUMNS].reset_index(drop=True)
+
+    def step(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
+        """:meth:`process` without the per-frame copy: this frame's detections with ``frame``
+        and ``t`` not filled in. When nothing changed it is the very frame returned for the
+        previous frame, so it must not be modified; :func:`stack_detections` turns a clip's
+        steps into one table."""
         img = np.asarray(image)
         w, h = self.size
         if img.shape != (h, w, 3) or img.dtype != np.uint8:
@@ -602,10 +623,7 @@ class BallDetector:
             self._since_update = 0.0
             self.background.update(img, self._protect_mask(det))
         self._prev = det
-        out = det.copy()
-        out["frame"] = np.int64(frame_index)
-        out["t"] = float(t_s)
-        return out[COLUMNS].reset_index(drop=True)
+        return det
 
     @property
     def _score_thr(self) -> float:
@@ -884,8 +902,8 @@ class BallDetector:
         bprof = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
         # Reference colour: the frame itself just outside the predicted outline (the last
         # samples of each ray), so an imperfect background under a resting ball does not matter.
-        ref = np.median(prof[:, -5:], axis=1)
-        D = np.linalg.norm(prof - ref[:, None], axis=2) / np.maximum(np.linalg.norm(bprof, axis=2), 30.0)
+        ref = np.sort(prof[:, -5:], axis=1)[:, 2]  # the median of five
+        D = _norm3(prof - ref[:, None]) / np.maximum(_norm3(bprof), 30.0)
         # A cast shadow differs from the cloth just beyond it but only dims the empty table: a
         # sample no brighter than the model and within ~4.6 degrees of its colour's direction
         # (sin 0.08: the cloth's texture and noise; a stripe's band or a black ball lie tens of
@@ -893,9 +911,9 @@ class BallDetector:
         # from colour) and the smaller value counts, so the shadow's outer edge is not taken
         # for the ball's while a ghost in the model, unlike the frame just outside, still does
         # not count.
-        bb = np.maximum(np.sum(bprof * bprof, axis=2), 1.0)
-        a = np.sum(prof * bprof, axis=2) / bb
-        off_hue = np.linalg.norm(prof - a[..., None] * bprof, axis=2) / np.maximum(np.linalg.norm(prof, axis=2), 20.0)
+        bb = np.maximum(_dot3(bprof, bprof), 1.0)
+        a = _dot3(prof, bprof) / bb
+        off_hue = _norm3(prof - a[..., None] * bprof) / np.maximum(_norm3(prof), 20.0)
         shade = (a < 1.03) & (off_hue < 0.08)
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
@@ -956,7 +974,7 @@ class BallDetector:
         S = prof[:, outer].mean(axis=1)
         ps = P - S
         n2 = np.sum(ps * ps, axis=1)
-        alpha = np.sum((prof - S[:, None]) * ps[:, None], axis=2) / np.maximum(n2, 1e-6)[:, None]
+        alpha = _dot3(prof - S[:, None], ps[:, None]) / np.maximum(n2, 1e-6)[:, None]
         a0, a1 = alpha[:, :-1], alpha[:, 1:]
         cross = (a0 >= 0.5) & (a1 < 0.5)
         pos = off[None, :-1] + _STEP_PX * (a0 - 0.5) / np.where(cross, a0 - a1, 1.0)
@@ -1056,7 +1074,7 @@ class BallDetector:
         hd = float(p[4]) if capsule else 0.0
         travel = 2 * half + 2 * R if capsule else 0.0
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
-        sig = float(math.sqrt(max(np.trace(cov) / 2, 0.0)))
+        sig = float(math.sqrt(max(np.trace(cov()) / 2, 0.0)))
         sig = max(sig, 0.15) + (0.1 * half if capsule else 0.0)
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         return {
@@ -1201,12 +1219,36 @@ class BallDetector:
         return colour, pattern
 
 
-def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig()) -> pd.DataFrame:
+def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig(), read_ahead: int | None = None) -> pd.DataFrame:
     """Detections (:data:`COLUMNS`) in every frame of the clip at ``path``, streamed (the clip is
-    never held in memory); frame times are the container's presentation times."""
+    never held in memory); frame times are the container's presentation times. ``read_ahead``:
+    frames decoded ahead in a background thread (:func:`vision.video.iter_frames`; None: its
+    default, a thread where there is a spare core)."""
     det = BallDetector(camera, table, config)
-    parts = [det.process(i, t, img) for i, t, img in iter_frames(path)]
-    parts = [p for p in parts if len(p)]
-    if not parts:
+    return stack_detections([(i, t, det.step(i, t, img)) for i, t, img in iter_frames(path, read_ahead=read_ahead)])
+
+
+def stack_detections(steps) -> pd.DataFrame:
+    """One detections table (:data:`COLUMNS`, rows in frame order) from a clip's
+    ``(frame index, t s, BallDetector.step(...))`` triples; the same as concatenating
+    :meth:`BallDetector.process`'s frames. A frame repeated from the previous one (nothing
+    changed) is turned into arrays once, so a still stretch costs a few array copies."""
+    cols = [c for c in COLUMNS if c not in ("frame", "t")]
+    arrays: dict[int, list[np.ndarray]] = {}
+    data: list[list[np.ndarray]] = [[] for _ in COLUMNS]
+    for frame_index, t_s, det in steps:
+        n = len(det)
+        if n == 0:
+            continue
+        # ``steps`` holds every frame alive, so an object's id is not reused meanwhile.
+        got = arrays.get(id(det))
+        if got is None:
+            got = arrays[id(det)] = [det[c].to_numpy() for c in cols]
+        data[0].append(np.full(n, frame_index, np.int64))
+        data[1].append(np.full(n, float(t_s)))
+        for k, a in enumerate(got):
+            data[2 + k].append(a)
+    if not data[0]:
         return empty_detections()
-    return pd.concat(parts, ignore_index=True)
+    out = pd.DataFrame({c: np.concatenate(v) for c, v in zip(COLUMNS, data)}, columns=COLUMNS)
+    return out.astype(empty_detections().dtypes.to_dict())

@@ -5,6 +5,9 @@ Frames are (H, W, 3) uint8 BGR arrays (OpenCV's channel order, ``img[v, u]``); t
 
 from __future__ import annotations
 
+import os
+import queue
+import threading
 from dataclasses import dataclass
 from fractions import Fraction
 from pathlib import Path
@@ -129,13 +132,47 @@ def _open(path) -> "av.container.InputContainer":
     return container
 
 
-def iter_frames(path) -> Iterator[tuple[int, float, np.ndarray]]:
+def usable_cores() -> int:
+    """Cores this process may run on (``taskset`` and container limits respected where the
+    system reports them)."""
+    try:
+        return max(len(os.sched_getaffinity(0)), 1)
+    except AttributeError:  # not every system has affinity masks
+        return max(os.cpu_count() or 1, 1)
+
+
+def iter_frames(path, read_ahead: int | None = None, start: int = 0, stop: int | None = None) -> Iterator[tuple[int, float, np.ndarray]]:
     """Stream ``(index from 0, presentation time s, (H, W, 3) uint8 BGR frame)`` from a video file.
 
     Times come from the container's timestamps, relative to the first frame, so variable frame
     rate clips are right. ValueError with a one-line message for a missing file, a file that is
     not a video, or one without a video stream.
+
+    ``read_ahead`` > 0 decodes in a background thread up to that many frames ahead of the
+    caller (FFmpeg's decoding and colour conversion release Python's global lock, so on a
+    machine with a spare core decoding overlaps the caller's work); the frames, times and
+    errors are the same as with 0, which decodes in the caller's thread. None: 4 where this
+    process may use more than one core (:func:`usable_cores`), else 0.
+
+    ``start`` / ``stop``: only frames with ``start <= index < stop`` are yielded (indices and
+    times stay those of the whole clip). Earlier frames are still decoded, as later frames are
+    predicted from them, but not converted to BGR, which is most of a plain read's cost after
+    decoding; reading stops after ``stop - 1``.
     """
+    if read_ahead is None:
+        read_ahead = 4 if usable_cores() > 1 else 0
+    if read_ahead < 0:
+        raise ValueError(f"read_ahead {read_ahead!r} is negative; give 0 (no decoding thread) or a frame count such as 8")
+    if start < 0 or (stop is not None and stop < start):
+        raise ValueError(f"frame range {start}..{stop} is not 0 <= start <= stop")
+    if read_ahead == 0:
+        yield from _decode(path, start, stop)
+        return
+    yield from _threaded(_decode(path, start, stop), int(read_ahead))
+
+
+def _decode(path, start: int = 0, stop: int | None = None) -> Iterator[tuple[int, float, np.ndarray]]:
+    """:func:`iter_frames` in the caller's thread."""
     container = _open(path)
     try:
         stream = container.streams.video[0]
@@ -143,6 +180,8 @@ def iter_frames(path) -> Iterator[tuple[int, float, np.ndarray]]:
         first = None
         rate = stream.average_rate or stream.guessed_rate
         for i, frame in enumerate(container.decode(stream)):
+            if stop is not None and i >= stop:
+                break
             if frame.pts is not None and frame.time_base is not None:
                 t = float(frame.pts * frame.time_base)
             elif rate:
@@ -151,11 +190,59 @@ def iter_frames(path) -> Iterator[tuple[int, float, np.ndarray]]:
                 raise ValueError(f"{str(path)!r}: frame {i} has no timestamp and the stream no frame rate")
             if first is None:
                 first = t
-            yield i, t - first, frame.to_ndarray(format="bgr24")
+            if i >= start:
+                yield i, t - first, frame.to_ndarray(format="bgr24")
     except av.FFmpegError as exc:
         raise ValueError(f"{str(path)!r}: decoding failed ({exc.__class__.__name__}: {exc})") from None
     finally:
         container.close()
+
+
+_END = object()
+
+
+def _threaded(items: Iterator, depth: int) -> Iterator:
+    """Run the iterator ``items`` in a background thread, ``depth`` items ahead of the consumer;
+    its exception, if any, is raised in the consumer where the item would have come. Closing
+    the returned generator early stops the thread and closes ``items``."""
+    q: queue.Queue = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+
+    def put(item) -> bool:
+        # A bounded wait so a consumer that stopped reading never leaves the thread blocked.
+        while not stop.is_set():
+            try:
+                q.put(item, timeout=0.1)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def run() -> None:
+        try:
+            for item in items:
+                if not put((item, None)):
+                    break
+            else:
+                put((_END, None))
+        except BaseException as exc:  # handed to the consumer, which raises it
+            put((_END, exc))
+        finally:
+            items.close()
+
+    worker = threading.Thread(target=run, name="railtrace-decode", daemon=True)
+    worker.start()
+    try:
+        while True:
+            item, exc = q.get()
+            if exc is not None:
+                raise exc
+            if item is _END:
+                return
+            yield item
+    finally:
+        stop.set()
+        worker.join()
 
 
 def probe(path) -> VideoInfo:
