@@ -763,21 +763,26 @@ class BallDetector:
         leave a ball unexplained; this explains the foreground away ball by ball, after the
         matching-pursuit idea of fitting the strongest part and searching the residual (Mallat
         & Zhang 1993). Pieces holding a streak are left alone (its swept outline is not drawn),
-        and so are pieces where nothing fitted (the same seeds would come again). Returns the
-        new seeds (:meth:`_seeds_of`'s keys plus ``piece``)."""
-        pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[dict]]] = {}
+        and so are pieces where nothing fitted (the same seeds would come again) and pieces
+        larger than six balls (a cue or hand lying free of the rail); points within half a
+        radius of a seed already tried are not seeded again. Returns the new seeds (:meth:`_seeds_of`'s keys plus ``piece``)."""
+        pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[dict], list[np.ndarray]]] = {}
         for s, r in zip(seeds, fits):
             if "piece" not in s:
                 continue
             comp, origin = s["piece"]
-            entry = pieces.setdefault(id(comp), (comp, origin, []))
+            entry = pieces.setdefault(id(comp), (comp, origin, [], []))
+            entry[3].append(s["uv"])
             if r is not None:
                 entry[2].append(r)
         out = []
         area_min = math.pi * self.r_min_px**2
-        for comp, origin, rows in pieces.values():
-            if not rows:
-                continue  # nothing fitted: the same seeds would come again
+        area_max = math.pi * self.r_max_px**2
+        for comp, origin, rows, tried in pieces.values():
+            if not rows or comp.sum() > 6 * area_max:
+                # Nothing fitted (the same seeds would come again), or more than a small
+                # cluster's worth of foreground (a cue or hand lying free of the rail).
+                continue
             rest = comp.copy()
             sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
             if len(sharp) < len(rows):
@@ -797,7 +802,7 @@ class BallDetector:
             chosen: list[np.ndarray] = []
             for j in np.argsort(-dtm[ys, xs]):
                 p = np.array([xs[j] + origin[0], ys[j] + origin[1]], float)
-                if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen):
+                if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen) and all(np.hypot(*(p - q)) > 0.5 * self.r_min_px for q in tried):
                     chosen.append(p)
             out += [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False, "piece": (comp, origin)} for p in chosen]
         return out
