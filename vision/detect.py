@@ -84,7 +84,12 @@ the right mid-exposure centre but report ``blur_x = blur_y = 0``; the travel rep
 streaks is not yet right (the faint ends are found inside the swept outline); a ball whose dark
 rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
 off; a ball of the cloth's own hue (blue on blue, red on red) differs from the cloth mostly by
-its shading and is often missed or placed several mm off; a ball merged with an arm or cue in the
+its shading and is often missed or placed several mm off (its rim and the cloth's shadow round
+it form a smooth ramp, not a step, so the local two-colour edge follows wherever it is started
+and the coarse outline's level falls inside the ramp by a shading-dependent amount); a dark ball
+pressed into a touching triangle can still be about 4 mm off, and only balls of one piece of
+foreground up to six balls big are seeded again where the first fits leave one unexplained
+(larger racks are not); a ball merged with an arm or cue in the
 image is reported only when its outline is clearly separate and at most about a quarter of the
 ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
 lost for those frames); the end of an arm exactly a ball wide and still is not told from a ball
