@@ -394,3 +394,71 @@ def test_solid_of_the_cloths_hue_is_a_solid(on_tan):
 @pytest.mark.xfail(strict=True, reason="a stripe whose band (of the cloth's hue) shows only as a thin ring at the rim is taken for the cue ball")
 def test_stripe_of_the_cloths_hue_is_no_cue_ball(on_tan):
     assert on_tan[1] == "stripe", on_tan
+
+
+# Three balls each touching the other two (a triangle, as in a rack or after a cluster
+# settles) and a touching pair at an angle: solids and stripes of one colour, and the cue ball.
+CLUSTER = (
+    BallLook("4", "solid", (134, 42, 91)),
+    BallLook("12", "stripe", (134, 42, 91)),
+    BallLook("cue", "cue", (226, 234, 236)),
+    BallLook("8", "solid", (22, 22, 22)),
+    BallLook("11", "stripe", (31, 42, 196)),
+)
+CLUSTER_AT = np.array(
+    [
+        [1500.0, 500.0],
+        [1500.0 + 2 * R, 500.0],
+        [1500.0 + R, 500.0 + math.sqrt(3) * R],  # analytic geometry: touching both, 2R from each
+        [900.0, 800.0],
+        [900.0 + 2 * R * math.cos(0.5), 800.0 + 2 * R * math.sin(0.5)],
+    ]
+)
+
+
+@pytest.fixture(scope="module")
+def cluster():
+    """Detections of the cluster in two frames, per setup name, rendered once per module."""
+    done = {}
+
+    def run(name):
+        if name not in done:
+            s = SETUPS[name]
+            ren = Renderer(NINE_FOOT, s["camera"], s["look"], CLUSTER, seed=8)
+            n = len(CLUSTER)
+            det = BallDetector(s["camera"], NINE_FOOT)
+            frames = [ren.render(CLUSTER_AT[None], _rot(n), np.ones((1, n), bool), np.array([t])) for t in (0.0, 1 / 60)]
+            done[name] = [det.process(i, i / 60, f) for i, f in enumerate(frames)]
+        return done[name]
+
+    return run
+
+
+@pytest.mark.parametrize("name", list(SETUPS))
+def test_every_ball_of_a_touching_cluster_is_found(cluster, name):
+    # A triangle of touching balls is deepest (in its distance transform) between the balls, so
+    # the first seeds can fall between two of them; what the fitted balls leave of the
+    # foreground must seed the rest. Issue acceptance: every visible ball found (here in every
+    # frame), each by its own detection, and no false detections.
+    for i, det in enumerate(cluster(name)):
+        err, j = _match(det, CLUSTER_AT)
+        assert np.all(np.isfinite(err)), (name, i, err)
+        assert len(set(j.tolist())) == len(CLUSTER_AT) and len(det) == len(CLUSTER_AT), (name, i, det)
+
+
+@pytest.mark.parametrize(
+    "name",
+    [
+        "green_high",
+        pytest.param(
+            "blue_low_wide",
+            marks=pytest.mark.xfail(strict=True, reason="the dark solid pressed into the triangle under the wide lens is still about 4 mm off (median 1.03 mm)"),
+        ),
+    ],
+)
+def test_touching_balls_are_placed_without_their_neighbours_rims(cluster, name):
+    # Half a touching ball's outline window can hold its neighbour's rim; fitted with the rays
+    # toward its neighbours left out, the cluster's balls meet the issue's acceptance for
+    # resting balls: median <= 1 mm, p95 <= 2.5 mm.
+    err = np.concatenate([_match(d, CLUSTER_AT)[0] for d in cluster(name)])
+    assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (name, err)

@@ -38,7 +38,9 @@ Method
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
    ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
-   half inside its box is not half a ball. Small holes in a component (a highlight or mark of
+   half inside its box is not half a ball. Once a free piece's seeds are fitted, what the
+   fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
+   deepest between them). Small holes in a component (a highlight or mark of
    the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
    fitted streak must fade in and out along its motion over about a ball's length, as a swept
    ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded, ends
@@ -60,7 +62,9 @@ Method
    and the cue tip's edges drop out; the Jacobian is analytic. This is exact under perspective and lens distortion (the
    silhouette of a sphere seen off-axis is not a circle centred on the centre's image), uses
    the known ball size, and needs only part of the outline. Two rounds: the second searches a
-   narrower window round the first fit's predicted silhouette.
+   narrower window round the first fit's predicted silhouette. Balls fitted within 2.4 R of
+   each other are refitted with the rays toward their neighbours left out of the local edge
+   (step 6), whose sample bands there would hold the other ball's rim.
    A compact blob elongated to about two ball diameters is split in two when its width across
    the principal axis pinches at the middle (two touching balls have a waist; a blur streak is
    widest at its middle); a fitted streak shorter than 0.3 R each way is refitted as a sharp
@@ -80,7 +84,12 @@ the right mid-exposure centre but report ``blur_x = blur_y = 0``; the travel rep
 streaks is not yet right (the faint ends are found inside the swept outline); a ball whose dark
 rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
 off; a ball of the cloth's own hue (blue on blue, red on red) differs from the cloth mostly by
-its shading and is often missed or placed several mm off; a ball merged with an arm or cue in the
+its shading and is often missed or placed several mm off (its rim and the cloth's shadow round
+it form a smooth ramp, not a step, so the local two-colour edge follows wherever it is started
+and the coarse outline's level falls inside the ramp by a shading-dependent amount); a dark ball
+pressed into a touching triangle can still be about 4 mm off, and only balls of one piece of
+foreground up to six balls big are seeded again where the first fits leave one unexplained
+(larger racks are not); a ball merged with an arm or cue in the
 image is reported only when its outline is clearly separate and at most about a quarter of the
 ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
 lost for those frames); the end of an arm exactly a ball wide and still is not told from a ball
@@ -135,6 +144,15 @@ _OUTER_SHARE = 0.5
 # (the edge, R from the centre, hides 2 acos(1 / 1.4) of the ring), less one of 64 samples.
 _RING_R = 1.4
 _ISOLATED_SHARE = 1.0 - math.acos(1.0 / _RING_R) / math.pi - 1.0 / 64
+# Balls closer than this many radii (centre to centre) are refitted with the rays toward each
+# other left out of the local edge; a ray is left out where its outline point lies within
+# _AVOID_R radii of the neighbour's centre (+-27 degrees round the contact of touching balls);
+# the local edge needs at least _MIN_FREE_RAYS rays left (a quarter of the outline).
+_NEAR_R = 2.4
+_AVOID_R = 1.2
+_MIN_FREE_RAYS = 12
+# Rounds of seeding what the fitted balls leave unexplained in a piece of foreground.
+_REMAINDER_ROUNDS = 2
 
 
 @dataclass(frozen=True)
@@ -715,19 +733,112 @@ class BallDetector:
                 # What lies outside the box has not changed: its detections are carried over.
                 m = self.r_max_px
                 found = [q for q in found if u0 - m <= q["uv"][0] < u1 + m and v0 - m <= q["uv"][1] < v1 + m]
+            if not occluder:
+                for q in found:
+                    q["piece"] = (comp, origin)
             seeds += found
-        rows = []
-        for s in seeds:
-            r = self._fit_seed(img, s)
-            if r is None and not s["strict"]:
-                # The shadow test of the coarse outline can eat a dark rim between touching
-                # balls; a ball that fails with it is tried once without.
-                r = self._fit_seed(img, s, shadows=False)
-            if r is not None and (r["blur_x"] or r["blur_y"]) and not self._soft_ends(img, r):
-                r = None
+        fits = [self._fit_one(img, s) for s in seeds]
+        for _ in range(_REMAINDER_ROUNDS):
+            more = self._unexplained_seeds(seeds, fits)
+            if not more:
+                break
+            seeds += more
+            fits += [self._fit_one(img, s) for s in more]
+        return self._refit_touching(img, seeds, fits)
+
+    def _fit_one(self, img: np.ndarray, s: dict) -> dict | None:
+        """:meth:`_fit_seed` with the fallbacks: a second try without the shadow test, and the
+        streak's fade test (:meth:`_soft_ends`)."""
+        r = self._fit_seed(img, s)
+        if r is None and not s["strict"]:
+            # The shadow test of the coarse outline can eat a dark rim between touching
+            # balls; a ball that fails with it is tried once without.
+            r = self._fit_seed(img, s, shadows=False)
+        if r is not None and (r["blur_x"] or r["blur_y"]) and not self._soft_ends(img, r):
+            r = None
+        return r
+
+    def _unexplained_seeds(self, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
+        """New seeds where a free piece of foreground (not reaching in over the rail) is not
+        explained by the balls fitted in it: the piece less the fitted balls' silhouettes (grown
+        by a pixel for the blurred rim), opened by a 3 x 3 square, seeds one ball at each peak of
+        its distance transform at least 0.65 of the smallest ball radius deep (as
+        :meth:`_seeds_of`), at most ``_REMAINDER_ROUNDS`` times. A cluster of three touching
+        balls is deepest between them, so its first seeds can fall between balls and the fits
+        leave a ball unexplained; this explains the foreground away ball by ball, after the
+        matching-pursuit idea of fitting the strongest part and searching the residual (Mallat
+        & Zhang 1993). Pieces holding a streak are left alone (its swept outline is not drawn),
+        and so are pieces where nothing fitted (the same seeds would come again) and pieces
+        larger than six balls (a cue or hand lying free of the rail); points within half a
+        radius of a seed already tried are not seeded again. Returns the new seeds (:meth:`_seeds_of`'s keys plus ``piece``)."""
+        pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[dict], list[np.ndarray]]] = {}
+        for s, r in zip(seeds, fits):
+            if "piece" not in s:
+                continue
+            comp, origin = s["piece"]
+            entry = pieces.setdefault(id(comp), (comp, origin, [], []))
+            entry[3].append(s["uv"])
             if r is not None:
-                rows.append(r)
-        return rows
+                entry[2].append(r)
+        out = []
+        area_min = math.pi * self.r_min_px**2
+        area_max = math.pi * self.r_max_px**2
+        for comp, origin, rows, tried in pieces.values():
+            if not rows or comp.sum() > 6 * area_max:
+                # Nothing fitted (the same seeds would come again), or more than a small
+                # cluster's worth of foreground (a cue or hand lying free of the rail).
+                continue
+            rest = comp.copy()
+            sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
+            if len(sharp) < len(rows):
+                continue  # a streak's swept outline is not drawn here
+            cen = np.array([[r["x"], r["y"], self.R] for r in sharp])
+            outl = sphere_outline_px(self.camera, cen, self.R, 32) - np.array(origin, float)
+            mask = np.zeros_like(rest)
+            cv2.fillPoly(mask, [np.round(o).astype(np.int32) for o in outl], 1)
+            rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
+            rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+            if rest.sum() < 0.5 * area_min:
+                continue
+            dtm = cv2.distanceTransform(rest, cv2.DIST_L2, 5)
+            floor = 0.65 * self.r_min_px
+            peaks = (dtm >= floor) & (dtm >= cv2.dilate(dtm, np.ones((3, 3), np.uint8)) - 1e-3)
+            ys, xs = np.nonzero(peaks)
+            chosen: list[np.ndarray] = []
+            for j in np.argsort(-dtm[ys, xs]):
+                p = np.array([xs[j] + origin[0], ys[j] + origin[1]], float)
+                if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen) and all(np.hypot(*(p - q)) > 0.5 * self.r_min_px for q in tried):
+                    chosen.append(p)
+            out += [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False, "piece": (comp, origin)} for p in chosen]
+        return out
+
+    def _refit_touching(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
+        """Refit each sharp ball that has another sharp ball within ``_NEAR_R`` radii (centre to
+        centre, table frame) with the rays toward its neighbours left out of the local edge
+        (:meth:`_fit_seed`'s ``avoid``), starting from its first fit; the refit stands when it
+        passes the same tests with at least the first fit's quality. Where two balls touch,
+        the local edge's sample bands round the contact hold the other ball's rim, so those
+        rays see a ball-to-ball step instead of ball-to-cloth, on one side of the sphere only,
+        and bias the centre by a few mm even under the Tukey weights (several such rays in a
+        row are not outliers to the biweight). Returns the detection rows (None fits
+        dropped)."""
+        sharp = [(i, r) for i, r in enumerate(fits) if r is not None and not (r["blur_x"] or r["blur_y"])]
+        if len(sharp) < 2:
+            return [r for r in fits if r is not None]
+        xy = np.array([[r["x"], r["y"]] for _, r in sharp])
+        out = list(fits)
+        for k, (i, r) in enumerate(sharp):
+            d = np.hypot(xy[:, 0] - xy[k, 0], xy[:, 1] - xy[k, 1])
+            near = (d < _NEAR_R * self.R) & (np.arange(len(sharp)) != k)
+            if not near.any():
+                continue
+            start = dict(seeds[i], uv=np.array([r["u"], r["v"]]), half_px=0.0)
+            again = self._fit_seed(img, start, avoid=xy[near])
+            if again is None and not seeds[i]["strict"]:
+                again = self._fit_seed(img, start, shadows=False, avoid=xy[near])
+            if again is not None and again["quality"] >= r["quality"]:
+                out[i] = again
+        return [r for r in out if r is not None]
 
     def _soft_ends(self, img: np.ndarray, row: dict) -> bool:
         """Whether a fitted streak (a detection row with a nonzero blur vector) fades in and out
@@ -987,10 +1098,13 @@ class BallDetector:
         pts[~ok] = np.nan
         return pts
 
-    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True) -> dict | None:
+    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None) -> dict | None:
         """Fit one seed (:meth:`_seeds_of`): a detection row (:data:`COLUMNS`, frame and time
         left at 0) or None. ``shadows``: whether the coarse outline discounts cast shadows
-        (:meth:`_edges`)."""
+        (:meth:`_edges`). ``avoid``: (M, 2) mm centres (table frame) of neighbouring balls;
+        rays whose predicted outline point (at ball-centre height) lies within ``_AVOID_R``
+        radii of one are left out of every round, and the share of agreeing rays is counted
+        over the rays left in (at least ``_MIN_FREE_RAYS`` of them)."""
         cam, R = self.camera, self.R
         X = self.rays.backproject(seed["uv"][None], R)[0]
         half_mm, heading = 0.0, 0.0
@@ -1029,8 +1143,25 @@ class BallDetector:
                 pts = self._edges_local(img, c, rho, dirs)
             else:
                 pts = self._edges(img, c, rho, win * r_loc, dirs, shadows=shadows)
+            masked = avoid is not None and win is None
+            if masked:
+                # A touching neighbour's rim lies within the local edge's sample bands where
+                # the outline point is within R + 5 mm (2.75 px at about 2 mm/px) of the
+                # neighbour's centre: |R e_a - 2R e_b| = R sqrt(5 - 4 cos(a - b)) < 1.17 R
+                # within 25 degrees of the contact; _AVOID_R (27 degrees) leaves a little margin.
+                # With part of the outline gone the outline's inward bias and the centre trade
+                # off, so the mask is kept narrow (1.35 R and 1.5 R placed touching balls worse
+                # in rendered trials), and the coarse rounds keep every ray (masking them too
+                # left the coarse outline's outliers in the majority on some balls).
+                q = self.rays.backproject(c[None] + rho[:, None] * dirs, R)
+                dn = np.min(np.hypot(q[:, None, 0] - avoid[None, :, 0], q[:, None, 1] - avoid[None, :, 1]), axis=1)
+                free = dn >= _AVOID_R * R
+                if free.sum() < _MIN_FREE_RAYS:
+                    break  # too little outline left: the coarse fit stands
+                pts[~free] = np.nan
+            n_rays = int(free.sum()) if masked else _N_RAYS
             good = np.all(np.isfinite(pts), axis=1)
-            if good.sum() < self.config.min_inlier_share * _N_RAYS:
+            if good.sum() < self.config.min_inlier_share * n_rays:
                 if win is None and result is not None:
                     break  # keep the coarse fit: the rim is too faint for the local edge
                 return None
@@ -1040,16 +1171,16 @@ class BallDetector:
                 capsule = False
                 p = p[:3]
                 p, res, wts, cov = _robust_fit(p, cam.centre_mm, d, R, capsule)
-            result = (p, res, wts, cov, good, capsule)
+            result = (p, res, wts, cov, good, capsule, n_rays)
             if win is not None:
                 coarse = result
         if result is not coarse and _fit_rms(result) > max(1.5 * _fit_rms(coarse), 1.0):
             # The local edge disagrees with the sphere (a rim that fades into its own shadow):
             # keep the coarse outline's fit.
             result = coarse
-        p, res, wts, cov, good, capsule = result
+        p, res, wts, cov, good, capsule, n_rays = result
         inl = wts > 0.2
-        share = inl.sum() / _N_RAYS
+        share = inl.sum() / n_rays
         rms = float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
         max_rms = self.config.max_rms_mm * (2.0 if capsule else 1.0)
         log.debug("fit at %.1f, %.1f: share %.2f rms %.2f mm bias %.2f mm", p[0], p[1], share, rms, p[2])
