@@ -68,7 +68,9 @@ order pin it to the first one.
 **Camera bumps**: every ``bump_every_s`` a downscaled gradient image of the frame is aligned to
 the reference (``cv2.findTransformECC`` with a Euclidean motion, Evangelidis & Psarakis, IEEE
 TPAMI 30(10), 2008); a motion of the table's outline by more than ``bump_threshold_px`` that lasts
-``bump_persist`` samples (arms, cue and balls are transient or too small) starts a new segment,
+``bump_persist`` samples and that aligns each of the image's four quarters better than no motion
+does (an arm or cue held over the table pulls the whole-image alignment but leaves the other
+quarters unmoved; balls are too small) starts a new segment,
 dated to the first frame that shows it; each segment gets its own background and camera (same
 lens, new pose).
 """
@@ -315,8 +317,10 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
         if t - last_t < config.bump_every_s:
             continue
         last_t = t
-        warp = _ecc(seg.ref_edge, _edge_small(small))
-        if warp is None or _warp_motion_px(warp, small.shape, scale) < config.bump_threshold_px:
+        edge = _edge_small(small)
+        warp = _ecc(seg.ref_edge, edge)
+        if (warp is None or _warp_motion_px(warp, small.shape, scale) < config.bump_threshold_px
+                or not _moves_everywhere(seg.ref_edge, edge, warp)):
             pending = []
             continue
         pending.append((t, warp))
@@ -368,6 +372,28 @@ def _ecc(ref: np.ndarray, img: np.ndarray) -> np.ndarray | None:
     except cv2.error:
         return None
     return warp
+
+
+def _moves_everywhere(ref: np.ndarray, img: np.ndarray, warp: np.ndarray, min_share: float = 1.0) -> bool:
+    """True when ``warp`` (from :func:`_ecc`) aligns ``img`` to ``ref`` better than no motion in
+    at least ``min_share`` (default: all) of the image's four quarters, by the ECC correlation coefficient
+    (Evangelidis & Psarakis 2008, ``cv2.computeECC``). A knocked camera moves the whole picture;
+    an arm or cue held over the table changes one or two quarters, which then pull the
+    whole-image alignment while the other quarters still match the reference unmoved."""
+    h, w = ref.shape
+    aligned = cv2.warpAffine(img, np.asarray(warp, np.float32), (w, h),
+                             flags=cv2.INTER_LINEAR + cv2.WARP_INVERSE_MAP, borderMode=cv2.BORDER_REPLICATE)
+    better = 0
+    for rows in (slice(0, h // 2), slice(h // 2, h)):
+        for cols in (slice(0, w // 2), slice(w // 2, w)):
+            r = np.ascontiguousarray(ref[rows, cols])
+            try:
+                still = cv2.computeECC(r, np.ascontiguousarray(img[rows, cols]))
+                moved = cv2.computeECC(r, np.ascontiguousarray(aligned[rows, cols]))
+            except cv2.error:
+                continue
+            better += moved > still
+    return better >= min_share * 4
 
 
 def _warp_motion_px(warp: np.ndarray, shape: tuple[int, int], scale: float) -> float:
