@@ -694,14 +694,20 @@ class BallDetector:
         return out
 
     # -- candidates in a box --
+    def _components(self, img: np.ndarray, box) -> tuple[int, np.ndarray, np.ndarray]:
+        """Foreground of the ball zone inside ``box`` = (u0, v0, u1, v1) px: ballness above the
+        threshold, opened by a 3 x 3 square, split into 8-connected components; (count, labels
+        (v1 - v0, u1 - u0) int32, stats as ``cv2.connectedComponentsWithStats``)."""
+        u0, v0, u1, v1 = box
+        score = ballness(img[v0:v1, u0:u1], self.background.image[v0:v1, u0:u1])
+        fg = ((score > self._score_thr) & self.zone[v0:v1, u0:u1]).astype(np.uint8)
+        fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        return n, lab, stats
+
     def _detect_box(self, img: np.ndarray, box) -> list[dict]:
         u0, v0, u1, v1 = box
-        bg = self.background
-        score = ballness(img[v0:v1, u0:u1], bg.image[v0:v1, u0:u1])
-        zone = self.zone[v0:v1, u0:u1]
-        fg = ((score > self._score_thr) & zone).astype(np.uint8)
-        fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-        n, lab, stats, cents = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        n, lab, stats = self._components(img, box)
         edge = self._zone_edge[v0:v1, u0:u1]
         h, w = img.shape[:2]
         seeds = []
@@ -895,10 +901,7 @@ class BallDetector:
         g = int(math.ceil(2 * self.ball_px))
         wu0, wv0 = max(int(us.min()) - g, 0), max(int(vs.min()) - g, 0)
         wu1, wv1 = min(int(us.max()) + g + 1, W), min(int(vs.max()) + g + 1, H)
-        score = ballness(img[wv0:wv1, wu0:wu1], self.background.image[wv0:wv1, wu0:wu1])
-        fg = ((score > self._score_thr) & self.zone[wv0:wv1, wu0:wu1]).astype(np.uint8)
-        fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-        n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        n, lab, stats = self._components(img, (wu0, wv0, wu1, wv1))
         hit = lab[vs - wv0, us - wu0]
         hit = hit[hit > 0]
         if len(hit) == 0:  # cannot happen (same pixels, same test), but keep the piece then
