@@ -136,7 +136,9 @@ class CalibConfig:
       ``max_height_sd_rel``: the camera height counts as determined by the view when its
       standard deviation is at most this fraction of it;
     * bumps: ``detect_bumps``, ``bump_every_s``, ``bump_threshold_px`` (full-resolution motion of
-      the table's outline), ``bump_persist`` samples;
+      the table's outline), ``bump_persist`` samples, ``bump_quarter_share`` (share of the
+      image's four quarters the motion must align better than no motion, see
+      ``_moves_everywhere``);
     * check image: ``check_px_per_mm``.
     """
 
@@ -165,6 +167,7 @@ class CalibConfig:
     bump_every_s: float = 0.1
     bump_threshold_px: float = 1.5
     bump_persist: int = 3
+    bump_quarter_share: float = 1.0
     check_px_per_mm: float = 0.4
 
     def __post_init__(self) -> None:
@@ -320,7 +323,7 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
         edge = _edge_small(small)
         warp = _ecc(seg.ref_edge, edge)
         if (warp is None or _warp_motion_px(warp, small.shape, scale) < config.bump_threshold_px
-                or not _moves_everywhere(seg.ref_edge, edge, warp)):
+                or not _moves_everywhere(seg.ref_edge, edge, warp, config.bump_quarter_share)):
             pending = []
             continue
         pending.append((t, warp))
@@ -374,9 +377,9 @@ def _ecc(ref: np.ndarray, img: np.ndarray) -> np.ndarray | None:
     return warp
 
 
-def _moves_everywhere(ref: np.ndarray, img: np.ndarray, warp: np.ndarray, min_share: float = 1.0) -> bool:
+def _moves_everywhere(ref: np.ndarray, img: np.ndarray, warp: np.ndarray, min_share: float) -> bool:
     """True when ``warp`` (from :func:`_ecc`) aligns ``img`` to ``ref`` better than no motion in
-    at least ``min_share`` (default: all) of the image's four quarters, by the ECC correlation coefficient
+    at least ``min_share`` of the image's four quarters, by the ECC correlation coefficient
     (Evangelidis & Psarakis 2008, ``cv2.computeECC``). A knocked camera moves the whole picture;
     an arm or cue held over the table changes one or two quarters, which then pull the
     whole-image alignment while the other quarters still match the reference unmoved."""
