@@ -10,7 +10,9 @@ Fit (scipy ``least_squares``):
   speed ratios [secondary]) and the cushion friction ``mu_cushion``, on every first contact's
   measured angle out and restitution, given its measured speed and angle in and the slip from its
   leg. Contacts of balls with side spin stated or unknown (cue-ball kicks without a stated tip)
-  are left out, since side spin is not a table property.
+  are left out, since side spin is not a table property. The two cushion parameters trade off
+  along a shallow valley with several local minima, so the fit is started from the lowest minima
+  of a coarse grid and the best end point is kept.
 
 Chart: for starting spots one diamond off each rail and the pockets on that rail, the sight on the
 opposite rail to aim through (ball launched without spin, as an object ball struck full) so the
@@ -50,6 +52,9 @@ class ChartConfig:
     standard error within ``max_se``, or no chart is offered. ``spot_depth_diamonds``: how far in
     from its rail each starting spot lies; ``spot_step_diamonds``: spacing of the spots.
     ``sigma_angle_deg`` and ``sigma_e``: residual weights of the cushion fit.
+    ``start_e_scales`` x ``start_mu_cushions``: the grid of liveliness and cushion friction whose
+    ``n_starts`` lowest local minima of the cost start the cushion fit (the cost has several
+    minima along a valley where the two trade off).
     """
 
     launch_speeds_mm_s: tuple[float, float, float] = (1300.0, 2000.0, 3000.0)
@@ -61,11 +66,17 @@ class ChartConfig:
     spot_step_diamonds: float = 1.0
     sigma_angle_deg: float = 0.5
     sigma_e: float = 0.02
+    start_e_scales: tuple[float, ...] = (0.6, 0.7, 0.8, 0.9, 1.0, 1.1, 1.2)
+    start_mu_cushions: tuple[float, ...] = (0.02, 0.1, 0.2, 0.3, 0.4, 0.5)
+    n_starts: int = 3
 
     def __post_init__(self) -> None:
         a, b, c = self.launch_speeds_mm_s
         if not 0 < a < b < c:
             raise ValueError(f"launch speeds {self.launch_speeds_mm_s} mm/s must increase (soft, medium, hard)")
+        if len(self.start_e_scales) < 2 or len(self.start_mu_cushions) < 2 or self.n_starts < 1:
+            raise ValueError(f"start grid {self.start_e_scales} x {self.start_mu_cushions} needs at least two "
+                             f"values of each, and n_starts {self.n_starts} at least 1")
         if self.min_contacts < 3:
             raise ValueError(f"min_contacts {self.min_contacts} must be at least 3 (two parameters are fitted)")
 
@@ -103,7 +114,9 @@ class TableFit:
 
 
 def _legs_and_contacts(session: Session, audit_shots: pd.DataFrame, side_known: dict[int, float | None]):
-    """Per bank shot: the first leg (tau (N,), speeds (N,)) and the first contact's event row."""
+    """Per bank shot: the first leg (tau (N,) s after launch, speeds (N,) mm/s), the time from launch
+    to the first contact (s), that contact's event row, whether its side spin is known to be nil,
+    and the launch event's row."""
     out = []
     ev = session.events
     for _, r in audit_shots.iterrows():
@@ -119,7 +132,7 @@ def _legs_and_contacts(session: Session, audit_shots: pd.DataFrame, side_known: 
         tau = np.r_[0.0, tr["t"].to_numpy() - l0["t"]]
         spd = np.r_[l0["speed_out"], np.hypot(tr["vx"].to_numpy(), tr["vy"].to_numpy())]
         usable = r["kind"] == "bank" or side_known.get(shot) == 0.0
-        out.append((shot, tau, spd, float(c0["t"] - l0["t"]), c0, usable))
+        out.append((shot, tau, spd, float(c0["t"] - l0["t"]), c0, usable, l0))
     return out
 
 
@@ -128,7 +141,7 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
     """Fit cloth and cushion to a session's banks (see the module docstring)."""
     table = session.table
     items = _legs_and_contacts(session, audit_shots, side_known or {})
-    legs = [(tau, spd) for _, tau, spd, _, _, _ in items if len(tau) >= 6]
+    legs = [(tau, spd) for _, tau, spd, _, _, _, _ in items if len(tau) >= 6]
     g = start.g_mm_s2
     # Cloth: shared (mu_s, mu_r), per-leg (v0, u0).
     mu_s, mu_r, se_s, se_r = start.mu_slide, start.mu_roll, np.nan, np.nan
@@ -152,7 +165,7 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
     cloth = replace(start, mu_slide=mu_s, mu_roll=mu_r)
     # Cushion: contacts with known (zero) side spin.
     contacts = []
-    for shot, tau, spd, tc, c, usable in items:
+    for shot, tau, spd, tc, c, usable, l0 in items:
         if not usable:
             continue
         v0, u0 = fit_leg_slip(tau, spd, cloth) if len(tau) >= 3 else (float(spd[0]), 0.0)
@@ -168,10 +181,12 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
         return replace(cloth, cushion=CushionParams(CushionParams().e_knots_mm_s, vals, float(x[1]),
                                                     cp.rail_factor, cp.dead_spots))
 
+    measured = list(contacts)  # the residuals always cover every contact; a mask picks the fitted ones
+
     def res_cushion(x):
         p = physics_of(x)
         out = []
-        for _, rail, dia, v_in, w_in, a_out, e_meas in contacts:
+        for _, rail, dia, v_in, w_in, a_out, e_meas in measured:
             vo, _ = model_rebound(table, p, rail, dia, v_in, w_in)
             n = -(np.asarray(v_in) @ _inward(rail))
             e_pred = float(vo @ _inward(rail)) / n
@@ -184,20 +199,29 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
                         np.nan, np.nan, len(contacts), n_shots, len(legs), False,
                         f"only {len(contacts)} usable cushion contacts; film at least {config.min_contacts} banks")
     kw = dict(bounds=([0.3, 0.0], [1.3, 0.6]), diff_step=1e-3, ftol=1e-12, xtol=1e-12, gtol=1e-12)
+    # Liveliness and cushion friction trade off along a long, shallow valley (a livelier cushion
+    # with more friction loses the same normal speed and turns the ball the same way), and a few
+    # tenths of a degree of measurement noise raise local minima along it: a fit started at one
+    # guess stopped in one of them (x0.98 and friction 0.40 for a table of x0.90 and 0.20 from a
+    # filmed session whose global minimum lay at the truth). Every fit therefore starts from the
+    # lowest local minima of the cost over a grid of both parameters (:func:`_global_fit`).
+    grid = np.array([(a, b) for a in config.start_e_scales for b in config.start_mu_cushions])
+    grid_res = np.array([res_cushion(x) for x in grid])
     # A contact whose departure was badly measured (a slow ball seen over a few centimetres, a
     # ball hidden by an arm) must not drag the table's parameters: a robust first fit (soft-L1
     # loss, Huber-like beyond one sigma) finds such contacts, they are set aside when their
     # residual is beyond three robust standard deviations (:func:`_inliers`), at most a quarter
     # of them, and the plain fit is redone on the rest.
-    fit = least_squares(res_cushion, [1.0, start.cushion.mu_cushion], loss="soft_l1", f_scale=1.0, **kw)
+    fit = _global_fit(res_cushion, grid, grid_res, np.ones(grid_res.shape[1], dtype=bool), [], config,
+                      dict(kw, loss="soft_l1", f_scale=1.0))
     keep = _inliers(fit.fun, config)
     set_aside = len(contacts) - int(keep.sum())
     if 0 < set_aside <= len(contacts) // 4:
         contacts = [c for c, k in zip(contacts, keep) if k]
         n_shots = len({c[0] for c in contacts})
     else:
-        set_aside = 0
-    fit = least_squares(res_cushion, fit.x, **kw)
+        set_aside, keep = 0, np.ones_like(keep)
+    fit = _global_fit(res_cushion, grid, grid_res, np.repeat(keep, 2), [fit.x], config, kw)
     cov = _cov(fit)
     se = np.sqrt(np.diag(cov))
     r = fit.fun
@@ -215,6 +239,32 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
     return TableFit(physics_of(fit.x), float(fit.x[0]), float(se[0]), float(se[1]), se_s, se_r, ang_rms,
                     e_rms, len(contacts), n_shots, len(legs), not reasons,
                     "; ".join(reasons) if reasons else "fit good enough for a chart", set_aside)
+
+
+def _global_fit(fun, grid: np.ndarray, grid_res: np.ndarray, used: np.ndarray, extra_starts: list,
+                config: ChartConfig, kw: dict):
+    """The lowest-cost ``least_squares`` solution of ``fun`` started from ``extra_starts`` and from
+    the ``config.n_starts`` lowest local minima of the cost over ``grid`` ((G, 2) parameter pairs
+    on a rectangular lattice, liveliness-major; ``grid_res`` (G, M) their residuals, of which the
+    (M,) bool ``used`` count). Multistart local optimisation (e.g. Nocedal & Wright 2006, ch. 1,
+    from memory): a grid point is a start when no lattice neighbour has a lower cost."""
+    z = grid_res[:, used] ** 2
+    if kw.get("loss") == "soft_l1":
+        z = 2.0 * (np.sqrt(1.0 + z) - 1.0)  # rho(z) of scipy's soft_l1 with f_scale = 1
+    cost = z.sum(axis=1).reshape(len(config.start_e_scales), len(config.start_mu_cushions))
+    lows = []
+    for i in range(cost.shape[0]):
+        for j in range(cost.shape[1]):
+            near = cost[max(i - 1, 0):i + 2, max(j - 1, 0):j + 2]
+            if cost[i, j] <= near.min():
+                lows.append((cost[i, j], i * cost.shape[1] + j))
+    starts = list(extra_starts) + [grid[k] for _, k in sorted(lows)[:config.n_starts]]
+    best = None
+    for x0 in starts:
+        fit = least_squares(lambda x: fun(x)[used], x0, **kw)
+        if best is None or fit.cost < best.cost:
+            best = fit
+    return best
 
 
 def _inliers(residuals: np.ndarray, config: ChartConfig) -> np.ndarray:
