@@ -8,13 +8,15 @@ Fit (scipy ``least_squares``):
 * **cushion**: a liveliness scale ``s`` on the restitution curve of the Mathavan et al. (2010)
   model (``e(v) = s * e_default(v)``, the default curve from Mathavan et al. 2009's measured
   speed ratios [secondary]) and the cushion friction ``mu_cushion``, on every first contact's
-  measured angle out and restitution (departure normal speed over arrival normal speed), given
-  the arrival velocity and slip from its leg: the speed of the leg's fitted slide-then-roll law at
-  the contact and the direction of the leg's chord from launch to contact. Contacts of balls with
-  side spin stated or unknown (cue-ball kicks without a stated tip) are left out, since side spin
-  is not a table property. The two cushion parameters trade off along a shallow valley with
-  several local minima, so the fit is started from the lowest minima of a coarse grid and the
-  best end point is kept.
+  departure: the detected ball centres over the first quarter second after the contact against
+  the model's path from the contact point (rebound, then the cloth's slide-then-roll law with the
+  fitted cloth), given the arrival velocity and slip from the leg: the speed of the leg's fitted
+  slide-then-roll law at the contact and the direction of the leg's chord from launch to contact.
+  The events' angle out and restitution are kept as diagnostics. Contacts of balls with side spin
+  stated or unknown (cue-ball kicks without a stated tip) are left out, since side spin is not a
+  table property. The two cushion parameters trade off along a shallow valley with several local
+  minima, so the fit is started from the lowest minima of a coarse grid and the best end point is
+  kept; their standard errors treat each contact's samples as one correlated group.
 
 Chart: for starting spots one diamond off each rail and the pockets on that rail, the sight on the
 opposite rail to aim through (ball launched without spin, as an object ball struck full) so the
@@ -53,7 +55,12 @@ class ChartConfig:
     leave angle and restitution residuals (rms) within these, and give both cushion parameters a
     standard error within ``max_se``, or no chart is offered. ``spot_depth_diamonds``: how far in
     from its rail each starting spot lies; ``spot_step_diamonds``: spacing of the spots.
-    ``sigma_angle_deg`` and ``sigma_e``: residual weights of the cushion fit.
+    ``sigma_path_mm``: the residual weight of the cushion fit (a departure sample's position);
+    ``departure_skip_s`` and ``departure_window_s``: the departure samples fitted lie between
+    these times after the contact (and end that long before the ball's next event);
+    ``min_departure_samples``: fewer and the contact is not fitted; ``max_path_rms_mm``: the
+    departures' residual (rms) allowed for a chart. ``sigma_angle_deg`` and ``sigma_e`` scale the
+    robust outlier test of the events' angle out and restitution (diagnostics beside the fit).
     ``start_e_scales`` x ``start_mu_cushions``: the grid of liveliness and cushion friction whose
     ``n_starts`` lowest local minima of the cost start the cushion fit (the cost has several
     minima along a valley where the two trade off).
@@ -68,6 +75,11 @@ class ChartConfig:
     spot_step_diamonds: float = 1.0
     sigma_angle_deg: float = 0.5
     sigma_e: float = 0.02
+    sigma_path_mm: float = 1.0
+    departure_skip_s: float = 0.005
+    departure_window_s: float = 0.25
+    min_departure_samples: int = 4
+    max_path_rms_mm: float = 3.0
     start_e_scales: tuple[float, ...] = (0.6, 0.7, 0.8, 0.9, 1.0, 1.1, 1.2)
     start_mu_cushions: tuple[float, ...] = (0.02, 0.1, 0.2, 0.3, 0.4, 0.5)
     n_starts: int = 3
@@ -79,6 +91,9 @@ class ChartConfig:
         if len(self.start_e_scales) < 2 or len(self.start_mu_cushions) < 2 or self.n_starts < 1:
             raise ValueError(f"start grid {self.start_e_scales} x {self.start_mu_cushions} needs at least two "
                              f"values of each, and n_starts {self.n_starts} at least 1")
+        if not 0 <= self.departure_skip_s < self.departure_window_s or self.min_departure_samples < 2:
+            raise ValueError(f"departure window {self.departure_skip_s}..{self.departure_window_s} s must be "
+                             f"non-empty and min_departure_samples {self.min_departure_samples} at least 2")
         if self.min_contacts < 3:
             raise ValueError(f"min_contacts {self.min_contacts} must be at least 3 (two parameters are fitted)")
 
@@ -86,9 +101,10 @@ class ChartConfig:
 @dataclass(frozen=True)
 class TableFit:
     """The fitted table: ``physics`` (fitted cloth and cushion), each parameter's standard error,
-    residuals (rms angle out deg, rms restitution), how many contacts and shots support it, and
-    ``good`` with ``reason`` when it is not good enough for a chart; ``n_set_aside``: contacts
-    left out of the fit as outliers (badly measured)."""
+    residuals (rms angle out deg and rms restitution of the events against the fitted model;
+    ``path_rms_mm``, rms of the fitted departure positions), how many contacts and shots support
+    it, and ``good`` with ``reason`` when it is not good enough for a chart; ``n_set_aside``:
+    contacts left out of the fit as outliers (badly measured)."""
 
     physics: PhysicsParams
     e_scale: float
@@ -104,23 +120,30 @@ class TableFit:
     good: bool
     reason: str
     n_set_aside: int = 0
+    path_rms_mm: float = math.nan
 
     def summary(self) -> str:
         p = self.physics
         return (f"cushion liveliness x{self.e_scale:.3f} +- {self.e_scale_se:.3f}, cushion friction "
                 f"{p.cushion.mu_cushion:.3f} +- {self.mu_cushion_se:.3f}, cloth sliding {p.mu_slide:.3f} +- "
                 f"{self.mu_slide_se:.3f}, rolling {p.mu_roll:.4f} +- {self.mu_roll_se:.4f}; residuals "
-                f"{self.angle_rms_deg:.2f} deg, restitution {self.e_rms:.3f}; {self.n_contacts} contacts "
-                f"from {self.n_shots} shots" + (f" ({self.n_set_aside} more set aside as badly measured)"
+                f"{self.path_rms_mm:.2f} mm on the departures, {self.angle_rms_deg:.2f} deg, restitution "
+                f"{self.e_rms:.3f}; {self.n_contacts} contacts from {self.n_shots} shots" + (f" ({self.n_set_aside} more set aside as badly measured)"
                                                 if self.n_set_aside else ""))
 
 
-def _legs_and_contacts(session: Session, audit_shots: pd.DataFrame, side_known: dict[int, float | None]):
+def _legs_and_contacts(session: Session, audit_shots: pd.DataFrame, side_known: dict[int, float | None],
+                       config: ChartConfig = ChartConfig()):
     """Per bank shot: the first leg (tau (N,) s after launch, speeds (N,) mm/s), the time from launch
     to the first contact (s), that contact's event row, whether its side spin is known to be nil,
-    and the launch event's row."""
+    the launch event's row, and the departure: times (K,) s after the contact and ball centres
+    (K, 2) mm (table frame) from ``departure_skip_s`` to ``departure_window_s`` after it, ending
+    ``departure_skip_s`` before the ball's next event; the detections themselves (``x_meas``,
+    ``y_meas`` where ``seen``) when the folder has them, else the track's ``x``, ``y``."""
     out = []
     ev = session.events
+    tracks = session.tracks
+    raw = {"x_meas", "y_meas", "seen"} <= set(tracks.columns)
     for _, r in audit_shots.iterrows():
         shot, track = int(r["shot"]), int(r["track"])
         e = ev[(ev["shot"] == shot) & (ev["track"] == track)].sort_values("t")
@@ -129,12 +152,22 @@ def _legs_and_contacts(session: Session, audit_shots: pd.DataFrame, side_known: 
         if launch.empty or cush.empty:
             continue
         l0, c0 = launch.iloc[0], cush[cush["t"] > launch.iloc[0]["t"]].iloc[0]
-        tr = session.tracks[(session.tracks["track"] == track) & (session.tracks["t"] > l0["t"] + 1e-6)
-                            & (session.tracks["t"] < c0["t"] - 1e-6)]
+        mine = tracks[tracks["track"] == track]
+        tr = mine[(mine["t"] > l0["t"] + 1e-6) & (mine["t"] < c0["t"] - 1e-6)]
         tau = np.r_[0.0, tr["t"].to_numpy() - l0["t"]]
         spd = np.r_[l0["speed_out"], np.hypot(tr["vx"].to_numpy(), tr["vy"].to_numpy())]
         usable = r["kind"] == "bank" or side_known.get(shot) == 0.0
-        out.append((shot, tau, spd, float(c0["t"] - l0["t"]), c0, usable, l0))
+        later = ev[(ev["track"] == track) & (ev["t"] > c0["t"] + 1e-6)]["t"]
+        t_end = min(c0["t"] + config.departure_window_s,
+                    (later.min() - config.departure_skip_s) if not later.empty else math.inf)
+        dep = mine[(mine["t"] > c0["t"] + config.departure_skip_s) & (mine["t"] <= t_end)]
+        if raw:
+            dep = dep[(dep["seen"] == 1) & np.isfinite(dep["x_meas"]) & np.isfinite(dep["y_meas"])]
+            dep_xy = dep[["x_meas", "y_meas"]].to_numpy(dtype=float)
+        else:
+            dep_xy = dep[["x", "y"]].to_numpy(dtype=float)
+        out.append((shot, tau, spd, float(c0["t"] - l0["t"]), c0, usable, l0,
+                    dep["t"].to_numpy(dtype=float) - float(c0["t"]), dep_xy))
     return out
 
 
@@ -142,8 +175,8 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
               start: PhysicsParams = PhysicsParams(), side_known: dict[int, float | None] | None = None) -> TableFit:
     """Fit cloth and cushion to a session's banks (see the module docstring)."""
     table = session.table
-    items = _legs_and_contacts(session, audit_shots, side_known or {})
-    legs = [(tau, spd) for _, tau, spd, _, _, _, _ in items if len(tau) >= 6]
+    items = _legs_and_contacts(session, audit_shots, side_known or {}, config)
+    legs = [(tau, spd) for _, tau, spd, *_ in items if len(tau) >= 6]
     g = start.g_mm_s2
     # Cloth: shared (mu_s, mu_r), per-leg (v0, u0).
     mu_s, mu_r, se_s, se_r = start.mu_slide, start.mu_roll, np.nan, np.nan
@@ -165,10 +198,10 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
         cov = _cov(fit)
         se_s, se_r = float(math.sqrt(cov[0, 0])), float(math.sqrt(cov[1, 1]))
     cloth = replace(start, mu_slide=mu_s, mu_roll=mu_r)
-    # Cushion: contacts with known (zero) side spin.
+    # Cushion: contacts with known (zero) side spin and a departure seen long enough.
     contacts = []
-    for shot, tau, spd, tc, c, usable, l0 in items:
-        if not usable:
+    for shot, tau, spd, tc, c, usable, l0, dep_t, dep_xy in items:
+        if not usable or len(dep_t) < config.min_departure_samples:
             continue
         rail = str(c["rail"])
         n_in = _inward(rail)
@@ -186,11 +219,12 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
             v0, u0 = float(spd[0]), 0.0
             v_in = velocity_in(rail, float(c["speed_in"]), float(c["angle_in"]))
         slip = math.copysign(max(abs(u0) - 3.5 * mu_s * g * tc, 0.0), u0)
-        # e = vn_out / vn_in: the departure's normal speed as the events measured it.
+        # e = vn_out / vn_in with the departure's normal speed as the events read it: only a
+        # diagnostic beside the fit (see res_cushion).
         vn_out = float(c["speed_out"]) * math.cos(math.radians(float(c["angle_out"])))
         e_meas = vn_out / max(-float(v_in @ n_in), 1e-9)
-        contacts.append((shot, rail, float(c["diamond"]), v_in, spin_with_slip(v_in, slip, table.radius_mm),
-                         float(c["angle_out"]), e_meas))
+        contacts.append((shot, rail, float(c["diamond"]), np.array([c["x"], c["y"]], dtype=float), v_in,
+                         spin_with_slip(v_in, slip, table.radius_mm), dep_t, dep_xy, float(c["angle_out"]), e_meas))
 
     def physics_of(x) -> PhysicsParams:
         cp = start.cushion
@@ -198,23 +232,32 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
         return replace(cloth, cushion=CushionParams(CushionParams().e_knots_mm_s, vals, float(x[1]),
                                                     cp.rail_factor, cp.dead_spots))
 
-    measured = list(contacts)  # the residuals always cover every contact; a mask picks the fitted ones
+    def rebounds(x):
+        p = physics_of(x)
+        return p, [model_rebound(table, p, c[1], c[2], c[4], c[5]) for c in contacts]
 
     def res_cushion(x):
-        p = physics_of(x)
-        out = []
-        for _, rail, dia, v_in, w_in, a_out, e_meas in measured:
-            vo, _ = model_rebound(table, p, rail, dia, v_in, w_in)
-            n = -(np.asarray(v_in) @ _inward(rail))
-            e_pred = float(vo @ _inward(rail)) / n
-            out += [(angle_out_of(rail, vo) - a_out) / config.sigma_angle_deg, (e_pred - e_meas) / config.sigma_e]
-        return np.asarray(out)
+        # The model's departure from the contact (Mathavan et al. 2010 rebound, then the cloth's
+        # slide-then-roll law, analysis.banks.ball_path) against the departure's detected
+        # centres, mm / sigma_path_mm, (2K,) per contact, x then y. Positions, not the events'
+        # angle out and departure speed: those come from a fit beside the contact that must
+        # guess where the slide after the cushion ends, and read the departure speed up to 3 %
+        # high on a filmed session; and the bend of the slide, which the cushion's friction sets
+        # through the spin it leaves, separates liveliness from friction where the angle and
+        # the speed ratio alone trade one for the other.
+        p, outs = rebounds(x)
+        res = []
+        for (_, _, _, pc, _, _, dep_t, dep_xy, _, _), (vo, wo) in zip(contacts, outs):
+            pos, _ = ball_path(pc, vo, wo, dep_t, p, table.radius_mm)
+            res.append(((dep_xy - pos) / config.sigma_path_mm).T.ravel())
+        return np.concatenate(res)
 
     n_shots = len({c[0] for c in contacts})
     if len(contacts) < 3:
         return TableFit(physics_of([1.0, start.cushion.mu_cushion]), 1.0, np.nan, np.nan, se_s, se_r,
                         np.nan, np.nan, len(contacts), n_shots, len(legs), False,
                         f"only {len(contacts)} usable cushion contacts; film at least {config.min_contacts} banks")
+    owner = np.concatenate([np.full(2 * len(c[6]), i) for i, c in enumerate(contacts)])
     kw = dict(bounds=([0.3, 0.0], [1.3, 0.6]), diff_step=1e-3, ftol=1e-12, xtol=1e-12, gtol=1e-12)
     # Liveliness and cushion friction trade off along a long, shallow valley (a livelier cushion
     # with more friction loses the same normal speed and turns the ball the same way), and a few
@@ -229,33 +272,57 @@ def fit_table(session: Session, audit_shots: pd.DataFrame, config: ChartConfig =
     # loss, Huber-like beyond one sigma) finds such contacts, they are set aside when their
     # residual is beyond three robust standard deviations (:func:`_inliers`), at most a quarter
     # of them, and the plain fit is redone on the rest.
-    fit = _global_fit(res_cushion, grid, grid_res, np.ones(grid_res.shape[1], dtype=bool), [], config,
+    fit = _global_fit(res_cushion, grid, grid_res, np.ones(owner.size, dtype=bool), [], config,
                       dict(kw, loss="soft_l1", f_scale=1.0))
-    keep = _inliers(fit.fun, config)
+    keep = _inliers(_per_contact_rms(fit.fun, owner, len(contacts)))
     set_aside = len(contacts) - int(keep.sum())
-    if 0 < set_aside <= len(contacts) // 4:
-        contacts = [c for c, k in zip(contacts, keep) if k]
-        n_shots = len({c[0] for c in contacts})
-    else:
+    if not 0 < set_aside <= len(contacts) // 4:
         set_aside, keep = 0, np.ones_like(keep)
-    fit = _global_fit(res_cushion, grid, grid_res, np.repeat(keep, 2), [fit.x], config, kw)
-    cov = _cov(fit)
-    se = np.sqrt(np.diag(cov))
-    r = fit.fun
-    ang_rms = float(np.sqrt(np.mean((r[0::2] * config.sigma_angle_deg) ** 2)))
-    e_rms = float(np.sqrt(np.mean((r[1::2] * config.sigma_e) ** 2)))
+    fit = _global_fit(res_cushion, grid, grid_res, keep[owner], [fit.x], config, kw)
+    se = np.sqrt(np.diag(_cluster_cov(fit.jac, fit.fun, owner[keep[owner]])))
+    path_rms = float(np.sqrt(np.mean(fit.fun**2))) * config.sigma_path_mm
+    # Diagnostics: the fitted model against the events' own angle out and restitution.
+    p, outs = rebounds(fit.x)
+    used = [(c, o) for c, o, k in zip(contacts, outs, keep) if k]
+    ang_rms = float(np.sqrt(np.mean([(angle_out_of(c[1], vo) - c[8]) ** 2 for c, (vo, _) in used])))
+    e_rms = float(np.sqrt(np.mean([(float(vo @ _inward(c[1])) / -float(c[4] @ _inward(c[1])) - c[9]) ** 2
+                                   for c, (vo, _) in used])))
+    n_used = len(used)
+    n_shots = len({c[0] for c, _ in used})
     reasons = []
-    if len(contacts) < config.min_contacts:
-        reasons.append(f"{len(contacts)} contacts (need {config.min_contacts})")
+    if n_used < config.min_contacts:
+        reasons.append(f"{n_used} contacts (need {config.min_contacts})")
+    if path_rms > config.max_path_rms_mm:
+        reasons.append(f"path residual {path_rms:.2f} mm (allowed {config.max_path_rms_mm})")
     if ang_rms > config.max_angle_rms_deg:
         reasons.append(f"angle residual {ang_rms:.2f} deg (allowed {config.max_angle_rms_deg})")
     if e_rms > config.max_e_rms:
         reasons.append(f"restitution residual {e_rms:.3f} (allowed {config.max_e_rms})")
     if not (np.all(np.isfinite(se)) and np.all(se <= config.max_se)):
         reasons.append(f"parameter uncertainty {np.max(se):.3f} (allowed {config.max_se})")
-    return TableFit(physics_of(fit.x), float(fit.x[0]), float(se[0]), float(se[1]), se_s, se_r, ang_rms,
-                    e_rms, len(contacts), n_shots, len(legs), not reasons,
-                    "; ".join(reasons) if reasons else "fit good enough for a chart", set_aside)
+    return TableFit(p, float(fit.x[0]), float(se[0]), float(se[1]), se_s, se_r, ang_rms, e_rms, n_used, n_shots,
+                    len(legs), not reasons, "; ".join(reasons) if reasons else "fit good enough for a chart",
+                    set_aside, path_rms)
+
+
+def _per_contact_rms(residuals: np.ndarray, owner: np.ndarray, n: int) -> np.ndarray:
+    """(n,) rms of ``residuals`` (M,) per contact, ``owner`` (M,) naming each one's contact."""
+    return np.sqrt(np.bincount(owner, residuals**2, minlength=n) / np.maximum(np.bincount(owner, minlength=n), 1))
+
+
+def _cluster_cov(J: np.ndarray, r: np.ndarray, owner: np.ndarray) -> np.ndarray:
+    """(P, P) covariance of least-squares parameters from the Jacobian ``J`` (M, P) and residuals
+    ``r`` (M,), with the residuals of one contact (``owner`` (M,)) free to be correlated: the
+    cluster-robust sandwich ``H^-1 (sum_c g_c g_c^T) H^-1 G / (G - 1)`` with ``H = J^T J``,
+    ``g_c = J_c^T r_c`` over the G contacts (Liang & Zeger 1986; Cameron & Miller 2015, from
+    memory). A departure's samples share that contact's errors (its contact time and point, the
+    detector's bias on that ball's blur), so counting them as independent would claim far more
+    certainty than the contacts give."""
+    ids = np.unique(owner)
+    g = np.array([J[owner == k].T @ r[owner == k] for k in ids])
+    Hi = np.linalg.pinv(J.T @ J)
+    G = len(ids)
+    return Hi @ (g.T @ g) @ Hi * (G / max(G - 1, 1))
 
 
 def _global_fit(fun, grid: np.ndarray, grid_res: np.ndarray, used: np.ndarray, extra_starts: list,
@@ -284,16 +351,13 @@ def _global_fit(fun, grid: np.ndarray, grid_res: np.ndarray, used: np.ndarray, e
     return best
 
 
-def _inliers(residuals: np.ndarray, config: ChartConfig) -> np.ndarray:
-    """(N,) bool: contacts whose angle and restitution residuals (interleaved, (2N,), each in
-    units of its stated sigma in ``config``) both lie within three robust standard deviations of
-    their median (1.4826 x the median absolute deviation, Rousseeuw & Croux 1993, from memory;
-    never less than one stated sigma, so a clean session sets nothing aside)."""
-    out = np.ones(residuals.size // 2, dtype=bool)
-    for r in (residuals[0::2], residuals[1::2]):
-        scale = max(1.4826 * float(np.median(np.abs(r - np.median(r)))), 1.0)
-        out &= np.abs(r - np.median(r)) <= 3.0 * scale
-    return out
+def _inliers(rms: np.ndarray) -> np.ndarray:
+    """(N,) bool: contacts whose departure residual ``rms`` (N,) (in units of the stated sigma)
+    lies within three robust standard deviations of the median (1.4826 x the median absolute
+    deviation, Rousseeuw & Croux 1993, from memory; never less than one stated sigma, so a clean
+    session sets nothing aside)."""
+    scale = max(1.4826 * float(np.median(np.abs(rms - np.median(rms)))), 1.0)
+    return np.abs(rms - np.median(rms)) <= 3.0 * scale
 
 
 def _inward(rail: str) -> np.ndarray:

@@ -25,7 +25,9 @@ Steps (each cached in ``--workdir``, default ``/tmp/railtrace_bank_chart``; dele
    true parameters (the model's own floor) and, end to end, from the launch measured in the
    analysed held-out clip.
 
-Prints per-shot errors in diamonds, their median and max (issue 5: within 0.1 diamond).
+Prints the fitted minus true cushion liveliness and friction in units of the fit's standard
+errors (issue 5: within 3), and per-shot errors in diamonds, their median and max (issue 5:
+within 0.1 diamond).
 """
 
 from __future__ import annotations
@@ -215,6 +217,14 @@ def main(argv=None) -> int:
     print(f"fit from the analysed clip: {fit.summary()} ({fit.reason})")
     print(f"true: liveliness x{TRUE_E_SCALE}, cushion friction {true_physics.cushion.mu_cushion}, cloth sliding "
           f"{true_physics.mu_slide}, rolling {true_physics.mu_roll}")
+    # Issue 5: the fitted cushion parameters recover the simulator's true ones, judged against the
+    # fit's own standard errors (within three of them).
+    for name, got, true, se in (("liveliness", fit.e_scale, TRUE_E_SCALE, fit.e_scale_se),
+                                ("cushion friction", fit.physics.cushion.mu_cushion,
+                                 true_physics.cushion.mu_cushion, fit.mu_cushion_se)):
+        z = (got - true) / se if se > 0 else math.inf
+        verdict = "within" if abs(z) <= 3 else "beyond"
+        print(f"  {name}: fitted - true {got - true:+.4f} = {z:+.1f} sd ({verdict} 3 sd)")
 
     ht, hr = read_session(h_truth), read_session(h_res)
     fitted = held_out_errors(ht, fit.physics)
