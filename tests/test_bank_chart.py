@@ -6,6 +6,7 @@ from __future__ import annotations
 import math
 import tomllib
 from dataclasses import replace
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -17,6 +18,7 @@ from analysis.physics import PhysicsParams, Simulator, Strike
 from benchmarks.bank_accuracy import (
     TRUE_E_SCALE, bank_scene_text, held_out_shots, side_spin_known, training_shots, write_truth_folder,
 )
+from benchmarks.bank_chart_accuracy import pair_shots
 from railtrace.banks_cmd import main as banks_main
 from railtrace.scene import parse_scene
 
@@ -192,3 +194,31 @@ def test_fit_rests_on_the_departure_path_not_on_the_events_speed_and_angle_readi
     assert fit.good, fit.reason
     assert fit.e_scale == pytest.approx(TRUE_E_SCALE, abs=0.005)
     assert fit.physics.cushion.mu_cushion == pytest.approx(truth_physics.cushion.mu_cushion, abs=0.005)
+
+
+FILMED = Path(__file__).parent / "data" / "bank_chart_filmed"
+
+
+def test_fit_from_a_filmed_and_analysed_session_recovers_the_simulators_cushion():
+    # Issue 5: a rendered session with known cushions, run through the real calibration (automatic),
+    # detection, tracking and events (cached: tests/data/bank_chart_filmed/README.md), then fitted.
+    # The truth is the scene's [physics]; the tolerance is the fit's own standard error, three of
+    # them, so an overconfident fit fails as surely as a biased one.
+    res = read_session(FILMED / "auto.results")
+    truth_shots = pd.read_csv(FILMED / "truth" / "shots.csv")
+    scene_text = (FILMED / "truth" / "scene.toml").read_text()
+    true = parse_scene(tomllib.loads(scene_text), "").physics
+    truth = replace(res, shots=truth_shots)
+    pairs = pair_shots(res, truth)
+    assert len(pairs) == len(truth_shots)
+    intents = [replace(intent_from_shots_row(truth_shots.iloc[pairs[k][0]], res.table), ball=str(pairs[k][1]))
+               if k in pairs else None for k in res.shots["shot"].astype(int)]
+    audit = audit_session(res, intents, BankConfig())
+    side = side_spin_known(truth)
+    fit = fit_table(res, audit.shots[audit.shots["shot"].isin(list(pairs))], ChartConfig(), PhysicsParams(),
+                    {k: side[v[0]] for k, v in pairs.items()})
+    assert fit.good, fit.reason
+    assert fit.n_contacts >= 12
+    assert 0 < fit.e_scale_se <= 0.05 and 0 < fit.mu_cushion_se <= 0.05
+    assert abs(fit.e_scale - TRUE_E_SCALE) <= 3 * fit.e_scale_se
+    assert abs(fit.physics.cushion.mu_cushion - true.cushion.mu_cushion) <= 3 * fit.mu_cushion_se
