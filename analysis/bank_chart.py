@@ -91,6 +91,8 @@ class ChartConfig:
         if len(self.start_e_scales) < 2 or len(self.start_mu_cushions) < 2 or self.n_starts < 1:
             raise ValueError(f"start grid {self.start_e_scales} x {self.start_mu_cushions} needs at least two "
                              f"values of each, and n_starts {self.n_starts} at least 1")
+        if np.any(np.diff(self.start_e_scales) <= 0) or np.any(np.diff(self.start_mu_cushions) <= 0):
+            raise ValueError(f"start grid {self.start_e_scales} x {self.start_mu_cushions} must increase")
         if not 0 <= self.departure_skip_s < self.departure_window_s or self.min_departure_samples < 2:
             raise ValueError(f"departure window {self.departure_skip_s}..{self.departure_window_s} s must be "
                              f"non-empty and min_departure_samples {self.min_departure_samples} at least 2")
@@ -342,7 +344,12 @@ def _global_fit(fun, grid: np.ndarray, grid_res: np.ndarray, used: np.ndarray, e
             near = cost[max(i - 1, 0):i + 2, max(j - 1, 0):j + 2]
             if cost[i, j] <= near.min():
                 lows.append((cost[i, j], i * cost.shape[1] + j))
-    starts = list(extra_starts) + [grid[k] for _, k in sorted(lows)[:config.n_starts]]
+    starts = [np.asarray(x, dtype=float) for x in extra_starts]
+    step = np.array([np.min(np.diff(config.start_e_scales)), np.min(np.diff(config.start_mu_cushions))])
+    for _, k in sorted(lows)[:config.n_starts]:
+        # A grid minimum within half a lattice step of a start already listed lies in its basin.
+        if all(np.any(np.abs(grid[k] - x) > 0.5 * step) for x in starts):
+            starts.append(grid[k])
     best = None
     for x0 in starts:
         fit = least_squares(lambda x: fun(x)[used], x0, **kw)
