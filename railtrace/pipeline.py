@@ -231,7 +231,7 @@ def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, prog
             while k + 1 < len(cameras) and cameras[k + 1][0] <= t + 1e-9:
                 k += 1
                 detector = BallDetector(cameras[k][1], table, detect_config)
-            det = detector.step(index, t, img)
+            det = detector.step_rows(index, t, img)
             if index >= first:
                 steps.append((index, t, det))
             if progress is not None:
