@@ -284,8 +284,12 @@ def _median(x: np.ndarray) -> float:
     return 0.5 * float(q[h - 1] + q[h])
 
 
-def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float) -> np.ndarray:
-    """Convex hull (M, 2) px of the silhouette of a sphere swept along a segment (table frame)."""
+def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float, rays: RayMap | None = None) -> np.ndarray:
+    """Convex hull (M, 2) px of the silhouette of a sphere swept along a segment (table frame).
+    ``rays``: the camera's :class:`RayMap`, whose lean single-sphere outline
+    (:meth:`RayMap.sphere_outline`) serves a sharp ball."""
+    if half <= 0 and rays is not None:
+        return rays.sphere_outline(x, y, R)
     k = 1 + 2 * int(math.ceil(half / (0.5 * R)))
     s = np.linspace(-half, half, k)
     cen = np.column_stack([x + s * math.cos(heading), y + s * math.sin(heading), np.full(k, R)])
@@ -299,17 +303,21 @@ def _ray_polygon(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarra
     """Distance from ``c`` along each (K, 2) unit direction to the boundary of the convex (or
     star-shaped about c) polygon (M, 2); the farthest crossing, NaN if none."""
     p0 = poly
-    p1 = np.roll(poly, -1, axis=0)
-    e = p1 - p0  # (M, 2)
-    w = p0 - c  # (M, 2)
-    # Solve c + t d = p0 + s e for t, s: cross products in 2-D.
-    den = dirs[:, None, 0] * e[None, :, 1] - dirs[:, None, 1] * e[None, :, 0]  # d x e
-    t = (w[None, :, 0] * e[None, :, 1] - w[None, :, 1] * e[None, :, 0]) / np.where(np.abs(den) < 1e-12, np.nan, den)
-    s = (w[None, :, 0] * dirs[:, None, 1] - w[None, :, 1] * dirs[:, None, 0]) / np.where(np.abs(den) < 1e-12, np.nan, den)
-    ok = (s >= -1e-9) & (s <= 1 + 1e-9) & (t > 0)
-    t = np.where(ok, t, np.nan)
-    with np.errstate(all="ignore"):
-        out = np.nanmax(np.where(np.isnan(t), -np.inf, t), axis=1)
+    e = np.empty_like(poly)  # (M, 2) edges p[i + 1] - p[i], the last closing the polygon
+    e[:-1] = poly[1:] - poly[:-1]
+    e[-1] = poly[0] - poly[-1]
+    wx, wy = p0[:, 0] - c[0], p0[:, 1] - c[1]
+    ex, ey = e[:, 0], e[:, 1]
+    dx, dy = dirs[:, 0:1], dirs[:, 1:2]
+    # Solve c + t d = p0 + s e for t, s: cross products in 2-D; parallel edges (|d x e| below
+    # 1e-12) cross nowhere.
+    den = dx * ey[None] - dy * ex[None]  # d x e, (K, M)
+    flat = np.abs(den) < 1e-12
+    den = np.where(flat, 1.0, den)
+    t = (wx * ey - wy * ex)[None] / den
+    sv = (wx[None] * dy - wy[None] * dx) / den
+    ok = (sv >= -1e-9) & (sv <= 1 + 1e-9) & (t > 0) & ~flat
+    out = np.max(np.where(ok, t, -np.inf), axis=1)
     out[~np.isfinite(out)] = np.nan
     return out
 
@@ -600,6 +608,15 @@ class RayMap:
         uv = np.column_stack([uu.ravel(), vv.ravel()])
         self.shape = (len(gv), len(gu))
         self.table = (camera.undistort_normalised(uv) - self._pinhole(uv)).reshape(*self.shape, 2)
+        self._flat = np.ascontiguousarray(self.table.reshape(-1, 2))
+        # The camera's numbers as plain floats and arrays, read once.
+        self._RT = np.ascontiguousarray(camera.R.T)
+        self._centre = [float(v) for v in camera.centre_mm]
+        self._dist = [float(v) for v in camera.dist]
+        K = camera.K
+        self._k = (float(K[0, 0]), float(K[0, 1]), float(K[0, 2]), float(K[1, 1]), float(K[1, 2]))
+        ang = np.linspace(0, 2 * np.pi, 32, endpoint=False)
+        self._cos32, self._sin32 = np.cos(ang), np.sin(ang)
 
     def _pinhole(self, uv: np.ndarray) -> np.ndarray:
         """(N, 2) pixels -> (N, 2) normalised coordinates ignoring the lens: K^-1 (u, v, 1)."""
@@ -612,28 +629,76 @@ class RayMap:
         uv = np.asarray(uv_px, dtype=float).reshape(-1, 2)
         g = uv / self.step
         i0 = np.floor(g).astype(int)
-        inside = np.all((i0 >= 0) & (i0 < np.array(self.shape[::-1]) - 1), axis=1)
+        nv, nu = self.shape
+        inside = (i0[:, 0] >= 0) & (i0[:, 0] < nu - 1) & (i0[:, 1] >= 0) & (i0[:, 1] < nv - 1)
+        every = bool(inside.all())
         out = np.empty_like(uv)
-        if inside.any():
-            a = g[inside] - i0[inside]
-            iu, iv = i0[inside, 0], i0[inside, 1]
-            T = self.table
+        if every or inside.any():
+            gi, ii = (g, i0) if every else (g[inside], i0[inside])
+            a = gi - ii
+            au, av = a[:, 0:1], a[:, 1:2]
+            # Flat indices of the four grid neighbours (np.take on the flattened table is
+            # several times cheaper than two-axis fancy indexing).
+            k = ii[:, 1] * nu + ii[:, 0]
+            T = self._flat
             corr = (
-                T[iv, iu] * ((1 - a[:, 0]) * (1 - a[:, 1]))[:, None]
-                + T[iv, iu + 1] * (a[:, 0] * (1 - a[:, 1]))[:, None]
-                + T[iv + 1, iu] * ((1 - a[:, 0]) * a[:, 1])[:, None]
-                + T[iv + 1, iu + 1] * (a[:, 0] * a[:, 1])[:, None]
+                np.take(T, k, axis=0) * ((1 - au) * (1 - av))
+                + np.take(T, k + 1, axis=0) * (au * (1 - av))
+                + np.take(T, k + nu, axis=0) * ((1 - au) * av)
+                + np.take(T, k + nu + 1, axis=0) * (au * av)
             )
-            out[inside] = self._pinhole(uv[inside]) + corr
-        if (~inside).any():
+            out[inside] = self._pinhole(uv if every else uv[inside]) + corr
+        if not every:
             out[~inside] = self.camera.undistort_normalised(uv[~inside])
         return out
 
     def rays(self, uv_px: np.ndarray) -> np.ndarray:
         """(N, 2) pixels -> (N, 3) unit ray directions in the table frame from ``camera.centre_mm``."""
         xy = self.undistort_normalised(uv_px)
-        d = np.column_stack([xy, np.ones(len(xy))]) @ self.camera.R  # R^T d_cam, row-wise
-        return d / np.linalg.norm(d, axis=1, keepdims=True)
+        d_cam = np.empty((len(xy), 3))
+        d_cam[:, :2] = xy
+        d_cam[:, 2] = 1.0
+        d = d_cam @ self.camera.R  # R^T d_cam, row-wise
+        return d / np.sqrt(_dot3(d, d))[:, None]
+
+    def project(self, points_mm: np.ndarray) -> np.ndarray:
+        """(N, 3) table points (mm) -> (N, 2) pixels: :meth:`Camera.project`'s model and
+        arithmetic, without its generality (points behind the camera give NaN)."""
+        cam = np.asarray(points_mm, float).reshape(-1, 3) @ self._RT + self.camera.tvec
+        z = np.where(cam[:, 2] > 0, cam[:, 2], np.nan)
+        x, y = cam[:, 0] / z, cam[:, 1] / z
+        k1, k2, p1, p2, k3 = self._dist
+        r2 = x * x + y * y
+        radial = 1 + r2 * (k1 + r2 * (k2 + r2 * k3))
+        xd = x * radial + 2 * p1 * x * y + p2 * (r2 + 2 * x * x)
+        yd = y * radial + p1 * (r2 + 2 * y * y) + 2 * p2 * x * y
+        out = np.empty((len(cam), 2))
+        k00, k01, k02, k11, k12 = self._k
+        out[:, 0] = k00 * xd + k01 * yd + k02
+        out[:, 1] = k11 * yd + k12
+        return out
+
+    def sphere_outline(self, x_mm: float, y_mm: float, radius_mm: float) -> np.ndarray:
+        """(32, 2) pixels of the silhouette of the sphere of radius ``radius_mm`` centred
+        ``radius_mm`` above the table point (``x_mm``, ``y_mm``): :func:`sphere_outline_px`
+        for one sphere, in plain floats."""
+        R = float(radius_mm)
+        C = self._centre
+        vx, vy, vz = x_mm - C[0], y_mm - C[1], R - C[2]
+        d2 = vx * vx + vy * vy + vz * vz
+        f = R**2 / d2
+        q = np.array([x_mm - vx * f, y_mm - vy * f, R - vz * f])
+        rho = R * math.sqrt(1 - f)
+        n = math.sqrt(d2)
+        hx, hy, hz = vx / n, vy / n, vz / n
+        ax, ay, az = (0.0, 0.0, 1.0) if abs(hz) < 0.9 else (1.0, 0.0, 0.0)
+        e1x, e1y, e1z = hy * az - hz * ay, hz * ax - hx * az, hx * ay - hy * ax
+        m = math.sqrt(e1x * e1x + e1y * e1y + e1z * e1z)
+        e1x, e1y, e1z = e1x / m, e1y / m, e1z / m
+        e2 = np.array([hy * e1z - hz * e1y, hz * e1x - hx * e1z, hx * e1y - hy * e1x])
+        e1 = np.array([e1x, e1y, e1z])
+        pts = q[None] + rho * (self._cos32[:, None] * e1[None] + self._sin32[:, None] * e2[None])
+        return self.project(pts)
 
     def backproject(self, uv_px: np.ndarray, z_mm: float = 0.0) -> np.ndarray:
         """(N, 2) pixels -> (N, 3) table points where their rays meet the plane ``z = z_mm``."""
@@ -1240,8 +1305,8 @@ class BallDetector:
             prev_xy = (p[0], p[1]) if win is None else None
             half = p[3] if capsule else 0.0
             hd = p[4] if capsule else 0.0
-            poly = _swept_outline_px(cam, p[0], p[1], half, hd, R)
-            c = cam.project(np.array([[p[0], p[1], R]]))[0]
+            poly = _swept_outline_px(cam, p[0], p[1], half, hd, R, self.rays)
+            c = self.rays.project(np.array([[p[0], p[1], R]]))[0]
             if not np.all(np.isfinite(c)):
                 return None
             rho = _ray_polygon(c, dirs, poly)
