@@ -412,7 +412,7 @@ def _robust_fit_general(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, 
     """Levenberg-Marquardt (Marquardt 1963) with Tukey biweight weights (Holland & Welsch 1977,
     tuning constant 4.685 robust sigmas) on the ray residuals; the bias prior keeps weight 1.
     The Jacobian is analytic (:func:`_residuals_jacobian`); each iteration tries a ladder of
-    four damping values in one batched solve and one :func:`_residuals` call.
+    four damping values in order and takes the first that lowers the cost.
     Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y): the last a
     function returning the (2, 2) mm^2 matrix, evaluated only for the fit that is kept (most
     rounds' fits are starting points for the next)."""
@@ -420,13 +420,12 @@ def _robust_fit_general(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, 
     n = len(p)
     lam = 1e-3
     K = len(d)
-    lams = 8.0 ** np.arange(4)
-    eye = np.eye(n)
+    lams = (1.0, 8.0, 64.0, 512.0)
 
     def clamp(q):
-        q[..., 2] = np.clip(q[..., 2], -0.3 * R, 0.3 * R)
+        q[2] = min(max(q[2], -0.3 * R), 0.3 * R)
         if capsule:
-            q[..., 3] = np.clip(q[..., 3], 0.0, 400.0)
+            q[3] = min(max(q[3], 0.0), 400.0)
         return q
 
     r, J = _residuals_jacobian(p, C, d, R, capsule)
@@ -439,21 +438,21 @@ def _robust_fit_general(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, 
         A = JW.T @ J
         g = JW.T @ r
         cost = float(np.sum(wts * r * r))
-        # Candidate steps for a ladder of damping values, solved and evaluated together:
-        # (A + lambda diag(A)) delta = -g (Marquardt's scaling).
-        damp = (np.diag(A) + 1e-6) * eye
-        deltas = np.linalg.solve(A[None] + (lam * lams)[:, None, None] * damp[None], np.broadcast_to(-g, (4, n))[..., None])[..., 0]
-        Q = clamp(p[None] + deltas)
-        RQ = _residuals(Q, C, d, R, capsule)
-        costs = np.sum(wts[None] * RQ * RQ, axis=1)
-        ok = np.nonzero(costs <= cost)[0]
-        if len(ok) == 0:
+        # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
+        # tried in order until one lowers the cost (most iterations take the first).
+        damp = np.diag(A) + 1e-6
+        for k in range(4):
+            delta = np.linalg.solve(A + np.diag(lam * lams[k] * damp), -g)
+            q = clamp(p + delta)
+            rq = _residuals(q, C, d, R, capsule)[0]
+            if float(np.sum(wts * rq * rq)) <= cost:
+                break
+        else:
             break
-        k = int(ok[0])
-        p = Q[k]
+        p = q
         lam = max(lam * lams[k] / 5, 1e-6)
         r, J = _residuals_jacobian(p, C, d, R, capsule)
-        if np.max(np.abs(deltas[k, :2])) < 0.005:
+        if max(abs(delta[0]), abs(delta[1])) < 0.005:
             break
     A = (J * wts[:, None]).T @ J
     good = wts[:K] > 0
