@@ -712,9 +712,11 @@ class BallDetector:
     """Streaming ball detector for one clip from one fixed camera.
 
     ``process(frame_index, t_s, image)`` takes the frames in order and returns that frame's
-    detections (:data:`COLUMNS`); the first frame also builds the background. Configuration is
-    one frozen :class:`DetectConfig`; the detector holds the background and the previous
-    detections as its only state.
+    detections (:data:`COLUMNS`); the first frame also builds the background. ``step`` and
+    ``step_rows`` are the same frame loop without the per-frame copy (a DataFrame, or a tuple of
+    row dicts, shared with the previous frame when nothing changed) for whole clips
+    (:func:`stack_detections`). Configuration is one frozen :class:`DetectConfig`; the detector
+    holds the background and the previous detections as its only state.
     """
 
     def __init__(self, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig()):
