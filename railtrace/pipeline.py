@@ -18,6 +18,7 @@ from __future__ import annotations
 import logging
 import math
 import multiprocessing
+import resource
 import time
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import asdict, dataclass, field
@@ -90,6 +91,7 @@ class AnalyseSummary:
     calibration_quality: dict
     seconds: float
     stage_seconds: dict = field(default_factory=dict)
+    stage_cpu_seconds: dict = field(default_factory=dict)
 
     def text(self) -> str:
         """A short human summary."""
@@ -116,16 +118,23 @@ def analyse_clip(
     if out.exists():
         raise ValueError(f"output folder {out} exists already; choose a new --out or remove it first")
     info = probe(clip)
-    stages = {}
-    t = time.perf_counter()
+    stages: dict[str, float] = {}
+    cpu: dict[str, float] = {}
+    mark = [time.perf_counter(), _cpu_seconds()]
+
+    def done(stage: str) -> None:
+        now = [time.perf_counter(), _cpu_seconds()]
+        stages[stage], cpu[stage] = now[0] - mark[0], now[1] - mark[1]
+        mark[:] = now
+
     table, cameras, source, quality, calib_doc = _calibration(clip, config)
-    stages["calibration"], t = time.perf_counter() - t, time.perf_counter()
+    done("calibration")
     detections = _detect_parallel(clip, table, cameras, config, info, progress)
-    stages["detection"], t = time.perf_counter() - t, time.perf_counter()
+    done("detection")
     tracks = track(detections, table, config.tracker)
-    stages["tracking"], t = time.perf_counter() - t, time.perf_counter()
+    done("tracking")
     events, shots = find_events(tracks, table, detections, config.events)
-    stages["events"], t = time.perf_counter() - t, time.perf_counter()
+    done("events")
     run_info = {
         "clip": str(clip),
         "frames": int(detections["frame"].max() + 1) if len(detections) else info.frame_count,
@@ -135,7 +144,7 @@ def analyse_clip(
         out, tracks, events, shots, calib_doc, overwrite=False, run_info=run_info,
         extra_files={"detections.csv": detections.to_csv(index=False, float_format="%.4f")},
     )
-    stages["writing"] = time.perf_counter() - t
+    done("writing")
     counts = events["kind"].value_counts() if len(events) else pd.Series(dtype=int)
     return AnalyseSummary(
         out_dir=out,
@@ -150,7 +159,15 @@ def analyse_clip(
         calibration_quality=quality,
         seconds=time.perf_counter() - t0,
         stage_seconds=stages,
+        stage_cpu_seconds=cpu,
     )
+
+
+def _cpu_seconds() -> float:
+    """Processor seconds used so far by this process (all threads) and its finished children."""
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    kids = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
 
 
 def _calibration(clip: Path, config: AnalyseConfig):
@@ -231,7 +248,7 @@ def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, prog
             while k + 1 < len(cameras) and cameras[k + 1][0] <= t + 1e-9:
                 k += 1
                 detector = BallDetector(cameras[k][1], table, detect_config)
-            det = detector.step(index, t, img)
+            det = detector.step_rows(index, t, img)
             if index >= first:
                 steps.append((index, t, det))
             if progress is not None:

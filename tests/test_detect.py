@@ -462,3 +462,82 @@ def test_touching_balls_are_placed_without_their_neighbours_rims(cluster, name):
     # resting balls: median <= 1 mm, p95 <= 2.5 mm.
     err = np.concatenate([_match(d, CLUSTER_AT)[0] for d in cluster(name)])
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (name, err)
+
+
+def _grazing_rays(cam: Camera, centre_xy, n: int = 48, outliers: int = 0, seed: int = 0):
+    """Unit rays (n, 3) from the camera centre tangent to the ball of radius R resting at
+    ``centre_xy`` (through its image outline, :func:`sphere_outline_px`), ``outliers`` of them
+    (every eighth) pushed 3 px outward (stray edges: a mark, a highlight), 0.05 px noise."""
+    from vision.detect import sphere_outline_px
+
+    X = np.array([[centre_xy[0], centre_xy[1], R]])
+    uv = sphere_outline_px(cam, X, R, n)[0]
+    c = cam.project(X)[0]
+    out = uv - c
+    bad = np.arange(0, n, 8)[:outliers]
+    uv[bad] += 3.0 * out[bad] / np.linalg.norm(out[bad], axis=1, keepdims=True)
+    uv += np.random.default_rng(seed).normal(0, 0.05, uv.shape)
+    return cam.rays(uv)
+
+
+@pytest.mark.parametrize("setup", list(SETUPS))
+def test_three_parameter_fit_agrees_with_the_general_fit(setup):
+    # Two implementations of one Levenberg-Marquardt with Tukey reweighting must agree to
+    # rounding (cross-check of two forms, as filterpy's procedure-form tests do; common
+    # practice), and the tangent rays of a known sphere must give back its centre (analytic:
+    # every ray grazing the sphere has residual 0 at the true centre).
+    from vision.detect import _robust_fit_general, _robust_fit_sharp
+
+    cam = SETUPS[setup]["camera"]
+    for k, (xy, n_out) in enumerate([((600.0, 400.0), 0), ((2300.0, 1000.0), 6), ((150.0, 1100.0), 3)]):
+        d = _grazing_rays(cam, xy, outliers=n_out, seed=k)
+        start = np.array([xy[0] + 9.0, xy[1] - 6.0, 0.0])  # a third of a radius off
+        p1, r1, w1, c1 = _robust_fit_general(start, cam.centre_mm, d, R, False)
+        p2, r2, w2, c2 = _robust_fit_sharp(start, cam.centre_mm, d, R)
+        assert np.max(np.abs(p1 - p2)) < 1e-9
+        assert np.max(np.abs(r1 - r2)) < 1e-9 and np.max(np.abs(w1 - w2)) < 1e-9
+        assert np.max(np.abs(c1() - c2())) < 1e-12
+        # 0.05 px of outline noise at about 2 mm per px moves a 48-ray centre by well under 0.1 mm.
+        assert math.hypot(p2[0] - xy[0], p2[1] - xy[1]) < 0.1
+        if n_out:
+            assert np.all(w2[np.arange(0, 48, 8)[:n_out]] < 0.2)  # the pushed rays are outliers to the biweight
+
+
+@pytest.mark.parametrize("setup", list(SETUPS))
+def test_ray_map_projection_and_outline_match_opencv(setup):
+    # RayMap.project must agree with OpenCV's projectPoints (reference library) and its
+    # one-sphere outline with sphere_outline_px, whose points are again OpenCV projections.
+    import cv2
+
+    from vision.detect import RayMap, sphere_outline_px
+
+    cam = SETUPS[setup]["camera"]
+    rm = RayMap(cam)
+    rng = np.random.default_rng(5)
+    P = np.column_stack([rng.uniform(0, NINE_FOOT.length_mm, 50), rng.uniform(0, NINE_FOOT.width_mm, 50), rng.uniform(0, 60, 50)])
+    ref, _ = cv2.projectPoints(P, cam.rvec, cam.tvec, cam.K, cam.dist)
+    assert np.max(np.abs(rm.project(P) - ref.reshape(-1, 2))) < 1e-6
+    for x, y in P[:10, :2]:
+        want = sphere_outline_px(cam, np.array([[x, y, R]]), R, 32)[0]
+        assert np.max(np.abs(rm.sphere_outline(x, y, R) - want)) < 1e-9
+
+
+def test_ray_polygon_crossing_of_a_circle():
+    # Rays from inside a circle of radius a (drawn as a 2000-gon) cross it at
+    # t = -(w.d) + sqrt((w.d)^2 - |w|^2 + a^2), w = start - centre (analytic); from outside,
+    # rays that miss it give NaN.
+    from vision.detect import _ray_polygon
+
+    a, c0 = 17.0, np.array([300.0, 200.0])
+    th = np.linspace(0, 2 * np.pi, 2000, endpoint=False)
+    poly = c0 + a * np.column_stack([np.cos(th), np.sin(th)])
+    ang = np.linspace(0, 2 * np.pi, 48, endpoint=False)
+    dirs = np.column_stack([np.cos(ang), np.sin(ang)])
+    start = c0 + np.array([4.0, -3.0])
+    w = start - c0
+    wd = dirs @ w
+    want = -wd + np.sqrt(wd**2 - w @ w + a**2)
+    # The polygon lies inside the circle by at most a (1 - cos(pi / 2000)) = 2e-5 px.
+    assert np.max(np.abs(_ray_polygon(start, dirs, poly) - want)) < 3e-5
+    outside = _ray_polygon(c0 + np.array([100.0, 0.0]), dirs, poly)
+    assert np.isnan(outside[0]) and np.isfinite(outside[24])  # pointing away / back at it

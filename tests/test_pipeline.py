@@ -196,3 +196,26 @@ def test_stack_detections_equals_joining_each_frames_table():
     assert list(got.columns) == COLUMNS
     empty = stack_detections([(0, 0.0, empty_detections())])
     assert len(empty) == 0 and list(empty.columns) == COLUMNS
+
+
+def test_stack_detections_of_rows_equals_that_of_tables():
+    # BallDetector.step_rows' tuples of row dicts (one tuple repeated for an unchanged frame)
+    # must stack to exactly the table of the same frames given as DataFrames.
+    import numpy as np
+
+    from vision.detect import COLUMNS, empty_detections, stack_detections
+
+    rng = np.random.default_rng(4)
+
+    def rows(n):
+        return tuple(
+            {**{c: float(rng.uniform(0, 2000)) for c in COLUMNS}, "frame": 0, "t": 0.0, "colour": str(rng.choice(["white", ""])), "pattern": "solid"}
+            for _ in range(n)
+        )
+
+    a, b = rows(3), rows(1)
+    as_rows = [(0, 0.0, a), (1, 1 / 60, a), (2, 2 / 60, ()), (3, 3 / 60, b)]
+    as_tables = [(i, t, pd.DataFrame(list(r), columns=COLUMNS) if r else empty_detections()) for i, t, r in as_rows]
+    got = stack_detections(as_rows)
+    pd.testing.assert_frame_equal(got, stack_detections(as_tables))
+    assert got["frame"].tolist() == [0, 0, 0, 1, 1, 1, 3]

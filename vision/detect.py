@@ -284,8 +284,12 @@ def _median(x: np.ndarray) -> float:
     return 0.5 * float(q[h - 1] + q[h])
 
 
-def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float) -> np.ndarray:
-    """Convex hull (M, 2) px of the silhouette of a sphere swept along a segment (table frame)."""
+def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float, rays: RayMap | None = None) -> np.ndarray:
+    """Convex hull (M, 2) px of the silhouette of a sphere swept along a segment (table frame).
+    ``rays``: the camera's :class:`RayMap`, whose lean single-sphere outline
+    (:meth:`RayMap.sphere_outline`) serves a sharp ball."""
+    if half <= 0 and rays is not None:
+        return rays.sphere_outline(x, y, R)
     k = 1 + 2 * int(math.ceil(half / (0.5 * R)))
     s = np.linspace(-half, half, k)
     cen = np.column_stack([x + s * math.cos(heading), y + s * math.sin(heading), np.full(k, R)])
@@ -299,17 +303,21 @@ def _ray_polygon(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarra
     """Distance from ``c`` along each (K, 2) unit direction to the boundary of the convex (or
     star-shaped about c) polygon (M, 2); the farthest crossing, NaN if none."""
     p0 = poly
-    p1 = np.roll(poly, -1, axis=0)
-    e = p1 - p0  # (M, 2)
-    w = p0 - c  # (M, 2)
-    # Solve c + t d = p0 + s e for t, s: cross products in 2-D.
-    den = dirs[:, None, 0] * e[None, :, 1] - dirs[:, None, 1] * e[None, :, 0]  # d x e
-    t = (w[None, :, 0] * e[None, :, 1] - w[None, :, 1] * e[None, :, 0]) / np.where(np.abs(den) < 1e-12, np.nan, den)
-    s = (w[None, :, 0] * dirs[:, None, 1] - w[None, :, 1] * dirs[:, None, 0]) / np.where(np.abs(den) < 1e-12, np.nan, den)
-    ok = (s >= -1e-9) & (s <= 1 + 1e-9) & (t > 0)
-    t = np.where(ok, t, np.nan)
-    with np.errstate(all="ignore"):
-        out = np.nanmax(np.where(np.isnan(t), -np.inf, t), axis=1)
+    e = np.empty_like(poly)  # (M, 2) edges p[i + 1] - p[i], the last closing the polygon
+    e[:-1] = poly[1:] - poly[:-1]
+    e[-1] = poly[0] - poly[-1]
+    wx, wy = p0[:, 0] - c[0], p0[:, 1] - c[1]
+    ex, ey = e[:, 0], e[:, 1]
+    dx, dy = dirs[:, 0:1], dirs[:, 1:2]
+    # Solve c + t d = p0 + s e for t, s: cross products in 2-D; parallel edges (|d x e| below
+    # 1e-12) cross nowhere.
+    den = dx * ey[None] - dy * ex[None]  # d x e, (K, M)
+    flat = np.abs(den) < 1e-12
+    den = np.where(flat, 1.0, den)
+    t = (wx * ey - wy * ex)[None] / den
+    sv = (wx[None] * dy - wy[None] * dx) / den
+    ok = (sv >= -1e-9) & (sv <= 1 + 1e-9) & (t > 0) & ~flat
+    out = np.max(np.where(ok, t, -np.inf), axis=1)
     out[~np.isfinite(out)] = np.nan
     return out
 
@@ -394,10 +402,17 @@ def _residuals_jacobian(p: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, c
 
 
 def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
+    """:func:`_robust_fit_general`, by :func:`_robust_fit_sharp` for a sharp ball."""
+    if not capsule:
+        return _robust_fit_sharp(p0, C, d, R, iters)
+    return _robust_fit_general(p0, C, d, R, capsule, iters)
+
+
+def _robust_fit_general(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
     """Levenberg-Marquardt (Marquardt 1963) with Tukey biweight weights (Holland & Welsch 1977,
     tuning constant 4.685 robust sigmas) on the ray residuals; the bias prior keeps weight 1.
     The Jacobian is analytic (:func:`_residuals_jacobian`); each iteration tries a ladder of
-    four damping values in one batched solve and one :func:`_residuals` call.
+    four damping values in order and takes the first that lowers the cost.
     Returns (params, ray residuals (K,), ray weights (K,), covariance of x, y): the last a
     function returning the (2, 2) mm^2 matrix, evaluated only for the fit that is kept (most
     rounds' fits are starting points for the next)."""
@@ -405,13 +420,12 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
     n = len(p)
     lam = 1e-3
     K = len(d)
-    lams = 8.0 ** np.arange(4)
-    eye = np.eye(n)
+    lams = (1.0, 8.0, 64.0, 512.0)
 
     def clamp(q):
-        q[..., 2] = np.clip(q[..., 2], -0.3 * R, 0.3 * R)
+        q[2] = min(max(q[2], -0.3 * R), 0.3 * R)
         if capsule:
-            q[..., 3] = np.clip(q[..., 3], 0.0, 400.0)
+            q[3] = min(max(q[3], 0.0), 400.0)
         return q
 
     r, J = _residuals_jacobian(p, C, d, R, capsule)
@@ -424,27 +438,115 @@ def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule:
         A = JW.T @ J
         g = JW.T @ r
         cost = float(np.sum(wts * r * r))
-        # Candidate steps for a ladder of damping values, solved and evaluated together:
-        # (A + lambda diag(A)) delta = -g (Marquardt's scaling).
-        damp = (np.diag(A) + 1e-6) * eye
-        deltas = np.linalg.solve(A[None] + (lam * lams)[:, None, None] * damp[None], np.broadcast_to(-g, (4, n))[..., None])[..., 0]
-        Q = clamp(p[None] + deltas)
-        RQ = _residuals(Q, C, d, R, capsule)
-        costs = np.sum(wts[None] * RQ * RQ, axis=1)
-        ok = np.nonzero(costs <= cost)[0]
-        if len(ok) == 0:
+        # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
+        # tried in order until one lowers the cost (most iterations take the first).
+        damp = np.diag(A) + 1e-6
+        for k in range(4):
+            delta = np.linalg.solve(A + np.diag(lam * lams[k] * damp), -g)
+            q = clamp(p + delta)
+            rq = _residuals(q, C, d, R, capsule)[0]
+            if float(np.sum(wts * rq * rq)) <= cost:
+                break
+        else:
             break
-        k = int(ok[0])
-        p = Q[k]
+        p = q
         lam = max(lam * lams[k] / 5, 1e-6)
         r, J = _residuals_jacobian(p, C, d, R, capsule)
-        if np.max(np.abs(deltas[k, :2])) < 0.005:
+        if max(abs(delta[0]), abs(delta[1])) < 0.005:
             break
     A = (J * wts[:, None]).T @ J
     good = wts[:K] > 0
     dof = max(int(good.sum()) - n, 1)
     s2 = float(np.sum(wts[:K] * r[:K] ** 2)) / dof
     return p, r[:K], wts[:K], lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
+
+
+def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, iters: int = 10):
+    """:func:`_robust_fit_general` for a sharp ball, parameters (x, y, bias) (mm, table frame;
+    ``C`` (3,) the camera centre, ``d`` (K, 3) unit rays): the same Levenberg-Marquardt
+    (Marquardt 1963) with Tukey biweight reweighting (Holland & Welsch 1977), step for step,
+    written for three parameters: ``n = w x d`` is affine in (x, y) over per-ray arrays prepared
+    once, the damped 3 x 3 normal equations are solved by their adjugate in plain floats, and
+    the damping ladder is tried in order, stopping at the first value that lowers the cost (the
+    one the batched ladder picks). The general form's broadcasting, stacking and batched LAPACK
+    call cost several times its arithmetic on 48 rays. Agrees with :func:`_robust_fit_general`
+    to rounding (tests/test_detect.py). Returns what it returns."""
+    p = np.array(p0, float)
+    K = len(d)
+    dx, dy, dz = (np.ascontiguousarray(d[:, k]) for k in range(3))
+    wz = R - C[2]
+    # n = w x d = n0 + wx (e_x x d) + wy (e_y x d); e_x x d = (0, -dz, dy), e_y x d = (dz, 0, -dx).
+    n0x, n0y = -wz * dy, wz * dx
+    inv_sig = 1.0 / _BIAS_SIGMA_MM
+    lams = (1.0, 8.0, 64.0, 512.0)
+    ones = np.ones(K)
+
+    def res_only(q):
+        wx, wy = q[0] - C[0], q[1] - C[1]
+        nx = n0x + wy * dz
+        ny = n0y - wx * dz
+        nz = wx * dy - wy * dx
+        return np.sqrt(nx * nx + ny * ny + nz * nz) - (R - q[2])
+
+    def res_jac(q):
+        wx, wy = q[0] - C[0], q[1] - C[1]
+        nx = n0x + wy * dz
+        ny = n0y - wx * dz
+        nz = wx * dy - wy * dx
+        dist = np.sqrt(nx * nx + ny * ny + nz * nz)
+        inv = 1.0 / np.maximum(dist, 1e-12)
+        M = np.empty((3, K))
+        M[0] = (-ny * dz + nz * dy) * inv
+        M[1] = (nx * dz - nz * dx) * inv
+        M[2] = ones
+        return dist - (R - q[2]), M
+
+    lam = 1e-3
+    r, M = res_jac(p)
+    wts = np.ones(K)
+    lo_b, hi_b = -0.3 * R, 0.3 * R
+    for _ in range(iters):
+        scale = max(1.4826 * _median(np.abs(r)), 0.2)
+        u = r / (4.685 * scale)
+        wts = np.maximum(1 - u * u, 0.0)  # Tukey: (1 - u^2)^2 inside |u| < 1, else 0
+        wts *= wts
+        MW = M * wts
+        A = MW @ M.T
+        A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
+        g = MW @ r
+        g[2] += inv_sig * (p[2] * inv_sig)
+        cost = float(wts @ (r * r)) + (p[2] * inv_sig) ** 2
+        (a0, b, c), (_, e0, f), (_, _, i0) = A.tolist()
+        g0, g1, g2 = g.tolist()
+        px, py, pb = p.tolist()
+        # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
+        # tried in order until one lowers the cost (the first of the ladder that would);
+        # a symmetric 3 x 3 system solved by its adjugate, delta = -adj(B) g / det B.
+        for k in range(4):
+            ll = lam * lams[k]
+            a, e, i3 = a0 + ll * (a0 + 1e-6), e0 + ll * (e0 + 1e-6), i0 + ll * (i0 + 1e-6)
+            c00, c01, c02 = e * i3 - f * f, c * f - b * i3, b * f - c * e
+            c11, c12, c22 = a * i3 - c * c, b * c - a * f, a * e - b * b
+            det = a * c00 + b * c01 + c * c02
+            d0 = -(c00 * g0 + c01 * g1 + c02 * g2) / det
+            d1 = -(c01 * g0 + c11 * g1 + c12 * g2) / det
+            d2 = -(c02 * g0 + c12 * g1 + c22 * g2) / det
+            q = np.array([px + d0, py + d1, min(max(pb + d2, lo_b), hi_b)])
+            rq = res_only(q)
+            if float(wts @ (rq * rq)) + (q[2] * inv_sig) ** 2 <= cost:
+                break
+        else:
+            break
+        p = q
+        lam = max(ll / 5, 1e-6)
+        r, M = res_jac(p)
+        if max(abs(d0), abs(d1)) < 0.005:
+            break
+    A = (M * wts) @ M.T
+    A[2, 2] += inv_sig * inv_sig
+    dof = max(int(np.count_nonzero(wts > 0)) - 3, 1)
+    s2 = float(wts @ (r * r)) / dof
+    return p, r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
 
 
 def _fit_rms(result) -> float:
@@ -505,6 +607,15 @@ class RayMap:
         uv = np.column_stack([uu.ravel(), vv.ravel()])
         self.shape = (len(gv), len(gu))
         self.table = (camera.undistort_normalised(uv) - self._pinhole(uv)).reshape(*self.shape, 2)
+        self._flat = np.ascontiguousarray(self.table.reshape(-1, 2))
+        # The camera's numbers as plain floats and arrays, read once.
+        self._RT = np.ascontiguousarray(camera.R.T)
+        self._centre = [float(v) for v in camera.centre_mm]
+        self._dist = [float(v) for v in camera.dist]
+        K = camera.K
+        self._k = (float(K[0, 0]), float(K[0, 1]), float(K[0, 2]), float(K[1, 1]), float(K[1, 2]))
+        ang = np.linspace(0, 2 * np.pi, 32, endpoint=False)
+        self._cos32, self._sin32 = np.cos(ang), np.sin(ang)
 
     def _pinhole(self, uv: np.ndarray) -> np.ndarray:
         """(N, 2) pixels -> (N, 2) normalised coordinates ignoring the lens: K^-1 (u, v, 1)."""
@@ -517,28 +628,76 @@ class RayMap:
         uv = np.asarray(uv_px, dtype=float).reshape(-1, 2)
         g = uv / self.step
         i0 = np.floor(g).astype(int)
-        inside = np.all((i0 >= 0) & (i0 < np.array(self.shape[::-1]) - 1), axis=1)
+        nv, nu = self.shape
+        inside = (i0[:, 0] >= 0) & (i0[:, 0] < nu - 1) & (i0[:, 1] >= 0) & (i0[:, 1] < nv - 1)
+        every = bool(inside.all())
         out = np.empty_like(uv)
-        if inside.any():
-            a = g[inside] - i0[inside]
-            iu, iv = i0[inside, 0], i0[inside, 1]
-            T = self.table
+        if every or inside.any():
+            gi, ii = (g, i0) if every else (g[inside], i0[inside])
+            a = gi - ii
+            au, av = a[:, 0:1], a[:, 1:2]
+            # Flat indices of the four grid neighbours (np.take on the flattened table is
+            # several times cheaper than two-axis fancy indexing).
+            k = ii[:, 1] * nu + ii[:, 0]
+            T = self._flat
             corr = (
-                T[iv, iu] * ((1 - a[:, 0]) * (1 - a[:, 1]))[:, None]
-                + T[iv, iu + 1] * (a[:, 0] * (1 - a[:, 1]))[:, None]
-                + T[iv + 1, iu] * ((1 - a[:, 0]) * a[:, 1])[:, None]
-                + T[iv + 1, iu + 1] * (a[:, 0] * a[:, 1])[:, None]
+                np.take(T, k, axis=0) * ((1 - au) * (1 - av))
+                + np.take(T, k + 1, axis=0) * (au * (1 - av))
+                + np.take(T, k + nu, axis=0) * ((1 - au) * av)
+                + np.take(T, k + nu + 1, axis=0) * (au * av)
             )
-            out[inside] = self._pinhole(uv[inside]) + corr
-        if (~inside).any():
+            out[inside] = self._pinhole(uv if every else uv[inside]) + corr
+        if not every:
             out[~inside] = self.camera.undistort_normalised(uv[~inside])
         return out
 
     def rays(self, uv_px: np.ndarray) -> np.ndarray:
         """(N, 2) pixels -> (N, 3) unit ray directions in the table frame from ``camera.centre_mm``."""
         xy = self.undistort_normalised(uv_px)
-        d = np.column_stack([xy, np.ones(len(xy))]) @ self.camera.R  # R^T d_cam, row-wise
-        return d / np.linalg.norm(d, axis=1, keepdims=True)
+        d_cam = np.empty((len(xy), 3))
+        d_cam[:, :2] = xy
+        d_cam[:, 2] = 1.0
+        d = d_cam @ self.camera.R  # R^T d_cam, row-wise
+        return d / np.sqrt(_dot3(d, d))[:, None]
+
+    def project(self, points_mm: np.ndarray) -> np.ndarray:
+        """(N, 3) table points (mm) -> (N, 2) pixels: :meth:`Camera.project`'s model and
+        arithmetic, without its generality (points behind the camera give NaN)."""
+        cam = np.asarray(points_mm, float).reshape(-1, 3) @ self._RT + self.camera.tvec
+        z = np.where(cam[:, 2] > 0, cam[:, 2], np.nan)
+        x, y = cam[:, 0] / z, cam[:, 1] / z
+        k1, k2, p1, p2, k3 = self._dist
+        r2 = x * x + y * y
+        radial = 1 + r2 * (k1 + r2 * (k2 + r2 * k3))
+        xd = x * radial + 2 * p1 * x * y + p2 * (r2 + 2 * x * x)
+        yd = y * radial + p1 * (r2 + 2 * y * y) + 2 * p2 * x * y
+        out = np.empty((len(cam), 2))
+        k00, k01, k02, k11, k12 = self._k
+        out[:, 0] = k00 * xd + k01 * yd + k02
+        out[:, 1] = k11 * yd + k12
+        return out
+
+    def sphere_outline(self, x_mm: float, y_mm: float, radius_mm: float) -> np.ndarray:
+        """(32, 2) pixels of the silhouette of the sphere of radius ``radius_mm`` centred
+        ``radius_mm`` above the table point (``x_mm``, ``y_mm``): :func:`sphere_outline_px`
+        for one sphere, in plain floats."""
+        R = float(radius_mm)
+        C = self._centre
+        vx, vy, vz = x_mm - C[0], y_mm - C[1], R - C[2]
+        d2 = vx * vx + vy * vy + vz * vz
+        f = R**2 / d2
+        q = np.array([x_mm - vx * f, y_mm - vy * f, R - vz * f])
+        rho = R * math.sqrt(1 - f)
+        n = math.sqrt(d2)
+        hx, hy, hz = vx / n, vy / n, vz / n
+        ax, ay, az = (0.0, 0.0, 1.0) if abs(hz) < 0.9 else (1.0, 0.0, 0.0)
+        e1x, e1y, e1z = hy * az - hz * ay, hz * ax - hx * az, hx * ay - hy * ax
+        m = math.sqrt(e1x * e1x + e1y * e1y + e1z * e1z)
+        e1x, e1y, e1z = e1x / m, e1y / m, e1z / m
+        e2 = np.array([hy * e1z - hz * e1y, hz * e1x - hx * e1z, hx * e1y - hy * e1x])
+        e1 = np.array([e1x, e1y, e1z])
+        pts = q[None] + rho * (self._cos32[:, None] * e1[None] + self._sin32[:, None] * e2[None])
+        return self.project(pts)
 
     def backproject(self, uv_px: np.ndarray, z_mm: float = 0.0) -> np.ndarray:
         """(N, 2) pixels -> (N, 3) table points where their rays meet the plane ``z = z_mm``."""
@@ -553,9 +712,11 @@ class BallDetector:
     """Streaming ball detector for one clip from one fixed camera.
 
     ``process(frame_index, t_s, image)`` takes the frames in order and returns that frame's
-    detections (:data:`COLUMNS`); the first frame also builds the background. Configuration is
-    one frozen :class:`DetectConfig`; the detector holds the background and the previous
-    detections as its only state.
+    detections (:data:`COLUMNS`); the first frame also builds the background. ``step`` and
+    ``step_rows`` are the same frame loop without the per-frame copy (a DataFrame, or a tuple of
+    row dicts, shared with the previous frame when nothing changed) for whole clips
+    (:func:`stack_detections`). Configuration is one frozen :class:`DetectConfig`; the detector
+    holds the background and the previous detections as its only state.
     """
 
     def __init__(self, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig()):
@@ -581,7 +742,9 @@ class BallDetector:
         self.r_max_px = float(rad.max())
         self.background: Background | None = None
         self._ref_small: np.ndarray | None = None
-        self._prev = empty_detections()
+        self._prev: tuple[dict, ...] = ()
+        # The last step's rows and their DataFrame (:meth:`step`), so a still stretch builds none.
+        self._table: tuple[tuple[dict, ...], pd.DataFrame] | None = None
         # Per frame: which foreground of the whole frame reaches the zone's border (built on
         # demand by :meth:`_reaching`), keyed by the frame's identity.
         self._reach: tuple[np.ndarray, np.ndarray] | None = None
@@ -615,6 +778,18 @@ class BallDetector:
         and ``t`` not filled in. When nothing changed it is the very frame returned for the
         previous frame, so it must not be modified; :func:`stack_detections` turns a clip's
         steps into one table."""
+        rows = self.step_rows(frame_index, t_s, image)
+        if self._table is None or self._table[0] is not rows:
+            table = pd.DataFrame(list(rows), columns=COLUMNS) if rows else empty_detections()
+            self._table = (rows, table)
+        return self._table[1]
+
+    def step_rows(self, frame_index: int, t_s: float, image: np.ndarray) -> tuple[dict, ...]:
+        """The frame loop: this frame's detections as a tuple of row dicts (:data:`COLUMNS`,
+        ``frame`` and ``t`` left at 0), the very tuple of the previous frame when nothing
+        changed (so it must not be modified). The clip's table is built once, at the end, by
+        :func:`stack_detections`; a pandas frame per frame cost more than finding the balls
+        that moved."""
         img = np.asarray(image)
         w, h = self.size
         if img.shape != (h, w, 3) or img.dtype != np.uint8:
@@ -649,16 +824,16 @@ class BallDetector:
         (sigma x sqrt(2) over the cloth's brightness), at least ``fg_min_score``."""
         return max(self.config.fg_sigmas * self.background.sigma * math.sqrt(2) / max(self._b_norm, 30.0), self.config.fg_min_score)
 
-    def _protect_mask(self, det: pd.DataFrame) -> np.ndarray:
+    def _protect_mask(self, det: tuple[dict, ...]) -> np.ndarray:
         w, h = self.size
         m = np.zeros((h, w), np.uint8)
-        travel = np.hypot(det["blur_x"].to_numpy(float), det["blur_y"].to_numpy(float))
-        rads = np.ceil(1.6 * self.r_max_px + travel * self.ball_px / (2 * self.R)).astype(int)
-        for u, v, rad in zip(np.round(det["u"].to_numpy(float)).astype(int), np.round(det["v"].to_numpy(float)).astype(int), rads):
+        bu, bv, bx, by = (np.array([r[c] for r in det], float) for c in ("u", "v", "blur_x", "blur_y"))
+        rads = np.ceil(1.6 * self.r_max_px + np.hypot(bx, by) * self.ball_px / (2 * self.R)).astype(int)
+        for u, v, rad in zip(np.round(bu).astype(int), np.round(bv).astype(int), rads):
             cv2.circle(m, (int(u), int(v)), int(rad), 1, -1)
         return m.astype(bool)
 
-    def _process_changed(self, img: np.ndarray, changed: np.ndarray) -> pd.DataFrame:
+    def _process_changed(self, img: np.ndarray, changed: np.ndarray) -> tuple[dict, ...]:
         cs = int(self.config.cell_px)
         grow = int(math.ceil(1.5 * self.r_max_px / cs)) + 1
         k = cv2.getStructuringElement(cv2.MORPH_RECT, (2 * grow + 1, 2 * grow + 1))
@@ -674,16 +849,13 @@ class BallDetector:
         inside = np.zeros(len(prev), bool)
         if len(prev) and boxes:
             bx = np.array(boxes, float)  # (nb, 4) u0, v0, u1, v1
-            u = prev["u"].to_numpy(float)[:, None]
-            v = prev["v"].to_numpy(float)[:, None]
+            u = np.array([r["u"] for r in prev], float)[:, None]
+            v = np.array([r["v"] for r in prev], float)[:, None]
             inside = np.any((bx[None, :, 0] <= u) & (u < bx[None, :, 2]) & (bx[None, :, 1] <= v) & (v < bx[None, :, 3]), axis=1)
-        rows = prev[~inside].to_dict("records")
+        rows = [r for r, gone in zip(prev, inside) if not gone]
         for b in boxes:
             rows += self._detect_box(img, b)
-        rows = self._dedupe(rows)
-        if not rows:
-            return empty_detections()
-        return pd.DataFrame(rows, columns=COLUMNS)
+        return tuple(self._dedupe(rows))
 
     def _dedupe(self, rows: list[dict]) -> list[dict]:
         rows = sorted(rows, key=lambda r: -r["quality"])
@@ -1134,8 +1306,8 @@ class BallDetector:
             prev_xy = (p[0], p[1]) if win is None else None
             half = p[3] if capsule else 0.0
             hd = p[4] if capsule else 0.0
-            poly = _swept_outline_px(cam, p[0], p[1], half, hd, R)
-            c = cam.project(np.array([[p[0], p[1], R]]))[0]
+            poly = _swept_outline_px(cam, p[0], p[1], half, hd, R, self.rays)
+            c = self.rays.project(np.array([[p[0], p[1], R]]))[0]
             if not np.all(np.isfinite(c)):
                 return None
             rho = _ray_polygon(c, dirs, poly)
@@ -1359,14 +1531,16 @@ def detect_clip(path, camera: Camera, table: TableSpec, config: DetectConfig = D
     frames decoded ahead in a background thread (:func:`vision.video.iter_frames`; None: its
     default, a thread where there is a spare core)."""
     det = BallDetector(camera, table, config)
-    return stack_detections([(i, t, det.step(i, t, img)) for i, t, img in iter_frames(path, read_ahead=read_ahead)])
+    return stack_detections([(i, t, det.step_rows(i, t, img)) for i, t, img in iter_frames(path, read_ahead=read_ahead)])
 
 
 def stack_detections(steps) -> pd.DataFrame:
     """One detections table (:data:`COLUMNS`, rows in frame order) from a clip's
-    ``(frame index, t s, BallDetector.step(...))`` triples; the same as concatenating
-    :meth:`BallDetector.process`'s frames. A frame repeated from the previous one (nothing
-    changed) is turned into arrays once, so a still stretch costs a few array copies."""
+    ``(frame index, t s, detections)`` triples, each frame's detections either
+    :meth:`BallDetector.step`'s DataFrame or :meth:`BallDetector.step_rows`'s tuple of row
+    dicts; the same as concatenating :meth:`BallDetector.process`'s frames. A frame repeated
+    from the previous one (nothing changed) is turned into arrays once, so a still stretch
+    costs a few array copies."""
     cols = [c for c in COLUMNS if c not in ("frame", "t")]
     arrays: dict[int, list[np.ndarray]] = {}
     data: list[list[np.ndarray]] = [[] for _ in COLUMNS]
@@ -1377,7 +1551,11 @@ def stack_detections(steps) -> pd.DataFrame:
         # ``steps`` holds every frame alive, so an object's id is not reused meanwhile.
         got = arrays.get(id(det))
         if got is None:
-            got = arrays[id(det)] = [det[c].to_numpy() for c in cols]
+            if isinstance(det, pd.DataFrame):
+                got = [det[c].to_numpy() for c in cols]
+            else:
+                got = [np.array([r[c] for r in det], dtype=object if c in ("colour", "pattern") else float) for c in cols]
+            arrays[id(det)] = got
         data[0].append(np.full(n, frame_index, np.int64))
         data[1].append(np.full(n, float(t_s)))
         for k, a in enumerate(got):
