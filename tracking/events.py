@@ -135,7 +135,9 @@ class EventConfig:
     ``slide_ratio_sigma``: sd of the prior on the fraction of its normal speed a ball arriving
     rolling loses sliding after a cushion (``_cushion_slide_ratio``; 0.28 to 0.43 in that model
     over normal speeds of 0.1 to 3.1 m/s arriving), and ``slide_ratio_min_contacts`` the fewest well-seen slides
-    that measure the clip's fraction.
+    that measure the clip's fraction. ``slide_ratio_prior``: that fraction where the clip has
+    fewer well-seen slides (the middle of the model's 0.28-0.43; a clip of a few shots, whose
+    slides after a cushion last only a few frames, would otherwise fit them unconstrained).
     ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
     cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
     """
@@ -170,6 +172,7 @@ class EventConfig:
     slide_fit_s: float = 0.8
     slide_ratio_sigma: float = 0.05
     slide_ratio_min_contacts: int = 3
+    slide_ratio_prior: float = 0.355
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -537,6 +540,7 @@ class _Ball:
     v: np.ndarray  # (N, 2) smoothed mm/s
     raw: np.ndarray  # (N, 2) raw measurement mm, NaN where unseen
     sigma: float = 1.0  # detection noise per axis, mm, estimated from the samples
+    sigma_fit: float = 1.0  # the same at the scale of a contact's fits (drift included), mm
     moves: list = field(default_factory=list)  # [(i0, i1)] index ranges, inclusive
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
@@ -663,12 +667,24 @@ def _respots(ball: _Ball, diameter_mm: float) -> list[float]:
     return [float(0.5 * (ball.t[i] + ball.t[i + 1])) for i in k]
 
 
-def _noise_sigma(ball: _Ball, cfg: EventConfig) -> float:
-    """Detection noise per axis (mm) from third differences of consecutive raw samples.
+def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
+    """Detection noise per axis (mm), (white, at the fits' scale).
 
-    A quadratic path has zero third difference, so for white noise of variance s^2 the third
-    difference has variance 20 s^2 (binomial weights 1, 3, 3, 1); the median absolute value is
-    0.674 of its standard deviation. Contacts spoil a few differences; the median ignores them.
+    *White*: from third differences of consecutive raw samples. A quadratic path has zero third
+    difference, so for white noise of variance s^2 the third difference has variance 20 s^2
+    (binomial weights 1, 3, 3, 1); the median absolute value is 0.674 of its standard deviation.
+    Contacts spoil a few differences; the median ignores them.
+
+    *At the fits' scale*: real detection errors also drift slowly along a path (a blur streak's
+    or a shadow's bias changing with position and speed), which third differences of
+    neighbouring frames cancel but a fit over ``fit_window_s`` does not. So the moving samples
+    are also cut into runs of ``2 quadratic_min_samples`` consecutive frames, each run fitted by
+    a quadratic per axis, and ``s^2 = RSS / (2 (W - 3))`` taken per run (unbiased for white
+    noise, so both estimates agree there); the median over at least three runs (a run holding a
+    contact or a slide's end is an outlier the median ignores), and never below the white one.
+    The cushion fits test their models against the second; the collision fits, grown sample by
+    sample from the contact to find where a parabola stops explaining the path
+    (``_Finder._grow``), against the first, since there the next frames matter, not the drift.
     """
     r = ball.raw
     ok = np.isfinite(r[:, 0])
@@ -678,8 +694,25 @@ def _noise_sigma(ball: _Ball, cfg: EventConfig) -> float:
         & consecutive[:-2]
     d3 = d3[good].ravel()
     if len(d3) < 10:
-        return cfg.meas_sigma_mm
-    return max(float(np.median(np.abs(d3))) / 0.6745 / math.sqrt(20.0), 0.05)
+        return cfg.meas_sigma_mm, cfg.meas_sigma_mm
+    white = max(float(np.median(np.abs(d3))) / 0.6745 / math.sqrt(20.0), 0.05)
+    w = 2 * cfg.quadratic_min_samples
+    s2 = []
+    for i0, i1 in ball.moves:
+        k = i0
+        while k + w <= i1 + 1:
+            sl = slice(k, k + w)
+            if ok[sl].all() and np.all(np.diff(ball.frame[sl]) == 1):
+                tau = ball.t[sl] - ball.t[k]
+                A = np.vander(tau, 3, increasing=True)
+                _, rss, *_ = np.linalg.lstsq(A, r[sl], rcond=None)
+                s2.append(float(np.sum(rss)) / (2 * (w - 3)))
+                k += w
+            else:
+                k += 1
+    if len(s2) < 3:
+        return white, white
+    return white, max(white, math.sqrt(float(np.median(s2))))
 
 
 # --- events ----------------------------------------------------------------------------------
@@ -713,7 +746,7 @@ def find_events(
     finder = _Finder(table, cfg, dt, exposure)
     for b in balls:
         _motion(b, cfg)
-        b.sigma = _noise_sigma(b, cfg)
+        b.sigma, b.sigma_fit = _noise_sigma(b, cfg)
     rough_cushions = {b.track: finder.rough_cushions(b) for b in balls}
     rough_collisions = finder.rough_collisions(balls)
     for b in balls:
@@ -819,7 +852,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f = _piecewise_fit(ts, ps, tg, b.sigma, step, cfg, weight=b.weights(ts))
+            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=b.weights(ts))
             if f is None or f.k < 6:
                 continue  # the rolling model was chosen: no slide seen
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
@@ -844,12 +877,16 @@ def _cushion_slide_ratio(finder: "_Finder") -> float | None:
     ``mu_s g``, it is measured once per clip: the median over the contacts whose slide spans at
     least ``slide_min_samples`` samples of ``mu_s g * slide / vn_in``. The short slides of slow
     balls, which their few samples hardly fix, then get it as a prior (``_Finder.cushion``).
+    With fewer than ``slide_ratio_min_contacts`` such slides the impact model's typical fraction
+    ``slide_ratio_prior`` stands in (None only while the cloth's ``mu_s g`` is unknown).
     """
     if finder.slide_decel is None:
         return None
     r = [finder.slide_decel * tk / vn for vn, tk, n in finder.slides
          if n >= finder.cfg.slide_min_samples and vn > 0]
-    return float(np.median(r)) if len(r) >= finder.cfg.slide_ratio_min_contacts else None
+    if len(r) < finder.cfg.slide_ratio_min_contacts:
+        return finder.cfg.slide_ratio_prior
+    return float(np.median(r))
 
 
 class _Finder:
@@ -876,8 +913,8 @@ class _Finder:
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
-        return (self._side(ta, pa, t_c, b.sigma, step, weight=b.weights(ta)),
-                self._side(td, pd_, t_c, b.sigma, step, self.slide_decel, b.weights(td)))
+        return (self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta)),
+                self._side(td, pd_, t_c, b.sigma_fit, step, self.slide_decel, b.weights(td)))
 
     def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
         """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``."""
@@ -961,8 +998,8 @@ class _Finder:
         wa, wd = b.weights(ta), b.weights(td)
 
         def fits(t: float):
-            fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin, weight=wa)
-            fd = _piecewise_fit(td, pd_, t, b.sigma, step, self.cfg, pin, self.slide_decel,
+            fa = _piecewise_fit(ta, pa, t, b.sigma_fit, step, self.cfg, pin, weight=wa)
+            fd = _piecewise_fit(td, pd_, t, b.sigma_fit, step, self.cfg, pin, self.slide_decel,
                                 slide_dir, slide_tk, weight=wd)
             if fa is None or fd is None:
                 return math.inf, fa, fd
