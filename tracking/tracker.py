@@ -61,6 +61,10 @@ Method
   row is dropped, so one-off false detections never make a track. A confirmed track coasts (rows
   with ``seen = 0``) while undetected and ends after ``coast_s`` without a detection; its coasted
   tail is dropped, and its end is classed ``pocket`` (last seen near a pocket mouth) or ``lifted``.
+* A confirmed track whose velocity restarts at more than ``max_break_share`` of its detections
+  (at least ``min_breaks`` times) is not a ball but a hand, arm or cue the detector took for
+  one: a ball's velocity changes only at contacts (Alciatore 2004: between them it decelerates
+  smoothly). Such tracks are left out of ``result`` and ``endings``.
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest while every established ball rests takes back
   the id of an ended (or unseen, coasting) track with the same identity labels, when exactly one
@@ -129,6 +133,13 @@ class TrackerConfig:
     ``label_min_quality``: below this detector quality a detection's cue/object label only costs
     ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
     balls merge or an edge blurs, and so does its labelling).
+    ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints at more
+    than this share of its detections, and at least ``min_breaks`` of them, is not a ball and is
+    left out of the result (``Tracker.result``): a ball's velocity changes only at contacts (a
+    strike, a cushion, another ball), a few per second at most, so nearly every detection of a
+    ball continues its motion (at most 7 % of a sample clip ball's detections are breakpoints,
+    birth and respots included), while a hand, arm or cue moved by a player changes course all
+    the time and restarts the filter at 40-80 % of its detections.
     """
 
     meas_sigma_mm: float = 2.0
@@ -150,6 +161,8 @@ class TrackerConfig:
     respot_rest_speed_mm_s: float = 150.0
     respot_settle_s: float = 1.0
     label_min_quality: float = 0.5
+    max_break_share: float = 0.25
+    min_breaks: int = 3
 
     def __post_init__(self) -> None:
         for name in ("meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
@@ -173,6 +186,10 @@ class TrackerConfig:
                              f"({self.confirm_window})")
         if not 0.0 <= self.label_min_quality <= 1.0:
             raise ValueError(f"label_min_quality {self.label_min_quality} must lie in [0, 1]")
+        if not 0.0 < self.max_break_share <= 1.0:
+            raise ValueError(f"max_break_share {self.max_break_share} must lie in (0, 1]")
+        if self.min_breaks < 1:
+            raise ValueError(f"min_breaks {self.min_breaks} must be >= 1")
         if self.tentative_max_misses < 1:
             raise ValueError(f"tentative_max_misses {self.tentative_max_misses} must be >= 1")
 
@@ -369,7 +386,7 @@ class Tracker:
             if not tr.confirmed:
                 continue
             tr.trim_unseen_tail()
-            if not tr.frames:
+            if not tr.frames or not self._moves_like_a_ball(tr):
                 continue
             xs = self._smooth(tr)
             n = len(tr.frames)
@@ -395,7 +412,8 @@ class Tracker:
         the last detection."""
         rows = [dict(track=tr.track_id, frame=tr.frames[-1], t=tr.times[-1], x=tr.xs[-1][0],
                      y=tr.xs[-1][2], reason=tr.ended)
-                for tr in self._tracks if tr.confirmed and tr.ended and tr.frames]
+                for tr in self._tracks if tr.confirmed and tr.ended and tr.frames
+                and self._moves_like_a_ball(tr)]
         cols = ["track", "frame", "t", "x", "y", "reason"]
         if not rows:
             return pd.DataFrame({c: pd.Series(dtype=d) for c, d in zip(
@@ -403,6 +421,14 @@ class Tracker:
         return pd.DataFrame(rows, columns=cols)
 
     # --- internals ----------------------------------------------------------------------------
+    def _moves_like_a_ball(self, tr: _Track) -> bool:
+        """False for a track whose velocity restarts at too many of its detections (more than
+        ``max_break_share`` of them and at least ``min_breaks``): no ball changes course so
+        often, a player's hand, arm or cue does (``TrackerConfig``)."""
+        n_seen = sum(tr.seen)
+        n_breaks = sum(1 for b, s in zip(tr.breaks, tr.seen) if b and s)
+        return n_breaks < self.config.min_breaks or n_breaks <= self.config.max_break_share * n_seen
+
     def _predict(self, tr: _Track, t: float) -> dict:
         """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}."""
         dt = t - tr.t_last
