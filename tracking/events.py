@@ -138,6 +138,9 @@ class EventConfig:
     that measure the clip's fraction. ``slide_ratio_prior``: that fraction where the clip has
     fewer well-seen slides (the middle of the model's 0.28-0.43; a clip of a few shots, whose
     slides after a cushion last only a few frames, would otherwise fit them unconstrained).
+    ``outlier_sigmas`` / ``outlier_max``: a sample a contact's side fit (or a slide's) leaves
+    more than this many noise sigmas off is struck, at most this many per fit
+    (``_Finder._robust_fit``).
     ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
     cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
     """
@@ -173,6 +176,8 @@ class EventConfig:
     slide_ratio_sigma: float = 0.05
     slide_ratio_min_contacts: int = 3
     slide_ratio_prior: float = 0.355
+    outlier_sigmas: float = 5.0
+    outlier_max: int = 2
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -852,7 +857,8 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=b.weights(ts))
+            f, ts, _, _, _ = finder._robust_fit(ts, ps, tg, b.sigma_fit, step,
+                                                weight=b.weights(ts))
             if f is None or f.k < 6:
                 continue  # the rolling model was chosen: no slide seen
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
@@ -907,14 +913,18 @@ class _Finder:
         return 2 if n >= self.cfg.quadratic_min_samples else 1
 
     def _side_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
-        """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi)."""
+        """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi). A detection the
+        chosen fit leaves far off (``_side``) is struck from ``b.raw`` for every later fit."""
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure) if exclude else None
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
-        return (self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta)),
-                self._side(td, pd_, t_c, b.sigma_fit, step, self.slide_decel, b.weights(td)))
+        fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta))
+        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, self.slide_decel, b.weights(td))
+        for t_bad in bad_a + bad_d:
+            b.raw[np.searchsorted(b.t, t_bad)] = np.nan
+        return fa, fd
 
     def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
         """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``."""
@@ -946,24 +956,58 @@ class _Finder:
             best = f
         return best
 
+    def _robust_fit(self, ts: np.ndarray, ps: np.ndarray, t0: float, sigma: float, step: float,
+                    slide_decel: float | None = None, weight: np.ndarray | None = None):
+        """``_piecewise_fit`` of samples ts (n,) s, ps (n, 2) mm with gross outliers struck.
+
+        A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance; for
+        Gaussian noise a chance of exp(-s^2 / 2), 4e-6 at 5; the noise ``sigma`` or the
+        residuals' robust scatter, whichever is larger) is not this ball's centre (a detection
+        pulled by the cushion's shadow or a hand next to the ball, which the detector need not
+        flag): the worst such sample is dropped and the samples refitted, at most
+        ``outlier_max`` times (common practice: iterative rejection of gross outliers before
+        least squares). Returns (fit or None, ts, ps, weight of the samples kept, times struck).
+        """
+        struck: list[float] = []
+        while True:
+            f = _piecewise_fit(ts, ps, t0, sigma, step, self.cfg, slide_decel=slide_decel,
+                               weight=weight)
+            if f is None or len(struck) >= self.cfg.outlier_max \
+                    or len(ts) <= self.cfg.quadratic_min_samples:
+                return f, ts, ps, weight, struck
+            res = np.hypot(*(ps - np.array([f.pos(t) for t in ts])).T)
+            j = int(np.argmax(res))
+            # The median 2-D residual of Gaussian noise is sigma sqrt(2 ln 2) = 1.177 sigma,
+            # and one outlier hardly moves it.
+            scale = max(sigma, float(np.median(res)) / 1.177)
+            if res[j] <= self.cfg.outlier_sigmas * scale:
+                return f, ts, ps, weight, struck
+            struck.append(float(ts[j]))
+            keep = np.arange(len(ts)) != j
+            ts, ps = ts[keep], ps[keep]
+            weight = None if weight is None else weight[keep]
+
     def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float,
               slide_decel: float | None = None, weight: np.ndarray | None = None):
-        """Piecewise (slide then roll) fit of one side's samples (``_piecewise_fit``). A path the
-        chosen model still cannot explain within the noise (chi-square test
-        ``RSS / sigma^2 > chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the
-        half of the window nearest the contact, at most twice."""
-        for _ in range(3):
-            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg, slide_decel=slide_decel,
-                               weight=weight)
-            if f is None or len(ts) < 2 * self.cfg.quadratic_min_samples:
-                return f
+        """Piecewise (slide then roll) fit of one side's samples with gross outliers struck
+        (``_robust_fit``); returns (fit, times of the samples struck). A path the chosen model
+        still cannot explain within the noise (chi-square test ``RSS / sigma^2 >
+        chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the half of the
+        window nearest the contact, at most twice."""
+        struck: list[float] = []
+        for halved in range(3):
+            f, ts, ps, weight, bad = self._robust_fit(ts, ps, t_c, sigma, step, slide_decel,
+                                                      weight)
+            struck += bad
+            if f is None or halved == 2 or len(ts) < 2 * self.cfg.quadratic_min_samples:
+                return f, struck
             dof = 2 * f.n - f.k
             if dof <= 0 or f.s2 * dof / max(sigma * sigma, 1e-12) <= chi2.ppf(0.9999, dof):
-                return f
+                return f, struck
             keep = np.abs(ts - t_c) <= np.median(np.abs(ts - t_c))
             ts, ps = ts[keep], ps[keep]
             weight = None if weight is None else weight[keep]
-        return f
+        return f, struck
 
     def _pinned_contact(self, b: _Ball, ax: int, c: float, t_c: float, lo: float, hi: float,
                         n_a: int, n_d: int, slide_dir: np.ndarray | None = None,
