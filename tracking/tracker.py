@@ -61,10 +61,11 @@ Method
   row is dropped, so one-off false detections never make a track. A confirmed track coasts (rows
   with ``seen = 0``) while undetected and ends after ``coast_s`` without a detection; its coasted
   tail is dropped, and its end is classed ``pocket`` (last seen near a pocket mouth) or ``lifted``.
-* A confirmed track whose velocity restarts at more than ``max_break_share`` of its detections
-  (at least ``min_breaks`` times) is not a ball but a hand, arm or cue the detector took for
-  one: a ball's velocity changes only at contacts (Alciatore 2004: between them it decelerates
-  smoothly). Such tracks are left out of ``result`` and ``endings``.
+* A confirmed track whose velocity restarts, away from the rails, at more than
+  ``max_break_share`` of its detections (at least ``min_breaks`` times) is not a ball but a
+  hand, arm or cue the detector took for one: a ball's velocity changes only at contacts
+  (Alciatore 2004: between them it decelerates smoothly). Such tracks are left out of
+  ``result`` and ``endings``.
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest while every established ball rests takes back
   the id of an ended (or unseen, coasting) track with the same identity labels, when exactly one
@@ -133,13 +134,14 @@ class TrackerConfig:
     ``label_min_quality``: below this detector quality a detection's cue/object label only costs
     ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
     balls merge or an edge blurs, and so does its labelling).
-    ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints at more
-    than this share of its detections, and at least ``min_breaks`` of them, is not a ball and is
-    left out of the result (``Tracker.result``): a ball's velocity changes only at contacts (a
-    strike, a cushion, another ball), a few per second at most, so nearly every detection of a
-    ball continues its motion (at most 7 % of a sample clip ball's detections are breakpoints,
-    birth and respots included), while a hand, arm or cue moved by a player changes course all
-    the time and restarts the filter at 40-80 % of its detections.
+    ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints away from
+    every rail at more than this share of its detections, and at least
+    ``min_breaks`` of them, is not a ball and is left out of the result (``Tracker.result``):
+    a ball's velocity changes only at contacts (a cue strike from rest, a cushion, another
+    ball), a few per shot, so nearly every detection of a ball continues its motion (at most
+    7 % of a sample clip ball's detections are breakpoints of any kind), while a hand, arm or
+    cue moved by a player changes course anywhere, all the time, and restarts the filter at
+    40-80 % of its detections.
     """
 
     meas_sigma_mm: float = 2.0
@@ -422,12 +424,29 @@ class Tracker:
 
     # --- internals ----------------------------------------------------------------------------
     def _moves_like_a_ball(self, tr: _Track) -> bool:
-        """False for a track whose velocity restarts at too many of its detections (more than
-        ``max_break_share`` of them and at least ``min_breaks``): no ball changes course so
-        often, a player's hand, arm or cue does (``TrackerConfig``)."""
+        """False for a track whose velocity restarts too often where nothing could have struck
+        a ball: more than ``max_break_share`` of its detections, and at least ``min_breaks``
+        times, away from every rail (a diameter plus two frames' travel from its reversal line)
+        and past the track's first three frames (whose velocity is still settling). No ball
+        changes course so; a player's hand, arm or cue does (``TrackerConfig``). Restarts at a
+        cue strike or next to another ball are counted too: a ball is struck or meets another a
+        few times a shot at most, far from a quarter of its detections."""
+        cfg = self.config
         n_seen = sum(tr.seen)
-        n_breaks = sum(1 for b, s in zip(tr.breaks, tr.seen) if b and s)
-        return n_breaks < self.config.min_breaks or n_breaks <= self.config.max_break_share * n_seen
+        lines = [(1 if rail in ("bottom", "top") else 0, self.table.reversal_line(rail))
+                 for rail in RAILS]
+        n_breaks = 0
+        for k in range(3, len(tr.frames)):
+            if not (tr.breaks[k] and tr.seen[k]):
+                continue
+            x_prev = tr.xs[k - 1]
+            v = float(np.hypot(x_prev[1], x_prev[3]))
+            p = tr.xs[k][[0, 2]]
+            reach = self.table.ball_diameter_mm + 2.0 * v * (tr.times[k] - tr.times[k - 1])
+            if any(abs(p[ax] - c) < reach for ax, c in lines):
+                continue
+            n_breaks += 1
+        return n_breaks < cfg.min_breaks or n_breaks <= cfg.max_break_share * n_seen
 
     def _predict(self, tr: _Track, t: float) -> dict:
         """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}."""
