@@ -423,15 +423,17 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
 
 # --- a cushion-check session from our own simulator -------------------------------------------
 def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_mm: float = 0.0,
-                     drift_s: tuple[float, float] = (0.45, 0.7)):
+                     drift_s: tuple[float, float] = (0.45, 0.7), outlier_mm: float = 0.0):
     """Room staff rolling the cue ball (struck 0.4 R above centre, so it rolls at once,
     Alciatore 2004) into the bottom and top cushions 12 times at 0.3-1.5 m/s normal speed and
     up to 30 degrees off square, catching it 0.45 s after the contact; simulated by
     ``analysis.physics`` (cushion impacts of Mathavan, Jackson & Parkin 2010). Detections as in
     ``benchmarks/event_accuracy.py`` (exposure-averaged centres) with ``noise_mm`` per axis
     moving, half that at rest; ``drift_mm``: amplitude per axis of a slowly drifting detection
-    bias added on top (two sinusoids of random phase and periods ``drift_s``). Returns (found
-    cushion events, the simulator's cushion events)."""
+    bias added on top (two sinusoids of random phase and periods ``drift_s``); ``outlier_mm``:
+    the detection two frames after every third contact moved this far along x (a gross error
+    the detector does not flag). Returns (found cushion events, the simulator's cushion
+    events)."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
@@ -460,9 +462,14 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
         for ax, col in enumerate(("x", "y")):
             det[col] += drift_mm / math.sqrt(2.0) * (np.sin(2 * math.pi * tt / drift_s[0] + ph[ax, 0])
                                                      + np.sin(2 * math.pi * tt / drift_s[1] + ph[ax, 1]))
-    ev, _ = find_events(track(det, TABLE), TABLE, det)
     truth = truth_events(TABLE, traj, t)
-    return _only(ev, "cushion"), truth[truth["kind"] == "cushion"].reset_index(drop=True)
+    truth = truth[truth["kind"] == "cushion"].reset_index(drop=True)
+    if outlier_mm:
+        for t_c in truth["t"].to_numpy()[::3]:
+            rows = det.index[det["frame"] == int(math.floor(t_c * fps)) + 2]
+            det.loc[rows[:1], "x"] += outlier_mm
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return _only(ev, "cushion"), truth
 
 
 def test_cushion_session_outgoing_measures():
@@ -580,29 +587,21 @@ def test_a_detection_flagged_as_poor_weighs_less_at_a_contact():
 
 
 def test_a_gross_outlier_the_detector_did_not_flag_is_struck():
-    # As above, but the detector gives the 10 mm-off detection the same sigma_mm as the others
-    # (a ball's image merged with the cushion's shadow can look like a good one). Left in, one
-    # sample two frames after the contact bends the short departure fit. A sample 5 noise sigmas
-    # off the fit is struck (common practice: rejecting gross outliers before least squares);
-    # the contact's measures then meet the issue's targets (speed 3 %, angle 1 degree,
-    # restitution 0.03, medians over 6 noise draws).
-    fps = 60.0
-    times = np.arange(int(1.0 * fps)) / fps
-    t_c = 0.5 + 0.45 / fps
-    speed, e = 900.0, 0.8
-    f, v_in, v_out = _bounce_case("right", 600.0, 25.0, speed, e, t_c, decel=0.01 * G)
+    # Two cushion sessions (rolled balls, 1 mm noise) in which the detection two frames after
+    # every third contact lies 10 mm off along the rail with the same sigma_mm as the others (a
+    # ball's image merged with a hand or the cushion's shadow can look like a good one). A
+    # sample 5 noise sigmas off a side's fit is struck (common practice: rejecting gross
+    # outliers before least squares). Over those contacts the departure meets the issue's
+    # targets (speed 3 %, angle 1 degree, restitution 0.03, medians; truth the simulator's).
+    # Measured: 2.4 %, 0.55 deg, 0.029; left in (before): 1.6 %, 3.8 deg, 0.030.
     errs = []
-    for seed in range(6):
-        det = detections({"a": f}, times, np.random.default_rng(seed), noise_mm=0.5)
-        k = int(np.searchsorted(times, t_c)) + 1  # the second frame after the contact
-        row = det.index[det["frame"] == k][0]
-        det.loc[row, "x"] -= 10.0
-        ev, _ = find_events(track(det, TABLE), TABLE, det)
-        cu = _only(ev, "cushion")
-        assert len(cu) == 1
-        _, a_out, _ = cushion_angles("right", v_in, v_out)
-        errs.append((abs(cu.loc[0, "speed_out"] / np.hypot(*v_out) - 1),
-                     abs(cu.loc[0, "angle_out"] - a_out), abs(cu.loc[0, "restitution"] - e)))
+    for seed in (1, 2):
+        found, truth = _cushion_session(seed, outlier_mm=10.0)
+        for _, tr in truth.iloc[::3].iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            errs.append((abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
     med = np.median(np.array(errs), axis=0)
     print("median |speed_out|, |angle_out|, |restitution|:", med)
     assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03

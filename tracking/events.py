@@ -138,9 +138,8 @@ class EventConfig:
     that measure the clip's fraction. ``slide_ratio_prior``: that fraction where the clip has
     fewer well-seen slides (the middle of the model's 0.28-0.43; a clip of a few shots, whose
     slides after a cushion last only a few frames, would otherwise fit them unconstrained).
-    ``outlier_sigmas`` / ``outlier_max``: a sample a contact's side fit (or a slide's) leaves
-    more than this many noise sigmas off is struck, at most this many per fit
-    (``_Finder._robust_fit``).
+    ``outlier_sigmas`` / ``outlier_max``: a sample a contact's side fit leaves more than this
+    many noise sigmas off is struck, at most this many per fit (``_Finder._robust_fit``).
     ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
     cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
     """
@@ -857,8 +856,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f, ts, _, _, _ = finder._robust_fit(ts, ps, tg, b.sigma_fit, step,
-                                                weight=b.weights(ts))
+            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=b.weights(ts))
             if f is None or f.k < 6:
                 continue  # the rolling model was chosen: no slide seen
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
@@ -966,7 +964,9 @@ class _Finder:
         pulled by the cushion's shadow or a hand next to the ball, which the detector need not
         flag): the worst such sample is dropped and the samples refitted, at most
         ``outlier_max`` times (common practice: iterative rejection of gross outliers before
-        least squares). Returns (fit or None, ts, ps, weight of the samples kept, times struck).
+        least squares). Not used for the cloth's ``mu_s g`` (``_cloth_slide_decel``): there,
+        striking samples let a hand's erratic path pass for a slide (measured on a rendered
+        session with hands over the table: ``mu_s g`` 3.6 instead of 2.1 m/s^2). Returns (fit or None, ts, ps, weight of the samples kept, times struck).
         """
         struck: list[float] = []
         while True:
