@@ -605,3 +605,33 @@ def test_a_gross_outlier_the_detector_did_not_flag_is_struck():
     med = np.median(np.array(errs), axis=0)
     print("median |speed_out|, |angle_out|, |restitution|:", med)
     assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03
+
+
+def test_two_tracks_ending_as_they_touch_make_no_collision():
+    # Two false tracks (a hand's knuckles, swept together over the middle of the table and
+    # lifted) close on each other, turn and both end in the first frame past the touch. Two balls
+    # cannot both leave the table at a mid-table touch (common practice), so no collision may be
+    # reported; a contact neither of whose paths goes on cannot be measured either.
+    fps = 60.0
+    times = np.arange(60) / fps
+    t_m = (400.0 - D) / 2400.0  # the centres are one diameter apart
+
+    # Swept together at 1.2 m/s each, then drawn apart at 0.3 m/s as the hand is lifted.
+    def fa(t):
+        t = np.asarray(t, float)
+        x = 700.0 + 1200.0 * np.minimum(t, t_m) - 300.0 * np.maximum(t - t_m, 0.0)
+        return np.stack([x, 600.0 + 0.0 * t], axis=1)
+
+    def fb(t):
+        t = np.asarray(t, float)
+        x = 1100.0 - 1200.0 * np.minimum(t, t_m) + 300.0 * np.maximum(t - t_m, 0.0)
+        return np.stack([x, 620.0 + 0.0 * t], axis=1)
+    k = int(np.ceil(t_m * fps))  # the first frame at or past the touch
+    n = 0
+    for seed in range(6):
+        det = detections({"a": fa, "b": fb}, times, np.random.default_rng(seed), noise_mm=0.5,
+                         present={"a": (0, k), "b": (0, k)},
+                         labels={"a": ("orange", "solid"), "b": ("maroon", "solid")})
+        ev, _ = find_events(track(det, TABLE), TABLE, det)
+        n += int((ev["kind"] == "collision").sum())
+    assert n == 0

@@ -1264,6 +1264,10 @@ class _Finder:
             fits = (fa_in, fa_out, fb_in, fb_out)
         if fits is None:
             return []
+        if fits[1] is None and fits[3] is None:
+            # Neither path goes on after the touch: two balls cannot both leave the table at a
+            # mid-table contact, so these are two false tracks (a hand's parts) ending together.
+            return []
         rows = []
         for me, other, fin, fout in ((a, b, fits[0], fits[1]), (b, a, fits[2], fits[3])):
             ps = [(f.pos(t_c), max(f.var(t_c), 1e-30)) for f in (fin, fout) if f is not None]
