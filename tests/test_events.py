@@ -422,13 +422,18 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
 
 
 # --- a cushion-check session from our own simulator -------------------------------------------
-def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0):
+def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_mm: float = 0.0,
+                     drift_s: tuple[float, float] = (0.45, 0.7), outlier_mm: float = 0.0):
     """Room staff rolling the cue ball (struck 0.4 R above centre, so it rolls at once,
     Alciatore 2004) into the bottom and top cushions 12 times at 0.3-1.5 m/s normal speed and
     up to 30 degrees off square, catching it 0.45 s after the contact; simulated by
     ``analysis.physics`` (cushion impacts of Mathavan, Jackson & Parkin 2010). Detections as in
     ``benchmarks/event_accuracy.py`` (exposure-averaged centres) with ``noise_mm`` per axis
-    moving, half that at rest. Returns (found cushion events, the simulator's cushion events)."""
+    moving, half that at rest; ``drift_mm``: amplitude per axis of a slowly drifting detection
+    bias added on top (two sinusoids of random phase and periods ``drift_s``); ``outlier_mm``:
+    the detection two frames after every third contact moved this far along x (a gross error
+    the detector does not flag). Returns (found cushion events, the simulator's cushion
+    events)."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
@@ -451,9 +456,20 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0):
     traj = sim.trajectory()
     det = detections(traj, t, fps, rng, rest_sigma_mm=0.5 * noise_mm, moving_sigma_mm=noise_mm,
                      drop=0.0)
-    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    if drift_mm:
+        ph = rng.uniform(0.0, 2.0 * math.pi, (2, 2))
+        tt = det["t"].to_numpy()
+        for ax, col in enumerate(("x", "y")):
+            det[col] += drift_mm / math.sqrt(2.0) * (np.sin(2 * math.pi * tt / drift_s[0] + ph[ax, 0])
+                                                     + np.sin(2 * math.pi * tt / drift_s[1] + ph[ax, 1]))
     truth = truth_events(TABLE, traj, t)
-    return _only(ev, "cushion"), truth[truth["kind"] == "cushion"].reset_index(drop=True)
+    truth = truth[truth["kind"] == "cushion"].reset_index(drop=True)
+    if outlier_mm:
+        for t_c in truth["t"].to_numpy()[::3]:
+            rows = det.index[det["frame"] == int(math.floor(t_c * fps)) + 2]
+            det.loc[rows[:1], "x"] += outlier_mm
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return _only(ev, "cushion"), truth
 
 
 def test_cushion_session_outgoing_measures():
@@ -479,6 +495,49 @@ def test_cushion_session_outgoing_measures():
     assert med[1] <= 0.03
     assert med[2] <= 1.0
     assert med[3] <= 0.03
+
+
+@pytest.fixture(scope="module")
+def drifting_contacts():
+    """Per contact |errors| (speed_in, angle_in, speed_out, angle_out, restitution) of two
+    cushion sessions whose detections carry a drifting bias (see the test below)."""
+    errs = []
+    for seed in (3, 4):
+        found, truth = _cushion_session(seed, noise_mm=0.15, drift_mm=1.0, drift_s=(0.15, 0.3))
+        assert len(found) == len(truth) >= 10
+        for _, tr in truth.iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            errs.append((abs(r["speed_in"] / tr["speed_in"] - 1),
+                         abs(r["angle_in"] - tr["angle_in"]),
+                         abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print("median |speed_in|, |angle_in|, |speed_out|, |angle_out|, |restitution|:", med)
+    return med
+
+
+def test_contacts_with_a_drifting_detection_bias(drifting_contacts):
+    # Real detections are off by a bias that drifts along the path (a blur streak's or a
+    # shadow's bias changing with position and speed; on the rendered sample clip cut_bank about
+    # 1 mm within a few frames), while neighbouring frames agree to a few tenths of a mm. Third
+    # differences of neighbouring samples see only that small white part, and contact fits
+    # judged against it fail their chi-square test and are cut short. Detections here: 0.15 mm
+    # white noise (what the detector states of itself) plus a drift of 0.7 mm rms per axis
+    # (periods 0.15 and 0.3 s). Targets are the issue's (speed 3 %, angle 1 degree, restitution
+    # 0.03, medians); the truth is the simulator's impact. Measured: speed_in 0.8 %, angle_in
+    # 0.68 deg, speed_out 1.8 %, restitution 0.020; with the white noise alone judging the fits
+    # (before): 2.3 %, 1.30 deg, 2.8 %, 0.048.
+    med = drifting_contacts
+    assert med[0] <= 0.03 and med[1] <= 1.0
+    assert med[2] <= 0.03
+    assert med[4] <= 0.03
+
+
+@pytest.mark.xfail(strict=True, reason="angle_out median 1.9 deg with a drifting bias: the few "
+                   "frames of the slide after the cushion fix its direction poorly; not yet solved")
+def test_departure_angle_with_a_drifting_detection_bias(drifting_contacts):
+    assert drifting_contacts[3] <= 1.0  # the issue's 1 degree
 
 
 def test_a_path_leaving_the_rail_faster_than_it_came_is_no_cushion_contact():
@@ -525,3 +584,54 @@ def test_a_detection_flagged_as_poor_weighs_less_at_a_contact():
     med = np.median(np.array(errs), axis=0)
     print("median |speed_out|, |angle_out|, |restitution|:", med)
     assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03
+
+
+def test_a_gross_outlier_the_detector_did_not_flag_is_struck():
+    # Two cushion sessions (rolled balls, 1 mm noise) in which the detection two frames after
+    # every third contact lies 10 mm off along the rail with the same sigma_mm as the others (a
+    # ball's image merged with a hand or the cushion's shadow can look like a good one). A
+    # sample 5 noise sigmas off a side's fit is struck (common practice: rejecting gross
+    # outliers before least squares). Over those contacts the departure meets the issue's
+    # targets (speed 3 %, angle 1 degree, restitution 0.03, medians; truth the simulator's).
+    # Measured: 2.4 %, 0.55 deg, 0.029; left in (before): 1.6 %, 3.8 deg, 0.030.
+    errs = []
+    for seed in (1, 2):
+        found, truth = _cushion_session(seed, outlier_mm=10.0)
+        for _, tr in truth.iloc[::3].iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            errs.append((abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print("median |speed_out|, |angle_out|, |restitution|:", med)
+    assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03
+
+
+def test_two_tracks_ending_as_they_touch_make_no_collision():
+    # Two false tracks (a hand's knuckles, swept together over the middle of the table and
+    # lifted) close on each other, turn and both end in the first frame past the touch. Two balls
+    # cannot both leave the table at a mid-table touch (common practice), so no collision may be
+    # reported; a contact neither of whose paths goes on cannot be measured either.
+    fps = 60.0
+    times = np.arange(60) / fps
+    t_m = (400.0 - D) / 2400.0  # the centres are one diameter apart
+
+    # Swept together at 1.2 m/s each, then drawn apart at 0.3 m/s as the hand is lifted.
+    def fa(t):
+        t = np.asarray(t, float)
+        x = 700.0 + 1200.0 * np.minimum(t, t_m) - 300.0 * np.maximum(t - t_m, 0.0)
+        return np.stack([x, 600.0 + 0.0 * t], axis=1)
+
+    def fb(t):
+        t = np.asarray(t, float)
+        x = 1100.0 - 1200.0 * np.minimum(t, t_m) + 300.0 * np.maximum(t - t_m, 0.0)
+        return np.stack([x, 620.0 + 0.0 * t], axis=1)
+    k = int(np.ceil(t_m * fps))  # the first frame at or past the touch
+    n = 0
+    for seed in range(6):
+        det = detections({"a": fa, "b": fb}, times, np.random.default_rng(seed), noise_mm=0.5,
+                         present={"a": (0, k), "b": (0, k)},
+                         labels={"a": ("orange", "solid"), "b": ("maroon", "solid")})
+        ev, _ = find_events(track(det, TABLE), TABLE, det)
+        n += int((ev["kind"] == "collision").sum())
+    assert n == 0

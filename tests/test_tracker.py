@@ -479,3 +479,45 @@ def test_coasting_false_track_does_not_take_over_a_bouncing_ball():
             mine = tr[(tr["track"] == ids["a"]) & (tr["seen"] == 1)]
             lost += len(times) - len(mine)
     assert lost == 0
+
+
+def test_a_hand_changing_course_every_few_frames_is_no_ball():
+    # A player's hand (two knuckles, 60 mm apart) moves over the cloth for a second beside a
+    # rolling ball, changing course all the time: its velocity jumps by about 600 mm/s per axis
+    # from frame to frame, which no ball does between contacts (a ball's velocity changes only at
+    # a strike, a cushion or another ball; between them it decelerates at mu_s g or mu_r g at
+    # most, Alciatore 2004). The detector keeps finding it (quality 0.4, above the tracker's
+    # birth threshold). Only the ball may come out as a track, and no collision between the
+    # knuckles (common practice: a collision needs two balls).
+    from tracking.events import find_events
+
+    fps = 60.0
+    dt = 1 / fps
+    times = np.arange(int(1.5 * fps)) * dt
+    ball = decel_path((500.0, 300.0), 20.0, 1200.0, 0.01 * G)
+    n_extra = 0
+    n_coll = 0
+    for seed in range(4):
+        rng = np.random.default_rng(seed)
+        det = detections({"a": ball}, times, rng, noise_mm=0.5,
+                         labels={"a": ("white", "cue")})
+        v = np.array([300.0, 150.0]) + rng.normal(0.0, 600.0, (len(times), 2))
+        hand = np.array([1300.0, 700.0]) + np.cumsum(v * dt, axis=0)
+        rows = []
+        for k in range(10, 70):
+            for off in ((0.0, 0.0), (55.0, 25.0)):
+                p = hand[k] + off + rng.normal(0.0, 1.0, 2)
+                rows.append(dict(frame=k, t=times[k], x=p[0], y=p[1], u=0.0, v=0.0, quality=0.4,
+                                 colour="orange", pattern="solid", blur_x=0.0, blur_y=0.0,
+                                 sigma_mm=0.4, truth="hand"))
+        det = pd.concat([det, pd.DataFrame(rows)], ignore_index=True).sort_values(
+            "frame", kind="stable").reset_index(drop=True)
+        tr = track(det, TABLE)
+        ev, _ = find_events(tr, TABLE, det)
+        n_extra += tr["track"].nunique() - 1
+        n_coll += int((ev["kind"] == "collision").sum())
+        # The ball itself is followed from its first frame to its last.
+        ids, errs = match_tracks(tr, {"a": ball}, times)
+        assert len(tr[tr["track"] == ids["a"]]) == len(times)
+    assert n_extra == 0
+    assert n_coll == 0

@@ -135,7 +135,11 @@ class EventConfig:
     ``slide_ratio_sigma``: sd of the prior on the fraction of its normal speed a ball arriving
     rolling loses sliding after a cushion (``_cushion_slide_ratio``; 0.28 to 0.43 in that model
     over normal speeds of 0.1 to 3.1 m/s arriving), and ``slide_ratio_min_contacts`` the fewest well-seen slides
-    that measure the clip's fraction.
+    that measure the clip's fraction. ``slide_ratio_prior``: that fraction where the clip has
+    fewer well-seen slides (the middle of the model's 0.28-0.43; a clip of a few shots, whose
+    slides after a cushion last only a few frames, would otherwise fit them unconstrained).
+    ``outlier_sigmas`` / ``outlier_max``: a sample a contact's side fit leaves more than this
+    many noise sigmas off is struck, at most this many per fit (``_Finder._robust_fit``).
     ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
     cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
     """
@@ -170,6 +174,9 @@ class EventConfig:
     slide_fit_s: float = 0.8
     slide_ratio_sigma: float = 0.05
     slide_ratio_min_contacts: int = 3
+    slide_ratio_prior: float = 0.355
+    outlier_sigmas: float = 5.0
+    outlier_max: int = 2
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -537,6 +544,7 @@ class _Ball:
     v: np.ndarray  # (N, 2) smoothed mm/s
     raw: np.ndarray  # (N, 2) raw measurement mm, NaN where unseen
     sigma: float = 1.0  # detection noise per axis, mm, estimated from the samples
+    sigma_fit: float = 1.0  # the same at the scale of a contact's fits (drift included), mm
     moves: list = field(default_factory=list)  # [(i0, i1)] index ranges, inclusive
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
@@ -663,12 +671,24 @@ def _respots(ball: _Ball, diameter_mm: float) -> list[float]:
     return [float(0.5 * (ball.t[i] + ball.t[i + 1])) for i in k]
 
 
-def _noise_sigma(ball: _Ball, cfg: EventConfig) -> float:
-    """Detection noise per axis (mm) from third differences of consecutive raw samples.
+def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
+    """Detection noise per axis (mm), (white, at the fits' scale).
 
-    A quadratic path has zero third difference, so for white noise of variance s^2 the third
-    difference has variance 20 s^2 (binomial weights 1, 3, 3, 1); the median absolute value is
-    0.674 of its standard deviation. Contacts spoil a few differences; the median ignores them.
+    *White*: from third differences of consecutive raw samples. A quadratic path has zero third
+    difference, so for white noise of variance s^2 the third difference has variance 20 s^2
+    (binomial weights 1, 3, 3, 1); the median absolute value is 0.674 of its standard deviation.
+    Contacts spoil a few differences; the median ignores them.
+
+    *At the fits' scale*: real detection errors also drift slowly along a path (a blur streak's
+    or a shadow's bias changing with position and speed), which third differences of
+    neighbouring frames cancel but a fit over ``fit_window_s`` does not. So the moving samples
+    are also cut into runs of ``2 quadratic_min_samples`` consecutive frames, each run fitted by
+    a quadratic per axis, and ``s^2 = RSS / (2 (W - 3))`` taken per run (unbiased for white
+    noise, so both estimates agree there); the median over at least three runs (a run holding a
+    contact or a slide's end is an outlier the median ignores), and never below the white one.
+    The cushion fits test their models against the second; the collision fits, grown sample by
+    sample from the contact to find where a parabola stops explaining the path
+    (``_Finder._grow``), against the first, since there the next frames matter, not the drift.
     """
     r = ball.raw
     ok = np.isfinite(r[:, 0])
@@ -678,8 +698,25 @@ def _noise_sigma(ball: _Ball, cfg: EventConfig) -> float:
         & consecutive[:-2]
     d3 = d3[good].ravel()
     if len(d3) < 10:
-        return cfg.meas_sigma_mm
-    return max(float(np.median(np.abs(d3))) / 0.6745 / math.sqrt(20.0), 0.05)
+        return cfg.meas_sigma_mm, cfg.meas_sigma_mm
+    white = max(float(np.median(np.abs(d3))) / 0.6745 / math.sqrt(20.0), 0.05)
+    w = 2 * cfg.quadratic_min_samples
+    s2 = []
+    for i0, i1 in ball.moves:
+        k = i0
+        while k + w <= i1 + 1:
+            sl = slice(k, k + w)
+            if ok[sl].all() and np.all(np.diff(ball.frame[sl]) == 1):
+                tau = ball.t[sl] - ball.t[k]
+                A = np.vander(tau, 3, increasing=True)
+                _, rss, *_ = np.linalg.lstsq(A, r[sl], rcond=None)
+                s2.append(float(np.sum(rss)) / (2 * (w - 3)))
+                k += w
+            else:
+                k += 1
+    if len(s2) < 3:
+        return white, white
+    return white, max(white, math.sqrt(float(np.median(s2))))
 
 
 # --- events ----------------------------------------------------------------------------------
@@ -713,7 +750,7 @@ def find_events(
     finder = _Finder(table, cfg, dt, exposure)
     for b in balls:
         _motion(b, cfg)
-        b.sigma = _noise_sigma(b, cfg)
+        b.sigma, b.sigma_fit = _noise_sigma(b, cfg)
     rough_cushions = {b.track: finder.rough_cushions(b) for b in balls}
     rough_collisions = finder.rough_collisions(balls)
     for b in balls:
@@ -819,7 +856,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f = _piecewise_fit(ts, ps, tg, b.sigma, step, cfg, weight=b.weights(ts))
+            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=b.weights(ts))
             if f is None or f.k < 6:
                 continue  # the rolling model was chosen: no slide seen
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
@@ -844,12 +881,16 @@ def _cushion_slide_ratio(finder: "_Finder") -> float | None:
     ``mu_s g``, it is measured once per clip: the median over the contacts whose slide spans at
     least ``slide_min_samples`` samples of ``mu_s g * slide / vn_in``. The short slides of slow
     balls, which their few samples hardly fix, then get it as a prior (``_Finder.cushion``).
+    With fewer than ``slide_ratio_min_contacts`` such slides the impact model's typical fraction
+    ``slide_ratio_prior`` stands in (None only while the cloth's ``mu_s g`` is unknown).
     """
     if finder.slide_decel is None:
         return None
     r = [finder.slide_decel * tk / vn for vn, tk, n in finder.slides
          if n >= finder.cfg.slide_min_samples and vn > 0]
-    return float(np.median(r)) if len(r) >= finder.cfg.slide_ratio_min_contacts else None
+    if len(r) < finder.cfg.slide_ratio_min_contacts:
+        return finder.cfg.slide_ratio_prior
+    return float(np.median(r))
 
 
 class _Finder:
@@ -870,14 +911,18 @@ class _Finder:
         return 2 if n >= self.cfg.quadratic_min_samples else 1
 
     def _side_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
-        """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi)."""
+        """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi). A detection the
+        chosen fit leaves far off (``_side``) is struck from ``b.raw`` for every later fit."""
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure) if exclude else None
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
-        return (self._side(ta, pa, t_c, b.sigma, step, weight=b.weights(ta)),
-                self._side(td, pd_, t_c, b.sigma, step, self.slide_decel, b.weights(td)))
+        fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta))
+        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, self.slide_decel, b.weights(td))
+        for t_bad in bad_a + bad_d:
+            b.raw[np.searchsorted(b.t, t_bad)] = np.nan
+        return fa, fd
 
     def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
         """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``."""
@@ -909,24 +954,60 @@ class _Finder:
             best = f
         return best
 
+    def _robust_fit(self, ts: np.ndarray, ps: np.ndarray, t0: float, sigma: float, step: float,
+                    slide_decel: float | None = None, weight: np.ndarray | None = None):
+        """``_piecewise_fit`` of samples ts (n,) s, ps (n, 2) mm with gross outliers struck.
+
+        A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance; for
+        Gaussian noise a chance of exp(-s^2 / 2), 4e-6 at 5; the noise ``sigma`` or the
+        residuals' robust scatter, whichever is larger) is not this ball's centre (a detection
+        pulled by the cushion's shadow or a hand next to the ball, which the detector need not
+        flag): the worst such sample is dropped and the samples refitted, at most
+        ``outlier_max`` times (common practice: iterative rejection of gross outliers before
+        least squares). Not used for the cloth's ``mu_s g`` (``_cloth_slide_decel``): there,
+        striking samples let a hand's erratic path pass for a slide (measured on a rendered
+        session with hands over the table: ``mu_s g`` 3.6 instead of 2.1 m/s^2). Returns (fit or None, ts, ps, weight of the samples kept, times struck).
+        """
+        struck: list[float] = []
+        while True:
+            f = _piecewise_fit(ts, ps, t0, sigma, step, self.cfg, slide_decel=slide_decel,
+                               weight=weight)
+            if f is None or len(struck) >= self.cfg.outlier_max \
+                    or len(ts) <= self.cfg.quadratic_min_samples:
+                return f, ts, ps, weight, struck
+            res = np.hypot(*(ps - np.array([f.pos(t) for t in ts])).T)
+            j = int(np.argmax(res))
+            # The median 2-D residual of Gaussian noise is sigma sqrt(2 ln 2) = 1.177 sigma,
+            # and one outlier hardly moves it.
+            scale = max(sigma, float(np.median(res)) / 1.177)
+            if res[j] <= self.cfg.outlier_sigmas * scale:
+                return f, ts, ps, weight, struck
+            struck.append(float(ts[j]))
+            keep = np.arange(len(ts)) != j
+            ts, ps = ts[keep], ps[keep]
+            weight = None if weight is None else weight[keep]
+
     def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float,
               slide_decel: float | None = None, weight: np.ndarray | None = None):
-        """Piecewise (slide then roll) fit of one side's samples (``_piecewise_fit``). A path the
-        chosen model still cannot explain within the noise (chi-square test
-        ``RSS / sigma^2 > chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the
-        half of the window nearest the contact, at most twice."""
-        for _ in range(3):
-            f = _piecewise_fit(ts, ps, t_c, sigma, step, self.cfg, slide_decel=slide_decel,
-                               weight=weight)
-            if f is None or len(ts) < 2 * self.cfg.quadratic_min_samples:
-                return f
+        """Piecewise (slide then roll) fit of one side's samples with gross outliers struck
+        (``_robust_fit``); returns (fit, times of the samples struck). A path the chosen model
+        still cannot explain within the noise (chi-square test ``RSS / sigma^2 >
+        chi2.ppf(0.9999, dof)``, e.g. an unmarked third piece) is refitted on the half of the
+        window nearest the contact, at most twice."""
+        struck: list[float] = []
+        for halved in range(3):
+            f, ts, ps, weight, bad = self._robust_fit(ts, ps, t_c, sigma, step, slide_decel,
+                                                      weight)
+            struck += bad
+            if f is None or halved == 2 or len(ts) < 2 * self.cfg.quadratic_min_samples:
+                return f, struck
             dof = 2 * f.n - f.k
             if dof <= 0 or f.s2 * dof / max(sigma * sigma, 1e-12) <= chi2.ppf(0.9999, dof):
-                return f
+                return f, struck
             keep = np.abs(ts - t_c) <= np.median(np.abs(ts - t_c))
             ts, ps = ts[keep], ps[keep]
             weight = None if weight is None else weight[keep]
-        return f
+        return f, struck
 
     def _pinned_contact(self, b: _Ball, ax: int, c: float, t_c: float, lo: float, hi: float,
                         n_a: int, n_d: int, slide_dir: np.ndarray | None = None,
@@ -961,8 +1042,8 @@ class _Finder:
         wa, wd = b.weights(ta), b.weights(td)
 
         def fits(t: float):
-            fa = _piecewise_fit(ta, pa, t, b.sigma, step, self.cfg, pin, weight=wa)
-            fd = _piecewise_fit(td, pd_, t, b.sigma, step, self.cfg, pin, self.slide_decel,
+            fa = _piecewise_fit(ta, pa, t, b.sigma_fit, step, self.cfg, pin, weight=wa)
+            fd = _piecewise_fit(td, pd_, t, b.sigma_fit, step, self.cfg, pin, self.slide_decel,
                                 slide_dir, slide_tk, weight=wd)
             if fa is None or fd is None:
                 return math.inf, fa, fd
@@ -1182,6 +1263,10 @@ class _Finder:
             t_c = float(np.sum(w * np.array([t for t, _ in sols])) / np.sum(w))
             fits = (fa_in, fa_out, fb_in, fb_out)
         if fits is None:
+            return []
+        if fits[1] is None and fits[3] is None:
+            # Neither path goes on after the touch: two balls cannot both leave the table at a
+            # mid-table contact, so these are two false tracks (a hand's parts) ending together.
             return []
         rows = []
         for me, other, fin, fout in ((a, b, fits[0], fits[1]), (b, a, fits[2], fits[3])):

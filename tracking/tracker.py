@@ -61,6 +61,11 @@ Method
   row is dropped, so one-off false detections never make a track. A confirmed track coasts (rows
   with ``seen = 0``) while undetected and ends after ``coast_s`` without a detection; its coasted
   tail is dropped, and its end is classed ``pocket`` (last seen near a pocket mouth) or ``lifted``.
+* A confirmed track whose velocity restarts, away from the rails, at more than
+  ``max_break_share`` of its detections (at least ``min_breaks`` times) is not a ball but a
+  hand, arm or cue the detector took for one: a ball's velocity changes only at contacts
+  (Alciatore 2004: between them it decelerates smoothly). Such tracks are left out of
+  ``result`` and ``endings``.
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest while every established ball rests takes back
   the id of an ended (or unseen, coasting) track with the same identity labels, when exactly one
@@ -129,6 +134,14 @@ class TrackerConfig:
     ``label_min_quality``: below this detector quality a detection's cue/object label only costs
     ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
     balls merge or an edge blurs, and so does its labelling).
+    ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints away from
+    every rail at more than this share of its detections, and at least
+    ``min_breaks`` of them, is not a ball and is left out of the result (``Tracker.result``):
+    a ball's velocity changes only at contacts (a cue strike from rest, a cushion, another
+    ball), a few per shot, so nearly every detection of a ball continues its motion (at most
+    7 % of a sample clip ball's detections are breakpoints of any kind), while a hand, arm or
+    cue moved by a player changes course anywhere, all the time, and restarts the filter at
+    40-80 % of its detections.
     """
 
     meas_sigma_mm: float = 2.0
@@ -150,6 +163,8 @@ class TrackerConfig:
     respot_rest_speed_mm_s: float = 150.0
     respot_settle_s: float = 1.0
     label_min_quality: float = 0.5
+    max_break_share: float = 0.25
+    min_breaks: int = 3
 
     def __post_init__(self) -> None:
         for name in ("meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
@@ -173,6 +188,10 @@ class TrackerConfig:
                              f"({self.confirm_window})")
         if not 0.0 <= self.label_min_quality <= 1.0:
             raise ValueError(f"label_min_quality {self.label_min_quality} must lie in [0, 1]")
+        if not 0.0 < self.max_break_share <= 1.0:
+            raise ValueError(f"max_break_share {self.max_break_share} must lie in (0, 1]")
+        if self.min_breaks < 1:
+            raise ValueError(f"min_breaks {self.min_breaks} must be >= 1")
         if self.tentative_max_misses < 1:
             raise ValueError(f"tentative_max_misses {self.tentative_max_misses} must be >= 1")
 
@@ -369,7 +388,7 @@ class Tracker:
             if not tr.confirmed:
                 continue
             tr.trim_unseen_tail()
-            if not tr.frames:
+            if not tr.frames or not self._moves_like_a_ball(tr):
                 continue
             xs = self._smooth(tr)
             n = len(tr.frames)
@@ -395,7 +414,8 @@ class Tracker:
         the last detection."""
         rows = [dict(track=tr.track_id, frame=tr.frames[-1], t=tr.times[-1], x=tr.xs[-1][0],
                      y=tr.xs[-1][2], reason=tr.ended)
-                for tr in self._tracks if tr.confirmed and tr.ended and tr.frames]
+                for tr in self._tracks if tr.confirmed and tr.ended and tr.frames
+                and self._moves_like_a_ball(tr)]
         cols = ["track", "frame", "t", "x", "y", "reason"]
         if not rows:
             return pd.DataFrame({c: pd.Series(dtype=d) for c, d in zip(
@@ -403,6 +423,31 @@ class Tracker:
         return pd.DataFrame(rows, columns=cols)
 
     # --- internals ----------------------------------------------------------------------------
+    def _moves_like_a_ball(self, tr: _Track) -> bool:
+        """False for a track whose velocity restarts too often where nothing could have struck
+        a ball: more than ``max_break_share`` of its detections, and at least ``min_breaks``
+        times, away from every rail (a diameter plus two frames' travel from its reversal line)
+        and past the track's first three frames (whose velocity is still settling). No ball
+        changes course so; a player's hand, arm or cue does (``TrackerConfig``). Restarts at a
+        cue strike or next to another ball are counted too: a ball is struck or meets another a
+        few times a shot at most, far from a quarter of its detections."""
+        cfg = self.config
+        n_seen = sum(tr.seen)
+        lines = [(1 if rail in ("bottom", "top") else 0, self.table.reversal_line(rail))
+                 for rail in RAILS]
+        n_breaks = 0
+        for k in range(3, len(tr.frames)):
+            if not (tr.breaks[k] and tr.seen[k]):
+                continue
+            x_prev = tr.xs[k - 1]
+            v = float(np.hypot(x_prev[1], x_prev[3]))
+            p = tr.xs[k][[0, 2]]
+            reach = self.table.ball_diameter_mm + 2.0 * v * (tr.times[k] - tr.times[k - 1])
+            if any(abs(p[ax] - c) < reach for ax, c in lines):
+                continue
+            n_breaks += 1
+        return n_breaks < cfg.min_breaks or n_breaks <= cfg.max_break_share * n_seen
+
     def _predict(self, tr: _Track, t: float) -> dict:
         """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}."""
         dt = t - tr.t_last
