@@ -477,6 +477,17 @@ def test_tilted_view_determines_height():
     assert q["height_determined"] and q["camera_height_sd_mm"] < 0.05 * cam.centre_mm[2]
 
 
+def _ball_errors(table, true_cam, got_cam):
+    """(120,) distances (mm) of a 15 x 8 grid of ball centres (height R) imaged by the true
+    camera and back-projected by the recovered one, from where they are."""
+    flip = _flip_if_needed(table, true_cam, got_cam)
+    R = table.radius_mm
+    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 15), np.linspace(R, table.width_mm - R, 8))
+    balls = np.column_stack([gx.ravel(), gy.ravel()])
+    back = _to_truth(table, got_cam.backproject(true_cam.project(np.column_stack([balls, np.full(len(balls), R)])), R)[:, :2], flip)
+    return np.linalg.norm(back - balls, axis=1)
+
+
 @pytest.mark.parametrize("name", list(CASES))
 def test_stated_uncertainty_covers_the_truth(rendered, calibrated, name):
     # The renderer's true camera against the calibration's own statement of its uncertainty: the
@@ -488,12 +499,7 @@ def test_stated_uncertainty_covers_the_truth(rendered, calibrated, name):
     cal = calibrated[name]
     q = cal.quality
     assert abs(q["camera_height_mm"] - cam.centre_mm[2]) <= 3 * q["camera_height_sd_mm"]
-    flip = _flip_if_needed(table, cam, cal.camera)
-    R = table.radius_mm
-    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 15), np.linspace(R, table.width_mm - R, 8))
-    balls = np.column_stack([gx.ravel(), gy.ravel()])
-    back = _to_truth(table, cal.camera.backproject(cam.project(np.column_stack([balls, np.full(len(balls), R)])), R)[:, :2], flip)
-    assert np.max(np.linalg.norm(back - balls, axis=1)) <= 3 * q["ball_position_sd_mm"]
+    assert np.max(_ball_errors(table, cam, cal.camera)) <= 3 * q["ball_position_sd_mm"]
     assert q["height_determined"] == (name == "grey8")
 
 
@@ -520,12 +526,7 @@ def test_square_on_view_calibrates_within_its_stated_uncertainty(square_on):
     q = cal.quality
     assert q["height_from"] == "typical" and not q["height_determined"]
     assert abs(q["camera_height_mm"] - cam.centre_mm[2]) <= 3 * q["camera_height_sd_mm"]
-    flip = _flip_if_needed(table, cam, cal.camera)
-    R = table.radius_mm
-    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 15), np.linspace(R, table.width_mm - R, 8))
-    balls = np.column_stack([gx.ravel(), gy.ravel()])
-    back = _to_truth(table, cal.camera.backproject(cam.project(np.column_stack([balls, np.full(len(balls), R)])), R)[:, :2], flip)
-    err = np.linalg.norm(back - balls, axis=1)
+    err = _ball_errors(table, cam, cal.camera)
     assert err.max() <= 3 * q["ball_position_sd_mm"] and err.max() <= 2.0
     # The check image's banner and the command's summary say so (shared words).
     from vision.calibrate import height_words
@@ -576,12 +577,7 @@ def test_stated_uncertainty_covers_the_truth_after_h264(square_on, tmp_path):
     frames = [f for _, _, f in iter_frames(clip)]
     cal = calibrate(frames[-1], table, CalibConfig())
     q = cal.quality
-    flip = _flip_if_needed(table, cam, cal.camera)
-    R = table.radius_mm
-    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 15), np.linspace(R, table.width_mm - R, 8))
-    balls = np.column_stack([gx.ravel(), gy.ravel()])
-    back = _to_truth(table, cal.camera.backproject(cam.project(np.column_stack([balls, np.full(len(balls), R)])), R)[:, :2], flip)
-    assert np.max(np.linalg.norm(back - balls, axis=1)) <= 3 * q["ball_position_sd_mm"]
+    assert np.max(_ball_errors(table, cam, cal.camera)) <= 3 * q["ball_position_sd_mm"]
     h = table.nose_height_mm
     for nf in cal.noses:
         X = cam.backproject(nf.points_px, h)

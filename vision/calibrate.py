@@ -1337,6 +1337,21 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
                 w_v, w_t = 1.0 / sd_v**2, 1.0 / sd_t**2
                 hp = HeightPrior.typical((w_v * h_v + w_t * h_t) / (w_v + w_t), math.sqrt(1.0 / (w_v + w_t)))
                 view_height = [h_v, float(view["camera_height_sd_mm"])]
+                # The lens stays as the view measured it in pixel units (k1 / f^2, k2 / f^4, what
+                # the plumb lines fix): free, k1 and k2 would bend to absorb the perspective of a
+                # height that is not the view's own (0.34 px of distortion residual on a
+                # rendered view pinned 20 % off).
+                cam_v = cam_of(x)
+                f_v = float(cam_v.K[0, 0])
+                kap = (float(cam_v.dist[0]) / f_v**2, float(cam_v.dist[1]) / f_v**4)
+                free_lens = cam_of
+
+                def cam_of(p):  # noqa: F811 - the same parameter vector, lens tied to f
+                    q = p.copy()
+                    f_p = math.exp(q[0])
+                    q[1], q[2] = kap[0] * f_p**2, kap[1] * f_p**4
+                    return free_lens(q)
+
                 x = solve(x, sights_px, sights_mm)
     cam = cam_of(x)
     fits = []
