@@ -15,13 +15,19 @@ figures measure detection, tracking and events, not automatic calibration) into
 * pockets: truth, results, matched; stops: precision (spurious stops lower it);
 * seconds spent in tracking and in event finding (the vision stage is timed as a whole).
 
+``--auto-calibration`` lets ``analyse`` calibrate each clip automatically from its own frames
+instead (what footage from another camera gets), so the figures include the calibration's
+errors; compare them with a default run. The calibration's focal length, camera height (and
+where it came from: the view, or a typical mount height for a square-on view) and stated
+ball-position sd are printed beside the scores.
+
 ``--reuse DIR`` skips the vision stage: it re-runs tracking and events on ``DIR/NAME/
 detections.csv`` written by an earlier run (same clip, same calibration), which is how the
 tracking and event stages are compared before and after a change while the detector stays
 fixed.
 
 Run: ``.venv/bin/python benchmarks/analyse_accuracy.py [--out DIR] [--clips NAME ...]
-[--reuse DIR] [--json FILE]``. Targets (issue "Follow every ball and time every contact") are
+[--auto-calibration] [--reuse DIR] [--json FILE]``. Targets (issue "Follow every ball and time every contact") are
 printed beside the figures.
 """
 
@@ -64,8 +70,9 @@ def clips(names: list[str] | None) -> list[str]:
     return names
 
 
-def run_clip(name: str, out: Path, reuse: Path | None) -> dict:
-    """Analyse one clip into ``out`` (replaced if present); seconds per stage."""
+def run_clip(name: str, out: Path, reuse: Path | None, auto: bool = False) -> dict:
+    """Analyse one clip into ``out`` (replaced if present), with the truth calibration or
+    (``auto``) automatic calibration; seconds per stage."""
     truth = SAMPLES / f"{name}.truth"
     calib = truth / "calibration.json"
     table, _, calib_doc = read_calibration(calib)
@@ -75,7 +82,7 @@ def run_clip(name: str, out: Path, reuse: Path | None) -> dict:
     if reuse is None:
         t0 = time.perf_counter()
         analyse_clip(SAMPLES / f"{name}.mp4", out,
-                     AnalyseConfig(table=table, calibration_path=calib))
+                     AnalyseConfig(table=table) if auto else AnalyseConfig(table=table, calibration_path=calib))
         timing["analyse_s"] = time.perf_counter() - t0
         det = pd.read_csv(out / "detections.csv", dtype={"colour": str, "pattern": str})
     else:
@@ -92,6 +99,31 @@ def run_clip(name: str, out: Path, reuse: Path | None) -> dict:
         write_results(out, tr, ev, sh, calib_doc, overwrite=True,
                       run_info={"reused_detections": str(reuse / name)})
     return timing
+
+
+def calibration_figures(results: Path, truth: Path) -> dict:
+    """The automatic calibration beside the truth: focal length (px), camera height (mm, and
+    where it came from), the stated ball-position sd (mm) and the largest ball-centre map error
+    (mm) over an 11 x 6 grid of ball centres (height R) imaged by the true camera and
+    back-projected by the found one."""
+    import numpy as np
+
+    table, got, doc = read_calibration(results / "calibration.json")
+    _, true, _ = read_calibration(truth / "calibration.json")
+    q = doc.get("quality", {})
+    R = table.radius_mm
+    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 11), np.linspace(R, table.width_mm - R, 6))
+    P = np.column_stack([gx.ravel(), gy.ravel(), np.full(gx.size, R)])
+    back = got.backproject(true.project(P), R)[:, :2]
+    # The found origin may sit at the opposite corner (both right-handed); take the match.
+    err = min((np.linalg.norm(b - P[:, :2], axis=1) for b in (back, [table.length_mm, table.width_mm] - back)),
+              key=lambda e: float(np.median(e)))
+    return {
+        "calib focal px (true)": f"{got.K[0, 0]:.0f} ({true.K[0, 0]:.0f})",
+        "calib height mm (true)": f"{got.centre_mm[2]:.0f} ({true.centre_mm[2]:.0f}) from {q.get('height_from', '?')}",
+        "calib ball sd mm (stated)": q.get("ball_position_sd_mm"),
+        "calib ball map max mm": float(err.max()),
+    }
 
 
 def key_figures(s: dict) -> dict:
@@ -132,6 +164,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--clips", nargs="+", default=None, help="sample clip names (default all)")
     ap.add_argument("--reuse", type=Path, default=None,
                     help="re-run tracking and events on DIR/NAME/detections.csv")
+    ap.add_argument("--auto-calibration", action="store_true",
+                    help="calibrate each clip automatically instead of using its truth calibration")
     ap.add_argument("--json", type=Path, default=None, help="also write the figures as JSON")
     args = ap.parse_args(argv)
     names = clips(args.clips)
@@ -144,8 +178,10 @@ def main(argv: list[str] | None = None) -> int:
     table = {}
     try:
         for name in names:
-            timing = run_clip(name, out_root / name, args.reuse)
+            timing = run_clip(name, out_root / name, args.reuse, args.auto_calibration)
             figs = key_figures(score(out_root / name, SAMPLES / f"{name}.truth"))
+            if args.auto_calibration:
+                figs.update(calibration_figures(out_root / name, SAMPLES / f"{name}.truth"))
             figs.update({k: round(v, 1) for k, v in timing.items()})
             table[name] = figs
             print(f"{name}: done ({', '.join(f'{k} {v:.1f}' for k, v in timing.items())})",

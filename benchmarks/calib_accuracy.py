@@ -20,7 +20,9 @@ Per case it renders the static scene (``Renderer.background()`` plus sensor nois
   cloth-plane mapping of the true camera would make of them: ``naive``);
 * ``H sd``, ``ball sd``, ``det``: what the calibration itself says of its camera height (1 sd,
   mm), of ball positions (1 sd, worst over the table, mm) and whether the view determines the
-  height (``vision.calibrate._uncertainty``); ``H/sd``: the true height error in those sds.
+  height (``vision.calibrate._uncertainty``); ``H/sd``: the true height error in those sds;
+  ``from``: where the height came from (``view``; ``typi``cal mount height combined with the
+  view's, for a square-on view; ``give``n).
 
 ``--clips`` also films two short clips with balls, the cue and arms (one with a camera bump) and
 calibrates them from the video file, once automatically and once given the true camera height
@@ -263,13 +265,14 @@ def _stated(q: dict, true: Camera) -> dict:
     """The calibration's own uncertainty statement and the true height error in its sds."""
     sd = q["camera_height_sd_mm"]
     return {"height_sd_mm": sd, "ball_sd_mm": q["ball_position_sd_mm"], "height_determined": q["height_determined"],
+            "height_from": q.get("height_from", "view"),
             "height_err_in_sd": (q["camera_height_mm"] - float(true.centre_mm[2])) / sd if sd > 0 else float("nan")}
 
 
 def _row(name: str, m: dict, naive: str) -> str:
     return (f"{name:32s} {m['corner_mm']:6.2f} {m['nose_mm']:6.2f} {m['dist_rms_px']:5.3f}/{m['dist_max_px']:5.3f} {m['reproj_max_px']:6.2f} "
             f"{m['f_err_pct']:+6.1f} {m['k1']:+6.3f}/{m['k1_true']:+6.3f} {m['cam_mm']:7.1f} {m['parallax_max_mm']:8.2f} {naive:>6s} "
-            f"{m['height_sd_mm']:6.0f} {m['height_err_in_sd']:+5.1f} {m['ball_sd_mm']:7.2f} {'yes' if m['height_determined'] else 'no':>3s} {m['seconds']:5.1f}")
+            f"{m['height_sd_mm']:6.0f} {m['height_err_in_sd']:+5.1f} {m['ball_sd_mm']:7.2f} {'yes' if m['height_determined'] else 'no':>3s} {m['height_from'][:4]:>4s} {m['seconds']:5.1f}")
 
 
 def main(argv=None) -> int:
@@ -281,7 +284,7 @@ def main(argv=None) -> int:
     args = ap.parse_args(argv)
     rows = []
     hdr = (f"{'case':32s} {'corner':>6s} {'nose':>6s} {'dist rms/max':>12s} {'reproj':>6s} {'f %':>6s} {'k1 got/true':>13s} "
-           f"{'cam mm':>7s} {'parallax':>8s} {'naive':>6s} {'H sd':>6s} {'H/sd':>5s} {'ball sd':>7s} {'det':>3s} {'s':>5s}")
+           f"{'cam mm':>7s} {'parallax':>8s} {'naive':>6s} {'H sd':>6s} {'H/sd':>5s} {'ball sd':>7s} {'det':>3s} {'from':>4s} {'s':>5s}")
     print(hdr)
     for i, case in enumerate(cases(args.quick)):
         img, cam = render_background(case, seed=100 + i)

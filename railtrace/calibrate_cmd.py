@@ -14,7 +14,7 @@ from pathlib import Path
 
 from vision.atomic import write_image_atomic
 from vision.calibfile import calibration_dict, write_calibration
-from vision.calibrate import CalibConfig, CalibrationError, calibrate
+from vision.calibrate import CalibConfig, CalibrationError, calibrate, height_words
 from vision.table import parse_table
 
 
@@ -84,10 +84,8 @@ def run(args: argparse.Namespace) -> int:
     write_calibration(out, doc)
     q = cal.quality
     bumps = f", camera moved {len(cal.camera_changes) - 1} time(s)" if len(cal.camera_changes) > 1 else ""
-    height = (f"height {q['camera_height_mm']:.0f} +- {q['camera_height_sd_mm']:.0f} mm" if q["height_determined"] else
-              f"height not determined by this view ({q['camera_height_mm']:.0f} +- {q['camera_height_sd_mm']:.0f} mm; give --camera-height)")
     print(f"wrote {out} and {check}: noses rms {q['nose_rms_px']:.2f} px, {q['sights_found']} sights, "
-          f"f {q['focal_px']:.0f} px, k1 {q['k1']:+.3f}, {height}, ball positions +- {q['ball_position_sd_mm']:.1f} mm (1 sd){bumps}")
+          f"f {q['focal_px']:.0f} px, k1 {q['k1']:+.3f}; {height_words(q)}{bumps}")
     return 0
 
 

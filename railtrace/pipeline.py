@@ -97,6 +97,9 @@ class AnalyseSummary:
         """A short human summary."""
         q = self.calibration_quality
         quality = f"noses rms {q['nose_rms_px']:.2f} px" if "nose_rms_px" in q else "from file"
+        if q.get("height_from") == "typical":
+            quality += (f", square-on view: typical camera height assumed, ball positions "
+                        f"+- {q['ball_position_sd_mm']:.1f} mm (1 sd)")
         return (
             f"{self.frames} frames ({self.duration_s:.1f} s) in {self.seconds:.1f} s: "
             f"{self.balls} balls, {self.shots} shots, {self.cushions} cushion contacts, "

@@ -477,6 +477,17 @@ def test_tilted_view_determines_height():
     assert q["height_determined"] and q["camera_height_sd_mm"] < 0.05 * cam.centre_mm[2]
 
 
+def _ball_errors(table, true_cam, got_cam):
+    """(120,) distances (mm) of a 15 x 8 grid of ball centres (height R) imaged by the true
+    camera and back-projected by the recovered one, from where they are."""
+    flip = _flip_if_needed(table, true_cam, got_cam)
+    R = table.radius_mm
+    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 15), np.linspace(R, table.width_mm - R, 8))
+    balls = np.column_stack([gx.ravel(), gy.ravel()])
+    back = _to_truth(table, got_cam.backproject(true_cam.project(np.column_stack([balls, np.full(len(balls), R)])), R)[:, :2], flip)
+    return np.linalg.norm(back - balls, axis=1)
+
+
 @pytest.mark.parametrize("name", list(CASES))
 def test_stated_uncertainty_covers_the_truth(rendered, calibrated, name):
     # The renderer's true camera against the calibration's own statement of its uncertainty: the
@@ -488,10 +499,89 @@ def test_stated_uncertainty_covers_the_truth(rendered, calibrated, name):
     cal = calibrated[name]
     q = cal.quality
     assert abs(q["camera_height_mm"] - cam.centre_mm[2]) <= 3 * q["camera_height_sd_mm"]
-    flip = _flip_if_needed(table, cam, cal.camera)
-    R = table.radius_mm
-    gx, gy = np.meshgrid(np.linspace(R, table.length_mm - R, 15), np.linspace(R, table.width_mm - R, 8))
-    balls = np.column_stack([gx.ravel(), gy.ravel()])
-    back = _to_truth(table, cal.camera.backproject(cam.project(np.column_stack([balls, np.full(len(balls), R)])), R)[:, :2], flip)
-    assert np.max(np.linalg.norm(back - balls, axis=1)) <= 3 * q["ball_position_sd_mm"]
+    assert np.max(_ball_errors(table, cam, cal.camera)) <= 3 * q["ball_position_sd_mm"]
     assert q["height_determined"] == (name == "grey8")
+
+
+@pytest.fixture(scope="module")
+def square_on():
+    # Straight down over the table's centre (no offset, no tilt): the picture fixes only focal
+    # length over distance. 2900 mm is well away from the typical mount height (2500 mm), so a
+    # prior that dragged the ball positions off would show.
+    table = NINE_FOOT
+    cam = Camera.overhead(table, 2900, (960, 540), dist=(-0.10, 0.01, 0, 0, 0))
+    look = Look(cloth_bgr=(150, 95, 30), cushion_bgr=(128, 80, 26), noise_sigma=2.0, texture_seed=5)
+    img = _render(table, cam, look, seed=11)
+    return table, cam, img, calibrate(img, table, CalibConfig())
+
+
+def test_square_on_view_calibrates_within_its_stated_uncertainty(square_on):
+    # Renderer truth: a square-on view is calibrated (not refused), says that its height is not
+    # determined by the view and that a typical mount height was assumed, and every ball centre
+    # (height R) imaged by the true camera and back-projected by the recovered one lands within 3
+    # stated sds (3-sigma bound, common practice) and within the issue's 2 mm; the true height
+    # lies within 3 stated sds of the recovered one.
+    table, cam, _, cal = square_on
+    assert abs(cam.R[2, 2] + 1) < 1e-9
+    q = cal.quality
+    assert q["height_from"] == "typical" and not q["height_determined"]
+    assert abs(q["camera_height_mm"] - cam.centre_mm[2]) <= 3 * q["camera_height_sd_mm"]
+    err = _ball_errors(table, cam, cal.camera)
+    assert err.max() <= 3 * q["ball_position_sd_mm"] and err.max() <= 2.0
+    # The check image's banner and the command's summary say so (shared words).
+    from vision.calibrate import height_words
+
+    assert "typical mount height" in height_words(q)
+
+
+def test_typical_height_combines_by_inverse_variance(square_on):
+    # Product of two Gaussians (common practice): the view's height h_v +- s_v and the typical
+    # mount's h_t +- s_t combine to (h_v/s_v^2 + h_t/s_t^2) / (1/s_v^2 + 1/s_t^2) with sd
+    # (1/s_v^2 + 1/s_t^2)^-1/2; the pinned fit must land there and state that sd within 15 %.
+    q = square_on[3].quality
+    (hv, sv), (ht, st) = q["height_view_mm"], q["height_typical_mm"]
+    w = 1 / sv**2 + 1 / st**2
+    assert abs(q["camera_height_mm"] - (hv / sv**2 + ht / st**2) / w) < 5.0
+    assert abs(q["camera_height_sd_mm"] * math.sqrt(w) - 1) < 0.15
+
+
+def test_square_on_refused_beyond_the_ball_position_limit(square_on):
+    # The refusal follows the stated limit on ball positions, not the view's geometry: the same
+    # view is refused (with its check image) when that limit is set below what it achieves.
+    table, _, img, cal = square_on
+    q = cal.quality
+    with pytest.raises(CalibrationError, match="ball positions would be uncertain") as exc:
+        calibrate(img, table, CalibConfig(max_ball_position_sd_mm=0.5 * q["ball_position_sd_mm"]))
+    assert exc.value.check_image is not None
+
+
+def test_height_source_follows_the_view(calibrated):
+    # The tilted "grey8" view determines its height from the picture; the near-overhead "green9"
+    # cannot and takes the typical mount height (Zhang 2000: a fronto-parallel plane does not fix
+    # the focal length).
+    assert calibrated["grey8"].quality["height_from"] == "view"
+    assert calibrated["green9"].quality["height_from"] == "typical"
+
+
+def test_stated_uncertainty_covers_the_truth_after_h264(square_on, tmp_path):
+    # Compression moves the located noses by a few tenths of a pixel, differently per side (the
+    # sample clips, crf 26: up to 0.4-0.5 px), which is what CalibConfig.nose_bias_sd_px counts.
+    # The same square-on still through H.264 (crf 28, coarser than the samples) must still be
+    # calibrated with every ball centre within 3 stated sds of the renderer's truth (3-sigma
+    # bound, common practice) and each side's nose points within 3 nose-bias sds on median.
+    from vision.video import iter_frames
+
+    table, cam, img, _ = square_on
+    clip = tmp_path / "still.mp4"
+    write_video(clip, [img] * 4, 30, codec="h264", quality=28)
+    frames = [f for _, _, f in iter_frames(clip)]
+    cal = calibrate(frames[-1], table, CalibConfig())
+    q = cal.quality
+    assert np.max(_ball_errors(table, cam, cal.camera)) <= 3 * q["ball_position_sd_mm"]
+    h = table.nose_height_mm
+    for nf in cal.noses:
+        X = cam.backproject(nf.points_px, h)
+        offs = np.stack([-X[:, 1], X[:, 0] - table.length_mm, X[:, 1] - table.width_mm, -X[:, 0]])
+        k = int(np.argmin(np.abs(np.median(offs, axis=1))))  # the true rail these points lie on
+        depth = (X @ cam.R.T + cam.tvec)[:, 2]
+        assert abs(np.median(offs[k] * cam.K[0, 0] / depth)) <= 3 * CalibConfig().nose_bias_sd_px

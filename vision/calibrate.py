@@ -50,6 +50,15 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    and of ball positions; a view that does not fix the height to ``max_height_sd_rel`` is
    reported as such (``quality["height_determined"]``, the check image's banner) instead of
    passing a focal length it cannot know for a measured one.
+8. **Square-on views** (height not determined, none given): the view's height and its standard
+   deviation are combined with a typical mount height (``CalibConfig.typical_height_mm`` +-
+   ``typical_height_sd_mm``) by inverse-variance weighting and the fit is pinned there
+   (``quality["height_from"] = "typical"``, with ``height_view_mm`` and ``height_typical_mm``);
+   the stated ball-position sd counts that height's uncertainty, and the calibration is refused
+   only when that sd exceeds ``max_ball_position_sd_mm``. The noses (height h) anchor the
+   picture's scale, so a ball centre (height R) ``d`` from the nadir moves by about
+   ``(h - R) d |1/H1 - 1/H2|`` between camera heights H1 and H2 (pinhole projection; 0.6 mm for
+   2.1 vs 2.5 m at 1 m), and a wide prior costs little.
 
 The resulting camera maps a ball centre (height R) to the cloth point below it by
 ``camera.backproject(uv, table.radius_mm)``, the results format's ball position.
@@ -131,10 +140,17 @@ class CalibConfig:
       ``nose_height_sd_mm`` and ``sight_setback_sd_mm`` (each uniform within its WPA tolerance,
       references.md: +-3.2 mm, 35.7-36.9 mm, +-3.2 mm, so the half-range over sqrt 3),
       ``rail_top_sd_mm`` of the sights' height above the nose (from memory: a few mm, so half the
-      model's 8 mm), ``nose_bias_sd_px`` (a per-side bias of the nose locator; our tests hold it
-      to 0.15 px on rendered views);
+      model's 8 mm), ``nose_bias_sd_px`` (a bias of the nose locator per side: our tests hold it
+      to 0.15 px on uncompressed rendered views, but on the H.264 sample clips (crf 26) the four
+      sides' median offsets from the truth reach 0.4-0.5 px, varying side to side, so 0.3 px);
       ``max_height_sd_rel``: the camera height counts as determined by the view when its
       standard deviation is at most this fraction of it;
+    * a view that does not determine the height and no ``camera_height_mm``: the fit then takes
+      ``typical_height_mm`` +- ``typical_height_sd_mm`` (1 sd) as a prior on the lens's height
+      above the cloth (from memory: cameras hung from a ceiling or a lamp boom over a table whose
+      bed is about 0.76 m above the floor sit roughly 1.5-3.5 m above the cloth), counted in the
+      stated uncertainty; ``max_ball_position_sd_mm``: the calibration is refused when the
+      resulting ball-position standard deviation (worst over the table) exceeds it;
     * bumps: ``detect_bumps``, ``bump_every_s``, ``bump_threshold_px`` (full-resolution motion of
       the table's outline), ``bump_persist`` samples, ``bump_quarter_share`` (share of the
       image's four quarters the motion must align better than no motion, see
@@ -161,8 +177,11 @@ class CalibConfig:
     nose_height_sd_mm: float = 0.35
     rail_top_sd_mm: float = 4.0
     sight_setback_sd_mm: float = 1.85
-    nose_bias_sd_px: float = 0.15
+    nose_bias_sd_px: float = 0.3
     max_height_sd_rel: float = 0.05
+    typical_height_mm: float = 2500.0
+    typical_height_sd_mm: float = 500.0
+    max_ball_position_sd_mm: float = 4.0
     detect_bumps: bool = True
     bump_every_s: float = 0.1
     bump_threshold_px: float = 1.5
@@ -182,6 +201,8 @@ class CalibConfig:
             raise ValueError(f"profiles_per_side {self.profiles_per_side} is too few; use at least 12")
         if self.max_still_frames < 1 or self.min_still_frames < 1:
             raise ValueError("max_still_frames and min_still_frames must be at least 1")
+        if not (300.0 <= self.typical_height_mm <= 10000.0 and self.typical_height_sd_mm > 0):
+            raise ValueError(f"typical camera height {self.typical_height_mm!r} +- {self.typical_height_sd_mm!r} mm must lie in 300..10000 mm with a positive sd")
 
 
 @dataclass(frozen=True)
@@ -946,7 +967,47 @@ def _nose_offsets_mm(cam: Camera, pts: np.ndarray, rail: str, table: TableSpec) 
     return off, cam.K[0, 0] / depth
 
 
-def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior):
+@dataclass(frozen=True)
+class HeightPrior:
+    """What the fit knows of the camera's height (lens above the cloth, mm) beyond the picture:
+    one more residual ``(H - mean_mm) / scale_mm`` whose standard deviation is
+    ``sd_mm / scale_mm`` (the fit's residuals are px of nose position, so ``scale_mm`` sets how
+    many mm of height count as one px; a Gaussian prior in a least-squares fit, Hartley &
+    Zisserman, Multiple View Geometry, 2nd ed., sec. A6.4). ``source`` says where it came from:
+    ``given`` (``camera_height_mm``) or ``typical`` (``typical_height_mm``, a square-on view
+    that does not determine the height)."""
+
+    mean_mm: float
+    sd_mm: float
+    scale_mm: float
+    source: str
+
+    @classmethod
+    def given(cls, height_mm: float, config: "CalibConfig") -> "HeightPrior":
+        # A measured height pins the fit hard (5 mm per px); its stated sd stays the tape's.
+        return cls(float(height_mm), config.camera_height_sd_mm, 5.0, "given")
+
+    @classmethod
+    def typical(cls, mean_mm: float, sd_mm: float) -> "HeightPrior":
+        # The view's height combined with a typical mount's: pinned like a given height.
+        return cls(float(mean_mm), float(sd_mm), 5.0, "typical")
+
+    def residual(self, cam: Camera) -> float:
+        return (float(cam.centre_mm[2]) - self.mean_mm) / self.scale_mm
+
+    @property
+    def noise(self) -> float:
+        return self.sd_mm / self.scale_mm
+
+
+def _as_prior(height_prior, config: "CalibConfig") -> HeightPrior | None:
+    """A :class:`HeightPrior` from a prior, a given height (mm) or None."""
+    if height_prior is None or isinstance(height_prior, HeightPrior):
+        return height_prior
+    return HeightPrior.given(float(height_prior), config)
+
+
+def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior: HeightPrior | None):
     cam = cam_of(params)
     out = []
     for rail, pts in noses:
@@ -957,7 +1018,7 @@ def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight,
         pr = cam.project(sights_mm)
         out.append(((pr - sights_px) * sight_weight).ravel())
     if height_prior is not None:
-        out.append(np.array([(cam.centre_mm[2] - height_prior) / 5.0]))
+        out.append(np.array([height_prior.residual(cam)]))
     r = np.concatenate(out)
     return np.where(np.isfinite(r), r, 1e3)
 
@@ -973,7 +1034,7 @@ def _table_varied(table: TableSpec, d_mm: np.ndarray) -> TableSpec:
 
 
 def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm: np.ndarray, table: TableSpec,
-                 sight_w: float, height_prior: float | None, config: CalibConfig) -> dict[str, Any]:
+                 sight_w: float, height_prior: "HeightPrior | float | None", config: CalibConfig) -> dict[str, Any]:
     """How well the fitted camera is determined: standard deviations of the camera's height above
     the cloth (mm), of its focal length (%) and of ball positions (mm, the largest over the table).
 
@@ -990,7 +1051,8 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     plus one per side, each ``nose_bias_sd_px / sqrt 2``), with the standard deviations of
     :class:`CalibConfig`. A shared bias matters most: it changes the size of the nose rectangle
     against the sights, which is where a square-on view's sense of distance comes from. A given
-    ``camera_height_mm`` enters as one more residual with ``camera_height_sd_mm``.
+    ``camera_height_mm`` enters as one more residual with ``camera_height_sd_mm``; so does a
+    typical mount height (:class:`HeightPrior`, a float meaning a given height).
 
     Seen square-on, a plane does not separate the focal length from the camera's distance
     (Zhang, IEEE TPAMI 22(11), 2000): only the sights' few mm above the noses and the view's tilt
@@ -1000,6 +1062,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     (root of the trace of each ball's 2x2 covariance, worst over a 9 x 5 grid of ball centres),
     ``height_determined`` (sd at most ``max_height_sd_rel`` of the height).
     """
+    height_prior = _as_prior(height_prior, config)
     all_sights = [xy for _, _, xy in table.sights()]
     sight_idx = np.array([int(np.argmin([math.hypot(s[0] - a, s[1] - b) for a, b in all_sights])) for s in sights_mm[:, :2]], int)
 
@@ -1015,7 +1078,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
         if len(sights_px):
             out.append(((cam.project(smm) - sights_px) * sight_w).ravel())
         if height_prior is not None:
-            out.append(np.array([(cam.centre_mm[2] - height_prior) / 5.0]))  # as in _residuals
+            out.append(np.array([height_prior.residual(cam)]))  # as in _residuals
         return np.concatenate(out)
 
     def jac(fun, v, steps):
@@ -1049,7 +1112,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
         sd_s = max(0.1, 1.4826 * float(np.median(np.abs(rs - np.median(rs))))) if len(rs) >= 8 else 0.5
         noise.append(np.full(2 * len(sights_px), sd_s * sight_w))
     if height_prior is not None:
-        noise.append(np.array([config.camera_height_sd_mm / 5.0]))
+        noise.append(np.array([height_prior.noise]))
     noise = np.concatenate(noise)
     sd_nu = np.array([config.table_size_sd_mm] * 2 + [config.nose_height_sd_mm, config.rail_top_sd_mm, config.sight_setback_sd_mm]
                      + [config.nose_bias_sd_px / math.sqrt(2)] * 5)
@@ -1216,7 +1279,8 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
         def cam_of(p):
             return _camera(p, size, intrinsics)
 
-    hp = config.camera_height_mm
+    hp = _as_prior(config.camera_height_mm, config)
+    view_height = None  # [mm, sd mm] the view alone gives, where a typical height was added
 
     def solve(x_start, sights_px, sights_mm, loss="soft_l1"):
         r = optimize.least_squares(
@@ -1258,6 +1322,37 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
             cleaned.append((rail, pts[np.abs(rpx) < max(4 * mad, 0.5)]))
         noses = cleaned
         x = solve(x, sights_px, sights_mm)
+        if hp is None and intrinsics is None:
+            view = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, None, config)
+            if not view["height_determined"]:
+                # Square-on, the picture fixes only focal length over distance, and the height it
+                # favours follows the small biases of the noses and sights (2.2 m for a true 2.6 m
+                # on a sample clip) more than their scatter, so a prior inside the fit would be
+                # outweighed by hundreds of nose points that share one bias. Instead the view's
+                # height and its full sd (biases and table tolerances counted) are combined with
+                # a typical mount height by inverse-variance weighting (the product of two
+                # Gaussians), and the fit is pinned there.
+                h_v, sd_v = float(cam_of(x).centre_mm[2]), max(view["camera_height_sd_mm"], 1e-6)
+                h_t, sd_t = config.typical_height_mm, config.typical_height_sd_mm
+                w_v, w_t = 1.0 / sd_v**2, 1.0 / sd_t**2
+                hp = HeightPrior.typical((w_v * h_v + w_t * h_t) / (w_v + w_t), math.sqrt(1.0 / (w_v + w_t)))
+                view_height = [h_v, float(view["camera_height_sd_mm"])]
+                # The lens stays as the view measured it in pixel units (k1 / f^2, k2 / f^4, what
+                # the plumb lines fix): free, k1 and k2 would bend to absorb the perspective of a
+                # height that is not the view's own (0.34 px of distortion residual on a
+                # rendered view pinned 20 % off).
+                cam_v = cam_of(x)
+                f_v = float(cam_v.K[0, 0])
+                kap = (float(cam_v.dist[0]) / f_v**2, float(cam_v.dist[1]) / f_v**4)
+                free_lens = cam_of
+
+                def cam_of(p):  # noqa: F811 - the same parameter vector, lens tied to f
+                    q = p.copy()
+                    f_p = math.exp(q[0])
+                    q[1], q[2] = kap[0] * f_p**2, kap[1] * f_p**4
+                    return free_lens(q)
+
+                x = solve(x, sights_px, sights_mm)
     cam = cam_of(x)
     fits = []
     all_res = []
@@ -1291,6 +1386,10 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
         "camera_height_mm": float(cam.centre_mm[2]),
         "camera_centre_mm": cam.centre_mm.tolist(),
         **unc,
+        # Where the height comes from: the picture itself, the height given, or a typical mount.
+        "height_from": "view" if hp is None else hp.source,
+        "height_typical_mm": [config.typical_height_mm, config.typical_height_sd_mm] if view_height is not None else None,
+        "height_view_mm": view_height,
     }
     corners = cam.project(np.column_stack([obj, np.full(4, table.nose_height_mm)]))
     return _Fit(cam, tuple(fits), sights_px, sights_mm[:, :2] if len(sights_mm) else np.zeros((0, 2)), quality, origin, corners)
@@ -1378,9 +1477,22 @@ def check_image(bg: np.ndarray, cam: Camera | None, table: TableSpec, fit: _Fit 
 
 
 def _height_line(q: dict) -> str:
-    """The check image's words on how well the view fixes the camera's distance (quality of
-    :func:`_uncertainty`)."""
+    """The check image's words on how well the view fixes the camera's distance."""
+    return height_words(q)
+
+
+def height_words(q: dict) -> str:
+    """One line on where the camera's height comes from and what it leaves of ball positions,
+    from a :class:`Calibration`'s ``quality`` (:func:`_uncertainty`, ``height_from``): for the
+    check image and the command's summary."""
     h, sd, ball = q["camera_height_mm"], q["camera_height_sd_mm"], q["ball_position_sd_mm"]
+    if q.get("height_from") == "typical":
+        (ht, st), (hv, sv) = q["height_typical_mm"], q["height_view_mm"]
+        return (f"camera height NOT determined by this view (too square-on: {hv:.0f} +- {sv:.0f} mm); "
+                f"with a typical mount height {ht:.0f} +- {st:.0f} mm assumed: {h:.0f} +- {sd:.0f} mm; ball positions "
+                f"+- {ball:.1f} mm (1 sd) from the calibration; give --camera-height to pin it")
+    if q.get("height_from") == "given":
+        return f"camera height given: {h:.0f} +- {sd:.0f} mm; ball positions +- {ball:.1f} mm (1 sd) from the calibration"
     if q["height_determined"]:
         return f"camera height {h:.0f} +- {sd:.0f} mm; ball positions +- {ball:.1f} mm (1 sd) from the calibration"
     return (f"camera height NOT determined by this view ({h:.0f} +- {sd:.0f} mm, too square-on); ball positions "
@@ -1429,6 +1541,10 @@ def _verdict_problems(fit: _Fit, table: TableSpec, config: CalibConfig, size: tu
     if q["sight_rms_px"] is not None and q["sight_rms_px"] > config.max_sight_rms_px:
         return (f"the rail sights disagree with the cushions (rms {q['sight_rms_px']:.2f} px > {config.max_sight_rms_px} px); "
                 "check --table and --ball, or calibrate from a clip with the rails clear")
+    if q["ball_position_sd_mm"] > config.max_ball_position_sd_mm:
+        return (f"ball positions would be uncertain by +- {q['ball_position_sd_mm']:.1f} mm (1 sd) > "
+                f"{config.max_ball_position_sd_mm:.1f} mm from this view; give --camera-height (lens above the cloth) "
+                "or --corners, or film with the table larger in the picture")
     lo, hi = config.hfov_deg_range
     if not lo <= q["hfov_deg"] <= hi:
         return f"implausible field of view {q['hfov_deg']:.1f} deg (focal {q['focal_px']:.0f} px); give --camera-height to pin it"
