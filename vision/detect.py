@@ -57,9 +57,7 @@ Method
    outline, only the ramp of its shading into its shadow; its outline is the inner flank of
    the dark ring round it instead (the limb darkened by Lambert's law meeting the cloth the
    ball shades, :func:`_dark_ring`), and the coarse fit stands for it (step 6 has no colour
-   step to place either). Its disc counts as filled (the test of the last step of the fit)
-   when it is shaded like a lit sphere, a bright crown over a darker ring
-   (:func:`_shaded_share`).
+   step to place either).
 5. *Sphere fit*: each outline point is a ray (``Camera.rays``) that must graze the ball: its
    distance from the ball centre (R above the cloth) equals R (a ray tangent to a sphere). For a
    blurred ball the centre sweeps a segment during the exposure and the outline is that of the
@@ -515,30 +513,6 @@ def _dark_ring(a: np.ndarray, rho: np.ndarray, rho_pred: np.ndarray, half_win: f
     inside = np.where(np.arange(n)[None, :] < first[:, None], sm, -np.inf).max(axis=1)
     ok = np.isfinite(low) & (low < 0.92) & (inside > low + 0.1) & (first > 0)
     return rho[rows, first], ok
-
-
-def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.ndarray) -> float:
-    """Share of a disc's pixels that differ from the empty table when the disc is shaded like a
-    lit sphere, else 0: ``I``, ``B`` (N, 3) the frame and the empty table at the disc's pixels,
-    ``r2`` (N,) their squared distance from the centre over the squared disc radius (0.7 of the
-    ball's image radius), ``stands_out`` (N,) bool their colour test (:func:`ballness`).
-
-    A ball of the cloth's own colour differs from the cloth by its shading only (Lambert's
-    cosine law: brightest toward the lamps, falling toward the limb, plus the specular
-    highlight), while a cast shadow or a ghost of a cue in the model is flat or dim: the
-    brightness ratio ``a = I.B / B.B`` (Horprasert et al. 1999) must reach 1.1 somewhere (a
-    crown or highlight brighter than the lit cloth, which no shadow is) and the inner 0.45 of
-    the disc must be brighter than its outer ring (0.6..1) by 0.15 on average. Then a pixel
-    counts when its colour stands out or its brightness is off the cloth's by 10 % (from
-    memory: twice the cloth's texture and more than a noise sigma; not a measured figure).
-    """
-    a = np.einsum("nc,nc->n", I.astype(np.float32), B) / np.maximum(np.einsum("nc,nc->n", B, B), 1.0)
-    core, ring = r2 <= 0.45**2, r2 >= 0.6**2
-    if not core.any() or not ring.any():
-        return 0.0
-    if np.percentile(a, 95) < 1.1 or a[core].mean() - a[ring].mean() < 0.15:
-        return 0.0
-    return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
 
 
 def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
@@ -1351,14 +1325,8 @@ class BallDetector:
         inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
         if not inside.any():
             return 0.0
-        I = img[v0:v1, u0:u1][inside]
-        B = self.background.image[v0:v1, u0:u1][inside]
-        out = ballness(I, B) > self._score_thr
-        share = float(np.mean(out))
-        if share < 0.6:
-            r2 = ((xx - uv[0]) ** 2 + (yy - uv[1]) ** 2)[inside] / (r * r)
-            share = max(share, _shaded_share(I, B, r2, out))
-        return share
+        score = ballness(img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside])
+        return float(np.mean(score > self._score_thr))
 
     def _same_hue(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """Whether the ball whose centre's image is near ``uv`` (px) is of the cloth's own hue
