@@ -494,6 +494,19 @@ SAME_HUE = {
 }
 
 
+@pytest.fixture(scope="module")
+def same_hue():
+    """Detections of the balls of the cloth's own hue, per look, rendered once per module."""
+    done = {}
+
+    def run(name):
+        if name not in done:
+            done[name] = _same_hue_detections(name)
+        return done[name]
+
+    return run
+
+
 def _same_hue_detections(name):
     s = SAME_HUE[name]
     look = Look(cloth_bgr=s["cloth"], cushion_bgr=tuple(int(0.85 * c) for c in s["cloth"]), noise_sigma=2.5, **s["look"])
@@ -506,8 +519,8 @@ def _same_hue_detections(name):
 
 
 @pytest.mark.parametrize("name", ["red_three_lamps", "red_one_lamp_hard"])
-def test_balls_of_the_cloths_hue_are_found_and_placed(name):
-    det = _same_hue_detections(name)
+def test_balls_of_the_cloths_hue_are_found_and_placed(same_hue, name):
+    det = same_hue(name)
     err, j = _match(det, SAME_HUE_AT)
     # Issue acceptance: every visible ball found, each by its own detection, nothing else; resting
     # balls median centre error <= 1 mm, p95 <= 2.5 mm.
@@ -516,10 +529,11 @@ def test_balls_of_the_cloths_hue_are_found_and_placed(name):
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (name, err)
 
 
-@pytest.mark.xfail(strict=True, reason="a blue ball on blue cloth of nearly its albedo stands out from the cloth only at its highlight, too small a piece to seed a ball; most such balls are not seeded")
-def test_blue_balls_on_blue_cloth_are_found_and_placed():
-    det = _same_hue_detections("blue_three_lamps")
+@pytest.mark.xfail(strict=True, reason="a blue ball on blue cloth of nearly its albedo, right under a lamp, matches the cloth's brightness over half its disc and fails the fit's filled-disc test (4 of the 6 are found)")
+def test_blue_balls_on_blue_cloth_are_found_and_placed(same_hue):
+    det = same_hue("blue_three_lamps")
     err, _ = _match(det, SAME_HUE_AT)
     # Issue acceptance, as above.
     assert np.all(np.isfinite(err)), err
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, err
+

@@ -57,7 +57,11 @@ Method
    outline, only the ramp of its shading into its shadow; its outline is the inner flank of
    the dark ring round it instead (the limb darkened by Lambert's law meeting the cloth the
    ball shades, :func:`_dark_ring`), and the coarse fit stands for it (step 6 has no colour
-   step to place either).
+   step to place either). Such a ball passes the colour test only at its crown and highlight,
+   too small a piece to seed a ball: small bright pieces seed it (:meth:`BallDetector._crown_seeds`),
+   kept only when the fitted ball is of the cloth's hue, and its disc counts as filled (the
+   fit's last test) when it is shaded like a lit sphere, a bright crown over a darker ring
+   (:func:`_shaded_share`).
 5. *Sphere fit*: each outline point is a ray (``Camera.rays``) that must graze the ball: its
    distance from the ball centre (R above the cloth) equals R (a ray tangent to a sphere). For a
    blurred ball the centre sweeps a segment during the exposure and the outline is that of the
@@ -515,6 +519,30 @@ def _dark_ring(a: np.ndarray, rho: np.ndarray, rho_pred: np.ndarray, half_win: f
     return rho[rows, first], ok
 
 
+def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.ndarray) -> float:
+    """Share of a disc's pixels that differ from the empty table when the disc is shaded like a
+    lit sphere, else 0: ``I``, ``B`` (N, 3) the frame and the empty table at the disc's pixels,
+    ``r2`` (N,) their squared distance from the centre over the squared disc radius (0.7 of the
+    ball's image radius), ``stands_out`` (N,) bool their colour test (:func:`ballness`).
+
+    A ball of the cloth's own colour differs from the cloth by its shading only (Lambert's
+    cosine law: brightest toward the lamps, falling toward the limb, plus the specular
+    highlight), while a cast shadow or a ghost of a cue in the model is flat or dim: the
+    brightness ratio ``a = I.B / B.B`` (Horprasert et al. 1999) must reach 1.1 somewhere (a
+    crown or highlight brighter than the lit cloth, which no shadow is) and the inner 0.45 of
+    the disc must be brighter than its outer ring (0.6..1) by 0.15 on average. Then a pixel
+    counts when its colour stands out or its brightness is off the cloth's by 10 % (from
+    memory: twice the cloth's texture and more than a noise sigma; not a measured figure).
+    """
+    a = np.einsum("nc,nc->n", I.astype(np.float32), B) / np.maximum(np.einsum("nc,nc->n", B, B), 1.0)
+    core, ring = r2 <= 0.45**2, r2 >= 0.6**2
+    if not core.any() or not ring.any():
+        return 0.0
+    if np.percentile(a, 95) < 1.1 or a[core].mean() - a[ring].mean() < 0.15:
+        return 0.0
+    return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
+
+
 def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
     """(h, w) uint8 0/1 mask with its holes (background regions, 4-connected, that do not
     reach the mask's edge) of at most ``max_area`` px filled."""
@@ -772,10 +800,12 @@ class BallDetector:
         edge = self._zone_edge[v0:v1, u0:u1]
         h, w = img.shape[:2]
         seeds = []
+        small = []
         area_min = math.pi * self.r_min_px**2
         for i in range(1, n):
             a = stats[i, cv2.CC_STAT_AREA]
             if a < 0.3 * area_min:
+                small.append(i)
                 continue
             bx, by, bw, bh = stats[i, :4]
             comp = (lab[by : by + bh, bx : bx + bw] == i).astype(np.uint8)
@@ -811,7 +841,54 @@ class BallDetector:
                 break
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
+        crowns = self._crown_seeds(img, box, lab, stats, small, fits)
+        seeds += crowns
+        fits += [self._fit_crown(img, s) for s in crowns]
         return self._refit_touching(img, seeds, fits)
+
+    def _crown_seeds(self, img: np.ndarray, box, lab: np.ndarray, stats: np.ndarray, small: list[int], fits: list[dict | None]) -> list[dict]:
+        """Seeds (as :meth:`_seeds_of`) for balls of the cloth's own hue and brightness: the
+        components of ``box`` (``lab`` and ``stats`` of :meth:`_components`) too small to be a
+        ball (indices ``small``) but of at least 3 % of the smallest ball's image area, brighter
+        than the empty table on average (brightness ratio above 1.15, :func:`ballness`'s
+        brightness term) and farther than a ball's image diameter from every fitted ball
+        (``fits``) and from each other. Such a ball passes the colour test only at its crown and
+        specular highlight (Blinn-Phong: toward the lamps, within about half a radius of the
+        centre's image for lamps above the table), so its piece of foreground is small; the fit
+        searches from there (:meth:`_fit_crown`)."""
+        if not small:
+            return []
+        u0, v0 = box[0], box[1]
+        area_min = math.pi * self.r_min_px**2
+        done = np.array([[r["u"], r["v"]] for r in fits if r is not None]).reshape(-1, 2)
+        out: list[dict] = []
+        for i in small:
+            if stats[i, cv2.CC_STAT_AREA] < 0.03 * area_min:
+                continue
+            bx, by, bw, bh = stats[i, :4]
+            ys, xs = np.nonzero(lab[by : by + bh, bx : bx + bw] == i)
+            us, vs = xs + bx + u0, ys + by + v0
+            I = img[vs, us].astype(np.float32)
+            B = self.background.image[vs, us]
+            if np.mean(_dot3(I, B) / np.maximum(_dot3(B, B), 1.0)) < 1.15:
+                continue
+            uv = np.array([us.mean(), vs.mean()])
+            if len(done) and np.min(np.hypot(done[:, 0] - uv[0], done[:, 1] - uv[1])) < self.ball_px:
+                continue
+            if any(np.hypot(*(uv - q["uv"])) < self.ball_px for q in out):
+                continue
+            out.append({"uv": uv, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False})
+        return out
+
+    def _fit_crown(self, img: np.ndarray, s: dict) -> dict | None:
+        """:meth:`_fit_one` of a crown seed (:meth:`_crown_seeds`), kept only when the fitted
+        ball is of the cloth's own hue and brightness (:meth:`_same_hue`): a ball of any other
+        colour stands out as a whole piece and was seeded so, and a highlight on a hand, a cue or
+        a rail is no such ball."""
+        r = self._fit_one(img, s)
+        if r is None or not self._same_hue(img, np.array([r["u"], r["v"]])):
+            return None
+        return r
 
     def _fit_one(self, img: np.ndarray, s: dict) -> dict | None:
         """:meth:`_fit_seed` with the fallbacks: a second try without the shadow test, and the
@@ -1325,8 +1402,14 @@ class BallDetector:
         inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
         if not inside.any():
             return 0.0
-        score = ballness(img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside])
-        return float(np.mean(score > self._score_thr))
+        I = img[v0:v1, u0:u1][inside]
+        B = self.background.image[v0:v1, u0:u1][inside]
+        out = ballness(I, B) > self._score_thr
+        share = float(np.mean(out))
+        if share < 0.6:
+            r2 = ((xx - uv[0]) ** 2 + (yy - uv[1]) ** 2)[inside] / (r * r)
+            share = max(share, _shaded_share(I, B, r2, out))
+        return share
 
     def _same_hue(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """Whether the ball whose centre's image is near ``uv`` (px) is of the cloth's own hue
