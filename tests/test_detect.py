@@ -537,3 +537,12 @@ def test_blue_balls_on_blue_cloth_are_found_and_placed(same_hue):
     assert np.all(np.isfinite(err)), err
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, err
 
+
+@pytest.mark.parametrize("name", ["red_three_lamps", "red_one_lamp_hard"])
+def test_solid_of_the_cloths_own_colour_is_a_solid(same_hue, name):
+    det = same_hue(name)
+    err, j = _match(det, SAME_HUE_AT)
+    # Common practice: a solid is coloured all over but for a small white number disc; one of
+    # the cloth's own colour is still a solid.
+    assert np.all(np.isfinite(err)), err
+    assert set(det["pattern"].to_numpy()[j]) == {"solid"}, det

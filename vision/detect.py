@@ -86,17 +86,18 @@ Method
 7. *Identity*: pixels inside 0.88 of the fitted outline, in HSV: near-white, coloured (not of
    the cloth's hue) and dark shares decide cue (almost all white, nothing tinted or dark),
    stripe (a white share with colour), solid (colour, little white); the coloured pixels'
-   hue picks the colour label.
+   hue picks the colour label. A ball of the cloth's own hue and brightness counts its
+   cloth-like pixels as colour (it is a solid, not ``unknown``).
 
 Limits (named honestly): streaks shorter than R of centre travel each way are found as a disc at
 the right mid-exposure centre but report ``blur_x = blur_y = 0``; the travel reported for long
 streaks is not yet right (the faint ends are found inside the swept outline); a ball whose dark
 rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
-off; a ball of the cloth's own hue and brightness is seeded only where its highlight or the
-dark crescent of its shading stands out as a piece of about a third of a ball (a blue ball on
-blue cloth of nearly its albedo often does not, and is missed), its pattern is not told (the
-cloth-coloured body is not counted as colour), and a ball of the cloth's hue that is much
-brighter or darker than it keeps the colour-step outline; a dark ball
+off; a ball of the cloth's own hue and brightness is seeded from its crown or highlight, so
+one whose highlight does not stand out is missed, and one right under a lamp, whose disc
+matches the cloth's brightness over half its area, fails the filled-disc test and is missed
+(2 of 6 blue balls on blue cloth of nearly their albedo in the tests); a ball of the cloth's
+hue much brighter or darker than it keeps the colour-step outline; a dark ball
 pressed into a touching triangle can still be about 4 mm off, and only balls of one piece of
 foreground up to six balls big are seeded again where the first fits leave one unexplained
 (larger racks are not); a ball merged with an arm or cue in the
@@ -1455,7 +1456,9 @@ class BallDetector:
         do not count). Shares decide: ``cue`` almost all white and no colour; ``stripe`` a
         white share and a coloured share together; ``solid`` colour (or black) with little
         white (the number disc); else ``unknown``. The coloured pixels' median hue picks the
-        label from our own coarse hue bands.
+        label from our own coarse hue bands. A ball with little colour or white that is of the
+        cloth's own hue and brightness (:meth:`_same_hue`) has its cloth-like pixels counted as
+        colour.
         """
         r = 0.88 * r_px
         u0, v0 = int(math.floor(uv[0] - r)), int(math.floor(uv[1] - r))
@@ -1490,6 +1493,11 @@ class BallDetector:
             return "white", "cue"
         if fd > 0.55 and fc < 0.25:
             return "black", "solid"
+        if fc < 0.3 and fw < 0.25 and self._same_hue(img, uv):
+            # A ball of the cloth's own hue and brightness: its body, left out as cloth-like
+            # above, is its colour, and so is its limb, shaded dark toward the cloth's level.
+            coloured = (S >= 90) & ~white
+            fc = coloured.mean()
         if fc < 0.04:
             return "", ("stripe" if fw >= 0.5 else "unknown")
         hue = float(np.median(H[coloured]))
