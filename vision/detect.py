@@ -480,15 +480,14 @@ def _chroma_off(I: np.ndarray, B: np.ndarray, a: np.ndarray) -> np.ndarray:
     return _norm3(I - a[..., None] * B) / np.maximum(_norm3(I), 20.0)
 
 
-def _plain_body(I: np.ndarray, B: np.ndarray) -> bool:
-    """Whether a ball's body, sampled as colours ``I`` (N, 3) of the frame against the empty
-    table ``B`` (N, 3), is of the cloth's own hue and brightness: the median chromaticity
-    distortion (:func:`_chroma_off`) is below ``_SAME_HUE`` and the median brightness ratio
-    ``I.B / B.B`` within a factor ``_SAME_BRIGHT`` of 1. A white or black ball on grey cloth
-    shares the cloth's (absent) hue but not its brightness, and keeps the colour step."""
-    a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
+def _plain_body(chroma: np.ndarray, a: np.ndarray) -> bool:
+    """Whether a ball's body is of the cloth's own hue and brightness, from its samples'
+    chromaticity distortions ``chroma`` (N,) (:func:`_chroma_off`) and brightness ratios ``a``
+    (N,) = I.B / B.B against the empty table: the median distortion is below ``_SAME_HUE`` and
+    the median ratio within a factor ``_SAME_BRIGHT`` of 1. A white or black ball on grey
+    cloth shares the cloth's (absent) hue but not its brightness, and keeps the colour step."""
     am = _median(a)
-    return _median(_chroma_off(I, B, a)) < _SAME_HUE and 1.0 / _SAME_BRIGHT < am < _SAME_BRIGHT
+    return _median(chroma) < _SAME_HUE and 1.0 / _SAME_BRIGHT < am < _SAME_BRIGHT
 
 
 def _dark_ring(a: np.ndarray, rho: np.ndarray, rho_pred: np.ndarray, half_win: float) -> tuple[np.ndarray, np.ndarray]:
@@ -852,8 +851,11 @@ class BallDetector:
         components of ``box`` (``lab`` and ``stats`` of :meth:`_components`) too small to be a
         ball (indices ``small``) but of at least 3 % of the smallest ball's image area, brighter
         than the empty table on average (brightness ratio above 1.15, :func:`ballness`'s
-        brightness term) and farther than a ball's image diameter from every fitted ball
-        (``fits``) and from each other. Such a ball passes the colour test only at its crown and
+        brightness term), farther than a ball's image diameter from every fitted ball
+        (``fits``) and from each other, and surrounded by the cloth's hue and brightness
+        (:meth:`_same_hue` round the piece: the highlight lies within about half a radius of
+        the centre's image, so the band sampled is still on the ball's body or the cloth), with
+        nothing reaching in over the rail (:meth:`_reaching`) within a ball's diameter. Such a ball passes the colour test only at its crown and
         specular highlight (Blinn-Phong: toward the lamps, within about half a radius of the
         centre's image for lamps above the table), so its piece of foreground is small; the fit
         searches from there (:meth:`_fit_crown`)."""
@@ -877,6 +879,16 @@ class BallDetector:
             if len(done) and np.min(np.hypot(done[:, 0] - uv[0], done[:, 1] - uv[1])) < self.ball_px:
                 continue
             if any(np.hypot(*(uv - q["uv"])) < self.ball_px for q in out):
+                continue
+            if not self._same_hue(img, uv):
+                # What surrounds the bright piece is not of the cloth's hue and brightness (a
+                # hand, a ball of another colour): no fit is spent on it.
+                continue
+            reach = self._reaching(img)
+            hu, hv, g = int(uv[0]) // 2, int(uv[1]) // 2, int(math.ceil(self.ball_px / 2))
+            if reach[max(hv - g, 0) : hv + g + 1, max(hu - g, 0) : hu + g + 1].any():
+                # A glint on a cue, a ferrule or a knuckle: something reaching in over the rail
+                # lies within a ball's diameter.
                 continue
             out.append({"uv": uv, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False})
         return out
@@ -1201,7 +1213,7 @@ class BallDetector:
         # shading only: no colour step marks its outline, and the half level above falls
         # anywhere on the ramp of its shading into its shadow. Its rim is found as the dark
         # ring instead (:func:`_dark_ring`).
-        if _plain_body(prof[inner_sel], bprof[inner_sel]):
+        if _plain_body(off_hue[inner_sel], a[inner_sel]):
             r_edge, ok = _dark_ring(a, rho, rho_pred, half_win)
         pts = c[None] + r_edge[:, None] * dirs
         pts[~ok] = np.nan
@@ -1414,18 +1426,19 @@ class BallDetector:
 
     def _same_hue(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """Whether the ball whose centre's image is near ``uv`` (px) is of the cloth's own hue
-        and hardly stands out from it (:func:`_plain_body` of the frame over 0.5..0.8 of the
-        ball's image radius on 48 rays, the band :meth:`_edges` takes as the ball's body). Its
+        and hardly stands out from it (:func:`_plain_body` of the frame at 0.55 and 0.75 of the
+        ball's image radius on 48 rays, inside the band :meth:`_edges` takes as the body). Its
         outline is then the dark ring of :func:`_dark_ring`; the local
         two-colour edge (a rim colour against the surface outside) has no colour step to
         find there and follows the ramp of the shading instead, so the coarse fit stands."""
-        r = 0.5 * self.ball_px * np.linspace(0.5, 0.8, 4)
+        r = 0.5 * self.ball_px * np.array([0.55, 0.75])
         ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
         mx = (uv[0] + r[None, :] * np.cos(ang)[:, None]).astype(np.float32)
         my = (uv[1] + r[None, :] * np.sin(ang)[:, None]).astype(np.float32)
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-        return _plain_body(f.reshape(-1, 3), b.reshape(-1, 3))
+        a = _dot3(f, b) / np.maximum(_dot3(b, b), 1.0)
+        return _plain_body(_chroma_off(f, b, a).ravel(), a.ravel())
 
     def _isolated(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """For seeds inside an arm or cue component: a ring ``_RING_R`` ball radii from the
