@@ -52,7 +52,16 @@ Method
    the ball's sharp one). Samples beyond the predicted outline that only dim the empty table
    (the model's own hue, no brighter), in a run out to the cloth, are cast shadow and measured
    by :func:`ballness`, so a dark rim that fades into its shadow does not hand the outline to
-   the shadow's far edge; a seed that fails so is tried once without.
+   the shadow's far edge; a seed that fails so is tried once without. A ball of the cloth's own
+   hue and brightness (blue on blue, red on red: :func:`_plain_body`) has no colour step at its
+   outline, only the ramp of its shading into its shadow; its outline is the inner flank of
+   the dark ring round it instead (the limb darkened by Lambert's law meeting the cloth the
+   ball shades, :func:`_dark_ring`), and the coarse fit stands for it (step 6 has no colour
+   step to place either). Such a ball passes the colour test only at its crown and highlight,
+   too small a piece to seed a ball: small bright pieces seed it (:meth:`BallDetector._crown_seeds`),
+   kept only when the fitted ball is of the cloth's hue, and its disc counts as filled (the
+   fit's last test) when it is shaded like a lit sphere, a bright crown over a darker ring
+   (:func:`_shaded_share`).
 5. *Sphere fit*: each outline point is a ray (``Camera.rays``) that must graze the ball: its
    distance from the ball centre (R above the cloth) equals R (a ray tangent to a sphere). For a
    blurred ball the centre sweeps a segment during the exposure and the outline is that of the
@@ -77,16 +86,18 @@ Method
 7. *Identity*: pixels inside 0.88 of the fitted outline, in HSV: near-white, coloured (not of
    the cloth's hue) and dark shares decide cue (almost all white, nothing tinted or dark),
    stripe (a white share with colour), solid (colour, little white); the coloured pixels'
-   hue picks the colour label.
+   hue picks the colour label. A ball of the cloth's own hue and brightness counts its
+   cloth-like pixels as colour (it is a solid, not ``unknown``).
 
 Limits (named honestly): streaks shorter than R of centre travel each way are found as a disc at
 the right mid-exposure centre but report ``blur_x = blur_y = 0``; the travel reported for long
 streaks is not yet right (the faint ends are found inside the swept outline); a ball whose dark
 rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
-off; a ball of the cloth's own hue (blue on blue, red on red) differs from the cloth mostly by
-its shading and is often missed or placed several mm off (its rim and the cloth's shadow round
-it form a smooth ramp, not a step, so the local two-colour edge follows wherever it is started
-and the coarse outline's level falls inside the ramp by a shading-dependent amount); a dark ball
+off; a ball of the cloth's own hue and brightness is seeded from its crown or highlight, so
+one whose highlight does not stand out is missed, and one right under a lamp, whose disc
+matches the cloth's brightness over half its area, fails the filled-disc test and is missed
+(2 of 6 blue balls on blue cloth of nearly their albedo in the tests); a ball of the cloth's
+hue much brighter or darker than it keeps the colour-step outline; a dark ball
 pressed into a touching triangle can still be about 4 mm off, and only balls of one piece of
 foreground up to six balls big are seeded again where the first fits leave one unexplained
 (larger racks are not); a ball merged with an arm or cue in the
@@ -134,6 +145,13 @@ _LOCAL_REACH_PX = 3.0
 # model would put it at R + h. A free streak also absorbs a resting ball's shadow and shading,
 # which moved centres 5-13 mm (mostly next to the cushions, where shadows stretch outlines).
 _MIN_HALF_STREAK_R = 1.0
+# A ball's body is taken as of the cloth's own hue and brightness (:func:`_plain_body`) when its
+# median chromaticity distortion (Horprasert et al. 1999) is below sin 7.5 degrees and its
+# median brightness within a factor 1.5 of the cloth's. In our renders, red on red and blue on
+# blue read 0.06..0.12 and 1.1..1.3, every other ball 0.15 or more (a white ball on tan
+# cloth) or a brightness ratio beyond 1.5 (white or black on grey); not a published figure.
+_SAME_HUE = 0.13
+_SAME_BRIGHT = 1.5
 # Most rounds of the local edge; each starts from the previous fit, and the rounds stop once
 # the centre moves less than 0.05 mm (a coarse start several px off takes a few).
 _LOCAL_ROUNDS = 6
@@ -556,6 +574,77 @@ def _fit_rms(result) -> float:
     return float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
 
 
+def _chroma_off(I: np.ndarray, B: np.ndarray, a: np.ndarray) -> np.ndarray:
+    """(...) chromaticity distortion of colours ``I`` (..., 3) against the empty table ``B``
+    (..., 3) with brightness ratios ``a`` (...) = I.B / B.B: ``|I - a B|`` over the frame's own
+    brightness ``|I|`` (floored at 20 DN), i.e. the sine of the angle between the two colours
+    (Horprasert, Harwood & Davis 1999)."""
+    return _norm3(I - a[..., None] * B) / np.maximum(_norm3(I), 20.0)
+
+
+def _plain_body(chroma: np.ndarray, a: np.ndarray) -> bool:
+    """Whether a ball's body is of the cloth's own hue and brightness, from its samples'
+    chromaticity distortions ``chroma`` (N,) (:func:`_chroma_off`) and brightness ratios ``a``
+    (N,) = I.B / B.B against the empty table: the median distortion is below ``_SAME_HUE`` and
+    the median ratio within a factor ``_SAME_BRIGHT`` of 1. A white or black ball on grey
+    cloth shares the cloth's (absent) hue but not its brightness, and keeps the colour step."""
+    am = _median(a)
+    return _median(chroma) < _SAME_HUE and 1.0 / _SAME_BRIGHT < am < _SAME_BRIGHT
+
+
+def _dark_ring(a: np.ndarray, rho: np.ndarray, rho_pred: np.ndarray, half_win: float) -> tuple[np.ndarray, np.ndarray]:
+    """Outline radius (K,) px and whether found (K,) bool of a ball of the cloth's own hue,
+    from its brightness ratio to the empty table ``a`` (K, S) (Horprasert et al. 1999) sampled
+    at radii ``rho`` (K, S) px from the centre's image, ``_STEP_PX`` apart.
+
+    Seen from above, a sphere lit from above darkens toward its limb (Lambert's cosine law: the
+    surface turns away from the lamps), and the cloth just outside its outline is the darkest
+    of its shadow (the ball hides most of the lamps and the room from it), so the brightness
+    along a ray falls to its least at about the outline and recovers beyond; a cast shadow
+    only widens the trough outward. The outline is taken at the innermost sample within 0.02
+    of the least brightness (after a 3-sample running mean, against noise) within ``half_win``
+    px of the prediction ``rho_pred`` (K,): the trough's inner flank is the ball's own limb,
+    the same all round, so what is left of the trough's offset is nearly symmetric and goes into
+    the sphere fit's outline-bias term. A ray counts only when the trough is dark (below 0.92)
+    and at least 0.1 darker than the ball inside it (the crown or body lit by the lamps).
+    """
+    K, n = a.shape
+    sm = a.copy()
+    sm[:, 1:-1] = (a[:, :-2] + a[:, 1:-1] + a[:, 2:]) / 3.0
+    win = np.abs(rho - rho_pred[:, None]) <= half_win
+    masked = np.where(win, sm, np.inf)
+    low = masked.min(axis=1)
+    first = np.argmax(win & (sm <= low[:, None] + 0.02), axis=1)
+    rows = np.arange(K)
+    inside = np.where(np.arange(n)[None, :] < first[:, None], sm, -np.inf).max(axis=1)
+    ok = np.isfinite(low) & (low < 0.92) & (inside > low + 0.1) & (first > 0)
+    return rho[rows, first], ok
+
+
+def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.ndarray) -> float:
+    """Share of a disc's pixels that differ from the empty table when the disc is shaded like a
+    lit sphere, else 0: ``I``, ``B`` (N, 3) the frame and the empty table at the disc's pixels,
+    ``r2`` (N,) their squared distance from the centre over the squared disc radius (0.7 of the
+    ball's image radius), ``stands_out`` (N,) bool their colour test (:func:`ballness`).
+
+    A ball of the cloth's own colour differs from the cloth by its shading only (Lambert's
+    cosine law: brightest toward the lamps, falling toward the limb, plus the specular
+    highlight), while a cast shadow or a ghost of a cue in the model is flat or dim: the
+    brightness ratio ``a = I.B / B.B`` (Horprasert et al. 1999) must reach 1.1 somewhere (a
+    crown or highlight brighter than the lit cloth, which no shadow is) and the inner 0.45 of
+    the disc must be brighter than its outer ring (0.6..1) by 0.15 on average. Then a pixel
+    counts when its colour stands out or its brightness is off the cloth's by 10 % (from
+    memory: twice the cloth's texture and more than a noise sigma; not a measured figure).
+    """
+    a = np.einsum("nc,nc->n", I.astype(np.float32), B) / np.maximum(np.einsum("nc,nc->n", B, B), 1.0)
+    core, ring = r2 <= 0.45**2, r2 >= 0.6**2
+    if not core.any() or not ring.any():
+        return 0.0
+    if np.percentile(a, 95) < 1.1 or a[core].mean() - a[ring].mean() < 0.15:
+        return 0.0
+    return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
+
+
 def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
     """(h, w) uint8 0/1 mask with its holes (background regions, 4-connected, that do not
     reach the mask's edge) of at most ``max_area`` px filled."""
@@ -883,10 +972,12 @@ class BallDetector:
         edge = self._zone_edge[v0:v1, u0:u1]
         h, w = img.shape[:2]
         seeds = []
+        small = []
         area_min = math.pi * self.r_min_px**2
         for i in range(1, n):
             a = stats[i, cv2.CC_STAT_AREA]
             if a < 0.3 * area_min:
+                small.append(i)
                 continue
             bx, by, bw, bh = stats[i, :4]
             comp = (lab[by : by + bh, bx : bx + bw] == i).astype(np.uint8)
@@ -922,7 +1013,67 @@ class BallDetector:
                 break
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
+        crowns = self._crown_seeds(img, box, lab, stats, small, fits)
+        seeds += crowns
+        fits += [self._fit_crown(img, s) for s in crowns]
         return self._refit_touching(img, seeds, fits)
+
+    def _crown_seeds(self, img: np.ndarray, box, lab: np.ndarray, stats: np.ndarray, small: list[int], fits: list[dict | None]) -> list[dict]:
+        """Seeds (as :meth:`_seeds_of`) for balls of the cloth's own hue and brightness: the
+        components of ``box`` (``lab`` and ``stats`` of :meth:`_components`) too small to be a
+        ball (indices ``small``) but of at least 3 % of the smallest ball's image area, brighter
+        than the empty table on average (brightness ratio above 1.15, :func:`ballness`'s
+        brightness term), farther than a ball's image diameter from every fitted ball
+        (``fits``) and from each other, and surrounded by the cloth's hue and brightness
+        (:meth:`_same_hue` round the piece: the highlight lies within about half a radius of
+        the centre's image, so the band sampled is still on the ball's body or the cloth), with
+        nothing reaching in over the rail (:meth:`_reaching`) within a ball's diameter. Such a ball passes the colour test only at its crown and
+        specular highlight (Blinn-Phong: toward the lamps, within about half a radius of the
+        centre's image for lamps above the table), so its piece of foreground is small; the fit
+        searches from there (:meth:`_fit_crown`)."""
+        if not small:
+            return []
+        u0, v0 = box[0], box[1]
+        area_min = math.pi * self.r_min_px**2
+        done = np.array([[r["u"], r["v"]] for r in fits if r is not None]).reshape(-1, 2)
+        out: list[dict] = []
+        for i in small:
+            if stats[i, cv2.CC_STAT_AREA] < 0.03 * area_min:
+                continue
+            bx, by, bw, bh = stats[i, :4]
+            ys, xs = np.nonzero(lab[by : by + bh, bx : bx + bw] == i)
+            us, vs = xs + bx + u0, ys + by + v0
+            I = img[vs, us].astype(np.float32)
+            B = self.background.image[vs, us]
+            if np.mean(_dot3(I, B) / np.maximum(_dot3(B, B), 1.0)) < 1.15:
+                continue
+            uv = np.array([us.mean(), vs.mean()])
+            if len(done) and np.min(np.hypot(done[:, 0] - uv[0], done[:, 1] - uv[1])) < self.ball_px:
+                continue
+            if any(np.hypot(*(uv - q["uv"])) < self.ball_px for q in out):
+                continue
+            if not self._same_hue(img, uv):
+                # What surrounds the bright piece is not of the cloth's hue and brightness (a
+                # hand, a ball of another colour): no fit is spent on it.
+                continue
+            reach = self._reaching(img)
+            hu, hv, g = int(uv[0]) // 2, int(uv[1]) // 2, int(math.ceil(self.ball_px / 2))
+            if reach[max(hv - g, 0) : hv + g + 1, max(hu - g, 0) : hu + g + 1].any():
+                # A glint on a cue, a ferrule or a knuckle: something reaching in over the rail
+                # lies within a ball's diameter.
+                continue
+            out.append({"uv": uv, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False})
+        return out
+
+    def _fit_crown(self, img: np.ndarray, s: dict) -> dict | None:
+        """:meth:`_fit_one` of a crown seed (:meth:`_crown_seeds`), kept only when the fitted
+        ball is of the cloth's own hue and brightness (:meth:`_same_hue`): a ball of any other
+        colour stands out as a whole piece and was seeded so, and a highlight on a hand, a cue or
+        a rail is no such ball."""
+        r = self._fit_one(img, s)
+        if r is None or not self._same_hue(img, np.array([r["u"], r["v"]])):
+            return None
+        return r
 
     def _fit_one(self, img: np.ndarray, s: dict) -> dict | None:
         """:meth:`_fit_seed` with the fallbacks: a second try without the shadow test, and the
@@ -1199,7 +1350,7 @@ class BallDetector:
         # not count.
         bb = np.maximum(_dot3(bprof, bprof), 1.0)
         a = _dot3(prof, bprof) / bb
-        off_hue = _norm3(prof - a[..., None] * bprof) / np.maximum(_norm3(prof), 20.0)
+        off_hue = _chroma_off(prof, bprof, a)
         shade = (a < 1.03) & (off_hue < 0.08)
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
@@ -1230,6 +1381,12 @@ class BallDetector:
         frac = np.clip((d0 - level) / np.maximum(d0 - d1, 1e-6), 0.0, 1.0)
         r_edge = rho[np.arange(K), jj - 1] + frac * _STEP_PX
         ok = has & (j > 0) & (inner > 2 * self._score_thr) & (d0 >= level) & (k_out < nstep - 3)
+        # A ball of the cloth's own hue (blue on blue, red on red) differs from the cloth by its
+        # shading only: no colour step marks its outline, and the half level above falls
+        # anywhere on the ramp of its shading into its shadow. Its rim is found as the dark
+        # ring instead (:func:`_dark_ring`).
+        if _plain_body(off_hue[inner_sel], a[inner_sel]):
+            r_edge, ok = _dark_ring(a, rho, rho_pred, half_win)
         pts = c[None] + r_edge[:, None] * dirs
         pts[~ok] = np.nan
         return pts
@@ -1298,8 +1455,9 @@ class BallDetector:
         # edge, each round searching round the previous fit's predicted silhouette.
         prev_xy = None
         coarse = None
+        same_hue = self._same_hue(img, seed["uv"])
         for rnd, win in enumerate((0.45, 0.25) + (None,) * _LOCAL_ROUNDS):
-            if win is None and capsule:
+            if win is None and (capsule or same_hue):
                 break
             if win is None and prev_xy is not None and math.hypot(p[0] - prev_xy[0], p[1] - prev_xy[1]) < 0.05:
                 break  # the local edge has converged
@@ -1429,8 +1587,30 @@ class BallDetector:
         inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
         if not inside.any():
             return 0.0
-        score = ballness(img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside])
-        return float(np.mean(score > self._score_thr))
+        I = img[v0:v1, u0:u1][inside]
+        B = self.background.image[v0:v1, u0:u1][inside]
+        out = ballness(I, B) > self._score_thr
+        share = float(np.mean(out))
+        if share < 0.6:
+            r2 = ((xx - uv[0]) ** 2 + (yy - uv[1]) ** 2)[inside] / (r * r)
+            share = max(share, _shaded_share(I, B, r2, out))
+        return share
+
+    def _same_hue(self, img: np.ndarray, uv: np.ndarray) -> bool:
+        """Whether the ball whose centre's image is near ``uv`` (px) is of the cloth's own hue
+        and hardly stands out from it (:func:`_plain_body` of the frame at 0.55 and 0.75 of the
+        ball's image radius on 48 rays, inside the band :meth:`_edges` takes as the body). Its
+        outline is then the dark ring of :func:`_dark_ring`; the local
+        two-colour edge (a rim colour against the surface outside) has no colour step to
+        find there and follows the ramp of the shading instead, so the coarse fit stands."""
+        r = 0.5 * self.ball_px * np.array([0.55, 0.75])
+        ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
+        mx = (uv[0] + r[None, :] * np.cos(ang)[:, None]).astype(np.float32)
+        my = (uv[1] + r[None, :] * np.sin(ang)[:, None]).astype(np.float32)
+        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        a = _dot3(f, b) / np.maximum(_dot3(b, b), 1.0)
+        return _plain_body(_chroma_off(f, b, a).ravel(), a.ravel())
 
     def _isolated(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """For seeds inside an arm or cue component: a ring ``_RING_R`` ball radii from the
@@ -1461,7 +1641,9 @@ class BallDetector:
         do not count). Shares decide: ``cue`` almost all white and no colour; ``stripe`` a
         white share and a coloured share together; ``solid`` colour (or black) with little
         white (the number disc); else ``unknown``. The coloured pixels' median hue picks the
-        label from our own coarse hue bands.
+        label from our own coarse hue bands. A ball with little colour or white that is of the
+        cloth's own hue and brightness (:meth:`_same_hue`) has its cloth-like pixels counted as
+        colour.
         """
         r = 0.88 * r_px
         u0, v0 = int(math.floor(uv[0] - r)), int(math.floor(uv[1] - r))
@@ -1496,6 +1678,11 @@ class BallDetector:
             return "white", "cue"
         if fd > 0.55 and fc < 0.25:
             return "black", "solid"
+        if fc < 0.3 and fw < 0.25 and self._same_hue(img, uv):
+            # A ball of the cloth's own hue and brightness: its body, left out as cloth-like
+            # above, is its colour, and so is its limb, shaded dark toward the cloth's level.
+            coloured = (S >= 90) & ~white
+            fc = coloured.mean()
         if fc < 0.04:
             return "", ("stripe" if fw >= 0.5 else "unknown")
         hue = float(np.median(H[coloured]))
