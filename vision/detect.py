@@ -1273,6 +1273,25 @@ class BallDetector:
         pts[~ok] = np.nan
         return pts
 
+    def _surround_off_bed(self, c: np.ndarray, rho_pred: np.ndarray, dirs: np.ndarray) -> np.ndarray:
+        """(K,) bool: rays whose local edge's outer band (out to ``_LOCAL_REACH_PX`` beyond the
+        predicted outline ``rho_pred`` (K,) px from ``c`` along ``dirs`` (K, 2)) does not see the
+        bed cloth, because its line of sight meets the bed plane (z = 0) beyond a cushion nose
+        line: it ends on the cushion's face or under its overhang instead.
+
+        The half-coverage edge of :meth:`_edges_local` sits inside the true outline by an amount
+        set by the rim's shading (a lit sphere darkens towards its silhouette, Lambert's cosine
+        law) and by the surround's brightness: against the bed it is nearly the same all round
+        and is taken up by the fit's radius bias, but against the darker cushion face it lies
+        farther out, which pulls the centre towards the cushion by a third of a pixel (about
+        1 mm in the rendered cut_bank clip, for balls within 40 mm of the rail far from the
+        camera). Such rays are left out of the local rounds like a neighbour's rim.
+        """
+        t = self.table
+        uv = c[None] + (rho_pred + _LOCAL_REACH_PX)[:, None] * dirs
+        q = self.rays.backproject(uv, 0.0)
+        return ~((q[:, 0] >= 0.0) & (q[:, 0] <= t.length_mm) & (q[:, 1] >= 0.0) & (q[:, 1] <= t.width_mm))
+
     def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None) -> dict | None:
         """Fit one seed (:meth:`_seeds_of`): a detection row (:data:`COLUMNS`, frame and time
         left at 0) or None. ``shadows``: whether the coarse outline discounts cast shadows
@@ -1319,7 +1338,17 @@ class BallDetector:
             else:
                 pts = self._edges(img, c, rho, win * r_loc, dirs, shadows=shadows)
             masked = avoid is not None and win is None
-            if masked:
+            if win is None:
+                # Rays whose outer band looks past the cushion nose onto the cushion (see
+                # _surround_off_bed) carry a different rim bias from the rest: left out.
+                # A ball at the nose would lose half its outline, where the radius bias and
+                # the centre trade off worse than the bias they cause: beyond a third of the
+                # rays every ray is kept.
+                free = ~self._surround_off_bed(c, rho, dirs)
+                if (~free).sum() > _N_RAYS // 3:
+                    free[:] = True
+                masked = masked or not free.all()
+            if avoid is not None and win is None:
                 # A touching neighbour's rim lies within the local edge's sample bands where
                 # the outline point is within R + 5 mm (2.75 px at about 2 mm/px) of the
                 # neighbour's centre: |R e_a - 2R e_b| = R sqrt(5 - 4 cos(a - b)) < 1.17 R
@@ -1330,9 +1359,10 @@ class BallDetector:
                 # left the coarse outline's outliers in the majority on some balls).
                 q = self.rays.backproject(c[None] + rho[:, None] * dirs, R)
                 dn = np.min(np.hypot(q[:, None, 0] - avoid[None, :, 0], q[:, None, 1] - avoid[None, :, 1]), axis=1)
-                free = dn >= _AVOID_R * R
+                free &= dn >= _AVOID_R * R
                 if free.sum() < _MIN_FREE_RAYS:
                     break  # too little outline left: the coarse fit stands
+            if masked:
                 pts[~free] = np.nan
             n_rays = int(free.sum()) if masked else _N_RAYS
             good = np.all(np.isfinite(pts), axis=1)
