@@ -624,3 +624,62 @@ def test_solid_of_the_cloths_own_colour_is_a_solid(same_hue, name):
     # the cloth's own colour is still a solid.
     assert np.all(np.isfinite(err)), err
     assert set(det["pattern"].to_numpy()[j]) == {"solid"}, det
+
+
+# Balls leaving a cushion: a camera to the left of the table's middle, so the right cushion is
+# seen obliquely and the line of sight past a ball's rail-side rim passes under the nose.
+RAIL_CAM = Camera.overhead(NINE_FOOT, 2150.0, (960, 540), offset_mm=(-300, 100), dist=(-0.2, 0.05, 0, 0, 0))
+RAIL_GAPS = (2.0, 10.0, 20.0)  # mm between the ball's centre and the right rail's reversal line
+
+
+def test_rays_looking_past_the_nose_are_the_rail_side_ones():
+    from vision.detect import _N_RAYS
+
+    det = BallDetector(RAIL_CAM, NINE_FOOT)
+    ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
+    dirs = np.column_stack([np.cos(ang), np.sin(ang)])
+    L = NINE_FOOT.length_mm
+
+    def flagged(x, y):
+        c = RAIL_CAM.project(np.array([[x, y, R]]))[0]
+        rho = np.full(_N_RAYS, float(np.linalg.norm(RAIL_CAM.project(np.array([[x + R, y, R]]))[0] - c)))
+        return det._surround_off_bed(c, rho, dirs), c
+
+    # Geometry (analytic): from mid-table no line of sight a few px past a ball's rim reaches a
+    # cushion; next to the right cushion, far from the camera, only rays pointing towards the
+    # rail (image direction of +x in the table frame) do, the one along it among them.
+    mid, _ = flagged(L / 2, NINE_FOOT.width_mm / 2)
+    assert not mid.any()
+    near, c = flagged(L - NINE_FOOT.reversal_offset_mm - 2.0, 600.0)
+    ex = RAIL_CAM.project(np.array([[L, 600.0, R]]))[0] - c
+    towards = dirs @ (ex / np.linalg.norm(ex))
+    assert near.any() and np.all(towards[near] > 0.0)
+    assert near[np.argmax(towards)]
+
+
+@pytest.fixture(scope="module")
+def off_the_rail():
+    """Detections of balls resting just off the right cushion, and their true centres (N, 2) mm."""
+    L = NINE_FOOT.length_mm
+    at = np.array([[L - NINE_FOOT.reversal_offset_mm - g, 200.0 + 3.5 * R * i] for i, g in enumerate(RAIL_GAPS)])
+    n = len(at)
+    balls = tuple(BALLS[i % 2] for i in range(n))
+    ren = Renderer(NINE_FOOT, RAIL_CAM, Look(noise_sigma=2.0), balls, seed=5)
+    empty = ren.render(at[None], _rot(n), np.zeros((1, n), bool), np.array([0.0]))
+    full = ren.render(at[None], _rot(n), np.ones((1, n), bool), np.array([1 / 60]))
+    det = BallDetector(RAIL_CAM, NINE_FOOT)
+    det.process(0, 0.0, empty)
+    return det.process(1, 1 / 60, full), at
+
+
+@pytest.mark.xfail(strict=True, reason="rim shading bias: balls off the right cushion are placed "
+                   "1.3-1.6 mm towards it here (and about 1 mm 400 mm in from it), see issue 4")
+def test_ball_just_off_a_cushion_is_not_pulled_towards_it(off_the_rail):
+    det, at = off_the_rail
+    err, j = _match(det, at)
+    assert np.all(np.isfinite(err)), err
+    towards = det["x"].to_numpy()[j] - at[:, 0]
+    # Issue 4 target, speed out of a cushion within 3 %: a ball leaving at 230 mm/s moves about
+    # 40 mm in the ten frames the speed is measured over, so a bias that changes by more than
+    # 0.5 mm across them costs over 1.2 % by itself; held here as the bias itself.
+    assert np.abs(towards).max() <= 0.5, towards

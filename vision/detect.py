@@ -1430,13 +1430,35 @@ class BallDetector:
         pts[~ok] = np.nan
         return pts
 
-    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None) -> dict | None:
+    def _surround_off_bed(self, c: np.ndarray, rho_pred: np.ndarray, dirs: np.ndarray) -> np.ndarray:
+        """(K,) bool: rays whose local edge's outer band (out to ``_LOCAL_REACH_PX`` beyond the
+        predicted outline ``rho_pred`` (K,) px from ``c`` along ``dirs`` (K, 2)) does not see the
+        bed cloth, because its line of sight meets the bed plane (z = 0) beyond a cushion nose
+        line: it ends on the cushion's face or under its overhang instead.
+
+        The half-coverage edge of :meth:`_edges_local` sits inside the true outline by an amount
+        set by the rim's shading (a lit sphere darkens towards its silhouette, Lambert's cosine
+        law) and by the surround's brightness: against the bed it is nearly the same all round
+        and is taken up by the fit's radius bias, but against the darker cushion face it lies
+        farther out, which pulls the centre towards the cushion by a third of a pixel (about
+        1 mm in the rendered cut_bank clip, for balls within 40 mm of the rail far from the
+        camera). Such rays are left out of the local rounds like a neighbour's rim.
+        """
+        t = self.table
+        uv = c[None] + (rho_pred + _LOCAL_REACH_PX)[:, None] * dirs
+        q = self.rays.backproject(uv, 0.0)
+        return ~((q[:, 0] >= 0.0) & (q[:, 0] <= t.length_mm) & (q[:, 1] >= 0.0) & (q[:, 1] <= t.width_mm))
+
+    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None, off_bed: bool = True) -> dict | None:
         """Fit one seed (:meth:`_seeds_of`): a detection row (:data:`COLUMNS`, frame and time
         left at 0) or None. ``shadows``: whether the coarse outline discounts cast shadows
         (:meth:`_edges`). ``avoid``: (M, 2) mm centres (table frame) of neighbouring balls;
         rays whose predicted outline point (at ball-centre height) lies within ``_AVOID_R``
         radii of one are left out of every round, and the share of agreeing rays is counted
-        over the rays left in (at least ``_MIN_FREE_RAYS`` of them)."""
+        over the rays left in (at least ``_MIN_FREE_RAYS`` of them). ``off_bed``: whether the
+        local rounds leave out rays that look past a cushion nose (:meth:`_surround_off_bed`);
+        a fit that fails its checks with them left out is tried again with every ray (a ball
+        frozen against the cushion, whose rim meets the nose itself)."""
         cam, R = self.camera, self.R
         X = self.rays.backproject(seed["uv"][None], R)[0]
         half_mm, heading = 0.0, 0.0
@@ -1456,6 +1478,7 @@ class BallDetector:
         prev_xy = None
         coarse = None
         same_hue = self._same_hue(img, seed["uv"])
+        dropped = False
         for rnd, win in enumerate((0.45, 0.25) + (None,) * _LOCAL_ROUNDS):
             if win is None and (capsule or same_hue):
                 break
@@ -1477,7 +1500,20 @@ class BallDetector:
             else:
                 pts = self._edges(img, c, rho, win * r_loc, dirs, shadows=shadows)
             masked = avoid is not None and win is None
-            if masked:
+            if win is None and off_bed:
+                # Rays whose outer band looks past the cushion nose onto the cushion (see
+                # _surround_off_bed) carry a different rim bias from the rest: left out.
+                # A ball at the nose would lose half its outline, where the radius bias and
+                # the centre trade off worse than the bias they cause: beyond a third of the
+                # rays every ray is kept.
+                free = ~self._surround_off_bed(c, rho, dirs)
+                if (~free).sum() > _N_RAYS // 3:
+                    free[:] = True
+                masked = masked or not free.all()
+                dropped = dropped or not free.all()
+            elif win is None:
+                free = np.ones(_N_RAYS, bool)
+            if avoid is not None and win is None:
                 # A touching neighbour's rim lies within the local edge's sample bands where
                 # the outline point is within R + 5 mm (2.75 px at about 2 mm/px) of the
                 # neighbour's centre: |R e_a - 2R e_b| = R sqrt(5 - 4 cos(a - b)) < 1.17 R
@@ -1488,9 +1524,13 @@ class BallDetector:
                 # left the coarse outline's outliers in the majority on some balls).
                 q = self.rays.backproject(c[None] + rho[:, None] * dirs, R)
                 dn = np.min(np.hypot(q[:, None, 0] - avoid[None, :, 0], q[:, None, 1] - avoid[None, :, 1]), axis=1)
-                free = dn >= _AVOID_R * R
+                clear = dn >= _AVOID_R * R
+                # The neighbour's mask comes first: with both, more than a third of the outline
+                # gone loses balls frozen together against a cushion.
+                free = free & clear if (~(free & clear)).sum() <= _N_RAYS // 3 else clear
                 if free.sum() < _MIN_FREE_RAYS:
                     break  # too little outline left: the coarse fit stands
+            if masked:
                 pts[~free] = np.nan
             n_rays = int(free.sum()) if masked else _N_RAYS
             good = np.all(np.isfinite(pts), axis=1)
@@ -1517,13 +1557,12 @@ class BallDetector:
         rms = float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
         max_rms = self.config.max_rms_mm * (2.0 if capsule else 1.0)
         log.debug("fit at %.1f, %.1f: share %.2f rms %.2f mm bias %.2f mm", p[0], p[1], share, rms, p[2])
-        if share < self.config.min_inlier_share or rms > max_rms:
-            return None
         # Angular coverage: the largest gap between agreeing rays.
         angs = ang[good][inl]
-        gaps = np.diff(np.sort(np.append(angs, angs.min() + 2 * np.pi)))
-        if gaps.max() > (math.radians(150) if seed["strict"] else math.radians(200)):
-            return None
+        gaps = np.diff(np.sort(np.append(angs, angs.min() + 2 * np.pi))) if inl.any() else np.array([np.inf])
+        if (share < self.config.min_inlier_share or rms > max_rms
+                or gaps.max() > (math.radians(150) if seed["strict"] else math.radians(200))):
+            return self._fit_seed(img, seed, shadows, avoid, off_bed=False) if dropped else None
         half = float(p[3]) if capsule else 0.0
         if half > self.config.max_half_travel_mm:
             return None
