@@ -50,8 +50,12 @@ Method
    normal speed arriving).
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
    meet it at the same instant, so the two crossing times are combined by inverse-variance
-   weighting (the linearised least-squares time where both fits cross the line). Then both sides
-   are refitted with their normal coordinate pinned to the reversal line at a trial contact time,
+   weighting (the linearised least-squares time where both fits cross the line). The line is the
+   rail's reversal line moved by the rail's offset measured once for the clip: the apexes where
+   each contact's approach and departure fits meet, pooled over all of that rail's contacts and
+   weighed against the calibration's line (``_rail_offsets``; a calibration off by a millimetre
+   would otherwise bend every contact pinned to it). Then both sides
+   are refitted with their normal coordinate pinned to that line at a trial contact time,
    scanned between the samples nearest the contact; the time with the least summed criterion
    gives the contact, and the pinned fits give the speeds, angles and restitution. A contact
    whose samples scatter about the fits by more than a ball's radius, or that leaves the line
