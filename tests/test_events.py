@@ -423,7 +423,8 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
 
 # --- a cushion-check session from our own simulator -------------------------------------------
 def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_mm: float = 0.0,
-                     drift_s: tuple[float, float] = (0.45, 0.7), outlier_mm: float = 0.0):
+                     drift_s: tuple[float, float] = (0.45, 0.7), outlier_mm: float = 0.0,
+                     shift_mm: float = 0.0):
     """Room staff rolling the cue ball (struck 0.4 R above centre, so it rolls at once,
     Alciatore 2004) into the bottom and top cushions 12 times at 0.3-1.5 m/s normal speed and
     up to 30 degrees off square, catching it 0.45 s after the contact; simulated by
@@ -432,8 +433,10 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
     moving, half that at rest; ``drift_mm``: amplitude per axis of a slowly drifting detection
     bias added on top (two sinusoids of random phase and periods ``drift_s``); ``outlier_mm``:
     the detection two frames after every third contact moved this far along x (a gross error
-    the detector does not flag). Returns (found cushion events, the simulator's cushion
-    events)."""
+    the detector does not flag); ``shift_mm``: every detection moved this far along y, so the
+    table's reversal lines sit that far off the balls' true contact lines (on the bottom rail
+    short of it, on the top rail beyond it), as a calibration off by that much places them.
+    Returns (found cushion events, the simulator's cushion events)."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
@@ -462,6 +465,7 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
         for ax, col in enumerate(("x", "y")):
             det[col] += drift_mm / math.sqrt(2.0) * (np.sin(2 * math.pi * tt / drift_s[0] + ph[ax, 0])
                                                      + np.sin(2 * math.pi * tt / drift_s[1] + ph[ax, 1]))
+    det["y"] += shift_mm
     truth = truth_events(TABLE, traj, t)
     truth = truth[truth["kind"] == "cushion"].reset_index(drop=True)
     if outlier_mm:
@@ -495,6 +499,28 @@ def test_cushion_session_outgoing_measures():
     assert med[1] <= 0.03
     assert med[2] <= 1.0
     assert med[3] <= 0.03
+
+
+def test_contacts_with_the_reversal_line_off_by_a_millimetre_and_a_half():
+    # An automatic calibration on compressed footage places a cushion nose to about 0.3 px, a
+    # millimetre or so (benchmarks/calib_accuracy.py), and every contact is solved through the
+    # reversal line. Detections moved 1.5 mm along y put the bottom rail's line 1.5 mm short
+    # of the balls' contact line and the top rail's 1.5 mm beyond it; 0.3 mm detection noise,
+    # so the line's error, not the noise, dominates. Targets are the issue's (speed out 3 %,
+    # restitution 0.03, medians); the truth is the simulator's impact. Measured: speed_out
+    # 0.26 %, restitution 0.0052; pinned to the given line (before): 2.5 %, 0.037.
+    errs = []
+    for seed in (5, 6):
+        found, truth = _cushion_session(seed, noise_mm=0.3, shift_mm=1.5)
+        assert len(found) == len(truth) >= 10
+        for _, tr in truth.iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            errs.append((abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print("median |speed_out|, |restitution|:", med)
+    assert med[0] <= 0.03
+    assert med[1] <= 0.03
 
 
 @pytest.fixture(scope="module")

@@ -50,8 +50,12 @@ Method
    normal speed arriving).
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
    meet it at the same instant, so the two crossing times are combined by inverse-variance
-   weighting (the linearised least-squares time where both fits cross the line). Then both sides
-   are refitted with their normal coordinate pinned to the reversal line at a trial contact time,
+   weighting (the linearised least-squares time where both fits cross the line). The line is the
+   rail's reversal line moved by the rail's offset measured once for the clip: the apexes where
+   each contact's approach and departure fits meet, pooled over all of that rail's contacts and
+   weighed against the calibration's line (``_rail_offsets``; a calibration off by a millimetre
+   would otherwise bend every contact pinned to it). Then both sides
+   are refitted with their normal coordinate pinned to that line at a trial contact time,
    scanned between the samples nearest the contact; the time with the least summed criterion
    gives the contact, and the pinned fits give the speeds, angles and restitution. A contact
    whose samples scatter about the fits by more than a ball's radius, or that leaves the line
@@ -142,6 +146,10 @@ class EventConfig:
     many noise sigmas off is struck, at most this many per fit (``_Finder._robust_fit``).
     ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
     cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
+    ``reversal_line_sd_mm``: standard deviation of where the calibration puts each rail's
+    reversal line (mm), the prior of the rail's offset measured from the clip's contacts
+    (``_rail_offsets``); an automatic calibration on compressed footage places a cushion nose
+    to about 0.3 px, about 1 mm on a table filling a 720p frame (``benchmarks/calib_accuracy.py``).
     """
 
     rest_speed_mm_s: float = 50.0
@@ -177,6 +185,7 @@ class EventConfig:
     slide_ratio_prior: float = 0.355
     outlier_sigmas: float = 5.0
     outlier_max: int = 2
+    reversal_line_sd_mm: float = 1.0
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -770,6 +779,17 @@ def find_events(
     collisions_by_ball: dict[int, list[float]] = {}
     for r in rows:
         collisions_by_ball.setdefault(r["track"], []).append(r["t"])
+    # Each rail's contact line from the apexes of all its contacts (``_rail_offsets``): the
+    # calibration's reversal line may be off by a millimetre, and every contact is pinned to it.
+    apexes: dict[str, list[tuple[float, float]]] = {r: [] for r in RAILS}
+    for b in balls:
+        raw = b.raw.copy()  # the side fits strike outliers; the contacts below strike their own
+        for tg, rail in rough_cushions[b.track]:
+            a = finder.cushion(b, rail, tg, apex_only=True)
+            if a is not None:
+                apexes[rail].append(a)
+        b.raw = raw
+    finder.rail_offset = _rail_offsets(apexes, cfg.reversal_line_sd_mm)
     first = []  # (ball, rail, rough time, row or None, slide seen in enough samples)
     for b in balls:
         for tg, rail in rough_cushions[b.track]:
@@ -893,6 +913,83 @@ def _cushion_slide_ratio(finder: "_Finder") -> float | None:
     return float(np.median(r))
 
 
+def _apex(fa: _Fit, fd: _Fit, ax: int, t_c: float, reach_s: float) -> tuple[float, float] | None:
+    """Where the approach and departure paths meet: (normal coordinate mm, its variance mm^2).
+
+    Both fits are about ``t_c``; their normal coordinates ``n_a(t)``, ``n_d(t)`` (axis ``ax``)
+    are equal at the apex time t*, the root of ``n_a - n_d`` nearest ``t_c`` within
+    ``reach_s``. In a rigid impact (Mathavan, Jackson & Parkin 2010) the centre turns there on
+    the contact line. Linearising each side about t* (``n = n* + v (t - t*) + e``) gives
+    ``n* = n* + (v_a e_d - v_d e_a) / (v_a - v_d)``, so
+    ``var n* = (v_d^2 var_a + v_a^2 var_d) / (v_a - v_d)^2``. None if the paths do not meet
+    near ``t_c`` or meet without turning.
+    """
+    poly = [fa.coef[2, ax] - fd.coef[2, ax], fa.coef[1, ax] - fd.coef[1, ax],
+            fa.coef[0, ax] - fd.coef[0, ax]]
+    tau = _roots_near(poly, 0.0, -reach_s, reach_s)
+    if tau is None:
+        return None
+    t = t_c + tau
+    va, vd = float(fa.vel(t)[ax]), float(fd.vel(t)[ax])
+    if va * vd >= 0:
+        return None
+    var = (vd * vd * fa.var(t) + va * va * fd.var(t)) / (va - vd) ** 2
+    return float(fa.pos(t)[ax]), float(var)
+
+
+def _rail_offsets(apexes: dict[str, list[tuple[float, float]]], sd_mm: float
+                  ) -> dict[str, float]:
+    """Each rail's contact line relative to its reversal line (mm), from the clip's contacts.
+
+    ``apexes``: per rail, (apex minus reversal line, variance) of each contact (``_apex``).
+    The calibration places the reversal line to about ``sd_mm`` (an automatic calibration on
+    compressed footage, about 1 mm), and pinning contacts to a line off by a millimetre costs
+    slow contacts a tenth of their speed out, while any one contact's apex is fixed poorly by
+    its short departure. All of a rail's contacts share its line, so their apexes are pooled:
+    contacts further than 3 sd (their own, or the rail's robust scatter, 1.4826 MAD, whichever is
+    larger) from the median are left out (a contact off the rigid-impact path, e.g. a ball
+    arriving with a kink inside the excluded frames), and the rest are combined by inverse
+    variance, their variances scaled up by the reduced chi-square where the apexes scatter more
+    than their variances say. Two hypotheses are weighed: the line is right (offset 0) or off
+    with the Gaussian prior N(0, sd_mm^2) (then the posterior mean; Gelman et al., Bayesian
+    Data Analysis, normal model with known variance); the offset is their average by posterior
+    probability (Hoeting et al. 1999, Bayesian model averaging). A rail without contacts keeps
+    offset 0.
+    """
+    out = {}
+    for rail, obs in apexes.items():
+        if not obs:
+            out[rail] = 0.0
+            continue
+        d = np.array([o[0] for o in obs])
+        v = np.maximum(np.array([o[1] for o in obs]), 1e-6)
+        med = float(np.median(d))
+        mad = 1.4826 * float(np.median(np.abs(d - med))) if len(d) >= 3 else 0.0
+        keep = np.abs(d - med) <= 3.0 * np.maximum(np.sqrt(v), mad)
+        d, v = d[keep], v[keep]
+        if not len(d):
+            out[rail] = 0.0
+            continue
+        w = 1.0 / v
+        mean = float(np.sum(w * d) / np.sum(w))
+        if len(d) >= 2:
+            chi2_red = float(np.sum(w * (d - mean) ** 2)) / (len(d) - 1)
+            w = w / max(chi2_red, 1.0)
+        # The apexes' mean and its variance; under "the line is off" (offset ~ N(0, sd_mm^2))
+        # the posterior mean shrinks it by sd_mm^2 / (sd_mm^2 + s2); under "the line is
+        # right" the offset is 0. The two are averaged by their posterior probabilities (even
+        # prior odds; Bayes factor of the mean, N(m; 0, sd_mm^2 + s2) / N(m; 0, s2)), so one
+        # or two poorly fixed apexes move the line little while many agreeing ones move it to
+        # where they meet (Bayesian model averaging, Hoeting et al. 1999).
+        s2 = 1.0 / float(np.sum(w))
+        m = float(np.sum(w * d)) * s2
+        v1 = sd_mm**2 + s2
+        log_bf = 0.5 * math.log(s2 / v1) + 0.5 * m * m * (1.0 / s2 - 1.0 / v1)
+        p_off = 1.0 / (1.0 + math.exp(-min(log_bf, 700.0)))
+        out[rail] = p_off * m * sd_mm**2 / v1
+    return out
+
+
 class _Finder:
     def __init__(self, table: TableSpec, cfg: EventConfig, dt: float, exposure: float):
         self.table, self.cfg, self.dt, self.exposure = table, cfg, dt, exposure
@@ -902,6 +999,9 @@ class _Finder:
         # (``find_events``), once measured; and the measurements (vn_in, slide s, samples).
         self.slide_ratio: float | None = None
         self.slides: list[tuple[float, float, int]] = []
+        # Each rail's contact line relative to ``TableSpec.reversal_line`` (mm, along the
+        # table axis normal to the rail), once measured (``_rail_offsets``).
+        self.rail_offset = {r: 0.0 for r in RAILS}
         self.segments = {r: [] for r in RAILS}
         for seg in table.cushions():
             ax = 0 if seg.rail in ("bottom", "top") else 1
@@ -1098,9 +1198,15 @@ class _Finder:
                     out.append((float(tg), rail))
         return sorted(out)
 
-    def cushion(self, b: _Ball, rail: str, tg: float) -> dict | None:
-        """A cushion event solved from both sides' fits, or None (no fit, or a jaw contact)."""
-        c = self.table.reversal_line(rail)
+    def cushion(self, b: _Ball, rail: str, tg: float, apex_only: bool = False):
+        """A cushion event solved from both sides' fits, or None (no fit, or a jaw contact).
+
+        The contact line is the rail's reversal line moved by the rail's measured offset
+        (``rail_offset``). ``apex_only``: return only the apex of the unpinned fits
+        (``_apex``: normal coordinate minus the contact line, and its variance, mm and mm^2), or
+        None, without the pinned solve.
+        """
+        c = self.table.reversal_line(rail) + self.rail_offset[rail]
         ax = 1 if rail in ("bottom", "top") else 0  # normal axis
         lo, hi = b.bounds(tg, 1.5 * self.dt)
         t_c = tg
@@ -1131,6 +1237,9 @@ class _Finder:
         fa, fd = self._side_fits(b, t_c, lo, hi, exclude=True)
         if fa is None or fd is None:
             return None
+        if apex_only:
+            apex = _apex(fa, fd, ax, t_c, 2 * self.dt)
+            return None if apex is None else (apex[0] - c, apex[1])
         # Direction the ball slides after the impact. Arriving rolling (the approach's piece at
         # the contact is rolling), its spin matches its velocity. The cushion reverses the
         # normal velocity but not the spin about the rail's axis, so just after the impact the
