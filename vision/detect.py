@@ -1477,9 +1477,11 @@ class BallDetector:
         # edge, each round searching round the previous fit's predicted silhouette.
         prev_xy = None
         coarse = None
-        same_hue = self._same_hue(img, seed["uv"])
+        same_hue = None  # :meth:`_same_hue`, looked up once a sharp ball reaches the local rounds
         dropped = False
         for rnd, win in enumerate((0.45, 0.25) + (None,) * _LOCAL_ROUNDS):
+            if win is None and not capsule and same_hue is None:
+                same_hue = self._same_hue(img, seed["uv"])
             if win is None and (capsule or same_hue):
                 break
             if win is None and prev_xy is not None and math.hypot(p[0] - prev_xy[0], p[1] - prev_xy[1]) < 0.05:
