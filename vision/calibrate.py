@@ -1468,17 +1468,12 @@ def check_image(bg: np.ndarray, cam: Camera | None, table: TableSpec, fit: _Fit 
             f"noses: rms {q['nose_rms_px']:.2f} px, max {q['nose_max_px']:.2f} px over {q['nose_points']} points",
             f"sights: {q['sights_found']} of 18" + (f", rms {q['sight_rms_px']:.2f} px" if q["sight_rms_px"] is not None else ""),
             f"f {q['focal_px']:.0f} px (hfov {q['hfov_deg']:.1f} deg), k1 {q['k1']:+.3f} k2 {q['k2']:+.3f}, height {q['camera_height_mm']:.0f} mm",
-            _height_line(q),
+            height_words(q),
             f"table {table.name} L/W {q['aspect_table']:.3f}, seen {q['aspect_measured']:.3f}" if q["aspect_measured"] else f"table {table.name}",
             "origin (0,0) at the lower left of this view",
         ]
         return _with_banner(img, lines)
     return _with_banner(img, [verdict])
-
-
-def _height_line(q: dict) -> str:
-    """The check image's words on how well the view fixes the camera's distance."""
-    return height_words(q)
 
 
 def height_words(q: dict) -> str:
