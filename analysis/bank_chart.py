@@ -59,8 +59,7 @@ class ChartConfig:
     ``departure_skip_s`` and ``departure_window_s``: the departure samples fitted lie between
     these times after the contact (and end that long before the ball's next event);
     ``min_departure_samples``: fewer and the contact is not fitted; ``max_path_rms_mm``: the
-    departures' residual (rms) allowed for a chart. ``sigma_angle_deg`` and ``sigma_e`` scale the
-    robust outlier test of the events' angle out and restitution (diagnostics beside the fit).
+    departures' residual (rms) allowed for a chart.
     ``start_e_scales`` x ``start_mu_cushions``: the grid of liveliness and cushion friction whose
     ``n_starts`` lowest local minima of the cost start the cushion fit (the cost has several
     minima along a valley where the two trade off).
@@ -73,8 +72,6 @@ class ChartConfig:
     max_se: float = 0.05
     spot_depth_diamonds: float = 1.0
     spot_step_diamonds: float = 1.0
-    sigma_angle_deg: float = 0.5
-    sigma_e: float = 0.02
     sigma_path_mm: float = 1.0
     departure_skip_s: float = 0.005
     departure_window_s: float = 0.25
