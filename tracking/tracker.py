@@ -51,8 +51,16 @@ Method
 
   Colour and pattern mismatches add to the cost; a ``cue`` pattern detection never goes to an
   object track (nor a solid/stripe one to the cue track) unless its quality is below
-  ``label_min_quality``, when the mismatch only costs. Unassigned tracks and detections compete
-  through dummy rows and columns (the usual square augmentation), so a track may stay unassigned.
+  ``label_min_quality``, when the mismatch only costs; that leniency is for a ball followed frame
+  by frame (two balls merging at a contact), never for one unseen in the previous frame. A
+  track unseen for longer than the time its gate takes to outgrow a ball
+  (``sqrt(2 d / (sqrt(chi2) sigma_a))``, about 0.12 s) is found again only by a detection
+  whose labels confirm it: sure (quality at least ``label_min_quality``), of its kind (``cue``
+  for the cue ball, its solid or stripe for an object ball) and not of another known colour
+  (Wojke et al. 2017: motion associates over short gaps, appearance recovers an identity after
+  a long one); what else appears where a lifted ball was is a hand. Unassigned tracks and
+  detections compete through dummy rows and columns (the usual square augmentation), so a
+  track may stay unassigned.
 * A detection matched through a bounce or jump, or with a predicted ``d2`` above
   ``chi2.ppf(maneuver_prob, 2)``, marks a velocity breakpoint: the filter's velocity is restarted
   there (a crude version of the maneuver detection in Bar-Shalom et al. 2001, ch. 11).
@@ -67,9 +75,10 @@ Method
   (Alciatore 2004: between them it decelerates smoothly). Such tracks are left out of
   ``result`` and ``endings``.
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
-  the ball it was: a new track confirmed at rest while every established ball rests takes back
-  the id of an ended (or unseen, coasting) track with the same identity labels, when exactly one
-  such id exists; the cue ball is one ball, so any earlier cue-ball id (``Tracker._respotted``).
+  the ball it was: a new track confirmed at rest, on sure labels, while every established ball
+  rests takes back the id of an ended (or unseen, coasting) track with the same identity labels,
+  when exactly one such id exists; the cue ball is one ball, so any earlier cue-ball id
+  (``Tracker._respotted``).
   That id's rows then have a gap or a jump between the two pieces.
 * Offline, each track is cut at its breakpoints and the Rauch-Tung-Striebel smoother
   (``tracking.kalman.rts_smooth``) runs within each piece, so smoothing never blurs a contact.
@@ -206,6 +215,7 @@ class _Track:
         self.t_last = t
         self.birth_frame = frame
         self.hits = 0
+        self.doubtful_hits = 0  # detections below ``label_min_quality``
         self.misses = 0  # consecutive
         self.last_seen_t = t
         self.ended: str | None = None
@@ -284,6 +294,12 @@ class Tracker:
         self._t: float | None = None
         self._gate = float(chi2.ppf(self.config.gate_prob, 2))
         self._maneuver = float(chi2.ppf(self.config.maneuver_prob, 2))
+        # Unseen this long, a ball's gate is wider than a ball: the white-acceleration spread
+        # of the position, sigma_a tau^2 / 2 per axis (Bar-Shalom et al. 2001 sec. 6.3.3),
+        # times the gate's sqrt(chi2) reaches a diameter. Past it, position no longer says which
+        # object in the gate is the ball, so only a detection whose labels say so may be it.
+        self._reid_s = math.sqrt(2.0 * table.ball_diameter_mm
+                                 / (math.sqrt(self._gate) * self.config.accel_sigma_mm_s2))
         self._segments = {r: [] for r in RAILS}
         for seg in table.cushions():
             ax = 0 if seg.rail in ("bottom", "top") else 1
@@ -353,6 +369,7 @@ class Tracker:
                 tr.colours[colours[j]] += 1
                 tr.patterns[patterns[j]] += 1
                 tr.hits += 1
+                tr.doubtful_hits += int(quality[j] < self.config.label_min_quality)
                 tr.misses = 0
                 tr.last_seen_t = t
                 if not tr.confirmed and tr.hits >= self.config.confirm_hits:
@@ -376,7 +393,7 @@ class Tracker:
                 continue
             if len(occupied) and np.min(np.hypot(*(occupied - Z[j]).T)) < self.table.radius_mm:
                 continue
-            self._birth(Z[j], sig[j], colours[j], patterns[j], frame, t)
+            self._birth(Z[j], sig[j], colours[j], patterns[j], quality[j], frame, t)
             occupied = np.vstack([occupied.reshape(-1, 2), Z[j]])
 
     def result(self) -> pd.DataFrame:
@@ -455,6 +472,7 @@ class Tracker:
         x = F @ tr.kf.x.reshape(4)  # x_pred = F x
         P = F @ tr.kf.P @ F.T + Q  # P_pred = F P F^T + Q
         return {"x": x, "P": P, "F": F, "Q": Q, "dt": dt, "prev": tr.kf.x.reshape(4)[[0, 2]],
+                "unseen_s": t - tr.last_seen_t,
                 "prev_P": tr.kf.P[np.ix_([0, 2], [0, 2])], "bounces": self._bounces(x, P)}
 
     def _on_cushion(self, rail: str, along_mm: float) -> bool:
@@ -507,18 +525,37 @@ class Tracker:
             kind = tr.kind()
             colour = tr.label(tr.colours, "")
             ident = np.zeros(D)
+            # A ball unseen last frame is found again by its labels, not by position alone:
+            # its gate has spread, and what shows up in it is as likely a hand putting it
+            # down (or the one that took it) as the ball itself. Unseen for longer than
+            # `_reid_s`, its labels must confirm it (Wojke et al. 2017: motion for short-term
+            # association, appearance to recover an identity after a long occlusion).
+            coasting = tr.misses > 0
+            tp = tr.label(tr.patterns, "unknown")
+            if kind != "unknown" and pr["unseen_s"] > self._reid_s:
+                ok = quality >= cfg.label_min_quality
+                if kind == "cue":
+                    ok &= np.array([p == "cue" for p in patterns], dtype=bool)
+                else:
+                    ok &= np.array([p in ("solid", "stripe") and tp in (p, "unknown")
+                                    for p in patterns], dtype=bool)
+                if colour:
+                    ok &= np.array([c in ("", colour) for c in colours], dtype=bool)
+                ident[~ok] = _INFEASIBLE
             for j in range(D):
+                if ident[j] >= _INFEASIBLE:
+                    continue
                 if (kind == "object" and patterns[j] == "cue") or \
                         (kind == "cue" and patterns[j] in ("solid", "stripe")):
                     # A confident label forbids the pair; a doubtful detection's (two balls
-                    # seen as one, a blurred edge) only costs like a solid/stripe mismatch.
-                    if quality[j] >= cfg.label_min_quality:
+                    # seen as one, a blurred edge) only costs like a solid/stripe mismatch,
+                    # for a ball followed frame by frame up to this one.
+                    if coasting or quality[j] >= cfg.label_min_quality:
                         ident[j] = _INFEASIBLE
                         continue
                     ident[j] += cfg.pattern_cost
                 if colour and colours[j] and colours[j] != colour:
                     ident[j] += cfg.colour_cost
-                tp = tr.label(tr.patterns, "unknown")
                 if {tp, patterns[j]} == {"solid", "stripe"}:
                     ident[j] += cfg.pattern_cost
             cands = [("predict", pr["x"], pr["P"])] + [
@@ -609,7 +646,7 @@ class Tracker:
         tr.ended = "pocket" if near <= self.config.pocket_reach_mm else "lifted"
         log.debug("track %s ended (%s) at t = %.3f s", tr.track_id, tr.ended, tr.times[-1])
 
-    def _birth(self, z, sigma, colour, pattern, frame, t) -> None:
+    def _birth(self, z, sigma, colour, pattern, quality, frame, t) -> None:
         cfg = self.config
         dt_nominal = 1.0 / 60.0  # replaced by the true interval at every predict
         kf = make_ball_filter(dt_nominal, float(sigma), cfg.accel_sigma_mm_s2,
@@ -620,6 +657,7 @@ class Tracker:
         tr.colours[colour] += 1
         tr.patterns[pattern] += 1
         tr.hits = 1
+        tr.doubtful_hits = int(quality < cfg.label_min_quality)
         tr.record(frame, t, kf.x, kf.P, np.eye(4), np.zeros((4, 4)), True, True,
                   (float(z[0]), float(z[1])))
         self._tracks.append(tr)
@@ -646,21 +684,30 @@ class Tracker:
         """The id a new track ``tr`` takes back, or None for a new ball.
 
         Between shots a player lifts balls and puts them down elsewhere, or takes a pocketed
-        ball out and spots it: the ball is the same, so its id must be too. A new track
-        qualifies when it is confirmed while it and every ball seen in this frame rest (speeds
-        below ``respot_rest_speed_mm_s``); tracks younger than ``respot_settle_s`` do not count
-        as balls here (the hand and arm that place a ball come and go as short false tracks),
-        and a new cue ball need only rest itself (there is one cue ball). The candidates are ids whose tracks have all ended or are coasting unseen, last seen
-        before ``tr`` was born, with ``tr``'s identity labels. The cue ball is one ball, so a
-        cue ball takes the first cue-ball id among them. An object ball must carry the same
-        pattern (solid or stripe) and the same known colour, and takes the id only when exactly
-        one candidate remains (the labels then say which ball it is); else it is a new ball.
+        ball out and spots it: the ball is the same, so its id must be too (a track is one ball
+        for the whole clip, ``shared/spec/results-format.md``). A new track qualifies when it is
+        confirmed at rest (filtered speed below ``respot_rest_speed_mm_s``) by detections whose
+        labels the detector is sure of (quality at least ``label_min_quality``, the test a ball
+        found again after a long gap passes in ``_assign``), while every ball seen in this frame
+        rests too; tracks younger than ``respot_settle_s`` do not count as balls here (the hand
+        and arm that place a ball come and go as short false tracks), and a new cue ball need
+        only rest itself (there is one cue ball). The candidates are ids whose tracks have all
+        ended (lifted or pocketed) or are coasting unseen, last seen before ``tr`` was born,
+        with ``tr``'s identity labels. The cue ball is one ball, so a cue ball takes the first
+        cue-ball id among them. An object ball must carry the same pattern (solid or stripe)
+        and the same known colour, and takes the id only when exactly one candidate remains
+        (the labels then say which ball it is); else it is a new ball.
         """
         vmax = self.config.respot_rest_speed_mm_s
         kind = tr.kind()
         colour = tr.label(tr.colours, "")
         pattern = tr.label(tr.patterns, "unknown")
         if kind == "unknown" or (kind == "object" and (not colour or pattern == "unknown")):
+            return None
+        # Labels name a ball only when the detector is sure of them, as for a ball found
+        # again after a long gap (`_assign`): the hand that puts a ball down is seen beside it,
+        # labelled at random and with doubt.
+        if tr.doubtful_hits:
             return None
         if float(np.hypot(tr.kf.x[1, 0], tr.kf.x[3, 0])) >= vmax:
             return None
