@@ -114,6 +114,16 @@ PATTERNS = ("cue", "solid", "stripe", "unknown")
 
 # Cost of an impossible pairing in the assignment matrix (any value far above every real cost).
 _INFEASIBLE = 1e9
+# Read-only placeholders for a history row's transition until the next row replaces them.
+_EYE4 = np.eye(4)
+_EYE4.flags.writeable = False
+_ZERO4 = np.zeros((4, 4))
+_ZERO4.flags.writeable = False
+# Hypothesis codes in `Tracker._assign` besides a prediction's index in its list (0 the plain
+# one, then the bounces): none, a velocity jump.
+_NO_HYP, _JUMP = -1, -2
+# The measurement picks the positions out of [x, vx, y, vy] (tracking.kalman).
+_H = np.array([[1.0, 0.0, 0.0, 0.0], [0.0, 0.0, 1.0, 0.0]])
 
 
 @dataclass(frozen=True)
@@ -208,10 +218,11 @@ class TrackerConfig:
 class _Track:
     """Forward-pass state and history of one ball (internal)."""
 
-    def __init__(self, key: int, kf, frame: int, t: float):
+    def __init__(self, key: int, x: np.ndarray, P: np.ndarray, frame: int, t: float):
         self.key = key  # creation order, internal
         self.track_id: int | None = None  # output id, set on confirmation
-        self.kf = kf
+        self.x = x  # (4,) posterior [x, vx, y, vy], mm and mm/s
+        self.P = P  # (4, 4) its covariance
         self.t_last = t
         self.birth_frame = frame
         self.hits = 0
@@ -253,15 +264,17 @@ class _Track:
         known.sort(key=lambda p: (-p[0], p[1]))
         return known[0][1]
 
-    def record(self, frame, t, x, P, F, Q, seen, brk, z):
+    def record(self, frame, t, F, Q, seen, brk, z):
+        """Append the current posterior as this frame's row; ``F, Q`` carried the previous row
+        here."""
         if self.Fs:
             self.Fs[-1], self.Qs[-1] = F, Q
         self.frames.append(frame)
         self.times.append(t)
-        self.xs.append(x.reshape(4).copy())
-        self.Ps.append(P.copy())
-        self.Fs.append(np.eye(4))
-        self.Qs.append(np.zeros((4, 4)))
+        self.xs.append(self.x.copy())
+        self.Ps.append(self.P.copy())
+        self.Fs.append(_EYE4)
+        self.Qs.append(_ZERO4)
         self.seen.append(int(seen))
         self.breaks.append(bool(brk))
         self.zs.append(z)
@@ -288,6 +301,8 @@ class Tracker:
         self.config = config or TrackerConfig()
         self.table = table
         self._tracks: list[_Track] = []
+        self._live: list[_Track] = []  # tracks not ended, in creation order
+        self._models: dict[float, tuple[np.ndarray, np.ndarray]] = {}  # dt -> (F, Q)
         self._next_key = 0
         self._next_id = 0
         self._frame: int | None = None
@@ -325,19 +340,20 @@ class Tracker:
             frame, t = int(frames[0]), float(times[0])
         elif frame is None or t is None:
             raise ValueError("an empty frame needs its frame index and time: step(df, frame=, t=)")
-        frame, t = int(frame), float(t)
+        self._step(int(frame), float(t), det[["x", "y"]].to_numpy(float).reshape(-1, 2),
+                   det["sigma_mm"].to_numpy(float), det["colour"].tolist(),
+                   det["pattern"].tolist(), det["quality"].to_numpy(float))
+
+    def _step(self, frame: int, t: float, Z: np.ndarray, sig: np.ndarray, colours: list[str],
+              patterns: list[str], quality: np.ndarray) -> None:
+        """``step`` on checked arrays: Z (D, 2) mm, sig (D,) mm, colours and patterns D labels,
+        quality (D,)."""
         if self._t is not None and not t > self._t:
             raise ValueError(f"frame {frame} at t = {t} s is not after the previous frame "
                              f"(t = {self._t} s); feed frames in time order")
         self._frame, self._t = frame, t
 
-        Z = det[["x", "y"]].to_numpy(float).reshape(-1, 2)
-        sig = det["sigma_mm"].to_numpy(float)
-        colours = det["colour"].tolist()
-        patterns = det["pattern"].tolist()
-        quality = det["quality"].to_numpy(float)
-
-        live = [tr for tr in self._tracks if tr.ended is None]
+        live = self._live
         preds = {tr.key: self._predict(tr, t) for tr in live}
         free = np.ones(len(Z), dtype=bool)
         assigned: dict[int, tuple[int, str]] = {}
@@ -382,11 +398,11 @@ class Tracker:
         # told from one that is merely seen again.
         for tr in newly:
             self._confirm(tr, frame)
+        self._live = live = [tr for tr in live if tr.ended is None]
 
         # New tentative tracks from detections no track took, unless they sit on a live ball
         # (a duplicate detection of it).
-        occupied = np.array([tr.xs[-1][[0, 2]] for tr in self._tracks
-                             if tr.ended is None and tr.frames and tr.frames[-1] == frame])
+        occupied = np.array([tr.xs[-1][0::2] for tr in live if tr.frames[-1] == frame])
         order = sorted(np.flatnonzero(free), key=lambda j: (Z[j, 0], Z[j, 1]))
         for j in order:
             if quality[j] < self.config.birth_min_quality:
@@ -458,7 +474,7 @@ class Tracker:
                 continue
             x_prev = tr.xs[k - 1]
             v = float(np.hypot(x_prev[1], x_prev[3]))
-            p = tr.xs[k][[0, 2]]
+            p = tr.xs[k][0::2]
             reach = self.table.ball_diameter_mm + 2.0 * v * (tr.times[k] - tr.times[k - 1])
             if any(abs(p[ax] - c) < reach for ax, c in lines):
                 continue
@@ -468,12 +484,25 @@ class Tracker:
     def _predict(self, tr: _Track, t: float) -> dict:
         """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}."""
         dt = t - tr.t_last
-        F, Q = motion_model(dt, self.config.accel_sigma_mm_s2)
-        x = F @ tr.kf.x.reshape(4)  # x_pred = F x
-        P = F @ tr.kf.P @ F.T + Q  # P_pred = F P F^T + Q
-        return {"x": x, "P": P, "F": F, "Q": Q, "dt": dt, "prev": tr.kf.x.reshape(4)[[0, 2]],
+        F, Q = self._model(dt)
+        x = F @ tr.x  # x_pred = F x
+        P = F @ tr.P @ F.T + Q  # P_pred = F P F^T + Q
+        return {"x": x, "P": P, "F": F, "Q": Q, "dt": dt, "prev": tr.x[0::2],
                 "unseen_s": t - tr.last_seen_t,
-                "prev_P": tr.kf.P[np.ix_([0, 2], [0, 2])], "bounces": self._bounces(x, P)}
+                "prev_P": tr.P[0::2, 0::2], "bounces": self._bounces(x, P)}
+
+    def _model(self, dt: float) -> tuple[np.ndarray, np.ndarray]:
+        """``tracking.kalman.motion_model(dt)``, built once per distinct interval (a clip has a
+        handful: its frame interval and the gaps of dropped frames)."""
+        model = self._models.get(dt)
+        if model is None:
+            if len(self._models) > 4096:  # variable frame rate: keep the cache bounded
+                self._models.clear()
+            F, Q = motion_model(dt, self.config.accel_sigma_mm_s2)
+            F.flags.writeable = False
+            Q.flags.writeable = False
+            model = self._models[dt] = (F, Q)
+        return model
 
     def _on_cushion(self, rail: str, along_mm: float) -> bool:
         return any(lo <= along_mm <= hi for lo, hi in self._segments[rail])
@@ -518,61 +547,58 @@ class Tracker:
         cfg = self.config
         T, D = len(group), len(Z)
         cost = np.full((T, D), _INFEASIBLE)
-        hyps = np.full((T, D), "", dtype=object)
+        hyps = np.full((T, D), _NO_HYP, dtype=np.int64)
+        names: list[list[str]] = []
         g = self._gate
+        patterns = np.asarray(patterns, dtype=object)
+        colours = np.asarray(colours, dtype=object)
+        is_cue = patterns == "cue"
+        is_obj = (patterns == "solid") | (patterns == "stripe")
+        sure = quality >= cfg.label_min_quality
+        known_colour = colours != ""
         for i, tr in enumerate(group):
             pr = preds[tr.key]
             kind = tr.kind()
             colour = tr.label(tr.colours, "")
-            ident = np.zeros(D)
-            # A ball unseen last frame is found again by its labels, not by position alone:
-            # its gate has spread, and what shows up in it is as likely a hand putting it
-            # down (or the one that took it) as the ball itself. Unseen for longer than
-            # `_reid_s`, its labels must confirm it (Wojke et al. 2017: motion for short-term
-            # association, appearance to recover an identity after a long occlusion).
-            coasting = tr.misses > 0
             tp = tr.label(tr.patterns, "unknown")
+            # A confident label of the other kind forbids the pair; a doubtful detection's (two
+            # balls seen as one, a blurred edge) only costs like a solid/stripe mismatch, for a
+            # ball followed frame by frame up to this one. A ball unseen last frame is found
+            # again by its labels, not by position alone: its gate has spread, and what shows
+            # up in it is as likely a hand putting it down (or the one that took it) as the
+            # ball itself. Unseen for longer than `_reid_s`, its labels must confirm it (Wojke
+            # et al. 2017: motion for short-term association, appearance to recover an
+            # identity after a long occlusion).
+            clash = is_cue if kind == "object" else is_obj if kind == "cue" else np.zeros(D, bool)
+            forbid = clash & (sure | (tr.misses > 0))
             if kind != "unknown" and pr["unseen_s"] > self._reid_s:
-                ok = quality >= cfg.label_min_quality
-                if kind == "cue":
-                    ok &= np.array([p == "cue" for p in patterns], dtype=bool)
-                else:
-                    ok &= np.array([p in ("solid", "stripe") and tp in (p, "unknown")
-                                    for p in patterns], dtype=bool)
+                ok = sure & (is_cue if kind == "cue" else
+                             is_obj & ((patterns == tp) | (tp == "unknown")))
                 if colour:
-                    ok &= np.array([c in ("", colour) for c in colours], dtype=bool)
-                ident[~ok] = _INFEASIBLE
-            for j in range(D):
-                if ident[j] >= _INFEASIBLE:
-                    continue
-                if (kind == "object" and patterns[j] == "cue") or \
-                        (kind == "cue" and patterns[j] in ("solid", "stripe")):
-                    # A confident label forbids the pair; a doubtful detection's (two balls
-                    # seen as one, a blurred edge) only costs like a solid/stripe mismatch,
-                    # for a ball followed frame by frame up to this one.
-                    if coasting or quality[j] >= cfg.label_min_quality:
-                        ident[j] = _INFEASIBLE
-                        continue
-                    ident[j] += cfg.pattern_cost
-                if colour and colours[j] and colours[j] != colour:
-                    ident[j] += cfg.colour_cost
-                if {tp, patterns[j]} == {"solid", "stripe"}:
-                    ident[j] += cfg.pattern_cost
-            cands = [("predict", pr["x"], pr["P"])] + [
-                (f"bounce:{rail}", xr, Pr) for rail, xr, Pr in pr["bounces"]]
-            for name, x, P in cands:
-                d2 = _mahalanobis2(Z, x[[0, 2]], P[np.ix_([0, 2], [0, 2])], sig)
+                    ok &= ~known_colour | (colours == colour)
+                forbid |= ~ok
+            ident = cfg.pattern_cost * clash
+            if colour:
+                ident += cfg.colour_cost * (known_colour & (colours != colour))
+            if tp in ("solid", "stripe"):
+                ident += cfg.pattern_cost * (patterns == ("stripe" if tp == "solid" else "solid"))
+            ident[forbid] = _INFEASIBLE
+            # Squared Mahalanobis distance to each motion hypothesis, the cheapest one kept.
+            names.append(["predict"] + [f"bounce:{rail}" for rail, _, _ in pr["bounces"]])
+            cands = [(pr["x"], pr["P"])] + [(xr, Pr) for _, xr, Pr in pr["bounces"]]
+            for h, (x, P) in enumerate(cands):
+                d2 = _mahalanobis2(Z, x[0::2], P[0::2, 0::2], sig)
                 ok = (d2 <= g) & (d2 < cost[i])
                 cost[i, ok] = d2[ok]
-                hyps[i, ok] = name
+                hyps[i, ok] = h
             # Velocity jump: anywhere a ball could reach from its previous position this frame.
             reach = cfg.max_speed_mm_s * pr["dt"] + 3.0 * (
                 math.sqrt(np.trace(pr["prev_P"])) + sig)
             dist = np.hypot(*(Z - pr["prev"]).T)
             cj = g + g * (dist / reach) ** 2  # above every gated prediction, nearer is cheaper
-            ok = (dist <= reach) & (hyps[i] == "")
+            ok = (dist <= reach) & (hyps[i] == _NO_HYP)
             cost[i, ok] = cj[ok]
-            hyps[i, ok] = "jump"
+            hyps[i, ok] = _JUMP
             cost[i] += ident
         # Square augmentation: leaving a track or a detection unassigned costs `miss` each, so a
         # feasible pair (at most 2 g plus identity terms) is always preferred to leaving both.
@@ -583,8 +609,8 @@ class Tracker:
         big[T:, :D] = np.where(np.eye(D) > 0, miss, _INFEASIBLE)
         big[T:, D:] = 0.0
         rows, cols = linear_sum_assignment(big)
-        return [(int(r), int(c), str(hyps[r, c])) for r, c in zip(rows, cols)
-                if r < T and c < D and cost[r, c] < _INFEASIBLE / 2]
+        return [(int(r), int(c), "jump" if hyps[r, c] == _JUMP else names[r][hyps[r, c]])
+                for r, c in zip(rows, cols) if r < T and c < D and cost[r, c] < _INFEASIBLE / 2]
 
     def _restart_velocity(self, tr: _Track, pred: dict, z: np.ndarray, R: np.ndarray) -> None:
         """Position from the detection, velocity from the last two positions, wide velocity
@@ -592,8 +618,8 @@ class Tracker:
         dt = max(pred["dt"], 1e-9)
         v = (z - pred["prev"]) / dt  # finite difference; later frames refine it
         sv = max(self.config.initial_speed_sigma_mm_s, float(np.hypot(*v)))
-        tr.kf.x = np.array([[z[0]], [v[0]], [z[1]], [v[1]]])
-        tr.kf.P = np.diag([R[0, 0], sv**2, R[1, 1], sv**2])
+        tr.x = np.array([z[0], v[0], z[1], v[1]])
+        tr.P = np.diag([R[0, 0], sv**2, R[1, 1], sv**2])
 
     def _update(self, tr: _Track, pred: dict, hyp: str, z, sigma, frame, t) -> None:
         R = float(sigma) ** 2 * np.eye(2)
@@ -609,22 +635,20 @@ class Tracker:
                 brk = True
             else:
                 x, P = pred["x"], pred["P"]
-                d2 = float(_mahalanobis2(z[None], x[[0, 2]], P[np.ix_([0, 2], [0, 2])],
-                                         np.array([sigma]))[0])
+                d2 = float(_mahalanobis2(z[None], x[0::2], P[0::2, 0::2], np.array([sigma]))[0])
                 brk = d2 > self._maneuver and len(tr.frames) > 0
-            tr.kf.x, tr.kf.P = x.reshape(4, 1).copy(), P.copy()
             if brk and hyp == "predict":
                 self._restart_velocity(tr, pred, z, R)
             else:
-                tr.kf.update(z.reshape(2, 1), R=R)  # x += K (z - H x), P = (I - K H) P ...
-        tr.record(frame, t, tr.kf.x, tr.kf.P, pred["F"], pred["Q"], True, brk, (z[0], z[1]))
+                tr.x, tr.P = _kalman_update(x, P, z, R)
+        tr.record(frame, t, pred["F"], pred["Q"], True, brk, (z[0], z[1]))
 
     def _coast(self, tr: _Track, pred: dict, frame, t) -> None:
         x, P = pred["x"], pred["P"]
         if pred["bounces"]:  # an unseen ball still turns at the cushion
             _, x, P = pred["bounces"][0]
-        tr.kf.x, tr.kf.P = x.reshape(4, 1).copy(), P.copy()
-        tr.record(frame, t, tr.kf.x, tr.kf.P, pred["F"], pred["Q"], False, bool(pred["bounces"]),
+        tr.x, tr.P = x.copy(), P.copy()
+        tr.record(frame, t, pred["F"], pred["Q"], False, bool(pred["bounces"]),
                   (math.nan, math.nan))
 
     def _maybe_end(self, tr: _Track, t: float) -> None:
@@ -652,15 +676,15 @@ class Tracker:
         kf = make_ball_filter(dt_nominal, float(sigma), cfg.accel_sigma_mm_s2,
                               xy0_mm=(float(z[0]), float(z[1])),
                               speed_sigma_mm_s=cfg.initial_speed_sigma_mm_s)
-        tr = _Track(self._next_key, kf, frame, t)
+        tr = _Track(self._next_key, kf.x.reshape(4).copy(), kf.P.copy(), frame, t)
         self._next_key += 1
         tr.colours[colour] += 1
         tr.patterns[pattern] += 1
         tr.hits = 1
         tr.doubtful_hits = int(quality < cfg.label_min_quality)
-        tr.record(frame, t, kf.x, kf.P, np.eye(4), np.zeros((4, 4)), True, True,
-                  (float(z[0]), float(z[1])))
+        tr.record(frame, t, _EYE4, _ZERO4, True, True, (float(z[0]), float(z[1])))
         self._tracks.append(tr)
+        self._live.append(tr)
         if cfg.confirm_hits <= 1:
             self._confirm(tr, frame)
 
@@ -709,7 +733,7 @@ class Tracker:
         # labelled at random and with doubt.
         if tr.doubtful_hits:
             return None
-        if float(np.hypot(tr.kf.x[1, 0], tr.kf.x[3, 0])) >= vmax:
+        if float(np.hypot(tr.x[1], tr.x[3])) >= vmax:
             return None
         held: set[int] = set()
         ids: dict[int, list[_Track]] = {}
@@ -723,7 +747,7 @@ class Tracker:
                 # exempt: there is one, so a resting cue ball is it whatever else moves
                 # (hands and arms make long false tracks while the player sets it down).
                 if kind != "cue" and settled and \
-                        float(np.hypot(old.kf.x[1, 0], old.kf.x[3, 0])) >= vmax:
+                        float(np.hypot(old.x[1], old.x[3])) >= vmax:
                     return None
                 held.add(old.track_id)
             ids.setdefault(old.track_id, []).append(old)
@@ -779,6 +803,22 @@ class Tracker:
                 ("brk", "bool")]})
         return pd.concat(rows, ignore_index=True).sort_values(["frame", "track"]).reset_index(
             drop=True)
+
+
+def _kalman_update(x: np.ndarray, P: np.ndarray, z: np.ndarray,
+                   R: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Kalman measurement update of the prior ``x`` (4,), ``P`` (4, 4) by a position ``z`` (2,)
+    mm with noise ``R`` (2, 2): the equations and order of operations of filterpy's
+    ``KalmanFilter.update`` (Joseph form of the covariance, which stays symmetric and positive
+    definite; Bar-Shalom et al. 2001 sec. 5.2.3), without its per-call bookkeeping."""
+    y = z - _H @ x  # innovation y = z - H x
+    PHT = P @ _H.T
+    S = _H @ PHT + R  # S = H P H^T + R
+    K = PHT @ np.linalg.inv(S)  # K = P H^T S^-1
+    x = x + K @ y
+    I_KH = _EYE4 - K @ _H
+    P = I_KH @ P @ I_KH.T + K @ R @ K.T  # P = (I - K H) P (I - K H)^T + K R K^T
+    return x, P
 
 
 def _mahalanobis2(Z: np.ndarray, mean: np.ndarray, Ppos: np.ndarray, sig: np.ndarray) -> np.ndarray:
@@ -867,12 +907,18 @@ def track(detections: pd.DataFrame, table: TableSpec,
         raise ValueError("frame times t must increase with the frame index; check the timestamps")
     all_f = np.arange(known_f[0], known_f[-1] + 1)
     all_t = np.interp(all_f, known_f, known_t)
-    groups = dict(iter(det.groupby("frame", sort=True)))
-    empty = det.iloc[0:0]
-    for f, t in zip(all_f, all_t):
-        g = groups.get(int(f))
-        if g is None:
-            tracker.step(empty, frame=int(f), t=float(t))
-        else:
-            tracker.step(g)
+    # Columns as arrays once, each frame a slice of them (frames are sorted, each frame's rows
+    # in their input order).
+    frames = det["frame"].to_numpy(np.int64)
+    Z = det[["x", "y"]].to_numpy(float)
+    sig = det["sigma_mm"].to_numpy(float)
+    quality = det["quality"].to_numpy(float)
+    colours = det["colour"].tolist()
+    patterns = det["pattern"].tolist()
+    lo = np.searchsorted(frames, all_f, "left")
+    hi = np.searchsorted(frames, all_f, "right")
+    t_det = det["t"].to_numpy(float)
+    for f, t, a, b in zip(all_f.tolist(), all_t.tolist(), lo.tolist(), hi.tolist()):
+        tracker._step(f, float(t_det[a]) if b > a else t, Z[a:b], sig[a:b], colours[a:b],
+                      patterns[a:b], quality[a:b])
     return tracker.result()
