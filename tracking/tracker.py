@@ -315,6 +315,10 @@ class Tracker:
         # object in the gate is the ball, so only a detection whose labels say so may be it.
         self._reid_s = math.sqrt(2.0 * table.ball_diameter_mm
                                  / (math.sqrt(self._gate) * self.config.accel_sigma_mm_s2))
+        # Per rail: the state block of its normal coordinate (0 x, 1 y), its reversal line (mm)
+        # and the sign of the inward normal.
+        self._lines = [(rail, 1 if rail in ("bottom", "top") else 0, table.reversal_line(rail),
+                        1.0 if rail in ("bottom", "left") else -1.0) for rail in RAILS]
         self._segments = {r: [] for r in RAILS}
         for seg in table.cushions():
             ax = 0 if seg.rail in ("bottom", "top") else 1
@@ -355,6 +359,8 @@ class Tracker:
 
         live = self._live
         preds = {tr.key: self._predict(tr, t) for tr in live}
+        colour_arr = np.array(colours, dtype=object).reshape(-1)
+        pattern_arr = np.array(patterns, dtype=object).reshape(-1)
         free = np.ones(len(Z), dtype=bool)
         assigned: dict[int, tuple[int, str]] = {}
         # A matching cascade (Wojke, Bewley & Paulus 2017): balls seen in the last frame choose
@@ -369,9 +375,8 @@ class Tracker:
             idx = np.flatnonzero(free)
             if not group or not len(idx):
                 continue
-            pairs = self._assign(group, preds, Z[idx], sig[idx],
-                                 [colours[i] for i in idx], [patterns[i] for i in idx],
-                                 quality[idx])
+            pairs = self._assign(group, preds, Z[idx], sig[idx], colour_arr[idx],
+                                 pattern_arr[idx], quality[idx])
             for gi, dj, hyp in pairs:
                 assigned[group[gi].key] = (int(idx[dj]), hyp)
                 free[idx[dj]] = False
@@ -466,8 +471,7 @@ class Tracker:
         few times a shot at most, far from a quarter of its detections."""
         cfg = self.config
         n_seen = sum(tr.seen)
-        lines = [(1 if rail in ("bottom", "top") else 0, self.table.reversal_line(rail))
-                 for rail in RAILS]
+        lines = [(ax, c) for _, ax, c, _ in self._lines]
         n_breaks = 0
         for k in range(3, len(tr.frames)):
             if not (tr.breaks[k] and tr.seen[k]):
@@ -517,10 +521,7 @@ class Tracker:
         out = []
         cfg = self.config
         e, se = cfg.bounce_restitution, cfg.bounce_restitution_sigma
-        for rail in RAILS:
-            ax = 1 if rail in ("bottom", "top") else 0  # state block of the normal coordinate
-            c = self.table.reversal_line(rail)
-            inward = 1.0 if rail in ("bottom", "left") else -1.0
+        for rail, ax, c, inward in self._lines:
             depth = inward * (x[2 * ax] - c)  # < 0: the centre is past the reversal line
             if depth >= 0 or inward * x[2 * ax + 1] >= 0:
                 continue
