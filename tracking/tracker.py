@@ -51,16 +51,14 @@ Method
 
   Colour and pattern mismatches add to the cost; a ``cue`` pattern detection never goes to an
   object track (nor a solid/stripe one to the cue track) unless its quality is below
-  ``label_min_quality``, when the mismatch only costs; that leniency is for a ball followed frame
-  by frame (two balls merging at a contact), never for one unseen in the previous frame. A
-  track unseen for longer than the time its gate takes to outgrow a ball
-  (``sqrt(2 d / (sqrt(chi2) sigma_a))``, about 0.12 s) is found again only by a detection
-  whose labels confirm it: sure (quality at least ``label_min_quality``), of its kind (``cue``
-  for the cue ball, its solid or stripe for an object ball) and not of another known colour
-  (Wojke et al. 2017: motion associates over short gaps, appearance recovers an identity after
-  a long one); what else appears where a lifted ball was is a hand. Unassigned tracks and
-  detections compete through dummy rows and columns (the usual square augmentation), so a
-  track may stay unassigned.
+  ``label_min_quality``, when the mismatch only costs. A track unseen for longer than its gate
+  takes to outgrow a ball (``sqrt(2 d / (sqrt(chi2) sigma_a))`` for diameter ``d``, about
+  0.12 s) is found again only by a detection whose labels confirm it: sure (quality at least
+  ``label_min_quality``), of its kind (``cue`` for the cue ball, its solid or stripe for an
+  object ball) and not of another known colour (Wojke et al. 2017: motion associates over short
+  gaps, appearance recovers an identity after a long one); what else appears where a lifted
+  ball was is as likely the hand that took it. Unassigned tracks and detections compete through
+  dummy rows and columns (the usual square augmentation), so a track may stay unassigned.
 * A detection matched through a bounce or jump, or with a predicted ``d2`` above
   ``chi2.ppf(maneuver_prob, 2)``, marks a velocity breakpoint: the filter's velocity is restarted
   there (a crude version of the maneuver detection in Bar-Shalom et al. 2001, ch. 11).
@@ -152,7 +150,9 @@ class TrackerConfig:
     yet taken for a ball in that test (common practice: a hand hovers for well under a second).
     ``label_min_quality``: below this detector quality a detection's cue/object label only costs
     ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
-    balls merge or an edge blurs, and so does its labelling).
+    balls merge or an edge blurs, and so does its labelling); it is also the quality a
+    detection needs to find a ball again after a long gap, and a put-down ball's detections to
+    take back its id (``Tracker._respotted``).
     ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints away from
     every rail at more than this share of its detections, and at least
     ``min_breaks`` of them, is not a ball and is left out of the result (``Tracker.result``):
@@ -563,15 +563,14 @@ class Tracker:
             colour = tr.label(tr.colours, "")
             tp = tr.label(tr.patterns, "unknown")
             # A confident label of the other kind forbids the pair; a doubtful detection's (two
-            # balls seen as one, a blurred edge) only costs like a solid/stripe mismatch, for a
-            # ball followed frame by frame up to this one. A ball unseen last frame is found
-            # again by its labels, not by position alone: its gate has spread, and what shows
-            # up in it is as likely a hand putting it down (or the one that took it) as the
-            # ball itself. Unseen for longer than `_reid_s`, its labels must confirm it (Wojke
-            # et al. 2017: motion for short-term association, appearance to recover an
-            # identity after a long occlusion).
+            # balls seen as one, a blurred edge) only costs like a solid/stripe mismatch. A
+            # ball unseen for longer than `_reid_s` is found again by its labels, not by
+            # position: its gate has spread past a ball, and what shows up in it is as likely
+            # the hand that lifted it or puts it down as the ball itself (Wojke et al. 2017:
+            # motion for short-term association, appearance to recover an identity after a
+            # long occlusion).
             clash = is_cue if kind == "object" else is_obj if kind == "cue" else np.zeros(D, bool)
-            forbid = clash & (sure | (tr.misses > 0))
+            forbid = clash & sure
             if kind != "unknown" and pr["unseen_s"] > self._reid_s:
                 ok = sure & (is_cue if kind == "cue" else
                              is_obj & ((patterns == tp) | (tp == "unknown")))
