@@ -613,3 +613,30 @@ def test_ball_lifted_beside_a_hand_keeps_its_id_and_the_hand_is_no_ball(
             rows_k = tr[tr["frame"] == h["frame"]]
             n_hand_rows += int(np.sum(np.hypot(rows_k["x"] - h["x"], rows_k["y"] - h["y"]) < R))
     assert n_hand_rows == 0
+
+
+@pytest.mark.parametrize("rolling", [True, False])
+def test_ball_seen_only_with_doubt_keeps_its_id_through_an_occlusion(rolling):
+    # A green solid the detector only ever finds with doubt (quality 0.4 in every frame: dim
+    # light, or a cloth near its colour) passes under the player's arm for 15 frames (0.25 s,
+    # longer than the tracker's gate takes to outgrow a ball). Detections as sure as its own
+    # always were are enough to know it again: one ball, one id (results format; common
+    # practice).
+    fps = 60.0
+    times = np.arange(int(2.0 * fps)) / fps
+    if rolling:
+        ball = decel_path((300.0, 500.0), 15.0, 900.0, 0.01 * G)
+    else:
+        ball = _still((900.0, 500.0))
+    for seed in range(3):
+        det = detections({"a": ball}, times, np.random.default_rng(40 + seed), noise_mm=0.5,
+                         labels={"a": ("green", "solid")})
+        det["quality"] = 0.4
+        det = det[~det["frame"].between(30, 44)]
+        tr = track(det, TABLE)
+        assert tr["track"].nunique() == 1
+        # Followed on both sides of the occlusion, within 3 mm (noise 0.5 mm).
+        truth = ball(times)
+        seen = tr[tr["seen"] == 1]
+        err = np.hypot(*(seen[["x", "y"]].to_numpy() - truth[seen["frame"].to_numpy()]).T)
+        assert set(seen["frame"]) == set(det["frame"]) and err.max() < 3.0

@@ -54,7 +54,8 @@ Method
   ``label_min_quality``, when the mismatch only costs. A track unseen for longer than its gate
   takes to outgrow a ball (``sqrt(2 d / (sqrt(chi2) sigma_a))`` for diameter ``d``, about
   0.12 s) is found again only by a detection whose labels confirm it: sure (quality at least
-  ``label_min_quality``), of its kind (``cue`` for the cue ball, its solid or stripe for an
+  ``label_min_quality``, or the lower quartile of the ball's own detections' where that is
+  lower), of its kind (``cue`` for the cue ball, its solid or stripe for an
   object ball) and not of another known colour (Wojke et al. 2017: motion associates over short
   gaps, appearance recovers an identity after a long one); what else appears where a lifted
   ball was is as likely the hand that took it. Unassigned tracks and detections compete through
@@ -152,7 +153,8 @@ class TrackerConfig:
     ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
     balls merge or an edge blurs, and so does its labelling); it is also the quality a
     detection needs to find a ball again after a long gap, and a put-down ball's detections to
-    take back its id (``Tracker._respotted``).
+    take back its id (``Tracker._respotted``), unless the ball's own detections were mostly
+    less sure (``Tracker._sure_quality``).
     ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints away from
     every rail at more than this share of its detections, and at least
     ``min_breaks`` of them, is not a ball and is left out of the result (``Tracker.result``):
@@ -226,7 +228,7 @@ class _Track:
         self.t_last = t
         self.birth_frame = frame
         self.hits = 0
-        self.doubtful_hits = 0  # detections below ``label_min_quality``
+        self.qualities: list[float] = []  # detector quality of each detection taken
         self.misses = 0  # consecutive
         self.last_seen_t = t
         self.ended: str | None = None
@@ -390,7 +392,7 @@ class Tracker:
                 tr.colours[colours[j]] += 1
                 tr.patterns[patterns[j]] += 1
                 tr.hits += 1
-                tr.doubtful_hits += int(quality[j] < self.config.label_min_quality)
+                tr.qualities.append(float(quality[j]))
                 tr.misses = 0
                 tr.last_seen_t = t
                 if not tr.confirmed and tr.hits >= self.config.confirm_hits:
@@ -555,7 +557,7 @@ class Tracker:
         colours = np.asarray(colours, dtype=object)
         is_cue = patterns == "cue"
         is_obj = (patterns == "solid") | (patterns == "stripe")
-        sure = quality >= cfg.label_min_quality
+        confident = quality >= cfg.label_min_quality
         known_colour = colours != ""
         for i, tr in enumerate(group):
             pr = preds[tr.key]
@@ -570,10 +572,10 @@ class Tracker:
             # motion for short-term association, appearance to recover an identity after a
             # long occlusion).
             clash = is_cue if kind == "object" else is_obj if kind == "cue" else np.zeros(D, bool)
-            forbid = clash & sure
+            forbid = clash & confident
             if kind != "unknown" and pr["unseen_s"] > self._reid_s:
-                ok = sure & (is_cue if kind == "cue" else
-                             is_obj & ((patterns == tp) | (tp == "unknown")))
+                own = is_cue if kind == "cue" else is_obj & ((patterns == tp) | (tp == "unknown"))
+                ok = own & (quality >= self._sure_quality([tr]))
                 if colour:
                     ok &= ~known_colour | (colours == colour)
                 forbid |= ~ok
@@ -681,7 +683,7 @@ class Tracker:
         tr.colours[colour] += 1
         tr.patterns[pattern] += 1
         tr.hits = 1
-        tr.doubtful_hits = int(quality < cfg.label_min_quality)
+        tr.qualities.append(float(quality))
         tr.record(frame, t, _EYE4, _ZERO4, True, True, (float(z[0]), float(z[1])))
         self._tracks.append(tr)
         self._live.append(tr)
@@ -707,31 +709,26 @@ class Tracker:
     def _respotted(self, tr: _Track, frame: int) -> int | None:
         """The id a new track ``tr`` takes back, or None for a new ball.
 
-        Between shots a player lifts balls and puts them down elsewhere, or takes a pocketed
-        ball out and spots it: the ball is the same, so its id must be too (a track is one ball
-        for the whole clip, ``shared/spec/results-format.md``). A new track qualifies when it is
-        confirmed at rest (filtered speed below ``respot_rest_speed_mm_s``) by detections whose
-        labels the detector is sure of (quality at least ``label_min_quality``, the test a ball
-        found again after a long gap passes in ``_assign``), while every ball seen in this frame
-        rests too; tracks younger than ``respot_settle_s`` do not count as balls here (the hand
-        and arm that place a ball come and go as short false tracks), and a new cue ball need
-        only rest itself (there is one cue ball). The candidates are ids whose tracks have all
-        ended (lifted or pocketed) or are coasting unseen, last seen before ``tr`` was born,
-        with ``tr``'s identity labels. The cue ball is one ball, so a cue ball takes the first
-        cue-ball id among them. An object ball must carry the same pattern (solid or stripe)
-        and the same known colour, and takes the id only when exactly one candidate remains
-        (the labels then say which ball it is); else it is a new ball.
+        Between shots a player lifts balls and puts them down elsewhere, or takes a pocketed ball
+        out and spots it: the ball is the same, so its id must be too (a track is one ball for the
+        whole clip, ``shared/spec/results-format.md``). A new track qualifies when it is confirmed
+        at rest (filtered speed below ``respot_rest_speed_mm_s``) by detections whose labels the
+        detector is sure of (quality at least ``_sure_quality`` of the ball it would be, the test a
+        ball found again after a long gap passes in ``_assign``), while every ball seen in this
+        frame rests too; tracks younger than ``respot_settle_s`` do not count as balls here (the
+        hand and arm that place a ball come and go as short false tracks), and a new cue ball need
+        only rest itself (there is one cue ball). The candidates are ids whose tracks have all ended
+        (lifted or pocketed) or are coasting unseen, last seen before ``tr`` was born, with ``tr``'s
+        identity labels. The cue ball is one ball, so a cue ball takes the first cue-ball id among
+        them. An object ball must carry the same pattern (solid or stripe) and the same known
+        colour, and takes the id only when exactly one candidate remains (the labels then say which
+        ball it is); else it is a new ball.
         """
         vmax = self.config.respot_rest_speed_mm_s
         kind = tr.kind()
         colour = tr.label(tr.colours, "")
         pattern = tr.label(tr.patterns, "unknown")
         if kind == "unknown" or (kind == "object" and (not colour or pattern == "unknown")):
-            return None
-        # Labels name a ball only when the detector is sure of them, as for a ball found
-        # again after a long gap (`_assign`): the hand that puts a ball down is seen beside it,
-        # labelled at random and with doubt.
-        if tr.doubtful_hits:
             return None
         if float(np.hypot(tr.x[1], tr.x[3])) >= vmax:
             return None
@@ -767,8 +764,23 @@ class Tracker:
             if ok:
                 cands.append(tid)
         if kind == "cue":
-            return min(cands) if cands else None
-        return cands[0] if len(cands) == 1 else None
+            donor = min(cands) if cands else None
+        else:
+            donor = cands[0] if len(cands) == 1 else None
+        # Labels name a ball only when the detector is as sure of them as it was of that ball,
+        # the test a ball found again after a long gap passes (`_assign`): the hand that puts
+        # a ball down is seen beside it, labelled at random and with doubt.
+        if donor is None or min(tr.qualities) < self._sure_quality(ids[donor]):
+            return None
+        return donor
+
+    def _sure_quality(self, pieces: list[_Track]) -> float:
+        """Detector quality at which a detection's labels name the ball whose track pieces are
+        ``pieces``: ``label_min_quality``, or the lower quartile of the quality of that ball's
+        own detections where lower (a ball the detector only ever sees with doubt, in dim
+        light or on a cloth of its colour, is known again by detections like its own)."""
+        q = np.concatenate([np.asarray(o.qualities, dtype=float) for o in pieces])
+        return min(self.config.label_min_quality, float(np.percentile(q, 25)))
 
     def _smooth(self, tr: _Track) -> np.ndarray:
         """RTS-smoothed states (N, 4) of ``tr``, run separately between breakpoints."""
