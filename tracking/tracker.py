@@ -68,11 +68,11 @@ Method
   row is dropped, so one-off false detections never make a track. A confirmed track coasts (rows
   with ``seen = 0``) while undetected and ends after ``coast_s`` without a detection; its coasted
   tail is dropped, and its end is classed ``pocket`` (last seen near a pocket mouth) or ``lifted``.
-* A confirmed track whose velocity restarts, away from the rails, at more than
-  ``max_break_share`` of its detections (at least ``min_breaks`` times) is not a ball but a
-  hand, arm or cue the detector took for one: a ball's velocity changes only at contacts
-  (Alciatore 2004: between them it decelerates smoothly). Such tracks are left out of
-  ``result`` and ``endings``.
+* A confirmed track whose velocity restarts, other than by turning off a cushion (running into
+  a rail, then out of it), at more than ``max_break_share`` of its detections (at least
+  ``min_breaks`` times) is not a ball but a hand, arm or cue the detector took for one: a ball's
+  velocity changes only at contacts (Alciatore 2004: between them it decelerates smoothly).
+  Such tracks are left out of ``result`` and ``endings``.
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest, on sure labels, while every established ball
   rests takes back the id of an ended (or unseen, coasting) track with the same identity labels,
@@ -155,8 +155,8 @@ class TrackerConfig:
     detection needs to find a ball again after a long gap, and a put-down ball's detections to
     take back its id (``Tracker._respotted``), unless the ball's own detections were mostly
     less sure (``Tracker._sure_quality``).
-    ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints away from
-    every rail at more than this share of its detections, and at least
+    ``max_break_share`` / ``min_breaks``: a confirmed track with velocity breakpoints other
+    than turns off a cushion at more than this share of its detections, and at least
     ``min_breaks`` of them, is not a ball and is left out of the result (``Tracker.result``):
     a ball's velocity changes only at contacts (a cue strike from rest, a cushion, another
     ball), a few per shot, so nearly every detection of a ball continues its motion (at most
@@ -466,23 +466,30 @@ class Tracker:
     def _moves_like_a_ball(self, tr: _Track) -> bool:
         """False for a track whose velocity restarts too often where nothing could have struck
         a ball: more than ``max_break_share`` of its detections, and at least ``min_breaks``
-        times, away from every rail (a diameter plus two frames' travel from its reversal line)
-        and past the track's first three frames (whose velocity is still settling). No ball
-        changes course so; a player's hand, arm or cue does (``TrackerConfig``). Restarts at a
-        cue strike or next to another ball are counted too: a ball is struck or meets another a
-        few times a shot at most, far from a quarter of its detections."""
+        times, past the track's first three frames (whose velocity is still settling), other
+        than turns off a cushion. No ball changes course so; a player's hand, arm or cue does
+        (``TrackerConfig``). A turn off a cushion is a restart within a diameter plus two
+        frames' travel of a rail's reversal line at which the ball was running into that rail
+        and, then or a frame later, runs out of it: a hand moving about beside a rail restarts
+        in any direction. Restarts at a cue strike or next to another ball are counted too: a
+        ball is struck or meets another a few times a shot at most, far from a quarter of its
+        detections."""
         cfg = self.config
         n_seen = sum(tr.seen)
-        lines = [(ax, c) for _, ax, c, _ in self._lines]
+        n = len(tr.frames)
         n_breaks = 0
-        for k in range(3, len(tr.frames)):
+        for k in range(3, n):
             if not (tr.breaks[k] and tr.seen[k]):
                 continue
             x_prev = tr.xs[k - 1]
             v = float(np.hypot(x_prev[1], x_prev[3]))
             p = tr.xs[k][0::2]
             reach = self.table.ball_diameter_mm + 2.0 * v * (tr.times[k] - tr.times[k - 1])
-            if any(abs(p[ax] - c) < reach for ax, c in lines):
+            after = tr.xs[k:min(k + 2, n)]
+            # Normal velocity, positive away from the rail: v_n = inward * v[axis].
+            if any(abs(p[ax] - c) < reach and inward * x_prev[2 * ax + 1] < 0
+                   and any(inward * xa[2 * ax + 1] > 0 for xa in after)
+                   for _, ax, c, inward in self._lines):
                 continue
             n_breaks += 1
         return n_breaks < cfg.min_breaks or n_breaks <= cfg.max_break_share * n_seen
