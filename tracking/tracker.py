@@ -121,8 +121,6 @@ _ZERO4.flags.writeable = False
 # Hypothesis codes in `Tracker._assign` besides a prediction's index in its list (0 the plain
 # one, then the bounces): none, a velocity jump.
 _NO_HYP, _JUMP = -1, -2
-# The measurement picks the positions out of [x, vx, y, vy] (tracking.kalman).
-_H = np.array([[1.0, 0.0, 0.0, 0.0], [0.0, 0.0, 1.0, 0.0]])
 
 
 @dataclass(frozen=True)
@@ -220,8 +218,10 @@ class TrackerConfig:
 class _Track:
     """Forward-pass state and history of one ball (internal)."""
 
-    def __init__(self, key: int, x: np.ndarray, P: np.ndarray, frame: int, t: float):
+    def __init__(self, key: int, kf, frame: int, t: float):
         self.key = key  # creation order, internal
+        self.kf = kf  # the ball's filterpy KalmanFilter; its update step is the measurement update
+        x, P = kf.x.reshape(4).copy(), kf.P.copy()
         self.track_id: int | None = None  # output id, set on confirmation
         self.x = x  # (4,) posterior [x, vx, y, vy], mm and mm/s
         self.P = P  # (4, 4) its covariance
@@ -649,7 +649,7 @@ class Tracker:
             if brk and hyp == "predict":
                 self._restart_velocity(tr, pred, z, R)
             else:
-                tr.x, tr.P = _kalman_update(x, P, z, R)
+                tr.x, tr.P = _kalman_update(tr.kf, x, P, z, R)
         tr.record(frame, t, pred["F"], pred["Q"], True, brk, (z[0], z[1]))
 
     def _coast(self, tr: _Track, pred: dict, frame, t) -> None:
@@ -685,7 +685,7 @@ class Tracker:
         kf = make_ball_filter(dt_nominal, float(sigma), cfg.accel_sigma_mm_s2,
                               xy0_mm=(float(z[0]), float(z[1])),
                               speed_sigma_mm_s=cfg.initial_speed_sigma_mm_s)
-        tr = _Track(self._next_key, kf.x.reshape(4).copy(), kf.P.copy(), frame, t)
+        tr = _Track(self._next_key, kf, frame, t)
         self._next_key += 1
         tr.colours[colour] += 1
         tr.patterns[pattern] += 1
@@ -824,20 +824,17 @@ class Tracker:
             drop=True)
 
 
-def _kalman_update(x: np.ndarray, P: np.ndarray, z: np.ndarray,
+def _kalman_update(kf, x: np.ndarray, P: np.ndarray, z: np.ndarray,
                    R: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Kalman measurement update of the prior ``x`` (4,), ``P`` (4, 4) by a position ``z`` (2,)
-    mm with noise ``R`` (2, 2): the equations and order of operations of filterpy's
-    ``KalmanFilter.update`` (Joseph form of the covariance, which stays symmetric and positive
-    definite; Bar-Shalom et al. 2001 sec. 5.2.3), without its per-call bookkeeping."""
-    y = z - _H @ x  # innovation y = z - H x
-    PHT = P @ _H.T
-    S = _H @ PHT + R  # S = H P H^T + R
-    K = PHT @ np.linalg.inv(S)  # K = P H^T S^-1
-    x = x + K @ y
-    I_KH = _EYE4 - K @ _H
-    P = I_KH @ P @ I_KH.T + K @ R @ K.T  # P = (I - K H) P (I - K H)^T + K R K^T
-    return x, P
+    mm with noise ``R`` (2, 2), made by the ball's own filterpy ``KalmanFilter`` ``kf``
+    (Joseph form of the covariance, which stays symmetric and positive definite; Bar-Shalom et
+    al. 2001 sec. 5.2.3). The prior comes from the tracker's own predict, which chooses between
+    rolling on and a cushion bounce, so it is set on the filter before the update."""
+    kf.x = x.reshape(4, 1)
+    kf.P = P
+    kf.update(z.reshape(2, 1), R=R)
+    return kf.x.reshape(4).copy(), kf.P.copy()
 
 
 def _mahalanobis2(Z: np.ndarray, mean: np.ndarray, Ppos: np.ndarray, sig: np.ndarray) -> np.ndarray:
