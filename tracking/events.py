@@ -54,10 +54,17 @@ Method
    rail's reversal line moved by the rail's offset measured once for the clip: the apexes where
    each contact's approach and departure fits meet, pooled over all of that rail's contacts and
    weighed against the calibration's line (``_rail_offsets``; a calibration off by a millimetre
-   would otherwise bend every contact pinned to it). Then both sides
-   are refitted with their normal coordinate pinned to that line at a trial contact time,
-   scanned between the samples nearest the contact; the time with the least summed criterion
-   gives the contact, and the pinned fits give the speeds, angles and restitution. A contact
+   would otherwise bend every contact pinned to it), known to a standard deviation from the
+   same apexes (their pooled estimate's and their spread from contact to contact). Then both
+   sides are refitted through one contact point at a trial contact time, scanned between the
+   samples nearest the contact: the point's normal coordinate is the line as far as the line
+   is known and where the sides' own paths put the ball beyond that, the line's Gaussian prior
+   added to the criterion (``_Finder._pinned_contact``); each side's fit is the average of its
+   models and slide durations weighted by their BIC (Bayesian model averaging), so the result
+   moves smoothly with the line, and a slow departure, which a slide stretched back to an exact
+   line would turn by degrees per tenth of a millimetre, rests on its own path. The time with
+   the least summed criterion gives the contact, and the pinned fits give the speeds, angles
+   and restitution. A contact
    whose samples scatter about the fits by more than a ball's radius, or that leaves the line
    faster than it came (a cushion's speed ratio is below 1), is not a ball's bounce (a hand or a
    false track) and is dropped. *Collision*:
@@ -270,6 +277,17 @@ def _fit(ts: np.ndarray, ps: np.ndarray, t0: float, deg: int, sigma_mm: float) -
     return _Fit(t0, full, cov, s2, n, deg)
 
 
+def _batch_inv(N: np.ndarray) -> np.ndarray:
+    """Inverses of the stack N (G, q, q); a singular member gets its pseudo-inverse instead of
+    failing the whole stack. (A kink grid time on the first sample leaves the far piece's
+    columns dependent for that one grid time only; an exact zero pivot there, which rounding
+    decides, must not drop every other kink time with it.)"""
+    try:
+        return np.linalg.inv(N)
+    except np.linalg.LinAlgError:
+        return np.linalg.pinv(N)
+
+
 def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, step_s: float,
                    cfg: "EventConfig", pin: np.ndarray | None = None,
                    slide_decel: float | None = None,
@@ -392,10 +410,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         rss = np.zeros(G)
         for ax in range(2):
             j0, Aa, y, AtA, Atb = normal_equations(A, ax, roll_col)
-            try:
-                Ai = np.linalg.inv(AtA)
-            except np.linalg.LinAlgError:
-                return None
+            Ai = _batch_inv(AtA)
             c = np.einsum("gij,gj->gi", Ai, Atb)
             rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
             coef[:, j0:, ax] = c
@@ -421,11 +436,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             j0, Aa, y, N, h = normal_equations(A, ax, roll_col)
             sc = slide_col - j0
             o = [i for i in range(N.shape[1]) if i != sc]
-            try:
-                Nbb_i = np.linalg.inv(N[:, o][:, :, o])
-                inv[:, ax, j0:, j0:] = np.linalg.inv(N)
-            except np.linalg.LinAlgError:
-                return None
+            Nbb_i = _batch_inv(N[:, o][:, :, o])
+            inv[:, ax, j0:, j0:] = _batch_inv(N)
             Nbx, hb = N[:, o, sc], h[:, o]
             alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
             beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
