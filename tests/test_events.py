@@ -661,3 +661,80 @@ def test_two_tracks_ending_as_they_touch_make_no_collision():
         ev, _ = find_events(track(det, TABLE), TABLE, det)
         n += int((ev["kind"] == "collision").sum())
     assert n == 0
+
+
+# --- a slow bank and a contact line off by half a millimetre ----------------------------------
+def _slow_bank_session(seed: int):
+    """Four rolling contacts with the bottom cushion at 0.4-1.2 m/s normal speed (they measure
+    the clip's cloth and slide), then one slow rolling bank off the top cushion, arriving at
+    about 0.24 m/s 35 degrees off square and departing at about 0.18 m/s: the top rail's line
+    rests on that one contact. Simulated by ``analysis.physics`` (Alciatore 2004 cloth; cushion
+    impacts of Mathavan, Jackson & Parkin 2010); detections as in ``_cushion_session`` with
+    0.3 mm noise. Returns (tracks, detections, the simulator's slow contact)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    rng = np.random.default_rng(seed)
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": (400.0, 320.0)})
+    t = 0.5
+    for i, x0 in enumerate((400.0, 900.0, 1650.0, 2150.0)):  # clear of the pockets
+        if i:
+            sim.place(t, "cue", (x0, 320.0))
+        vn = float(rng.uniform(400.0, 1200.0))
+        ang = float(rng.uniform(-25.0, 25.0))
+        sim.strike(t + 0.4, Strike("cue", vn / math.cos(math.radians(ang)),
+                                   math.radians(-90.0 + ang), 0.0, 0.4))
+        t_lift = t + 0.4 + (320.0 - R) / vn + 0.45
+        sim.lift(t_lift, "cue")
+        t = t_lift + 0.4
+    sim.place(t, "cue", (1800.0, TABLE.width_mm - 250.0))
+    sim.strike(t + 0.4, Strike("cue", 330.0, math.radians(90.0 + 35.0), 0.0, 0.4))
+    sim.run_until_rest()
+    t_end = t + 0.4 + 2.2
+    traj = sim.trajectory()
+    det = detections(traj, t_end, 60.0, rng, rest_sigma_mm=0.15, moving_sigma_mm=0.3, drop=0.0)
+    truth = truth_events(TABLE, traj, t_end)
+    truth = truth[(truth["kind"] == "cushion") & (truth["rail"] == "top")].reset_index(drop=True)
+    return track(det, TABLE), det, truth.iloc[0]
+
+
+def test_a_slow_departure_hardly_turns_with_the_contact_line():
+    # A slow ball's departure is fixed by its own path: after its short slide the rolling leg is
+    # seen for many frames, and the slide's duration has the clip's prior
+    # (``_cushion_slide_ratio``, sd 0.05 of the normal speed arriving). Pinned exactly to a line
+    # moved by s, the slide must stretch by about s (vn_in + vn_roll) / (mu_s g tk vn_in),
+    # here some 23 ms per mm, i.e. 45 mm/s of normal speed out and 8 degrees per mm. The leg
+    # alone fixes angle_out to the prior's sd: 0.05 vn_in ~ 10 mm/s of normal speed, times
+    # |v_along| / |v_out|^2, at 180 mm/s 35 degrees off square about 1.8 degrees (all derived
+    # here, with the simulator's slide of 32 ms at mu_s g = 1.96 m/s^2). A line known to sd_L
+    # weighed against that leg moves the estimate by at most (sd_leg / 2) (shift / sd_L) (the
+    # weight of a Gaussian prior of sd k sd_L against one of sd sd_leg, times the slope k, peaks
+    # at sd_leg / (2 sd_L)), which is sd_leg over a shift of two sd_L, the calibration's half a
+    # millimetre each way: so over -0.5, 0, +0.5 mm angle_out may move by at most 1.8 degrees,
+    # and its median error must meet the issue's 1 degree against the simulator's impact.
+    # Measured: spreads 1.34, 1.05, 0.96, 0.96 degrees, median |error| 0.73 degree; pinned
+    # exactly to the line with one model chosen (before): spreads 4.6, 4.9, 3.3, 2.5, 0.93.
+    errs, spreads = [], []
+    for seed in (11, 12, 13, 14):
+        tracks, det, tr = _slow_bank_session(seed)
+        assert 150.0 <= tr["speed_out"] <= 250.0  # the case asked for: a slow departure
+        got = []
+        for shift in (-0.5, 0.0, 0.5):
+            # Every position moved along y: the top rail's reversal line then sits that far
+            # beyond (or short of) the balls' contact line, as a calibration off by that much
+            # places it.
+            tr_s, det_s = tracks.copy(), det.copy()
+            for df in (tr_s, det_s):
+                for col in ("y", "y_meas"):
+                    if col in df:
+                        df[col] += shift
+            found = _only(find_events(tr_s, TABLE, det_s)[0], "cushion")
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            assert abs(r["t"] - tr["t"]) < 1 / 60
+            got.append(r["angle_out"] - tr["angle_out"])
+        print(seed, np.round(got, 2))
+        errs += got
+        spreads.append(max(got) - min(got))
+    print("spreads", np.round(spreads, 2), "median |error|", np.median(np.abs(errs)))
+    assert max(spreads) <= 1.8
+    assert np.median(np.abs(errs)) <= 1.0

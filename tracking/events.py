@@ -54,10 +54,17 @@ Method
    rail's reversal line moved by the rail's offset measured once for the clip: the apexes where
    each contact's approach and departure fits meet, pooled over all of that rail's contacts and
    weighed against the calibration's line (``_rail_offsets``; a calibration off by a millimetre
-   would otherwise bend every contact pinned to it). Then both sides
-   are refitted with their normal coordinate pinned to that line at a trial contact time,
-   scanned between the samples nearest the contact; the time with the least summed criterion
-   gives the contact, and the pinned fits give the speeds, angles and restitution. A contact
+   would otherwise bend every contact pinned to it), known to a standard deviation from the
+   same apexes (their pooled estimate's and their spread from contact to contact). Then both
+   sides are refitted through one contact point at a trial contact time, scanned between the
+   samples nearest the contact: the point's normal coordinate is the line as far as the line
+   is known and where the sides' own paths put the ball beyond that, the line's Gaussian prior
+   added to the criterion (``_Finder._pinned_contact``); each side's fit is the average of its
+   models and slide durations weighted by their BIC (Bayesian model averaging), so the result
+   moves smoothly with the line, and a slow departure, which a slide stretched back to an exact
+   line would turn by degrees per tenth of a millimetre, rests on its own path. The time with
+   the least summed criterion gives the contact, and the pinned fits give the speeds, angles
+   and restitution. A contact
    whose samples scatter about the fits by more than a ball's radius, or that leaves the line
    faster than it came (a cushion's speed ratio is below 1), is not a ball's bounce (a hand or a
    false track) and is dropped. *Collision*:
@@ -270,12 +277,23 @@ def _fit(ts: np.ndarray, ps: np.ndarray, t0: float, deg: int, sigma_mm: float) -
     return _Fit(t0, full, cov, s2, n, deg)
 
 
+def _batch_inv(N: np.ndarray) -> np.ndarray:
+    """Inverses of the stack N (G, q, q); a singular member gets its pseudo-inverse instead of
+    failing the whole stack. (A kink grid time on the first sample leaves the far piece's
+    columns dependent for that one grid time only; an exact zero pivot there, which rounding
+    decides, must not drop every other kink time with it.)"""
+    try:
+        return np.linalg.inv(N)
+    except np.linalg.LinAlgError:
+        return np.linalg.pinv(N)
+
+
 def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, step_s: float,
                    cfg: "EventConfig", pin: np.ndarray | None = None,
                    slide_decel: float | None = None,
                    slide_dir: np.ndarray | None = None,
                    slide_tk: tuple[float, float] | None = None,
-                   weight: np.ndarray | None = None) -> _Fit | None:
+                   weight: np.ndarray | None = None, average: bool = False) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -325,6 +343,16 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     residuals of unknown variance, ``BIC = m ln(RSS / m) + k ln m`` over the m = 2 n coordinates
     with k free parameters (rolling 4, sliding 6, slide-then-roll ``4 + kink_params``; one fewer
     per pinned axis). Returns None for fewer than two samples.
+
+    ``average``: instead of the one least-criterion candidate (and, for a kink, the one least
+    grid time), the path near ``t0`` (``c0..c2``, the far piece and the kink time) is their
+    average weighted by ``exp(-BIC / 2)``, an approximation of each model's posterior
+    probability (Bayesian model averaging with BIC weights: Raftery 1995, Burnham & Anderson
+    2002): first over the kink grid within the slide-then-roll model (its posterior over the
+    kink time, a flat prior on the grid), then over the models. The returned ``bic`` is then
+    ``-2 ln sum exp(-BIC_i / 2)`` over the models, smooth where the choice between them would
+    jump; ``cov``, ``s2`` and ``k`` stay the best model's. A least-squares solve whose pin or
+    contact time moves by a hair then moves the fit by a hair (``_Finder._pinned_contact``).
     """
     n = len(ts)
     if n < 2:
@@ -342,6 +370,16 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
 
     def bic(rss, k):
         return m_obs * np.log(np.maximum(rss, floor) / m_obs) + k * math.log(m_obs)
+
+    def on_grid(sc, coef, tk_grid):
+        """The kink candidate from criterion values sc (G,) over the grid: (score, coef (4, 2),
+        best index, tk); with ``average``, coef and tk are means weighted by exp(-sc / 2)."""
+        g = int(np.argmin(sc))
+        if not average:
+            return float(sc[g]), coef[g], g, float(tk_grid[g])
+        w = np.exp(-0.5 * (sc - sc[g]))  # inf scores weigh 0
+        w /= np.sum(w)
+        return float(sc[g]), np.einsum("g,gij->ij", w, coef), g, float(w @ tk_grid)
 
     # Direction of travel for the rolling prior: a straight-line fit's velocity.
     lc, *_ = np.linalg.lstsq(np.stack([np.ones(n), tau], axis=1), P, rcond=None)
@@ -372,10 +410,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         rss = np.zeros(G)
         for ax in range(2):
             j0, Aa, y, AtA, Atb = normal_equations(A, ax, roll_col)
-            try:
-                Ai = np.linalg.inv(AtA)
-            except np.linalg.LinAlgError:
-                return None
+            Ai = _batch_inv(AtA)
             c = np.einsum("gij,gj->gi", Ai, Atb)
             rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
             coef[:, j0:, ax] = c
@@ -401,11 +436,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             j0, Aa, y, N, h = normal_equations(A, ax, roll_col)
             sc = slide_col - j0
             o = [i for i in range(N.shape[1]) if i != sc]
-            try:
-                Nbb_i = np.linalg.inv(N[:, o][:, :, o])
-                inv[:, ax, j0:, j0:] = np.linalg.inv(N)
-            except np.linalg.LinAlgError:
-                return None
+            Nbb_i = _batch_inv(N[:, o][:, :, o])
+            inv[:, ax, j0:, j0:] = _batch_inv(N)
             Nbx, hb = N[:, o, sc], h[:, o]
             alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
             beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
@@ -500,8 +532,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                 coef, rss, inv = out
                 k = 6 - n_pinned  # c0, c1 per axis, the slip angle and tk
                 sc = bic(rss + tk_prior(grid) * np.maximum(rss, floor) / m_obs, k)
-                g = int(np.argmin(sc))
-                cands.append((float(sc[g]), coef[g], inv[g], float(rss[g]), k, float(tk[g])))
+                score, cg, g, tkg = on_grid(sc, coef, tk)
+                cands.append((score, cg, inv[g], float(rss[g]), k, tkg))
             out = None
         else:
             out = solve(A, roll_col)
@@ -516,12 +548,23 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             s2_hat = np.maximum(rss, floor) / m_obs
             prior = ((a_slide - cfg.slide_decel_mm_s2) / cfg.slide_decel_sigma_mm_s2) ** 2
             sc = np.where(ok, bic(rss + prior * s2_hat, k), np.inf)
-            g = int(np.argmin(sc))
-            if np.isfinite(sc[g]):
-                cands.append((float(sc[g]), coef[g], inv[g], float(rss[g]), k, float(tk[g])))
+            if np.isfinite(sc).any():
+                score, cg, g, tkg = on_grid(sc, coef, tk)
+                cands.append((score, cg, inv[g], float(rss[g]), k, tkg))
     if not cands:
         return _fit(ts, ps, t0, 1, sigma_mm) if n_pinned == 0 else None
     score, c4, inv, rss, k, tk = min(cands, key=lambda c: c[0])
+    if average and len(cands) > 1:
+        sc = np.array([c[0] for c in cands])
+        w = np.exp(-0.5 * (sc - score))
+        c4 = np.zeros((4, 2))
+        for wi, c in zip(w / np.sum(w), cands):
+            # Beyond a kink the far piece's acceleration; a model without one keeps its own.
+            c4 += wi * (c[1] if c[5] is not None else np.vstack([c[1][:3], c[1][2:3]]))
+        kinked = [(wi, c[5]) for wi, c in zip(w / np.sum(w), cands) if c[5] is not None]
+        w_k = sum(wi for wi, _ in kinked)
+        tk = sum(wi * t for wi, t in kinked) / w_k if w_k >= 0.5 else None
+        score = score - 2.0 * math.log(float(np.sum(w)))
     dof = m_obs - k
     s2 = max(rss / dof if dof >= 4 else sigma_mm**2, 1e-8)
     # var p(t) per axis differs when one axis is pinned; keep the larger (free) axis' matrix.
@@ -789,7 +832,7 @@ def find_events(
             if a is not None:
                 apexes[rail].append(a)
         b.raw = raw
-    finder.rail_offset = _rail_offsets(apexes, cfg.reversal_line_sd_mm)
+    finder.rail_offset, finder.rail_line_sd = _rail_offsets(apexes, cfg.reversal_line_sd_mm)
     first = []  # (ball, rail, rough time, row or None, slide seen in enough samples)
     for b in balls:
         for tg, rail in rough_cushions[b.track]:
@@ -938,8 +981,9 @@ def _apex(fa: _Fit, fd: _Fit, ax: int, t_c: float, reach_s: float) -> tuple[floa
 
 
 def _rail_offsets(apexes: dict[str, list[tuple[float, float]]], sd_mm: float
-                  ) -> dict[str, float]:
-    """Each rail's contact line relative to its reversal line (mm), from the clip's contacts.
+                  ) -> tuple[dict[str, float], dict[str, float]]:
+    """Each rail's contact line relative to its reversal line (mm), from the clip's contacts,
+    and how well one contact's line is known (sd, mm).
 
     ``apexes``: per rail, (apex minus reversal line, variance) of each contact (``_apex``).
     The calibration places the reversal line to about ``sd_mm`` (an automatic calibration on
@@ -955,11 +999,20 @@ def _rail_offsets(apexes: dict[str, list[tuple[float, float]]], sd_mm: float
     Data Analysis, normal model with known variance); the offset is their average by posterior
     probability (Hoeting et al. 1999, Bayesian model averaging). A rail without contacts keeps
     offset 0.
+
+    The sd is what one contact's line is known to: the model-averaged posterior variance of the
+    offset (Hoeting et al. 1999, eq. 2: ``sum_k p_k (var_k + mean_k^2) - mean^2``) plus the
+    spread of the contact line from contact to contact that the apexes show beyond their own
+    variances (a cushion that gives more to a faster ball, a detection pulled by the rail near
+    the contact), estimated as the between-study variance of a random-effects model
+    (DerSimonian & Laird 1986: ``tau^2 = max(0, (Q - (n - 1)) / (S1 - S2 / S1))``, ``Q`` the
+    weighted squared deviations, ``S1``, ``S2`` the sums of weights and squared weights). A rail
+    without contacts gets ``sd_mm``.
     """
-    out = {}
+    out, sds = {}, {}
     for rail, obs in apexes.items():
         if not obs:
-            out[rail] = 0.0
+            out[rail], sds[rail] = 0.0, sd_mm
             continue
         d = np.array([o[0] for o in obs])
         v = np.maximum(np.array([o[1] for o in obs]), 1e-6)
@@ -968,12 +1021,16 @@ def _rail_offsets(apexes: dict[str, list[tuple[float, float]]], sd_mm: float
         keep = np.abs(d - med) <= 3.0 * np.maximum(np.sqrt(v), mad)
         d, v = d[keep], v[keep]
         if not len(d):
-            out[rail] = 0.0
+            out[rail], sds[rail] = 0.0, sd_mm
             continue
         w = 1.0 / v
         mean = float(np.sum(w * d) / np.sum(w))
+        tau2 = 0.0
         if len(d) >= 2:
-            chi2_red = float(np.sum(w * (d - mean) ** 2)) / (len(d) - 1)
+            q = float(np.sum(w * (d - mean) ** 2))
+            chi2_red = q / (len(d) - 1)
+            s1 = float(np.sum(w))
+            tau2 = max(0.0, (q - (len(d) - 1)) / (s1 - float(np.sum(w * w)) / s1))
             w = w / max(chi2_red, 1.0)
         # The apexes' mean and its variance; under "the line is off" (offset ~ N(0, sd_mm^2))
         # the posterior mean shrinks it by sd_mm^2 / (sd_mm^2 + s2); under "the line is
@@ -986,8 +1043,11 @@ def _rail_offsets(apexes: dict[str, list[tuple[float, float]]], sd_mm: float
         v1 = sd_mm**2 + s2
         log_bf = 0.5 * math.log(s2 / v1) + 0.5 * m * m * (1.0 / s2 - 1.0 / v1)
         p_off = 1.0 / (1.0 + math.exp(-min(log_bf, 700.0)))
-        out[rail] = p_off * m * sd_mm**2 / v1
-    return out
+        mean_off, var_off = m * sd_mm**2 / v1, s2 * sd_mm**2 / v1
+        out[rail] = p_off * mean_off
+        var = p_off * (var_off + mean_off**2) - out[rail] ** 2  # the other model: 0 and 0
+        sds[rail] = math.sqrt(max(var, 0.0) + tau2)
+    return out, sds
 
 
 class _Finder:
@@ -1002,6 +1062,8 @@ class _Finder:
         # Each rail's contact line relative to ``TableSpec.reversal_line`` (mm, along the
         # table axis normal to the rail), once measured (``_rail_offsets``).
         self.rail_offset = {r: 0.0 for r in RAILS}
+        # How well one contact's line is known (mm, sd), once measured (``_rail_offsets``).
+        self.rail_line_sd = {r: 0.0 for r in RAILS}
         self.segments = {r: [] for r in RAILS}
         for seg in table.cushions():
             ax = 0 if seg.rail in ("bottom", "top") else 1
@@ -1110,20 +1172,29 @@ class _Finder:
         return f, struck
 
     def _pinned_contact(self, b: _Ball, ax: int, c: float, t_c: float, lo: float, hi: float,
-                        n_a: int, n_d: int, slide_dir: np.ndarray | None = None,
-                        slide_tk: tuple[float, float] | None = None):
-        """Refine a cushion contact by fitting both sides through the reversal line.
+                        fa0: _Fit, fd0: _Fit, slide_dir: np.ndarray | None = None,
+                        slide_tk: tuple[float, float] | None = None, line_sd: float = 0.0):
+        """Refine a cushion contact by fitting both sides through one contact point.
 
-        In a rigid impact the centre is on the reversal line ``c`` (normal axis ``ax``) at the
-        contact instant on both sides, so for a trial time t both sides' fits
-        (``_piecewise_fit``) have their normal coordinate pinned, ``p_ax(t) = c``; the along-rail
+        In a rigid impact the centre is on the contact line at the contact instant, the same
+        point on both sides, so for a trial time t both sides' fits (``_piecewise_fit``, model
+        averaged) have their normal coordinate pinned, ``p_ax(t) = c_t``; the along-rail
         coordinate stays free. Pinning ties the short sliding piece after the impact to the
-        contact point, which the samples of that piece alone fix poorly. t is scanned between the
-        last approach sample and the first departure sample whose exposures do not straddle it
-        (``n_a`` / ``n_d`` samples nearest the contact on each side, as chosen by the unpinned
-        fits), and the t with the least sum of both sides' BIC is kept.
-        Returns (t, approach fit, departure fit) or None.
+        contact point, which the samples of that piece alone fix poorly. The line ``c`` (normal
+        axis ``ax``) is known only to ``line_sd`` (mm; ``_rail_offsets``), so ``c_t`` is the
+        inverse-variance mean of the line and of where each side's unpinned fit (``fa0``,
+        ``fd0``) puts the ball at t (the approach, well observed, mostly), and the line's
+        Gaussian prior ``((c_t - c) / line_sd)^2`` is added to the criterion: the contact time
+        then rests on the line as far as the line is known and on the departure path (its slide
+        and the slide's priors) beyond that, so a slow departure, whose slide-back to the line
+        stretches every tenth of a millimetre of line into a large change of its speed out, is
+        not swung by a line error its own path contradicts. With ``line_sd`` 0, ``c_t = c``.
+        t is scanned between the last approach sample and the first departure sample whose
+        exposures do not straddle it (the samples nearest the contact on each side that the
+        unpinned fits used), and the t with the least sum of both sides' criterion (plus the
+        line's prior) is kept. Returns (t, approach fit, departure fit, c_t) or None.
         """
+        n_a, n_d = fa0.n, fd0.n
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure)
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
@@ -1142,12 +1213,21 @@ class _Finder:
         wa, wd = b.weights(ta), b.weights(td)
 
         def fits(t: float):
-            fa = _piecewise_fit(ta, pa, t, b.sigma_fit, step, self.cfg, pin, weight=wa)
+            line = 0.0
+            if line_sd > 0:
+                # c_t = (c / sd^2 + n_a / var_a + n_d / var_d) / (1 / sd^2 + 1 / var_a + 1 / var_d)
+                est = [(c, line_sd**2)] + [(float(f.pos(t)[ax]), max(f.var(t), 1e-12))
+                                           for f in (fa0, fd0)]
+                wt = np.array([1.0 / v for _, v in est])
+                pin[ax] = float(wt @ np.array([e for e, _ in est]) / np.sum(wt))
+                line = ((pin[ax] - c) / line_sd) ** 2
+            fa = _piecewise_fit(ta, pa, t, b.sigma_fit, step, self.cfg, pin, weight=wa,
+                                average=True)
             fd = _piecewise_fit(td, pd_, t, b.sigma_fit, step, self.cfg, pin, self.slide_decel,
-                                slide_dir, slide_tk, weight=wd)
+                                slide_dir, slide_tk, weight=wd, average=True)
             if fa is None or fd is None:
                 return math.inf, fa, fd
-            return fa.bic + fd.bic, fa, fd
+            return fa.bic + fd.bic + line, fa, fd
 
         # Grid of 1/5 frame, then Brent's bounded minimisation within a grid step of the best.
         grid = np.linspace(t_lo, t_hi, max(3, int(math.ceil((t_hi - t_lo) / (0.2 * self.dt)))
@@ -1167,7 +1247,7 @@ class _Finder:
                               options={"xatol": 1e-9})
         t_best = tg + float(res.x) if res.fun <= scores[g] else tg
         _, fa, fd = fits(t_best)
-        return t_best, fa, fd
+        return t_best, fa, fd, float(pin[ax])
 
     # --- cushions ---------------------------------------------------------------------------
     def rough_cushions(self, b: _Ball) -> list[tuple[float, str]]:
@@ -1259,9 +1339,10 @@ class _Finder:
                 tk = self.slide_ratio * vn_in / self.slide_decel
                 slide_tk = (tk, max(self.cfg.slide_ratio_sigma * vn_in / self.slide_decel,
                                     0.25 * self.dt))
-        pinned = self._pinned_contact(b, ax, c, t_c, lo, hi, fa.n, fd.n, slide_dir, slide_tk)
+        pinned = self._pinned_contact(b, ax, c, t_c, lo, hi, fa, fd, slide_dir, slide_tk,
+                                      self.rail_line_sd[rail])
         if pinned is not None:
-            t_c, fa, fd = pinned
+            t_c, fa, fd, c = pinned
             if rolling_in and fd.tk is not None:
                 n_slide = int(np.sum((b.t > t_c) & (b.t <= t_c + fd.tk)
                                      & np.isfinite(b.raw[:, 0])))
