@@ -1351,13 +1351,18 @@ class BallDetector:
         bb = np.maximum(_dot3(bprof, bprof), 1.0)
         a = _dot3(prof, bprof) / bb
         off_hue = _chroma_off(prof, bprof, a)
-        shade = (a < 1.03) & (off_hue < 0.08)
+        bness = ballness(prof, bprof)
+        # A shadow's light is not the lamps' (room light, the cloth's own bounce), so a deep
+        # one can turn its colour further than the sine bound above, above all on dim pale
+        # cloth where noise is a larger share of the dark value: dimmed samples that the
+        # foreground test itself calls background (the same noise-scaled threshold) are shade too.
+        shade = (a < 1.03) & ((off_hue < 0.08) | (bness <= self._score_thr))
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
         # match the cloth's hue too. ``shadows`` False skips the test.
         shade = np.flip(np.logical_and.accumulate(np.flip(shade, axis=1), axis=1), axis=1) & (rho >= rho_pred[:, None])
         if shadows:
-            D = np.where(shade, np.minimum(D, ballness(prof, bprof)), D)
+            D = np.where(shade, np.minimum(D, bness), D)
         inner_sel = rho <= 0.8 * rho_pred[:, None]
         inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
         # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
