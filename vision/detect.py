@@ -1354,9 +1354,13 @@ class BallDetector:
         bness = ballness(prof, bprof)
         # A shadow's light is not the lamps' (room light, the cloth's own bounce), so a deep
         # one can turn its colour further than the sine bound above, above all on dim pale
-        # cloth where noise is a larger share of the dark value: dimmed samples that the
-        # foreground test itself calls background (the same noise-scaled threshold) are shade too.
-        shade = (a < 1.03) & ((off_hue < 0.08) | (bness <= self._score_thr))
+        # cloth where noise is a larger share of the dark value: dimmed samples whose colour
+        # the foreground test itself calls the cloth's (its chromaticity term, Horprasert et
+        # al. 1999, under the same noise-scaled threshold) are shade too, however dark: the
+        # crease where the ball meets the cloth, out of the room's light as well as the lamps',
+        # is darker than the half-light floor of :func:`ballness`.
+        cd = _norm3(prof - a[..., None] * bprof) / np.maximum(np.sqrt(bb), 30.0)
+        shade = (a < 1.03) & ((off_hue < 0.08) | (cd <= self._score_thr))
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
         # match the cloth's hue too. ``shadows`` False skips the test.
