@@ -19,7 +19,10 @@ clips these lie on the cue, hands and arms or in pockets, as no other objects ar
 true balls with no detection within a ball radius (missed; under the occluder too), and prints
 the detector's time per frame (median and mean, ms).
 
-Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...]`` or
+With ``--save DIR`` each scene's per-ball-frame table (truth ball id and position, error and its
+x, y components, mm) and its detections are written to ``DIR`` as CSV, for breakdowns.
+
+Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...] [--save DIR]`` or
 ``.venv/bin/python benchmarks/detect_accuracy.py --clip cushion_check --frames 0 1200``.
 """
 
@@ -321,9 +324,10 @@ def occluded(scene_text: str, table, truth: pd.DataFrame) -> np.ndarray:
     return out
 
 
-def evaluate(name: str, work: Path) -> dict:
+def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
     """Detect on one filmed scene and match to its truth; returns per-ball-frame errors and
-    counts."""
+    counts. ``save``: a folder to write the per-ball-frame table (``NAME.errors.csv``: truth
+    ball id and position beside the error) and the detections (``NAME.detections.csv``) to."""
     from vision.detect import detect_clip
 
     clip = work / f"{name}.mp4"
@@ -350,12 +354,12 @@ def evaluate(name: str, work: Path) -> dict:
                 if D[a, b] < gate:
                     matched_t.add(a)
                     matched_d.add(b)
-                    rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), D[a, b], bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a]))
+                    rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), D[a, b], bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a], P[a, 0], P[a, 1], Q[b, 0] - P[a, 0], Q[b, 1] - P[a, 1]))
             for b in set(range(len(Q))) - matched_d:
                 false_rows.append((f, Q[b, 0], Q[b, 1], bool(g["hidden"].any())))
         for a in set(range(len(P))) - matched_t:
-            rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), np.nan, bool(g["hidden"].iloc[a]), "", g["pattern"].iloc[a]))
-    E = pd.DataFrame(rows, columns=["frame", "ball", "speed", "err", "hidden", "pattern", "true_pattern"])
+            rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), np.nan, bool(g["hidden"].iloc[a]), "", g["pattern"].iloc[a], P[a, 0], P[a, 1], np.nan, np.nan))
+    E = pd.DataFrame(rows, columns=["frame", "ball", "speed", "err", "hidden", "pattern", "true_pattern", "x", "y", "dx", "dy"])
     F = pd.DataFrame(false_rows, columns=["frame", "x", "y", "occluder_active"])
     pockets = np.array([p.mouth_centre for p in table.pockets()])
     if len(F):
@@ -363,6 +367,10 @@ def evaluate(name: str, work: Path) -> dict:
         F["pocket"] = dp < 80
     else:
         F["pocket"] = pd.Series(dtype=bool)
+    if save is not None:
+        save.mkdir(parents=True, exist_ok=True)
+        E.to_csv(save / f"{name}.errors.csv", index=False)
+        det.to_csv(save / f"{name}.detections.csv", index=False)
     return {"name": name, "errors": E, "false": F, "fps": scene.camera and scene.film.fps, "shutter": scene.film.shutter_s, "seconds": elapsed, "frames": int(tr["frame"].max()) + 1}
 
 
@@ -414,6 +422,7 @@ def main(argv=None) -> int:
     ap.add_argument("--work", default="/tmp/railtrace_detect_bench", help="folder for the filmed clips (reused)")
     ap.add_argument("--only", nargs="*", default=None, help="scene names to run (default all)")
     ap.add_argument("--clip", default=None, help="a sample clip's name (sample_clips/NAME.mp4): count false and missed detections instead")
+    ap.add_argument("--save", default=None, help="folder to write each scene's per-ball-frame errors (truth id, position, error) and detections to, as CSV")
     ap.add_argument("--frames", nargs=2, type=int, default=(0, 300), metavar=("FIRST", "LAST"), help="with --clip: the frames to score, FIRST to LAST - 1")
     args = ap.parse_args(argv)
     if args.clip:
@@ -424,7 +433,7 @@ def main(argv=None) -> int:
         raise SystemExit(f"unknown scene(s) {unknown}; choose from {list(SCENES)}")
     work = Path(args.work)
     film(work, names)
-    results = [evaluate(n, work) for n in names]
+    results = [evaluate(n, work, Path(args.save) if args.save else None) for n in names]
     print(f"{'scene':22s} {'fps':>4s} {'shutter':>8s} | rest med  p95 |  mov med  p95 | det rate | false (occl, pocket) | frames/s")
     allE = []
     for r in results:

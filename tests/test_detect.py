@@ -446,16 +446,7 @@ def test_every_ball_of_a_touching_cluster_is_found(cluster, name):
         assert len(set(j.tolist())) == len(CLUSTER_AT) and len(det) == len(CLUSTER_AT), (name, i, det)
 
 
-@pytest.mark.parametrize(
-    "name",
-    [
-        "green_high",
-        pytest.param(
-            "blue_low_wide",
-            marks=pytest.mark.xfail(strict=True, reason="the dark solid pressed into the triangle under the wide lens is still about 4 mm off (median 1.03 mm)"),
-        ),
-    ],
-)
+@pytest.mark.parametrize("name", ["green_high", "blue_low_wide"])
 def test_touching_balls_are_placed_without_their_neighbours_rims(cluster, name):
     # Half a touching ball's outline window can hold its neighbour's rim; fitted with the rays
     # toward its neighbours left out, the cluster's balls meet the issue's acceptance for
@@ -683,3 +674,30 @@ def test_ball_just_off_a_cushion_is_not_pulled_towards_it(off_the_rail):
     # 40 mm in the ten frames the speed is measured over, so a bias that changes by more than
     # 0.5 mm across them costs over 1.2 % by itself; held here as the bias itself.
     assert np.abs(towards).max() <= 0.5, towards
+
+
+# Green striped balls on blue cloth under a low wide camera and two lamps, the first frame
+# already holding them (so the empty table is filled in round them): the band's dark rim runs
+# into the dark crease where the ball meets the cloth, out of the lamps' and the room's light.
+STRIPE_CAM = Camera.overhead(NINE_FOOT, 1800.0, (1280, 720), offset_mm=(-200, 120), roll_deg=-4.0, dist=(-0.28, 0.08, 0, 0, -0.01))
+STRIPE_AT = np.array([[2000.0, 500.0], [1700.0, 300.0], [2200.0, 900.0], [1300.0, 450.0], [900.0, 850.0], [500.0, 300.0], [2300.0, 300.0], [1500.0, 1000.0]])
+
+
+@pytest.mark.parametrize("spin_seed", [0, 2])
+def test_striped_balls_whose_band_meets_the_crease_are_found_and_placed(spin_seed):
+    from scipy.spatial.transform import Rotation
+
+    look = Look(cloth_bgr=(154, 79, 29), cushion_bgr=(131, 67, 25), noise_sigma=3.0, exposure=1.2, lamps=(Lamp((700.0, 635.0, 1000.0)), Lamp((1840.0, 635.0, 1100.0))))
+    n = len(STRIPE_AT)
+    rot = Rotation.random(n, random_state=np.random.default_rng(spin_seed)).as_matrix()[None]
+    balls = tuple(BallLook(str(9 + i), "stripe", (58, 122, 31)) for i in range(n))
+    ren = Renderer(NINE_FOOT, STRIPE_CAM, look, balls, seed=2)
+    det = BallDetector(STRIPE_CAM, NINE_FOOT)
+    for i in range(2):
+        out = det.process(i, i / 60, ren.render(STRIPE_AT[None], rot, np.ones((1, n), bool), np.array([i / 60])))
+    err, j = _match(out, STRIPE_AT)
+    # Issue acceptance: at least 99.5 % of fully visible balls detected (here every one of
+    # the eight, each by its own detection, within a ball radius as the benchmark counts).
+    assert np.all(np.isfinite(err)) and len(set(j.tolist())) == n, (spin_seed, err)
+    # Issue acceptance: resting balls median centre error <= 1 mm, p95 <= 2.5 mm.
+    assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (spin_seed, err)

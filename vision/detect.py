@@ -50,8 +50,9 @@ Method
    counted only where the colour moves toward the background going outward (so interior
    stripes, number discs and highlights are mostly rejected, and a shadow's soft edge loses to
    the ball's sharp one). Samples beyond the predicted outline that only dim the empty table
-   (the model's own hue, no brighter), in a run out to the cloth, are cast shadow and measured
-   by :func:`ballness`, so a dark rim that fades into its shadow does not hand the outline to
+   (the model's own hue, no brighter; the hue judged as the foreground test judges it, so a
+   deep shadow tinted by room light and the dark crease where the ball meets the cloth count),
+   in a run out to the cloth, are cast shadow and measured by :func:`ballness`, so a dark rim that fades into its shadow does not hand the outline to
    the shadow's far edge; a seed that fails so is tried once without. A ball of the cloth's own
    hue and brightness (blue on blue, red on red: :func:`_plain_body`) has no colour step at its
    outline, only the ramp of its shading into its shadow; its outline is the inner flank of
@@ -78,11 +79,14 @@ Method
    the principal axis pinches at the middle (two touching balls have a waist; a blur streak is
    widest at its middle); a fitted streak shorter than 0.3 R each way is refitted as a sharp
    ball (shading and shadow stretch a resting outline by a few mm).
-6. *Sub-pixel outline* (sharp balls): up to six further rounds place each outline point by the
-   two-colour mixing model of :meth:`BallDetector._edges_local` (ball rim colour just inside,
-   cloth or cast shadow just outside, crossing of half coverage), refitting the sphere each
-   round until the centre moves less than 0.05 mm; if that fit agrees worse with the sphere
-   than the coarse one, the coarse fit stands.
+6. *Sub-pixel outline* (sharp balls): up to six further rounds place each outline point by
+   :meth:`BallDetector._edges_local`, refitting the sphere each round until the centre moves
+   less than 0.05 mm; if that fit agrees worse with the sphere than the coarse one, the coarse
+   fit stands. Where the rim's colour differs in hue from the surface just outside on most of
+   the outline, each point is where the colour's part off the surround's colour direction
+   (zero for the cloth lit, in shadow or in the crease, as a shadow only scales it) falls to
+   half its value at the rim (:func:`_off_hue_edges`); else by a two-colour mixing model (ball
+   rim colour just inside, cloth or cast shadow just outside, crossing of half coverage).
 7. *Identity*: pixels inside 0.88 of the fitted outline, in HSV: near-white, coloured (not of
    the cloth's hue) and dark shares decide cue (almost all white, nothing tinted or dark),
    stripe (a white share with colour), solid (colour, little white); the coloured pixels'
@@ -92,8 +96,8 @@ Method
 Limits (named honestly): streaks shorter than R of centre travel each way are found as a disc at
 the right mid-exposure centre but report ``blur_x = blur_y = 0``; the travel reported for long
 streaks is not yet right (the faint ends are found inside the swept outline); a ball whose dark
-rim fades into its own cast shadow (a dark stripe band on dark cloth) can still be placed a few mm
-off; a ball of the cloth's own hue and brightness is seeded from its crown or highlight, so
+rim fades into its own cast shadow with no change of hue (a black ball, a dark band of the
+cloth's hue) can still be placed a few mm off; a ball of the cloth's own hue and brightness is seeded from its crown or highlight, so
 one whose highlight does not stand out is missed, and one right under a lamp, whose disc
 matches the cloth's brightness over half its area, fails the filled-disc test and is missed
 (2 of 6 blue balls on blue cloth of nearly their albedo in the tests); a ball of the cloth's
@@ -171,6 +175,13 @@ _AVOID_R = 1.2
 _MIN_FREE_RAYS = 12
 # Rounds of seeding what the fitted balls leave unexplained in a piece of foreground.
 _REMAINDER_ROUNDS = 2
+# The local edge places the outline by the colour off the surround's hue
+# (:func:`_off_hue_edges`) where the rim's colour lies at least this sine (about 14 degrees)
+# off the surround's, twice the cloth's texture and a dark rim's noise (not a measured
+# figure); every ray so when they are at least _HUE_RAYS as many as the mixing model's rays,
+# else those rays so and the rest by the two-colour mixing.
+_HUE_STEP = 0.25
+_HUE_RAYS = 0.75
 
 
 @dataclass(frozen=True)
@@ -643,6 +654,46 @@ def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.n
     if np.percentile(a, 95) < 1.1 or a[core].mean() - a[ring].mean() < 0.15:
         return 0.0
     return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
+
+
+def _off_hue_edges(prof: np.ndarray, off: np.ndarray, S: np.ndarray, min_step: float) -> tuple[np.ndarray, np.ndarray]:
+    """Outline offsets (K,) px along rays and whether found (K,) bool, from the part of the
+    colour off the surround's own colour direction: ``prof`` (K, N, 3) colours sampled at
+    offsets ``off`` (N,) px (outward) round a predicted outline, ``S`` (K, 3) the surround's
+    colour just outside it (:meth:`BallDetector._edges_local`).
+
+    A shadow only scales the colour of the surface it falls on (Horprasert, Harwood & Davis
+    1999), and so does a lit sphere's shading, darkest towards its limb (Lambert's cosine law):
+    so the component ``beta = I . e`` of each colour along ``e``, the rim's colour ``P`` (the
+    frame 1.25..2 px inside) with its part along ``S`` removed and normalised, is zero for the
+    cloth at any brightness (lit, in its cast shadow, in the dark crease where the ball meets
+    it) and, across the outline, rises with the ball's coverage of the pixel times the
+    shaded ball's own brightness there. The outline is where ``beta`` crosses half its value
+    at the rim band (common practice: the half-coverage point of a blurred step), linearly
+    interpolated, nearest the prediction. So neither a shadow running into a dark rim nor the
+    crease is taken for the ball, which the two-colour mixing model cannot tell from a rim of
+    the surround's hue. The band lies nearer the outline than the mixing model's, so less of
+    the limb's darkening lies between it and the outline (the crossing is still about half a
+    pixel inside, nearly the same all round, where it goes into the fit's radius bias);
+    1.75..2.75 px let a stripe's white cap into the band and the rounds drift along it, in
+    the rendered scenes of ``benchmarks/detect_accuracy.py``. A ray counts when ``P`` lies at
+    least ``_HUE_STEP`` (the sine of the angle between the two colours) off the surround's
+    direction and its off-hue part exceeds ``min_step`` DN.
+    """
+    band = (off >= -2.0) & (off <= -1.25)
+    P = prof[:, band].mean(axis=1)
+    Sh = S / np.maximum(_norm3(S), 1.0)[:, None]
+    e = P - _dot3(P, Sh)[:, None] * Sh
+    en = _norm3(e)
+    e = e / np.maximum(en, 1e-6)[:, None]
+    beta = _dot3(prof, e[:, None, :]) / np.maximum(en, 1e-6)[:, None]  # 1 at the rim band's colour
+    b0, b1 = beta[:, :-1], beta[:, 1:]
+    cross = (b0 >= 0.5) & (b1 < 0.5)
+    pos = off[None, :-1] + _STEP_PX * (b0 - 0.5) / np.where(cross, b0 - b1, 1.0)
+    pos = np.where(cross, pos, np.inf)
+    edge = pos[np.arange(len(pos)), np.argmin(np.abs(pos), axis=1)]
+    ok = np.isfinite(edge) & (en > min_step) & (en > _HUE_STEP * _norm3(P))
+    return edge, ok
 
 
 def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
@@ -1351,13 +1402,22 @@ class BallDetector:
         bb = np.maximum(_dot3(bprof, bprof), 1.0)
         a = _dot3(prof, bprof) / bb
         off_hue = _chroma_off(prof, bprof, a)
-        shade = (a < 1.03) & (off_hue < 0.08)
+        bness = ballness(prof, bprof)
+        # A shadow's light is not the lamps' (room light, the cloth's own bounce), so a deep
+        # one can turn its colour further than the sine bound above, above all on dim pale
+        # cloth where noise is a larger share of the dark value: dimmed samples whose colour
+        # the foreground test itself calls the cloth's (its chromaticity term, Horprasert et
+        # al. 1999, under the same noise-scaled threshold) are shade too, however dark: the
+        # crease where the ball meets the cloth, out of the room's light as well as the lamps',
+        # is darker than the half-light floor of :func:`ballness`.
+        cd = _norm3(prof - a[..., None] * bprof) / np.maximum(np.sqrt(bb), 30.0)
+        shade = (a < 1.03) & ((off_hue < 0.08) | (cd <= self._score_thr))
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
         # match the cloth's hue too. ``shadows`` False skips the test.
         shade = np.flip(np.logical_and.accumulate(np.flip(shade, axis=1), axis=1), axis=1) & (rho >= rho_pred[:, None])
         if shadows:
-            D = np.where(shade, np.minimum(D, ballness(prof, bprof)), D)
+            D = np.where(shade, np.minimum(D, bness), D)
         inner_sel = rho <= 0.8 * rho_pred[:, None]
         inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
         # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
@@ -1405,6 +1465,13 @@ class BallDetector:
         prediction. Rays whose rim contrast |P - S| is below ``local_min_sigmas`` noise sigmas
         (a dark band against shadow) give NaN. Because P and S are local, the white cap and the
         coloured band of a striped ball each set their own level.
+
+        Where most rays' rim colour differs in hue from the surround's, the points are instead
+        placed by :func:`_off_hue_edges` (the colour's part off the surround's direction, which
+        shadows and shading only scale), on every ray where it can; the mixing model above
+        takes a shadow that runs into a dark rim, or the crease, for part of the ball, and its
+        rim colour sampled 2 px in is brighter than the limb at the outline (Lambert's cosine
+        law), both on one side of a ball lit from one side.
         """
         off = np.arange(-_LOCAL_REACH_PX, _LOCAL_REACH_PX + 1e-9, _STEP_PX)
         rho = np.maximum(rho_pred[:, None] + off[None, :], 0.0)
@@ -1426,6 +1493,16 @@ class BallDetector:
         edge = pos[np.arange(len(pos)), j]
         noise = max(self.background.sigma, 0.5) * math.sqrt(3)
         ok = np.isfinite(edge) & (np.sqrt(n2) > self.config.local_min_sigmas * noise)
+        hue_edge, hue_ok = _off_hue_edges(prof, off, S, self.config.local_min_sigmas * noise)
+        if hue_ok.sum() >= _HUE_RAYS * ok.sum():
+            # Most of the outline shows the ball's hue against the surround's: every ray is
+            # placed so (one rule all round, so its small inward bias is the same all round
+            # and goes into the fit's radius bias instead of the centre).
+            edge, ok = hue_edge, hue_ok
+        else:
+            # Part of the rim is of the surround's hue (a white cap on grey cloth): those rays
+            # keep the mixing model, the others are placed by the hue.
+            edge, ok = np.where(hue_ok, hue_edge, edge), ok | hue_ok
         pts = c[None] + (rho_pred + np.where(ok, edge, 0.0))[:, None] * dirs
         pts[~ok] = np.nan
         return pts
