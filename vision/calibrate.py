@@ -336,6 +336,7 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
     scale = 1.0
     n = 0
     last_t = -1e9
+    t_unmoved = -1e9  # time of the last sample that showed no motion
     ring_len = int(max(8, 4 * config.bump_persist * max(1, config.bump_every_s * 60)))
     ring: list[tuple[float, np.ndarray]] = []  # (t, small grey); replaced, never changed in place
     pending: list[tuple[float, np.ndarray]] = []  # (t, warp) of samples that disagree with the reference
@@ -361,11 +362,12 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
 
     def judge(t: float, small: np.ndarray, ring_then: list, known=None) -> None:
         # One sample in order, as if aligned when it came (the ring as it stood then).
-        nonlocal seg, pending
+        nonlocal seg, pending, t_unmoved
         keep_until(t)
         warp, edge = known if known is not None else moved(small)
         if warp is None:
             pending = []
+            t_unmoved = t
             return
         pending.append((t, warp))
         if len(pending) < config.bump_persist:
@@ -375,8 +377,12 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
         if np.max(np.abs(ws - ws.mean(axis=0)), axis=0)[:, 2].max() * 1.0 / scale > 3 * config.bump_threshold_px:
             pending = pending[1:]
             return
+        # Only frames after the last sample that showed no motion: a shake earlier in the ring,
+        # already over, is not this bump's start.
         t_bump = pending[0][0]
         for tt, sm in ring_then:
+            if tt <= t_unmoved:
+                continue
             if tt >= pending[0][0]:
                 break
             w = _ecc(seg.ref_edge, _edge_small(sm))
@@ -388,6 +394,7 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
         seg.ref_edge = edge
         segments.append(seg)
         pending = []
+        t_unmoved = t
         # Frames after the bump already seen are not kept (the still sample restarts here).
 
     for t, small, full, scale in _small_frames(source):
@@ -421,6 +428,7 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
             known = moved(small_s)
             if known[0] is None:
                 deferred = []
+                t_unmoved = t_s
                 keep_until(t_s)
                 continue
             for item in deferred[:-1]:
