@@ -11,7 +11,7 @@ Prints each run (with the processor seconds of this process and its workers, and
 stage's wall and processor seconds) and the medians: frames per second, the ratio to real time (clip duration over
 wall time) and the ratio of (b) to (a). ``--workers`` sets ``AnalyseConfig.workers`` (0: one
 detection process per core this process may use, so ``taskset`` limits it; default: the
-pipeline's default, one process). Beside wall time (which five jobs sharing two cores
+pipeline's default: one per core; revisions before it used one process). Beside wall time (which five jobs sharing two cores
 stretch at will) it prints the median processor time of decoding and of the analysis: clip
 duration over processor seconds is the speed on one fully used core, times ``--cores`` the
 best the analysis could do with that many idle cores. Each run also prints the machine's load

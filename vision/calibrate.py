@@ -11,10 +11,12 @@ Frames (as written down in :mod:`vision.table` and :mod:`vision.camera`):
 
 How a clip becomes a :class:`~vision.camera.Camera`:
 
-1. **Background**: frames are streamed once; a frame is *still* when its mean absolute difference
-   from the previous frame (grey, downscaled) is small; a spread-out sample of still frames is
-   kept and their per-pixel temporal median is the background (moving balls, arms and the cue
-   vanish; resting balls stay and are rejected later as outliers).
+1. **Background**: frames are streamed once (a clip decoded to its luma only, each frame
+   downscaled to 320 px wide; only the frames kept are converted to colour); a frame is *still*
+   when its mean absolute difference from the previous frame (grey, downscaled) is small; a
+   spread-out sample of still frames is kept and their per-pixel temporal median is the
+   background (moving balls, arms and the cue vanish; resting balls stay and are rejected later
+   as outliers).
 2. **Cloth region**: the connected region around the image centre whose chroma matches the
    centre's (median and median absolute deviation in CIE Lab, lightness tolerant so lamps and
    vignetting do not matter); its outline gives a rough quadrilateral.
@@ -80,8 +82,10 @@ TPAMI 30(10), 2008); a motion of the table's outline by more than ``bump_thresho
 ``bump_persist`` samples and that aligns each of the image's four quarters better than no motion
 does (an arm or cue held over the table pulls the whole-image alignment but leaves the other
 quarters unmoved; balls are too small) starts a new segment,
-dated to the first frame that shows it; each segment gets its own background and camera (same
-lens, new pose).
+dated to the first frame after the last unmoved sample that shows it; each segment gets its own
+background and camera (same lens, new pose). While no sample shows motion only every
+``bump_persist``-th is aligned, the others only when it shows motion (:func:`_collect`), with
+exactly the result of aligning every sample.
 """
 
 from __future__ import annotations
