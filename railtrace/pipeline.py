@@ -282,7 +282,7 @@ class _Helpers:
             try:
                 kind, value = conn.recv()
             except EOFError:
-                raise ValueError("a detection worker process ended without its results (out of memory?); run again with AnalyseConfig.workers = 1") from None
+                raise ValueError("a detection worker process ended without its results (out of memory?); run again with --workers 1 (AnalyseConfig.workers = 1)") from None
             if kind == "error":
                 raise value
             out.append(value)
