@@ -58,9 +58,9 @@ class AnalyseConfig:
     0.0079, medians) and two extra short false tracks of 9-10 frames; on the 82 s cushion
     sample the same 54 of 56 contacts, along the rail 0.24 vs 0.20 mm, outgoing angle 0.23 vs
     0.19 deg, outgoing speed 0.28 vs 0.26 %, no identity switch (2 in one pass), 44 tracks for
-    40). The split costs a
-    second background and decoding up to the cut (in processor time within the noise of runs
-    on a loaded machine: detection 54.0-55.5 s split, 51.4-54.5 s in one pass).
+    40). The split costs a second background and decoding up to the cut (in processor time
+    within the noise of runs on a loaded machine: detection 54.0-55.5 s split, 51.4-54.5 s in
+    one pass).
     ``chunk_warmup_s``: how long before its part each later part's detector starts, so its
     background and change state have settled when its own frames begin.
     """
