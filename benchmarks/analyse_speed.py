@@ -11,10 +11,11 @@ Prints each run (with the processor seconds of this process and its workers, and
 stage's wall and processor seconds) and the medians: frames per second, the ratio to real time (clip duration over
 wall time) and the ratio of (b) to (a). ``--workers`` sets ``AnalyseConfig.workers`` (0: one
 detection process per core this process may use, so ``taskset`` limits it; default: the
-pipeline's default, one process). Beside wall time (which five jobs sharing two cores
+pipeline's default: one per core; revisions before it used one process). Beside wall time (which five jobs sharing two cores
 stretch at will) it prints the median processor time of decoding and of the analysis: clip
 duration over processor seconds is the speed on one fully used core, times ``--cores`` the
-best the analysis could do with that many idle cores.
+best the analysis could do with that many idle cores. Each run also prints the machine's load
+(1-minute load average) as it ended, to say how far other jobs stretched its wall time.
 
 Run: ``.venv/bin/python benchmarks/analyse_speed.py --runs 3`` (default clip
 ``sample_clips/bank_practice.mp4``, 720p60, 38 s).
@@ -23,6 +24,7 @@ Run: ``.venv/bin/python benchmarks/analyse_speed.py --runs 3`` (default clip
 from __future__ import annotations
 
 import argparse
+import os
 import resource
 import shutil
 import statistics
@@ -83,8 +85,10 @@ def main(argv=None) -> int:
             stages = ", ".join(f"{k} {v:.1f}" for k, v in getattr(summary, "stage_seconds", {}).items())
             cpus = ", ".join(f"{k} {v:.1f}" for k, v in getattr(summary, "stage_cpu_seconds", {}).items())
             proc.append(cpu)
+            load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
             print(f"run {k}: decode {dec[-1]:7.1f} frames/s ({dec_cpu[-1]:.1f} processor s); analyse {secs:6.1f} s = {full[-1]:6.1f} frames/s, "
-                  f"{cpu:.1f} processor s (wall s: {stages or 'no stage times'}; processor s: {cpus or 'not reported'})", flush=True)
+                  f"{cpu:.1f} processor s (wall s: {stages or 'no stage times'}; processor s: {cpus or 'not reported'}); "
+                  f"machine load {load:.1f} (1-min average, {os.cpu_count()} cores)", flush=True)
     finally:
         shutil.rmtree(work, ignore_errors=True)
     d, f = statistics.median(dec), statistics.median(full)

@@ -63,6 +63,9 @@ def build_parser() -> argparse.ArgumentParser:
     analyse.add_argument("--player", default=None, help="player's name, for the history")
     analyse.add_argument("--table-name", default=None, help="the table's name in the room, for the history")
     analyse.add_argument("--quiet", action="store_true", help="no progress bar")
+    analyse.add_argument("--workers", type=int, default=0, metavar="N",
+                         help="processes detecting balls, each on its own part of the clip (default 0: one per core; "
+                              "1: one pass, whose detections differ slightly from a split clip's)")
 
     banks_cmd.add_parser(sub)
     calibrate_cmd.add_parser(sub)
@@ -106,7 +109,7 @@ def _cmd_analyse(args: argparse.Namespace) -> int:
     from railtrace.pipeline import AnalyseConfig, analyse_clip
     from vision.table import parse_table
 
-    config = AnalyseConfig(table=parse_table(args.table, args.ball), calibration_path=args.calibration)
+    config = AnalyseConfig(table=parse_table(args.table, args.ball), calibration_path=args.calibration, workers=args.workers)
     progress = None if args.quiet or not sys.stderr.isatty() else _ProgressBar("analysing")
     summary = analyse_clip(args.clip, args.out, config, progress=progress)
     if progress is not None:

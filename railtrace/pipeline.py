@@ -10,17 +10,19 @@ thread ahead of the detector where there is a spare core. With ``workers`` other
 detection, most of the work, runs in parallel: the clip is cut in time into one part per worker
 process (:func:`split_frames`), each part's detector starting ``chunk_warmup_s`` before its
 part (its first frame builds the background, as at the start of a clip) and keeping only its
-own frames; tracking and events then run once over the joined detections.
+own frames; tracking and events then run once over the joined detections. The later parts'
+processes are started before calibration, so their start-up and their decoding up to their
+part overlap it; they wait for the cameras before detecting.
 """
 
 from __future__ import annotations
 
+import itertools
 import logging
 import math
 import multiprocessing
 import resource
 import time
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -45,13 +47,20 @@ class AnalyseConfig:
     """Everything that steers one analysis: the table, an optional calibration file, and each
     stage's own configuration.
 
-    ``workers``: processes that detect balls, each on its own part of the clip (0: one per core
-    this process may run on); a clip shorter than ``2 * chunk_min_s`` s is not split. The
-    default, 1, gives exactly the detections of one pass; a later part's detector starts with
-    a fresh background, so its detections differ slightly (measured: positions moved at most
-    0.13 mm on the small test clip; two extra short false tracks on the 38 s bank sample), and
-    the split costs extra processor time (6-10 s there in paired runs: a second background,
-    decoding up to the cut), so it pays only with idle cores.
+    ``workers``: processes that detect balls, each on its own part of the clip; the default, 0,
+    is one per core this process may run on (``taskset`` respected), so a 2-core machine
+    detects the two halves of a clip at once; a clip shorter than ``2 * chunk_min_s`` s is not
+    split. 1 gives exactly the detections of one pass; a later part's detector starts with a
+    fresh background, so its detections differ slightly (measured: positions moved at most
+    0.13 mm on the small test clip; on the 38 s bank sample, against one pass with the truth
+    calibration, the same cushion contacts within noise (along the rail 0.39 vs 0.386 mm,
+    outgoing angle 0.497 vs 0.502 deg, outgoing speed 0.54 vs 0.46 %, restitution 0.0087 vs
+    0.0079, medians) and two extra short false tracks of 9-10 frames; on the 82 s cushion
+    sample the same 54 of 56 contacts, along the rail 0.24 vs 0.20 mm, outgoing angle 0.23 vs
+    0.19 deg, outgoing speed 0.28 vs 0.26 %, no identity switch (2 in one pass), 44 tracks for
+    40). The split costs a second background and decoding up to the cut (in processor time
+    within the noise of runs on a loaded machine: detection 54.0-55.5 s split, 51.4-54.5 s in
+    one pass).
     ``chunk_warmup_s``: how long before its part each later part's detector starts, so its
     background and change state have settled when its own frames begin.
     """
@@ -62,7 +71,7 @@ class AnalyseConfig:
     detect: DetectConfig = field(default_factory=DetectConfig)
     tracker: TrackerConfig = field(default_factory=TrackerConfig)
     events: EventConfig = field(default_factory=EventConfig)
-    workers: int = 1
+    workers: int = 0
     chunk_warmup_s: float = 1.0
     chunk_min_s: float = 8.0
 
@@ -130,9 +139,17 @@ def analyse_clip(
         stages[stage], cpu[stage] = now[0] - mark[0], now[1] - mark[1]
         mark[:] = now
 
-    table, cameras, source, quality, calib_doc = _calibration(clip, config)
-    done("calibration")
-    detections = _detect_parallel(clip, table, cameras, config, info, progress)
+    parts = _plan_parts(info, config)
+    # Later parts' processes start now: they load, and decode up to their part, while this one
+    # calibrates; they wait for the cameras before detecting.
+    helpers = _Helpers(clip, parts[1:], info.frame_count) if len(parts) > 1 else None
+    try:
+        table, cameras, source, quality, calib_doc = _calibration(clip, config)
+        done("calibration")
+        detections = _detect_parts(clip, table, cameras, config, info, parts, helpers, progress)
+    finally:
+        if helpers is not None:
+            helpers.close()
     done("detection")
     tracks = track(detections, table, config.tracker)
     done("tracking")
@@ -207,11 +224,11 @@ def split_frames(n_frames: int, parts: int, warmup: int) -> list[tuple[int, int,
     return out
 
 
-def _detect_parallel(clip, table, cameras, config: AnalyseConfig, info, progress) -> pd.DataFrame:
-    """Detections of the whole clip, its parts (:func:`split_frames`) detected in parallel
-    processes; the first part runs in this process, so it alone reports progress."""
-    cores = usable_cores()
-    workers = int(config.workers) or cores
+def _plan_parts(info, config: AnalyseConfig) -> list[tuple[int, int, int | None]]:
+    """The clip's parts for detection (:func:`split_frames`), one per worker process; a single
+    ``(0, 0, None)`` when it is not split (one worker, or a clip too short for two parts of
+    ``chunk_min_s``)."""
+    workers = int(config.workers) or usable_cores()
     fps = info.fps if info.fps > 0 else 30.0
     n = info.frame_count
     if n < 2 * config.chunk_min_s * fps:
@@ -219,35 +236,115 @@ def _detect_parallel(clip, table, cameras, config: AnalyseConfig, info, progress
     else:
         workers = max(1, min(workers, int(n // (config.chunk_min_s * fps))))
     if workers == 1:
+        return [(0, 0, None)]
+    return split_frames(n, workers, int(math.ceil(config.chunk_warmup_s * fps)))
+
+
+def _detect_parts(clip, table, cameras, config: AnalyseConfig, info, parts, helpers, progress) -> pd.DataFrame:
+    """Detections of the whole clip: the first part in this process (which alone reports
+    progress), the others in the ``helpers`` processes, alongside."""
+    if helpers is None:
         # A decoding thread only helps with a spare core.
-        return _detect(clip, table, cameras, config.detect, 0, None, n, progress, read_ahead=8 if cores > 1 else 0)
-    parts = split_frames(n, workers, int(math.ceil(config.chunk_warmup_s * fps)))
-    # Spawned, not forked: a fork copies this process's decoder and OpenCV thread pools in
-    # whatever state they are.
-    ctx = multiprocessing.get_context("spawn")
-    with ProcessPoolExecutor(max_workers=workers - 1, mp_context=ctx) as pool:
-        futures = [pool.submit(_detect, clip, table, cameras, config.detect, a, (b, e), n, None) for a, b, e in parts[1:]]
-        try:
-            a, b, e = parts[0]
-            results = [_detect(clip, table, cameras, config.detect, a, (b, e), n, progress)]
-            results += [f.result() for f in futures]
-        except BaseException:
-            pool.shutdown(wait=True, cancel_futures=True)
-            raise
+        return _detect(clip, table, cameras, config.detect, 0, None, info.frame_count, progress,
+                       read_ahead=8 if usable_cores() > 1 else 0)
+    helpers.go(table, cameras, config.detect)
+    a, b, e = parts[0]
+    results = [_detect(clip, table, cameras, config.detect, a, (b, e), info.frame_count, progress)]
+    results += helpers.results()
     filled = [r for r in results if len(r)]
     return pd.concat(filled, ignore_index=True) if filled else results[0]
 
 
-def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, progress, read_ahead: int = 0) -> pd.DataFrame:
+class _Helpers:
+    """Worker processes, one per later part of the clip (:func:`_part_worker`), started before
+    calibration. Spawned, not forked: a fork copies this process's decoder and OpenCV thread
+    pools in whatever state they are."""
+
+    def __init__(self, clip: Path, parts: list[tuple[int, int, int | None]], n_frames: int):
+        ctx = multiprocessing.get_context("spawn")
+        self.procs, self.conns = [], []
+        try:
+            for a, b, e in parts:
+                mine, theirs = ctx.Pipe()
+                proc = ctx.Process(target=_part_worker, args=(theirs, str(clip), a, (b, e), n_frames), daemon=True, name="railtrace-detect")
+                proc.start()
+                theirs.close()
+                self.procs.append(proc)
+                self.conns.append(mine)
+        except BaseException:
+            self.close()
+            raise
+
+    def go(self, table, cameras, detect_config) -> None:
+        for conn in self.conns:
+            conn.send((table, cameras, detect_config))
+
+    def results(self) -> list[pd.DataFrame]:
+        out = []
+        for conn in self.conns:
+            try:
+                kind, value = conn.recv()
+            except EOFError:
+                raise ValueError("a detection worker process ended without its results (out of memory?); run again with --workers 1 (AnalyseConfig.workers = 1)") from None
+            if kind == "error":
+                raise value
+            out.append(value)
+        return out
+
+    def close(self) -> None:
+        """Tell waiting workers to stop, and end them (a worker that fails to end in 10 s is
+        terminated)."""
+        for conn in self.conns:
+            try:
+                conn.send(None)
+            except (OSError, ValueError):  # already finished and gone: nothing to tell
+                pass
+        for proc, conn in zip(self.procs, self.conns):
+            proc.join(timeout=10.0)
+            if proc.is_alive():
+                proc.terminate()
+                proc.join()
+            conn.close()
+
+
+def _part_worker(conn, clip: str, read_from: int, keep: tuple[int, int | None], n_frames: int) -> None:
+    """A worker process's whole life: decode up to its part, wait for ``(table, cameras,
+    detect config)`` on ``conn`` (None: stop), detect its part, send ``("ok", detections)`` or
+    ``("error", ValueError)``. Top-level, so a spawned process can run it."""
+    try:
+        out = _detect(Path(clip), None, None, None, read_from, keep, n_frames, None, wait=conn.recv)
+        if out is not None:
+            conn.send(("ok", out))
+    except EOFError:  # the analysis ended without starting this part
+        return
+    except BaseException as exc:  # handed to the analysing process, which raises it
+        message = str(exc) if isinstance(exc, ValueError) else f"detection failed in a worker process ({type(exc).__name__}: {exc})"
+        try:
+            conn.send(("error", ValueError(message)))
+        except OSError:
+            pass
+
+
+def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, progress, read_ahead: int = 0, wait=None) -> pd.DataFrame | None:
     """Stream the clip through a detector from frame ``read_from``, switching to a new one
     where the camera moved; ``keep`` None keeps every frame read, else ``(first, end)`` keeps
-    frames ``first <= index < end`` (end None: to the end of the clip). Top-level, so a worker
-    process can run it."""
+    frames ``first <= index < end`` (end None: to the end of the clip). With ``wait``, the
+    clip is first decoded up to ``read_from`` and then ``wait()`` gives ``(table, cameras,
+    detect_config)`` (None: return None at once)."""
     first, end = (read_from, None) if keep is None else keep
     steps = []
     k, detector = -1, None
     try:
-        for index, t, img in iter_frames(clip, read_ahead=read_ahead, start=read_from, stop=end):
+        frames = iter_frames(clip, read_ahead=read_ahead, start=read_from, stop=end)
+        if wait is not None:
+            head = next(frames, None)  # the frames before read_from are decoded by now
+            given = wait()
+            if given is None:
+                frames.close()
+                return None
+            table, cameras, detect_config = given
+            frames = itertools.chain([] if head is None else [head], frames)
+        for index, t, img in frames:
             while k + 1 < len(cameras) and cameras[k + 1][0] <= t + 1e-9:
                 k += 1
                 detector = BallDetector(cameras[k][1], table, detect_config)
@@ -258,7 +355,7 @@ def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, prog
                 # The first part stands for the whole clip: the other parts run alongside it.
                 done = index + 1 if end is None else (index + 1) * n_frames // end
                 progress(min(done, n_frames), n_frames)
-    except ValueError:
+    except (ValueError, EOFError):  # EOFError: a worker's wait() found the analysis gone
         raise
     except Exception as exc:  # a decoder error part-way through: the file is damaged
         raise ValueError(f"{clip} could not be decoded to the end ({type(exc).__name__}: {exc}); the file may be truncated") from None

@@ -585,3 +585,116 @@ def test_stated_uncertainty_covers_the_truth_after_h264(square_on, tmp_path):
         k = int(np.argmin(np.abs(np.median(offs, axis=1))))  # the true rail these points lie on
         depth = (X @ cam.R.T + cam.tvec)[:, 2]
         assert abs(np.median(offs[k] * cam.K[0, 0] / depth)) <= 3 * CalibConfig().nose_bias_sd_px
+
+
+def _collect_every_sample(frames, config):
+    """Reference for ``vision.calibrate._collect``: the whole-clip pass aligning every bump
+    sample as it comes (as it was written before the alignments were deferred, with the bump
+    dated from the frames after the last unmoved sample). Returns, per segment, (start time,
+    still frames seen, (time, frame) of the stills kept)."""
+    from vision.calibrate import _Segment, _ecc, _edge_small, _keep_still, _moves_everywhere, _warp_motion_px
+
+    segments, prev, last_t, ring, pending, seg, t_unmoved = [], None, -1e9, [], [], None, -1e9
+    for n, (t, frame) in enumerate(frames, start=1):
+        scale = min(1.0, 320.0 / frame.shape[1])
+        if seg is None:
+            seg = _Segment(t0=0.0)
+            segments.append(seg)
+        small = cv2.resize(cv2.cvtColor(frame, cv2.COLOR_BGR2GRAY), None, fx=scale, fy=scale,
+                           interpolation=cv2.INTER_AREA).astype(np.float32)
+        still = n == 1 or float(np.mean(np.abs(small - prev))) < config.still_threshold_dn
+        prev = small
+        if still:
+            _keep_still(seg, t, lambda f=frame: f, config)
+        if seg.ref_edge is None and still:
+            seg.ref_edge = _edge_small(small)
+        ring = (ring + [(t, small)])[-int(max(8, 4 * config.bump_persist * max(1, config.bump_every_s * 60))):]
+        if t - last_t < config.bump_every_s:
+            continue
+        last_t = t
+        edge = _edge_small(small)
+        warp = _ecc(seg.ref_edge, edge)
+        if (warp is None or _warp_motion_px(warp, small.shape, scale) < config.bump_threshold_px
+                or not _moves_everywhere(seg.ref_edge, edge, warp, config.bump_quarter_share)):
+            pending, t_unmoved = [], t
+            continue
+        pending.append((t, warp))
+        if len(pending) < config.bump_persist:
+            continue
+        ws = np.array([w for _, w in pending])
+        if np.max(np.abs(ws - ws.mean(axis=0)), axis=0)[:, 2].max() / scale > 3 * config.bump_threshold_px:
+            pending = pending[1:]
+            continue
+        t_bump = pending[0][0]
+        for tt, sm in ring:
+            if tt <= t_unmoved:
+                continue
+            if tt >= pending[0][0]:
+                break
+            w = _ecc(seg.ref_edge, _edge_small(sm))
+            if w is not None and _warp_motion_px(w, sm.shape, scale) >= config.bump_threshold_px:
+                t_bump = tt
+                break
+        seg = _Segment(t0=t_bump)
+        seg.ref_edge = edge
+        segments.append(seg)
+        pending, t_unmoved = [], t
+    return [(s.t0, s.seen_still, [(st[0], st[1]) for st in s.stills]) for s in segments]
+
+
+def test_deferred_bump_alignment_equals_aligning_every_sample(rendered, monkeypatch):
+    """The whole-clip pass aligns only every ``bump_persist``-th sample while nothing moves
+    (issue 3, calibration's cost); its segments, bump times and kept stills must be exactly
+    those of aligning every sample (two implementations, exact equality), on a 30 fps sequence
+    with a one-sample and a two-sample shake of the whole picture (too short for a bump), an
+    arm-like dark bar over one quarter, a shake broken by one unmoved sample, a lasting bump,
+    and still and moving stretches (noise and a bright spot)."""
+    import vision.calibrate as vc
+
+    _, _, img0 = rendered["green9"]
+    h, w = img0.shape[:2]
+    rng = np.random.default_rng(5)
+    noisy = [np.clip(img0 + rng.normal(0, 2.0, img0.shape), 0, 255).astype(np.uint8) for _ in range(3)]
+
+    def shifted(img, dx, dy, deg=0.0):
+        m = cv2.getRotationMatrix2D((w / 2, h / 2), deg, 1.0)
+        m[:, 2] += (dx, dy)
+        return cv2.warpAffine(img, m, (w, h), borderMode=cv2.BORDER_REPLICATE)
+
+    # Samples are 0.1 s = 3 or 4 frames apart, so a stretch of 3 frames holds at most one, of 5
+    # at most two (a bump needs three), and one of 5 at least one and at most two.
+    frames = []
+    for i in range(150):
+        f = noisy[i % 3]
+        if 13 <= i < 16 or 25 <= i < 30 or 61 <= i < 66 or 71 <= i < 74:
+            f = shifted(f, 4.0, -3.0)  # short shakes: one sample, two, then two and one with a gap
+        elif 40 <= i < 53:
+            f = f.copy()
+            f[: h // 2, : w // 3] //= 3  # an arm over one corner
+        elif i >= 107:
+            f = shifted(f, 3.0, 2.0, 0.4)  # the camera knocked for good
+        if 6 <= i < 10 or 87 <= i < 93:
+            f = f.copy()
+            cv2.circle(f, (200 + 60 * i % (w - 400), h // 2), 12, (250, 250, 250), -1)  # a ball rolling
+        frames.append((i / 30, f))
+
+    calls = {"n": 0}
+    ecc = vc._ecc
+
+    def counted(ref, img):
+        calls["n"] += 1
+        return ecc(ref, img)
+
+    monkeypatch.setattr(vc, "_ecc", counted)
+    want = _collect_every_sample(frames, CalibConfig())
+    every = calls["n"]
+    calls["n"] = 0
+    segments, n, _ = vc._collect(iter(frames), CalibConfig())
+    got = [(s.t0, s.seen_still, [(st[0], st[1]) for st in s.stills]) for s in segments]
+    assert n == len(frames)
+    assert [(t0, seen, [t for t, _ in kept]) for t0, seen, kept in got] == [(t0, seen, [t for t, _ in kept]) for t0, seen, kept in want]
+    assert all(np.array_equal(a[1], b[1]) for g, r in zip(got, want) for a, b in zip(g[2], r[2]))
+    # The sequence holds one bump, dated to the first frame that shows it (not to the shake
+    # 1.4 s before it, which the ring of small frames still holds).
+    assert len(want) == 2 and abs(want[1][0] - 107 / 30) <= 1 / 30 + 1e-9
+    assert calls["n"] < every  # and the deferral saved alignments

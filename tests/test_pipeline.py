@@ -219,3 +219,26 @@ def test_stack_detections_of_rows_equals_that_of_tables():
     got = stack_detections(as_rows)
     pd.testing.assert_frame_equal(got, stack_detections(as_tables))
     assert got["frame"].tolist() == [0, 0, 0, 1, 1, 1, 3]
+
+
+def test_worker_processes_end_when_calibration_fails(tmp_path):
+    # The later parts' processes start before calibration; a calibration that fails (a clip
+    # with no table in view) must raise one ValueError, write nothing and leave no process
+    # behind (they are told to stop while they wait for the cameras).
+    import multiprocessing
+
+    import numpy as np
+
+    from railtrace.pipeline import AnalyseConfig, analyse_clip
+    from vision.table import NINE_FOOT
+    from vision.video import write_video
+
+    bad = tmp_path / "noise.mp4"
+    rng = np.random.default_rng(0)
+    write_video(bad, (rng.integers(0, 256, (180, 320, 3), dtype=np.uint8) for _ in range(60)), 30.0)
+    config = AnalyseConfig(table=NINE_FOOT, workers=2, chunk_min_s=0.5, chunk_warmup_s=0.2)
+    out = tmp_path / "out"
+    with pytest.raises(ValueError, match="table"):
+        analyse_clip(bad, out, config)
+    assert not out.exists()
+    assert multiprocessing.active_children() == []

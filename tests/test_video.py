@@ -4,10 +4,11 @@ from __future__ import annotations
 
 import threading
 
+import cv2
 import numpy as np
 import pytest
 
-from vision.video import VideoInfo, iter_frames, probe, write_video
+from vision.video import VideoInfo, iter_frames, iter_grey, probe, write_video
 
 
 def _frames(n=30, w=320, h=240):
@@ -128,3 +129,28 @@ def test_frame_range_gives_the_same_frames_as_the_whole_clip(tmp_path):
         assert all(np.array_equal(a[2], b[2]) for a, b in zip(part, want))
     with pytest.raises(ValueError, match="start"):
         list(iter_frames(path, start=5, stop=2))
+
+
+@pytest.mark.parametrize("read_ahead", [0, 3])
+def test_grey_frames_match_the_grey_of_the_bgr_frames(tmp_path, read_ahead):
+    # iter_grey skips the colour conversion; its small grey must be cv2's BGR-to-grey of the
+    # frame iter_frames gives, downscaled the same way, up to the conversion's rounding: the
+    # luma weights are the same (ITU-R BT.601: 0.299, 0.587, 0.114; OpenCV's cvtColor docs), and
+    # the studio range 16..235 is stretched to 0..255 as the BGR conversion does (ITU-R BT.601).
+    # Tolerance: 2 DN median, 4 DN max (from memory: swscale's fixed-point rounding is within a
+    # couple of DN). Same indices and times; bgr() the very frame iter_frames gives.
+    path = tmp_path / "clip.mp4"
+    write_video(path, iter(_frames(12, w=640, h=360)), 30.0, quality=18)
+    whole = list(iter_frames(path))
+    grey = list(iter_grey(path, 0.5, read_ahead=read_ahead))
+    assert [(g.index, g.t) for g in grey] == [(i, t) for i, t, _ in whole]
+    for g, (_, _, bgr) in zip(grey, whole):
+        want = cv2.resize(cv2.cvtColor(bgr, cv2.COLOR_BGR2GRAY), None, fx=0.5, fy=0.5, interpolation=cv2.INTER_AREA)
+        assert g.grey.shape == want.shape == (180, 320) and g.grey.dtype == np.float32
+        d = np.abs(g.grey - want.astype(np.float32))
+        assert np.median(d) <= 2.0 and d.max() <= 4.0
+        assert np.array_equal(g.bgr(), bgr)
+    with pytest.raises(ValueError, match="scale"):
+        list(iter_grey(path, 0.0))
+    with pytest.raises(ValueError, match="does not exist"):
+        list(iter_grey(tmp_path / "nope.mp4", 0.5))

@@ -11,10 +11,12 @@ Frames (as written down in :mod:`vision.table` and :mod:`vision.camera`):
 
 How a clip becomes a :class:`~vision.camera.Camera`:
 
-1. **Background**: frames are streamed once; a frame is *still* when its mean absolute difference
-   from the previous frame (grey, downscaled) is small; a spread-out sample of still frames is
-   kept and their per-pixel temporal median is the background (moving balls, arms and the cue
-   vanish; resting balls stay and are rejected later as outliers).
+1. **Background**: frames are streamed once (a clip decoded to its luma only, each frame
+   downscaled to 320 px wide; only the frames kept are converted to colour); a frame is *still*
+   when its mean absolute difference from the previous frame (grey, downscaled) is small; a
+   spread-out sample of still frames is kept and their per-pixel temporal median is the
+   background (moving balls, arms and the cue vanish; resting balls stay and are rejected later
+   as outliers).
 2. **Cloth region**: the connected region around the image centre whose chroma matches the
    centre's (median and median absolute deviation in CIE Lab, lightness tolerant so lamps and
    vignetting do not matter); its outline gives a rough quadrilateral.
@@ -80,8 +82,10 @@ TPAMI 30(10), 2008); a motion of the table's outline by more than ``bump_thresho
 ``bump_persist`` samples and that aligns each of the image's four quarters better than no motion
 does (an arm or cue held over the table pulls the whole-image alignment but leaves the other
 quarters unmoved; balls are too small) starts a new segment,
-dated to the first frame that shows it; each segment gets its own background and camera (same
-lens, new pose).
+dated to the first frame after the last unmoved sample that shows it; each segment gets its own
+background and camera (same lens, new pose). While no sample shows motion only every
+``bump_persist``-th is aligned, the others only when it shows motion (:func:`_collect`), with
+exactly the result of aligning every sample.
 """
 
 from __future__ import annotations
@@ -91,7 +95,7 @@ import math
 import os
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any, Iterable, Iterator
+from typing import Any, Callable, Iterable, Iterator
 
 import cv2
 import numpy as np
@@ -253,23 +257,38 @@ class Calibration:
 # ================================================================================================
 # 1. Frames in, still backgrounds out (with bump detection)
 # ================================================================================================
-def _frames_of(source) -> Iterator[tuple[float, np.ndarray]]:
-    """(t_s, (H, W, 3) uint8 BGR) from a clip path, one frame, or an iterable of frames or of
-    (t_s, frame) pairs (bare frames are taken 1/30 s apart)."""
-    if isinstance(source, (str, os.PathLike)):
-        from vision.video import iter_frames
+_SMALL_WIDTH_PX = 320.0  # the whole-clip pass looks at frames at most this wide
 
-        for _, t, frame in iter_frames(Path(source)):
-            yield t, frame
+
+def _small_frames(source) -> Iterator[tuple[float, np.ndarray, Callable[[], np.ndarray], float]]:
+    """``(t_s, small, full, scale)`` per frame of a clip path, one frame, or an iterable of frames
+    or of (t_s, frame) pairs (bare frames are taken 1/30 s apart): ``small`` the (h, w) float32
+    grey image (0..255) downscaled by ``scale`` to at most ``_SMALL_WIDTH_PX`` wide (area
+    averaging), ``full()`` the (H, W, 3) uint8 BGR frame. A clip is decoded to luma only
+    (:func:`vision.video.iter_grey`) and a frame converted to BGR only when ``full()`` is called:
+    the pass keeps a few dozen frames of thousands."""
+    if isinstance(source, (str, os.PathLike)):
+        from vision.video import iter_grey, probe
+
+        scale = min(1.0, _SMALL_WIDTH_PX / max(probe(Path(source)).width, 1))
+        shape = None
+        for fr in iter_grey(Path(source), scale):
+            if shape is not None and fr.grey.shape != shape:
+                raise ValueError("frame size changed within the clip")
+            shape = fr.grey.shape
+            yield fr.t, fr.grey, fr.bgr, scale
         return
     if isinstance(source, np.ndarray) and source.ndim == 3:
-        yield 0.0, source
-        return
+        source = [source]
+    shape = None
     for i, item in enumerate(source):
-        if isinstance(item, tuple):
-            yield float(item[0]), item[1]
-        else:
-            yield i / 30.0, item
+        t, frame = (float(item[0]), item[1]) if isinstance(item, tuple) else (i / 30.0, item)
+        frame = _check_frame(frame, shape)
+        shape = frame.shape
+        scale = min(1.0, _SMALL_WIDTH_PX / shape[1])
+        grey = cv2.cvtColor(frame, cv2.COLOR_BGR2GRAY)
+        small = cv2.resize(grey, None, fx=scale, fy=scale, interpolation=cv2.INTER_AREA).astype(np.float32)
+        yield t, small, (lambda f=frame: f), scale
 
 
 def _check_frame(frame: np.ndarray, shape: tuple | None) -> np.ndarray:
@@ -306,57 +325,68 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
 
     Returns (segments, frames read, scale of the small images). Memory is bounded by
     ``max_still_frames`` full frames per segment and a short ring of small frames.
+
+    A bump needs ``bump_persist`` samples in a row that show motion. So while no sample shows
+    motion, samples are taken in blocks of ``bump_persist`` and only a block's last one is
+    aligned when it comes: if it shows no motion, no bump can lie in the block and the others
+    need no alignment; if it does, the others are aligned, in order, then (with the frames they
+    cover, whose still-keeping waits, and the ring of small frames as it stood at each), and
+    every sample is aligned as it comes until none is pending. The segments, stills and bump
+    times are exactly those of aligning every sample, with about ``1 / bump_persist`` of the
+    alignments (``cv2.findTransformECC``, most of this pass's cost after decoding).
     """
     segments: list[_Segment] = []
-    shape = None
     prev_small = None
     scale = 1.0
     n = 0
     last_t = -1e9
-    ring: list[tuple[float, np.ndarray, np.ndarray | None]] = []  # (t, small grey, full frame if still)
+    t_unmoved = -1e9  # time of the last sample that showed no motion
+    ring_len = int(max(8, 4 * config.bump_persist * max(1, config.bump_every_s * 60)))
+    ring: list[tuple[float, np.ndarray]] = []  # (t, small grey); replaced, never changed in place
     pending: list[tuple[float, np.ndarray]] = []  # (t, warp) of samples that disagree with the reference
+    waiting: list[tuple[float, bool, Callable[[], np.ndarray]]] = []  # (t, still, full) not yet kept
+    deferred: list[tuple[float, np.ndarray, list]] = []  # samples not yet aligned: (t, small, ring then)
     seg = None
-    for t, frame in _frames_of(source):
-        frame = _check_frame(frame, shape)
-        if shape is None:
-            shape = frame.shape
-            scale = min(1.0, 320.0 / shape[1])
-            seg = _Segment(t0=0.0)
-            segments.append(seg)
-        n += 1
-        grey = cv2.cvtColor(frame, cv2.COLOR_BGR2GRAY)
-        small = cv2.resize(grey, None, fx=scale, fy=scale, interpolation=cv2.INTER_AREA).astype(np.float32)
-        still = prev_small is not None and float(np.mean(np.abs(small - prev_small))) < config.still_threshold_dn
-        if n == 1:
-            still = True  # the first frame stands in when nothing else is still
-        prev_small = small
-        if still:
-            _keep_still(seg, t, frame, config)
-        if seg.ref_edge is None and still:
-            seg.ref_edge = _edge_small(small)
-        if not config.detect_bumps or seg.ref_edge is None:
-            continue
-        ring.append((t, small))
-        ring = ring[-int(max(8, 4 * config.bump_persist * max(1, config.bump_every_s * 60))):]
-        if t - last_t < config.bump_every_s:
-            continue
-        last_t = t
+
+    def keep_until(t_end: float) -> None:
+        # Still frames up to t_end go to the segment current at that time.
+        while waiting and waiting[0][0] <= t_end:
+            t_w, still_w, full_w = waiting.pop(0)
+            if still_w:
+                _keep_still(seg, t_w, full_w, config)
+
+    def moved(small: np.ndarray) -> tuple[np.ndarray | None, np.ndarray]:
+        # (warp, edge image): warp None unless the whole picture moved against the reference.
         edge = _edge_small(small)
         warp = _ecc(seg.ref_edge, edge)
         if (warp is None or _warp_motion_px(warp, small.shape, scale) < config.bump_threshold_px
                 or not _moves_everywhere(seg.ref_edge, edge, warp, config.bump_quarter_share)):
+            return None, edge
+        return warp, edge
+
+    def judge(t: float, small: np.ndarray, ring_then: list, known=None) -> None:
+        # One sample in order, as if aligned when it came (the ring as it stood then).
+        nonlocal seg, pending, t_unmoved
+        keep_until(t)
+        warp, edge = known if known is not None else moved(small)
+        if warp is None:
             pending = []
-            continue
+            t_unmoved = t
+            return
         pending.append((t, warp))
         if len(pending) < config.bump_persist:
-            continue
+            return
         # Persistent and consistent: the camera moved. Date it to the first frame showing it.
         ws = np.array([w for _, w in pending])
         if np.max(np.abs(ws - ws.mean(axis=0)), axis=0)[:, 2].max() * 1.0 / scale > 3 * config.bump_threshold_px:
             pending = pending[1:]
-            continue
+            return
+        # Only frames after the last sample that showed no motion: a shake earlier in the ring,
+        # already over, is not this bump's start.
         t_bump = pending[0][0]
-        for tt, sm in ring:
+        for tt, sm in ring_then:
+            if tt <= t_unmoved:
+                continue
             if tt >= pending[0][0]:
                 break
             w = _ecc(seg.ref_edge, _edge_small(sm))
@@ -365,24 +395,72 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
                 break
         log.info("camera moved at t = %.3f s", t_bump)
         seg = _Segment(t0=t_bump)
-        seg.ref_edge = _edge_small(small)
+        seg.ref_edge = edge
         segments.append(seg)
         pending = []
+        t_unmoved = t
         # Frames after the bump already seen are not kept (the still sample restarts here).
+
+    for t, small, full, scale in _small_frames(source):
+        if seg is None:
+            seg = _Segment(t0=0.0)
+            segments.append(seg)
+        n += 1
+        still = prev_small is not None and float(np.mean(np.abs(small - prev_small))) < config.still_threshold_dn
+        if n == 1:
+            still = True  # the first frame stands in when nothing else is still
+        prev_small = small
+        waiting.append((t, still, full))
+        if seg.ref_edge is None and still:
+            keep_until(t)
+            seg.ref_edge = _edge_small(small)
+        if not config.detect_bumps or seg.ref_edge is None:
+            keep_until(t)
+            continue
+        ring = (ring + [(t, small)])[-ring_len:]
+        if t - last_t < config.bump_every_s:
+            if not deferred:
+                keep_until(t)
+            continue
+        last_t = t
+        deferred.append((t, small, ring))
+        if not pending and len(deferred) < config.bump_persist:
+            continue
+        if not pending:
+            # Only this sample is aligned now; the waiting ones matter only if it shows motion.
+            t_s, small_s, ring_s = deferred[-1]
+            known = moved(small_s)
+            if known[0] is None:
+                deferred = []
+                t_unmoved = t_s
+                keep_until(t_s)
+                continue
+            for item in deferred[:-1]:
+                judge(*item)
+            # No bump can come from the waiting samples alone (fewer than bump_persist), so the
+            # reference is unchanged and the alignment just made still holds.
+            judge(t_s, small_s, ring_s, known=known)
+        else:
+            for item in deferred:
+                judge(*item)
+        deferred = []
+        keep_until(t)
+    keep_until(float("inf"))  # samples still waiting at the end cannot make a bump (fewer than bump_persist)
     if n == 0:
         raise ValueError("the clip has no frames; give a clip that shows the table")
     return segments, n, scale
 
 
-def _keep_still(seg: _Segment, t: float, frame: np.ndarray, config: CalibConfig) -> None:
-    """Keep an evenly thinned sample of a segment's still frames (every 2^k-th once full)."""
+def _keep_still(seg: _Segment, t: float, full: Callable[[], np.ndarray], config: CalibConfig) -> None:
+    """Keep an evenly thinned sample of a segment's still frames (every 2^k-th once full);
+    ``full()`` gives the (H, W, 3) uint8 BGR frame, asked for only when it is kept."""
     seg.seen_still += 1
     stride = 1
     while seg.seen_still > stride * config.max_still_frames:
         stride *= 2
     if (seg.seen_still - 1) % stride:
         return
-    seg.stills.append((t, frame.copy(), seg.seen_still - 1))
+    seg.stills.append((t, np.array(full(), copy=True), seg.seen_still - 1))
     if len(seg.stills) > config.max_still_frames:
         seg.stills = [s for s in seg.stills if s[2] % (2 * stride) == 0] or seg.stills[-config.max_still_frames:]
 
