@@ -130,6 +130,12 @@ PATTERNS = ("cue", "solid", "stripe", "unknown")
 COLOURS = ("white", "yellow", "blue", "red", "purple", "orange", "green", "maroon", "black", "")
 
 _N_RAYS = 48
+# The outline rays' angles (rad) and unit directions (48, 2) in the pixel frame, made once
+# (read only).
+_RAY_ANG = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
+_RAY_DIRS = np.column_stack([np.cos(_RAY_ANG), np.sin(_RAY_ANG)])
+_RAY_ANG.flags.writeable = False
+_RAY_DIRS.flags.writeable = False
 # Prior spread of the outline's inward shift from limb darkening (mm): about a pixel at the
 # usual scale of 2 mm per pixel; not a measured figure.
 _BIAS_SIGMA_MM = 2.0
@@ -319,7 +325,43 @@ def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: 
 
 def _ray_polygon(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarray:
     """Distance from ``c`` along each (K, 2) unit direction to the boundary of the convex (or
-    star-shaped about c) polygon (M, 2); the farthest crossing, NaN if none."""
+    star-shaped about c) polygon (M, 2); the farthest crossing, NaN if none.
+
+    The outlines here are convex and hold ``c``, so each ray leaves through the one edge whose
+    ends' angles about ``c`` bracket its own (:func:`_ray_polygon_convex`, with the same
+    arithmetic for that edge); the search of every edge (:func:`_ray_polygon_all`) stands
+    where that does not give a crossing ahead of ``c`` on every ray."""
+    t = _ray_polygon_convex(c, dirs, poly)
+    if np.all(t > 0):  # False for NaN
+        return t
+    return _ray_polygon_all(c, dirs, poly)
+
+
+def _ray_polygon_convex(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarray:
+    """:func:`_ray_polygon` for a convex polygon (M, 2), either orientation, holding ``c``:
+    the crossing of each (K, 2) unit direction with the edge whose end vertices' angles about
+    ``c`` bracket the direction's angle (K,); whether ``c`` is inside is not checked (see
+    :func:`_ray_polygon`)."""
+    m = len(poly)
+    rel = poly - c
+    phi = np.arctan2(rel[:, 1], rel[:, 0])
+    order = np.argsort(phi)
+    pos = np.searchsorted(phi[order], np.arctan2(dirs[:, 1], dirs[:, 0]))
+    hi, lo = order[pos % m], order[(pos - 1) % m]
+    # The edge runs from the earlier vertex of the pair in the polygon's own order.
+    a = np.where((hi - lo) % m == 1, lo, hi)
+    p0 = poly[a]
+    e = poly[(a + 1) % m] - p0
+    wx, wy = p0[:, 0] - c[0], p0[:, 1] - c[1]
+    ex, ey = e[:, 0], e[:, 1]
+    # c + t d = p0 + s e, as in _ray_polygon_all; a ray along its edge (|d x e| = 0, only
+    # when c is not inside) gives NaN.
+    den = dirs[:, 0] * ey - dirs[:, 1] * ex
+    return (wx * ey - wy * ex) / np.where(den == 0, np.nan, den)
+
+
+def _ray_polygon_all(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarray:
+    """:func:`_ray_polygon` by crossing every ray with every edge."""
     p0 = poly
     e = np.empty_like(poly)  # (M, 2) edges p[i + 1] - p[i], the last closing the polygon
     e[:-1] = poly[1:] - poly[:-1]
@@ -856,6 +898,15 @@ class BallDetector:
         cs = int(config.cell_px)
         self._small_size = (max(w // cs, 1), max(h // cs, 1))
         self._zone_small = cv2.resize(self.zone.astype(np.uint8), self._small_size, interpolation=cv2.INTER_NEAREST) > 0
+        # Cells of the change grid that can matter (the zone's), as a box (j0, j1, i0, i1) of
+        # cells: only that part of the frame is reduced. INTER_AREA at a whole factor is a
+        # mean over each cell's pixels, the same for a crop on cell boundaries; for a frame not
+        # a whole number of cells the whole frame is reduced.
+        if w % cs == 0 and h % cs == 0 and self._zone_small.any():
+            js, is_ = np.nonzero(self._zone_small)
+            self._cells = (int(js.min()), int(js.max()) + 1, int(is_.min()), int(is_.max()) + 1)
+        else:
+            self._cells = (0, self._small_size[1], 0, self._small_size[0])
         # Zone border: pixels of the zone next to its outside (where arms and cues come in).
         self._zone_edge = self.zone & ~cv2.erode(self.zone.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
         # The same at half scale, for the whole-frame reach test.
@@ -896,21 +947,29 @@ class BallDetector:
         w, h = self.size
         if img.shape != (h, w, 3) or img.dtype != np.uint8:
             raise ValueError(f"frame {frame_index} is {img.shape} {img.dtype}; the camera expects ({h}, {w}, 3) uint8 BGR")
-        small = cv2.resize(img, self._small_size, interpolation=cv2.INTER_AREA).astype(np.float32)
+        j0, j1, i0, i1 = self._cells
+        cs = int(self.config.cell_px)
+        if (j1 - j0, i1 - i0) == self._zone_small.shape:
+            small = cv2.resize(img, self._small_size, interpolation=cv2.INTER_AREA).astype(np.float32)
+        else:
+            small = cv2.resize(img[j0 * cs : j1 * cs, i0 * cs : i1 * cs], (i1 - i0, j1 - j0), interpolation=cv2.INTER_AREA).astype(np.float32)
+        zone_cells = self._zone_small[j0:j1, i0:i1]
         if self.background is None:
             self.background = Background([img], self.zone, self.cloth, self.ball_px, self.config.background)
             norm = np.linalg.norm(self.background.image[self.cloth], axis=1)
             self._b_norm = float(np.median(norm)) if norm.size else 100.0
-            changed = self._zone_small.copy()
+            cell_changed = zone_cells.copy()
             self._ref_small = small
         else:
             diff = max_abs_diff(small, self._ref_small)
-            changed = (diff > self.config.change_dn) & self._zone_small
+            cell_changed = (diff > self.config.change_dn) & zone_cells
+        changed = np.zeros(self._zone_small.shape, bool)
+        changed[j0:j1, i0:i1] = cell_changed
         dt = 0.0 if self._last_t is None else max(t_s - self._last_t, 0.0)
         self._last_t = t_s
         if changed.any():
             det = self._process_changed(img, changed)
-            self._ref_small[changed] = small[changed]
+            self._ref_small[cell_changed] = small[cell_changed]
         else:
             det = self._prev
         self._since_update += dt
@@ -1482,8 +1541,7 @@ class BallDetector:
             half_mm = seed["half_px"] * px_mm
         capsule = half_mm > 0.15 * R
         p = np.array([X[0], X[1], 0.0, half_mm, heading]) if capsule else np.array([X[0], X[1], 0.0])
-        ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
-        dirs = np.column_stack([np.cos(ang), np.sin(ang)])
+        ang, dirs = _RAY_ANG, _RAY_DIRS
         r_px = self.ball_px / 2
         result = None
         # Two rounds of the coarse outline, then (for a sharp ball) two of the local two-colour
