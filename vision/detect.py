@@ -1526,7 +1526,7 @@ class BallDetector:
         q = self.rays.backproject(uv, 0.0)
         return ~((q[:, 0] >= 0.0) & (q[:, 0] <= t.length_mm) & (q[:, 1] >= 0.0) & (q[:, 1] <= t.width_mm))
 
-    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None, off_bed: bool = True) -> dict | None:
+    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None, off_bed: bool = True, resume: tuple | None = None) -> dict | None:
         """Fit one seed (:meth:`_seeds_of`): a detection row (:data:`COLUMNS`, frame and time
         left at 0) or None. ``shadows``: whether the coarse outline discounts cast shadows
         (:meth:`_edges`). ``avoid``: (M, 2) mm centres (table frame) of neighbouring balls;
@@ -1535,7 +1535,9 @@ class BallDetector:
         over the rays left in (at least ``_MIN_FREE_RAYS`` of them). ``off_bed``: whether the
         local rounds leave out rays that look past a cushion nose (:meth:`_surround_off_bed`);
         a fit that fails its checks with them left out is tried again with every ray (a ball
-        frozen against the cushion, whose rim meets the nose itself)."""
+        frozen against the cushion, whose rim meets the nose itself), from the state its own
+        coarse rounds ended in (``resume``: they do not depend on ``off_bed``, so they are not
+        done twice)."""
         cam, R = self.camera, self.R
         X = self.rays.backproject(seed["uv"][None], R)[0]
         half_mm, heading = 0.0, 0.0
@@ -1555,11 +1557,19 @@ class BallDetector:
         coarse = None
         same_hue = None  # :meth:`_same_hue`, looked up once a sharp ball reaches the local rounds
         dropped = False
-        for rnd, win in enumerate((0.45, 0.25) + (None,) * _LOCAL_ROUNDS):
+        rounds = (0.45, 0.25) + (None,) * _LOCAL_ROUNDS
+        if resume is not None:
+            p, capsule, result, coarse, same_hue, r_loc = resume
+            p = p.copy()
+            rounds = (None,) * _LOCAL_ROUNDS
+        local_start = None  # the state at the first local round, for a retry with every ray
+        for win in rounds:
             if win is None and not capsule and same_hue is None:
                 same_hue = self._same_hue(img, seed["uv"])
             if win is None and (capsule or same_hue):
                 break
+            if win is None and local_start is None:
+                local_start = (p.copy(), capsule, result, coarse, same_hue, r_loc)
             if win is None and prev_xy is not None and math.hypot(p[0] - prev_xy[0], p[1] - prev_xy[1]) < 0.05:
                 break  # the local edge has converged
             prev_xy = (p[0], p[1]) if win is None else None
@@ -1640,7 +1650,7 @@ class BallDetector:
         gaps = np.diff(np.sort(np.append(angs, angs.min() + 2 * np.pi))) if inl.any() else np.array([np.inf])
         if (share < self.config.min_inlier_share or rms > max_rms
                 or gaps.max() > (math.radians(150) if seed["strict"] else math.radians(200))):
-            return self._fit_seed(img, seed, shadows, avoid, off_bed=False) if dropped else None
+            return self._fit_seed(img, seed, shadows, avoid, off_bed=False, resume=local_start) if dropped else None
         half = float(p[3]) if capsule else 0.0
         if half > self.config.max_half_travel_mm:
             return None
