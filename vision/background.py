@@ -125,13 +125,6 @@ def max_abs_diff(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.maximum(np.maximum(d[..., 0], d[..., 1]), d[..., 2])
 
 
-def _max_abs_diff_u8(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """:func:`max_abs_diff` of two (H, W, 3) uint8 images, (H, W) uint8: the same values (a
-    difference of 8-bit numbers is exact in 8 bits) at a quarter of the memory traffic."""
-    d = cv2.absdiff(a, b)
-    return np.maximum(np.maximum(d[..., 0], d[..., 1]), d[..., 2])
-
-
 def _as_frame(frame: np.ndarray) -> np.ndarray:
     """A frame as given when it is 8-bit, else as float32 (H, W, 3)."""
     f = np.asarray(frame)
