@@ -208,3 +208,31 @@ def test_update_of_8_bit_frames_matches_the_float_path():
     # the ball-sized thing was cleaned out of the re-seeded frame and left the cloth.
     assert np.abs(a.image[160, 80] - np.array([90.0, 150.0, 200.0])).max() < 20.0
     assert np.abs(a.image[115, 170] - base[0, 0] * 0.93).max() < 12.0
+
+
+def test_update_moves_exactly_the_pixels_within_the_threshold():
+    # The one-pass far test (cv2.inRange against a float32 bound) against the plain comparison
+    # max over channels of |frame - model| <= 4 sigma + 3 in float64 (its definition): with
+    # update_rate 1 a pixel that counts as near becomes the frame, every other keeps the model.
+    # Differences straddle a threshold that float32 cannot hold exactly.
+    from vision.background import BackgroundConfig
+
+    h, w = 60, 80
+    zone = np.ones((h, w), bool)
+    rng = np.random.default_rng(6)
+    # Frame 8 DN everywhere and model 8 - s: for s in [4, 8) both 8 - s and the difference
+    # 8 - (8 - s) are exact in float32 (Sterbenz's lemma), so every difference is one of the
+    # chosen steps, among them float32(7.3), just above 7.3, and the float below it.
+    f1 = np.full((h, w, 3), 8, np.uint8)
+    f0 = np.full((h, w, 3), 68, np.uint8)  # far from f1: no still ghosts
+    bg = Background([f0], zone, zone, 10.0, BackgroundConfig(update_rate=1.0))
+    bg.sigma = 1.075  # threshold 4 sigma + 3 = 7.3, not a float32
+    thr = 4 * bg.sigma + 3.0
+    steps = np.array([7.0, np.nextafter(np.float32(7.3), np.float32(0)), np.float32(7.3), 7.6], np.float32)
+    model = (np.float32(8.0) - steps[rng.integers(0, len(steps), (h, w, 3))]).astype(np.float32)
+    bg.image = model.copy()
+    want = np.max(np.abs(f1.astype(np.float32) - model).astype(np.float64), axis=2) <= thr
+    bg.update(f1, np.zeros((h, w), bool))
+    moved = np.all(bg.image == f1.astype(np.float32), axis=2)
+    assert want.any() and (~want).any()
+    assert np.array_equal(moved, want)
