@@ -220,9 +220,10 @@ def test_update_moves_exactly_the_pixels_within_the_threshold():
     h, w = 60, 80
     zone = np.ones((h, w), bool)
     rng = np.random.default_rng(6)
-    # Frame 8 DN everywhere and model 8 - s: for s in [4, 8) both 8 - s and the difference
-    # 8 - (8 - s) are exact in float32 (Sterbenz's lemma), so every difference is one of the
-    # chosen steps, among them float32(7.3), just above 7.3, and the float below it.
+    # Frame 8 DN everywhere and model 8 - s: a float32 s in [4, 8) and 8 are whole multiples
+    # of 2^-21, float32's spacing there, so 8 - s and 8 - (8 - s) are exact and every
+    # difference is one of the chosen steps, among them float32(7.3), just above 7.3, and the
+    # float below it.
     f1 = np.full((h, w, 3), 8, np.uint8)
     f0 = np.full((h, w, 3), 68, np.uint8)  # far from f1: no still ghosts
     bg = Background([f0], zone, zone, 10.0, BackgroundConfig(update_rate=1.0))
