@@ -13,7 +13,11 @@ and (b), frames per processor second and their ratio. (b) includes setting the d
 feels. OpenCV runs on one thread (``cv2.setNumThreads(1)``); pin the whole process to one
 core with ``taskset -c 0``. ``--clip FILE --calibration FILE`` times another clip instead
 (e.g. ``sample_clips/bank_practice.mp4`` with its truth folder's ``calibration.json``),
-``--frames N`` its first N frames only.
+``--frames N`` its first N frames only. ``--stages`` adds one more run of decoding plus detection that
+charges processor time to the detector's stages (each stage's own time, its sub-stages' taken
+out: decoding, the change grid, the background model and its update, candidates, the coarse and local
+outlines, the sphere fits, look-ups of rays and projections, labels) and prints them in ms
+per frame with their call counts; the timers themselves add about a tenth.
 
 Run: ``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3``.
 """
@@ -21,6 +25,8 @@ Run: ``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3``.
 from __future__ import annotations
 
 import argparse
+import collections
+import functools
 import statistics
 import sys
 import time
@@ -33,8 +39,75 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from detect_accuracy import film  # noqa: E402
 from vision.calibfile import read_calibration  # noqa: E402
+import vision.background  # noqa: E402
+import vision.detect  # noqa: E402
 from vision.detect import BallDetector, stack_detections  # noqa: E402
 from vision.video import iter_frames, probe  # noqa: E402
+
+# (owner, attribute) of the timed stages, grouped under a name each.
+STAGES = {
+    "decode to BGR": [],  # timed round the frame iterator itself
+    "frame loop (change grid, carry-over)": [(BallDetector, "step_rows"), (BallDetector, "_process_changed"), (BallDetector, "_dedupe"), (BallDetector, "_protect_mask")],
+    "background model (first frame)": [(vision.background.Background, "__init__")],
+    "background update": [(vision.background.Background, "update")],
+    "candidates and seeds": [(BallDetector, n) for n in ("_detect_box", "_components", "_seeds_of", "_whole_piece", "_reaching", "_unexplained_seeds", "_crown_seeds", "_refit_touching")],
+    "fit flow (rounds, tests)": [(BallDetector, n) for n in ("_fit_one", "_fit_seed", "_fit_crown", "_on_table", "_isolated", "_soft_ends")],
+    "coarse outline (_edges)": [(BallDetector, "_edges")],
+    "local outline (_edges_local, _surround_off_bed)": [(BallDetector, "_edges_local"), (BallDetector, "_surround_off_bed")],
+    "sphere fits (LM)": [(vision.detect, "_robust_fit")],
+    "rays, projections, outlines": [(vision.detect.RayMap, n) for n in ("rays", "backproject", "project", "sphere_outline")]
+    + [(vision.detect, "_swept_outline_px"), (vision.detect, "_ray_polygon")],
+    "labels and fill tests": [(BallDetector, n) for n in ("_identity", "_filled_share", "_same_hue")],
+}
+
+
+def stage_times(clip, camera, table, frames) -> tuple[int, dict, dict]:
+    """One run of decoding plus detection with each stage of :data:`STAGES` charged its own
+    processor time (time in timed sub-stages taken out): (frames, seconds by stage, calls by
+    stage). The wrappers are removed again before returning."""
+    secs: collections.Counter = collections.Counter()
+    calls: collections.Counter = collections.Counter()
+    stack: list[float] = []
+
+    def timed(f, name):
+        @functools.wraps(f)
+        def g(*a, **k):
+            t0 = time.process_time()
+            stack.append(0.0)
+            try:
+                return f(*a, **k)
+            finally:
+                inner = stack.pop()
+                dt = time.process_time() - t0
+                secs[name] += dt - inner
+                calls[name] += 1
+                if stack:
+                    stack[-1] += dt
+        return g
+
+    saved = []
+    for name, parts in STAGES.items():
+        for owner, attr in parts:
+            f = owner.__dict__[attr]
+            saved.append((owner, attr, f))
+            setattr(owner, attr, timed(f, name))
+    try:
+        det = BallDetector(camera, table)
+        it = iter_frames(clip, read_ahead=0, stop=frames)
+        n = 0
+        while True:
+            t0 = time.process_time()
+            item = next(it, None)
+            secs["decode to BGR"] += time.process_time() - t0
+            if item is None:
+                break
+            calls["decode to BGR"] += 1
+            det.step_rows(*item)
+            n += 1
+    finally:
+        for owner, attr, f in saved:
+            setattr(owner, attr, f)
+    return n, secs, calls
 
 
 def main(argv=None) -> int:
@@ -44,6 +117,7 @@ def main(argv=None) -> int:
     ap.add_argument("--clip", type=Path, default=None, help="clip to time (default: the filmed green_60fps_250 scene)")
     ap.add_argument("--calibration", type=Path, default=None, help="calibration.json of --clip (required with it)")
     ap.add_argument("--frames", type=int, default=None, help="time only the first N frames")
+    ap.add_argument("--stages", action="store_true", help="add a run that charges processor time to the detector's stages")
     args = ap.parse_args(argv)
     cv2.setNumThreads(1)
     if args.clip is None:
@@ -79,6 +153,12 @@ def main(argv=None) -> int:
     print(f"median processor time: decode only {cd:.2f} ms per frame ({1000 / cd:.0f} frames per processor second); "
           f"decode+detect {cf:.1f} ms per frame ({1000 / cf:.1f} frames per processor second = {1000 / cf / info.fps:.2f}x real time "
           f"on one core, {cd / cf:.2f} of decode-only)")
+    if args.stages:
+        n, secs, calls = stage_times(clip, camera, table, args.frames)
+        total = sum(secs.values())
+        print(f"processor time by stage (one timed run, {n} frames, {1000 * total / n:.1f} ms per frame with the timers):")
+        for name in STAGES:
+            print(f"  {name:50s} {1000 * secs[name] / n:6.2f} ms per frame  {calls[name] / n:7.2f} calls per frame")
     return 0
 
 

@@ -156,3 +156,84 @@ def test_arm_and_cue_are_never_filled_in_part():
         assert on_occluder.sum() > 200, t  # the arm and cue are in view
         _, filled = clean_frame(frame, zone, cloth, ball_px)
         assert not (filled & on_occluder).any(), (t, int((filled & on_occluder).sum()))
+
+
+def test_patches_of_a_window_are_those_of_the_whole_mask():
+    # Two forms of one labelling (cross-check; common practice): boxes found in a window of the
+    # mask, placed by its origin in the whole image, are those found in the whole mask.
+    from vision.background import _patches
+
+    rng = np.random.default_rng(2)
+    mask = np.zeros((300, 500), np.uint8)
+    for _ in range(12):
+        u, v, r = rng.integers(60, 440), rng.integers(60, 240), rng.integers(2, 14)
+        mask[v - r : v + r, u - r : u + r] = 1
+    win = mask[40:260, 50:460].copy()
+    assert mask[:40].sum() == 0 and mask[260:].sum() == 0 and mask[:, :50].sum() == 0 and mask[:, 460:].sum() == 0
+    whole = _patches(mask, 30.0, 3)
+    part = _patches(win, 30.0, 3, origin=(50, 40), shape=mask.shape)
+    assert len(whole) >= 3 and sorted(whole) == sorted(part)
+
+
+def test_update_of_8_bit_frames_matches_the_float_path():
+    # The 8-bit frames' exact short cuts (the still test on 8-bit differences, the far test in
+    # one cv2.inRange pass) against the same frames given as float32, which take the plain
+    # differences (two forms of one update; common practice): the models must stay equal, bit
+    # for bit, through drift, a ghost that appears and stays, and protected discs.
+    rng = np.random.default_rng(4)
+    h, w = 240, 400
+    zone = np.zeros((h, w), bool)
+    zone[20:220, 30:370] = True
+    cloth = np.zeros((h, w), bool)
+    cloth[30:210, 40:360] = True
+    base = np.empty((h, w, 3))
+    base[:] = (60.0, 120.0, 40.0)
+    frames = []
+    for k in range(8):
+        f = base * (1.0 - 0.01 * k) + rng.normal(0, 2.0, (h, w, 3))
+        if k >= 3:
+            f[100:130, 150:190] = (200.0, 200.0, 210.0)  # a ball-sized thing left on the table
+            f[150:170, 0:120] = (90.0, 150.0, 200.0)  # an arm in over the rail, kept still
+        frames.append(np.clip(np.round(f), 0, 255).astype(np.uint8))
+    protect = np.zeros((h, w), bool)
+    protect[60:80, 300:330] = True
+    a = Background([frames[0]], zone, cloth, 20.0)
+    b = Background([frames[0].astype(np.float32)], zone, cloth, 20.0)
+    for f in frames[1:]:
+        a.update(f, protect)
+        b.update(f.astype(np.float32), protect)
+    assert np.array_equal(a.image, b.image) and a.sigma == b.sigma
+    # The ghost paths ran: the still arm, which reaches the zone's border, was taken into the
+    # model at ghost_rate 0.5 per update (4 still updates leave 1/16 of a 160 DN step), while
+    # the ball-sized thing was cleaned out of the re-seeded frame and left the cloth.
+    assert np.abs(a.image[160, 80] - np.array([90.0, 150.0, 200.0])).max() < 20.0
+    assert np.abs(a.image[115, 170] - base[0, 0] * 0.93).max() < 12.0
+
+
+def test_update_moves_exactly_the_pixels_within_the_threshold():
+    # The one-pass far test (cv2.inRange against a float32 bound) against the plain comparison
+    # max over channels of |frame - model| <= 4 sigma + 3 in float64 (its definition): with
+    # update_rate 1 a pixel that counts as near becomes the frame, every other keeps the model.
+    # Differences straddle a threshold that float32 cannot hold exactly.
+    from vision.background import BackgroundConfig
+
+    h, w = 60, 80
+    zone = np.ones((h, w), bool)
+    rng = np.random.default_rng(6)
+    # Frame 8 DN everywhere and model 8 - s: a float32 s in [4, 8) and 8 are whole multiples
+    # of 2^-21, float32's spacing there, so 8 - s and 8 - (8 - s) are exact and every
+    # difference is one of the chosen steps, among them float32(7.3), just above 7.3, and the
+    # float below it.
+    f1 = np.full((h, w, 3), 8, np.uint8)
+    f0 = np.full((h, w, 3), 68, np.uint8)  # far from f1: no still ghosts
+    bg = Background([f0], zone, zone, 10.0, BackgroundConfig(update_rate=1.0))
+    bg.sigma = 1.075  # threshold 4 sigma + 3 = 7.3, not a float32
+    thr = 4 * bg.sigma + 3.0
+    steps = np.array([7.0, np.nextafter(np.float32(7.3), np.float32(0)), np.float32(7.3), 7.6], np.float32)
+    model = (np.float32(8.0) - steps[rng.integers(0, len(steps), (h, w, 3))]).astype(np.float32)
+    bg.image = model.copy()
+    want = np.max(np.abs(f1.astype(np.float32) - model).astype(np.float64), axis=2) <= thr
+    bg.update(f1, np.zeros((h, w), bool))
+    moved = np.all(bg.image == f1.astype(np.float32), axis=2)
+    assert want.any() and (~want).any()
+    assert np.array_equal(moved, want)

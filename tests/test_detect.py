@@ -534,6 +534,25 @@ def test_ray_polygon_crossing_of_a_circle():
     assert np.isnan(outside[0]) and np.isfinite(outside[24])  # pointing away / back at it
 
 
+@pytest.mark.parametrize("setup", list(SETUPS))
+def test_convex_ray_polygon_agrees_with_the_search_of_every_edge(setup):
+    # Two forms of one crossing (cross-check of two implementations; common practice): on the
+    # convex silhouettes of balls over the whole table, seen through each camera, the bracketing
+    # edge's crossing must equal the farthest crossing over all edges, for centres jittered by
+    # a pixel (the fit's predicted centres are never exactly the outline's own).
+    from vision.detect import RayMap, _RAY_DIRS, _ray_polygon, _ray_polygon_all, _swept_outline_px
+
+    cam = SETUPS[setup]["camera"]
+    rm = RayMap(cam)
+    rng = np.random.default_rng(5)
+    for _ in range(200):
+        x, y = rng.uniform(40, NINE_FOOT.length_mm - 40), rng.uniform(40, NINE_FOOT.width_mm - 40)
+        half, heading = (0.0, 0.0) if rng.uniform() < 0.5 else (rng.uniform(10, 80), rng.uniform(-np.pi, np.pi))
+        poly = _swept_outline_px(cam, x, y, half, heading, R, rm)
+        c = rm.project(np.array([[x, y, R]]))[0] + rng.normal(0, 1.0, 2)
+        assert np.max(np.abs(_ray_polygon(c, _RAY_DIRS, poly) - _ray_polygon_all(c, _RAY_DIRS, poly))) < 1e-9
+
+
 # Balls of the cloth's own hue (a red solid on red cloth, a blue one on blue cloth): they
 # differ from the cloth by their shading (a bright crown and highlight, darkening toward the
 # limb, a shadow round them), hardly by colour. Six places over the table, so the lamps light

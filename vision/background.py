@@ -125,6 +125,12 @@ def max_abs_diff(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.maximum(np.maximum(d[..., 0], d[..., 1]), d[..., 2])
 
 
+def _as_frame(frame: np.ndarray) -> np.ndarray:
+    """A frame as given when it is 8-bit, else as float32 (H, W, 3)."""
+    f = np.asarray(frame)
+    return f if f.dtype == np.uint8 else f.astype(np.float32)
+
+
 def noise_sigma(diff: np.ndarray, mask: np.ndarray) -> float:
     """Robust per-channel noise sigma (DN) of a difference image (H, W, 3) over ``mask``.
 
@@ -135,10 +141,13 @@ def noise_sigma(diff: np.ndarray, mask: np.ndarray) -> float:
     within 1 % (common practice: iterated sigma clipping). At least 0.5 DN; 2 DN for an empty
     mask.
     """
-    d = diff[mask]
-    if d.size == 0:
+    # The strided sample of diff[mask], taken from the mask's flat indices (the same pixels in
+    # the same order) without first copying every masked pixel out.
+    idx = np.flatnonzero(mask)
+    if idx.size == 0:
         return 2.0
-    sub = d[:: max(1, len(d) // 20000)].reshape(len(d[:: max(1, len(d) // 20000)]), -1).astype(np.float64)
+    idx = idx[:: max(1, idx.size // 20000)]
+    sub = diff.reshape(mask.size, -1)[idx].astype(np.float64)
     keep = np.ones(sub.shape, bool)
     sigma = np.inf
     for _ in range(4):
@@ -365,8 +374,14 @@ class Background:
         base = stack[0].astype(np.float32) if len(stack) == 1 else np.median(np.stack(stack), axis=0).astype(np.float32)
         self.image, _ = clean_frame(base, self.zone, self.cloth, self.ball_px, config)
         self.sigma = noise_sigma(stack[-1].astype(np.float32) - self.image, self.cloth)
-        self._last = stack[-1].astype(np.float32)
+        self._last = _as_frame(stack[-1])
         self.updates = 0
+        # Bounding box (v0, v1, u0, u1) of the ball zone grown by 2 px and clipped to the image:
+        # ghosts lie in the zone, and the 3 x 3 opening of a mask that is 0 outside the zone
+        # gives the same inside the box whether the rest of the frame is there or not.
+        vs, us = np.nonzero(self.zone) if self.zone.any() else (np.array([0]), np.array([0]))
+        h, w = self.zone.shape
+        self._zone_box = (max(int(vs.min()) - 2, 0), min(int(vs.max()) + 3, h), max(int(us.min()) - 2, 0), min(int(us.max()) + 3, w))
 
     def update(self, frame: np.ndarray, protect: np.ndarray, fg_sigmas: float = 4.0) -> None:
         """Fold ``frame`` into the model, leaving ``protect`` ((H, W) bool, e.g. discs round the
@@ -375,26 +390,47 @@ class Background:
         change since the previous update (ghosts) are re-seeded from the cleaned frame at
         ``ghost_rate``."""
         self.updates += 1
+        frame = _as_frame(frame)
         cur = frame.astype(np.float32)
-        diff = max_abs_diff(cur, self.image)
         thr = fg_sigmas * self.sigma + 3.0
-        free = ~protect
-        near = (diff <= thr) & free
-        cv2.accumulateWeighted(cur, self.image, self.config.update_rate, near.astype(np.uint8))
-        still = max_abs_diff(cur, self._last) <= thr
-        ghost = ((diff > thr) & free & still & self.zone).astype(np.uint8)
+        # within: every channel of |cur - model| at most thr, i.e. max_abs_diff(cur, model) <= thr,
+        # in one pass (cv2.inRange; its float32 bound is the largest float32 not above thr, so
+        # the comparison of float32 differences is the same as against thr itself).
+        t32 = np.float32(thr)
+        if float(t32) > thr:
+            t32 = np.nextafter(t32, np.float32(-np.inf))
+        within = cv2.inRange(cv2.absdiff(cur, self.image), (0.0, 0.0, 0.0), (float(t32),) * 3) > 0
+        near = within & ~protect
+        cv2.accumulateWeighted(cur, self.image, self.config.update_rate, near.view(np.uint8))
+        # Ghosts lie in the zone: everything about them is worked out in its box only (the
+        # whole-frame masks and labels cost most of an update).
+        v0, v1, u0, u1 = self._zone_box
+        box = (slice(v0, v1), slice(u0, u1))
+        if frame.dtype == np.uint8 and self._last.dtype == np.uint8:
+            # |frame - last| of two 8-bit frames is an integer: at most thr iff at most floor(thr).
+            lim = float(math.floor(thr))
+            still = cv2.inRange(cv2.absdiff(frame[box], self._last[box]), (0.0, 0.0, 0.0), (lim, lim, lim)) > 0
+        else:
+            still = max_abs_diff(cur[box], self._last[box]) <= thr
+        ghost_box = (~within[box] & ~protect[box] & still & self.zone[box]).astype(np.uint8)
         # Single noisy pixels pass a per-pixel threshold somewhere in a large frame every time;
         # a ghost is a compact patch, so isolated pixels are opened away first.
-        ghost = cv2.morphologyEx(ghost, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-        for box in _patches(ghost, 0.25 * math.pi * (self.ball_px / 2) ** 2, self._context_px()):
-            self._reseed(cur, ghost, box)
-        self._last = cur
+        ghost_box = cv2.morphologyEx(ghost_box, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        patches = _patches(ghost_box, 0.25 * math.pi * (self.ball_px / 2) ** 2, self._context_px(), origin=(u0, v0), shape=self.zone.shape)
+        if patches:
+            ghost = np.zeros(self.zone.shape, np.uint8)
+            ghost[box] = ghost_box
+            for pbox in patches:
+                self._reseed(frame, ghost, pbox)
+        self._last = frame.copy()
         # The strided sample of the masked difference, formed for the sampled pixels only
         # (differencing the whole frame and then indexing it took about 19 ms, a quarter of an
-        # update).
-        idx = np.flatnonzero(near & self.cloth)
-        if 3 * idx.size > 1000:
-            idx = idx[:: max(1, idx.size // 20000)]
+        # update). The box's flat indices in order are the frame's in order, so the stride picks
+        # the same pixels.
+        sel = np.flatnonzero(near[box] & self.cloth[box])
+        if 3 * sel.size > 1000:
+            sel = sel[:: max(1, sel.size // 20000)]
+            idx = (sel // (u1 - u0) + v0) * near.shape[1] + (sel % (u1 - u0) + u0)
             resid = cur.reshape(-1, 3)[idx] - self.image.reshape(-1, 3)[idx]
             s = 1.4826 * float(np.median(np.abs(resid)))
             self.sigma = 0.8 * self.sigma + 0.2 * max(s, 0.5)
@@ -410,23 +446,30 @@ class Background:
         at ``ghost_rate`` over the ghost pixels in the box."""
         u0, v0, u1, v1 = box
         win = (slice(v0, v1), slice(u0, u1))
-        cleaned, _ = clean_frame(cur[win], self.zone[win], self.cloth[win], self.ball_px, self.config)
+        cleaned, _ = clean_frame(cur[win].astype(np.float32), self.zone[win], self.cloth[win], self.ball_px, self.config)
         sub = np.ascontiguousarray(self.image[win])
         cv2.accumulateWeighted(cleaned, sub, self.config.ghost_rate, np.ascontiguousarray(ghost[win]))
         self.image[win] = sub
 
 
-def _patches(mask: np.ndarray, min_area: float, margin: int) -> list[tuple[int, int, int, int]]:
-    """Boxes (u0, v0, u1, v1) px round the connected patches of ``mask`` ((H, W) uint8) of at
+def _patches(mask: np.ndarray, min_area: float, margin: int, origin: tuple[int, int] = (0, 0), shape: tuple[int, int] | None = None) -> list[tuple[int, int, int, int]]:
+    """Boxes (u0, v0, u1, v1) px round the connected patches of ``mask`` ((h, w) uint8) of at
     least ``min_area`` pixels, each grown by ``margin`` px and clipped to the image; boxes that
-    then overlap are merged, so no pixel is cleaned twice."""
-    h, w = mask.shape
-    n, _, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+    then overlap are merged, so no pixel is cleaned twice. ``mask`` may be a window of the
+    image whose pixel (0, 0) is the image's ``origin`` (u, v), the image being of ``shape``
+    (H, W) (default: the mask's own); the boxes are in the image's pixels."""
+    h, w = mask.shape if shape is None else shape
+    # Labelled within the bounding box of the mask's pixels only: the same components.
+    bx0, by0, bw0, bh0 = cv2.boundingRect(mask)
+    if bw0 == 0 or bh0 == 0:
+        return []
+    n, _, stats, _ = cv2.connectedComponentsWithStats(np.ascontiguousarray(mask[by0 : by0 + bh0, bx0 : bx0 + bw0]), connectivity=8)
     boxes = []
     for i in range(1, n):
         if stats[i, cv2.CC_STAT_AREA] < min_area:
             continue
         x, y, bw, bh = stats[i, :4]
+        x, y = x + bx0 + origin[0], y + by0 + origin[1]
         boxes.append([max(x - margin, 0), max(y - margin, 0), min(x + bw + margin, w), min(y + bh + margin, h)])
     merged = True
     while merged and len(boxes) > 1:

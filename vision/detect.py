@@ -134,6 +134,12 @@ PATTERNS = ("cue", "solid", "stripe", "unknown")
 COLOURS = ("white", "yellow", "blue", "red", "purple", "orange", "green", "maroon", "black", "")
 
 _N_RAYS = 48
+# The outline rays' angles (rad) and unit directions (48, 2) in the pixel frame, made once
+# (read only).
+_RAY_ANG = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
+_RAY_DIRS = np.column_stack([np.cos(_RAY_ANG), np.sin(_RAY_ANG)])
+_RAY_ANG.flags.writeable = False
+_RAY_DIRS.flags.writeable = False
 # Prior spread of the outline's inward shift from limb darkening (mm): about a pixel at the
 # usual scale of 2 mm per pixel; not a measured figure.
 _BIAS_SIGMA_MM = 2.0
@@ -330,7 +336,43 @@ def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: 
 
 def _ray_polygon(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarray:
     """Distance from ``c`` along each (K, 2) unit direction to the boundary of the convex (or
-    star-shaped about c) polygon (M, 2); the farthest crossing, NaN if none."""
+    star-shaped about c) polygon (M, 2); the farthest crossing, NaN if none.
+
+    The outlines here are convex and hold ``c``, so each ray leaves through the one edge whose
+    ends' angles about ``c`` bracket its own (:func:`_ray_polygon_convex`, with the same
+    arithmetic for that edge); the search of every edge (:func:`_ray_polygon_all`) stands
+    where that does not give a crossing ahead of ``c`` on every ray."""
+    t = _ray_polygon_convex(c, dirs, poly)
+    if np.all(t > 0):  # False for NaN
+        return t
+    return _ray_polygon_all(c, dirs, poly)
+
+
+def _ray_polygon_convex(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarray:
+    """:func:`_ray_polygon` for a convex polygon (M, 2), either orientation, holding ``c``:
+    the crossing of each (K, 2) unit direction with the edge whose end vertices' angles about
+    ``c`` bracket the direction's angle (K,); whether ``c`` is inside is not checked (see
+    :func:`_ray_polygon`)."""
+    m = len(poly)
+    rel = poly - c
+    phi = np.arctan2(rel[:, 1], rel[:, 0])
+    order = np.argsort(phi)
+    pos = np.searchsorted(phi[order], np.arctan2(dirs[:, 1], dirs[:, 0]))
+    hi, lo = order[pos % m], order[(pos - 1) % m]
+    # The edge runs from the earlier vertex of the pair in the polygon's own order.
+    a = np.where((hi - lo) % m == 1, lo, hi)
+    p0 = poly[a]
+    e = poly[(a + 1) % m] - p0
+    wx, wy = p0[:, 0] - c[0], p0[:, 1] - c[1]
+    ex, ey = e[:, 0], e[:, 1]
+    # c + t d = p0 + s e, as in _ray_polygon_all; a ray along its edge (|d x e| = 0, only
+    # when c is not inside) gives NaN.
+    den = dirs[:, 0] * ey - dirs[:, 1] * ex
+    return (wx * ey - wy * ex) / np.where(den == 0, np.nan, den)
+
+
+def _ray_polygon_all(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarray:
+    """:func:`_ray_polygon` by crossing every ray with every edge."""
     p0 = poly
     e = np.empty_like(poly)  # (M, 2) edges p[i + 1] - p[i], the last closing the polygon
     e[:-1] = poly[1:] - poly[:-1]
@@ -494,8 +536,9 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     """:func:`_robust_fit_general` for a sharp ball, parameters (x, y, bias) (mm, table frame;
     ``C`` (3,) the camera centre, ``d`` (K, 3) unit rays): the same Levenberg-Marquardt
     (Marquardt 1963) with Tukey biweight reweighting (Holland & Welsch 1977), step for step,
-    written for three parameters: ``n = w x d`` is affine in (x, y) over per-ray arrays prepared
-    once, the damped 3 x 3 normal equations are solved by their adjugate in plain floats, and
+    written for three parameters: ``|w x d|^2`` is a quadratic in (x, y) whose per-ray
+    coefficients are made once, so each evaluation of the residuals or the Jacobian is one
+    small matrix product, the damped 3 x 3 normal equations are solved by their adjugate in plain floats, and
     the damping ladder is tried in order, stopping at the first value that lowers the cost (the
     one the batched ladder picks). The general form's broadcasting, stacking and batched LAPACK
     call cost several times its arithmetic on 48 rays. Agrees with :func:`_robust_fit_general`
@@ -504,30 +547,34 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     K = len(d)
     dx, dy, dz = (np.ascontiguousarray(d[:, k]) for k in range(3))
     wz = R - C[2]
-    # n = w x d = n0 + wx (e_x x d) + wy (e_y x d); e_x x d = (0, -dz, dy), e_y x d = (dz, 0, -dx).
-    n0x, n0y = -wz * dy, wz * dx
+    # n = w x d = n0 + wx (e_x x d) + wy (e_y x d), e_x x d = (0, -dz, dy), e_y x d = (dz, 0, -dx),
+    # n0 = (-wz dy, wz dx, 0); so |n|^2 is a quadratic in (wx, wy) with per-ray coefficients
+    # made once: |n|^2 = [1, wx, wy, wx^2, wx wy, wy^2] Q (Q (6, K)), and the gradient's
+    # numerators n . (d n / d wx), n . (d n / d wy) are [Q1 / 2 + wx Q3 + wy Q4 / 2,
+    # Q2 / 2 + wx Q4 / 2 + wy Q5]: one small matrix product each instead of a dozen array
+    # operations per evaluation (their cost, not the arithmetic, is what counts on 48 rays).
+    dxx, dyy, dzz = dx * dx, dy * dy, dz * dz
+    Q = np.empty((6, K))
+    Q[0] = wz * wz * (dxx + dyy)
+    Q[1] = -2.0 * wz * dx * dz
+    Q[2] = -2.0 * wz * dy * dz
+    Q[3] = dyy + dzz
+    Q[4] = -2.0 * dx * dy
+    Q[5] = dxx + dzz
     inv_sig = 1.0 / _BIAS_SIGMA_MM
     lams = (1.0, 8.0, 64.0, 512.0)
-    ones = np.ones(K)
+    M = np.empty((3, K))
+    M[2] = 1.0
 
     def res_only(q):
         wx, wy = q[0] - C[0], q[1] - C[1]
-        nx = n0x + wy * dz
-        ny = n0y - wx * dz
-        nz = wx * dy - wy * dx
-        return np.sqrt(nx * nx + ny * ny + nz * nz) - (R - q[2])
+        return np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0)) - (R - q[2])
 
     def res_jac(q):
         wx, wy = q[0] - C[0], q[1] - C[1]
-        nx = n0x + wy * dz
-        ny = n0y - wx * dz
-        nz = wx * dy - wy * dx
-        dist = np.sqrt(nx * nx + ny * ny + nz * nz)
-        inv = 1.0 / np.maximum(dist, 1e-12)
-        M = np.empty((3, K))
-        M[0] = (-ny * dz + nz * dy) * inv
-        M[1] = (nx * dz - nz * dx) * inv
-        M[2] = ones
+        dist = np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0))
+        G = np.array([[0.0, 0.5, 0.0, wx, 0.5 * wy, 0.0], [0.0, 0.0, 0.5, 0.0, 0.5 * wx, wy]])
+        M[:2] = (G @ Q) / np.maximum(dist, 1e-12)
         return dist - (R - q[2]), M
 
     lam = 1e-3
@@ -748,6 +795,8 @@ class RayMap:
         self.shape = (len(gv), len(gu))
         self.table = (camera.undistort_normalised(uv) - self._pinhole(uv)).reshape(*self.shape, 2)
         self._flat = np.ascontiguousarray(self.table.reshape(-1, 2))
+        # Flat offsets of a grid cell's four corners, in the order u0 v0, u1 v0, u0 v1, u1 v1.
+        self._corners = np.array([[0, 1, self.shape[1], self.shape[1] + 1]], np.intp)
         # The camera's numbers as plain floats and arrays, read once.
         self._RT = np.ascontiguousarray(camera.R.T)
         self._centre = [float(v) for v in camera.centre_mm]
@@ -767,26 +816,37 @@ class RayMap:
         """(N, 2) pixels -> (N, 2) ideal normalised coordinates (see :meth:`Camera.undistort_normalised`)."""
         uv = np.asarray(uv_px, dtype=float).reshape(-1, 2)
         g = uv / self.step
-        i0 = np.floor(g).astype(int)
+        i0 = np.floor(g)
         nv, nu = self.shape
         inside = (i0[:, 0] >= 0) & (i0[:, 0] < nu - 1) & (i0[:, 1] >= 0) & (i0[:, 1] < nv - 1)
         every = bool(inside.all())
         out = np.empty_like(uv)
         if every or inside.any():
-            gi, ii = (g, i0) if every else (g[inside], i0[inside])
+            gi, ii, uvi = (g, i0, uv) if every else (g[inside], i0[inside], uv[inside])
+            n = len(gi)
             a = gi - ii
-            au, av = a[:, 0:1], a[:, 1:2]
-            # Flat indices of the four grid neighbours (np.take on the flattened table is
-            # several times cheaper than two-axis fancy indexing).
-            k = ii[:, 1] * nu + ii[:, 0]
-            T = self._flat
-            corr = (
-                np.take(T, k, axis=0) * ((1 - au) * (1 - av))
-                + np.take(T, k + 1, axis=0) * (au * (1 - av))
-                + np.take(T, k + nu, axis=0) * ((1 - au) * av)
-                + np.take(T, k + nu + 1, axis=0) * (au * av)
-            )
-            out[inside] = self._pinhole(uv if every else uv[inside]) + corr
+            # Bilinear weights of the four grid neighbours (u0 v0, u1 v0, u0 v1, u1 v1) as one
+            # outer product, and the neighbours' corrections gathered in one take from the flat
+            # table: a handful of numpy calls instead of a few dozen (each costs about a
+            # microsecond on a few dozen points, more than its arithmetic). Products and the
+            # sum over the four run in the order of the written-out form, to the last bit.
+            b = 1 - a
+            wu = np.empty((n, 2))
+            wu[:, 0], wu[:, 1] = b[:, 0], a[:, 0]
+            wv = np.empty((n, 2))
+            wv[:, 0], wv[:, 1] = b[:, 1], a[:, 1]
+            w = (wu[:, None, :] * wv[:, :, None]).reshape(n, 4, 1)
+            k = (ii[:, 1] * nu + ii[:, 0]).astype(np.intp)
+            corr = (np.take(self._flat, k[:, None] + self._corners, axis=0) * w).sum(axis=1)
+            k00, k01, k02, k11, k12 = self._k
+            y = (uvi[:, 1] - k12) / k11
+            out_i = corr
+            out_i[:, 0] += (uvi[:, 0] - k02 - k01 * y) / k00
+            out_i[:, 1] += y
+            if every:
+                out = out_i
+            else:
+                out[inside] = out_i
         if not every:
             out[~inside] = self.camera.undistort_normalised(uv[~inside])
         return out
@@ -894,6 +954,15 @@ class BallDetector:
         cs = int(config.cell_px)
         self._small_size = (max(w // cs, 1), max(h // cs, 1))
         self._zone_small = cv2.resize(self.zone.astype(np.uint8), self._small_size, interpolation=cv2.INTER_NEAREST) > 0
+        # Cells of the change grid that can matter (the zone's), as a box (j0, j1, i0, i1) of
+        # cells: only that part of the frame is reduced. INTER_AREA at a whole factor is a
+        # mean over each cell's pixels, the same for a crop on cell boundaries; for a frame not
+        # a whole number of cells the whole frame is reduced.
+        if w % cs == 0 and h % cs == 0 and self._zone_small.any():
+            js, is_ = np.nonzero(self._zone_small)
+            self._cells = (int(js.min()), int(js.max()) + 1, int(is_.min()), int(is_.max()) + 1)
+        else:
+            self._cells = (0, self._small_size[1], 0, self._small_size[0])
         # Zone border: pixels of the zone next to its outside (where arms and cues come in).
         self._zone_edge = self.zone & ~cv2.erode(self.zone.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
         # The same at half scale, for the whole-frame reach test.
@@ -934,21 +1003,29 @@ class BallDetector:
         w, h = self.size
         if img.shape != (h, w, 3) or img.dtype != np.uint8:
             raise ValueError(f"frame {frame_index} is {img.shape} {img.dtype}; the camera expects ({h}, {w}, 3) uint8 BGR")
-        small = cv2.resize(img, self._small_size, interpolation=cv2.INTER_AREA).astype(np.float32)
+        j0, j1, i0, i1 = self._cells
+        cs = int(self.config.cell_px)
+        if (j1 - j0, i1 - i0) == self._zone_small.shape:
+            small = cv2.resize(img, self._small_size, interpolation=cv2.INTER_AREA).astype(np.float32)
+        else:
+            small = cv2.resize(img[j0 * cs : j1 * cs, i0 * cs : i1 * cs], (i1 - i0, j1 - j0), interpolation=cv2.INTER_AREA).astype(np.float32)
+        zone_cells = self._zone_small[j0:j1, i0:i1]
         if self.background is None:
             self.background = Background([img], self.zone, self.cloth, self.ball_px, self.config.background)
             norm = np.linalg.norm(self.background.image[self.cloth], axis=1)
             self._b_norm = float(np.median(norm)) if norm.size else 100.0
-            changed = self._zone_small.copy()
+            cell_changed = zone_cells.copy()
             self._ref_small = small
         else:
             diff = max_abs_diff(small, self._ref_small)
-            changed = (diff > self.config.change_dn) & self._zone_small
+            cell_changed = (diff > self.config.change_dn) & zone_cells
+        changed = np.zeros(self._zone_small.shape, bool)
+        changed[j0:j1, i0:i1] = cell_changed
         dt = 0.0 if self._last_t is None else max(t_s - self._last_t, 0.0)
         self._last_t = t_s
         if changed.any():
             det = self._process_changed(img, changed)
-            self._ref_small[changed] = small[changed]
+            self._ref_small[cell_changed] = small[cell_changed]
         else:
             det = self._prev
         self._since_update += dt
@@ -1526,7 +1603,7 @@ class BallDetector:
         q = self.rays.backproject(uv, 0.0)
         return ~((q[:, 0] >= 0.0) & (q[:, 0] <= t.length_mm) & (q[:, 1] >= 0.0) & (q[:, 1] <= t.width_mm))
 
-    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None, off_bed: bool = True) -> dict | None:
+    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None, off_bed: bool = True, resume: tuple | None = None) -> dict | None:
         """Fit one seed (:meth:`_seeds_of`): a detection row (:data:`COLUMNS`, frame and time
         left at 0) or None. ``shadows``: whether the coarse outline discounts cast shadows
         (:meth:`_edges`). ``avoid``: (M, 2) mm centres (table frame) of neighbouring balls;
@@ -1535,7 +1612,9 @@ class BallDetector:
         over the rays left in (at least ``_MIN_FREE_RAYS`` of them). ``off_bed``: whether the
         local rounds leave out rays that look past a cushion nose (:meth:`_surround_off_bed`);
         a fit that fails its checks with them left out is tried again with every ray (a ball
-        frozen against the cushion, whose rim meets the nose itself)."""
+        frozen against the cushion, whose rim meets the nose itself), from the state its own
+        coarse rounds ended in (``resume``: they do not depend on ``off_bed``, so they are not
+        done twice)."""
         cam, R = self.camera, self.R
         X = self.rays.backproject(seed["uv"][None], R)[0]
         half_mm, heading = 0.0, 0.0
@@ -1546,8 +1625,7 @@ class BallDetector:
             half_mm = seed["half_px"] * px_mm
         capsule = half_mm > 0.15 * R
         p = np.array([X[0], X[1], 0.0, half_mm, heading]) if capsule else np.array([X[0], X[1], 0.0])
-        ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
-        dirs = np.column_stack([np.cos(ang), np.sin(ang)])
+        ang, dirs = _RAY_ANG, _RAY_DIRS
         r_px = self.ball_px / 2
         result = None
         # Two rounds of the coarse outline, then (for a sharp ball) two of the local two-colour
@@ -1556,11 +1634,19 @@ class BallDetector:
         coarse = None
         same_hue = None  # :meth:`_same_hue`, looked up once a sharp ball reaches the local rounds
         dropped = False
-        for rnd, win in enumerate((0.45, 0.25) + (None,) * _LOCAL_ROUNDS):
+        rounds = (0.45, 0.25) + (None,) * _LOCAL_ROUNDS
+        if resume is not None:
+            p, capsule, result, coarse, same_hue, r_loc = resume
+            p = p.copy()
+            rounds = (None,) * _LOCAL_ROUNDS
+        local_start = None  # the state at the first local round, for a retry with every ray
+        for win in rounds:
             if win is None and not capsule and same_hue is None:
                 same_hue = self._same_hue(img, seed["uv"])
             if win is None and (capsule or same_hue):
                 break
+            if win is None and local_start is None:
+                local_start = (p.copy(), capsule, result, coarse, same_hue, r_loc)
             if win is None and prev_xy is not None and math.hypot(p[0] - prev_xy[0], p[1] - prev_xy[1]) < 0.05:
                 break  # the local edge has converged
             prev_xy = (p[0], p[1]) if win is None else None
@@ -1641,7 +1727,7 @@ class BallDetector:
         gaps = np.diff(np.sort(np.append(angs, angs.min() + 2 * np.pi))) if inl.any() else np.array([np.inf])
         if (share < self.config.min_inlier_share or rms > max_rms
                 or gaps.max() > (math.radians(150) if seed["strict"] else math.radians(200))):
-            return self._fit_seed(img, seed, shadows, avoid, off_bed=False) if dropped else None
+            return self._fit_seed(img, seed, shadows, avoid, off_bed=False, resume=local_start) if dropped else None
         half = float(p[3]) if capsule else 0.0
         if half > self.config.max_half_travel_mm:
             return None
