@@ -782,7 +782,7 @@ def _graze_sessions():
 def test_grazes_below_the_speed_threshold_are_found_and_nothing_else():
     # The targets: recall and precision 0.98 (here: every graze found, within two
     # frames of the simulator's contact, and no contact where none was). Measured: all four
-    # found within 0.4 frame; before (the smoothed-speed threshold alone) the first session's
+    # found within 0.45 frame; before (the smoothed-speed threshold alone) the first session's
     # graze was missed.
     n_truth = n_found = 0
     for found, truth in _graze_sessions():
