@@ -4,6 +4,13 @@ known cushion and cloth parameters, how well does it predict banks filmed separa
 Usage::
 
     nice -n 10 .venv/bin/python benchmarks/bank_chart_accuracy.py [--workdir DIR] [--auto-calibration]
+        [--reuse CACHE]
+
+``--reuse CACHE`` skips filming and the vision stage: CACHE is the ``--workdir`` of an earlier run
+(same scenes), whose truth folders are read there and whose results folders' ``detections.csv``
+(same clip, same calibration) go through tracking and events again, written to ``--workdir``
+(which must differ from CACHE); so the tracking and event stages are compared before and after a
+change while the detector stays fixed, as ``analyse_accuracy.py --reuse`` does.
 
 Steps (each cached in ``--workdir``, default ``/tmp/railtrace_bank_chart``; delete it to redo):
 
@@ -121,6 +128,38 @@ def film_and_analyse(text: str, work: Path, name: str, auto: bool) -> tuple[Path
     return truth, results
 
 
+def reanalyse(text: str, cache: Path, work: Path, name: str, auto: bool) -> tuple[Path, Path]:
+    """(truth folder in ``cache``, results folder in ``work``): tracking and events re-run on the
+    detections of ``cache``'s results folder of ``name``; ValueError if ``cache`` lacks it or
+    holds another scene."""
+    import pandas as pd
+
+    from railtrace.results import write_results
+    from tracking.events import find_events
+    from tracking.tracker import track
+    from vision.calibfile import read_calibration
+
+    mode = "auto" if auto else "cal"
+    src = cache / f"{name}.{mode}.results"
+    truth = cache / f"{name}.truth"
+    scene_file = cache / f"{name}.toml"
+    if not (src / "detections.csv").is_file() or not truth.is_dir():
+        raise ValueError(f"--reuse {cache}: no {src.name}/detections.csv or {truth.name}; run once "
+                         f"without --reuse{' and with --auto-calibration' if auto else ''} into it")
+    if not scene_file.is_file() or scene_file.read_text() != text:
+        raise ValueError(f"--reuse {cache}: {scene_file.name} is not this benchmark's scene; film "
+                         "it again without --reuse")
+    table, _, doc = read_calibration(src / "calibration.json")
+    det = pd.read_csv(src / "detections.csv", dtype={"colour": str, "pattern": str})
+    tr = track(det, table)
+    ev, sh = find_events(tr, table, det)
+    out = work / src.name
+    write_results(out, tr, ev, sh, doc, overwrite=True, run_info={"reused_detections": str(src)},
+                  extra_files={"detections.csv": det.to_csv(index=False, float_format="%.4f")})
+    print(f"re-ran tracking and events on {src / 'detections.csv'} into {out}", flush=True)
+    return truth, out
+
+
 def pair_shots(results, truth) -> dict[int, tuple[int, int]]:
     """Results shot -> (truth shot, track): the analysed shot holding a ``start`` event within
     0.1 s of a filmed strike, and the track it belongs to. Analysed shots that match no strike
@@ -190,13 +229,26 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--workdir", type=Path, default=Path(tempfile.gettempdir()) / "railtrace_bank_chart")
     ap.add_argument("--auto-calibration", action="store_true", help="calibrate each clip from itself")
+    ap.add_argument("--reuse", type=Path, default=None,
+                    help="re-run tracking and events on the detections cached in this earlier "
+                         "--workdir instead of filming and analysing")
     args = ap.parse_args(argv)
     work = args.workdir
+    if args.reuse is not None and args.reuse.resolve() == work.resolve():
+        ap.error(f"--reuse {args.reuse} must differ from --workdir {work} (its results would be "
+                 "overwritten)")
     work.mkdir(parents=True, exist_ok=True)
     train_text = with_catches(training_shots(), 0, 0.8, "bank chart training")
     held_text = with_catches(held_out_shots() + HELD_OUT_MORE, 1, 0.3, "bank chart held out")
-    t_truth, t_res = film_and_analyse(train_text, work, "train", args.auto_calibration)
-    h_truth, h_res = film_and_analyse(held_text, work, "held", args.auto_calibration)
+    if args.reuse is not None:
+        try:
+            t_truth, t_res = reanalyse(train_text, args.reuse, work, "train", args.auto_calibration)
+            h_truth, h_res = reanalyse(held_text, args.reuse, work, "held", args.auto_calibration)
+        except ValueError as exc:
+            ap.error(str(exc))
+    else:
+        t_truth, t_res = film_and_analyse(train_text, work, "train", args.auto_calibration)
+        h_truth, h_res = film_and_analyse(held_text, work, "held", args.auto_calibration)
     true_physics = parse_scene(tomllib.loads(train_text), "").physics
 
     tt, tr = read_session(t_truth), read_session(t_res)

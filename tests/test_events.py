@@ -738,3 +738,59 @@ def test_a_slow_departure_hardly_turns_with_the_contact_line():
     print("spreads", np.round(spreads, 2), "median |error|", np.median(np.abs(errs)))
     assert max(spreads) <= 1.8
     assert np.median(np.abs(errs)) <= 1.0
+
+
+def _graze_sessions():
+    """Rolling balls (struck 0.4 R above centre, Alciatore 2004) on the 9 ft table simulated by
+    ``analysis.physics`` (cushion impacts of Mathavan, Jackson & Parkin 2010), 60 fps, detections
+    as in ``benchmarks/event_accuracy.py`` with 0.3 mm noise moving: four grazes of the bottom
+    cushion, 0.25-0.45 m/s at 80-84 degrees off square (30-75 mm/s normal speed, below the 50 mm/s
+    the smoothed velocity's threshold asks of each side), and one ball rolling along the top
+    cushion 40 mm off the line, parallel to it, which touches nothing.
+    Yields (found cushion events, the simulator's cushion events)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    for seed, (x0, speed, ang) in enumerate(((500.0, 300.0, 82.0), (700.0, 450.0, 84.0),
+                                             (1700.0, 250.0, -80.0), (2000.0, 350.0, -83.0))):
+        rng = np.random.default_rng(seed)
+        # Start 20 mm inside the line, heading down at (90 - ang) degrees to the rail.
+        y0 = TABLE.reversal_line("bottom") + 20.0
+        sim = Simulator(TABLE, PhysicsParams(), {"cue": (x0, y0)})
+        heading = math.radians(-90.0 + ang)
+        sim.strike(0.3, Strike("cue", speed, heading, 0.0, 0.4))
+        sim.run_until_rest()
+        traj = sim.trajectory()
+        t_end = 0.3 + 1.6
+        det = detections(traj, t_end, 60.0, rng, rest_sigma_mm=0.15, moving_sigma_mm=0.3,
+                         drop=0.0)
+        truth = truth_events(TABLE, traj, t_end)
+        yield _only(find_events(track(det, TABLE), TABLE, det)[0], "cushion"), \
+            truth[truth["kind"] == "cushion"].reset_index(drop=True)
+    rng = np.random.default_rng(9)
+    y0 = TABLE.reversal_line("top") - 40.0
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": (1350.0, y0)})  # past the side pocket
+    sim.strike(0.3, Strike("cue", 400.0, 0.0, 0.0, 0.4))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    det = detections(traj, 2.0, 60.0, rng, rest_sigma_mm=0.15, moving_sigma_mm=0.3, drop=0.0)
+    truth = truth_events(TABLE, traj, 2.0)
+    yield _only(find_events(track(det, TABLE), TABLE, det)[0], "cushion"), \
+        truth[truth["kind"] == "cushion"].reset_index(drop=True)
+
+
+def test_grazes_below_the_speed_threshold_are_found_and_nothing_else():
+    # The issue's targets: recall and precision 0.98 (here: every graze found, within two
+    # frames of the simulator's contact, and no contact where none was). Measured: all four
+    # found within 0.45 frame; before (the smoothed-speed threshold alone) the first session's
+    # graze was missed.
+    n_truth = n_found = 0
+    for found, truth in _graze_sessions():
+        print(found[["t", "rail", "speed_in", "speed_out", "angle_in"]].round(3).to_dict("records"),
+              truth[["t", "rail", "vn_in"]].round(3).to_dict("records"))
+        assert len(found) == len(truth)
+        for _, tr in truth.iterrows():
+            assert np.min(np.abs(found["t"] - tr["t"])) < 2 / 60
+        n_truth += len(truth)
+        n_found += len(found)
+    assert n_truth == 4 and n_found == 4

@@ -26,7 +26,12 @@ Method
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
-   velocity changes.
+   velocity changes. A slow contact or a graze, whose smoothed normal velocity stays within
+   ``min_velocity_change_mm_s / 2`` of zero on a side, counts where straight-line fits of the
+   raw normal coordinate over each leg (``fit_window_s``) head into the rail and away from it
+   by more than ``turn_sigmas`` standard errors of their slopes (``_Finder._turn_sigmas``),
+   the most significant such turn within a leg's reach; its contact time is then where the
+   two sides' paths come nearest the line when neither fit reaches it.
 3. Each contact is then solved between frames. Each side's path is fitted by least squares
    from the raw samples between the neighbouring contacts of that ball (at most
    ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, each
@@ -120,6 +125,9 @@ class EventConfig:
     spans a contact are left out of its fits (None: half the frame interval, a 180-degree shutter,
     common practice). ``cushion_reach_mm``: a normal-velocity reversal counts as a cushion contact
     only with the centre this close to the reversal line (plus one frame's travel).
+    ``turn_sigmas``: a normal-velocity reversal slower than that counts as a cushion contact
+    only if each leg's normal slope departs from zero by more than this many of its standard
+    errors (``_Finder._turn_sigmas``; one-sided Gaussian tail 3e-7 at 5).
     ``collision_margin_mm``: centres closer than a diameter plus this (plus one frame's relative
     travel) may be touching. ``min_velocity_change_mm_s``: smallest velocity change that marks a
     contact. ``start_fit_s`` / ``stop_fit_s``: samples fitted to solve a start / stop.
@@ -170,6 +178,7 @@ class EventConfig:
     cushion_reach_mm: float = 30.0
     collision_margin_mm: float = 15.0
     min_velocity_change_mm_s: float = 100.0
+    turn_sigmas: float = 5.0
     start_fit_s: float = 0.1
     stop_fit_s: float = 0.6
     pocket_reach_mm: float = 150.0
@@ -1253,6 +1262,7 @@ class _Finder:
     def rough_cushions(self, b: _Ball) -> list[tuple[float, str]]:
         """(time, rail) where the smoothed normal velocity turns away from a rail near it."""
         out = []
+        slow_turns = []  # (turn in standard errors, time, rail) below the speed threshold
         cfg = self.cfg
         for i0, i1 in b.moves:
             for rail in RAILS:
@@ -1266,17 +1276,65 @@ class _Finder:
                         continue
                     lo, hi = max(0, k - 3), min(len(vn), k + 3)
                     vmin = cfg.min_velocity_change_mm_s / 2
-                    if vn[lo:hi].min() > -vmin or vn[lo:hi].max() < vmin:
-                        continue
+                    slow = vn[lo:hi].min() > -vmin or vn[lo:hi].max() < vmin
                     reach = cfg.cushion_reach_mm + np.abs(vn[lo:hi]).max() * self.dt
                     if dist[k - 1:k + 1].min() > reach:
                         continue
                     f = -vn[k - 1] / (vn[k] - vn[k - 1])
                     tg = b.t[i0 + k - 1] + f * (b.t[i0 + k] - b.t[i0 + k - 1])
+                    if slow:
+                        z = self._turn_sigmas(b, i0, i1, i0 + k, ax, n[ax])
+                        if z > cfg.turn_sigmas:
+                            slow_turns.append((z, float(tg), rail))
+                        continue
                     if out and out[-1][1] == rail and tg - out[-1][0] < 3 * self.dt:
                         continue
                     out.append((float(tg), rail))
+        # A slow turn's smoothed normal velocity flips sign with the noise several times
+        # within one leg's reach; the turn is where the two legs part most significantly
+        # (non-maximum suppression within ``fit_window_s`` on the same rail, and none
+        # within reach of a contact the speed threshold found).
+        for z, tg, rail in sorted(slow_turns, reverse=True):
+            if all(r != rail or abs(t - tg) >= cfg.fit_window_s for t, r in out):
+                out.append((tg, rail))
         return sorted(out)
+
+    def _turn_sigmas(self, b: _Ball, i0: int, i1: int, k: int, ax: int, sign: float) -> float:
+        """How far (in standard errors) the raw path turns away from a rail at row k: a slow contact
+        or a graze, whose normal speeds (tens of mm/s) the smoothed velocity's fixed threshold
+        (``min_velocity_change_mm_s``) misses.
+
+        Each leg, the raw samples of the motion (rows i0..i1) within ``fit_window_s`` before row
+        k and from row k on, is fitted by a straight line in the normal coordinate (axis ``ax``,
+        ``sign`` +1 where the inward normal points along it). Its slope's standard error is
+        ``s / sqrt(sum (t - t_mean)^2)`` (ordinary least squares), ``s`` the larger of the
+        track's noise at the fits' scale (``_noise_sigma``) and the leg's residual scatter (so
+        a leg that curves is not trusted beyond its fit). Returned: the smaller of the approach's
+        slope into the rail and the departure's away from it, in their standard errors (0 for a
+        leg of fewer than ``quadratic_min_samples`` samples). A turn counts beyond
+        ``turn_sigmas`` (a one-sided Gaussian test, ``rough_cushions``): the threshold falls
+        with longer legs and cleaner detections rather than standing at a fixed speed, and a
+        ball running along a rail has legs with no significant normal slope.
+        """
+        cfg = self.cfg
+        out = []
+        rows = np.arange(len(b.t))
+        for z in (-1, 1):
+            if z < 0:
+                ok = (b.t > b.t[k] - cfg.fit_window_s) & (rows >= i0) & (rows < k)
+            else:
+                ok = (b.t < b.t[k] + cfg.fit_window_s) & (rows >= k) & (rows <= i1)
+            ok &= np.isfinite(b.raw[:, 0])
+            ts, ys = b.t[ok], sign * b.raw[ok, ax]
+            if len(ts) < cfg.quadratic_min_samples:
+                return 0.0
+            tm = ts - ts.mean()
+            sxx = float(tm @ tm)
+            slope = float(tm @ (ys - ys.mean())) / sxx
+            res = ys - ys.mean() - slope * tm
+            s = max(b.sigma_fit, math.sqrt(float(res @ res) / (len(ts) - 2)))
+            out.append(z * slope / (s / math.sqrt(sxx)))
+        return min(out)
 
     def cushion(self, b: _Ball, rail: str, tg: float, apex_only: bool = False):
         """A cushion event solved from both sides' fits, or None (no fit, or a jaw contact).
@@ -1305,6 +1363,13 @@ class _Finder:
                 vn = f.coef[1, ax] + 2 * f.coef[2, ax] * tau
                 var_t = f.var(t_c + tau) / max(vn * vn, 1e-12)  # var(t) = var(n) / (dn/dt)^2
                 crossings.append((t_c + tau, var_t))
+            if not crossings and fa is not None and fd is not None:
+                # A graze (``_turn_sigmas``): at tens of mm/s of normal speed neither side's fit
+                # need reach the line, known to a millimetre, within two frames; the contact is
+                # then where the two sides' path comes nearest the line.
+                taus = (tg - t_c) + np.linspace(-2 * self.dt, 2 * self.dt, 81)
+                gap = [abs(fa.pos(t_c + u)[ax] - c) + abs(fd.pos(t_c + u)[ax] - c) for u in taus]
+                crossings.append((t_c + float(taus[int(np.argmin(gap))]), 1.0))
             if not crossings:
                 return None
             w = np.array([1.0 / max(v, 1e-30) for _, v in crossings])
