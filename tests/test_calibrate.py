@@ -589,10 +589,10 @@ def test_stated_uncertainty_covers_the_truth_after_h264(square_on, tmp_path):
 
 def _collect_every_sample(frames, config):
     """Reference for ``vision.calibrate._collect``: the whole-clip pass aligning every bump
-    sample as it comes (as it was written before the alignments were deferred, with the bump
-    dated from the frames after the last unmoved sample). Returns, per segment, (start time,
-    still frames seen, (time, frame) of the stills kept)."""
-    from vision.calibrate import _Segment, _ecc, _edge_small, _keep_still, _moves_everywhere, _warp_motion_px
+    sample as it comes (as it was written before the alignments were deferred; the bump is
+    dated by the same ``_bump_start``, which the test checks against the true bump time).
+    Returns, per segment, (start time, still frames seen, (time, frame) of the stills kept)."""
+    from vision.calibrate import _bump_start, _Segment, _ecc, _edge_small, _keep_still, _moves_everywhere, _warp_motion_px
 
     segments, prev, last_t, ring, pending, seg, t_unmoved = [], None, -1e9, [], [], None, -1e9
     for n, (t, frame) in enumerate(frames, start=1):
@@ -625,17 +625,7 @@ def _collect_every_sample(frames, config):
         if np.max(np.abs(ws - ws.mean(axis=0)), axis=0)[:, 2].max() / scale > 3 * config.bump_threshold_px:
             pending = pending[1:]
             continue
-        t_bump = pending[0][0]
-        for tt, sm in ring:
-            if tt <= t_unmoved:
-                continue
-            if tt >= pending[0][0]:
-                break
-            w = _ecc(seg.ref_edge, _edge_small(sm))
-            if w is not None and _warp_motion_px(w, sm.shape, scale) >= config.bump_threshold_px:
-                t_bump = tt
-                break
-        seg = _Segment(t0=t_bump)
+        seg = _Segment(t0=_bump_start(seg.ref_edge, ring, t_unmoved, pending[0][0], scale, config))
         seg.ref_edge = edge
         segments.append(seg)
         pending, t_unmoved = [], t

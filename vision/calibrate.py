@@ -320,6 +320,24 @@ class _Segment:
     warp: np.ndarray | None = None  # 2x3 ECC warp from the first segment's reference (small px)
 
 
+def _bump_start(ref_edge: np.ndarray, ring: list, t_unmoved: float, t_first: float, scale: float,
+                config: "CalibConfig") -> float:
+    """Time (s) a camera bump starts: the first small frame of ``ring`` ((t, small grey) pairs,
+    oldest first) after ``t_unmoved`` (the last sample that showed no motion: a shake earlier in
+    the ring, already over, is not this bump's start) and before ``t_first`` (the first sample
+    that showed it) whose ECC warp against ``ref_edge`` moves at least ``bump_threshold_px``;
+    ``t_first`` if none does."""
+    for tt, sm in ring:
+        if tt <= t_unmoved:
+            continue
+        if tt >= t_first:
+            break
+        w = _ecc(ref_edge, _edge_small(sm))
+        if w is not None and _warp_motion_px(w, sm.shape, scale) >= config.bump_threshold_px:
+            return tt
+    return t_first
+
+
 def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
     """Stream the clip once: still frames per camera segment, and the bump times.
 
@@ -381,18 +399,7 @@ def _collect(source, config: CalibConfig) -> tuple[list[_Segment], int, float]:
         if np.max(np.abs(ws - ws.mean(axis=0)), axis=0)[:, 2].max() * 1.0 / scale > 3 * config.bump_threshold_px:
             pending = pending[1:]
             return
-        # Only frames after the last sample that showed no motion: a shake earlier in the ring,
-        # already over, is not this bump's start.
-        t_bump = pending[0][0]
-        for tt, sm in ring_then:
-            if tt <= t_unmoved:
-                continue
-            if tt >= pending[0][0]:
-                break
-            w = _ecc(seg.ref_edge, _edge_small(sm))
-            if w is not None and _warp_motion_px(w, sm.shape, scale) >= config.bump_threshold_px:
-                t_bump = tt
-                break
+        t_bump = _bump_start(seg.ref_edge, ring_then, t_unmoved, pending[0][0], scale, config)
         log.info("camera moved at t = %.3f s", t_bump)
         seg = _Segment(t0=t_bump)
         seg.ref_edge = edge
