@@ -1048,7 +1048,7 @@ def _rail_offsets(apexes: dict[str, list[tuple[float, float]]], sd_mm: float
         # or two poorly fixed apexes move the line little while many agreeing ones move it to
         # where they meet (Bayesian model averaging, Hoeting et al. 1999).
         s2 = 1.0 / float(np.sum(w))
-        m = float(np.sum(w * d)) * s2
+        m = mean  # the weights' common rescaling leaves their mean as it was
         v1 = sd_mm**2 + s2
         log_bf = 0.5 * math.log(s2 / v1) + 0.5 * m * m * (1.0 / s2 - 1.0 / v1)
         p_off = 1.0 / (1.0 + math.exp(-min(log_bf, 700.0)))
