@@ -794,3 +794,36 @@ def test_grazes_below_the_speed_threshold_are_found_and_nothing_else():
         n_truth += len(truth)
         n_found += len(found)
     assert n_truth == 4 and n_found == 4
+
+
+def _short_departure_cases(n_after: int):
+    """A ball rolling into the right cushion at 180 mm/s normal speed (480 mm/s in all) and
+    leaving it at 30 mm/s normal speed, seen for only ``n_after`` frames after the contact (then
+    gone: pocketed in the corner or picked up), 60 fps, 0.5 mm noise; one case per seed.
+    Yields (found cushion events, contact time)."""
+    fps = 60.0
+    times = np.arange(int(0.8 * fps)) / fps
+    for seed in range(6):
+        t_c = 0.6 + (0.1 + 0.13 * seed) / fps  # between frames, a different phase each
+        f = bounce_path("right", 300.0, t_c, (180.0, -440.0), (-30.0, -400.0))
+        last = int(math.floor(t_c * fps)) + n_after
+        det = detections({"a": f}, times, np.random.default_rng(seed), noise_mm=0.5,
+                         present={"a": (0, last)})
+        yield _only(find_events(track(det, TABLE), TABLE, det)[0], "cushion"), t_c
+
+
+def test_a_contact_seen_only_a_few_frames_after_is_found():
+    # The departure's five samples (83 ms) leave its smoothed normal velocity near the noise,
+    # but the approach heads into the rail far beyond it: the turn is the change of slope
+    # between the legs (analytic path; timing within two frames as in the graze test). Before:
+    # two of the six found (each leg had to be seen six frames and turn by itself).
+    for found, t_c in _short_departure_cases(5):
+        assert len(found) == 1 and found.loc[0, "rail"] == "right"
+        assert abs(found.loc[0, "t"] - t_c) < 2 / 60
+
+
+def test_a_ball_gone_before_it_reaches_the_rail_makes_no_contact():
+    # Seen last two frames short of the cushion (centre about 6 mm from its reversal line):
+    # nothing turned, so no contact (analytic path).
+    for found, _ in _short_departure_cases(-2):
+        assert len(found) == 0

@@ -28,9 +28,10 @@ Method
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
    velocity changes. A slow contact or a graze, whose smoothed normal velocity stays within
    ``min_velocity_change_mm_s / 2`` of zero on a side, counts where straight-line fits of the
-   raw normal coordinate over each leg (``fit_window_s``) head into the rail and away from it
-   by more than ``turn_sigmas`` standard errors of their slopes (``_Finder._turn_sigmas``),
-   the most significant such turn within a leg's reach; its contact time is then where the
+   raw normal coordinate over each leg (``fit_window_s``, at least three samples) head into
+   the rail and away from it and their slopes differ by more than ``turn_sigmas`` standard
+   errors of the difference (``_Finder._turn_sigmas``), the most significant such turn
+   within a leg's reach; its contact time is then where the
    two sides' paths come nearest the line when neither fit reaches it.
 3. Each contact is then solved between frames. Each side's path is fitted by least squares
    from the raw samples between the neighbouring contacts of that ball (at most
@@ -126,8 +127,8 @@ class EventConfig:
     common practice). ``cushion_reach_mm``: a normal-velocity reversal counts as a cushion contact
     only with the centre this close to the reversal line (plus one frame's travel).
     ``turn_sigmas``: a normal-velocity reversal slower than that counts as a cushion contact
-    only if each leg's normal slope departs from zero by more than this many of its standard
-    errors (``_Finder._turn_sigmas``; one-sided Gaussian tail 3e-7 at 5).
+    only if the legs' normal slopes differ by more than this many standard errors of their
+    difference (``_Finder._turn_sigmas``; one-sided Gaussian tail 3e-7 at 5).
     ``collision_margin_mm``: centres closer than a diameter plus this (plus one frame's relative
     travel) may be touching. ``min_velocity_change_mm_s``: smallest velocity change that marks a
     contact. ``start_fit_s`` / ``stop_fit_s``: samples fitted to solve a start / stop.
@@ -1302,22 +1303,26 @@ class _Finder:
     def _turn_sigmas(self, b: _Ball, i0: int, i1: int, k: int, ax: int, sign: float) -> float:
         """How far (in standard errors) the raw path turns away from a rail at row k: a slow contact
         or a graze, whose normal speeds (tens of mm/s) the smoothed velocity's fixed threshold
-        (``min_velocity_change_mm_s``) misses.
+        (``min_velocity_change_mm_s``) misses, or a contact whose departure is too short for the
+        smoothed velocity to settle (a ball pocketed a few frames after the cushion).
 
         Each leg, the raw samples of the motion (rows i0..i1) within ``fit_window_s`` before row
         k and from row k on, is fitted by a straight line in the normal coordinate (axis ``ax``,
         ``sign`` +1 where the inward normal points along it). Its slope's standard error is
         ``s / sqrt(sum (t - t_mean)^2)`` (ordinary least squares), ``s`` the larger of the
         track's noise at the fits' scale (``_noise_sigma``) and the leg's residual scatter (so
-        a leg that curves is not trusted beyond its fit). Returned: the smaller of the approach's
-        slope into the rail and the departure's away from it, in their standard errors (0 for a
-        leg of fewer than ``quadratic_min_samples`` samples). A turn counts beyond
-        ``turn_sigmas`` (a one-sided Gaussian test, ``rough_cushions``): the threshold falls
-        with longer legs and cleaner detections rather than standing at a fixed speed, and a
-        ball running along a rail has legs with no significant normal slope.
+        a leg that curves is not trusted beyond its fit). Returned: the change of normal slope
+        between the legs, departure's minus approach's (positive away from the rail), in the
+        standard error of that difference, ``(s_d - s_a) / sqrt(se_a^2 + se_d^2)`` (the usual
+        two-sample test of equal slopes); 0 when a leg heads the wrong way (the approach away
+        from the rail or the departure into it) or has fewer than three samples (a line with
+        no residual). A turn counts beyond ``turn_sigmas`` (a one-sided Gaussian test,
+        ``rough_cushions``): the threshold falls with longer legs and cleaner detections rather
+        than standing at a fixed speed, a well-seen approach carries a departure seen only a
+        few frames, and a ball running along a rail has legs of the same normal slope.
         """
         cfg = self.cfg
-        out = []
+        slopes, var = [], 0.0
         rows = np.arange(len(b.t))
         for z in (-1, 1):
             if z < 0:
@@ -1326,15 +1331,19 @@ class _Finder:
                 ok = (b.t < b.t[k] + cfg.fit_window_s) & (rows >= k) & (rows <= i1)
             ok &= np.isfinite(b.raw[:, 0])
             ts, ys = b.t[ok], sign * b.raw[ok, ax]
-            if len(ts) < cfg.quadratic_min_samples:
+            if len(ts) < 3:
                 return 0.0
             tm = ts - ts.mean()
             sxx = float(tm @ tm)
             slope = float(tm @ (ys - ys.mean())) / sxx
             res = ys - ys.mean() - slope * tm
             s = max(b.sigma_fit, math.sqrt(float(res @ res) / (len(ts) - 2)))
-            out.append(z * slope / (s / math.sqrt(sxx)))
-        return min(out)
+            slopes.append(slope)
+            var += s * s / sxx  # se^2 of the slope
+        s_a, s_d = slopes
+        if not (s_a < 0.0 < s_d):
+            return 0.0
+        return (s_d - s_a) / math.sqrt(var)
 
     def cushion(self, b: _Ball, rail: str, tg: float, apex_only: bool = False):
         """A cushion event solved from both sides' fits, or None (no fit, or a jaw contact).
