@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from tracking.events import EventConfig
 from tracking.tracker import TRACK_COLUMNS, Tracker, TrackerConfig, track
 from vision.table import NINE_FOOT
 
@@ -646,3 +647,34 @@ def test_ball_seen_only_with_doubt_keeps_its_id_through_an_occlusion(rolling):
         err = np.hypot(*(seen[["x", "y"]].to_numpy() - truth[seen["frame"].to_numpy()]).T)
         assert set(seen["frame"]) == set(det["frame"]) and err.max() < 3.0
 
+
+
+def test_a_ball_whose_detections_scatter_more_than_stated_is_followed_smoothly():
+    # A detector can state far less noise than its detections carry (on the sample clips moving
+    # balls scatter 1.5 to 7 times the 0.15 mm stated). Rolling ball (mu_r g, Alciatore 2004)
+    # at 300 down to 120 mm/s, 0.6 mm noise stated as 0.15 mm, 60 fps, eight seeds. Told the
+    # stated noise, the filter read the wobbles as velocity jumps (190 restarts past the first
+    # 15 frames, of 840) and its smoothed speed strayed by 92 mm/s (p95), down to 22 mm/s,
+    # below the events' rest speed (the ball's motion cut short). With the track's own scatter
+    # it restarts about as often as ``maneuver_prob`` 0.999 lets noise do (measured 1; at most
+    # 3) and its smoothed speed stays within 45 mm/s (p95; measured 21) and above the rest
+    # speed (50 mm/s; measured 107 at least).
+    fps = 60.0
+    times = np.arange(int(2.0 * fps)) / fps
+    f = decel_path((800.0, 400.0), 30.0, 300.0, 0.01 * G)
+    truth = np.hypot(*np.gradient(f(times), axis=0).T) * fps
+    errs, late_breaks = [], 0
+    for seed in range(8):
+        det = detections({"a": f}, times, np.random.default_rng(seed), noise_mm=0.6)
+        det["sigma_mm"] = 0.15
+        tracker = Tracker(TrackerConfig(), TABLE)
+        for _, g in det.groupby("frame"):
+            tracker.step(g)
+        tr = tracker.result()
+        assert tr["track"].nunique() == 1 and len(tr) == len(times)
+        late_breaks += int(tracker.filtered()["brk"].to_numpy()[15:].sum())
+        speed = np.hypot(tr["vx"], tr["vy"]).to_numpy()[15:-10]  # the track's ends lack a side
+        assert speed.min() > EventConfig().rest_speed_mm_s
+        errs.append(np.abs(speed - truth[15:-10]))
+    assert late_breaks <= 3
+    assert np.percentile(np.concatenate(errs), 95) <= 45.0

@@ -60,6 +60,10 @@ Method
   gaps, appearance recovers an identity after a long one); what else appears where a lifted
   ball was is as likely the hand that took it. Unassigned tracks and detections compete through
   dummy rows and columns (the usual square augmentation), so a track may stay unassigned.
+* A detection's noise is the larger of the detector's ``sigma_mm`` and the scatter of the
+  track's own recent detections about a smooth path (third differences, ``_Track.noise_mm``,
+  at most ``meas_sigma_mm``): a detector can state far less than its detections carry, and a
+  filter told too little reads every wobble as a velocity jump.
 * A detection matched through a bounce or jump, or with a predicted ``d2`` above
   ``chi2.ppf(maneuver_prob, 2)``, marks a velocity breakpoint: the filter's velocity is restarted
   there (a crude version of the maneuver detection in Bar-Shalom et al. 2001, ch. 11).
@@ -72,7 +76,9 @@ Method
   a rail, then out of it), at more than ``max_break_share`` of its detections (at least
   ``min_breaks`` times) is not a ball but a hand, arm or cue the detector took for one: a ball's
   velocity changes only at contacts (Alciatore 2004: between them it decelerates smoothly).
-  Such tracks are left out of ``result`` and ``endings``.
+  Such tracks are left out of ``result`` and ``endings``. These restarts are counted on the
+  track's filter run a second time on the detector's stated noise alone, as the noise a hand
+  scatters its detections by would loosen the track's own filter until it no longer restarts.
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest, on sure labels, while every established ball
   rests takes back the id of an ended (or unseen, coasting) track with the same identity labels,
@@ -87,7 +93,7 @@ from __future__ import annotations
 
 import logging
 import math
-from collections import Counter
+from collections import Counter, deque
 from dataclasses import dataclass
 
 import numpy as np
@@ -161,6 +167,15 @@ class TrackerConfig:
     7 % of a sample clip ball's detections are breakpoints of any kind), while a hand, arm or
     cue moved by a player changes course anywhere, all the time, and restarts the filter at
     40-80 % of its detections.
+    ``noise_window``: frames over which a track measures the scatter of its own detections
+    (``_Track.noise_mm``); a detection's noise is taken as the larger of its ``sigma_mm`` and
+    that scatter, since a detector's own figure can fall far short of it (on the sample clips
+    moving balls scatter 1.5 to 7 times the 0.15 mm the detector states), and a filter told
+    too small a noise follows every wobble, reads each as a velocity jump (a maneuver) and
+    cuts the smoother at it. The scatter counts up to ``meas_sigma_mm`` (a moving ball's
+    detection noise, above): beyond that it is not a ball's noise but the erratic course of a
+    hand or cue, which the filter need not smooth into a ball's. Which tracks are hands is
+    still judged at the stated noise (``Tracker._stated_update``).
     """
 
     meas_sigma_mm: float = 2.0
@@ -184,6 +199,7 @@ class TrackerConfig:
     label_min_quality: float = 0.5
     max_break_share: float = 0.25
     min_breaks: int = 3
+    noise_window: int = 15
 
     def __post_init__(self) -> None:
         for name in ("meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
@@ -213,6 +229,9 @@ class TrackerConfig:
             raise ValueError(f"min_breaks {self.min_breaks} must be >= 1")
         if self.tentative_max_misses < 1:
             raise ValueError(f"tentative_max_misses {self.tentative_max_misses} must be >= 1")
+        if self.noise_window < 4:
+            raise ValueError(f"noise_window {self.noise_window} must be >= 4 frames (a third "
+                             "difference spans four)")
 
 
 class _Track:
@@ -225,6 +244,9 @@ class _Track:
         self.track_id: int | None = None  # output id, set on confirmation
         self.x = x  # (4,) posterior [x, vx, y, vy], mm and mm/s
         self.P = P  # (4, 4) its covariance
+        # The same filter run on the detector's stated noise alone, whose restarts tell a hand
+        # from a ball (``Tracker._moves_like_a_ball``): state (4,) and covariance (4, 4).
+        self.sx, self.sP = x.copy(), P.copy()
         self.t_last = t
         self.birth_frame = frame
         self.hits = 0
@@ -243,7 +265,13 @@ class _Track:
         self.Qs: list[np.ndarray] = []
         self.seen: list[int] = []
         self.breaks: list[bool] = []
+        # Restarts and states of the filter on the stated noise (``Tracker._stated_update``).
+        self.odd: list[bool] = []
+        self.sxs: list[np.ndarray] = []
         self.zs: list[tuple[float, float]] = []
+        # |third differences| (mm) of the latest runs of four consecutive detections, both
+        # axes, at most 2 noise_window of them (``noise_mm``).
+        self.d3: deque = deque()
 
     @property
     def confirmed(self) -> bool:
@@ -266,7 +294,7 @@ class _Track:
         known.sort(key=lambda p: (-p[0], p[1]))
         return known[0][1]
 
-    def record(self, frame, t, F, Q, seen, brk, z):
+    def record(self, frame, t, F, Q, seen, brk, z, odd=None):
         """Append the current posterior as this frame's row; ``F, Q`` carried the previous row
         here."""
         if self.Fs:
@@ -279,13 +307,42 @@ class _Track:
         self.Qs.append(_ZERO4)
         self.seen.append(int(seen))
         self.breaks.append(bool(brk))
+        self.odd.append(bool(brk if odd is None else odd))
+        self.sxs.append(self.sx.copy())
         self.zs.append(z)
         self.t_last = t
+
+    def note_scatter(self, window: int) -> None:
+        """After a detection: the third difference of the last four detections, when they are
+        of consecutive frames, joins the track's recent ones (at most ``window`` frames')."""
+        f, seen = self.frames, self.seen
+        if len(f) < 4 or f[-1] - f[-4] != 3 or not all(seen[-4:]):
+            return
+        z = np.array(self.zs[-4:])
+        # Third difference z3 - 3 z2 + 3 z1 - z0: zero along any quadratic path.
+        d3 = z[3] - 3.0 * z[2] + 3.0 * z[1] - z[0]
+        self.d3.extend(np.abs(d3).tolist())
+        while len(self.d3) > 2 * window:
+            self.d3.popleft()
+
+    def noise_mm(self, window: int, cap_mm: float) -> float:
+        """The scatter (mm, per axis) of this track's own recent detections, at most ``cap_mm``;
+        0 until half a window of them has been measured.
+
+        The variate-difference method (Tintner 1940; from memory): white noise of variance
+        s^2 gives third differences of variance 20 s^2 (binomial weights 1, 3, 3, 1), whose
+        median absolute value is 0.6745 of their standard deviation; the median ignores the
+        few differences a contact spoils. A resting ball, whose
+        detections the detector repeats, gives 0 (the detector's own figure then stands)."""
+        if len(self.d3) < window:
+            return 0.0
+        s = float(np.median(np.fromiter(self.d3, float))) / 0.6745 / math.sqrt(20.0)
+        return min(s, cap_mm)
 
     def trim_unseen_tail(self) -> None:
         while self.seen and not self.seen[-1]:
             for lst in (self.frames, self.times, self.xs, self.Ps, self.Fs, self.Qs, self.seen,
-                        self.breaks, self.zs):
+                        self.breaks, self.odd, self.sxs, self.zs):
                 lst.pop()
 
 
@@ -473,19 +530,21 @@ class Tracker:
         and, then or a frame later, runs out of it: a hand moving about beside a rail restarts
         in any direction. Restarts at a cue strike or next to another ball are counted too: a
         ball is struck or meets another a few times a shot at most, far from a quarter of its
-        detections."""
+        detections. Restarts and velocities are those of the track's filter run on the noise
+        the detector states (``_stated_update``): a hand's erratic course raises the scatter
+        the track's own filter measures until that one no longer restarts."""
         cfg = self.config
         n_seen = sum(tr.seen)
         n = len(tr.frames)
         n_breaks = 0
         for k in range(3, n):
-            if not (tr.breaks[k] and tr.seen[k]):
+            if not (tr.odd[k] and tr.seen[k]):
                 continue
-            x_prev = tr.xs[k - 1]
+            x_prev = tr.sxs[k - 1]
             v = float(np.hypot(x_prev[1], x_prev[3]))
-            p = tr.xs[k][0::2]
+            p = tr.sxs[k][0::2]
             reach = self.table.ball_diameter_mm + 2.0 * v * (tr.times[k] - tr.times[k - 1])
-            after = tr.xs[k:min(k + 2, n)]
+            after = tr.sxs[k:min(k + 2, n)]
             # Normal velocity, positive away from the rail: v_n = inward * v[axis].
             if any(abs(p[ax] - c) < reach and inward * x_prev[2 * ax + 1] < 0
                    and any(inward * xa[2 * ax + 1] > 0 for xa in after)
@@ -631,7 +690,9 @@ class Tracker:
         tr.P = np.diag([R[0, 0], sv**2, R[1, 1], sv**2])
 
     def _update(self, tr: _Track, pred: dict, hyp: str, z, sigma, frame, t) -> None:
-        R = float(sigma) ** 2 * np.eye(2)
+        stated = float(sigma)
+        sigma = max(stated, tr.noise_mm(self.config.noise_window, self.config.meas_sigma_mm))
+        R = sigma**2 * np.eye(2)
         z = np.asarray(z, dtype=float)
         brk = False
         if hyp == "jump":
@@ -650,12 +711,54 @@ class Tracker:
                 self._restart_velocity(tr, pred, z, R)
             else:
                 tr.x, tr.P = _kalman_update(tr.kf, x, P, z, R)
-        tr.record(frame, t, pred["F"], pred["Q"], True, brk, (z[0], z[1]))
+        odd = self._stated_update(tr, pred, z, stated, brk)
+        tr.record(frame, t, pred["F"], pred["Q"], True, brk, (z[0], z[1]), odd)
+        tr.note_scatter(self.config.noise_window)
+
+    def _stated_update(self, tr: _Track, pred: dict, z: np.ndarray, stated: float,
+                       brk: bool) -> bool:
+        """Step the track's filter on the detector's stated noise (``_Track.sx``) to the
+        detection ``z`` (2,) mm of noise ``stated`` mm and say whether it restarts there.
+
+        After a restart of the track's own filter (``brk``) it starts again from that filter's
+        state (and says so);
+        else it predicts, and restarts where the innovation lies beyond the maneuver gate
+        (``maneuver_prob``) of the stated noise, as the track's own filter did when it took the
+        detector at its word. A hand's erratic course raises the scatter the track's own
+        filter measures (``_Track.noise_mm``) until it no longer restarts; judged at the stated
+        noise it still does, as no ball's course does."""
+        if brk:
+            tr.sx, tr.sP = tr.x.copy(), tr.P.copy()
+            return True
+        F, Q = pred["F"], pred["Q"]
+        x = F @ tr.sx  # x_pred = F x
+        P = F @ tr.sP @ F.T + Q  # P_pred = F P F^T + Q
+        r2 = stated * stated
+        d2 = float(_mahalanobis2(z[None], x[0::2], P[0::2, 0::2], np.array([stated]))[0])
+        if d2 > self._maneuver:
+            dt = max(pred["dt"], 1e-9)
+            v = (z - tr.sx[0::2]) / dt
+            sv = max(self.config.initial_speed_sigma_mm_s, float(np.hypot(*v)))
+            tr.sx = np.array([z[0], v[0], z[1], v[1]])
+            tr.sP = np.diag([r2, sv**2, r2, sv**2])
+            return True
+        H = np.zeros((2, 4))
+        H[0, 0] = H[1, 2] = 1.0
+        S = H @ P @ H.T + r2 * np.eye(2)  # S = H P H^T + R
+        K = P @ H.T @ np.linalg.inv(S)  # K = P H^T S^-1
+        tr.sx = x + K @ (z - H @ x)  # x = x + K (z - H x)
+        IKH = np.eye(4) - K @ H
+        tr.sP = IKH @ P @ IKH.T + r2 * (K @ K.T)  # Joseph form
+        return False
 
     def _coast(self, tr: _Track, pred: dict, frame, t) -> None:
         x, P = pred["x"], pred["P"]
         if pred["bounces"]:  # an unseen ball still turns at the cushion
             _, x, P = pred["bounces"][0]
+            tr.sx, tr.sP = x.copy(), P.copy()
+        else:
+            F, Q = pred["F"], pred["Q"]
+            tr.sx, tr.sP = F @ tr.sx, F @ tr.sP @ F.T + Q
         tr.x, tr.P = x.copy(), P.copy()
         tr.record(frame, t, pred["F"], pred["Q"], False, bool(pred["bounces"]),
                   (math.nan, math.nan))
