@@ -30,8 +30,10 @@ Method
    ``min_velocity_change_mm_s / 2`` of zero on a side, counts where straight-line fits of the
    raw normal coordinate over each leg (``fit_window_s``, at least three samples) head into
    the rail and away from it and their slopes differ by more than ``turn_sigmas`` standard
-   errors of the difference (``_Finder._turn_sigmas``), the most significant such turn
-   within a leg's reach; its contact time is then where the
+   errors of the difference (``_Finder._turn_sigmas``; the legs split at the row, within
+   four of the smoothed velocity's sign change, where they part most significantly, and the
+   turn's rough time where their lines meet, since a smoother blurs a slow turn's sign change
+   by frames), the most significant such turn within a leg's reach; its contact time is then where the
    two sides' paths come nearest the line when neither fit reaches it.
 3. Each contact is then solved between frames. Each side's path is fitted by least squares
    from the raw samples between the neighbouring contacts of that ball (at most
@@ -1284,9 +1286,14 @@ class _Finder:
                     f = -vn[k - 1] / (vn[k] - vn[k - 1])
                     tg = b.t[i0 + k - 1] + f * (b.t[i0 + k] - b.t[i0 + k - 1])
                     if slow:
-                        z = self._turn_sigmas(b, i0, i1, i0 + k, ax, n[ax])
+                        # The smoothed velocity's sign change lags or leads a slow turn by a
+                        # few frames; the legs are split where they part most significantly,
+                        # and the turn timed where their lines meet.
+                        z, t_turn = max(self._turn_sigmas(b, i0, i1, kk, ax, n[ax])
+                                        for kk in range(max(i0 + 1, i0 + k - 4),
+                                                        min(i1, i0 + k + 4) + 1))
                         if z > cfg.turn_sigmas:
-                            slow_turns.append((z, float(tg), rail))
+                            slow_turns.append((z, t_turn, rail))
                         continue
                     if out and out[-1][1] == rail and tg - out[-1][0] < 3 * self.dt:
                         continue
@@ -1300,7 +1307,8 @@ class _Finder:
                 out.append((tg, rail))
         return sorted(out)
 
-    def _turn_sigmas(self, b: _Ball, i0: int, i1: int, k: int, ax: int, sign: float) -> float:
+    def _turn_sigmas(self, b: _Ball, i0: int, i1: int, k: int, ax: int,
+                     sign: float) -> tuple[float, float]:
         """How far (in standard errors) the raw path turns away from a rail at row k: a slow contact
         or a graze, whose normal speeds (tens of mm/s) the smoothed velocity's fixed threshold
         (``min_velocity_change_mm_s``) misses, or a contact whose departure is too short for the
@@ -1320,9 +1328,12 @@ class _Finder:
         ``rough_cushions``): the threshold falls with longer legs and cleaner detections rather
         than standing at a fixed speed, a well-seen approach carries a departure seen only a
         few frames, and a ball running along a rail has legs of the same normal slope.
+
+        Also returned: the time (s) where the two legs' lines meet, the apex of the turn,
+        within the interval between rows k - 1 and k (its ends where the lines meet beyond).
         """
         cfg = self.cfg
-        slopes, var = [], 0.0
+        slopes, var, lines = [], 0.0, []
         rows = np.arange(len(b.t))
         for z in (-1, 1):
             if z < 0:
@@ -1332,18 +1343,22 @@ class _Finder:
             ok &= np.isfinite(b.raw[:, 0])
             ts, ys = b.t[ok], sign * b.raw[ok, ax]
             if len(ts) < 3:
-                return 0.0
+                return 0.0, float(b.t[k])
             tm = ts - ts.mean()
             sxx = float(tm @ tm)
             slope = float(tm @ (ys - ys.mean())) / sxx
             res = ys - ys.mean() - slope * tm
             s = max(b.sigma_fit, math.sqrt(float(res @ res) / (len(ts) - 2)))
             slopes.append(slope)
+            lines.append((float(ts.mean()), float(ys.mean())))
             var += s * s / sxx  # se^2 of the slope
         s_a, s_d = slopes
-        if not (s_a < 0.0 < s_d):
-            return 0.0
-        return (s_d - s_a) / math.sqrt(var)
+        if not (s_a < 0.0 < s_d) or k < 1:
+            return 0.0, float(b.t[k])
+        (ta, ya), (td, yd) = lines
+        # y_a + s_a (t - t_a) = y_d + s_d (t - t_d)
+        t_apex = (yd - ya + s_a * ta - s_d * td) / (s_a - s_d)
+        return (s_d - s_a) / math.sqrt(var), float(np.clip(t_apex, b.t[k - 1], b.t[k]))
 
     def cushion(self, b: _Ball, rail: str, tg: float, apex_only: bool = False):
         """A cushion event solved from both sides' fits, or None (no fit, or a jaw contact).
