@@ -33,8 +33,12 @@ Method
    errors of the difference (``_Finder._turn_sigmas``; the legs split at the row, within
    four of the smoothed velocity's sign change, where they part most significantly, and the
    turn's rough time where their lines meet, since a smoother blurs a slow turn's sign change
-   by frames), the most significant such turn within a leg's reach; its contact time is then where the
-   two sides' paths come nearest the line when neither fit reaches it.
+   by frames), the most significant such turn within a leg's reach; its contact time is then
+   where the two sides' paths come nearest the line when neither fit reaches it. A ball last
+   seen (then not for ``fit_window_s``: lifted or hidden) within reach of a rail's line and
+   running into it faster than ``min_velocity_change_mm_s / 2`` touched that cushion; it is
+   solved from its approach alone (``_Finder._arrival``: speed and angle out and restitution
+   left empty).
 3. Each contact is then solved between frames. Each side's path is fitted by least squares
    from the raw samples between the neighbouring contacts of that ball (at most
    ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, each
@@ -812,6 +816,7 @@ def find_events(
     exposure = cfg.exposure_s if cfg.exposure_s is not None else 0.5 * dt
     t_clip_end = float(tracks["t"].max())
     finder = _Finder(table, cfg, dt, exposure)
+    finder.t_end = t_clip_end
     for b in balls:
         _motion(b, cfg)
         b.sigma, b.sigma_fit = _noise_sigma(b, cfg)
@@ -1076,6 +1081,10 @@ class _Finder:
         self.rail_offset = {r: 0.0 for r in RAILS}
         # How well one contact's line is known (mm, sd), once measured (``_rail_offsets``).
         self.rail_line_sd = {r: 0.0 for r in RAILS}
+        # The clip's last frame time (s): a ball unseen after it is not known to have gone.
+        self.t_end = math.inf
+        # Rough times (s) of the contacts of balls last seen at a rail, per track (``_arrival``).
+        self.arrivals: dict[int, set[float]] = {}
         self.segments = {r: [] for r in RAILS}
         for seg in table.cushions():
             ax = 0 if seg.rail in ("bottom", "top") else 1
@@ -1267,7 +1276,23 @@ class _Finder:
         out = []
         slow_turns = []  # (turn in standard errors, time, rail) below the speed threshold
         cfg = self.cfg
+        vmin = cfg.min_velocity_change_mm_s / 2
+        # Rows after which the ball is not seen for ``fit_window_s`` (lifted, hidden, gone).
+        seen = np.flatnonzero(np.isfinite(b.raw[:, 0]))
+        gone = seen[(np.append(b.t[seen[1:]], np.inf) - b.t[seen] >= cfg.fit_window_s)
+                    & (b.t[seen] + cfg.fit_window_s <= self.t_end)]
         for i0, i1 in b.moves:
+            # A ball last seen running into a rail at its reversal line touched it there
+            # (``cushion`` then solves it from the approach alone, ``_arrival``).
+            for j in gone[(gone >= i0) & (gone <= i1)]:
+                for rail in RAILS:
+                    n = np.asarray(rail_inward_normal(rail))
+                    ax = 1 if rail in ("bottom", "top") else 0
+                    vn = float(b.v[j] @ n)
+                    dist = (b.p[j, ax] - self.table.reversal_line(rail)) * n[ax]
+                    if vn < -vmin and dist <= cfg.cushion_reach_mm - vn * self.dt:
+                        out.append((float(b.t[j]), rail))
+                        self.arrivals.setdefault(b.track, set()).add(float(b.t[j]))
             for rail in RAILS:
                 n = np.asarray(rail_inward_normal(rail))
                 c = self.table.reversal_line(rail)
@@ -1278,7 +1303,6 @@ class _Finder:
                     if not (vn[k - 1] < 0 <= vn[k]):
                         continue
                     lo, hi = max(0, k - 3), min(len(vn), k + 3)
-                    vmin = cfg.min_velocity_change_mm_s / 2
                     slow = vn[lo:hi].min() > -vmin or vn[lo:hi].max() < vmin
                     reach = cfg.cushion_reach_mm + np.abs(vn[lo:hi]).max() * self.dt
                     if dist[k - 1:k + 1].min() > reach:
@@ -1295,7 +1319,7 @@ class _Finder:
                         if z > cfg.turn_sigmas:
                             slow_turns.append((z, t_turn, rail))
                         continue
-                    if out and out[-1][1] == rail and tg - out[-1][0] < 3 * self.dt:
+                    if any(r == rail and abs(tg - t) < 3 * self.dt for t, r in out):
                         continue
                     out.append((float(tg), rail))
         # A slow turn's smoothed normal velocity flips sign with the noise several times
@@ -1404,7 +1428,11 @@ class _Finder:
             t_c = t_new
         t_c, fa, fd = result
         fa, fd = self._side_fits(b, t_c, lo, hi, exclude=True)
-        if fa is None or fd is None:
+        if tg in self.arrivals.get(b.track, ()) or fd is None:
+            # Found as a ball last seen at the rail, or seen leaving it no more: what follows
+            # its crossing is no departure (if anything, the ball still running in).
+            return None if apex_only or fa is None else self._arrival(b, rail, fa, t_c, c, ax)
+        if fa is None:
             return None
         if apex_only:
             apex = _apex(fa, fd, ax, t_c, 2 * self.dt)
@@ -1463,6 +1491,38 @@ class _Finder:
                     speed_out=float(np.hypot(*v_out)), rail=rail,
                     diamond=self.table.to_diamonds(rail, s), angle_in=a_in, angle_out=a_out,
                     restitution=e)
+
+    def _arrival(self, b: _Ball, rail: str, fa: _Fit, t_c: float, c: float, ax: int):
+        """A cushion contact of a ball last seen as it reached the rail (lifted or hidden by a
+        hand or body right at the contact), from its approach alone, or None.
+
+        A ball running into a cushion cannot pass it, so when the approach fit ``fa`` meets the
+        contact line ``c`` (normal axis ``ax``) at ``t_c`` within 1.5 frames of the last
+        detection (before or after it), heading in at ``min_velocity_change_mm_s / 2`` or more, and the ball is not
+        seen again within ``fit_window_s``, it touched the cushion there. The time, point,
+        speed and angle in are the approach's; speed and angle out and restitution stay empty
+        (NaN), nothing having been seen of them. None within a pocket mouth, for an approach
+        that scatters beyond a ball's radius (not a ball), or if the ball was seen afterwards
+        (then the departure's absence has another cause).
+        """
+        seen = np.isfinite(b.raw[:, 0])
+        reach = 1.5 * self.dt
+        last = b.t[seen & (b.t <= t_c + reach)]
+        if np.any(seen & (b.t > t_c + reach) & (b.t < t_c + self.cfg.fit_window_s)) \
+                or not len(last) or t_c - last[-1] > reach or fa.s2 > self.table.radius_mm ** 2:
+            return None
+        v_in = fa.vel(t_c)
+        if -float(v_in @ np.asarray(rail_inward_normal(rail), float)) \
+                < 0.5 * self.cfg.min_velocity_change_mm_s:
+            return None
+        s = float(fa.pos(t_c)[1 - ax])
+        if not any(lo_ <= s <= hi_ for lo_, hi_ in self.segments[rail]):
+            return None
+        xy = [0.0, 0.0]
+        xy[ax], xy[1 - ax] = c, s
+        a_in, _, _ = cushion_angles(rail, v_in, v_in)
+        return _row(t_c, "cushion", b.track, xy, speed_in=float(np.hypot(*v_in)), rail=rail,
+                    diamond=self.table.to_diamonds(rail, s), angle_in=a_in)
 
     # --- collisions -------------------------------------------------------------------------
     def rough_collisions(self, balls: list[_Ball]) -> list[tuple[float, int, int]]:
