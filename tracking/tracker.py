@@ -272,6 +272,7 @@ class _Track:
         # |third differences| (mm) of the latest runs of four consecutive detections, both
         # axes, at most 2 noise_window of them (``noise_mm``).
         self.d3: deque = deque()
+        self.scatter = 0.0  # mm, from d3 once enough are in (``noise_mm``)
 
     @property
     def confirmed(self) -> bool:
@@ -318,12 +319,16 @@ class _Track:
         f, seen = self.frames, self.seen
         if len(f) < 4 or f[-1] - f[-4] != 3 or not all(seen[-4:]):
             return
-        z = np.array(self.zs[-4:])
-        # Third difference z3 - 3 z2 + 3 z1 - z0: zero along any quadratic path.
-        d3 = z[3] - 3.0 * z[2] + 3.0 * z[1] - z[0]
-        self.d3.extend(np.abs(d3).tolist())
+        z0, z1, z2, z3 = self.zs[-4:]
+        # Third difference z3 - 3 z2 + 3 z1 - z0 per axis: zero along any quadratic path.
+        for ax in (0, 1):
+            self.d3.append(abs(z3[ax] - 3.0 * z2[ax] + 3.0 * z1[ax] - z0[ax]))
         while len(self.d3) > 2 * window:
             self.d3.popleft()
+        n = len(self.d3)
+        if n >= window:
+            v = sorted(self.d3)  # a few dozen numbers: plain Python beats numpy's overhead
+            self.scatter = 0.5 * (v[n // 2] + v[(n - 1) // 2]) / 0.6745 / math.sqrt(20.0)
 
     def noise_mm(self, window: int, cap_mm: float) -> float:
         """The scatter (mm, per axis) of this track's own recent detections, at most ``cap_mm``;
@@ -332,12 +337,10 @@ class _Track:
         The variate-difference method (Tintner 1940; from memory): white noise of variance
         s^2 gives third differences of variance 20 s^2 (binomial weights 1, 3, 3, 1), whose
         median absolute value is 0.6745 of their standard deviation; the median ignores the
-        few differences a contact spoils. A resting ball, whose
-        detections the detector repeats, gives 0 (the detector's own figure then stands)."""
-        if len(self.d3) < window:
-            return 0.0
-        s = float(np.median(np.fromiter(self.d3, float))) / 0.6745 / math.sqrt(20.0)
-        return min(s, cap_mm)
+        few differences a contact spoils. A resting ball, whose detections the detector
+        repeats, gives 0 (the detector's own figure then stands)."""
+        # Computed as each detection comes in (``note_scatter``).
+        return min(self.scatter, cap_mm)
 
     def trim_unseen_tail(self) -> None:
         while self.seen and not self.seen[-1]:
@@ -742,12 +745,14 @@ class Tracker:
             tr.sx = np.array([z[0], v[0], z[1], v[1]])
             tr.sP = np.diag([r2, sv**2, r2, sv**2])
             return True
-        H = np.zeros((2, 4))
-        H[0, 0] = H[1, 2] = 1.0
-        S = H @ P @ H.T + r2 * np.eye(2)  # S = H P H^T + R
-        K = P @ H.T @ np.linalg.inv(S)  # K = P H^T S^-1
-        tr.sx = x + K @ (z - H @ x)  # x = x + K (z - H x)
-        IKH = np.eye(4) - K @ H
+        PHt = P[:, 0::2]  # P H^T with H picking x and y
+        S = PHt[0::2] + r2 * np.eye(2)  # S = H P H^T + R
+        det = S[0, 0] * S[1, 1] - S[0, 1] * S[1, 0]
+        S_inv = np.array([[S[1, 1], -S[0, 1]], [-S[1, 0], S[0, 0]]]) / det
+        K = PHt @ S_inv  # K = P H^T S^-1
+        tr.sx = x + K @ (z - x[0::2])  # x = x + K (z - H x)
+        IKH = np.eye(4)
+        IKH[:, 0::2] -= K
         tr.sP = IKH @ P @ IKH.T + r2 * (K @ K.T)  # Joseph form
         return False
 
