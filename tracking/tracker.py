@@ -330,7 +330,7 @@ class _Track:
             v = sorted(self.d3)  # a few dozen numbers: plain Python beats numpy's overhead
             self.scatter = 0.5 * (v[n // 2] + v[(n - 1) // 2]) / 0.6745 / math.sqrt(20.0)
 
-    def noise_mm(self, window: int, cap_mm: float) -> float:
+    def noise_mm(self, cap_mm: float) -> float:
         """The scatter (mm, per axis) of this track's own recent detections, at most ``cap_mm``;
         0 until half a window of them has been measured.
 
@@ -694,7 +694,7 @@ class Tracker:
 
     def _update(self, tr: _Track, pred: dict, hyp: str, z, sigma, frame, t) -> None:
         stated = float(sigma)
-        sigma = max(stated, tr.noise_mm(self.config.noise_window, self.config.meas_sigma_mm))
+        sigma = max(stated, tr.noise_mm(self.config.meas_sigma_mm))
         R = sigma**2 * np.eye(2)
         z = np.asarray(z, dtype=float)
         brk = False
