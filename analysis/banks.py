@@ -614,7 +614,10 @@ def _audit_shot(session: Session, shot: int, row: pd.Series, intent: ShotIntent 
         dev = (a_out - a_in) * sgn
         dev_model = (pred0 - a_in) * sgn
         dev_spin = dev - dev_model
-        english = "running" if dev_spin > 0.5 else ("reverse" if dev_spin < -0.5 else "none")
+        if not np.isfinite(dev_spin):
+            english = "unseen"
+        else:
+            english = "running" if dev_spin > 0.5 else ("reverse" if dev_spin < -0.5 else "none")
         cushion_rows.append({
             "shot": shot, "cushion": i, "track": track, "rail": rail, "diamond": float(c["diamond"]),
             "x_mm": float(c["x"]), "y_mm": float(c["y"]), "t_s": t_c,
@@ -950,7 +953,9 @@ def make_findings(shots: pd.DataFrame, stat: pd.DataFrame, corr: dict, config: B
         else:
             aim = "no aim was stated"
         dev, dm, ds = r["rebound_dev_mean_deg"], r["dev_model_mean_deg"], r["dev_spin_mean_deg"]
-        if abs(dev) < 0.5:
+        if not np.isfinite(dev):
+            reb = "the rebound was not seen (no path after the cushion: the ball was lifted or hidden there)"
+        elif abs(dev) < 0.5:
             reb = f"the rebound was mirror-true ({dev:+.1f} deg)"
         else:
             reb = (f"the rebound was not: {abs(dev):.1f} deg {'wider' if dev > 0 else 'narrower'} than the "

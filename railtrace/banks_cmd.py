@@ -123,7 +123,7 @@ def format_table(shots) -> str:
             f"{int(r['shot']):>4} {r['kind']:<4} {r['rails']:<12} {r['contact_diamond']:>8.2f} "
             f"{f(r['declared_diamond'], '.2f'):>7} {f(r['aim_error_diamonds'], '+.3f'):>8} "
             f"{f(r['mirror_diamond'], '.2f'):>7} {r['speed_in_mm_s']:>6.0f} {r['band']:<6} "
-            f"{r['rebound_dev_deg']:>+6.1f} {r['dev_model_deg']:>+7.1f} {r['dev_spin_deg']:>+6.1f} "
+            f"{f(r['rebound_dev_deg'], '+.1f'):>6} {f(r['dev_model_deg'], '+.1f'):>7} {f(r['dev_spin_deg'], '+.1f'):>6} "
             f"{r['english']:<8} {r['target']:<13} {f(r['long_diamonds'], '+.2f'):>6} {'yes' if r['made'] else 'no'}"
         )
     lines.append("contact/aimed/mirror/aim err/long in diamonds (long + = past the target); speed mm/s at the "

@@ -215,6 +215,29 @@ def test_sample_session_every_bank_reported(sample_truth, capsys):
         assert (folder / name).is_file()
 
 
+def test_a_bank_whose_departure_was_not_seen_is_audited_without_a_rebound(sample_truth, tmp_path, capsys):
+    # A ball lifted or hidden as it reaches the cushion has a contact with no speed, angle or
+    # restitution out (results format: those columns empty); its bank keeps its contact and aim.
+    import shutil
+
+    folder, drill, _ = sample_truth
+    copy = tmp_path / "unseen"
+    shutil.copytree(folder, copy)
+    ev = pd.read_csv(copy / "events.csv")
+    first = ev.index[ev["kind"] == "cushion"][0]
+    ev.loc[first, ["speed_out", "angle_out", "restitution"]] = np.nan
+    ev.to_csv(copy / "events.csv", index=False)
+    assert banks_main([str(copy), "--drill", str(drill)]) == 0
+    out = capsys.readouterr().out
+    assert "nan" not in out.lower()
+    shots = pd.read_csv(copy / "banks.csv")
+    hit = shots[shots["english"] == "unseen"]
+    assert len(hit) == 1 and np.isnan(hit["rebound_dev_deg"].iloc[0])
+    assert np.isfinite(hit["aim_error_mm"].iloc[0]) and np.isfinite(hit["contact_diamond"].iloc[0])
+    findings = (copy / "bank_findings.txt").read_text(encoding="utf-8")
+    assert "nan" not in findings.lower()
+
+
 def test_without_intent_outcomes_only_and_says_so(sample_truth):
     folder, _, _ = sample_truth
     s = read_session(folder)
