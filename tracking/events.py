@@ -44,12 +44,15 @@ Method
    information criterion between a rolling piece (acceleration with the prior ``mu_r g`` against
    the velocity), a free quadratic, and a sliding piece joined to a rolling one at a kink time
    scanned on a sub-frame grid (linear in the coefficients for a given kink; sliding deceleration
-   with a loose prior about ``mu_s g``). The cloth's sliding deceleration is then measured once
-   for the clip from all its slides (``_cloth_slide_decel``: one cloth) and held fixed in the
-   departure fits after a cushion, which leaves only the slip direction and the slide's
-   duration free (``_piecewise_fit`` with ``slide_decel``). After a cushion a ball always
-   slides (its spin still carries it toward the rail), so a departure is never fitted as
-   rolling from the contact on, and the slide of a ball that arrived rolling gets a prior along
+   with a loose prior about ``mu_s g``). The cloth's sliding deceleration is then estimated once
+   for the clip, pooled over all its slides with the typical cloth as the prior
+   (``_cloth_slide_decel``: one cloth; each slide weighs by its own profile likelihood), and
+   held fixed in the departure fits through the contact after a cushion, which leaves only the
+   slip direction and the slide's duration free (``_piecewise_fit`` with ``slide_decel``); a
+   clip without a measured slide has the prior's typical cloth there, while its rough,
+   unpinned departure fits keep the loose prior. After a cushion a ball always slides (its
+   spin still carries it toward the rail), so a departure through the contact is fitted as a
+   slide (of any length from none on), and the slide of a ball that arrived rolling gets a prior along
    the rail's normal; its duration gets a prior from the clip's other cushion contacts
    (``_cushion_slide_ratio``: the normal speed lost sliding is about a fixed fraction of the
    normal speed arriving).
@@ -240,6 +243,7 @@ class _Fit:
     far: np.ndarray | None = None
     k: int = 6  # free parameters of the fit (both axes)
     bic: float = math.nan  # Bayesian information criterion of the chosen model
+    rss: float = math.nan  # weighted residual sum of squares of the chosen model, mm^2
 
     def _split(self, tau: float) -> tuple[float, float]:
         """(m, r): the part of tau before the kink and the part beyond it."""
@@ -334,9 +338,13 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     ``|2 c2| = slide_decel`` is reduced to the two slide coefficients (the others eliminated by
     their normal equations, a Schur complement) and minimised over the angle to 0.5 degree.
     The candidates are then sliding (no kink in the window; 5 parameters) and slide then roll
-    (6), the kink from the first sample on; neither rolling from the contact nor the free
-    quadratic is offered, since after a cushion physics leaves no other path (the ball slides
-    first, ``_Finder.cushion``). ``slide_dir`` (2,) unit vector, with ``slide_decel``: the
+    (6), the kink from the first sample on (from half a grid step after ``t0`` when ``pin`` is
+    given: through the pinned contact a slide ending before the first sample is still fixed);
+    neither rolling from the contact nor the free quadratic is offered, since after a cushion
+    physics leaves no other path (the ball slides first, ``_Finder.cushion``). The rolling
+    piece's ridge prior is part of the criterion there (the penalised residual sum), so a
+    "rolling" piece decelerating like a slide does not pass for one. The returned ``rss`` is
+    that of the chosen model (penalised where it is). ``slide_dir`` (2,) unit vector, with ``slide_decel``: the
     expected direction of the sliding acceleration, a Gaussian prior on the angle with sd
     ``slide_dir_sigma_deg`` added to the residual sum in units of the measurement variance (the
     larger of ``sigma_mm^2`` and the residual variance of the fit without the prior).
@@ -527,6 +535,11 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             cands.append((float(bic(rss, k)[0]), c4, inv[0], float(rss[0]), k, None))
     k_near = 1 if fixed else max(cfg.kink_min_samples, 1)
     tk_lo = abs(tau[k_near - 1])
+    if fixed and n_pinned:
+        # Through a pinned contact the slide may end before the first sample (a slow contact's
+        # slide lasts 2 (1 + e) vn / (7 mu_s g), a few ms; Alciatore 2004): its piece is then
+        # fixed by the pin and the rolling leg, and a slide of no length is the rolling limit.
+        tk_lo = min(tk_lo, 0.5 * step_s)
     if n >= max(k_near + 3, cfg.quadratic_min_samples) and abs(tau[n - 4]) > tk_lo:
         grid = np.arange(tk_lo, abs(tau[n - 4]), step_s)
         tk = (1.0 if after else -1.0) * grid
@@ -540,6 +553,11 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             if out is not None:
                 coef, rss, inv = out
                 k = 6 - n_pinned  # c0, c1 per axis, the slip angle and tk
+                # The rolling piece's prior counts in the criterion as in the fit (the
+                # penalised least squares it minimised): a "rolling" piece that decelerates
+                # like a slide, which a weak ridge against a long piece would let through, is
+                # a poor rolling path, not a free one.
+                rss = rss + lam * np.sum((coef[:, roll_col, :] - c_prior[None, :]) ** 2, axis=1)
                 sc = bic(rss + tk_prior(grid) * np.maximum(rss, floor) / m_obs, k)
                 score, cg, g, tkg = on_grid(sc, coef, tk)
                 cands.append((score, cg, inv[g], float(rss[g]), k, tkg))
@@ -579,7 +597,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     # var p(t) per axis differs when one axis is pinned; keep the larger (free) axis' matrix.
     cov = inv[int(np.argmax([np.trace(inv[0, :3, :3]), np.trace(inv[1, :3, :3])])), :3, :3]
     return _Fit(t0, c4[:3].copy(), cov.copy(), s2, n, 2, tk=tk,
-                far=c4[3].copy() if tk is not None else None, k=k, bic=score)
+                far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss)
 
 
 def _roots_near(coeffs_high_first, t_guess_tau: float, lo: float, hi: float) -> float | None:
@@ -823,7 +841,9 @@ def find_events(
         b.respots = _respots(b, table.ball_diameter_mm)
         b.marks = sorted(ends + contacts + b.respots)
     by_id = {b.track: b for b in balls}
-    finder.slide_decel = _cloth_slide_decel(finder, balls, rough_cushions, rough_collisions)
+    finder.slide_decel, finder.slide_decel_sd = _cloth_slide_decel(finder, balls, rough_cushions,
+                                                                   rough_collisions)
+    finder.slide_measured = finder.slide_decel_sd < cfg.slide_decel_sigma_mm_s2
 
     rows: list[dict] = []
     for tg, i, j in rough_collisions:
@@ -900,23 +920,37 @@ def find_events(
 
 
 def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: dict,
-                       rough_collisions: list) -> float | None:
-    """The cloth's sliding deceleration ``mu_s g`` (mm/s^2) measured once for the clip, or None.
+                       rough_collisions: list) -> tuple[float, float]:
+    """The cloth's sliding deceleration ``mu_s g`` (mm/s^2) for the clip and its standard
+    deviation, pooled over all of the clip's slides with the typical cloth as the prior.
 
     One cloth covers the table, so every slide of the clip (Alciatore 2004: after a cushion, a
     collision or a stun strike the ball slides at ``mu_s g`` in a fixed direction until it
     rolls) decelerates alike. Each departure (after a rough cushion contact, a rough collision
-    or the start of a motion) is fitted on its own by ``_piecewise_fit`` with the sliding
-    deceleration free; where a sliding piece of at least ``slide_min_samples`` samples is
-    chosen (slide then roll, or sliding through the whole window), its ``|a|`` is one
-    measurement (with the loose prior about ``slide_decel_mm_s2`` that keeps a short slide's
-    estimate sane). The clip's value is their median (robust to a slide mis-cut at a third
-    piece); None without any, and the departure fits then keep the loose prior.
+    or the start of a motion) is first fitted on its own by ``_piecewise_fit`` with the sliding
+    deceleration free; one where a sliding piece of at least ``slide_min_samples`` samples is
+    chosen is a measurement. Its information about ``mu_s g`` is its profile criterion: the
+    departure refitted with the deceleration held at a trial value r (``_piecewise_fit`` with
+    ``slide_decel = r``: slip direction, speed and the slide's duration profiled out),
+    ``chi2_i(r) = RSS_i(r) / s2_i + k_i(r) ln m_i`` with ``s2_i`` the larger of the track's
+    noise at the fits' scale and the free fit's residual variance (a departure its model fits
+    poorly counts less), so a short slide, whose duration trades against r, has a shallow curve
+    and a long one a steep curve. The clip's estimate minimises
+    ``sum_i chi2_i(r) + ((r - mu0) / sd0)^2``, the prior ``mu0, sd0`` the typical cloth
+    (``slide_decel_mm_s2`` and ``slide_decel_sigma_mm_s2``: Alciatore 2004 typical 0.2, range
+    0.15-0.4 [secondary]; Mathavan et al. 2009: 1.75-2.40 m/s^2), a joint maximum a posteriori
+    estimate of the shared parameter with every departure's own parameters profiled out
+    (Gelman et al., Bayesian Data Analysis, ch. 4 normal approximation); its sd is the Laplace
+    approximation, ``sd^2 = 2 / (d^2/dr^2 of that sum)`` at the minimum. The minimum is found
+    on a log-spaced grid between ``slide_decel_min_mm_s2`` and ``slide_decel_max_mm_s2``, then
+    by Brent's bounded method between the best grid point's neighbours. Without any slide the
+    prior alone stands: a departure is never fitted as rolling from the contact.
     """
     cfg = finder.cfg
     dt = finder.dt
     step = cfg.kink_step_frames * dt
-    found = []
+    mu0, sd0 = cfg.slide_decel_mm_s2, cfg.slide_decel_sigma_mm_s2
+    found = []  # (ts, ps, t0, sigma, weight) of each measured slide
     for b in balls:
         t_dep = [tg for tg, _ in rough_cushions[b.track]]
         t_dep += [tg for tg, i, j in rough_collisions if b.track in (i, j)]
@@ -928,16 +962,47 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=b.weights(ts))
+            wt = b.weights(ts)
+            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=wt)
             if f is None or f.k < 6:
                 continue  # the rolling model was chosen: no slide seen
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
             if n_slide < cfg.slide_min_samples:
                 continue
             a = 2.0 * float(np.hypot(*f.coef[2]))
-            if cfg.slide_decel_min_mm_s2 <= a <= cfg.slide_decel_max_mm_s2:
-                found.append(a)
-    return float(np.median(found)) if found else None
+            if not cfg.slide_decel_min_mm_s2 <= a <= cfg.slide_decel_max_mm_s2:
+                continue
+            found.append((ts, ps, tg, b.sigma_fit, wt))
+    if not found:
+        return mu0, sd0
+
+    def total(r: float) -> float:
+        out = ((r - mu0) / sd0) ** 2
+        for ts, ps, tg, sigma, wt in found:
+            f = _piecewise_fit(ts, ps, tg, sigma, step, cfg, slide_decel=r, weight=wt)
+            if f is not None:
+                out += f.bic
+        return out
+
+    lo, hi = cfg.slide_decel_min_mm_s2, cfg.slide_decel_max_mm_s2
+    grid = np.geomspace(lo, hi, 17)
+    vals = [total(float(r)) for r in grid]
+    g = int(np.argmin(vals))
+    # Offsets from the best grid value, so the optimiser's relative tolerance (sqrt(eps) |x|)
+    # does not stop it at ~1e-5 mm/s^2 of a value of thousands.
+    rg = float(grid[g])
+    res = minimize_scalar(lambda u: total(rg + float(u)), method="bounded",
+                          bounds=(grid[max(g - 1, 0)] - rg, grid[min(g + 1, len(grid) - 1)] - rg),
+                          options={"xatol": 1e-6})
+    r = rg + float(res.x) if res.fun <= vals[g] else rg
+    # Second difference over a step that the criterion's own scale sets (the prior's curvature
+    # bounds the posterior sd by sd0, so a step of a few percent of it resolves the curve).
+    h = max(0.05 * sd0 * min(1.0, 1.0 / math.sqrt(len(found))), 1.0)
+    h = min(h, r - lo, hi - r) if lo < r < hi else h
+    f0 = total(r)
+    curv = (total(r + h) - 2.0 * f0 + total(r - h)) / (h * h)
+    sd = math.sqrt(2.0 / curv) if curv > 2.0 / sd0**2 else sd0
+    return r, min(sd, sd0)
 
 
 def _cushion_slide_ratio(finder: "_Finder") -> float | None:
@@ -1064,6 +1129,8 @@ class _Finder:
         self.table, self.cfg, self.dt, self.exposure = table, cfg, dt, exposure
         # The cloth's sliding deceleration mu_s g (mm/s^2), once measured (find_events).
         self.slide_decel: float | None = None
+        self.slide_decel_sd: float | None = None  # its standard deviation, mm/s^2
+        self.slide_measured = False  # whether any slide of the clip measured it
         # Normal speed lost in the slide after a cushion over the normal speed arriving
         # (``find_events``), once measured; and the measurements (vn_in, slide s, samples).
         self.slide_ratio: float | None = None
@@ -1090,7 +1157,10 @@ class _Finder:
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
         fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta))
-        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, self.slide_decel, b.weights(td))
+        # mu_s g from the prior alone is not held here: a slide forced to last to the first
+        # sample would pull a slow contact's rough time by frames (``_cloth_slide_decel``).
+        decel = self.slide_decel if self.slide_measured else None
+        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, decel, b.weights(td))
         for t_bad in bad_a + bad_d:
             b.raw[np.searchsorted(b.t, t_bad)] = np.nan
         return fa, fd
