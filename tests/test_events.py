@@ -346,7 +346,9 @@ def test_simulated_contacts_incoming_measures(simulated_contacts):
 
 def test_simulated_contacts_outgoing_measures(simulated_contacts):
     # With the cloth's sliding deceleration measured once per clip and held in the departure
-    # fits; measured on these 8 shots: speed_out 2.9 %, angle_out 0.81 deg, restitution 0.026.
+    # fits; measured on these 8 shots: speed_out 2.9 %, angle_out 0.81 deg, restitution 0.026;
+    # with it pooled over the clip's slides under the typical cloth's prior and the slide
+    # direction's prior at 5 degrees: 1.6 %, 0.66 deg, 0.022.
     s = simulated_contacts
     assert s["speed_out median"] <= 0.03
     assert s["angle_out median"] <= 1.0
@@ -465,7 +467,7 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
 # --- a cushion-check session from our own simulator -------------------------------------------
 def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_mm: float = 0.0,
                      drift_s: tuple[float, float] = (0.45, 0.7), outlier_mm: float = 0.0,
-                     shift_mm: float = 0.0):
+                     shift_mm: float = 0.0, mu_slide: float = 0.2):
     """Room staff rolling the cue ball (struck 0.4 R above centre, so it rolls at once,
     Alciatore 2004) into the bottom and top cushions 12 times at 0.3-1.5 m/s normal speed and
     up to 30 degrees off square, catching it 0.45 s after the contact; simulated by
@@ -476,13 +478,14 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
     the detection two frames after every third contact moved this far along x (a gross error
     the detector does not flag); ``shift_mm``: every detection moved this far along y, so the
     table's reversal lines sit that far off the balls' true contact lines (on the bottom rail
-    short of it, on the top rail beyond it), as a calibration off by that much places them.
+    short of it, on the top rail beyond it), as a calibration off by that much places them;
+    ``mu_slide``: the cloth's ball-cloth sliding friction (Alciatore 2004 range 0.15-0.4).
     Returns (found cushion events, the simulator's cushion events)."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
     rng = np.random.default_rng(seed)
-    sim = Simulator(TABLE, PhysicsParams(), {"cue": (400.0, 320.0)})
+    sim = Simulator(TABLE, PhysicsParams(mu_slide=mu_slide), {"cue": (400.0, 320.0)})
     t = 0.5
     xs = np.r_[np.linspace(400.0, 1000.0, 6), np.linspace(1550.0, 2150.0, 6)]  # clear of pockets
     for i, x0 in enumerate(xs):
@@ -660,7 +663,8 @@ def test_a_gross_outlier_the_detector_did_not_flag_is_struck():
     # sample 5 noise sigmas off a side's fit is struck (common practice: rejecting gross
     # outliers before least squares). Over those contacts the departure meets the issue's
     # targets (speed 3 %, angle 1 degree, restitution 0.03, medians; truth the simulator's).
-    # Measured: 2.4 %, 0.55 deg, 0.029; left in (before): 1.6 %, 3.8 deg, 0.030.
+    # Measured: 2.4 %, 0.55 deg, 0.029 (2.2 %, 0.60 deg, 0.026 with mu_s g pooled and the
+    # slide direction's prior at 5 degrees); left in (before): 1.6 %, 3.8 deg, 0.030.
     errs = []
     for seed in (1, 2):
         found, truth = _cushion_session(seed, outlier_mm=10.0)
@@ -753,7 +757,8 @@ def test_a_slow_departure_hardly_turns_with_the_contact_line():
     # at sd_leg / (2 sd_L)), which is sd_leg over a shift of two sd_L, the calibration's half a
     # millimetre each way: so over -0.5, 0, +0.5 mm angle_out may move by at most 1.8 degrees,
     # and its median error must meet the issue's 1 degree against the simulator's impact.
-    # Measured: spreads 1.34, 1.05, 0.96, 0.96 degrees, median |error| 0.73 degree; pinned
+    # Measured: spreads 1.34, 1.05, 0.96, 0.96 degrees, median |error| 0.73 degree (1.43,
+    # 0.94, 1.07, 1.12 and 0.96 with mu_s g pooled under the typical cloth's prior); pinned
     # exactly to the line with one model chosen (before): spreads 4.6, 4.9, 3.3, 2.5, 0.93.
     errs, spreads = [], []
     for seed in (11, 12, 13, 14):
@@ -835,3 +840,68 @@ def test_grazes_below_the_speed_threshold_are_found_and_nothing_else():
         n_truth += len(truth)
         n_found += len(found)
     assert n_truth == 4 and n_found == 4
+
+
+# --- the cloth's sliding deceleration, pooled over a clip's slides ---------------------------
+@pytest.mark.parametrize("mu_slide", [0.15, 0.3])
+def test_departures_on_a_slower_and_a_faster_cloth(mu_slide):
+    # The cloth's mu_s g is estimated once per clip, pooled over its slides with the typical
+    # cloth (mu_s 0.2) as the prior (``_cloth_slide_decel``); on cloths away from the prior
+    # the slides must win: the departures meet the issue's targets (speed 3 %, angle 1 degree,
+    # restitution 0.03, medians; truth the simulator's, Alciatore 2004 cloth range 0.15-0.4,
+    # cushion impacts of Mathavan, Jackson & Parkin 2010). Measured over two sessions each:
+    # 0.15: 0.9 %, 0.36 deg, 0.015 (pooled 1439 and 1529 against 1472 mm/s^2); 0.3: 1.7 %,
+    # 0.33 deg, 0.021 (2795 and 3020 against 2943).
+    errs = []
+    for seed in (1, 2):
+        found, truth = _cushion_session(seed, mu_slide=mu_slide)
+        for _, tr in truth.iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            assert abs(r["t"] - tr["t"]) < 1 / 60
+            errs.append((abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print(mu_slide, "median |speed_out|, |angle_out|, |restitution|:", med)
+    assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03
+
+
+@pytest.mark.xfail(strict=True, reason="a lone slow contact's departure reads 3.9 % slow "
+                   "(signed median) and angle_out 1.12 deg (median |error|) over 9 contacts; "
+                   "fitted as rolling from the contact before: -31 % and 5.0 deg")
+def test_a_lone_slow_contact_departs_sliding_on_the_typical_cloth():
+    # One slow rolling bank per clip (0.15-0.4 m/s normal speed, up to 40 degrees off square,
+    # 1 mm noise moving), so no slide of the clip measures the cloth: the departure is then a
+    # slide on the prior's typical cloth (mu_s 0.2, Alciatore 2004), not rolling from the
+    # contact (physics: a ball leaves a cushion sliding). Against the simulator (Mathavan,
+    # Jackson & Parkin 2010 impacts, mu_s 0.2): no bias in speed_out beyond the issue's 3 %
+    # (signed median), angle_out within its 1 degree (median |error|).
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    errs = []
+    for seed in range(12):
+        rng = np.random.default_rng(100 + seed)
+        vn, ang = rng.uniform(150.0, 400.0), rng.uniform(-40.0, 40.0)
+        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(500.0, 2000.0), 200.0)})
+        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
+                               math.radians(-90.0 + ang), 0.0, 0.4))
+        sim.run_until_rest()
+        traj = sim.trajectory()
+        det = detections(traj, 2.8, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=1.0,
+                         drop=0.0)
+        truth = truth_events(TABLE, traj, 2.8)
+        truth = truth[truth["kind"] == "cushion"]
+        if not len(truth):
+            continue  # the ball stopped short of the rail
+        tr = truth.iloc[0]
+        found = _only(find_events(track(det, TABLE), TABLE, det)[0], "cushion")
+        if not len(found) or np.min(np.abs(found["t"] - tr["t"])) > 1 / 60:
+            continue  # finding slow contacts is tested elsewhere; this measures departures
+        r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+        errs.append((r["speed_out"] / tr["speed_out"] - 1, abs(r["angle_out"] - tr["angle_out"])))
+    errs = np.array(errs)
+    print("signed speed_out", np.round(errs[:, 0], 3), "|angle_out|", np.round(errs[:, 1], 2))
+    assert len(errs) >= 8
+    assert abs(np.median(errs[:, 0])) <= 0.03
+    assert np.median(errs[:, 1]) <= 1.0
