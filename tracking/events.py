@@ -938,8 +938,10 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     collision or a stun strike the ball slides at ``mu_s g`` in a fixed direction until it
     rolls) decelerates alike. Each departure (after a rough cushion contact, a rough collision
     or the start of a motion) is first fitted on its own by ``_piecewise_fit`` with the sliding
-    deceleration free; one where a sliding piece of at least ``slide_min_samples`` samples is
-    chosen is a measurement. Its information about ``mu_s g`` is its profile criterion: the
+    deceleration free; one whose piece next to the contact spans at least ``slide_min_samples``
+    samples and decelerates within ``slide_decel_min_mm_s2 .. slide_decel_max_mm_s2`` is a
+    measurement, whichever model was chosen (a slide through the whole window can pass for the
+    one-piece rolling model, whose prior on mu_r g is weak against many samples). Its information about ``mu_s g`` is its profile criterion: the
     departure refitted with the deceleration held at a trial value r (``_piecewise_fit`` with
     ``slide_decel = r``: slip direction, speed and the slide's duration profiled out),
     ``chi2_i(r) = m_i ln(RSS_i(r) / m_i) + k_i(r) ln m_i`` over its ``m_i`` coordinates, the
@@ -976,8 +978,11 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                 continue
             wt = b.weights(ts)
             f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=wt)
-            if f is None or f.k < 6:
-                continue  # the rolling model was chosen: no slide seen
+            if f is None:
+                continue
+            # A slide is told by its deceleration, not by which model won: the one-piece
+            # "rolling" fit, whose prior on mu_r g is weak against many samples, can take a
+            # slide through the whole window with two parameters fewer.
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
             if n_slide < cfg.slide_min_samples:
                 continue
