@@ -310,7 +310,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                    slide_dir: np.ndarray | None = None,
                    slide_tk: tuple[float, float] | None = None,
                    weight: np.ndarray | None = None, average: bool = False,
-                   penalised: bool = False) -> _Fit | None:
+                   penalised: bool = False, cache: dict | None = None) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -362,6 +362,10 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
 
     ``weight`` (n,): relative weight of each sample (typical detection sigma over its own; rows
     of the least squares scaled by it), None for equal weights.
+
+    ``cache``: an empty dict passed to every call on the same samples, pin, weights and priors
+    that differ only in ``slide_decel`` (the profile over mu_s g, ``_cloth_slide_decel``); the
+    normal equations, which do not depend on it, are then solved once.
 
     ``pin`` (2,) mm fixes ``c0`` (the contact point when both sides are refitted through it).
     The best candidate has the least Bayesian information criterion (Schwarz 1978) for Gaussian
@@ -447,26 +451,32 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     theta = np.radians(np.arange(0.0, 360.0, 10.0))
     fine_offsets = np.radians(np.arange(-10.0, 10.25, 0.5))
 
-    def solve_fixed(A, slide_col, roll_col, r):
+    def solve_fixed(A, slide_col, roll_col, r, key):
         """As ``solve``, with the slide coefficients held to the circle ``|c_slide| = r``
         (mm/s^2 / 2). Per axis the other coefficients b minimise ``J = c^T N c - 2 h^T c`` for a
         given slide coefficient x, ``b = N_bb^-1 (h_b - N_bx x)``, which leaves
         ``J(x) = alpha x^2 - 2 beta x + const`` (alpha the Schur complement of N_bb); the two
-        axes' x = r (cos th, sin th) are then chosen by the angle th."""
+        axes' x = r (cos th, sin th) are then chosen by the angle th. The normal equations and
+        their reductions do not depend on r: with ``cache`` they are kept under ``key``."""
         G, _, q = A.shape
         coef = np.zeros((G, q, 2))
-        inv = np.zeros((G, 2, q, q))
-        parts = []
-        for ax in range(2):
-            j0, Aa, y, N, h = normal_equations(A, ax, roll_col)
-            sc = slide_col - j0
-            o = [i for i in range(N.shape[1]) if i != sc]
-            Nbb_i = _batch_inv(N[:, o][:, :, o])
-            inv[:, ax, j0:, j0:] = _batch_inv(N)
-            Nbx, hb = N[:, o, sc], h[:, o]
-            alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
-            beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
-            parts.append((j0, o, sc, Aa, y, Nbb_i, Nbx, hb, alpha, beta))
+        if cache is not None and key in cache:
+            parts, inv = cache[key]
+        else:
+            inv = np.zeros((G, 2, q, q))
+            parts = []
+            for ax in range(2):
+                j0, Aa, y, N, h = normal_equations(A, ax, roll_col)
+                sc = slide_col - j0
+                o = [i for i in range(N.shape[1]) if i != sc]
+                Nbb_i = _batch_inv(N[:, o][:, :, o])
+                inv[:, ax, j0:, j0:] = _batch_inv(N)
+                Nbx, hb = N[:, o, sc], h[:, o]
+                alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
+                beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
+                parts.append((j0, o, sc, Aa, y, Nbb_i, Nbx, hb, alpha, beta))
+            if cache is not None:
+                cache[key] = (parts, inv)
         (ax_, ay_) = parts
 
         def J(th, w):  # th (G, K) angles, w (G,) prior weight mm^2 -> J (G, K) up to a constant
@@ -522,7 +532,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     cands = []  # (score, coef (4, 2), inv (2, q, q), rss, k, tk)
     one = np.stack([np.ones(n), tau, tau * tau], axis=1)[None]  # (1, n, 3)
     if fixed and n >= 4:
-        out = solve_fixed(one, 2, None, 0.5 * slide_decel)
+        out = solve_fixed(one, 2, None, 0.5 * slide_decel, "one")
         if out is not None:
             coef, rss, inv = out
             k = 5 - n_pinned
@@ -557,7 +567,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                       r * r], axis=-1)
         roll_col, slide_col = (3, 2) if after else (2, 3)
         if fixed:
-            out = solve_fixed(A, slide_col, roll_col, 0.5 * slide_decel)
+            out = solve_fixed(A, slide_col, roll_col, 0.5 * slide_decel, "kink")
             if out is not None:
                 coef, rss, inv = out
                 k = 6 - n_pinned  # c0, c1 per axis, the slip angle and tk
@@ -964,7 +974,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     dt = finder.dt
     step = cfg.kink_step_frames * dt
     mu0, sd0 = cfg.slide_decel_mm_s2, cfg.slide_decel_sigma_mm_s2
-    found = []  # (ts, ps, t0, sigma, weight) of each measured slide
+    found = []  # (ts, ps, t0, sigma, weight, cache) of each measured slide
     for b in balls:
         t_dep = [tg for tg, _ in rough_cushions[b.track]]
         t_dep += [tg for tg, i, j in rough_collisions if b.track in (i, j)]
@@ -989,15 +999,15 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
             a = 2.0 * float(np.hypot(*f.coef[2]))
             if not cfg.slide_decel_min_mm_s2 <= a <= cfg.slide_decel_max_mm_s2:
                 continue
-            found.append((ts, ps, tg, b.sigma_fit, wt))
+            found.append((ts, ps, tg, b.sigma_fit, wt, {}))
     if not found:
         return mu0, sd0
 
     def total(r: float) -> float:
         out = ((r - mu0) / sd0) ** 2
-        for ts, ps, tg, sigma, wt in found:
+        for ts, ps, tg, sigma, wt, cache in found:
             f = _piecewise_fit(ts, ps, tg, sigma, step, cfg, slide_decel=r, weight=wt,
-                               penalised=True)
+                               penalised=True, cache=cache)
             if f is not None:
                 m = 2 * f.n
                 out += m * math.log(max(f.rss, m * 1e-18) / m) + f.k * math.log(m)
