@@ -40,6 +40,40 @@ def _bounce_case(rail, along, angle_deg, speed, e, t_c, decel=0.0):
     return bounce_path(rail, along, t_c, v_in, v_out, acc_in, acc_out), v_in, v_out
 
 
+def _rolling_bank_case(rail, along, angle_deg, speed, e, t_c, mu_s=0.25, mu_r=0.01):
+    """A rolling ball banking off ``rail``: it arrives rolling at ``speed`` (mm/s) ``angle_deg``
+    from the normal, decelerating at ``mu_r g`` along its velocity; the cushion returns the
+    normal component times ``e`` and keeps the along-rail one; the spin, still that of rolling
+    into the rail, leaves the ball slipping away from the rail at ``(1 + e) vn``, so it slides
+    at ``mu_s g`` toward the rail until the slip is gone, ``2 (1 + e) vn / (7 mu_s g)`` later
+    (Alciatore 2004, technical proofs: the slip decays at 7/2 mu_s g, the velocity changes at
+    mu_s g), and then rolls at ``mu_r g`` (a rigid ball and a cushion without friction or
+    height, the simplest physical bounce). Returns (path f(t) -> (n, 2) mm, v_in, v_out)."""
+    n_in = np.asarray(rail_inward_normal(rail))
+    along_u = np.asarray(rail_direction(rail))
+    a = math.radians(angle_deg)
+    vn = speed * math.cos(a)
+    v_in = speed * (math.sin(a) * along_u - math.cos(a) * n_in)
+    v_out = speed * math.sin(a) * along_u + e * vn * n_in
+    t_slide = 2.0 * (1.0 + e) * vn / (7.0 * mu_s * G)
+    acc_slide = -mu_s * G * n_in
+    v_k = v_out + acc_slide * t_slide
+    acc_roll = -mu_r * G * v_k / np.hypot(*v_k)
+    c = TABLE.reversal_line(rail)
+    pc = np.array([along, c]) if rail in ("bottom", "top") else np.array([c, along])
+    p_k = pc + v_out * t_slide + 0.5 * acc_slide * t_slide**2
+
+    def f(t):
+        tau = (np.asarray(t, float) - t_c)[:, None]
+        before = pc + v_in * tau - 0.5 * mu_r * G * v_in / speed * tau**2
+        m = np.clip(tau, 0.0, t_slide)
+        r = np.clip(tau - t_slide, 0.0, None)
+        after = np.where(tau <= t_slide, pc + v_out * m + 0.5 * acc_slide * m**2,
+                         p_k + v_k * r + 0.5 * acc_roll * r**2)
+        return np.where(tau < 0, before, after)
+    return f, v_in, v_out
+
+
 def _only(events, kind):
     return events[events["kind"] == kind].reset_index(drop=True)
 
@@ -48,17 +82,24 @@ def _only(events, kind):
     ("bottom", 700.0, 30.0), ("right", 500.0, -45.0), ("top", 1900.0, 0.0), ("left", 800.0, 60.0),
 ])
 def test_mirror_bounce_recovered_exactly_without_noise(rail, along, angle):
+    # A ball rolling in and, the normal velocity reversed whole (e = 1), sliding off and then
+    # rolling (``_rolling_bank_case``; a ball leaving a cushion always slides first, so a
+    # drag-free departure would be no physical input).
     fps = 60.0
-    times = np.arange(int(1.0 * fps)) / fps
     t_c = 0.5 + 0.37 / fps  # between frames
-    f, v_in, v_out = _bounce_case(rail, along, angle, 1500.0, 1.0, t_c)
+    f, v_in, v_out = _rolling_bank_case(rail, along, angle, 1500.0, 1.0, t_c)
+    # The clip ends while the ball still slides: the slide's end, were it seen, is placed on
+    # a grid of a quarter frame (``kink_step_frames``), which is exact only on the grid.
+    t_slide = 2.0 * 2.0 * 1500.0 * math.cos(math.radians(angle)) / (7.0 * 0.25 * G)
+    times = np.arange(int(1.0 * fps)) / fps
+    times = times[times < t_c + t_slide]
     det = detections({"a": f}, times, np.random.default_rng(0), noise_mm=0.0)
     det["sigma_mm"] = 1.0
     tr = track(det, TABLE)
     ev, _ = find_events(tr, TABLE, det)
     cu = _only(ev, "cushion")
     assert len(cu) == 1 and cu.loc[0, "rail"] == rail
-    # Exact: straight drag-free paths are reproduced exactly by the fits (analytic truth).
+    # Exact: constant-acceleration pieces are reproduced exactly by the fits (analytic truth).
     assert abs(cu.loc[0, "t"] - t_c) < 1e-6
     truth = f(np.array([t_c]))[0]
     assert abs(cu.loc[0, "x"] - truth[0]) < 1e-6 and abs(cu.loc[0, "y"] - truth[1]) < 1e-6
@@ -308,7 +349,9 @@ def test_simulated_contacts_incoming_measures(simulated_contacts):
 
 def test_simulated_contacts_outgoing_measures(simulated_contacts):
     # With the cloth's sliding deceleration measured once per clip and held in the departure
-    # fits; measured on these 8 shots: speed_out 2.9 %, angle_out 0.81 deg, restitution 0.026.
+    # fits; measured on these 8 shots: speed_out 2.9 %, angle_out 0.81 deg, restitution 0.026;
+    # with it pooled over the clip's slides under the typical cloth's prior and the slide
+    # direction's prior at 5 degrees: 1.6 %, 0.66 deg, 0.022.
     s = simulated_contacts
     assert s["speed_out median"] <= 0.03
     assert s["angle_out median"] <= 1.0
@@ -427,7 +470,7 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
 # --- a cushion-check session from our own simulator -------------------------------------------
 def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_mm: float = 0.0,
                      drift_s: tuple[float, float] = (0.45, 0.7), outlier_mm: float = 0.0,
-                     shift_mm: float = 0.0):
+                     shift_mm: float = 0.0, mu_slide: float = 0.2):
     """Room staff rolling the cue ball (struck 0.4 R above centre, so it rolls at once,
     Alciatore 2004) into the bottom and top cushions 12 times at 0.3-1.5 m/s normal speed and
     up to 30 degrees off square, catching it 0.45 s after the contact; simulated by
@@ -438,13 +481,14 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
     the detection two frames after every third contact moved this far along x (a gross error
     the detector does not flag); ``shift_mm``: every detection moved this far along y, so the
     table's reversal lines sit that far off the balls' true contact lines (on the bottom rail
-    short of it, on the top rail beyond it), as a calibration off by that much places them.
+    short of it, on the top rail beyond it), as a calibration off by that much places them;
+    ``mu_slide``: the cloth's ball-cloth sliding friction (Alciatore 2004 range 0.15-0.4).
     Returns (found cushion events, the simulator's cushion events)."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
     rng = np.random.default_rng(seed)
-    sim = Simulator(TABLE, PhysicsParams(), {"cue": (400.0, 320.0)})
+    sim = Simulator(TABLE, PhysicsParams(mu_slide=mu_slide), {"cue": (400.0, 320.0)})
     t = 0.5
     xs = np.r_[np.linspace(400.0, 1000.0, 6), np.linspace(1550.0, 2150.0, 6)]  # clear of pockets
     for i, x0 in enumerate(xs):
@@ -579,7 +623,7 @@ def test_a_path_leaving_the_rail_faster_than_it_came_is_no_cushion_contact():
     t_c = 0.5 + 0.3 / fps
     found = {}
     for e in (0.9, 2.0):
-        f, _, _ = _bounce_case("left", 400.0, 10.0, 1100.0, e, t_c)
+        f, _, _ = _rolling_bank_case("left", 400.0, 10.0, 1100.0, e, t_c)
         det = detections({"a": f}, times, np.random.default_rng(4), noise_mm=1.0)
         ev, _ = find_events(track(det, TABLE), TABLE, det)
         found[e] = _only(ev, "cushion")
@@ -596,7 +640,7 @@ def test_a_detection_flagged_as_poor_weighs_less_at_a_contact():
     times = np.arange(int(1.0 * fps)) / fps
     t_c = 0.5 + 0.45 / fps
     speed, e = 900.0, 0.8
-    f, v_in, v_out = _bounce_case("right", 600.0, 25.0, speed, e, t_c, decel=0.01 * G)
+    f, v_in, v_out = _rolling_bank_case("right", 600.0, 25.0, speed, e, t_c)
     errs = []
     for seed in range(6):
         det = detections({"a": f}, times, np.random.default_rng(seed), noise_mm=0.5)
@@ -622,7 +666,8 @@ def test_a_gross_outlier_the_detector_did_not_flag_is_struck():
     # sample 5 noise sigmas off a side's fit is struck (common practice: rejecting gross
     # outliers before least squares). Over those contacts the departure meets the issue's
     # targets (speed 3 %, angle 1 degree, restitution 0.03, medians; truth the simulator's).
-    # Measured: 2.4 %, 0.55 deg, 0.029; left in (before): 1.6 %, 3.8 deg, 0.030.
+    # Measured: 2.4 %, 0.55 deg, 0.029 (2.2 %, 0.60 deg, 0.026 with mu_s g pooled and the
+    # slide direction's prior at 5 degrees); left in (before): 1.6 %, 3.8 deg, 0.030.
     errs = []
     for seed in (1, 2):
         found, truth = _cushion_session(seed, outlier_mm=10.0)
@@ -715,7 +760,8 @@ def test_a_slow_departure_hardly_turns_with_the_contact_line():
     # at sd_leg / (2 sd_L)), which is sd_leg over a shift of two sd_L, the calibration's half a
     # millimetre each way: so over -0.5, 0, +0.5 mm angle_out may move by at most 1.8 degrees,
     # and its median error must meet the issue's 1 degree against the simulator's impact.
-    # Measured: spreads 1.34, 1.05, 0.96, 0.96 degrees, median |error| 0.73 degree; pinned
+    # Measured: spreads 1.34, 1.05, 0.96, 0.96 degrees, median |error| 0.73 degree (1.43,
+    # 0.94, 1.07, 1.12 and 0.96 with mu_s g pooled under the typical cloth's prior); pinned
     # exactly to the line with one model chosen (before): spreads 4.6, 4.9, 3.3, 2.5, 0.93.
     errs, spreads = [], []
     for seed in (11, 12, 13, 14):
@@ -881,3 +927,68 @@ def test_a_ball_lifted_as_it_reaches_the_cushion_still_touched_it(n_after):
         assert abs(cu.loc[0, "speed_in"] / 1400.0 - 1.0) < 0.03
         assert abs(cu.loc[0, "angle_in"] - (-50.0)) < 1.0
         assert np.isnan(cu.loc[0, "speed_out"]) and np.isnan(cu.loc[0, "restitution"])
+
+
+# --- the cloth's sliding deceleration, pooled over a clip's slides ---------------------------
+@pytest.mark.parametrize("mu_slide", [0.15, 0.3])
+def test_departures_on_a_slower_and_a_faster_cloth(mu_slide):
+    # The cloth's mu_s g is estimated once per clip, pooled over its slides with the typical
+    # cloth (mu_s 0.2) as the prior (``_cloth_slide_decel``); on cloths away from the prior
+    # the slides must win: the departures meet the issue's targets (speed 3 %, angle 1 degree,
+    # restitution 0.03, medians; truth the simulator's, Alciatore 2004 cloth range 0.15-0.4,
+    # cushion impacts of Mathavan, Jackson & Parkin 2010). Measured over two sessions each:
+    # 0.15: 0.9 %, 0.36 deg, 0.015 (pooled 1439 and 1529 against 1472 mm/s^2); 0.3: 1.7 %,
+    # 0.33 deg, 0.021 (2795 and 3020 against 2943).
+    errs = []
+    for seed in (1, 2):
+        found, truth = _cushion_session(seed, mu_slide=mu_slide)
+        for _, tr in truth.iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            assert abs(r["t"] - tr["t"]) < 1 / 60
+            errs.append((abs(r["speed_out"] / tr["speed_out"] - 1),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print(mu_slide, "median |speed_out|, |angle_out|, |restitution|:", med)
+    assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03
+
+
+@pytest.mark.xfail(strict=True, reason="a lone slow contact's departure reads 3.9 % slow "
+                   "(signed median) and angle_out 1.12 deg (median |error|) over 9 contacts; "
+                   "fitted as rolling from the contact before: -31 % and 5.0 deg")
+def test_a_lone_slow_contact_departs_sliding_on_the_typical_cloth():
+    # One slow rolling bank per clip (0.15-0.4 m/s normal speed, up to 40 degrees off square,
+    # 1 mm noise moving), so no slide of the clip measures the cloth: the departure is then a
+    # slide on the prior's typical cloth (mu_s 0.2, Alciatore 2004), not rolling from the
+    # contact (physics: a ball leaves a cushion sliding). Against the simulator (Mathavan,
+    # Jackson & Parkin 2010 impacts, mu_s 0.2): no bias in speed_out beyond the issue's 3 %
+    # (signed median), angle_out within its 1 degree (median |error|).
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    errs = []
+    for seed in range(12):
+        rng = np.random.default_rng(100 + seed)
+        vn, ang = rng.uniform(150.0, 400.0), rng.uniform(-40.0, 40.0)
+        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(500.0, 2000.0), 200.0)})
+        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
+                               math.radians(-90.0 + ang), 0.0, 0.4))
+        sim.run_until_rest()
+        traj = sim.trajectory()
+        det = detections(traj, 2.8, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=1.0,
+                         drop=0.0)
+        truth = truth_events(TABLE, traj, 2.8)
+        truth = truth[truth["kind"] == "cushion"]
+        if not len(truth):
+            continue  # the ball stopped short of the rail
+        tr = truth.iloc[0]
+        found = _only(find_events(track(det, TABLE), TABLE, det)[0], "cushion")
+        if not len(found) or np.min(np.abs(found["t"] - tr["t"])) > 1 / 60:
+            continue  # finding slow contacts is tested elsewhere; this measures departures
+        r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+        errs.append((r["speed_out"] / tr["speed_out"] - 1, abs(r["angle_out"] - tr["angle_out"])))
+    errs = np.array(errs)
+    print("signed speed_out", np.round(errs[:, 0], 3), "|angle_out|", np.round(errs[:, 1], 2))
+    assert len(errs) >= 8
+    assert abs(np.median(errs[:, 0])) <= 0.03
+    assert np.median(errs[:, 1]) <= 1.0

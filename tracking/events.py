@@ -51,12 +51,15 @@ Method
    information criterion between a rolling piece (acceleration with the prior ``mu_r g`` against
    the velocity), a free quadratic, and a sliding piece joined to a rolling one at a kink time
    scanned on a sub-frame grid (linear in the coefficients for a given kink; sliding deceleration
-   with a loose prior about ``mu_s g``). The cloth's sliding deceleration is then measured once
-   for the clip from all its slides (``_cloth_slide_decel``: one cloth) and held fixed in the
-   departure fits after a cushion, which leaves only the slip direction and the slide's
-   duration free (``_piecewise_fit`` with ``slide_decel``). After a cushion a ball always
-   slides (its spin still carries it toward the rail), so a departure is never fitted as
-   rolling from the contact on, and the slide of a ball that arrived rolling gets a prior along
+   with a loose prior about ``mu_s g``). The cloth's sliding deceleration is then estimated once
+   for the clip, pooled over all its slides with the typical cloth as the prior
+   (``_cloth_slide_decel``: one cloth; each slide weighs by its own profile likelihood), and
+   held fixed in the departure fits through the contact after a cushion, which leaves only the
+   slip direction and the slide's duration free (``_piecewise_fit`` with ``slide_decel``); a
+   clip without a measured slide has the prior's typical cloth there, while its rough,
+   unpinned departure fits keep the loose prior. After a cushion a ball always slides (its
+   spin still carries it toward the rail), so a departure through the contact is fitted as a
+   slide (of any length from none on), and the slide of a ball that arrived rolling gets a prior along
    the rail's normal; its duration gets a prior from the clip's other cushion contacts
    (``_cushion_slide_ratio``: the normal speed lost sliding is about a fixed fraction of the
    normal speed arriving).
@@ -157,7 +160,10 @@ class EventConfig:
     the prior on the direction of the slide after a cushion (``_Finder.cushion``; in the impact
     model of Mathavan, Jackson & Parkin 2010 as ``analysis.cushion`` implements it, a ball
     arriving rolling slides within 3 degrees of the normal over the shots of
-    ``benchmarks/event_accuracy.py``, so 10 degrees leaves room for real cushions).
+    ``benchmarks/event_accuracy.py``, side spin included, so 5 degrees leaves room for real
+    cushions; at 10 the five frames or so of a slide at 0.4 m/s, whose along-rail pull moves
+    the ball by tenths of a millimetre, let the slip turn 9 degrees and angle_out 3 degrees on
+    a sample clip's cushion contacts, ``benchmarks/analyse_accuracy.py`` cut_bank).
     ``slide_ratio_sigma``: sd of the prior on the fraction of its normal speed a ball arriving
     rolling loses sliding after a cushion (``_cushion_slide_ratio``; 0.28 to 0.43 in that model
     over normal speeds of 0.1 to 3.1 m/s arriving), and ``slide_ratio_min_contacts`` the fewest well-seen slides
@@ -201,7 +207,7 @@ class EventConfig:
     slide_decel_sigma_mm_s2: float = 600.0
     roll_decel_sigma_mm_s2: float = 50.0
     slide_min_samples: int = 5
-    slide_dir_sigma_deg: float = 10.0
+    slide_dir_sigma_deg: float = 5.0
     slide_fit_s: float = 0.8
     slide_ratio_sigma: float = 0.05
     slide_ratio_min_contacts: int = 3
@@ -247,6 +253,7 @@ class _Fit:
     far: np.ndarray | None = None
     k: int = 6  # free parameters of the fit (both axes)
     bic: float = math.nan  # Bayesian information criterion of the chosen model
+    rss: float = math.nan  # weighted residual sum of squares of the chosen model, mm^2
 
     def _split(self, tau: float) -> tuple[float, float]:
         """(m, r): the part of tau before the kink and the part beyond it."""
@@ -309,7 +316,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                    slide_decel: float | None = None,
                    slide_dir: np.ndarray | None = None,
                    slide_tk: tuple[float, float] | None = None,
-                   weight: np.ndarray | None = None, average: bool = False) -> _Fit | None:
+                   weight: np.ndarray | None = None, average: bool = False,
+                   penalised: bool = False, cache: dict | None = None) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -341,9 +349,17 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     ``|2 c2| = slide_decel`` is reduced to the two slide coefficients (the others eliminated by
     their normal equations, a Schur complement) and minimised over the angle to 0.5 degree.
     The candidates are then sliding (no kink in the window; 5 parameters) and slide then roll
-    (6), the kink from the first sample on; neither rolling from the contact nor the free
-    quadratic is offered, since after a cushion physics leaves no other path (the ball slides
-    first, ``_Finder.cushion``). ``slide_dir`` (2,) unit vector, with ``slide_decel``: the
+    (6), the kink from the first sample on (from half a grid step after ``t0`` when ``pin`` is
+    given: through the pinned contact a slide ending before the first sample is still fixed);
+    neither rolling from the contact nor the free quadratic is offered, since after a cushion
+    physics leaves no other path (the ball slides first, ``_Finder.cushion``). The returned
+    ``rss`` is then the chosen model's penalised residual sum (the rolling piece's ridge
+    prior included), so a "rolling" piece decelerating like a slide shows in it; with
+    ``penalised`` the models are also chosen by it (the profile over mu_s g,
+    ``_cloth_slide_decel``, whose criterion must rise where a slide is mistaken for rolling),
+    else by the residuals alone (the contact fits: on the slow departures of
+    ``tests/test_events.py`` the penalised choice turned angle_out by a further 0.05 degree
+    in the median). ``slide_dir`` (2,) unit vector, with ``slide_decel``: the
     expected direction of the sliding acceleration, a Gaussian prior on the angle with sd
     ``slide_dir_sigma_deg`` added to the residual sum in units of the measurement variance (the
     larger of ``sigma_mm^2`` and the residual variance of the fit without the prior).
@@ -353,6 +369,10 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
 
     ``weight`` (n,): relative weight of each sample (typical detection sigma over its own; rows
     of the least squares scaled by it), None for equal weights.
+
+    ``cache``: an empty dict passed to every call on the same samples, pin, weights and priors
+    that differ only in ``slide_decel`` (the profile over mu_s g, ``_cloth_slide_decel``); the
+    normal equations, which do not depend on it, are then solved once.
 
     ``pin`` (2,) mm fixes ``c0`` (the contact point when both sides are refitted through it).
     The best candidate has the least Bayesian information criterion (Schwarz 1978) for Gaussian
@@ -438,26 +458,32 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     theta = np.radians(np.arange(0.0, 360.0, 10.0))
     fine_offsets = np.radians(np.arange(-10.0, 10.25, 0.5))
 
-    def solve_fixed(A, slide_col, roll_col, r):
+    def solve_fixed(A, slide_col, roll_col, r, key):
         """As ``solve``, with the slide coefficients held to the circle ``|c_slide| = r``
         (mm/s^2 / 2). Per axis the other coefficients b minimise ``J = c^T N c - 2 h^T c`` for a
         given slide coefficient x, ``b = N_bb^-1 (h_b - N_bx x)``, which leaves
         ``J(x) = alpha x^2 - 2 beta x + const`` (alpha the Schur complement of N_bb); the two
-        axes' x = r (cos th, sin th) are then chosen by the angle th."""
+        axes' x = r (cos th, sin th) are then chosen by the angle th. The normal equations and
+        their reductions do not depend on r: with ``cache`` they are kept under ``key``."""
         G, _, q = A.shape
         coef = np.zeros((G, q, 2))
-        inv = np.zeros((G, 2, q, q))
-        parts = []
-        for ax in range(2):
-            j0, Aa, y, N, h = normal_equations(A, ax, roll_col)
-            sc = slide_col - j0
-            o = [i for i in range(N.shape[1]) if i != sc]
-            Nbb_i = _batch_inv(N[:, o][:, :, o])
-            inv[:, ax, j0:, j0:] = _batch_inv(N)
-            Nbx, hb = N[:, o, sc], h[:, o]
-            alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
-            beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
-            parts.append((j0, o, sc, Aa, y, Nbb_i, Nbx, hb, alpha, beta))
+        if cache is not None and key in cache:
+            parts, inv = cache[key]
+        else:
+            inv = np.zeros((G, 2, q, q))
+            parts = []
+            for ax in range(2):
+                j0, Aa, y, N, h = normal_equations(A, ax, roll_col)
+                sc = slide_col - j0
+                o = [i for i in range(N.shape[1]) if i != sc]
+                Nbb_i = _batch_inv(N[:, o][:, :, o])
+                inv[:, ax, j0:, j0:] = _batch_inv(N)
+                Nbx, hb = N[:, o, sc], h[:, o]
+                alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
+                beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
+                parts.append((j0, o, sc, Aa, y, Nbb_i, Nbx, hb, alpha, beta))
+            if cache is not None:
+                cache[key] = (parts, inv)
         (ax_, ay_) = parts
 
         def J(th, w):  # th (G, K) angles, w (G,) prior weight mm^2 -> J (G, K) up to a constant
@@ -513,7 +539,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     cands = []  # (score, coef (4, 2), inv (2, q, q), rss, k, tk)
     one = np.stack([np.ones(n), tau, tau * tau], axis=1)[None]  # (1, n, 3)
     if fixed and n >= 4:
-        out = solve_fixed(one, 2, None, 0.5 * slide_decel)
+        out = solve_fixed(one, 2, None, 0.5 * slide_decel, "one")
         if out is not None:
             coef, rss, inv = out
             k = 5 - n_pinned
@@ -534,6 +560,11 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             cands.append((float(bic(rss, k)[0]), c4, inv[0], float(rss[0]), k, None))
     k_near = 1 if fixed else max(cfg.kink_min_samples, 1)
     tk_lo = abs(tau[k_near - 1])
+    if fixed and n_pinned:
+        # Through a pinned contact the slide may end before the first sample (a slow contact's
+        # slide lasts 2 (1 + e) vn / (7 mu_s g), a few ms; Alciatore 2004): its piece is then
+        # fixed by the pin and the rolling leg, and a slide of no length is the rolling limit.
+        tk_lo = min(tk_lo, 0.5 * step_s)
     if n >= max(k_near + 3, cfg.quadratic_min_samples) and abs(tau[n - 4]) > tk_lo:
         grid = np.arange(tk_lo, abs(tau[n - 4]), step_s)
         tk = (1.0 if after else -1.0) * grid
@@ -543,13 +574,19 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                       r * r], axis=-1)
         roll_col, slide_col = (3, 2) if after else (2, 3)
         if fixed:
-            out = solve_fixed(A, slide_col, roll_col, 0.5 * slide_decel)
+            out = solve_fixed(A, slide_col, roll_col, 0.5 * slide_decel, "kink")
             if out is not None:
                 coef, rss, inv = out
                 k = 6 - n_pinned  # c0, c1 per axis, the slip angle and tk
-                sc = bic(rss + tk_prior(grid) * np.maximum(rss, floor) / m_obs, k)
+                # The penalised least-squares objective the fit minimised, the rolling piece's
+                # ridge prior included: a "rolling" piece that decelerates like a slide, which
+                # a weak ridge against a long piece lets through, shows in it.
+                rss_p = rss + lam * np.sum((coef[:, roll_col, :] - c_prior[None, :]) ** 2,
+                                           axis=1)
+                r_sc = rss_p if penalised else rss
+                sc = bic(r_sc + tk_prior(grid) * np.maximum(r_sc, floor) / m_obs, k)
                 score, cg, g, tkg = on_grid(sc, coef, tk)
-                cands.append((score, cg, inv[g], float(rss[g]), k, tkg))
+                cands.append((score, cg, inv[g], float(rss[g]), k, tkg, float(rss_p[g])))
             out = None
         else:
             out = solve(A, roll_col)
@@ -569,7 +606,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                 cands.append((score, cg, inv[g], float(rss[g]), k, tkg))
     if not cands:
         return _fit(ts, ps, t0, 1, sigma_mm) if n_pinned == 0 else None
-    score, c4, inv, rss, k, tk = min(cands, key=lambda c: c[0])
+    score, c4, inv, rss, k, tk, *pen = min(cands, key=lambda c: c[0])
+    rss_pen = pen[0] if pen else rss
     if average and len(cands) > 1:
         sc = np.array([c[0] for c in cands])
         w = np.exp(-0.5 * (sc - score))
@@ -586,7 +624,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     # var p(t) per axis differs when one axis is pinned; keep the larger (free) axis' matrix.
     cov = inv[int(np.argmax([np.trace(inv[0, :3, :3]), np.trace(inv[1, :3, :3])])), :3, :3]
     return _Fit(t0, c4[:3].copy(), cov.copy(), s2, n, 2, tk=tk,
-                far=c4[3].copy() if tk is not None else None, k=k, bic=score)
+                far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss_pen)
 
 
 def _roots_near(coeffs_high_first, t_guess_tau: float, lo: float, hi: float) -> float | None:
@@ -831,7 +869,9 @@ def find_events(
         b.respots = _respots(b, table.ball_diameter_mm)
         b.marks = sorted(ends + contacts + b.respots)
     by_id = {b.track: b for b in balls}
-    finder.slide_decel = _cloth_slide_decel(finder, balls, rough_cushions, rough_collisions)
+    finder.slide_decel, finder.slide_decel_sd = _cloth_slide_decel(finder, balls, rough_cushions,
+                                                                   rough_collisions)
+    finder.slide_measured = finder.slide_decel_sd < cfg.slide_decel_sigma_mm_s2
 
     rows: list[dict] = []
     for tg, i, j in rough_collisions:
@@ -908,23 +948,41 @@ def find_events(
 
 
 def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: dict,
-                       rough_collisions: list) -> float | None:
-    """The cloth's sliding deceleration ``mu_s g`` (mm/s^2) measured once for the clip, or None.
+                       rough_collisions: list) -> tuple[float, float]:
+    """The cloth's sliding deceleration ``mu_s g`` (mm/s^2) for the clip and its standard
+    deviation, pooled over all of the clip's slides with the typical cloth as the prior.
 
     One cloth covers the table, so every slide of the clip (Alciatore 2004: after a cushion, a
     collision or a stun strike the ball slides at ``mu_s g`` in a fixed direction until it
     rolls) decelerates alike. Each departure (after a rough cushion contact, a rough collision
-    or the start of a motion) is fitted on its own by ``_piecewise_fit`` with the sliding
-    deceleration free; where a sliding piece of at least ``slide_min_samples`` samples is
-    chosen (slide then roll, or sliding through the whole window), its ``|a|`` is one
-    measurement (with the loose prior about ``slide_decel_mm_s2`` that keeps a short slide's
-    estimate sane). The clip's value is their median (robust to a slide mis-cut at a third
-    piece); None without any, and the departure fits then keep the loose prior.
+    or the start of a motion) is first fitted on its own by ``_piecewise_fit`` with the sliding
+    deceleration free; one whose piece next to the contact spans at least ``slide_min_samples``
+    samples and decelerates within ``slide_decel_min_mm_s2 .. slide_decel_max_mm_s2`` is a
+    measurement, whichever model was chosen (a slide through the whole window can pass for the
+    one-piece rolling model, whose prior on mu_r g is weak against many samples). Its information about ``mu_s g`` is its profile criterion: the
+    departure refitted with the deceleration held at a trial value r (``_piecewise_fit`` with
+    ``slide_decel = r``: slip direction, speed and the slide's duration profiled out),
+    ``chi2_i(r) = m_i ln(RSS_i(r) / m_i) + k_i(r) ln m_i`` over its ``m_i`` coordinates, the
+    criterion of ``_piecewise_fit`` (Gaussian residuals of unknown variance; ``RSS_i`` the
+    penalised residual sum, the rolling piece's prior included), so each departure weighs by
+    its own residual scatter (one its model fits poorly counts less), a short slide, whose
+    duration trades against r, has a shallow curve and a long one a steep curve. The clip's
+    estimate minimises
+    ``sum_i chi2_i(r) + ((r - mu0) / sd0)^2``, the prior ``mu0, sd0`` the typical cloth
+    (``slide_decel_mm_s2`` and ``slide_decel_sigma_mm_s2``: Alciatore 2004 typical 0.2, range
+    0.15-0.4 [secondary]; Mathavan et al. 2009: 1.75-2.40 m/s^2), a joint maximum a posteriori
+    estimate of the shared parameter with every departure's own parameters profiled out
+    (Gelman et al., Bayesian Data Analysis, ch. 4 normal approximation); its sd is the Laplace
+    approximation, ``sd^2 = 2 / (d^2/dr^2 of that sum)`` at the minimum. The minimum is found
+    on a log-spaced grid between ``slide_decel_min_mm_s2`` and ``slide_decel_max_mm_s2``, then
+    by Brent's bounded method between the best grid point's neighbours. Without any slide the
+    prior alone stands: a departure is never fitted as rolling from the contact.
     """
     cfg = finder.cfg
     dt = finder.dt
     step = cfg.kink_step_frames * dt
-    found = []
+    mu0, sd0 = cfg.slide_decel_mm_s2, cfg.slide_decel_sigma_mm_s2
+    found = []  # (ts, ps, t0, sigma, weight, cache) of each measured slide
     for b in balls:
         t_dep = [tg for tg, _ in rough_cushions[b.track]]
         t_dep += [tg for tg, i, j in rough_collisions if b.track in (i, j)]
@@ -936,16 +994,52 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
                                min(hi, tg + cfg.slide_fit_s))
             if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
                 continue
-            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=b.weights(ts))
-            if f is None or f.k < 6:
-                continue  # the rolling model was chosen: no slide seen
+            wt = b.weights(ts)
+            f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=wt)
+            if f is None:
+                continue
+            # A slide is told by its deceleration, not by which model won: the one-piece
+            # "rolling" fit, whose prior on mu_r g is weak against many samples, can take a
+            # slide through the whole window with two parameters fewer.
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
             if n_slide < cfg.slide_min_samples:
                 continue
             a = 2.0 * float(np.hypot(*f.coef[2]))
-            if cfg.slide_decel_min_mm_s2 <= a <= cfg.slide_decel_max_mm_s2:
-                found.append(a)
-    return float(np.median(found)) if found else None
+            if not cfg.slide_decel_min_mm_s2 <= a <= cfg.slide_decel_max_mm_s2:
+                continue
+            found.append((ts, ps, tg, b.sigma_fit, wt, {}))
+    if not found:
+        return mu0, sd0
+
+    def total(r: float) -> float:
+        out = ((r - mu0) / sd0) ** 2
+        for ts, ps, tg, sigma, wt, cache in found:
+            f = _piecewise_fit(ts, ps, tg, sigma, step, cfg, slide_decel=r, weight=wt,
+                               penalised=True, cache=cache)
+            if f is not None:
+                m = 2 * f.n
+                out += m * math.log(max(f.rss, m * 1e-18) / m) + f.k * math.log(m)
+        return out
+
+    lo, hi = cfg.slide_decel_min_mm_s2, cfg.slide_decel_max_mm_s2
+    grid = np.geomspace(lo, hi, 9)  # steps of 35 %
+    vals = [total(float(r)) for r in grid]
+    g = int(np.argmin(vals))
+    # Offsets from the best grid value, so the optimiser's relative tolerance (sqrt(eps) |x|)
+    # does not stop it at ~1e-5 mm/s^2 of a value of thousands.
+    rg = float(grid[g])
+    res = minimize_scalar(lambda u: total(rg + float(u)), method="bounded",
+                          bounds=(grid[max(g - 1, 0)] - rg, grid[min(g + 1, len(grid) - 1)] - rg),
+                          options={"xatol": 1e-6})
+    r = rg + float(res.x) if res.fun <= vals[g] else rg
+    # Second difference over a step that the criterion's own scale sets (the prior's curvature
+    # bounds the posterior sd by sd0, so a step of a few percent of it resolves the curve).
+    h = max(0.05 * sd0 * min(1.0, 1.0 / math.sqrt(len(found))), 1.0)
+    h = min(h, r - lo, hi - r) if lo < r < hi else h
+    f0 = total(r)
+    curv = (total(r + h) - 2.0 * f0 + total(r - h)) / (h * h)
+    sd = math.sqrt(2.0 / curv) if curv > 2.0 / sd0**2 else sd0
+    return r, min(sd, sd0)
 
 
 def _cushion_slide_ratio(finder: "_Finder") -> float | None:
@@ -1072,6 +1166,8 @@ class _Finder:
         self.table, self.cfg, self.dt, self.exposure = table, cfg, dt, exposure
         # The cloth's sliding deceleration mu_s g (mm/s^2), once measured (find_events).
         self.slide_decel: float | None = None
+        self.slide_decel_sd: float | None = None  # its standard deviation, mm/s^2
+        self.slide_measured = False  # whether any slide of the clip measured it
         # Normal speed lost in the slide after a cushion over the normal speed arriving
         # (``find_events``), once measured; and the measurements (vn_in, slide s, samples).
         self.slide_ratio: float | None = None
@@ -1102,7 +1198,10 @@ class _Finder:
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
         fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta))
-        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, self.slide_decel, b.weights(td))
+        # mu_s g from the prior alone is not held here: a slide forced to last to the first
+        # sample would pull a slow contact's rough time by frames (``_cloth_slide_decel``).
+        decel = self.slide_decel if self.slide_measured else None
+        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, decel, b.weights(td))
         for t_bad in bad_a + bad_d:
             b.raw[np.searchsorted(b.t, t_bad)] = np.nan
         return fa, fd
