@@ -75,7 +75,11 @@ Method
    false track) and is dropped. *Collision*:
    the time where the centres are one diameter apart, ``|p1(t) - p2(t)| = D``, is solved
    (a quartic) from the approach fits and from the departure fits and the two combined the same
-   way, from plain quadratic fits grown outward from the contact (``_Finder._grow``). *Start*:
+   way, from plain quadratic fits grown outward from the contact (``_Finder._grow``); a touch
+   whose two velocity changes do not balance (equal masses exchange equal and opposite
+   momentum; ``EventConfig.collision_min_balance``), or neither of whose paths goes on after it
+   or comes before it, is two false tracks or a ball set moving beside another, and is dropped.
+   *Start*:
    the first moving samples' fit extrapolated back to the rest position. *Stop*:
    the instant the fitted velocity of the last moving samples vanishes, ``argmin |p'(t)|``.
    A ball that leaves the table within ``min_rest_s`` of slowing down (caught) gets no stop.
