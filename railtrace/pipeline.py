@@ -52,9 +52,9 @@ class AnalyseConfig:
     detects the two halves of a clip at once; a clip shorter than ``2 * chunk_min_s`` s is not
     split. 1 gives exactly the detections of one pass; a later part's detector starts with a
     fresh background, so its detections differ slightly (measured on the small test clip filmed
-    with six scene seeds, cut in two: 99 % of the positions within 0.09-0.20 mm of one pass's;
-    after the cut a median move of 0.01-0.02 mm and the largest 0.37-1.03 mm, on moving balls,
-    whose error against the truth stayed as it was, median 0.53-0.63 mm either way; a longer
+    with six scene seeds, cut in two: 99 % of the positions within 0.07-0.26 mm of one pass's;
+    after the cut a median move of 0.01-0.02 mm and the largest 0.12-0.78 mm, on moving balls,
+    whose error against the truth stayed as it was, median 0.51-0.68 mm either way; a longer
     warm-up does not shrink it, as the background's running update forgets its start only
     slowly; on the 38 s bank sample,
     against one pass with the truth calibration, the same cushion contacts within noise (along
