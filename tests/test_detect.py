@@ -720,3 +720,29 @@ def test_striped_balls_whose_band_meets_the_crease_are_found_and_placed(spin_see
     assert np.all(np.isfinite(err)) and len(set(j.tolist())) == n, (spin_seed, err)
     # Issue acceptance: resting balls median centre error <= 1 mm, p95 <= 2.5 mm.
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (spin_seed, err)
+
+
+def test_ballness_by_opencv_matches_the_written_out_score():
+    # The score's OpenCV dot products and in-place arithmetic must give Horprasert et al.'s
+    # (1999) brightness and chromaticity distortions as written out in numpy (reference: numpy's
+    # einsum and plain float32 expressions), to the last bit for images and for sample arrays,
+    # and known colours their known scores (analytic: a shadow at half light scores 0, a pixel
+    # of the background's colour at twice its brightness scores 2 - 1.15).
+    from vision.detect import _dot3_f32, ballness
+
+    rng = np.random.default_rng(11)
+    for shape in [(37, 53, 3), (48, 30, 3), (200, 3), (5, 7, 9, 3), (0, 3)]:
+        I = rng.integers(0, 256, shape).astype(np.float32)
+        B = rng.uniform(0, 255, shape).astype(np.float32)
+        ib = np.einsum("...c,...c->...", I, B)
+        assert _dot3_f32(I, B).shape == ib.shape and np.array_equal(_dot3_f32(I, B), ib)
+        bb = np.einsum("...c,...c->...", B, B)
+        ii = np.einsum("...c,...c->...", I, I)
+        a = ib / np.maximum(bb, 1.0)
+        cd = np.sqrt(np.maximum(ii - 2.0 * a * ib + a * a * bb, 0.0)) / np.maximum(np.sqrt(bb), 30.0)
+        want = cd + np.maximum(a - 1.15, 0.0) + 1.5 * np.maximum(0.5 - a, 0.0)
+        got = ballness(I.astype(np.uint8), B)
+        assert got.dtype == np.float32 and np.array_equal(got, want)
+    cloth = np.array([[[40.0, 120.0, 60.0]]], np.float32)
+    assert ballness(0.5 * cloth, cloth)[0, 0] == pytest.approx(0.0, abs=1e-6)
+    assert ballness(2.0 * cloth, cloth)[0, 0] == pytest.approx(2.0 - 1.15, abs=1e-6)
