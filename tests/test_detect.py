@@ -746,3 +746,59 @@ def test_ballness_by_opencv_matches_the_written_out_score():
     cloth = np.array([[[40.0, 120.0, 60.0]]], np.float32)
     assert ballness(0.5 * cloth, cloth)[0, 0] == pytest.approx(0.0, abs=1e-6)
     assert ballness(2.0 * cloth, cloth)[0, 0] == pytest.approx(2.0 - 1.15, abs=1e-6)
+
+
+@pytest.mark.parametrize("beside_mm", [12 * R, 2 * R + 1.0])
+def test_ball_at_rest_in_a_box_is_carried_or_refitted_beside_a_new_ball(beside_mm, monkeypatch):
+    # A ball at rest whose own change-grid cells did not change is carried over as it was
+    # (no seed, no fit spent on it) when a box is searched round a ball that moved in beside
+    # it; one touching the new ball is refitted with it, and both stay on the renderer's
+    # truth (resting acceptance of the issue: within 2.5 mm, the p95 target).
+    s = SETUPS["green_high"]
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS[:2], seed=7)
+    rest, new = np.array([1000.0, 500.0]), np.array([1000.0 + beside_mm, 500.0])
+    off = np.array([2000.0, 1000.0])  # the second ball before it moved in
+    frames = [ren.render(np.array([[rest, p]]), _rot(2), np.ones((1, 2), bool), np.array([t])) for p, t in ((off, 0.0), (new, 1 / 60))]
+    det = BallDetector(cam, NINE_FOOT)
+    first = det.step_rows(0, 0.0, frames[0])
+    known = [r for r in first if math.hypot(r["x"] - rest[0], r["y"] - rest[1]) < R]
+    assert len(known) == 1 and math.hypot(known[0]["x"] - rest[0], known[0]["y"] - rest[1]) < 2.5
+    seeds = []
+    real = det._fit_one
+    monkeypatch.setattr(det, "_fit_one", lambda img, sd: seeds.append(sd["uv"]) or real(img, sd))
+    uv_rest, uv_new = cam.project(np.array([[*rest, R], [*new, R]]))
+    lo, hi = np.minimum(uv_rest, uv_new) - 2 * det.r_max_px, np.maximum(uv_rest, uv_new) + 2 * det.r_max_px
+    box = (int(lo[0]), int(lo[1]), int(hi[0]), int(hi[1]))
+    rows = det._detect_box(frames[1], box, known)
+    assert len(rows) == 2, rows
+    for want in (rest, new):
+        assert min(math.hypot(r["x"] - want[0], r["y"] - want[1]) for r in rows) < 2.5
+    near_rest = [uv for uv in seeds if np.hypot(*(uv - uv_rest)) < det.r_max_px]
+    from vision.detect import _NEAR_R
+
+    if beside_mm > _NEAR_R * R:
+        assert any(r is known[0] for r in rows)  # carried over as it was
+        assert not near_rest  # and never seeded: its silhouette is out of the foreground
+    else:
+        assert not any(r is known[0] for r in rows)  # refitted beside the touching ball
+
+
+def test_unchanged_looks_at_the_cells_round_a_sharp_ball():
+    # The carried-over test reads the change grid's cells within 1.5 of the largest ball image
+    # radius of the centre's image: a changed cell there (and only there) makes it refit, and a
+    # streak is never carried (it moved during the exposure).
+    s = SETUPS["green_high"]
+    det = BallDetector(s["camera"], NINE_FOOT)
+    cs = det.config.cell_px
+    grid = np.zeros((540 // cs, 960 // cs), bool)
+    row = {"u": 400.0, "v": 300.0, "blur_x": 0.0, "blur_y": 0.0}
+    assert det._unchanged(row, grid)
+    reach = 1.5 * det.r_max_px
+    near = grid.copy()
+    near[int((300.0 + 0.9 * reach) // cs), int(400.0 // cs)] = True
+    assert not det._unchanged(row, near)
+    far = grid.copy()
+    far[int((300.0 + reach) // cs) + 2, int(400.0 // cs)] = True
+    assert det._unchanged(row, far)
+    assert not det._unchanged(dict(row, blur_x=30.0), grid)

@@ -26,7 +26,9 @@ Method
    for lighting drift.
 2. *Where to look*: a 1/8-scale copy of each frame is compared with the copy at the last
    processing (frame differencing); only cells that changed, grown by a ball, are processed, and
-   detections elsewhere are carried over. A frame where nothing changed costs one resize.
+   detections elsewhere are carried over, as is a sharp ball inside a processed region whose own
+   cells did not change (its silhouette is taken out of that region's foreground; it is refitted
+   only beside a ball found there, step 5). A frame where nothing changed costs one resize.
 3. *Candidates*: pixels of the ball zone whose colour distance from the background exceeds a
    noise-scaled threshold; connected components (``cv2.connectedComponentsWithStats``). A
    compact, convex component seeds one ball (a disc, or a capsule along its principal axis from
@@ -1107,18 +1109,35 @@ class BallDetector:
         for i in range(1, n):
             x0, y0, bw, bh = stats[i, :4]
             boxes.append((max(x0 * cs, 0), max(y0 * cs, 0), min((x0 + bw) * cs, w), min((y0 + bh) * cs, h)))
-        # Earlier detections outside the processed boxes are carried over.
+        # Earlier detections outside the processed boxes are carried over, and so are sharp
+        # balls inside a box whose own cells did not change (a ball at rest beside a moving
+        # one or under the cue's tip): they are left out of the box's foreground instead of
+        # being found and fitted again.
         prev = self._prev
-        inside = np.zeros(len(prev), bool)
+        inside = np.zeros((len(prev), len(boxes)), bool)
         if len(prev) and boxes:
             bx = np.array(boxes, float)  # (nb, 4) u0, v0, u1, v1
             u = np.array([r["u"] for r in prev], float)[:, None]
             v = np.array([r["v"] for r in prev], float)[:, None]
-            inside = np.any((bx[None, :, 0] <= u) & (u < bx[None, :, 2]) & (bx[None, :, 1] <= v) & (v < bx[None, :, 3]), axis=1)
-        rows = [r for r, gone in zip(prev, inside) if not gone]
-        for b in boxes:
-            rows += self._detect_box(img, b)
+            inside = (bx[None, :, 0] <= u) & (u < bx[None, :, 2]) & (bx[None, :, 1] <= v) & (v < bx[None, :, 3])
+        rows = [r for r, hit in zip(prev, inside) if not hit.any()]
+        still = [self._unchanged(r, changed) for r in prev]
+        for k, b in enumerate(boxes):
+            rows += self._detect_box(img, b, [r for r, hit, st in zip(prev, inside[:, k], still) if hit and st])
         return tuple(self._dedupe(rows))
+
+    def _unchanged(self, row: dict, changed: np.ndarray) -> bool:
+        """Whether a detection row is of a sharp ball none of whose change-grid cells
+        (``changed``, (H / cell, W / cell) bool) changed: the square of half side 1.5 of the
+        largest ball image radius round its centre's image, as far as the coarse outline
+        searches (the ball's outline and the cloth or shadow just outside it)."""
+        if row["blur_x"] or row["blur_y"]:
+            return False
+        cs = int(self.config.cell_px)
+        rad = 1.5 * self.r_max_px
+        j0, j1 = max(int((row["v"] - rad) // cs), 0), int((row["v"] + rad) // cs) + 1
+        i0, i1 = max(int((row["u"] - rad) // cs), 0), int((row["u"] + rad) // cs) + 1
+        return not changed[j0:j1, i0:i1].any()
 
     def _dedupe(self, rows: list[dict]) -> list[dict]:
         rows = sorted(rows, key=lambda r: -r["quality"])
@@ -1129,20 +1148,34 @@ class BallDetector:
         return out
 
     # -- candidates in a box --
-    def _components(self, img: np.ndarray, box) -> tuple[int, np.ndarray, np.ndarray]:
+    def _components(self, img: np.ndarray, box, known: list[dict] = ()) -> tuple[int, np.ndarray, np.ndarray]:
         """Foreground of the ball zone inside ``box`` = (u0, v0, u1, v1) px: ballness above the
-        threshold, opened by a 3 x 3 square, split into 8-connected components; (count, labels
-        (v1 - v0, u1 - u0) int32, stats as ``cv2.connectedComponentsWithStats``)."""
+        threshold, less the silhouettes of the ``known`` balls (detection rows carried over,
+        grown by 2 px for the blurred rim), opened by a 3 x 3 square, split into 8-connected
+        components; (count, labels (v1 - v0, u1 - u0) int32, stats as
+        ``cv2.connectedComponentsWithStats``)."""
         u0, v0, u1, v1 = box
         score = ballness(img[v0:v1, u0:u1], self.background.image[v0:v1, u0:u1])
         fg = ((score > self._score_thr) & self.zone[v0:v1, u0:u1]).astype(np.uint8)
+        if known:
+            gone = np.zeros_like(fg)
+            for r in known:
+                c = np.array([r["u"], r["v"]])
+                out = self.rays.sphere_outline(r["x"], r["y"], self.R) - c
+                out *= (1.0 + 2.0 / np.maximum(np.hypot(out[:, 0], out[:, 1]), 1.0))[:, None]
+                cv2.fillPoly(gone, [np.round(out + c - np.array([u0, v0])).astype(np.int32)], 1)
+            fg[gone > 0] = 0
         fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
         n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
         return n, lab, stats
 
-    def _detect_box(self, img: np.ndarray, box) -> list[dict]:
+    def _detect_box(self, img: np.ndarray, box, known: list[dict] = ()) -> list[dict]:
+        """Detection rows of the balls in ``box`` = (u0, v0, u1, v1) px, with the ``known``
+        balls (rows carried over, :meth:`_unchanged`) left out of its foreground and returned
+        among them: as they were, or refitted with their neighbours' rays left out where a
+        ball found in the box lies within ``_NEAR_R`` radii (:meth:`_refit_touching`)."""
         u0, v0, u1, v1 = box
-        n, lab, stats = self._components(img, box)
+        n, lab, stats = self._components(img, box, known)
         edge = self._zone_edge[v0:v1, u0:u1]
         h, w = img.shape[:2]
         seeds = []
@@ -1167,7 +1200,7 @@ class BallDetector:
                 # seeds are taken from the piece made whole within two ball diameters.
                 if not occluder:
                     occluder = bool(np.any(self._reaching(img)[(ys + by + v0) // 2, (xs + bx + u0) // 2]))
-                comp, origin, at_edge = self._whole_piece(img, xs + bx + u0, ys + by + v0)
+                comp, origin, at_edge = self._whole_piece(img, xs + bx + u0, ys + by + v0, known)
                 occluder |= at_edge
                 ys, xs = np.nonzero(comp)
             pts = np.column_stack([xs + origin[0], ys + origin[1]]).astype(float)
@@ -1187,10 +1220,20 @@ class BallDetector:
                 break
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
-        crowns = self._crown_seeds(img, box, lab, stats, small, fits)
+        crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known))
         seeds += crowns
         fits += [self._fit_crown(img, s) for s in crowns]
-        return self._refit_touching(img, seeds, fits)
+        # A known ball beside a ball found here is refitted with it, as when both were found
+        # here (the local edge of each holds the other's rim); the others stand as they were.
+        found = np.array([[r["x"], r["y"]] for r in fits if r is not None and not (r["blur_x"] or r["blur_y"])]).reshape(-1, 2)
+        kept = []
+        for r in known:
+            if len(found) and np.min(np.hypot(found[:, 0] - r["x"], found[:, 1] - r["y"])) < _NEAR_R * self.R:
+                seeds.append({"uv": np.array([r["u"], r["v"]]), "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False})
+                fits.append(r)
+            else:
+                kept.append(r)
+        return kept + self._refit_touching(img, seeds, fits)
 
     def _crown_seeds(self, img: np.ndarray, box, lab: np.ndarray, stats: np.ndarray, small: list[int], fits: list[dict | None]) -> list[dict]:
         """Seeds (as :meth:`_seeds_of`) for balls of the cloth's own hue and brightness: the
@@ -1389,16 +1432,16 @@ class BallDetector:
             widths.append(float(lo.max() - hi.max()))
         return bool(widths) and max(widths) >= 0.5 * R
 
-    def _whole_piece(self, img: np.ndarray, us: np.ndarray, vs: np.ndarray) -> tuple[np.ndarray, tuple[int, int], bool]:
-        """The foreground component (as in :meth:`_detect_box`) holding the pixels ``us``,
-        ``vs`` (int arrays, px) of a piece cut by its box, found in a window grown round the
-        piece by two ball diameters: (mask (h, w) uint8 cropped to the component, its origin
-        (u, v) px, whether it touches the ball zone's border)."""
+    def _whole_piece(self, img: np.ndarray, us: np.ndarray, vs: np.ndarray, known: list[dict] = ()) -> tuple[np.ndarray, tuple[int, int], bool]:
+        """The foreground component (as in :meth:`_detect_box`, ``known`` balls left out)
+        holding the pixels ``us``, ``vs`` (int arrays, px) of a piece cut by its box, found in a
+        window grown round the piece by two ball diameters: (mask (h, w) uint8 cropped to the
+        component, its origin (u, v) px, whether it touches the ball zone's border)."""
         H, W = img.shape[:2]
         g = int(math.ceil(2 * self.ball_px))
         wu0, wv0 = max(int(us.min()) - g, 0), max(int(vs.min()) - g, 0)
         wu1, wv1 = min(int(us.max()) + g + 1, W), min(int(vs.max()) + g + 1, H)
-        n, lab, stats = self._components(img, (wu0, wv0, wu1, wv1))
+        n, lab, stats = self._components(img, (wu0, wv0, wu1, wv1), known)
         hit = lab[vs - wv0, us - wu0]
         hit = hit[hit > 0]
         if len(hit) == 0:  # cannot happen (same pixels, same test), but keep the piece then
