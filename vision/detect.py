@@ -140,8 +140,11 @@ _N_RAYS = 48
 # (read only).
 _RAY_ANG = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
 _RAY_DIRS = np.column_stack([np.cos(_RAY_ANG), np.sin(_RAY_ANG)])
+# Their angles as _ray_polygon_convex measures them (arctan2 of the directions, not _RAY_ANG).
+_RAY_DIRS_ATAN2 = np.arctan2(_RAY_DIRS[:, 1], _RAY_DIRS[:, 0])
 _RAY_ANG.flags.writeable = False
 _RAY_DIRS.flags.writeable = False
+_RAY_DIRS_ATAN2.flags.writeable = False
 # Prior spread of the outline's inward shift from limb darkening (mm): about a pixel at the
 # usual scale of 2 mm per pixel; not a measured figure.
 _BIAS_SIGMA_MM = 2.0
@@ -315,11 +318,13 @@ def _dot3_f32(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 # --- geometry --------------------------------------------------------------------------------
-def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, n: int = 32) -> np.ndarray:
+def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, n: int = 32, rays: RayMap | None = None) -> np.ndarray:
     """(N, n, 2) pixels of the silhouettes of spheres centred at (N, 3) table points (mm).
 
     The silhouette is the image of the tangency circle: centre ``X - v R^2 / |v|^2`` and radius
     ``R sqrt(1 - R^2 / |v|^2)`` in the plane normal to ``v = X - C`` (C the camera centre).
+    ``rays``: the camera's :class:`RayMap`, whose projection (the camera's, without its
+    generality) is used when given.
     """
     X = np.asarray(centres_mm, float).reshape(-1, 3)
     v = X - camera.centre_mm
@@ -333,7 +338,7 @@ def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, 
     e2 = _cross(vh, e1)
     ang = np.linspace(0, 2 * np.pi, n, endpoint=False)
     pts = q[:, None] + rho[:, None] * (np.cos(ang)[None, :, None] * e1[:, None] + np.sin(ang)[None, :, None] * e2[:, None])
-    return camera.project(pts.reshape(-1, 3)).reshape(len(X), n, 2)
+    return (camera if rays is None else rays).project(pts.reshape(-1, 3)).reshape(len(X), n, 2)
 
 
 def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -405,7 +410,8 @@ def _ray_polygon_convex(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np
     rel = poly - c
     phi = np.arctan2(rel[:, 1], rel[:, 0])
     order = np.argsort(phi)
-    pos = np.searchsorted(phi[order], np.arctan2(dirs[:, 1], dirs[:, 0]))
+    ang = _RAY_DIRS_ATAN2 if dirs is _RAY_DIRS else np.arctan2(dirs[:, 1], dirs[:, 0])
+    pos = np.searchsorted(phi[order], ang)
     hi, lo = order[pos % m], order[(pos - 1) % m]
     # The edge runs from the earlier vertex of the pair in the polygon's own order.
     a = np.where((hi - lo) % m == 1, lo, hi)
@@ -1339,7 +1345,7 @@ class BallDetector:
             if len(sharp) < len(rows):
                 continue  # a streak's swept outline is not drawn here
             cen = np.array([[r["x"], r["y"], self.R] for r in sharp])
-            outl = sphere_outline_px(self.camera, cen, self.R, 32) - np.array(origin, float)
+            outl = sphere_outline_px(self.camera, cen, self.R, 32, self.rays) - np.array(origin, float)
             mask = np.zeros_like(rest)
             cv2.fillPoly(mask, [np.round(o).astype(np.int32) for o in outl], 1)
             rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
@@ -1488,7 +1494,7 @@ class BallDetector:
         a = len(pts)
         cen = pts.mean(axis=0)
         X = self.rays.backproject(cen[None], self.R)[0]
-        r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16)[0] - self.camera.project(X[None])[0], axis=1)))
+        r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16, self.rays)[0] - self.rays.project(X[None])[0], axis=1)))
         area_ball = math.pi * r_loc**2
         if not occluder and a <= 6 * area_ball:
             cov = np.cov((pts - cen).T) if a > 2 else np.eye(2)
