@@ -17,7 +17,9 @@ core with ``taskset -c 0``. ``--clip FILE --calibration FILE`` times another cli
 charges processor time to the detector's stages (each stage's own time, its sub-stages' taken
 out: decoding, the change grid, the background model and its update, candidates, the coarse and local
 outlines, the sphere fits, look-ups of rays and projections, labels) and prints them in ms
-per frame with their call counts; the timers themselves add about a tenth.
+per frame with their call counts; the timers themselves add about a tenth. The machine's load
+averages (1, 5 and 15 minutes) are printed at the start and the end: the timings mean little
+on a machine busy with other jobs.
 
 Run: ``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3``.
 """
@@ -27,6 +29,7 @@ from __future__ import annotations
 import argparse
 import collections
 import functools
+import os
 import statistics
 import sys
 import time
@@ -47,7 +50,7 @@ from vision.video import iter_frames, probe  # noqa: E402
 # (owner, attribute) of the timed stages, grouped under a name each.
 STAGES = {
     "decode to BGR": [],  # timed round the frame iterator itself
-    "frame loop (change grid, carry-over)": [(BallDetector, "step_rows"), (BallDetector, "_process_changed"), (BallDetector, "_dedupe"), (BallDetector, "_protect_mask")],
+    "frame loop (change grid, carry-over)": [(BallDetector, "step_rows"), (BallDetector, "_process_changed"), (BallDetector, "_dedupe"), (BallDetector, "_protect_mask"), (BallDetector, "_unchanged")],
     "background model (first frame)": [(vision.background.Background, "__init__")],
     "background update": [(vision.background.Background, "update")],
     "candidates and seeds": [(BallDetector, n) for n in ("_detect_box", "_components", "_seeds_of", "_whole_piece", "_reaching", "_unexplained_seeds", "_crown_seeds", "_refit_touching")],
@@ -131,6 +134,7 @@ def main(argv=None) -> int:
         clip, cal = args.clip, args.calibration
     table, camera, _ = read_calibration(cal)
     info = probe(clip)
+    print("load averages at the start: " + ", ".join(f"{v:.2f}" for v in os.getloadavg()), flush=True)
     dec, full, cpu_dec, cpu = [], [], [], []
     for k in range(args.runs):
         t0, c0 = time.perf_counter(), time.process_time()
@@ -159,6 +163,7 @@ def main(argv=None) -> int:
         print(f"processor time by stage (one timed run, {n} frames, {1000 * total / n:.1f} ms per frame with the timers):")
         for name in STAGES:
             print(f"  {name:50s} {1000 * secs[name] / n:6.2f} ms per frame  {calls[name] / n:7.2f} calls per frame")
+    print("load averages at the end: " + ", ".join(f"{v:.2f}" for v in os.getloadavg()))
     return 0
 
 

@@ -175,6 +175,19 @@ def test_patches_of_a_window_are_those_of_the_whole_mask():
     assert len(whole) >= 3 and sorted(whole) == sorted(part)
 
 
+def test_patches_of_a_mask_with_fewer_pixels_than_a_patch_are_none():
+    # Counting: a mask of fewer set pixels than the least patch holds no patch (the search
+    # stops before labelling), and one square of exactly that many pixels is one patch, its box
+    # the square grown by the margin (analytic).
+    from vision.background import _patches
+
+    mask = np.zeros((120, 160), np.uint8)
+    mask[20:25, 30:36] = 1  # 30 px
+    mask[90, 10:19] = 1  # 9 px, apart
+    assert _patches(mask, 40.0, 3) == []
+    assert _patches(mask, 30.0, 3) == [(27, 17, 39, 28)]
+
+
 def test_update_of_8_bit_frames_matches_the_float_path():
     # The 8-bit frames' exact short cuts (the still test on 8-bit differences, the far test in
     # one cv2.inRange pass) against the same frames given as float32, which take the plain

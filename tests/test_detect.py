@@ -720,3 +720,119 @@ def test_striped_balls_whose_band_meets_the_crease_are_found_and_placed(spin_see
     assert np.all(np.isfinite(err)) and len(set(j.tolist())) == n, (spin_seed, err)
     # Issue acceptance: resting balls median centre error <= 1 mm, p95 <= 2.5 mm.
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (spin_seed, err)
+
+
+def test_ballness_by_opencv_matches_the_written_out_score():
+    # The score's OpenCV dot products and in-place arithmetic must give Horprasert et al.'s
+    # (1999) brightness and chromaticity distortions as written out in numpy (reference: numpy's
+    # einsum and plain float32 expressions), to the last bit for images and for sample arrays,
+    # and known colours their known scores (analytic: a shadow at half light scores 0, a pixel
+    # of the background's colour at twice its brightness scores 2 - 1.15).
+    from vision.detect import _dot3_f32, ballness
+
+    rng = np.random.default_rng(11)
+    for shape in [(37, 53, 3), (48, 30, 3), (200, 3), (5, 7, 9, 3), (0, 3)]:
+        I = rng.integers(0, 256, shape).astype(np.float32)
+        B = rng.uniform(0, 255, shape).astype(np.float32)
+        ib = np.einsum("...c,...c->...", I, B)
+        assert _dot3_f32(I, B).shape == ib.shape and np.array_equal(_dot3_f32(I, B), ib)
+        bb = np.einsum("...c,...c->...", B, B)
+        ii = np.einsum("...c,...c->...", I, I)
+        a = ib / np.maximum(bb, 1.0)
+        cd = np.sqrt(np.maximum(ii - 2.0 * a * ib + a * a * bb, 0.0)) / np.maximum(np.sqrt(bb), 30.0)
+        want = cd + np.maximum(a - 1.15, 0.0) + 1.5 * np.maximum(0.5 - a, 0.0)
+        got = ballness(I.astype(np.uint8), B)
+        assert got.dtype == np.float32 and np.array_equal(got, want)
+    cloth = np.array([[[40.0, 120.0, 60.0]]], np.float32)
+    assert ballness(0.5 * cloth, cloth)[0, 0] == pytest.approx(0.0, abs=1e-6)
+    assert ballness(2.0 * cloth, cloth)[0, 0] == pytest.approx(2.0 - 1.15, abs=1e-6)
+
+
+@pytest.mark.parametrize("beside_mm", [12 * R, 2 * R + 1.0])
+def test_ball_at_rest_in_a_box_is_carried_or_refitted_beside_a_new_ball(beside_mm, monkeypatch):
+    # A ball at rest whose own change-grid cells did not change is carried over as it was
+    # (no seed, no fit spent on it) when a box is searched round a ball that moved in beside
+    # it; one touching the new ball is refitted with it, and both stay on the renderer's
+    # truth (resting acceptance of the issue: within 2.5 mm, the p95 target).
+    s = SETUPS["green_high"]
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS[:2], seed=7)
+    rest, new = np.array([1000.0, 500.0]), np.array([1000.0 + beside_mm, 500.0])
+    off = np.array([2000.0, 1000.0])  # the second ball before it moved in
+    frames = [ren.render(np.array([[rest, p]]), _rot(2), np.ones((1, 2), bool), np.array([t])) for p, t in ((off, 0.0), (new, 1 / 60))]
+    det = BallDetector(cam, NINE_FOOT)
+    first = det.step_rows(0, 0.0, frames[0])
+    known = [r for r in first if math.hypot(r["x"] - rest[0], r["y"] - rest[1]) < R]
+    assert len(known) == 1 and math.hypot(known[0]["x"] - rest[0], known[0]["y"] - rest[1]) < 2.5
+    seeds = []
+    real = det._fit_one
+    monkeypatch.setattr(det, "_fit_one", lambda img, sd: seeds.append(sd["uv"]) or real(img, sd))
+    uv_rest, uv_new = cam.project(np.array([[*rest, R], [*new, R]]))
+    lo, hi = np.minimum(uv_rest, uv_new) - 2 * det.r_max_px, np.maximum(uv_rest, uv_new) + 2 * det.r_max_px
+    box = (int(lo[0]), int(lo[1]), int(hi[0]), int(hi[1]))
+    rows = det._detect_box(frames[1], box, known)
+    assert len(rows) == 2, rows
+    for want in (rest, new):
+        assert min(math.hypot(r["x"] - want[0], r["y"] - want[1]) for r in rows) < 2.5
+    near_rest = [uv for uv in seeds if np.hypot(*(uv - uv_rest)) < det.r_max_px]
+    from vision.detect import _NEAR_R
+
+    if beside_mm > _NEAR_R * R:
+        assert any(r is known[0] for r in rows)  # carried over as it was
+        assert not near_rest  # and never seeded: its silhouette is out of the foreground
+    else:
+        assert not any(r is known[0] for r in rows)  # refitted beside the touching ball
+
+
+def test_unchanged_looks_at_the_cells_round_a_sharp_ball():
+    # The carried-over test reads the change grid's cells within 1.5 of the largest ball image
+    # radius of the centre's image: a changed cell there (and only there) makes it refit, and a
+    # streak is never carried (it moved during the exposure).
+    s = SETUPS["green_high"]
+    det = BallDetector(s["camera"], NINE_FOOT)
+    cs = det.config.cell_px
+    grid = np.zeros((540 // cs, 960 // cs), bool)
+    row = {"u": 400.0, "v": 300.0, "blur_x": 0.0, "blur_y": 0.0}
+    assert det._unchanged(row, grid)
+    reach = 1.5 * det.r_max_px
+    near = grid.copy()
+    near[int((300.0 + 0.9 * reach) // cs), int(400.0 // cs)] = True
+    assert not det._unchanged(row, near)
+    far = grid.copy()
+    far[int((300.0 + reach) // cs) + 2, int(400.0 // cs)] = True
+    assert det._unchanged(row, far)
+    assert not det._unchanged(dict(row, blur_x=30.0), grid)
+
+
+def test_ball_against_an_arm_is_found_and_the_arm_not_fitted(monkeypatch):
+    # A ball lying against an arm that comes in over the rail (a skin-coloured bar 1.6 ball
+    # diameters wide, drawn into a rendered frame) is found on the renderer's truth (within the
+    # issue's 2.5 mm resting p95), while the seeds of the merged piece that lie on the arm are
+    # not fitted at all: their ring is covered far beyond what the occluder test allows, which
+    # no fit of a pixel or two could undo (:meth:`BallDetector._worth_fitting`).
+    import cv2
+
+    s = SETUPS["green_high"]
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS[:1], seed=9)
+    at = np.array([600.0, 700.0])
+    frame0 = ren.render(at[None, None], _rot(1), np.ones((1, 1), bool), np.array([0.0]))
+    det = BallDetector(cam, NINE_FOOT)
+    det.step_rows(0, 0.0, frame0)
+    # The arm: from the image's left edge to above the ball's centre, its lower side touching
+    # the top of the ball's silhouette (it hides about 44 degrees of the occluder test's ring).
+    u, v = cam.project(np.array([[*at, R]]))[0]
+    r_px = det.ball_px / 2
+    frame1 = frame0.copy()
+    top = int(round(v - r_px))
+    cv2.rectangle(frame1, (0, top - int(round(3.2 * r_px))), (int(round(u)), top), (120, 150, 200), -1)
+    fitted = []
+    real = det._fit_one
+    monkeypatch.setattr(det, "_fit_one", lambda img, sd: fitted.append((sd["strict"], sd["uv"])) or real(img, sd))
+    out = det.process(1, 1 / 60, frame1)
+    err, _ = _match(out, at[None])
+    assert np.isfinite(err[0]) and err[0] < 2.5, out
+    assert len(out) == 1, out  # nothing on the arm
+    on_arm = [uv for strict, uv in fitted if strict and np.hypot(uv[0] - u, uv[1] - v) > r_px]
+    assert not on_arm, on_arm
+    assert any(strict for strict, _ in fitted), (fitted, u, v, r_px)  # the ball itself came as a seed of the arm's piece

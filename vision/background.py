@@ -459,6 +459,8 @@ def _patches(mask: np.ndarray, min_area: float, margin: int, origin: tuple[int, 
     image whose pixel (0, 0) is the image's ``origin`` (u, v), the image being of ``shape``
     (H, W) (default: the mask's own); the boxes are in the image's pixels."""
     h, w = mask.shape if shape is None else shape
+    if cv2.countNonZero(mask) < min_area:
+        return []  # no patch can be large enough: labelling would find none (most updates)
     # Labelled within the bounding box of the mask's pixels only: the same components.
     bx0, by0, bw0, bh0 = cv2.boundingRect(mask)
     if bw0 == 0 or bh0 == 0:

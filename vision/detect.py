@@ -26,7 +26,9 @@ Method
    for lighting drift.
 2. *Where to look*: a 1/8-scale copy of each frame is compared with the copy at the last
    processing (frame differencing); only cells that changed, grown by a ball, are processed, and
-   detections elsewhere are carried over. A frame where nothing changed costs one resize.
+   detections elsewhere are carried over, as is a sharp ball inside a processed region whose own
+   cells did not change (its silhouette is taken out of that region's foreground; it is refitted
+   only beside a ball found there, step 5). A frame where nothing changed costs one resize.
 3. *Candidates*: pixels of the ball zone whose colour distance from the background exceeds a
    noise-scaled threshold; connected components (``cv2.connectedComponentsWithStats``). A
    compact, convex component seeds one ball (a disc, or a capsule along its principal axis from
@@ -34,7 +36,8 @@ Method
    peak of its distance transform at least ~0.7 ball radius deep; one that reaches the edge of
    the ball zone (an arm or cue coming in over the rail) seeds only deep, isolated peaks and
    its fits must pass stricter outline tests, among them a ring round the ball mostly free (as
-   round a whole ball touching the arm, not a hand or knuckle continued by it). Whether a
+   round a whole ball touching the arm, not a hand or knuckle continued by it; a seed whose ring
+   is already covered well beyond that is not fitted at all: most are the arm's own). Whether a
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
    ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
@@ -138,8 +141,11 @@ _N_RAYS = 48
 # (read only).
 _RAY_ANG = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
 _RAY_DIRS = np.column_stack([np.cos(_RAY_ANG), np.sin(_RAY_ANG)])
+# Their angles as _ray_polygon_convex measures them (arctan2 of the directions, not _RAY_ANG).
+_RAY_DIRS_ATAN2 = np.arctan2(_RAY_DIRS[:, 1], _RAY_DIRS[:, 0])
 _RAY_ANG.flags.writeable = False
 _RAY_DIRS.flags.writeable = False
+_RAY_DIRS_ATAN2.flags.writeable = False
 # Prior spread of the outline's inward shift from limb darkening (mm): about a pixel at the
 # usual scale of 2 mm per pixel; not a measured figure.
 _BIAS_SIGMA_MM = 2.0
@@ -172,6 +178,12 @@ _OUTER_SHARE = 0.5
 # (the edge, R from the centre, hides 2 acos(1 / 1.4) of the ring), less one of 64 samples.
 _RING_R = 1.4
 _ISOLATED_SHARE = 1.0 - math.acos(1.0 / _RING_R) / math.pi - 1.0 / 64
+# Least share of the ring a strict seed (inside an arm or cue component) must leave free
+# before it is fitted, below _ISOLATED_SHARE: seven of its 64 samples, a fit's move of several
+# pixels. Measured on bank_practice (all) and cushion_check (first 1200 frames): the 34 strict
+# seeds whose fits passed moved at most 1.6 px and all had at least this share free at the
+# seed, and 4,700 of 5,300 strict seeds (all failing) did not.
+_SEED_RING_SLACK = 7 / 64
 # Balls closer than this many radii (centre to centre) are refitted with the rays toward each
 # other left out of the local edge; a ray is left out where its outline point lies within
 # _AVOID_R radii of the neighbour's centre (+-27 degrees round the contact of touching balls);
@@ -254,24 +266,72 @@ def ballness(image: np.ndarray, background: np.ndarray) -> np.ndarray:
     the light on the cloth under several lamps and room light; not a measured figure).
     ``image`` and ``background`` are (..., 3) arrays of the same shape.
     """
-    I = np.asarray(image, np.float32)
     B = np.asarray(background, np.float32)
-    ib = np.einsum("...c,...c->...", I, B)
-    bb = np.einsum("...c,...c->...", B, B)
-    ii = np.einsum("...c,...c->...", I, I)
-    a = ib / np.maximum(bb, 1.0)
+    return _ballness(np.asarray(image, np.float32), B, *_background_terms(B))
+
+
+def _background_terms(B: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The parts of :func:`ballness` that depend on the background alone, for (..., 3) float32
+    ``B``: ``B.B``, ``max(B.B, 1)`` and ``max(|B|, 30)``, each (...) float32. A model that
+    stays the same over many frames has them made once (:meth:`BallDetector._reaching`)."""
+    bb = _dot3_f32(B, B)
+    return bb, np.maximum(bb, 1.0), np.maximum(np.sqrt(bb), 30.0)
+
+
+def _ballness(I: np.ndarray, B: np.ndarray, bb: np.ndarray, bb1: np.ndarray, bn: np.ndarray) -> np.ndarray:
+    """:func:`ballness` of (..., 3) float32 ``I`` against ``B`` with the background's terms of
+    :func:`_background_terms` given: the same float32 operations in the same order, written
+    in place (each temporary of a full frame costs as much as the arithmetic)."""
+    ib = _dot3_f32(I, B)
+    a = ib / bb1
     # |I - a B|^2 = I.I - 2 a I.B + a^2 B.B: three dot products instead of a (..., 3) temporary
     # (float32 rounding of the difference is below 0.1 DN here, far under any threshold).
-    cd = np.sqrt(np.maximum(ii - 2.0 * a * ib + a * a * bb, 0.0)) / np.maximum(np.sqrt(bb), 30.0)
-    return cd + np.maximum(a - 1.15, 0.0) + 1.5 * np.maximum(0.5 - a, 0.0)
+    s = _dot3_f32(I, I)
+    t = 2.0 * a
+    t *= ib
+    s -= t
+    np.multiply(a, a, out=t)
+    t *= bb
+    s += t
+    np.maximum(s, 0.0, out=s)
+    np.sqrt(s, out=s)
+    s /= bn
+    np.subtract(a, 1.15, out=t)
+    np.maximum(t, 0.0, out=t)
+    s += t
+    np.subtract(0.5, a, out=t)
+    np.maximum(t, 0.0, out=t)
+    t *= 1.5
+    s += t
+    return s
+
+
+# One row of ones: OpenCV's channel sum as a 1 x 3 colour transform (read only).
+_ONES_1X3 = np.ones((1, 3), np.float32)
+_ONES_1X3.flags.writeable = False
+
+
+def _dot3_f32(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """(...) float32 dot products over the last axis (length 3) of two float32 arrays of one
+    shape: ``np.einsum("...c,...c->...", a, b)`` to the last bit (each product rounded to
+    float32, the three summed in channel order; tests/test_detect.py) by OpenCV's per-element
+    multiply and a 1 x 3 colour transform, about twice as fast on an image."""
+    shape = a.shape[:-1]
+    if a.size == 0:
+        return np.zeros(shape, np.float32)
+    if a.ndim != 3:
+        a, b = a.reshape(-1, 1, 3), b.reshape(-1, 1, 3)
+    return cv2.transform(cv2.multiply(a, b), _ONES_1X3).reshape(shape)
 
 
 # --- geometry --------------------------------------------------------------------------------
-def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, n: int = 32) -> np.ndarray:
+def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, n: int = 32, rays: RayMap | None = None) -> np.ndarray:
     """(N, n, 2) pixels of the silhouettes of spheres centred at (N, 3) table points (mm).
 
     The silhouette is the image of the tangency circle: centre ``X - v R^2 / |v|^2`` and radius
     ``R sqrt(1 - R^2 / |v|^2)`` in the plane normal to ``v = X - C`` (C the camera centre).
+    ``rays``: the camera's :class:`RayMap`, whose projection (the camera's, without its
+    generality) is used when given.
     """
     X = np.asarray(centres_mm, float).reshape(-1, 3)
     v = X - camera.centre_mm
@@ -285,7 +345,7 @@ def sphere_outline_px(camera: Camera, centres_mm: np.ndarray, radius_mm: float, 
     e2 = _cross(vh, e1)
     ang = np.linspace(0, 2 * np.pi, n, endpoint=False)
     pts = q[:, None] + rho[:, None] * (np.cos(ang)[None, :, None] * e1[:, None] + np.sin(ang)[None, :, None] * e2[:, None])
-    return camera.project(pts.reshape(-1, 3)).reshape(len(X), n, 2)
+    return (camera if rays is None else rays).project(pts.reshape(-1, 3)).reshape(len(X), n, 2)
 
 
 def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -357,7 +417,8 @@ def _ray_polygon_convex(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np
     rel = poly - c
     phi = np.arctan2(rel[:, 1], rel[:, 0])
     order = np.argsort(phi)
-    pos = np.searchsorted(phi[order], np.arctan2(dirs[:, 1], dirs[:, 0]))
+    ang = _RAY_DIRS_ATAN2 if dirs is _RAY_DIRS else np.arctan2(dirs[:, 1], dirs[:, 0])
+    pos = np.searchsorted(phi[order], ang)
     hi, lo = order[pos % m], order[(pos - 1) % m]
     # The edge runs from the earlier vertex of the pair in the polygon's own order.
     a = np.where((hi - lo) % m == 1, lo, hi)
@@ -972,7 +1033,7 @@ class BallDetector:
         self._zone_edge_half = self._zone_half & ~cv2.erode(zone_h, np.ones((3, 3), np.uint8)).astype(bool)
         ys, xs = np.nonzero(self._zone_half)
         self._zone_half_box = (int(xs.min()), int(ys.min()), int(xs.max()) + 1, int(ys.max()) + 1)
-        self._bg_half: tuple[int, np.ndarray] | None = None
+        self._bg_half: tuple[int, np.ndarray, tuple[np.ndarray, np.ndarray, np.ndarray]] | None = None
 
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
@@ -1061,18 +1122,35 @@ class BallDetector:
         for i in range(1, n):
             x0, y0, bw, bh = stats[i, :4]
             boxes.append((max(x0 * cs, 0), max(y0 * cs, 0), min((x0 + bw) * cs, w), min((y0 + bh) * cs, h)))
-        # Earlier detections outside the processed boxes are carried over.
+        # Earlier detections outside the processed boxes are carried over, and so are sharp
+        # balls inside a box whose own cells did not change (a ball at rest beside a moving
+        # one or under the cue's tip): they are left out of the box's foreground instead of
+        # being found and fitted again.
         prev = self._prev
-        inside = np.zeros(len(prev), bool)
+        inside = np.zeros((len(prev), len(boxes)), bool)
         if len(prev) and boxes:
             bx = np.array(boxes, float)  # (nb, 4) u0, v0, u1, v1
             u = np.array([r["u"] for r in prev], float)[:, None]
             v = np.array([r["v"] for r in prev], float)[:, None]
-            inside = np.any((bx[None, :, 0] <= u) & (u < bx[None, :, 2]) & (bx[None, :, 1] <= v) & (v < bx[None, :, 3]), axis=1)
-        rows = [r for r, gone in zip(prev, inside) if not gone]
-        for b in boxes:
-            rows += self._detect_box(img, b)
+            inside = (bx[None, :, 0] <= u) & (u < bx[None, :, 2]) & (bx[None, :, 1] <= v) & (v < bx[None, :, 3])
+        rows = [r for r, hit in zip(prev, inside) if not hit.any()]
+        still = [self._unchanged(r, changed) for r in prev]
+        for k, b in enumerate(boxes):
+            rows += self._detect_box(img, b, [r for r, hit, st in zip(prev, inside[:, k], still) if hit and st])
         return tuple(self._dedupe(rows))
+
+    def _unchanged(self, row: dict, changed: np.ndarray) -> bool:
+        """Whether a detection row is of a sharp ball none of whose change-grid cells
+        (``changed``, (H / cell, W / cell) bool) changed: the square of half side 1.5 of the
+        largest ball image radius round its centre's image, as far as the coarse outline
+        searches (the ball's outline and the cloth or shadow just outside it)."""
+        if row["blur_x"] or row["blur_y"]:
+            return False
+        cs = int(self.config.cell_px)
+        rad = 1.5 * self.r_max_px
+        j0, j1 = max(int((row["v"] - rad) // cs), 0), int((row["v"] + rad) // cs) + 1
+        i0, i1 = max(int((row["u"] - rad) // cs), 0), int((row["u"] + rad) // cs) + 1
+        return not changed[j0:j1, i0:i1].any()
 
     def _dedupe(self, rows: list[dict]) -> list[dict]:
         rows = sorted(rows, key=lambda r: -r["quality"])
@@ -1083,20 +1161,34 @@ class BallDetector:
         return out
 
     # -- candidates in a box --
-    def _components(self, img: np.ndarray, box) -> tuple[int, np.ndarray, np.ndarray]:
+    def _components(self, img: np.ndarray, box, known: list[dict] = ()) -> tuple[int, np.ndarray, np.ndarray]:
         """Foreground of the ball zone inside ``box`` = (u0, v0, u1, v1) px: ballness above the
-        threshold, opened by a 3 x 3 square, split into 8-connected components; (count, labels
-        (v1 - v0, u1 - u0) int32, stats as ``cv2.connectedComponentsWithStats``)."""
+        threshold, less the silhouettes of the ``known`` balls (detection rows carried over,
+        grown by 2 px for the blurred rim), opened by a 3 x 3 square, split into 8-connected
+        components; (count, labels (v1 - v0, u1 - u0) int32, stats as
+        ``cv2.connectedComponentsWithStats``)."""
         u0, v0, u1, v1 = box
         score = ballness(img[v0:v1, u0:u1], self.background.image[v0:v1, u0:u1])
         fg = ((score > self._score_thr) & self.zone[v0:v1, u0:u1]).astype(np.uint8)
+        if known:
+            gone = np.zeros_like(fg)
+            for r in known:
+                c = np.array([r["u"], r["v"]])
+                out = self.rays.sphere_outline(r["x"], r["y"], self.R) - c
+                out *= (1.0 + 2.0 / np.maximum(np.hypot(out[:, 0], out[:, 1]), 1.0))[:, None]
+                cv2.fillPoly(gone, [np.round(out + c - np.array([u0, v0])).astype(np.int32)], 1)
+            fg[gone > 0] = 0
         fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
         n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
         return n, lab, stats
 
-    def _detect_box(self, img: np.ndarray, box) -> list[dict]:
+    def _detect_box(self, img: np.ndarray, box, known: list[dict] = ()) -> list[dict]:
+        """Detection rows of the balls in ``box`` = (u0, v0, u1, v1) px, with the ``known``
+        balls (rows carried over, :meth:`_unchanged`) left out of its foreground and returned
+        among them: as they were, or refitted with their neighbours' rays left out where a
+        ball found in the box lies within ``_NEAR_R`` radii (:meth:`_refit_touching`)."""
         u0, v0, u1, v1 = box
-        n, lab, stats = self._components(img, box)
+        n, lab, stats = self._components(img, box, known)
         edge = self._zone_edge[v0:v1, u0:u1]
         h, w = img.shape[:2]
         seeds = []
@@ -1121,7 +1213,7 @@ class BallDetector:
                 # seeds are taken from the piece made whole within two ball diameters.
                 if not occluder:
                     occluder = bool(np.any(self._reaching(img)[(ys + by + v0) // 2, (xs + bx + u0) // 2]))
-                comp, origin, at_edge = self._whole_piece(img, xs + bx + u0, ys + by + v0)
+                comp, origin, at_edge = self._whole_piece(img, xs + bx + u0, ys + by + v0, known)
                 occluder |= at_edge
                 ys, xs = np.nonzero(comp)
             pts = np.column_stack([xs + origin[0], ys + origin[1]]).astype(float)
@@ -1134,17 +1226,36 @@ class BallDetector:
                 for q in found:
                     q["piece"] = (comp, origin)
             seeds += found
-        fits = [self._fit_one(img, s) for s in seeds]
+        fits = [self._fit_one(img, s) if self._worth_fitting(img, s) else None for s in seeds]
         for _ in range(_REMAINDER_ROUNDS):
             more = self._unexplained_seeds(seeds, fits)
             if not more:
                 break
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
-        crowns = self._crown_seeds(img, box, lab, stats, small, fits)
+        crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known))
         seeds += crowns
         fits += [self._fit_crown(img, s) for s in crowns]
-        return self._refit_touching(img, seeds, fits)
+        # A known ball beside a ball found here is refitted with it, as when both were found
+        # here (the local edge of each holds the other's rim); the others stand as they were.
+        found = np.array([[r["x"], r["y"]] for r in fits if r is not None and not (r["blur_x"] or r["blur_y"])]).reshape(-1, 2)
+        kept = []
+        for r in known:
+            if len(found) and np.min(np.hypot(found[:, 0] - r["x"], found[:, 1] - r["y"])) < _NEAR_R * self.R:
+                seeds.append({"uv": np.array([r["u"], r["v"]]), "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False})
+                fits.append(r)
+            else:
+                kept.append(r)
+        return kept + self._refit_touching(img, seeds, fits)
+
+    def _worth_fitting(self, img: np.ndarray, s: dict) -> bool:
+        """Whether a seed can pass the fit's last tests: a seed inside an arm or cue component
+        (strict) whose ring (:meth:`_ring_share`) is already covered beyond the share
+        :meth:`_isolated` allows, less ``_SEED_RING_SLACK``, is not fitted. The fitted centre
+        of such a seed lies within about a pixel of it (the deepest point of the ball's disc),
+        and a pixel moves the ring's crossings of the occluder's edge by about one of its 64
+        samples; most strict seeds are pieces of the arm or hand, whose fits all fail."""
+        return not s["strict"] or self._ring_share(img, s["uv"]) >= _ISOLATED_SHARE - _SEED_RING_SLACK
 
     def _crown_seeds(self, img: np.ndarray, box, lab: np.ndarray, stats: np.ndarray, small: list[int], fits: list[dict | None]) -> list[dict]:
         """Seeds (as :meth:`_seeds_of`) for balls of the cloth's own hue and brightness: the
@@ -1250,7 +1361,7 @@ class BallDetector:
             if len(sharp) < len(rows):
                 continue  # a streak's swept outline is not drawn here
             cen = np.array([[r["x"], r["y"], self.R] for r in sharp])
-            outl = sphere_outline_px(self.camera, cen, self.R, 32) - np.array(origin, float)
+            outl = sphere_outline_px(self.camera, cen, self.R, 32, self.rays) - np.array(origin, float)
             mask = np.zeros_like(rest)
             cv2.fillPoly(mask, [np.round(o).astype(np.int32) for o in outl], 1)
             rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
@@ -1343,16 +1454,16 @@ class BallDetector:
             widths.append(float(lo.max() - hi.max()))
         return bool(widths) and max(widths) >= 0.5 * R
 
-    def _whole_piece(self, img: np.ndarray, us: np.ndarray, vs: np.ndarray) -> tuple[np.ndarray, tuple[int, int], bool]:
-        """The foreground component (as in :meth:`_detect_box`) holding the pixels ``us``,
-        ``vs`` (int arrays, px) of a piece cut by its box, found in a window grown round the
-        piece by two ball diameters: (mask (h, w) uint8 cropped to the component, its origin
-        (u, v) px, whether it touches the ball zone's border)."""
+    def _whole_piece(self, img: np.ndarray, us: np.ndarray, vs: np.ndarray, known: list[dict] = ()) -> tuple[np.ndarray, tuple[int, int], bool]:
+        """The foreground component (as in :meth:`_detect_box`, ``known`` balls left out)
+        holding the pixels ``us``, ``vs`` (int arrays, px) of a piece cut by its box, found in a
+        window grown round the piece by two ball diameters: (mask (h, w) uint8 cropped to the
+        component, its origin (u, v) px, whether it touches the ball zone's border)."""
         H, W = img.shape[:2]
         g = int(math.ceil(2 * self.ball_px))
         wu0, wv0 = max(int(us.min()) - g, 0), max(int(vs.min()) - g, 0)
         wu1, wv1 = min(int(us.max()) + g + 1, W), min(int(vs.max()) + g + 1, H)
-        n, lab, stats = self._components(img, (wu0, wv0, wu1, wv1))
+        n, lab, stats = self._components(img, (wu0, wv0, wu1, wv1), known)
         hit = lab[vs - wv0, us - wu0]
         hit = hit[hit > 0]
         if len(hit) == 0:  # cannot happen (same pixels, same test), but keep the piece then
@@ -1375,12 +1486,16 @@ class BallDetector:
         if self._reach is not None and self._reach[0] is img:
             return self._reach[1]
         bg = self.background
-        if self._bg_half is None or self._bg_half[0] != bg.updates:
-            self._bg_half = (bg.updates, cv2.resize(bg.image, self._half_size, interpolation=cv2.INTER_AREA))
         a0, b0, a1, b1 = self._zone_half_box
+        if self._bg_half is None or self._bg_half[0] != bg.updates:
+            # The half-scale model of the zone's box and its own terms of the score, made once
+            # per update of the model (the frames between updates share them).
+            half = np.ascontiguousarray(cv2.resize(bg.image, self._half_size, interpolation=cv2.INTER_AREA)[b0:b1, a0:a1])
+            self._bg_half = (bg.updates, half, _background_terms(half))
         small = cv2.resize(img, self._half_size, interpolation=cv2.INTER_AREA)[b0:b1, a0:a1]
         zone = self._zone_half[b0:b1, a0:a1]
-        fg = ((ballness(small, self._bg_half[1][b0:b1, a0:a1]) > self._score_thr) & zone).astype(np.uint8)
+        score = _ballness(small.astype(np.float32), self._bg_half[1], *self._bg_half[2])
+        fg = ((score > self._score_thr) & zone).astype(np.uint8)
         n, lab = cv2.connectedComponents(fg, connectivity=8)
         hit = np.zeros(n, bool)
         hit[lab[self._zone_edge_half[b0:b1, a0:a1] & (fg > 0)]] = True
@@ -1395,7 +1510,7 @@ class BallDetector:
         a = len(pts)
         cen = pts.mean(axis=0)
         X = self.rays.backproject(cen[None], self.R)[0]
-        r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16)[0] - self.camera.project(X[None])[0], axis=1)))
+        r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16, self.rays)[0] - self.rays.project(X[None])[0], axis=1)))
         area_ball = math.pi * r_loc**2
         if not occluder and a <= 6 * area_ball:
             cov = np.cov((pts - cen).T) if a > 2 else np.eye(2)
@@ -1828,13 +1943,17 @@ class BallDetector:
         knuckle) is continued by the rest of the occluder and usually hides more; the bare
         rounded end of something exactly a ball wide hides 2 asin(1 / 1.4) (91 degrees) and is
         not told apart by this test."""
+        return self._ring_share(img, uv) >= _ISOLATED_SHARE
+
+    def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
+        """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background."""
         r = _RING_R * self.ball_px / 2
         a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
         mx = (uv[0] + r * np.cos(a)).astype(np.float32)[None]
         my = (uv[1] + r * np.sin(a)).astype(np.float32)[None]
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)[0]
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
-        return float(np.mean(ballness(f, b) < self._score_thr)) >= _ISOLATED_SHARE
+        return float(np.mean(ballness(f, b) < self._score_thr))
 
     def _identity(self, img: np.ndarray, uv: np.ndarray, r_px: float) -> tuple[str, str]:
         """Colour label and pattern from the pixels inside 0.88 of the ball's image radius
