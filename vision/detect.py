@@ -1317,13 +1317,15 @@ class BallDetector:
     def _refit_touching(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
         """Refit each sharp ball that has another sharp ball within ``_NEAR_R`` radii (centre to
         centre, table frame) with the rays toward its neighbours left out of the local edge
-        (:meth:`_fit_seed`'s ``avoid``), starting from its first fit; the refit stands when it
-        passes the same tests with at least the first fit's quality. Where two balls touch,
-        the local edge's sample bands round the contact hold the other ball's rim, so those
-        rays see a ball-to-ball step instead of ball-to-cloth, on one side of the sphere only,
-        and bias the centre by a few mm even under the Tukey weights (several such rays in a
-        row are not outliers to the biweight). Returns the detection rows (None fits
-        dropped)."""
+        (:meth:`_fit_seed`'s ``avoid``), starting from its first fit; the refit stands whenever
+        it passes the same tests, the first fit only when it does not (too little outline left,
+        or a test failed). Where two balls touch, the local edge's sample bands round the
+        contact hold the other ball's rim, so those rays see a ball-to-ball step instead of
+        ball-to-cloth, on one side of the sphere only, and bias the centre by a few mm even
+        under the Tukey weights (several such rays in a row are not outliers to the
+        biweight). The two fits' qualities are not comparable: the first fit's share of
+        agreeing rays and their RMS are measured partly on the neighbour's rim, where a fit
+        pulled towards it agrees best. Returns the detection rows (None fits dropped)."""
         sharp = [(i, r) for i, r in enumerate(fits) if r is not None and not (r["blur_x"] or r["blur_y"])]
         if len(sharp) < 2:
             return [r for r in fits if r is not None]
@@ -1338,7 +1340,7 @@ class BallDetector:
             again = self._fit_seed(img, start, avoid=xy[near])
             if again is None and not seeds[i]["strict"]:
                 again = self._fit_seed(img, start, shadows=False, avoid=xy[near])
-            if again is not None and again["quality"] >= r["quality"]:
+            if again is not None:
                 out[i] = again
         return [r for r in out if r is not None]
 
