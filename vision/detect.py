@@ -38,9 +38,9 @@ Method
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
    ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
-   half inside its box is not half a ball. A free piece that the balls fitted in it leave
-   mostly unexplained (more than a ball's area and half the piece: an arm, hand or cue whose
-   sleeve ends over the cloth) is an occluder too, and its balls are fitted again under the
+   half inside its box is not half a ball. A free piece of which the balls fitted in it
+   leave more than a ball's area unexplained (after the remainder's own seeds below: an arm,
+   hand or cue whose sleeve ends over the cloth) is an occluder too, and its balls are fitted again under the
    same stricter tests (:meth:`BallDetector._free_occluders`). Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). Small holes in a component (a highlight or mark of
@@ -1274,18 +1274,19 @@ class BallDetector:
         return out
 
     def _free_occluders(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict | None]:
-        """Fits (as ``fits``) with the balls of free pieces that are mostly something else
-        refitted as strict seeds (:meth:`_seeds_of`): a piece of foreground not reaching in
-        over the rail (seeds with ``piece``) of which what the fitted balls' outlines (sharp
-        or swept, grown by a pixel for the blurred rim, then opened by a 3 x 3 square) leave
-        is more than a ball's area and more than half the piece is an arm, hand or cue lying
-        free of the rail (its elbow or shoulder not in the zone's foreground): its rounded ends
-        (a bridge hand, the cue's butt, a bend of the sleeve) fit a sphere's outline over half
-        a turn, as a ball touching an arm that reaches in does, and must pass the same
-        stricter tests (a ring round the ball mostly free, a shorter gap in the outline).
-        Balls of a cluster leave little of their piece (their outlines explain it), a ball
-        touching a free arm leaves the arm and is refitted, as it would be were the arm reaching
-        in over the rail."""
+        """Fits (as ``fits``) with the balls of free pieces that hold something else refitted
+        as strict seeds (:meth:`_seeds_of`): a piece of foreground not reaching in over the rail
+        (seeds with ``piece``) of which what the fitted balls' outlines (sharp or swept, grown
+        by a pixel for the blurred rim, then opened by a 3 x 3 square) leave is more than the
+        largest ball's image area holds foreground no ball explains, after the remainder's own
+        seeds (:meth:`_unexplained_seeds`) have had their turn: an arm, hand or cue lying free
+        of the rail (its elbow or shoulder not in the zone's foreground). Its rounded ends (a
+        bridge hand, the cue's butt, a bend of the sleeve) fit a sphere's outline over half a
+        turn, as a ball touching an arm that reaches in does, and must pass the same stricter
+        tests (a ring round the ball mostly free, a shorter gap in the outline). Balls of a
+        cluster leave only rims of their piece; a ball touching a free arm leaves the arm and
+        is refitted, as it would be were the arm reaching in over the rail. A cluster holding
+        a ball that no fit explains (one of the limits below) is refitted so too."""
         pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
         for k, s in enumerate(seeds):
             if "piece" in s and fits[k] is not None:
@@ -1308,7 +1309,7 @@ class BallDetector:
             rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
             rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
             left = float(rest.sum())
-            if left <= area_ball or left <= 0.5 * float(comp.sum()):
+            if left <= area_ball:
                 continue
             for k in ks:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
