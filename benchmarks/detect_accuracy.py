@@ -19,10 +19,16 @@ clips these lie on the cue, hands and arms or in pockets, as no other objects ar
 true balls with no detection within a ball radius (missed; under the occluder too), and prints
 the detector's time per frame (median and mean, ms).
 
+With ``--by-ball`` the resting balls' errors are also broken down per scene and ball (frames,
+median and p95 error, median x and y components, truth position, pattern), worst first: a
+resting ball is detected once and carried over while nothing near it changes, so each ball is
+nearly one measurement and the median over balls rests on a handful of them.
+
 With ``--save DIR`` each scene's per-ball-frame table (truth ball id and position, error and its
 x, y components, mm) and its detections are written to ``DIR`` as CSV, for breakdowns.
 
-Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...] [--save DIR]`` or
+Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...] [--save DIR]
+[--by-ball]`` or
 ``.venv/bin/python benchmarks/detect_accuracy.py --clip cushion_check --frames 0 1200``.
 """
 
@@ -423,6 +429,7 @@ def main(argv=None) -> int:
     ap.add_argument("--only", nargs="*", default=None, help="scene names to run (default all)")
     ap.add_argument("--clip", default=None, help="a sample clip's name (sample_clips/NAME.mp4): count false and missed detections instead")
     ap.add_argument("--save", default=None, help="folder to write each scene's per-ball-frame errors (truth id, position, error) and detections to, as CSV")
+    ap.add_argument("--by-ball", action="store_true", help="also print the resting balls' errors per scene and ball")
     ap.add_argument("--frames", nargs=2, type=int, default=(0, 300), metavar=("FIRST", "LAST"), help="with --clip: the frames to score, FIRST to LAST - 1")
     args = ap.parse_args(argv)
     if args.clip:
@@ -457,6 +464,13 @@ def main(argv=None) -> int:
         m = g["err"].dropna()
         print(f"moving, {fps:.0f} fps 1/{1 / sh:.0f} s: median {m.median():.2f} mm, p95 {m.quantile(.95):.2f} mm, detected {100 * g['err'].notna().mean():.2f}% (n={len(g)})")
     print(f"detection rate where fully visible: {100 * vis['err'].notna().mean():.2f}% of {len(vis)} ball-frames")
+    if args.by_ball:
+        still = vis[(vis["speed"] < 1.0) & vis["err"].notna()]
+        table = still.groupby(["scene", "ball"]).agg(
+            frames=("err", "size"), median=("err", "median"), p95=("err", lambda e: e.quantile(0.95)),
+            dx=("dx", "median"), dy=("dy", "median"), x=("x", "median"), y=("y", "median"), pattern=("true_pattern", "first"))
+        print("resting balls per scene and ball (mm), worst first:")
+        print(table.sort_values("median", ascending=False).round(2).to_string())
     pat = vis[vis["err"].notna()]
     print("pattern confusion (rows truth, columns detected):")
     print(pd.crosstab(pat["true_pattern"], pat["pattern"]).to_string())

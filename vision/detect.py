@@ -41,8 +41,11 @@ Method
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
    ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
-   half inside its box is not half a ball. Once a free piece's seeds are fitted, what the
-   fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
+   half inside its box is not half a ball. A free piece of which the balls fitted in it
+   leave more than a ball's area unexplained (after the remainder's own seeds below: an arm,
+   hand or cue whose sleeve ends over the cloth) is an occluder too, and its balls are fitted again under the
+   same stricter tests (:meth:`BallDetector._free_occluders`). Once a free piece's seeds are
+   fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). Small holes in a component (a highlight or mark of
    the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
    fitted streak must fade in and out along its motion over about a ball's length, as a swept
@@ -1233,6 +1236,7 @@ class BallDetector:
                 break
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
+        fits = self._free_occluders(img, seeds, fits)
         crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known))
         seeds += crowns
         fits += [self._fit_crown(img, s) for s in crowns]
@@ -1380,16 +1384,60 @@ class BallDetector:
             out += [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False, "piece": (comp, origin)} for p in chosen]
         return out
 
+    def _free_occluders(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict | None]:
+        """Fits (as ``fits``) with the balls of free pieces that hold something else refitted
+        as strict seeds (:meth:`_seeds_of`): a piece of foreground not reaching in over the rail
+        (seeds with ``piece``) of which what the fitted balls' outlines (sharp or swept, grown
+        by a pixel for the blurred rim, then opened by a 3 x 3 square) leave is more than the
+        largest ball's image area holds foreground no ball explains, after the remainder's own
+        seeds (:meth:`_unexplained_seeds`) have had their turn: an arm, hand or cue lying free
+        of the rail (its elbow or shoulder not in the zone's foreground). Its rounded ends (a
+        bridge hand, the cue's butt, a bend of the sleeve) fit a sphere's outline over half a
+        turn, as a ball touching an arm that reaches in does, and must pass the same stricter
+        tests (a ring round the ball mostly free, a shorter gap in the outline). Balls of a
+        cluster leave only rims of their piece; a ball touching a free arm leaves the arm and
+        is refitted, as it would be were the arm reaching in over the rail. A cluster holding
+        a ball that no fit explains (one of the limits below) is refitted so too."""
+        pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
+        for k, s in enumerate(seeds):
+            if "piece" in s and fits[k] is not None:
+                comp, origin = s["piece"]
+                pieces.setdefault(id(comp), (comp, origin, []))[2].append(k)
+        if not pieces:
+            return fits
+        out = list(fits)
+        area_ball = math.pi * self.r_max_px**2
+        for comp, origin, ks in pieces.values():
+            mask = np.zeros_like(comp)
+            for k in ks:
+                r = fits[k]
+                travel = math.hypot(r["blur_x"], r["blur_y"])
+                # blur_* is the streak's whole travel plus a diameter (:meth:`_fit_seed`).
+                half = max(0.5 * travel - self.R, 0.0)
+                outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
+                cv2.fillPoly(mask, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
+            rest = comp.copy()
+            rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
+            rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+            left = float(rest.sum())
+            if left <= area_ball:
+                continue
+            for k in ks:
+                out[k] = self._fit_one(img, dict(seeds[k], strict=True))
+        return out
+
     def _refit_touching(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
         """Refit each sharp ball that has another sharp ball within ``_NEAR_R`` radii (centre to
         centre, table frame) with the rays toward its neighbours left out of the local edge
-        (:meth:`_fit_seed`'s ``avoid``), starting from its first fit; the refit stands when it
-        passes the same tests with at least the first fit's quality. Where two balls touch,
-        the local edge's sample bands round the contact hold the other ball's rim, so those
-        rays see a ball-to-ball step instead of ball-to-cloth, on one side of the sphere only,
-        and bias the centre by a few mm even under the Tukey weights (several such rays in a
-        row are not outliers to the biweight). Returns the detection rows (None fits
-        dropped)."""
+        (:meth:`_fit_seed`'s ``avoid``), starting from its first fit; the refit stands whenever
+        it passes the same tests, the first fit only when it does not (too little outline left,
+        or a test failed). Where two balls touch, the local edge's sample bands round the
+        contact hold the other ball's rim, so those rays see a ball-to-ball step instead of
+        ball-to-cloth, on one side of the sphere only, and bias the centre by a few mm even
+        under the Tukey weights (several such rays in a row are not outliers to the
+        biweight). The two fits' qualities are not comparable: the first fit's share of
+        agreeing rays and their RMS are measured partly on the neighbour's rim, where a fit
+        pulled towards it agrees best. Returns the detection rows (None fits dropped)."""
         sharp = [(i, r) for i, r in enumerate(fits) if r is not None and not (r["blur_x"] or r["blur_y"])]
         if len(sharp) < 2:
             return [r for r in fits if r is not None]
@@ -1404,7 +1452,7 @@ class BallDetector:
             again = self._fit_seed(img, start, avoid=xy[near])
             if again is None and not seeds[i]["strict"]:
                 again = self._fit_seed(img, start, shadows=False, avoid=xy[near])
-            if again is not None and again["quality"] >= r["quality"]:
+            if again is not None:
                 out[i] = again
         return [r for r in out if r is not None]
 
