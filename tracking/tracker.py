@@ -698,7 +698,18 @@ class Tracker:
         R = sigma**2 * np.eye(2)
         z = np.asarray(z, dtype=float)
         brk = False
-        if hyp == "jump":
+        if (pred["unseen_s"] > self._reid_s
+                and math.hypot(z[0] - pred["x"][0], z[1] - pred["x"][2]) > self.table.ball_diameter_mm):
+            # Found again by its labels after a long gap (``_assign``) and not where it would
+            # have rolled to (lifted and put down elsewhere): a difference or an update from
+            # where it was coasted to would give it a speed it never had. It starts again
+            # where it is seen, its velocity unknown, as a new track does. A ball seen again
+            # near its prediction (out from under a cue) keeps the filter's velocity.
+            sv = self.config.initial_speed_sigma_mm_s
+            tr.x = np.array([z[0], 0.0, z[1], 0.0])
+            tr.P = np.diag([R[0, 0], sv**2, R[1, 1], sv**2])
+            brk = True
+        elif hyp == "jump":
             self._restart_velocity(tr, pred, z, R)
             brk = True
         else:
