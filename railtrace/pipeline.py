@@ -166,7 +166,7 @@ def analyse_clip(
     }
     write_results(
         out, tracks, events, shots, calib_doc, overwrite=False, run_info=run_info,
-        extra_files={"detections.csv": detections.to_csv(index=False, float_format="%.4f")},
+        extra_files={"detections.csv": detections.to_csv(index=False, float_format="%.6f")},
     )
     done("writing")
     counts = events["kind"].value_counts() if len(events) else pd.Series(dtype=int)
