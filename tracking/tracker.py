@@ -688,9 +688,7 @@ class Tracker:
         prior: the velocity changed at an unknown instant of the last interval."""
         dt = max(pred["dt"], 1e-9)
         v = (z - pred["prev"]) / dt  # finite difference; later frames refine it
-        sv = max(self.config.initial_speed_sigma_mm_s, float(np.hypot(*v)))
-        tr.x = np.array([z[0], v[0], z[1], v[1]])
-        tr.P = np.diag([R[0, 0], sv**2, R[1, 1], sv**2])
+        tr.x, tr.P = _restarted(z, v, R[0, 0], self.config.initial_speed_sigma_mm_s)
 
     def _update(self, tr: _Track, pred: dict, hyp: str, z, sigma, frame, t) -> None:
         stated = float(sigma)
@@ -705,9 +703,7 @@ class Tracker:
             # where it was coasted to would give it a speed it never had. It starts again
             # where it is seen, its velocity unknown, as a new track does. A ball seen again
             # near its prediction (out from under a cue) keeps the filter's velocity.
-            sv = self.config.initial_speed_sigma_mm_s
-            tr.x = np.array([z[0], 0.0, z[1], 0.0])
-            tr.P = np.diag([R[0, 0], sv**2, R[1, 1], sv**2])
+            tr.x, tr.P = _restarted(z, np.zeros(2), R[0, 0], self.config.initial_speed_sigma_mm_s)
             brk = True
         elif hyp == "jump":
             self._restart_velocity(tr, pred, z, R)
@@ -750,21 +746,10 @@ class Tracker:
         r2 = stated * stated
         d2 = float(_mahalanobis2(z[None], x[0::2], P[0::2, 0::2], np.array([stated]))[0])
         if d2 > self._maneuver:
-            dt = max(pred["dt"], 1e-9)
-            v = (z - tr.sx[0::2]) / dt
-            sv = max(self.config.initial_speed_sigma_mm_s, float(np.hypot(*v)))
-            tr.sx = np.array([z[0], v[0], z[1], v[1]])
-            tr.sP = np.diag([r2, sv**2, r2, sv**2])
+            v = (z - tr.sx[0::2]) / max(pred["dt"], 1e-9)
+            tr.sx, tr.sP = _restarted(z, v, r2, self.config.initial_speed_sigma_mm_s)
             return True
-        PHt = P[:, 0::2]  # P H^T with H picking x and y
-        S = PHt[0::2] + r2 * np.eye(2)  # S = H P H^T + R
-        det = S[0, 0] * S[1, 1] - S[0, 1] * S[1, 0]
-        S_inv = np.array([[S[1, 1], -S[0, 1]], [-S[1, 0], S[0, 0]]]) / det
-        K = PHt @ S_inv  # K = P H^T S^-1
-        tr.sx = x + K @ (z - x[0::2])  # x = x + K (z - H x)
-        IKH = np.eye(4)
-        IKH[:, 0::2] -= K
-        tr.sP = IKH @ P @ IKH.T + r2 * (K @ K.T)  # Joseph form
+        tr.sx, tr.sP = _kalman_update(tr.kf, x, P, z, r2 * np.eye(2))
         return False
 
     def _coast(self, tr: _Track, pred: dict, frame, t) -> None:
@@ -941,6 +926,15 @@ class Tracker:
                 ("brk", "bool")]})
         return pd.concat(rows, ignore_index=True).sort_values(["frame", "track"]).reset_index(
             drop=True)
+
+
+def _restarted(z: np.ndarray, v: np.ndarray, r_var: float, min_speed_sigma: float) -> tuple[np.ndarray, np.ndarray]:
+    """A filter state started again at the position ``z`` (2,) mm of variance ``r_var`` mm^2 per
+    axis with the velocity ``v`` (2,) mm/s, whose spread is at least ``min_speed_sigma`` mm/s
+    and at least the speed itself (it changed at an unknown instant): ``x`` (4,) [x, vx, y, vy]
+    and ``P`` (4, 4)."""
+    sv = max(min_speed_sigma, float(np.hypot(*v)))
+    return np.array([z[0], v[0], z[1], v[1]]), np.diag([r_var, sv**2, r_var, sv**2])
 
 
 def _kalman_update(kf, x: np.ndarray, P: np.ndarray, z: np.ndarray,
