@@ -187,6 +187,21 @@ def test_arm_and_cue_are_not_detected():
         assert extra == 0, out
 
 
+def _film_stroke(cam, ren, at: np.ndarray, t0: float, t1: float) -> tuple[list[int], list[int]]:
+    """Per frame, the extra and the missed detections of the two balls ``at`` (2, 2) mm filmed
+    by ``ren``: first an empty table (the model), then 60 fps from ``t0`` to ``t1`` s about a
+    strike at 1.5 s (the player appears 1.2 s before the strike and has slid in 0.95 s before)."""
+    det = BallDetector(cam, NINE_FOOT)
+    times = [0.0] + list(1.5 + np.arange(t0, t1, 1 / 60))
+    extra, missed = [], []
+    for i, t in enumerate(times):
+        out = det.process(i, t, ren.render(at[None], _rot(2), np.ones((1, 2), bool), np.array([t])))
+        err, _ = _match(out, at)
+        missed.append(int(np.sum(~np.isfinite(err))))
+        extra.append(len(out) - int(np.isfinite(err).sum()))
+    return extra, missed
+
+
 @pytest.mark.parametrize("phase,t0,t1", [("sliding in", -1.2, -0.9), ("settled, practice stroke", -0.9, -0.45)])
 def test_arm_and_hand_over_blue_cloth_give_no_ball(phase, t0, t1):
     # A blue cloth and a skin-coloured hand, as in the cushion check. Sliding in, the bridge
@@ -201,16 +216,7 @@ def test_arm_and_hand_over_blue_cloth_give_no_ball(phase, t0, t1):
     occ = Occluder((CueStroke(1.5, (1200.0, 500.0), math.radians(-60.0)),))
     balls = (BALLS[0], BallLook("3", "solid", (30, 40, 200)))
     ren = Renderer(NINE_FOOT, cam, look, balls, occluder=occ, seed=4)
-    det = BallDetector(cam, NINE_FOOT)
-    # First an empty table (the model), then 60 fps through the phase (the player appears
-    # 1.2 s before the strike and has slid in 0.95 s before it).
-    times = [0.0] + list(1.5 + np.arange(t0, t1, 1 / 60))
-    extra, missed = [], []
-    for i, t in enumerate(times):
-        out = det.process(i, t, ren.render(at[None], _rot(2), np.ones((1, 2), bool), np.array([t])))
-        err, _ = _match(out, at)
-        missed.append(int(np.sum(~np.isfinite(err))))
-        extra.append(len(out) - int(np.isfinite(err).sum()))
+    extra, missed = _film_stroke(cam, ren, at, t0, t1)
     assert sum(extra) == 0, (phase, extra)
     assert sum(missed) == 0, (phase, missed)
 
@@ -851,13 +857,6 @@ def test_arm_lying_free_of_the_rail_gives_no_ball(phase, t0, t1):
     occ = Occluder((CueStroke(1.5, (2132.5, 711.7), math.radians(20.0)),))
     balls = (BALLS[0], BallLook("3", "solid", (30, 40, 200)))
     ren = Renderer(NINE_FOOT, cam, look, balls, occluder=occ, seed=6)
-    det = BallDetector(cam, NINE_FOOT)
-    times = [0.0] + list(1.5 + np.arange(t0, t1, 1 / 60))
-    extra, missed = [], []
-    for i, t in enumerate(times):
-        out = det.process(i, t, ren.render(at[None], _rot(2), np.ones((1, 2), bool), np.array([t])))
-        err, _ = _match(out, at)
-        missed.append(int(np.sum(~np.isfinite(err))))
-        extra.append(len(out) - int(np.isfinite(err).sum()))
+    extra, missed = _film_stroke(cam, ren, at, t0, t1)
     assert sum(extra) == 0, (phase, extra)
     assert sum(missed) == 0, (phase, missed)
