@@ -1399,22 +1399,20 @@ class _Finder:
         seen = np.flatnonzero(np.isfinite(b.raw[:, 0]))
         gone = seen[(np.append(b.t[seen[1:]], np.inf) - b.t[seen] >= cfg.fit_window_s)
                     & (b.t[seen] + cfg.fit_window_s <= self.t_end)]
+        # Per rail: inward normal, normal axis and reversal line (mm).
+        lines = [(rail, np.asarray(rail_inward_normal(rail)), 1 if rail in ("bottom", "top") else 0,
+                  self.table.reversal_line(rail)) for rail in RAILS]
         for i0, i1 in b.moves:
             # A ball last seen running into a rail at its reversal line touched it there
             # (``cushion`` then solves it from the approach alone, ``_arrival``).
             for j in gone[(gone >= i0) & (gone <= i1)]:
-                for rail in RAILS:
-                    n = np.asarray(rail_inward_normal(rail))
-                    ax = 1 if rail in ("bottom", "top") else 0
+                for rail, n, ax, c in lines:
                     vn = float(b.v[j] @ n)
-                    dist = (b.p[j, ax] - self.table.reversal_line(rail)) * n[ax]
+                    dist = (b.p[j, ax] - c) * n[ax]
                     if vn < -vmin and dist <= cfg.cushion_reach_mm - vn * self.dt:
                         out.append((float(b.t[j]), rail))
                         self.arrivals.setdefault(b.track, set()).add(float(b.t[j]))
-            for rail in RAILS:
-                n = np.asarray(rail_inward_normal(rail))
-                c = self.table.reversal_line(rail)
-                ax = 1 if rail in ("bottom", "top") else 0
+            for rail, n, ax, c in lines:
                 vn = b.v[i0:i1 + 1] @ n  # > 0 away from the rail
                 dist = (b.p[i0:i1 + 1, ax] - c) * n[ax]  # >= 0 on the cloth side of the line
                 for k in range(1, len(vn)):
