@@ -76,5 +76,6 @@ def test_real_collisions_pass_the_momentum_balance(cut_deg):
 
 
 def test_collision_balance_is_validated():
-    with pytest.raises(ValueError, match="collision_min_balance"):
-        EventConfig(collision_min_balance=1.5)
+    for bad in (1.5, 0.0, -0.25):
+        with pytest.raises(ValueError, match="collision_min_balance"):
+            EventConfig(collision_min_balance=bad)

@@ -241,7 +241,7 @@ class EventConfig:
         if self.rest_speed_mm_s >= self.move_speed_mm_s:
             raise ValueError(f"rest_speed_mm_s {self.rest_speed_mm_s} must be below "
                              f"move_speed_mm_s {self.move_speed_mm_s}")
-        if self.collision_min_balance > 1:
+        if not 0.0 < self.collision_min_balance <= 1.0:
             raise ValueError(f"EventConfig.collision_min_balance = {self.collision_min_balance!r} "
                              "must be a share in (0, 1], e.g. 0.25")
         if self.quadratic_min_samples < 3:
