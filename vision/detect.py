@@ -1360,9 +1360,16 @@ class BallDetector:
                 # Nothing fitted (the same seeds would come again), or more than a small
                 # cluster's worth of foreground (a cue or hand lying free of the rail).
                 continue
-            if any(r["blur_x"] or r["blur_y"] for r in rows):
+            rest = comp.copy()
+            sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
+            if len(sharp) < len(rows):
                 continue  # a streak's swept outline is not drawn here
-            rest = self._unexplained(comp, origin, rows)
+            cen = np.array([[r["x"], r["y"], self.R] for r in sharp])
+            outl = sphere_outline_px(self.camera, cen, self.R, 32, self.rays) - np.array(origin, float)
+            mask = np.zeros_like(rest)
+            cv2.fillPoly(mask, [np.round(o).astype(np.int32) for o in outl], 1)
+            rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
+            rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
             if rest.sum() < 0.5 * area_min:
                 continue
             dtm = cv2.distanceTransform(rest, cv2.DIST_L2, 5)
@@ -1376,21 +1383,6 @@ class BallDetector:
                     chosen.append(p)
             out += [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False, "piece": (comp, origin)} for p in chosen]
         return out
-
-    def _unexplained(self, comp: np.ndarray, origin, rows: list[dict]) -> np.ndarray:
-        """What of a free piece ``comp`` ((h, w) uint8, its pixel (0, 0) at ``origin`` (u, v)
-        px) the balls of detection ``rows`` leave: the piece less their outlines (sharp, or
-        swept along a streak, :func:`_swept_outline_px`) grown by a pixel for the blurred rim,
-        opened by a 3 x 3 square; (h, w) uint8."""
-        mask = np.zeros_like(comp)
-        for r in rows:
-            # blur_* is the streak's whole travel plus a diameter (:meth:`_fit_seed`).
-            half = max(0.5 * math.hypot(r["blur_x"], r["blur_y"]) - self.R, 0.0)
-            outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
-            cv2.fillPoly(mask, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
-        rest = comp.copy()
-        rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
-        return cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
 
     def _free_occluders(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict | None]:
         """Fits (as ``fits``) with the balls of free pieces that hold something else refitted
@@ -1416,7 +1408,19 @@ class BallDetector:
         out = list(fits)
         area_ball = math.pi * self.r_max_px**2
         for comp, origin, ks in pieces.values():
-            if float(self._unexplained(comp, origin, [fits[k] for k in ks]).sum()) <= area_ball:
+            mask = np.zeros_like(comp)
+            for k in ks:
+                r = fits[k]
+                travel = math.hypot(r["blur_x"], r["blur_y"])
+                # blur_* is the streak's whole travel plus a diameter (:meth:`_fit_seed`).
+                half = max(0.5 * travel - self.R, 0.0)
+                outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
+                cv2.fillPoly(mask, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
+            rest = comp.copy()
+            rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
+            rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+            left = float(rest.sum())
+            if left <= area_ball:
                 continue
             for k in ks:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
