@@ -20,7 +20,9 @@ true balls with no detection within a ball radius (missed; under the occluder to
 the detector's time per frame (median and mean, ms).
 
 With ``--by-ball`` the resting balls' errors are also broken down per scene and ball (frames,
-median and p95 error, median x and y components, truth position, pattern), worst first: a
+median and p95 error, median x and y components, truth position, pattern, gaps to the nearest
+other ball and cushion), worst first, and summed up for the balls clear of both by over 10 mm
+and for the rest (touching, frozen to a cushion or nearly so): a
 resting ball is detected once and carried over while nothing near it changes, so each ball is
 nearly one measurement and the median over balls rests on a handful of them.
 
@@ -351,6 +353,7 @@ def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
     for f, g in tr.groupby("frame"):
         d = by_frame.get(f)
         P = g[["x", "y"]].to_numpy()
+        ball_gap, rail_gap = _gaps(P, table)
         matched_t, matched_d = set(), set()
         if d is not None and len(d):
             Q = d[["x", "y"]].to_numpy()
@@ -360,12 +363,12 @@ def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
                 if D[a, b] < gate:
                     matched_t.add(a)
                     matched_d.add(b)
-                    rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), D[a, b], bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a], P[a, 0], P[a, 1], Q[b, 0] - P[a, 0], Q[b, 1] - P[a, 1]))
+                    rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), D[a, b], bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a], P[a, 0], P[a, 1], Q[b, 0] - P[a, 0], Q[b, 1] - P[a, 1], ball_gap[a], rail_gap[a]))
             for b in set(range(len(Q))) - matched_d:
                 false_rows.append((f, Q[b, 0], Q[b, 1], bool(g["hidden"].any())))
         for a in set(range(len(P))) - matched_t:
-            rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), np.nan, bool(g["hidden"].iloc[a]), "", g["pattern"].iloc[a], P[a, 0], P[a, 1], np.nan, np.nan))
-    E = pd.DataFrame(rows, columns=["frame", "ball", "speed", "err", "hidden", "pattern", "true_pattern", "x", "y", "dx", "dy"])
+            rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), np.nan, bool(g["hidden"].iloc[a]), "", g["pattern"].iloc[a], P[a, 0], P[a, 1], np.nan, np.nan, ball_gap[a], rail_gap[a]))
+    E = pd.DataFrame(rows, columns=["frame", "ball", "speed", "err", "hidden", "pattern", "true_pattern", "x", "y", "dx", "dy", "ball_gap", "rail_gap"])
     F = pd.DataFrame(false_rows, columns=["frame", "x", "y", "occluder_active"])
     pockets = np.array([p.mouth_centre for p in table.pockets()])
     if len(F):
@@ -378,6 +381,17 @@ def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
         E.to_csv(save / f"{name}.errors.csv", index=False)
         det.to_csv(save / f"{name}.detections.csv", index=False)
     return {"name": name, "errors": E, "false": F, "fps": scene.camera and scene.film.fps, "shutter": scene.film.shutter_s, "seconds": elapsed, "frames": int(tr["frame"].max()) + 1}
+
+
+def _gaps(P: np.ndarray, table) -> tuple[np.ndarray, np.ndarray]:
+    """For true centres (N, 2) mm of one frame: each ball's gap (mm) to the nearest other ball
+    (centre distance less a diameter; inf when alone) and to the nearest cushion (its centre's
+    distance in from the reversal line, where a ball frozen to the cushion rests)."""
+    D = np.linalg.norm(P[:, None] - P[None], axis=2)
+    np.fill_diagonal(D, np.inf)
+    ball_gap = D.min(axis=1, initial=np.inf) - 2 * table.radius_mm
+    nose = np.minimum.reduce([P[:, 0], table.length_mm - P[:, 0], P[:, 1], table.width_mm - P[:, 1]])
+    return ball_gap, nose - table.reversal_offset_mm
 
 
 def sample_clip(name: str, first: int, last: int) -> int:
@@ -419,6 +433,11 @@ def sample_clip(name: str, first: int, last: int) -> int:
     return 0
 
 
+# Gap (mm) beyond which --by-ball counts a resting ball as clear of other balls and cushions:
+# a few pixels at the usual 2 mm per pixel, beyond the local edge's sample bands.
+_CLEAR_MM = 10.0
+
+
 def _q(s: pd.Series, q: float) -> str:
     return f"{s.quantile(q):6.2f}" if len(s) else "   n/a"
 
@@ -429,7 +448,7 @@ def main(argv=None) -> int:
     ap.add_argument("--only", nargs="*", default=None, help="scene names to run (default all)")
     ap.add_argument("--clip", default=None, help="a sample clip's name (sample_clips/NAME.mp4): count false and missed detections instead")
     ap.add_argument("--save", default=None, help="folder to write each scene's per-ball-frame errors (truth id, position, error) and detections to, as CSV")
-    ap.add_argument("--by-ball", action="store_true", help="also print the resting balls' errors per scene and ball")
+    ap.add_argument("--by-ball", action="store_true", help="also print the resting balls' errors per scene and ball (with gaps to the nearest ball and cushion), and over the balls clear of both and the rest")
     ap.add_argument("--frames", nargs=2, type=int, default=(0, 300), metavar=("FIRST", "LAST"), help="with --clip: the frames to score, FIRST to LAST - 1")
     args = ap.parse_args(argv)
     if args.clip:
@@ -468,9 +487,14 @@ def main(argv=None) -> int:
         still = vis[(vis["speed"] < 1.0) & vis["err"].notna()]
         table = still.groupby(["scene", "ball"]).agg(
             frames=("err", "size"), median=("err", "median"), p95=("err", lambda e: e.quantile(0.95)),
-            dx=("dx", "median"), dy=("dy", "median"), x=("x", "median"), y=("y", "median"), pattern=("true_pattern", "first"))
-        print("resting balls per scene and ball (mm), worst first:")
+            dx=("dx", "median"), dy=("dy", "median"), x=("x", "median"), y=("y", "median"), pattern=("true_pattern", "first"),
+            ball_gap=("ball_gap", "median"), rail_gap=("rail_gap", "median"))
+        print("resting balls per scene and ball (mm; ball_gap, rail_gap: to the nearest ball and cushion), worst first:")
         print(table.sort_values("median", ascending=False).round(2).to_string())
+        clear = (still["ball_gap"] > _CLEAR_MM) & (still["rail_gap"] > _CLEAR_MM)
+        for what, sel in ((f"clear of other balls and cushions by over {_CLEAR_MM:.0f} mm", clear), ("touching or near another ball or a cushion", ~clear)):
+            e = still.loc[sel, "err"]
+            print(f"resting balls {what}: median {e.median():.2f} mm, p95 {e.quantile(.95):.2f} mm (n={len(e)} ball-frames of {still.loc[sel].groupby(['scene', 'ball']).ngroups} balls; a ball passed by another may count in both)")
     pat = vis[vis["err"].notna()]
     print("pattern confusion (rows truth, columns detected):")
     print(pd.crosstab(pat["true_pattern"], pat["pattern"]).to_string())
