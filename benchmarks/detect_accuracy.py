@@ -27,7 +27,8 @@ resting ball is detected once and carried over while nothing near it changes, so
 nearly one measurement and the median over balls rests on a handful of them.
 
 With ``--save DIR`` each scene's per-ball-frame table (truth ball id and position, error and its
-x, y components, mm) and its detections are written to ``DIR`` as CSV, for breakdowns.
+x, y components, gaps to the nearest other ball and cushion, mm) and its detections are written
+to ``DIR`` as CSV, for breakdowns.
 
 Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...] [--save DIR]
 [--by-ball]`` or
