@@ -248,7 +248,7 @@ def main(argv: list[str] | None = None) -> int:
                 timing = run_clip(name, folder, out_root / name, args.reuse, args.auto_calibration)
             except CalibrationError as exc:
                 # A refusal is a result too (footage the calibration cannot read); say so and go on.
-                figs["calibration"] = f"refused: {exc}"
+                figs["calibration"] = "refused (message above)"
                 table[name] = figs
                 print(f"{name}: automatic calibration refused: {exc}", flush=True)
                 continue
