@@ -475,6 +475,28 @@ def test_doubtful_cue_label_at_a_collision_keeps_identity():
     assert np.max(errs["cue"]) < 25.0  # a jump to the object ball would be a diameter or more
 
 
+def test_cue_ball_misread_as_stripe_stays_one_track():
+    # A rolling cue ball read as a stripe, with a sure-looking quality (0.7), in every frame of
+    # a 0.6 s stretch, as blur or dim light makes a detector do. Followed frame by frame, its
+    # motion says which detection is it: one track for the ball, seen in every frame (common
+    # practice), not one coasting beside its own detections until it ends and another after.
+    fps = 60.0
+    times = np.arange(int(1.5 * fps)) / fps
+    # Rolling at 0.6 m/s under rolling resistance mu_r 0.01 (Alciatore 2004 [secondary]).
+    cue = decel_path((400.0, 500.0), 10.0, 600.0, 0.01 * G)
+    obj = _still((2000.0, 1000.0))
+    det = detections({"cue": cue, "obj": obj}, times, np.random.default_rng(31), noise_mm=1.0,
+                     labels={"cue": ("white", "cue"), "obj": ("red", "solid")})
+    misread = (det["truth"] == "cue") & det["frame"].between(30, 66)
+    det.loc[misread, ["pattern", "colour", "quality"]] = ["stripe", "", 0.7]
+    tr = track(det, TABLE)
+    ids, errs = match_tracks(tr, {"cue": cue, "obj": obj}, times)
+    assert tr["track"].nunique() == 2
+    g = tr[tr["track"] == ids["cue"]]
+    assert len(g) == len(times) and bool(g["seen"].all())
+    assert np.max(errs["cue"]) < 5.0  # detection noise 1 mm; a jump would be a diameter
+
+
 def test_coasting_false_track_does_not_take_over_a_bouncing_ball():
     # A false track (a hand sweeping over the cloth at 2-3 m/s, seen for 6 frames) coasts on
     # unseen; its prediction, spread by 0.4 s of coasting, crosses a ball just as the ball

@@ -49,9 +49,13 @@ Method
   detections the earlier ones left, so a coasting track's spreading prediction never out-bids a
   ball followed frame by frame.
 
-  Colour and pattern mismatches add to the cost; a ``cue`` pattern detection never goes to an
-  object track (nor a solid/stripe one to the cue track) unless its quality is below
-  ``label_min_quality``, when the mismatch only costs. A track unseen for longer than its gate
+  Colour and pattern mismatches add to the cost of a ball followed frame by frame, whatever the
+  detection's quality: its own motion says which detection is it, and the detector's cue/object
+  label, sure as it may state it, is wrong on a blurred or dimly lit cue ball often enough (read
+  as a stripe in a quarter to half of its detections on the extra rendered clips of
+  ``benchmarks/analyse_accuracy.py --extra``) that forbidding the pair lost the ball for as long
+  as the misreading lasted, or handed it to another ball at a collision. A track unseen for
+  longer than its gate
   takes to outgrow a ball (``sqrt(2 d / (sqrt(chi2) sigma_a))`` for diameter ``d``, about
   0.12 s) is found again only by a detection whose labels confirm it: sure (quality at least
   ``label_min_quality``, or the lower quartile of the ball's own detections' where that is
@@ -153,9 +157,7 @@ class TrackerConfig:
     of the ball it was (see ``Tracker``); the events' ``move_speed_mm_s`` scale, above the
     velocity noise of a resting track. ``respot_settle_s``: age below which a track is not
     yet taken for a ball in that test (common practice: a hand hovers for well under a second).
-    ``label_min_quality``: below this detector quality a detection's cue/object label only costs
-    ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
-    balls merge or an edge blurs, and so does its labelling); it is also the quality a
+    ``label_min_quality``: the quality a
     detection needs to find a ball again after a long gap, and a put-down ball's detections to
     take back its id (``Tracker._respotted``), unless the ball's own detections were mostly
     less sure (``Tracker._sure_quality``).
@@ -626,28 +628,28 @@ class Tracker:
         colours = np.asarray(colours, dtype=object)
         is_cue = patterns == "cue"
         is_obj = (patterns == "solid") | (patterns == "stripe")
-        confident = quality >= cfg.label_min_quality
         known_colour = colours != ""
         for i, tr in enumerate(group):
             pr = preds[tr.key]
             kind = tr.kind()
             colour = tr.label(tr.colours, "")
             tp = tr.label(tr.patterns, "unknown")
-            # A confident label of the other kind forbids the pair; a doubtful detection's (two
-            # balls seen as one, a blurred edge) only costs like a solid/stripe mismatch. A
-            # ball unseen for longer than `_reid_s` is found again by its labels, not by
-            # position: its gate has spread past a ball, and what shows up in it is as likely
-            # the hand that lifted it or puts it down as the ball itself (Wojke et al. 2017:
-            # motion for short-term association, appearance to recover an identity after a
-            # long occlusion).
+            # A label of the other kind only costs like a solid/stripe mismatch while the ball is
+            # followed: its motion decides, and a sure-looking label can be wrong (a blurred or
+            # dim cue ball read as a stripe), where forbidding the pair left the ball coasting
+            # beside its own detections until it ended. A ball unseen for longer than `_reid_s`
+            # is found again by its labels, not by position: its gate has spread past a ball,
+            # and what shows up in it is as likely the hand that lifted it or puts it down as the
+            # ball itself (Wojke et al. 2017: motion for short-term association, appearance to
+            # recover an identity after a long occlusion).
             clash = is_cue if kind == "object" else is_obj if kind == "cue" else np.zeros(D, bool)
-            forbid = clash & confident
+            forbid = np.zeros(D, bool)
             if kind != "unknown" and pr["unseen_s"] > self._reid_s:
                 own = is_cue if kind == "cue" else is_obj & ((patterns == tp) | (tp == "unknown"))
                 ok = own & (quality >= self._sure_quality([tr]))
                 if colour:
                     ok &= ~known_colour | (colours == colour)
-                forbid |= ~ok
+                forbid = ~ok
             ident = cfg.pattern_cost * clash
             if colour:
                 ident += cfg.colour_cost * (known_colour & (colours != colour))
