@@ -457,9 +457,8 @@ def test_put_down_ball_takes_no_ambiguous_or_moving_id():
 def test_doubtful_cue_label_at_a_collision_keeps_identity():
     # The object ball was hidden (under the arm) until the cue ball struck it, and in the first
     # frames after the contact the detector, unsure where the two balls merge in its view
-    # (quality 0.37), calls the cue ball a stripe. A confident stripe label is forbidden to the
-    # cue track; this doubtful one only costs, so the cue track keeps its own ball and does not
-    # jump to the object ball appearing beside it.
+    # (quality 0.37), calls the cue ball a stripe. The label only costs, so the cue track keeps
+    # its own ball and does not jump to the object ball appearing beside it.
     fps = 60.0
     times = np.arange(int(1.0 * fps)) / fps
     t_c = 0.5 + 0.3 / fps
