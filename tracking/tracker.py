@@ -11,7 +11,7 @@ t           presentation time of the frame, s                                   
 x, y        ball centre, mm                                                             yes
 sigma_mm    standard deviation of the centre per axis, mm (NaN/absent: ``meas_sigma_mm``) no
 quality     detector confidence 0..1 (else 1); below ``birth_min_quality`` a detection no
-            can feed a track but never start one
+            can feed a track along its path but never start one nor turn it (a jump)
 colour      colour label, "" unknown                                                    no
 pattern     ``cue``, ``solid``, ``stripe`` or ``unknown``                               no
 =========== =========================================================================== ========
@@ -39,9 +39,11 @@ Method
     normal component scaled by a nominal restitution), offered when the plain prediction has
     crossed that line along a cushion (not in a pocket mouth);
   - *jump*: a detection within ``max_speed_mm_s * dt`` of the ball's previous position, for the
-    velocity jumps of cue strikes and collisions. It always costs more than any gated prediction
-    and grows with the distance from the previous position, so at a collision each ball keeps the
-    detection nearest to where it was (balls cannot pass through each other).
+    velocity jumps of cue strikes and collisions, if it is sure enough to start a track
+    (``birth_min_quality``): a doubtful one off the ball's path (the dark of a pocket mouth
+    beside a ball dropping in) would turn the ball there. It always costs more than any gated
+    prediction and grows with the distance from the previous position, so at a collision each
+    ball keeps the detection nearest to where it was (balls cannot pass through each other).
 
   The assignment runs as a matching cascade (Wojke, Bewley & Paulus 2017, "Simple online and
   realtime tracking with a deep association metric"): confirmed tracks seen in the previous
@@ -150,7 +152,8 @@ class TrackerConfig:
     assignment cost (chi-square units) of a colour or solid/stripe mismatch. ``coast_s``: longest
     gap a track survives undetected. ``confirm_hits`` in ``confirm_window`` frames confirm a new
     track; ``tentative_max_misses`` consecutive misses drop an unconfirmed one.
-    ``birth_min_quality``: lowest detector quality that may start a track. ``pocket_reach_mm``:
+    ``birth_min_quality``: lowest detector quality that may start a track or turn one (a
+    jump). ``pocket_reach_mm``:
     a track last seen within this of a pocket mouth ended in the pocket.
     ``respot_rest_speed_mm_s``: a new track confirmed while it and every ball seen in that frame
     are slower than this (filtered speed) is a ball put down by hand, and may take back the id
@@ -669,7 +672,10 @@ class Tracker:
                 math.sqrt(np.trace(pr["prev_P"])) + sig)
             dist = np.hypot(*(Z - pr["prev"]).T)
             cj = g + g * (dist / reach) ** 2  # above every gated prediction, nearer is cheaper
-            ok = (dist <= reach) & (hyps[i] == _NO_HYP)
+            # A turn needs a detection as sure as one that may start a track: a doubtful one
+            # off the path (a pocket's dark mouth beside a ball dropping in) would turn the
+            # ball's velocity there and the next detection turn it back.
+            ok = (dist <= reach) & (hyps[i] == _NO_HYP) & (quality >= cfg.birth_min_quality)
             cost[i, ok] = cj[ok]
             hyps[i, ok] = _JUMP
             cost[i] += ident
