@@ -11,7 +11,7 @@ t           presentation time of the frame, s                                   
 x, y        ball centre, mm                                                             yes
 sigma_mm    standard deviation of the centre per axis, mm (NaN/absent: ``meas_sigma_mm``) no
 quality     detector confidence 0..1 (else 1); below ``birth_min_quality`` a detection no
-            can feed a track but never start one
+            can feed a track along its path but never start one nor turn it (a jump)
 colour      colour label, "" unknown                                                    no
 pattern     ``cue``, ``solid``, ``stripe`` or ``unknown``                               no
 =========== =========================================================================== ========
@@ -39,9 +39,11 @@ Method
     normal component scaled by a nominal restitution), offered when the plain prediction has
     crossed that line along a cushion (not in a pocket mouth);
   - *jump*: a detection within ``max_speed_mm_s * dt`` of the ball's previous position, for the
-    velocity jumps of cue strikes and collisions. It always costs more than any gated prediction
-    and grows with the distance from the previous position, so at a collision each ball keeps the
-    detection nearest to where it was (balls cannot pass through each other).
+    velocity jumps of cue strikes and collisions, if it is sure enough to start a track
+    (``birth_min_quality``): a doubtful one off the ball's path (the dark of a pocket mouth
+    beside a ball dropping in) would turn the ball there. It always costs more than any gated
+    prediction and grows with the distance from the previous position, so at a collision each
+    ball keeps the detection nearest to where it was (balls cannot pass through each other).
 
   The assignment runs as a matching cascade (Wojke, Bewley & Paulus 2017, "Simple online and
   realtime tracking with a deep association metric"): confirmed tracks seen in the previous
@@ -49,9 +51,13 @@ Method
   detections the earlier ones left, so a coasting track's spreading prediction never out-bids a
   ball followed frame by frame.
 
-  Colour and pattern mismatches add to the cost; a ``cue`` pattern detection never goes to an
-  object track (nor a solid/stripe one to the cue track) unless its quality is below
-  ``label_min_quality``, when the mismatch only costs. A track unseen for longer than its gate
+  Colour and pattern mismatches add to the cost of a ball followed frame by frame, whatever the
+  detection's quality: its own motion says which detection is it, and the detector's cue/object
+  label, sure as it may state it, is wrong on a blurred or dimly lit cue ball often enough (read
+  as a stripe in a quarter to half of its detections on the extra rendered clips of
+  ``benchmarks/analyse_accuracy.py --extra``) that forbidding the pair lost the ball for as long
+  as the misreading lasted, or handed it to another ball at a collision. A track unseen for
+  longer than its gate
   takes to outgrow a ball (``sqrt(2 d / (sqrt(chi2) sigma_a))`` for diameter ``d``, about
   0.12 s) is found again only by a detection whose labels confirm it: sure (quality at least
   ``label_min_quality``, or the lower quartile of the ball's own detections' where that is
@@ -146,16 +152,15 @@ class TrackerConfig:
     assignment cost (chi-square units) of a colour or solid/stripe mismatch. ``coast_s``: longest
     gap a track survives undetected. ``confirm_hits`` in ``confirm_window`` frames confirm a new
     track; ``tentative_max_misses`` consecutive misses drop an unconfirmed one.
-    ``birth_min_quality``: lowest detector quality that may start a track. ``pocket_reach_mm``:
+    ``birth_min_quality``: lowest detector quality that may start a track or turn one (a
+    jump). ``pocket_reach_mm``:
     a track last seen within this of a pocket mouth ended in the pocket.
     ``respot_rest_speed_mm_s``: a new track confirmed while it and every ball seen in that frame
     are slower than this (filtered speed) is a ball put down by hand, and may take back the id
     of the ball it was (see ``Tracker``); the events' ``move_speed_mm_s`` scale, above the
     velocity noise of a resting track. ``respot_settle_s``: age below which a track is not
     yet taken for a ball in that test (common practice: a hand hovers for well under a second).
-    ``label_min_quality``: below this detector quality a detection's cue/object label only costs
-    ``pattern_cost`` instead of forbidding the pairing (the detector's quality falls where two
-    balls merge or an edge blurs, and so does its labelling); it is also the quality a
+    ``label_min_quality``: the quality a
     detection needs to find a ball again after a long gap, and a put-down ball's detections to
     take back its id (``Tracker._respotted``), unless the ball's own detections were mostly
     less sure (``Tracker._sure_quality``).
@@ -626,28 +631,28 @@ class Tracker:
         colours = np.asarray(colours, dtype=object)
         is_cue = patterns == "cue"
         is_obj = (patterns == "solid") | (patterns == "stripe")
-        confident = quality >= cfg.label_min_quality
         known_colour = colours != ""
         for i, tr in enumerate(group):
             pr = preds[tr.key]
             kind = tr.kind()
             colour = tr.label(tr.colours, "")
             tp = tr.label(tr.patterns, "unknown")
-            # A confident label of the other kind forbids the pair; a doubtful detection's (two
-            # balls seen as one, a blurred edge) only costs like a solid/stripe mismatch. A
-            # ball unseen for longer than `_reid_s` is found again by its labels, not by
-            # position: its gate has spread past a ball, and what shows up in it is as likely
-            # the hand that lifted it or puts it down as the ball itself (Wojke et al. 2017:
-            # motion for short-term association, appearance to recover an identity after a
-            # long occlusion).
+            # A label of the other kind only costs like a solid/stripe mismatch while the ball is
+            # followed: its motion decides, and a sure-looking label can be wrong (a blurred or
+            # dim cue ball read as a stripe), where forbidding the pair left the ball coasting
+            # beside its own detections until it ended. A ball unseen for longer than `_reid_s`
+            # is found again by its labels, not by position: its gate has spread past a ball,
+            # and what shows up in it is as likely the hand that lifted it or puts it down as the
+            # ball itself (Wojke et al. 2017: motion for short-term association, appearance to
+            # recover an identity after a long occlusion).
             clash = is_cue if kind == "object" else is_obj if kind == "cue" else np.zeros(D, bool)
-            forbid = clash & confident
+            forbid = np.zeros(D, bool)
             if kind != "unknown" and pr["unseen_s"] > self._reid_s:
                 own = is_cue if kind == "cue" else is_obj & ((patterns == tp) | (tp == "unknown"))
                 ok = own & (quality >= self._sure_quality([tr]))
                 if colour:
                     ok &= ~known_colour | (colours == colour)
-                forbid |= ~ok
+                forbid = ~ok
             ident = cfg.pattern_cost * clash
             if colour:
                 ident += cfg.colour_cost * (known_colour & (colours != colour))
@@ -667,7 +672,10 @@ class Tracker:
                 math.sqrt(np.trace(pr["prev_P"])) + sig)
             dist = np.hypot(*(Z - pr["prev"]).T)
             cj = g + g * (dist / reach) ** 2  # above every gated prediction, nearer is cheaper
-            ok = (dist <= reach) & (hyps[i] == _NO_HYP)
+            # A turn needs a detection as sure as one that may start a track: a doubtful one
+            # off the path (a pocket's dark mouth beside a ball dropping in) would turn the
+            # ball's velocity there and the next detection turn it back.
+            ok = (dist <= reach) & (hyps[i] == _NO_HYP) & (quality >= cfg.birth_min_quality)
             cost[i, ok] = cj[ok]
             hyps[i, ok] = _JUMP
             cost[i] += ident
