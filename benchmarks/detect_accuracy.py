@@ -10,7 +10,10 @@ gate of one ball radius); prints
 * moving-ball centre error, median and p95 (mm), per frame rate and shutter;
 * detection rate over the frames where a ball is fully visible (not under the cue or arms: the
   occluder's image footprint, from the scene's strokes and the renderer's own occluder model);
-* false detections: all, and how many lie on the occluder or in a pocket.
+* false detections: all, and how many lie on the occluder or in a pocket;
+* how the stated ``sigma_mm`` matches the errors, for resting balls, moving balls and balls
+  within a ball's diameter of a cushion nose: the median |error / sigma| per axis and the
+  shares beyond 3 and 5 sigma (a standard normal: 0.67, 0.27 %, 0.00006 %).
 
 With ``--clip NAME`` it instead runs the detector on frames ``--frames FIRST LAST`` of the
 sample clip ``sample_clips/NAME.mp4`` (true camera from ``NAME.truth``) and counts detections
@@ -364,12 +367,14 @@ def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
                 if D[a, b] < gate:
                     matched_t.add(a)
                     matched_d.add(b)
-                    rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), D[a, b], bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a], P[a, 0], P[a, 1], Q[b, 0] - P[a, 0], Q[b, 1] - P[a, 1], ball_gap[a], rail_gap[a]))
+                    rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), D[a, b], bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a], P[a, 0], P[a, 1], Q[b, 0] - P[a, 0], Q[b, 1] - P[a, 1], d["sigma_mm"].iloc[b], ball_gap[a], rail_gap[a]))
             for b in set(range(len(Q))) - matched_d:
                 false_rows.append((f, Q[b, 0], Q[b, 1], bool(g["hidden"].any())))
         for a in set(range(len(P))) - matched_t:
-            rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), np.nan, bool(g["hidden"].iloc[a]), "", g["pattern"].iloc[a], P[a, 0], P[a, 1], np.nan, np.nan, ball_gap[a], rail_gap[a]))
-    E = pd.DataFrame(rows, columns=["frame", "ball", "speed", "err", "hidden", "pattern", "true_pattern", "x", "y", "dx", "dy", "ball_gap", "rail_gap"])
+            rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), np.nan, bool(g["hidden"].iloc[a]), "", g["pattern"].iloc[a], P[a, 0], P[a, 1], np.nan, np.nan, np.nan, ball_gap[a], rail_gap[a]))
+    E = pd.DataFrame(rows, columns=["frame", "ball", "speed", "err", "hidden", "pattern", "true_pattern", "x", "y", "dx", "dy", "sigma_mm", "ball_gap", "rail_gap"])
+    # Distance (mm) of the true centre from the nearest cushion nose line.
+    E["nose_mm"] = np.minimum(np.minimum(E["x"], table.length_mm - E["x"]), np.minimum(E["y"], table.width_mm - E["y"]))
     F = pd.DataFrame(false_rows, columns=["frame", "x", "y", "occluder_active"])
     pockets = np.array([p.mouth_centre for p in table.pockets()])
     if len(F):
@@ -381,7 +386,7 @@ def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
         save.mkdir(parents=True, exist_ok=True)
         E.to_csv(save / f"{name}.errors.csv", index=False)
         det.to_csv(save / f"{name}.detections.csv", index=False)
-    return {"name": name, "errors": E, "false": F, "fps": scene.camera and scene.film.fps, "shutter": scene.film.shutter_s, "seconds": elapsed, "frames": int(tr["frame"].max()) + 1}
+    return {"name": name, "radius": table.radius_mm, "errors": E, "false": F, "fps": scene.camera and scene.film.fps, "shutter": scene.film.shutter_s, "seconds": elapsed, "frames": int(tr["frame"].max()) + 1}
 
 
 def _gaps(P: np.ndarray, table) -> tuple[np.ndarray, np.ndarray]:
@@ -439,6 +444,22 @@ def sample_clip(name: str, first: int, last: int) -> int:
 _CLEAR_MM = 10.0
 
 
+def sigma_calibration(E: pd.DataFrame, near_mm: float) -> None:
+    """Print how the detector's stated ``sigma_mm`` matches its errors: the error per axis in
+    units of sigma, z = (dx / sigma, dy / sigma), for resting balls, moving balls and balls
+    whose centre lies within ``near_mm`` of a cushion nose (whether resting or moving). For an
+    honest standard deviation z is about standard normal: median |z| 0.674, |z| > 3 for 0.27 %
+    (analytic)."""
+    print("stated sigma_mm against the error per axis (standard normal: median |z| 0.67, |z| > 3 for 0.27 %):")
+    near = E["nose_mm"] < near_mm
+    for what, g in (("resting", E[~near & (E["speed"] < 1.0)]), ("moving", E[~near & (E["speed"] >= 1.0)]), ("near a cushion", E[near])):
+        if not len(g):
+            continue
+        z = np.abs(np.concatenate([g["dx"] / g["sigma_mm"], g["dy"] / g["sigma_mm"]]))
+        print(f"  {what:15s} n={len(g):5d}  sigma median {g['sigma_mm'].median():5.2f} mm  median |z| {np.median(z):5.2f}  "
+              f"|z| > 3: {100 * np.mean(z > 3):5.1f}%  |z| > 5: {100 * np.mean(z > 5):5.1f}%")
+
+
 def _q(s: pd.Series, q: float) -> str:
     return f"{s.quantile(q):6.2f}" if len(s) else "   n/a"
 
@@ -484,6 +505,7 @@ def main(argv=None) -> int:
         m = g["err"].dropna()
         print(f"moving, {fps:.0f} fps 1/{1 / sh:.0f} s: median {m.median():.2f} mm, p95 {m.quantile(.95):.2f} mm, detected {100 * g['err'].notna().mean():.2f}% (n={len(g)})")
     print(f"detection rate where fully visible: {100 * vis['err'].notna().mean():.2f}% of {len(vis)} ball-frames")
+    sigma_calibration(vis[vis["err"].notna()], 2 * results[0]["radius"])
     if args.by_ball:
         still = vis[(vis["speed"] < 1.0) & vis["err"].notna()]
         table = still.groupby(["scene", "ball"]).agg(

@@ -66,10 +66,12 @@ Method
   gaps, appearance recovers an identity after a long one); what else appears where a lifted
   ball was is as likely the hand that took it. Unassigned tracks and detections compete through
   dummy rows and columns (the usual square augmentation), so a track may stay unassigned.
-* A detection's noise is the larger of the detector's ``sigma_mm`` and the scatter of the
-  track's own recent detections about a smooth path (third differences, ``_Track.noise_mm``,
-  at most ``meas_sigma_mm``): a detector can state far less than its detections carry, and a
-  filter told too little reads every wobble as a velocity jump.
+* A detection's noise is the scatter of the track's own recent detections about a smooth
+  path (third differences, ``_Track.noise_mm``, at most ``meas_sigma_mm``), the detector's
+  ``sigma_mm`` only until that is measured: the detector states a detection's whole error,
+  slowly varying biases (shading, shadows, a cushion's face) included, while the filter's
+  measurement noise is what varies from frame to frame; a filter told too little reads every
+  wobble as a velocity jump.
 * A detection matched through a bounce or jump, or with a predicted ``d2`` above
   ``chi2.ppf(maneuver_prob, 2)``, marks a velocity breakpoint: the filter's velocity is restarted
   there (a crude version of the maneuver detection in Bar-Shalom et al. 2001, ch. 11).
@@ -173,17 +175,18 @@ class TrackerConfig:
     cue moved by a player changes course anywhere, all the time, and restarts the filter at
     40-80 % of its detections.
     ``noise_window``: frames over which a track measures the scatter of its own detections
-    (``_Track.noise_mm``); a detection's noise is taken as the larger of its ``sigma_mm`` and
-    that scatter, since a detector's own figure can fall far short of it (on the sample clips
-    moving balls scatter 1.5 to 7 times the 0.15 mm the detector states), and a filter told
-    too small a noise follows every wobble, reads each as a velocity jump (a maneuver) and
-    cuts the smoother at it. The scatter counts up to ``meas_sigma_mm`` (a moving ball's
+    (``_Track.noise_mm``); a detection's noise is taken as that scatter once measured (at
+    least ``min_meas_sigma_mm``, the detector's least stated sigma), else its ``sigma_mm``: the detector's figure is the detection's whole error, biases that drift
+    slowly along a path included, which the filter must not read as frame-to-frame noise, and
+    a filter told too small a noise follows every wobble, reads each as a velocity jump (a
+    maneuver) and cuts the smoother at it. The scatter counts up to ``meas_sigma_mm`` (a moving ball's
     detection noise, above): beyond that it is not a ball's noise but the erratic course of a
     hand or cue, which the filter need not smooth into a ball's. Which tracks are hands is
     still judged at the stated noise (``Tracker._stated_update``).
     """
 
     meas_sigma_mm: float = 2.0
+    min_meas_sigma_mm: float = 0.15
     accel_sigma_mm_s2: float = SLIDING_DECEL_MM_S2
     initial_speed_sigma_mm_s: float = INITIAL_SPEED_SIGMA_MM_S
     max_speed_mm_s: float = 8000.0
@@ -207,7 +210,7 @@ class TrackerConfig:
     noise_window: int = 15
 
     def __post_init__(self) -> None:
-        for name in ("meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
+        for name in ("meas_sigma_mm", "min_meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
                      "max_speed_mm_s", "coast_s", "pocket_reach_mm", "respot_rest_speed_mm_s",
                      "respot_settle_s"):
             value = getattr(self, name)
@@ -700,7 +703,8 @@ class Tracker:
 
     def _update(self, tr: _Track, pred: dict, hyp: str, z, sigma, frame, t) -> None:
         stated = float(sigma)
-        sigma = max(stated, tr.noise_mm(self.config.meas_sigma_mm))
+        scatter = tr.noise_mm(self.config.meas_sigma_mm)
+        sigma = max(scatter, self.config.min_meas_sigma_mm) if scatter > 0 else stated
         R = sigma**2 * np.eye(2)
         z = np.asarray(z, dtype=float)
         brk = False

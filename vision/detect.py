@@ -17,7 +17,8 @@ colour    ``white``, ``yellow``, ``blue``, ``red``, ``purple``, ``orange``, ``gr
 pattern   ``cue``, ``solid``, ``stripe`` or ``unknown``
 blur_x,   travel of the centre during the exposure, mm (table frame), from the streak's
 blur_y    length and direction; 0 when the streak is no longer than a ball (see Limits)
-sigma_mm  estimated standard deviation of x and y, mm
+sigma_mm  estimated standard deviation of x and y, mm: the whole error, biases included
+          (:func:`_stated_sigma`)
 ========= ===================================================================================
 
 Method
@@ -152,6 +153,20 @@ _RAY_DIRS_ATAN2.flags.writeable = False
 # Prior spread of the outline's inward shift from limb darkening (mm): about a pixel at the
 # usual scale of 2 mm per pixel; not a measured figure.
 _BIAS_SIGMA_MM = 2.0
+# The stated sigma_mm (:func:`_stated_sigma`). The outline's ray errors are not independent:
+# a shadow side, a lit side, a blurred trailing side, a cushion face or a compression block
+# misplace whole arcs of rays together, so 48 rays carry the centre's information of a few. The
+# least-squares variance (independent rays) is scaled by the length in rays over which their
+# errors stay correlated, here a third of the outline (the variance of a mean of correlated
+# samples grows by 1 + 2 sum of their autocorrelations, Bartlett 1946, from memory); the
+# fitted radius bias (the found outline's mean inward shift) adds half of itself, as an
+# uneven shift of that size moves the centre by a share of it, and so does the distance to a
+# local fit the coarse fit was kept over; a local edge still moving when its rounds ran out
+# adds five of its last steps. Checked on the rendered bench scenes
+# (benchmarks/detect_accuracy.py, sigma calibration), not derived.
+_RAY_CORR = 16.0
+_BIAS_SHARE = 0.5
+_WALK_ROUNDS = 5.0
 _STEP_PX = 0.25
 # Reach (px) of the local two-colour edge either side of the predicted outline: the sample
 # bands sit 1.75..2.75 px either side, beyond a blurred edge's half-width (about 1.5 px for an
@@ -687,6 +702,19 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     dof = max(int(np.count_nonzero(wts > 0)) - 3, 1)
     s2 = float(wts @ (r * r)) / dof
     return p, r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
+
+
+def _stated_sigma(cov_xy: np.ndarray, bias_mm: float, walk_mm: float, disagree_mm: float, half_mm: float) -> float:
+    """Standard deviation (mm, per axis of the table frame) stated for a fitted centre: the
+    least-squares covariance of x, y (``cov_xy`` (2, 2) mm^2, from independent rays) scaled by
+    ``_RAY_CORR``, with ``_BIAS_SHARE`` of the fitted radius bias ``bias_mm`` and of the
+    distance ``disagree_mm`` to a local fit the coarse one was kept over, ``_WALK_ROUNDS`` of
+    the local edge's last move ``walk_mm`` (0 once it converged) and a tenth of a streak's
+    half travel ``half_mm`` added, in quadrature but the last (see ``_RAY_CORR``); at least
+    0.15 mm."""
+    ls2 = max(float(np.trace(cov_xy)) / 2, 0.0)
+    s2 = _RAY_CORR * ls2 + (_BIAS_SHARE * bias_mm) ** 2 + (_BIAS_SHARE * disagree_mm) ** 2 + (_WALK_ROUNDS * walk_mm) ** 2
+    return max(math.sqrt(s2), 0.15) + 0.1 * half_mm
 
 
 def _fit_rms(result) -> float:
@@ -1875,10 +1903,19 @@ class BallDetector:
             result = (p, res, wts, cov, good, capsule, n_rays)
             if win is not None:
                 coarse = result
+        # How unsettled the fit that stands is (for its stated sigma): where the local edge
+        # stands, its last move (its rounds ran out still moving: a soft rim it follows
+        # outward; under 0.05 mm once converged); where the coarse fit is kept over it, the
+        # distance between the two (``disagree``).
+        unsettled = math.hypot(p[0] - prev_xy[0], p[1] - prev_xy[1]) if prev_xy is not None else 0.0
         if result is not coarse and _fit_rms(result) > max(1.5 * _fit_rms(coarse), 1.0):
             # The local edge disagrees with the sphere (a rim that fades into its own shadow):
             # keep the coarse outline's fit.
             result = coarse
+        disagree = 0.0
+        if result is coarse:
+            unsettled = 0.0
+            disagree = math.hypot(p[0] - coarse[0][0], p[1] - coarse[0][1])
         p, res, wts, cov, good, capsule, n_rays = result
         inl = wts > 0.2
         share = inl.sum() / n_rays
@@ -1905,8 +1942,7 @@ class BallDetector:
         hd = float(p[4]) if capsule else 0.0
         travel = 2 * half + 2 * R if capsule else 0.0
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
-        sig = float(math.sqrt(max(np.trace(cov()) / 2, 0.0)))
-        sig = max(sig, 0.15) + (0.1 * half if capsule else 0.0)
+        sig = _stated_sigma(cov(), float(p[2]), unsettled, disagree, half)
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         return {
             "frame": 0,
