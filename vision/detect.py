@@ -627,22 +627,22 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     Q[5] = dxx + dzz
     inv_sig = 1.0 / _BIAS_SIGMA_MM
     lams = (1.0, 8.0, 64.0, 512.0)
-    M = np.empty((3, K))
-    M[2] = 1.0
+    C0, C1 = float(C[0]), float(C[1])
 
-    def res_only(q):
-        wx, wy = q[0] - C[0], q[1] - C[1]
-        return np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0)) - (R - q[2])
-
-    def res_jac(q):
-        wx, wy = q[0] - C[0], q[1] - C[1]
+    def res_jac(px, py, pb):
+        # Residuals and Jacobian (3, K) at (px, py, pb), a new array each call: a trial step's
+        # are kept when the step is taken (not worked out again from its parameters).
+        wx, wy = px - C0, py - C1
         dist = np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0))
         G = np.array([[0.0, 0.5, 0.0, wx, 0.5 * wy, 0.0], [0.0, 0.0, 0.5, 0.0, 0.5 * wx, wy]])
+        M = np.empty((3, K))
         M[:2] = (G @ Q) / np.maximum(dist, 1e-12)
-        return dist - (R - q[2]), M
+        M[2] = 1.0
+        return dist - (R - pb), M
 
     lam = 1e-3
-    r, M = res_jac(p)
+    px, py, pb = p.tolist()
+    r, M = res_jac(px, py, pb)
     wts = np.ones(K)
     lo_b, hi_b = -0.3 * R, 0.3 * R
     for _ in range(iters):
@@ -654,11 +654,10 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
         A = MW @ M.T
         A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
         g = MW @ r
-        g[2] += inv_sig * (p[2] * inv_sig)
-        cost = float(wts @ (r * r)) + (p[2] * inv_sig) ** 2
+        g[2] += inv_sig * (pb * inv_sig)
+        cost = float(wts @ (r * r)) + (pb * inv_sig) ** 2
         (a0, b, c), (_, e0, f), (_, _, i0) = A.tolist()
         g0, g1, g2 = g.tolist()
-        px, py, pb = p.tolist()
         # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
         # tried in order until one lowers the cost (the first of the ladder that would);
         # a symmetric 3 x 3 system solved by its adjugate, delta = -adj(B) g / det B.
@@ -671,17 +670,18 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
             d0 = -(c00 * g0 + c01 * g1 + c02 * g2) / det
             d1 = -(c01 * g0 + c11 * g1 + c12 * g2) / det
             d2 = -(c02 * g0 + c12 * g1 + c22 * g2) / det
-            q = np.array([px + d0, py + d1, min(max(pb + d2, lo_b), hi_b)])
-            rq = res_only(q)
-            if float(wts @ (rq * rq)) + (q[2] * inv_sig) ** 2 <= cost:
+            qx, qy, qb = px + d0, py + d1, min(max(pb + d2, lo_b), hi_b)
+            rq, Mq = res_jac(qx, qy, qb)
+            if float(wts @ (rq * rq)) + (qb * inv_sig) ** 2 <= cost:
                 break
         else:
             break
-        p = q
+        px, py, pb = qx, qy, qb
         lam = max(ll / 5, 1e-6)
-        r, M = res_jac(p)
+        r, M = rq, Mq
         if max(abs(d0), abs(d1)) < 0.005:
             break
+    p = np.array([px, py, pb])
     A = (M * wts) @ M.T
     A[2, 2] += inv_sig * inv_sig
     dof = max(int(np.count_nonzero(wts > 0)) - 3, 1)
