@@ -30,7 +30,7 @@ Method
    cells did not change (its silhouette is taken out of that region's foreground; it is refitted
    only beside a ball found there, step 5). A frame where nothing changed costs one resize.
 3. *Candidates*: pixels of the ball zone whose colour distance from the background exceeds a
-   noise-scaled threshold; connected components (``cv2.connectedComponentsWithStats``). A
+   noise-scaled threshold; 8-connected components (:func:`vision.background.components_8`). A
    compact, convex component seeds one ball (a disc, or a capsule along its principal axis from
    its second moments when elongated by blur); a larger one (touching balls) seeds one ball per
    peak of its distance transform at least ~0.7 ball radius deep; one that reaches the edge of
@@ -128,7 +128,7 @@ import cv2
 import numpy as np
 import pandas as pd
 
-from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone, max_abs_diff
+from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone, components_8, max_abs_diff
 from vision.camera import Camera
 from vision.table import TableSpec
 from vision.video import iter_frames
@@ -1119,7 +1119,7 @@ class BallDetector:
         grow = int(math.ceil(1.5 * self.r_max_px / cs)) + 1
         k = cv2.getStructuringElement(cv2.MORPH_RECT, (2 * grow + 1, 2 * grow + 1))
         region_small = cv2.dilate(changed.astype(np.uint8), k)
-        n, lab, stats, _ = cv2.connectedComponentsWithStats(region_small, connectivity=8)
+        n, lab, stats = components_8(region_small)
         w, h = self.size
         boxes = []
         for i in range(1, n):
@@ -1182,7 +1182,7 @@ class BallDetector:
                 cv2.fillPoly(gone, [np.round(out + c - np.array([u0, v0])).astype(np.int32)], 1)
             fg[gone > 0] = 0
         fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-        n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        n, lab, stats = components_8(fg)
         return n, lab, stats
 
     def _detect_box(self, img: np.ndarray, box, known: list[dict] = ()) -> list[dict]:
