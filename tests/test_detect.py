@@ -673,6 +673,31 @@ def test_rays_looking_past_the_nose_are_the_rail_side_ones():
     assert near[np.argmax(towards)]
 
 
+@pytest.mark.parametrize("cam", [RAIL_CAM, Camera.overhead(NINE_FOOT, 2100.0, (960, 540), offset_mm=(-150, 90), roll_deg=-3.0, dist=(-0.28, 0.07, 0, 0, 0))])
+def test_rays_looking_past_the_nose_agree_with_the_cameras_back_projection(cam):
+    # Reference: Camera.backproject (its own Newton undistortion, not the detector's RayMap or
+    # its distance map): for ball centres over the whole table, from the cushions' noses
+    # inwards, the rays flagged are exactly those whose outer band meets the bed plane outside
+    # the nose rectangle.
+    from vision.detect import _LOCAL_REACH_PX, _N_RAYS, sphere_outline_px
+
+    det = BallDetector(cam, NINE_FOOT)
+    ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
+    dirs = np.column_stack([np.cos(ang), np.sin(ang)])
+    L, W = NINE_FOOT.length_mm, NINE_FOOT.width_mm
+    flagged_any = 0
+    for x in np.linspace(R, L - R, 23):
+        for y in np.linspace(R, W - R, 13):
+            c = cam.project(np.array([[x, y, R]]))[0]
+            rho = np.linalg.norm(sphere_outline_px(cam, np.array([[x, y, R]]), R, _N_RAYS)[0] - c, axis=1)
+            q = cam.backproject(c[None] + (rho + _LOCAL_REACH_PX)[:, None] * dirs, 0.0)
+            off = ~((q[:, 0] >= 0) & (q[:, 0] <= L) & (q[:, 1] >= 0) & (q[:, 1] <= W))
+            got = det._surround_off_bed(c, rho, dirs)
+            assert np.array_equal(got, off), (x, y)
+            flagged_any += bool(off.any())
+    assert flagged_any >= 20  # the rows and columns next to the cushions
+
+
 @pytest.fixture(scope="module")
 def off_the_rail():
     """Detections of balls resting just off the right cushion, and their true centres (N, 2) mm."""

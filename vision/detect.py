@@ -991,6 +991,10 @@ class BallDetector:
         self.zone = ball_zone(camera, table)
         self.rays = RayMap(camera)
         self.cloth = cloth_zone(camera, table)
+        # Distance (px) from each pixel to the nearest pixel off the cloth zone (which sees the
+        # bed at least 5 mm inside the noses): a disc of smaller radius round a pixel sees only
+        # the bed (:meth:`_surround_off_bed`).
+        self._bed_px = cv2.distanceTransform(self.cloth.astype(np.uint8), cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
         if not self.zone.any():
             raise ValueError("the table is nowhere in the camera's view; check the calibration (camera pose)")
         # Ball diameter in pixels at the middle of the table, for scales.
@@ -1761,6 +1765,13 @@ class BallDetector:
         1 mm in the rendered cut_bank clip, for balls within 40 mm of the rail far from the
         camera). Such rays are left out of the local rounds like a neighbour's rim.
         """
+        h, w = self._bed_px.shape
+        iu, iv = int(round(float(c[0]))), int(round(float(c[1])))
+        # Every sample lies within the largest reach of the centre's image: a ball that far
+        # inside the cloth zone (a pixel of margin for the rounding of c and the zone's own
+        # interpolation) sees only the bed, as the back-projection would find.
+        if 0 <= iu < w and 0 <= iv < h and self._bed_px[iv, iu] > float(np.max(rho_pred)) + _LOCAL_REACH_PX + 2.0:
+            return np.zeros(len(dirs), bool)
         t = self.table
         uv = c[None] + (rho_pred + _LOCAL_REACH_PX)[:, None] * dirs
         q = self.rays.backproject(uv, 0.0)
