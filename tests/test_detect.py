@@ -514,6 +514,10 @@ def test_ray_map_projection_and_outline_match_opencv(setup):
     P = np.column_stack([rng.uniform(0, NINE_FOOT.length_mm, 50), rng.uniform(0, NINE_FOOT.width_mm, 50), rng.uniform(0, 60, 50)])
     ref, _ = cv2.projectPoints(P, cam.rvec, cam.tvec, cam.K, cam.dist)
     assert np.max(np.abs(rm.project(P) - ref.reshape(-1, 2))) < 1e-6
+    # One point at a time (the plain-float path for a single point), and one behind the camera.
+    one = np.vstack([rm.project(q[None]) for q in P])
+    assert np.max(np.abs(one - ref.reshape(-1, 2))) < 1e-6
+    assert np.all(np.isnan(rm.project(np.array([[0.0, 0.0, cam.centre_mm[2] + 500.0]]))))
     for x, y in P[:10, :2]:
         want = sphere_outline_px(cam, np.array([[x, y, R]]), R, 32)[0]
         assert np.max(np.abs(rm.sphere_outline(x, y, R) - want)) < 1e-9
