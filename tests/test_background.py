@@ -250,3 +250,49 @@ def test_update_moves_exactly_the_pixels_within_the_threshold():
     moved = np.all(bg.image == f1.astype(np.float32), axis=2)
     assert want.any() and (~want).any()
     assert np.array_equal(moved, want)
+
+
+@pytest.mark.parametrize("density", [0.02, 0.3, 0.6])
+def test_components_8_match_opencvs_default_labelling(density):
+    # Reference library (OpenCV): the block-based labelling gives the same labels, in the same
+    # order, and the same boxes and areas as cv2.connectedComponentsWithStats with its default
+    # algorithm, on sparse specks, grown blobs and dense noise of several sizes.
+    import cv2
+
+    from vision.background import components_8
+
+    rng = np.random.default_rng(int(100 * density))
+    for h, w in ((7, 5), (61, 200), (240, 130)):
+        mask = (rng.random((h, w)) < density).astype(np.uint8)
+        mask[h // 2, w // 2] = 1
+        for m in (mask, cv2.dilate(mask, np.ones((3, 3), np.uint8))):
+            n, lab, stats, _ = cv2.connectedComponentsWithStats(m, connectivity=8)
+            n2, lab2, stats2 = components_8(m)
+            assert n2 == n and n > 1
+            assert np.array_equal(lab2, lab) and np.array_equal(stats2, stats)
+
+
+def test_may_hold_patch_agrees_with_labelling_the_mask():
+    # Cross-check with OpenCV's labelling (reference library): the cell-count bound says no
+    # exactly when no 8-connected component reaches the area, on specks, squares and a
+    # diagonal line that runs across cell corners (8-adjacent pixels in diagonal cells).
+    import cv2
+
+    from vision.background import _may_hold_patch
+
+    rng = np.random.default_rng(5)
+    for trial in range(60):
+        h, w = int(rng.integers(9, 140)), int(rng.integers(9, 140))
+        mask = (rng.random((h, w)) < rng.uniform(0.002, 0.05)).astype(np.uint8)
+        mask[h // 2, w // 2] = 1
+        for _ in range(int(rng.integers(0, 3))):
+            u, v, r = int(rng.integers(0, w)), int(rng.integers(0, h)), int(rng.integers(1, 7))
+            mask[max(v - r, 0) : v + r, max(u - r, 0) : u + r] = 1
+        _, _, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+        biggest = int(stats[1:, cv2.CC_STAT_AREA].max()) if len(stats) > 1 else 0
+        for area in (biggest, biggest + 1, 30):
+            if _may_hold_patch(mask, area) is False:
+                assert biggest < area
+    line = np.zeros((64, 64), np.uint8)
+    line[np.arange(64), np.arange(64)] = 1  # one component of 64 px across 8 diagonal cells
+    assert _may_hold_patch(line, 64) and not _may_hold_patch(line, 65)

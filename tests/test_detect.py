@@ -514,6 +514,10 @@ def test_ray_map_projection_and_outline_match_opencv(setup):
     P = np.column_stack([rng.uniform(0, NINE_FOOT.length_mm, 50), rng.uniform(0, NINE_FOOT.width_mm, 50), rng.uniform(0, 60, 50)])
     ref, _ = cv2.projectPoints(P, cam.rvec, cam.tvec, cam.K, cam.dist)
     assert np.max(np.abs(rm.project(P) - ref.reshape(-1, 2))) < 1e-6
+    # One point at a time (the plain-float path for a single point), and one behind the camera.
+    one = np.vstack([rm.project(q[None]) for q in P])
+    assert np.max(np.abs(one - ref.reshape(-1, 2))) < 1e-6
+    assert np.all(np.isnan(rm.project(np.array([[0.0, 0.0, cam.centre_mm[2] + 500.0]]))))
     for x, y in P[:10, :2]:
         want = sphere_outline_px(cam, np.array([[x, y, R]]), R, 32)[0]
         assert np.max(np.abs(rm.sphere_outline(x, y, R) - want)) < 1e-9
@@ -671,6 +675,31 @@ def test_rays_looking_past_the_nose_are_the_rail_side_ones():
     towards = dirs @ (ex / np.linalg.norm(ex))
     assert near.any() and np.all(towards[near] > 0.0)
     assert near[np.argmax(towards)]
+
+
+@pytest.mark.parametrize("cam", [RAIL_CAM, Camera.overhead(NINE_FOOT, 2100.0, (960, 540), offset_mm=(-150, 90), roll_deg=-3.0, dist=(-0.28, 0.07, 0, 0, 0))])
+def test_rays_looking_past_the_nose_agree_with_the_cameras_back_projection(cam):
+    # Reference: Camera.backproject (its own Newton undistortion, not the detector's RayMap or
+    # its distance map): for ball centres over the whole table, from the cushions' noses
+    # inwards, the rays flagged are exactly those whose outer band meets the bed plane outside
+    # the nose rectangle.
+    from vision.detect import _LOCAL_REACH_PX, _N_RAYS, sphere_outline_px
+
+    det = BallDetector(cam, NINE_FOOT)
+    ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
+    dirs = np.column_stack([np.cos(ang), np.sin(ang)])
+    L, W = NINE_FOOT.length_mm, NINE_FOOT.width_mm
+    flagged_any = 0
+    for x in np.linspace(R, L - R, 23):
+        for y in np.linspace(R, W - R, 13):
+            c = cam.project(np.array([[x, y, R]]))[0]
+            rho = np.linalg.norm(sphere_outline_px(cam, np.array([[x, y, R]]), R, _N_RAYS)[0] - c, axis=1)
+            q = cam.backproject(c[None] + (rho + _LOCAL_REACH_PX)[:, None] * dirs, 0.0)
+            off = ~((q[:, 0] >= 0) & (q[:, 0] <= L) & (q[:, 1] >= 0) & (q[:, 1] <= W))
+            got = det._surround_off_bed(c, rho, dirs)
+            assert np.array_equal(got, off), (x, y)
+            flagged_any += bool(off.any())
+    assert flagged_any >= 20  # the rows and columns next to the cushions
 
 
 @pytest.fixture(scope="module")

@@ -31,7 +31,7 @@ Method
    cells did not change (its silhouette is taken out of that region's foreground; it is refitted
    only beside a ball found there, step 5). A frame where nothing changed costs one resize.
 3. *Candidates*: pixels of the ball zone whose colour distance from the background exceeds a
-   noise-scaled threshold; connected components (``cv2.connectedComponentsWithStats``). A
+   noise-scaled threshold; 8-connected components (:func:`vision.background.components_8`). A
    compact, convex component seeds one ball (a disc, or a capsule along its principal axis from
    its second moments when elongated by blur); a larger one (touching balls) seeds one ball per
    peak of its distance transform at least ~0.7 ball radius deep; one that reaches the edge of
@@ -129,7 +129,7 @@ import cv2
 import numpy as np
 import pandas as pd
 
-from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone, max_abs_diff
+from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone, components_8, max_abs_diff
 from vision.camera import Camera
 from vision.table import TableSpec
 from vision.video import iter_frames
@@ -642,22 +642,22 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     Q[5] = dxx + dzz
     inv_sig = 1.0 / _BIAS_SIGMA_MM
     lams = (1.0, 8.0, 64.0, 512.0)
-    M = np.empty((3, K))
-    M[2] = 1.0
+    C0, C1 = float(C[0]), float(C[1])
 
-    def res_only(q):
-        wx, wy = q[0] - C[0], q[1] - C[1]
-        return np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0)) - (R - q[2])
-
-    def res_jac(q):
-        wx, wy = q[0] - C[0], q[1] - C[1]
+    def res_jac(px, py, pb):
+        # Residuals and Jacobian (3, K) at (px, py, pb), a new array each call: a trial step's
+        # are kept when the step is taken (not worked out again from its parameters).
+        wx, wy = px - C0, py - C1
         dist = np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0))
         G = np.array([[0.0, 0.5, 0.0, wx, 0.5 * wy, 0.0], [0.0, 0.0, 0.5, 0.0, 0.5 * wx, wy]])
+        M = np.empty((3, K))
         M[:2] = (G @ Q) / np.maximum(dist, 1e-12)
-        return dist - (R - q[2]), M
+        M[2] = 1.0
+        return dist - (R - pb), M
 
     lam = 1e-3
-    r, M = res_jac(p)
+    px, py, pb = p.tolist()
+    r, M = res_jac(px, py, pb)
     wts = np.ones(K)
     lo_b, hi_b = -0.3 * R, 0.3 * R
     for _ in range(iters):
@@ -669,11 +669,10 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
         A = MW @ M.T
         A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
         g = MW @ r
-        g[2] += inv_sig * (p[2] * inv_sig)
-        cost = float(wts @ (r * r)) + (p[2] * inv_sig) ** 2
+        g[2] += inv_sig * (pb * inv_sig)
+        cost = float(wts @ (r * r)) + (pb * inv_sig) ** 2
         (a0, b, c), (_, e0, f), (_, _, i0) = A.tolist()
         g0, g1, g2 = g.tolist()
-        px, py, pb = p.tolist()
         # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
         # tried in order until one lowers the cost (the first of the ladder that would);
         # a symmetric 3 x 3 system solved by its adjugate, delta = -adj(B) g / det B.
@@ -686,17 +685,18 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
             d0 = -(c00 * g0 + c01 * g1 + c02 * g2) / det
             d1 = -(c01 * g0 + c11 * g1 + c12 * g2) / det
             d2 = -(c02 * g0 + c12 * g1 + c22 * g2) / det
-            q = np.array([px + d0, py + d1, min(max(pb + d2, lo_b), hi_b)])
-            rq = res_only(q)
-            if float(wts @ (rq * rq)) + (q[2] * inv_sig) ** 2 <= cost:
+            qx, qy, qb = px + d0, py + d1, min(max(pb + d2, lo_b), hi_b)
+            rq, Mq = res_jac(qx, qy, qb)
+            if float(wts @ (rq * rq)) + (qb * inv_sig) ** 2 <= cost:
                 break
         else:
             break
-        p = q
+        px, py, pb = qx, qy, qb
         lam = max(ll / 5, 1e-6)
-        r, M = res_jac(p)
+        r, M = rq, Mq
         if max(abs(d0), abs(d1)) < 0.005:
             break
+    p = np.array([px, py, pb])
     A = (M * wts) @ M.T
     A[2, 2] += inv_sig * inv_sig
     dof = max(int(np.count_nonzero(wts > 0)) - 3, 1)
@@ -956,6 +956,8 @@ class RayMap:
         """(N, 3) table points (mm) -> (N, 2) pixels: :meth:`Camera.project`'s model and
         arithmetic, without its generality (points behind the camera give NaN)."""
         cam = np.asarray(points_mm, float).reshape(-1, 3) @ self._RT + self.camera.tvec
+        if len(cam) == 1:
+            return self._project_one(*cam[0].tolist())
         z = np.where(cam[:, 2] > 0, cam[:, 2], np.nan)
         x, y = cam[:, 0] / z, cam[:, 1] / z
         k1, k2, p1, p2, k3 = self._dist
@@ -968,6 +970,20 @@ class RayMap:
         out[:, 0] = k00 * xd + k01 * yd + k02
         out[:, 1] = k11 * yd + k12
         return out
+
+    def _project_one(self, cx: float, cy: float, cz: float) -> np.ndarray:
+        """(1, 2) pixel of one point in the camera frame (mm): :meth:`project`'s arithmetic,
+        operation for operation, in plain floats (a ball centre's image is taken every round of
+        a fit, where two dozen numpy calls on one point cost far more than the arithmetic)."""
+        z = cz if cz > 0 else math.nan
+        x, y = cx / z, cy / z
+        k1, k2, p1, p2, k3 = self._dist
+        r2 = x * x + y * y
+        radial = 1 + r2 * (k1 + r2 * (k2 + r2 * k3))
+        xd = x * radial + 2 * p1 * x * y + p2 * (r2 + 2 * x * x)
+        yd = y * radial + p1 * (r2 + 2 * y * y) + 2 * p2 * x * y
+        k00, k01, k02, k11, k12 = self._k
+        return np.array([[k00 * xd + k01 * yd + k02, k11 * yd + k12]])
 
     def sphere_outline(self, x_mm: float, y_mm: float, radius_mm: float) -> np.ndarray:
         """(32, 2) pixels of the silhouette of the sphere of radius ``radius_mm`` centred
@@ -1019,6 +1035,10 @@ class BallDetector:
         self.zone = ball_zone(camera, table)
         self.rays = RayMap(camera)
         self.cloth = cloth_zone(camera, table)
+        # Distance (px) from each pixel to the nearest pixel off the cloth zone (which sees the
+        # bed at least 5 mm inside the noses): a disc of smaller radius round a pixel sees only
+        # the bed (:meth:`_surround_off_bed`).
+        self._bed_px = cv2.distanceTransform(self.cloth.astype(np.uint8), cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
         if not self.zone.any():
             raise ValueError("the table is nowhere in the camera's view; check the calibration (camera pose)")
         # Ball diameter in pixels at the middle of the table, for scales.
@@ -1147,7 +1167,7 @@ class BallDetector:
         grow = int(math.ceil(1.5 * self.r_max_px / cs)) + 1
         k = cv2.getStructuringElement(cv2.MORPH_RECT, (2 * grow + 1, 2 * grow + 1))
         region_small = cv2.dilate(changed.astype(np.uint8), k)
-        n, lab, stats, _ = cv2.connectedComponentsWithStats(region_small, connectivity=8)
+        n, lab, stats = components_8(region_small)
         w, h = self.size
         boxes = []
         for i in range(1, n):
@@ -1210,7 +1230,7 @@ class BallDetector:
                 cv2.fillPoly(gone, [np.round(out + c - np.array([u0, v0])).astype(np.int32)], 1)
             fg[gone > 0] = 0
         fg = cv2.morphologyEx(fg, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-        n, lab, stats, _ = cv2.connectedComponentsWithStats(fg, connectivity=8)
+        n, lab, stats = components_8(fg)
         return n, lab, stats
 
     def _detect_box(self, img: np.ndarray, box, known: list[dict] = ()) -> list[dict]:
@@ -1789,6 +1809,13 @@ class BallDetector:
         1 mm in the rendered cut_bank clip, for balls within 40 mm of the rail far from the
         camera). Such rays are left out of the local rounds like a neighbour's rim.
         """
+        h, w = self._bed_px.shape
+        iu, iv = int(round(float(c[0]))), int(round(float(c[1])))
+        # Every sample lies within the largest reach of the centre's image: a ball that far
+        # inside the cloth zone (a pixel of margin for the rounding of c and the zone's own
+        # interpolation) sees only the bed, as the back-projection would find.
+        if 0 <= iu < w and 0 <= iv < h and self._bed_px[iv, iu] > float(np.max(rho_pred)) + _LOCAL_REACH_PX + 2.0:
+            return np.zeros(len(dirs), bool)
         t = self.table
         uv = c[None] + (rho_pred + _LOCAL_REACH_PX)[:, None] * dirs
         q = self.rays.backproject(uv, 0.0)
