@@ -795,6 +795,31 @@ def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.n
     return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
 
 
+def _off_white_cloth(I: np.ndarray, W: np.ndarray, C: np.ndarray) -> np.ndarray:
+    """(N,) sine of the angle between colours ``I`` (N, 3) and the nearest non-negative mix
+    ``a W + b C`` of a white ``W`` (3,) and the empty table ``C`` (N, 3) at the same pixels: the
+    residual's length over ``|I|`` (floored at 20 DN, as :func:`_chroma_off`). Every pixel of a
+    white ball is such a mix whatever its shading (Lambert's cosine law scales ``a``), the bounce
+    light from the cloth or motion blur and the rim's mixing with the cloth (``b``): a two-term
+    non-negative least squares (Lawson & Hanson 1974), the better single term where the
+    unconstrained solution has a negative coefficient."""
+    I = I.astype(np.float32)
+    C = C.astype(np.float32)
+    W = np.broadcast_to(np.asarray(W, np.float32), C.shape)
+    ww, cc, wc = _dot3(W, W), _dot3(C, C), _dot3(W, C)
+    wi, ci = _dot3(W, I), _dot3(C, I)
+    det = np.maximum(ww * cc - wc * wc, 1e-6 * ww * cc + 1e-9)
+    a, b = (cc * wi - wc * ci) / det, (ww * ci - wc * wi) / det
+    fit = a[:, None] * W + b[:, None] * C
+    one = (a < 0) | (b < 0)
+    if one.any():
+        fw = np.maximum(wi / np.maximum(ww, 1e-9), 0.0)[:, None] * W
+        fc = np.maximum(ci / np.maximum(cc, 1e-9), 0.0)[:, None] * C
+        best = np.where((_norm3(I - fw) <= _norm3(I - fc))[:, None], fw, fc)
+        fit = np.where(one[:, None], best, fit)
+    return _norm3(I - fit) / np.maximum(_norm3(I), 20.0)
+
+
 def _off_hue_edges(prof: np.ndarray, off: np.ndarray, S: np.ndarray, min_step: float) -> tuple[np.ndarray, np.ndarray]:
     """Outline offsets (K,) px along rays and whether found (K,) bool, from the part of the
     colour off the surround's own colour direction: ``prof`` (K, N, 3) colours sampled at
@@ -2066,6 +2091,22 @@ class BallDetector:
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
         return float(np.mean(ballness(f, b) < self._score_thr))
 
+    def _band_seen(self, I: np.ndarray, B: np.ndarray, white: np.ndarray, S: np.ndarray, V: np.ndarray, cloth_s: float) -> bool:
+        """Whether a ball's pixels ``I`` (N, 3) BGR over the empty table ``B`` (N, 3), with their
+        white mask, HSV saturation ``S`` and value ``V`` (N,) (OpenCV's 0..255) and the cloth's
+        saturation ``cloth_s``, show a stripe's band: at least 3 % of them (the share the cue
+        test allows for colour) off every mix of the ball's white and the cloth
+        (:func:`_off_white_cloth` above the detector's colour threshold) or more saturated than
+        the cloth (no mix of white with the cloth is). The saturation test leaves out pixels
+        below 45 of 255, where a few DN of noise swing it (a shadow's edge, a shaded limb); the
+        mix test's sine is floored in brightness and keeps them (a dark band)."""
+        if not white.any():
+            return True
+        W = I[white].astype(np.float32).mean(axis=0)
+        off = (_off_white_cloth(I, W, B) > self._score_thr) & ~white
+        sat = (S >= max(50.0, cloth_s + 20.0)) & (V >= 45) & ~white
+        return bool(off.mean() >= 0.03 or sat.mean() >= 0.03)
+
     def _identity(self, img: np.ndarray, uv: np.ndarray, r_px: float) -> tuple[str, str]:
         """Colour label and pattern from the pixels inside 0.88 of the ball's image radius
         ``r_px`` (the outer rim is kept: seen from above, a stripe's band lies round the rim).
@@ -2073,9 +2114,10 @@ class BallDetector:
         In HSV, pixels are white (low saturation, bright against the ball's brightest), dark,
         or coloured (saturated and not of the cloth's own hue: rim pixels mixed with the cloth
         do not count). Shares decide: ``cue`` almost all white and no colour; ``stripe`` a
-        white share and a coloured share together; ``solid`` colour (or black) with little
-        white (the number disc); else ``unknown``. The coloured pixels' median hue picks the
-        label from our own coarse hue bands. A ball with little colour or white that is of the
+        white share and a coloured share together, or a white share and, with no colour, pixels
+        neither the ball's white nor the cloth (:meth:`_band_seen`); ``solid`` colour (or black)
+        with little white (the number disc); else ``unknown``. The coloured pixels' median hue
+        picks the label from our own coarse hue bands. A ball with little colour or white that is of the
         cloth's own hue and brightness (:meth:`_same_hue`) has its cloth-like pixels counted as
         colour.
         """
@@ -2118,7 +2160,12 @@ class BallDetector:
             coloured = (S >= 90) & ~white
             fc = coloured.mean()
         if fc < 0.04:
-            return "", ("stripe" if fw >= 0.5 else "unknown")
+            # No colour inside 0.88 of the radius: a stripe whose band lies round the limb, or a
+            # white ball shaded toward its limb (dim or one-sided light) or smeared with the cloth
+            # by motion blur. Only a band can show a colour that is neither the ball's white nor
+            # the cloth's, so without one the pattern is left unknown.
+            band = fw >= 0.5 and self._band_seen(patch[inside], self.background.image[v0:v1, u0:u1][inside], white, S, V, cs)
+            return "", ("stripe" if band else "unknown")
         hue = float(np.median(H[coloured]))
         # Red wraps round 0/180 in OpenCV's half-degree hue: take the circular median's side.
         if np.mean((H[coloured] >= 160) | (H[coloured] < 8)) > 0.5:
