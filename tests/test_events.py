@@ -571,6 +571,44 @@ def test_contacts_with_the_reversal_line_off_by_a_millimetre_and_a_half():
 
 
 @pytest.fixture(scope="module")
+def contacts_at_30fps():
+    """Median |errors| (angle_in, angle_out, restitution) over three cushion sessions filmed at
+    30 fps with the noise of ``benchmarks/event_accuracy.py`` (2.5 mm per axis moving)."""
+    errs = []
+    for seed in (1, 2, 3):
+        found, truth = _cushion_session(seed, fps=30.0, noise_mm=2.5)
+        assert len(found) == len(truth) >= 10
+        for _, tr in truth.iterrows():
+            r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
+            errs.append((abs(r["angle_in"] - tr["angle_in"]),
+                         abs(r["angle_out"] - tr["angle_out"]),
+                         abs(r["restitution"] - tr["restitution"])))
+    med = np.median(np.array(errs), axis=0)
+    print("median |angle_in|, |angle_out| deg, |restitution|:", med)
+    return med
+
+
+def test_contact_angles_at_30fps(contacts_at_30fps):
+    # At 30 fps a 0.3 s window holds 9 samples a side, half what it holds at 60 fps, and a
+    # side's velocity is known to a variance proportional to 1 / (rate T^3) (least-squares
+    # slope), so the window stretches to 12 frame intervals (EventConfig.fit_min_samples).
+    # Targets are the issue's (angle 1 degree, medians); the truth is the simulator's impact.
+    # Measured: angle_in 0.64, angle_out 0.74 deg; over 0.3 s (before): 0.90, 1.44.
+    assert contacts_at_30fps[0] <= 1.0
+    assert contacts_at_30fps[1] <= 1.0
+
+
+@pytest.mark.xfail(strict=True, reason="restitution median 0.038 at 30 fps: every departure "
+                   "holds the clip's pooled mu_s g, which the slides of 3-5 frames after a "
+                   "cushion fix poorly and state too precisely (1132 +- 119 mm/s^2 on the "
+                   "seed-2 session, whose cloth is 1962; its restitution errors all negative, "
+                   "median -0.076); with the true mu_s g given, 0.024 on the simulated shots "
+                   "of benchmarks/event_accuracy.py; not yet solved")
+def test_restitution_at_30fps(contacts_at_30fps):
+    assert contacts_at_30fps[2] <= 0.03  # the issue's 0.03
+
+
+@pytest.fixture(scope="module")
 def drifting_contacts():
     """Per contact |errors| (speed_in, angle_in, speed_out, angle_out, restitution) of two
     cushion sessions whose detections carry a drifting bias (see the test below)."""

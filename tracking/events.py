@@ -102,7 +102,7 @@ Method
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -134,7 +134,14 @@ class EventConfig:
     that vanishes sooner was caught or lifted, common practice). ``min_travel_mm``: least distance
     a ball must travel in a motion (default a pool ball's radius: far beyond a resting ball's
     position noise, and less than any stroke moves a ball). ``fit_window_s``: longest stretch of
-    samples fitted on each side of a contact. ``quadratic_min_samples``: fewer samples on a side
+    samples fitted on each side of a contact, stretched at low frame rates to hold
+    ``fit_min_samples`` frame intervals: a side's velocity is known to a variance proportional
+    to ``sigma^2 / (rate T^3)`` over a window T (least-squares slope of evenly spaced samples),
+    and a contact's angles and speed ratio rest on it, so a 30 fps side needs about
+    ``0.3 * 2^(1/3) = 0.38 s`` to match a 60 fps side over 0.3 s; 12 intervals (0.4 s at 30 fps,
+    0.3 s kept from 40 fps up) meet that (``benchmarks/event_accuracy.py --fps 30`` seeds 1-3:
+    angle_in 0.93, 0.72, 1.09 -> 0.63, 0.49, 0.62 degrees, angle_out 1.08, 0.95, 1.24 -> 0.93,
+    0.87, 1.00). ``quadratic_min_samples``: fewer samples on a side
     are fitted by a straight line. ``exposure_s``: exposure time of a frame; samples whose exposure
     spans a contact are left out of its fits (None: half the frame interval, a 180-degree shutter,
     common practice). ``cushion_reach_mm``: a normal-velocity reversal counts as a cushion contact
@@ -201,6 +208,7 @@ class EventConfig:
     min_rest_s: float = 0.3
     min_travel_mm: float = 28.575
     fit_window_s: float = 0.3
+    fit_min_samples: int = 12
     quadratic_min_samples: int = 6
     exposure_s: float | None = None
     cushion_reach_mm: float = 30.0
@@ -870,6 +878,8 @@ def find_events(
     balls = _balls(tracks, detections, table.radius_mm)
     dts = np.diff(np.unique(tracks["t"].to_numpy(float)))
     dt = float(np.median(dts)) if len(dts) else 1.0 / 60.0
+    # At a low frame rate the window stretches to hold enough samples (EventConfig).
+    cfg = replace(cfg, fit_window_s=max(cfg.fit_window_s, cfg.fit_min_samples * dt))
     exposure = cfg.exposure_s if cfg.exposure_s is not None else 0.5 * dt
     t_clip_end = float(tracks["t"].max())
     finder = _Finder(table, cfg, dt, exposure)
