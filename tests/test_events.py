@@ -570,13 +570,11 @@ def test_contacts_with_the_reversal_line_off_by_a_millimetre_and_a_half():
     assert med[1] <= 0.03
 
 
-@pytest.fixture(scope="module")
-def drifting_contacts():
-    """Per contact |errors| (speed_in, angle_in, speed_out, angle_out, restitution) of two
-    cushion sessions whose detections carry a drifting bias (see the test below)."""
+def _session_errors(sessions) -> np.ndarray:
+    """Median |errors| (speed_in, angle_in, speed_out, angle_out, restitution) over the contacts
+    of cushion sessions, each (found cushion events, the simulator's) of ``_cushion_session``."""
     errs = []
-    for seed in (3, 4):
-        found, truth = _cushion_session(seed, noise_mm=0.15, drift_mm=1.0, drift_s=(0.15, 0.3))
+    for found, truth in sessions:
         assert len(found) == len(truth) >= 10
         for _, tr in truth.iterrows():
             r = found.iloc[int(np.argmin(np.abs(found["t"] - tr["t"])))]
@@ -588,6 +586,42 @@ def drifting_contacts():
     med = np.median(np.array(errs), axis=0)
     print("median |speed_in|, |angle_in|, |speed_out|, |angle_out|, |restitution|:", med)
     return med
+
+
+@pytest.fixture(scope="module")
+def contacts_at_30fps():
+    """Median |errors| (angle_in, angle_out, restitution) over three cushion sessions filmed at
+    30 fps with the noise of ``benchmarks/event_accuracy.py`` (2.5 mm per axis moving)."""
+    med = _session_errors([_cushion_session(seed, fps=30.0, noise_mm=2.5) for seed in (1, 2, 3)])
+    return med[[1, 3, 4]]
+
+
+def test_contact_angles_at_30fps(contacts_at_30fps):
+    # At 30 fps a 0.3 s window holds 9 samples a side, half what it holds at 60 fps, and a
+    # side's velocity is known to a variance proportional to 1 / (rate T^3) (least-squares
+    # slope), so the window stretches to 12 frame intervals (EventConfig.fit_min_samples).
+    # Targets are the issue's (angle 1 degree, medians); the truth is the simulator's impact.
+    # Measured: angle_in 0.63, angle_out 0.51 deg; over 0.3 s (before): 0.90, 1.44.
+    assert contacts_at_30fps[0] <= 1.0
+    assert contacts_at_30fps[1] <= 1.0
+
+
+def test_restitution_at_30fps(contacts_at_30fps):
+    # Every departure holds the clip's pooled mu_s g (_cloth_slide_decel), and the slides of
+    # 5-12 frames it pools at 30 fps are ambiguous between a slide lasting through the window
+    # at a low mu_s g and a shorter one at the true mu_s g. The target is the issue's (0.03,
+    # median); the truth is the simulator's impact. Measured: 0.022 (pooled mu_s g 2182, 1872,
+    # 1921 mm/s^2 on the 1962 cloth); with a slide through the window charged a parameter less
+    # than one ending in it (before): 0.038 (the seed-2 session pooled 1132 +- 119).
+    assert contacts_at_30fps[2] <= 0.03  # the issue's 0.03
+
+
+@pytest.fixture(scope="module")
+def drifting_contacts():
+    """Per contact |errors| (speed_in, angle_in, speed_out, angle_out, restitution) of two
+    cushion sessions whose detections carry a drifting bias (see the test below)."""
+    return _session_errors([_cushion_session(seed, noise_mm=0.15, drift_mm=1.0,
+                                             drift_s=(0.15, 0.3)) for seed in (3, 4)])
 
 
 def test_contacts_with_a_drifting_detection_bias(drifting_contacts):
@@ -612,6 +646,34 @@ def test_contacts_with_a_drifting_detection_bias(drifting_contacts):
                    "after the cushion fix its direction poorly; not yet solved")
 def test_departure_angle_with_a_drifting_detection_bias(drifting_contacts):
     assert drifting_contacts[3] <= 1.0  # the issue's 1 degree
+
+
+def test_slide_direction_prior_mean_follows_the_impact_model():
+    # The prior's mean direction of the slide after a cushion (_slide_direction, a closed form
+    # of the impact model of Mathavan, Jackson & Parkin 2010 with the nose contact slipping in
+    # one direction throughout) against that model's own integration (analysis.cushion,
+    # cushion_friction 0.14) for a ball arriving rolling without side spin: friction opposes
+    # the slip of the cloth contact (Alciatore 2004). Measured: within 0.51 degree at 0-80
+    # degrees off square, 0.3-3 m/s, cloth 0.15-0.3; the normal alone (before) was 2.85 off.
+    from analysis.cushion import CushionParams, cushion_impact
+    from tracking.events import _slide_direction
+
+    cp = CushionParams()
+    n = np.array([0.0, 1.0])  # bottom rail
+    worst = 0.0
+    for mu_s in (0.15, 0.3):
+        for speed in (300.0, 1000.0, 3000.0):
+            for a in (0.0, 10.0, 20.0, 30.0, 45.0, 60.0, 80.0):
+                v = speed * np.array([math.sin(math.radians(a)), -math.cos(math.radians(a))])
+                w = np.array([-v[1] / R, v[0] / R, 0.0])  # rolling: v + w x (0, 0, -R) = 0
+                e = cp.restitution(-v[1])
+                v2, w2 = cushion_impact(v, w, n, TABLE, e, cp.mu_cushion, mu_s)
+                slip = np.array([v2[0] - R * w2[1], v2[1] + R * w2[0]])
+                d = _slide_direction(v, n, TABLE.contact_angle_rad, cp.mu_cushion)
+                diff = math.atan2(-slip[0], -slip[1]) - math.atan2(d[0], d[1])
+                worst = max(worst, abs(math.degrees(math.remainder(diff, 2 * math.pi))))
+    print("largest difference, degrees:", worst)
+    assert worst <= 0.6
 
 
 def test_slide_direction_prior_spans_the_impact_models_slips():

@@ -59,8 +59,10 @@ Method
    clip without a measured slide has the prior's typical cloth there, while its rough,
    unpinned departure fits keep the loose prior. After a cushion a ball always slides (its
    spin still carries it toward the rail), so a departure through the contact is fitted as a
-   slide (of any length from none on), and the slide of a ball that arrived rolling gets a prior along
-   the rail's normal; its duration gets a prior from the clip's other cushion contacts
+   slide (of any length from none on), and the slide of a ball that arrived rolling gets a prior
+   on its direction, the rail's normal turned a few degrees toward the ball's along-rail travel
+   by the cushion's friction (``_slide_direction``, Mathavan, Jackson & Parkin 2010), and on its
+   duration from the clip's other cushion contacts
    (``_cushion_slide_ratio``: the normal speed lost sliding is about a fixed fraction of the
    normal speed arriving).
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
@@ -102,7 +104,7 @@ Method
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -134,7 +136,15 @@ class EventConfig:
     that vanishes sooner was caught or lifted, common practice). ``min_travel_mm``: least distance
     a ball must travel in a motion (default a pool ball's radius: far beyond a resting ball's
     position noise, and less than any stroke moves a ball). ``fit_window_s``: longest stretch of
-    samples fitted on each side of a contact. ``quadratic_min_samples``: fewer samples on a side
+    samples fitted on each side of a contact, stretched at low frame rates to hold
+    ``fit_min_samples`` frame intervals: a side's velocity is known to a variance proportional
+    to ``sigma^2 / (rate T^3)`` over a window T (least-squares slope of evenly spaced samples),
+    and a contact's angles and speed ratio rest on it, so a 30 fps side needs about
+    ``0.3 * 2^(1/3) = 0.38 s`` to match a 60 fps side over 0.3 s; 12 intervals (0.4 s at 30 fps,
+    0.3 s kept from 40 fps up) meet that (``benchmarks/event_accuracy.py --fps 30`` seeds 1-3:
+    angle_in 0.93, 0.72, 1.09 -> 0.63, 0.49, 0.62 degrees, angle_out 1.08, 0.95, 1.24 -> 0.93,
+    0.87, 1.003). Collision fits keep ``fit_window_s`` (stretched, they lost one of 32
+    collisions at 30 fps, seed 1). ``quadratic_min_samples``: fewer samples on a side
     are fitted by a straight line. ``exposure_s``: exposure time of a frame; samples whose exposure
     spans a contact are left out of its fits (None: half the frame interval, a 180-degree shutter,
     common practice). ``cushion_reach_mm``: a normal-velocity reversal counts as a cushion contact
@@ -179,6 +189,8 @@ class EventConfig:
     bias drifting by that much near the cushion turns it to the prior's edge; at 5 degrees
     the slip turned 5 degrees and angle_out 1.8 degrees on a sample clip's contact
     (``benchmarks/analyse_accuracy.py`` cut_bank, 3.42 s), at 10 degrees 9 and 3.
+    ``cushion_friction``: ball-cushion sliding friction of the impact model (Mathavan, Jackson &
+    Parkin 2010: 0.14), which turns the prior's mean slide direction (``_slide_direction``).
     ``slide_ratio_sigma``: sd of the prior on the fraction of its normal speed a ball arriving
     rolling loses sliding after a cushion (``_cushion_slide_ratio``; 0.28 to 0.43 in that model
     over normal speeds of 0.1 to 3.1 m/s arriving), and ``slide_ratio_min_contacts`` the fewest well-seen slides
@@ -201,6 +213,7 @@ class EventConfig:
     min_rest_s: float = 0.3
     min_travel_mm: float = 28.575
     fit_window_s: float = 0.3
+    fit_min_samples: int = 12
     quadratic_min_samples: int = 6
     exposure_s: float | None = None
     cushion_reach_mm: float = 30.0
@@ -224,6 +237,7 @@ class EventConfig:
     roll_decel_sigma_mm_s2: float = 50.0
     slide_min_samples: int = 5
     slide_dir_sigma_deg: float = 3.0
+    cushion_friction: float = 0.14
     slide_fit_s: float = 0.8
     slide_ratio_sigma: float = 0.05
     slide_ratio_min_contacts: int = 3
@@ -367,8 +381,12 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     the angle of the constant slip direction): for a given tk the least-squares problem with
     ``|2 c2| = slide_decel`` is reduced to the two slide coefficients (the others eliminated by
     their normal equations, a Schur complement) and minimised over the angle to 0.5 degree.
-    The candidates are then sliding (no kink in the window; 5 parameters) and slide then roll
-    (6), the kink from the first sample on (from half a grid step after ``t0`` when ``pin`` is
+    The candidates are then sliding (no kink in the window) and slide then roll, both of 6
+    parameters: a slide through the window is the slide-then-roll path with its kink beyond the
+    last sample, its duration bounded below, not a model without one (charged a parameter less,
+    it was the better criterion at any mu_s g low enough for a slide to outlast the window, so
+    the profile over mu_s g leaned low: a simulated 30 fps cushion session on a 1962 mm/s^2
+    cloth pooled 1132 +- 119, ``tests/test_events.py``), the kink from the first sample on (from half a grid step after ``t0`` when ``pin`` is
     given: through the pinned contact a slide ending before the first sample is still fixed);
     neither rolling from the contact nor the free quadratic is offered, since after a cushion
     physics leaves no other path (the ball slides first, ``_Finder.cushion``). The returned
@@ -561,7 +579,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         out = solve_fixed(one, 2, None, 0.5 * slide_decel, "one")
         if out is not None:
             coef, rss, inv = out
-            k = 5 - n_pinned
+            k = 6 - n_pinned  # c0, c1 per axis, the slip angle and the kink beyond the window
             c4 = np.zeros((4, 2))
             c4[:3] = coef[0]
             # Sliding through the window: the slide lasts at least to the last sample.
@@ -870,9 +888,14 @@ def find_events(
     balls = _balls(tracks, detections, table.radius_mm)
     dts = np.diff(np.unique(tracks["t"].to_numpy(float)))
     dt = float(np.median(dts)) if len(dts) else 1.0 / 60.0
+    # At a low frame rate the window stretches to hold enough samples (EventConfig); not for
+    # collisions, whose fits grow from the contact only while one parabola explains them.
+    collision_window_s = cfg.fit_window_s
+    cfg = replace(cfg, fit_window_s=max(cfg.fit_window_s, cfg.fit_min_samples * dt))
     exposure = cfg.exposure_s if cfg.exposure_s is not None else 0.5 * dt
     t_clip_end = float(tracks["t"].max())
     finder = _Finder(table, cfg, dt, exposure)
+    finder.collision_window_s = collision_window_s
     finder.t_end = t_clip_end
     for b in balls:
         _motion(b, cfg)
@@ -1086,6 +1109,42 @@ def _cushion_slide_ratio(finder: "_Finder") -> float | None:
     return float(np.median(r))
 
 
+def _slide_direction(v_in: np.ndarray, n_in: np.ndarray, theta: float, mu: float) -> np.ndarray:
+    """Unit vector (2,) of the cloth's friction on a ball that arrived rolling (no side spin) at
+    velocity ``v_in`` (2,) mm/s into a cushion of inward normal ``n_in`` (2,), while it slides
+    away after the impact: the mean of the prior on the slide's direction (``_Finder.cushion``).
+
+    In the impact model of Mathavan, Jackson & Parkin (2010) the cushion's nose touches the ball
+    at ``theta`` above its equator (``TableSpec.contact_angle_rad``) and the normal impulse P
+    there passes through the centre, so only friction (coefficient ``mu``) turns the ball. Of
+    a rolling ball arriving at ``alpha`` from the normal, the nose contact slips along
+    ``(sin alpha, cos alpha)`` (along the rail, up the nose); taking that slip to keep its
+    direction through the impact, the nose's friction impulse is ``mu P`` against it, and the
+    slip of the cloth contact (solid sphere, ``I = 2/5 M R^2``: a tangential impulse J at
+    either contact changes the spin by ``5 J / (2 R)``) changes along the rail by
+    ``-mu P sin(alpha) (1 - 5/2 sin(theta))`` and along the outward normal by
+    ``P (cos(theta) - mu cos(alpha) (5/2 - sin(theta)))``; the cloth's own friction during the
+    impact only shrinks that slip. Friction opposes the slip (Alciatore 2004), so the slide
+    decelerates toward the rail, turned toward the ball's along-rail travel by
+    ``atan(mu sin(alpha) (1 - 5/2 sin(theta)) / (cos(theta) - mu cos(alpha) (5/2 - sin(theta))))``:
+    0 square on, 2.7 degrees at a graze with the paper's ``mu`` 0.14 and the nose at 63.5 % of
+    the ball's height, within 0.51 degree of the model's own integration
+    (``analysis.cushion.cushion_impact``, ``tests/test_events.py``).
+    """
+    n_in = np.asarray(n_in, float)
+    v = np.asarray(v_in, float)
+    vn = -float(v @ n_in)
+    along = v + vn * n_in  # the velocity's along-rail part, mm/s
+    speed = math.hypot(*v)
+    if speed <= 0.0 or vn <= 0.0:
+        return -n_in
+    sin_a, cos_a = math.hypot(*along) / speed, vn / speed
+    s, c = math.sin(theta), math.cos(theta)
+    turn = math.atan2(mu * sin_a * (1.0 - 2.5 * s), c - mu * cos_a * (2.5 - s))
+    u = along / max(math.hypot(*along), 1e-12)
+    return math.cos(turn) * (-n_in) + math.sin(turn) * u
+
+
 def _apex(fa: _Fit, fd: _Fit, ax: int, t_c: float, reach_s: float) -> tuple[float, float] | None:
     """Where the approach and departure paths meet: (normal coordinate mm, its variance mm^2).
 
@@ -1198,6 +1257,9 @@ class _Finder:
         self.rail_line_sd = {r: 0.0 for r in RAILS}
         # The clip's last frame time (s): a ball unseen after it is not known to have gone.
         self.t_end = math.inf
+        # Longest stretch fitted on each side of a collision (s): ``fit_window_s`` as configured,
+        # not stretched at low frame rates (``find_events``).
+        self.collision_window_s = cfg.fit_window_s
         # Rough times (s) of the contacts of balls last seen at a rail, per track (``_arrival``).
         self.arrivals: dict[int, set[float]] = {}
         self.segments = {r: [] for r in RAILS}
@@ -1226,8 +1288,9 @@ class _Finder:
         return fa, fd
 
     def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
-        """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``."""
-        w = self.cfg.fit_window_s
+        """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``,
+        over at most ``collision_window_s`` each side."""
+        w = self.collision_window_s
         ex = (t_c, 0.5 * self.exposure) if exclude else None
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
@@ -1559,14 +1622,16 @@ class _Finder:
         # ball's bottom slips along the rail's normal and friction pulls it back toward the rail
         # (Alciatore 2004: friction opposes the slip). Along the rail, the cushion's friction
         # slows the velocity and the matching spin together (Mathavan, Jackson & Parkin 2010),
-        # so the along-rail slip stays small: the prior is the rail's outward normal, sd
-        # ``slide_dir_sigma_deg``. How long the slide lasts scales with the normal speed
-        # arriving (``_cushion_slide_ratio``), a prior once the clip has measured it.
+        # so the along-rail slip stays small: the prior is within a few degrees of the rail's
+        # outward normal (``_slide_direction``), sd ``slide_dir_sigma_deg``. How long the
+        # slide lasts scales with the normal speed arriving (``_cushion_slide_ratio``), a prior
+        # once the clip has measured it.
         slide_dir = slide_tk = None
         rolling_in = self.slide_decel is not None and (fa.tk is not None or fa.k <= 4)
         n_in = np.asarray(rail_inward_normal(rail), dtype=float)
         if rolling_in:
-            slide_dir = -n_in
+            slide_dir = _slide_direction(fa.vel(t_c), n_in, self.table.contact_angle_rad,
+                                         self.cfg.cushion_friction)
             vn_in = max(-float(fa.vel(t_c) @ n_in), 0.0)
             if self.slide_ratio is not None:
                 tk = self.slide_ratio * vn_in / self.slide_decel
