@@ -860,3 +860,22 @@ def test_arm_lying_free_of_the_rail_gives_no_ball(phase, t0, t1):
     extra, missed = _film_stroke(cam, ren, at, t0, t1)
     assert sum(extra) == 0, (phase, extra)
     assert sum(missed) == 0, (phase, missed)
+
+
+def test_arm_held_still_through_the_stroke_gives_no_ball():
+    # Green cloth, a low camera with a wide lens: the player settles on the shot, the bridge
+    # hand and arms stay still through the practice strokes while only the cue moves, and the
+    # cue then withdraws along itself. Held still, the arm and the inside of the sliding cue
+    # (whose colour does not change as it moves along itself) must not be taken into the
+    # empty-table model: taken in, the cue's butt and the ghosts it leaves stood out as free,
+    # ball-sized pieces during the withdrawal. Issue acceptance: no detections from the
+    # occluder, every ball found.
+    cam = Camera.overhead(NINE_FOOT, 2300.0, (1280, 720), offset_mm=(160, -110), roll_deg=-1.5, dist=(-0.18, 0.04, 0, 0, 0))
+    look = Look(cloth_bgr=(60, 110, 70), cushion_bgr=(50, 95, 60), noise_sigma=1.8)
+    at = np.array([[700.0, 350.0], [1500.0, 900.0]])
+    occ = Occluder((CueStroke(1.5, (700.0, 350.0), math.radians(25.0)),))
+    balls = (BALLS[0], BallLook("3", "solid", (30, 40, 200)))
+    ren = Renderer(NINE_FOOT, cam, look, balls, occluder=occ, seed=8)
+    extra, missed = _film_stroke(cam, ren, at, -1.2, 0.6)
+    assert sum(extra) == 0, extra
+    assert sum(missed) == 0, missed
