@@ -43,7 +43,9 @@ Method
    ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
    half inside its box is not half a ball. A free piece of which the balls fitted in it
    leave more than a ball's area unexplained (after the remainder's own seeds below: an arm,
-   hand or cue whose sleeve ends over the cloth) is an occluder too, and its balls are fitted again under the
+   hand or cue whose sleeve ends over the cloth), or in which two fitted balls that do not touch
+   are joined by foreground (the two ends of a bridge hand; :meth:`BallDetector._bridged`), is
+   an occluder too, and its balls are fitted again under the
    same stricter tests (:meth:`BallDetector._free_occluders`). Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). Small holes in a component (a highlight or mark of
@@ -1397,7 +1399,9 @@ class BallDetector:
         tests (a ring round the ball mostly free, a shorter gap in the outline). Balls of a
         cluster leave only rims of their piece; a ball touching a free arm leaves the arm and
         is refitted, as it would be were the arm reaching in over the rail. A cluster holding
-        a ball that no fit explains (one of the limits below) is refitted so too."""
+        a ball that no fit explains (one of the limits below) is refitted so too, and so is a
+        piece in which two fitted balls that do not touch are joined by foreground
+        (:meth:`_bridged`: a hand's two rounded ends)."""
         pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
         for k, s in enumerate(seeds):
             if "piece" in s and fits[k] is not None:
@@ -1420,11 +1424,38 @@ class BallDetector:
             rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
             rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
             left = float(rest.sum())
-            if left <= area_ball:
+            if left <= area_ball and not self._bridged(comp, origin, mask, [fits[k] for k in ks]):
                 continue
             for k in ks:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
         return out
+
+    def _bridged(self, comp: np.ndarray, origin, mask: np.ndarray, rows: list[dict]) -> bool:
+        """Whether two sharp balls fitted in one free piece (``comp``, (h, w) uint8 at
+        ``origin`` px; ``mask`` their outlines filled in its frame) that do not touch (centres
+        more than 2.25 R apart, table frame: a gap of a quarter radius, well beyond the fits'
+        errors) are joined by foreground all along the line between their centres' images,
+        outside both outlines (grown by a pixel). Spheres that do not touch meet only through
+        something else lying between them: the two ends of a hand or of a forearm fitted as
+        two balls, whose middle the outlines leave less than a ball's area of."""
+        sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
+        grown = cv2.dilate(mask, np.ones((3, 3), np.uint8))
+        h, w = comp.shape
+        for i in range(len(sharp)):
+            for j in range(i + 1, len(sharp)):
+                a, b = sharp[i], sharp[j]
+                if math.hypot(a["x"] - b["x"], a["y"] - b["y"]) <= 2.25 * self.R:
+                    continue
+                p, q = np.array([a["u"], a["v"]]) - origin, np.array([b["u"], b["v"]]) - origin
+                n = int(math.ceil(2 * math.hypot(*(q - p)))) + 1
+                t = np.linspace(0.0, 1.0, n)[:, None]
+                uv = np.round(p + t * (q - p)).astype(int)
+                ok = (uv[:, 0] >= 0) & (uv[:, 0] < w) & (uv[:, 1] >= 0) & (uv[:, 1] < h)
+                uv = uv[ok]
+                gap = grown[uv[:, 1], uv[:, 0]] == 0
+                if gap.any() and np.all(comp[uv[gap, 1], uv[gap, 0]] > 0):
+                    return True
+        return False
 
     def _refit_touching(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
         """Refit each sharp ball that has another sharp ball within ``_NEAR_R`` radii (centre to
