@@ -897,3 +897,28 @@ def test_bridge_hand_is_not_taken_for_two_balls():
     extra, missed = _film_stroke(cam, ren, at, -1.2, 0.6)
     assert sum(extra) == 0, extra
     assert sum(missed) == 0, missed
+
+
+def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting):
+    # A sphere's silhouette steps from the ball to the cloth (or its own shadow) all round, so
+    # the occluder test's rim share of each rendered ball standing alone is near 1; a sphere's
+    # outline laid on bare cloth, or inside a bar wider than a ball (an arm), crosses no step
+    # anywhere (analytic: the colour is the same either side of it).
+    import cv2
+
+    name, s, _ = resting
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
+    frame = ren.render(AT[None], _rot(len(BALLS)), np.ones((1, len(BALLS)), bool), np.array([0.0]))
+    det = BallDetector(cam, NINE_FOOT)
+    det.process(0, 0.0, frame)
+    alone = AT[:4]  # balls 5 and 13 touch each other
+    uv = cam.project(np.column_stack([alone, np.full(len(alone), R)]))
+    shares = [det._rim_share(frame, p) for p in uv]
+    assert min(shares) >= 0.9, (name, shares)
+    bare = cam.project(np.array([[1600.0, 600.0, R]]))[0]
+    assert det._rim_share(frame, bare) == 0.0, name
+    arm = frame.copy()
+    r_px = det.ball_px / 2
+    cv2.rectangle(arm, (int(bare[0] - 4 * r_px), int(bare[1] - 2 * r_px)), (int(bare[0] + 4 * r_px), int(bare[1] + 2 * r_px)), (120, 150, 200), -1)
+    assert det._rim_share(arm, bare) == 0.0, name

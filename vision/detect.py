@@ -37,7 +37,9 @@ Method
    the ball zone (an arm or cue coming in over the rail) seeds only deep, isolated peaks and
    its fits must pass stricter outline tests, among them a ring round the ball mostly free (as
    round a whole ball touching the arm, not a hand or knuckle continued by it; a seed whose ring
-   is already covered well beyond that is not fitted at all: most are the arm's own). Whether a
+   is already covered well beyond that is not fitted at all: most are the arm's own), and the
+   outline itself stepping from ball to surround over as much of its length (not where a cue
+   runs on or a shadow's edge stands for the rim: :meth:`BallDetector._rim_share`). Whether a
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
    ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
@@ -2021,8 +2023,36 @@ class BallDetector:
         for sampling. A piece of the occluder itself (a hand between the wrist and the cue, a
         knuckle) is continued by the rest of the occluder and usually hides more; the bare
         rounded end of something exactly a ball wide hides 2 asin(1 / 1.4) (91 degrees) and is
-        not told apart by this test."""
-        return self._ring_share(img, uv) >= _ISOLATED_SHARE
+        not told apart by this test. The ball's own outline must also step from the ball to
+        what lies outside it on at least the same share of its length (:meth:`_rim_share`):
+        a ball shows that step all round, against an arm it touches too, so the bound only
+        leaves room for a quarter of its outline hidden under something lying over it."""
+        return self._ring_share(img, uv) >= _ISOLATED_SHARE and self._rim_share(img, uv) >= _ISOLATED_SHARE
+
+    def _rim_share(self, img: np.ndarray, uv: np.ndarray) -> float:
+        """Share of the 48 rays of the outline of the ball whose centre's image is ``uv`` (px)
+        along which the frame steps at the outline from a ball to what lies outside it: the
+        mean colour P 1.25..2 px inside the predicted silhouette against S 1.75..2.75 px
+        outside it (the bands of :meth:`_edges_local`) is no step when P is S, or S only dimmed
+        or brightened a little (brightness ratio ``P.S / S.S`` in 0.5..1.15 and chromaticity
+        distortion below sin 0.08, :func:`ballness`'s and :meth:`_edges`' bounds of shading
+        after Horprasert, Harwood & Davis 1999). A ball's rim stands out against the cloth,
+        its shadow or an arm it touches all round; an outline fitted to the end of a cue and
+        the edge of its cast shadow has no step where the cue runs on and where the shadow's
+        edge stands for the rim."""
+        X = self.rays.backproject(np.asarray(uv, float)[None], self.R)[0]
+        rho = _ray_polygon(np.asarray(uv, float), _RAY_DIRS, self.rays.sphere_outline(X[0], X[1], self.R))
+        if np.any(~np.isfinite(rho)):
+            return 0.0
+        off = np.array([-2.0, -1.75, -1.5, -1.25, 1.75, 2.0, 2.25, 2.5, 2.75])
+        r = np.maximum(rho[:, None] + off[None, :], 0.0)
+        mx = (uv[0] + r * _RAY_DIRS[:, 0:1]).astype(np.float32)
+        my = (uv[1] + r * _RAY_DIRS[:, 1:2]).astype(np.float32)
+        prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        P, S = prof[:, :4].mean(axis=1), prof[:, 4:].mean(axis=1)
+        a = _dot3(P, S) / np.maximum(_dot3(S, S), 1.0)
+        shade = (a >= 0.5) & (a <= 1.15) & (_chroma_off(P, S, a) < 0.08)
+        return float(np.mean(~shade))
 
     def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
         """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background."""
