@@ -216,11 +216,12 @@ def test_update_of_8_bit_frames_matches_the_float_path():
         a.update(f, protect)
         b.update(f.astype(np.float32), protect)
     assert np.array_equal(a.image, b.image) and a.sigma == b.sigma
-    # The ghost paths ran: the still arm, which reaches the zone's border, was taken into the
-    # model at ghost_rate 0.5 per update (4 still updates leave 1/16 of a 160 DN step), while
-    # the ball-sized thing was cleaned out of the re-seeded frame and left the cloth.
-    assert np.abs(a.image[160, 80] - np.array([90.0, 150.0, 200.0])).max() < 20.0
+    # The ghost paths ran: the ball-sized thing was cleaned out of the re-seeded frame and left
+    # the cloth, while the still arm, which reaches the zone's border, is no empty table and was
+    # kept out of the model (common practice: a background model holds the empty scene; taken
+    # in at ghost_rate 0.5 per update, 4 still updates would have left 1/16 of its 160 DN step).
     assert np.abs(a.image[115, 170] - base[0, 0] * 0.93).max() < 12.0
+    assert np.abs(a.image[160, 80] - base[0, 0]).max() < 12.0
 
 
 def test_update_moves_exactly_the_pixels_within_the_threshold():

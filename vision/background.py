@@ -22,7 +22,11 @@ may hold a player's arm. So the model is
 2. a running average (exponential forgetting) of pixels that hold no detection, so slow lighting
    drift is followed; pixels that differ from the model but hold no detection and stay unchanged
    (a ghost left where an arm or a moved ball was when the model was made) are re-seeded from the
-   current frame, cleaned as in 1.
+   current frame, cleaned as in 1, except where the cleaned frame is still not the empty table
+   (what cleaning leaves as it is: an arm, hand or cue held still, or the part of a stroking
+   cue whose colour does not change as it slides along itself). Such an occluder stays out of
+   the model, so it stays foreground to the detector and is judged as one (taken in, its ends
+   and the ghosts it left when it moved on stood out as free, ball-sized pieces).
 
 Only the *ball zone* matters: the pixels a ball on the table can cover (:func:`ball_zone`).
 """
@@ -204,7 +208,8 @@ def cloth_model(image: np.ndarray, cloth: np.ndarray, ball_px: float, config: Ba
 
 
 def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig()) -> tuple[np.ndarray, np.ndarray]:
-    """``image`` with ball-like blobs removed: (cleaned (H, W, 3) float32, filled (H, W) bool).
+    """``image`` with ball-like blobs removed: (cleaned (H, W, 3) float32, filled (H, W) bool)
+    (:func:`_clean`).
 
     Each pixel of ``zone`` is compared with what the empty table shows there: on the open cloth
     the smooth cloth model (:func:`cloth_model`); in the *rail band* (off the cloth, and up to
@@ -219,6 +224,12 @@ def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px:
     blobs are grown by ``fill_margin_radii`` ball radii and filled: in the rail band from the
     rail model, elsewhere by Telea inpainting (``cv2.inpaint``).
     """
+    return _clean(image, zone, cloth, ball_px, config)[:2]
+
+
+def _clean(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig()) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`clean_frame`, and (H, W) bool the blobs it leaves as they are (grown by
+    ``fill_margin_radii`` ball radii): no empty table."""
     img = np.asarray(image)
     f32 = img.astype(np.float32)
     model, _ = cloth_model(img, cloth, ball_px, config)
@@ -270,7 +281,13 @@ def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px:
         out[keepers] = f32[keepers]
     else:
         out = f32
-    return out, fill.astype(bool)
+    # What is left in the frame as it is (blobs that reach in over the rail, larger than
+    # max_blob_balls or too small to be a ball), grown like the filled blobs to take its rim
+    # and cast shadow with it.
+    grow = max(1, int(round(config.fill_margin_radii * ball_px / 2)))
+    kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * grow + 1, 2 * grow + 1))
+    left = cv2.dilate(((mask > 0) & ~keep[lab]).astype(np.uint8), kernel) > 0
+    return out, fill.astype(bool), left
 
 
 def _sample(image: np.ndarray, u: np.ndarray, v: np.ndarray) -> np.ndarray:
@@ -455,12 +472,13 @@ class Background:
     def _reseed(self, cur: np.ndarray, ghost: np.ndarray, box: tuple[int, int, int, int]) -> None:
         """Clean the frame inside ``box`` (u0, v0, u1, v1) only (:func:`clean_frame` on the
         window: the work scales with the ghost, not with the frame) and blend it into the model
-        at ``ghost_rate`` over the ghost pixels in the box."""
+        at ``ghost_rate`` over the ghost pixels in the box that the cleaning made empty table or
+        found so (not over what it left as it is: see the module's notes)."""
         u0, v0, u1, v1 = box
         win = (slice(v0, v1), slice(u0, u1))
-        cleaned, _ = clean_frame(cur[win].astype(np.float32), self.zone[win], self.cloth[win], self.ball_px, self.config)
+        cleaned, _, left = _clean(cur[win].astype(np.float32), self.zone[win], self.cloth[win], self.ball_px, self.config)
         sub = np.ascontiguousarray(self.image[win])
-        cv2.accumulateWeighted(cleaned, sub, self.config.ghost_rate, np.ascontiguousarray(ghost[win]))
+        cv2.accumulateWeighted(cleaned, sub, self.config.ghost_rate, np.ascontiguousarray(ghost[win] * ~left))
         self.image[win] = sub
 
 

@@ -38,13 +38,17 @@ Method
    the ball zone (an arm or cue coming in over the rail) seeds only deep, isolated peaks and
    its fits must pass stricter outline tests, among them a ring round the ball mostly free (as
    round a whole ball touching the arm, not a hand or knuckle continued by it; a seed whose ring
-   is already covered well beyond that is not fitted at all: most are the arm's own). Whether a
+   is already covered well beyond that is not fitted at all: most are the arm's own), and the
+   outline itself stepping from ball to surround over as much of its length (not where a cue
+   runs on or a shadow's edge stands for the rim: :meth:`BallDetector._rim_share`). Whether a
    component cut off by the side of its box reaches the zone's edge is judged on the whole
    frame (at half scale), so a moving hand at the end of a still arm is not taken for a free
    ball, and such a piece is seeded whole (the component within two ball diameters), so a ball
    half inside its box is not half a ball. A free piece of which the balls fitted in it
    leave more than a ball's area unexplained (after the remainder's own seeds below: an arm,
-   hand or cue whose sleeve ends over the cloth) is an occluder too, and its balls are fitted again under the
+   hand or cue whose sleeve ends over the cloth), or in which two fitted balls that do not touch
+   are joined by foreground (the two ends of a bridge hand; :meth:`BallDetector._bridged`), is
+   an occluder too, and its balls are fitted again under the
    same stricter tests (:meth:`BallDetector._free_occluders`). Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). Small holes in a component (a highlight or mark of
@@ -1470,7 +1474,9 @@ class BallDetector:
         tests (a ring round the ball mostly free, a shorter gap in the outline). Balls of a
         cluster leave only rims of their piece; a ball touching a free arm leaves the arm and
         is refitted, as it would be were the arm reaching in over the rail. A cluster holding
-        a ball that no fit explains (one of the limits below) is refitted so too."""
+        a ball that no fit explains (one of the limits below) is refitted so too, and so is a
+        piece in which two fitted balls that do not touch are joined by foreground
+        (:meth:`_bridged`: a hand's two rounded ends)."""
         pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
         for k, s in enumerate(seeds):
             if "piece" in s and fits[k] is not None:
@@ -1493,11 +1499,38 @@ class BallDetector:
             rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
             rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
             left = float(rest.sum())
-            if left <= area_ball:
+            if left <= area_ball and not self._bridged(comp, origin, mask, [fits[k] for k in ks]):
                 continue
             for k in ks:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
         return out
+
+    def _bridged(self, comp: np.ndarray, origin, mask: np.ndarray, rows: list[dict]) -> bool:
+        """Whether two sharp balls fitted in one free piece (``comp``, (h, w) uint8 at
+        ``origin`` px; ``mask`` their outlines filled in its frame) that do not touch (centres
+        more than 2.25 R apart, table frame: a gap of a quarter radius, well beyond the fits'
+        errors) are joined by foreground all along the line between their centres' images,
+        outside both outlines (grown by a pixel). Spheres that do not touch meet only through
+        something else lying between them: the two ends of a hand or of a forearm fitted as
+        two balls, whose middle the outlines leave less than a ball's area of."""
+        sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
+        grown = cv2.dilate(mask, np.ones((3, 3), np.uint8))
+        h, w = comp.shape
+        for i in range(len(sharp)):
+            for j in range(i + 1, len(sharp)):
+                a, b = sharp[i], sharp[j]
+                if math.hypot(a["x"] - b["x"], a["y"] - b["y"]) <= 2.25 * self.R:
+                    continue
+                p, q = np.array([a["u"], a["v"]]) - origin, np.array([b["u"], b["v"]]) - origin
+                n = int(math.ceil(2 * math.hypot(*(q - p)))) + 1
+                t = np.linspace(0.0, 1.0, n)[:, None]
+                uv = np.round(p + t * (q - p)).astype(int)
+                ok = (uv[:, 0] >= 0) & (uv[:, 0] < w) & (uv[:, 1] >= 0) & (uv[:, 1] < h)
+                uv = uv[ok]
+                gap = grown[uv[:, 1], uv[:, 0]] == 0
+                if gap.any() and np.all(comp[uv[gap, 1], uv[gap, 0]] > 0):
+                    return True
+        return False
 
     def _refit_touching(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
         """Refit each sharp ball that has another sharp ball within ``_NEAR_R`` radii (centre to
@@ -2078,8 +2111,36 @@ class BallDetector:
         for sampling. A piece of the occluder itself (a hand between the wrist and the cue, a
         knuckle) is continued by the rest of the occluder and usually hides more; the bare
         rounded end of something exactly a ball wide hides 2 asin(1 / 1.4) (91 degrees) and is
-        not told apart by this test."""
-        return self._ring_share(img, uv) >= _ISOLATED_SHARE
+        not told apart by this test. The ball's own outline must also step from the ball to
+        what lies outside it on at least the same share of its length (:meth:`_rim_share`):
+        a ball shows that step all round, against an arm it touches too, so the bound only
+        leaves room for a quarter of its outline hidden under something lying over it."""
+        return self._ring_share(img, uv) >= _ISOLATED_SHARE and self._rim_share(img, uv) >= _ISOLATED_SHARE
+
+    def _rim_share(self, img: np.ndarray, uv: np.ndarray) -> float:
+        """Share of the 48 rays of the outline of the ball whose centre's image is ``uv`` (px)
+        along which the frame steps at the outline from a ball to what lies outside it: the
+        mean colour P 1.25..2 px inside the predicted silhouette against S 1.75..2.75 px
+        outside it (the bands of :meth:`_edges_local`) is no step when P is S, or S only dimmed
+        or brightened a little (brightness ratio ``P.S / S.S`` in 0.5..1.15 and chromaticity
+        distortion below sin 0.08, :func:`ballness`'s and :meth:`_edges`' bounds of shading
+        after Horprasert, Harwood & Davis 1999). A ball's rim stands out against the cloth,
+        its shadow or an arm it touches all round; an outline fitted to the end of a cue and
+        the edge of its cast shadow has no step where the cue runs on and where the shadow's
+        edge stands for the rim."""
+        X = self.rays.backproject(np.asarray(uv, float)[None], self.R)[0]
+        rho = _ray_polygon(np.asarray(uv, float), _RAY_DIRS, self.rays.sphere_outline(X[0], X[1], self.R))
+        if np.any(~np.isfinite(rho)):
+            return 0.0
+        off = np.array([-2.0, -1.75, -1.5, -1.25, 1.75, 2.0, 2.25, 2.5, 2.75])
+        r = np.maximum(rho[:, None] + off[None, :], 0.0)
+        mx = (uv[0] + r * _RAY_DIRS[:, 0:1]).astype(np.float32)
+        my = (uv[1] + r * _RAY_DIRS[:, 1:2]).astype(np.float32)
+        prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        P, S = prof[:, :4].mean(axis=1), prof[:, 4:].mean(axis=1)
+        a = _dot3(P, S) / np.maximum(_dot3(S, S), 1.0)
+        shade = (a >= 0.5) & (a <= 1.15) & (_chroma_off(P, S, a) < 0.08)
+        return float(np.mean(~shade))
 
     def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
         """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background."""
