@@ -176,9 +176,16 @@ class EventConfig:
     ``slide_decel_sigma_mm_s2`` prior of the sliding deceleration ``mu_s g`` (Alciatore 2004
     typical 0.2, range 0.15-0.4 [secondary]; Mathavan et al. 2009: 1.75-2.40 m/s^2);
     ``slide_decel_min_mm_s2`` / ``slide_decel_max_mm_s2`` hard bounds (0.05 g and 0.6 g).
-    ``slide_min_samples``: fewest samples on a sliding piece for it to count as a measurement of
-    the cloth's sliding deceleration (``_cloth_slide_decel``). ``slide_dir_sigma_deg``: sd of
-    the prior on the direction of the slide after a cushion (``_Finder.cushion``; in the impact
+    ``slide_min_samples``: fewest samples on a sliding piece for it to count as well seen, so
+    that its duration measures the clip's slide ratio after a cushion (``_cushion_slide_ratio``).
+    ``cloth_slide_min_samples``: fewest samples on a sliding piece for it to count as a
+    measurement of the cloth's sliding deceleration (``_cloth_slide_decel``): three, the fewest
+    that give a constant-acceleration piece a curvature of its own; each slide weighs by its
+    own profile there, so a short one counts little but not nothing (at 30 fps the slide after
+    a cushion lasts 2-5 frames; requiring five samples left 103 of 366 contacts of
+    ``benchmarks/event_accuracy.py --fps 30`` seeds 1-3 on the typical cloth's prior alone).
+    ``slide_dir_sigma_deg``: sd of the prior on the direction of the slide after a cushion
+    (``_Finder.cushion``; in the impact
     model of Mathavan, Jackson & Parkin 2010 as ``analysis.cushion`` implements it, a ball
     arriving rolling slides within 2.9 degrees of the normal at any angle up to 85 degrees off
     square, 0.1 to 3 m/s, with side spin up to its rolling spin, ``tests/test_events.py``; the
@@ -236,6 +243,7 @@ class EventConfig:
     slide_decel_sigma_mm_s2: float = 600.0
     roll_decel_sigma_mm_s2: float = 50.0
     slide_min_samples: int = 5
+    cloth_slide_min_samples: int = 3
     slide_dir_sigma_deg: float = 3.0
     cushion_friction: float = 0.14
     slide_fit_s: float = 0.8
@@ -998,10 +1006,12 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     collision or a stun strike the ball slides at ``mu_s g`` in a fixed direction until it
     rolls) decelerates alike. Each departure (after a rough cushion contact, a rough collision
     or the start of a motion) is first fitted on its own by ``_piecewise_fit`` with the sliding
-    deceleration free; one whose piece next to the contact spans at least ``slide_min_samples``
-    samples and decelerates within ``slide_decel_min_mm_s2 .. slide_decel_max_mm_s2`` is a
-    measurement, whichever model was chosen (a slide through the whole window can pass for the
-    one-piece rolling model, whose prior on mu_r g is weak against many samples). Its information about ``mu_s g`` is its profile criterion: the
+    deceleration free; one whose piece next to the contact spans at least
+    ``cloth_slide_min_samples`` samples and decelerates within
+    ``slide_decel_min_mm_s2 .. slide_decel_max_mm_s2`` is a measurement, whichever model was
+    chosen (a slide through the whole window can pass for the one-piece rolling model, whose
+    prior on mu_r g is weak against many samples). Its information about ``mu_s g`` is its
+    profile criterion: the
     departure refitted with the deceleration held at a trial value r (``_piecewise_fit`` with
     ``slide_decel = r``: slip direction, speed and the slide's duration profiled out),
     ``chi2_i(r) = m_i ln(RSS_i(r) / m_i) + k_i(r) ln m_i`` over its ``m_i`` coordinates, the
@@ -1034,7 +1044,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
             # From a frame past the rough time: the contact lies within a frame of it.
             ts, ps = b.samples(tg + dt + 0.5 * finder.exposure,
                                min(hi, tg + cfg.slide_fit_s))
-            if len(ts) < max(cfg.quadratic_min_samples, cfg.slide_min_samples + 3):
+            if len(ts) < max(cfg.quadratic_min_samples, cfg.cloth_slide_min_samples + 3):
                 continue
             wt = b.weights(ts)
             f = _piecewise_fit(ts, ps, tg, b.sigma_fit, step, cfg, weight=wt)
@@ -1044,7 +1054,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
             # "rolling" fit, whose prior on mu_r g is weak against many samples, can take a
             # slide through the whole window with two parameters fewer.
             n_slide = len(ts) if f.tk is None else int(np.sum(ts - tg <= f.tk))
-            if n_slide < cfg.slide_min_samples:
+            if n_slide < cfg.cloth_slide_min_samples:
                 continue
             a = 2.0 * float(np.hypot(*f.coef[2]))
             if not cfg.slide_decel_min_mm_s2 <= a <= cfg.slide_decel_max_mm_s2:
