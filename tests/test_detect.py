@@ -889,6 +889,17 @@ def test_unchanged_looks_at_the_cells_round_a_sharp_ball():
     assert not det._unchanged(dict(row, blur_x=30.0), grid)
 
 
+def _one_ball_seen(cam, look, ball, at: np.ndarray):
+    """A detector that has seen one rendered frame of ``ball`` resting at ``at`` (2,) mm, that
+    frame, the image (u, v) px of the ball's centre and the detector's ball image radius px."""
+    ren = Renderer(NINE_FOOT, cam, look, (ball,), seed=9)
+    frame0 = ren.render(at[None, None], _rot(1), np.ones((1, 1), bool), np.array([0.0]))
+    det = BallDetector(cam, NINE_FOOT)
+    det.step_rows(0, 0.0, frame0)
+    u, v = cam.project(np.array([[*at, R]]))[0]
+    return det, frame0, u, v, det.ball_px / 2
+
+
 def test_ball_against_an_arm_is_found_and_the_arm_not_fitted(monkeypatch):
     # A ball lying against an arm that comes in over the rail (a skin-coloured bar 1.6 ball
     # diameters wide, drawn into a rendered frame) is found on the renderer's truth (within the
@@ -898,16 +909,10 @@ def test_ball_against_an_arm_is_found_and_the_arm_not_fitted(monkeypatch):
     import cv2
 
     s = SETUPS["green_high"]
-    cam = s["camera"]
-    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS[:1], seed=9)
     at = np.array([600.0, 700.0])
-    frame0 = ren.render(at[None, None], _rot(1), np.ones((1, 1), bool), np.array([0.0]))
-    det = BallDetector(cam, NINE_FOOT)
-    det.step_rows(0, 0.0, frame0)
+    det, frame0, u, v, r_px = _one_ball_seen(s["camera"], s["look"], BALLS[0], at)
     # The arm: from the image's left edge to above the ball's centre, its lower side touching
     # the top of the ball's silhouette (it hides about 44 degrees of the occluder test's ring).
-    u, v = cam.project(np.array([[*at, R]]))[0]
-    r_px = det.ball_px / 2
     frame1 = frame0.copy()
     top = int(round(v - r_px))
     cv2.rectangle(frame1, (0, top - int(round(3.2 * r_px))), (int(round(u)), top), (120, 150, 200), -1)
@@ -1045,3 +1050,66 @@ def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting):
     r_px = det.ball_px / 2
     cv2.rectangle(arm, (int(bare[0] - 4 * r_px), int(bare[1] - 2 * r_px)), (int(bare[0] + 4 * r_px), int(bare[1] + 2 * r_px)), (120, 150, 200), -1)
     assert det._rim_share(arm, bare) == 0.0, name
+
+
+@pytest.mark.parametrize("side", ["above", "at the arm's end"])
+def test_ball_just_clear_of_an_arm_is_found(side):
+    # A ball a pixel or two clear of an arm that comes in over the rail (a skin-coloured bar
+    # drawn into a rendered frame on red cloth, beside the ball or ending just short of it):
+    # its piece of foreground lies within the occluder test's ring of the arm, so it is judged
+    # as a ball touching the arm (BallDetector._mark_beside), and a whole ball passes those
+    # tests. Found once, on the renderer's truth within the issue's 2.5 mm resting p95.
+    import cv2
+
+    cam = Camera.overhead(NINE_FOOT, 2500.0, (1280, 720), offset_mm=(70, 60), roll_deg=0.7, dist=(-0.06, 0.0, 0, 0, 0))
+    look = Look(cloth_bgr=(40, 40, 150), cushion_bgr=(34, 34, 125), noise_sigma=1.5)
+    at = np.array([700.0, 650.0])
+    det, frame0, u, v, r_px = _one_ball_seen(cam, look, BALLS[1], at)
+    frame1 = frame0.copy()
+    if side == "above":
+        top = int(round(v - r_px)) - 2
+        cv2.rectangle(frame1, (0, top - int(round(3.2 * r_px))), (int(round(u)), top), (120, 150, 200), -1)
+    else:
+        cv2.rectangle(frame1, (0, int(round(v - 1.6 * r_px))), (int(round(u - r_px)) - 2, int(round(v + 1.6 * r_px))), (120, 150, 200), -1)
+    out = det.process(1, 1 / 60, frame1)
+    err, _ = _match(out, at[None])
+    assert len(out) == 1 and err[0] < 2.5, out
+
+
+@pytest.mark.parametrize("start,first,last", [(1000, 1130, 1186), (3830, 3980, 3992)])
+def test_still_bridge_hand_and_its_faded_trace_give_no_streak(start, first, last):
+    # The cushion-check sample clip (our renderer's occluder on blue cloth). Frames 1130-1185:
+    # the bridge hand settles on the cloth, the cue strokes, and the hand is lifted between
+    # frames 1183 and 1184; the encoder leaves a faded trace of it for a frame, ball-wide,
+    # rounded and elongated, which fitted a streak with one end as sharp as the hand's edge.
+    # Frames 3980-3991: a bridge hand held still by the top rail fitted a streak, its one end
+    # sharp and the other running into the arm. A swept sphere fades alike at both ends
+    # (BallDetector._soft_ends). The detector starts on the empty table before each stroke
+    # (``start``); from there the cue sliding in (frame 1122) and its butt (3978) are fitted
+    # as balls, which the whole clip's run does not do and this test leaves out. Issue
+    # acceptance: no detections from the occluder, every ball found.
+    from pathlib import Path
+
+    from vision.calibfile import read_calibration
+    from vision.video import iter_frames
+
+    root = Path(__file__).resolve().parents[1] / "sample_clips"
+    table, cam, _ = read_calibration(root / "cushion_check.truth" / "calibration.json")
+    tr = pd.read_csv(root / "cushion_check.truth" / "tracks.csv")
+    truth = {f: g[["x", "y"]].to_numpy() for f, g in tr.groupby("frame")}
+    det = BallDetector(cam, table)
+    extra, missed = {}, {}
+    for i, t, img in iter_frames(root / "cushion_check.mp4"):
+        if i >= last:
+            break
+        if i < start:
+            continue
+        out = det.process(i, t, img)
+        if i < first:
+            continue
+        at = truth.get(i, np.zeros((0, 2)))
+        err, _ = _match(out, at) if len(at) else (np.zeros(0), None)
+        extra[i] = len(out) - int(np.isfinite(err).sum())
+        missed[i] = int(np.sum(~np.isfinite(err)))
+    assert sum(extra.values()) == 0, {k: v for k, v in extra.items() if v}
+    assert sum(missed.values()) == 0, {k: v for k, v in missed.items() if v}

@@ -47,15 +47,19 @@ Method
    half inside its box is not half a ball. A free piece of which the balls fitted in it
    leave more than a ball's area unexplained (after the remainder's own seeds below: an arm,
    hand or cue whose sleeve ends over the cloth), or in which two fitted balls that do not touch
-   are joined by foreground (the two ends of a bridge hand; :meth:`BallDetector._bridged`), is
+   are joined by foreground (the two ends of a bridge hand), or two that overlap are joined
+   without the waist touching spheres pinch to (a hand fitted as two balls;
+   :meth:`BallDetector._bridged`), or which comes within the ring test's reach of a piece
+   reaching in over the rail (a hand's end cut off from the rest by a sliver of cloth colour:
+   a ball there touches the occluder, :meth:`BallDetector._mark_beside`), is
    an occluder too, and its balls are fitted again under the
    same stricter tests (:meth:`BallDetector._free_occluders`). Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). Small holes in a component (a highlight or mark of
    the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
-   fitted streak must fade in and out along its motion over about a ball's length, as a swept
-   ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded, ends
-   sharply.
+   fitted streak must fade in and out along its motion over about a ball's length at both ends,
+   as a swept ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded,
+   or a codec's faded trace of one just lifted, ends sharply at one end at least.
 4. *Outline*: along 48 rays from the predicted image centre, the outline is the strongest colour
    step (sub-pixel, parabolic peak interpolation) within a window round the predicted silhouette,
    counted only where the colour moves toward the background going outward (so interior
@@ -71,7 +75,8 @@ Method
    ball shades, :func:`_dark_ring`), and the coarse fit stands for it (step 6 has no colour
    step to place either). Such a ball passes the colour test only at its crown and highlight,
    too small a piece to seed a ball: small bright pieces seed it (:meth:`BallDetector._crown_seeds`),
-   kept only when the fitted ball is of the cloth's hue, and its disc counts as filled (the
+   kept only when the fitted ball is of the cloth's hue and nothing reaching in over the rail
+   or larger than a few balls lies within a ball's diameter (a glint on a cue or knuckle), and its disc counts as filled (the
    fit's last test) when it is shaded like a lit sphere, a bright crown over a darker ring
    (:func:`_shaded_share`).
 5. *Sphere fit*: each outline point is a ray (``Camera.rays``) that must graze the ball: its
@@ -183,6 +188,20 @@ _LOCAL_REACH_PX = 3.0
 # model would put it at R + h. A free streak also absorbs a resting ball's shadow and shading,
 # which moved centres 5-13 mm (mostly next to the cushions, where shadows stretch outlines).
 _MIN_HALF_STREAK_R = 1.0
+# Least fall (75 % to 25 % of the plateau, in R) of either end of a fitted streak
+# (:meth:`BallDetector._soft_ends`). A swept sphere's ends fall over R; on the rendered bench
+# and sample streaks each end fell over 0.5-0.93 R (21 streaks at 30 fps, shutters open),
+# a still hand's or a codec's faded trace of one over 0.04-0.21 R (cushion_check frames 1184
+# and 3985): a third of the way from the one to the other, not a published figure.
+_SHARP_END_R = 0.3
+# Least width of a piece of foreground across the middle of two overlapping fitted balls, in
+# ball image diameters, that makes it something else (:meth:`BallDetector._bridged`): touching
+# spheres' silhouettes meet at a point, and the foreground there holds only the crease and
+# shadow between them (0 to 0.4 on the rendered bench's touching balls; about 0.65 estimated
+# for a pair lined up with the view 40 degrees off the camera's axis, whose silhouettes are
+# ellipses 1.3 times longer that way); the middle of a bridge hand fitted as two balls
+# measured 1.09 (cushion_check frame 544).
+_JOIN_WIDTH = 0.8
 # A ball's body is taken as of the cloth's own hue and brightness (:func:`_plain_body`) when its
 # median chromaticity distortion (Horprasert et al. 1999) is below sin 7.5 degrees and its
 # median brightness within a factor 1.5 of the cloth's. In our renders, red on red and blue on
@@ -1273,6 +1292,8 @@ class BallDetector:
         h, w = img.shape[:2]
         seeds = []
         small = []
+        free: list[tuple[int, list[dict]]] = []  # free pieces' labels and seeds
+        reaching: list[int] = []  # labels of pieces reaching in over the rail
         area_min = math.pi * self.r_min_px**2
         for i in range(1, n):
             a = stats[i, cv2.CC_STAT_AREA]
@@ -1305,7 +1326,12 @@ class BallDetector:
             if not occluder:
                 for q in found:
                     q["piece"] = (comp, origin)
+                free.append((i, found))
+            else:
+                reaching.append(i)
             seeds += found
+        blocked = self._blocked(lab, stats, reaching)
+        self._mark_beside(lab, blocked, free)
         fits = [self._fit_one(img, s) if self._worth_fitting(img, s) else None for s in seeds]
         for _ in range(_REMAINDER_ROUNDS):
             more = self._unexplained_seeds(seeds, fits)
@@ -1314,7 +1340,7 @@ class BallDetector:
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
         fits = self._free_occluders(img, seeds, fits)
-        crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known))
+        crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known), blocked)
         seeds += crowns
         fits += [self._fit_crown(img, s) for s in crowns]
         # A known ball beside a ball found here is refitted with it, as when both were found
@@ -1338,7 +1364,35 @@ class BallDetector:
         samples; most strict seeds are pieces of the arm or hand, whose fits all fail."""
         return not s["strict"] or self._ring_share(img, s["uv"]) >= _ISOLATED_SHARE - _SEED_RING_SLACK
 
-    def _crown_seeds(self, img: np.ndarray, box, lab: np.ndarray, stats: np.ndarray, small: list[int], fits: list[dict | None]) -> list[dict]:
+    def _blocked(self, lab: np.ndarray, stats: np.ndarray, reaching: list[int]) -> tuple[np.ndarray, np.ndarray] | None:
+        """Masks (box frame, bool, as ``lab`` of :meth:`_components`) of the pieces reaching in
+        over the rail (labels ``reaching``), and of those together with the free pieces larger
+        than six of the largest balls' images (an arm, hand or cue lying free of the rail, as
+        :meth:`_unexplained_seeds` takes them); None when there are neither."""
+        big = [i for i in range(1, len(stats)) if stats[i, cv2.CC_STAT_AREA] > 6 * math.pi * self.r_max_px**2 and i not in reaching]
+        if not reaching and not big:
+            return None
+        reach = np.isin(lab, reaching) if reaching else np.zeros(lab.shape, bool)
+        return reach, reach | np.isin(lab, big) if big else reach
+
+    def _mark_beside(self, lab: np.ndarray, blocked: tuple[np.ndarray, np.ndarray] | None, free: list[tuple[int, list[dict]]]) -> None:
+        """Mark (``beside``) the seeds of each free piece (label, seeds) that comes within the
+        occluder test's ring of a piece reaching in over the rail (``blocked[0]``): within
+        ``_RING_R - 1`` of the largest ball image radius of it. A ball there has its ring
+        crossed by the occluder as a ball touching it has, and is judged as one
+        (:meth:`_free_occluders`); the end of a hand or sleeve cut off from the rest of it by a
+        sliver of the cloth's colour (a shadow's edge, a crease of the skin, a part of the hand
+        taken into the empty-table model) is such a piece."""
+        if blocked is None or not free or not blocked[0].any():
+            return
+        dist = cv2.distanceTransform((~blocked[0]).astype(np.uint8), cv2.DIST_L2, 3)
+        reach = (_RING_R - 1.0) * self.r_max_px
+        for i, found in free:
+            if float(dist[lab == i].min()) <= reach:
+                for q in found:
+                    q["beside"] = True
+
+    def _crown_seeds(self, img: np.ndarray, box, lab: np.ndarray, stats: np.ndarray, small: list[int], fits: list[dict | None], blocked: tuple[np.ndarray, np.ndarray] | None = None) -> list[dict]:
         """Seeds (as :meth:`_seeds_of`) for balls of the cloth's own hue and brightness: the
         components of ``box`` (``lab`` and ``stats`` of :meth:`_components`) too small to be a
         ball (indices ``small``) but of at least 3 % of the smallest ball's image area, brighter
@@ -1347,7 +1401,9 @@ class BallDetector:
         (``fits``) and from each other, and surrounded by the cloth's hue and brightness
         (:meth:`_same_hue` round the piece: the highlight lies within about half a radius of
         the centre's image, so the band sampled is still on the ball's body or the cloth), with
-        nothing reaching in over the rail (:meth:`_reaching`) within a ball's diameter. Such a ball passes the colour test only at its crown and
+        nothing reaching in over the rail (:meth:`_reaching`), nor any of the box's pieces in
+        ``blocked[1]`` (:meth:`_blocked`: reaching in, or larger than a few balls), within a
+        ball's diameter. Such a ball passes the colour test only at its crown and
         specular highlight (Blinn-Phong: toward the lamps, within about half a radius of the
         centre's image for lamps above the table), so its piece of foreground is small; the fit
         searches from there (:meth:`_fit_crown`)."""
@@ -1381,6 +1437,11 @@ class BallDetector:
             if reach[max(hv - g, 0) : hv + g + 1, max(hu - g, 0) : hu + g + 1].any():
                 # A glint on a cue, a ferrule or a knuckle: something reaching in over the rail
                 # lies within a ball's diameter.
+                continue
+            lu, lv, g = int(uv[0]) - u0, int(uv[1]) - v0, int(math.ceil(self.ball_px))
+            if blocked is not None and blocked[1][max(lv - g, 0) : lv + g + 1, max(lu - g, 0) : lu + g + 1].any():
+                # The same of an arm, hand or cue lying free of the rail (a piece larger than
+                # a few balls) or reaching in within the box.
                 continue
             out.append({"uv": uv, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False})
         return out
@@ -1499,7 +1560,8 @@ class BallDetector:
             rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
             rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
             left = float(rest.sum())
-            if left <= area_ball and not self._bridged(comp, origin, mask, [fits[k] for k in ks]):
+            beside = any(s.get("beside") and s["piece"][0] is comp for s in seeds if "piece" in s)
+            if left <= area_ball and not beside and not self._bridged(comp, origin, mask, [fits[k] for k in ks]):
                 continue
             for k in ks:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
@@ -1512,14 +1574,23 @@ class BallDetector:
         errors) are joined by foreground all along the line between their centres' images,
         outside both outlines (grown by a pixel). Spheres that do not touch meet only through
         something else lying between them: the two ends of a hand or of a forearm fitted as
-        two balls, whose middle the outlines leave less than a ball's area of."""
+        two balls, whose middle the outlines leave less than a ball's area of. Two fitted
+        spheres that overlap (centres 1.2 to 2 R apart: nearer, they are one ball fitted twice,
+        :meth:`_dedupe`) are joined so too when the piece is as wide across the line between
+        them, at its middle, as ``_JOIN_WIDTH`` of a ball's image (:meth:`_join_width`): balls
+        cannot overlap, and touching ones pinch to a waist there (their silhouettes meet at a
+        point), while the middle of a hand or forearm fitted as two overlapping balls is as
+        wide as the hand."""
         sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
         grown = cv2.dilate(mask, np.ones((3, 3), np.uint8))
         h, w = comp.shape
         for i in range(len(sharp)):
             for j in range(i + 1, len(sharp)):
                 a, b = sharp[i], sharp[j]
-                if math.hypot(a["x"] - b["x"], a["y"] - b["y"]) <= 2.25 * self.R:
+                d = math.hypot(a["x"] - b["x"], a["y"] - b["y"])
+                if 1.2 * self.R < d < 2 * self.R and self._join_width(comp, origin, a, b, [r for r in rows if r is not a and r is not b]) >= _JOIN_WIDTH:
+                    return True
+                if d <= 2.25 * self.R:
                     continue
                 p, q = np.array([a["u"], a["v"]]) - origin, np.array([b["u"], b["v"]]) - origin
                 n = int(math.ceil(2 * math.hypot(*(q - p)))) + 1
@@ -1531,6 +1602,40 @@ class BallDetector:
                 if gap.any() and np.all(comp[uv[gap, 1], uv[gap, 0]] > 0):
                     return True
         return False
+
+    def _join_width(self, comp: np.ndarray, origin, a: dict, b: dict, others: list[dict]) -> float:
+        """Width of the piece ``comp`` ((h, w) uint8 at ``origin`` px), less the silhouettes of
+        the ``others`` fitted in it (grown by a pixel: a third ball touching both, as in a
+        triangle, lies across the join), across the line between the centres' images of
+        detection rows ``a`` and ``b``, at its middle: the run of foreground holding the middle
+        point along the perpendicular (half-pixel steps), in units of a ball's image diameter
+        there (0 when the middle point is not foreground)."""
+        if others:
+            gone = np.zeros_like(comp)
+            for r in others:
+                half = max(0.5 * math.hypot(r["blur_x"], r["blur_y"]) - self.R, 0.0)
+                outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
+                cv2.fillPoly(gone, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
+            comp = comp.copy()
+            comp[cv2.dilate(gone, np.ones((3, 3), np.uint8)) > 0] = 0
+        p, q = np.array([a["u"], a["v"]], float), np.array([b["u"], b["v"]], float)
+        m = 0.5 * (p + q)
+        e = (q - p) / max(math.hypot(*(q - p)), 1e-9)
+        mid = self.rays.backproject(m[None], self.R)[0]
+        r_px = float(np.mean(np.hypot(*(self.rays.sphere_outline(mid[0], mid[1], self.R) - m).T)))
+        s = np.arange(-2.0 * r_px, 2.0 * r_px + 0.25, 0.5)
+        uv = np.round(m[None] - np.array(origin, float) + s[:, None] * np.array([-e[1], e[0]])).astype(int)
+        h, w = comp.shape
+        ok = (uv[:, 0] >= 0) & (uv[:, 0] < w) & (uv[:, 1] >= 0) & (uv[:, 1] < h)
+        fg = np.zeros(len(s), bool)
+        fg[ok] = comp[uv[ok, 1], uv[ok, 0]] > 0
+        k = int(np.argmin(np.abs(s)))
+        if not fg[k]:
+            return 0.0
+        gaps = np.nonzero(~fg)[0]
+        lo = gaps[gaps < k].max() + 1 if np.any(gaps < k) else 0
+        hi = gaps[gaps > k].min() - 1 if np.any(gaps > k) else len(s) - 1
+        return (hi - lo + 1) * 0.5 / (2.0 * r_px)
 
     def _refit_touching(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
         """Refit each sharp ball that has another sharp ball within ``_NEAR_R`` radii (centre to
@@ -1571,9 +1676,14 @@ class BallDetector:
         streak fitted as one, see ``_MIN_HALF_STREAK_R``) a plateau that falls linearly to 0 over
         ``2R`` at each end, so the colour's departure from the empty table, linear in the
         coverage, falls from 75 % to 25 % of the plateau over R. Something still and ball-wide but
-        elongated (a hand, a forearm's end) ends sharply, within the optics' blur (a pixel or
-        two). The profile is sampled along the fitted axis at ball-centre height (mean of three
-        lines 0.3 R apart across it); the softer end must fall over at least half of R.
+        elongated (a hand, a forearm's end, or the faded trace a codec leaves of one just
+        lifted) ends sharply, within the optics' blur (a pixel or two), at one end at least.
+        The profile is sampled along the fitted axis at ball-centre height (mean of three lines
+        0.3 R apart across it); the softer end must fall over at least half of R, and the
+        sharper over at least ``_SHARP_END_R`` of R, as the sweep is the same at both; an end
+        still above 25 % where the profile ends (h + 2R from the middle, R beyond the swept
+        sphere's reach) runs into something else (a ball it meets, the cue) and is not judged
+        so.
         """
         R = self.R
         bx, by = float(row["blur_x"]), float(row["blur_y"])
@@ -1596,6 +1706,7 @@ class BallDetector:
         if plateau <= 0:
             return False
         widths = []
+        sharp = False
         for side in (1, -1):
             out = side * s > 0
             ss, dd = side * s[out], D[out]
@@ -1606,7 +1717,8 @@ class BallDetector:
             if len(hi) == 0 or len(lo) == 0:
                 continue
             widths.append(float(lo.max() - hi.max()))
-        return bool(widths) and max(widths) >= 0.5 * R
+            sharp |= lo.max() < ss[-1] and widths[-1] < _SHARP_END_R * R
+        return bool(widths) and max(widths) >= 0.5 * R and not sharp
 
     def _whole_piece(self, img: np.ndarray, us: np.ndarray, vs: np.ndarray, known: list[dict] = ()) -> tuple[np.ndarray, tuple[int, int], bool]:
         """The foreground component (as in :meth:`_detect_box`, ``known`` balls left out)
