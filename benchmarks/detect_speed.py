@@ -1,27 +1,32 @@
-"""Ball-detection speed against plain decoding, on a 720p60 clip.
+"""Calibration plus ball detection against plain decoding, on a 720p60 clip.
 
 Films (once, into ``--work``) the 720p60 scene ``green_60fps_250`` of
-``benchmarks/detect_accuracy.py``, then times, in the same run and alternating, (a) plain
-decoding to (H, W, 3) uint8 BGR frames, what the detector consumes (``vision.video.iter_frames``)
-and (b) decoding plus detection (``vision.detect.detect_clip``, no decoding thread, set up from
-the truth calibration: the calibration module is not part of this measure), each ``--runs``
-times; prints each run and the medians: frames per second, the ratio to real time, and the
-ratio of (b) to (a), and beside them the same from processor time (``time.process_time``,
-which a busy shared machine disturbs far less than wall time): processor ms per frame of (a)
-and (b), frames per processor second and their ratio. (b) includes setting the detector up
-(the first frame builds the background model, about half a second), which a short clip
-feels. OpenCV runs on one thread (``cv2.setNumThreads(1)``); pin the whole process to one
-core with ``taskset -c 0``. ``--clip FILE --calibration FILE`` times another clip instead
-(e.g. ``sample_clips/bank_practice.mp4`` with its truth folder's ``calibration.json``),
-``--frames N`` its first N frames only. ``--stages`` adds one more run of decoding plus detection that
-charges processor time to the detector's stages (each stage's own time, its sub-stages' taken
-out: decoding, the change grid, the background model and its update, candidates, the coarse and local
-outlines, the sphere fits, look-ups of rays and projections, labels) and prints them in ms
-per frame with their call counts; the timers themselves add about a tenth. The machine's load
-averages (1, 5 and 15 minutes) are printed at the start and the end: the timings mean little
-on a machine busy with other jobs.
+``benchmarks/detect_accuracy.py``, or takes ``--clip FILE --calibration FILE`` (e.g.
+``sample_clips/bank_practice.mp4`` and its truth folder's ``calibration.json``, whose table is
+used), and times, in the same run and alternating, each ``--runs`` times: (a) plain decoding to
+(H, W, 3) uint8 BGR frames, what the detector consumes (``vision.video.iter_frames``); (b)
+automatic calibration of the clip (``vision.calibrate.calibrate``: its own decoding pass, still
+frames, bumps, the camera fit), as ``railtrace analyse`` does first; (c) decoding plus detection
+(``vision.detect.BallDetector``, no decoding thread) with the camera (b) found, as ``analyse``
+then does (``--truth-camera``: with the calibration file's camera instead). It prints each run
+and the medians: frames per second of (b) + (c), its ratio to real time and to (a), in wall
+time and in processor time (``time.process_time``, which a busy shared machine disturbs far
+less than wall time), and the same for (c) alone. (c) includes setting the detector up (the
+first frame builds the background model, about half a second), which a short clip feels.
+OpenCV runs on one thread (``cv2.setNumThreads(1)``); pin the whole process to one core with
+``taskset -c 0`` (the decoder's threads then share that core too). ``--frames N`` times the
+first N frames only, without calibration (which reads the whole clip), with the calibration
+file's camera. ``--stages`` adds one
+more run of decoding plus detection that charges processor time to the detector's stages (each
+stage's own time, its sub-stages' taken out: decoding, the change grid, the background model
+and its update, candidates, the coarse and local outlines, the sphere fits, look-ups of rays
+and projections, labels) and prints them in ms per frame with their call counts; the timers
+themselves add about a tenth. The machine's load averages (1, 5 and 15 minutes) are printed at
+the start and the end: the timings mean little on a machine busy with other jobs.
 
-Run: ``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3``.
+Run: ``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3`` and
+``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3 --clip
+sample_clips/bank_practice.mp4 --calibration sample_clips/bank_practice.truth/calibration.json``.
 """
 
 from __future__ import annotations
@@ -42,6 +47,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from detect_accuracy import film  # noqa: E402
 from vision.calibfile import read_calibration  # noqa: E402
+from vision.calibrate import calibrate  # noqa: E402
 import vision.background  # noqa: E402
 import vision.detect  # noqa: E402
 from vision.detect import BallDetector, stack_detections  # noqa: E402
@@ -118,9 +124,10 @@ def main(argv=None) -> int:
     ap.add_argument("--work", default="/tmp/railtrace_detect_bench")
     ap.add_argument("--runs", type=int, default=3)
     ap.add_argument("--clip", type=Path, default=None, help="clip to time (default: the filmed green_60fps_250 scene)")
-    ap.add_argument("--calibration", type=Path, default=None, help="calibration.json of --clip (required with it)")
+    ap.add_argument("--calibration", type=Path, default=None, help="calibration.json of --clip (required with it): its table, and its camera with --truth-camera")
     ap.add_argument("--frames", type=int, default=None, help="time only the first N frames")
     ap.add_argument("--stages", action="store_true", help="add a run that charges processor time to the detector's stages")
+    ap.add_argument("--truth-camera", action="store_true", help="detect with the calibration file's camera instead of the automatically calibrated one")
     args = ap.parse_args(argv)
     cv2.setNumThreads(1)
     if args.clip is None:
@@ -132,31 +139,44 @@ def main(argv=None) -> int:
         ap.error("--clip needs --calibration (a calibration.json with the camera)")
     else:
         clip, cal = args.clip, args.calibration
-    table, camera, _ = read_calibration(cal)
+    table, truth_camera, _ = read_calibration(cal)
     info = probe(clip)
+    whole = args.frames is None or args.frames >= info.frame_count
     print("load averages at the start: " + ", ".join(f"{v:.2f}" for v in os.getloadavg()), flush=True)
-    dec, full, cpu_dec, cpu = [], [], [], []
+    dec, cal_t, det_t, cpu_dec, cpu_cal, cpu_det = [], [], [], [], [], []
+    camera = truth_camera
     for k in range(args.runs):
         t0, c0 = time.perf_counter(), time.process_time()
         n = sum(1 for _ in iter_frames(clip, read_ahead=0, stop=args.frames))
-        dec.append(n / (time.perf_counter() - t0))
-        cpu_dec.append(1000 * (time.process_time() - c0) / n)
+        dec.append(time.perf_counter() - t0)
+        cpu_dec.append(time.process_time() - c0)
+        t0, c0 = time.perf_counter(), time.process_time()
+        found = calibrate(clip, table).camera if whole else truth_camera
+        cal_t.append(time.perf_counter() - t0)
+        cpu_cal.append(time.process_time() - c0)
+        camera = truth_camera if args.truth_camera else found
         t0, c0 = time.perf_counter(), time.process_time()
         det = BallDetector(camera, table)
         step = getattr(det, "step_rows", None) or det.step  # so the script also times revisions before step_rows
         stack_detections([(i, t, step(i, t, img)) for i, t, img in iter_frames(clip, read_ahead=0, stop=args.frames)])
-        full.append(n / (time.perf_counter() - t0))
-        cpu.append(1000 * (time.process_time() - c0) / n)
-        print(f"run {k}: decode {dec[-1]:7.1f} frames/s ({cpu_dec[-1]:.2f} ms of processor time per frame), "
-              f"decode+detect {full[-1]:7.1f} frames/s ({cpu[-1]:.1f} ms of processor time per frame)", flush=True)
-    d, f = statistics.median(dec), statistics.median(full)
-    cd, cf = statistics.median(cpu_dec), statistics.median(cpu)
-    print(f"clip {clip.name}: {info.width}x{info.height} at {info.fps:g} fps, {n} frames decoded to (H, W, 3) uint8 BGR")
-    print(f"median wall: decode only {d:.1f} frames/s; decode+detect {f:.1f} frames/s = {f / info.fps:.2f}x real time, "
-          f"{f / d:.2f} of decode-only speed")
-    print(f"median processor time: decode only {cd:.2f} ms per frame ({1000 / cd:.0f} frames per processor second); "
-          f"decode+detect {cf:.1f} ms per frame ({1000 / cf:.1f} frames per processor second = {1000 / cf / info.fps:.2f}x real time "
-          f"on one core, {cd / cf:.2f} of decode-only)")
+        det_t.append(time.perf_counter() - t0)
+        cpu_det.append(time.process_time() - c0)
+        print(f"run {k}: decode {n / dec[-1]:6.1f} frames/s ({1000 * cpu_dec[-1] / n:.2f} processor ms per frame); "
+              + (f"calibration {cal_t[-1]:.2f} s ({cpu_cal[-1]:.2f} processor s); " if whole else "")
+              + f"decode+detect {n / det_t[-1]:6.1f} frames/s ({1000 * cpu_det[-1] / n:.2f} processor ms per frame)", flush=True)
+    med = statistics.median
+    fps = info.fps
+    print(f"clip {clip.name}: {info.width}x{info.height} at {fps:g} fps, {n} frames decoded to (H, W, 3) uint8 BGR; "
+          f"detection with the {'automatically calibrated' if whole and not args.truth_camera else 'calibration file'} camera")
+    for what, secs in (("wall", (dec, cal_t, det_t)), ("processor", (cpu_dec, cpu_cal, cpu_det))):
+        d, c, f = (med(x) for x in secs)
+        print(f"median {what} time: decode only {n / d:.1f} frames/s ({1000 * d / n:.2f} ms per frame); "
+              + (f"calibration {c:.2f} s ({1000 * c / n:.2f} ms per frame); " if whole else "")
+              + f"decode+detect {n / f:.1f} frames/s ({1000 * f / n:.2f} ms per frame) = {n / f / fps:.2f}x real time, {d / f:.2f} of decode-only")
+        if whole:
+            both = med([x + y for x, y in zip(*secs[1:])])
+            print(f"  calibration+detection ({what}): {n / both:.1f} frames/s ({1000 * both / n:.2f} ms per frame) = "
+                  f"{n / both / fps:.2f}x real time on one core, {d / both:.2f} of decode-only speed")
     if args.stages:
         n, secs, calls = stage_times(clip, camera, table, args.frames)
         total = sum(secs.values())

@@ -8,7 +8,7 @@ import cv2
 import numpy as np
 import pytest
 
-from vision.video import VideoInfo, iter_frames, iter_grey, probe, write_video
+from vision.video import VideoInfo, area_down, iter_frames, iter_grey, probe, write_video
 
 
 def _frames(n=30, w=320, h=240):
@@ -154,6 +154,19 @@ def test_grey_frames_match_the_grey_of_the_bgr_frames(tmp_path, read_ahead):
         list(iter_grey(path, 0.0))
     with pytest.raises(ValueError, match="does not exist"):
         list(iter_grey(tmp_path / "nope.mp4", 0.5))
+
+
+@pytest.mark.parametrize("scale,shape,bound", [(0.25, (720, 1280), 1), (0.125, (720, 1280, 3), 2), (0.5, (90, 160), 0), (1 / 3, (90, 120), 0), (0.25, (90, 162), 0)])
+def test_area_down_matches_one_area_resize(scale, shape, bound):
+    # Against OpenCV's own area resize in one step (the reference): repeated halving rounds
+    # to whole levels at each step, at most half a level each, so a pixel may differ by one
+    # level for a factor of 4 (two steps) and two for 8 (three) (analytic), and by none where
+    # one step is taken or the factor is not a power of two dividing the sides (one resize).
+    img = np.random.default_rng(3).integers(0, 256, shape, dtype=np.uint8)
+    want = cv2.resize(img, None, fx=scale, fy=scale, interpolation=cv2.INTER_AREA).astype(int)
+    got = area_down(img, scale)
+    assert got.shape == want.shape and got.dtype == np.uint8
+    assert np.abs(got.astype(int) - want).max() <= bound
 
 
 _ENCODE_SCRIPT = """
