@@ -10,7 +10,7 @@ import pytest
 from vision.camera import Camera
 from vision.detect import COLUMNS, BallDetector, DetectConfig, empty_detections
 from vision.render import BallLook, CueStroke, Lamp, Look, Occluder, Renderer
-from vision.table import NINE_FOOT
+from vision.table import EIGHT_FOOT, NINE_FOOT
 
 R = NINE_FOOT.radius_mm
 BALLS = (
@@ -386,7 +386,7 @@ def on_tan():
     ren = Renderer(NINE_FOOT, cam, look, balls, seed=11)
     frame = ren.render(at[None], _rot(3), np.ones((1, 3), bool), np.zeros(1))
     out = BallDetector(cam, NINE_FOOT).process(0, 0.0, frame)
-    err, j = _match(out, at)
+    err, _ = _match(out, at)
     assert np.all(np.isfinite(err)), err
     return out["pattern"].to_numpy()[j]
 
@@ -1147,3 +1147,49 @@ def test_identical_frame_gives_identical_rows_and_a_nudged_ball_is_refitted(monk
     assert row_a is not old_a
     assert abs((row_a["x"] - old_a["x"]) - nudge[0]) < 0.5 and abs(row_a["y"] - old_a["y"]) < 0.5
 
+
+
+# One low lamp and little room light, as over a table in a dark room: each ball casts a long,
+# dark shadow on the cloth (the lamp's light gone, only the room's left), darker than half the
+# lit cloth. A ball rests in the open with its shadow free on the cloth, and a black 8 rests
+# behind a stripe, half in the stripe's shadow and far from the lamp (in shade). Three rooms:
+# burgundy, blue and grey cloth, other tables, cameras and lenses, the lamp at either end; the
+# balls turned at random (number discs not up). The first frame is the empty table.
+# name: table, camera, cloth, room light (ambient share) and exposure, lamp (x, y, z) mm, the
+# free ball's colour, and where the free ball and the stripe rest (x, y) mm.
+LOW_LAMP = {
+    "burgundy_8ft": (EIGHT_FOOT, Camera.overhead(EIGHT_FOOT, 2400.0, (960, 540), offset_mm=(200, 100), roll_deg=-2.5, dist=(-0.15, 0.03, 0, 0, 0)), (43, 31, 122), 0.12, 1.3, (600.0, 500.0, 800.0), (134, 42, 91), ((1500.0, 800.0), (1987.0, 868.0))),
+    "blue_9ft": (NINE_FOOT, Camera.overhead(NINE_FOOT, 2000.0, (1280, 720), offset_mm=(-150, 80), roll_deg=1.5, dist=(-0.25, 0.06, 0, 0, 0)), (150, 72, 28), 0.15, 1.4, (1900.0, 700.0, 900.0), (28, 112, 226), ((1000.0, 400.0), (2190.0, 970.0))),
+    "grey_9ft": (NINE_FOOT, Camera.overhead(NINE_FOOT, 2800.0, (1280, 720), offset_mm=(100, -60), roll_deg=-1.0, dist=(-0.1, 0.02, 0, 0, 0)), (110, 114, 118), 0.15, 1.2, (800.0, 600.0, 850.0), (20, 195, 235), ((1700.0, 300.0), (2190.0, 970.0))),
+}
+
+
+@pytest.mark.parametrize("name", list(LOW_LAMP))
+def test_a_low_lamps_shadows_are_no_balls_and_the_black_ball_in_shade_is_found(name):
+    from scipy.spatial.transform import Rotation
+
+    table, cam, cloth, ambient, exposure, lamp, colour, rest = LOW_LAMP[name]
+    look = Look(cloth_bgr=cloth, cushion_bgr=tuple(int(0.85 * c) for c in cloth), ambient=ambient, exposure=exposure, noise_sigma=2.0, lamps=(Lamp(lamp),))
+    lamp = np.array(lamp)
+    free, stripe = (np.array(p) for p in rest)
+    away = (stripe - lamp[:2]) / np.linalg.norm(stripe - lamp[:2])
+    # The 8 touches the stripe on the side away from the lamp: its near half in the stripe's shadow.
+    at = np.array([free, stripe, stripe + 2.05 * R * away])
+    balls = (BallLook("5", "solid", colour), BallLook("12", "stripe", (134, 42, 91)), BallLook("8", "solid", (22, 22, 22)))
+    ren = Renderer(table, cam, look, balls, seed=7)
+    rot = Rotation.random(3, random_state=3).as_matrix()[None]
+    det = BallDetector(cam, table)
+    det.process(0, 0.0, ren.render(at[None], rot, np.zeros((1, 3), bool), np.zeros(1)))
+    out = det.process(1, 1 / 60, ren.render(at[None], rot, np.ones((1, 3), bool), np.array([1 / 60])))
+    err, _ = _match(out, at)
+    # Nothing is reported away from the balls: a cast shadow is the cloth darkened with its hue
+    # kept and no highlight, no ball (issue acceptance: no false detections).
+    q = out[["x", "y"]].to_numpy()
+    off = np.min(np.linalg.norm(q[:, None] - at[None], axis=2), axis=1)
+    assert np.all(off < R), (name, out)
+    # Every ball is found (a detection within a ball radius); the black 8 in shade within 5 mm,
+    # a fifth of its radius (what the detector achieves on resting balls today, as
+    # test_resting_balls_within_a_few_mm). The ball whose long shadow joins it on the cloth is
+    # held to the gate only: on blue and grey cloth its outline slides onto the shadow by about
+    # 25 mm, an open limit of the outline fit.
+    assert np.all(np.isfinite(err)) and err[2] <= 5.0, (name, err)

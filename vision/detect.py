@@ -95,6 +95,11 @@ Method
    the principal axis pinches at the middle (two touching balls have a waist; a blur streak is
    widest at its middle); a fitted streak shorter than 0.3 R each way is refitted as a sharp
    ball (shading and shadow stretch a resting outline by a few mm).
+   A sharp fit whose disc is the cloth darkened with its own hue kept and nothing brighter than
+   the cloth in it (no highlight, no lit side: :func:`_cast_shadow`) is a lamp's cast shadow,
+   not a ball, when another ball lies within 3 R to cast it; with none there, the piece's
+   pixels off the cloth's hue or brighter than it seed the casting ball instead
+   (:meth:`BallDetector._drop_cast_shadows`).
 6. *Sub-pixel outline* (sharp balls): up to six further rounds place each outline point by
    :meth:`BallDetector._edges_local`, refitting the sphere each round until the centre moves
    less than 0.05 mm; if that fit agrees worse with the sphere than the coarse one, the coarse
@@ -124,7 +129,10 @@ foreground up to six balls big are seeded again where the first fits leave one u
 image is reported only when its outline is clearly separate and at most about a quarter of the
 ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
 lost for those frames); the end of an arm exactly a ball wide and still is not told from a ball
-by its ring; colour labels are coarse; the speed is far below the issue's target (see the
+by its ring; a dark ball of the cloth's hue, or a black ball on grey cloth, with no highlight
+within 0.7 of its radius and another ball within 3 R is taken for a cast shadow and missed, and
+a ball whose long shadow from a low lamp joins it in one piece can be placed on the shadow
+(about 25 mm off on blue and grey cloth in tests/test_detect.py); colour labels are coarse; the speed is far below the issue's target (see the
 benchmarks).
 """
 
@@ -241,6 +249,15 @@ _REMAINDER_ROUNDS = 2
 # else those rays so and the rest by the two-colour mixing.
 _HUE_STEP = 0.25
 _HUE_RAYS = 0.75
+# A cast shadow is told from a ball only beside the ball casting it: its disc lies within this
+# many radii (centre to centre) of a ball found in the same frame. A ball's shadow from a lamp
+# e above the cloth is an ellipse centred R / tan e from the ball's centre, R / sin e long
+# each way along the light; a sphere fitted inside it lies about that far (R / tan e is 1.2 R at
+# e = 39 degrees; 1.65..1.9 R measured on the extra set's lamp_50fps, e about 39 degrees) and
+# within 3 R for lamps 30 degrees or more above the ball. Farther, a dark ball of the cloth's
+# hue whose fit has slid half onto its own shadow is kept rather than taken for a neighbour's
+# shadow.
+_CASTER_R = 3.0
 
 
 @dataclass(frozen=True)
@@ -818,6 +835,31 @@ def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.n
     return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
 
 
+def _cast_shadow(I: np.ndarray, B: np.ndarray) -> bool:
+    """Whether a disc's pixels ``I`` (N, 3) over the empty table ``B`` (N, 3) are the cloth in
+    a cast shadow rather than a ball: the mean colour is the mean empty table's scaled down
+    (a shadow takes a lamp's share of the light away and leaves the cloth's own hue: Horprasert,
+    Harwood & Davis 1999), by more than a factor ``_SAME_BRIGHT`` (brightness ratio of the means
+    below its inverse) and with a chromaticity distortion of the means (:func:`_chroma_off`)
+    below ``_HUE_STEP``, and no pixel brighter than the empty table by :func:`ballness`'s
+    bound 1.15. A ball is raised and glossy: a lamp that lights it shows as a highlight (Blinn
+    1977) or a lit side, which no shadow has, and a black or coloured ball on cloth of another
+    hue is off the cloth's colour direction whatever its light. What is left alike is a dark
+    ball of the cloth's hue, or a neutral one on grey cloth, with no lamp's highlight within
+    0.7 of its radius: the caller also asks for the ball casting the shadow beside it
+    (:meth:`BallDetector._drop_cast_shadows`)."""
+    if len(I) == 0:
+        return False
+    I = np.asarray(I, np.float32)
+    B = np.asarray(B, np.float32)
+    a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
+    if float(a.max()) > 1.15:
+        return False
+    Im, Bm = I.mean(axis=0), B.mean(axis=0)
+    am = float(Im @ Bm) / max(float(Bm @ Bm), 1.0)
+    return am < 1.0 / _SAME_BRIGHT and float(_chroma_off(Im[None], Bm[None], np.array([am]))[0]) < _HUE_STEP
+
+
 def _off_white_cloth(I: np.ndarray, W: np.ndarray, C: np.ndarray) -> np.ndarray:
     """(N,) sine of the angle between colours ``I`` (N, 3) and the nearest non-negative mix
     ``a W + b C`` of a white ``W`` (3,) and the empty table ``C`` (N, 3) at the same pixels: the
@@ -1343,6 +1385,7 @@ class BallDetector:
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
         fits = self._free_occluders(img, seeds, fits)
+        fits = self._drop_cast_shadows(img, fits, known, seeds)
         crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known), blocked)
         seeds += crowns
         fits += [self._fit_crown(img, s) for s in crowns]
@@ -1356,7 +1399,10 @@ class BallDetector:
                 fits.append(r)
             else:
                 kept.append(r)
-        return kept + self._refit_touching(img, seeds, fits)
+        # Refitted with its neighbours' rays left out, a fit that had straddled a ball and its
+        # shadow can slide onto the shadow: the shadow test again on what stands.
+        rows = kept + self._refit_touching(img, seeds, fits)
+        return [r for r in self._drop_cast_shadows(img, rows) if r is not None]
 
     def _worth_fitting(self, img: np.ndarray, s: dict) -> bool:
         """Whether a seed can pass the fit's last tests: a seed inside an arm or cue component
@@ -1569,6 +1615,78 @@ class BallDetector:
             for k in ks:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
         return out
+
+    def _drop_cast_shadows(self, img: np.ndarray, fits: list[dict | None], known: list[dict] = (), seeds: list[dict] | None = None) -> list[dict | None]:
+        """``fits`` with the sharp balls that are a cast shadow set to None: the disc within 0.7
+        of the image radius is the cloth darkened with its hue kept and no highlight
+        (:func:`_cast_shadow`), and another ball (a fit that is no such shadow, sharp or a
+        streak, or a ``known`` ball) lies within ``_CASTER_R`` radii to cast it. A lamp's
+        shadow of a ball starts under the ball (seen from above, it joins the ball's image), so
+        a shadow alone is no ball's; a dark ball alone keeps its detection whatever its light.
+        Where no ball casts it and its seed's piece of foreground (``seeds``, as
+        :meth:`_seeds_of`) holds the casting ball's pixels, the fit is replaced by that ball's
+        (:meth:`_caster_of`): a ball and its long shadow make one piece, seeded once, and the
+        fit can take the shadow's end. Run after :meth:`_free_occluders`, which counts the
+        shadow's fit as explaining its foreground (dropped before, the shadow would be a
+        ball's area of foreground left unexplained beside the ball casting it, and the pair
+        taken for an occluder)."""
+        sharp = [k for k, r in enumerate(fits) if r is not None and not (r["blur_x"] or r["blur_y"])]
+        if not sharp:
+            return fits
+        shade = {k for k in sharp if self._disc_cast_shadow(img, fits[k])}
+        if not shade:
+            return fits
+        casters = np.array([[r["x"], r["y"]] for k, r in enumerate(fits) if r is not None and k not in shade] + [[r["x"], r["y"]] for r in known]).reshape(-1, 2)
+        out = list(fits)
+        for k in shade:
+            r = fits[k]
+            if len(casters) and np.min(np.hypot(casters[:, 0] - r["x"], casters[:, 1] - r["y"])) < _CASTER_R * self.R:
+                out[k] = None
+            elif seeds is not None and "piece" in seeds[k]:
+                ball = self._caster_of(img, r, seeds[k])
+                if ball is not None:
+                    out[k] = ball
+        return out
+
+    def _caster_of(self, img: np.ndarray, shadow: dict, seed: dict) -> dict | None:
+        """The ball casting the shadow fitted as ``shadow`` (a detection row), from the rest of
+        its seed's piece of foreground (``seed["piece"]``): the piece's pixels off the empty
+        table's hue (the chromaticity distortion of :func:`_cast_shadow`, per pixel, at least
+        ``_HUE_STEP``) or brighter than it by 1.15 (a lit side or highlight), at least a third
+        of the smallest ball's image area of them, seed a ball at their centroid; its fit
+        (:meth:`_fit_one`) stands when it is no shadow itself and lies within ``_CASTER_R``
+        radii of the shadow's. None otherwise (a black ball on grey cloth has no such pixels:
+        its shadow's fit stands as it was)."""
+        comp, origin = seed["piece"]
+        ys, xs = np.nonzero(comp)
+        us, vs = xs + origin[0], ys + origin[1]
+        I = img[vs, us].astype(np.float32)
+        B = self.background.image[vs, us]
+        a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
+        lit = (_chroma_off(I, B, a) >= _HUE_STEP) | (a > 1.15)
+        if lit.sum() < 0.3 * math.pi * self.r_min_px**2:
+            return None
+        uv = np.array([us[lit].mean(), vs[lit].mean()])
+        r = self._fit_one(img, dict(seed, uv=uv, half_px=0.0))
+        if r is None or (r["blur_x"] or r["blur_y"]) or self._disc_cast_shadow(img, r):
+            return None
+        if math.hypot(r["x"] - shadow["x"], r["y"] - shadow["y"]) >= _CASTER_R * self.R:
+            return None
+        return r
+
+    def _disc_cast_shadow(self, img: np.ndarray, row: dict) -> bool:
+        """:func:`_cast_shadow` of the pixels within 0.7 of the image radius round the centre's
+        image of the sharp ball of detection ``row`` (the disc of :meth:`_filled_share`)."""
+        uv = np.array([row["u"], row["v"]])
+        r = 0.7 * float(np.mean(np.hypot(*(self.rays.sphere_outline(row["x"], row["y"], self.R) - uv).T)))
+        h, w = img.shape[:2]
+        u0, v0 = max(int(math.floor(uv[0] - r)), 0), max(int(math.floor(uv[1] - r)), 0)
+        u1, v1 = min(int(math.ceil(uv[0] + r)) + 1, w), min(int(math.ceil(uv[1] + r)) + 1, h)
+        if u1 <= u0 or v1 <= v0:
+            return False
+        yy, xx = np.mgrid[v0:v1, u0:u1]
+        inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
+        return _cast_shadow(img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside])
 
     def _bridged(self, comp: np.ndarray, origin, mask: np.ndarray, rows: list[dict]) -> bool:
         """Whether two sharp balls fitted in one free piece (``comp``, (h, w) uint8 at
