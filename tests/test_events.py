@@ -1108,3 +1108,102 @@ def test_a_lone_slow_contact_departs_sliding_on_the_typical_cloth():
     assert len(errs) >= 8
     assert abs(np.median(errs[:, 0])) <= 0.03
     assert np.median(errs[:, 1]) <= 1.0
+
+
+def _struck_near(fps: float, seed: int, n: int = 6, gap_mm: tuple[float, float] = (60.0, 140.0)):
+    """Simulated shots (``analysis.physics``: sliding then rolling, Alciatore 2004; cushion
+    impacts of Mathavan, Jackson & Parkin 2010) in which the cue ball, struck from rest at 2-3.5
+    m/s up to 30 degrees off square, meets the bottom or top cushion ``gap_mm`` after it starts
+    (centre to the reversal line), so within one to three frame intervals at 30 fps; caught
+    0.5 s later and set down 0.7 s after that for the next. Detections as in ``benchmarks/event_accuracy.py``
+    (exposure-averaged centres, 2.5 mm noise moving, 1 mm at rest). Returns (found events, the
+    simulator's cushion events)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    rng = np.random.default_rng(seed)
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": (500.0, 400.0)})
+    t = 0.3
+    for i, x0 in enumerate(np.linspace(500.0, 2000.0, n)):
+        bottom = i % 2 == 0
+        ang = math.radians(rng.uniform(-30.0, 30.0))
+        dist = rng.uniform(*gap_mm)
+        c = TABLE.reversal_line("bottom" if bottom else "top")
+        y0 = c + dist * math.cos(ang) if bottom else c - dist * math.cos(ang)
+        if i:
+            sim.place(t, "cue", (x0, y0))
+        else:
+            sim.place(0.0, "cue", (x0, y0))
+        heading = (-math.pi / 2 if bottom else math.pi / 2) + ang
+        sim.strike(t + 0.5, Strike("cue", rng.uniform(2000.0, 3500.0), heading, 0.0,
+                                   rng.choice([-0.4, 0.0, 0.4])))
+        sim.lift(t + 1.0, "cue")
+        t += 1.7
+    traj = sim.trajectory()
+    det = detections(traj, t, fps, rng, drop=0.0)
+    truth = truth_events(TABLE, traj, t)
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return ev, truth[truth["kind"] == "cushion"].reset_index(drop=True)
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_a_cushion_a_frame_or_two_after_the_strike_is_found_at_30fps(seed):
+    # At 30 fps a ball struck from rest 60-140 mm from a rail at 2-3.5 m/s reaches it one to
+    # three frames later, so its approach has at most two samples clear of the strike and the
+    # contact. Each simulated contact must be found on its rail within half a frame (the issue's
+    # collision tolerance; the scorer matches within 0.1 s) and no contact made up. Before: the
+    # strike's bound was dropped near the contact, so the approach fit ran back through the rest
+    # before the strike, and a contact with fewer than two approach samples was never solved
+    # (event_accuracy.py 30 fps, seeds 1-5: 8 such contacts missed).
+    fps = 30.0
+    ev, truth = _struck_near(fps, seed)
+    found = _only(ev, "cushion")
+    assert len(found) == len(truth)
+    for _, tr in truth.iterrows():
+        near = found[(found["rail"] == tr["rail"]) & ((found["t"] - tr["t"]).abs() < 0.5 / fps)]
+        assert len(near) == 1, (tr["t"], found[["t", "rail"]].to_dict("records"))
+
+
+def _struck_into_a_ball(fps: float, seed: int):
+    """A cue ball struck from rest at 2-3.5 m/s into an object ball ahead, cut 0-30 degrees,
+    the gap between the balls what the speed covers in 1.2 to 2 frame intervals, so they meet
+    one to two frames after the strike; simulated by ``analysis.physics`` (ball-ball impacts
+    with throw). Detections as in ``benchmarks/event_accuracy.py``. Returns (found events, the
+    simulator's collision time)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections
+
+    rng = np.random.default_rng(seed)
+    obj = np.array([1200.0, 600.0])
+    heading = rng.uniform(-math.pi, math.pi)
+    cut = math.radians(rng.uniform(-30.0, 30.0))
+    n = np.array([math.cos(heading + cut), math.sin(heading + cut)])  # line of centres
+    u = np.array([math.cos(heading), math.sin(heading)])
+    speed = rng.uniform(2000.0, 3500.0)
+    cue = obj - D * n - speed * rng.uniform(1.2, 2.0) / fps * u
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": tuple(cue), "obj": tuple(obj)})
+    sim.strike(0.3, Strike("cue", speed, heading, 0.0, 0.0))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    t_c = next(e.t for e in traj.events if e.kind == "collision")
+    det = detections(traj, 1.2, fps, rng, drop=0.0)
+    det["pattern"] = np.where(det["truth"] == "cue", "cue", "solid")
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return ev, t_c
+
+
+def test_a_collision_a_frame_or_two_after_the_strike_is_found_at_30fps():
+    # The struck ball meets the other before its third frame: the collision must be found (both
+    # balls' rows) within half a frame (the issue's target) and the struck ball keep its start
+    # (it left rest before the other did; the other's motion begins at the collision). Before:
+    # the struck ball's approach was fitted through its rest, which made its velocity change
+    # look a seventh of the other's and the collision was dropped as unbalanced, or the
+    # departure's touch was looked for at the root where the paths close in (event_accuracy.py
+    # 30 fps, seeds 2 and 3: one of 19 and one of 22 collisions missed).
+    fps = 30.0
+    for seed in range(6):
+        ev, t_c = _struck_into_a_ball(fps, seed)
+        col = _only(ev, "collision")
+        assert len(col) == 2 and np.all(np.abs(col["t"] - t_c) < 0.5 / fps), (seed, t_c, col)
+        starts = _only(ev, "start")
+        assert len(starts) == 1 and starts.loc[0, "t"] < t_c, (seed, starts)

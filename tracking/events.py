@@ -41,7 +41,10 @@ Method
    left empty).
 3. Each contact is then solved between frames. Each side's path is fitted by least squares
    from the raw samples between the neighbouring contacts of that ball (at most
-   ``fit_window_s`` each side), leaving out samples whose exposure straddles the contact, each
+   ``fit_window_s`` each side; a strike from rest bounds them however soon the contact follows
+   it: within three frames of a contact, half an exposure after the solved start, else the
+   motion's first row, ``_strikes``), leaving out samples whose
+   exposure straddles the contact, each
    weighted by the detector's ``sigma_mm`` relative to the track's typical one where the
    detections carry it (weighted least squares; a detection the detector itself doubts, such
    as a ball half in a cushion's shadow, counts less), with
@@ -82,17 +85,25 @@ Method
    line would turn by degrees per tenth of a millimetre, rests on its own path. The time with
    the least summed criterion gives the contact, and the pinned fits give the speeds, angles
    and restitution. A contact
-   whose samples scatter about the fits by more than a ball's radius, or that leaves the line
-   faster than it came (a cushion's speed ratio is below 1), is not a ball's bounce (a hand or a
-   false track) and is dropped. *Collision*:
+   whose samples scatter about the fits by more than a ball's radius, that leaves the line
+   faster than it came (a cushion's speed ratio is below 1), or whose approach heads away from
+   the rail as it reaches the line, is not a ball's bounce (a hand, a false track, or a ball
+   running along the rail) and is dropped. A contact too soon after the ball's previous event
+   (a strike or another ball a frame or two before, at 30 fps) to fit its approach is solved
+   from its departure, the approach velocity the chord from the last sample before it to the
+   contact point (``_Finder._departure``). *Collision*:
    the time where the centres are one diameter apart, ``|p1(t) - p2(t)| = D``, is solved
-   (a quartic) from the approach fits and from the departure fits and the two combined the same
-   way, from plain quadratic fits grown outward from the contact (``_Finder._grow``); a touch
+   (a quartic; of its roots, the one where the paths close in for the approach and draw apart
+   for the departure) from the approach fits and from the departure fits and the two combined
+   the same way, from plain quadratic fits grown outward from the contact (``_Finder._grow``); a
+   touch
    whose two velocity changes do not balance (equal masses exchange equal and opposite
    momentum; ``EventConfig.collision_min_balance``), or neither of whose paths goes on after it
    or comes before it, is two false tracks or a ball set moving beside another, and is dropped.
    *Start*:
-   the first moving samples' fit extrapolated back to the rest position. *Stop*:
+   the first moving samples' fit extrapolated back to the rest position; a motion that begins
+   at a collision has none, unless the ball left rest at an earlier frame than the ball it
+   met (struck by the cue a frame or two before meeting it, ``_set_moving``). *Stop*:
    the instant the fitted velocity of the last moving samples vanishes, ``argmin |p'(t)|``.
    A ball that leaves the table within ``min_rest_s`` of slowing down (caught) gets no stop.
    *Pocket*: a track that ends (before the clip does, or before a gap) heading into a pocket
@@ -672,14 +683,19 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                 far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss_pen)
 
 
-def _roots_near(coeffs_high_first, t_guess_tau: float, lo: float, hi: float) -> float | None:
-    """Real root of a polynomial (numpy order) in [lo, hi] nearest ``t_guess_tau``, else None."""
+def _real_roots(coeffs_high_first, lo: float, hi: float) -> np.ndarray:
+    """Real roots (k,) of a polynomial (numpy order) in [lo, hi]."""
     c = np.trim_zeros(np.asarray(coeffs_high_first, dtype=float), "f")
     if len(c) < 2:
-        return None
+        return np.zeros(0)
     r = np.roots(c)
     r = r[np.abs(r.imag) <= 1e-9 * np.maximum(1.0, np.abs(r.real))].real
-    r = r[(r >= lo) & (r <= hi)]
+    return r[(r >= lo) & (r <= hi)]
+
+
+def _roots_near(coeffs_high_first, t_guess_tau: float, lo: float, hi: float) -> float | None:
+    """Real root of a polynomial (numpy order) in [lo, hi] nearest ``t_guess_tau``, else None."""
+    r = _real_roots(coeffs_high_first, lo, hi)
     if not len(r):
         return None
     return float(r[np.argmin(np.abs(r - t_guess_tau))])
@@ -699,6 +715,7 @@ class _Ball:
     moves: list = field(default_factory=list)  # [(i0, i1)] index ranges, inclusive
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
+    strikes: list = field(default_factory=list)  # first instants past a strike from rest, s
     weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
 
     def weights(self, ts: np.ndarray) -> np.ndarray | None:
@@ -716,9 +733,13 @@ class _Ball:
         return self.t[ok], self.raw[ok]
 
     def bounds(self, t_event: float, guard: float) -> tuple[float, float]:
-        """Neighbouring rough event times of this ball around ``t_event`` (beyond ``guard``)."""
-        before = [m for m in self.marks if m < t_event - guard]
-        after = [m for m in self.marks if m > t_event + guard]
+        """Neighbouring rough event times of this ball around ``t_event`` (beyond ``guard``).
+
+        A strike from rest (``strikes``) bounds what follows it however soon: a contact a frame
+        or two after it must not be fitted through the rest before it."""
+        before = [m for m in self.marks if m < t_event - guard] + \
+            [m for m in self.strikes if m < t_event]
+        after = [m for m in self.marks + self.strikes if m > t_event + guard]
         return (max(before) if before else -math.inf, min(after) if after else math.inf)
 
 
@@ -919,6 +940,7 @@ def find_events(
         b.respots = _respots(b, table.ball_diameter_mm)
         b.marks = sorted(ends + contacts + b.respots)
     by_id = {b.track: b for b in balls}
+    starts = _strikes(finder, balls, by_id, rough_collisions)
     finder.slide_decel, finder.slide_decel_sd = _cloth_slide_decel(finder, balls, rough_cushions,
                                                                    rough_collisions)
     finder.slide_measured = finder.slide_decel_sd < cfg.slide_decel_sigma_mm_s2
@@ -926,9 +948,9 @@ def find_events(
     rows: list[dict] = []
     for tg, i, j in rough_collisions:
         rows += finder.collision(by_id[i], by_id[j], tg)
-    collisions_by_ball: dict[int, list[float]] = {}
+    collisions_by_ball: dict[int, list[tuple[float, int]]] = {}
     for r in rows:
-        collisions_by_ball.setdefault(r["track"], []).append(r["t"])
+        collisions_by_ball.setdefault(r["track"], []).append((r["t"], r["other"]))
     # Each rail's contact line from the apexes of all its contacts (``_rail_offsets``): the
     # calibration's reversal line may be off by a millimetre, and every contact is pinned to it.
     apexes: dict[str, list[tuple[float, float]]] = {r: [] for r in RAILS}
@@ -960,17 +982,14 @@ def find_events(
         # Last row of each stay on the table: before a gap in the frames or a jump.
         pieces = sorted(int(np.searchsorted(b.t, t)) - 1 for t in b.respots)
         for i0, i1 in b.moves:
-            t0 = b.t[i0]
-            speed = np.hypot(*b.v[i0:i1 + 1].T)
-            t_fast = b.t[i0 + int(np.argmax(speed > cfg.move_speed_mm_s))]
-            hit = [tc for tc in collisions_by_ball.get(b.track, [])
-                   if t0 - 3 * dt <= tc <= t_fast + 1.5 * dt]
+            hit = [tc for tc, o in collisions_by_ball.get(b.track, [])
+                   if _set_moving(finder, b, (i0, i1), by_id[o], tc)]
             if hit:
                 t_begin = min(hit)
             elif i0 == 0:
                 t_begin = float(b.t[0])  # already moving when first seen
             else:
-                r = finder.start(b, i0)
+                r = starts.get((b.track, i0)) or finder.start(b, i0)
                 rows.append(r)
                 t_begin = r["t"]
             # The ball's stay on the table that this motion belongs to ends at ``last``: the
@@ -995,6 +1014,63 @@ def find_events(
                 t_end = r["t"]
             moves.append((b.track, t_begin, t_end))
     return _assemble(rows, moves, dt)
+
+
+def _left_rest(finder: "_Finder", b: _Ball, t: float) -> float:
+    """When (s) ``b`` was first seen off its rest position in the motion under way at ``t``
+    (begun by one and a half frames after it): -inf for a ball moving when first seen, inf
+    for one at rest at ``t``."""
+    dt = finder.dt
+    moves = [m for m in b.moves if b.t[m[0]] <= t + 1.5 * dt and b.t[m[1]] >= t - 3 * dt]
+    if not moves:
+        return math.inf
+    i0 = moves[-1][0]
+    if i0 == 0:
+        return -math.inf
+    _, _, ts, _ = finder._leaving(b, i0)
+    return float(ts[0]) if len(ts) else float(b.t[i0])
+
+
+def _set_moving(finder: "_Finder", b: _Ball, move: tuple[int, int], other: _Ball,
+                tc: float) -> bool:
+    """Whether the collision with ``other`` at ``tc`` (s) set ``b``'s motion ``move`` (rows
+    i0, i1) going: it comes between three frames before the motion's first row and one and a
+    half frames after its first row above ``move_speed_mm_s``, and ``b`` did not leave rest
+    at an earlier frame than ``other`` did (a ball struck by the cue a frame or two before it
+    meets another was moving first; the one it meets was set moving by it)."""
+    i0, i1 = move
+    dt = finder.dt
+    speed = np.hypot(*b.v[i0:i1 + 1].T)
+    t_fast = b.t[i0 + int(np.argmax(speed > finder.cfg.move_speed_mm_s))]
+    if not b.t[i0] - 3 * dt <= tc <= t_fast + 1.5 * dt:
+        return False
+    return not _left_rest(finder, b, tc) < _left_rest(finder, other, tc) - 0.5 * dt
+
+
+def _strikes(finder: "_Finder", balls: list[_Ball], by_id: dict[int, _Ball],
+             rough_collisions: list[tuple[float, int, int]]) -> dict[tuple[int, int], dict]:
+    """Start events {(track, first row of the motion): row} of the motions that begin from
+    rest other than at a collision (``_set_moving`` on the rough collisions). Where the
+    motion's first row lost its mark for lying within three frames of a contact, the start
+    becomes a bound of the ball's later contacts instead (``_Ball.strikes``): half an exposure
+    past it, so no sample that saw the ball at rest enters their fits, however soon after the
+    strike they come (at 30 fps a ball struck into a near cushion or ball meets it within one
+    or two frames). Elsewhere the first row stays the only bound, as before: bounding at the
+    start there too (the first row can lie a frame before the strike) moved 60 fps angles and
+    restitution both ways (``benchmarks/event_accuracy.py`` seeds 1 and 2)."""
+    out = {}
+    for b in balls:
+        for i0, i1 in b.moves:
+            if i0 == 0 or any(
+                    _set_moving(finder, b, (i0, i1), by_id[j if i == b.track else i], tg)
+                    for tg, i, j in rough_collisions if b.track in (i, j)):
+                continue
+            out[(b.track, i0)] = finder.start(b, i0)
+    for (track, i0), r in out.items():
+        b = by_id[track]
+        if b.t[i0] not in b.marks:  # dropped beside a contact (``find_events``)
+            b.strikes.append(r["t"] + 0.5 * finder.exposure)
+    return out
 
 
 def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: dict,
@@ -1622,7 +1698,9 @@ class _Finder:
             # its crossing is no departure (if anything, the ball still running in).
             return None if apex_only or fa is None else self._arrival(b, rail, fa, t_c, c, ax)
         if fa is None:
-            return None
+            # Too few samples since the ball's last event (a strike or another ball a frame or
+            # two before): the contact rests on its departure.
+            return None if apex_only else self._departure(b, rail, fd, t_c, c, ax, lo)
         if apex_only:
             apex = _apex(fa, fd, ax, t_c, 2 * self.dt)
             return None if apex is None else (apex[0] - c, apex[1])
@@ -1670,13 +1748,64 @@ class _Finder:
         # is so far off, while one poor detection among many moves the rms far less), or a
         # path leaving the line much faster than it came (beyond three standard deviations of
         # the two fitted speeds), since a cushion gives back less normal speed than it took
-        # (speed ratio below 1; Mathavan et al. 2009 measured at most about 0.95).
+        # (speed ratio below 1; Mathavan et al. 2009 measured at most about 0.95). Nor is a
+        # path that, reaching the line, heads away from the rail: a ball strikes a cushion
+        # only running into it, and a ball running along the rail, its normal velocity within
+        # the noise of zero, turns that way and back in the smoothed velocity (a second, false
+        # contact a few frames after a slow one).
         if max(fa.s2, fd.s2) > self.table.radius_mm ** 2:
             return None
         vn_in, vn_out = -float(v_in @ n_in), float(v_out @ n_in)
+        if vn_in <= 0:
+            return None
         sd = math.sqrt(fa.s2 * fa.cov[1, 1] + fd.s2 * fd.cov[1, 1])
         if vn_out - vn_in > 3.0 * sd:
             return None
+        a_in, a_out, e = cushion_angles(rail, v_in, v_out)
+        return _row(t_c, "cushion", b.track, xy, speed_in=float(np.hypot(*v_in)),
+                    speed_out=float(np.hypot(*v_out)), rail=rail,
+                    diamond=self.table.to_diamonds(rail, s), angle_in=a_in, angle_out=a_out,
+                    restitution=e)
+
+    def _departure(self, b: _Ball, rail: str, fd: _Fit, t_c: float, c: float, ax: int,
+                   lo: float):
+        """A cushion contact too soon after the ball's previous event (``lo``, s: a strike
+        from rest or another ball one or two frames earlier, as at 30 fps) for an approach fit,
+        solved from its departure ``fd``, or None.
+
+        The time is where the departure crosses the contact line ``c`` (normal axis ``ax``),
+        the point its position there, the speed and angle out its velocity. In a rigid impact
+        the centre reaches that point at that instant (as ``_pinned_contact`` assumes), so the
+        approach velocity is the chord from the last sample before the contact whose exposure
+        does not reach it to that point (over less than two frames a sliding ball's velocity
+        changes by ``mu_s g dt``, about 2 % at 2 m/s and 30 fps; Alciatore 2004); with no such
+        sample since ``lo`` the speed and angle in and the restitution stay empty (NaN). None
+        within a pocket mouth, for a departure that scatters beyond a ball's radius or does not
+        leave the rail at ``min_velocity_change_mm_s / 2`` or more, or one that leaves faster
+        than the chord came in (beyond three standard deviations; ``cushion``).
+        """
+        n_in = np.asarray(rail_inward_normal(rail), dtype=float)
+        v_out = fd.vel(t_c)
+        vn_out = float(v_out @ n_in)
+        s = float(fd.pos(t_c)[1 - ax])
+        if fd.s2 > self.table.radius_mm ** 2 or vn_out < 0.5 * self.cfg.min_velocity_change_mm_s \
+                or not any(lo_ <= s <= hi_ for lo_, hi_ in self.segments[rail]):
+            return None
+        xy = np.zeros(2)
+        xy[ax], xy[1 - ax] = c, s
+        v_in = np.full(2, math.nan)
+        ts, ps = b.samples(lo, t_c - 0.5 * self.exposure)
+        if len(ts):
+            gap = t_c - ts[-1]
+            chord = (xy - ps[-1]) / gap
+            # Variance of the chord's normal component: the sample's noise over the gap, and
+            # the departure's own velocity variance beside it.
+            sd = math.sqrt(2.0 * b.sigma_fit ** 2 / gap ** 2 + fd.s2 * fd.cov[1, 1])
+            vn_in = -float(chord @ n_in)
+            if vn_out - vn_in > 3.0 * sd:
+                return None
+            if vn_in > 0:
+                v_in = chord
         a_in, a_out, e = cushion_angles(rail, v_in, v_out)
         return _row(t_c, "cushion", b.track, xy, speed_in=float(np.hypot(*v_in)),
                     speed_out=float(np.hypot(*v_out)), rail=rail,
@@ -1761,14 +1890,21 @@ class _Finder:
         q[0] -= D * D
         t0 = f1.t0
         lo, hi = (tg - t0) - 3 * self.dt, (tg - t0) + 3 * self.dt
-        tau = _roots_near(q[::-1], tg - t0, lo, hi)
-        if tau is None:
+        # The paths, extrapolated, pass one diameter apart twice around a touch: closing in
+        # and drawing apart. The approach touches where they close in, the departure where
+        # they draw apart; the other root is no touch, however near the rough time it lies (a
+        # rough time a frame off, when the contact comes a frame after a strike).
+        best = None
+        for tau in _real_roots(q[::-1], lo, hi):
+            d = f1.pos(t0 + tau) - f2.pos(t0 + tau)
+            vrel = f1.vel(t0 + tau) - f2.vel(t0 + tau)
+            rate = float(d @ vrel) / D  # d|d|/dt
+            if ((rate < 0) if approach else (rate > 0)) and (
+                    best is None or abs(tau - (tg - t0)) < abs(best[0] - (tg - t0))):
+                best = (float(tau), rate)
+        if best is None:
             return None
-        d = f1.pos(t0 + tau) - f2.pos(t0 + tau)
-        vrel = f1.vel(t0 + tau) - f2.vel(t0 + tau)
-        rate = float(d @ vrel) / D  # d|d|/dt
-        if (rate >= 0) if approach else (rate <= 0):
-            return None
+        tau, rate = best
         var = (f1.var(t0 + tau) + f2.var(t0 + tau)) / max(rate * rate, 1e-12)
         return t0 + tau, var
 
@@ -1817,8 +1953,11 @@ class _Finder:
         return rows
 
     # --- start, stop, pocket ----------------------------------------------------------------
-    def start(self, b: _Ball, i0: int) -> dict:
-        """The instant ``b`` leaves rest, from its first moving samples extrapolated back."""
+    def _leaving(self, b: _Ball, i0: int):
+        """How ``b`` leaves rest at the motion beginning at row ``i0``: its rest position (2,)
+        mm, the raw samples at rest before it (times (n,) s) and the raw samples from the first
+        one clearly off the rest position on (more than three times the rest samples' median
+        scatter, at least 1 mm; times (m,) s, positions (m, 2) mm)."""
         lo, hi = b.bounds(b.t[i0], 1.5 * self.dt)
         t_rest0 = max(lo, b.t[i0] - 0.5)
         rest_t, rest_p = b.samples(t_rest0 - 1e-9, b.t[i0] - 0.5 * self.dt)
@@ -1828,12 +1967,15 @@ class _Finder:
         p_rest = np.median(rest_p, axis=0)
         scatter = float(np.median(np.hypot(*(rest_p - p_rest).T))) if len(rest_p) > 2 else 0.0
         thr = max(3.0 * scatter, 1.0)
-        # First raw sample clearly off the rest position.
         ts, ps = b.samples(b.t[max(0, i0 - 3)] - 1e-9, min(hi, b.t[i0] + self.cfg.start_fit_s
                                                           + 4 * self.dt))
         off = np.hypot(*(ps - p_rest).T) > thr
         first = int(np.argmax(off)) if off.any() else 0
-        ts, ps = ts[first:], ps[first:]
+        return p_rest, rest_t, ts[first:], ps[first:]
+
+    def start(self, b: _Ball, i0: int) -> dict:
+        """The instant ``b`` leaves rest, from its first moving samples extrapolated back."""
+        p_rest, rest_t, ts, ps = self._leaving(b, i0)
         if len(ts):  # none where the ball was unseen all along (coasted under an arm)
             keep = ts <= ts[0] + self.cfg.start_fit_s
             ts, ps = ts[keep], ps[keep]
