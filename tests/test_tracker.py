@@ -454,6 +454,33 @@ def test_put_down_ball_takes_no_ambiguous_or_moving_id():
 
 
 
+@pytest.mark.parametrize("fps,hidden_s,read_as", [(60.0, 1.2, ("", "unknown")), (30.0, 0.35, ("black", "solid"))])
+def test_resting_ball_seen_again_where_it_rested_keeps_its_id(fps, hidden_s, read_as):
+    # A red solid rests throughout (Newton's first law: nothing strikes it) but is hidden under
+    # the player's arm, or lost in a dark corner, for a while during a shot, and when it is seen
+    # again its labels read otherwise (a dim red read as black, or unsure). Meanwhile the cue
+    # ball runs past far from it. Two balls cannot lie within a radius of one spot (centres are
+    # a diameter apart at least), so the ball seen again resting where it rested is the same
+    # ball (issue "Follow every ball": identity switches none).
+    times = np.arange(int(3.0 * fps)) / fps
+    rng = np.random.default_rng(31)
+    red = _still((1730.0, 1196.0))
+    cue = decel_path((300.0, 300.0), 10.0, 1600.0, 0.2 * G * 0.3, t_start=0.5)
+    k0, k1 = int(0.8 * fps), int((0.8 + hidden_s) * fps)
+    det = detections({"red": red, "cue": cue}, times, rng, noise_mm=1.5,
+                     labels={"red": ("red", "solid"), "cue": ("white", "cue")},
+                     gaps=[("red", k0, k1)])
+    after = (det["truth"] == "red") & (det["frame"] > k1)
+    det.loc[after, ["colour", "pattern"]] = read_as
+    tr = track(det, TABLE)
+    ids, _ = match_tracks(tr, {"red": red}, times)
+    near = tr[np.hypot(tr["x"] - 1730.0, tr["y"] - 1196.0) < R]
+    assert set(near["track"]) == {ids["red"]}, near.groupby("track")["frame"].agg(["min", "max"])
+    assert near["frame"].max() == len(times) - 1 and near["frame"].min() == 0
+    # The ball running past keeps its own id and never takes the resting ball's.
+    assert tr["track"].nunique() == 2
+
+
 def test_doubtful_cue_label_at_a_collision_keeps_identity():
     # The object ball was hidden (under the arm) until the cue ball struck it, and in the first
     # frames after the contact the detector, unsure where the two balls merge in its view
