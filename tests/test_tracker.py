@@ -481,6 +481,37 @@ def test_resting_ball_seen_again_where_it_rested_keeps_its_id(fps, hidden_s, rea
     assert tr["track"].nunique() == 2
 
 
+def test_cue_ball_never_named_before_it_is_put_down_keeps_its_id():
+    # In a dim room the detector names the cue ball nothing (pattern unknown, no colour) all
+    # through the first shot; the player lifts it and puts it down elsewhere for the next
+    # shot, where it now reads as the cue ball. There is one cue ball, and the only ball
+    # lifted was never read as an object ball: the put-down cue ball is it (issue "Follow every
+    # ball": identity switches none). Two unnamed balls lifted leave it a new id.
+    fps = 30.0
+    times = np.arange(int(4.0 * fps)) / fps
+    rng = np.random.default_rng(32)
+    cue = _respot_paths(times, [(0.0, (500.0, 300.0)), (2.0, (700.0, 520.0))])
+    red = _still((1300.0, 620.0))
+    det = detections({"cue": cue, "red": red}, times, rng, noise_mm=1.0,
+                     labels={"cue": ("", "unknown"), "red": ("red", "solid")},
+                     gaps=[("cue", int(1.5 * fps), int(2.2 * fps))])
+    named = (det["truth"] == "cue") & (det["frame"] > int(2.2 * fps))
+    det.loc[named, ["colour", "pattern"]] = ("white", "cue")
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2, tr.groupby("track")["frame"].agg(["min", "max"])
+    # A second unnamed ball lifted at the same time: which one is put down is unknown.
+    other = _still((1700.0, 300.0))
+    det = detections({"cue": cue, "red": red, "other": other}, times, rng, noise_mm=1.0,
+                     labels={"cue": ("", "unknown"), "red": ("red", "solid"),
+                             "other": ("", "unknown")},
+                     gaps=[("cue", int(1.5 * fps), int(2.2 * fps))],
+                     present={"other": (0, int(1.5 * fps))})
+    det.loc[(det["truth"] == "cue") & (det["frame"] > int(2.2 * fps)), ["colour", "pattern"]] = (
+        "white", "cue")
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 4, tr.groupby("track")["frame"].agg(["min", "max"])
+
+
 def test_doubtful_cue_label_at_a_collision_keeps_identity():
     # The object ball was hidden (under the arm) until the cue ball struck it, and in the first
     # frames after the contact the detector, unsure where the two balls merge in its view

@@ -90,8 +90,9 @@ Method
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest, on sure labels, while every established ball
   rests takes back the id of an ended (or unseen, coasting) track with the same identity labels,
-  when exactly one such id exists; the cue ball is one ball, so any earlier cue-ball id
-  (``Tracker._respotted``).
+  when exactly one such id exists; the cue ball is one ball, so any earlier cue-ball id, or,
+  where no ball was ever read as the cue ball (a dim room's unnamed white ball), the one lifted
+  id never read as an object ball (``Tracker._respotted``, ``Tracker._unread_cue``).
   That id's rows then have a gap or a jump between the two pieces.
 * A ball hidden at rest (under an arm, in a dark corner) and seen again resting within a radius
   of where it rested is the same ball whatever its labels read and whatever else is moving: a
@@ -895,7 +896,7 @@ class Tracker:
             if ok:
                 cands.append(tid)
         if kind == "cue":
-            donor = min(cands) if cands else None
+            donor = min(cands) if cands else self._unread_cue(ids, held, tr.birth_frame)
         else:
             donor = cands[0] if len(cands) == 1 else None
         # Labels name a ball only when the detector is as sure of them as it was of that ball,
@@ -904,6 +905,29 @@ class Tracker:
         if donor is None or min(tr.qualities) < self._sure_quality(ids[donor]):
             return None
         return donor
+
+    @staticmethod
+    def _unread_cue(ids: dict[int, list[_Track]], held: set[int], birth_frame: int) -> int | None:
+        """The id a cue ball put down takes when no earlier id was ever read as the cue ball:
+        the one id (``ids``: id -> its track pieces) not seen now (``held``), last seen before
+        ``birth_frame``, none of whose detections was read as an object ball (solid or stripe)
+        or as any colour but white, when exactly one such id exists; else None. There is one
+        cue ball, and a white ball the detector could not name (in dim light, its labels read
+        ``unknown`` all along) was it if no ball was ever named so."""
+        if any(o.kind() == "cue" for olds in ids.values() for o in olds):
+            return None
+        cands = []
+        for tid, olds in ids.items():
+            if tid in held:
+                continue
+            if max(o.frames[max(k for k, s in enumerate(o.seen) if s)] for o in olds) >= birth_frame:
+                continue
+            if any(o.patterns.get("solid", 0) + o.patterns.get("stripe", 0) > 0
+                   or any(c not in ("", "white") and n > 0 for c, n in o.colours.items())
+                   for o in olds):
+                continue
+            cands.append(tid)
+        return cands[0] if len(cands) == 1 else None
 
     def _rested_here(self, tr: _Track, frame: int) -> int | None:
         """The id of the ball that was last seen resting where the new track ``tr`` rests, or
