@@ -454,6 +454,64 @@ def test_put_down_ball_takes_no_ambiguous_or_moving_id():
 
 
 
+@pytest.mark.parametrize("fps,hidden_s,read_as", [(60.0, 1.2, ("", "unknown")), (30.0, 0.35, ("black", "solid"))])
+def test_resting_ball_seen_again_where_it_rested_keeps_its_id(fps, hidden_s, read_as):
+    # A red solid rests throughout (Newton's first law: nothing strikes it) but is hidden under
+    # the player's arm, or lost in a dark corner, for a while during a shot, and when it is seen
+    # again its labels read otherwise (a dim red read as black, or unsure). Meanwhile the cue
+    # ball runs past far from it. Two balls cannot lie within a radius of one spot (centres are
+    # a diameter apart at least), so the ball seen again resting where it rested is the same
+    # ball (issue "Follow every ball": identity switches none).
+    times = np.arange(int(3.0 * fps)) / fps
+    rng = np.random.default_rng(31)
+    red = _still((1730.0, 1196.0))
+    cue = decel_path((300.0, 300.0), 10.0, 1600.0, 0.2 * G * 0.3, t_start=0.5)
+    k0, k1 = int(0.8 * fps), int((0.8 + hidden_s) * fps)
+    det = detections({"red": red, "cue": cue}, times, rng, noise_mm=1.5,
+                     labels={"red": ("red", "solid"), "cue": ("white", "cue")},
+                     gaps=[("red", k0, k1)])
+    after = (det["truth"] == "red") & (det["frame"] > k1)
+    det.loc[after, ["colour", "pattern"]] = read_as
+    tr = track(det, TABLE)
+    ids, _ = match_tracks(tr, {"red": red}, times)
+    near = tr[np.hypot(tr["x"] - 1730.0, tr["y"] - 1196.0) < R]
+    assert set(near["track"]) == {ids["red"]}, near.groupby("track")["frame"].agg(["min", "max"])
+    assert near["frame"].max() == len(times) - 1 and near["frame"].min() == 0
+    # The ball running past keeps its own id and never takes the resting ball's.
+    assert tr["track"].nunique() == 2
+
+
+def test_cue_ball_never_named_before_it_is_put_down_keeps_its_id():
+    # In a dim room the detector names the cue ball nothing (pattern unknown, no colour) all
+    # through the first shot; the player lifts it and puts it down elsewhere for the next
+    # shot, where it now reads as the cue ball. There is one cue ball, and the only ball
+    # lifted was never read as an object ball: the put-down cue ball is it (issue "Follow every
+    # ball": identity switches none). Two unnamed balls lifted leave it a new id.
+    fps = 30.0
+    times = np.arange(int(4.0 * fps)) / fps
+    rng = np.random.default_rng(32)
+    cue = _respot_paths(times, [(0.0, (500.0, 300.0)), (2.0, (700.0, 520.0))])
+    red = _still((1300.0, 620.0))
+    det = detections({"cue": cue, "red": red}, times, rng, noise_mm=1.0,
+                     labels={"cue": ("", "unknown"), "red": ("red", "solid")},
+                     gaps=[("cue", int(1.5 * fps), int(2.2 * fps))])
+    named = (det["truth"] == "cue") & (det["frame"] > int(2.2 * fps))
+    det.loc[named, ["colour", "pattern"]] = ("white", "cue")
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 2, tr.groupby("track")["frame"].agg(["min", "max"])
+    # A second unnamed ball lifted at the same time: which one is put down is unknown.
+    other = _still((1700.0, 300.0))
+    det = detections({"cue": cue, "red": red, "other": other}, times, rng, noise_mm=1.0,
+                     labels={"cue": ("", "unknown"), "red": ("red", "solid"),
+                             "other": ("", "unknown")},
+                     gaps=[("cue", int(1.5 * fps), int(2.2 * fps))],
+                     present={"other": (0, int(1.5 * fps))})
+    det.loc[(det["truth"] == "cue") & (det["frame"] > int(2.2 * fps)), ["colour", "pattern"]] = (
+        "white", "cue")
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 4, tr.groupby("track")["frame"].agg(["min", "max"])
+
+
 def test_doubtful_cue_label_at_a_collision_keeps_identity():
     # The object ball was hidden (under the arm) until the cue ball struck it, and in the first
     # frames after the contact the detector, unsure where the two balls merge in its view

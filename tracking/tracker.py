@@ -90,9 +90,14 @@ Method
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest, on sure labels, while every established ball
   rests takes back the id of an ended (or unseen, coasting) track with the same identity labels,
-  when exactly one such id exists; the cue ball is one ball, so any earlier cue-ball id
-  (``Tracker._respotted``).
+  when exactly one such id exists; the cue ball is one ball, so any earlier cue-ball id, or,
+  where no ball was ever read as the cue ball (a dim room's unnamed white ball), the one lifted
+  id never read as an object ball (``Tracker._respotted``, ``Tracker._unread_cue``).
   That id's rows then have a gap or a jump between the two pieces.
+* A ball hidden at rest (under an arm, in a dark corner) and seen again resting within a radius
+  of where it rested is the same ball whatever its labels read and whatever else is moving: a
+  ball at rest stays put until struck, and two balls cannot share a spot; its new track takes
+  back the old id (``Tracker._rested_here``).
 * Offline, each track is cut at its breakpoints and the Rauch-Tung-Striebel smoother
   (``tracking.kalman.rts_smooth``) runs within each piece, so smoothing never blurs a contact.
 """
@@ -845,15 +850,19 @@ class Tracker:
         identity labels. The cue ball is one ball, so a cue ball takes the first cue-ball id among
         them. An object ball must carry the same pattern (solid or stripe) and the same known
         colour, and takes the id only when exactly one candidate remains (the labels then say which
-        ball it is); else it is a new ball.
+        ball it is); else it is a new ball. Before all that, a new track resting where a ball was
+        last seen resting is that ball (:meth:`_rested_here`), labels and other balls aside.
         """
         vmax = self.config.respot_rest_speed_mm_s
         kind = tr.kind()
         colour = tr.label(tr.colours, "")
         pattern = tr.label(tr.patterns, "unknown")
-        if kind == "unknown" or (kind == "object" and (not colour or pattern == "unknown")):
-            return None
         if float(np.hypot(tr.x[1], tr.x[3])) >= vmax:
+            return None
+        here = self._rested_here(tr, frame)
+        if here is not None:
+            return here
+        if kind == "unknown" or (kind == "object" and (not colour or pattern == "unknown")):
             return None
         held: set[int] = set()
         ids: dict[int, list[_Track]] = {}
@@ -887,7 +896,7 @@ class Tracker:
             if ok:
                 cands.append(tid)
         if kind == "cue":
-            donor = min(cands) if cands else None
+            donor = min(cands) if cands else self._unread_cue(ids, held, tr.birth_frame)
         else:
             donor = cands[0] if len(cands) == 1 else None
         # Labels name a ball only when the detector is as sure of them as it was of that ball,
@@ -896,6 +905,78 @@ class Tracker:
         if donor is None or min(tr.qualities) < self._sure_quality(ids[donor]):
             return None
         return donor
+
+    @staticmethod
+    def _unread_cue(ids: dict[int, list[_Track]], held: set[int], birth_frame: int) -> int | None:
+        """The id a cue ball put down takes when no earlier id was ever read as the cue ball:
+        the one id (``ids``: id -> its track pieces) not seen now (``held``), last seen before
+        ``birth_frame``, none of whose detections was read as an object ball (solid or stripe)
+        or as any colour but white, when exactly one such id exists; else None. There is one
+        cue ball, and a white ball the detector could not name (in dim light, its labels read
+        ``unknown`` all along) was it if no ball was ever named so."""
+        if any(o.kind() == "cue" for olds in ids.values() for o in olds):
+            return None
+        cands = []
+        for tid, olds in ids.items():
+            if tid in held:
+                continue
+            if max(o.frames[max(k for k, s in enumerate(o.seen) if s)] for o in olds) >= birth_frame:
+                continue
+            if any(o.patterns.get("solid", 0) + o.patterns.get("stripe", 0) > 0
+                   or any(c not in ("", "white") and n > 0 for c, n in o.colours.items())
+                   for o in olds):
+                continue
+            cands.append(tid)
+        return cands[0] if len(cands) == 1 else None
+
+    def _rested_here(self, tr: _Track, frame: int) -> int | None:
+        """The id of the ball that was last seen resting where the new track ``tr`` rests, or
+        None.
+
+        A ball at rest stays where it is until something strikes it (Newton's first law; on
+        cloth it then runs on, decelerating, never to the same spot by chance), and two balls
+        cannot lie closer than a diameter apart. So a ball hidden for a while (under an arm or
+        the cue, in a dark corner, its detections too doubtful to keep its track alive) and
+        seen again resting within a radius of where it rested is that ball, whatever its labels
+        read now (a dim ball's colour and pattern labels wander) and whatever else is moving:
+        position identifies it, as labels do after a lift (Wojke et al. 2017). Candidates are
+        ids not seen in this frame, last seen before ``tr`` was born, whose last detections
+        rested (:meth:`_rest_spot`) within a radius of ``tr``'s, of no other kind (cue or
+        object, when both are known); the most recently seen one is taken.
+        """
+        spot = self._rest_spot(tr)
+        if spot is None:
+            return None
+        kind = tr.kind()
+        best, best_seen = None, -1
+        held = {o.track_id for o in self._tracks if o is not tr and o.confirmed and o.ended is None
+                and o.frames and o.frames[-1] == frame and o.seen[-1]}
+        for old in self._tracks:
+            if old is tr or not old.confirmed or old.track_id in held or not any(old.seen):
+                continue
+            last = max(k for k, s in enumerate(old.seen) if s)
+            if old.frames[last] >= tr.birth_frame or old.frames[last] <= best_seen:
+                continue
+            there = self._rest_spot(old)
+            if there is None or math.hypot(*(there - spot)) > self.table.radius_mm:
+                continue
+            if "unknown" not in (kind, old.kind()) and kind != old.kind():
+                continue
+            best, best_seen = old.track_id, old.frames[last]
+        return best
+
+    def _rest_spot(self, tr: _Track, n: int = 5) -> np.ndarray | None:
+        """Where ``tr`` rested when last seen: the median (2,) mm of its last ``n`` detections
+        when they are at least 3 and all lie within a quarter radius of it (a ball at rest, or
+        all but stopped: rolling at 50 mm/s it has under 13 mm to go, v^2 / (2 mu_r g) with
+        Alciatore's mu_r of 0.01), else None."""
+        z = np.array([zz for zz, s in zip(tr.zs, tr.seen) if s][-n:], dtype=float).reshape(-1, 2)
+        if len(z) < 3:
+            return None
+        mid = np.median(z, axis=0)
+        if np.max(np.hypot(*(z - mid).T)) > 0.25 * self.table.radius_mm:
+            return None
+        return mid
 
     def _sure_quality(self, pieces: list[_Track]) -> float:
         """Detector quality at which a detection's labels name the ball whose track pieces are
