@@ -386,7 +386,7 @@ def on_tan():
     ren = Renderer(NINE_FOOT, cam, look, balls, seed=11)
     frame = ren.render(at[None], _rot(3), np.ones((1, 3), bool), np.zeros(1))
     out = BallDetector(cam, NINE_FOOT).process(0, 0.0, frame)
-    err, _ = _match(out, at)
+    err, j = _match(out, at)
     assert np.all(np.isfinite(err)), err
     return out["pattern"].to_numpy()[j]
 
