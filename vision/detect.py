@@ -1385,7 +1385,8 @@ class BallDetector:
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
         fits = self._free_occluders(img, seeds, fits)
-        fits = self._drop_cast_shadows(img, fits, known, seeds)
+        tested: dict[int, tuple[dict, bool]] = {}  # rows' shadow tests, for the second pass
+        fits = self._drop_cast_shadows(img, fits, known, seeds, tested)
         crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known), blocked)
         seeds += crowns
         fits += [self._fit_crown(img, s) for s in crowns]
@@ -1402,7 +1403,7 @@ class BallDetector:
         # Refitted with its neighbours' rays left out, a fit that had straddled a ball and its
         # shadow can slide onto the shadow: the shadow test again on what stands.
         rows = kept + self._refit_touching(img, seeds, fits)
-        return [r for r in self._drop_cast_shadows(img, rows) if r is not None]
+        return [r for r in self._drop_cast_shadows(img, rows, tested=tested) if r is not None]
 
     def _worth_fitting(self, img: np.ndarray, s: dict) -> bool:
         """Whether a seed can pass the fit's last tests: a seed inside an arm or cue component
@@ -1616,7 +1617,8 @@ class BallDetector:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
         return out
 
-    def _drop_cast_shadows(self, img: np.ndarray, fits: list[dict | None], known: list[dict] = (), seeds: list[dict] | None = None) -> list[dict | None]:
+    def _drop_cast_shadows(self, img: np.ndarray, fits: list[dict | None], known: list[dict] = (), seeds: list[dict] | None = None,
+                           tested: dict[int, tuple[dict, bool]] | None = None) -> list[dict | None]:
         """``fits`` with the sharp balls that are a cast shadow set to None: the disc within 0.7
         of the image radius is the cloth darkened with its hue kept and no highlight
         (:func:`_cast_shadow`), and another ball (a fit that is no such shadow, sharp or a
@@ -1629,11 +1631,19 @@ class BallDetector:
         fit can take the shadow's end. Run after :meth:`_free_occluders`, which counts the
         shadow's fit as explaining its foreground (dropped before, the shadow would be a
         ball's area of foreground left unexplained beside the ball casting it, and the pair
-        taken for an occluder)."""
+        taken for an occluder). ``tested`` (row id -> (row, result)), kept by the caller over
+        the passes on one frame, holds each row's :meth:`_disc_cast_shadow` so a row that
+        stands unchanged is not tested again."""
         sharp = [k for k, r in enumerate(fits) if r is not None and not (r["blur_x"] or r["blur_y"])]
         if not sharp:
             return fits
-        shade = {k for k in sharp if self._disc_cast_shadow(img, fits[k])}
+        if tested is None:
+            tested = {}
+        for k in sharp:
+            got = tested.get(id(fits[k]))
+            if got is None or got[0] is not fits[k]:
+                tested[id(fits[k])] = (fits[k], self._disc_cast_shadow(img, fits[k]))
+        shade = {k for k in sharp if tested[id(fits[k])][1]}
         if not shade:
             return fits
         casters = np.array([[r["x"], r["y"]] for k, r in enumerate(fits) if r is not None and k not in shade] + [[r["x"], r["y"]] for r in known]).reshape(-1, 2)
@@ -1679,14 +1689,8 @@ class BallDetector:
         image of the sharp ball of detection ``row`` (the disc of :meth:`_filled_share`)."""
         uv = np.array([row["u"], row["v"]])
         r = 0.7 * float(np.mean(np.hypot(*(self.rays.sphere_outline(row["x"], row["y"], self.R) - uv).T)))
-        h, w = img.shape[:2]
-        u0, v0 = max(int(math.floor(uv[0] - r)), 0), max(int(math.floor(uv[1] - r)), 0)
-        u1, v1 = min(int(math.ceil(uv[0] + r)) + 1, w), min(int(math.ceil(uv[1] + r)) + 1, h)
-        if u1 <= u0 or v1 <= v0:
-            return False
-        yy, xx = np.mgrid[v0:v1, u0:u1]
-        inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
-        return _cast_shadow(img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside])
+        I, B, _ = self._disc_pixels(img, uv, r)
+        return _cast_shadow(I, B)
 
     def _bridged(self, comp: np.ndarray, origin, mask: np.ndarray, rows: list[dict]) -> bool:
         """Whether two sharp balls fitted in one free piece (``comp``, (h, w) uint8 at
@@ -2299,23 +2303,28 @@ class BallDetector:
         shaded body is of the cloth's own hue); an outline fitted to a thin cue, or to the ghost of
         one left in the model, encloses mostly cloth (about 0.45)."""
         r = 0.7 * r_px
+        I, B, r2 = self._disc_pixels(img, uv, r)
+        if len(I) == 0:
+            return 0.0
+        out = ballness(I, B) > self._score_thr
+        share = float(np.mean(out))
+        if share < 0.6:
+            share = max(share, _shaded_share(I, B, r2 / (r * r), out))
+        return share
+
+    def _disc_pixels(self, img: np.ndarray, uv: np.ndarray, r: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The frame's pixels (N, 3) within ``r`` px of ``uv`` (px), the empty table's there
+        (N, 3) and their squared distances from ``uv`` (N,) px^2; all empty where the disc
+        lies off the frame."""
         h, w = img.shape[:2]
         u0, v0 = max(int(math.floor(uv[0] - r)), 0), max(int(math.floor(uv[1] - r)), 0)
         u1, v1 = min(int(math.ceil(uv[0] + r)) + 1, w), min(int(math.ceil(uv[1] + r)) + 1, h)
         if u1 <= u0 or v1 <= v0:
-            return 0.0
+            return np.zeros((0, 3), img.dtype), np.zeros((0, 3), np.float32), np.zeros(0)
         yy, xx = np.mgrid[v0:v1, u0:u1]
-        inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
-        if not inside.any():
-            return 0.0
-        I = img[v0:v1, u0:u1][inside]
-        B = self.background.image[v0:v1, u0:u1][inside]
-        out = ballness(I, B) > self._score_thr
-        share = float(np.mean(out))
-        if share < 0.6:
-            r2 = ((xx - uv[0]) ** 2 + (yy - uv[1]) ** 2)[inside] / (r * r)
-            share = max(share, _shaded_share(I, B, r2, out))
-        return share
+        d2 = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2
+        inside = d2 <= r * r
+        return img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside], d2[inside]
 
     def _same_hue(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """Whether the ball whose centre's image is near ``uv`` (px) is of the cloth's own hue
