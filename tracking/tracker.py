@@ -291,6 +291,11 @@ class _Track:
     def confirmed(self) -> bool:
         return self.track_id is not None
 
+    @property
+    def last_seen_frame(self) -> int:
+        """Frame index of the track's last detection (a track has one from its birth)."""
+        return next(f for f, s in zip(reversed(self.frames), reversed(self.seen)) if s)
+
     def kind(self) -> str:
         """``cue``, ``object`` or ``unknown`` from the patterns of its detections so far."""
         cue = self.patterns.get("cue", 0)
@@ -884,8 +889,7 @@ class Tracker:
         for tid, olds in ids.items():
             if tid in held:
                 continue
-            last_seen = max(o.frames[max(k for k, s in enumerate(o.seen) if s)] for o in olds)
-            if last_seen >= tr.birth_frame:
+            if max(o.last_seen_frame for o in olds) >= tr.birth_frame:
                 continue
             ref = olds[-1]
             if kind == "cue":
@@ -920,7 +924,7 @@ class Tracker:
         for tid, olds in ids.items():
             if tid in held:
                 continue
-            if max(o.frames[max(k for k, s in enumerate(o.seen) if s)] for o in olds) >= birth_frame:
+            if max(o.last_seen_frame for o in olds) >= birth_frame:
                 continue
             if any(o.patterns.get("solid", 0) + o.patterns.get("stripe", 0) > 0
                    or any(c not in ("", "white") and n > 0 for c, n in o.colours.items())
@@ -954,15 +958,15 @@ class Tracker:
         for old in self._tracks:
             if old is tr or not old.confirmed or old.track_id in held or not any(old.seen):
                 continue
-            last = max(k for k, s in enumerate(old.seen) if s)
-            if old.frames[last] >= tr.birth_frame or old.frames[last] <= best_seen:
+            last = old.last_seen_frame
+            if last >= tr.birth_frame or last <= best_seen:
                 continue
             there = self._rest_spot(old)
             if there is None or math.hypot(*(there - spot)) > self.table.radius_mm:
                 continue
             if "unknown" not in (kind, old.kind()) and kind != old.kind():
                 continue
-            best, best_seen = old.track_id, old.frames[last]
+            best, best_seen = old.track_id, last
         return best
 
     def _rest_spot(self, tr: _Track, n: int = 5) -> np.ndarray | None:
