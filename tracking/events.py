@@ -923,8 +923,7 @@ def find_events(
     cfg = replace(cfg, fit_window_s=max(cfg.fit_window_s, cfg.fit_min_samples * dt))
     exposure = cfg.exposure_s if cfg.exposure_s is not None else 0.5 * dt
     t_clip_end = float(tracks["t"].max())
-    finder = _Finder(table, cfg, dt, exposure)
-    finder.collision_window_s = collision_window_s
+    finder = _Finder(table, cfg, dt, exposure, collision_window_s)
     finder.t_end = t_clip_end
     for b in balls:
         _motion(b, cfg)
@@ -1326,7 +1325,8 @@ def _rail_offsets(apexes: dict[str, list[tuple[float, float]]], sd_mm: float
 
 
 class _Finder:
-    def __init__(self, table: TableSpec, cfg: EventConfig, dt: float, exposure: float):
+    def __init__(self, table: TableSpec, cfg: EventConfig, dt: float, exposure: float,
+                 collision_window_s: float | None = None):
         self.table, self.cfg, self.dt, self.exposure = table, cfg, dt, exposure
         # The cloth's sliding deceleration mu_s g (mm/s^2), once measured (find_events).
         self.slide_decel: float | None = None
@@ -1344,8 +1344,8 @@ class _Finder:
         # The clip's last frame time (s): a ball unseen after it is not known to have gone.
         self.t_end = math.inf
         # Longest stretch fitted on each side of a collision (s): ``fit_window_s`` as configured,
-        # not stretched at low frame rates (``find_events``).
-        self.collision_window_s = cfg.fit_window_s
+        # not stretched at low frame rates (``find_events``); ``cfg``'s own where not given.
+        self.collision_window_s = cfg.fit_window_s if collision_window_s is None else collision_window_s
         # Rough times (s) of the contacts of balls last seen at a rail, per track (``_arrival``).
         self.arrivals: dict[int, set[float]] = {}
         self.segments = {r: [] for r in RAILS}
