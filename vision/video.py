@@ -54,16 +54,20 @@ def write_video(path, frames: Iterable[np.ndarray], fps: float, codec: str = "h2
     ``codec`` is ``h264`` (libx264, yuv420p, constant rate factor ``quality`` 0..51, lower is
     better; ``preset`` is libx264's speed preset, without B-frames) or ``mpeg4`` (yuv420p, fixed
     quantiser ``quality`` 1..31). The container follows the file's extension (.mp4, .mkv, .avi,
-    .mov). Identical frames give a byte-identical file, whatever the thread count or the state of
-    the process's heap: with B-frames, libx264's macroblock-tree rate control (Garrett-Glaser
-    2009, "A novel macroblock-tree algorithm for high-performance optimization of dependent video
-    coding in H.264/AVC") depended on heap memory it had not written (x264 core 165 here: the
-    same frames gave a different file on most encodes in one process, and one file per
-    ``MALLOC_PERTURB_`` fill byte), so every quantiser, from the first I-frame on, varied from
-    run to run. Without B-frames the macroblock tree and the rest of the preset stay, and so do
-    the file's size and fidelity (measured on 40 noisy 480 x 272 frames: 10.9 kB and 2.62 DN
-    mean absolute error at crf 18, against 10.8 kB and 2.59 DN with B-frames; turning the
-    macroblock tree off instead made the file 8 times larger).
+    .mov). Identical frames give a byte-identical file, whatever the machine's core count, the
+    process's floating-point mode or the state of its heap: libx264 runs on one thread and without
+    B-frames. With B-frames, libx264's macroblock-tree rate control (Garrett-Glaser 2009, "A novel
+    macroblock-tree algorithm for high-performance optimization of dependent video coding in
+    H.264/AVC") depended on heap memory it had not written (x264 core 165: one file per
+    ``MALLOC_PERTURB_`` fill byte). Its thread count is chosen from the cores the process may use
+    and changes the file (measured on the test's 40 noisy 480 x 272 frames at crf 23: 4230, 4787,
+    7335 and 6258 bytes for 1, 2, 3 and 4 threads), and with two threads a process with the SSE
+    flush-to-zero flag set (as a library built with fast-math sets it) gave another file on 5
+    encodes of 50; one
+    CI run wrote a different file inside the test process than in fresh ones. One thread costs
+    about 1.5 times the encoding time (2.0 -> 3.0 s for 120 720p frames) for a smaller file of
+    the same fidelity (crf 18: 9.6 kB and 2.63 DN mean absolute error, against 10.9 kB and 2.62
+    DN with two threads); the macroblock tree and the rest of the preset stay.
     Frame i is stamped at exactly i / fps s: the stream's time base is 1 / numerator of the
     frame rate as a fraction, so 60, 29.97 (2997/100) and 30000/1001 are all exact. Frames are
     encoded as they arrive (the clip is never held in memory); the file is written under a
@@ -103,7 +107,7 @@ def write_video(path, frames: Iterable[np.ndarray], fps: float, codec: str = "h2
                     stream.time_base = tb
                     stream.codec_context.time_base = tb
                     if codec == "h264":
-                        stream.options = {"crf": str(q), "preset": preset, "x264-params": "bframes=0"}
+                        stream.options = {"crf": str(q), "preset": preset, "x264-params": "bframes=0:threads=1"}
                     else:
                         stream.codec_context.qscale = q
                     size = (h, w)
