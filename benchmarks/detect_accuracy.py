@@ -29,18 +29,23 @@ and for the rest (touching, frozen to a cushion or nearly so): a
 resting ball is detected once and carried over while nothing near it changes, so each ball is
 nearly one measurement and the median over balls rests on a handful of them.
 
+With ``--crf N`` every scene is filmed at H.264 constant rate factor N instead of its own
+quality (into ``WORK/crfN``): ``--crf 0`` is lossless but keeps the 4:2:0 chroma sampling, so
+the difference from the default run is what the compression costs the detector.
+
 With ``--save DIR`` each scene's per-ball-frame table (truth ball id and position, error and its
 x, y components, gaps to the nearest other ball and cushion, mm) and its detections are written
 to ``DIR`` as CSV, for breakdowns.
 
 Run: ``.venv/bin/python benchmarks/detect_accuracy.py [--work DIR] [--only NAME ...] [--save DIR]
-[--by-ball]`` or
+[--by-ball] [--crf N]`` or
 ``.venv/bin/python benchmarks/detect_accuracy.py --clip cushion_check --frames 0 1200``.
 """
 
 from __future__ import annotations
 
 import argparse
+import re
 import sys
 import time
 import tomllib
@@ -304,13 +309,14 @@ speed_mm_s = 4000
 }
 
 
-def film(work: Path, names: list[str]) -> None:
-    """Film each named scene into ``work`` unless its clip is already there."""
+def film(work: Path, names: list[str], scenes: dict = SCENES) -> None:
+    """Film each named scene of ``scenes`` (name -> scene text) into ``work`` unless its clip is
+    already there."""
     work.mkdir(parents=True, exist_ok=True)
     for name in names:
         clip = work / f"{name}.mp4"
         if not clip.exists():
-            text = SCENES[name]
+            text = scenes[name]
             film_scene(parse_scene(tomllib.loads(text), source_text=text), clip)
 
 
@@ -336,7 +342,7 @@ def occluded(scene_text: str, table, truth: pd.DataFrame) -> np.ndarray:
     return out
 
 
-def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
+def evaluate(name: str, work: Path, save: Path | None = None, scenes: dict = SCENES) -> dict:
     """Detect on one filmed scene and match to its truth; returns per-ball-frame errors and
     counts. ``save``: a folder to write the per-ball-frame table (``NAME.errors.csv``: truth
     ball id and position beside the error) and the detections (``NAME.detections.csv``) to."""
@@ -349,8 +355,8 @@ def evaluate(name: str, work: Path, save: Path | None = None) -> dict:
     det = detect_clip(clip, camera, table)
     elapsed = time.perf_counter() - t0
     tr = pd.read_csv(truth_dir / "tracks.csv")
-    tr["hidden"] = occluded(SCENES[name], table, tr)
-    scene = parse_scene(tomllib.loads(SCENES[name]))
+    tr["hidden"] = occluded(scenes[name], table, tr)
+    scene = parse_scene(tomllib.loads(scenes[name]))
     gate = table.radius_mm
     rows, false_rows = [], []
     by_frame = {f: g for f, g in det.groupby("frame")}
@@ -460,6 +466,14 @@ def sigma_calibration(E: pd.DataFrame, near_mm: float) -> None:
               f"|z| > 3: {100 * np.mean(z > 3):5.1f}%  |z| > 5: {100 * np.mean(z > 5):5.1f}%")
 
 
+def _with_quality(text: str, crf: int) -> str:
+    """A scene's text with its ``[camera]`` quality (H.264 constant rate factor) set to ``crf``."""
+    out, n = re.subn(r"(?m)^quality = \d+$", f"quality = {crf}", text)
+    if n != 1:
+        raise ValueError(f"scene text holds {n} quality lines; expected one")
+    return out
+
+
 def _q(s: pd.Series, q: float) -> str:
     return f"{s.quantile(q):6.2f}" if len(s) else "   n/a"
 
@@ -471,6 +485,7 @@ def main(argv=None) -> int:
     ap.add_argument("--clip", default=None, help="a sample clip's name (sample_clips/NAME.mp4): count false and missed detections instead")
     ap.add_argument("--save", default=None, help="folder to write each scene's per-ball-frame errors (truth id, position, error) and detections to, as CSV")
     ap.add_argument("--by-ball", action="store_true", help="also print the resting balls' errors per scene and ball (with gaps to the nearest ball and cushion), and over the balls clear of both and the rest")
+    ap.add_argument("--crf", type=int, default=None, metavar="N", help="film every scene at H.264 constant rate factor N (0: lossless, still 4:2:0 chroma) instead of its own quality, into WORK/crfN")
     ap.add_argument("--frames", nargs=2, type=int, default=(0, 300), metavar=("FIRST", "LAST"), help="with --clip: the frames to score, FIRST to LAST - 1")
     args = ap.parse_args(argv)
     if args.clip:
@@ -480,8 +495,14 @@ def main(argv=None) -> int:
     if unknown:
         raise SystemExit(f"unknown scene(s) {unknown}; choose from {list(SCENES)}")
     work = Path(args.work)
-    film(work, names)
-    results = [evaluate(n, work, Path(args.save) if args.save else None) for n in names]
+    scenes = SCENES
+    if args.crf is not None:
+        if not 0 <= args.crf <= 51:
+            raise SystemExit(f"--crf {args.crf}: libx264's constant rate factor runs 0..51")
+        scenes = {k: _with_quality(v, args.crf) for k, v in SCENES.items()}
+        work = work / f"crf{args.crf}"
+    film(work, names, scenes)
+    results = [evaluate(n, work, Path(args.save) if args.save else None, scenes) for n in names]
     print(f"{'scene':22s} {'fps':>4s} {'shutter':>8s} | rest med  p95 |  mov med  p95 | det rate | false (occl, pocket) | frames/s")
     allE = []
     for r in results:
