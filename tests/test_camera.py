@@ -54,6 +54,31 @@ def test_undistort_matches_opencv_and_round_trips(cam, points):
     assert np.max(np.abs(back - points[inside])) < 1e-6
 
 
+@pytest.mark.parametrize("cam", list(_cameras())[2:])
+def test_undistort_in_parts_is_each_part_undistorted_alone(cam, points):
+    # Parts that converge after different numbers of Newton steps (near the centre, out at
+    # the corners), a part holding a NaN pixel and an empty part, undistorted together: each
+    # must be bit for bit what its own call gives (two forms of one computation, filterpy's
+    # procedure-form test in style.md), and match OpenCV's undistortPoints (the reference).
+    uv = cam.project(points)
+    w, h = cam.image_size
+    uv = uv[(uv[:, 0] > 0) & (uv[:, 0] < w) & (uv[:, 1] > 0) & (uv[:, 1] < h)]
+    off = np.hypot(uv[:, 0] - w / 2, uv[:, 1] - h / 2)
+    parts = [uv[off < 0.1 * w], uv[off > 0.45 * w], np.array([[np.nan, 3.0], [10.0, 20.0]]), np.zeros((0, 2)), uv[::7]]
+    together = cam.undistort_normalised_parts(parts)
+    assert len(together) == len(parts)
+    for part, got in zip(parts, together):
+        if len(part) == 0:
+            assert got.shape == (0, 2)
+            continue
+        alone = cam.undistort_normalised(part)
+        assert np.array_equal(got, alone, equal_nan=True)
+        ok = np.all(np.isfinite(part), axis=1)
+        criteria = (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 200, 1e-14)
+        ref = cv2.undistortPoints(part[ok].reshape(-1, 1, 2), cam.K, cam.dist, criteria=criteria)[:, 0]
+        assert np.max(np.abs(got[ok] - ref)) < 1e-9
+
+
 def test_rotation_matches_cv2_rodrigues():
     cam = list(_cameras())[3]
     rot, _ = cv2.Rodrigues(cam.rvec)

@@ -1042,14 +1042,24 @@ def _camera(params: np.ndarray, size: tuple[int, int], fixed_intr: tuple | None 
 _RAIL_AXIS = {"bottom": (1, 0.0), "top": (1, None), "left": (0, 0.0), "right": (0, None)}
 
 
-def _nose_offsets_mm(cam: Camera, pts: np.ndarray, rail: str, table: TableSpec) -> tuple[np.ndarray, np.ndarray]:
+def _nose_offsets_mm(cam: Camera, pts: np.ndarray, rail: str, table: TableSpec, xy: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Distance (mm, positive outward) of each nose point's back-projection at nose height from
-    its nose line, and the local image scale (px per mm) there."""
-    X = cam.backproject(pts, table.nose_height_mm)
+    its nose line, and the local image scale (px per mm) there. ``xy``: the points' ideal
+    normalised coordinates (:meth:`Camera.undistort_normalised`) where already known."""
+    X = cam.backproject(pts, table.nose_height_mm) if xy is None else cam.backproject_normalised(xy, table.nose_height_mm)
     L, W = table.length_mm, table.width_mm
     off = {"bottom": -X[:, 1], "top": X[:, 1] - W, "left": -X[:, 0], "right": X[:, 0] - L}[rail]
     depth = (X @ cam.R.T + cam.tvec)[:, 2]
     return off, cam.K[0, 0] / depth
+
+
+def _rails_offsets_mm(cam: Camera, noses, table: TableSpec) -> list[tuple[str, np.ndarray, np.ndarray]]:
+    """(rail, offsets mm, scale px per mm) of :func:`_nose_offsets_mm` for each rail of
+    ``noses`` ((rail, (N, 2) px) pairs) that has points, in order: the same numbers, with
+    the rails' points undistorted together (:meth:`Camera.undistort_normalised_parts`)."""
+    used = [(rail, pts) for rail, pts in noses if len(pts)]
+    xys = cam.undistort_normalised_parts([pts for _, pts in used])
+    return [(rail, *_nose_offsets_mm(cam, pts, rail, table, xy)) for (rail, pts), xy in zip(used, xys)]
 
 
 @dataclass(frozen=True)
@@ -1094,11 +1104,7 @@ def _as_prior(height_prior, config: "CalibConfig") -> HeightPrior | None:
 
 def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior: HeightPrior | None):
     cam = cam_of(params)
-    out = []
-    for rail, pts in noses:
-        if len(pts):
-            off, scale = _nose_offsets_mm(cam, pts, rail, table)
-            out.append(off * scale)
+    out = [off * scale for _, off, scale in _rails_offsets_mm(cam, noses, table)]
     if len(sights_px):
         pr = cam.project(sights_mm)
         out.append(((pr - sights_px) * sight_weight).ravel())
@@ -1155,11 +1161,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
         t = _table_varied(table, nu[:5])
         smm = np.array([[x_, y_, t.rail_top_height_mm] for _, _, (x_, y_) in t.sights()])[sight_idx] if len(sight_idx) else sights_mm
         cam = cam_of(theta)
-        out = []
-        for rail, pts in noses:
-            if len(pts):
-                off, scale = _nose_offsets_mm(cam, pts, rail, t)
-                out.append(off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)])
+        out = [off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)] for rail, off, scale in _rails_offsets_mm(cam, noses, t)]
         if len(sights_px):
             out.append(((cam.project(smm) - sights_px) * sight_w).ravel())
         if height_prior is not None:

@@ -1889,9 +1889,9 @@ class BallDetector:
         if self._bg_half is None or self._bg_half[0] != bg.updates:
             # The half-scale model of the zone's box and its own terms of the score, made once
             # per update of the model (the frames between updates share them).
-            half = np.ascontiguousarray(cv2.resize(bg.image, self._half_size, interpolation=cv2.INTER_AREA)[b0:b1, a0:a1])
+            half = np.ascontiguousarray(self._half_box(bg.image))
             self._bg_half = (bg.updates, half, _background_terms(half))
-        small = cv2.resize(img, self._half_size, interpolation=cv2.INTER_AREA)[b0:b1, a0:a1]
+        small = self._half_box(img)
         zone = self._zone_half[b0:b1, a0:a1]
         score = _ballness(small.astype(np.float32), self._bg_half[1], *self._bg_half[2])
         fg = ((score > self._score_thr) & zone).astype(np.uint8)
@@ -1903,6 +1903,17 @@ class BallDetector:
         out[b0:b1, a0:a1] = hit[lab]
         self._reach = (img, out)
         return out
+
+    def _half_box(self, img: np.ndarray) -> np.ndarray:
+        """The zone's half-scale box (``_zone_half_box``) of ``cv2.resize(img, _half_size,
+        INTER_AREA)`` for an (H, W, ...) image. Where H and W are even each half-scale pixel is
+        the mean of its own 2 x 2 block (OpenCV's area resize by exactly two), so the box is
+        reduced alone: the same pixels for a fraction of the frame's work."""
+        a0, b0, a1, b1 = self._zone_half_box
+        h, w = img.shape[:2]
+        if h % 2 or w % 2:
+            return cv2.resize(img, self._half_size, interpolation=cv2.INTER_AREA)[b0:b1, a0:a1]
+        return cv2.resize(img[2 * b0 : 2 * b1, 2 * a0 : 2 * a1], (a1 - a0, b1 - b0), interpolation=cv2.INTER_AREA)
 
     def _seeds_of(self, comp: np.ndarray, pts: np.ndarray, origin, occluder: bool) -> list[dict]:
         """Seeds (image centre, half streak px along a unit axis, strict flag) of one component."""
