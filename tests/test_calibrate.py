@@ -688,3 +688,44 @@ def test_deferred_bump_alignment_equals_aligning_every_sample(rendered, monkeypa
     # 1.4 s before it, which the ring of small frames still holds).
     assert len(want) == 2 and abs(want[1][0] - 107 / 30) <= 1 / 30 + 1e-9
     assert calls["n"] < every  # and the deferral saved alignments
+
+
+def test_one_low_lamp_with_a_dark_far_end(tmp_path):
+    # One lamp 0.8 m over one end of an 8 ft table and little ambient light (blue cloth, camera
+    # off-centre and rolled, barrel lens), through H.264 at the sample clips' crf 26: the far end's
+    # cloth sits at a few DN, where the codec flattens the shaded band under the nose into the
+    # cloth and only a code value or two of rise to the cushion top is left. The calibration must
+    # still find all four noses and meet the issue's 2 mm on the corners (renderer truth), with
+    # every ball centre within 3 stated sds (3-sigma bound, common practice). Before the cloth's
+    # local level and the profiles' own noise set the thresholds, this view was refused (no nose
+    # on the far side).
+    from vision.render import Lamp
+    from vision.video import iter_frames
+
+    table = EIGHT_FOOT
+    cam = Camera.overhead(table, 2300, SIZE, offset_mm=(-150, 90), roll_deg=1.5, dist=(-0.18, 0.03, 0, 0, 0))
+    look = Look(cloth_bgr=(150, 95, 30), cushion_bgr=(127, 80, 25), lamps=(Lamp((500.0, table.width_mm / 2, 800.0)),),
+                ambient=0.12, exposure=1.3, noise_sigma=2.0, texture_seed=7)
+    clip = tmp_path / "lamp.mp4"
+    write_video(clip, [_render(table, cam, look, seed=21)] * 4, 30, codec="h264", quality=26)
+    cal = calibrate([f for _, _, f in iter_frames(clip)][-1], table, CalibConfig())
+    assert all(n >= 5 for n in cal.quality["nose_points_per_rail"].values())
+    flip = _flip_if_needed(table, cam, cal.camera)
+    uv = cam.project(np.column_stack([table.outline(), np.full(4, table.nose_height_mm)]))
+    back = _to_truth(table, cal.camera.backproject(uv, table.nose_height_mm)[:, :2], flip)
+    assert np.max(np.linalg.norm(back - table.outline(), axis=1)) <= 2.0
+    assert np.max(_ball_errors(table, cam, cal.camera)) <= 3 * cal.quality["ball_position_sd_mm"]
+
+
+def test_profile_noise_against_known_white_noise():
+    # Analytic: second differences of white noise of sd sigma have variance 6 sigma^2, and a few
+    # steps per profile (the edges) must not move a median-based estimate; 200 profiles of 120
+    # samples 1 px apart, so the estimate's own spread is about 1 %.
+    from vision.calibrate import _profile_noise
+
+    rng = np.random.default_rng(8)
+    s = np.arange(120.0)
+    clean = 40 + 0.1 * s + np.where(s > 60, 25.0, 0.0) - np.where((s > 50) & (s < 55), 20.0, 0.0)
+    for sigma in (0.3, 1.0, 3.0):
+        prof = clean[None] + rng.normal(0, sigma, (200, len(s)))
+        assert abs(_profile_noise(prof, 1.0) / sigma - 1) < 0.08

@@ -17,9 +17,11 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    spread-out sample of still frames is kept and their per-pixel temporal median is the
    background (moving balls, arms and the cue vanish; resting balls stay and are rejected later
    as outliers).
-2. **Cloth region**: the connected region around the image centre whose chroma matches the
-   centre's (median and median absolute deviation in CIE Lab, lightness tolerant so lamps and
-   vignetting do not matter); its outline gives a rough quadrilateral.
+2. **Cloth region**: the connected region around the image centre whose chromaticity matches the
+   centre's (median and median absolute deviation; the tolerance widens as the light falls) and
+   whose brightness stays within a factor of the cloth's own local level, found in turn with
+   that level (:func:`_cloth_region`), so a low lamp's hot spot and dark far end, falloff and
+   vignetting do not cut the table short; its outline gives a rough quadrilateral.
 3. **Cushion noses**: along many normals to each rough side, intensity profiles are searched for
    the narrow dark band under the nose (the shadowed face below the cushion) and the step from it
    to the lit cushion top; a straight line must bend only by the lens, so candidates are kept by
@@ -29,7 +31,9 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    side; the outer edge of the band is the nose at nose height) for a sub-pixel position
    (:func:`_nose_profile_fit`; a level-only model put the nose 0.1-0.3 px inward wherever the band
    brightens toward the nose). Profiles near pockets are skipped; balls, arms and shadows fail
-   the curve test and are dropped.
+   the curve test and are dropped. The bands and steps are judged against each profile's own
+   contrast and noise, not fixed levels, so a dim end of the table still gives its nose
+   (:func:`_min_step_dn`).
 4. **Lens distortion** from the straightness of the four nose lines: the plumb-line method
    (Devernay & Faugeras, "Straight lines have to be straight", Machine Vision and Applications
    13(1), 2001) with OpenCV's radial model, principal point at the image centre.
@@ -522,6 +526,61 @@ def _median_background(stills: list) -> np.ndarray:
 # ================================================================================================
 # 2. Cloth region and rough quadrilateral
 # ================================================================================================
+def _cloth_region(small: np.ndarray) -> np.ndarray | None:
+    """(h, w) bool mask of the cloth in a small, blurred (h, w, 3) uint8 BGR background: the
+    connected region holding most of the picture's central window whose chromaticity matches the
+    window's and whose brightness stays near the cloth's own local level; None when no region
+    holds 30 % of the window (no uniform cloth in the middle).
+
+    Chromaticity (each channel over the sum) does not change with the light's strength, so lamps,
+    falloff and vignetting do not break the cloth up; the tolerance measured in the middle is
+    widened by what rounding to code values does to a dark pixel's chromaticity. The brightness
+    test (0.3 to 2.5 times the level, which keeps out pockets, shadows and a grey cloth's grey
+    surroundings) is against the cloth's local level, not the middle's: a low lamp leaves the far
+    end of the table at a tenth of its hot spot. That level is the cloth's own log brightness
+    smoothed by normalised convolution (Knutsson & Westin, CVPR 1993) over the region found so
+    far, with a Gaussian of a tenth of the picture's width; the region and the level are found in
+    turn, starting from the middle's level, until the region stops growing.
+    """
+    f = small.astype(np.float32)
+    inten = f.sum(axis=2)
+    chrom = f / np.maximum(inten, 1.0)[..., None]
+    sh, sw = inten.shape
+    win = (slice(int(sh * 0.4), int(sh * 0.6)), slice(int(sw * 0.4), int(sw * 0.6)))
+    med_c = np.median(chrom[win].reshape(-1, 3), axis=0)
+    mad_c = np.median(np.abs(chrom[win].reshape(-1, 3) - med_c), axis=0) * 1.4826
+    med_i = float(np.median(inten[win]))
+    dist_c = np.linalg.norm(chrom - med_c, axis=2)
+    tol_c = max(0.035, 5.0 * float(np.linalg.norm(mad_c)))
+    # 8-bit rounding moves each channel by up to a code value, which moves the chromaticity by up
+    # to sqrt(3) / sum: nothing on a lit cloth, the whole margin on a far end at a few DN.
+    tol_px = tol_c + math.sqrt(3.0) / np.maximum(inten, 1.0)
+    chroma_ok = dist_c < tol_px
+    log_i = np.log(np.maximum(inten, 1.0))
+    level = np.full(inten.shape, med_i, np.float32)
+    region, size = None, -1
+    for _ in range(6):
+        mask = (chroma_ok & (inten > 0.3 * level) & (inten < 2.5 * level + 60)).astype(np.uint8)
+        mask = cv2.morphologyEx(mask, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        nlab, labels, _, _ = cv2.connectedComponentsWithStats(mask, connectivity=4)
+        counts = np.bincount(labels[win].ravel(), minlength=nlab)
+        counts[0] = 0
+        k = int(np.argmax(counts))
+        if counts[k] < 0.3 * labels[win].size:
+            return region
+        grown = labels == k
+        if int(grown.sum()) <= size:
+            break
+        region, size = grown, int(grown.sum())
+        m = region.astype(np.float32)
+        # The table fills most of the picture, so this is about a tenth of its length (0.2-0.3 m):
+        # wider than a ball or a pocket, which the region leaves out, narrower than a lamp's
+        # falloff (inverse square and cos^3: a lamp 0.8 m up halves its light 0.6 m off).
+        sig = sw / 10.0
+        level = np.exp(cv2.GaussianBlur(log_i * m, (0, 0), sig) / np.maximum(cv2.GaussianBlur(m, (0, 0), sig), 1e-6))
+    return region
+
+
 def _rough_quad(bg: np.ndarray) -> np.ndarray:
     """(4, 2) rough corners (u, v) of the cloth region, visually anticlockwise on screen starting
     anywhere. ValueError with a one-line reason when no table is found."""
@@ -533,31 +592,11 @@ def _rough_quad(bg: np.ndarray) -> np.ndarray:
     s = min(1.0, 480.0 / w)
     small = cv2.resize(bg, None, fx=s, fy=s, interpolation=cv2.INTER_AREA)
     small = cv2.GaussianBlur(small, (0, 0), 1.5)
-    # Chromaticity (each channel over the sum) does not change with the light's strength, so lamps,
-    # falloff and vignetting do not break the cloth up; very dark pixels have no reliable colour.
-    f = small.astype(np.float32)
-    inten = f.sum(axis=2)
-    chrom = f / np.maximum(inten, 1.0)[..., None]
-    sh, sw = inten.shape
-    win = (slice(int(sh * 0.4), int(sh * 0.6)), slice(int(sw * 0.4), int(sw * 0.6)))
-    med_c = np.median(chrom[win].reshape(-1, 3), axis=0)
-    mad_c = np.median(np.abs(chrom[win].reshape(-1, 3) - med_c), axis=0) * 1.4826
-    med_i = float(np.median(inten[win]))
-    dist_c = np.linalg.norm(chrom - med_c, axis=2)
-    tol_c = max(0.035, 5.0 * float(np.linalg.norm(mad_c)))
-    mask = (dist_c < tol_c) & (inten > 0.3 * med_i) & (inten < 2.5 * med_i + 60)
-    mask = mask.astype(np.uint8)
-    mask = cv2.morphologyEx(mask, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-    nlab, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=4)
-    # The component holding most of the central window is the cloth.
-    central = labels[int(sh * 0.4) : int(sh * 0.6), int(sw * 0.4) : int(sw * 0.6)]
-    counts = np.bincount(central.ravel(), minlength=nlab)
-    counts[0] = 0
-    k = int(np.argmax(counts))
-    if counts[k] < 0.3 * central.size:
+    sh, sw = small.shape[:2]
+    region = _cloth_region(small)
+    if region is None:
         raise ValueError("no table in view: the middle of the picture is not one uniform cloth; aim the camera at the table")
-    region = (labels == k).astype(np.uint8)
-    region = cv2.morphologyEx(region, cv2.MORPH_CLOSE, np.ones((9, 9), np.uint8))
+    region = cv2.morphologyEx(region.astype(np.uint8), cv2.MORPH_CLOSE, np.ones((9, 9), np.uint8))
     area_share = float(region.sum()) / region.size
     if area_share < 0.12:
         raise ValueError(f"no table in view: the cloth covers only {100 * area_share:.0f} % of the picture; aim the camera so the table fills most of it")
@@ -639,10 +678,29 @@ def _side_stations(a: np.ndarray, b: np.ndarray, long_side: bool, n: int, table:
     return fr
 
 
-def _band_candidates(prof: np.ndarray, step: float, max_band_px: float) -> list[tuple[float, float]]:
+def _profile_noise(prof: np.ndarray, step: float) -> float:
+    """Robust standard deviation (DN) of the sample noise of profiles ``prof`` (N, M) sampled
+    every ``step`` px: from second differences of samples 1 px apart (``6 sigma^2`` for white
+    noise; nearer samples share pixels through the interpolation), by the median absolute
+    deviation, so the few edges in a profile do not count."""
+    k = max(1, int(round(1.0 / step)))
+    d2 = prof[:, 2 * k :] - 2 * prof[:, k:-k] + prof[:, : -2 * k]
+    return float(1.4826 * np.median(np.abs(d2)) / math.sqrt(6.0))
+
+
+def _min_step_dn(noise_dn: float) -> float:
+    """Smallest level difference (DN) taken for an edge in profiles with sample noise
+    ``noise_dn``: four standard deviations (a chance step that large in one profile is rare, and
+    the curve test across profiles removes the rest), and never less than 1.5 DN, more than one
+    8-bit code value, which is all quantisation (and a video codec's flat dark blocks) leaves."""
+    return max(1.5, 4.0 * noise_dn)
+
+
+def _band_candidates(prof: np.ndarray, step: float, max_band_px: float, min_depth: float = 4.0) -> list[tuple[float, float]]:
     """Candidate nose positions along one outward profile: (position of the rise out of a narrow
-    dark band, score). A band is a local minimum at least 25 % below the levels on both sides
-    within ``max_band_px``."""
+    dark band, score). A band is a local minimum at least 20 % and ``min_depth`` DN below the
+    levels on both sides within ``max_band_px``; the relative test holds under any light, the
+    absolute one only sets the noise floor (:func:`_min_step_dn`)."""
     out = []
     m = len(prof)
     k = max(2, int(round(max_band_px / step)))
@@ -654,7 +712,7 @@ def _band_candidates(prof: np.ndarray, step: float, max_band_px: float) -> list[
         left = prof[max(0, i - k) : i].max()
         right = prof[i + 1 : i + 1 + k].max()
         depth = min(left, right) - v
-        if depth < 0.2 * min(left, right) or depth < 4.0:
+        if depth < 0.2 * min(left, right) or depth < min_depth:
             continue
         j = i + int(np.argmax(d[i : i + k]))
         out.append((j * step, depth / max(min(left, right), 1.0)))
@@ -692,7 +750,7 @@ def _nose_basis(s: np.ndarray, a: np.ndarray, b: np.ndarray, sig: np.ndarray) ->
 
 
 def _nose_profile_fit(s: np.ndarray, prof: np.ndarray, a0: np.ndarray, b0: np.ndarray, sigma: float | np.ndarray | None,
-                      iterations: int = 12) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+                      iterations: int = 12, min_step: float = 3.0, band_depth: float = 1.0) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Sub-pixel cloth->band and band->cushion-top edges of N outward profiles at once.
 
     The image across a cushion nose, seen from above the table, is cloth, then the narrow face
@@ -709,7 +767,9 @@ def _nose_profile_fit(s: np.ndarray, prof: np.ndarray, a0: np.ndarray, b0: np.nd
 
     ``s`` (M,) px, ``prof`` (N, M), ``a0``, ``b0`` (N,) first guesses; ``sigma`` a blur to hold
     (scalar or (N,)) or None to fit it. Returns (b, a, sigma, rms) each (N,), NaN where the fit
-    is not a dark band between brighter cloth and cushion top.
+    is not a rise of at least ``min_step`` DN from the band to the cushion top with the band at
+    least ``band_depth`` DN darker than the cloth (a negative ``band_depth`` lets the band be as
+    bright as the cloth within the noise: see :func:`_locate_noses`).
     """
     n = len(prof)
     fit_sig = sigma is None
@@ -761,7 +821,7 @@ def _nose_profile_fit(s: np.ndarray, prof: np.ndarray, a0: np.ndarray, b0: np.nd
     rms = np.sqrt(cost / np.maximum(wt.sum(axis=1), 1))
     # Levels at the two edges: band darker than both the cloth and the cushion top beside it.
     cloth_at_a, band_at_a, band_at_b, top_at_b = coef[:, 0], coef[:, 2] + coef[:, 3] * (a - b), coef[:, 2], coef[:, 4]
-    good = (a < b) & (top_at_b - band_at_b > 3.0) & (cloth_at_a - band_at_a > 1.0) & np.isfinite(cost)
+    good = (a < b) & (top_at_b - band_at_b > min_step) & (cloth_at_a - band_at_a > band_depth) & np.isfinite(cost)
     nanify = lambda x: np.where(good, x, np.nan)  # noqa: E731
     return nanify(b), nanify(a), nanify(sg), nanify(rms)
 
@@ -789,21 +849,41 @@ def _edge_guesses(s: np.ndarray, prof: np.ndarray, s_rise: float = 0.0) -> tuple
     return a0, b0
 
 
-def _locate_noses(s: np.ndarray, prof: np.ndarray) -> tuple[np.ndarray, np.ndarray, float | None]:
+def _locate_noses(s: np.ndarray, prof: np.ndarray, min_step: float | None = None) -> tuple[np.ndarray, np.ndarray, float | None]:
     """Nose positions (N,) px along N outward profiles ``prof`` (N, M) sampled at ``s`` (M,)
     around one side's nose curve, their fit RMS (N,) and the side's blur (px, None if no profile
     fitted). Pass 1 fits each profile's blur; pass 2 holds the side's median blur (one lens, one
     focus: a shared blur steadies narrow bands, whose width and blur otherwise trade). NaN marks
-    profiles without a nose (the fit's own test: a band darker than both sides)."""
+    profiles without a nose (the fit's own test, with ``min_step`` DN, by default from the
+    profiles' own noise: :func:`_min_step_dn`).
+
+    The nose is the outer edge of a band darker than the cloth (1 DN at least); but where the
+    light is dim (a far end of the table under one low lamp) the band's shade falls to the
+    cloth's level within a code value while the rise to the lit cushion top stays. A side on
+    which the band test rejects more than half of the profiles that show that rise is read by
+    the rise alone (the band no brighter than the cloth beyond ``min_step``)."""
+    if min_step is None:
+        min_step = _min_step_dn(_profile_noise(prof, float(s[1] - s[0])))
+    strict = _fit_noses(s, prof, min_step, 1.0)
+    rise = _fit_noses(s, prof, min_step, -min_step)
+    kept = [int(np.sum(np.isfinite(r[0]))) for r in (strict, rise)]
+    return strict if 2 * kept[0] >= kept[1] else rise
+
+
+def _fit_noses(s: np.ndarray, prof: np.ndarray, min_step: float, band_depth: float) -> tuple[np.ndarray, np.ndarray, float | None]:
+    """:func:`_locate_noses` for one band test (``min_step``, ``band_depth``: see
+    :func:`_nose_profile_fit`)."""
     a0, b0 = _edge_guesses(s, prof)
-    b1, a1, sig1, _ = _nose_profile_fit(s, prof, a0, b0, None)
+    b1, a1, sig1, _ = _nose_profile_fit(s, prof, a0, b0, None, min_step=min_step, band_depth=band_depth)
     ok1 = np.isfinite(b1) & (np.abs(np.nan_to_num(b1, nan=99.0)) <= 2.5)
     if not np.any(ok1):
         return np.full(len(prof), np.nan), np.full(len(prof), np.nan), None
     sig_side = float(np.median(sig1[ok1]))
     # Profiles pass 1 could not fit start again from their first guesses: with the blur held,
     # a narrow band is better conditioned.
-    b2, _, _, rms = _nose_profile_fit(s, prof, np.where(ok1, a1, a0), np.where(ok1, b1, b0), sig_side)
+    b2, _, _, rms = _nose_profile_fit(s, prof, np.where(ok1, a1, a0), np.where(ok1, b1, b0), sig_side,
+                                      min_step=min_step, band_depth=band_depth)
+    b2 = np.where(np.abs(np.nan_to_num(b2, nan=99.0)) <= 2.5, b2, np.nan)
     return b2, rms, sig_side
 
 
@@ -831,8 +911,9 @@ def _nose_points(grey: np.ndarray, quad: np.ndarray, table: TableSpec, config: C
         pts = base[:, None, :] + s[None, :, None] * nrm[None, None, :]
         prof = sum(_sample(grey, pts + o * tang[None, None, :]) for o in (-1.0, 0.0, 1.0)) / 3
         cands = []
+        min_depth = _min_step_dn(_profile_noise(prof, step))
         for i in range(len(base)):
-            for pos, score in _band_candidates(prof[i], step, max(4.0, 40.0 * px_per_mm)):
+            for pos, score in _band_candidates(prof[i], step, max(4.0, 40.0 * px_per_mm), min_depth):
                 cands.append((i, fr[i], s[0] + pos, score))
         if len(cands) < 8:
             log.debug("side %d: only %d band candidates", k, len(cands))
@@ -1102,9 +1183,11 @@ def _as_prior(height_prior, config: "CalibConfig") -> HeightPrior | None:
     return HeightPrior.given(float(height_prior), config)
 
 
-def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior: HeightPrior | None):
+def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior: HeightPrior | None,
+               nose_w: dict[str, float] | None = None):
     cam = cam_of(params)
-    out = [off * scale for _, off, scale in _rails_offsets_mm(cam, noses, table)]
+    w = nose_w or {}
+    out = [off * scale * w.get(rail, 1.0) for rail, off, scale in _rails_offsets_mm(cam, noses, table)]
     if len(sights_px):
         pr = cam.project(sights_mm)
         out.append(((pr - sights_px) * sight_weight).ravel())
@@ -1112,6 +1195,25 @@ def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight,
         out.append(np.array([height_prior.residual(cam)]))
     r = np.concatenate(out)
     return np.where(np.isfinite(r), r, 1e3)
+
+
+def _side_weights(cam: Camera, noses, table: TableSpec) -> dict[str, float]:
+    """Weight of each rail's nose residuals (rail -> 0..1): the median over the rails of their
+    robust scatter about ``cam``'s nose lines (px, MAD) over the rail's own, at most 1. A nose
+    seen at a code value or two of contrast (a dark end of the table) scatters several times more
+    than the lit ones and would otherwise count as much per point; weighting by the inverse
+    standard deviation is the weighted least-squares estimate (Hartley & Zisserman, Multiple
+    View Geometry, 2nd ed., sec. A5.2) with the lit sides' scatter as the unit."""
+    sd = {}
+    for rail, pts in noses:
+        if len(pts) >= 5:
+            off, scale = _nose_offsets_mm(cam, pts, rail, table)
+            r = off * scale
+            sd[rail] = max(0.05, 1.4826 * float(np.median(np.abs(r - np.median(r)))))
+    if not sd:
+        return {}
+    ref = float(np.median(list(sd.values())))
+    return {rail: min(1.0, ref / v) for rail, v in sd.items()}
 
 
 def _table_varied(table: TableSpec, d_mm: np.ndarray) -> TableSpec:
@@ -1125,7 +1227,8 @@ def _table_varied(table: TableSpec, d_mm: np.ndarray) -> TableSpec:
 
 
 def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm: np.ndarray, table: TableSpec,
-                 sight_w: float, height_prior: "HeightPrior | float | None", config: CalibConfig) -> dict[str, Any]:
+                 sight_w: float, height_prior: "HeightPrior | float | None", config: CalibConfig,
+                 nose_w: dict[str, float] | None = None) -> dict[str, Any]:
     """How well the fitted camera is determined: standard deviations of the camera's height above
     the cloth (mm), of its focal length (%) and of ball positions (mm, the largest over the table).
 
@@ -1161,7 +1264,8 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
         t = _table_varied(table, nu[:5])
         smm = np.array([[x_, y_, t.rail_top_height_mm] for _, _, (x_, y_) in t.sights()])[sight_idx] if len(sight_idx) else sights_mm
         cam = cam_of(theta)
-        out = [off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)] for rail, off, scale in _rails_offsets_mm(cam, noses, t)]
+        out = [(off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)]) * (nose_w or {}).get(rail, 1.0)
+               for rail, off, scale in _rails_offsets_mm(cam, noses, t)]
         if len(sights_px):
             out.append(((cam.project(smm) - sights_px) * sight_w).ravel())
         if height_prior is not None:
@@ -1367,11 +1471,12 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
             return _camera(p, size, intrinsics)
 
     hp = _as_prior(config.camera_height_mm, config)
+    nose_w = None  # per-rail weights of the nose residuals, once each side's scatter is known
     view_height = None  # [mm, sd mm] the view alone gives, where a typical height was added
 
     def solve(x_start, sights_px, sights_mm, loss="soft_l1"):
         r = optimize.least_squares(
-            _residuals, x_start, args=(cam_of, noses, sights_px, sights_mm, table, sight_w, hp),
+            _residuals, x_start, args=(cam_of, noses, sights_px, sights_mm, table, sight_w, hp, nose_w),
             loss=loss, f_scale=0.5, method="trf", x_scale="jac", max_nfev=200,
         )
         return r.x
@@ -1408,9 +1513,10 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
             mad = 1.4826 * np.median(np.abs(rpx - np.median(rpx))) + 0.05
             cleaned.append((rail, pts[np.abs(rpx) < max(4 * mad, 0.5)]))
         noses = cleaned
+        nose_w = _side_weights(cam_of(x), noses, table)
         x = solve(x, sights_px, sights_mm)
         if hp is None and intrinsics is None:
-            view = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, None, config)
+            view = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, None, config, nose_w)
             if not view["height_determined"]:
                 # Square-on, the picture fixes only focal length over distance, and the height it
                 # favours follows the small biases of the noses and sights (2.2 m for a true 2.6 m
@@ -1454,7 +1560,7 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
     # The shape of the table the image supports: refit with the width free.
     aspect = _measured_aspect(cam, fits, table)
     f = float(cam.K[0, 0])
-    unc = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, hp, config)
+    unc = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, hp, config, nose_w)
     quality = {
         "nose_rms_px": float(np.sqrt(np.mean(all_res**2))),
         "nose_max_px": float(np.max(np.abs(all_res))),
