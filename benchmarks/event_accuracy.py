@@ -28,7 +28,10 @@ can see: incoming normal speed above 100 mm/s, the ``min_velocity_change_mm_s`` 
 and p95 of the absolute errors in time (in frame intervals), along-rail position (mm), speed in
 and out (relative), angle in and out (degrees) and restitution (the errors out over the contacts
 that have a departure: a ball seen reaching a cushion and then not again has none); collision
-recall, precision and time error. Acceptance targets (issue "Follow every ball and time every contact") are printed
+recall, precision and time error; the missed and extra contacts (an extra one beside a jaw tip
+that the simulated ball met, which the results format has no kind for and the truth leaves out,
+says so, with how far past the end of the rail's cushion the ball's centre was). Acceptance
+targets (issue "Follow every ball and time every contact") are printed
 beside them.
 
 ``--shutter F`` keeps the shutter open for that share of the frame interval instead of half
@@ -271,6 +274,24 @@ def match(res: pd.DataFrame, truth: pd.DataFrame, window_s: float = 0.1):
     return out
 
 
+def _jaw_beside(table: TableSpec, traj, t: float, key, window_s: float = 0.1) -> tuple:
+    """For an unmatched result contact ``key`` (ball, rail) at ``t`` s: ``("jaw tip", d)`` if the
+    simulation has that ball meet a jaw tip at the end of that rail's cushion within
+    ``window_s`` (d: mm from the centre's foot on the rail to the nearest cushion end, past
+    it), which the results format has no kind for and ``truth_events`` leaves out; else ()."""
+    ball, rail = key if isinstance(key, tuple) and len(key) == 2 else (None, None)
+    if rail not in RAILS:
+        return ()
+    ends = [seg.start for seg in table.cushions() if seg.rail == rail] + \
+        [seg.end for seg in table.cushions() if seg.rail == rail]
+    for ev in traj.events:
+        if ev.kind == "jaw" and ev.ball == ball and ev.rail == rail and abs(ev.t - t) <= window_s:
+            s = float(table.along(rail, np.array(ev.pos))[0])
+            d = min(abs(s - float(table.along(rail, np.array(e))[0])) for e in ends)
+            return ("jaw tip", round(d, 2))
+    return ()
+
+
 def run_shot(shot: Shot, fps: float, rng: np.random.Generator, line_shift_mm: float = 0.0,
              shutter_fraction: float = 0.5) -> dict:
     """Simulate, detect, track and solve one shot; the matched errors and counts.
@@ -317,6 +338,7 @@ def run_shot(shot: Shot, fps: float, rng: np.random.Generator, line_shift_mm: fl
                                  if i not in matched_t and visible[i]]
         matched_r = {j for _, j in m}
         out["extra_" + kind] = [(shot.label, fps, re_.loc[j, "t"], re_.loc[j, "key"])
+                                + _jaw_beside(shot.table, traj, re_.loc[j, "t"], re_.loc[j, "key"])
                                 for j in re_.index if j not in matched_r]
         for i, j in m:
             t, r = te.loc[i], re_.loc[j]

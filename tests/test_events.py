@@ -1207,3 +1207,50 @@ def test_a_collision_a_frame_or_two_after_the_strike_is_found_at_30fps():
         assert len(col) == 2 and np.all(np.abs(col["t"] - t_c) < 0.5 / fps), (seed, t_c, col)
         starts = _only(ev, "start")
         assert len(starts) == 1 and starts.loc[0, "t"] < t_c, (seed, starts)
+
+
+def _creep_path(t_c: float, along: float = 700.0):
+    """A ball rolling into the top cushion, decelerating at mu_r g (mu_r 0.0107, Alciatore 2004
+    range), 47 mm/s at the contact (45 of it normal: below the 50 mm/s rest speed), leaving
+    at (10, -30) mm/s and sliding to rest in 0.2 s (analytic path, mm)."""
+    c = TABLE.reversal_line("top")
+    pc = np.array([along, c])
+    u = np.array([0.3, 1.0]) / math.hypot(0.3, 1.0)
+    v_c, dec_in = 47.0, 0.0107 * G
+    v_out, t_stop = np.array([10.0, -30.0]), 0.2
+
+    def f(t):
+        tau = (np.asarray(t, float) - t_c)[:, None]
+        before = pc + v_c * u * tau - 0.5 * dec_in * u * tau**2
+        m = np.clip(tau, 0.0, t_stop)
+        return np.where(tau < 0, before, pc + v_out * m - 0.5 * v_out / t_stop * m**2)
+    return f
+
+
+def test_a_creeping_ball_is_not_given_a_contact_where_its_smoothed_velocity_swung():
+    # A ball creeping into the top cushion at 45 mm/s of normal speed, 30 fps, 2.5 mm noise
+    # (benchmarks/event_accuracy.py's moving noise), eight phases. The tracks' velocity is the
+    # true one, except that three frames before the contact it swings to 160 mm/s into the rail
+    # and then 74 out, as the tracker's bounce hypothesis made of such a ball's scatter in
+    # event_accuracy.py --fps 30 --seed 2 (smoothed 163 in, 74 out; true 57 and 54). Its raw
+    # samples creep on into the rail, so the contact is where they turn: at 45 mm/s and 2.5 mm
+    # of noise a frame's travel is 1.5 mm, so its time is known to about a frame (common
+    # practice: the scorer's window is 0.1 s, three frames). Measured: seven found, 0.1-1.6
+    # frames off, median 0.5; before: all eight 1.4-3.7 frames early, median 1.8.
+    fps = 30.0
+    times = np.arange(int(2.4 * fps)) / fps
+    errors = []
+    for seed in range(8):
+        t_c = 1.8 + (0.1 + 0.11 * seed) / fps
+        f = _creep_path(t_c)
+        det = detections({"a": f}, times, np.random.default_rng(seed), noise_mm=2.5)
+        tr = track(det, TABLE)
+        v = np.gradient(f(times), axis=0) * fps
+        tr["vx"], tr["vy"] = v[tr["frame"], 0], v[tr["frame"], 1]
+        k_swing = int(math.floor(t_c * fps)) - 3
+        tr.loc[tr["frame"].isin([k_swing - 2, k_swing - 1]), "vy"] = 160.0
+        tr.loc[tr["frame"] == k_swing, "vy"] = -74.0
+        found = _only(find_events(tr, TABLE, det)[0], "cushion")
+        assert len(found) <= 1 and set(found["rail"]) <= {"top"}
+        errors += list(np.abs(found["t"] - t_c) * fps)
+    assert len(errors) >= 6 and max(errors) < 2.0 and np.median(errors) < 1.0

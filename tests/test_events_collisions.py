@@ -79,3 +79,41 @@ def test_collision_balance_is_validated():
     for bad in (1.5, 0.0, -0.25):
         with pytest.raises(ValueError, match="collision_min_balance"):
             EventConfig(collision_min_balance=bad)
+
+
+def test_balls_passing_a_few_millimetres_apart_make_no_collision():
+    # Two balls crossing paths at 0.94 and 0.72 m/s (about 100 degrees apart), their centres
+    # passing 1, 2 and 3 mm further than a diameter apart, 30 fps, 2.5 mm noise per axis (the
+    # moving noise of benchmarks/event_accuracy.py, whose seed 2 took such a pass for a
+    # collision). Nothing acts on either ball, so no collision: at an impact the relative
+    # velocity along the line of centres jumps apart (Newton's impact law for smooth spheres,
+    # common practice), while here it changes only by the fits' noise. Measured: none of the 48;
+    # before (momentum balance alone) 3 of the 48 were reported, one per distance.
+    fps = 30.0
+    times = np.arange(int(1.0 * fps)) / fps
+    va, vb = np.array([940.0, -60.0]), np.array([-400.0, 600.0])
+    vr = va - vb
+    m = np.array([-vr[1], vr[0]]) / np.hypot(*vr)  # across the relative path
+    n = 0
+    for gap in (1.0, 2.0, 3.0):
+        pb0 = np.array([1200.0, 600.0])
+        pa0 = pb0 + (D + gap) * m  # nearest each other at t_m
+        for seed in range(16):
+            t_m = 0.5 + (0.1 + 0.05 * seed) / fps
+
+            def fa(t, pa0=pa0, t_m=t_m):
+                return pa0 + va * (np.asarray(t, float) - t_m)[:, None]
+
+            def fb(t, t_m=t_m):
+                return pb0 + vb * (np.asarray(t, float) - t_m)[:, None]
+            det = detections({"a": fa, "b": fb}, times, np.random.default_rng(seed), noise_mm=2.5,
+                             labels={"a": ("white", "cue"), "b": ("red", "solid")})
+            ev, _ = find_events(track(det, TABLE), TABLE, det)
+            n += int((ev["kind"] == "collision").sum())
+    assert n == 0
+
+
+def test_collision_impulse_sigmas_is_validated():
+    for bad in (0.0, -2.0, float("nan")):
+        with pytest.raises(ValueError, match="collision_impulse_sigmas"):
+            EventConfig(collision_impulse_sigmas=bad)
