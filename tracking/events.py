@@ -1479,8 +1479,10 @@ class _Finder:
         not swung by a line error its own path contradicts. With ``line_sd`` 0, ``c_t = c``.
         t is scanned between the last approach sample and the first departure sample whose
         exposures do not straddle it (the samples nearest the contact on each side that the
-        unpinned fits used), and the t with the least sum of both sides' criterion (plus the
-        line's prior) is kept. Returns (t, approach fit, departure fit, c_t) or None.
+        unpinned fits used; with ``slide_tk``, the departure at least out to the prior's slide
+        and three samples beyond, so the slide it expects fits in), and the t with the least
+        sum of both sides' criterion (plus the line's prior) is kept. Returns (t, approach
+        fit, departure fit, c_t) or None.
         """
         n_a, n_d = fa0.n, fd0.n
         w = self.cfg.fit_window_s
@@ -1489,6 +1491,17 @@ class _Finder:
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         if len(ta) < 3 or len(td) < 3:
             return None
+        if slide_tk is not None:
+            # The slide-then-roll fit puts its kink three samples or more before its window's
+            # end (the rolling piece's fewest), so a departure that ``_side`` cut to the half
+            # nearest the contact could not hold the slide the prior expects: at 30 fps six
+            # samples, the first 0.017 s after the contact, end any slide by 0.084 s, while a
+            # ball arriving at 0.68 m/s normal speed on a 1.9 m/s^2 cloth slides about 0.126 s
+            # (``_cushion_slide_ratio``: 0.355 vn / mu_s g; multi_rail_30fps at 3.55 s, fitted
+            # 0.077 s against 0.116 s true); the slide then came out short and the speed out
+            # low whatever the prior said. Kept: the samples out to the prior's slide (mean
+            # plus two sd) and three beyond, within the window.
+            n_d = max(n_d, int(np.sum(td - t_c <= slide_tk[0] + 2.0 * slide_tk[1])) + 3)
         ta, pa = ta[-n_a:], pa[-n_a:]
         td, pd_ = td[:n_d], pd_[:n_d]
         t_lo, t_hi = ta[-1] + 0.5 * self.exposure, td[0] - 0.5 * self.exposure
