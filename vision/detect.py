@@ -1289,7 +1289,26 @@ class BallDetector:
         still = [self._unchanged(r, changed) for r in prev]
         for k, b in enumerate(boxes):
             rows += self._detect_box(img, b, [r for r, hit, st in zip(prev, inside[:, k], still) if hit and st])
-        return tuple(self._dedupe(rows))
+        return tuple(self._one_cue(img, self._dedupe(rows)))
+
+    def _one_cue(self, img: np.ndarray, rows: list[dict]) -> list[dict]:
+        """A frame's detection rows with at most one read as the cue ball: a table holds one
+        (the rules of pool; common practice), while a stripe whose band is of the cloth's hue
+        can look all white and cloth to :meth:`_identity` (tan cloth, a yellow or orange
+        stripe). Of several, the one least saturated over its disc (HSV saturation, mean
+        within 0.88 of the ball's image radius, as :meth:`_identity` looks) keeps the label:
+        the cue ball is white all over, the band is not. The others' pattern is left unknown
+        and their colour empty (new dicts: the rows may be the previous frame's)."""
+        cues = [k for k, r in enumerate(rows) if r["pattern"] == "cue"]
+        if len(cues) < 2:
+            return rows
+        sat = []
+        for k in cues:
+            pix, _, _ = self._disc_pixels(img, np.array([rows[k]["u"], rows[k]["v"]]), 0.44 * self.ball_px)
+            hsv = cv2.cvtColor(pix[None].astype(np.uint8), cv2.COLOR_BGR2HSV)[0] if len(pix) else np.full((1, 3), 255)
+            sat.append(float(hsv[:, 1].mean()))
+        keep = cues[int(np.argmin(sat))]
+        return [dict(r, pattern="unknown", colour="") if k in cues and k != keep else r for k, r in enumerate(rows)]
 
     def _unchanged(self, row: dict, changed: np.ndarray) -> bool:
         """Whether a detection row is of a sharp ball none of whose change-grid cells
