@@ -106,7 +106,11 @@ Method
    or comes before it, is two false tracks or a ball set moving beside another, and is dropped;
    so is one whose relative velocity along the line of centres does not jump apart beyond its
    noise (the impulse acts along that line, ``_impulse_sigmas``): two balls passing a few
-   millimetres apart.
+   millimetres apart. Three or more balls whose rough contacts share balls within three frames
+   (a ball driven into touching balls, a rack) meet within a fraction of a millisecond, so
+   each ball's samples show only the sum of its impulses: the pairs are found by splitting
+   each ball's velocity change into non-negative impulses along the lines of centres of the
+   balls in contact at the driven ball's first touch (``_Finder.cluster``).
    *Start*:
    the first moving samples' fit extrapolated back to the rest position; a motion that begins
    at a collision has none, unless the ball left rest at an earlier frame than the ball it
@@ -127,7 +131,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from scipy.optimize import minimize_scalar
+from scipy.optimize import minimize_scalar, nnls
 from scipy.stats import chi2
 
 from vision.table import RAILS, TableSpec, cushion_angles, rail_inward_normal
@@ -140,6 +144,11 @@ SHOT_COLUMNS = ["shot", "t_start", "t_end", "cue_track", "balls_moved", "cushion
                 "pocketed"]
 TRACK_INPUT_COLUMNS = ("frame", "t", "track", "x", "y", "vx", "vy", "seen")
 KINDS = ("start", "collision", "cushion", "pocket", "stop")
+# Rough collisions sharing a ball this many frame intervals apart or less may be one instant:
+# a rough time (``_Finder.rough_collisions``) comes from the smoothed tracks, which a contact's
+# velocity jump pulls a frame or two off (three balls meeting at one instant in a rendered clip
+# got rough times 0.783, 0.800 and 0.817 s at 60 fps; a simulated cluster, 1.033 and 1.067 s).
+_CLUSTER_FRAMES = 3.0
 
 
 @dataclass(frozen=True)
@@ -967,12 +976,11 @@ def find_events(
                                                                    rough_collisions)
     finder.slide_measured = finder.slide_decel_sd < cfg.slide_decel_sigma_mm_s2
 
-    rows: list[dict] = []
-    for tg, i, j in rough_collisions:
-        rows += finder.collision(by_id[i], by_id[j], tg)
+    rows = _collision_rows(finder, rough_collisions, by_id)
     collisions_by_ball: dict[int, list[tuple[float, int]]] = {}
     for r in rows:
-        collisions_by_ball.setdefault(r["track"], []).append((r["t"], r["other"]))
+        # (time, the ball whose leaving rest is compared in ``_set_moving``)
+        collisions_by_ball.setdefault(r["track"], []).append((r["t"], r.get("driver", r["other"])))
     # Each rail's contact line from the apexes of all its contacts (``_rail_offsets``): the
     # calibration's reversal line may be off by a millimetre, and every contact is pinned to it.
     apexes: dict[str, list[tuple[float, float]]] = {r: [] for r in RAILS}
@@ -1043,6 +1051,55 @@ def find_events(
                 t_end = r["t"]
             moves.append((b.track, t_begin, t_end))
     return _assemble(rows, moves, dt)
+
+
+def _collision_rows(finder: "_Finder", rough: list[tuple[float, int, int]],
+                    by_id: dict[int, _Ball]) -> list[dict]:
+    """Collision rows from the rough collisions (time s, track i, track j).
+
+    Rough collisions that share a ball within ``_CLUSTER_FRAMES`` frame intervals are one
+    group. A group of two balls is one pair contact (``_Finder.collision``). A group of three
+    or more balls is a cluster (a ball driven into touching balls, a rack): its contacts come
+    within a fraction of a millisecond of each other, far below a frame interval, so no
+    ball's samples fall between them and each ball shows only the sum of its impulses
+    (``_Finder.cluster``). Pairs of the group that were not in contact at the cluster's instant
+    are solved as pair contacts after it (``_Finder.collision`` bounded by the instant).
+    """
+    dt = finder.dt
+    parent = list(range(len(rough)))
+
+    def root(k: int) -> int:
+        while parent[k] != k:
+            parent[k] = parent[parent[k]]
+            k = parent[k]
+        return k
+    for a in range(len(rough)):
+        for b in range(a + 1, len(rough)):
+            if set(rough[a][1:]) & set(rough[b][1:]) and \
+                    abs(rough[a][0] - rough[b][0]) <= _CLUSTER_FRAMES * dt + 1e-9:
+                parent[root(b)] = root(a)
+    groups: dict[int, list[tuple[float, int, int]]] = {}
+    for k, r in enumerate(rough):
+        groups.setdefault(root(k), []).append(r)
+    rows: list[dict] = []
+    for group in groups.values():
+        tracks = sorted({x for _, i, j in group for x in (i, j)})
+        found = finder.cluster([by_id[x] for x in tracks], group) if len(tracks) >= 3 else None
+        if found is None:
+            for tg, i, j in group:
+                rows += finder.collision(by_id[i], by_id[j], tg)
+            continue
+        t_c, cluster_rows, touching = found
+        rows += cluster_rows
+        bound = t_c + 0.5 * finder.exposure
+        hit = {r["track"] for r in cluster_rows}
+        for x in hit:  # no later fit may reach back across the cluster's contact
+            by_id[x].strikes.append(bound)
+        for tg, i, j in group:
+            if (min(i, j), max(i, j)) in touching:
+                continue
+            rows += finder.collision(by_id[i], by_id[j], max(tg, t_c + 1.5 * dt))
+    return rows
 
 
 def _left_rest(finder: "_Finder", b: _Ball, t: float) -> float:
@@ -1404,15 +1461,41 @@ class _Finder:
             b.raw[np.searchsorted(b.t, t_bad)] = np.nan
         return fa, fd
 
-    def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool):
+    def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool,
+                        strike: bool = False):
         """Approach and departure fits of ``b`` around ``t_c`` within (lo, hi) by ``_grow``,
-        over at most ``collision_window_s`` each side."""
+        over at most ``collision_window_s`` each side; ``strike``: gross outliers struck first
+        (``_strike_outliers``)."""
         w = self.collision_window_s
         ex = (t_c, 0.5 * self.exposure) if exclude else None
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
+        if strike:
+            ta, pa = self._strike_outliers(ta, pa, t_c, b.sigma)
+            td, pd_ = self._strike_outliers(td, pd_, t_c, b.sigma)
         return (self._grow(ta, pa, t_c, b.sigma, forward=False),
                 self._grow(td, pd_, t_c, b.sigma, forward=True))
+
+    def _strike_outliers(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float):
+        """Samples ts (n,) s, ps (n, 2) mm of one side of a contact with gross outliers struck,
+        as in ``_robust_fit``: the sample one parabola over the whole side leaves furthest off,
+        if beyond ``outlier_sigmas`` times the noise ``sigma`` (or the residuals' robust
+        scatter), is dropped, at most ``outlier_max`` times. The whole side, not the few
+        samples ``_grow`` keeps, over which a parabola bends to the outlier and hides it. Used
+        for a cluster, where a ball resting beside the one driven in can be placed on the two of
+        them as it closes in (rendered rack, 60 fps: 14 mm off the frame before the contact)."""
+        for _ in range(self.cfg.outlier_max):
+            if len(ts) <= self.cfg.quadratic_min_samples:
+                break
+            f = _fit(ts, ps, t_c, 2, sigma)
+            res = np.hypot(*(ps - np.array([f.pos(t) for t in ts])).T)
+            j = int(np.argmax(res))
+            # The median 2-D residual of Gaussian noise is 1.177 sigma (``_robust_fit``).
+            if res[j] <= self.cfg.outlier_sigmas * max(sigma, float(np.median(res)) / 1.177):
+                break
+            keep = np.arange(len(ts)) != j
+            ts, ps = ts[keep], ps[keep]
+        return ts, ps
 
     def _grow(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, forward: bool):
         """Plain quadratic fit of the samples nearest ``t_c``, grown one sample at a time while
@@ -1955,13 +2038,38 @@ class _Finder:
                     k1 = k
                     while k1 + 1 < len(close) and close[k1 + 1]:
                         k1 += 1
-                    ks = k + int(np.argmin(d[k:k1 + 1]))
-                    lo, hi = max(0, ks - 3), min(len(common) - 1, ks + 3)
-                    dva = np.hypot(*(a.v[ka[hi]] - a.v[ka[lo]]))
-                    dvb = np.hypot(*(b.v[kb[hi]] - b.v[kb[lo]]))
-                    if max(dva, dvb) >= cfg.min_velocity_change_mm_s and vrel[lo:hi + 1].max() > \
-                            cfg.move_speed_mm_s:
-                        out.append((float(a.t[ka[ks]]), a.track, b.track))
+                    # The closest approach; else, for balls that rested touching (a rack, a
+                    # frozen pair) and whose closest approach is wherever their noise put it,
+                    # the moment in the stretch where the velocities change most: the middle
+                    # of the peak of the change over six frames (above half its top).
+                    m = np.arange(k, k1 + 1)
+                    lo_m, hi_m = np.maximum(m - 3, 0), np.minimum(m + 3, len(common) - 1)
+                    change = np.maximum(np.hypot(*(a.v[ka[hi_m]] - a.v[ka[lo_m]]).T),
+                                        np.hypot(*(b.v[kb[hi_m]] - b.v[kb[lo_m]]).T))
+                    top = int(np.argmax(change))
+                    p0 = p1 = top
+                    while p0 > 0 and change[p0 - 1] >= 0.5 * change[top]:
+                        p0 -= 1
+                    while p1 + 1 < len(change) and change[p1 + 1] >= 0.5 * change[top]:
+                        p1 += 1
+                    # Where the two are over three frames apart (outside each other's
+                    # window), the one whose velocities change more: a resting track's noise
+                    # can pass the test at its closest approach. The second only where the
+                    # two touch then (within ``collision_margin_mm``), not for a ball turned
+                    # by a cushion as it passes another.
+                    ks_d, ks_c = k + int(np.argmin(d[k:k1 + 1])), k + (p0 + p1) // 2
+                    kick = {}
+                    for ks in {ks_d, ks_c} if d[ks_c] < D + cfg.collision_margin_mm else {ks_d}:
+                        lo, hi = max(0, ks - 3), min(len(common) - 1, ks + 3)
+                        dva = np.hypot(*(a.v[ka[hi]] - a.v[ka[lo]]))
+                        dvb = np.hypot(*(b.v[kb[hi]] - b.v[kb[lo]]))
+                        if max(dva, dvb) >= cfg.min_velocity_change_mm_s and \
+                                vrel[lo:hi + 1].max() > cfg.move_speed_mm_s:
+                            kick[ks] = max(dva, dvb)
+                    if ks_d in kick and (abs(ks_c - ks_d) <= 3 or kick[ks_d] >= kick.get(ks_c, 0)):
+                        out.append((float(a.t[ka[ks_d]]), a.track, b.track))
+                    elif ks_c in kick:
+                        out.append((float(a.t[ka[ks_c]]), a.track, b.track))
                     k = k1 + 1
         return sorted(out)
 
@@ -2041,6 +2149,105 @@ class _Finder:
             rows.append(_row(t_c, "collision", me.track, xy, speed_in=s_in, speed_out=s_out,
                              other=other.track))
         return rows
+
+    def cluster(self, balls: list[_Ball], group: list[tuple[float, int, int]]):
+        """The contacts of a cluster of three or more balls meeting at one instant.
+
+        Method: the instant ``t_c`` is the first touch of the driven ball's approach path (the
+        ball of the cluster that left rest first) with another's (``_touch_time`` on the
+        approach fits with gross outliers struck, iterated as in ``collision``). Each ball's
+        velocity change ``dv_k`` at ``t_c`` (departure minus approach fit) is the sum of the
+        impulses (per unit mass) of its contacts, each along its line of centres: smooth equal
+        spheres exchange
+        equal and opposite impulses along the line of centres (Newton's third law; the
+        friction impulse is at most the ball-ball friction 0.03-0.08 of it, Alciatore 2004
+        [secondary]). So ``dv_k = sum_e J_e s_ke n_e`` over the pairs e in contact at ``t_c``
+        (centres within a diameter plus ``collision_margin_mm`` on the approach fits), with
+        ``J_e >= 0`` and ``s_ke = +1 / -1`` for the pair's first / second ball; the ``J_e``
+        are solved by non-negative least squares (Lawson & Hanson 1974, ``scipy.optimize.nnls``)
+        with each ball's equations weighted by the standard error of its ``dv``. A pair is a
+        collision where its impulse exceeds ``min_velocity_change_mm_s`` and
+        ``collision_impulse_sigmas`` standard errors (from the active pairs' normal equations).
+        Its time is the pair's own approach touch, else ``t_c`` (balls at rest in contact pass
+        the impulse on within a fraction of a millisecond; the departure fits show every
+        contact's sum, so they time none).
+
+        ``group`` is the rough collisions (time s, track i, track j). Returns (t_c, rows, pairs
+        (i, j) with i < j in contact at ``t_c``), or None where some ball lacks a fit on either
+        side or the driven ball no timed touch (the group is then solved pair by pair).
+        """
+        D = self.table.ball_diameter_mm
+        guard = 1.5 * self.dt
+        t_lo, t_hi = min(g[0] for g in group), max(g[0] for g in group)
+        ids = [b.track for b in balls]
+        lims = {}
+        for b in balls:  # the group's own rough times bound nothing
+            lo, _ = b.bounds(t_lo, guard)
+            _, hi = b.bounds(t_hi, guard)
+            lims[b.track] = (lo, hi)
+        # The impulse comes from the ball driven in, the first to leave rest: every ball it
+        # passes on to was set moving by it (``_set_moving``), though a touching ball's
+        # detections may shift as the driven ball closes in on it (rendered rack, 60 fps).
+        left = {b.track: _left_rest(self, b, t_lo) for b in balls}
+        driver = min(ids, key=lambda k: left[k])
+        t_c = t_lo
+        fits = None
+        for it in range(3):
+            fits = {b.track: self._quadratic_fits(b, t_c, *lims[b.track], exclude=it > 0,
+                                                  strike=True)
+                    for b in balls}
+            if any(f[0] is None or f[1] is None for f in fits.values()):
+                return None
+            # The cluster's instant: the driven ball's first touch. Only a touch timed to
+            # within a frame interval: a resting ball's fit that noise bends crosses one
+            # diameter from another anywhere.
+            touches = [s[0] for k in ids if k != driver
+                       for s in [self._touch_time(fits[driver][0], fits[k][0], t_c, True)]
+                       if s is not None and s[1] < self.dt * self.dt]
+            if not touches:
+                return None
+            t_c = min(touches)
+        pos = {k: f[0].pos(t_c) for k, f in fits.items()}
+        dv = {k: f[1].vel(t_c) - f[0].vel(t_c) for k, f in fits.items()}
+        sd = {k: math.sqrt(max(f[0].vel_var(t_c) + f[1].vel_var(t_c), 1e-12))
+              for k, f in fits.items()}
+        pairs = [(ids[ia], ids[ib]) for ia in range(len(ids)) for ib in range(ia + 1, len(ids))
+                 if np.hypot(*(pos[ids[ia]] - pos[ids[ib]])) <= D + self.cfg.collision_margin_mm]
+        touching = {(min(p), max(p)) for p in pairs}
+        if not pairs:
+            return t_c, [], touching
+        # A (2 x balls, pairs) design: column e holds +n_e / sd on its first ball's rows and
+        # -n_e / sd on its second's, n_e the unit vector from the second centre to the first.
+        row_of = {k: 2 * r for r, k in enumerate(ids)}
+        A = np.zeros((2 * len(ids), len(pairs)))
+        y = np.concatenate([dv[k] / sd[k] for k in ids])
+        for e, (i, j) in enumerate(pairs):
+            n = pos[i] - pos[j]
+            n = n / max(float(np.hypot(*n)), 1e-12)
+            A[row_of[i]:row_of[i] + 2, e] = n / sd[i]
+            A[row_of[j]:row_of[j] + 2, e] = -n / sd[j]
+        J, _ = nnls(A, y)
+        active = J > 0
+        se = np.full(len(pairs), np.inf)
+        if active.any():
+            Aa = A[:, active]
+            se[active] = np.sqrt(np.diag(np.linalg.pinv(Aa.T @ Aa)))
+        rows = []
+        for e, (i, j) in enumerate(pairs):
+            if not (J[e] >= self.cfg.min_velocity_change_mm_s
+                    and J[e] >= self.cfg.collision_impulse_sigmas * se[e]):
+                continue
+            s = self._touch_time(fits[i][0], fits[j][0], t_c, approach=True)
+            t_e = s[0] if s is not None and s[1] < self.dt * self.dt \
+                and abs(s[0] - t_c) <= 0.5 * self.dt else t_c
+            for me, other in ((i, j), (j, i)):
+                fin, fout = fits[me]
+                r = _row(t_e, "collision", me, fin.pos(t_e),
+                         speed_in=float(np.hypot(*fin.vel(t_e))),
+                         speed_out=float(np.hypot(*fout.vel(t_e))), other=other)
+                r["driver"] = driver if me != driver else other
+                rows.append(r)
+        return t_c, rows, touching
 
     # --- start, stop, pocket ----------------------------------------------------------------
     def _leaving(self, b: _Ball, i0: int):
