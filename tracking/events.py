@@ -1482,8 +1482,9 @@ class _Finder:
         if beyond ``outlier_sigmas`` times the noise ``sigma`` (or the residuals' robust
         scatter), is dropped, at most ``outlier_max`` times. The whole side, not the few
         samples ``_grow`` keeps, over which a parabola bends to the outlier and hides it. Used
-        for a cluster, where a ball resting beside the one driven in can be placed on the two of
-        them as it closes in (rendered rack, 60 fps: 14 mm off the frame before the contact)."""
+        for collisions: a ball resting where another closes in can be placed on the two of them
+        (rendered clips of our own, 60 fps: 14 mm off in a rack, 7 mm off beside a lone ball,
+        the frame before the contact; that collision came half a frame late, now 0.475)."""
         for _ in range(self.cfg.outlier_max):
             if len(ts) <= self.cfg.quadratic_min_samples:
                 break
@@ -2111,8 +2112,8 @@ class _Finder:
         t_c = tg
         fits = None
         for it in range(3):
-            fa_in, fa_out = self._quadratic_fits(a, t_c, la, ha, exclude=it > 0)
-            fb_in, fb_out = self._quadratic_fits(b, t_c, lb, hb, exclude=it > 0)
+            fa_in, fa_out = self._quadratic_fits(a, t_c, la, ha, exclude=it > 0, strike=True)
+            fb_in, fb_out = self._quadratic_fits(b, t_c, lb, hb, exclude=it > 0, strike=True)
             sols = []
             if fa_in is not None and fb_in is not None:
                 sols.append(self._touch_time(fa_in, fb_in, tg, approach=True))
