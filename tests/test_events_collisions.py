@@ -210,3 +210,30 @@ def test_a_resting_ball_placed_toward_the_incoming_one_does_not_move_the_collisi
             assert len(col) == 2, (cut, seed)
             errors.append(float(np.max(np.abs(col["t"] - t_c))) * fps)
     assert max(errors) <= 0.12, errors
+
+
+def test_a_ball_unseen_at_rest_is_met_as_it_leaves_the_contact():
+    # A cue ball at 3 m/s meets a resting ball that the detector never found at rest (taken
+    # into the empty-table model, as in a dim room of our own rendered set), and the cue ball's
+    # own detection is missing in the frame of the contact: the struck ball is first seen a
+    # frame after it, moving. Cuts of 0, 20 and 40 degrees, four contact phases each, 60 fps,
+    # 1 mm noise. The struck ball's track begins at the contact, so its partner's velocity
+    # change lies in frames it does not share, and the smoothed velocities there may still be
+    # the ones before the contact; every collision must be found within half a frame of the
+    # analytic contact (issue 4's target). Measured: all 12, 0.053 frame at most; before, none.
+    fps = 60.0
+    times = np.arange(60) / fps
+    errors = []
+    for cut in (0.0, 20.0, 40.0):
+        for seed in range(4):
+            t_c = 0.5 + (0.3 + 0.1 * seed) / fps
+            cue, obj = collision_paths((1000.0, 600.0), (-2900.0, 900.0), cut, t_c)
+            k = int(np.ceil(t_c * fps))  # the first frame after the contact
+            det = detections({"cue": cue, "obj": obj}, times, np.random.default_rng(seed),
+                             noise_mm=1.0, present={"obj": (k, 59)}, gaps=[("cue", k - 1, k - 1)],
+                             labels={"cue": ("white", "cue"), "obj": ("yellow", "solid")})
+            ev, _ = find_events(track(det, TABLE), TABLE, det)
+            col = ev[ev["kind"] == "collision"]
+            assert len(col) == 2, (cut, seed)
+            errors.append(float(np.max(np.abs(col["t"] - t_c))) * fps)
+    assert max(errors) <= 0.5, errors

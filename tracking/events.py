@@ -1053,6 +1053,14 @@ def find_events(
     return _assemble(rows, moves, dt)
 
 
+def _velocity_change(b: _Ball, rows: np.ndarray) -> np.ndarray:
+    """|v(row + 3) - v(row - 3)| (mm/s) of ``b``'s smoothed track at ``rows`` (n,), over its own
+    rows (clipped at its ends), not only the frames a partner shares: a ball first seen as it
+    leaves a contact (unseen at rest before) still shows its partner's velocity change."""
+    n = len(b.t)
+    return np.hypot(*(b.v[np.minimum(rows + 3, n - 1)] - b.v[np.maximum(rows - 3, 0)]).T)
+
+
 def _collision_rows(finder: "_Finder", rough: list[tuple[float, int, int]],
                     by_id: dict[int, _Ball]) -> list[dict]:
     """Collision rows from the rough collisions (time s, track i, track j).
@@ -2030,7 +2038,16 @@ class _Finder:
                     continue
                 d = np.hypot(*(a.p[ka] - b.p[kb]).T)
                 vrel = np.hypot(*(a.v[ka] - b.v[kb]).T)
-                close = d < D + cfg.collision_margin_mm + vrel * self.dt
+                # Where a track begins or ends (a ball first seen as it leaves a contact, unseen
+                # at rest before), its partner's smoothed velocity there may still be the one
+                # before the contact: allow each ball's own travel in a frame instead.
+                edge = np.zeros(len(common), bool)
+                edge[:2] |= ka[:2] < 2
+                edge[:2] |= kb[:2] < 2
+                edge[-2:] |= ka[-2:] >= len(a.t) - 2
+                edge[-2:] |= kb[-2:] >= len(b.t) - 2
+                reach = np.where(edge, np.hypot(*a.v[ka].T) + np.hypot(*b.v[kb].T), vrel)
+                close = d < D + cfg.collision_margin_mm + reach * self.dt
                 k = 0
                 while k < len(close):
                     if not close[k]:
@@ -2044,9 +2061,7 @@ class _Finder:
                     # the moment in the stretch where the velocities change most: the middle
                     # of the peak of the change over six frames (above half its top).
                     m = np.arange(k, k1 + 1)
-                    lo_m, hi_m = np.maximum(m - 3, 0), np.minimum(m + 3, len(common) - 1)
-                    change = np.maximum(np.hypot(*(a.v[ka[hi_m]] - a.v[ka[lo_m]]).T),
-                                        np.hypot(*(b.v[kb[hi_m]] - b.v[kb[lo_m]]).T))
+                    change = np.maximum(_velocity_change(a, ka[m]), _velocity_change(b, kb[m]))
                     top = int(np.argmax(change))
                     p0 = p1 = top
                     while p0 > 0 and change[p0 - 1] >= 0.5 * change[top]:
@@ -2062,11 +2077,11 @@ class _Finder:
                     kick = {}
                     for ks in {ks_d, ks_c} if d[ks_c] < D + cfg.collision_margin_mm else {ks_d}:
                         lo, hi = max(0, ks - 3), min(len(common) - 1, ks + 3)
-                        dva = np.hypot(*(a.v[ka[hi]] - a.v[ka[lo]]))
-                        dvb = np.hypot(*(b.v[kb[hi]] - b.v[kb[lo]]))
-                        if max(dva, dvb) >= cfg.min_velocity_change_mm_s and \
+                        dv = max(_velocity_change(a, ka[[ks]])[0],
+                                 _velocity_change(b, kb[[ks]])[0])
+                        if dv >= cfg.min_velocity_change_mm_s and \
                                 vrel[lo:hi + 1].max() > cfg.move_speed_mm_s:
-                            kick[ks] = max(dva, dvb)
+                            kick[ks] = dv
                     if ks_d in kick and (abs(ks_c - ks_d) <= 3 or kick[ks_d] >= kick.get(ks_c, 0)):
                         out.append((float(a.t[ka[ks_d]]), a.track, b.track))
                     elif ks_c in kick:
