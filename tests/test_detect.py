@@ -1233,3 +1233,36 @@ def test_a_low_lamps_shadows_are_no_balls_and_the_black_ball_in_shade_is_found(n
     # held to the gate only: on blue and grey cloth its outline slides onto the shadow by about
     # 25 mm, an open limit of the outline fit.
     assert np.all(np.isfinite(err)) and err[2] <= 5.0, (name, err)
+
+
+def test_ball_under_the_cue_in_the_first_frame_is_found_once_the_arm_has_gone():
+    # The player is down on a shot when the clip starts, the cue lying over a resting ball 12
+    # balls' radii behind its tip: the first frame, which builds the empty-table model, holds
+    # the ball in one piece with the cue and arm that reach in over the rail, so the model
+    # keeps all three. Once the arm has gone the re-seeding of its ghost takes the ball out of
+    # the model, and the ball must then be found although no pixel of it changed since (the
+    # frames after the arm has gone are all alike, noise aside). Renderer's truth; the gate is a
+    # ball radius (issue acceptance: every ball found), and the ball is placed within the
+    # resting target's 2.5 mm (p95) once found.
+    cam = Camera.overhead(NINE_FOOT, 2400.0, (1120, 630), offset_mm=(80, -60), roll_deg=1.0, dist=(-0.08, 0.01, 0, 0, 0))
+    heading = math.radians(15.0)
+    tip = np.array([1500.0, 600.0])
+    hidden = tip - 12 * R * np.array([math.cos(heading), math.sin(heading)])
+    occ = Occluder((CueStroke(1.0, tuple(tip), heading),))
+    ren = Renderer(NINE_FOOT, cam, Look(noise_sigma=2.0), (BALLS[1],), occluder=occ, seed=5)
+    det = BallDetector(cam, NINE_FOOT)
+    at = hidden[None]
+    first = det.process(0, 0.0, ren.render(at[None], _rot(1), np.ones((1, 1), bool), np.array([0.5])))
+    assert not np.isfinite(_match(first, at)[0]).any()  # in the model with the cue and arm
+    # After the stroke the occluder withdraws and is gone 0.6 s after it (Occluder.follow_s).
+    times = 1.7 + np.arange(0.0, 2.0, 1 / 30)
+    found = []
+    for i, t in enumerate(times):
+        out = det.process(i + 1, t, ren.render(at[None], _rot(1), np.ones((1, 1), bool), np.array([t])))
+        found.append(float(_match(out, at)[0][0]))
+    seen = np.isfinite(found)
+    # The model is updated every DetectConfig.update_every_s (0.25 s); the ghost of the arm is
+    # re-seeded once it has stayed still between two updates, so the ball is out of the model
+    # within 0.75 s of the arm's going, and must be seen from then on.
+    assert seen[int(round(0.75 * 30)) :].all(), found
+    assert np.nanmax(np.where(seen, found, np.nan)) < 2.5, found

@@ -1159,6 +1159,9 @@ class BallDetector:
         # demand by :meth:`_reaching`), keyed by the frame's identity.
         self._reach: tuple[np.ndarray, np.ndarray] | None = None
         self._since_update = 0.0
+        # Boxes (u0, v0, u1, v1) px where the last background update replaced the model
+        # outright (:attr:`vision.background.Background.revised`), for the next frame.
+        self._revisit: tuple[tuple[int, int, int, int], ...] = ()
         self._last_t: float | None = None
         self._white_v: float | None = None
         cs = int(config.cell_px)
@@ -1234,6 +1237,12 @@ class BallDetector:
             cell_changed = (diff > self.config.change_dn) & zone_cells
         changed = np.zeros(self._zone_small.shape, bool)
         changed[j0:j1, i0:i1] = cell_changed
+        # Where the last update took a hidden ball out of the background the frame need not
+        # have changed, yet the ball now stands out: those cells are looked at again.
+        for u0, v0, u1, v1 in self._revisit:
+            cells = (slice(v0 // cs, -(-v1 // cs)), slice(u0 // cs, -(-u1 // cs)))
+            changed[cells] |= self._zone_small[cells]
+        self._revisit = ()
         dt = 0.0 if self._last_t is None else max(t_s - self._last_t, 0.0)
         self._last_t = t_s
         if changed.any():
@@ -1245,6 +1254,7 @@ class BallDetector:
         if self._since_update >= self.config.update_every_s:
             self._since_update = 0.0
             self.background.update(img, self._protect_mask(det))
+            self._revisit = self.background.revised
         self._prev = det
         return det
 
