@@ -391,8 +391,8 @@ def test_hidden_ball_rules_follow_what_the_detector_sees_and_what_the_model_hold
     img = np.clip(np.round(f), 0, 255).astype(np.float32)
     cleaned, filled, left, weak = _clean(img, zone, cloth, 20.0)
     none = np.zeros((h, w), bool)
-    hidden = _hidden_balls(img, cleaned, filled, left, weak, none, 20.0, 11.0)
+    hidden = _hidden_balls(img, img, cleaned, filled, left, weak, none, 20.0, 11.0)
     assert hidden[ball].all() and not hidden[~filled].any()
     disc = (uu - 180) ** 2 + (vv - 110) ** 2 <= 6**2  # smaller than the ball: a sliver outside
-    assert not _hidden_balls(img, cleaned, filled, left, weak, disc, 20.0, 11.0).any()
-    assert not _hidden_balls(cleaned, cleaned, filled, left, weak, none, 20.0, 11.0).any()
+    assert not _hidden_balls(img, img, cleaned, filled, left, weak, disc, 20.0, 11.0).any()
+    assert not _hidden_balls(cleaned, img, cleaned, filled, left, weak, none, 20.0, 11.0).any()
