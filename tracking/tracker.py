@@ -587,7 +587,7 @@ class Tracker:
         for tr, xs in kept:
             pieces.setdefault(tr.track_id, []).append((tr, xs))
         first = {tid: min(ps, key=lambda p: p[0].times[0]) for tid, ps in pieces.items()}
-        last = {tid: max(ps, key=lambda p: p[0].times[-1]) for tid, ps in pieces.items()}
+        last = {tid: max(ps, key=lambda p: p[0].last_seen_frame) for tid, ps in pieces.items()}
 
         def identity(tr: _Track) -> tuple[str, str, str] | None:
             kind = tr.kind()
@@ -608,12 +608,13 @@ class Tracker:
             t_new, z_new = tr.times[0], np.asarray(tr.zs[0], dtype=float)
             cands = []
             for old, (otr, oxs) in last.items():
-                gap = t_new - otr.times[-1]
+                k = len(otr.seen) - 1 - otr.seen[::-1].index(1)  # its last detection
+                gap = t_new - otr.times[k]
                 if old == tid or old in taken or not 0.0 < gap <= cfg.coast_s \
                         or otr.ended == "pocket" or identity(otr) != who:
                     continue
-                v_old = float(np.hypot(oxs[-1, 1], oxs[-1, 3]))
-                z_old = np.asarray(otr.zs[-1], dtype=float)
+                v_old = float(np.hypot(oxs[k, 1], oxs[k, 3]))
+                z_old = np.asarray(otr.zs[k], dtype=float)
                 if v_old >= cfg.respot_rest_speed_mm_s and float(np.hypot(*(z_new - z_old))) \
                         <= v_old * gap + self.table.ball_diameter_mm:
                     cands.append(old)
