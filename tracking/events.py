@@ -878,10 +878,16 @@ def _respots(ball: _Ball, diameter_mm: float) -> list[float]:
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
     """Detection noise per axis (mm), (white, at the fits' scale).
 
-    *White*: from third differences of consecutive raw samples. A quadratic path has zero third
-    difference, so for white noise of variance s^2 the third difference has variance 20 s^2
-    (binomial weights 1, 3, 3, 1); the median absolute value is 0.674 of its standard deviation.
-    Contacts spoil a few differences; the median ignores them.
+    *White*: from third differences of consecutive raw samples of the ball's motions. A
+    quadratic path has zero third difference, so for white noise of variance s^2 the third
+    difference has variance 20 s^2 (binomial weights 1, 3, 3, 1); the median absolute value is
+    0.674 of its standard deviation. Contacts spoil a few differences; the median ignores them.
+    Samples at rest are left out: the detector carries a resting ball's detection over
+    unchanged from frame to frame (``vision.detect``, step 2), so their differences are zero
+    and, on a track resting longer than it moves, would put the noise of the moving samples
+    the fits use at nothing (a blue ball resting 6 s, then moving 4 s with its detections
+    missing every few frames in a dim corner at 30 fps: 0.07 mm, against 1.3 mm from its
+    moving samples alone; ``benchmarks/analyse_accuracy.py --extra``, phone_wide_30fps).
 
     *At the fits' scale*: real detection errors also drift slowly along a path (a blur streak's
     or a shadow's bias changing with position and speed), which third differences of
@@ -898,8 +904,11 @@ def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
     ok = np.isfinite(r[:, 0])
     consecutive = np.diff(ball.frame) == 1
     d3 = r[3:] - 3 * r[2:-1] + 3 * r[1:-2] - r[:-3]
+    moving = np.zeros(len(r), bool)
+    for i0, i1 in ball.moves:
+        moving[i0:i1 + 1] = True
     good = ok[3:] & ok[2:-1] & ok[1:-2] & ok[:-3] & consecutive[2:] & consecutive[1:-1] \
-        & consecutive[:-2]
+        & consecutive[:-2] & moving[3:] & moving[:-3]
     d3 = d3[good].ravel()
     if len(d3) < 10:
         return cfg.meas_sigma_mm, cfg.meas_sigma_mm

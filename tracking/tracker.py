@@ -102,6 +102,12 @@ Method
   of where it rested is the same ball whatever its labels read and whatever else is moving: a
   ball at rest stays put until struck, and two balls cannot share a spot; its new track takes
   back the old id (``Tracker._rested_here``).
+* Offline, a ball lost while moving (seen with more doubt moving than at rest, so that its
+  next detections after a gap start a new track) keeps its id when the new track
+  appears moving within ``coast_s``, within what the old ball's speed covers in the gap, with
+  the same known identity, and no other lost ball qualifies (``Tracker._resumed_ids``); hands
+  and cues are left out before that test. The frames it was lost for get estimated rows
+  (seen 0) along the chord between its ends (``Tracker._resumed_gap``).
 * Offline, each track is cut at its breakpoints and the Rauch-Tung-Striebel smoother
   (``tracking.kalman.rts_smooth``) runs within each piece, so smoothing never blurs a contact.
 """
@@ -391,6 +397,7 @@ class Tracker:
         self._next_id = 0
         self._frame: int | None = None
         self._t: float | None = None
+        self._frame_times: dict[int, float] = {}  # every processed frame's time, s
         self._gate = float(chi2.ppf(self.config.gate_prob, 2))
         self._maneuver = float(chi2.ppf(self.config.maneuver_prob, 2))
         # Unseen this long, a ball's gate is wider than a ball: the white-acceleration spread
@@ -440,6 +447,7 @@ class Tracker:
             raise ValueError(f"frame {frame} at t = {t} s is not after the previous frame "
                              f"(t = {self._t} s); feed frames in time order")
         self._frame, self._t = frame, t
+        self._frame_times[frame] = t
 
         live = self._live
         preds = {tr.key: self._predict(tr, t) for tr in live}
@@ -504,21 +512,27 @@ class Tracker:
     def result(self) -> pd.DataFrame:
         """The smoothed tracks DataFrame (columns ``TRACK_COLUMNS + EXTRA_COLUMNS``), sorted by
         frame then track. Tracks still on the table lose their undetected tail, as ended ones do.
+        A ball lost while moving and found again along its way keeps its id
+        (:meth:`_resumed_ids`).
         """
-        rows = []
+        kept = []
         for tr in self._tracks:
             if not tr.confirmed:
                 continue
             tr.trim_unseen_tail()
             if not tr.frames or not self._moves_like_a_ball(tr):
                 continue
-            xs = self._smooth(tr)
+            kept.append((tr, self._smooth(tr)))
+        same = self._resumed_ids(kept)
+        rows = [g for g in (self._resumed_gap(tr, xs, kept, same) for tr, xs in kept
+                            if tr.track_id in same) if len(g)]
+        for tr, xs in kept:
             n = len(tr.frames)
             z = np.array([zz for zz in tr.zs], dtype=float)
             rows.append(pd.DataFrame({
                 "frame": np.asarray(tr.frames, dtype=np.int64),
                 "t": np.asarray(tr.times, dtype=float),
-                "track": np.full(n, tr.track_id, dtype=np.int64),
+                "track": np.full(n, same.get(tr.track_id, tr.track_id), dtype=np.int64),
                 "ball": "cue" if tr.kind() == "cue" else "object",
                 "x": xs[:, 0], "y": xs[:, 2], "vx": xs[:, 1], "vy": xs[:, 3],
                 "seen": np.asarray(tr.seen, dtype=np.int64),
@@ -533,16 +547,125 @@ class Tracker:
 
     def endings(self) -> pd.DataFrame:
         """Ended tracks: columns ``track, frame, t, x, y, reason`` (``pocket`` or ``lifted``) at
-        the last detection."""
-        rows = [dict(track=tr.track_id, frame=tr.frames[-1], t=tr.times[-1], x=tr.xs[-1][0],
-                     y=tr.xs[-1][2], reason=tr.ended)
-                for tr in self._tracks if tr.confirmed and tr.ended and tr.frames
-                and self._moves_like_a_ball(tr)]
+        the last detection (ids as in :meth:`result`)."""
+        kept = [(tr, self._smooth(tr)) for tr in self._tracks
+                if tr.confirmed and tr.frames and self._moves_like_a_ball(tr)]
+        same = self._resumed_ids(kept)
+        rows = [dict(track=same.get(tr.track_id, tr.track_id), frame=tr.frames[-1],
+                     t=tr.times[-1], x=tr.xs[-1][0], y=tr.xs[-1][2], reason=tr.ended)
+                for tr, _ in kept if tr.ended]
         cols = ["track", "frame", "t", "x", "y", "reason"]
         if not rows:
             return pd.DataFrame({c: pd.Series(dtype=d) for c, d in zip(
                 cols, ["int64", "int64", "float64", "float64", "float64", "str"])})
         return pd.DataFrame(rows, columns=cols)
+
+    def _resumed_gap(self, tr: _Track, xs: np.ndarray, kept: list[tuple[_Track, np.ndarray]],
+                     same: dict[int, int]) -> pd.DataFrame:
+        """Rows (``TRACK_COLUMNS + EXTRA_COLUMNS``, ``seen`` 0) for the processed frames between
+        the ball's last detection under its old id and the first of ``tr``, the track that
+        resumes it (:meth:`_resumed_ids`); ``xs`` (N, 4) ``tr``'s smoothed states, ``kept`` the
+        tracks of :meth:`result` (unseen tails trimmed) with theirs.
+
+        The ball is on the table all along, so the results format wants a row for each of
+        those frames (``shared/spec/results-format.md``: a position only estimated has seen 0),
+        as the tracker gives any ball it coasts across a miss; and the event finder must not
+        take the gap for a ball lifted off the table (``tracking.events._respots``). Positions
+        run along the chord between the two smoothed ends at its mean velocity: a ball is
+        often lost at a contact (a collision's blur and a second ball beside it), where its
+        path turns a corner, and the chord stays within the corner's sagitta of it, while a
+        cubic matched to both ends' velocities swings outside the corner (a 60 degree turn
+        at 900 mm/s lost for six frames at 30 fps, ``tests/test_tracker.py``, noise seeds
+        7-9: 19.9-21.6 mm off at most, against 7.7-8.5 mm for the chord).
+        """
+        new_id = same[tr.track_id]
+        f1, t1 = tr.frames[0], tr.times[0]
+        before = [(otr, oxs) for otr, oxs in kept if otr is not tr
+                  and same.get(otr.track_id, otr.track_id) == new_id and otr.frames[-1] < f1]
+        otr, oxs = max(before, key=lambda p: p[0].frames[-1])
+        f0, t0 = otr.frames[-1], otr.times[-1]
+        frames = [f for f in range(f0 + 1, f1) if f in self._frame_times]
+        ts = np.array([self._frame_times[f] for f in frames], dtype=float)
+        p0, p1 = oxs[-1, [0, 2]], xs[0, [0, 2]]
+        vel = (p1 - p0) / (t1 - t0)
+        pos = p0 + (ts - t0)[:, None] * vel
+        n = len(frames)
+        return pd.DataFrame({
+            "frame": np.asarray(frames, dtype=np.int64), "t": ts,
+            "track": np.full(n, new_id, dtype=np.int64),
+            "ball": "cue" if tr.kind() == "cue" else "object",
+            "x": pos[:, 0], "y": pos[:, 1], "vx": np.full(n, vel[0]), "vy": np.full(n, vel[1]),
+            "seen": np.zeros(n, dtype=np.int64), "colour": tr.label(tr.colours, ""),
+            "pattern": tr.label(tr.patterns, "unknown"),
+            "x_meas": np.full(n, np.nan), "y_meas": np.full(n, np.nan)})
+
+    def _resumed_ids(self, kept: list[tuple[_Track, np.ndarray]]) -> dict[int, int]:
+        """Ids of balls lost while moving and found again along their way: {new id: old id}.
+
+        ``kept``: the tracks that move like balls (:meth:`_moves_like_a_ball`; hands, arms and
+        cues are already left out), each with its smoothed states (N, 4) ``[x, vx, y, vy]``.
+        While a ball is unseen the tracker finds it again only by a detection inside its gate,
+        and after a gap longer than the gate takes to outgrow a ball only by a sure one
+        (``_assign``): a ball seen with more doubt moving than at rest (dim, streaked by an
+        open shutter) is not sure again after a gap, so its next detections start a new track
+        (phone_wide_30fps of ``benchmarks/analyse_accuracy.py --extra``: a blue ball missed
+        for five frames after a collision, found again at quality 0.21-0.36 against 0.57 at
+        rest). The new track
+        is that ball (one ball, one id: ``shared/spec/results-format.md``) when its own motion
+        and labels say so: it appears moving (smoothed speed at its first detection at least
+        ``respot_rest_speed_mm_s``) within ``coast_s`` (the longest a track coasts unseen) of
+        the old id's last detection, at which the old ball was moving too and not at a pocket,
+        no farther from that detection than the old ball's speed there covers in the gap plus
+        a diameter (on the cloth a ball only slows between contacts, Alciatore 2004; a
+        collision turns it without speeding it up unless the other ball was the faster, a case
+        left to a new id; the diameter is the slack a strike from rest gets in
+        ``tracking.events._respots``), and with the same known
+        identity (the cue ball; or an object ball of the same pattern, solid or stripe, and the
+        same colour), of which exactly one old id qualifies (Wojke, Bewley & Paulus 2017:
+        appearance recovers an identity after a gap). A hand cannot take an id so: it does not
+        move like a ball and is left out before this test.
+        """
+        cfg = self.config
+        pieces: dict[int, list[tuple[_Track, np.ndarray]]] = {}
+        for tr, xs in kept:
+            pieces.setdefault(tr.track_id, []).append((tr, xs))
+        first = {tid: min(ps, key=lambda p: p[0].times[0]) for tid, ps in pieces.items()}
+        last = {tid: max(ps, key=lambda p: p[0].last_seen_frame) for tid, ps in pieces.items()}
+
+        def identity(tr: _Track) -> tuple[str, str, str] | None:
+            kind = tr.kind()
+            if kind == "cue":
+                return ("cue", "", "")
+            colour, pattern = tr.label(tr.colours, ""), tr.label(tr.patterns, "unknown")
+            if kind != "object" or not colour or pattern == "unknown":
+                return None
+            return (kind, pattern, colour)
+
+        out: dict[int, int] = {}
+        taken: set[int] = set()
+        for tid in sorted(pieces, key=lambda i: first[i][0].times[0]):
+            tr, xs = first[tid]
+            who = identity(tr)
+            if who is None or float(np.hypot(xs[0, 1], xs[0, 3])) < cfg.respot_rest_speed_mm_s:
+                continue
+            t_new, z_new = tr.times[0], np.asarray(tr.zs[0], dtype=float)
+            cands = []
+            for old, (otr, oxs) in last.items():
+                k = len(otr.seen) - 1 - otr.seen[::-1].index(1)  # its last detection
+                gap = t_new - otr.times[k]
+                if old == tid or old in taken or not 0.0 < gap <= cfg.coast_s \
+                        or otr.ended == "pocket" or identity(otr) != who:
+                    continue
+                v_old = float(np.hypot(oxs[k, 1], oxs[k, 3]))
+                z_old = np.asarray(otr.zs[k], dtype=float)
+                if v_old >= cfg.respot_rest_speed_mm_s and float(np.hypot(*(z_new - z_old))) \
+                        <= v_old * gap + self.table.ball_diameter_mm:
+                    cands.append(old)
+            if len(cands) == 1:
+                out[tid] = out.get(cands[0], cands[0])
+                taken.add(cands[0])
+                log.debug("track %s continues track %s (lost while moving)", tid, cands[0])
+        return out
 
     # --- internals ----------------------------------------------------------------------------
     def _moves_like_a_ball(self, tr: _Track) -> bool:
