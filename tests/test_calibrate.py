@@ -729,3 +729,28 @@ def test_profile_noise_against_known_white_noise():
     for sigma in (0.3, 1.0, 3.0):
         prof = clean[None] + rng.normal(0, sigma, (200, len(s)))
         assert abs(_profile_noise(prof, 1.0) / sigma - 1) < 0.08
+
+
+@pytest.mark.parametrize("n_still", [1, 15, 16, 17, 20, 31, 33, 100, 285, 653, 1000, 1999])
+def test_still_sample_is_every_power_of_two_frame(n_still):
+    # Arithmetic (the rule _keep_still states): of n still frames the kept sample is every
+    # stride-th frame from the first, stride the power of two at which it last grew, so it holds
+    # all n while n <= max_still_frames and otherwise between max // 2 + 1 and max frames, the
+    # last within two strides of the end. Before the thinning kept every other of the frames
+    # already on the doubled grid, 285 still frames left 5 of 15 for the median.
+    from vision.calibrate import _keep_still, _Segment
+
+    config = CalibConfig()
+    seg = _Segment(t0=0.0)
+    frame = np.zeros((2, 2, 3), np.uint8)
+    for i in range(n_still):
+        _keep_still(seg, i / 30.0, lambda: frame, config)
+    kept = [s[2] for s in seg.stills]
+    mx = config.max_still_frames
+    if n_still <= mx:
+        assert kept == list(range(n_still))
+        return
+    stride = kept[1] - kept[0]
+    assert stride & (stride - 1) == 0 and kept == list(range(0, kept[-1] + 1, stride))
+    assert mx // 2 + 1 <= len(kept) <= mx
+    assert kept[-1] >= n_still - 2 * stride

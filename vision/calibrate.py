@@ -473,7 +473,8 @@ def _keep_still(seg: _Segment, t: float, full: Callable[[], np.ndarray], config:
         return
     seg.stills.append((t, np.array(full(), copy=True), seg.seen_still - 1))
     if len(seg.stills) > config.max_still_frames:
-        seg.stills = [s for s in seg.stills if s[2] % (2 * stride) == 0] or seg.stills[-config.max_still_frames:]
+        # stride has just doubled, so the frames on its grid are every other one kept so far.
+        seg.stills = [s for s in seg.stills if s[2] % stride == 0] or seg.stills[-config.max_still_frames:]
 
 
 def _ecc(ref: np.ndarray, img: np.ndarray) -> np.ndarray | None:
