@@ -754,3 +754,30 @@ def test_still_sample_is_every_power_of_two_frame(n_still):
     assert stride & (stride - 1) == 0 and kept == list(range(0, kept[-1] + 1, stride))
     assert mx // 2 + 1 <= len(kept) <= mx
     assert kept[-1] >= n_still - 2 * stride
+
+
+def test_serially_correlated_nose_scatter_against_ar1_variance():
+    # Analytic (Box & Jenkins 1970, ch. 3): the mean of m samples of a first-order autoregression
+    # with lag-one correlation phi and sd sigma has variance sigma^2 / m^2 sum_ij phi^|i-j|, about
+    # (1 + phi) / (1 - phi) times the independent sigma^2 / m. The scatter term of the calibration's
+    # covariance, with the correlation estimated from the residuals themselves, must state that
+    # variance within 20 % on average over 300 draws of 80 points (the lag-one estimate's small-
+    # sample bias, about -(1 + 3 phi) / m, costs some 10 %); it counted sigma^2 / m before, 5 times
+    # too little at phi = 0.7. White residuals must stay at sigma^2 / m.
+    from vision.calibrate import _nose_blocks, _scatter_cov
+
+    rng = np.random.default_rng(4)
+    m, sigma = 80, 0.6
+    M = np.full((1, m), 1.0 / m)
+    for phi in (0.0, 0.4, 0.7):
+        exact = sigma**2 / m**2 * float(np.sum(phi ** np.abs(np.subtract.outer(np.arange(m), np.arange(m)))))
+        stated = []
+        for _ in range(300):
+            e = np.empty(m)
+            e[0] = rng.normal(0, sigma)
+            for i in range(1, m):
+                e[i] = phi * e[i - 1] + rng.normal(0, sigma * math.sqrt(1 - phi**2))
+            blocks = _nose_blocks([("bottom", np.zeros((m, 2)))], e, sigma)
+            stated.append(_scatter_cov(M, np.full(m, sigma), blocks)[0, 0])
+        assert abs(np.mean(stated) / exact - 1) < 0.2, (phi, np.mean(stated) / exact)
+

@@ -52,7 +52,8 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    within 8 mm of the nose plane, so the positions of balls depend on that trade only weakly, and
    ``camera_height_mm`` pins it if known.
 7. **Uncertainty** (:func:`_uncertainty`): the linearised covariance of the fit, with the table's
-   tolerances and a nose-locator bias counted, gives standard deviations of the camera's height
+   tolerances, a nose-locator bias and the serial correlation of the nose points along each rail
+   (a codec errs in stretches of neighbouring profiles) counted, gives standard deviations of the camera's height
    and of ball positions; a view that does not fix the height to ``max_height_sd_rel`` is
    reported as such (``quality["height_determined"]``, the check image's banner) instead of
    passing a focal length it cannot know for a measured one.
@@ -1227,6 +1228,52 @@ def _table_varied(table: TableSpec, d_mm: np.ndarray) -> TableSpec:
     )
 
 
+def _nose_blocks(noses, residuals: np.ndarray, sd: float) -> list[tuple[int, int, float]]:
+    """Serial correlation of the nose residuals along each rail: (first index into the
+    residuals, number of points, lag-one autocorrelation ``phi``) per rail with at least 8 points.
+
+    The located noses do not err independently point by point: a video codec quantises the
+    narrow dark band under the nose in transform blocks, so neighbouring profiles share their
+    error (on the extra set's H.264 clips at crf 27-28 the errors against the renderer's truth
+    run in stretches of 5-15 profiles of up to 1-2 px; on uncompressed renders they are nearly
+    white). Counting them as independent understates the scatter's effect on the camera. Each
+    rail's residuals, in their order along the rail (station order, :func:`_nose_points`),
+    winsorised at 3 ``sd`` so an outlier the robust loss discounted does not count twice, are
+    modelled as a first-order autoregression, correlation ``phi^l`` at lag l (Box & Jenkins, Time
+    Series Analysis, 1970, ch. 3; on the extra set's dim and phone clips the rails' lag-one
+    correlations are 0.4-0.8 and the next two lags follow ``phi^l`` within 0.15), with ``phi``
+    their lag-one sample autocorrelation (biased estimator, so below 1), taken as 0 when
+    negative. Lags count points kept, so a dropped profile shortens the gap it spans."""
+    out, start = [], 0
+    for _, pts in noses:
+        m = len(pts)
+        if m >= 8:
+            e = np.clip(residuals[start : start + m], -3 * sd, 3 * sd)
+            e = e - e.mean()
+            g0 = float(e @ e)
+            phi = max(0.0, float(e[1:] @ e[:-1]) / g0) if g0 > 0 else 0.0
+            out.append((start, m, phi))
+        start += m
+    return out
+
+
+def _scatter_cov(M: np.ndarray, noise: np.ndarray, blocks: list[tuple[int, int, float]]) -> np.ndarray:
+    """``M cov(r) M^T`` for residuals ``r`` with standard deviations ``noise`` (N,), independent
+    except along each rail's run of nose points in ``blocks`` (:func:`_nose_blocks`), where
+    ``cov(r_i, r_j) = phi^|i - j| s_i s_j``: the sandwich form of a linear estimate's covariance
+    under serial correlation (Hartley & Zisserman, Multiple View Geometry, 2nd ed., sec. 5.2.3,
+    with a full measurement covariance). ``M`` (K, N)."""
+    Ms = M * noise
+    out = Ms @ Ms.T
+    for start, m, phi in blocks:
+        if phi <= 0:
+            continue
+        lag = np.abs(np.subtract.outer(np.arange(m), np.arange(m)))
+        B = Ms[:, start : start + m]
+        out += B @ (phi**lag - np.eye(m)) @ B.T
+    return out
+
+
 def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm: np.ndarray, table: TableSpec,
                  sight_w: float, height_prior: "HeightPrior | float | None", config: CalibConfig,
                  nose_w: dict[str, float] | None = None) -> dict[str, Any]:
@@ -1238,9 +1285,10 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     of the fit's weighted residuals in its parameters ``theta`` (:func:`_residuals`, central
     differences), ``G = (J^T J)^-1 J^T`` maps a change of the residuals to a change of the
     estimate, so
-    ``cov(theta) = G diag(sigma^2) G^T + (G J_nu) diag(sd_nu^2) (G J_nu)^T``: the first term from
-    the scatter of the nose points and sights (``sigma`` each one's robust spread, floored at
-    0.05 px for noses and 0.1 px for sights), the second from what the model assumes about the
+    ``cov(theta) = G S G^T + (G J_nu) diag(sd_nu^2) (G J_nu)^T``: the first term from the scatter
+    of the nose points and sights (``S`` their covariance: each one's robust spread ``sigma``,
+    floored at 0.05 px for noses and 0.1 px for sights, independent but for the serial correlation
+    of the nose points along each rail, :func:`_nose_blocks` and :func:`_scatter_cov`), the second from what the model assumes about the
     table, ``nu``: its length and width, nose height, the sights' height and setback, and a bias
     of the nose locator (one shared by all four sides, the same locator on the same cushions,
     plus one per side, each ``nose_bias_sd_px / sqrt 2``), with the standard deviations of
@@ -1306,10 +1354,11 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     if height_prior is not None:
         noise.append(np.array([height_prior.noise]))
     noise = np.concatenate(noise)
+    blocks = _nose_blocks(noses, rn, sd_nose)
     sd_nu = np.array([config.table_size_sd_mm] * 2 + [config.nose_height_sd_mm, config.rail_top_sd_mm, config.sight_setback_sd_mm]
                      + [config.nose_bias_sd_px / math.sqrt(2)] * 5)
     A = G @ Jn  # the estimate moves by -A d_nu when the table differs by d_nu
-    cov = (G * noise**2) @ G.T + (A * sd_nu**2) @ A.T
+    cov = _scatter_cov(G, noise, blocks) + (A * sd_nu**2) @ A.T
 
     cam = cam_of(x)
     R = table.radius_mm
@@ -1327,7 +1376,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     D = jac(lambda th: derived(th, nu0), x, steps_t)
     Dn = jac(lambda v: derived(x, v), nu0, np.array([0.1] * 5 + [0.01] * 5))
     B = Dn - D @ A
-    var = np.diag((D @ G * noise**2) @ (D @ G).T + (B * sd_nu**2) @ B.T)
+    var = np.diag(_scatter_cov(D @ G, noise, blocks) + (B * sd_nu**2) @ B.T)
     h_sd = float(math.sqrt(max(var[0], 0.0)))
     ball_var = var[1:].reshape(-1, 2).sum(axis=1)
     height = float(cam.centre_mm[2])
