@@ -338,6 +338,35 @@ def test_arm_over_the_table_is_no_bump():
     assert [round(t, 2) for t, _ in cal.camera_changes] == [0.0]
 
 
+def test_quarters_follow_a_whole_picture_motion_not_one_quarter_change(rendered):
+    """``_moves_everywhere`` takes a motion for the camera's only when every quarter, aligned on
+    its own, moves with it: a shift of the whole rendered picture (2 px, 1.5 px) passes; three
+    balls put down in one quarter pull the whole-image alignment (ECC) but the other quarters
+    stay where they were, so it fails (a knocked camera moves everything: common practice)."""
+    from vision.calibrate import _ecc, _edge_small, _moves_everywhere
+
+    table, cam, img = rendered["green9"]
+    grey = cv2.cvtColor(img, cv2.COLOR_BGR2GRAY).astype(np.float32)
+    h, w = grey.shape
+    scale = 320.0 / w
+    rng = np.random.default_rng(3)
+
+    def edge(g):
+        noisy = g + rng.normal(0.0, 3.0, g.shape).astype(np.float32)
+        return _edge_small(cv2.resize(noisy, None, fx=scale, fy=scale, interpolation=cv2.INTER_AREA))
+
+    ref = edge(grey)
+    shifted = edge(cv2.warpAffine(grey, np.float32([[1, 0, 2.0], [0, 1, -1.5]]), (w, h), borderMode=cv2.BORDER_REPLICATE))
+    warp = _ecc(ref, shifted)
+    assert warp is not None and _moves_everywhere(ref, shifted, warp, 1.0)
+    balls = grey.copy()
+    for fu, fv in ((0.2, 0.2), (0.3, 0.35), (0.4, 0.15)):
+        cv2.circle(balls, (int(fu * w), int(fv * h)), int(table.radius_mm * cam.K[0, 0] / 2500), 230.0, -1)
+    placed = edge(balls)
+    pull = _ecc(ref, placed)
+    assert pull is not None and not _moves_everywhere(ref, placed, pull, 1.0)
+
+
 def test_command_writes_calibration_and_check(bump_clip, command_on_bump_clip):
     _, table, _ = bump_clip
     code, out, check, stdout = command_on_bump_clip
