@@ -87,10 +87,10 @@ order pin it to the first one.
 **Camera bumps**: every ``bump_every_s`` a downscaled gradient image of the frame is aligned to
 the reference (``cv2.findTransformECC`` with a Euclidean motion, Evangelidis & Psarakis, IEEE
 TPAMI 30(10), 2008); a motion of the table's outline by more than ``bump_threshold_px`` that lasts
-``bump_persist`` samples and that aligns each of the image's four quarters better than no motion
-does (an arm or cue held over the table pulls the whole-image alignment but leaves the other
-quarters unmoved; balls are too small) starts a new segment,
-dated to the first frame after the last unmoved sample that shows it; each segment gets its own
+``bump_persist`` samples and that each of the image's four quarters, aligned on its own, follows
+(an arm or cue held over the table, or balls moved since the reference, pull the whole-image
+alignment but leave the other quarters where they were) starts a new segment, dated to the
+first frame after the last unmoved sample that shows it; each segment gets its own
 background and camera (same lens, new pose). While no sample shows motion only every
 ``bump_persist``-th is aligned, the others only when it shows motion (:func:`_collect`), with
 exactly the result of aligning every sample.
@@ -165,7 +165,7 @@ class CalibConfig:
       resulting ball-position standard deviation (worst over the table) exceeds it;
     * bumps: ``detect_bumps``, ``bump_every_s``, ``bump_threshold_px`` (full-resolution motion of
       the table's outline), ``bump_persist`` samples, ``bump_quarter_share`` (share of the
-      image's four quarters the motion must align better than no motion, see
+      image's four quarters, each aligned on its own, that must follow the motion, see
       ``_moves_everywhere``);
     * check image: ``check_px_per_mm``.
     """
