@@ -1266,3 +1266,33 @@ def test_ball_under_the_cue_in_the_first_frame_is_found_once_the_arm_has_gone():
     # within 0.75 s of the arm's going, and must be seen from then on.
     assert seen[int(round(0.75 * 30)) :].all(), found
     assert np.nanmax(np.where(seen, found, np.nan)) < 2.5, found
+
+
+# Coloured solids (red, yellow, purple, maroon) resting on green cloth, each a further
+# (0.37, 0.53) mm along, so their outlines fall at every phase of the 2-pixel chroma grid.
+CHROMA_CAM = Camera.overhead(NINE_FOOT, 2600.0, (1280, 720), offset_mm=(100, -80), roll_deg=1.0, dist=(-0.1, 0.02, 0, 0, 0))
+CHROMA_COLOURS = ((35, 30, 195), (20, 195, 235), (105, 40, 85), (40, 30, 120))
+
+
+@pytest.mark.xfail(strict=True, reason="issue 3: the outline is placed by colour, which H.264's 4:2:0 "
+                   "sampling keeps at half resolution: these solids' median error is 0.50 mm after a "
+                   "lossless encode, 0.20 mm on the same frame unencoded; no luma-placed outline tried "
+                   "so far (session 9) beat the colour's on the bench scenes")
+def test_coloured_balls_are_placed_through_the_codecs_half_resolution_colour(tmp_path):
+    from vision.video import iter_frames, write_video
+
+    L, W = NINE_FOOT.length_mm, NINE_FOOT.width_mm
+    k = np.arange(16)
+    at = np.column_stack([300 + (k % 4) * (L - 600) / 3 + 0.37 * k, 250 + (k // 4) * (W - 500) / 3 + 0.53 * k])
+    balls = tuple(BallLook(str(i + 1), "solid", CHROMA_COLOURS[i % 4]) for i in range(16))
+    frame = Renderer(NINE_FOOT, CHROMA_CAM, Look(noise_sigma=2.0), balls, seed=4).render(at[None], _rot(16), np.ones((1, 16), bool), np.zeros(1))
+    clip = tmp_path / "chroma.mp4"
+    write_video(clip, [frame, frame], 60, codec="h264", quality=0)  # lossless but for the 4:2:0 chroma
+    img = next(iter(iter_frames(clip)))[2]
+    err, _ = _match(BallDetector(CHROMA_CAM, NINE_FOOT).process(0, 0.0, img), at)
+    # Renderer's truth. On the unencoded frame these balls' median error is 0.20 mm (measured,
+    # session 9; 0.50 after this encode, 1.29 at crf 23); 0.35 mm allows the codec 0.15 mm, a
+    # sixteenth of a pixel at about 2.4 mm per pixel here, for the rounding of the colour
+    # conversion (a judgment, not a published figure): the luma keeps full resolution, so a
+    # lossless encode need cost the outline little more.
+    assert np.all(np.isfinite(err)) and np.median(err) <= 0.35, err
