@@ -123,7 +123,11 @@ def main(argv=None) -> int:
     if not names:
         print(f"no clip has both a truth folder in {args.truth} and detections in {args.results}", file=sys.stderr)
         return 2
-    E = pd.concat([clip_errors(n, args.results, args.truth) for n in names], ignore_index=True)
+    try:
+        E = pd.concat([clip_errors(n, args.results, args.truth) for n in names], ignore_index=True)
+    except (ValueError, OSError) as exc:
+        print(f"rail_bias: {exc}", file=sys.stderr)
+        return 2
     if args.csv is not None:
         E.to_csv(args.csv, index=False)
     by_gap, by_nadir = summarise(E)
