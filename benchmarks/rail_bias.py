@@ -37,6 +37,7 @@ from scipy.optimize import linear_sum_assignment
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
+from vision.atomic import atomic_path  # noqa: E402
 from vision.calibfile import read_calibration  # noqa: E402
 from vision.table import rail_direction, rail_inward_normal  # noqa: E402
 
@@ -51,11 +52,19 @@ REST_MM_S = 1.0
 BLUR_BANDS_MM = (5.0, 20.0)
 
 
-def _detections(results: Path, name: str) -> pd.DataFrame:
-    """A clip's detections (``vision.detect.COLUMNS``) from either layout of ``results``."""
+def _detections_file(results: Path, name: str) -> Path | None:
+    """A clip's detections file in either layout of ``results``, or None."""
     for p in (results / name / "detections.csv", results / f"{name}.detections.csv"):
         if p.is_file():
-            return pd.read_csv(p)
+            return p
+    return None
+
+
+def _detections(results: Path, name: str) -> pd.DataFrame:
+    """A clip's detections (``vision.detect.COLUMNS``) from either layout of ``results``."""
+    p = _detections_file(results, name)
+    if p is not None:
+        return pd.read_csv(p)
     raise ValueError(f"no detections of {name!r} in {results}; give a folder of analyse_accuracy.py --out or detect_accuracy.py --save")
 
 
@@ -117,9 +126,8 @@ def main(argv=None) -> int:
     ap.add_argument("names", nargs="*", help="clip names (default: every NAME.truth in TRUTH with detections in RESULTS)")
     ap.add_argument("--csv", type=Path, default=None, help="also write the per-detection rows here")
     args = ap.parse_args(argv)
-    names = args.names or sorted(p.name[: -len(".truth")] for p in args.truth.glob("*.truth")
-                                 if (args.results / p.name[: -len(".truth")] / "detections.csv").is_file()
-                                 or (args.results / f"{p.name[: -len('.truth')]}.detections.csv").is_file())
+    names = args.names or sorted(n for n in (p.name[: -len(".truth")] for p in args.truth.glob("*.truth"))
+                                 if _detections_file(args.results, n) is not None)
     if not names:
         print(f"no clip has both a truth folder in {args.truth} and detections in {args.results}", file=sys.stderr)
         return 2
@@ -129,7 +137,8 @@ def main(argv=None) -> int:
         print(f"rail_bias: {exc}", file=sys.stderr)
         return 2
     if args.csv is not None:
-        E.to_csv(args.csv, index=False)
+        with atomic_path(args.csv) as tmp:
+            E.to_csv(tmp, index=False)
     by_gap, by_nadir = summarise(E)
     with pd.option_context("display.width", 200, "display.max_rows", 1000):
         print("error by gap to the nearest cushion nose (mm; normal: toward that rail; radial: away from the camera's nadir)")
