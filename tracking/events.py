@@ -18,11 +18,18 @@ Method
 ------
 1. Each track is cut into moving stretches by its smoothed speed (hysteresis between
    ``rest_speed_mm_s`` and ``move_speed_mm_s``); a stretch counts only if the ball travels
-   ``min_travel_mm``, and two stretches less than ``min_rest_s`` apart are one motion (a ball
-   nearly halting and running on has not stopped). Where a track leaves out frames or jumps
-   (a ball pocketed or lifted and put back under the same id, ``tracking.tracker``), its path
-   is never fitted across the gap, and a motion running into the gap ends in a pocket event
-   or in none.
+   ``min_travel_mm``. A motion then runs on from such a stretch until the ball lies still for
+   ``min_rest_s`` (its raw samples' fitted velocity zero within their noise, ``_resting``): a
+   rolling ball slows at mu_r g only, and under the rest speed still rolls for about half a
+   second and a centimetre, its smoothed speed dipping and rising with the noise. Stretches
+   with no such rest between them are one motion (a ball nearly halting and running on has
+   not stopped). Where a track leaves out frames or jumps (a ball pocketed or lifted and put
+   back under the same id, ``tracking.tracker``), its path is never fitted across the gap, a
+   motion never runs across it, and a motion running into the gap ends in a pocket event or
+   in none. A motion of a ball seen moving and never seen resting before it since it came
+   onto the table (put down by hand, a track picked up mid-roll) has no start. The contacts
+   (below) are bounded and found on the fast stretches as before: their fits and the noise
+   estimate never reach into a slow tail.
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
@@ -115,8 +122,12 @@ Method
    the first moving samples' fit extrapolated back to the rest position; a motion that begins
    at a collision has none, unless the ball left rest at an earlier frame than the ball it
    met (struck by the cue a frame or two before meeting it, ``_set_moving``). *Stop*:
-   the instant the fitted velocity of the last moving samples vanishes, ``argmin |p'(t)|``.
-   A ball that leaves the table within ``min_rest_s`` of slowing down (caught) gets no stop.
+   a ball comes to rest rolling, so the samples about the start of its rest are fitted by a
+   path decelerating uniformly along a straight line to rest at the stop (``_Finder.stop``):
+   the stop's time is where that path's speed reaches zero (never before the ball's last
+   contact), its place the mean of the samples at rest after it. A ball that leaves the table
+   or the clip before it has lain still for ``min_rest_s`` (caught, or still rolling at the
+   clip's end) gets no stop.
    *Pocket*: a track that ends (before the clip does, or before a gap) heading into a pocket
    mouth; the time its fitted path crosses the mouth line (``TableSpec.pockets()``).
 4. Shots are the unions of overlapping moving stretches; ``cue_track`` is the ball of the
@@ -149,6 +160,9 @@ KINDS = ("start", "collision", "cushion", "pocket", "stop")
 # velocity jump pulls a frame or two off (three balls meeting at one instant in a rendered clip
 # got rough times 0.783, 0.800 and 0.817 s at 60 fps; a simulated cluster, 1.033 and 1.067 s).
 _CLUSTER_FRAMES = 3.0
+# A ball lies still over a window when its samples' fitted velocity is zero within the 99th
+# percentile of chi-squared with 2 degrees of freedom (``_resting``).
+_REST_CHI2 = float(chi2.ppf(0.99, 2))
 
 
 @dataclass(frozen=True)
@@ -159,8 +173,9 @@ class EventConfig:
     above which it moves (hysteresis; above the speed noise of a resting track, about 20-30 mm/s
     with 1 mm detections and up to 40 mm/s at the end of a rest stretch). ``min_move_s``: shortest
     motion kept. ``min_rest_s``: shortest rest between two motions of a ball (shorter dips are one
-    motion), and how long a ball must stay on the table after its motion for a ``stop`` (a ball
-    that vanishes sooner was caught or lifted, common practice). ``min_travel_mm``: least distance
+    motion), the window over which a ball must lie still to be at rest (``_resting``), and how
+    long a ball must stay on the table at rest after its motion for a ``stop`` (a ball that
+    vanishes sooner was caught or lifted, common practice). ``min_travel_mm``: least distance
     a ball must travel in a motion (default a pool ball's radius: far beyond a resting ball's
     position noise, and less than any stroke moves a ball). ``fit_window_s``: longest stretch of
     samples fitted on each side of a contact, stretched at low frame rates to hold
@@ -196,7 +211,9 @@ class EventConfig:
     collisions of ``benchmarks/event_accuracy.py`` seeds 1-3 at 30 and 60 fps: 2.8 to 112
     (median 30; the lowest, 2.8 at 30 fps, a ball meeting a cushion two frames after), and
     -0.02 for the near miss (3 mm apart) that seed 2 at 30 fps took for one.
-    ``start_fit_s`` / ``stop_fit_s``: samples fitted to solve a start / stop.
+    ``start_fit_s`` / ``stop_fit_s``: samples fitted to solve a start / stop (for a stop, that
+    long on each side of the start of the rest, ``_Finder.stop``: at mu_r g a ball covers 18 mm
+    in its last 0.6 s, dozens of detection sigmas, enough to fix the deceleration).
     ``pocket_reach_mm`` / ``pocket_horizon_s``: a track ending within this of a pocket mouth whose
     path crosses the mouth within this time was pocketed. ``meas_sigma_mm``: detection noise
     assumed where it cannot be estimated.
@@ -748,6 +765,8 @@ class _Ball:
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
     strikes: list = field(default_factory=list)  # first instants past a strike from rest, s
+    firsts: tuple = (0,)  # first row of each stay on the table (``_motion``)
+    fast: list = field(default_factory=list)  # [(i0, i1)] stretches above the rest speed
     weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
 
     def weights(self, ts: np.ndarray) -> np.ndarray | None:
@@ -826,53 +845,157 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
     return out
 
 
-def _motion(ball: _Ball, cfg: EventConfig) -> None:
-    """Moving stretches of ``ball`` by hysteresis on the smoothed speed."""
+def _breaks(ball: _Ball, diameter_mm: float) -> np.ndarray:
+    """Rows (k,) after which the track leaves frames out (the ball was off the table) or jumps
+    between consecutive rows further than its smoothed speeds allow: a ball lifted and put down
+    elsewhere keeps its id (``tracking.tracker``) but is not one stay on the table. Allowed: a
+    diameter (a strike from rest within one frame) plus twice the distance the faster of the
+    two rows' speeds covers in the interval."""
+    if len(ball.t) < 2:
+        return np.zeros(0, dtype=int)
+    step = np.hypot(*np.diff(ball.p, axis=0).T)
+    sp = np.hypot(*ball.v.T)
+    allow = diameter_mm + 2.0 * np.maximum(sp[:-1], sp[1:]) * np.diff(ball.t)
+    return np.flatnonzero((step > allow) | (np.diff(ball.frame) > 1))
+
+
+def _respots(ball: _Ball, diameter_mm: float) -> list[float]:
+    """Times (s, midway) between the rows of ``_breaks``: the ball's path must not be fitted
+    across them."""
+    return [float(0.5 * (ball.t[i] + ball.t[i + 1])) for i in _breaks(ball, diameter_mm)]
+
+
+def _resting(ball: _Ball, sigma_mm: float, window_s: float,
+             ends: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Whether ``ball`` lies still over ``window_s`` from each row on, and whether that could
+    be tested there: two (N,) bool arrays (a resting row is a tested one).
+
+    Row k rests when the raw samples of rows k..m (``t_m <= t_k + window_s``, all within the
+    stay on the table that ends at row ``ends[k]``, the window covered to within half a frame)
+    fit a straight line whose velocity is zero within its noise: ``|v|^2 / se^2`` below the
+    99th percentile of chi-squared with 2 degrees of freedom (a resting ball is taken for a
+    moving one in one window of a hundred, which delays a motion's end by a row), ``v`` the
+    least-squares slope of each axis and ``se^2 = sigma_mm^2 / sum (t - t_mean)^2`` (the
+    window's own scatter is no scale: a resting detection the detector carries over unchanged
+    has none, and a stray detection of something else inflates it until a ball still rolling
+    passes for resting; a window holding one is called moving instead, and the rest begins
+    past it). A velocity test rather than a speed threshold:
+    over 0.3 s at 60 fps with 1 mm noise the slope is known to about 3 mm/s, while a ball
+    rolling at mu_r g (Alciatore 2004, about 0.1 m/s^2) still moves at 50 mm/s half a second
+    and 12 mm before it stops. Untested: fewer than three seen samples in the window, or the
+    window not covered (the stay ends within it).
+    """
+    n = len(ball.t)
+    if n == 0:
+        return np.zeros(0, bool), np.zeros(0, bool)
+    ok = np.isfinite(ball.raw[:, 0])
+    ref = np.nanmean(ball.raw, axis=0) if ok.any() else np.zeros(2)
+    t = ball.t - ball.t[0]
+    z = np.where(ok[:, None], ball.raw - ref, 0.0)
+    w = ok.astype(float)
+    tw = np.where(ok, t, 0.0)
+
+    def csum(a):
+        return np.concatenate([np.zeros((1,) + a.shape[1:]), np.cumsum(a, axis=0)])
+    S = [csum(a) for a in (w, tw, tw * t, z, z * tw[:, None])]
+    m = np.searchsorted(ball.t, ball.t + window_s + 1e-9, side="right") - 1
+    full = (ball.t[m] >= ball.t + window_s - 0.5 * (ball.t[1] - ball.t[0] if n > 1 else 0.0)) \
+        & (m <= ends)
+    k = np.arange(n)
+    cnt, st, stt, sz, stz = (s[m + 1] - s[k] for s in S)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sxx = stt - st * st / cnt
+        sxy = stz - (st / cnt)[:, None] * sz
+        slope = sxy / sxx[:, None]
+        z2 = np.sum(slope**2, axis=1) * sxx / sigma_mm**2
+    tested = full & (cnt >= 3) & (sxx > 0)
+    return tested & (z2 < _REST_CHI2), tested
+
+
+def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
+    """Moving stretches of ``ball``: from where its smoothed speed rises (hysteresis between
+    ``rest_speed_mm_s`` and ``move_speed_mm_s``) until it really lies still (``_resting``).
+
+    A rolling ball slows at mu_r g only (Alciatore 2004): under the rest speed it still rolls
+    for half a second and a centimetre, its smoothed speed dipping and rising with the noise.
+    So a stretch ends at the first row from which the ball rests for ``min_rest_s``; stretches
+    with no rest between them are one motion (a ball at rest stays at rest until something
+    strikes it, and a player needs far longer than ``min_rest_s`` to strike again). A motion
+    never runs across a break in the track (``_breaks``: off the table, or put down
+    elsewhere). One whose ball is seen moving before it within its stay (no rest window
+    between the stay's first row and the motion) began before the stay was seen: it starts
+    at the stay's first row (a ball put down by hand, or a track picked up mid-roll).
+
+    Sets ``ball.moves`` (the motions), ``ball.firsts`` (each stay's first row), ``ball.fast``
+    (the stretches above the rest speed, merged across dips shorter than ``min_rest_s``: the
+    contacts are found and their fits bounded on these, so a slow tail never enters them) and
+    ``ball.sigma, ball.sigma_fit`` (``_noise_sigma`` over the fast stretches, which scales the
+    rest test).
+    """
+    n = len(ball.t)
     speed = np.hypot(*ball.v.T)
-    moving = False
-    runs, i0 = [], 0
-    for k, s in enumerate(speed):
-        if not moving and s > cfg.move_speed_mm_s:
-            moving, i0 = True, k
-            # Back up over the rising edge: the motion began where the speed left rest.
-            while i0 > 0 and speed[i0 - 1] > cfg.rest_speed_mm_s:
-                i0 -= 1
-        elif moving and s < cfg.rest_speed_mm_s:
-            runs.append((i0, k - 1))
-            moving = False
-    if moving:
-        runs.append((i0, len(speed) - 1))
+    brk = _breaks(ball, diameter_mm)
+    firsts = np.concatenate([[0], brk + 1]).astype(int)
+    lasts = np.concatenate([brk, [n - 1]]).astype(int)
+    ball.firsts = tuple(int(f) for f in firsts)
+    runs = []
+    for p0, p1 in zip(firsts, lasts):
+        moving, i0 = False, p0
+        for k in range(p0, p1 + 1):
+            s = speed[k]
+            if not moving and s > cfg.move_speed_mm_s:
+                moving, i0 = True, k
+                # Back up over the rising edge: the motion began where the speed left rest.
+                while i0 > p0 and speed[i0 - 1] > cfg.rest_speed_mm_s:
+                    i0 -= 1
+            elif moving and s < cfg.rest_speed_mm_s:
+                runs.append((i0, k - 1))
+                moving = False
+        if moving:
+            runs.append((i0, p1))
     # A motion is real only if the ball travels: a resting ball's jittery detections, a new
     # track's first velocity estimates or a flickering false detection can lift the smoothed
     # speed over the threshold in place.
     runs = [(a, b) for a, b in runs
             if (ball.t[b] - ball.t[a] >= cfg.min_move_s or b > a + 2)
             and np.max(np.hypot(*(ball.p[a:b + 1] - ball.p[a]).T)) >= cfg.min_travel_mm]
-    # A ball at rest stays at rest until something strikes it, and a player needs far longer
-    # than ``min_rest_s`` to strike again; a shorter dip below the rest speed (a stun or a
-    # spinning ball slowing almost to a halt, then running on) is one motion, not two.
+    if not runs:
+        ball.moves = ball.fast = []
+        ball.sigma, ball.sigma_fit = _noise_sigma(ball, cfg)
+        return
+    # The detection noise is measured on the fast stretches, merged where they dip under the
+    # rest speed for less than ``min_rest_s`` (``_noise_sigma``): it scales the rest test
+    # below and every contact's fits.
+    fast: list[tuple[int, int]] = []
+    for a, b in runs:
+        if fast and ball.t[a] - ball.t[fast[-1][1]] < cfg.min_rest_s:
+            fast[-1] = (fast[-1][0], b)
+        else:
+            fast.append((a, b))
+    ball.moves = ball.fast = fast
+    ball.sigma, ball.sigma_fit = _noise_sigma(ball, cfg)
+    white = ball.sigma
+    piece_end = np.repeat(lasts, np.diff(np.append(firsts, n)))
+    rest, tested = _resting(ball, white, cfg.min_rest_s, piece_end)
+    # Last row of each row's rest window.
+    w_end = np.searchsorted(ball.t, ball.t + cfg.min_rest_s + 1e-9, side="right") - 1
     merged: list[tuple[int, int]] = []
     for a, b in runs:
-        if merged and ball.t[a] - ball.t[merged[-1][1]] < cfg.min_rest_s:
-            merged[-1] = (merged[-1][0], b)
-        else:
-            merged.append((a, b))
+        if merged and piece_end[merged[-1][1]] == piece_end[a] and (
+                merged[-1][1] >= a - 1 or ball.t[a] - ball.t[merged[-1][1]] < cfg.min_rest_s):
+            a0, b0 = merged.pop()  # never at rest in between
+            a, b = a0, max(b, b0)
+        elif not merged or piece_end[merged[-1][1]] != piece_end[a]:
+            # Seen moving, and never seen resting, before the motion within its stay.
+            p0 = int(firsts[np.searchsorted(firsts, a, side="right") - 1])
+            before = np.arange(p0, a)[w_end[p0:a] < a]
+            if len(before) and tested[before].any() and not rest[before].any():
+                a = p0
+        # The motion runs on until the ball rests (or its stay on the table ends).
+        still = np.flatnonzero(rest[b + 1:piece_end[b] + 1])
+        b = b + int(still[0]) if len(still) else int(piece_end[b])
+        merged.append((a, max(a, b)))
     ball.moves = merged
-
-
-def _respots(ball: _Ball, diameter_mm: float) -> list[float]:
-    """Times (s, midway) where the track leaves frames out (the ball was off the table) or
-    jumps between consecutive rows further than its smoothed speeds allow: a ball lifted and
-    put down elsewhere keeps its id (``tracking.tracker``) but its path must not be fitted
-    across the jump. Allowed: a diameter (a strike from rest within one frame) plus twice the
-    distance the faster of the two rows' speeds covers in the interval."""
-    if len(ball.t) < 2:
-        return []
-    step = np.hypot(*np.diff(ball.p, axis=0).T)
-    sp = np.hypot(*ball.v.T)
-    allow = diameter_mm + 2.0 * np.maximum(sp[:-1], sp[1:]) * np.diff(ball.t)
-    k = np.flatnonzero((step > allow) | (np.diff(ball.frame) > 1))  # a jump, or off the table
-    return [float(0.5 * (ball.t[i] + ball.t[i + 1])) for i in k]
 
 
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
@@ -967,15 +1090,14 @@ def find_events(
     finder = _Finder(table, cfg, dt, exposure, collision_window_s)
     finder.t_end = t_clip_end
     for b in balls:
-        _motion(b, cfg)
-        b.sigma, b.sigma_fit = _noise_sigma(b, cfg)
+        _motion(b, cfg, table.ball_diameter_mm)
     rough_cushions = {b.track: finder.rough_cushions(b) for b in balls}
     rough_collisions = finder.rough_collisions(balls)
     for b in balls:
         contacts = [tg for tg, _ in rough_cushions[b.track]] + [
             tg for tg, i, j in rough_collisions if b.track in (i, j)]
         # A motion that begins or ends at a contact is bounded by the contact itself.
-        ends = [b.t[i] for move in b.moves for i in move]
+        ends = [b.t[i] for move in b.fast for i in move]
         ends = [m for m in ends if all(abs(m - c) > 3 * dt for c in contacts)]
         b.respots = _respots(b, table.ball_diameter_mm)
         b.marks = sorted(ends + contacts + b.respots)
@@ -1027,8 +1149,8 @@ def find_events(
                    if _set_moving(finder, b, (i0, i1), by_id[o], tc)]
             if hit:
                 t_begin = min(hit)
-            elif i0 == 0:
-                t_begin = float(b.t[0])  # already moving when first seen
+            elif i0 in b.firsts:
+                t_begin = float(b.t[i0])  # already moving when first seen
             else:
                 r = starts.get((b.track, i0)) or finder.start(b, i0)
                 rows.append(r)
@@ -1052,10 +1174,11 @@ def find_events(
                 # motion's last row (``_Finder._raw_slow``); the ball stops after it, not before.
                 # (A collision after that row sets the ball's next motion going.)
                 t_next = next((b.t[m0] for m0, _ in b.moves if m0 > i1), math.inf)
+                t_rest_end = min(t_next, float(b.t[last]))
                 last = max([x["t"] for x in rows if x["track"] == b.track and (
                     x["t"] <= b.t[i1] + dt or (x["kind"] == "cushion" and x["t"] < t_next))],
                     default=t_begin)
-                r = finder.stop(b, i1, max(last, t_begin))
+                r = finder.stop(b, i1, max(last, t_begin), t_rest_end)
                 rows.append(r)
                 t_end = r["t"]
             moves.append((b.track, t_begin, t_end))
@@ -1128,7 +1251,7 @@ def _left_rest(finder: "_Finder", b: _Ball, t: float) -> float:
     if not moves:
         return math.inf
     i0 = moves[-1][0]
-    if i0 == 0:
+    if i0 in b.firsts:
         return -math.inf
     _, _, ts, _ = finder._leaving(b, i0)
     return float(ts[0]) if len(ts) else float(b.t[i0])
@@ -1164,7 +1287,7 @@ def _strikes(finder: "_Finder", balls: list[_Ball], by_id: dict[int, _Ball],
     out = {}
     for b in balls:
         for i0, i1 in b.moves:
-            if i0 == 0 or any(
+            if i0 in b.firsts or any(
                     _set_moving(finder, b, (i0, i1), by_id[j if i == b.track else i], tg)
                     for tg, i, j in rough_collisions if b.track in (i, j)):
                 continue
@@ -1698,7 +1821,7 @@ class _Finder:
         # Per rail: inward normal, normal axis and reversal line (mm).
         lines = [(rail, np.asarray(rail_inward_normal(rail)), 1 if rail in ("bottom", "top") else 0,
                   self.table.reversal_line(rail)) for rail in RAILS]
-        for i0, i1 in b.moves:
+        for i0, i1 in b.fast:
             # A ball last seen running into a rail at its reversal line touched it there
             # (``cushion`` then solves it from the approach alone, ``_arrival``).
             for j in gone[(gone >= i0) & (gone <= i1)]:
@@ -1730,7 +1853,7 @@ class _Finder:
                         # the rest speed with the ball still creeping on into the rail: its
                         # samples up to its next motion count too.
                         i_end = i1 if slow else next(
-                            (m0 - 1 for m0, _ in b.moves if m0 > i1), len(b.t) - 1)
+                            (m0 - 1 for m0, _ in b.fast if m0 > i1), len(b.t) - 1)
                         z, t_turn = max(self._turn_sigmas(b, i0, i_end, kk, ax, n[ax])
                                         for kk in range(max(i0 + 1, i0 + k - 4),
                                                         min(i_end, i0 + k + 4) + 1))
@@ -2316,23 +2439,101 @@ class _Finder:
             t_s, speed = float(b.t[i0]), float(np.hypot(*b.v[i0]))
         return _row(t_s, "start", b.track, p_rest, speed_in=0.0, speed_out=speed)
 
-    def stop(self, b: _Ball, i1: int, t_last_event: float) -> dict:
-        """The instant ``b`` comes to rest: where the fitted velocity of its last moving samples
-        vanishes (constant deceleration, rolling resistance mu_r g)."""
-        t_end = b.t[i1]
-        t_lo = max(t_last_event + 0.5 * self.exposure, t_end - self.cfg.stop_fit_s)
-        ts, ps = b.samples(t_lo, t_end + 1e-9)
-        t_s = float(b.t[min(i1 + 1, len(b.t) - 1)])
+    def stop(self, b: _Ball, i1: int, t_last_event: float, t_rest_end: float) -> dict:
+        """The instant ``b`` comes to rest and where, after the motion ending at row ``i1`` (the
+        last before it rests, ``_motion``), its last contact at ``t_last_event`` and its rest
+        lasting until ``t_rest_end`` (s).
+
+        A ball comes to rest rolling: its last stretch decelerates at mu_r g along a straight
+        line (Alciatore 2004, technical proofs: a rolling ball stops after v^2 / (2 mu_r g)), so
+        with the stop at ``t_s`` and the rest point ``p_s`` its centre is
+        ``p(t) = p_s - (a / 2) u (t_s - t)^2`` before ``t_s`` and ``p_s`` after, for the
+        deceleration ``a`` along the travel direction ``u`` (uniformly accelerated rectilinear
+        motion). The raw samples from ``stop_fit_s`` before the rest (never before
+        the last contact and half an exposure) to ``stop_fit_s`` after it (never past
+        ``t_rest_end``) are fitted by weighted least squares, linear in ``p_s, a`` for a given
+        ``t_s`` (``_stop_fit``) with the prior ``roll_decel_mm_s2 +- roll_decel_sigma_mm_s2``
+        on ``a``, ``u`` the chord from the first samples to the last; ``t_s`` is
+        scanned from the last contact on (``_stop_scan``), and fitted again without the
+        samples left over ``outlier_sigmas`` noise sigmas off. A ball that a contact stops dead (all samples after
+        it at rest) gets ``t_s`` at the contact. The stop's position is the mean of the raw
+        samples after ``t_s`` in the rest (``p_s`` where there are none)."""
+        cfg = self.cfg
+        t_rest = float(b.t[min(i1 + 1, len(b.t) - 1)])
+        t_lo = t_last_event + 0.5 * self.exposure
+        ts, ps = b.samples(max(t_lo, t_rest - cfg.stop_fit_s) - 1e-9,
+                           min(t_rest_end, t_rest + cfg.stop_fit_s) + 1e-9)
+        t_s = t_rest
+        p_s = b.p[min(i1 + 1, len(b.t) - 1)]
         if len(ts) >= 3:
-            f = _fit(ts, ps, t_end, 2, self.cfg.meas_sigma_mm)
-            c1, c2 = f.coef[1], f.coef[2]
-            if float(c2 @ c2) > 0:
-                tau = -float(c1 @ c2) / (2.0 * float(c2 @ c2))  # argmin |c1 + 2 c2 tau|^2
-                t_s = t_end + tau
-        t_s = float(np.clip(t_s, max(t_last_event, ts[0] if len(ts) else t_end), t_end + 1.0))
-        after_t, after_p = b.samples(t_s, t_s + 0.3)
-        xy = np.median(after_p, axis=0) if len(after_p) else b.p[min(i1 + 1, len(b.t) - 1)]
+            wt = b.weights(ts)
+            w = np.ones(len(ts)) if wt is None else wt**2
+            # The travel direction: the weighted chord from the first samples to the last.
+            q = max(1, len(ts) // 4)
+            chord = np.average(ps[-q:], axis=0, weights=w[-q:]) - np.average(
+                ps[:q], axis=0, weights=w[:q])
+            u = chord / max(float(np.hypot(*chord)), 1e-9)
+            lo_s = max(t_last_event, ts[0] - self.dt)
+            for _ in range(2):
+                # Once more without the samples the first fit leaves over ``outlier_sigmas``
+                # noise sigmas off: detections of something else beside a dim ball.
+                t_s, p_s, keep = self._stop_scan(ts, ps, w, u, b.sigma_fit, lo_s)
+                if keep.all() or keep.sum() < 3:
+                    break
+                ts, ps, w = ts[keep], ps[keep], w[keep]
+        t_s = max(t_s, t_last_event)
+        after_t, after_p = b.samples(t_s, t_rest_end + 1e-9)
+        xy = np.mean(after_p, axis=0) if len(after_p) else p_s
         return _row(t_s, "stop", b.track, xy, speed_in=0.0, speed_out=0.0)
+
+    def _stop_scan(self, ts: np.ndarray, ps: np.ndarray, w: np.ndarray, u: np.ndarray,
+                   sigma_mm: float, lo_s: float) -> tuple[float, np.ndarray, np.ndarray]:
+        """Best stop time (s) from ``lo_s`` on and its rest point (2,) mm (``_stop_fit`` on a
+        grid of ``kink_step_frames`` frame intervals, then Brent's bounded method between the
+        best grid point's neighbours), and which samples (n,) bool lie within
+        ``outlier_sigmas`` noise sigmas of that path."""
+        step = self.cfg.kink_step_frames * self.dt
+        grid = np.arange(lo_s, max(float(ts[-1]), lo_s) + 0.5 * step, step)
+        cost = [self._stop_fit(tg, ts, ps, w, u, sigma_mm)[0] for tg in grid]
+        k = int(np.argmin(cost))
+        a, c = grid[max(k - 1, 0)], grid[min(k + 1, len(grid) - 1)]
+        t_s = float(grid[k])
+        if c > a:
+            res = minimize_scalar(lambda tg: self._stop_fit(tg, ts, ps, w, u, sigma_mm)[0],
+                                  bounds=(a, c), method="bounded", options={"xatol": 1e-4})
+            if res.fun <= cost[k]:
+                t_s = float(res.x)
+        _, p_s, pred = self._stop_fit(t_s, ts, ps, w, u, sigma_mm)
+        keep = np.hypot(*(ps - pred).T) <= self.cfg.outlier_sigmas * sigma_mm
+        return t_s, p_s, keep
+
+    def _stop_fit(self, t_s: float, ts: np.ndarray, ps: np.ndarray, w: np.ndarray,
+                  u: np.ndarray, sigma_mm: float) -> tuple[float, np.ndarray, np.ndarray]:
+        """Criterion, rest point (2,) mm and fitted path (n, 2) mm of the stop model of
+        ``stop`` at trial ``t_s`` (s): ``p(t) = p_s - (a / 2) u max(t_s - t, 0)^2``.
+
+        Samples ts (n,) s, ps (n, 2) mm, weights w (n,); travel direction u (2,) (a straight
+        path: nothing across it for the noise to fit). Unknowns ``[px, py, a]``, linear;
+        criterion the weighted RSS / sigma^2 plus the prior ``((a - a0) / sd)^2``."""
+        cfg = self.cfg
+        qq = -0.5 * np.clip(t_s - ts, 0.0, None) ** 2
+        n = len(ts)
+        A = np.zeros((2 * n, 3))
+        A[:n, 0] = 1.0
+        A[n:, 1] = 1.0
+        A[:n, 2] = u[0] * qq
+        A[n:, 2] = u[1] * qq
+        y = np.concatenate([ps[:, 0], ps[:, 1]])
+        ww = np.concatenate([w, w]) / sigma_mm**2
+        prior_w = 1.0 / cfg.roll_decel_sigma_mm_s2**2
+        N = (A * ww[:, None]).T @ A
+        N[2, 2] += prior_w
+        rhs = (A * ww[:, None]).T @ y
+        rhs[2] += prior_w * cfg.roll_decel_mm_s2
+        th = np.linalg.solve(N, rhs)
+        r = y - A @ th
+        cost = float(ww @ r**2) + prior_w * float(th[2] - cfg.roll_decel_mm_s2) ** 2
+        return cost, th[:2], np.column_stack([r[:n], r[n:]]) * -1.0 + ps
 
     def pocket(self, b: _Ball, i1: int) -> dict | None:
         """A pocket event if ``b``'s track ends heading into a pocket mouth, else None."""
