@@ -1382,3 +1382,28 @@ def test_a_slow_rolling_tail_is_not_restarted():
         assert list(ev["kind"]) == ["start", "stop"], (seed, list(zip(ev["kind"], ev["t"])))
         assert abs(ev.iloc[1]["t"] - (t0 + v0 / decel)) < 2 * dt
         assert len(shots) == 1
+
+
+def test_a_resting_ball_that_jitters_more_than_it_does_moving_rests_and_is_struck():
+    # Detections of a resting ball scattering 1.5 mm (a flickering light on other footage)
+    # while its moving ones scatter 0.3 mm: the rest test must not take the resting jitter for
+    # motion (its scale is the larger of the two noises, ``_still_sigma``), or the ball would
+    # seem to be moving before the strike, and a ball never seen at rest before a motion gets
+    # no start (scaled by the moving noise alone, seeds 1 and 5 of 0-5 lost their start). The
+    # ball rolls from 500 mm/s at mu_r g (Alciatore 2004) and stops at v0 / (mu_r g); the
+    # stop within the scorer's 0.1 s as in the tests above.
+    fps, v0, t0 = 60.0, 500.0, 0.5
+    decel = 0.01 * G
+    a = decel_path((400.0, 500.0), -15.0, v0, decel, t_start=t0)
+    t_stop = t0 + v0 / decel
+    times = np.arange(int((t_stop + 1.5) * fps)) / fps
+    for seed in range(6):
+        rng = np.random.default_rng(seed)
+        det = detections({"a": a}, times, rng, noise_mm=0.3, labels={"a": ("white", "cue")})
+        still = (det["t"] < t0) | (det["t"] > t_stop)
+        det.loc[still, ["x", "y"]] += rng.normal(0.0, 1.5, (int(still.sum()), 2))
+        det.loc[still, "sigma_mm"] = 1.5
+        ev, _ = find_events(track(det, TABLE), TABLE, det)
+        assert list(ev["kind"]) == ["start", "stop"], (seed, list(zip(ev["kind"], ev["t"])))
+        assert abs(ev.iloc[0]["t"] - t0) < 1 / fps
+        assert abs(ev.iloc[1]["t"] - t_stop) < 0.1, (seed, ev.iloc[1]["t"], t_stop)

@@ -912,6 +912,28 @@ def _resting(ball: _Ball, sigma_mm: float, window_s: float,
     return tested & (z2 < _REST_CHI2), tested
 
 
+def _still_sigma(ball: _Ball, fast: list[tuple[int, int]]) -> float:
+    """Detection noise per axis (mm) of ``ball`` off its fast stretches (rows outside
+    ``fast``), from third differences of four consecutive seen frames there as in
+    ``_noise_sigma`` (median absolute value over 0.674, over sqrt(20)); 0 with fewer than
+    ten. A resting ball's detection carried over unchanged (``vision.detect``) gives zero, a
+    slow tail almost zero (a quadratic path has none), while a resting ball's jitter on other
+    footage (a flickering light, a noisy sensor) may exceed the moving samples' noise, and the
+    rest test must not call such a ball moving."""
+    r = ball.raw
+    off = np.ones(len(r), bool)
+    for i0, i1 in fast:
+        off[i0:i1 + 1] = False
+    ok = np.isfinite(r[:, 0]) & off
+    consecutive = np.diff(ball.frame) == 1
+    good = ok[3:] & ok[2:-1] & ok[1:-2] & ok[:-3] & consecutive[2:] & consecutive[1:-1] \
+        & consecutive[:-2]
+    d3 = (r[3:] - 3 * r[2:-1] + 3 * r[1:-2] - r[:-3])[good].ravel()
+    if len(d3) < 10:
+        return 0.0
+    return float(np.median(np.abs(d3))) / 0.6745 / math.sqrt(20.0)
+
+
 def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     """Moving stretches of ``ball``: from where its smoothed speed rises (hysteresis between
     ``rest_speed_mm_s`` and ``move_speed_mm_s``) until it really lies still (``_resting``).
@@ -929,8 +951,8 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     Sets ``ball.moves`` (the motions), ``ball.firsts`` (each stay's first row), ``ball.fast``
     (the stretches above the rest speed, merged across dips shorter than ``min_rest_s``: the
     contacts are found and their fits bounded on these, so a slow tail never enters them) and
-    ``ball.sigma, ball.sigma_fit`` (``_noise_sigma`` over the fast stretches, which scales the
-    rest test).
+    ``ball.sigma, ball.sigma_fit`` (``_noise_sigma`` over the fast stretches; the rest test's
+    scale is the larger of that and the noise off them, ``_still_sigma``).
     """
     n = len(ball.t)
     speed = np.hypot(*ball.v.T)
@@ -974,9 +996,9 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
             fast.append((a, b))
     ball.moves = ball.fast = fast
     ball.sigma, ball.sigma_fit = _noise_sigma(ball, cfg)
-    white = ball.sigma
     piece_end = np.repeat(lasts, np.diff(np.append(firsts, n)))
-    rest, tested = _resting(ball, white, cfg.min_rest_s, piece_end)
+    rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, fast)), cfg.min_rest_s,
+                            piece_end)
     # Last row of each row's rest window.
     w_end = np.searchsorted(ball.t, ball.t + cfg.min_rest_s + 1e-9, side="right") - 1
     merged: list[tuple[int, int]] = []
