@@ -1407,3 +1407,26 @@ def test_a_resting_ball_that_jitters_more_than_it_does_moving_rests_and_is_struc
         assert list(ev["kind"]) == ["start", "stop"], (seed, list(zip(ev["kind"], ev["t"])))
         assert abs(ev.iloc[0]["t"] - t0) < 1 / fps
         assert abs(ev.iloc[1]["t"] - t_stop) < 0.1, (seed, ev.iloc[1]["t"], t_stop)
+
+
+def test_a_cue_ball_stopped_dead_by_a_full_hit_stops_at_the_collision():
+    # A full hit between equal balls (frictionless and elastic: the object ball takes the
+    # whole velocity along the line of centres, common practice) leaves the cue ball lying
+    # still on the spot: its stop (the ball comes to rest, results format) is the collision's
+    # instant, not somewhere a path fitted to its resting noise runs on to (0.2 s later on
+    # seed 5 before the stop fit compared running on with stopping at the contact).
+    fps = 60.0
+    dt = 1 / fps
+    t_c = 0.8 + 0.3 * dt
+    cue, obj = collision_paths((1200.0, 600.0), (900.0, 0.0), 0.0, t_c)
+    times = np.arange(int(1.6 * fps)) / fps
+    for seed in (5, 6, 7):
+        det = detections({"cue": cue, "obj": obj}, times, np.random.default_rng(seed),
+                         noise_mm=0.7, labels={"cue": ("white", "cue"), "obj": ("red", "solid")})
+        tr = track(det, TABLE)
+        ev, _ = find_events(tr, TABLE, det)
+        cue_id = int(tr.loc[tr["colour"] == "white", "track"].iloc[0])
+        sp, col = _only(ev, "stop"), _only(ev, "collision")
+        assert list(sp["track"]) == [cue_id]  # the object ball still runs at the clip's end
+        assert len(col) == 2
+        assert col.loc[0, "t"] <= sp.loc[0, "t"] < t_c + 2 * dt, (seed, sp.loc[0, "t"], t_c)

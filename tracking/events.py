@@ -2475,11 +2475,13 @@ class _Finder:
         the last contact and half an exposure) to ``stop_fit_s`` after it (never past
         ``t_rest_end``) are fitted by weighted least squares, linear in ``p_s, a`` for a given
         ``t_s`` (``_stop_fit``) with the prior ``roll_decel_mm_s2 +- roll_decel_sigma_mm_s2``
-        on ``a``, ``u`` the chord from the first samples to the last; ``t_s`` is
-        scanned from the last contact on (``_stop_scan``), and fitted again without the
-        samples left over ``outlier_sigmas`` noise sigmas off. A ball that a contact stops dead (all samples after
-        it at rest) gets ``t_s`` at the contact. The stop's position is the mean of the raw
-        samples after ``t_s`` in the rest (``p_s`` where there are none)."""
+        on ``a``, ``u`` the chord from the first samples to the last; ``t_s`` is scanned from
+        the last contact on (``_stop_scan``), and fitted again without the samples left over
+        ``outlier_sigmas`` noise sigmas off. A ball that a contact stops dead gets ``t_s`` at
+        the contact: running on beyond it must beat lying still from it by more than the
+        Bayesian information criterion's penalty of its two parameters. The stop's position
+        is the mean of the raw samples after ``t_s`` in the rest (``p_s`` where there are
+        none)."""
         cfg = self.cfg
         t_rest = float(b.t[min(i1 + 1, len(b.t) - 1)])
         t_lo = t_last_event + 0.5 * self.exposure
@@ -2525,6 +2527,15 @@ class _Finder:
                                   bounds=(a, c), method="bounded", options={"xatol": 1e-4})
             if res.fun <= cost[k]:
                 t_s = float(res.x)
+        # Stopped at ``lo_s`` (every sample after it at rest) unless running on until ``t_s``
+        # explains the samples better by more than the Bayesian information criterion's
+        # penalty of its two parameters (``t_s``, ``a``), 2 ln n, in units of the resting
+        # model's own residual variance: a ball stopped dead by a contact lies still, and a
+        # path fitted to its noise must not run it on.
+        rss_lo = self._stop_fit(lo_s, ts, ps, w, u, sigma_mm)[0]
+        s2_lo = rss_lo / max(2 * len(ts) - 2, 1)
+        if s2_lo > 0 and (rss_lo - min(cost)) / s2_lo < 2.0 * math.log(len(ts)):
+            t_s = lo_s
         _, p_s, pred = self._stop_fit(t_s, ts, ps, w, u, sigma_mm)
         keep = np.hypot(*(ps - pred).T) <= self.cfg.outlier_sigmas * sigma_mm
         return t_s, p_s, keep
