@@ -912,26 +912,34 @@ def _resting(ball: _Ball, sigma_mm: float, window_s: float,
     return tested & (z2 < _REST_CHI2), tested
 
 
-def _still_sigma(ball: _Ball, fast: list[tuple[int, int]]) -> float:
-    """Detection noise per axis (mm) of ``ball`` off its fast stretches (rows outside
-    ``fast``), from third differences of four consecutive seen frames there as in
-    ``_noise_sigma`` (median absolute value over 0.674, over sqrt(20)); 0 with fewer than
-    ten. A resting ball's detection carried over unchanged (``vision.detect``) gives zero, a
-    slow tail almost zero (a quadratic path has none), while a resting ball's jitter on other
-    footage (a flickering light, a noisy sensor) may exceed the moving samples' noise, and the
-    rest test must not call such a ball moving."""
+def _d3_sigma(ball: _Ball, rows: np.ndarray) -> float | None:
+    """White detection noise per axis (mm) from third differences of four seen samples in
+    consecutive frames, the first and last in ``rows`` (N,) bool: a quadratic path has zero
+    third difference, so for white noise of variance s^2 it has variance 20 s^2 (binomial
+    weights 1, 3, 3, 1), and the median absolute value is 0.674 of its standard deviation.
+    None with fewer than ten differences."""
     r = ball.raw
-    off = np.ones(len(r), bool)
-    for i0, i1 in fast:
-        off[i0:i1 + 1] = False
-    ok = np.isfinite(r[:, 0]) & off
+    ok = np.isfinite(r[:, 0])
     consecutive = np.diff(ball.frame) == 1
     good = ok[3:] & ok[2:-1] & ok[1:-2] & ok[:-3] & consecutive[2:] & consecutive[1:-1] \
-        & consecutive[:-2]
+        & consecutive[:-2] & rows[3:] & rows[:-3]
     d3 = (r[3:] - 3 * r[2:-1] + 3 * r[1:-2] - r[:-3])[good].ravel()
     if len(d3) < 10:
-        return 0.0
+        return None
     return float(np.median(np.abs(d3))) / 0.6745 / math.sqrt(20.0)
+
+
+def _still_sigma(ball: _Ball, fast: list[tuple[int, int]]) -> float:
+    """Detection noise per axis (mm) of ``ball`` off its fast stretches (rows outside
+    ``fast``, ``_d3_sigma``; 0 where too few). A resting ball's detection carried over
+    unchanged (``vision.detect``) gives zero, a slow tail almost zero (a quadratic path has
+    none), while a resting ball's jitter on other footage (a flickering light, a noisy
+    sensor) may exceed the moving samples' noise, and the rest test must not call such a ball
+    moving."""
+    off = np.ones(len(ball.t), bool)
+    for i0, i1 in fast:
+        off[i0:i1 + 1] = False
+    return _d3_sigma(ball, off) or 0.0
 
 
 def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
@@ -1023,10 +1031,8 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
     """Detection noise per axis (mm), (white, at the fits' scale).
 
-    *White*: from third differences of consecutive raw samples of the ball's motions. A
-    quadratic path has zero third difference, so for white noise of variance s^2 the third
-    difference has variance 20 s^2 (binomial weights 1, 3, 3, 1); the median absolute value is
-    0.674 of its standard deviation. Contacts spoil a few differences; the median ignores them.
+    *White*: from third differences of consecutive raw samples of the ball's motions
+    (``_d3_sigma``). Contacts spoil a few differences; the median ignores them.
     Samples at rest are left out: the detector carries a resting ball's detection over
     unchanged from frame to frame (``vision.detect``, step 2), so their differences are zero
     and, on a track resting longer than it moves, would put the noise of the moving samples
@@ -1047,17 +1053,13 @@ def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
     """
     r = ball.raw
     ok = np.isfinite(r[:, 0])
-    consecutive = np.diff(ball.frame) == 1
-    d3 = r[3:] - 3 * r[2:-1] + 3 * r[1:-2] - r[:-3]
     moving = np.zeros(len(r), bool)
     for i0, i1 in ball.moves:
         moving[i0:i1 + 1] = True
-    good = ok[3:] & ok[2:-1] & ok[1:-2] & ok[:-3] & consecutive[2:] & consecutive[1:-1] \
-        & consecutive[:-2] & moving[3:] & moving[:-3]
-    d3 = d3[good].ravel()
-    if len(d3) < 10:
+    white = _d3_sigma(ball, moving)
+    if white is None:
         return cfg.meas_sigma_mm, cfg.meas_sigma_mm
-    white = max(float(np.median(np.abs(d3))) / 0.6745 / math.sqrt(20.0), 0.05)
+    white = max(white, 0.05)
     w = 2 * cfg.quadratic_min_samples
     s2 = []
     for i0, i1 in ball.moves:
