@@ -731,7 +731,8 @@ class Tracker:
         ``respot_rest_speed_mm_s``) with no ball of ``kept`` within a diameter plus two frames'
         travel of it there (none could have struck it), that takes no other piece's id (a
         ball found again, :meth:`_resumed_ids`, or put back by hand) and gives none, and that
-        is lost while still moving before the clip ends, has neither a ball's beginning nor a
+        is lost while still moving (ended unseen for ``coast_s`` before the clip ends), has
+        neither a ball's beginning nor a
         ball's end. If, besides, its course restarts (other than in a turn off a cushion,
         :meth:`_course_breaks`) at more than ``max_break_share`` of the detections from its
         third on, the first a prediction from two detections can test, it is not a ball: a
@@ -749,8 +750,8 @@ class Tracker:
         if min(np.hypot(xs[0, 1], xs[0, 3]), np.hypot(xs[-1, 1], xs[-1, 3])) \
                 < cfg.respot_rest_speed_mm_s:
             return False  # rests at one end: put down by hand, or comes to rest
-        if tr.ended is None and tr.frames[-1] == self._frame:
-            return False  # still in view when the clip ends
+        if tr.ended is None:
+            return False  # not lost for ``coast_s`` before the clip ends
         f0, z0 = tr.frames[0], xs[0, 0::2]
         dt = tr.times[1] - tr.times[0] if len(tr.times) > 1 else 0.0
         reach = self.table.ball_diameter_mm + 2.0 * float(np.hypot(xs[0, 1], xs[0, 3])) * dt
