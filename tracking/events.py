@@ -2308,7 +2308,7 @@ class _Finder:
         if len(mine) != 1:
             return []
         partner = mine[0][0] if mine[0][1] == driver else mine[0][1]
-        (d_in, d_out), (p_in, p_out) = fits[driver], fits[partner]
+        (_, d_out), (p_in, p_out) = fits[driver], fits[partner]
         u = pos[partner] - pos[driver]
         u = u / max(float(np.hypot(*u)), 1e-12)
         gap = float((p_in.vel(t_c) - d_out.vel(t_c)) @ u)  # > 0: driver slower than one impact
@@ -2319,7 +2319,8 @@ class _Finder:
         if s is None:
             return []
         # The touch's Gaussian estimate N(mu, var) restricted to where the second contact can
-        # lie, after the first and before the frame after it: the mean of the truncated normal.
+        # lie, after the first and before the frame after it: the mean of the truncated normal
+        # (common practice).
         mu, sd_t = s[0], math.sqrt(max(s[1], 1e-18))
         t_k = float(truncnorm.mean((t_c - mu) / sd_t, (t_c + self.dt - mu) / sd_t, loc=mu,
                                    scale=sd_t))
