@@ -120,9 +120,9 @@ def test_collision_impulse_sigmas_is_validated():
             EventConfig(collision_impulse_sigmas=bad)
 
 
-def _cluster_shot(fps, tilt_deg, speed_mm_s, seed, noise_mm=1.0):
+def _cluster_shot(fps, tilt_deg, speed_mm_s, seed, noise_mm=1.0, spread_deg=30.0):
     """A cue ball driven at ``speed_mm_s`` into a ball with two more resting 0.3 mm clear of it
-    behind, 30 degrees either side of the line of aim (one tilted by ``tilt_deg``), simulated
+    behind, ``spread_deg`` either side of the line of aim (one tilted by ``tilt_deg``), simulated
     by our own simulator (``analysis.physics``), sampled at ``fps`` with Gaussian noise.
 
     Returns (the simulator's collisions as (t, pair) with pair the sorted ball names, the
@@ -131,7 +131,7 @@ def _cluster_shot(fps, tilt_deg, speed_mm_s, seed, noise_mm=1.0):
 
     c1 = np.array([1800.0, 635.0])
     g = D + 0.3
-    up, down = np.radians(30.0 + tilt_deg), np.radians(30.0 - tilt_deg)
+    up, down = np.radians(spread_deg + tilt_deg), np.radians(spread_deg - tilt_deg)
     balls = {"cue": (700.0, 640.0), "b1": tuple(c1),
              "b2": tuple(c1 + g * np.array([np.cos(up), -np.sin(up)])),
              "b3": tuple(c1 + g * np.array([np.cos(down), np.sin(down)]))}
@@ -181,6 +181,39 @@ def test_a_ball_driven_into_a_cluster_meets_the_ball_it_hits(fps):
             assert {p for _, p in found} == set(first), (tilt, speed, truth, found)
             # Simulator truth; half a frame is issue 4's collision time target.
             assert all(abs(t - first[p]) <= 0.5 / fps for t, p in found), (tilt, speed, found)
+
+
+def test_a_cue_ball_struck_back_by_the_ball_it_drove_into_a_cluster_meets_it_twice():
+    # The cluster above at 3.5 m/s: b1, driven into two balls 30 degrees either side of it
+    # (together 1.5 balls' mass along its line, 2 cos^2 30), bounces back into the cue ball
+    # 1-1.3 ms after their first contact, and the cue ball leaves backward at about 250 mm/s;
+    # one impact of equal balls (restitution at most 1) never sends the striker back (Newton's
+    # restitution law with momentum conservation, Alciatore 2004). The second contact must
+    # be reported within half a frame of the simulator's (issue 4's collision target), at
+    # 30, 60 and 120 fps. With the two balls 60 degrees either side (0.5 of a ball along the
+    # line) b1 runs on and the simulator has one cue-b1 contact: none more may be reported.
+    # Measured: found in 11 of the 12 draws below, at most 0.12 frame from the simulator's
+    # (120 fps, tilt 12, seed 1: the cue ball's backward speed there is within the noise);
+    # none at 60 degrees. Before: none found.
+    found_kisses = 0
+    for fps in (30.0, 60.0, 120.0):
+        for tilt in (0.0, 12.0):
+            for seed in (0, 1):
+                truth, found = _cluster_shot(fps, tilt, 3500.0, seed=seed)
+                t_true = sorted({round(t, 6) for t, p in truth if p == ("b1", "cue")})
+                assert len(t_true) == 2 and t_true[1] - t_true[0] > 1e-3, truth  # the scenario
+                t_found = sorted({round(t, 6) for t, p in found if p == ("b1", "cue")})
+                assert len(t_found) <= 2, found
+                if len(t_found) == 2:
+                    found_kisses += 1
+                    # Simulator truth; half a frame is issue 4's collision time target.
+                    assert abs(t_found[1] - t_true[1]) <= 0.5 / fps, (fps, tilt, seed, found)
+                truth, found = _cluster_shot(fps, tilt, 3500.0, seed=seed, spread_deg=60.0)
+                assert len({round(t, 6) for t, p in truth if p == ("b1", "cue") and t < 0.7}) == 1, \
+                    truth
+                t_found = {round(t, 6) for t, p in found if p == ("b1", "cue") and t < 0.7}
+                assert len(t_found) == 1, (fps, tilt, seed, found)
+    assert found_kisses >= 11, found_kisses
 
 
 def _collision_time_errors(p_obj, v_cue, detect) -> list[float]:

@@ -117,7 +117,10 @@ Method
    (a ball driven into touching balls, a rack) meet within a fraction of a millisecond, so
    each ball's samples show only the sum of its impulses: the pairs are found by splitting
    each ball's velocity change into non-negative impulses along the lines of centres of the
-   balls in contact at the driven ball's first touch (``_Finder.cluster``).
+   balls in contact at the driven ball's first touch (``_Finder.cluster``). A driven ball
+   touching one ball of the cluster that leaves it slower along their line of centres than
+   that ball came (which one impact never does) was struck back by it: that pair's second
+   contact is reported where their departure paths touch (``_Finder._kiss_back``).
    *Start*:
    the first moving samples' fit extrapolated back to the rest position; a motion that begins
    at a collision has none, unless the ball left rest at an earlier frame than the ball it
@@ -143,7 +146,7 @@ import numpy as np
 import pandas as pd
 
 from scipy.optimize import minimize_scalar, nnls
-from scipy.stats import chi2
+from scipy.stats import chi2, truncnorm
 
 from vision.table import RAILS, TableSpec, cushion_angles, rail_inward_normal
 
@@ -2419,7 +2422,62 @@ class _Finder:
                          speed_out=float(np.hypot(*fout.vel(t_e))), other=other)
                 r["driver"] = driver if me != driver else other
                 rows.append(r)
+        if rows:
+            rows += self._kiss_back(driver, pairs, fits, pos, t_c)
         return t_c, rows, touching
+
+    def _kiss_back(self, driver: int, pairs: list[tuple[int, int]], fits: dict, pos: dict,
+                   t_c: float) -> list[dict]:
+        """Rows of a second contact between the driven ball and the one ball it touches in a
+        cluster (``cluster``), where that ball came back into it; none where it did not.
+
+        Method: in one impact of equal smooth spheres with restitution e <= 1 the striker's
+        velocity along the line of centres u (unit, striker to struck) becomes
+        ``v_d' . u = v_p . u + (1 - e) / 2 (v_d - v_p) . u`` (Newton's law of restitution with
+        conservation of momentum; Alciatore 2004), so it never falls below the struck ball's
+        before the impact. The driven ball touches no other ball of the cluster, so its
+        departure (``fits[driver][1]``) below its partner's approach along u, beyond
+        ``collision_impulse_sigmas`` standard errors, can only come of a second impulse from
+        that partner: the partner, driven into balls that outweigh it along the line (two
+        touching balls at 30 degrees either side of it weigh 1.5 balls along it), bounced back
+        into the striker (uneven_60fps of ``benchmarks/analyse_accuracy.py --extra``: the cue
+        ball driven at 3.2 m/s into a three-ball cluster is struck back 2.3 ms after the first
+        contact, leaving backward at 230 mm/s). The second contact is the pair's last, so
+        their departure paths are one diameter apart there (``_touch_time`` on the departure
+        fits), known to a few milliseconds (about a quarter of a frame at 60 fps) and then
+        often before ``t_c`` itself, which a detection bias of a millimetre or two moves by
+        as much: the time reported is that touch's estimate restricted to after ``t_c`` and
+        within the frame interval after it (the mean of the truncated normal distribution),
+        for a touch within three frame intervals of ``t_c`` (where ``_touch_time`` looks); the
+        speed before it (held for a fraction of a frame) is left empty.
+        """
+        mine = [p for p in pairs if driver in p]
+        if len(mine) != 1:
+            return []
+        partner = mine[0][0] if mine[0][1] == driver else mine[0][1]
+        (_, d_out), (p_in, p_out) = fits[driver], fits[partner]
+        u = pos[partner] - pos[driver]
+        u = u / max(float(np.hypot(*u)), 1e-12)
+        gap = float((p_in.vel(t_c) - d_out.vel(t_c)) @ u)  # > 0: driver slower than one impact
+        sd = math.sqrt(max(d_out.vel_var(t_c) + p_in.vel_var(t_c), 1e-12))
+        if gap < self.cfg.collision_impulse_sigmas * sd:
+            return []
+        s = self._touch_time(d_out, p_out, t_c, approach=False)
+        if s is None:
+            return []
+        # The touch's Gaussian estimate N(mu, var) restricted to where the second contact can
+        # lie, after the first and before the frame after it: the mean of the truncated normal
+        # (common practice).
+        mu, sd_t = s[0], math.sqrt(max(s[1], 1e-18))
+        t_k = float(truncnorm.mean((t_c - mu) / sd_t, (t_c + self.dt - mu) / sd_t, loc=mu,
+                                   scale=sd_t))
+        rows = []
+        for me, other, fout in ((driver, partner, d_out), (partner, driver, p_out)):
+            r = _row(t_k, "collision", me, fout.pos(t_k),
+                     speed_out=float(np.hypot(*fout.vel(t_k))), other=other)
+            r["driver"] = driver if me != driver else other
+            rows.append(r)
+        return rows
 
     # --- start, stop, pocket ----------------------------------------------------------------
     def _leaving(self, b: _Ball, i0: int):

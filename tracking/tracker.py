@@ -91,6 +91,10 @@ Method
   Such tracks are left out of ``result`` and ``endings``. These restarts are counted on the
   track's filter run a second time on the detector's stated noise alone, as the noise a hand
   scatters its detections by would loosen the track's own filter until it no longer restarts.
+  A track too short for that count is judged by where it came from and went: first seen moving
+  with no ball near that could have struck it, taking or giving no other piece's id, and lost
+  while moving before the clip ends, it is no ball when its course restarts at more than
+  ``max_break_share`` of the detections from its third on (``Tracker._from_nowhere``).
 * A ball put down by hand (re-spotted between shots, or taken out of a pocket and spotted) is
   the ball it was: a new track confirmed at rest, on sure labels, while every established ball
   rests takes back the id of an ended (or unseen, coasting) track with the same identity labels,
@@ -515,15 +519,7 @@ class Tracker:
         A ball lost while moving and found again along its way keeps its id
         (:meth:`_resumed_ids`).
         """
-        kept = []
-        for tr in self._tracks:
-            if not tr.confirmed:
-                continue
-            tr.trim_unseen_tail()
-            if not tr.frames or not self._moves_like_a_ball(tr):
-                continue
-            kept.append((tr, self._smooth(tr)))
-        same = self._resumed_ids(kept)
+        kept, same = self._ball_tracks()
         rows = [g for g in (self._resumed_gap(tr, xs, kept, same) for tr, xs in kept
                             if tr.track_id in same) if len(g)]
         for tr, xs in kept:
@@ -548,9 +544,7 @@ class Tracker:
     def endings(self) -> pd.DataFrame:
         """Ended tracks: columns ``track, frame, t, x, y, reason`` (``pocket`` or ``lifted``) at
         the last detection (ids as in :meth:`result`)."""
-        kept = [(tr, self._smooth(tr)) for tr in self._tracks
-                if tr.confirmed and tr.frames and self._moves_like_a_ball(tr)]
-        same = self._resumed_ids(kept)
+        kept, same = self._ball_tracks()
         rows = [dict(track=same.get(tr.track_id, tr.track_id), frame=tr.frames[-1],
                      t=tr.times[-1], x=tr.xs[-1][0], y=tr.xs[-1][2], reason=tr.ended)
                 for tr, _ in kept if tr.ended]
@@ -559,6 +553,25 @@ class Tracker:
             return pd.DataFrame({c: pd.Series(dtype=d) for c, d in zip(
                 cols, ["int64", "int64", "float64", "float64", "float64", "str"])})
         return pd.DataFrame(rows, columns=cols)
+
+    def _ball_tracks(self) -> tuple[list[tuple[_Track, np.ndarray]], dict[int, int]]:
+        """The confirmed tracks that are balls, each with its smoothed states (N, 4) ``[x, vx,
+        y, vy]`` (unseen tails trimmed), and the ids of balls found again after being lost
+        while moving ({new id: old id}, :meth:`_resumed_ids`). Left out: tracks that do not
+        move like a ball (:meth:`_moves_like_a_ball`) and those that come from nowhere and go
+        nowhere (:meth:`_from_nowhere`)."""
+        kept = []
+        for tr in self._tracks:
+            if not tr.confirmed:
+                continue
+            tr.trim_unseen_tail()
+            if tr.frames and self._moves_like_a_ball(tr):
+                kept.append((tr, self._smooth(tr)))
+        same = self._resumed_ids(kept)
+        balls = [(tr, xs) for tr, xs in kept if not self._from_nowhere(tr, xs, kept, same)]
+        if len(balls) < len(kept):
+            same = self._resumed_ids(balls)  # a dropped track may have stood in a resume's way
+        return balls, same
 
     def _resumed_gap(self, tr: _Track, xs: np.ndarray, kept: list[tuple[_Track, np.ndarray]],
                      same: dict[int, int]) -> pd.DataFrame:
@@ -672,20 +685,25 @@ class Tracker:
         """False for a track whose velocity restarts too often where nothing could have struck
         a ball: more than ``max_break_share`` of its detections, and at least ``min_breaks``
         times, past the track's first three frames (whose velocity is still settling), other
-        than turns off a cushion. No ball changes course so; a player's hand, arm or cue does
-        (``TrackerConfig``). A turn off a cushion is a restart within a diameter plus two
-        frames' travel of a rail's reversal line at which the ball was running into that rail
-        and, then or a frame later, runs out of it: a hand moving about beside a rail restarts
-        in any direction. Restarts at a cue strike or next to another ball are counted too: a
-        ball is struck or meets another a few times a shot at most, far from a quarter of its
-        detections. Restarts and velocities are those of the track's filter run on the noise
-        the detector states (``_stated_update``): a hand's erratic course raises the scatter
-        the track's own filter measures until that one no longer restarts."""
+        than turns off a cushion (:meth:`_course_breaks`). No ball changes course so; a
+        player's hand, arm or cue does (``TrackerConfig``). Restarts at a cue strike or next
+        to another ball are counted too: a ball is struck or meets another a few times a shot
+        at most, far from a quarter of its detections."""
         cfg = self.config
-        n_seen = sum(tr.seen)
+        n_breaks = self._course_breaks(tr, 3)
+        return n_breaks < cfg.min_breaks or n_breaks <= cfg.max_break_share * sum(tr.seen)
+
+    def _course_breaks(self, tr: _Track, k0: int) -> int:
+        """How often the track's course restarts at a detection from its row ``k0`` on, other
+        than in a turn off a cushion: a restart within a diameter plus two frames' travel of a
+        rail's reversal line at which the ball was running into that rail and, then or a frame
+        later, runs out of it (a hand moving about beside a rail restarts in any direction).
+        Restarts and velocities are those of the track's filter run on the noise the detector
+        states (``_stated_update``): a hand's erratic course raises the scatter the track's own
+        filter measures until that one no longer restarts."""
         n = len(tr.frames)
         n_breaks = 0
-        for k in range(3, n):
+        for k in range(max(k0, 1), n):
             if not (tr.odd[k] and tr.seen[k]):
                 continue
             x_prev = tr.sxs[k - 1]
@@ -699,7 +717,52 @@ class Tracker:
                    for _, ax, c, inward in self._lines):
                 continue
             n_breaks += 1
-        return n_breaks < cfg.min_breaks or n_breaks <= cfg.max_break_share * n_seen
+        return n_breaks
+
+    def _from_nowhere(self, tr: _Track, xs: np.ndarray, kept: list[tuple[_Track, np.ndarray]],
+                      same: dict[int, int]) -> bool:
+        """Whether ``tr`` (smoothed states ``xs`` (N, 4)) is a ball's look on something else:
+        nothing explains where it came from nor where it went, and its course restarts.
+
+        A ball on the cloth is set moving only from rest (a cue strike; a ball put down by
+        hand rests first) or by another ball's contact, and moving it only slows, turns at a
+        contact, comes to rest, drops into a pocket or goes on past a gap (Alciatore 2004).
+        So a track with a ball's look that is first seen moving (smoothed speed at least
+        ``respot_rest_speed_mm_s``) with no ball of ``kept`` within a diameter plus two frames'
+        travel of it there (none could have struck it), that takes no other piece's id (a
+        ball found again, :meth:`_resumed_ids`, or put back by hand) and gives none, and that
+        is lost while still moving (ended unseen for ``coast_s`` before the clip ends), has
+        neither a ball's beginning nor a
+        ball's end. If, besides, its course restarts (other than in a turn off a cushion,
+        :meth:`_course_breaks`) at more than ``max_break_share`` of the detections from its
+        third on, the first a prediction from two detections can test, it is not a ball: a
+        hand or arm reaching over a
+        corner during a stroke, seen for a few frames at low quality (tele_120fps of
+        ``benchmarks/analyse_accuracy.py --extra --auto-calibration``: frames 99-103, quality
+        0.24-0.41, jumping 20-60 mm a frame at 120 fps). The restart count of
+        :meth:`_moves_like_a_ball` cannot judge so short a track (it needs ``min_breaks``
+        restarts past the first three frames)."""
+        cfg = self.config
+        tid = tr.track_id
+        if tid in same or tid in same.values() \
+                or any(o is not tr and o.track_id == tid for o, _ in kept):
+            return False
+        if min(np.hypot(xs[0, 1], xs[0, 3]), np.hypot(xs[-1, 1], xs[-1, 3])) \
+                < cfg.respot_rest_speed_mm_s:
+            return False  # rests at one end: put down by hand, or comes to rest
+        if tr.ended is None:
+            return False  # not lost for ``coast_s`` before the clip ends
+        f0, z0 = tr.frames[0], xs[0, 0::2]
+        dt = tr.times[1] - tr.times[0] if len(tr.times) > 1 else 0.0
+        reach = self.table.ball_diameter_mm + 2.0 * float(np.hypot(xs[0, 1], xs[0, 3])) * dt
+        for o, oxs in kept:
+            if o is tr or not o.frames[0] <= f0 <= o.frames[-1]:
+                continue
+            k = int(np.searchsorted(o.frames, f0))
+            if o.frames[k] == f0 and float(np.hypot(*(oxs[k, 0::2] - z0))) < reach:
+                return False  # a ball beside it could have struck it
+        n_breaks = self._course_breaks(tr, 2)
+        return n_breaks >= 1 and n_breaks > cfg.max_break_share * sum(tr.seen[2:])
 
     def _predict(self, tr: _Track, t: float) -> dict:
         """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}."""
