@@ -1296,3 +1296,114 @@ def test_coloured_balls_are_placed_through_the_codecs_half_resolution_colour(tmp
     # conversion (a judgment, not a published figure): the luma keeps full resolution, so a
     # lossless encode need cost the outline little more.
     assert np.all(np.isfinite(err)) and np.median(err) <= 0.35, err
+
+
+def _disc_cover(det: BallDetector, x: float, y: float) -> np.ndarray:
+    """(H, W) share of each pixel the silhouette of a ball at (x, y) mm covers, drawn at 8x and
+    area-averaged, then blurred by a Gaussian of sigma 1 px (an optical blur)."""
+    import cv2
+
+    w, h = det.camera.image_size
+    up = 8
+    mask = np.zeros((h * up, w * up), np.uint8)
+    poly = det.rays.sphere_outline(x, y, R)
+    cv2.fillPoly(mask, [np.round((poly + 0.5) * up - 0.5).astype(np.int32)], 1)
+    return cv2.GaussianBlur(cv2.resize(mask.astype(np.float32), (w, h), interpolation=cv2.INTER_AREA), (0, 0), 1.0)
+
+
+def test_outline_noise_is_the_noise_over_the_rims_slope():
+    # A ball's rim as a step of known contrast C, blurred by a Gaussian of sigma 1 px (plus the
+    # pixel's box, variance 1/12 px^2), over an empty table whose noise sigma the model measured:
+    # a level crossing on an edge of slope g moves by sigma / g (common practice: the
+    # localisation error of a blurred step, Canny 1986). The slope by central difference over
+    # 1.5 px of an erf step is C (Phi(0.75 / s) - Phi(-0.75 / s)) / 1.5 (analytic).
+    from scipy.stats import norm
+
+    from vision.detect import _RAY_DIRS
+
+    s = SETUPS["green_high"]
+    cam, look = s["camera"], s["look"]
+    w, h = cam.image_size
+    cloth = np.array(look.cloth_bgr, float)
+    rng = np.random.default_rng(4)
+    det = BallDetector(cam, NINE_FOOT)
+    empty = np.clip(cloth + rng.normal(0.0, 2.0, (h, w, 3)), 0, 255).astype(np.uint8)
+    det.process(0, 0.0, empty)
+    # A model made from one frame holds that frame's noise and measures its floor (0.5 DN); the
+    # running model of a clip measures the frames' own noise, here 2 DN.
+    det.background.sigma = sigma = 2.0
+    x, y = 1400.0, 620.0
+    poly = det.rays.sphere_outline(x, y, R)
+    cover = _disc_cover(det, x, y)
+    for contrast_dn in (20.0, 40.0):
+        ball = cloth + contrast_dn * np.array([1.0, -0.5, -0.5]) / math.sqrt(1.5)
+        img = cloth + cover[..., None] * (ball - cloth)
+        img = np.clip(np.round(img), 0, 255).astype(np.uint8)
+        got = det._outline_noise_mm(img, np.array([x, y, 0.0]), False, _RAY_DIRS)
+        sb = math.sqrt(1.0 + 1.0 / 12.0)
+        g = contrast_dn * (norm.cdf(0.75 / sb) - norm.cdf(-0.75 / sb)) / 1.5
+        c = det.rays.project(np.array([[x, y, R]]))[0]
+        r_px = float(np.median(np.hypot(*(poly - c).T)))
+        want = max(sigma, 0.5) / g * R / r_px
+        assert got == pytest.approx(want, rel=0.15), (contrast_dn, got, want)
+    # An outline with no rim (bare noisy cloth: the slope of noise alone) gets no allowance.
+    assert det._outline_noise_mm(empty, np.array([x, y, 0.0]), False, _RAY_DIRS) == 0.0
+
+
+def test_a_dim_rim_is_allowed_the_spread_its_noise_gives_it():
+    # A ball whose rim stands only 40 DN from the cloth in 2 DN of noise: its outline points
+    # scatter by about half a millimetre from the noise alone (_outline_noise_mm), more than a
+    # model budget of 0.3 mm, which a clean bright rim meets (rms 0.16 mm at 80 DN here). Its
+    # outline's RMS (0.32-0.39 mm measured) is what the noise explains, so the ball is found,
+    # and where the noise put it: within 0.5 mm of the drawn centre (a quarter of a pixel at
+    # about 2.4 mm per pixel; the drawn disc is the truth, analytic). Main refused all six.
+    s = SETUPS["green_high"]
+    cam, look = s["camera"], s["look"]
+    w, h = cam.image_size
+    cloth = np.array(look.cloth_bgr, float)
+    errs = []
+    for seed in range(6):
+        rng = np.random.default_rng(seed)
+        det = BallDetector(cam, NINE_FOOT, DetectConfig(max_rms_mm=0.3))
+        det.process(0, 0.0, np.clip(cloth + rng.normal(0.0, 2.0, (h, w, 3)), 0, 255).astype(np.uint8))
+        det.background.sigma = 2.0  # the running model's measure of the frames' noise
+        x, y = 1400.0 + 7.0 * seed, 620.0
+        cover = _disc_cover(det, x, y)
+        ball = cloth + 40.0 * np.array([1.0, -0.5, -0.5]) / math.sqrt(1.5)
+        img = cloth + cover[..., None] * (ball - cloth) + rng.normal(0.0, 2.0, (h, w, 3))
+        out = det.process(1, 1 / 30, np.clip(np.round(img), 0, 255).astype(np.uint8))
+        errs.append(float(_match(out, np.array([[x, y]]))[0][0]))
+    assert np.all(np.array(errs) <= 0.5), errs
+
+
+@pytest.mark.xfail(strict=True, reason="issue 3: in a dark, vignetted corner a dim ball is placed 11.8 and "
+                   "7.7 mm off (median): the first ball's outline runs out along its shadow on one side "
+                   "and in along its highlight's edge on the other once the coarse fit has slid toward "
+                   "the shadow, as the phone clip's black ball's (session 11; the second not looked into)")
+def test_dim_balls_rolling_in_a_dark_corner_are_placed_within_the_moving_target():
+    # A wide phone lens low over a 7 ft table in a dim room (exposure 0.6, ambient 0.15, full
+    # vignetting, 3 DN of noise), 30 fps with the shutter open: two blue balls rolling at 280 mm/s
+    # near the bottom and right rails, where the vignetting is deepest. Renderer's truth at
+    # mid-exposure; the bound is issue 3's moving median (3 mm).
+    from vision.table import SEVEN_FOOT
+
+    r = SEVEN_FOOT.radius_mm
+    cam = Camera.overhead(SEVEN_FOOT, 1800.0, (1280, 720), offset_mm=(-160, -140), roll_deg=-1.0,
+                          dist=(-0.32, 0.11, 0.0006, -0.0004, -0.015))
+    look = Look(cloth_bgr=(58, 106, 46), cushion_bgr=(49, 90, 39), exposure=0.6, ambient=0.15, vignetting=1.0, noise_sigma=3.0)
+    balls = (BallLook("2", "solid", (176, 79, 29)), BallLook("3", "solid", (176, 79, 29)))
+    start = np.array([[1500.0, 60.0], [1880.0, 420.0]])
+    vel = np.array([[280.0, 0.0], [0.0, -280.0]])
+    ren = Renderer(SEVEN_FOOT, cam, look, balls, seed=11)
+    det = BallDetector(cam, SEVEN_FOOT)
+    n_sub, fps = 8, 30.0
+    errs = []
+    for i in range(16):
+        t = i / fps
+        sub = t + (1 / fps) * ((np.arange(n_sub) + 0.5) / n_sub - 0.5)
+        pos = start[None] + vel[None] * sub[:, None, None]
+        out = det.process(i, t, ren.render(pos, np.broadcast_to(np.eye(3), (n_sub, 2, 3, 3)).copy(), np.ones((n_sub, 2), bool), sub))
+        if i >= 4:  # the model's noise measure settles over its first updates
+            errs.append(_match(out, start + vel * t, gate=r)[0])
+    errs = np.array(errs)
+    assert np.all(np.isfinite(errs)) and np.all(np.median(errs, axis=0) <= 3.0), np.median(errs, axis=0)

@@ -132,7 +132,10 @@ lost for those frames); the end of an arm exactly a ball wide and still is not t
 by its ring; a dark ball of the cloth's hue, or a black ball on grey cloth, with no highlight
 within 0.7 of its radius and another ball within 3 R is taken for a cast shadow and missed, and
 a ball whose long shadow from a low lamp joins it in one piece can be placed on the shadow
-(about 25 mm off on blue and grey cloth in tests/test_detect.py); colour labels are coarse; the speed is far below the issue's target (see the
+(about 25 mm off on blue and grey cloth in tests/test_detect.py); in a dark, vignetted corner
+a dim ball whose shaded side meets its shadow can be placed 8-12 mm toward the shadow, its
+outline run out along the shadow on that side and in along its highlight's edge on the other
+(the phone clip's black ball, two blue balls in tests/test_detect.py, strict xfail); colour labels are coarse; the speed is far below the issue's target (see the
 benchmarks). A resting ball's error on compressed video is set mostly by the codec, not by a
 bias of the method: on the benchmark scenes the resting median is 1.25 mm at their own H.264
 crf 20-28 and 0.73 mm lossless with 4:2:0 chroma kept (``benchmarks/detect_accuracy.py
@@ -266,6 +269,30 @@ _HUE_RAYS = 0.75
 # hue whose fit has slid half onto its own shadow is kept rather than taken for a neighbour's
 # shadow.
 _CASTER_R = 3.0
+# A dim ball's outline RMS is accepted up to this many times the spread the image noise alone
+# gives its outline (:meth:`BallDetector._outline_noise_mm`) where that exceeds ``max_rms_mm``
+# (the model's own misfit on a clean rim): the larger of the two, not their quadrature sum,
+# so a rim whose noise spread is well under the budget keeps the budget exactly (the sum
+# raised every limit a little: an arm's fit at 2.01 mm passed 2.02 on tele_120fps, session 10).
+# The 48 rays' errors are correlated over about _RAY_CORR rays (a third of the outline), so
+# their RMS holds about three independent errors: sqrt(chi2_0.99(3) / 3) = sqrt(11.34 / 3) =
+# 1.94 is its 99th percentile for normal errors (chi-square table).
+_RMS_NOISE_Z = 1.94
+# Largest outline noise (px) that still marks a rim: on bare cloth the slope of noise alone
+# gives about 1.2 px (0.8 noise sigmas per px: rendered cloth of noise sigma 2 in
+# tests/test_detect.py), so a rim that leaves 0.5 px has a slope 2.5 times what noise alone
+# gives. A fit whose outline is noisier (a pocket's dark mouth, bare cloth) found no rim, and its
+# limit is not widened (2.2-3.7 px measured on a pocket of phone_wide_30fps, 0.36-0.53 px on
+# the dim blue ball in the dark corner beside it). Not a published figure.
+_MAX_NOISE_PX = 0.5
+# Least share of agreeing rays for that allowance: noise scatters a dim rim's points all round
+# but leaves them on it, while a fit that half the rays disagree with has lost part of its rim
+# (to a shadow, a shaded limb, a streak's faint end), and its RMS over the rest tells nothing
+# of the sphere. On phone_wide_30fps the dim blue ball's fits refused at 2.1-3.2 mm agreed on
+# 0.77-0.96 of the rays in most frames and were 0.7-6 mm off; those the quadrature allowance
+# let in that were 7-12 mm off along their streak agreed on 0.46-0.69 (session 10's branch
+# shadow). A three-quarter share lies between; not a published figure.
+_NOISY_MIN_SHARE = 0.75
 
 
 @dataclass(frozen=True)
@@ -276,7 +303,10 @@ class DetectConfig:
     this many noise sigmas and this score. ``cell_px``: side of the change-detection
     cells; ``change_dn``: mean change of a cell that marks it changed. ``min_inlier_share``:
     least share of the 48 outline rays that must agree with the sphere; ``max_rms_mm``: largest
-    RMS distance of the agreeing rays from the model for a sharp ball (doubled for a blurred one).
+    RMS distance of the agreeing rays from the model for a sharp ball (doubled for a blurred one),
+    raised for a dim rim to the spread the image noise alone gives its outline where that is
+    larger (:meth:`BallDetector._outline_noise_mm`, ``_RMS_NOISE_Z``; only for fits most rays
+    agree with, ``_NOISY_MIN_SHARE``).
     ``max_half_travel_mm``: longest half streak accepted (4 m/s for 1/30 s is 67 mm).
     ``local_min_sigmas``: least rim contrast, in noise sigmas of a colour
     difference, for a ray of the local sub-pixel edge. ``update_every_s``: interval of the background's running update. ``background``: the
@@ -2291,6 +2321,12 @@ class BallDetector:
         share = inl.sum() / n_rays
         rms = float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
         max_rms = self.config.max_rms_mm * (2.0 if capsule else 1.0)
+        if rms > max_rms and share >= _NOISY_MIN_SHARE:
+            # A dim ball's outline is noisier, not worse: the limit is what the image noise
+            # alone would give its outline where that is more (:meth:`_outline_noise_mm`).
+            noise_mm = self._outline_noise_mm(img, p, capsule, dirs[good][inl])
+            max_rms = max(max_rms, _RMS_NOISE_Z * noise_mm)
+            log.debug("outline noise %.2f mm: limit %.2f mm", noise_mm, max_rms)
         log.debug("fit at %.1f, %.1f: share %.2f rms %.2f mm bias %.2f mm", p[0], p[1], share, rms, p[2])
         # Angular coverage: the largest gap between agreeing rays.
         angs = ang[good][inl]
@@ -2328,6 +2364,39 @@ class BallDetector:
             "blur_y": travel * math.sin(hd),
             "sigma_mm": sig,
         }
+
+    def _outline_noise_mm(self, img: np.ndarray, p: np.ndarray, capsule: bool, dirs: np.ndarray) -> float:
+        """Standard deviation (mm, across the outline) that the image noise alone gives each
+        outline point of the ball fitted as ``p`` (:func:`_residuals`' parameters; a streak when
+        ``capsule``): a level crossing on an edge of slope ``g`` moves by ``noise / g`` (common
+        practice: the localisation error of a blurred step, e.g. Canny 1986's localisation
+        criterion), with ``noise`` the background's per-channel sigma (the noise along the
+        edge's colour direction) and ``g`` the median over the rays ``dirs`` (K, 2) (the fit's
+        agreeing rays) of the colour's slope (DN per px, central difference over 1.5 px) across
+        the found outline (at ``R - bias``);
+        px to mm at the ball's scale (its diameter over its image's). A bright rim against the
+        cloth gives a few hundredths of a mm; a dim ball in a dark corner half a mm or more.
+        0 where the noise exceeds ``_MAX_NOISE_PX`` (no rim was found to be noisy)."""
+        R = self.R
+        half, hd = (float(p[3]), float(p[4])) if capsule else (0.0, 0.0)
+        poly = _swept_outline_px(self.camera, float(p[0]), float(p[1]), half, hd, R, self.rays)
+        c = self.rays.project(np.array([[p[0], p[1], R]]))[0]
+        if len(dirs) == 0 or not np.all(np.isfinite(c)):
+            return 0.0
+        rho = _ray_polygon(c, dirs, poly)
+        if not np.all(np.isfinite(rho)):
+            return 0.0
+        rho_out = rho * (R - float(p[2])) / R
+        r = np.maximum(rho_out[:, None] + np.array([-0.75, 0.75])[None, :], 0.0)
+        mx = (c[0] + r * dirs[:, 0:1]).astype(np.float32)
+        my = (c[1] + r * dirs[:, 1:2]).astype(np.float32)
+        prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        g = _median(_norm3(prof[:, 0] - prof[:, 1]) / 1.5)
+        noise_px = max(self.background.sigma, 0.5) / max(g, 1e-6)
+        log.debug("outline noise %.3f px (slope %.2f DN/px, sigma %.2f)", noise_px, g, self.background.sigma)
+        if noise_px > _MAX_NOISE_PX:
+            return 0.0
+        return noise_px * R / max(_median(rho), 1e-6)
 
     def _on_table(self, x: float, y: float) -> bool:
         """A centre can lie no farther out than the reversal line (a few mm of calibration slack),
