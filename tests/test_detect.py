@@ -1407,3 +1407,47 @@ def test_dim_balls_rolling_in_a_dark_corner_are_placed_within_the_moving_target(
             errs.append(_match(out, start + vel * t, gate=r)[0])
     errs = np.array(errs)
     assert np.all(np.isfinite(errs)) and np.all(np.median(errs, axis=0) <= 3.0), np.median(errs, axis=0)
+
+
+# The extra set's one-lamp room (benchmarks/extra_scenes: a low lamp at one end of an 8 ft
+# table, little room light, burgundy cloth, a 2.4 m camera off-centre, 50 fps with a 1/60 s
+# shutter, H.264 at constant rate factor 26): far from the lamp each ball's shadow is long and
+# deep and joins it in one piece of foreground. Cases: (ball, centre (x, y) mm at mid-exposure,
+# velocity (vx, vy) mm/s, tolerance mm).
+ONE_LAMP_CAM = Camera.overhead(EIGHT_FOOT, 2400.0, (1280, 720), offset_mm=(220, 110), roll_deg=-2.5, dist=(-0.15, 0.03, 0, 0, 0))
+ONE_LAMP = {
+    # The cue ball resting: one piece with its shadow, seeded once near its middle, was fitted
+    # on the shadow 25 mm off with its own lit rim inside the disc, which the shadow test took
+    # for a highlight (main, session 11). The resting target's p95 (2.5 mm, README).
+    "resting_cue": (BallLook("cue", "cue", (226, 234, 236)), (1500.0, 800.0), (0.0, 0.0), 2.5),
+    # The cue ball at 2.3 m/s, its 38 mm streak and its shadow fitted as two overlapping balls
+    # that passed for a hand's two ends (no waist between them), so both were dropped (main,
+    # session 11). The moving target's p95 (8 mm, README).
+    "fast_cue": (BallLook("cue", "cue", (226, 234, 236)), (1571.0, 1068.0), (1550.0, -1650.0), 8.0),
+}
+
+
+@pytest.mark.parametrize("name", list(ONE_LAMP))
+def test_a_ball_beside_its_own_long_shadow_is_found_on_itself(name, tmp_path):
+    from scipy.spatial.transform import Rotation
+
+    from vision.video import iter_frames, write_video
+
+    ball, at, v, tol = ONE_LAMP[name]
+    cloth = (43, 31, 122)
+    look = Look(cloth_bgr=cloth, cushion_bgr=tuple(int(0.85 * c) for c in cloth), ambient=0.12, exposure=1.3, noise_sigma=2.0, lamps=(Lamp((600.0, 500.0, 800.0)),))
+    ts = np.linspace(0.0, 1 / 60, 12)  # sub-samples across the open shutter
+    pos = np.array(at)[None, None] + (ts - ts.mean())[:, None, None] * np.array(v)[None, None]
+    rot = np.repeat(Rotation.random(1, random_state=3).as_matrix()[None], len(ts), axis=0)
+    ren = Renderer(EIGHT_FOOT, ONE_LAMP_CAM, look, (ball,), seed=7)
+    empty = ren.render(pos[:1], rot[:1], np.zeros((1, 1), bool), np.zeros(1))
+    seen = ren.render(pos, rot, np.ones((len(ts), 1), bool), 0.02 + ts)
+    clip = tmp_path / "one_lamp.mp4"
+    write_video(clip, [empty, seen], 50, codec="h264", quality=26)
+    det = BallDetector(ONE_LAMP_CAM, EIGHT_FOOT)
+    outs = [det.process(i, t, img) for i, t, img in iter_frames(clip)]
+    truth = np.array([at])
+    err, _ = _match(outs[1], truth, EIGHT_FOOT.radius_mm)
+    # Renderer's truth (the centre at mid-exposure); one detection, on the ball, none on its
+    # shadow (issue 3: no false balls from shadows).
+    assert len(outs[1]) == 1 and err[0] <= tol, (name, outs[1], err)

@@ -99,7 +99,13 @@ Method
    the cloth in it (no highlight, no lit side: :func:`_cast_shadow`) is a lamp's cast shadow,
    not a ball, when another ball lies within 3 R to cast it; with none there, the piece's
    pixels off the cloth's hue or brighter than it seed the casting ball instead
-   (:meth:`BallDetector._drop_cast_shadows`).
+   (:meth:`BallDetector._drop_cast_shadows`), and so they do where a fit's disc is dark and,
+   less that ball's pixels, has no light of its own (a fit settled on its own ball's shadow,
+   the ball's lit rim in its disc). Where a ball and its shadow make one piece fitted as two
+   overlapping balls, the shadow (dark, no highlight once the lit balls' pixels are left out:
+   :func:`_unlit`) is no ball end of a hand (:meth:`BallDetector._casters_only`); it goes and
+   its caster is refitted with the rays toward it left out of every round (its dark limb runs
+   into the shadow with no rim to find).
 6. *Sub-pixel outline* (sharp balls): up to six further rounds place each outline point by
    :meth:`BallDetector._edges_local`, refitting the sphere each round until the centre moves
    less than 0.05 mm; if that fit agrees worse with the sphere than the coarse one, the coarse
@@ -898,6 +904,25 @@ def _cast_shadow(I: np.ndarray, B: np.ndarray) -> bool:
     return am < 1.0 / _SAME_BRIGHT and float(_chroma_off(Im[None], Bm[None], np.array([am]))[0]) < _HUE_STEP
 
 
+def _unlit(I: np.ndarray, B: np.ndarray) -> bool:
+    """Whether a disc's pixels ``I`` (N, 3) over the empty table ``B`` (N, 3), those of the lit
+    balls beside it left out, are a ball's cast shadow: dark (brightness ratio of the means,
+    I.B / B.B, below 1 / ``_SAME_BRIGHT``) with no pixel brighter than the empty table by
+    :func:`ballness`'s bound 1.15 (no highlight and no lit side of its own; Blinn 1977). The
+    hue is not asked for, unlike :func:`_cast_shadow`: a shadow too deep for its own hue to be
+    measured (its light is the room's and the cloth's bounce, and noise is a large share of
+    its few DN) leaves the cloth's colour direction, as :meth:`BallDetector._edges` allows for
+    deep shade; its caster beside it, found first, is what tells it from a dark ball. False
+    for no pixels."""
+    if len(I) == 0:
+        return False
+    I = np.asarray(I, np.float32)
+    B = np.asarray(B, np.float32)
+    a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
+    Im, Bm = I.mean(axis=0), B.mean(axis=0)
+    return float(a.max()) <= 1.15 and float(Im @ Bm) / max(float(Bm @ Bm), 1.0) < 1.0 / _SAME_BRIGHT
+
+
 def _off_white_cloth(I: np.ndarray, W: np.ndarray, C: np.ndarray) -> np.ndarray:
     """(N,) sine of the angle between colours ``I`` (N, 3) and the nearest non-negative mix
     ``a W + b C`` of a white ``W`` (3,) and the empty table ``C`` (N, 3) at the same pixels: the
@@ -1678,11 +1703,60 @@ class BallDetector:
             rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
             left = float(rest.sum())
             beside = any(s.get("beside") and s["piece"][0] is comp for s in seeds if "piece" in s)
-            if left <= area_ball and not beside and not self._bridged(comp, origin, mask, [fits[k] for k in ks]):
+            balls = self._casters_only(img, [fits[k] for k in ks])
+            shadows = [fits[k] for k in ks if not any(fits[k] is b for b in balls)]
+            if left <= area_ball and not beside and not self._bridged(comp, origin, mask, balls, shadows):
+                # A shadow fitted beside its caster has done its part (its outline explains
+                # its foreground) and goes; the caster is refitted with the rays toward it left
+                # out of every round, as the ball's dark limb runs into its own shadow there
+                # with no rim to find (the coarse outline takes the terminator instead, inside
+                # the outline, and the fit leans away from the shadow).
+                gone = [k for k in ks if any(fits[k] is g for g in shadows)]
+                for k in gone:
+                    out[k] = None
+                shade = np.array([[fits[k]["x"], fits[k]["y"]] for k in gone]).reshape(-1, 2)
+                for k in ks:
+                    r = fits[k]
+                    if k in gone or r["blur_x"] or r["blur_y"]:
+                        continue
+                    own = shade[np.hypot(shade[:, 0] - r["x"], shade[:, 1] - r["y"]) < _CASTER_R * self.R]
+                    if len(own):
+                        again = self._fit_seed(img, dict(seeds[k], uv=np.array([r["u"], r["v"]]), half_px=0.0), avoid=own, avoid_coarse=True)
+                        if again is not None:
+                            out[k] = again
                 continue
             for k in ks:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
         return out
+
+    def _casters_only(self, img: np.ndarray, rows: list[dict]) -> list[dict]:
+        """``rows`` (detection rows fitted in one piece) less the sharp ones that are a cast
+        shadow (:func:`_unlit`, without the lit balls' pixels) with another of the rows, no
+        such shadow, within ``_CASTER_R`` radii to cast it. A lamp's shadow starts under the ball casting it, so
+        seen from above ball and shadow make one piece with no waist between them, as wide
+        across their join as the ball: fitted as two overlapping balls they would pass for the
+        two rounded ends of a hand (:meth:`_bridged`). A fast ball's streak, whose ends carry
+        no lit crown to tell it by the waist alone, is so lost with its shadow."""
+        if len(rows) < 2:
+            return rows
+        # Judged without the pixels of the lit balls: the shadow's disc reaches into its
+        # caster's lit side, which is no highlight of its own, while two touching balls'
+        # shadows fitted as balls would hide each other. Brightest first, a row is lit when its
+        # disc, less the lit rows' silhouettes, is no darker than the cloth beside a shadow
+        # (mean brightness ratio at least 1 / _SAME_BRIGHT); a streak counts as lit.
+        lit = [r for r in rows if r["blur_x"] or r["blur_y"]]
+        sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
+        for r in sorted(sharp, key=lambda r: -self._disc_brightness(img, r)):
+            if self._disc_brightness(img, r, lit) >= 1.0 / _SAME_BRIGHT:
+                lit.append(r)
+        # Two balls cannot overlap: a fit whose disc the lit balls' silhouettes half cover is
+        # no ball beside them, and what is left of its disc is judged, however little.
+        shade = [not any(r is o for o in lit) and _unlit(*self._disc_own_pixels(img, r, lit, 0.0)) for r in rows]
+        if not any(shade):
+            return rows
+        casters = np.array([[r["x"], r["y"]] for r, s in zip(rows, shade) if not s]).reshape(-1, 2)
+        return [r for r, s in zip(rows, shade)
+                if not (s and len(casters) and np.min(np.hypot(casters[:, 0] - r["x"], casters[:, 1] - r["y"])) < _CASTER_R * self.R)]
 
     def _drop_cast_shadows(self, img: np.ndarray, fits: list[dict | None], known: list[dict] = (), seeds: list[dict] | None = None,
                            tested: dict[int, tuple[dict, bool]] | None = None) -> list[dict | None]:
@@ -1711,10 +1785,14 @@ class BallDetector:
             if got is None or got[0] is not fits[k]:
                 tested[id(fits[k])] = (fits[k], self._disc_cast_shadow(img, fits[k]))
         shade = {k for k in sharp if tested[id(fits[k])][1]}
-        if not shade:
-            return fits
-        casters = np.array([[r["x"], r["y"]] for k, r in enumerate(fits) if r is not None and k not in shade] + [[r["x"], r["y"]] for r in known]).reshape(-1, 2)
         out = list(fits)
+        if seeds is not None:
+            for k in sharp:
+                if k not in shade and "piece" in seeds[k]:
+                    out[k] = self._off_own_shadow(img, fits[k], seeds[k], [r for r in fits if r is not None] + list(known))
+        if not shade:
+            return out
+        casters = np.array([[r["x"], r["y"]] for k, r in enumerate(fits) if r is not None and k not in shade] + [[r["x"], r["y"]] for r in known]).reshape(-1, 2)
         for k in shade:
             r = fits[k]
             if len(casters) and np.min(np.hypot(casters[:, 0] - r["x"], casters[:, 1] - r["y"])) < _CASTER_R * self.R:
@@ -1725,15 +1803,50 @@ class BallDetector:
                     out[k] = ball
         return out
 
-    def _caster_of(self, img: np.ndarray, shadow: dict, seed: dict) -> dict | None:
+    def _off_own_shadow(self, img: np.ndarray, row: dict, seed: dict, found: list[dict]) -> dict:
+        """``row`` (a sharp fit of ``seed``, :meth:`_seeds_of`), or the ball casting it where it
+        is a fit on that ball's own shadow: the piece's lit pixels seed a ball beside it
+        (:meth:`_caster_of`) that no fit of ``found`` (detection rows) already is, and judged
+        without that ball's pixels the disc is a shadow (:func:`_unlit`). A ball and its long
+        shadow make one piece, seeded once near its middle; the fit can settle on the shadow
+        with the ball's lit rim inside its disc, which the shadow test (:func:`_cast_shadow`)
+        then takes for the fit's own highlight."""
+        if self._disc_brightness(img, row) >= 1.0 / _SAME_BRIGHT:
+            return row
+        ball = self._caster_of(img, row, seed, found)
+        if ball is None or any(math.hypot(f["x"] - ball["x"], f["y"] - ball["y"]) < self.R for f in found if f is not row):
+            return row
+        # Two balls cannot overlap: a caster nearer than 2 R is the only ball there, and
+        # whatever of the disc its silhouette leaves is judged, however little.
+        near = math.hypot(ball["x"] - row["x"], ball["y"] - row["y"]) < 2 * self.R
+        return ball if _unlit(*self._disc_own_pixels(img, row, [ball], 0.0 if near else 0.5)) else row
+
+    def _inside_any(self, us: np.ndarray, vs: np.ndarray, rows: list[dict]) -> np.ndarray:
+        """(N,) bool: whether pixels ``us``, ``vs`` (int arrays, px) lie inside the silhouette
+        of any of ``rows`` (detection rows, sharp or swept), grown by 2 px for the blurred rim
+        as :meth:`_components` grows them."""
+        u0, v0 = int(us.min()), int(vs.min())
+        mask = np.zeros((int(vs.max()) - v0 + 1, int(us.max()) - u0 + 1), np.uint8)
+        for o in rows:
+            half = max(0.5 * math.hypot(o["blur_x"], o["blur_y"]) - self.R, 0.0)
+            c = np.array([o["u"], o["v"]])
+            out = _swept_outline_px(self.camera, o["x"], o["y"], half, math.atan2(o["blur_y"], o["blur_x"]), self.R, self.rays) - c
+            out *= (1.0 + 2.0 / np.maximum(np.hypot(out[:, 0], out[:, 1]), 1.0))[:, None]
+            cv2.fillPoly(mask, [np.round(out + c - np.array([u0, v0])).astype(np.int32)], 1)
+        return mask[vs - v0, us - u0] > 0
+
+    def _caster_of(self, img: np.ndarray, shadow: dict, seed: dict, found: list[dict] = ()) -> dict | None:
         """The ball casting the shadow fitted as ``shadow`` (a detection row), from the rest of
         its seed's piece of foreground (``seed["piece"]``): the piece's pixels off the empty
         table's hue (the chromaticity distortion of :func:`_cast_shadow`, per pixel, at least
-        ``_HUE_STEP``) or brighter than it by 1.15 (a lit side or highlight), at least a third
-        of the smallest ball's image area of them, seed a ball at their centroid; its fit
-        (:meth:`_fit_one`) stands when it is no shadow itself and lies within ``_CASTER_R``
-        radii of the shadow's. None otherwise (a black ball on grey cloth has no such pixels:
-        its shadow's fit stands as it was)."""
+        ``_HUE_STEP``) or brighter than it by 1.15 (a lit side or highlight), outside the
+        silhouettes of the balls ``found`` (other detection rows: a ball beside the pair, in
+        the same piece, is no caster of it) and within ``_CASTER_R`` + 1 image radii of the
+        shadow's centre, at least a third of the smallest ball's image area of them, seed a
+        ball at their centroid; its fit (:meth:`_fit_one`) stands when it is no shadow itself
+        and lies within ``_CASTER_R`` radii of the shadow's (its pixels so within one image
+        radius more). None otherwise (a black ball on grey cloth has no such pixels: its
+        shadow's fit stands as it was)."""
         comp, origin = seed["piece"]
         ys, xs = np.nonzero(comp)
         us, vs = xs + origin[0], ys + origin[1]
@@ -1741,6 +1854,11 @@ class BallDetector:
         B = self.background.image[vs, us]
         a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
         lit = (_chroma_off(I, B, a) >= _HUE_STEP) | (a > 1.15)
+        others = [r for r in found if r is not shadow]
+        if others:
+            lit &= ~self._inside_any(us, vs, others)
+        reach = (_CASTER_R + 1.0) * self.r_max_px
+        lit &= np.hypot(us - shadow["u"], vs - shadow["v"]) <= reach
         if lit.sum() < 0.3 * math.pi * self.r_min_px**2:
             return None
         uv = np.array([us[lit].mean(), vs[lit].mean()])
@@ -1751,15 +1869,56 @@ class BallDetector:
             return None
         return r
 
-    def _disc_cast_shadow(self, img: np.ndarray, row: dict) -> bool:
+    def _disc_cast_shadow(self, img: np.ndarray, row: dict, others: list[dict] = ()) -> bool:
         """:func:`_cast_shadow` of the pixels within 0.7 of the image radius round the centre's
-        image of the sharp ball of detection ``row`` (the disc of :meth:`_filled_share`)."""
-        uv = np.array([row["u"], row["v"]])
-        r = 0.7 * float(np.mean(np.hypot(*(self.rays.sphere_outline(row["x"], row["y"], self.R) - uv).T)))
-        I, B, _ = self._disc_pixels(img, uv, r)
+        image of the sharp ball of detection ``row`` (the disc of :meth:`_filled_share`), less
+        those inside the silhouette of any of the ``others`` (:meth:`_disc_own_pixels`)."""
+        I, B = self._disc_own_pixels(img, row, others)
         return _cast_shadow(I, B)
 
-    def _bridged(self, comp: np.ndarray, origin, mask: np.ndarray, rows: list[dict]) -> bool:
+    def _disc_brightness(self, img: np.ndarray, row: dict, others: list[dict] = ()) -> float:
+        """Brightness ratio of the mean frame colour to the mean empty table's (I.B / B.B,
+        Horprasert et al. 1999) over the disc within 0.7 of the image radius round the
+        centre's image of the sharp ball of detection ``row``, less the silhouettes of
+        ``others`` (:meth:`_disc_own_pixels`, judged on whatever is left)."""
+        I, B = self._disc_own_pixels(img, row, [o for o in others if o is not row], 0.0)
+        if len(I) == 0:
+            return 0.0  # wholly inside lit balls: no light of its own
+        Im, Bm = I.astype(np.float32).mean(axis=0), B.astype(np.float32).mean(axis=0)
+        return float(Im @ Bm) / max(float(Bm @ Bm), 1.0)
+
+    def _disc_own_pixels(self, img: np.ndarray, row: dict, others: list[dict] = (), least: float = 0.5) -> tuple[np.ndarray, np.ndarray]:
+        """Frame and empty-table colours ((N, 3), (N, 3)) of the pixels within 0.7 of the image
+        radius round the centre's image of the sharp ball of detection ``row``, less those
+        inside the silhouette of any of the ``others`` (detection rows, sharp or swept; grown
+        by 2 px for the blurred rim, as :meth:`_components` grows them); none when less than
+        the share ``least`` of the disc is left (too little of it to judge). A lamp's shadow
+        starts under the ball casting it, so a fit on the shadow lies about R / tan(elevation) from
+        that ball (1.2-1.9 R, see ``_CASTER_R``) and its disc reaches into the ball's lit side:
+        those pixels are the caster's, and their brightness is no highlight of the fitted
+        "ball"."""
+        uv = np.array([row["u"], row["v"]])
+        r = 0.7 * float(np.mean(np.hypot(*(self.rays.sphere_outline(row["x"], row["y"], self.R) - uv).T)))
+        px_mm = self.ball_px / (2 * self.R)
+        near = [o for o in others if math.hypot(o["u"] - uv[0], o["v"] - uv[1]) < r + self.r_max_px + 2.0 + 0.5 * math.hypot(o["blur_x"], o["blur_y"]) * px_mm]
+        if not near:
+            I, B, _ = self._disc_pixels(img, uv, r)
+            return I, B
+        none = np.zeros((0, 3), np.float32)
+        h, w = img.shape[:2]
+        u0, v0 = max(int(math.floor(uv[0] - r)), 0), max(int(math.floor(uv[1] - r)), 0)
+        u1, v1 = min(int(math.ceil(uv[0] + r)) + 1, w), min(int(math.ceil(uv[1] + r)) + 1, h)
+        if u1 <= u0 or v1 <= v0:
+            return none, none
+        yy, xx = np.mgrid[v0:v1, u0:u1]
+        inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
+        keep = inside.copy()
+        keep[inside] = ~self._inside_any(xx[inside], yy[inside], near)
+        if keep.sum() < least * inside.sum() or not keep.any():
+            return none, none
+        return img[v0:v1, u0:u1][keep], self.background.image[v0:v1, u0:u1][keep]
+
+    def _bridged(self, comp: np.ndarray, origin, mask: np.ndarray, rows: list[dict], shadows: list[dict] = ()) -> bool:
         """Whether two sharp balls fitted in one free piece (``comp``, (h, w) uint8 at
         ``origin`` px; ``mask`` their outlines filled in its frame) that do not touch (centres
         more than 2.25 R apart, table frame: a gap of a quarter radius, well beyond the fits'
@@ -1772,7 +1931,9 @@ class BallDetector:
         them, at its middle, as ``_JOIN_WIDTH`` of a ball's image (:meth:`_join_width`): balls
         cannot overlap, and touching ones pinch to a waist there (their silhouettes meet at a
         point), while the middle of a hand or forearm fitted as two overlapping balls is as
-        wide as the hand."""
+        wide as the hand. ``shadows``: fits on the balls' cast shadows in the piece
+        (:meth:`_casters_only`), no balls to pair but left out of the width like the other
+        balls: two touching balls' shadows fill the waist between them."""
         sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
         grown = cv2.dilate(mask, np.ones((3, 3), np.uint8))
         h, w = comp.shape
@@ -1780,7 +1941,7 @@ class BallDetector:
             for j in range(i + 1, len(sharp)):
                 a, b = sharp[i], sharp[j]
                 d = math.hypot(a["x"] - b["x"], a["y"] - b["y"])
-                if 1.2 * self.R < d < 2 * self.R and self._join_width(comp, origin, a, b, [r for r in rows if r is not a and r is not b]) >= _JOIN_WIDTH:
+                if 1.2 * self.R < d < 2 * self.R and self._join_width(comp, origin, a, b, [r for r in rows if r is not a and r is not b] + list(shadows)) >= _JOIN_WIDTH:
                     return True
                 if d <= 2.25 * self.R:
                     continue
@@ -2194,7 +2355,7 @@ class BallDetector:
         q = self.rays.backproject(uv, 0.0)
         return ~((q[:, 0] >= 0.0) & (q[:, 0] <= t.length_mm) & (q[:, 1] >= 0.0) & (q[:, 1] <= t.width_mm))
 
-    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None, off_bed: bool = True, resume: tuple | None = None) -> dict | None:
+    def _fit_seed(self, img: np.ndarray, seed: dict, shadows: bool = True, avoid: np.ndarray | None = None, off_bed: bool = True, resume: tuple | None = None, avoid_coarse: bool = False) -> dict | None:
         """Fit one seed (:meth:`_seeds_of`): a detection row (:data:`COLUMNS`, frame and time
         left at 0) or None. ``shadows``: whether the coarse outline discounts cast shadows
         (:meth:`_edges`). ``avoid``: (M, 2) mm centres (table frame) of neighbouring balls;
@@ -2205,7 +2366,10 @@ class BallDetector:
         a fit that fails its checks with them left out is tried again with every ray (a ball
         frozen against the cushion, whose rim meets the nose itself), from the state its own
         coarse rounds ended in (``resume``: they do not depend on ``off_bed``, so they are not
-        done twice)."""
+        done twice). ``avoid_coarse``: ``avoid`` leaves its rays out of the coarse rounds too
+        (a ball beside its own cast shadow, whose dark limb the coarse outline cannot tell from
+        the shadow on that side, so it takes the terminator there instead, inside the outline,
+        and pulls the centre away from the shadow)."""
         cam, R = self.camera, self.R
         X = self.rays.backproject(seed["uv"][None], R)[0]
         half_mm, heading = 0.0, 0.0
@@ -2255,7 +2419,7 @@ class BallDetector:
                 pts = self._edges_local(img, c, rho, dirs)
             else:
                 pts = self._edges(img, c, rho, win * r_loc, dirs, shadows=shadows)
-            masked = avoid is not None and win is None
+            masked = avoid is not None and (win is None or avoid_coarse)
             if win is None and off_bed:
                 # Rays whose outer band looks past the cushion nose onto the cushion (see
                 # _surround_off_bed) carry a different rim bias from the rest: left out.
@@ -2267,9 +2431,9 @@ class BallDetector:
                     free[:] = True
                 masked = masked or not free.all()
                 dropped = dropped or not free.all()
-            elif win is None:
+            elif win is None or avoid_coarse:
                 free = np.ones(_N_RAYS, bool)
-            if avoid is not None and win is None:
+            if avoid is not None and (win is None or avoid_coarse):
                 # A touching neighbour's rim lies within the local edge's sample bands where
                 # the outline point is within R + 5 mm (2.75 px at about 2 mm/px) of the
                 # neighbour's centre: |R e_a - 2R e_b| = R sqrt(5 - 4 cos(a - b)) < 1.17 R
@@ -2303,6 +2467,8 @@ class BallDetector:
             result = (p, res, wts, cov, good, capsule, n_rays)
             if win is not None:
                 coarse = result
+        if result is None:
+            return None  # the coarse rounds, with ``avoid_coarse``, had too little outline
         # How unsettled the fit that stands is (for its stated sigma): where the local edge
         # stands, its last move (its rounds ran out still moving: a soft rim it follows
         # outward; under 0.05 mm once converged); where the coarse fit is kept over it, the
@@ -2333,7 +2499,7 @@ class BallDetector:
         gaps = np.diff(np.sort(np.append(angs, angs.min() + 2 * np.pi))) if inl.any() else np.array([np.inf])
         if (share < self.config.min_inlier_share or rms > max_rms
                 or gaps.max() > (math.radians(150) if seed["strict"] else math.radians(200))):
-            return self._fit_seed(img, seed, shadows, avoid, off_bed=False, resume=local_start) if dropped else None
+            return self._fit_seed(img, seed, shadows, avoid, off_bed=False, resume=local_start, avoid_coarse=avoid_coarse) if dropped else None
         half = float(p[3]) if capsule else 0.0
         if half > self.config.max_half_travel_mm:
             return None
