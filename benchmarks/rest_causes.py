@@ -41,12 +41,12 @@ from scipy.spatial.transform import Rotation
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
+from benchmarks.analyse_accuracy import EXTRA_SCENES, extra_scenes  # noqa: E402
 from railtrace.scene import Scene, load_scene  # noqa: E402
 from vision.detect import BallDetector  # noqa: E402
 from vision.render import BallLook, Renderer  # noqa: E402
 from vision.video import iter_frames, write_video  # noqa: E402
 
-EXTRA_SCENES = Path(__file__).resolve().parent / "extra_scenes"
 VARIANTS = ("clean", "noise", "lossless", "codec", "no_lens")
 # Grid of resting balls: 7 x 4 over the bed, 2.5 radii in from the noses (clear of the cushion
 # faces, whose own pull rail_bias.py measures), each nudged up to NUDGE_MM so the outlines fall
@@ -134,12 +134,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--seed", type=int, default=0, help="seed of the balls' nudges and orientations")
     ap.add_argument("--work", type=Path, default=None, help="folder for the encoded stills (default: a temporary one)")
     args = ap.parse_args(argv)
-    known = sorted(p.stem for p in EXTRA_SCENES.glob("*.toml"))
-    names = args.names or known
-    bad = [n for n in names if n not in known]
-    if bad:
-        print(f"rest_causes: unknown scene {bad[0]!r}; one of {', '.join(known)}", file=sys.stderr)
-        return 2
+    names = extra_scenes(args.names)
     with tempfile.TemporaryDirectory() as tmp:
         work = args.work or Path(tmp)
         work.mkdir(parents=True, exist_ok=True)
