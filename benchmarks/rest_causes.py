@@ -1,0 +1,149 @@
+"""Where a resting ball's centre error comes from: the same still scene detected clean, with the
+sensor's noise, through a lossless encode, through the scene's own encode, and without the lens.
+
+For each scene of the extra rendered set (``benchmarks/extra_scenes/*.toml``: its table, camera,
+room, cloth and ball colours, not its shots) balls are laid at rest on a grid over the bed (7 x 4,
+2.5 ball radii in from the noses, each nudged a few mm, the scene's balls' looks in turn, each
+turned at random: a stripe's band and a solid's number discs fall anywhere), with no empty
+table shown first (the detector's model fills the balls in from the cloth round them, as at the
+start of a clip), and :class:`vision.detect.BallDetector` is run on a second frame with the
+scene's true camera. Variants, each the one before it with one thing added:
+
+* ``clean``: no sensor noise, no lamp flicker;
+* ``noise``: the scene's noise and flicker (what the renderer writes before encoding);
+* ``lossless``: that, through ``vision.video.write_video`` at H.264 constant rate factor 0 (the
+  4:2:0 chroma sampling kept);
+* ``codec``: through the scene's own quality, as the extra clips are filmed;
+* ``no_lens``: ``codec`` with the camera's lens distortion set to zero for both the renderer
+  and the detector, so any difference from ``codec`` is the lens's own.
+
+Each row gives the balls found, the median and p95 of the centre error (mm, table frame, nearest
+detection within a ball radius), and the medians of its component away from the camera's nadir
+(the cloth point straight below it) and across that direction. A rise from one variant to the
+next is what that step costs; a bias that is the lens's shows as ``no_lens`` much below
+``codec``.
+
+Run: ``.venv/bin/python benchmarks/rest_causes.py [NAME ...] [--seed N] [--work DIR]`` (names
+are extra scene stems; default all five; a few seconds of processor time per scene and variant).
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy.spatial.transform import Rotation
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from benchmarks.analyse_accuracy import EXTRA_SCENES, extra_scenes  # noqa: E402
+from railtrace.scene import Scene, load_scene  # noqa: E402
+from vision.detect import BallDetector  # noqa: E402
+from vision.render import BallLook, Renderer  # noqa: E402
+from vision.video import iter_frames, write_video  # noqa: E402
+
+VARIANTS = ("clean", "noise", "lossless", "codec", "no_lens")
+# Grid of resting balls: 7 x 4 over the bed, 2.5 radii in from the noses (clear of the cushion
+# faces, whose own pull rail_bias.py measures), each nudged up to NUDGE_MM so the outlines fall
+# at every phase of the pixel grid.
+GRID = (7, 4)
+NUDGE_MM = 20.0
+
+
+def grid_positions(scene: Scene, rng: np.random.Generator) -> np.ndarray:
+    """(N, 2) table points (mm) of the resting balls of ``scene``'s table."""
+    t = scene.table
+    R = t.radius_mm
+    xs = np.linspace(2.5 * R, t.length_mm - 2.5 * R, GRID[0])
+    ys = np.linspace(2.5 * R, t.width_mm - 2.5 * R, GRID[1])
+    at = np.array([[x, y] for x in xs for y in ys])
+    return at + rng.uniform(-NUDGE_MM, NUDGE_MM, at.shape)
+
+
+def still_frames(scene: Scene, variant: str, at: np.ndarray, rot: np.ndarray, work: Path) -> tuple[list[np.ndarray], object]:
+    """Two frames (BGR uint8) of the balls resting at ``at`` turned by ``rot`` (1, N, 3, 3) in
+    ``scene``'s room, formed as ``variant`` says, and the camera they were formed with."""
+    look = scene.look
+    if variant == "clean":
+        look = dataclasses.replace(look, noise_sigma=0.0, flicker=0.0)
+    cam = scene.camera
+    if variant == "no_lens":
+        cam = dataclasses.replace(cam, dist=np.zeros(5))
+    n = len(at)
+    balls = tuple(BallLook(f"b{i}", scene.balls[i % len(scene.balls)].kind, scene.balls[i % len(scene.balls)].colour_bgr) for i in range(n))
+    ren = Renderer(scene.table, cam, look, balls, seed=scene.seed)
+    frames = [ren.render(at[None], rot, np.ones((1, n), bool), np.array([k / scene.film.fps])) for k in range(2)]
+    if variant in ("lossless", "codec", "no_lens"):
+        clip = work / f"{variant}.mp4"
+        write_video(clip, frames, scene.film.fps, codec="h264", quality=0 if variant == "lossless" else scene.film.quality)
+        frames = [f for _, _, f in iter_frames(clip)]
+    return frames, cam
+
+
+def errors(scene: Scene, cam, frames: list[np.ndarray], at: np.ndarray) -> pd.DataFrame:
+    """Per true ball (N rows): the error (mm) of the nearest detection of the last frame within a
+    ball radius (NaN if none) and its components away from the camera's nadir and across."""
+    det = BallDetector(cam, scene.table)
+    out = None
+    for i, f in enumerate(frames):
+        out = det.process(i, i / scene.film.fps, f)
+    q = out[["x", "y"]].to_numpy() if len(out) else np.zeros((0, 2))
+    nadir = np.asarray(cam.centre_mm[:2], float)
+    rows = []
+    for x, y in at:
+        e = np.hypot(q[:, 0] - x, q[:, 1] - y) if len(q) else np.array([np.inf])
+        j = int(np.argmin(e))
+        if not e[j] <= scene.table.radius_mm:
+            rows.append({"error": np.nan, "radial": np.nan, "across": np.nan})
+            continue
+        d = q[j] - (x, y)
+        u = np.array([x, y]) - nadir
+        u = u / max(float(np.hypot(*u)), 1e-9)
+        rows.append({"error": float(e[j]), "radial": float(d @ u), "across": float(d[1] * u[0] - d[0] * u[1])})
+    return pd.DataFrame(rows)
+
+
+def run(name: str, seed: int, work: Path) -> list[dict]:
+    """One row per variant of scene ``name``: balls found, error median and p95, radial and
+    across medians (mm)."""
+    scene = load_scene(EXTRA_SCENES / f"{name}.toml")
+    rng = np.random.default_rng(seed)
+    at = grid_positions(scene, rng)
+    rot = Rotation.random(len(at), random_state=seed).as_matrix()[None]
+    out = []
+    for variant in VARIANTS:
+        frames, cam = still_frames(scene, variant, at, rot, work)
+        E = errors(scene, cam, frames, at)
+        ok = E["error"].notna()
+        out.append({
+            "scene": name, "variant": variant, "found": f"{int(ok.sum())}/{len(E)}",
+            "median": E["error"].median(), "p95": E["error"].quantile(0.95),
+            "radial_med": E["radial"].median(), "across_med": E["across"].median(),
+        })
+    return out
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("names", nargs="*", help="extra scene names (default: all of benchmarks/extra_scenes)")
+    ap.add_argument("--seed", type=int, default=0, help="seed of the balls' nudges and orientations")
+    ap.add_argument("--work", type=Path, default=None, help="folder for the encoded stills (default: a temporary one)")
+    args = ap.parse_args(argv)
+    names = extra_scenes(args.names)
+    with tempfile.TemporaryDirectory() as tmp:
+        work = args.work or Path(tmp)
+        work.mkdir(parents=True, exist_ok=True)
+        rows = [r for n in names for r in run(n, args.seed, work)]
+    with pd.option_context("display.width", 200):
+        print("resting balls on a grid, centre error (mm): each variant adds one step to the one above it")
+        print(pd.DataFrame(rows).set_index(["scene", "variant"]).round(2).to_string())
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
