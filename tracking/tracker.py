@@ -100,7 +100,10 @@ Method
   rests takes back the id of an ended (or unseen, coasting) track with the same identity labels,
   when exactly one such id exists; the cue ball is one ball, so any earlier cue-ball id, or,
   where no ball was ever read as the cue ball (a dim room's unnamed white ball), the one lifted
-  id never read as an object ball (``Tracker._respotted``, ``Tracker._unread_cue``).
+  id never read as an object ball (``Tracker._respotted``, ``Tracker._unread_cue``). A ball
+  put down reading white or colourless (a shaded white ball), and a lifted id whose sure
+  detections mostly read so whatever its doubtful ones say, are the white ball: the new track
+  takes that id when exactly one is off the table (``Tracker._white``).
   That id's rows then have a gap or a jump between the two pieces.
 * A ball hidden at rest (under an arm, in a dark corner) and seen again resting within a radius
   of where it rested is the same ball whatever its labels read and whatever else is moving: a
@@ -278,6 +281,8 @@ class _Track:
         self.birth_frame = frame
         self.hits = 0
         self.qualities: list[float] = []  # detector quality of each detection taken
+        # Whether each detection taken read white or no colour at all (``_pale_read``).
+        self.pale: list[bool] = []
         self.misses = 0  # consecutive
         self.last_seen_t = t
         self.ended: str | None = None
@@ -487,6 +492,7 @@ class Tracker:
                 tr.patterns[patterns[j]] += 1
                 tr.hits += 1
                 tr.qualities.append(float(quality[j]))
+                tr.pale.append(_pale_read(colours[j], patterns[j]))
                 tr.misses = 0
                 tr.last_seen_t = t
                 if not tr.confirmed and tr.hits >= self.config.confirm_hits:
@@ -1023,6 +1029,7 @@ class Tracker:
         tr.patterns[pattern] += 1
         tr.hits = 1
         tr.qualities.append(float(quality))
+        tr.pale.append(_pale_read(colour, pattern))
         tr.record(frame, t, _EYE4, _ZERO4, True, True, (float(z[0]), float(z[1])))
         self._tracks.append(tr)
         self._live.append(tr)
@@ -1059,9 +1066,12 @@ class Tracker:
         only rest itself (there is one cue ball). The candidates are ids whose tracks have all ended
         (lifted or pocketed) or are coasting unseen, last seen before ``tr`` was born, with ``tr``'s
         identity labels. The cue ball is one ball, so a cue ball takes the first cue-ball id among
-        them. An object ball must carry the same pattern (solid or stripe) and the same known
-        colour, and takes the id only when exactly one candidate remains (the labels then say which
-        ball it is); else it is a new ball. Before all that, a new track resting where a ball was
+        them, else the one id off the table that is white by its sure labels (``_white``); a
+        ball read neither cue nor object but white or colourless (``_white``) takes the one
+        cue-ball or white id off the table, when exactly one exists. An object ball must carry
+        the same pattern (solid or stripe) and the same known colour, and takes the id only when
+        exactly one candidate remains (the labels then say which ball it is); else it is a new
+        ball. Before all that, a new track resting where a ball was
         last seen resting is that ball (:meth:`_rested_here`), labels and other balls aside.
         """
         vmax = self.config.respot_rest_speed_mm_s
@@ -1073,7 +1083,11 @@ class Tracker:
         here = self._rested_here(tr, frame)
         if here is not None:
             return here
-        if kind == "unknown" or (kind == "object" and (not colour or pattern == "unknown")):
+        # A ball read neither cue nor object, but white or colourless in most of its
+        # detections, may be the cue ball in light too dim to name it (``_white``).
+        white = kind == "cue" or (kind == "unknown" and self._white([tr], 0.0))
+        if (kind == "unknown" and not white) or \
+                (kind == "object" and (not colour or pattern == "unknown")):
             return None
         held: set[int] = set()
         ids: dict[int, list[_Track]] = {}
@@ -1091,22 +1105,32 @@ class Tracker:
                     return None
                 held.add(old.track_id)
             ids.setdefault(old.track_id, []).append(old)
-        cands = []
+        cands, pale = [], []
         for tid, olds in ids.items():
             if tid in held:
                 continue
             if max(o.last_seen_frame for o in olds) >= tr.birth_frame:
                 continue
             ref = olds[-1]
-            if kind == "cue":
+            if white:
                 ok = ref.kind() == "cue"
+                if not ok and self._white(olds, self._sure_quality(olds)):
+                    pale.append(tid)
             else:
                 ok = (ref.kind() == "object" and ref.label(ref.patterns, "unknown") == pattern
                       and ref.label(ref.colours, "") == colour)
             if ok:
                 cands.append(tid)
         if kind == "cue":
-            donor = min(cands) if cands else self._unread_cue(ids, held, tr.birth_frame)
+            # Any earlier cue-ball id is this ball; else the one white ball off the table.
+            donor = min(cands) if cands else pale[0] if len(pale) == 1 else \
+                self._unread_cue(ids, held, tr.birth_frame)
+        elif white:
+            # Read colourless only, it is the cue ball when exactly one white ball is off the
+            # table (a colourless read may also be a stripe turned band-down: so no guess
+            # between two).
+            both = cands + pale
+            donor = both[0] if len(both) == 1 else None
         else:
             donor = cands[0] if len(cands) == 1 else None
         # Labels name a ball only when the detector is as sure of them as it was of that ball,
@@ -1115,6 +1139,27 @@ class Tracker:
         if donor is None or min(tr.qualities) < self._sure_quality(ids[donor]):
             return None
         return donor
+
+    @staticmethod
+    def _white(pieces: list[_Track], min_quality: float) -> bool:
+        """Whether the ball whose track pieces are ``pieces`` is white by its labels: more of
+        its detections at quality at least ``min_quality`` read white or colourless
+        (``_pale_read``) than read anything else.
+
+        The majority, as a track's labels are its majority labels (``_Track.label``): the cue
+        ball in a one-lamp room is read colourless in most sure detections and, now and then,
+        solid black or stripe where its shaded limb fills the disc (lamp_50fps of
+        ``benchmarks/analyse_accuracy.py --extra``: 107 of its 111 sure detections pale, so
+        ``_Track.kind`` calls it an object ball on 25 doubtful reads), while an object ball read
+        colourless only moving (a blur capsule is not labelled) names its colour at rest
+        (the orange stripe there: 3 of 207 pale)."""
+        n_pale = n_other = 0
+        for o in pieces:
+            for q, p in zip(o.qualities, o.pale):
+                if q >= min_quality:
+                    n_pale += p
+                    n_other += not p
+        return n_pale > n_other
 
     @staticmethod
     def _unread_cue(ids: dict[int, list[_Track]], held: set[int], birth_frame: int) -> int | None:
@@ -1285,6 +1330,13 @@ def _innovation_nll(Z: np.ndarray, mean: np.ndarray, Ppos: np.ndarray, sig: np.n
     s2 = sig**2
     det = (Ppos[0, 0] + s2) * (Ppos[1, 1] + s2) - Ppos[0, 1] ** 2
     return _mahalanobis2(Z, mean, Ppos, sig), np.log(det / ref_sigma**4)
+
+
+def _pale_read(colour: str, pattern: str) -> bool:
+    """Whether a detection's labels read a white ball: ``white``/``cue``, or no colour and no
+    pattern at all (``vision.detect``'s identity finds no coloured pixels on a white ball
+    shaded toward its limb in dim or one-sided light, and reads it so)."""
+    return colour in ("", "white") and pattern in ("cue", "unknown")
 
 
 def _segment_distance(p: np.ndarray, a, b) -> float:
