@@ -22,7 +22,8 @@ Output (``Tracker.result`` / ``track``): one row per confirmed ball per frame fr
 last detection, columns ``frame, t, track, ball, x, y, vx, vy, seen`` of
 ``shared/spec/results-format.md`` (``x, y`` mm and ``vx, vy`` mm/s smoothed; ``seen`` 1 where the
 ball was detected, 0 where it was coasted), then the extra columns ``colour`` and ``pattern`` (the
-track's majority labels, "" / "unknown" when none) and ``x_meas, y_meas`` (the detection assigned
+ball's majority labels over its sure detections, "" / "unknown" when none; white / cue for the
+cue ball: ``Tracker._sure_labels``) and ``x_meas, y_meas`` (the detection assigned
 in that frame, NaN when unseen), so later stages can fit raw measurements.
 
 Method
@@ -283,6 +284,9 @@ class _Track:
         self.qualities: list[float] = []  # detector quality of each detection taken
         # Whether each detection taken read white or no colour at all (``_pale_read``).
         self.pale: list[bool] = []
+        # Each detection's labels (colour, pattern), beside its quality, so the ball's own
+        # labels can be drawn from its sure detections alone (``Tracker._sure_labels``).
+        self.reads: list[tuple[str, str]] = []
         self.misses = 0  # consecutive
         self.last_seen_t = t
         self.ended: str | None = None
@@ -315,22 +319,21 @@ class _Track:
         """Frame index of the track's last detection (a track has one from its birth)."""
         return next(f for f, s in zip(reversed(self.frames), reversed(self.seen)) if s)
 
+    def take_read(self, colour: str, pattern: str, quality: float) -> None:
+        """Count one detection's labels and detector quality (0..1) into the track."""
+        self.colours[colour] += 1
+        self.patterns[pattern] += 1
+        self.qualities.append(float(quality))
+        self.pale.append(_pale_read(colour, pattern))
+        self.reads.append((colour, pattern))
+
     def kind(self) -> str:
         """``cue``, ``object`` or ``unknown`` from the patterns of its detections so far."""
-        cue = self.patterns.get("cue", 0)
-        obj = self.patterns.get("solid", 0) + self.patterns.get("stripe", 0)
-        if cue >= 2 and cue > obj:
-            return "cue"
-        if obj >= 2 and obj > cue:
-            return "object"
-        return "unknown"
+        return _kind_of(self.patterns)
 
     def label(self, counter: Counter, unknown: str) -> str:
-        known = [(n, lab) for lab, n in counter.items() if lab not in ("", "unknown")]
-        if not known:
-            return unknown
-        known.sort(key=lambda p: (-p[0], p[1]))
-        return known[0][1]
+        """The most frequent known label of ``counter`` (ties by name), else ``unknown``."""
+        return _majority(counter, unknown)
 
     def record(self, frame, t, F, Q, seen, brk, z, odd=None):
         """Append the current posterior as this frame's row; ``F, Q`` carried the previous row
@@ -488,11 +491,8 @@ class Tracker:
             if tr.key in assigned:
                 j, hyp = assigned[tr.key]
                 self._update(tr, pred, hyp, Z[j], sig[j], frame, t)
-                tr.colours[colours[j]] += 1
-                tr.patterns[patterns[j]] += 1
                 tr.hits += 1
-                tr.qualities.append(float(quality[j]))
-                tr.pale.append(_pale_read(colours[j], patterns[j]))
+                tr.take_read(colours[j], patterns[j], quality[j])
                 tr.misses = 0
                 tr.last_seen_t = t
                 if not tr.confirmed and tr.hits >= self.config.confirm_hits:
@@ -526,20 +526,25 @@ class Tracker:
         (:meth:`_resumed_ids`).
         """
         kept, same = self._ball_tracks()
-        rows = [g for g in (self._resumed_gap(tr, xs, kept, same) for tr, xs in kept
+        pieces: dict[int, list[_Track]] = {}
+        for tr, _ in kept:
+            pieces.setdefault(same.get(tr.track_id, tr.track_id), []).append(tr)
+        labels = self._sure_labels(pieces)
+        rows = [g for g in (self._resumed_gap(tr, xs, kept, same, labels) for tr, xs in kept
                             if tr.track_id in same) if len(g)]
         for tr, xs in kept:
             n = len(tr.frames)
             z = np.array([zz for zz in tr.zs], dtype=float)
+            tid = same.get(tr.track_id, tr.track_id)
+            ball, colour, pattern = labels[tid]
             rows.append(pd.DataFrame({
                 "frame": np.asarray(tr.frames, dtype=np.int64),
                 "t": np.asarray(tr.times, dtype=float),
-                "track": np.full(n, same.get(tr.track_id, tr.track_id), dtype=np.int64),
-                "ball": "cue" if tr.kind() == "cue" else "object",
+                "track": np.full(n, tid, dtype=np.int64),
+                "ball": ball,
                 "x": xs[:, 0], "y": xs[:, 2], "vx": xs[:, 1], "vy": xs[:, 3],
                 "seen": np.asarray(tr.seen, dtype=np.int64),
-                "colour": tr.label(tr.colours, ""),
-                "pattern": tr.label(tr.patterns, "unknown"),
+                "colour": colour, "pattern": pattern,
                 "x_meas": z[:, 0], "y_meas": z[:, 1],
             }))
         if not rows:
@@ -580,11 +585,12 @@ class Tracker:
         return balls, same
 
     def _resumed_gap(self, tr: _Track, xs: np.ndarray, kept: list[tuple[_Track, np.ndarray]],
-                     same: dict[int, int]) -> pd.DataFrame:
+                     same: dict[int, int], labels: dict[int, tuple[str, str, str]]) -> pd.DataFrame:
         """Rows (``TRACK_COLUMNS + EXTRA_COLUMNS``, ``seen`` 0) for the processed frames between
         the ball's last detection under its old id and the first of ``tr``, the track that
         resumes it (:meth:`_resumed_ids`); ``xs`` (N, 4) ``tr``'s smoothed states, ``kept`` the
-        tracks of :meth:`result` (unseen tails trimmed) with theirs.
+        tracks of :meth:`result` (unseen tails trimmed) with theirs, ``labels`` each output id's
+        (ball, colour, pattern) (:meth:`_sure_labels`).
 
         The ball is on the table all along, so the results format wants a row for each of
         those frames (``shared/spec/results-format.md``: a position only estimated has seen 0),
@@ -612,10 +618,10 @@ class Tracker:
         return pd.DataFrame({
             "frame": np.asarray(frames, dtype=np.int64), "t": ts,
             "track": np.full(n, new_id, dtype=np.int64),
-            "ball": "cue" if tr.kind() == "cue" else "object",
+            "ball": labels[new_id][0],
             "x": pos[:, 0], "y": pos[:, 1], "vx": np.full(n, vel[0]), "vy": np.full(n, vel[1]),
-            "seen": np.zeros(n, dtype=np.int64), "colour": tr.label(tr.colours, ""),
-            "pattern": tr.label(tr.patterns, "unknown"),
+            "seen": np.zeros(n, dtype=np.int64), "colour": labels[new_id][1],
+            "pattern": labels[new_id][2],
             "x_meas": np.full(n, np.nan), "y_meas": np.full(n, np.nan)})
 
     def _resumed_ids(self, kept: list[tuple[_Track, np.ndarray]]) -> dict[int, int]:
@@ -1025,11 +1031,8 @@ class Tracker:
                               speed_sigma_mm_s=cfg.initial_speed_sigma_mm_s)
         tr = _Track(self._next_key, kf, frame, t)
         self._next_key += 1
-        tr.colours[colour] += 1
-        tr.patterns[pattern] += 1
         tr.hits = 1
-        tr.qualities.append(float(quality))
-        tr.pale.append(_pale_read(colour, pattern))
+        tr.take_read(colour, pattern, quality)
         tr.record(frame, t, _EYE4, _ZERO4, True, True, (float(z[0]), float(z[1])))
         self._tracks.append(tr)
         self._live.append(tr)
@@ -1241,6 +1244,46 @@ class Tracker:
         q = np.concatenate([np.asarray(o.qualities, dtype=float) for o in pieces])
         return min(self.config.label_min_quality, float(np.percentile(q, 25)))
 
+    def _sure_labels(self, pieces: dict[int, list[_Track]]) -> dict[int, tuple[str, str, str]]:
+        """The ``ball`` (``cue``/``object``), ``colour`` and ``pattern`` of the results format
+        for each ball, {output id: its track pieces} -> {output id: labels}, from each ball's
+        sure detections alone (quality at least ``_sure_quality``, the bar a detection's labels
+        must pass to find the ball again after a gap or to take back its id when it is put
+        down; at most the lower quartile of the ball's own qualities, so three quarters count).
+
+        A doubtful detection's labels are not the ball's: the cue ball in a one-lamp room is
+        read solid black where its shaded limb fills the disc at quality 0.36 or so
+        (lamp_50fps of ``benchmarks/analyse_accuracy.py --extra --reuse``: 21 of its 29
+        doubtful reads), and counting every read named it an object ball. Its sure reads are
+        183 colourless, 4 solid black and 2 cue of 190, still an object ball by count; so where
+        no ball's sure reads name the cue ball, the one ball whose sure reads are mostly white
+        or colourless (``_white``) and read the cue ball at least once is it (there is one cue
+        ball). A colourless read alone does not make the cue ball: a stripe in dim light reads
+        colourless all along (dim_540p_60fps: 669 of 669). A ball named neither is an object
+        ball, as the format has no third value."""
+        sure: dict[int, tuple[Counter, Counter]] = {}
+        for tid, ps in pieces.items():
+            bar = self._sure_quality(ps)
+            colours: Counter = Counter()
+            patterns: Counter = Counter()
+            for o in ps:
+                for (c, p), q in zip(o.reads, o.qualities):
+                    if q >= bar:
+                        colours[c] += 1
+                        patterns[p] += 1
+            sure[tid] = (colours, patterns)
+        kinds = {tid: _kind_of(pat) for tid, (_, pat) in sure.items()}
+        if "cue" not in kinds.values():
+            pale = [tid for tid, (col, pat) in sure.items()
+                    if (col["white"] or pat["cue"])
+                    and self._white(pieces[tid], self._sure_quality(pieces[tid]))]
+            if len(pale) == 1:
+                kinds[pale[0]] = "cue"
+        # The cue ball's colour and pattern are white and cue, whatever its shaded reads named.
+        return {tid: ("cue", "white", "cue") if kinds[tid] == "cue" else
+                ("object", _majority(col, ""), _majority(pat, "unknown"))
+                for tid, (col, pat) in sure.items()}
+
     def _smooth(self, tr: _Track) -> np.ndarray:
         """RTS-smoothed states (N, 4) of ``tr``, run separately between breakpoints."""
         xs = np.array(tr.xs)
@@ -1330,6 +1373,28 @@ def _innovation_nll(Z: np.ndarray, mean: np.ndarray, Ppos: np.ndarray, sig: np.n
     s2 = sig**2
     det = (Ppos[0, 0] + s2) * (Ppos[1, 1] + s2) - Ppos[0, 1] ** 2
     return _mahalanobis2(Z, mean, Ppos, sig), np.log(det / ref_sigma**4)
+
+
+def _kind_of(patterns: Counter) -> str:
+    """``cue``, ``object`` or ``unknown`` from a count of pattern labels: the kind read at least
+    twice and more often than the other."""
+    cue = patterns.get("cue", 0)
+    obj = patterns.get("solid", 0) + patterns.get("stripe", 0)
+    if cue >= 2 and cue > obj:
+        return "cue"
+    if obj >= 2 and obj > cue:
+        return "object"
+    return "unknown"
+
+
+def _majority(counter: Counter, unknown: str) -> str:
+    """The most frequent label of ``counter`` other than "" and ``unknown`` (ties by name), else
+    ``unknown``."""
+    known = [(n, lab) for lab, n in counter.items() if lab not in ("", "unknown")]
+    if not known:
+        return unknown
+    known.sort(key=lambda p: (-p[0], p[1]))
+    return known[0][1]
 
 
 def _pale_read(colour: str, pattern: str) -> bool:
