@@ -1451,3 +1451,92 @@ def test_a_ball_beside_its_own_long_shadow_is_found_on_itself(name, tmp_path):
     # Renderer's truth (the centre at mid-exposure); one detection, on the ball, none on its
     # shadow (issue 3: no false balls from shadows).
     assert len(outs[1]) == 1 and err[0] <= tol, (name, outs[1], err)
+
+
+STROKE_SCENE = """
+# A high camera (3.2 m, 120 fps, 1/250 s) with a long, nearly rectilinear lens hung off the
+# table's centre, teal cloth: the player is down on a hard cut when the clip starts and makes
+# the practice and back strokes. Scenario invented for railtrace.
+name = "cue held from the first frame"
+lead_s = 0.5
+tail_s = 0.5
+max_duration_s = 0.45
+seed = 511
+
+[table]
+preset = "9ft"
+
+[camera]
+height_mm = 3200
+offset_mm = [140, -90]
+roll_deg = 1.5
+resolution = [1280, 720]
+fps = 120
+shutter_s = 0.004
+distortion = [-0.02, 0.0, 0.0, 0.0, 0.0]
+quality = 25
+
+[look]
+cloth = "#1f6f5c"
+noise = 1.2
+occluder = true
+
+[[ball]]
+id = "cue"
+kind = "cue"
+at = [900, 500]
+
+[[ball]]
+id = "1"
+kind = "solid"
+colour = "#e0b020"
+at = [1900, 900]
+
+[[ball]]
+id = "5"
+kind = "solid"
+colour = "#e2701c"
+at = [1500, 350]
+
+[[ball]]
+id = "12"
+kind = "stripe"
+colour = "#5b2a86"
+at = [380, 1020]
+
+[[shot]]
+ball = "cue"
+aim = { ball = "1", send_to = "top-right" }
+speed_mm_s = 4000
+spin = { height = -0.2 }
+target = "top-right"
+"""
+
+
+def test_stroking_cue_held_in_the_first_frame_gives_no_ball_near_the_rail(tmp_path):
+    # The empty-table model is built from a first frame that holds the cue, so as the cue
+    # strokes along itself the colour step where its light shaft meets its dark butt, just
+    # inside the end rail, changes a compact, ball-sized piece whose rounded ends fit a sphere's
+    # outline within the limits (21 such detections before :meth:`BallDetector._joined_no_rim`).
+    # Such a fit is joined to the cue (its ring crossed) and its outline does not step from
+    # ball to surround. Issue acceptance: no detections from the occluder, every ball found.
+    import tomllib
+
+    from railtrace.filming import film_scene
+    from railtrace.scene import parse_scene
+    from vision.calibfile import read_calibration
+    from vision.detect import detect_clip
+
+    clip = tmp_path / "stroke.mp4"
+    truth_dir = film_scene(parse_scene(tomllib.loads(STROKE_SCENE), source_text=STROKE_SCENE), clip)
+    table, camera, _ = read_calibration(truth_dir / "calibration.json")
+    det = detect_clip(clip, camera, table)
+    truth = pd.read_csv(truth_dir / "tracks.csv")
+    extra, missed = [], []
+    for f, tr in truth.groupby("frame"):
+        err, _ = _match(det[det.frame == f], tr[["x", "y"]].to_numpy())
+        missed.append(int(np.sum(~np.isfinite(err))))
+        extra.append(int((det.frame == f).sum()) - int(np.isfinite(err).sum()))
+    assert len(missed) > 50  # the whole stroke, 0.45 s at 120 fps
+    assert sum(extra) == 0, [(f, n) for f, n in enumerate(extra) if n]
+    assert sum(missed) == 0, missed

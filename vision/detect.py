@@ -53,7 +53,11 @@ Method
    reaching in over the rail (a hand's end cut off from the rest by a sliver of cloth colour:
    a ball there touches the occluder, :meth:`BallDetector._mark_beside`), is
    an occluder too, and its balls are fitted again under the
-   same stricter tests (:meth:`BallDetector._free_occluders`). Once a free piece's seeds are
+   same stricter tests (:meth:`BallDetector._free_occluders`). A free ball whose outline fits
+   poorly, whose ring something crosses and whose outline does not step from ball to surround
+   is the rounded end of something else (:meth:`BallDetector._joined_no_rim`: a stroking cue's
+   shaft-to-butt colour step against a model that holds the cue); it stands while its box's
+   pieces are explained and is dropped at the end. Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). Small holes in a component (a highlight or mark of
    the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
@@ -244,6 +248,19 @@ _OUTER_SHARE = 0.5
 # (the edge, R from the centre, hides 2 acos(1 / 1.4) of the ring), less one of 64 samples.
 _RING_R = 1.4
 _ISOLATED_SHARE = 1.0 - math.acos(1.0 / _RING_R) / math.pi - 1.0 / 64
+# A free sharp fit whose outline rms exceeds this (mm) must not look joined to something with
+# no rim step (:meth:`BallDetector._joined_no_rim`). Measured on the five extra clips (single-
+# process detector, every sharp fit within 15 mm of a ball): median rms 0.64-1.02 mm per clip,
+# 95th percentile 0.87-1.74 mm; the false fits on a stroking cue near the rail 1.36-1.99 mm.
+_JOINED_RMS_MM = 1.2
+# ...and whose ring (:meth:`BallDetector._ring_share`) is below this: something lies across at
+# least 4 of its 64 samples (the fits on the cue: at most 0.91).
+_JOINED_RING = 0.95
+# ...and, where the ring is covered beyond _ISOLATED_SHARE, whose rim share is below this: on
+# the five extra clips the sharp fits on balls with rms over _JOINED_RMS_MM and so covered a
+# ring (a moving ball's own streak and shadow) stepped over 0.854 or more of their outline,
+# the fits on the cue over 0.77 or less (a 0.45 s re-film of tele_120fps): 39 of 48 rays.
+_COVERED_RIM = 39 / 48
 # Least share of the ring a strict seed (inside an arm or cue component) must leave free
 # before it is fitted, below _ISOLATED_SHARE: seven of its 64 samples, a fit's move of several
 # pixels. Measured on bank_practice (all) and cushion_check (first 1200 frames): the 34 strict
@@ -1495,7 +1512,7 @@ class BallDetector:
         # Refitted with its neighbours' rays left out, a fit that had straddled a ball and its
         # shadow can slide onto the shadow: the shadow test again on what stands.
         rows = kept + self._refit_touching(img, seeds, fits)
-        return [r for r in self._drop_cast_shadows(img, rows, tested=tested) if r is not None]
+        return [r for r in self._drop_cast_shadows(img, rows, tested=tested) if r is not None and not r.get("joined")]
 
     def _worth_fitting(self, img: np.ndarray, s: dict) -> bool:
         """Whether a seed can pass the fit's last tests: a seed inside an arm or cue component
@@ -2516,6 +2533,9 @@ class BallDetector:
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
         sig = _stated_sigma(cov(), float(p[2]), unsettled, disagree, half)
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
+        # Marked, not refused: the fit stands while the box's pieces are explained (a fit
+        # straddling two colliding balls seeds the search that finds both, and is dropped then).
+        joined = not capsule and not seed["strict"] and rms > _JOINED_RMS_MM and self._joined_no_rim(img, uv)
         return {
             "frame": 0,
             "t": 0.0,
@@ -2529,6 +2549,7 @@ class BallDetector:
             "blur_x": travel * math.cos(hd),
             "blur_y": travel * math.sin(hd),
             "sigma_mm": sig,
+            "joined": joined,
         }
 
     def _outline_noise_mm(self, img: np.ndarray, p: np.ndarray, capsule: bool, dirs: np.ndarray) -> float:
@@ -2641,6 +2662,25 @@ class BallDetector:
         a ball shows that step all round, against an arm it touches too, so the bound only
         leaves room for a quarter of its outline hidden under something lying over it."""
         return self._ring_share(img, uv) >= _ISOLATED_SHARE and self._rim_share(img, uv) >= _ISOLATED_SHARE
+
+    def _joined_no_rim(self, img: np.ndarray, uv: np.ndarray) -> bool:
+        """Whether a free ball's fit round ``uv`` (px), whose outline already fits poorly, is
+        the rounded end of something else: foreground joins its disc (its ring,
+        :meth:`_ring_share`, not all free: below ``_JOINED_RING``) and its outline does not
+        step from ball to surround over :meth:`_isolated`'s share of its length
+        (:meth:`_rim_share`). The colour step where a stroking cue's light shaft meets its
+        dark butt, against an empty-table model that holds the cue a few mm away, leaves such
+        a piece near the rail (rendered tele_120fps frames 22-50 and 100-103: ring 0.55-0.91,
+        rim 0.50-0.71, outline rms 1.36-1.99 mm). A ball touching a cue or another ball keeps
+        its rim step all round; a moving ball whose soft rim fails the rim bound has a free
+        ring (rim 0.50-0.73 with ring 1.0 on the extra set's uneven_60fps). Where the ring is
+        covered beyond what :meth:`_isolated` allows a whole ball touching a straight edge,
+        the rim must step over ``_COVERED_RIM`` of the outline."""
+        ring = self._ring_share(img, uv)
+        if ring >= _JOINED_RING:
+            return False
+        rim = self._rim_share(img, uv)
+        return rim < _ISOLATED_SHARE or (ring < _ISOLATED_SHARE and rim < _COVERED_RIM)
 
     def _rim_share(self, img: np.ndarray, uv: np.ndarray) -> float:
         """Share of the 48 rays of the outline of the ball whose centre's image is ``uv`` (px)
