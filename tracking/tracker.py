@@ -282,10 +282,9 @@ class _Track:
         self.birth_frame = frame
         self.hits = 0
         self.qualities: list[float] = []  # detector quality of each detection taken
-        # Whether each detection taken read white or no colour at all (``_pale_read``).
-        self.pale: list[bool] = []
         # Each detection's labels (colour, pattern), beside its quality, so the ball's own
-        # labels can be drawn from its sure detections alone (``Tracker._sure_labels``).
+        # labels can be drawn from its sure detections alone (``Tracker._sure_labels``,
+        # ``Tracker._white``).
         self.reads: list[tuple[str, str]] = []
         self.misses = 0  # consecutive
         self.last_seen_t = t
@@ -324,7 +323,6 @@ class _Track:
         self.colours[colour] += 1
         self.patterns[pattern] += 1
         self.qualities.append(float(quality))
-        self.pale.append(_pale_read(colour, pattern))
         self.reads.append((colour, pattern))
 
     def kind(self) -> str:
@@ -1158,8 +1156,9 @@ class Tracker:
         (the orange stripe there: 3 of 207 pale)."""
         n_pale = n_other = 0
         for o in pieces:
-            for q, p in zip(o.qualities, o.pale):
+            for q, read in zip(o.qualities, o.reads):
                 if q >= min_quality:
+                    p = _pale_read(*read)
                     n_pale += p
                     n_other += not p
         return n_pale > n_other
