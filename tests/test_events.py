@@ -467,6 +467,37 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
     assert known[0] < loose[0] and known[1] < loose[1]
 
 
+def test_a_rolling_approach_with_drifting_detection_errors_is_not_fitted_speeding_up():
+    # A ball rolling into a rail decelerates at mu_r g along its velocity; only a sliding ball
+    # has a curve of its own, a constant acceleration of size mu_s g (Alciatore 2004). The
+    # detections here carry errors the size of those measured on the rendered dim_540p_60fps
+    # clip's moving balls (1.4-1.6 mm per axis, neighbouring frames correlated 0.2-0.8:
+    # benchmarks/analyse_accuracy.py --extra, its detections against the exposure-averaged
+    # truth), an AR(1) process of sd 1.5 mm and correlation 0.5. A free quadratic took such
+    # errors for a ball speeding up into the rail (that clip at 5.46 s: +255 mm/s^2, speed_in
+    # 5.3 % high); held to a slide's deceleration (``held``, as the pinned contact fits are),
+    # the speed at the contact stays within the 3 % in the 95th percentile over 100
+    # draws. Measured: 1.6 %, none beyond 3 %; the free quadratic (main before): 4.4 %, 12 of
+    # 100 beyond 3 %.
+    from tracking.events import _piecewise_fit
+
+    dt = 1 / 60.0
+    cfg = EventConfig()
+    v0, a = 1000.0, -0.01 * G  # mm/s at the contact; rolling deceleration mu_r g
+    ts = -np.arange(18, 0, -1) * dt + 0.3 * dt  # 0.3 s of approach, the last 0.7 frame before
+    truth = np.stack([v0 * ts + 0.5 * a * ts**2, np.full_like(ts, 300.0)], axis=1)
+    rng = np.random.default_rng(5)
+    errs = []
+    for _ in range(100):
+        e = np.zeros_like(truth)
+        e[0] = rng.normal(0.0, 1.5, 2)
+        for i in range(1, len(ts)):
+            e[i] = 0.5 * e[i - 1] + math.sqrt(1 - 0.25) * rng.normal(0.0, 1.5, 2)
+        f = _piecewise_fit(ts, truth + e, 0.0, 1.5, 0.25 * dt, cfg, held=True)
+        errs.append(abs(np.hypot(*f.vel(0.0)) / v0 - 1))
+    assert np.percentile(errs, 95) <= 0.03  # the 3 %
+
+
 # --- a cushion-check session from our own simulator -------------------------------------------
 def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_mm: float = 0.0,
                      drift_s: tuple[float, float] = (0.45, 0.7), outlier_mm: float = 0.0,
