@@ -477,6 +477,13 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     added to the criterion like the prior on ``mu_s g`` (a slide through the whole window is
     charged only if the mean is shorter than the window).
 
+    ``straight`` (mu_s g, its sd) mm/s^2, approach side only, where the ball left rest within
+    the window (``_Finder._slid_from_rest``) and the samples are fewer than
+    ``quadratic_min_samples``: one more candidate, *sliding straight*: one piece like rolling
+    but with the Gaussian prior ``-mu_s g v_hat`` on its acceleration (4 parameters), for a
+    ball set moving from rest slips along its velocity; the fit then says so (``_Fit.slid``),
+    and the contact does not take it for a ball arriving rolling (``_Finder.cushion``).
+
     ``weight`` (n,): relative weight of each sample (typical detection sigma over its own; rows
     of the least squares scaled by it), None for equal weights.
 
