@@ -674,7 +674,9 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         # Sliding straight along the path at mu_s g where the samples are too few for the free
         # quadratic: like rolling, with that deceleration's size and its own sd (Laplace,
         # ``_cloth_slide_decel``) as the ridge prior. (Offered at any count, it was chosen on
-        # 120 fps approaches it did not fit: tele_120fps restitution 0.015 -> 0.038.)
+        # 120 fps approaches it did not fit: tele_120fps restitution 0.015 -> 0.038.) The sd
+        # is floored at 1 mm/s^2 (0.05 % of mu_s g) only so a clip whose slides agree exactly
+        # (2 mm/s^2 on true centres) gives a finite weight.
         out = solve(one, 2, (-0.5 * straight[0] * lc[1] / speed,
                              (2.0 * max(sigma_mm, 0.05) / max(straight[1], 1.0)) ** 2))
         coef, rss, inv = out
@@ -1676,6 +1678,7 @@ class _Finder:
         """
         if not self.slide_measured or lo <= t_c - self.cfg.fit_window_s:
             return None
+        # ``lo`` is one of the ball's marks (``_Ball.bounds``): these very values, so equal.
         starts = b.strikes + [float(b.t[i0]) for i0, _ in b.moves if i0 not in b.firsts]
         return (self.slide_decel, self.slide_decel_sd) if lo in starts else None
 
