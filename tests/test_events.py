@@ -1179,14 +1179,16 @@ def test_a_lone_slow_contact_departs_sliding_on_the_typical_cloth():
     assert np.median(errs[:, 1]) <= 1.0
 
 
-def _struck_near(fps: float, seed: int, n: int = 6, gap_mm: tuple[float, float] = (60.0, 140.0)):
+def _struck_near(fps: float, seed: int, n: int = 6, gap_mm: tuple[float, float] = (60.0, 140.0),
+                 exact: bool = False):
     """Simulated shots (``analysis.physics``: sliding then rolling, Alciatore 2004; cushion
     impacts of Mathavan, Jackson & Parkin 2010) in which the cue ball, struck from rest at 2-3.5
     m/s up to 30 degrees off square, meets the bottom or top cushion ``gap_mm`` after it starts
     (centre to the reversal line), so within one to three frame intervals at 30 fps; caught
     0.5 s later and set down 0.7 s after that for the next. Detections as in ``benchmarks/event_accuracy.py``
-    (exposure-averaged centres, 2.5 mm noise moving, 1 mm at rest). Returns (found events, the
-    simulator's cushion events)."""
+    (exposure-averaged centres, 2.5 mm noise moving, 1 mm at rest), or ``exact``: the true
+    centres at the frame times with 0.3 mm of noise, stated sigma 1 mm. Returns (found events,
+    the simulator's cushion events)."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
@@ -1209,7 +1211,11 @@ def _struck_near(fps: float, seed: int, n: int = 6, gap_mm: tuple[float, float] 
         sim.lift(t + 1.0, "cue")
         t += 1.7
     traj = sim.trajectory()
-    det = detections(traj, t, fps, rng, drop=0.0)
+    if exact:
+        det = detections(traj, t, fps, rng, 0.3, 0.3, drop=0.0, shutter_fraction=0.0)
+        det["sigma_mm"] = 1.0
+    else:
+        det = detections(traj, t, fps, rng, drop=0.0)
     truth = truth_events(TABLE, traj, t)
     ev, _ = find_events(track(det, TABLE), TABLE, det)
     return ev, truth[truth["kind"] == "cushion"].reset_index(drop=True)
@@ -1228,6 +1234,51 @@ def test_a_cushion_a_frame_or_two_after_the_strike_is_found_at_30fps(seed):
     ev, truth = _struck_near(fps, seed)
     found = _only(ev, "cushion")
     assert len(found) == len(truth)
+    for _, tr in truth.iterrows():
+        near = found[(found["rail"] == tr["rail"]) & ((found["t"] - tr["t"]).abs() < 0.5 / fps)]
+        assert len(near) == 1, (tr["t"], found[["t", "rail"]].to_dict("records"))
+
+
+@pytest.mark.parametrize("seed", [2, 3])
+def test_a_ball_struck_into_a_cushion_slides_into_it_at_30fps(seed):
+    # Struck from rest 380-460 mm from the rail at 2-3.5 m/s, the ball meets it 0.11-0.23 s
+    # later, while a stun or draw still slides (2 v0 / (7 mu_s g) = 0.29-0.51 s on the
+    # simulator's 0.2 cloth, Alciatore 2004): its approach holds three to five samples at
+    # 30 fps, too few for a free quadratic. Against the simulator's own contacts
+    # (``analysis.physics``), on true centres with 0.3 mm of noise, speed in within 2 % and
+    # restitution within 0.02 (the issue's targets are 3 % and 0.03 for medians). Before,
+    # such an approach was fitted rolling only: speed in up to 10.7 % high and restitution
+    # 0.084 low (seeds 2 and 3: 7.5, 4.9, 9.7, 3.9, 7.9 and 10.7 %). (An approach of two samples,
+    # seed 1 at 9.43 s, cannot tell a stun from a follow that rolls at once: its speed in is
+    # the chord's, 3.1 % high there.)
+    fps = 30.0
+    ev, truth = _struck_near(fps, seed, gap_mm=(380.0, 460.0), exact=True)
+    found = _only(ev, "cushion")
+    checked = 0
+    for _, tr in truth.iterrows():
+        near = found[(found["rail"] == tr["rail"]) & ((found["t"] - tr["t"]).abs() < 0.5 / fps)]
+        if len(near) != 1 or not np.isfinite(near["restitution"].iloc[0]):
+            continue
+        got = near.iloc[0]
+        assert abs(got["speed_in"] / tr["speed_in"] - 1.0) < 0.02, (tr.to_dict(), got.to_dict())
+        assert abs(got["restitution"] - tr["restitution"]) < 0.02, (tr.to_dict(), got.to_dict())
+        checked += 1
+    assert checked >= 2
+
+
+@pytest.mark.parametrize("seed", [2, 4])
+def test_every_contact_of_a_clean_clip_of_short_shots_is_found_at_30fps(seed):
+    # The struck-into-a-cushion shots above on true centres (0.3 mm of noise): each motion,
+    # struck, bounced and caught within half a second, holds its contact, so the ball's noise
+    # estimate at the fits' scale, a median over runs of twelve frames, is a contact's misfit
+    # (44 mm), and a three-sample approach, whose s2 is that estimate, looked like a path
+    # scattering beyond a ball's radius. Every simulated contact (``analysis.physics``) must
+    # be found on its rail within half a frame (the issue's tolerance). Before: 10 of the 24
+    # contacts of seeds 1-4, none of seed 4's six.
+    fps = 30.0
+    ev, truth = _struck_near(fps, seed, gap_mm=(380.0, 460.0), exact=True)
+    found = _only(ev, "cushion")
+    assert len(found) == len(truth) == 6
     for _, tr in truth.iterrows():
         near = found[(found["rail"] == tr["rail"]) & ((found["t"] - tr["t"]).abs() < 0.5 / fps)]
         assert len(near) == 1, (tr["t"], found[["t", "rail"]].to_dict("records"))

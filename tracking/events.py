@@ -353,6 +353,7 @@ class _Fit:
     k: int = 6  # free parameters of the fit (both axes)
     bic: float = math.nan  # Bayesian information criterion of the chosen model
     rss: float = math.nan  # weighted residual sum of squares of the chosen model, mm^2
+    slid: bool = False  # the chosen model slides straight into t0 (``straight``), not rolling
 
     def _split(self, tau: float) -> tuple[float, float]:
         """(m, r): the part of tau before the kink and the part beyond it."""
@@ -424,7 +425,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                    slide_tk: tuple[float, float] | None = None,
                    weight: np.ndarray | None = None, average: bool = False,
                    penalised: bool = False, cache: dict | None = None,
-                   held: bool = False) -> _Fit | None:
+                   held: bool = False,
+                   straight: tuple[float, float] | None = None) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -478,6 +480,13 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     ``slide_tk`` (mean, sd) s, with ``slide_decel``: a Gaussian prior on the slide's duration,
     added to the criterion like the prior on ``mu_s g`` (a slide through the whole window is
     charged only if the mean is shorter than the window).
+
+    ``straight`` (mu_s g, its sd) mm/s^2, approach side only, where the ball left rest within
+    the window (``_Finder._slid_from_rest``) and the samples are fewer than
+    ``quadratic_min_samples``: one more candidate, *sliding straight*: one piece like rolling
+    but with the Gaussian prior ``-mu_s g v_hat`` on its acceleration (4 parameters), for a
+    ball set moving from rest slips along its velocity; the fit then says so (``_Fit.slid``),
+    and the contact does not take it for a ball arriving rolling (``_Finder.cushion``).
 
     ``weight`` (n,): relative weight of each sample (typical detection sigma over its own; rows
     of the least squares scaled by it), None for equal weights.
@@ -546,29 +555,32 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     c_prior = -0.5 * cfg.roll_decel_mm_s2 * lc[1] / speed if speed > 0 else np.zeros(2)
     lam = (2.0 * max(sigma_mm, 0.05) / cfg.roll_decel_sigma_mm_s2) ** 2  # (sigma / sd of c)^2
 
-    def normal_equations(A, ax, roll_col):
+    def normal_equations(A, ax, roll_col, prior=None):
         """Per axis ``ax``: (j0, A without a pinned c0, pin-shifted y, N = A^T A, h = A^T y),
-        with the ridge prior ``lam (c - c_prior)^2`` on ``roll_col`` added to N and h."""
+        with the ridge prior ``lam (c - c_prior)^2`` on ``roll_col`` added to N and h
+        (``prior``: another (c_prior, lam) in their place)."""
+        cp, lm = (c_prior, lam) if prior is None else prior
         j0 = 0 if free0[ax] else 1
         Aa = A[:, :, j0:] * wt[None, :, None]  # weighted rows: sigma_i / sigma_typical
         y = (P[:, ax] - (0.0 if free0[ax] else pin[ax])) * wt
         N = np.einsum("gni,gnj->gij", Aa, Aa)
         h = np.einsum("gni,n->gi", Aa, y)
         if roll_col is not None:
-            N[:, roll_col - j0, roll_col - j0] += lam
-            h[:, roll_col - j0] += lam * c_prior[ax]
+            N[:, roll_col - j0, roll_col - j0] += lm
+            h[:, roll_col - j0] += lm * cp[ax]
         return j0, Aa, y, N, h
 
-    def solve(A, roll_col):
+    def solve(A, roll_col, prior=None):
         """A (G, n, q) columns c0..c{q-1}; per axis least squares with c0 pinned where asked
-        and the ridge prior on ``roll_col``. Returns coef (G, q, 2), rss (G,), inverse normal
-        matrices (G, 2, q, q) (zero rows/columns for a pinned c0)."""
+        and the ridge prior on ``roll_col`` (``prior`` as in ``normal_equations``). Returns
+        coef (G, q, 2), rss (G,), inverse normal matrices (G, 2, q, q) (zero rows/columns for
+        a pinned c0)."""
         G, _, q = A.shape
         coef = np.zeros((G, q, 2))
         inv = np.zeros((G, 2, q, q))
         rss = np.zeros(G)
         for ax in range(2):
-            j0, Aa, y, AtA, Atb = normal_equations(A, ax, roll_col)
+            j0, Aa, y, AtA, Atb = normal_equations(A, ax, roll_col, prior)
             Ai = _batch_inv(AtA)
             c = np.einsum("gij,gj->gi", Ai, Atb)
             rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
@@ -673,6 +685,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         return np.where(ok, bic(rss + prior * s2_hat, k), np.inf)
     dir_prior = None if slide_dir is None else math.atan2(slide_dir[1], slide_dir[0])
     cands = []  # (score, coef (4, 2), inv (2, q, q), rss, k, tk)
+    straight_cand = None  # the straight slide's entry, where offered
     one = np.stack([np.ones(n), tau, tau * tau], axis=1)[None]  # (1, n, 3)
     if fixed and n >= 4:
         out = solve_fixed(one, 2, None, 0.5 * slide_decel, "one")
@@ -684,6 +697,22 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             # Sliding through the window: the slide lasts at least to the last sample.
             pen = tk_prior(np.array([abs(tau[-1])]), at_least=True) * np.maximum(rss, floor) / m_obs
             cands.append((float(bic(rss + pen, k)[0]), c4, inv[0], float(rss[0]), k, None))
+    if straight is not None and not after and 3 <= n < cfg.quadratic_min_samples \
+            and not fixed and speed > 0:
+        # Sliding straight along the path at mu_s g where the samples are too few for the free
+        # quadratic: like rolling, with that deceleration's size and its own sd (Laplace,
+        # ``_cloth_slide_decel``) as the ridge prior. (Offered at any count, it was chosen on
+        # 120 fps approaches it did not fit: tele_120fps restitution 0.015 -> 0.038.) The sd
+        # is floored at 1 mm/s^2 (0.05 % of mu_s g) only so a clip whose slides agree exactly
+        # (2 mm/s^2 on true centres) gives a finite weight.
+        out = solve(one, 2, (-0.5 * straight[0] * lc[1] / speed,
+                             (2.0 * max(sigma_mm, 0.05) / max(straight[1], 1.0)) ** 2))
+        coef, rss, inv = out
+        c4 = np.zeros((4, 2))
+        c4[:3] = coef[0]
+        cands.append((float(bic(rss, 4 - n_pinned)[0]), c4, inv[0], float(rss[0]),
+                      4 - n_pinned, None))
+        straight_cand = cands[-1]
     for roll, k in ((True, 4), (False, 6)):
         if n < (3 if roll else cfg.quadratic_min_samples) or fixed:
             continue
@@ -738,7 +767,9 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                 cands.append((score, cg, inv[g], float(rss[g]), k, tkg))
     if not cands:
         return _fit(ts, ps, t0, 1, sigma_mm) if n_pinned == 0 else None
-    score, c4, inv, rss, k, tk, *pen = min(cands, key=lambda c: c[0])
+    best = min(cands, key=lambda c: c[0])
+    score, c4, inv, rss, k, tk, *pen = best
+    slid = straight_cand is not None and best is straight_cand
     rss_pen = pen[0] if pen else rss
     if average and len(cands) > 1:
         sc = np.array([c[0] for c in cands])
@@ -756,7 +787,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     # var p(t) per axis differs when one axis is pinned; keep the larger (free) axis' matrix.
     cov = inv[int(np.argmax([np.trace(inv[0, :3, :3]), np.trace(inv[1, :3, :3])])), :3, :3]
     return _Fit(t0, c4[:3].copy(), cov.copy(), s2, n, 2, tk=tk,
-                far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss_pen)
+                far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss_pen,
+                slid=slid)
 
 
 def _real_roots(coeffs_high_first, lo: float, hi: float) -> np.ndarray:
@@ -1643,7 +1675,8 @@ class _Finder:
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
         td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
         step = self.cfg.kink_step_frames * self.dt
-        fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta))
+        fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta),
+                               straight=self._slid_from_rest(b, lo, t_c))
         # mu_s g from the prior alone is not held here: a slide forced to last to the first
         # sample would pull a slow contact's rough time by frames (``_cloth_slide_decel``).
         decel = self.slide_decel if self.slide_measured else None
@@ -1651,6 +1684,27 @@ class _Finder:
         for t_bad in bad_a + bad_d:
             b.raw[np.searchsorted(b.t, t_bad)] = np.nan
         return fa, fd
+
+    def _slid_from_rest(self, b: _Ball, lo: float, t_c: float) -> tuple[float, float] | None:
+        """(mu_s g, its sd) mm/s^2 where the approach to a contact at ``t_c`` may slide
+        straight: its window (``fit_window_s``) reaches back to ``lo``, the ball's leaving rest
+        (a strike or a ball hitting it), else None.
+
+        A ball set moving from rest slips along its velocity: a cue struck without elevation
+        spins it about the horizontal axis across its heading (side spin, about the vertical,
+        moves no point of the cloth contact), a ball hit by another gets its velocity along the
+        line of centres and no spin. Friction opposes the slip, so it slides in a straight
+        line at ``mu_s g`` until it rolls, ``2 |slip| / (7 mu_s g)`` later (Alciatore 2004):
+        0.32 s for a stun at 2.2 m/s on a 0.2 cloth, ten frames at 30 fps. A contact that soon
+        after has an approach too short for the free quadratic's curvature
+        (``quadratic_min_samples``), and rolling, its only model there before, read the speed
+        in a tenth high (phone_wide_30fps extra clip, 0.73 s, on the true positions).
+        """
+        if not self.slide_measured or lo <= t_c - self.cfg.fit_window_s:
+            return None
+        # ``lo`` is one of the ball's marks (``_Ball.bounds``): these very values, so equal.
+        starts = b.strikes + [float(b.t[i0]) for i0, _ in b.moves if i0 not in b.firsts]
+        return (self.slide_decel, self.slide_decel_sd) if lo in starts else None
 
     def _quadratic_fits(self, b: _Ball, t_c: float, lo: float, hi: float, exclude: bool,
                         strike: bool = False):
@@ -1711,7 +1765,8 @@ class _Finder:
         return best
 
     def _robust_fit(self, ts: np.ndarray, ps: np.ndarray, t0: float, sigma: float, step: float,
-                    slide_decel: float | None = None, weight: np.ndarray | None = None):
+                    slide_decel: float | None = None, weight: np.ndarray | None = None,
+                    straight: tuple[float, float] | None = None):
         """``_piecewise_fit`` of samples ts (n,) s, ps (n, 2) mm with gross outliers struck.
 
         A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance; for
@@ -1727,7 +1782,7 @@ class _Finder:
         struck: list[float] = []
         while True:
             f = _piecewise_fit(ts, ps, t0, sigma, step, self.cfg, slide_decel=slide_decel,
-                               weight=weight)
+                               weight=weight, straight=straight)
             if f is None or len(struck) >= self.cfg.outlier_max \
                     or len(ts) <= self.cfg.quadratic_min_samples:
                 return f, ts, ps, weight, struck
@@ -1744,7 +1799,8 @@ class _Finder:
             weight = None if weight is None else weight[keep]
 
     def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float,
-              slide_decel: float | None = None, weight: np.ndarray | None = None):
+              slide_decel: float | None = None, weight: np.ndarray | None = None,
+              straight: tuple[float, float] | None = None):
         """Piecewise (slide then roll) fit of one side's samples with gross outliers struck
         (``_robust_fit``); returns (fit, times of the samples struck). A path the chosen model
         still cannot explain within the noise (chi-square test ``RSS / sigma^2 >
@@ -1753,7 +1809,7 @@ class _Finder:
         struck: list[float] = []
         for halved in range(3):
             f, ts, ps, weight, bad = self._robust_fit(ts, ps, t_c, sigma, step, slide_decel,
-                                                      weight)
+                                                      weight, straight)
             struck += bad
             if f is None or halved == 2 or len(ts) < 2 * self.cfg.quadratic_min_samples:
                 return f, struck
@@ -1820,6 +1876,7 @@ class _Finder:
         pin[ax] = c
 
         wa, wd = b.weights(ta), b.weights(td)
+        straight = self._slid_from_rest(b, lo, t_c)
 
         def fits(t: float):
             line = 0.0
@@ -1831,7 +1888,7 @@ class _Finder:
                 pin[ax] = float(wt @ np.array([e for e, _ in est]) / np.sum(wt))
                 line = ((pin[ax] - c) / line_sd) ** 2
             fa = _piecewise_fit(ta, pa, t, b.sigma_fit, step, self.cfg, pin, weight=wa,
-                                average=True, held=True)
+                                average=True, held=True, straight=straight)
             fd = _piecewise_fit(td, pd_, t, b.sigma_fit, step, self.cfg, pin, self.slide_decel,
                                 slide_dir, slide_tk, weight=wd, average=True, held=True)
             if fa is None or fd is None:
@@ -2078,7 +2135,8 @@ class _Finder:
         # slide lasts scales with the normal speed arriving (``_cushion_slide_ratio``), a prior
         # once the clip has measured it.
         slide_dir = slide_tk = None
-        rolling_in = self.slide_decel is not None and (fa.tk is not None or fa.k <= 4)
+        rolling_in = self.slide_decel is not None and not fa.slid \
+            and (fa.tk is not None or fa.k <= 4)
         n_in = np.asarray(rail_inward_normal(rail), dtype=float)
         if rolling_in:
             slide_dir = _slide_direction(fa.vel(t_c), n_in, self.table.contact_angle_rad,
@@ -2116,7 +2174,13 @@ class _Finder:
         # only running into it, and a ball running along the rail, its normal velocity within
         # the noise of zero, turns that way and back in the smoothed velocity (a second, false
         # contact a few frames after a slow one).
-        if max(fa.s2, fd.s2) > self.table.radius_mm ** 2:
+        # Only a fit with spare samples (2 n - k >= 4) measures its scatter; one without has
+        # the ball's noise estimate as its s2, which a track of short motions, each holding a
+        # contact, can put far above the detections' scatter (``_noise_sigma``: 44 mm on true
+        # centres with 0.3 mm of noise at 30 fps, tests/test_events.py's struck-near shots,
+        # where 14 of 24 contacts were refused on three-sample approaches).
+        if max([f.s2 for f in (fa, fd) if 2 * f.n - f.k >= 4], default=0.0) \
+                > self.table.radius_mm ** 2:
             return None
         vn_in, vn_out = -float(v_in @ n_in), float(v_out @ n_in)
         if vn_in <= 0:
