@@ -45,6 +45,12 @@ columns above where the error comes from:
   moved onto the true nose line (imaged by the true camera): what the geometry (plumb lines, pose,
   refinement, sights, height) gives from perfect noses, so the rest of the first row's error is
   the locator's.
+
+``--reencode CRF ...`` (with ``--extra``) adds, per clip and CRF, a row ``still crfN``: the scene's
+empty table filmed by the renderer (its noise and flicker, no balls, no cue) for 40 frames,
+encoded with H.264 at that constant rate factor (``vision.video.write_video``, one GOP; 0 is
+lossless), decoded, and its per-pixel median calibrated like a background: how the nose locator
+fares at another compression of the same view.
 """
 
 from __future__ import annotations
@@ -291,6 +297,17 @@ def _snapped_to_truth(table: TableSpec, true: Camera, locate):
     return snapped
 
 
+def _scored(table: TableSpec, true: Camera, got, case: str, seconds: float) -> dict:
+    """One ``--extra`` row: :func:`measure` of calibration ``got`` against the true camera, the
+    calibration's own statement, each corner's error and each rail's located-nose bias."""
+    m = measure(table, true, got.camera)
+    m.update(_stated(got.quality, true))
+    m.update(case=case, seconds=seconds, corners_mm=corner_errors(table, true, got.camera),
+             located_px=located_offsets(table, true, got), height_mm=got.quality["camera_height_mm"],
+             height_true_mm=float(true.centre_mm[2]))
+    return m
+
+
 def run_extra(name: str, cache: Path) -> list[dict]:
     """Calibrate extra clip ``cache/NAME.mp4`` and score it against ``cache/NAME.truth``; then its
     background again from the true nose lines. Two rows (dicts of :func:`measure` and more)."""
@@ -310,13 +327,33 @@ def run_extra(name: str, cache: Path) -> list[dict]:
                 secs = time.perf_counter() - t0
         else:
             got = cal
-        m = measure(table, true, got.camera)
-        m.update(_stated(got.quality, true))
-        m.update(case=name + label, seconds=secs, corners_mm=corner_errors(table, true, got.camera),
-                 located_px=located_offsets(table, true, got), height_mm=got.quality["camera_height_mm"],
-                 height_true_mm=float(true.centre_mm[2]))
-        rows.append(m)
+        rows.append(_scored(table, true, got, name + label, secs))
     return rows
+
+
+def still_reencoded(name: str, cache: Path, crf: int, n_frames: int = 40) -> dict:
+    """Calibrate the empty table of extra scene ``name`` (``cache/NAME.truth/scene.toml``) filmed
+    ``n_frames`` frames long and encoded at H.264 ``crf`` (the median of the decoded frames) and
+    score it against the truth (a :func:`measure` dict and more, as :func:`run_extra`)."""
+    import tempfile
+    import tomllib
+
+    from railtrace.filming import camera_timeline
+    from railtrace.scene import parse_scene
+    from vision.video import iter_frames, write_video
+
+    text = (cache / f"{name}.truth" / "scene.toml").read_text(encoding="utf-8")
+    scene = parse_scene(tomllib.loads(text), source_text=text)
+    true = camera_timeline(scene)[0][1]
+    r = Renderer(scene.table, true, scene.look, [], seed=scene.seed)
+    empty = (np.zeros((1, 0, 2)), np.zeros((1, 0, 3, 3)), np.zeros((1, 0), bool), np.zeros(1))
+    with tempfile.TemporaryDirectory() as tmp:
+        clip = Path(tmp) / "still.mp4"
+        write_video(clip, (r.render(*empty) for _ in range(n_frames)), scene.film.fps, quality=crf)
+        bg = np.median(np.stack([f for _, _, f in iter_frames(clip)]), axis=0).astype(np.uint8)
+    t0 = time.perf_counter()
+    got = calibrate_background(bg, scene.table, CalibConfig())
+    return _scored(scene.table, true, got, f"{name} still crf{crf}", time.perf_counter() - t0)
 
 
 def clip_cases() -> list[dict]:
@@ -388,6 +425,8 @@ def main(argv=None) -> int:
     ap.add_argument("--extra", nargs="*", metavar="NAME", help="only the extra rendered set's clips (all five, or these)")
     ap.add_argument("--extra-cache", type=Path, default=Path("/tmp/railtrace_extra_clips"),
                     help="where analyse_accuracy.py --extra filmed them")
+    ap.add_argument("--reencode", nargs="+", type=int, default=[], metavar="CRF",
+                    help="with --extra: also each scene's empty table encoded at these H.264 rate factors")
     args = ap.parse_args(argv)
     rows = []
     hdr = (f"{'case':32s} {'corner':>6s} {'nose':>6s} {'dist rms/max':>12s} {'reproj':>6s} {'f %':>6s} {'k1 got/true':>13s} "
@@ -458,7 +497,13 @@ def _main_extra(args, hdr: str) -> int:
         except CalibrationError as exc:
             print(f"{name:32s} REFUSED: {exc}")
             rows.append({"case": name, "refused": str(exc)})
-            continue
+            pair = []
+        for crf in args.reencode:
+            try:
+                pair.append(still_reencoded(name, args.extra_cache, crf))
+            except CalibrationError as exc:
+                print(f"{name + f' still crf{crf}':32s} REFUSED: {exc}")
+                rows.append({"case": f"{name} still crf{crf}", "refused": str(exc)})
         for m in pair:
             rows.append(m)
             loc = " ".join(f"{r[0]}{m['located_px'][r]:+.2f}" if r in m["located_px"] else f"{r[0]}  .  " for r in RAILS)
