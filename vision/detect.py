@@ -1263,6 +1263,9 @@ class BallDetector:
         ys, xs = np.nonzero(self._zone_half)
         self._zone_half_box = (int(xs.min()), int(ys.min()), int(xs.max()) + 1, int(ys.max()) + 1)
         self._bg_half: tuple[int, np.ndarray, tuple[np.ndarray, np.ndarray, np.ndarray]] | None = None
+        # Whether a coarse outline (:meth:`_edges`) lowered a sample by the cast-shadow discount
+        # since :meth:`_fit_either` last cleared it.
+        self._discounted = False
 
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
@@ -1623,13 +1626,21 @@ class BallDetector:
     def _fit_one(self, img: np.ndarray, s: dict) -> dict | None:
         """:meth:`_fit_seed` with the fallbacks: a second try without the shadow test, and the
         streak's fade test (:meth:`_soft_ends`)."""
-        r = self._fit_seed(img, s)
-        if r is None and not s["strict"]:
-            # The shadow test of the coarse outline can eat a dark rim between touching
-            # balls; a ball that fails with it is tried once without.
-            r = self._fit_seed(img, s, shadows=False)
+        r = self._fit_either(img, s)
         if r is not None and (r["blur_x"] or r["blur_y"]) and not self._soft_ends(img, r):
             r = None
+        return r
+
+    def _fit_either(self, img: np.ndarray, s: dict, avoid: np.ndarray | None = None) -> dict | None:
+        """:meth:`_fit_seed` with the coarse outline's cast-shadow discount, and, for a seed
+        that is not strict and fails so, once more without it (the shadow test can eat a dark
+        rim between touching balls). The second try is made only where the first one's
+        discount lowered a sample somewhere (:meth:`_edges`): otherwise it would repeat the
+        first one's arithmetic to the bit and fail alike."""
+        self._discounted = False
+        r = self._fit_seed(img, s, avoid=avoid)
+        if r is None and not s["strict"] and self._discounted:
+            r = self._fit_seed(img, s, shadows=False, avoid=avoid)
         return r
 
     def _unexplained_seeds(self, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
@@ -2035,9 +2046,7 @@ class BallDetector:
             if not near.any():
                 continue
             start = dict(seeds[i], uv=np.array([r["u"], r["v"]]), half_px=0.0)
-            again = self._fit_seed(img, start, avoid=xy[near])
-            if again is None and not seeds[i]["strict"]:
-                again = self._fit_seed(img, start, shadows=False, avoid=xy[near])
+            again = self._fit_either(img, start, avoid=xy[near])
             if again is not None:
                 out[i] = again
         return [r for r in out if r is not None]
@@ -2267,7 +2276,9 @@ class BallDetector:
         # match the cloth's hue too. ``shadows`` False skips the test.
         shade = np.flip(np.logical_and.accumulate(np.flip(shade, axis=1), axis=1), axis=1) & (rho >= rho_pred[:, None])
         if shadows and shade.any():
-            D = np.where(shade, np.minimum(D, _ballness_of(ib, a, ii, bb_raw, bn)), D)
+            lower = np.minimum(D, _ballness_of(ib, a, ii, bb_raw, bn))
+            self._discounted |= bool(np.any(shade & (lower != D)))  # NaN counts as lowered
+            D = np.where(shade, lower, D)
         inner_sel = rho <= 0.8 * rho_pred[:, None]
         inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
         # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
