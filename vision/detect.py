@@ -72,7 +72,8 @@ Method
    (the model's own hue, no brighter; the hue judged as the foreground test judges it, so a
    deep shadow tinted by room light and the dark crease where the ball meets the cloth count),
    in a run out to the cloth, are cast shadow and measured by :func:`ballness`, so a dark rim that fades into its shadow does not hand the outline to
-   the shadow's far edge; a seed that fails so is tried once without. A ball of the cloth's own
+   the shadow's far edge; a seed that fails so is tried once without, where the discount lowered
+   a sample (elsewhere the retry would repeat the first try). A ball of the cloth's own
    hue and brightness (blue on blue, red on red: :func:`_plain_body`) has no colour step at its
    outline, only the ramp of its shading into its shadow; its outline is the inner flank of
    the dark ring round it instead (the limb darkened by Lambert's law meeting the cloth the
