@@ -853,7 +853,9 @@ def test_ballness_by_opencv_matches_the_written_out_score():
     # einsum and plain float32 expressions), to the last bit for images and for sample arrays,
     # and known colours their known scores (analytic: a shadow at half light scores 0, a pixel
     # of the background's colour at twice its brightness scores 2 - 1.15).
-    from vision.detect import _dot3_f32, ballness
+    # The plain-numpy dot products (_dot3) give the same float32 values, so the coarse outline
+    # shares them with the score.
+    from vision.detect import _dot3, _dot3_f32, ballness
 
     rng = np.random.default_rng(11)
     for shape in [(37, 53, 3), (48, 30, 3), (200, 3), (5, 7, 9, 3), (0, 3)]:
@@ -861,6 +863,8 @@ def test_ballness_by_opencv_matches_the_written_out_score():
         B = rng.uniform(0, 255, shape).astype(np.float32)
         ib = np.einsum("...c,...c->...", I, B)
         assert _dot3_f32(I, B).shape == ib.shape and np.array_equal(_dot3_f32(I, B), ib)
+        Iq = I + rng.uniform(0, 1, shape).astype(np.float32)  # fractional, as interpolated samples
+        assert np.array_equal(_dot3(Iq, B), np.einsum("...c,...c->...", Iq, B))
         bb = np.einsum("...c,...c->...", B, B)
         ii = np.einsum("...c,...c->...", I, I)
         a = ib / np.maximum(bb, 1.0)

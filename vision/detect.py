@@ -72,7 +72,8 @@ Method
    (the model's own hue, no brighter; the hue judged as the foreground test judges it, so a
    deep shadow tinted by room light and the dark crease where the ball meets the cloth count),
    in a run out to the cloth, are cast shadow and measured by :func:`ballness`, so a dark rim that fades into its shadow does not hand the outline to
-   the shadow's far edge; a seed that fails so is tried once without. A ball of the cloth's own
+   the shadow's far edge; a seed that fails so is tried once without, where the discount lowered
+   a sample (elsewhere the retry would repeat the first try). A ball of the cloth's own
    hue and brightness (blue on blue, red on red: :func:`_plain_body`) has no colour step at its
    outline, only the ramp of its shading into its shadow; its outline is the inner flank of
    the dark ring round it instead (the limb darkened by Lambert's law meeting the cloth the
@@ -402,10 +403,15 @@ def _ballness(I: np.ndarray, B: np.ndarray, bb: np.ndarray, bb1: np.ndarray, bn:
     :func:`_background_terms` given: the same float32 operations in the same order, written
     in place (each temporary of a full frame costs as much as the arithmetic)."""
     ib = _dot3_f32(I, B)
-    a = ib / bb1
+    return _ballness_of(ib, ib / bb1, _dot3_f32(I, I), bb, bn)
+
+
+def _ballness_of(ib: np.ndarray, a: np.ndarray, s: np.ndarray, bb: np.ndarray, bn: np.ndarray) -> np.ndarray:
+    """:func:`_ballness` from its dot products, each (...) float32: ``ib`` = I.B, ``a`` =
+    I.B / max(B.B, 1), ``s`` = I.I (overwritten with the result), ``bb`` = B.B, ``bn`` =
+    max(|B|, 30); for a caller that has them already (:meth:`BallDetector._edges`)."""
     # |I - a B|^2 = I.I - 2 a I.B + a^2 B.B: three dot products instead of a (..., 3) temporary
     # (float32 rounding of the difference is below 0.1 DN here, far under any threshold).
-    s = _dot3_f32(I, I)
     t = 2.0 * a
     t *= ib
     s -= t
@@ -1258,6 +1264,9 @@ class BallDetector:
         ys, xs = np.nonzero(self._zone_half)
         self._zone_half_box = (int(xs.min()), int(ys.min()), int(xs.max()) + 1, int(ys.max()) + 1)
         self._bg_half: tuple[int, np.ndarray, tuple[np.ndarray, np.ndarray, np.ndarray]] | None = None
+        # Whether a coarse outline (:meth:`_edges`) lowered a sample by the cast-shadow discount
+        # since :meth:`_fit_either` last cleared it.
+        self._discounted = False
 
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
@@ -1618,13 +1627,21 @@ class BallDetector:
     def _fit_one(self, img: np.ndarray, s: dict) -> dict | None:
         """:meth:`_fit_seed` with the fallbacks: a second try without the shadow test, and the
         streak's fade test (:meth:`_soft_ends`)."""
-        r = self._fit_seed(img, s)
-        if r is None and not s["strict"]:
-            # The shadow test of the coarse outline can eat a dark rim between touching
-            # balls; a ball that fails with it is tried once without.
-            r = self._fit_seed(img, s, shadows=False)
+        r = self._fit_either(img, s)
         if r is not None and (r["blur_x"] or r["blur_y"]) and not self._soft_ends(img, r):
             r = None
+        return r
+
+    def _fit_either(self, img: np.ndarray, s: dict, avoid: np.ndarray | None = None) -> dict | None:
+        """:meth:`_fit_seed` with the coarse outline's cast-shadow discount, and, for a seed
+        that is not strict and fails so, once more without it (the shadow test can eat a dark
+        rim between touching balls). The second try is made only where the first one's
+        discount lowered a sample somewhere (:meth:`_edges`): otherwise it would repeat the
+        first one's arithmetic to the bit and fail alike."""
+        self._discounted = False
+        r = self._fit_seed(img, s, avoid=avoid)
+        if r is None and not s["strict"] and self._discounted:
+            r = self._fit_seed(img, s, shadows=False, avoid=avoid)
         return r
 
     def _unexplained_seeds(self, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
@@ -2030,9 +2047,7 @@ class BallDetector:
             if not near.any():
                 continue
             start = dict(seeds[i], uv=np.array([r["u"], r["v"]]), half_px=0.0)
-            again = self._fit_seed(img, start, avoid=xy[near])
-            if again is None and not seeds[i]["strict"]:
-                again = self._fit_seed(img, start, shadows=False, avoid=xy[near])
+            again = self._fit_either(img, start, avoid=xy[near])
             if again is not None:
                 out[i] = again
         return [r for r in out if r is not None]
@@ -2230,7 +2245,11 @@ class BallDetector:
         # Reference colour: the frame itself just outside the predicted outline (the last
         # samples of each ray), so an imperfect background under a resting ball does not matter.
         ref = np.sort(prof[:, -5:], axis=1)[:, 2]  # the median of five
-        D = _norm3(prof - ref[:, None]) / np.maximum(_norm3(bprof), 30.0)
+        # The dot products below serve D, the shade test and :func:`ballness` alike (the same
+        # float32 values as each computing its own: tests/test_detect.py).
+        bb_raw = _dot3(bprof, bprof)
+        bn = np.maximum(np.sqrt(bb_raw), 30.0)
+        D = _norm3(prof - ref[:, None]) / bn
         # A cast shadow differs from the cloth just beyond it but only dims the empty table: a
         # sample no brighter than the model and within ~4.6 degrees of its colour's direction
         # (sin 0.08: the cloth's texture and noise; a stripe's band or a black ball lie tens of
@@ -2238,10 +2257,12 @@ class BallDetector:
         # from colour) and the smaller value counts, so the shadow's outer edge is not taken
         # for the ball's while a ghost in the model, unlike the frame just outside, still does
         # not count.
-        bb = np.maximum(_dot3(bprof, bprof), 1.0)
-        a = _dot3(prof, bprof) / bb
-        off_hue = _chroma_off(prof, bprof, a)
-        bness = ballness(prof, bprof)
+        bb = np.maximum(bb_raw, 1.0)
+        ib = _dot3(prof, bprof)
+        a = ib / bb
+        ii = _dot3(prof, prof)
+        dev = _norm3(prof - a[..., None] * bprof)
+        off_hue = dev / np.maximum(np.sqrt(ii), 20.0)  # _chroma_off
         # A shadow's light is not the lamps' (room light, the cloth's own bounce), so a deep
         # one can turn its colour further than the sine bound above, above all on dim pale
         # cloth where noise is a larger share of the dark value: dimmed samples whose colour
@@ -2249,14 +2270,16 @@ class BallDetector:
         # al. 1999, under the same noise-scaled threshold) are shade too, however dark: the
         # crease where the ball meets the cloth, out of the room's light as well as the lamps',
         # is darker than the half-light floor of :func:`ballness`.
-        cd = _norm3(prof - a[..., None] * bprof) / np.maximum(np.sqrt(bb), 30.0)
+        cd = dev / bn  # max(sqrt(max(B.B, 1)), 30) is max(|B|, 30)
         shade = (a < 1.03) & ((off_hue < 0.08) | (cd <= self._score_thr))
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
         # match the cloth's hue too. ``shadows`` False skips the test.
         shade = np.flip(np.logical_and.accumulate(np.flip(shade, axis=1), axis=1), axis=1) & (rho >= rho_pred[:, None])
-        if shadows:
-            D = np.where(shade, np.minimum(D, bness), D)
+        if shadows and shade.any():
+            lower = np.minimum(D, _ballness_of(ib, a, ii, bb_raw, bn))
+            self._discounted |= bool(np.any(shade & (lower != D)))  # NaN counts as lowered
+            D = np.where(shade, lower, D)
         inner_sel = rho <= 0.8 * rho_pred[:, None]
         inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
         # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
