@@ -143,14 +143,12 @@ class CalibConfig:
     * noses: ``profiles_per_side`` normals sampled per cushion side; ``fit_k2`` also fits OpenCV's
       ``k2``; ``use_sights`` refines on the rail-top sights; ``fit_sight_offsets`` then refines
       once more with the sights' setback and rail-top height as two more unknowns
-      (:class:`_SightOffsets`) and the sights weighted ``offset_sight_weight`` (against 0.5
-      before: the sights are blob centroids a codec hardly moves, 0.14 px median from the truth
-      on the extra set's H.264 phone background, while it shifts whole stretches of a nose by
-      0.2-0.6 px, so the hundreds of nose points carry far less than their count; measured on
-      the extra set with the offsets free, weight 0.5 left the corners as they were (dim/lamp/
-      tele 2.40/1.31/1.58 mm) and 5 brought them to 1.79/1.07/0.26, and on the clean renders to
-      a median 0.13 mm from 0.32), kept only when :func:`_offsets_untrusted` finds nothing
-      against it;
+      (:class:`_SightOffsets`), each sight weighted as one measurement of sd ``sight_sd_px``
+      against a side's nose points that share one locator bias of ``nose_bias_sd_px``
+      (:func:`_offsets_sight_weight`; ``sight_sd_px``: the sights are blob centroids a codec
+      hardly moves, 0.14 px median from the truth on the extra set's H.264 phone background,
+      while it shifts whole stretches of a nose by 0.2-0.6 px), kept only when
+      :func:`_offsets_untrusted` finds nothing against it;
     * known values: ``camera_height_mm`` (lens above the cloth) pins the height/focal trade;
       ``corners_px`` the four nose corners in the image, in table order (origin, then along x,
       then the far corner, then along y), for rooms where the automatic search fails;
@@ -189,7 +187,7 @@ class CalibConfig:
     fit_k2: bool = True
     use_sights: bool = True
     fit_sight_offsets: bool = True
-    offset_sight_weight: float = 5.0
+    sight_sd_px: float = 0.15
     camera_height_mm: float | None = None
     corners_px: tuple[tuple[float, float], ...] | None = None
     origin_near_px: tuple[float, float] | None = None
@@ -1583,14 +1581,14 @@ def _find_sights(grey: np.ndarray, cam: Camera, table: TableSpec) -> tuple[np.nd
 # ================================================================================================
 def _with_sight_offsets(x, sight_w, cam_of, noses, sights_px, sights_mm, table, config, nose_w, hp):
     """The refinement again with the sights' setback and height free (:class:`_SightOffsets`)
-    and the sights weighted ``config.offset_sight_weight``: (parameters, sight weight, offsets or
+    and the sights weighted by :func:`_offsets_sight_weight`: (parameters, sight weight, offsets or
     None, note). Keeps the nose-led fit ``x`` (and ``sight_w``) unless :func:`_offsets_untrusted`
     finds nothing against the new one; the note says why it was kept."""
     r_nose = np.concatenate([off * scale for _, off, scale in _rails_offsets_mm(cam_of(x), noses, table)])
     unit = max(0.05, 1.4826 * float(np.median(np.abs(r_nose - np.median(r_nose)))))
     idx = _sight_index(table, sights_mm)
     offsets = _SightOffsets(idx, (config.sight_setback_sd_mm, config.rail_top_sd_mm), unit)
-    sw = config.offset_sight_weight
+    sw = _offsets_sight_weight(noses, config)
     r = optimize.least_squares(
         _residuals, np.concatenate([x, [0.0, 0.0]]), args=(cam_of, noses, sights_px, sights_mm, table, sw, hp, nose_w, offsets),
         loss="soft_l1", f_scale=0.5, method="trf", x_scale="jac", max_nfev=200,
@@ -1602,12 +1600,26 @@ def _with_sight_offsets(x, sight_w, cam_of, noses, sights_px, sights_mm, table, 
     return r.x, sw, offsets, None
 
 
+def _offsets_sight_weight(noses, config: CalibConfig) -> float:
+    """Weight of a sight's reprojection residual (px) against a nose point's (unit weight) in the
+    fit with the sights' offsets free. The n nose points of a side share one locator bias of
+    about ``nose_bias_sd_px`` (a codec shifts whole stretches of the band), so together they fix
+    their line no better than that, and each, counted as independent at unit weight, stands for
+    a measurement of sd ``nose_bias_sd_px * sqrt(n)``; a sight of sd ``sight_sd_px`` then weighs
+    their ratio (inverse-sd weighting, Hartley & Zisserman, Multiple View Geometry, 2nd ed., sec.
+    A5.2), n the median over the sides (60-90 points on the extra set: weights 16-19). Measured on
+    the extra set's corners (dim/lamp/phone/tele/uneven) at fixed weights: 5 gave 1.36/1.19/2.75/
+    0.26/0.19 mm, 10 0.82/1.03/1.35/0.16/0.18, 20 0.61/0.96/0.71/0.18/0.20."""
+    n = float(np.median([len(pts) for _, pts in noses]))
+    return config.nose_bias_sd_px * math.sqrt(max(n, 1.0)) / config.sight_sd_px
+
+
 def _offsets_untrusted(x_off: np.ndarray, rails: list[str], config: CalibConfig) -> str | None:
     """Why the fit with the sights' offsets free (``x_off``, last two: setback, height mm) is not
-    to be used, or None. Weighted ``offset_sight_weight``, the sights steer the lens and pose near
+    to be used, or None. Weighted :func:`_offsets_sight_weight`, the sights steer the lens and pose near
     themselves, so they must bracket the table: found on all four rails (when the sight finder still
-    missed the extra set's wide phone clip's dark short rail, the lens bent to the other three
-    moved that end's corner 4.9 mm off, against 4.0 from the nose-led fit). The offsets must also lie within
+    missed the extra set's wide phone clip's dark short rail, the lens bent to the other three,
+    at sight weight 5, moved that end's corner 4.9 mm off, against 4.0 from the nose-led fit). The offsets must also lie within
     twice their tolerance (:class:`CalibConfig` sds): beyond, the sights disagree with the noses
     by more than any table would explain (a sight taken on the wrong diamond, a mis-set table)."""
     missing = sorted(set(RAIL_SIDES) - set(rails))
