@@ -48,7 +48,10 @@ How a clip becomes a :class:`~vision.camera.Camera`:
    ``cv2.solvePnP`` (IPPE, Collins & Bartoli 2014) on the corners.
 6. **Refinement**: ``scipy.optimize.least_squares`` (trust-region, robust soft-L1 loss) over
    focal length, ``k1`` (and ``k2``) and pose, from every nose point (its distance from its nose
-   line, in the plane of the noses, converted to px) and every sight found (reprojection, px).
+   line, in the plane of the noses, converted to px) and every sight found (reprojection, px);
+   then once more with the sights weighted more and their setback and height free (each with a
+   prior of the table's tolerance, :class:`_SightOffsets`), kept when the sights surround the
+   table and the offsets are plausible (:func:`_offsets_untrusted`), else the nose-led fit stays.
    A near-overhead camera sees the cloth almost square on, so the focal length and the camera's
    height trade against each other (they are separated only by the slight tilt and the sights'
    height above the noses, which is itself known only to a few mm); the ball-centre plane lies
@@ -138,7 +141,14 @@ class CalibConfig:
       below which a frame is still, DN on 0..255), ``max_still_frames`` kept for the median,
       ``min_still_frames`` needed;
     * noses: ``profiles_per_side`` normals sampled per cushion side; ``fit_k2`` also fits OpenCV's
-      ``k2``; ``use_sights`` refines on the rail-top sights;
+      ``k2``; ``use_sights`` refines on the rail-top sights; ``fit_sight_offsets`` then refines
+      once more with the sights' setback and rail-top height as two more unknowns
+      (:class:`_SightOffsets`), each sight weighted as one measurement of sd ``sight_sd_px``
+      against a side's nose points that share one locator bias of ``nose_bias_sd_px``
+      (:func:`_offsets_sight_weight`; ``sight_sd_px``: the sights are blob centroids a codec
+      hardly moves, 0.14 px median from the truth on the extra set's H.264 phone background,
+      while it shifts whole stretches of a nose by 0.2-0.6 px), kept only when
+      :func:`_offsets_untrusted` finds nothing against it;
     * known values: ``camera_height_mm`` (lens above the cloth) pins the height/focal trade;
       ``corners_px`` the four nose corners in the image, in table order (origin, then along x,
       then the far corner, then along y), for rooms where the automatic search fails;
@@ -176,6 +186,8 @@ class CalibConfig:
     profiles_per_side: int = 90
     fit_k2: bool = True
     use_sights: bool = True
+    fit_sight_offsets: bool = True
+    sight_sd_px: float = 0.15
     camera_height_mm: float | None = None
     corners_px: tuple[tuple[float, float], ...] | None = None
     origin_near_px: tuple[float, float] | None = None
@@ -239,7 +251,8 @@ class Calibration:
       ``sights_found``, ``aspect_measured`` (L/W the image supports), ``focal_px``,
       ``camera_height_mm``, ``hfov_deg``, ``k1``, ``k2``, ``nose_points``, ``still_frames``, and
       the uncertainty (:func:`_uncertainty`): ``camera_height_sd_mm``, ``focal_sd_pct``,
-      ``ball_position_sd_mm``, ``height_determined``...;
+      ``ball_position_sd_mm``, ``height_determined``..., ``sight_offsets_mm`` (the sights' fitted
+      setback and height offsets, mm, or None) and ``sight_offsets_note`` (why not, or None);
     * ``corners_px``: (4, 2) image positions (u, v) of the nose rectangle's corners at nose height,
       in table order (0,0), (L,0), (L,W), (0,W);
     * ``noses``: one :class:`NoseFit` per rail (bottom, right, top, left);
@@ -1254,16 +1267,53 @@ def _as_prior(height_prior, config: "CalibConfig") -> HeightPrior | None:
     return HeightPrior.given(float(height_prior), config)
 
 
+@dataclass(frozen=True)
+class _SightOffsets:
+    """The sights' setback and rail-top height as two more unknowns of the refinement, the last
+    two entries of its parameter vector (mm, added to ``table.sight_setback_mm`` and
+    ``table.rail_top_height_mm``). Real tables do not fix either exactly (WPA: setback +-3.2 mm,
+    references.md; the rail top from memory a few mm), and a sight a few mm off its model pulls
+    the camera as much as a biased nose does. Each has a Gaussian prior (Hartley & Zisserman,
+    Multiple View Geometry, 2nd ed., sec. A6.4): one residual ``d / sd * unit_px`` with ``sd``
+    the table's tolerance (:class:`CalibConfig`) and ``unit_px`` the noise of one unit-weight
+    residual (the nose points' robust scatter), so a prior residual counts as one nose point's
+    worth of evidence per sd. ``idx``: which of ``table.sights()`` each found sight is."""
+
+    idx: np.ndarray
+    sd_mm: tuple[float, float]
+    unit_px: float
+
+    def points(self, table: TableSpec, params: np.ndarray, d_table: np.ndarray | None = None) -> np.ndarray:
+        """(M, 3) table points (mm) of the found sights for ``params``' offsets (and the table
+        varied by ``d_table``, :func:`_table_varied`)."""
+        d = np.zeros(5) if d_table is None else np.asarray(d_table[:5], float).copy()
+        d[4] += params[-2]
+        d[3] += params[-1]
+        t = _table_varied(table, d)
+        return np.array([[x, y, t.rail_top_height_mm] for _, _, (x, y) in t.sights()])[self.idx]
+
+    def prior(self, params: np.ndarray) -> np.ndarray:
+        return np.array([params[-2] / self.sd_mm[0], params[-1] / self.sd_mm[1]]) * self.unit_px
+
+
+def _sight_index(table: TableSpec, sights_mm: np.ndarray) -> np.ndarray:
+    """Which of ``table.sights()`` each (x, y[, z]) table point of ``sights_mm`` is (nearest)."""
+    all_xy = np.array([xy for _, _, xy in table.sights()])
+    return np.array([int(np.argmin(np.hypot(*(all_xy - s[:2]).T))) for s in sights_mm], int)
+
+
 def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior: HeightPrior | None,
-               nose_w: dict[str, float] | None = None):
+               nose_w: dict[str, float] | None = None, offsets: _SightOffsets | None = None):
     cam = cam_of(params)
     w = nose_w or {}
     out = [off * scale * w.get(rail, 1.0) for rail, off, scale in _rails_offsets_mm(cam, noses, table)]
     if len(sights_px):
-        pr = cam.project(sights_mm)
+        pr = cam.project(sights_mm if offsets is None else offsets.points(table, params))
         out.append(((pr - sights_px) * sight_weight).ravel())
     if height_prior is not None:
         out.append(np.array([height_prior.residual(cam)]))
+    if offsets is not None:
+        out.append(offsets.prior(params))
     r = np.concatenate(out)
     return np.where(np.isfinite(r), r, 1e3)
 
@@ -1345,7 +1395,7 @@ def _scatter_cov(M: np.ndarray, noise: np.ndarray, blocks: list[tuple[int, int, 
 
 def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm: np.ndarray, table: TableSpec,
                  sight_w: float, height_prior: "HeightPrior | float | None", config: CalibConfig,
-                 nose_w: dict[str, float] | None = None) -> dict[str, Any]:
+                 nose_w: dict[str, float] | None = None, offsets: "_SightOffsets | None" = None) -> dict[str, Any]:
     """How well the fitted camera is determined: standard deviations of the camera's height above
     the cloth (mm), of its focal length (%) and of ball positions (mm, the largest over the table).
 
@@ -1373,14 +1423,21 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     Returns JSON-ready numbers: ``camera_height_sd_mm``, ``focal_sd_pct``, ``ball_position_sd_mm``
     (root of the trace of each ball's 2x2 covariance, worst over a 9 x 5 grid of ball centres),
     ``height_determined`` (sd at most ``max_height_sd_rel`` of the height).
+
+    With ``offsets`` (:class:`_SightOffsets`) the sights' setback and height are parameters of
+    the fit, the last two of ``x``: their tolerances then enter through their prior residuals
+    (each with noise ``unit_px``) and the fitted offsets' own covariance, not as table nuisances.
     """
     height_prior = _as_prior(height_prior, config)
-    all_sights = [xy for _, _, xy in table.sights()]
-    sight_idx = np.array([int(np.argmin([math.hypot(s[0] - a, s[1] - b) for a, b in all_sights])) for s in sights_mm[:, :2]], int)
+    sight_idx = _sight_index(table, sights_mm) if len(sights_mm) else np.zeros(0, int)
+    n_off = 0 if offsets is None else 2
 
     def residuals(theta, nu):
         t = _table_varied(table, nu[:5])
-        smm = np.array([[x_, y_, t.rail_top_height_mm] for _, _, (x_, y_) in t.sights()])[sight_idx] if len(sight_idx) else sights_mm
+        if offsets is not None:
+            smm = offsets.points(table, theta, nu)
+        else:
+            smm = np.array([[x_, y_, t.rail_top_height_mm] for _, _, (x_, y_) in t.sights()])[sight_idx] if len(sight_idx) else sights_mm
         cam = cam_of(theta)
         out = [(off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)]) * (nose_w or {}).get(rail, 1.0)
                for rail, off, scale in _rails_offsets_mm(cam, noses, t)]
@@ -1388,6 +1445,8 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
             out.append(((cam.project(smm) - sights_px) * sight_w).ravel())
         if height_prior is not None:
             out.append(np.array([height_prior.residual(cam)]))  # as in _residuals
+        if offsets is not None:
+            out.append(offsets.prior(theta))
         return np.concatenate(out)
 
     def jac(fun, v, steps):
@@ -1400,8 +1459,9 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
 
     nu0 = np.zeros(10)
     n_t = len(x)
-    # Steps: log f and k's dimensionless, rotation in rad, translation in mm.
-    steps_t = np.array(([1e-5, 1e-5, 1e-5] if n_t == 9 else []) + [1e-6] * 3 + [1e-2] * 3)
+    n_cam = n_t - n_off
+    # Steps: log f and k's dimensionless, rotation in rad, translation and sight offsets in mm.
+    steps_t = np.array(([1e-5, 1e-5, 1e-5] if n_cam == 9 else []) + [1e-6] * 3 + [1e-2] * 3 + [1e-2] * n_off)
     J = jac(lambda th: residuals(th, nu0), x, steps_t)
     Jn = jac(lambda v: residuals(x, v), nu0, np.array([0.1] * 5 + [0.01] * 5))
     norms = np.linalg.norm(J, axis=0)
@@ -1422,9 +1482,13 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
         noise.append(np.full(2 * len(sights_px), sd_s * sight_w))
     if height_prior is not None:
         noise.append(np.array([height_prior.noise]))
+    if offsets is not None:
+        noise.append(np.full(2, offsets.unit_px))
     noise = np.concatenate(noise)
     blocks = _nose_blocks(noses, rn, sd_nose)
-    sd_nu = np.array([config.table_size_sd_mm] * 2 + [config.nose_height_sd_mm, config.rail_top_sd_mm, config.sight_setback_sd_mm]
+    # Fitted, the sights' height and setback are counted by their prior residuals instead.
+    sd_top, sd_set = (0.0, 0.0) if offsets is not None else (config.rail_top_sd_mm, config.sight_setback_sd_mm)
+    sd_nu = np.array([config.table_size_sd_mm] * 2 + [config.nose_height_sd_mm, sd_top, sd_set]
                      + [config.nose_bias_sd_px / math.sqrt(2)] * 5)
     A = G @ Jn  # the estimate moves by -A d_nu when the table differs by d_nu
     cov = _scatter_cov(G, noise, blocks) + (A * sd_nu**2) @ A.T
@@ -1449,7 +1513,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     h_sd = float(math.sqrt(max(var[0], 0.0)))
     ball_var = var[1:].reshape(-1, 2).sum(axis=1)
     height = float(cam.centre_mm[2])
-    f_sd = float(100 * math.sqrt(max(cov[0, 0], 0.0))) if n_t == 9 else 0.0
+    f_sd = float(100 * math.sqrt(max(cov[0, 0], 0.0))) if n_cam == 9 else 0.0
     return {
         "camera_height_sd_mm": h_sd,
         "focal_sd_pct": f_sd,
@@ -1483,7 +1547,13 @@ def _find_sights(grey: np.ndarray, cam: Camera, table: TableSpec) -> tuple[np.nd
         # Against the window's own spread only: in a dim room the sights stand 14-30 DN above
         # the rail (the extra set's dim and phone clips), under the fixed 25 DN this once also
         # asked for, which kept 5 of 18 there.
-        if peak - bg < 6 * spread:
+        # How far above the spread: the largest of n pixels of Gaussian noise reaches about
+        # sqrt(2 ln n) sd (extreme-value theory, from memory), so a peak above that is not the
+        # window's own noise; the spread already carries a 2 DN floor. The fixed 6 spreads used
+        # before missed every sight of the extra set's wide phone clip's dark short rail
+        # (12-18 DN above a 10 DN rail, spread 3.5 DN), and without them the sights' fit of that
+        # end's lens is extrapolated (_offsets_untrusted).
+        if peak - bg < math.sqrt(2 * math.log(win.size)) * spread:
             continue
         thr = bg + 0.5 * (peak - bg)
         blob = win > thr
@@ -1509,6 +1579,58 @@ def _find_sights(grey: np.ndarray, cam: Camera, table: TableSpec) -> tuple[np.nd
 # ================================================================================================
 # One background -> one camera
 # ================================================================================================
+def _with_sight_offsets(x, sight_w, cam_of, noses, sights_px, sights_mm, table, config, nose_w, hp):
+    """The refinement again with the sights' setback and height free (:class:`_SightOffsets`)
+    and the sights weighted by :func:`_offsets_sight_weight`: (parameters, sight weight, offsets or
+    None, note). Keeps the nose-led fit ``x`` (and ``sight_w``) unless :func:`_offsets_untrusted`
+    finds nothing against the new one; the note says why it was kept."""
+    r_nose = np.concatenate([off * scale for _, off, scale in _rails_offsets_mm(cam_of(x), noses, table)])
+    unit = max(0.05, 1.4826 * float(np.median(np.abs(r_nose - np.median(r_nose)))))
+    idx = _sight_index(table, sights_mm)
+    offsets = _SightOffsets(idx, (config.sight_setback_sd_mm, config.rail_top_sd_mm), unit)
+    sw = _offsets_sight_weight(noses, config)
+    r = optimize.least_squares(
+        _residuals, np.concatenate([x, [0.0, 0.0]]), args=(cam_of, noses, sights_px, sights_mm, table, sw, hp, nose_w, offsets),
+        loss="soft_l1", f_scale=0.5, method="trf", x_scale="jac", max_nfev=200,
+    )
+    rails = [table.sights()[k][0] for k in idx]
+    note = _offsets_untrusted(r.x, rails, config)
+    if note is not None:
+        return x, sight_w, None, note
+    return r.x, sw, offsets, None
+
+
+def _offsets_sight_weight(noses, config: CalibConfig) -> float:
+    """Weight of a sight's reprojection residual (px) against a nose point's (unit weight) in the
+    fit with the sights' offsets free. The n nose points of a side share one locator bias of
+    about ``nose_bias_sd_px`` (a codec shifts whole stretches of the band), so together they fix
+    their line no better than that, and each, counted as independent at unit weight, stands for
+    a measurement of sd ``nose_bias_sd_px * sqrt(n)``; a sight of sd ``sight_sd_px`` then weighs
+    their ratio (inverse-sd weighting, Hartley & Zisserman, Multiple View Geometry, 2nd ed., sec.
+    A5.2), n the median over the sides (60-90 points on the extra set: weights 16-19). Measured on
+    the extra set's corners (dim/lamp/phone/tele/uneven) at fixed weights: 5 gave 1.36/1.19/2.75/
+    0.26/0.19 mm, 10 0.82/1.03/1.35/0.16/0.18, 20 0.61/0.96/0.71/0.18/0.20."""
+    n = float(np.median([len(pts) for _, pts in noses]))
+    return config.nose_bias_sd_px * math.sqrt(max(n, 1.0)) / config.sight_sd_px
+
+
+def _offsets_untrusted(x_off: np.ndarray, rails: list[str], config: CalibConfig) -> str | None:
+    """Why the fit with the sights' offsets free (``x_off``, last two: setback, height mm) is not
+    to be used, or None. Weighted :func:`_offsets_sight_weight`, the sights steer the lens and pose near
+    themselves, so they must bracket the table: found on all four rails (when the sight finder still
+    missed the extra set's wide phone clip's dark short rail, the lens bent to the other three,
+    at sight weight 5, moved that end's corner 4.9 mm off, against 4.0 from the nose-led fit). The offsets must also lie within
+    twice their tolerance (:class:`CalibConfig` sds): beyond, the sights disagree with the noses
+    by more than any table would explain (a sight taken on the wrong diamond, a mis-set table)."""
+    missing = sorted(set(RAIL_SIDES) - set(rails))
+    if missing:
+        return f"no sights found on the {', '.join(missing)} rail"
+    d_set, d_top = float(x_off[-2]), float(x_off[-1])
+    if abs(d_set) > 2 * config.sight_setback_sd_mm or abs(d_top) > 2 * config.rail_top_sd_mm:
+        return f"the sights' fitted setback {d_set:+.1f} mm and height {d_top:+.1f} mm lie beyond twice their tolerance"
+    return None
+
+
 @dataclass(frozen=True)
 class _Fit:
     camera: Camera
@@ -1595,10 +1717,12 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
     hp = _as_prior(config.camera_height_mm, config)
     nose_w = None  # per-rail weights of the nose residuals, once each side's scatter is known
     view_height = None  # [mm, sd mm] the view alone gives, where a typical height was added
+    offsets = None  # the sights' setback and height as fit parameters, once trusted
+    offsets_note = None
 
     def solve(x_start, sights_px, sights_mm, loss="soft_l1"):
         r = optimize.least_squares(
-            _residuals, x_start, args=(cam_of, noses, sights_px, sights_mm, table, sight_w, hp, nose_w),
+            _residuals, x_start, args=(cam_of, noses, sights_px, sights_mm, table, sight_w, hp, nose_w, offsets),
             loss=loss, f_scale=0.5, method="trf", x_scale="jac", max_nfev=200,
         )
         return r.x
@@ -1637,8 +1761,10 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
         noses = cleaned
         nose_w = _side_weights(cam_of(x), noses, table)
         x = solve(x, sights_px, sights_mm)
+        if config.fit_sight_offsets and len(sights_px):
+            x, sight_w, offsets, offsets_note = _with_sight_offsets(x, sight_w, cam_of, noses, sights_px, sights_mm, table, config, nose_w, hp)
         if hp is None and intrinsics is None:
-            view = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, None, config, nose_w)
+            view = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, None, config, nose_w, offsets)
             if not view["height_determined"]:
                 # Square-on, the picture fixes only focal length over distance, and the height it
                 # favours follows the small biases of the noses and sights (2.2 m for a true 2.6 m
@@ -1678,11 +1804,13 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
     all_res = np.concatenate(all_res)
     # Straightness alone (what the lens model leaves): each side's own best line after undistortion.
     straight = _line_residuals([_undistort_to_pixels(cam, f.points_px) for f in fits if len(f.points_px) >= 3])
+    if offsets is not None:
+        sights_mm = offsets.points(table, x)
     sres = np.linalg.norm(cam.project(sights_mm) - sights_px, axis=1) if len(sights_px) else np.zeros(0)
     # The shape of the table the image supports: refit with the width free.
     aspect = _measured_aspect(cam, fits, table)
     f = float(cam.K[0, 0])
-    unc = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, hp, config, nose_w)
+    unc = _uncertainty(x, cam_of, noses, sights_px, sights_mm, table, sight_w, hp, config, nose_w, offsets)
     quality = {
         "nose_rms_px": float(np.sqrt(np.mean(all_res**2))),
         "nose_max_px": float(np.max(np.abs(all_res))),
@@ -1705,6 +1833,9 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
         "height_from": "view" if hp is None else hp.source,
         "height_typical_mm": [config.typical_height_mm, config.typical_height_sd_mm] if view_height is not None else None,
         "height_view_mm": view_height,
+        # The sights' fitted setback and height offsets (mm), or why the fit kept the model's.
+        "sight_offsets_mm": None if offsets is None else [float(x[-2]), float(x[-1])],
+        "sight_offsets_note": offsets_note,
     }
     corners = cam.project(np.column_stack([obj, np.full(4, table.nose_height_mm)]))
     return _Fit(cam, tuple(fits), sights_px, sights_mm[:, :2] if len(sights_mm) else np.zeros((0, 2)), quality, origin, corners)
