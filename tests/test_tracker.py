@@ -1157,3 +1157,49 @@ def test_a_short_track_from_nowhere_that_jumps_about_is_no_ball(shift, erratic):
         assert set(ev["track"]) <= {ids["ball"]}, ev
     else:
         assert len(others) == len(_ARM_AT_CORNER), others
+
+
+@pytest.mark.parametrize("read_after", [("white", "cue"), ("", "unknown")])
+def test_dim_rolling_ball_is_not_turned_onto_a_doubtful_dark_read_beside_it(read_after):
+    # 50 fps, one lamp: a cue ball rolls at 260 mm/s through the dim side of the table (rolling
+    # deceleration mu_r g, mu_r 0.01: Alciatore 2004), read as the cue ball only in its first
+    # three frames, then without a label (lamp_50fps: 5 cue reads of 106 by then), and missed
+    # three frames in four runs. Twice, after
+    # such a miss, the detector's only find is a doubtful dark "ball" one radius beside it
+    # (quality 0.39, read black / solid: the extra clip lamp_50fps, automatic calibration,
+    # frames 145 and 152 of detections.csv, 25 mm off the true cue ball). A rolling ball turns
+    # only at a contact and none is near, so that read is no turn of the ball; the second time
+    # the ball stays unseen for 0.24 s and is then found along its way, read as before
+    # (`read_after`). Truth: one ball, one id (results format), its rows on its own path.
+    fps = 50.0
+    times = np.arange(int(0.9 * fps)) / fps
+    path = decel_path((1820.0, 160.0), 112.0, 260.0, 0.01 * G)
+    det = detections({"cue": path}, times, np.random.default_rng(3), noise_mm=0.7)
+    det["quality"] = 0.8
+    det.loc[det["frame"] >= 3, ["colour", "pattern"]] = ["", "unknown"]
+    det.loc[det["frame"] < 3, ["colour", "pattern"]] = ["white", "cue"]
+    det.loc[det["frame"] >= 29, ["colour", "pattern"]] = list(read_after)
+    det = det[~det["frame"].isin([11, 12, 13, 14, 18, 19, 20, 21, *range(22, 29)])].copy()
+    truth = path(times)
+    shadow = []
+    for k in (14, 21):
+        shadow.append(dict(frame=k, t=float(times[k]), x=truth[k, 0] + 25.0, y=truth[k, 1],
+                           u=0.0, v=0.0, quality=0.39, colour="black", pattern="solid",
+                           blur_x=0.0, blur_y=0.0, sigma_mm=0.8, truth="shadow"))
+    det = pd.concat([det, pd.DataFrame(shadow)], ignore_index=True).sort_values("frame")
+    tr = track(det, TABLE)
+    seen = det.loc[det["truth"] == "cue", "frame"].to_numpy()
+    ids = set()
+    for k in seen:
+        rows_k = tr[tr["frame"] == k]
+        d = np.hypot(rows_k["x"] - truth[k, 0], rows_k["y"] - truth[k, 1]).to_numpy()
+        assert len(d) and d.min() < 5.0, k
+        ids.add(int(rows_k["track"].to_numpy()[np.argmin(d)]))
+    assert len(ids) == 1, sorted(ids)
+    rows = tr[tr["track"] == ids.pop()].set_index("frame")
+    # Its rows at the dark reads, and in the gaps, lie on its path: within a third of the
+    # dark read's 25 mm offset (the filter's coasted spread over 0.24 s at these speeds is a
+    # few mm, Bar-Shalom et al. 2001 sec. 6.3.3, with the path's own deceleration modelled).
+    k = rows.index.to_numpy()
+    err = np.hypot(rows["x"].to_numpy() - truth[k, 0], rows["y"].to_numpy() - truth[k, 1])
+    assert err.max() < 25.0 / 3, (k[np.argmax(err)], err.max())
