@@ -33,7 +33,7 @@ are unchanged. The summary gives medians and worst cases. Which corner the recov
 puts its origin at does not matter: the better of the two right-handed choices is compared.
 
 ``--extra`` instead calibrates the clips of the extra rendered set (``analyse_accuracy.py --extra``
-films them into ``--extra-cache``; all five, or the NAMEs given) from their video files, as
+films them into ``--extra-cache``; every scene of ``benchmarks/extra_scenes``, or the NAMEs given) from their video files, as
 ``railtrace calibrate`` does, against each ``NAME.truth/calibration.json``, and prints beside the
 columns above where the error comes from:
 
@@ -69,7 +69,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import vision.calibrate  # noqa: E402
 from vision.calibfile import read_calibration  # noqa: E402
-from vision.calibrate import CalibConfig, CalibrationError, calibrate, calibrate_background  # noqa: E402
+from benchmarks.analyse_accuracy import EXTRA_CACHE, extra_scenes  # noqa: E402
+from vision.calibrate import RAIL_SIDES, CalibConfig, CalibrationError, calibrate, calibrate_background  # noqa: E402
 from vision.camera import Camera  # noqa: E402
 from vision.render import Lamp, Look, Renderer  # noqa: E402
 from vision.table import EIGHT_FOOT, NINE_FOOT, SEVEN_FOOT, TableSpec  # noqa: E402
@@ -238,8 +239,7 @@ speed_mm_s = 1500
 """
 
 
-EXTRA_NAMES = ("dim_540p_60fps", "lamp_50fps", "phone_wide_30fps", "tele_120fps", "uneven_60fps")
-RAILS = ("bottom", "right", "top", "left")
+RAILS = RAIL_SIDES  # the true table's, in the library's order
 
 
 def _true_rail_offsets(table: TableSpec, true: Camera, uv: np.ndarray) -> tuple[str, np.ndarray]:
@@ -408,8 +408,8 @@ def main(argv=None) -> int:
     ap.add_argument("--clips", action="store_true", help="also film and calibrate two clips (slow)")
     ap.add_argument("--work", type=Path, default=Path("/tmp/railtrace_calib_accuracy"), help="where the filmed clips are kept and reused")
     ap.add_argument("--json", type=Path, help="write all figures here")
-    ap.add_argument("--extra", nargs="*", metavar="NAME", help="only the extra rendered set's clips (all five, or these)")
-    ap.add_argument("--extra-cache", type=Path, default=Path("/tmp/railtrace_extra_clips"),
+    ap.add_argument("--extra", nargs="*", metavar="NAME", help="only the extra rendered set's clips (every scene of benchmarks/extra_scenes, or these)")
+    ap.add_argument("--extra-cache", type=Path, default=EXTRA_CACHE,
                     help="where analyse_accuracy.py --extra filmed them")
     ap.add_argument("--reencode", nargs="+", type=int, default=[], metavar="CRF",
                     help="with --extra: also each scene's empty table encoded at these H.264 rate factors")
@@ -472,7 +472,7 @@ def main(argv=None) -> int:
 
 def _main_extra(args) -> int:
     """``--extra``: the extra set's clips, two rows each (see the module docstring)."""
-    names = args.extra or list(EXTRA_NAMES)
+    names = args.extra or extra_scenes(None)
     bad = [n for n in names if not (args.extra_cache / f"{n}.truth").is_dir()]
     if bad:
         raise SystemExit(f"calib_accuracy.py: no {bad} in {args.extra_cache}; film them with analyse_accuracy.py --extra --extra-cache DIR")
