@@ -28,11 +28,12 @@ tracking and event stages are compared before and after a change while the detec
 fixed.
 
 ``--extra`` scores the extra rendered set instead of the sample clips: the scenes in
-``benchmarks/extra_scenes/*.toml`` (our own, five short clips that together vary camera height
-1.8-3.2 m, off-centre and tilted mounts, a wide phone lens with strong barrel distortion and a
-longer nearly rectilinear one, 30, 50, 60 and 120 fps, shutters from 1/250 s to open at 1/30 s,
-ball speeds up to 4 m/s with banks, kicks, cuts, collisions and pockets, five cloths, dim,
-uneven and one-lamp lighting). Each is filmed once (``railtrace.filming.film_scene``) into
+``benchmarks/extra_scenes/*.toml`` (our own, seven short clips that together vary camera height
+1.6-3.2 m, off-centre and tilted mounts, a wide phone lens with strong barrel distortion, a cheap
+wide camera with stronger, and a longer nearly rectilinear lens, 540p to 1080p, 25, 30, 50, 60 and
+120 fps, shutters from 1/500 s to open at 1/25 s, ball speeds up to 4 m/s with banks, kicks,
+cuts, a break into a touching rack, collisions and pockets, six cloths, bright, dim, uneven and
+one-lamp lighting). Each is filmed once (``railtrace.filming.film_scene``) into
 ``--extra-cache`` (default ``/tmp/railtrace_extra_clips``) and filmed again only when its scene
 file changes; ``--clips`` then picks among the scene names. Each clip's frame rate, shutter,
 camera height and k1 are printed above its scores. These clips stand in for footage from other
