@@ -1218,12 +1218,27 @@ def _nose_offsets_mm(cam: Camera, pts: np.ndarray, rail: str, table: TableSpec, 
     return off, cam.K[0, 0] / depth
 
 
-def _rails_offsets_mm(cam: Camera, noses, table: TableSpec) -> list[tuple[str, np.ndarray, np.ndarray]]:
+def _rails_offsets_mm(cam: Camera, noses, table: TableSpec, memo: dict | None = None) -> list[tuple[str, np.ndarray, np.ndarray]]:
     """(rail, offsets mm, scale px per mm) of :func:`_nose_offsets_mm` for each rail of
     ``noses`` ((rail, (N, 2) px) pairs) that has points, in order: the same numbers, with
-    the rails' points undistorted together (:meth:`Camera.undistort_normalised_parts`)."""
+    the rails' points undistorted together (:meth:`Camera.undistort_normalised_parts`).
+
+    ``memo``: a dict kept by the caller over the calls of one fit, holding the last
+    undistortion with the lens (K, distortion) and the points (their bytes) it was of. The
+    undistortion depends on nothing else, so a call with the same lens and points takes it
+    from there, bit for bit the same: the finite-difference Jacobians step the pose, the
+    sights' offsets and the table (two thirds of a fit's residual calls, where the Newton
+    iterations of the undistortion were the largest cost)."""
     used = [(rail, pts) for rail, pts in noses if len(pts)]
-    xys = cam.undistort_normalised_parts([pts for _, pts in used])
+    key = None
+    if memo is not None:
+        key = (cam.K.tobytes(), np.asarray(cam.dist, float).tobytes(), tuple(np.asarray(pts, float).tobytes() for _, pts in used))
+    if key is not None and memo.get("key") == key:
+        xys = memo["xys"]
+    else:
+        xys = cam.undistort_normalised_parts([pts for _, pts in used])
+        if memo is not None:
+            memo.update(key=key, xys=xys)
     return [(rail, *_nose_offsets_mm(cam, pts, rail, table, xy)) for (rail, pts), xy in zip(used, xys)]
 
 
@@ -1303,10 +1318,10 @@ def _sight_index(table: TableSpec, sights_mm: np.ndarray) -> np.ndarray:
 
 
 def _residuals(params, cam_of, noses, sights_px, sights_mm, table, sight_weight, height_prior: HeightPrior | None,
-               nose_w: dict[str, float] | None = None, offsets: _SightOffsets | None = None):
+               nose_w: dict[str, float] | None = None, offsets: _SightOffsets | None = None, memo: dict | None = None):
     cam = cam_of(params)
     w = nose_w or {}
-    out = [off * scale * w.get(rail, 1.0) for rail, off, scale in _rails_offsets_mm(cam, noses, table)]
+    out = [off * scale * w.get(rail, 1.0) for rail, off, scale in _rails_offsets_mm(cam, noses, table, memo)]
     if len(sights_px):
         pr = cam.project(sights_mm if offsets is None else offsets.points(table, params))
         out.append(((pr - sights_px) * sight_weight).ravel())
@@ -1431,6 +1446,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
     height_prior = _as_prior(height_prior, config)
     sight_idx = _sight_index(table, sights_mm) if len(sights_mm) else np.zeros(0, int)
     n_off = 0 if offsets is None else 2
+    memo: dict = {}  # the undistortion of the noses for the last lens (_rails_offsets_mm)
 
     def residuals(theta, nu):
         t = _table_varied(table, nu[:5])
@@ -1440,7 +1456,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
             smm = np.array([[x_, y_, t.rail_top_height_mm] for _, _, (x_, y_) in t.sights()])[sight_idx] if len(sight_idx) else sights_mm
         cam = cam_of(theta)
         out = [(off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)]) * (nose_w or {}).get(rail, 1.0)
-               for rail, off, scale in _rails_offsets_mm(cam, noses, t)]
+               for rail, off, scale in _rails_offsets_mm(cam, noses, t, memo)]
         if len(sights_px):
             out.append(((cam.project(smm) - sights_px) * sight_w).ravel())
         if height_prior is not None:
@@ -1590,7 +1606,7 @@ def _with_sight_offsets(x, sight_w, cam_of, noses, sights_px, sights_mm, table, 
     offsets = _SightOffsets(idx, (config.sight_setback_sd_mm, config.rail_top_sd_mm), unit)
     sw = _offsets_sight_weight(noses, config)
     r = optimize.least_squares(
-        _residuals, np.concatenate([x, [0.0, 0.0]]), args=(cam_of, noses, sights_px, sights_mm, table, sw, hp, nose_w, offsets),
+        _residuals, np.concatenate([x, [0.0, 0.0]]), args=(cam_of, noses, sights_px, sights_mm, table, sw, hp, nose_w, offsets, {}),
         loss="soft_l1", f_scale=0.5, method="trf", x_scale="jac", max_nfev=200,
     )
     rails = [table.sights()[k][0] for k in idx]
@@ -1722,7 +1738,7 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
 
     def solve(x_start, sights_px, sights_mm, loss="soft_l1"):
         r = optimize.least_squares(
-            _residuals, x_start, args=(cam_of, noses, sights_px, sights_mm, table, sight_w, hp, nose_w, offsets),
+            _residuals, x_start, args=(cam_of, noses, sights_px, sights_mm, table, sight_w, hp, nose_w, offsets, {}),
             loss=loss, f_scale=0.5, method="trf", x_scale="jac", max_nfev=200,
         )
         return r.x
