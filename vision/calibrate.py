@@ -1227,8 +1227,9 @@ def _rails_offsets_mm(cam: Camera, noses, table: TableSpec, memo: dict | None = 
     undistortion with the lens (K, distortion) and the points (their bytes) it was of. The
     undistortion depends on nothing else, so a call with the same lens and points takes it
     from there, bit for bit the same: the finite-difference Jacobians step the pose, the
-    sights' offsets and the table (two thirds of a fit's residual calls, where the Newton
-    iterations of the undistortion were the largest cost)."""
+    sights' offsets and the table, which leave the lens as it was (bank_practice: 2652 calls,
+    1341 undistortions with the memo, all callers counted; the Newton iterations of the
+    undistortion were the fit's largest cost)."""
     used = [(rail, pts) for rail, pts in noses if len(pts)]
     key = None
     if memo is not None:
