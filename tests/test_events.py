@@ -467,6 +467,30 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
     assert known[0] < loose[0] and known[1] < loose[1]
 
 
+@pytest.mark.parametrize("deg, n, measured", [(1, 3, False), (1, 4, True), (2, 4, False),
+                                               (2, 5, True)])
+def test_a_side_fit_says_whether_its_scatter_was_measured(deg, n, measured):
+    # A fit measures its residual variance only with at least 4 residual degrees of freedom over
+    # both axes (2 (n - deg - 1)); without them its s2 is the noise it was given. Checked against
+    # numpy.polyfit's residual sum of squares (reference library): a straight-line fallback on 4
+    # samples has 4 and measures its scatter; the contact check reads the fit's own flag
+    # rather than counting parameters a second time.
+    from tracking.events import _fit, _piecewise_fit
+
+    rng = np.random.default_rng(7)
+    ts = np.arange(n) / 60.0
+    ps = np.column_stack([100.0 + 600.0 * ts, 50.0 - 300.0 * ts + 200.0 * ts**2])
+    ps = ps + rng.normal(0.0, 0.5, ps.shape)
+    f = _fit(ts, ps, 0.0, deg, 3.0)
+    assert f.s2_measured is measured
+    rss = sum(float(np.polyfit(ts, ps[:, a], deg, full=True)[1].sum()) for a in (0, 1))
+    expected = rss / (2 * (n - deg - 1)) if measured else 9.0
+    assert f.s2 == pytest.approx(expected, rel=1e-9)
+    # The piecewise fit sets the same flag from its own count (2 n - k residual degrees).
+    g = _piecewise_fit(ts, ps, 0.0, 3.0, 0.25 / 60.0, EventConfig())
+    assert g.s2_measured is (2 * g.n - g.k >= 4)
+
+
 def test_a_rolling_approach_with_drifting_detection_errors_is_not_fitted_speeding_up():
     # A ball rolling into a rail decelerates at mu_r g along its velocity; only a sliding ball
     # has a curve of its own, a constant acceleration of size mu_s g (Alciatore 2004). The

@@ -339,7 +339,9 @@ class _Fit:
     ``2 far`` (``far`` (2,) mm/s^2 / 2) with position and velocity continuous. ``cov`` (3, 3) is
     the block of ``(A^T A)^-1`` of the design matrix belonging to ``c0, c1, c2``, so near ``t0``
     ``var p(t) = s2 g^T cov g`` with ``g = [1, tau, tau^2]``; ``s2`` the per-axis residual
-    variance (mm^2).
+    variance (mm^2): the samples' own scatter about the fit where it has spare samples (at least
+    4 residual degrees of freedom over both axes, ``s2_measured``), else the nominal detection
+    noise it was given.
     """
 
     t0: float
@@ -354,6 +356,7 @@ class _Fit:
     bic: float = math.nan  # Bayesian information criterion of the chosen model
     rss: float = math.nan  # weighted residual sum of squares of the chosen model, mm^2
     slid: bool = False  # the chosen model slides straight into t0 (``straight``), not rolling
+    s2_measured: bool = False  # s2 is the residual scatter, not the nominal noise
 
     def _split(self, tau: float) -> tuple[float, float]:
         """(m, r): the part of tau before the kink and the part beyond it."""
@@ -398,13 +401,14 @@ def _fit(ts: np.ndarray, ps: np.ndarray, t0: float, deg: int, sigma_mm: float) -
     dof = 2 * (n - deg - 1)
     # The residual scatter where there are spare samples, else the nominal detection noise;
     # floored so exact (noise-free) data still gives finite weights.
-    s2 = float(np.sum(res**2) / dof) if dof >= 4 else sigma_mm**2
+    measured = dof >= 4
+    s2 = float(np.sum(res**2) / dof) if measured else sigma_mm**2
     s2 = max(s2, 1e-8)
     cov = np.zeros((3, 3))
     cov[: deg + 1, : deg + 1] = np.linalg.pinv(A.T @ A)
     full = np.zeros((3, 2))
     full[: deg + 1] = coef
-    return _Fit(t0, full, cov, s2, n, deg)
+    return _Fit(t0, full, cov, s2, n, deg, s2_measured=measured)
 
 
 def _batch_inv(N: np.ndarray) -> np.ndarray:
@@ -783,12 +787,13 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         tk = sum(wi * t for wi, t in kinked) / w_k if w_k >= 0.5 else None
         score = score - 2.0 * math.log(float(np.sum(w)))
     dof = m_obs - k
-    s2 = max(rss / dof if dof >= 4 else sigma_mm**2, 1e-8)
+    measured = dof >= 4
+    s2 = max(rss / dof if measured else sigma_mm**2, 1e-8)
     # var p(t) per axis differs when one axis is pinned; keep the larger (free) axis' matrix.
     cov = inv[int(np.argmax([np.trace(inv[0, :3, :3]), np.trace(inv[1, :3, :3])])), :3, :3]
     return _Fit(t0, c4[:3].copy(), cov.copy(), s2, n, 2, tk=tk,
                 far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss_pen,
-                slid=slid)
+                slid=slid, s2_measured=measured)
 
 
 def _real_roots(coeffs_high_first, lo: float, hi: float) -> np.ndarray:
@@ -2174,12 +2179,12 @@ class _Finder:
         # only running into it, and a ball running along the rail, its normal velocity within
         # the noise of zero, turns that way and back in the smoothed velocity (a second, false
         # contact a few frames after a slow one).
-        # Only a fit with spare samples (2 n - k >= 4) measures its scatter; one without has
+        # Only a fit with spare samples (``s2_measured``) measures its scatter; one without has
         # the ball's noise estimate as its s2, which a track of short motions, each holding a
         # contact, can put far above the detections' scatter (``_noise_sigma``: 44 mm on true
         # centres with 0.3 mm of noise at 30 fps, tests/test_events.py's struck-near shots,
         # where 14 of 24 contacts were refused on three-sample approaches).
-        if max([f.s2 for f in (fa, fd) if 2 * f.n - f.k >= 4], default=0.0) \
+        if max([f.s2 for f in (fa, fd) if f.s2_measured], default=0.0) \
                 > self.table.radius_mm ** 2:
             return None
         vn_in, vn_out = -float(v_in @ n_in), float(v_out @ n_in)
