@@ -29,7 +29,11 @@ Method
    in none. A motion of a ball seen moving and never seen resting before it since it came
    onto the table (put down by hand, a track picked up mid-roll) has no start. The contacts
    (below) are bounded and found on the fast stretches as before: their fits and the noise
-   estimate never reach into a slow tail.
+   estimate never reach into a slow tail. A stay on the table that never exceeds the move
+   speed but begins with the ball rolling (its first rest window's velocity beyond its noise)
+   and ends at rest is a motion too, when it begins during another ball's motion (a rack ball
+   nudged by a break and first seen parted from the rack, ``_found_rolling``): it has a stop
+   and no start; a ball put down by hand between shots gets neither.
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
@@ -1092,6 +1096,51 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     ball.moves = merged
 
 
+def _found_rolling(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> list[tuple[int, int]]:
+    """Stays of ``ball`` with no motion (``_motion``) that begin with the ball rolling and end
+    at rest: (first row, row before the rest) index ranges. Such a stay's first tested rest
+    window (``_resting``, starting within ``min_rest_s`` of the stay) finds a velocity beyond its
+    noise and a later one finds none: a ball first seen rolling slower than
+    ``move_speed_mm_s`` (a rack ball nudged by a break and not seen before it was parted from
+    the rack, or a slow ball lost and found again under a new id) that comes to rest, which
+    the speed hysteresis never counts as moving."""
+    n = len(ball.t)
+    if n < 2:
+        return []
+    brk = _breaks(ball, diameter_mm)
+    firsts = np.concatenate([[0], brk + 1]).astype(int)
+    lasts = np.concatenate([brk, [n - 1]]).astype(int)
+    piece_end = np.repeat(lasts, np.diff(np.append(firsts, n)))
+    rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, ball.fast)), cfg.min_rest_s,
+                            piece_end)
+    out = []
+    for p0, p1 in zip(firsts, lasts):
+        if any(p0 <= i0 <= p1 for i0, _ in ball.moves):
+            continue
+        first = p0 + np.flatnonzero(tested[p0:p1 + 1])
+        if not len(first) or ball.t[first[0]] > ball.t[p0] + cfg.min_rest_s or rest[first[0]]:
+            continue
+        still = np.flatnonzero(rest[first[0]:p1 + 1])
+        if len(still):
+            out.append((int(p0), int(first[0] + still[0] - 1)))
+    return out
+
+
+def _add_found_rolling(balls: list[_Ball], cfg: EventConfig, diameter_mm: float) -> None:
+    """Add to each ball's motions the stays it was first seen rolling in (``_found_rolling``)
+    that begin while another ball is in motion or within ``min_rest_s`` of one ending (a ball
+    rolls only when something struck it during a shot; a ball put down by hand between shots
+    is not rolling): so their stops are found. They come after every contact is measured, so
+    they change no fit; they have no start (first seen moving)."""
+    spans = [(b.track, float(b.t[i0]), float(b.t[i1])) for b in balls for i0, i1 in b.moves]
+    for b in balls:
+        found = [(a, e) for a, e in _found_rolling(b, cfg, diameter_mm)
+                 if any(tr != b.track and t0 <= b.t[a] <= t1 + cfg.min_rest_s
+                        for tr, t0, t1 in spans)]
+        if found:
+            b.moves = sorted(b.moves + found)
+
+
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
     """Detection noise per axis (mm), (white, at the fits' scale).
 
@@ -1228,6 +1277,7 @@ def find_events(
             r = finder.cushion(b, rail, tg)
         if r is not None:
             rows.append(r)
+    _add_found_rolling(balls, cfg, table.ball_diameter_mm)
     moves = []  # (track, t_begin, t_end)
     for b in balls:
         # Last row of each stay on the table: before a gap in the frames or a jump.
