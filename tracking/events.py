@@ -32,8 +32,10 @@ Method
    estimate never reach into a slow tail. A stay on the table that never exceeds the move
    speed but begins with the ball rolling (its first rest window's velocity beyond its noise)
    and ends at rest is a motion too, when it begins during another ball's motion (a rack ball
-   nudged by a break and first seen parted from the rack, ``_found_rolling``): it has a stop
-   and no start; a ball put down by hand between shots gets neither.
+   nudged by a break and first seen parted from the rack) or within reach of where a track
+   vanished rolling (a slow ball lost and found again under a new id; its motion then counts
+   from the loss, so the shot runs on to its stop; ``_add_found_rolling``): it has a stop and
+   no start; a ball put down by hand between shots gets neither.
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
@@ -833,6 +835,7 @@ class _Ball:
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
     strikes: list = field(default_factory=list)  # first instants past a strike from rest, s
+    begun: dict = field(default_factory=dict)  # first row -> s a found-rolling motion began
     firsts: tuple = (0,)  # first row of each stay on the table (``_motion``)
     fast: list = field(default_factory=list)  # [(i0, i1)] stretches above the rest speed
     weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
@@ -1130,15 +1133,35 @@ def _add_found_rolling(balls: list[_Ball], cfg: EventConfig, diameter_mm: float)
     """Add to each ball's motions the stays it was first seen rolling in (``_found_rolling``)
     that begin while another ball is in motion or within ``min_rest_s`` of one ending (a ball
     rolls only when something struck it during a shot; a ball put down by hand between shots
-    is not rolling): so their stops are found. They come after every contact is measured, so
-    they change no fit; they have no start (first seen moving)."""
+    is not rolling), or no farther from where another track vanished rolling than that ball
+    could have rolled since (the same ball lost and found again; ``_Ball.begun`` then holds
+    the loss's time, where the motion counts from for its shot): so their stops are found.
+    They come after every contact is measured, so they change no fit; they have no start
+    (first seen moving)."""
     spans = [(b.track, float(b.t[i0]), float(b.t[i1])) for b in balls for i0, i1 in b.moves]
+    # Motions cut short by their track's end before the clip's (a ball lost while rolling):
+    # (track, last time s, last position mm, last speed mm/s).
+    t_clip = max(float(b.t[-1]) for b in balls)
+    lost = [(b.track, float(b.t[i1]), b.p[i1], float(np.hypot(*b.v[i1])))
+            for b in balls for _, i1 in b.moves if i1 == len(b.t) - 1 and b.t[i1] < t_clip]
+
+    def begun(b: _Ball, a: int) -> float | None:
+        """When (s) the motion first seen at row ``a`` was under way, None if in no shot."""
+        t_a = float(b.t[a])
+        if any(tr != b.track and t0 <= t_a <= t1 + cfg.min_rest_s for tr, t0, t1 in spans):
+            return t_a
+        # Or the same ball lost while rolling and found again: no farther than it could have
+        # rolled at its last speed (a rolling ball only slows), give or take a diameter; its
+        # motion, for the shot, runs from where it was lost.
+        return next((t_e for tr, t_e, p_e, v_e in lost if tr != b.track and 0.0 <= t_a - t_e
+                     and np.hypot(*(b.p[a] - p_e)) <= v_e * (t_a - t_e) + diameter_mm), None)
+
     for b in balls:
-        found = [(a, e) for a, e in _found_rolling(b, cfg, diameter_mm)
-                 if any(tr != b.track and t0 <= b.t[a] <= t1 + cfg.min_rest_s
-                        for tr, t0, t1 in spans)]
-        if found:
-            b.moves = sorted(b.moves + found)
+        for a, e in _found_rolling(b, cfg, diameter_mm):
+            t_b = begun(b, a)
+            if t_b is not None:
+                b.moves = sorted(b.moves + [(a, e)])
+                b.begun[a] = t_b
 
 
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
@@ -1288,7 +1311,7 @@ def find_events(
             if hit:
                 t_begin = min(hit)
             elif i0 in b.firsts:
-                t_begin = float(b.t[i0])  # already moving when first seen
+                t_begin = b.begun.get(i0, float(b.t[i0]))  # already moving when first seen
             else:
                 r = starts.get((b.track, i0)) or finder.start(b, i0)
                 rows.append(r)
