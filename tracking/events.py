@@ -1013,6 +1013,16 @@ def _still_sigma(ball: _Ball, fast: list[tuple[int, int]]) -> float:
     return _d3_sigma(ball, off) or 0.0
 
 
+def _stays(ball: _Ball, diameter_mm: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The ball's stays on the table between the track's breaks (``_breaks``): each stay's
+    first and last row, (S,) each, and each row's stay's last row (N,)."""
+    n = len(ball.t)
+    brk = _breaks(ball, diameter_mm)
+    firsts = np.concatenate([[0], brk + 1]).astype(int)
+    lasts = np.concatenate([brk, [n - 1]]).astype(int)
+    return firsts, lasts, np.repeat(lasts, np.diff(np.append(firsts, n)))
+
+
 def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     """Moving stretches of ``ball``: from where its smoothed speed rises (hysteresis between
     ``rest_speed_mm_s`` and ``move_speed_mm_s``) until it really lies still (``_resting``).
@@ -1035,9 +1045,7 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     """
     n = len(ball.t)
     speed = np.hypot(*ball.v.T)
-    brk = _breaks(ball, diameter_mm)
-    firsts = np.concatenate([[0], brk + 1]).astype(int)
-    lasts = np.concatenate([brk, [n - 1]]).astype(int)
+    firsts, lasts, piece_end = _stays(ball, diameter_mm)
     ball.firsts = tuple(int(f) for f in firsts)
     runs = []
     for p0, p1 in zip(firsts, lasts):
@@ -1075,7 +1083,6 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
             fast.append((a, b))
     ball.moves = ball.fast = fast
     ball.sigma, ball.sigma_fit = _noise_sigma(ball, cfg)
-    piece_end = np.repeat(lasts, np.diff(np.append(firsts, n)))
     rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, fast)), cfg.min_rest_s,
                             piece_end)
     # Last row of each row's rest window.
@@ -1107,13 +1114,9 @@ def _found_rolling(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> list[tu
     ``move_speed_mm_s`` (a rack ball nudged by a break and not seen before it was parted from
     the rack, or a slow ball lost and found again under a new id) that comes to rest, which
     the speed hysteresis never counts as moving."""
-    n = len(ball.t)
-    if n < 2:
+    if len(ball.t) < 2:
         return []
-    brk = _breaks(ball, diameter_mm)
-    firsts = np.concatenate([[0], brk + 1]).astype(int)
-    lasts = np.concatenate([brk, [n - 1]]).astype(int)
-    piece_end = np.repeat(lasts, np.diff(np.append(firsts, n)))
+    firsts, lasts, piece_end = _stays(ball, diameter_mm)
     rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, ball.fast)), cfg.min_rest_s,
                             piece_end)
     out = []
