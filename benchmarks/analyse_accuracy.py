@@ -12,7 +12,10 @@ figures measure detection, tracking and events, not automatic calibration) into
 * cushion contacts: recall, precision, median |error| of time (frames), along-rail position,
   speed in/out, angle in/out and restitution;
 * collisions: recall, precision, median and max |time error| (frames);
-* pockets: truth, results, matched; stops: precision (spurious stops lower it);
+* pockets: truth, results, matched; starts (a resting ball set moving by the cue) and stops (a
+  ball coming to rest), as ``spec/results-format.md`` defines them: truth and result counts,
+  recall (missed ones lower it) and precision (spurious ones lower it), within the scorer's
+  event window;
 * seconds spent in tracking and in event finding (the vision stage is timed as a whole).
 
 ``--auto-calibration`` lets ``analyse`` calibrate each clip automatically from its own frames
@@ -213,7 +216,10 @@ def key_figures(s: dict) -> dict:
         "collision |t| max frames": co["errors"]["time_frames"]["max_abs"],
         "pockets truth/result/matched":
             f"{ev['pocket']['truth']}/{ev['pocket']['results']}/{ev['pocket']['matched']}",
-        "start precision": ev["start"]["precision"], "stop precision": ev["stop"]["precision"],
+        "start truth/result": f"{ev['start']['truth']}/{ev['start']['results']}",
+        "start recall": ev["start"]["recall"], "start precision": ev["start"]["precision"],
+        "stop truth/result": f"{ev['stop']['truth']}/{ev['stop']['results']}",
+        "stop recall": ev["stop"]["recall"], "stop precision": ev["stop"]["precision"],
     }
 
 

@@ -467,6 +467,30 @@ def test_departure_fit_with_the_cloths_sliding_deceleration():
     assert known[0] < loose[0] and known[1] < loose[1]
 
 
+@pytest.mark.parametrize("deg, n, measured", [(1, 3, False), (1, 4, True), (2, 4, False),
+                                               (2, 5, True)])
+def test_a_side_fit_says_whether_its_scatter_was_measured(deg, n, measured):
+    # A fit measures its residual variance only with at least 4 residual degrees of freedom over
+    # both axes (2 (n - deg - 1)); without them its s2 is the noise it was given. Checked against
+    # numpy.polyfit's residual sum of squares (reference library): a straight-line fallback on 4
+    # samples has 4 and measures its scatter; the contact check reads the fit's own flag
+    # rather than counting parameters a second time.
+    from tracking.events import _fit, _piecewise_fit
+
+    rng = np.random.default_rng(7)
+    ts = np.arange(n) / 60.0
+    ps = np.column_stack([100.0 + 600.0 * ts, 50.0 - 300.0 * ts + 200.0 * ts**2])
+    ps = ps + rng.normal(0.0, 0.5, ps.shape)
+    f = _fit(ts, ps, 0.0, deg, 3.0)
+    assert f.s2_measured is measured
+    rss = sum(float(np.polyfit(ts, ps[:, a], deg, full=True)[1].sum()) for a in (0, 1))
+    expected = rss / (2 * (n - deg - 1)) if measured else 9.0
+    assert f.s2 == pytest.approx(expected, rel=1e-9)
+    # The piecewise fit sets the same flag from its own count (2 n - k residual degrees).
+    g = _piecewise_fit(ts, ps, 0.0, 3.0, 0.25 / 60.0, EventConfig())
+    assert g.s2_measured is (2 * g.n - g.k >= 4)
+
+
 def test_a_rolling_approach_with_drifting_detection_errors_is_not_fitted_speeding_up():
     # A ball rolling into a rail decelerates at mu_r g along its velocity; only a sliding ball
     # has a curve of its own, a constant acceleration of size mu_s g (Alciatore 2004). The
@@ -1443,6 +1467,59 @@ def test_stop_of_a_rolling_ball_against_the_analytic_stop(fps, noise_mm, v0, mu_
     rest = a(np.array([t_stop + 1.0]))[0]
     assert np.hypot(sp["x"] - rest[0], sp["y"] - rest[1]) < 3 * noise_mm
     assert shots.loc[0, "t_end"] == pytest.approx(sp["t"])
+
+
+@pytest.mark.parametrize("shot_under_way", [True, False])
+def test_a_ball_first_seen_rolling_slowly_gets_its_stop(shot_under_way):
+    # A rack ball nudged by a break is often not seen until the break parts it from the rack,
+    # and then rolls slower than the move speed (150 mm/s) for less than a radius: here from
+    # 90 mm/s at 0.5 s, seen from 0.8 s (61 mm/s, 19 mm from rest), at mu_r g (Alciatore
+    # 2004, technical proofs: a rolling ball stops after v0 / (mu_r g)), while the cue ball
+    # rolls elsewhere. Its stop must be found within the scorer's 0.1 s (benchmarks/score.py)
+    # and within 3 detection sigmas of the analytic rest point. With no shot under way (the
+    # cue ball at rest) a ball that appears rolling was put down by hand: no event at all.
+    fps, noise_mm = 60.0, 1.0
+    decel = 0.01 * G
+    cue = (decel_path((300.0, 300.0), 0.0, 600.0, decel, t_start=0.3) if shot_under_way
+           else decel_path((300.0, 300.0), 0.0, 0.0, decel))
+    nudged = decel_path((1800.0, 1000.0), 200.0, 90.0, decel, t_start=0.5)
+    t_stop = 0.5 + 90.0 / decel
+    times = np.arange(int((t_stop + 1.0) * fps)) / fps
+    det = detections({"cue": cue, "b": nudged}, times, np.random.default_rng(5), noise_mm=noise_mm,
+                     labels={"cue": ("white", "cue"), "b": ("red", "solid")},
+                     present={"b": (int(0.8 * fps), len(times) - 1)})
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    if not shot_under_way:
+        assert ev.empty, ev
+        return
+    assert list(ev["kind"]) == ["start", "stop"]
+    sp = ev.iloc[1]
+    assert abs(sp["t"] - t_stop) < 0.1, (sp["t"], t_stop)
+    rest = nudged(np.array([t_stop + 1.0]))[0]
+    assert np.hypot(sp["x"] - rest[0], sp["y"] - rest[1]) < 3 * noise_mm
+
+
+def test_a_slow_ball_lost_and_found_again_under_a_new_id_gets_its_stop():
+    # The cue ball rolls from 300 mm/s at mu_r g (Alciatore 2004, technical proofs: it stops
+    # after v0 / (mu_r g)); the tracker loses it from 2.2 s (113 mm/s) to 2.8 s (54 mm/s, 15 mm
+    # from rest) and finds it again under a new id, rolling under the move speed to its stop.
+    # That stop must be found within the scorer's 0.1 s (benchmarks/score.py), and the shot must
+    # run to it as one shot.
+    fps, noise_mm = 60.0, 1.0
+    decel = 0.01 * G
+    cue = decel_path((400.0, 500.0), 15.0, 300.0, decel, t_start=0.3)
+    t_stop = 0.3 + 300.0 / decel
+    times = np.arange(int((t_stop + 1.0) * fps)) / fps
+    det = detections({"cue": cue}, times, np.random.default_rng(8), noise_mm=noise_mm,
+                     labels={"cue": ("white", "cue")})
+    tr = track(det, TABLE)
+    tr = tr[(tr["t"] < 2.2) | (tr["t"] >= 2.8)].copy()
+    tr.loc[tr["t"] >= 2.8, "track"] = int(tr["track"].max()) + 1
+    ev, shots = find_events(tr, TABLE, det)
+    assert list(ev["kind"]) == ["start", "stop"]
+    assert ev.iloc[1]["track"] != ev.iloc[0]["track"]
+    assert abs(ev.iloc[1]["t"] - t_stop) < 0.1, (ev.iloc[1]["t"], t_stop)
+    assert len(shots) == 1 and shots.loc[0, "t_end"] == pytest.approx(ev.iloc[1]["t"])
 
 
 def test_a_slow_rolling_tail_is_not_restarted():

@@ -378,6 +378,50 @@ def test_dropped_and_extra_cushions_change_recall_and_precision(tmp_path, truth_
         assert cu["precision"] == pytest.approx(2 / 3, abs=1e-15), name
 
 
+def test_starts_and_stops_recall_and_precision_from_hand_made_tables(tmp_path, truth_data,
+                                                                     truth_dir):  # fmt: skip
+    # The results format's definitions (spec/results-format.md): a start is a resting ball set
+    # moving by the cue, a stop a ball coming to rest. The truth clip has two of each (balls 0
+    # and 2 start and stop; ball 1 is set moving by a collision and pocketed, so neither). Each
+    # results table below is edited by hand from the truth's and its counts worked out by hand:
+    # recall = matched / truth events, precision = matched / result events (common practice).
+    tracks, events, shots = truth_data
+    starts = events.index[events["kind"] == "start"]
+    stops = events.index[events["kind"] == "stop"]
+    ball2_stop = stops[events.loc[stops, "track"] == "2"][0]
+
+    def scored(name, ev):
+        ev = ev.sort_values("t", kind="stable")
+        return score(results_dir(tmp_path / name, tracks, ev, shots), truth_dir)["events"]
+
+    # Ball 2's stop left out: 1 of 2 stops found, the one written is right.
+    e = scored("no_stop", events.drop(index=ball2_stop))
+    assert (e["stop"]["truth"], e["stop"]["results"], e["stop"]["matched"]) == (2, 1, 1)
+    assert (e["stop"]["recall"], e["stop"]["precision"]) == (0.5, 1.0)
+    assert e["start"]["recall"] == e["start"]["precision"] == 1.0
+    # Ball 2's stop written for ball 1 instead (rolling on to the pocket then): it matches no
+    # truth stop, so recall and precision are both 1 of 2.
+    moved = events["track"].mask(events.index == ball2_stop, "1")
+    e = scored("wrong_ball", events.assign(track=moved))
+    assert (e["stop"]["results"], e["stop"]["matched"]) == (2, 1)
+    assert (e["stop"]["recall"], e["stop"]["precision"]) == (0.5, 0.5)
+    # A start for ball 1 at the collision: set moving by ball 2, not by the cue, so it is no
+    # start by the format's definition: precision 2 of 3, recall still 2 of 2.
+    col = events.index[(events["kind"] == "collision") & (events["track"] == "1")][0]
+    false_start = events.loc[[col]].assign(kind="start", other="")
+    e = scored("false_start", pd.concat([events, false_start]))
+    assert (e["start"]["truth"], e["start"]["results"], e["start"]["matched"]) == (2, 3, 2)
+    assert e["start"]["recall"] == 1.0
+    assert e["start"]["precision"] == pytest.approx(2 / 3, abs=1e-15)
+    # Both starts missing, and a stop just outside the event window (0.1 s): nothing to match.
+    late = events.drop(index=starts)
+    late.loc[ball2_stop, "t"] += 0.1 + 1e-6
+    e = scored("late", late)
+    st = e["start"]
+    assert (st["truth"], st["results"], st["recall"], st["precision"]) == (2, 0, 0.0, None)
+    assert (e["stop"]["matched"], e["stop"]["recall"], e["stop"]["precision"]) == (1, 0.5, 0.5)
+
+
 def test_cushion_just_outside_the_window_is_missed(tmp_path, truth_data, truth_dir):
     tracks, events, shots = truth_data
     ev = events.copy()

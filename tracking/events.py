@@ -29,7 +29,13 @@ Method
    in none. A motion of a ball seen moving and never seen resting before it since it came
    onto the table (put down by hand, a track picked up mid-roll) has no start. The contacts
    (below) are bounded and found on the fast stretches as before: their fits and the noise
-   estimate never reach into a slow tail.
+   estimate never reach into a slow tail. A stay on the table that never exceeds the move
+   speed but begins with the ball rolling (its first rest window's velocity beyond its noise)
+   and ends at rest is a motion too, when it begins during another ball's motion (a rack ball
+   nudged by a break and first seen parted from the rack) or within reach of where a track
+   vanished rolling (a slow ball lost and found again under a new id; its motion then counts
+   from the loss, so the shot runs on to its stop; ``_add_found_rolling``): it has a stop and
+   no start; a ball put down by hand between shots gets neither.
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
@@ -339,7 +345,9 @@ class _Fit:
     ``2 far`` (``far`` (2,) mm/s^2 / 2) with position and velocity continuous. ``cov`` (3, 3) is
     the block of ``(A^T A)^-1`` of the design matrix belonging to ``c0, c1, c2``, so near ``t0``
     ``var p(t) = s2 g^T cov g`` with ``g = [1, tau, tau^2]``; ``s2`` the per-axis residual
-    variance (mm^2).
+    variance (mm^2): the samples' own scatter about the fit where it has spare samples (at least
+    4 residual degrees of freedom over both axes, ``s2_measured``), else the nominal detection
+    noise it was given.
     """
 
     t0: float
@@ -354,6 +362,7 @@ class _Fit:
     bic: float = math.nan  # Bayesian information criterion of the chosen model
     rss: float = math.nan  # weighted residual sum of squares of the chosen model, mm^2
     slid: bool = False  # the chosen model slides straight into t0 (``straight``), not rolling
+    s2_measured: bool = False  # s2 is the residual scatter, not the nominal noise
 
     def _split(self, tau: float) -> tuple[float, float]:
         """(m, r): the part of tau before the kink and the part beyond it."""
@@ -398,13 +407,14 @@ def _fit(ts: np.ndarray, ps: np.ndarray, t0: float, deg: int, sigma_mm: float) -
     dof = 2 * (n - deg - 1)
     # The residual scatter where there are spare samples, else the nominal detection noise;
     # floored so exact (noise-free) data still gives finite weights.
-    s2 = float(np.sum(res**2) / dof) if dof >= 4 else sigma_mm**2
+    measured = dof >= 4
+    s2 = float(np.sum(res**2) / dof) if measured else sigma_mm**2
     s2 = max(s2, 1e-8)
     cov = np.zeros((3, 3))
     cov[: deg + 1, : deg + 1] = np.linalg.pinv(A.T @ A)
     full = np.zeros((3, 2))
     full[: deg + 1] = coef
-    return _Fit(t0, full, cov, s2, n, deg)
+    return _Fit(t0, full, cov, s2, n, deg, s2_measured=measured)
 
 
 def _batch_inv(N: np.ndarray) -> np.ndarray:
@@ -783,12 +793,13 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         tk = sum(wi * t for wi, t in kinked) / w_k if w_k >= 0.5 else None
         score = score - 2.0 * math.log(float(np.sum(w)))
     dof = m_obs - k
-    s2 = max(rss / dof if dof >= 4 else sigma_mm**2, 1e-8)
+    measured = dof >= 4
+    s2 = max(rss / dof if measured else sigma_mm**2, 1e-8)
     # var p(t) per axis differs when one axis is pinned; keep the larger (free) axis' matrix.
     cov = inv[int(np.argmax([np.trace(inv[0, :3, :3]), np.trace(inv[1, :3, :3])])), :3, :3]
     return _Fit(t0, c4[:3].copy(), cov.copy(), s2, n, 2, tk=tk,
                 far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss_pen,
-                slid=slid)
+                slid=slid, s2_measured=measured)
 
 
 def _real_roots(coeffs_high_first, lo: float, hi: float) -> np.ndarray:
@@ -824,6 +835,7 @@ class _Ball:
     marks: list = field(default_factory=list)  # rough event times, s
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
     strikes: list = field(default_factory=list)  # first instants past a strike from rest, s
+    begun: dict = field(default_factory=dict)  # first row -> s a found-rolling motion began
     firsts: tuple = (0,)  # first row of each stay on the table (``_motion``)
     fast: list = field(default_factory=list)  # [(i0, i1)] stretches above the rest speed
     weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
@@ -1001,6 +1013,16 @@ def _still_sigma(ball: _Ball, fast: list[tuple[int, int]]) -> float:
     return _d3_sigma(ball, off) or 0.0
 
 
+def _stays(ball: _Ball, diameter_mm: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The ball's stays on the table between the track's breaks (``_breaks``): each stay's
+    first and last row, (S,) each, and each row's stay's last row (N,)."""
+    n = len(ball.t)
+    brk = _breaks(ball, diameter_mm)
+    firsts = np.concatenate([[0], brk + 1]).astype(int)
+    lasts = np.concatenate([brk, [n - 1]]).astype(int)
+    return firsts, lasts, np.repeat(lasts, np.diff(np.append(firsts, n)))
+
+
 def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     """Moving stretches of ``ball``: from where its smoothed speed rises (hysteresis between
     ``rest_speed_mm_s`` and ``move_speed_mm_s``) until it really lies still (``_resting``).
@@ -1023,9 +1045,7 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     """
     n = len(ball.t)
     speed = np.hypot(*ball.v.T)
-    brk = _breaks(ball, diameter_mm)
-    firsts = np.concatenate([[0], brk + 1]).astype(int)
-    lasts = np.concatenate([brk, [n - 1]]).astype(int)
+    firsts, lasts, piece_end = _stays(ball, diameter_mm)
     ball.firsts = tuple(int(f) for f in firsts)
     runs = []
     for p0, p1 in zip(firsts, lasts):
@@ -1063,7 +1083,6 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
             fast.append((a, b))
     ball.moves = ball.fast = fast
     ball.sigma, ball.sigma_fit = _noise_sigma(ball, cfg)
-    piece_end = np.repeat(lasts, np.diff(np.append(firsts, n)))
     rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, fast)), cfg.min_rest_s,
                             piece_end)
     # Last row of each row's rest window.
@@ -1085,6 +1104,67 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
         b = b + int(still[0]) if len(still) else int(piece_end[b])
         merged.append((a, max(a, b)))
     ball.moves = merged
+
+
+def _found_rolling(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> list[tuple[int, int]]:
+    """Stays of ``ball`` with no motion (``_motion``) that begin with the ball rolling and end
+    at rest: (first row, row before the rest) index ranges. Such a stay's first tested rest
+    window (``_resting``, starting within ``min_rest_s`` of the stay) finds a velocity beyond its
+    noise and a later one finds none: a ball first seen rolling slower than
+    ``move_speed_mm_s`` (a rack ball nudged by a break and not seen before it was parted from
+    the rack, or a slow ball lost and found again under a new id) that comes to rest, which
+    the speed hysteresis never counts as moving."""
+    if len(ball.t) < 2:
+        return []
+    firsts, lasts, piece_end = _stays(ball, diameter_mm)
+    rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, ball.fast)), cfg.min_rest_s,
+                            piece_end)
+    out = []
+    for p0, p1 in zip(firsts, lasts):
+        if any(p0 <= i0 <= p1 for i0, _ in ball.moves):
+            continue
+        first = p0 + np.flatnonzero(tested[p0:p1 + 1])
+        if not len(first) or ball.t[first[0]] > ball.t[p0] + cfg.min_rest_s or rest[first[0]]:
+            continue
+        still = np.flatnonzero(rest[first[0]:p1 + 1])
+        if len(still):
+            out.append((int(p0), int(first[0] + still[0] - 1)))
+    return out
+
+
+def _add_found_rolling(balls: list[_Ball], cfg: EventConfig, diameter_mm: float) -> None:
+    """Add to each ball's motions the stays it was first seen rolling in (``_found_rolling``)
+    that begin while another ball is in motion or within ``min_rest_s`` of one ending (a ball
+    rolls only when something struck it during a shot; a ball put down by hand between shots
+    is not rolling), or no farther from where another track vanished rolling than that ball
+    could have rolled since (the same ball lost and found again; ``_Ball.begun`` then holds
+    the loss's time, where the motion counts from for its shot): so their stops are found.
+    They come after every contact is measured, so they change no fit; they have no start
+    (first seen moving)."""
+    spans = [(b.track, float(b.t[i0]), float(b.t[i1])) for b in balls for i0, i1 in b.moves]
+    # Motions cut short by their track's end before the clip's (a ball lost while rolling):
+    # (track, last time s, last position mm, last speed mm/s).
+    t_clip = max(float(b.t[-1]) for b in balls)
+    lost = [(b.track, float(b.t[i1]), b.p[i1], float(np.hypot(*b.v[i1])))
+            for b in balls for _, i1 in b.moves if i1 == len(b.t) - 1 and b.t[i1] < t_clip]
+
+    def begun(b: _Ball, a: int) -> float | None:
+        """When (s) the motion first seen at row ``a`` was under way, None if in no shot."""
+        t_a = float(b.t[a])
+        if any(tr != b.track and t0 <= t_a <= t1 + cfg.min_rest_s for tr, t0, t1 in spans):
+            return t_a
+        # Or the same ball lost while rolling and found again: no farther than it could have
+        # rolled at its last speed (a rolling ball only slows), give or take a diameter; its
+        # motion, for the shot, runs from where it was lost.
+        return next((t_e for tr, t_e, p_e, v_e in lost if tr != b.track and 0.0 <= t_a - t_e
+                     and np.hypot(*(b.p[a] - p_e)) <= v_e * (t_a - t_e) + diameter_mm), None)
+
+    for b in balls:
+        for a, e in _found_rolling(b, cfg, diameter_mm):
+            t_b = begun(b, a)
+            if t_b is not None:
+                b.moves = sorted(b.moves + [(a, e)])
+                b.begun[a] = t_b
 
 
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
@@ -1223,6 +1303,7 @@ def find_events(
             r = finder.cushion(b, rail, tg)
         if r is not None:
             rows.append(r)
+    _add_found_rolling(balls, cfg, table.ball_diameter_mm)
     moves = []  # (track, t_begin, t_end)
     for b in balls:
         # Last row of each stay on the table: before a gap in the frames or a jump.
@@ -1233,7 +1314,7 @@ def find_events(
             if hit:
                 t_begin = min(hit)
             elif i0 in b.firsts:
-                t_begin = float(b.t[i0])  # already moving when first seen
+                t_begin = b.begun.get(i0, float(b.t[i0]))  # already moving when first seen
             else:
                 r = starts.get((b.track, i0)) or finder.start(b, i0)
                 rows.append(r)
@@ -2174,12 +2255,12 @@ class _Finder:
         # only running into it, and a ball running along the rail, its normal velocity within
         # the noise of zero, turns that way and back in the smoothed velocity (a second, false
         # contact a few frames after a slow one).
-        # Only a fit with spare samples (2 n - k >= 4) measures its scatter; one without has
+        # Only a fit with spare samples (``s2_measured``) measures its scatter; one without has
         # the ball's noise estimate as its s2, which a track of short motions, each holding a
         # contact, can put far above the detections' scatter (``_noise_sigma``: 44 mm on true
         # centres with 0.3 mm of noise at 30 fps, tests/test_events.py's struck-near shots,
         # where 14 of 24 contacts were refused on three-sample approaches).
-        if max([f.s2 for f in (fa, fd) if 2 * f.n - f.k >= 4], default=0.0) \
+        if max([f.s2 for f in (fa, fd) if f.s2_measured], default=0.0) \
                 > self.table.radius_mm ** 2:
             return None
         vn_in, vn_out = -float(v_in @ n_in), float(v_out @ n_in)
