@@ -10,7 +10,7 @@ import pytest
 from vision.camera import Camera
 from vision.detect import COLUMNS, BallDetector, DetectConfig, empty_detections
 from vision.render import BallLook, CueStroke, Lamp, Look, Occluder, Renderer
-from vision.table import EIGHT_FOOT, NINE_FOOT
+from vision.table import EIGHT_FOOT, NINE_FOOT, SEVEN_FOOT
 
 R = NINE_FOOT.radius_mm
 BALLS = (
@@ -1389,7 +1389,6 @@ def test_dim_balls_rolling_in_a_dark_corner_are_placed_within_the_moving_target(
     # vignetting, 3 DN of noise), 30 fps with the shutter open: two blue balls rolling at 280 mm/s
     # near the bottom and right rails, where the vignetting is deepest. Renderer's truth at
     # mid-exposure; the bound is issue 3's moving median (3 mm).
-    from vision.table import SEVEN_FOOT
 
     r = SEVEN_FOOT.radius_mm
     cam = Camera.overhead(SEVEN_FOOT, 1800.0, (1280, 720), offset_mm=(-160, -140), roll_deg=-1.0,
@@ -1411,6 +1410,49 @@ def test_dim_balls_rolling_in_a_dark_corner_are_placed_within_the_moving_target(
             errs.append(_match(out, start + vel * t, gate=r)[0])
     errs = np.array(errs)
     assert np.all(np.isfinite(errs)) and np.all(np.median(errs, axis=0) <= 3.0), np.median(errs, axis=0)
+
+
+# Dark balls resting toward the corners of a dim room (exposure 0.6, room light 0.15 of the
+# light, full vignetting, 3 DN of noise) filmed through H.264 at constant rate factor 28, as the
+# extra set's phone clip is: three black balls and a dark maroon one. Seen from the side, a
+# ball's unlit underside meets the cloth it shades on the side toward the camera's nadir, and
+# the codec bleeds the cloth's hue into the black limb, so no colour step marks the rim there
+# (issues 3 and 4: the phone clip's black ball is placed about 10 mm toward that side and its
+# collision is missed). Rooms: (table, camera, cloth BGR, lamps (None: the renderer's three)).
+DARK_ROOMS = {
+    "green_7ft_phone": (SEVEN_FOOT, Camera.overhead(SEVEN_FOOT, 1800.0, (1280, 720), offset_mm=(-160, -140), roll_deg=-1.0, dist=(-0.32, 0.11, 0.0006, -0.0004, -0.015)), (58, 106, 46), None),
+    "blue_9ft": (NINE_FOOT, Camera.overhead(NINE_FOOT, 2000.0, (1280, 720), offset_mm=(-150, 80), roll_deg=1.5, dist=(-0.25, 0.06, 0, 0, 0)), (150, 72, 28), None),
+    "grey_9ft_two_low_lamps": (NINE_FOOT, Camera.overhead(NINE_FOOT, 2400.0, (1280, 720), offset_mm=(100, -60), roll_deg=-1.0, dist=(-0.1, 0.02, 0, 0, 0)), (110, 114, 118), (Lamp((800.0, 600.0, 900.0)), Lamp((2000.0, 400.0, 1100.0)))),
+}
+
+
+@pytest.mark.xfail(strict=True, reason="issues 3 and 4: a dark ball's unlit limb meeting the cloth it shades has no "
+                   "colour step; a56ae1e places the four balls 2.9/5.6/10.8/2.3 mm (green), 4.6/1.3/10.3/1.3 (blue) "
+                   "and 5.4/5.6/2.6/4.3 (grey) off, the maroon one about as far as the phone clip's black ball; "
+                   "a lit-side refit tried in session 13 (not adopted) gave 2.9/5.6/8.9/7.8, 4.6/1.3/3.8/1.3 "
+                   "and 5.4/5.4/2.6/5.9")
+@pytest.mark.parametrize("name", list(DARK_ROOMS))
+def test_dark_balls_toward_the_corners_of_a_dim_room_are_placed_within_the_resting_target(name, tmp_path):
+    from scipy.spatial.transform import Rotation
+
+    from vision.video import iter_frames, write_video
+
+    table, cam, cloth, lamps = DARK_ROOMS[name]
+    L, W = table.length_mm, table.width_mm
+    at = np.array([[0.86 * L, 0.83 * W], [0.15 * L, 0.2 * W], [0.8 * L, 0.15 * W], [0.2 * L, 0.8 * W]])
+    balls = tuple(BallLook(str(8 + i), "solid", c) for i, c in enumerate(((24, 24, 24), (24, 24, 24), (30, 20, 60), (24, 24, 24))))
+    look = Look(cloth_bgr=cloth, cushion_bgr=tuple(int(0.85 * c) for c in cloth), exposure=0.6, ambient=0.15, vignetting=1.0, noise_sigma=3.0, lamps=lamps)
+    ren = Renderer(table, cam, look, balls, seed=7)
+    rot = Rotation.random(len(at), random_state=3).as_matrix()[None]
+    empty = ren.render(at[None], rot, np.zeros((1, len(at)), bool), np.zeros(1))
+    seen = ren.render(at[None], rot, np.ones((1, len(at)), bool), np.array([1 / 30]))
+    clip = tmp_path / "dark.mp4"
+    write_video(clip, [empty, seen], 30, codec="h264", quality=28)
+    det = BallDetector(cam, table)
+    outs = [det.process(i, t, img) for i, t, img in iter_frames(clip)]
+    err, _ = _match(outs[-1], at)
+    # Renderer's truth; every ball within the resting target's p95 (2.5 mm, README: issue 3).
+    assert np.all(err <= 2.5), (name, err)
 
 
 # The extra set's one-lamp room (benchmarks/extra_scenes: a low lamp at one end of an 8 ft
