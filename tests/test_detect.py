@@ -1315,7 +1315,8 @@ PHONE_CODEC_LIMIT = pytest.mark.xfail(strict=True, reason="issue 4: through crf 
                                       "chroma: medians 1.15/1.18/1.63 mm here (stripes and solids up to 2.9 mm), "
                                       "0.47-0.51 after a lossless encode; no outline placed by the luma, by chroma "
                                       "rebuilt from the luma (guided filter) or by the rays where both agree did "
-                                      "better (session 13)")
+                                      "better; the rim colour sampled deeper where the chroma is smeared gave "
+                                      "1.22/0.94/1.03 mm but cost other clips (session 13)")
 
 
 def _phone_errors(cloth: str, crf: int, folder) -> np.ndarray:
