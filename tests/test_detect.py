@@ -1302,6 +1302,65 @@ def test_coloured_balls_are_placed_through_the_codecs_half_resolution_colour(tmp
     assert np.all(np.isfinite(err)) and np.median(err) <= 0.35, err
 
 
+# A phone's encode in a dim room: a wide lens low over a 7 ft table, low exposure, little ambient
+# light, strong vignetting, a noisy sensor, H.264 with 4:2:0 chroma, on three cloths; cue balls,
+# stripes and solids of colours off every cloth's hue, each turned at random so a stripe's band
+# falls anywhere. Lossless (crf 0: only the chroma's half resolution) and at crf 28 (what a
+# phone or a streaming app writes at a modest bitrate).
+PHONE_CAM = Camera.overhead(SEVEN_FOOT, 1700.0, (1280, 720), offset_mm=(120, 90), roll_deg=1.5, dist=(-0.28, 0.09, 0, 0, 0))
+PHONE_CLOTHS = {"green": (58, 106, 46), "blue": (140, 78, 31), "teal": (104, 100, 24)}
+PHONE_COLOURS = ((31, 42, 196), (96, 32, 128), (40, 30, 120))
+PHONE_CODEC_LIMIT = pytest.mark.xfail(strict=True, reason="issue 4: through crf 28 a coloured ball's rim, a step of "
+                                      "colour more than of brightness, survives only as blocks of half-resolution "
+                                      "chroma: medians 1.15/1.18/1.63 mm here (stripes and solids up to 2.9 mm), "
+                                      "0.47-0.51 after a lossless encode; no outline placed by the luma, by chroma "
+                                      "rebuilt from the luma (guided filter) or by the rays where both agree did "
+                                      "better; the rim colour sampled deeper where the chroma is smeared gave "
+                                      "1.22/0.94/1.03 mm but cost other clips (session 13)")
+
+
+def _phone_errors(cloth: str, crf: int, folder) -> np.ndarray:
+    """(12,) centre errors (mm, inf where missed) of the resting balls of the phone's room on
+    ``cloth``, detected in the second frame of a two-frame clip encoded at ``crf`` in ``folder``."""
+    from scipy.spatial.transform import Rotation
+
+    from vision.video import iter_frames, write_video
+
+    L, W = SEVEN_FOOT.length_mm, SEVEN_FOOT.width_mm
+    rng = np.random.default_rng(13)
+    gx, gy = np.meshgrid(np.linspace(3 * R, L - 3 * R, 4), np.linspace(3 * R, W - 3 * R, 3))
+    at = np.column_stack([gx.ravel(), gy.ravel()]) + rng.uniform(-20, 20, (12, 2))
+    kinds = ("cue", "stripe", "solid") * 4
+    balls = tuple(BallLook(str(i), k, (226, 234, 236) if k == "cue" else PHONE_COLOURS[i % 3]) for i, k in enumerate(kinds))
+    look = Look(cloth_bgr=PHONE_CLOTHS[cloth], cushion_bgr=PHONE_CLOTHS[cloth], exposure=0.6, ambient=0.15, vignetting=1.0, noise_sigma=3.0)
+    rot = Rotation.random(12, random_state=np.random.default_rng(7)).as_matrix()[None]
+    ren = Renderer(SEVEN_FOOT, PHONE_CAM, look, balls, seed=11)
+    frames = [ren.render(at[None], rot, np.ones((1, 12), bool), np.array([t])) for t in (0.0, 1 / 30)]
+    clip = folder / f"{cloth}_{crf}.mp4"
+    write_video(clip, frames, 30, codec="h264", quality=crf)
+    det = BallDetector(PHONE_CAM, SEVEN_FOOT)
+    out = [det.process(i, i / 30, f) for i, (_, _, f) in enumerate(iter_frames(clip))]
+    return _match(out[-1], at)[0]
+
+
+@pytest.mark.parametrize("cloth", list(PHONE_CLOTHS))
+def test_balls_are_placed_through_a_lossless_phone_encode(cloth, tmp_path):
+    # Renderer's truth; issue 3's resting target, median centre error at most 1 mm (a missed
+    # ball counts as infinite): the luma keeps full resolution, and half-resolution chroma
+    # alone must not cost the outline that.
+    err = _phone_errors(cloth, 0, tmp_path)
+    assert np.median(err) <= 1.0, (cloth, err)
+
+
+@PHONE_CODEC_LIMIT
+@pytest.mark.parametrize("cloth", list(PHONE_CLOTHS))
+def test_balls_are_placed_through_a_phones_heavy_encode(cloth, tmp_path):
+    # Renderer's truth; issue 3's resting target, median centre error at most 1 mm (a missed
+    # ball counts as infinite).
+    err = _phone_errors(cloth, 28, tmp_path)
+    assert np.median(err) <= 1.0, (cloth, err)
+
+
 def _disc_cover(det: BallDetector, x: float, y: float) -> np.ndarray:
     """(H, W) share of each pixel the silhouette of a ball at (x, y) mm covers, drawn at 8x and
     area-averaged, then blurred by a Gaussian of sigma 1 px (an optical blur)."""
