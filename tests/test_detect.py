@@ -1645,3 +1645,120 @@ def test_stroking_cue_held_in_the_first_frame_gives_no_ball_near_the_rail(tmp_pa
     assert len(missed) > 50  # the whole stroke, 0.45 s at 120 fps
     assert sum(extra) == 0, [(f, n) for f, n in enumerate(extra) if n]
     assert sum(missed) == 0, missed
+
+
+def _rack(first: np.ndarray, rows: tuple[int, ...], along: float) -> np.ndarray:
+    """(N, 2) mm centres of touching balls in rows (``rows`` balls each) laid across the
+    direction ``along`` (rad), the first row's middle at ``first``: analytic geometry of touching
+    spheres (rows 2R apart across, sqrt(3) R apart along; a row one ball longer or shorter than
+    the last sits in its gaps)."""
+    e = np.array([math.cos(along), math.sin(along)])
+    n = np.array([-e[1], e[0]])
+    return np.array([first + k * math.sqrt(3) * R * e + (j - (m - 1) / 2) * 2 * R * n for k, m in enumerate(rows) for j in range(m)])
+
+
+# Touching racks in rooms of our own (cloths none of whose balls share the cloth's hue: a ball of
+# the cloth's own hue is seeded from its crown, see the module's limits), every ball turned at
+# random so stripes show their bands: the 15-ball triangle (cue ball, solids, the black and
+# stripes), the 9-ball diamond, and a 15-ball triangle whose five-ball row is frozen to a cushion.
+RACKS = {
+    "triangle15 electric cloth": dict(
+        camera=Camera.overhead(NINE_FOOT, 2600.0, (960, 540), offset_mm=(100, -80), roll_deg=1.0, dist=(-0.1, 0.02, 0, 0, 0)),
+        look=Look(cloth_bgr=(190, 130, 40), cushion_bgr=(165, 112, 34), noise_sigma=2.0, exposure=1.1),
+        at=_rack(np.array([1700.0, 500.0]), (1, 2, 3, 4, 5), 0.7),
+        balls=slice(0, 15),
+    ),
+    "diamond9 blue cloth, low wide lens": dict(
+        camera=Camera.overhead(NINE_FOOT, 1900.0, (960, 540), offset_mm=(-150, 100), roll_deg=-4.0, dist=(-0.3, 0.08, 0, 0, 0)),
+        look=Look(cloth_bgr=(150, 72, 28), cushion_bgr=(130, 62, 24), exposure=1.2, noise_sigma=3.0, specular=1.0),
+        at=_rack(np.array([1000.0, 800.0]), (1, 2, 3, 2, 1), -0.5),
+        balls=(0, 1, 3, 4, 5, 6, 7, 8, 11),
+    ),
+    "triangle15 frozen to a cushion, tan cloth, bright": dict(
+        camera=Camera.overhead(NINE_FOOT, 2700.0, (1280, 720), offset_mm=(60, 40), roll_deg=-0.8, dist=(-0.05, 0.0, 0, 0, 0)),
+        look=Look(cloth_bgr=(85, 138, 176), cushion_bgr=(75, 120, 155), noise_sigma=1.5, exposure=1.4, ambient=0.6),
+        at=_rack(np.array([900.0, R]), (5, 4, 3, 2, 1), math.pi / 2),
+        balls=slice(0, 15),
+    ),
+}
+
+
+@pytest.fixture(scope="module")
+def racks():
+    """Detections of each rack (RACKS) in the frame after an empty table's, and the truth."""
+    from scipy.spatial.transform import Rotation
+
+    from vision.render import pool_balls
+
+    done = {}
+
+    def run(name):
+        if name not in done:
+            s = RACKS[name]
+            pool = pool_balls()
+            balls = pool[s["balls"]] if isinstance(s["balls"], slice) else tuple(pool[k] for k in s["balls"])
+            at = s["at"]
+            n = len(at)
+            rot = Rotation.random(n, random_state=np.random.default_rng(5)).as_matrix()[None]
+            ren = Renderer(NINE_FOOT, s["camera"], s["look"], balls, seed=5)
+            det = BallDetector(s["camera"], NINE_FOOT)
+            det.process(0, 0.0, ren.render(at[None], rot, np.zeros((1, n), bool), np.array([0.0])))
+            done[name] = (det.process(1, 1 / 60, ren.render(at[None], rot, np.ones((1, n), bool), np.array([1 / 60]))), at)
+        return done[name]
+
+    return run
+
+
+@pytest.mark.parametrize("name", list(RACKS))
+def test_every_ball_of_a_touching_rack_is_found(racks, name):
+    # A rack is one solid piece of foreground deepest between its balls, larger than a few
+    # balls (taken for an arm before): every ball must be found, each by its own detection,
+    # within a ball radius (the benchmark's match gate, benchmarks/detect_accuracy.py), with no
+    # false detection (issue acceptance: every visible ball, no false balls).
+    det, at = racks(name)
+    err, j = _match(det, at)
+    assert np.all(np.isfinite(err)), (name, err)
+    assert len(set(j.tolist())) == len(at) and len(det) == len(at), (name, det)
+
+
+@pytest.mark.parametrize("name", list(RACKS))
+def test_racked_balls_are_placed_within_the_resting_p95(racks, name):
+    # Placement of racked balls: the median within the issue's resting p95 (2.5 mm). Balls
+    # surrounded by neighbours keep their coarse fit (every ray of the local edge meets a
+    # neighbour's rim, _refit_touching), so the resting median target of 1 mm is not met
+    # here (see the strict xfail below).
+    det, at = racks(name)
+    err, _ = _match(det, at)
+    assert np.median(err) <= 2.5, (name, err)
+
+
+@pytest.mark.xfail(strict=True, reason="racked balls keep their coarse fit: 0.1-3 mm off, a few up to 13 mm (module limits)")
+def test_racked_balls_meet_the_resting_target(racks):
+    # Issue acceptance for resting balls: median <= 1 mm, p95 <= 2.5 mm, over all racks.
+    err = np.concatenate([_match(*racks(name))[0] for name in RACKS])
+    assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, err
+
+
+@pytest.mark.parametrize("heading_deg,bridge_mm", [(180.0, 230.0), (200.0, 150.0)])
+def test_arm_over_or_beside_a_rack_gives_no_ball(heading_deg, bridge_mm):
+    # A stroke on a ball lying just in front of a touching 15-ball triangle, sent away from
+    # it: the cue, the bridge hand and the arms lie back over the rack or beside it, joining it
+    # in one piece of foreground with it (racked balls under or against the hand may be lost
+    # for those frames, a stated limit). Issue acceptance: no detections from the occluder.
+    from vision.render import pool_balls
+
+    s = RACKS["triangle15 electric cloth"]
+    at = np.vstack([s["at"], s["at"][0] - np.array([math.cos(0.7), math.sin(0.7)]) * 2.6 * R])
+    balls = pool_balls()[1:16] + (pool_balls()[0],)
+    n = len(at)
+    occ = Occluder((CueStroke(1.5, tuple(at[-1]), math.radians(heading_deg)),), bridge_mm=bridge_mm)
+    ren = Renderer(NINE_FOOT, s["camera"], s["look"], balls, occluder=occ, seed=7)
+    det = BallDetector(s["camera"], NINE_FOOT)
+    extra = []
+    # The empty-table model from a frame with the balls and no player, then 60 fps while the
+    # player slides in and settles (strike at 1.5 s, player in from 0.3 s).
+    for i, t in enumerate([0.0] + list(np.arange(0.35, 0.75, 1 / 60))):
+        out = det.process(i, t, ren.render(at[None], _rot(n), np.ones((1, n), bool), np.array([t])))
+        err, _ = _match(out, at)
+        extra.append(len(out) - int(np.isfinite(err).sum()))
+    assert sum(extra) == 0, extra

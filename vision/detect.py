@@ -59,7 +59,13 @@ Method
    shaft-to-butt colour step against a model that holds the cue); it stands while its box's
    pieces are explained and is dropped at the end. Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
-   deepest between them). Small holes in a component (a highlight or mark of
+   deepest between them). A free piece of more than 2.5 balls that its fits do not explain
+   (a rack of touching balls, one solid piece whose distance transform peaks between balls, so
+   its fits straddle them) is seeded again as a cluster, by a circle Hough transform of the
+   frame's colour edges at the ball's image radius (every ball's rim votes for its centre,
+   against the cloth or a neighbour), then ball by ball in what those fits leave, however many
+   balls it holds; those fits replace the first where they explain the piece (the tests above),
+   and the piece is judged as before where they do not (:meth:`BallDetector._cluster_retry`). Small holes in a component (a highlight or mark of
    the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
    fitted streak must fade in and out along its motion over about a ball's length at both ends,
    as a swept ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded,
@@ -134,9 +140,13 @@ one whose highlight does not stand out is missed, and one right under a lamp, wh
 matches the cloth's brightness over half its area, fails the filled-disc test and is missed
 (2 of 6 blue balls on blue cloth of nearly their albedo in the tests); a ball of the cloth's
 hue much brighter or darker than it keeps the colour-step outline; a dark ball
-pressed into a touching triangle can still be about 4 mm off, and only balls of one piece of
-foreground up to six balls big are seeded again where the first fits leave one unexplained
-(larger racks are not); a ball merged with an arm or cue in the
+pressed into a touching triangle can still be about 4 mm off; balls inside a touching rack keep
+their coarse fit (every ray of the local edge meets a neighbour), 0.1-3 mm off and a few up to
+13 mm (tests/test_detect.py, strict xfail), and a rack holding a ball of the cloth's own hue (a
+green ball on green cloth, a blue one on blue), or a black ball on grey cloth, is not explained
+and is lost until the break spreads it, as is a rack of more than 14 balls' area present in the
+clip's first frame, which the empty-table model keeps (``BackgroundConfig.max_blob_balls``); a
+ball merged with an arm or cue in the
 image is reported only when its outline is clearly separate and at most about a quarter of the
 ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
 lost for those frames); the end of an arm exactly a ball wide and still is not told from a ball
@@ -277,6 +287,20 @@ _AVOID_R = 1.2
 _MIN_FREE_RAYS = 12
 # Rounds of seeding what the fitted balls leave unexplained in a piece of foreground.
 _REMAINDER_ROUNDS = 2
+# A free piece of foreground holding more than this many ball images (at its centroid's scale),
+# no streak, that its first fits do not explain is seeded again by a circle Hough transform
+# (:meth:`BallDetector._cluster_retry`): in a touching cluster the foreground is one solid piece
+# deepest between the balls (a rack: a filled triangle, whose distance transform peaks at its
+# middle), while two touching balls (2 images) keep the waist split. Three touching balls
+# cover about 3 images, less the limbs the foreground test misses: 2.5.
+_CLUSTER_BALLS = 2.5
+# Least vote of a Hough peak, as a share of the piece's strongest: on rendered 6-, 9- and
+# 15-ball racks on electric-blue, blue, tan, grey and red cloth (balls upright and turned at
+# random; scratch study of session 13, the racks of tests/test_detect.py among them) every
+# ball's peak held 0.19 or more of the strongest but for a ball of the cloth's own hue (no
+# outline against the cloth), and the peaks between balls (votes of the neighbours' rims) 0.07
+# or less: between the two.
+_CLUSTER_VOTE_SHARE = 0.12
 # The local edge places the outline by the colour off the surround's hue
 # (:func:`_off_hue_edges`) where the rim's colour lies at least this sine (about 14 degrees)
 # off the surround's, twice the cloth's texture and a dark rim's noise (not a measured
@@ -1502,6 +1526,7 @@ class BallDetector:
                 break
             seeds += more
             fits += [self._fit_one(img, s) for s in more]
+        seeds, fits = self._cluster_retry(img, seeds, fits)
         fits = self._free_occluders(img, seeds, fits)
         tested: dict[int, tuple[dict, bool]] = {}  # rows' shadow tests, for the second pass
         fits = self._drop_cast_shadows(img, fits, known, seeds, tested)
@@ -1644,7 +1669,7 @@ class BallDetector:
             r = self._fit_seed(img, s, shadows=False, avoid=avoid)
         return r
 
-    def _unexplained_seeds(self, seeds: list[dict], fits: list[dict | None]) -> list[dict]:
+    def _unexplained_seeds(self, seeds: list[dict], fits: list[dict | None], cluster: bool = False) -> list[dict]:
         """New seeds where a free piece of foreground (not reaching in over the rail) is not
         explained by the balls fitted in it: the piece less the fitted balls' silhouettes (grown
         by a pixel for the blurred rim), opened by a 3 x 3 square, seeds one ball at each peak of
@@ -1655,8 +1680,11 @@ class BallDetector:
         matching-pursuit idea of fitting the strongest part and searching the residual (Mallat
         & Zhang 1993). Pieces holding a streak are left alone (its swept outline is not drawn),
         and so are pieces where nothing fitted (the same seeds would come again) and pieces
-        larger than six balls (a cue or hand lying free of the rail); points within half a
-        radius of a seed already tried are not seeded again. Returns the new seeds (:meth:`_seeds_of`'s keys plus ``piece``)."""
+        larger than six balls (a cue or hand lying free of the rail), or with ``cluster`` (seeds
+        of :meth:`_cluster_seeds`) pieces that leave more than six balls unexplained (a rack of
+        touching balls is mostly explained by its first fits, however many balls it holds);
+        points within half a radius of a seed already tried (with ``cluster``, a pixel and a
+        half) are not seeded again. Returns the new seeds (:meth:`_seeds_of`'s keys plus ``piece``)."""
         pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[dict], list[np.ndarray]]] = {}
         for s, r in zip(seeds, fits):
             if "piece" not in s:
@@ -1670,7 +1698,7 @@ class BallDetector:
         area_min = math.pi * self.r_min_px**2
         area_max = math.pi * self.r_max_px**2
         for comp, origin, rows, tried in pieces.values():
-            if not rows or comp.sum() > 6 * area_max:
+            if not rows or (not cluster and comp.sum() > 6 * area_max):
                 # Nothing fitted (the same seeds would come again), or more than a small
                 # cluster's worth of foreground (a cue or hand lying free of the rail).
                 continue
@@ -1684,16 +1712,20 @@ class BallDetector:
             cv2.fillPoly(mask, [np.round(o).astype(np.int32) for o in outl], 1)
             rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
             rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-            if rest.sum() < 0.5 * area_min:
+            if rest.sum() < 0.5 * area_min or rest.sum() > 6 * area_max:
                 continue
             dtm = cv2.distanceTransform(rest, cv2.DIST_L2, 5)
             floor = 0.65 * self.r_min_px
+            # A cluster's seeds are Hough peaks, which can lie a few pixels off a ball's centre
+            # where its rim is weak (a dark ball among bright ones): the remainder's peak, on
+            # the ball's middle, is tried unless it is that seed within a pixel and a half.
+            near = 1.5 if cluster else 0.5 * self.r_min_px
             peaks = (dtm >= floor) & (dtm >= cv2.dilate(dtm, np.ones((3, 3), np.uint8)) - 1e-3)
             ys, xs = np.nonzero(peaks)
             chosen: list[np.ndarray] = []
             for j in np.argsort(-dtm[ys, xs]):
                 p = np.array([xs[j] + origin[0], ys[j] + origin[1]], float)
-                if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen) and all(np.hypot(*(p - q)) > 0.5 * self.r_min_px for q in tried):
+                if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen) and all(np.hypot(*(p - q)) > near for q in tried):
                     chosen.append(p)
             out += [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False, "piece": (comp, origin)} for p in chosen]
         return out
@@ -1722,24 +1754,11 @@ class BallDetector:
         if not pieces:
             return fits
         out = list(fits)
-        area_ball = math.pi * self.r_max_px**2
         for comp, origin, ks in pieces.values():
-            mask = np.zeros_like(comp)
-            for k in ks:
-                r = fits[k]
-                travel = math.hypot(r["blur_x"], r["blur_y"])
-                # blur_* is the streak's whole travel plus a diameter (:meth:`_fit_seed`).
-                half = max(0.5 * travel - self.R, 0.0)
-                outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
-                cv2.fillPoly(mask, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
-            rest = comp.copy()
-            rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
-            rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-            left = float(rest.sum())
             beside = any(s.get("beside") and s["piece"][0] is comp for s in seeds if "piece" in s)
-            balls = self._casters_only(img, [fits[k] for k in ks])
-            shadows = [fits[k] for k in ks if not any(fits[k] is b for b in balls)]
-            if left <= area_ball and not beside and not self._bridged(comp, origin, mask, balls, shadows):
+            cluster = any(seeds[k].get("cluster") for k in ks)
+            explained, shadows = self._explained(img, comp, origin, [fits[k] for k in ks], cluster)
+            if explained and not beside:
                 # A shadow fitted beside its caster has done its part (its outline explains
                 # its foreground) and goes; the caster is refitted with the rays toward it left
                 # out of every round, as the ball's dark limb runs into its own shadow there
@@ -1763,14 +1782,92 @@ class BallDetector:
                 out[k] = self._fit_one(img, dict(seeds[k], strict=True))
         return out
 
-    def _casters_only(self, img: np.ndarray, rows: list[dict]) -> list[dict]:
+    def _explained(self, img: np.ndarray, comp: np.ndarray, origin, rows: list[dict], cluster: bool = False) -> tuple[bool, list[dict]]:
+        """Whether the detection rows fitted in a free piece (``comp``, (h, w) uint8 at
+        ``origin`` px) explain it (:meth:`_free_occluders`): what their outlines (sharp or
+        swept, grown by a pixel for the blurred rim, then opened by a 3 x 3 square) leave of it
+        is at most the largest ball's image area, and no two of the balls among them
+        (:meth:`_casters_only`) are bridged (:meth:`_bridged`); and the rows that are the balls'
+        cast shadows (:meth:`_casters_only`, asking for the cloth's hue with ``cluster``)."""
+        mask = np.zeros_like(comp)
+        for r in rows:
+            travel = math.hypot(r["blur_x"], r["blur_y"])
+            # blur_* is the streak's whole travel plus a diameter (:meth:`_fit_seed`).
+            half = max(0.5 * travel - self.R, 0.0)
+            outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
+            cv2.fillPoly(mask, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
+        rest = comp.copy()
+        rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
+        rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        balls = self._casters_only(img, rows, hue=cluster)
+        shadows = [r for r in rows if not any(r is b for b in balls)]
+        explained = float(rest.sum()) <= math.pi * self.r_max_px**2 and not self._bridged(comp, origin, mask, balls, shadows)
+        return explained, shadows
+
+    def _cluster_retry(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> tuple[list[dict], list[dict | None]]:
+        """Seeds and fits (parallel lists, as in :meth:`_detect_box`) with each free piece that
+        its fits do not explain (:meth:`_explained`) and that holds more than
+        ``_CLUSTER_BALLS`` ball images and no streak seeded again as a cluster of touching
+        balls: by :meth:`_cluster_seeds`, then ball by ball in what those fits leave
+        (:meth:`_unexplained_seeds` with ``cluster``); the piece's seeds and fits are replaced
+        by these where they explain it, and kept otherwise (an arm, hand or cue lying free of
+        the rail: :meth:`_free_occluders` judges it as before). A touching cluster is one solid
+        piece of foreground deepest between the balls (a rack is a filled triangle whose
+        distance transform peaks at its middle), so its distance-transform seeds fall between
+        balls and fit circles straddling two or three of them, which leave parts of those
+        unexplained and overlap the balls fitted beside them."""
+        pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
+        for k, s in enumerate(seeds):
+            if "piece" in s:
+                comp, origin = s["piece"]
+                pieces.setdefault(id(comp), (comp, origin, []))[2].append(k)
+        for comp, origin, ks in pieces.values():
+            rows = [fits[k] for k in ks if fits[k] is not None]
+            if any(seeds[k]["half_px"] > 0 for k in ks) or any(r["blur_x"] or r["blur_y"] for r in rows):
+                continue  # a streak: no cluster of resting balls
+            if any(seeds[k].get("beside") for k in ks):
+                continue  # within reach of an arm coming in over the rail: judged as touching it
+            ys, xs = np.nonzero(comp)
+            cen = np.array([[xs.mean() + origin[0], ys.mean() + origin[1]]])
+            X = self.rays.backproject(cen, self.R)[0]
+            r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16, self.rays)[0] - self.rays.project(X[None])[0], axis=1)))
+            if len(xs) <= _CLUSTER_BALLS * math.pi * r_loc**2 or (rows and self._explained(img, comp, origin, rows)[0]):
+                continue
+            new = [dict(q, piece=(comp, origin)) for q in self._cluster_seeds(img, comp, origin, r_loc)]
+            got = [self._fit_one(img, q) for q in new]
+            for _ in range(_REMAINDER_ROUNDS):
+                more = self._unexplained_seeds(new, got, cluster=True)
+                if not more:
+                    break
+                new += more
+                got += [self._fit_one(img, q) for q in more]
+            found = [r for r in got if r is not None]
+            if found and self._explained(img, comp, origin, found, cluster=True)[0]:
+                # The balls of an explained cluster have their rings crossed by their
+                # neighbours, not by something joined to them (_joined_no_rim).
+                for q in new:
+                    q["cluster"] = True
+                for r in found:
+                    r["joined"] = False
+                drop = set(ks)
+                seeds = [q for k, q in enumerate(seeds) if k not in drop] + new
+                fits = [r for k, r in enumerate(fits) if k not in drop] + got
+        return seeds, fits
+
+    def _casters_only(self, img: np.ndarray, rows: list[dict], hue: bool = False) -> list[dict]:
         """``rows`` (detection rows fitted in one piece) less the sharp ones that are a cast
         shadow (:func:`_unlit`, without the lit balls' pixels) with another of the rows, no
         such shadow, within ``_CASTER_R`` radii to cast it. A lamp's shadow starts under the ball casting it, so
         seen from above ball and shadow make one piece with no waist between them, as wide
         across their join as the ball: fitted as two overlapping balls they would pass for the
         two rounded ends of a hand (:meth:`_bridged`). A fast ball's streak, whose ends carry
-        no lit crown to tell it by the waist alone, is so lost with its shadow."""
+        no lit crown to tell it by the waist alone, is so lost with its shadow. With ``hue``
+        (the rows of a cluster of touching balls, :meth:`_cluster_retry`) a shadow must also
+        keep the cloth's hue (the chromaticity distortion of its disc's mean below
+        ``_HUE_STEP``, as :func:`_cast_shadow` asks): a dark ball in a rack lies beside lit
+        balls as a shadow does, dark and, on bright cloth, with no pixel brighter than it by
+        the bound, while off the cloth's hue (a dark ball of the cloth's own hue there stays a
+        limit)."""
         if len(rows) < 2:
             return rows
         # Judged without the pixels of the lit balls: the shadow's disc reaches into its
@@ -1786,11 +1883,23 @@ class BallDetector:
         # Two balls cannot overlap: a fit whose disc the lit balls' silhouettes half cover is
         # no ball beside them, and what is left of its disc is judged, however little.
         shade = [not any(r is o for o in lit) and _unlit(*self._disc_own_pixels(img, r, lit, 0.0)) for r in rows]
+        if hue:
+            shade = [sh and self._cloth_hue(*self._disc_own_pixels(img, r, lit, 0.0)) for r, sh in zip(rows, shade)]
         if not any(shade):
             return rows
         casters = np.array([[r["x"], r["y"]] for r, s in zip(rows, shade) if not s]).reshape(-1, 2)
         return [r for r, s in zip(rows, shade)
                 if not (s and len(casters) and np.min(np.hypot(casters[:, 0] - r["x"], casters[:, 1] - r["y"])) < _CASTER_R * self.R)]
+
+    @staticmethod
+    def _cloth_hue(I: np.ndarray, B: np.ndarray) -> bool:
+        """Whether the mean of pixels ``I`` (N, 3) keeps the hue of the mean empty table ``B``
+        (N, 3) under them: chromaticity distortion (:func:`_chroma_off`) below ``_HUE_STEP``."""
+        if len(I) == 0:
+            return False
+        Im, Bm = np.asarray(I, np.float32).mean(axis=0), np.asarray(B, np.float32).mean(axis=0)
+        am = float(Im @ Bm) / max(float(Bm @ Bm), 1.0)
+        return float(_chroma_off(Im[None], Bm[None], np.array([am]))[0]) < _HUE_STEP
 
     def _drop_cast_shadows(self, img: np.ndarray, fits: list[dict | None], known: list[dict] = (), seeds: list[dict] | None = None,
                            tested: dict[int, tuple[dict, bool]] | None = None) -> list[dict | None]:
@@ -1971,13 +2080,23 @@ class BallDetector:
         sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
         grown = cv2.dilate(mask, np.ones((3, 3), np.uint8))
         h, w = comp.shape
+        # Chains of touching balls (centres within 2.25 R): labels of the graph's components.
+        chain = list(range(len(sharp)))
+        for i in range(len(sharp)):
+            for j in range(i):
+                if math.hypot(sharp[i]["x"] - sharp[j]["x"], sharp[i]["y"] - sharp[j]["y"]) <= 2.25 * self.R:
+                    old_, new_ = chain[i], chain[j]
+                    chain = [new_ if c == old_ else c for c in chain]
         for i in range(len(sharp)):
             for j in range(i + 1, len(sharp)):
                 a, b = sharp[i], sharp[j]
                 d = math.hypot(a["x"] - b["x"], a["y"] - b["y"])
                 if 1.2 * self.R < d < 2 * self.R and self._join_width(comp, origin, a, b, [r for r in rows if r is not a and r is not b] + list(shadows)) >= _JOIN_WIDTH:
                     return True
-                if d <= 2.25 * self.R:
+                if d <= 2.25 * self.R or chain[i] == chain[j]:
+                    # Touching, or joined by a chain of touching balls (two balls of a rack):
+                    # the foreground between them is the chain's balls' and the creases
+                    # between those.
                     continue
                 p, q = np.array([a["u"], a["v"]]) - origin, np.array([b["u"], b["v"]]) - origin
                 n = int(math.ceil(2 * math.hypot(*(q - p)))) + 1
@@ -2220,6 +2339,68 @@ class BallDetector:
             if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen):
                 chosen.append(p)
         return [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": occluder} for p in chosen]
+
+    def _cluster_seeds(self, img: np.ndarray, comp: np.ndarray, origin, r_px: float) -> list[dict]:
+        """Seeds of a free piece of foreground (``comp``, (h, w) uint8 at ``origin`` px) that may
+        hold touching balls: the peaks of a circle Hough transform of the frame's colour edges at
+        the ball's image radius ``r_px`` (the piece's centroid's), strongest first, as
+        :meth:`_seeds_of`'s dicts.
+
+        Each pixel of the piece (grown by 2 px for its rim) votes, weighted by its edge
+        strength, for the points ``r_px`` either way along its edge normal (the gradient
+        direction of the colour image, Di Zenzo 1986's structure tensor of the three channels,
+        after a Gaussian smoothing of 1 px): the circle Hough transform with the gradient's
+        direction (Kimme, Ballard & Sabin 1975; Ballard 1981). Both ways, as a ball's rim may be
+        darker or brighter than what lies beyond it (cloth, shadow, or a neighbour). Every
+        ball's rim, against the cloth or against a touching neighbour, so votes for its centre,
+        wherever the piece's distance transform peaks; a ball's marks, highlight and stripe
+        edges vote in rings round themselves, not for one point. Votes are smoothed by a
+        Gaussian of a tenth of the radius (at least a pixel) and kept inside the piece (a ball's
+        centre lies on its own disc); peaks are local maxima of at least
+        ``_CLUSTER_VOTE_SHARE`` of the strongest, more than 1.2 radii apart, at most two per
+        ball image of the piece's area (the fits judge them)."""
+        h, w = comp.shape
+        H, W = img.shape[:2]
+        m = int(math.ceil(r_px)) + 3
+        a0, b0 = max(origin[0] - m, 0), max(origin[1] - m, 0)
+        a1, b1 = min(origin[0] + w + m, W), min(origin[1] + h + m, H)
+        crop = cv2.GaussianBlur(img[b0:b1, a0:a1].astype(np.float32), (0, 0), 1.0)
+        gx = cv2.Sobel(crop, cv2.CV_32F, 1, 0, ksize=3) / 8.0
+        gy = cv2.Sobel(crop, cv2.CV_32F, 0, 1, ksize=3) / 8.0
+        jxx, jyy, jxy = (gx * gx).sum(axis=2), (gy * gy).sum(axis=2), (gx * gy).sum(axis=2)
+        # Largest eigenvalue of the 2 x 2 colour structure tensor and its direction.
+        mag = np.sqrt(0.5 * (jxx + jyy + np.sqrt((jxx - jyy) ** 2 + 4.0 * jxy**2)))
+        theta = 0.5 * np.arctan2(2.0 * jxy, jxx - jyy)
+        piece = np.zeros(crop.shape[:2], np.uint8)
+        piece[origin[1] - b0 : origin[1] - b0 + h, origin[0] - a0 : origin[0] - a0 + w] = comp
+        # Edge pixels: the piece grown by 2 px, stronger than a few noise sigmas of the smoothed
+        # frame (noise alone gives under one sigma of gradient after the smoothing and Sobel).
+        vote_from = (cv2.dilate(piece, np.ones((5, 5), np.uint8)) > 0) & (mag > 4.0 * max(self.background.sigma, 0.5))
+        ys, xs = np.nonzero(vote_from)
+        wgt = mag[ys, xs]
+        c, s = np.cos(theta[ys, xs]), np.sin(theta[ys, xs])
+        acc = np.zeros(crop.shape[:2], np.float32)
+        for sign in (1.0, -1.0):
+            cx = np.round(xs + sign * r_px * c).astype(int)
+            cy = np.round(ys + sign * r_px * s).astype(int)
+            ok = (cx >= 0) & (cx < acc.shape[1]) & (cy >= 0) & (cy < acc.shape[0])
+            np.add.at(acc, (cy[ok], cx[ok]), wgt[ok])
+        acc = cv2.GaussianBlur(acc, (0, 0), max(0.1 * r_px, 1.0))
+        acc[piece == 0] = 0.0
+        top = float(acc.max())
+        if top <= 0:
+            return []
+        peaks = (acc >= cv2.dilate(acc, np.ones((3, 3), np.uint8)) - 1e-6) & (acc >= _CLUSTER_VOTE_SHARE * top)
+        py, px = np.nonzero(peaks)
+        most = int(2 * comp.sum() / (math.pi * r_px**2)) + 1
+        chosen: list[np.ndarray] = []
+        for j in np.argsort(-acc[py, px]):
+            p = np.array([px[j] + a0, py[j] + b0], float)
+            if all(np.hypot(*(p - q)) > 1.2 * r_px for q in chosen):
+                chosen.append(p)
+                if len(chosen) >= most:
+                    break
+        return [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False} for p in chosen]
 
     # -- outline and fit --
     def _edges(self, img: np.ndarray, c: np.ndarray, rho_pred: np.ndarray, half_win: float, dirs: np.ndarray, shadows: bool = True):
@@ -2558,7 +2739,7 @@ class BallDetector:
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         # Marked, not refused: the fit stands while the box's pieces are explained (a fit
         # straddling two colliding balls seeds the search that finds both, and is dropped then).
-        joined = not capsule and not seed["strict"] and rms > _JOINED_RMS_MM and self._joined_no_rim(img, uv)
+        joined = not capsule and not seed["strict"] and not seed.get("cluster") and rms > _JOINED_RMS_MM and self._joined_no_rim(img, uv)
         return {
             "frame": 0,
             "t": 0.0,
