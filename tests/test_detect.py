@@ -1429,7 +1429,7 @@ def test_a_dim_rim_is_allowed_the_spread_its_noise_gives_it():
         rng = np.random.default_rng(seed)
         det = BallDetector(cam, NINE_FOOT, DetectConfig(max_rms_mm=0.3))
         det.process(0, 0.0, np.clip(cloth + rng.normal(0.0, 2.0, (h, w, 3)), 0, 255).astype(np.uint8))
-        det.background.sigma = 2.0  # the running model's measure of the frames' noise
+        det.background.sigma = det.background.chroma_sigma = 2.0  # the running model's measure of the frames' noise
         x, y = 1400.0 + 7.0 * seed, 620.0
         cover = _disc_cover(det, x, y)
         ball = cloth + 40.0 * np.array([1.0, -0.5, -0.5]) / math.sqrt(1.5)
@@ -1762,3 +1762,35 @@ def test_arm_over_or_beside_a_rack_gives_no_ball(heading_deg, bridge_mm):
         err, _ = _match(out, at)
         extra.append(len(out) - int(np.isfinite(err).sum()))
     assert sum(extra) == 0, extra
+
+
+@pytest.mark.parametrize("cloth_bgr, ball_bgr, noise", [
+    ((128, 90, 61), (43, 31, 122), 1.0),  # blue-grey cloth, dark red ball (main missed it)
+    ((40, 120, 30), (110, 40, 20), 1.0),  # green cloth, dark blue ball (main found it too)
+    pytest.param((128, 90, 61), (58, 122, 31), 1.5, marks=pytest.mark.xfail(
+        strict=True, reason="issue 3: a dark green ball on blue-grey cloth in 1.5 DN of noise: "
+        "the threshold, bounded at 3 times the chromaticity's noise (0.26), still passes too few "
+        "of the coarse outline's rays")),
+])
+def test_a_dark_ball_is_found_after_a_shadow_dims_the_whole_table(cloth_bgr, ball_bgr, noise):
+    # A player leaning over the table shades the lamps: the whole cloth dims 20 % within a
+    # second and the running model lags it, so the model's whole colour difference (its noise
+    # sigma) grows several times while the frames' noise, about 1 DN on compressed footage
+    # (the cheap camera's clip, cheapwide_25fps: 1.05 DN over 4-8 px), does not. A dark ball
+    # put down in the shade must still be found where it was drawn: within 1 mm (the
+    # renderer's pose is the truth; about half a pixel at this scale). Main, whose threshold
+    # followed that sigma (0.12 -> 0.43 in the first case), missed the first and the xfailed one.
+    cam = SETUPS["green_high"]["camera"]
+    balls = (BallLook("7", "solid", ball_bgr),)
+    at = np.array([[900.0, 500.0]])
+    det = BallDetector(cam, NINE_FOOT)
+    t = 0.0
+    for k, gain in enumerate((1.0, 1.0, 1.0, 0.93, 0.86, 0.8, 0.8, 0.8, 0.8, 0.8)):
+        ren = Renderer(NINE_FOOT, cam, Look(cloth_bgr=cloth_bgr, exposure=gain, noise_sigma=noise), balls, seed=k)
+        present = np.array([[k >= 7]])
+        out = det.process(k, t, ren.render(at[None], _rot(1), present, np.array([t])))
+        t += det.config.update_every_s
+    # The scene is the one meant: the whole difference's sigma well above the chromaticity's.
+    assert det.background.sigma > 2.0 * det.background.chroma_sigma
+    err, _ = _match(out, at)
+    assert err[0] <= 1.0, (err, out[["x", "y", "quality"]].to_numpy())

@@ -179,6 +179,23 @@ def noise_sigma(diff: np.ndarray, mask: np.ndarray) -> float:
     return float(max(sigma, 0.5))
 
 
+def chroma_sigma(image: np.ndarray, model: np.ndarray) -> float:
+    """Per-channel noise sigma (DN) that the chromaticity distortion of (N, 3) colours
+    ``image`` about (N, 3) ``model`` colours shows: Horprasert et al. (1999)'s split of each
+    colour into a brightness distortion ``a = I.M / M.M`` and the rest ``|I - a M|``; the rest
+    of isotropic normal noise of sigma per channel lies in the plane across M, a Rayleigh
+    variable of scale sigma whose median is sigma sqrt(2 ln 2) (analytic). A change of light
+    that only scales the colours (a lamp shaded by a player, a camera's gain) leaves it, unlike
+    the plain difference, unchanged. At least 0.5 DN; 2 DN for no samples."""
+    if len(image) == 0:
+        return 2.0
+    I = np.asarray(image, np.float64).reshape(-1, 3)
+    M = np.asarray(model, np.float64).reshape(-1, 3)
+    a = np.einsum("nc,nc->n", I, M) / np.maximum(np.einsum("nc,nc->n", M, M), 1.0)
+    cd = np.linalg.norm(I - a[:, None] * M, axis=1)
+    return float(max(np.median(cd) / math.sqrt(2.0 * math.log(2.0)), 0.5))
+
+
 def cloth_model(image: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig()) -> tuple[np.ndarray, float]:
     """Smooth cloth estimate (H, W, 3) float32 and the residual noise sigma (DN).
 
@@ -394,7 +411,9 @@ class Background:
 
     ``Background(frames, zone, cloth, ball_px, config)`` builds the model from one or more frames
     (per-pixel median, then :func:`clean_frame`). ``image`` is the (H, W, 3) float32 model;
-    ``sigma`` the per-channel noise sigma (DN) of frames about it; ``updates`` counts the calls
+    ``sigma`` the per-channel noise sigma (DN) of frames about it, ``chroma_sigma`` the same
+    seen in their chromaticity distortion alone (:func:`chroma_sigma`: a change of light that
+    scales the colours raises ``sigma`` only); ``updates`` counts the calls
     of :meth:`update` (what a cached copy of ``image`` is checked against); ``revised`` the
     boxes (u0, v0, u1, v1) px where the last update replaced the model outright (hidden balls
     taken out: the frame need not change there, yet they now stand out).
@@ -416,6 +435,9 @@ class Background:
         base = stack[0].astype(np.float32) if len(stack) == 1 else np.median(np.stack(stack), axis=0).astype(np.float32)
         self.image, _ = clean_frame(base, self.zone, self.cloth, self.ball_px, config)
         self.sigma = noise_sigma(stack[-1].astype(np.float32) - self.image, self.cloth)
+        idx = np.flatnonzero(self.cloth)
+        idx = idx[:: max(1, idx.size // 20000)]
+        self.chroma_sigma = chroma_sigma(stack[-1].reshape(-1, 3)[idx], self.image.reshape(-1, 3)[idx]) if idx.size else 2.0
         self._last = _as_frame(stack[-1])
         self.updates = 0
         self.revised: tuple[tuple[int, int, int, int], ...] = ()
@@ -478,6 +500,7 @@ class Background:
             resid = cur.reshape(-1, 3)[idx] - self.image.reshape(-1, 3)[idx]
             s = 1.4826 * float(np.median(np.abs(resid)))
             self.sigma = 0.8 * self.sigma + 0.2 * max(s, 0.5)
+            self.chroma_sigma = 0.8 * self.chroma_sigma + 0.2 * chroma_sigma(cur.reshape(-1, 3)[idx], self.image.reshape(-1, 3)[idx])
 
     def _context_px(self) -> int:
         """Margin (px) round a patch to be cleaned: enough cloth for the cloth model's smoothing

@@ -31,7 +31,9 @@ Method
    cells did not change (its silhouette is taken out of that region's foreground; it is refitted
    only beside a ball found there, step 5). A frame where nothing changed costs one resize.
 3. *Candidates*: pixels of the ball zone whose colour distance from the background exceeds a
-   noise-scaled threshold; 8-connected components (:func:`vision.background.components_8`). A
+   noise-scaled threshold (the running model's noise, or where a change of light that only scales
+   the colours inflates it beyond ``_LIGHT_CHANGE_RATIO`` times the noise of the chromaticity
+   distortion, that bound: :attr:`BallDetector._score_thr`); 8-connected components (:func:`vision.background.components_8`). A
    compact, convex component seeds one ball (a disc, or a capsule along its principal axis from
    its second moments when elongated by blur); a larger one (touching balls) seeds one ball per
    peak of its distance transform at least ~0.7 ball radius deep; one that reaches the edge of
@@ -341,6 +343,15 @@ _MAX_NOISE_PX = 0.5
 # let in that were 7-12 mm off along their streak agreed on 0.46-0.69 (session 10's branch
 # shadow). A three-quarter share lies between; not a published figure.
 _NOISY_MIN_SHARE = 0.75
+# The foreground threshold's noise sigma is the model's whole colour difference's, but at most
+# this many times its chromaticity distortion's (:attr:`vision.background.Background.
+# chroma_sigma`), which a change of light that only scales the colours leaves alone: in steady
+# light the ratio of the two running estimates stayed at 1.00-1.15 (lamp_50fps), 1.29-1.76
+# (dim_540p_60fps) and 1.24-2.64 (phone_wide_30fps; a codec's noise lies mostly along the
+# brightness), every 10th frame of each clip; a player's shadow over the cheap camera's table
+# (cheapwide_25fps) raised it to 5.6 (median) and 6.9, and the threshold with it from 0.12 to
+# 0.48, losing a dark red ball for the rest of the clip. 3 lies between; not a published figure.
+_LIGHT_CHANGE_RATIO = 3.0
 
 
 @dataclass(frozen=True)
@@ -1366,8 +1377,15 @@ class BallDetector:
     @property
     def _score_thr(self) -> float:
         """Ball-score threshold: ``fg_sigmas`` noise sigmas of the chromaticity distortion
-        (sigma x sqrt(2) over the cloth's brightness), at least ``fg_min_score``."""
-        return max(self.config.fg_sigmas * self.background.sigma * math.sqrt(2) / max(self._b_norm, 30.0), self.config.fg_min_score)
+        (sigma x sqrt(2) over the cloth's brightness), at least ``fg_min_score``. The sigma is
+        the model's whole colour difference's, at most ``_LIGHT_CHANGE_RATIO`` times its
+        chromaticity distortion's (:class:`vision.background.Background`): the first counts a
+        change of light that only scales the colours, which :func:`ballness` discounts (a
+        player's shadow dimmed the cheap camera's cloth by up to 17 DN and the model lagged:
+        its sigma rose from 1.3 to 7.2 DN, the chromaticity's stayed 0.8-1.1, extra clip
+        cheapwide_25fps)."""
+        sigma = min(self.background.sigma, _LIGHT_CHANGE_RATIO * self.background.chroma_sigma)
+        return max(self.config.fg_sigmas * sigma * math.sqrt(2) / max(self._b_norm, 30.0), self.config.fg_min_score)
 
     def _protect_mask(self, det: tuple[dict, ...]) -> np.ndarray:
         w, h = self.size
