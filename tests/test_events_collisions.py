@@ -273,3 +273,147 @@ def test_a_ball_unseen_at_rest_is_met_as_it_leaves_the_contact():
                           labels={"cue": ("white", "cue"), "obj": ("yellow", "solid")})
     errors = _collision_time_errors((1000.0, 600.0), (-2900.0, 900.0), detect)
     assert max(errors) <= 0.5, errors
+
+
+def _rack(n: int, gap_mm: float, apex) -> dict:
+    """Resting balls {name: (x, y) mm} of a touching rack, apex at ``apex`` facing -x: a
+    three- or six-ball triangle (rows of 1, 2[, 3]) or a nine-ball diamond (1, 2, 3, 2, 1), each
+    ball ``gap_mm`` clear of its neighbours (rows sqrt(3)/2 of a spacing apart)."""
+    rows = {3: (1, 2), 6: (1, 2, 3), 9: (1, 2, 3, 2, 1)}[n]
+    g = D + gap_mm
+    out, k = {}, 0
+    for r, count in enumerate(rows):
+        for c in range(count):
+            out[f"b{k}"] = (apex[0] + r * g * np.sqrt(3) / 2, apex[1] + (c - (count - 1) / 2) * g)
+            k += 1
+    return out
+
+
+def _rack_break(n: int, fps: float, seed: int, gap_mm: float = 0.5, speed_mm_s: float = 5000.0,
+                aim_off_mm: float = 2.0):
+    """A cue ball struck at ``speed_mm_s`` into an ``n``-ball rack (``_rack``), simulated by our
+    own simulator, sampled at ``fps`` over a half-open shutter (the mean centre of five
+    instants, a blur streak's centroid) with Gaussian noise of 0.5 mm at rest and 1.5 mm
+    moving. Returns (truth collisions (t, pair), found collisions (t, pair)), each pair's rows
+    within 1 ms counted once (as ``benchmarks/score.py`` does); truth from
+    ``railtrace.filming.truth_events``."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from railtrace.filming import ShotRecord, truth_events
+
+    balls = _rack(n, gap_mm, (1905.0, 635.0))
+    balls["cue"] = (640.0, 635.0 + aim_off_mm)
+    sim = Simulator(TABLE, PhysicsParams(), balls)
+    sim.strike(0.3, Strike("cue", speed_mm_s, 0.0, 0.0, 0.0))
+    t_rest = sim.run_until_rest(t_max=60.0)
+    traj = sim.trajectory()
+    times = np.arange(0.0, 1.3, 1.0 / fps)
+    sub = (times[:, None] + ((np.arange(5) + 0.5) / 5 - 0.5)[None, :] * 0.5 / fps).ravel()
+    s = traj.sample(np.clip(sub, 0.0, None))
+    B = len(traj.ball_ids)
+    pos = s.pos.reshape(len(times), 5, B, 2).mean(axis=1)
+    moving = np.hypot(*s.vel.reshape(len(times), 5, B, 2).mean(axis=1).transpose(2, 0, 1)) > 1.0
+    rng = np.random.default_rng(seed)
+    sig = np.where(moving, 1.5, 0.5)
+    xy = pos + rng.normal(0.0, 1.0, pos.shape) * sig[..., None]
+    det = pd.DataFrame([dict(frame=k, t=float(times[k]), x=xy[k, j, 0], y=xy[k, j, 1],
+                             sigma_mm=sig[k, j], pattern="unknown", colour="")
+                        for k in range(len(times)) for j in range(B)])
+    tracks = track(det, TABLE)
+    ev, _ = find_events(tracks, TABLE, det)
+    first = tracks[tracks["frame"] == 0]
+    name = {int(r.track): traj.ball_ids[int(np.argmin(np.hypot(*(pos[0] - [r.x, r.y]).T)))]
+            for r in first.itertuples()}
+    te = truth_events(TABLE, traj, (ShotRecord(None, 0.3, 0.0, 0.0, t_rest, balls["cue"]),))
+    te = te[(te["kind"] == "collision") & (te["t"] < times[-1])]
+
+    def once(rows):
+        out = []
+        for t, pair in sorted(rows):
+            if not any(q == pair and t - u <= 1e-3 for u, q in out):
+                out.append((t, pair))
+        return out
+    ids = traj.ball_ids
+    truth = once((float(r.t), tuple(sorted((ids[int(r.track)], ids[int(r.other)]))))
+                 for r in te.itertuples())
+    col = ev[ev["kind"] == "collision"]
+    found = once((float(r.t), tuple(sorted((name.get(int(r.track), "?"),
+                                            name.get(int(r.other), "?")))))
+                 for r in col.itertuples())
+    return truth, found
+
+
+def _unmatched(truth, found, fps):
+    """Truth contacts with no found contact of the same pair within half a frame, and found
+    contacts left over (one to one, nearest first)."""
+    left = list(found)
+    missed = []
+    for t, pair in truth:
+        near = [f for f in left if f[1] == pair and abs(f[0] - t) <= 0.5 / fps]
+        if near:
+            left.remove(min(near, key=lambda f: abs(f[0] - t)))
+        else:
+            missed.append((t, pair))
+    return missed, left
+
+
+@pytest.mark.parametrize("fps", [50.0, 60.0, 120.0])
+def test_a_break_into_a_three_ball_rack_times_every_contact(fps):
+    # A cue ball at 5 m/s into a three-ball triangle, 0.5 mm gaps: the simulator's contacts
+    # (cue-b0, b0-b1, b0-b2 within a fraction of a millisecond, then b0 back into the cue ball
+    # 1-2 ms later) must each be found within half a frame (issue 4's collision target), and
+    # no pair that never touched. Truth: our simulator (railtrace.filming.truth_events), each
+    # pair's contacts within 1 ms counted once as benchmarks/score.py counts them.
+    # Measured (branch rack's events): all found, 0.25 frame at most, no false pair.
+    for seed in (0, 1):
+        truth, found = _rack_break(3, fps, seed, aim_off_mm=(seed - 0.5) * 4)
+        assert len(truth) >= 3, truth  # the scenario: the impulse reaches both back balls
+        missed, false = _unmatched(truth, found, fps)
+        assert not missed and not false, (seed, missed, false, truth, found)
+
+
+@pytest.mark.xfail(strict=True, reason="issue 4, not solved: within a frame a six- or nine-ball "
+                   "rack's impulse reaches a ball from two neighbours at different instants, a "
+                   "later contact (0.6-0.8 frame) mixes into the departure fits, and the "
+                   "impulse split pairs the wrong touching neighbours")
+@pytest.mark.parametrize("n", [6, 9])
+def test_a_break_into_a_larger_rack_times_every_contact(n):
+    # As above with a six-ball triangle and a nine-ball diamond at 50 and 60 fps. Measured on
+    # branch rack's events (the same break in scratch, 1/2.5 mm noise, two draws each at 50,
+    # 60 and 120 fps): 6 balls 33/54 contacts found with 6 false pairs, 9 balls 54/84 with 7
+    # (a back-row ball paired with its neighbour); contacts 0.6-0.8 frame after the break's
+    # instant reported at it (up to 1.5 frames at 120 fps).
+    for fps in (50.0, 60.0):
+        truth, found = _rack_break(n, fps, seed=0)
+        missed, false = _unmatched(truth, found, fps)
+        assert not missed and not false, (fps, missed, false, truth, found)
+
+
+def test_an_impulse_is_not_split_onto_a_neighbour_at_right_angles_to_the_chain():
+    # Newton's cradle (Herrmann & Schmaelzle 1981, from memory): a ball driven at 3 m/s into a
+    # row of two touching balls stops and the last leaves at 3 m/s (equal masses, e = 1); a
+    # third ball touching the middle one at right angles to the row takes no impulse, since
+    # the middle ball is pushed only along the row. Its measured velocity change is noise of
+    # 200 mm/s across the row (sd 30 mm/s for every ball): unbounded least squares puts about
+    # 100 mm/s on that pair; the bound (``_cradle_bound``) allows it at most its slack,
+    # hypot(30, 30), while the row's impulses stay within 1 % of 3000 mm/s.
+    from scipy.optimize import nnls
+
+    from tracking.events import _cradle_bound
+
+    pos = {0: np.array([0.0, 0.0]), 1: np.array([D, 0.0]), 2: np.array([D, D]),
+           3: np.array([2 * D, 0.0])}
+    dv = {0: np.array([-3000.0, 0.0]), 1: np.zeros(2), 2: np.array([0.0, 200.0]),
+          3: np.array([3000.0, 0.0])}
+    sd = dict.fromkeys(pos, 30.0)
+    pairs = [(0, 1), (1, 2), (1, 3)]
+    A = np.zeros((8, 3))  # as in _Finder.cluster: +n / sd on the first ball, -n / sd on the second
+    for e, (i, j) in enumerate(pairs):
+        n = (pos[i] - pos[j]) / np.hypot(*(pos[i] - pos[j]))
+        A[2 * i:2 * i + 2, e] = n / sd[i]
+        A[2 * j:2 * j + 2, e] = -n / sd[j]
+    y = np.concatenate([dv[k] / sd[k] for k in range(4)])
+    J0, _ = nnls(A, y)
+    assert J0[1] > 80.0  # the scenario: least squares alone splits the noise onto (1, 2)
+    J = _cradle_bound(J0, A, y, 0, np.array([3000.0, 0.0]), pairs, pos, sd)
+    assert J[1] <= np.hypot(30.0, 30.0) + 1e-6, J
+    assert np.allclose(J[[0, 2]], 3000.0, rtol=0.01), J

@@ -153,7 +153,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from scipy.optimize import minimize_scalar, nnls
+from scipy.optimize import LinearConstraint, minimize, minimize_scalar, nnls
 from scipy.stats import chi2, truncnorm
 
 from vision.table import RAILS, TableSpec, cushion_angles, rail_inward_normal
@@ -2509,7 +2509,9 @@ class _Finder:
         (centres within a diameter plus ``collision_margin_mm`` on the approach fits), with
         ``J_e >= 0`` and ``s_ke = +1 / -1`` for the pair's first / second ball; the ``J_e``
         are solved by non-negative least squares (Lawson & Hanson 1974, ``scipy.optimize.nnls``)
-        with each ball's equations weighted by the standard error of its ``dv``. A pair is a
+        with each ball's equations weighted by the standard error of its ``dv``, each bounded
+        by the impulse that can reach its pair (``_cradle_bound``: a later contact's impulse in
+        a ball's departure fit otherwise goes to a touching neighbour it never pushed). A pair is a
         collision where its impulse exceeds ``min_velocity_change_mm_s`` and
         ``collision_impulse_sigmas`` standard errors (from the active pairs' normal equations).
         Its time is the pair's own approach touch, else ``t_c`` (balls at rest in contact pass
@@ -2571,6 +2573,7 @@ class _Finder:
             A[row_of[i]:row_of[i] + 2, e] = n / sd[i]
             A[row_of[j]:row_of[j] + 2, e] = -n / sd[j]
         J, _ = nnls(A, y)
+        J = _cradle_bound(J, A, y, driver, fits[driver][0].vel(t_c), pairs, pos, sd)
         active = J > 0
         se = np.full(len(pairs), np.inf)
         if active.any():
@@ -2828,6 +2831,52 @@ class _Finder:
         tau, name, p, v = best
         return _row(ts[-1] + tau, "pocket", b.track, p, speed_in=float(np.hypot(*v)),
                     speed_out=math.nan, pocket=name)
+
+
+def _cradle_bound(J0: np.ndarray, A: np.ndarray, y: np.ndarray, driver: int,
+                  v_driver: np.ndarray, pairs: list[tuple[int, int]], pos: dict, sd: dict
+                  ) -> np.ndarray:
+    """The cluster's pair impulses (E,) mm/s, least squares ``|A J - y|`` with each bounded by
+    what can reach the pair: ``J_ij <= P_i(j) + P_j(i) + sqrt(sd_i^2 + sd_j^2)``.
+
+    Method: an impact of equal smooth spheres closing at w along their line of centres
+    exchanges (1 + e) / 2 w <= w per unit mass (Newton's restitution law with momentum
+    conservation; Alciatore 2004). Every ball but the driven one starts at rest and is pushed
+    only along the lines of its contacts, so its speed toward a neighbour j is at most
+    ``P_i(j) = sum_m max(0, n_(m->i) . n_(i->j)) J_mi`` (plus the driven ball's approach
+    speed toward j): impulse travels through a touching chain only as far as it is passed on,
+    as in a row of touching balls struck at one end (Newton's cradle; Herrmann & Schmaelzle
+    1981, Am. J. Phys. 49, 761, from memory). ``sd`` (mm/s, each ball's velocity-change
+    standard error) is the slack for the measured impulses. ``J0``: the unbounded solution
+    (``nnls``), returned where it keeps every bound.
+    """
+    E = len(pairs)
+    idx = {p: e for e, p in enumerate(pairs)}
+
+    def unit(a: int, b: int) -> np.ndarray:  # a -> b
+        u = pos[b] - pos[a]
+        return u / max(float(np.hypot(*u)), 1e-12)
+    G = np.zeros((E, E))  # bound_e = G[e] @ J + c[e]
+    c = np.zeros(E)
+    for e, (i, j) in enumerate(pairs):
+        c[e] = math.hypot(sd[i], sd[j])
+        for a, b in ((i, j), (j, i)):
+            n_ab = unit(a, b)
+            if a == driver:
+                c[e] += max(0.0, float(np.asarray(v_driver, float) @ n_ab))
+            for f, (k, m) in enumerate(pairs):
+                if f == e or a not in (k, m):
+                    continue
+                other = m if k == a else k
+                G[e, f] += max(0.0, float(unit(other, a) @ n_ab))
+    M = np.eye(E) - G  # M J <= c
+    if np.all(M @ J0 <= c + 1e-9):
+        return J0
+    res = minimize(lambda J: float(np.sum((A @ J - y) ** 2)), J0 * 0.0,
+                   jac=lambda J: 2.0 * A.T @ (A @ J - y), method="SLSQP",
+                   bounds=[(0.0, None)] * E,
+                   constraints=[LinearConstraint(M, -np.inf, c)])
+    return np.maximum(res.x, 0.0) if res.success else J0
 
 
 def _impulse_sigmas(fits: tuple["_Fit", "_Fit", "_Fit", "_Fit"], t_c: float) -> float:
