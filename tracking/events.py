@@ -1083,8 +1083,7 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
             fast.append((a, b))
     ball.moves = ball.fast = fast
     ball.sigma, ball.sigma_fit = _noise_sigma(ball, cfg)
-    rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, fast)), cfg.min_rest_s,
-                            piece_end)
+    rest, tested = _rest_windows(ball, cfg, piece_end)
     # Last row of each row's rest window.
     w_end = np.searchsorted(ball.t, ball.t + cfg.min_rest_s + 1e-9, side="right") - 1
     merged: list[tuple[int, int]] = []
@@ -1106,6 +1105,13 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     ball.moves = merged
 
 
+def _rest_windows(ball: _Ball, cfg: EventConfig, piece_end: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``_resting`` of ``ball`` once ``_motion`` has set its noise and fast stretches: windows of
+    ``min_rest_s`` within each stay (``piece_end``, each row's stay's last row), tested against
+    the larger of the ball's noise and its still scatter (``_still_sigma``)."""
+    return _resting(ball, max(ball.sigma, _still_sigma(ball, ball.fast)), cfg.min_rest_s, piece_end)
+
+
 def _found_rolling(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> list[tuple[int, int]]:
     """Stays of ``ball`` with no motion (``_motion``) that begin with the ball rolling and end
     at rest: (first row, row before the rest) index ranges. Such a stay's first tested rest
@@ -1117,8 +1123,7 @@ def _found_rolling(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> list[tu
     if len(ball.t) < 2:
         return []
     firsts, lasts, piece_end = _stays(ball, diameter_mm)
-    rest, tested = _resting(ball, max(ball.sigma, _still_sigma(ball, ball.fast)), cfg.min_rest_s,
-                            piece_end)
+    rest, tested = _rest_windows(ball, cfg, piece_end)
     out = []
     for p0, p1 in zip(firsts, lasts):
         if any(p0 <= i0 <= p1 for i0, _ in ball.moves):

@@ -1305,11 +1305,15 @@ class _SightOffsets:
         d = np.zeros(5) if d_table is None else np.asarray(d_table[:5], float).copy()
         d[4] += params[-2]
         d[3] += params[-1]
-        t = _table_varied(table, d)
-        return np.array([[x, y, t.rail_top_height_mm] for _, _, (x, y) in t.sights()])[self.idx]
+        return _sight_points(_table_varied(table, d), self.idx)
 
     def prior(self, params: np.ndarray) -> np.ndarray:
         return np.array([params[-2] / self.sd_mm[0], params[-1] / self.sd_mm[1]]) * self.unit_px
+
+
+def _sight_points(table: TableSpec, idx: np.ndarray) -> np.ndarray:
+    """(M, 3) table points (mm) of ``table.sights()``' entries ``idx``, at rail-top height."""
+    return np.array([[x, y, table.rail_top_height_mm] for _, _, (x, y) in table.sights()])[idx]
 
 
 def _sight_index(table: TableSpec, sights_mm: np.ndarray) -> np.ndarray:
@@ -1454,7 +1458,7 @@ def _uncertainty(x: np.ndarray, cam_of, noses, sights_px: np.ndarray, sights_mm:
         if offsets is not None:
             smm = offsets.points(table, theta, nu)
         else:
-            smm = np.array([[x_, y_, t.rail_top_height_mm] for _, _, (x_, y_) in t.sights()])[sight_idx] if len(sight_idx) else sights_mm
+            smm = _sight_points(t, sight_idx) if len(sight_idx) else sights_mm
         cam = cam_of(theta)
         out = [(off * scale + nu[5] + nu[6 + RAIL_SIDES.index(rail)]) * (nose_w or {}).get(rail, 1.0)
                for rail, off, scale in _rails_offsets_mm(cam, noses, t, memo)]

@@ -937,6 +937,17 @@ def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.n
     return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
 
 
+def _free_pieces(seeds: list[dict], fits: list[dict | None] | None = None) -> dict[int, tuple[np.ndarray, tuple[int, int], list[int]]]:
+    """The free pieces of foreground the seeds came from (seeds with ``piece``), by the piece's
+    id: (component, origin px, indices of its seeds), with ``fits`` only the seeds fitted."""
+    pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
+    for k, s in enumerate(seeds):
+        if "piece" in s and (fits is None or fits[k] is not None):
+            comp, origin = s["piece"]
+            pieces.setdefault(id(comp), (comp, origin, []))[2].append(k)
+    return pieces
+
+
 def _cast_shadow(I: np.ndarray, B: np.ndarray) -> bool:
     """Whether a disc's pixels ``I`` (N, 3) over the empty table ``B`` (N, 3) are the cloth in
     a cast shadow rather than a ball: the mean colour is the mean empty table's scaled down
@@ -957,9 +968,18 @@ def _cast_shadow(I: np.ndarray, B: np.ndarray) -> bool:
     a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
     if float(a.max()) > 1.15:
         return False
-    Im, Bm = I.mean(axis=0), B.mean(axis=0)
+    am, same_hue = _mean_brightness_hue(I, B)
+    return am < 1.0 / _SAME_BRIGHT and same_hue
+
+
+def _mean_brightness_hue(I: np.ndarray, B: np.ndarray) -> tuple[float, bool]:
+    """(brightness ratio, hue kept) of the mean of pixels ``I`` (N, 3, N >= 1) over the mean
+    empty table ``B`` (N, 3) under them: the brightness distortion of the means and whether
+    their chromaticity distortion (:func:`_chroma_off`) lies below ``_HUE_STEP`` (Horprasert,
+    Harwood & Davis 1999)."""
+    Im, Bm = np.asarray(I, np.float32).mean(axis=0), np.asarray(B, np.float32).mean(axis=0)
     am = float(Im @ Bm) / max(float(Bm @ Bm), 1.0)
-    return am < 1.0 / _SAME_BRIGHT and float(_chroma_off(Im[None], Bm[None], np.array([am]))[0]) < _HUE_STEP
+    return am, float(_chroma_off(Im[None], Bm[None], np.array([am]))[0]) < _HUE_STEP
 
 
 def _unlit(I: np.ndarray, B: np.ndarray) -> bool:
@@ -1538,12 +1558,7 @@ class BallDetector:
         blocked = self._blocked(lab, stats, reaching)
         self._mark_beside(lab, blocked, free)
         fits = [self._fit_one(img, s) if self._worth_fitting(img, s) else None for s in seeds]
-        for _ in range(_REMAINDER_ROUNDS):
-            more = self._unexplained_seeds(seeds, fits)
-            if not more:
-                break
-            seeds += more
-            fits += [self._fit_one(img, s) for s in more]
+        self._fit_remainder(img, seeds, fits)
         seeds, fits = self._cluster_retry(img, seeds, fits)
         fits = self._free_occluders(img, seeds, fits)
         tested: dict[int, tuple[dict, bool]] = {}  # rows' shadow tests, for the second pass
@@ -1687,6 +1702,17 @@ class BallDetector:
             r = self._fit_seed(img, s, shadows=False, avoid=avoid)
         return r
 
+    def _fit_remainder(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None], cluster: bool = False) -> None:
+        """Extend ``seeds`` and ``fits`` (parallel lists, in place) by up to
+        ``_REMAINDER_ROUNDS`` rounds of seeds where the fits leave their piece unexplained
+        (:meth:`_unexplained_seeds`, ``cluster`` passed on) and those seeds' fits."""
+        for _ in range(_REMAINDER_ROUNDS):
+            more = self._unexplained_seeds(seeds, fits, cluster=cluster)
+            if not more:
+                break
+            seeds += more
+            fits += [self._fit_one(img, q) for q in more]
+
     def _unexplained_seeds(self, seeds: list[dict], fits: list[dict | None], cluster: bool = False) -> list[dict]:
         """New seeds where a free piece of foreground (not reaching in over the rail) is not
         explained by the balls fitted in it: the piece less the fitted balls' silhouettes (grown
@@ -1764,11 +1790,7 @@ class BallDetector:
         a ball that no fit explains (one of the limits below) is refitted so too, and so is a
         piece in which two fitted balls that do not touch are joined by foreground
         (:meth:`_bridged`: a hand's two rounded ends)."""
-        pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
-        for k, s in enumerate(seeds):
-            if "piece" in s and fits[k] is not None:
-                comp, origin = s["piece"]
-                pieces.setdefault(id(comp), (comp, origin, []))[2].append(k)
+        pieces = _free_pieces(seeds, fits)
         if not pieces:
             return fits
         out = list(fits)
@@ -1834,31 +1856,19 @@ class BallDetector:
         distance transform peaks at its middle), so its distance-transform seeds fall between
         balls and fit circles straddling two or three of them, which leave parts of those
         unexplained and overlap the balls fitted beside them."""
-        pieces: dict[int, tuple[np.ndarray, tuple[int, int], list[int]]] = {}
-        for k, s in enumerate(seeds):
-            if "piece" in s:
-                comp, origin = s["piece"]
-                pieces.setdefault(id(comp), (comp, origin, []))[2].append(k)
-        for comp, origin, ks in pieces.values():
+        for comp, origin, ks in _free_pieces(seeds).values():
             rows = [fits[k] for k in ks if fits[k] is not None]
             if any(seeds[k]["half_px"] > 0 for k in ks) or any(r["blur_x"] or r["blur_y"] for r in rows):
                 continue  # a streak: no cluster of resting balls
             if any(seeds[k].get("beside") for k in ks):
                 continue  # within reach of an arm coming in over the rail: judged as touching it
             ys, xs = np.nonzero(comp)
-            cen = np.array([[xs.mean() + origin[0], ys.mean() + origin[1]]])
-            X = self.rays.backproject(cen, self.R)[0]
-            r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16, self.rays)[0] - self.rays.project(X[None])[0], axis=1)))
+            r_loc = self._image_radius_px(np.array([xs.mean() + origin[0], ys.mean() + origin[1]]))
             if len(xs) <= _CLUSTER_BALLS * math.pi * r_loc**2 or (rows and self._explained(img, comp, origin, rows)[0]):
                 continue
             new = [dict(q, piece=(comp, origin)) for q in self._cluster_seeds(img, comp, origin, r_loc)]
             got = [self._fit_one(img, q) for q in new]
-            for _ in range(_REMAINDER_ROUNDS):
-                more = self._unexplained_seeds(new, got, cluster=True)
-                if not more:
-                    break
-                new += more
-                got += [self._fit_one(img, q) for q in more]
+            self._fit_remainder(img, new, got, cluster=True)
             found = [r for r in got if r is not None]
             if found and self._explained(img, comp, origin, found, cluster=True)[0]:
                 # The balls of an explained cluster have their rings crossed by their
@@ -1913,11 +1923,7 @@ class BallDetector:
     def _cloth_hue(I: np.ndarray, B: np.ndarray) -> bool:
         """Whether the mean of pixels ``I`` (N, 3) keeps the hue of the mean empty table ``B``
         (N, 3) under them: chromaticity distortion (:func:`_chroma_off`) below ``_HUE_STEP``."""
-        if len(I) == 0:
-            return False
-        Im, Bm = np.asarray(I, np.float32).mean(axis=0), np.asarray(B, np.float32).mean(axis=0)
-        am = float(Im @ Bm) / max(float(Bm @ Bm), 1.0)
-        return float(_chroma_off(Im[None], Bm[None], np.array([am]))[0]) < _HUE_STEP
+        return len(I) > 0 and _mean_brightness_hue(I, B)[1]
 
     def _drop_cast_shadows(self, img: np.ndarray, fits: list[dict | None], known: list[dict] = (), seeds: list[dict] | None = None,
                            tested: dict[int, tuple[dict, bool]] | None = None) -> list[dict | None]:
@@ -2304,12 +2310,17 @@ class BallDetector:
             return cv2.resize(img, self._half_size, interpolation=cv2.INTER_AREA)[b0:b1, a0:a1]
         return cv2.resize(img[2 * b0 : 2 * b1, 2 * a0 : 2 * a1], (a1 - a0, b1 - b0), interpolation=cv2.INTER_AREA)
 
+    def _image_radius_px(self, uv: np.ndarray) -> float:
+        """Mean radius (px) of the image of a ball whose centre's image is ``uv`` (2,) px: its
+        silhouette (:func:`sphere_outline_px`, 16 rays) about its centre's projection."""
+        X = self.rays.backproject(np.asarray(uv, float)[None], self.R)[0]
+        return float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16, self.rays)[0] - self.rays.project(X[None])[0], axis=1)))
+
     def _seeds_of(self, comp: np.ndarray, pts: np.ndarray, origin, occluder: bool) -> list[dict]:
         """Seeds (image centre, half streak px along a unit axis, strict flag) of one component."""
         a = len(pts)
         cen = pts.mean(axis=0)
-        X = self.rays.backproject(cen[None], self.R)[0]
-        r_loc = float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16, self.rays)[0] - self.rays.project(X[None])[0], axis=1)))
+        r_loc = self._image_radius_px(cen)
         area_ball = math.pi * r_loc**2
         if not occluder and a <= 6 * area_ball:
             cov = np.cov((pts - cen).T) if a > 2 else np.eye(2)
