@@ -1856,6 +1856,9 @@ class BallDetector:
         distance transform peaks at its middle), so its distance-transform seeds fall between
         balls and fit circles straddling two or three of them, which leave parts of those
         unexplained and overlap the balls fitted beside them."""
+        drop: set[int] = set()
+        new_seeds: list[dict] = []
+        new_fits: list[dict | None] = []
         for comp, origin, ks in _free_pieces(seeds).values():
             rows = [fits[k] for k in ks if fits[k] is not None]
             if any(seeds[k]["half_px"] > 0 for k in ks) or any(r["blur_x"] or r["blur_y"] for r in rows):
@@ -1877,9 +1880,14 @@ class BallDetector:
                     q["cluster"] = True
                 for r in found:
                     r["joined"] = False
-                drop = set(ks)
-                seeds = [q for k, q in enumerate(seeds) if k not in drop] + new
-                fits = [r for k, r in enumerate(fits) if k not in drop] + got
+                # Replaced after the loop: the other pieces' indices point into these lists.
+                drop.update(ks)
+                new_seeds += new
+                new_fits += got
+        if not drop:
+            return seeds, fits
+        seeds = [q for k, q in enumerate(seeds) if k not in drop] + new_seeds
+        fits = [r for k, r in enumerate(fits) if k not in drop] + new_fits
         return seeds, fits
 
     def _casters_only(self, img: np.ndarray, rows: list[dict], hue: bool = False) -> list[dict]:
