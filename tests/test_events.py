@@ -1275,9 +1275,9 @@ def test_open_shutter_exposure_averages_at_25fps_keep_cushion_measures_within_ta
     # Mathavan, Jackson & Parkin 2010), each detection the mean of 41 instants across the
     # frame interval plus 0.3 mm of noise. Against the simulator's own contacts (visible ones:
     # normal speed in over 100 mm/s), the medians meet the targets (speed 3 %,
-    # restitution 0.03, time 0.25 frame), the exposure model aside: measured 0.81 %, 0.018 and
-    # 0.013-0.023 frame over these 51 contacts, and 0.78 %, 0.019 with a shutter of 1/50 of
-    # the frame (the same shots sampled at an instant).
+    # restitution 0.03, time 0.25 frame), the exposure model aside: measured 0.81 % and 0.018
+    # over these 51 contacts (time 0.013-0.023 frame per seed), and 0.78 %, 0.019 with a
+    # shutter of 1/50 of the frame (the same shots sampled at an instant).
     from benchmarks.event_accuracy import detections, random_shots, simulate, truth_events
 
     fps = 25.0
@@ -1294,7 +1294,8 @@ def test_open_shutter_exposure_averages_at_25fps_keep_cushion_measures_within_ta
             ev, _ = find_events(track(det, shot.table), shot.table, det)
             found = _only(ev, "cushion")
             for _, tr in truth.iterrows():
-                near = found[(found["rail"] == tr["rail"]) & ((found["t"] - tr["t"]).abs() < 0.5 / fps)]
+                near = found[(found["rail"] == tr["rail"])
+                             & ((found["t"] - tr["t"]).abs() < 0.5 / fps)]
                 assert len(near) == 1, (shot.label, tr["t"], found[["t", "rail"]].to_dict("records"))
                 got = near.iloc[0]
                 if np.isfinite(got["restitution"]):
