@@ -119,7 +119,8 @@ Method
   back the old id (``Tracker._rested_here``).
 * Offline, a ball lost while moving (seen with more doubt moving than at rest, so that its
   next detections after a gap start a new track) keeps its id when the new track
-  appears moving within ``coast_s``, within what the old ball's speed covers in the gap, with
+  appears within ``coast_s``, within what the old ball's speed covers in the gap plus a
+  diameter, at any speed (a ball only slows between contacts), with
   the same known identity, and no other lost ball qualifies (``Tracker._resumed_ids``); hands
   and cues are left out before that test. The frames it was lost for get estimated rows
   (seen 0) along the chord between its ends (``Tracker._resumed_gap``).
@@ -188,6 +189,11 @@ class TrackerConfig:
     jump; a ball rolling faster than ``respot_rest_speed_mm_s`` and missed in the last frame
     needs ``label_min_quality``, as ``Tracker._sure_quality`` lowers it). ``pocket_reach_mm``:
     a track last seen within this of a pocket mouth ended in the pocket.
+    ``rest_speed_mm_s``: filtered speed below which a ball coasting unseen lies still where it
+    was, so that a detection on its spot is a duplicate of it and starts no track (above the
+    speed noise of a resting track, 20-30 mm/s with 1 mm detections and up to 40 mm/s at the
+    end of a rest stretch: the events' ``EventConfig.rest_speed_mm_s``); one rolling unseen
+    holds no spot (``Tracker.step``).
     ``respot_rest_speed_mm_s``: a new track confirmed while it and every ball seen in that frame
     are slower than this (filtered speed) is a ball put down by hand, and may take back the id
     of the ball it was (see ``Tracker``); the events' ``move_speed_mm_s`` scale, above the
@@ -234,6 +240,7 @@ class TrackerConfig:
     tentative_max_misses: int = 2
     birth_min_quality: float = 0.3
     pocket_reach_mm: float = 120.0
+    rest_speed_mm_s: float = 50.0
     respot_rest_speed_mm_s: float = 150.0
     respot_settle_s: float = 1.0
     label_min_quality: float = 0.5
@@ -243,7 +250,8 @@ class TrackerConfig:
 
     def __post_init__(self) -> None:
         for name in ("meas_sigma_mm", "min_meas_sigma_mm", "accel_sigma_mm_s2", "initial_speed_sigma_mm_s",
-                     "max_speed_mm_s", "coast_s", "pocket_reach_mm", "respot_rest_speed_mm_s",
+                     "max_speed_mm_s", "coast_s", "pocket_reach_mm", "rest_speed_mm_s",
+                     "respot_rest_speed_mm_s",
                      "respot_settle_s"):
             value = getattr(self, name)
             if not (math.isfinite(value) and value > 0):
@@ -518,9 +526,14 @@ class Tracker:
             self._confirm(tr, frame)
         self._live = live = [tr for tr in live if tr.ended is None]
 
-        # New tentative tracks from detections no track took, unless they sit on a live ball
-        # (a duplicate detection of it).
-        occupied = np.array([tr.xs[-1][0::2] for tr in live if tr.frames[-1] == frame])
+        # New tentative tracks from detections no track took, unless they sit on a ball seen
+        # in this frame or lying still unseen (a duplicate detection of it). A ball coasting
+        # unseen while it rolls does not hold its predicted spot: a detection there that it
+        # could not take (too doubtful after a gap, ``_assign``) is as likely that ball found
+        # again, which, as a track of its own, keeps its id offline (``_resumed_ids``).
+        occupied = np.array([tr.xs[-1][0::2] for tr in live if tr.frames[-1] == frame
+                             and (tr.seen[-1] or math.hypot(tr.xs[-1][1], tr.xs[-1][3])
+                                  < self.config.rest_speed_mm_s)])
         order = sorted(np.flatnonzero(free), key=lambda j: (Z[j, 0], Z[j, 1]))
         for j in order:
             if quality[j] < self.config.birth_min_quality:
@@ -648,14 +661,19 @@ class Tracker:
         for five frames after a collision, found again at quality 0.21-0.36 against 0.57 at
         rest). The new track
         is that ball (one ball, one id: ``shared/spec/results-format.md``) when its own motion
-        and labels say so: it appears moving (smoothed speed at its first detection at least
-        ``respot_rest_speed_mm_s``) within ``coast_s`` (the longest a track coasts unseen) of
-        the old id's last detection, at which the old ball was moving too and not at a pocket,
-        no farther from that detection than the old ball's speed there covers in the gap plus
+        and labels say so: it appears, at any speed, within ``coast_s`` (the longest a track
+        coasts unseen) of the old id's last detection, at which the old ball was not at a
+        pocket, no farther from that detection than the old ball's speed there covers in the
+        gap plus
         a diameter (on the cloth a ball only slows between contacts, Alciatore 2004; a
         collision turns it without speeding it up unless the other ball was the faster, a case
         left to a new id; the diameter is the slack a strike from rest gets in
-        ``tracking.events._respots``), and with the same known
+        ``tracking.events._respots``; a ball lost rolling slowly is found slower still, or at
+        rest where it stopped, so neither speed is bounded below: cheapwide_25fps of
+        ``benchmarks/analyse_accuracy.py --extra``, the 14 stripe lost at 0.1 m/s for six
+        frames and found again at 72 mm/s, quality 0.37-0.39 under its sure 0.45, was two ids;
+        a ball lost at rest is found within the diameter, where no other ball can be), and
+        with the same known
         identity (the cue ball; or an object ball of the same pattern, solid or stripe, and the
         same colour), of which exactly one old id qualifies (Wojke, Bewley & Paulus 2017:
         appearance recovers an identity after a gap). A hand cannot take an id so: it does not
@@ -682,7 +700,7 @@ class Tracker:
         for tid in sorted(pieces, key=lambda i: first[i][0].times[0]):
             tr, xs = first[tid]
             who = identity(tr)
-            if who is None or float(np.hypot(xs[0, 1], xs[0, 3])) < cfg.respot_rest_speed_mm_s:
+            if who is None:
                 continue
             t_new, z_new = tr.times[0], np.asarray(tr.zs[0], dtype=float)
             cands = []
@@ -694,8 +712,7 @@ class Tracker:
                     continue
                 v_old = float(np.hypot(oxs[k, 1], oxs[k, 3]))
                 z_old = np.asarray(otr.zs[k], dtype=float)
-                if v_old >= cfg.respot_rest_speed_mm_s and float(np.hypot(*(z_new - z_old))) \
-                        <= v_old * gap + self.table.ball_diameter_mm:
+                if float(np.hypot(*(z_new - z_old))) <= v_old * gap + self.table.ball_diameter_mm:
                     cands.append(old)
             if len(cands) == 1:
                 out[tid] = out.get(cands[0], cands[0])
