@@ -1092,6 +1092,8 @@ class Tracker:
         R = sigma**2 * np.eye(2)
         z = np.asarray(z, dtype=float)
         brk = False
+        # Seen again where it rested, by the rest stage or in its resting gate (`_predict`).
+        at_rest = tr.rest_spot is not None and hyp in ("rest", "predict")
         if (pred["unseen_s"] > self._reid_s
                 and math.hypot(z[0] - pred["x"][0], z[1] - pred["x"][2]) > self.table.ball_diameter_mm):
             # Found again by its labels after a long gap (``_assign``) and not where it would
@@ -1101,7 +1103,7 @@ class Tracker:
             # near its prediction (out from under a cue) keeps the filter's velocity.
             tr.x, tr.P = _restarted(z, np.zeros(2), R[0, 0], self.config.initial_speed_sigma_mm_s)
             brk = True
-        elif hyp == "rest" or (hyp == "predict" and tr.rest_spot is not None):
+        elif at_rest:
             # Seen again where it rested (`_claim_rest_spots`): it has lain still all along, so
             # its prior is the state it was last seen in (`_predict`). A detection beyond that
             # state's maneuver gate is the detector's error moving (a shadow, or a blur beside
@@ -1132,8 +1134,7 @@ class Tracker:
                 tr.x, tr.P = _kalman_update(tr.kf, x, P, z, R)
         # The restart of a ball seen again where it rested is the detector's, not a turn of
         # the ball's course: the hand test (`_course_breaks`) must not count it.
-        odd = self._stated_update(tr, pred, z, stated, brk) and not (
-            hyp in ("rest", "predict") and tr.rest_spot is not None)
+        odd = self._stated_update(tr, pred, z, stated, brk) and not at_rest
         # One detection off the cushion places the ball but does not measure its new velocity;
         # two in a row do, and from then on the ball is followed, not lost at the contact.
         if tr.misses == 0:
