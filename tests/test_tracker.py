@@ -1244,3 +1244,81 @@ def test_dim_rolling_ball_is_not_turned_onto_a_doubtful_dark_read_beside_it(read
     k = rows.index.to_numpy()
     err = np.hypot(rows["x"].to_numpy() - truth[k, 0], rows["y"].to_numpy() - truth[k, 1])
     assert err.max() < 25.0 / 3, (k[np.argmax(err)], err.max())
+
+
+@pytest.mark.parametrize("hidden", [3, 4, 6])
+@pytest.mark.parametrize("shift_mm", [(0.0, 0.0), (-8.6, 1.6)])
+def test_resting_ball_hidden_by_a_passing_ball_keeps_its_track(hidden, shift_mm):
+    # A black solid rests while another ball rolls past it at 1.2 m/s, its centre 75 mm away
+    # (no contact: centres a diameter, 57 mm, apart at contact). At 30 fps with an open
+    # shutter the passing ball's streak covers the resting one for `hidden` frames; seen
+    # again, it is read with more doubt than before (quality 0.39 against 0.41-0.47: the
+    # streak's codec smear) and, after a shift of the detector's error, up to 8.7 mm from
+    # where it was seen before (phone_wide_30fps of benchmarks/analyse_accuracy.py --extra:
+    # 8.6 mm). A ball at rest stays put until something strikes it (Newton's first law) and
+    # two balls cannot lie within a radius of one spot, so what is seen there is that ball:
+    # one id for it, followed in every frame it is detected (issue "Follow every ball":
+    # identity switches none), and the passing ball keeps its own id.
+    fps = 30.0
+    times = np.arange(int(2.0 * fps)) / fps
+    spot = np.array([1700.0, 820.0])
+    k0 = 30
+    rest = _still(tuple(spot))
+    # Rolling at 1.2 m/s along x, 75 mm below the spot, beside it at frame k0 + hidden // 2.
+    t_by = times[k0 + hidden // 2]
+    passing = decel_path((spot[0] - 1200.0 * t_by, spot[1] - 75.0), 0.0, 1200.0, 1e-6)
+    rng = np.random.default_rng(60 + hidden)
+    det = detections({"rest": rest, "pass": passing}, times, rng, noise_mm=0.3,
+                     labels={"rest": ("black", "solid"), "pass": ("red", "stripe")},
+                     gaps=[("rest", k0, k0 + hidden - 1)])
+    is_rest = det["truth"] == "rest"
+    before, after = is_rest & (det["frame"] < k0), is_rest & (det["frame"] >= k0 + hidden)
+    det.loc[before, "quality"] = np.linspace(0.41, 0.47, int(before.sum()))
+    det.loc[after, "quality"] = 0.39
+    det.loc[after, "x"] += shift_mm[0]
+    det.loc[after, "y"] += shift_mm[1]
+    tr = track(det, TABLE)
+    ids, errs = match_tracks(tr, {"rest": rest, "pass": passing}, times)
+    assert ids["rest"] != ids["pass"]
+    near = tr[np.hypot(tr["x"] - spot[0], tr["y"] - spot[1]) < R]
+    assert set(near["track"]) == {ids["rest"]}, near.groupby("track")["frame"].agg(["min", "max"])
+    mine = tr[tr["track"] == ids["rest"]]
+    seen = set(mine.loc[mine["seen"] == 1, "frame"])
+    assert seen == set(det.loc[is_rest, "frame"]), sorted(set(det.loc[is_rest, "frame"]) - seen)
+    # Where it is seen again it stays at rest: the detector's shift is no speed (over one
+    # frame 8.7 mm would read 260 mm/s, a ball set moving by the events' move speed, 150 mm/s).
+    late = mine[mine["frame"] >= k0]
+    speed = np.hypot(late["vx"], late["vy"]).to_numpy()
+    assert speed.max() < EventConfig().move_speed_mm_s, speed.max()
+    # The passing ball is followed all along, within the noise's reach (0.3 mm).
+    assert np.max(errs["pass"]) < 3.0 and len(tr[tr["track"] == ids["pass"]]) == len(times)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2, 3])
+def test_a_ball_at_rest_does_not_jump_onto_the_ball_leaving_it(seed):
+    # A ball rolls gently away (200 mm/s) from a black solid it has just touched. In one frame
+    # the resting ball is missed and the leaving one is seen 6 mm off its course (the
+    # detector's error beside another ball; 2 mm noise otherwise, a moving ball's) and read as
+    # the black solid (a doubtful label, wrong as labels near a contact often are). That
+    # detection lies in the leaving ball's gate, nearer to where it was than to the resting
+    # ball: the resting ball could reach it only through the other (balls cannot pass through
+    # each other), so each keeps its own id (issue "Follow every ball": identity switches
+    # none).
+    fps = 30.0
+    times = np.arange(int(1.5 * fps)) / fps
+    spot = np.array([1200.0, 600.0])
+    rest = _still(tuple(spot))
+    leave = decel_path(tuple(spot + np.array([-D - 1.0, 0.0])), 150.0, 200.0, 1e-6)
+    det = detections({"rest": rest, "leave": leave}, times, np.random.default_rng(70 + seed),
+                     noise_mm=2.0, labels={"rest": ("black", "solid"),
+                                           "leave": ("red", "stripe")})
+    k = 8
+    det = det[~((det["truth"] == "rest") & (det["frame"] == k))].reset_index(drop=True)
+    odd = (det["truth"] == "leave") & (det["frame"] == k)
+    det.loc[odd, "y"] += 6.0
+    det.loc[odd, ["colour", "pattern"]] = ("black", "solid")
+    tr = track(det, TABLE)
+    ids, errs = match_tracks(tr, {"rest": rest, "leave": leave}, times)
+    assert ids["rest"] != ids["leave"] and tr["track"].nunique() == 2
+    # A swap or a jump shows as a diameter or more.
+    assert np.max(errs["rest"]) < 10.0 and np.max(errs["leave"]) < 15.0

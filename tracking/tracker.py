@@ -53,11 +53,28 @@ Method
     from the previous position, so at a collision each ball keeps the detection nearest to
     where it was (balls cannot pass through each other).
 
+  A detection inside one ball's gate (plain or bounce) and nearer to where that ball was than
+  to where another was is never the other's, by any hypothesis: the other could reach it only
+  through or past the first, and balls cannot pass through each other.
+
   The assignment runs as a matching cascade (Wojke, Bewley & Paulus 2017, "Simple online and
   realtime tracking with a deep association metric"): confirmed tracks seen in the previous
-  frame first, then confirmed tracks coasting unseen, then tentative tracks, each on the
-  detections the earlier ones left, so a coasting track's spreading prediction never out-bids a
-  ball followed frame by frame.
+  frame first, then balls hidden at rest (below), then confirmed tracks coasting unseen, then
+  tentative tracks, each on the detections the earlier ones left, so a coasting track's
+  spreading prediction never out-bids a ball followed frame by frame, nor takes what is seen
+  where a hidden ball rests.
+* A ball at rest (its last detections within a quarter radius of their median,
+  ``Tracker._rest_spot``, and its filtered speed below ``respot_rest_speed_mm_s``) that goes
+  unseen (covered by the streak of a ball passing by, an arm, the cue, or its detections too
+  doubtful) stays where and as it was last seen, its prediction neither moved nor spread by
+  the acceleration noise, until something may have touched it: a moving track whose course
+  heads toward its spot and passes within a diameter of it plus that track's gate
+  (``Tracker._touch_rest_spots``; Newton's first law). Until then it takes, before any coasting
+  track, a detection seen within a radius of its spot that is sure enough to start a track,
+  whatever its labels read (two balls cannot lie within a radius of one spot;
+  ``Tracker._claim_rest_spots``), and it is seen again at rest: a detection beyond the gate of
+  its resting state moves its position there and keeps its velocity, the detector's error
+  having moved, not the ball.
 
   Colour and pattern mismatches add to the cost of a ball followed frame by frame, whatever the
   detection's quality: its own motion says which detection is it, and the detector's cue/object
@@ -308,6 +325,9 @@ class _Track:
         # no two detections in a row have followed it since: the ball was lost at the contact,
         # not lifted (``Tracker._assign``).
         self.turned_unseen = False
+        # Where the ball rested when it was last seen, while it is hidden and nothing moving
+        # has come near enough to touch it (``Tracker._note_rest``), else None: (2,) mm.
+        self.rest_spot: np.ndarray | None = None
         self.last_seen_t = t
         self.ended: str | None = None
         self.colours: Counter = Counter()
@@ -491,15 +511,22 @@ class Tracker:
         # spreads with every missed frame, so on its own gate it would out-bid a ball followed
         # frame by frame for that ball's detection (a false track from a hand, coasting on at
         # the hand's speed, taking over a ball it crosses).
+        # Between the balls followed frame by frame and those coasting, balls hidden at rest
+        # claim what is seen where they rest (`_claim_rest_spots`): no other ball can be there.
         confirmed = [tr for tr in live if tr.confirmed]
-        groups = ([tr for tr in confirmed if tr.misses == 0], [tr for tr in confirmed if tr.misses],
-                  [tr for tr in live if not tr.confirmed])
-        for group in groups:
+        resting = [tr for tr in confirmed if tr.misses and tr.rest_spot is not None]
+        groups = ([tr for tr in confirmed if tr.misses == 0], resting,
+                  [tr for tr in confirmed if tr.misses], [tr for tr in live if not tr.confirmed])
+        for n, group in enumerate(groups):
+            group = [tr for tr in group if tr.key not in assigned]
             idx = np.flatnonzero(free)
             if not group or not len(idx):
                 continue
-            pairs = self._assign(group, preds, Z[idx], sig[idx], colour_arr[idx],
-                                 pattern_arr[idx], quality[idx])
+            if n == 1:
+                pairs = self._claim_rest_spots(group, Z[idx], quality[idx])
+            else:
+                pairs = self._assign(group, preds, Z[idx], sig[idx], colour_arr[idx],
+                                     pattern_arr[idx], quality[idx])
             for gi, dj, hyp in pairs:
                 assigned[group[gi].key] = (int(idx[dj]), hyp)
                 free[idx[dj]] = False
@@ -513,13 +540,19 @@ class Tracker:
                 tr.hits += 1
                 tr.take_read(colours[j], patterns[j], quality[j])
                 tr.misses = 0
+                tr.rest_spot = None
                 tr.last_seen_t = t
                 if not tr.confirmed and tr.hits >= self.config.confirm_hits:
                     newly.append(tr)
             else:
+                if tr.misses == 0 and tr.confirmed:
+                    tr.rest_spot = self._resting_at(tr)
+                    if tr.rest_spot is not None:
+                        pred = self._predict(tr, t)  # hidden at rest: it stays put
                 self._coast(tr, pred, frame, t)
                 tr.misses += 1
                 self._maybe_end(tr, t)
+        self._touch_rest_spots(live, preds)
         # Ids are given once every track has this frame's row, so a ball put back by hand is
         # told from one that is merely seen again.
         for tr in newly:
@@ -805,14 +838,19 @@ class Tracker:
         return n_breaks >= 1 and n_breaks > cfg.max_break_share * sum(tr.seen[2:])
 
     def _predict(self, tr: _Track, t: float) -> dict:
-        """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}."""
+        """Prior of ``tr`` at ``t``: {'x' (4,), 'P' (4, 4), 'F', 'Q', 'dt', 'prev' (2,) mm}.
+
+        A ball hidden at rest, nothing having touched it (``_Track.rest_spot``), stays where and
+        as it was last seen (``F = I``, ``Q = 0``): a ball at rest does not move until something
+        strikes it (Newton's first law), so its hidden frames add no acceleration noise."""
         dt = t - tr.t_last
-        F, Q = self._model(dt)
+        pinned = tr.rest_spot is not None
+        F, Q = (_EYE4, _ZERO4) if pinned else self._model(dt)
         x = F @ tr.x  # x_pred = F x
         P = F @ tr.P @ F.T + Q  # P_pred = F P F^T + Q
         return {"x": x, "P": P, "F": F, "Q": Q, "dt": dt, "prev": tr.x[0::2],
                 "unseen_s": t - tr.last_seen_t,
-                "prev_P": tr.P[0::2, 0::2], "bounces": self._bounces(x, P)}
+                "prev_P": tr.P[0::2, 0::2], "bounces": [] if pinned else self._bounces(x, P)}
 
     def _model(self, dt: float) -> tuple[np.ndarray, np.ndarray]:
         """``tracking.kalman.motion_model(dt)``, built once per distinct interval (a clip has a
@@ -875,6 +913,7 @@ class Tracker:
         is_cue = patterns == "cue"
         is_obj = (patterns == "solid") | (patterns == "stripe")
         known_colour = colours != ""
+        idents: list[np.ndarray] = []  # per track (D,): identity cost of each detection
         for i, tr in enumerate(group):
             pr = preds[tr.key]
             kind = tr.kind()
@@ -936,10 +975,30 @@ class Tracker:
             # jump still needs the labels.
             forbid &= ~((hyps[i] >= 1) | ((hyps[i] == 0) & tr.turned_unseen))
             ident[forbid] = _INFEASIBLE
+            idents.append(ident)
+        # A detection inside another ball's gate and nearer to where that ball was than to
+        # where this one was is the other ball's: this ball could reach it only through or
+        # past the other (balls cannot pass through each other), so it is neither a jump nor a
+        # prediction of this one. A gate that holds it on position alone counts, labels aside:
+        # the other ball is there whatever the detector reads. On phone_wide_30fps with
+        # chromadepth's rim colour (benchmarks/analyse_accuracy.py --extra --reuse): at frame
+        # 223 a ball just touched at rest jumped 50 mm onto the detection of the ball that
+        # touched it (8.5 mm from it, in its gate), whose doubtful read's colour matched the
+        # resting ball's better; at frame 232 the cue ball, coasting 0.5 s after a cushion
+        # with a prediction spread over 82 mm, took a resting ball's detection 250 mm from
+        # its prediction and 6 mm from the resting ball.
+        prevs = np.array([preds[tr.key]["prev"] for tr in group]).reshape(T, 2)
+        dists = np.hypot(Z[None, :, 0] - prevs[:, None, 0], Z[None, :, 1] - prevs[:, None, 1])
+        gated = hyps >= 0
+        for i, tr in enumerate(group):
+            pr = preds[tr.key]
             # Velocity jump: anywhere a ball could reach from its previous position this frame.
             reach = cfg.max_speed_mm_s * pr["dt"] + 3.0 * (
                 math.sqrt(np.trace(pr["prev_P"])) + sig)
-            dist = np.hypot(*(Z - pr["prev"]).T)
+            dist = dists[i]
+            passed = np.any(gated & (dists < dist[None, :]), axis=0)
+            cost[i, passed & gated[i]] = _INFEASIBLE
+            hyps[i, passed & gated[i]] = _NO_HYP
             # Nearer is cheaper. On the likelihood scale of the predictions, a detection spread
             # evenly over the reach disk costs 2 ln(reach^2 / (2 meas_sigma^2)) (about 13, 16 and
             # 18 at 120, 60 and 30 fps), close to g: the same scale.
@@ -956,10 +1015,10 @@ class Tracker:
             # (sample multi_rail_30fps, frame 31: quality 0.43, 121 mm from where it rested).
             moving = math.hypot(pr["x"][1], pr["x"][3]) > cfg.respot_rest_speed_mm_s
             sure = self._sure_quality([tr]) if tr.misses and moving else cfg.birth_min_quality
-            ok = (dist <= reach) & (hyps[i] == _NO_HYP) & (quality >= sure)
+            ok = (dist <= reach) & (hyps[i] == _NO_HYP) & (quality >= sure) & ~passed
             cost[i, ok] = cj[ok]
             hyps[i, ok] = _JUMP
-            cost[i] += ident
+            cost[i] += idents[i]
         # Square augmentation: leaving a track or a detection unassigned costs `miss` each, so a
         # feasible pair (at most 2 g, or g plus the width term, plus identity terms) is
         # preferred to leaving both while the width term stays under about g (a prediction
@@ -973,6 +1032,68 @@ class Tracker:
         rows, cols = linear_sum_assignment(big)
         return [(int(r), int(c), "jump" if hyps[r, c] == _JUMP else names[r][hyps[r, c]])
                 for r, c in zip(rows, cols) if r < T and c < D and cost[r, c] < _INFEASIBLE / 2]
+
+    def _resting_at(self, tr: _Track) -> np.ndarray | None:
+        """Where ``tr``, seen in the last frame and missed in this one, rests: its rest spot
+        (:meth:`_rest_spot`, (2,) mm) when its filtered speed is also below
+        ``respot_rest_speed_mm_s`` (the tracker's scale of a ball at rest), else None."""
+        if float(np.hypot(tr.x[1], tr.x[3])) >= self.config.respot_rest_speed_mm_s:
+            return None
+        return self._rest_spot(tr)
+
+    def _touch_rest_spots(self, live: list[_Track], preds: dict) -> None:
+        """Forget the rest spot of every hidden ball that something moving may have touched
+        over the interval up to this frame, ``live`` tracks' states already updated to it
+        (their priors, before the update, in ``preds``).
+
+        A ball at rest stays put until something strikes it (Newton's first law). A moving
+        track (speed at least ``respot_rest_speed_mm_s`` before or after the interval) may
+        have struck it if its course, the segment from its state before the interval to its
+        state now, passes within a diameter of the spot (centres a diameter apart at contact)
+        plus its gate, ``sqrt(chi2)`` times its largest position standard deviation now (a
+        track coasting on a velocity it barely knows reaches far: the ball may then have been
+        knocked away), heading toward the spot. Tracks at rest do not count (a ball frozen
+        against another is not struck by it), nor one moving away (the ball that has just
+        struck it and leaves: that contact came before the ball was last seen at rest). The
+        course is judged on the state after this frame's detection, as the prediction of a
+        ball whose velocity was just restarted spreads over a ball's width or more."""
+        spots = [tr for tr in live if tr.rest_spot is not None]
+        if not spots:
+            return
+        vmin = self.config.respot_rest_speed_mm_s
+        reach = []
+        for o in live:
+            pr = preds[o.key]
+            if max(math.hypot(pr["x"][1], pr["x"][3]), math.hypot(o.x[1], o.x[3])) < vmin:
+                continue
+            sd = math.sqrt(float(np.linalg.eigvalsh(o.P[0::2, 0::2])[-1]))
+            reach.append((o, pr["prev"], o.x[0::2],
+                          self.table.ball_diameter_mm + math.sqrt(self._gate) * sd))
+        for tr in spots:
+            if any(o is not tr and np.dot(tr.rest_spot - a, b - a) > 0.0
+                   and _segment_distance(tr.rest_spot, a, b) <= r for o, a, b, r in reach):
+                tr.rest_spot = None
+
+    def _claim_rest_spots(self, group: list[_Track], Z: np.ndarray,
+                          quality: np.ndarray) -> list[tuple[int, int, str]]:
+        """Balls hidden at rest and untouched (``group``, each with its ``rest_spot``) take the
+        detections Z (D, 2) mm seen within a radius of their spots: (track index, detection
+        index, ``rest``) triples, nearest first (Hungarian method on the distance).
+
+        Two balls cannot lie closer than a diameter (centres), so what is seen within a radius
+        of where a ball rests, nothing having touched it, is that ball, whatever its labels
+        read (the test :meth:`_rested_here` makes of a new track); a moving ball's prediction,
+        spread wide while it coasts unseen, must not take it (it could reach there only
+        through the resting ball). The detection must be sure enough to start a track
+        (``birth_min_quality``), as a new track there would have to be."""
+        T, D = len(group), len(Z)
+        dist = np.array([np.hypot(*(Z - tr.rest_spot).T) for tr in group]).reshape(T, D)
+        ok = (dist <= self.table.radius_mm) & (quality >= self.config.birth_min_quality)[None, :]
+        if not ok.any():
+            return []
+        cost = np.where(ok, dist, _INFEASIBLE)
+        rows, cols = linear_sum_assignment(cost)
+        return [(int(r), int(c), "rest") for r, c in zip(rows, cols) if ok[r, c]]
 
     def _restart_velocity(self, tr: _Track, pred: dict, z: np.ndarray, R: np.ndarray) -> None:
         """Position from the detection, velocity from the last two positions, wide velocity
@@ -988,6 +1109,8 @@ class Tracker:
         R = sigma**2 * np.eye(2)
         z = np.asarray(z, dtype=float)
         brk = False
+        # Seen again where it rested, by the rest stage or in its resting gate (`_predict`).
+        at_rest = tr.rest_spot is not None and hyp in ("rest", "predict")
         if (pred["unseen_s"] > self._reid_s
                 and math.hypot(z[0] - pred["x"][0], z[1] - pred["x"][2]) > self.table.ball_diameter_mm):
             # Found again by its labels after a long gap (``_assign``) and not where it would
@@ -997,6 +1120,19 @@ class Tracker:
             # near its prediction (out from under a cue) keeps the filter's velocity.
             tr.x, tr.P = _restarted(z, np.zeros(2), R[0, 0], self.config.initial_speed_sigma_mm_s)
             brk = True
+        elif at_rest:
+            # Seen again where it rested (`_claim_rest_spots`): it has lain still all along, so
+            # its prior is the state it was last seen in (`_predict`). A detection beyond that
+            # state's maneuver gate is the detector's error moving (a shadow, or a blur beside
+            # it while it was hidden), not the ball: the position starts again there and the
+            # velocity stays what it was, rather than take the offset for a speed it never had.
+            x, P = pred["x"], pred["P"]
+            if float(_mahalanobis2(z[None], x[0::2], P[0::2, 0::2], np.array([sigma]))[0]) \
+                    <= self._maneuver:
+                tr.x, tr.P = _kalman_update(tr.kf, x, P, z, R)
+            else:
+                tr.x, tr.P = _moved_to(x, P, z, R[0, 0])
+                brk = True
         elif hyp == "jump":
             self._restart_velocity(tr, pred, z, R)
             brk = True
@@ -1013,7 +1149,9 @@ class Tracker:
                 self._restart_velocity(tr, pred, z, R)
             else:
                 tr.x, tr.P = _kalman_update(tr.kf, x, P, z, R)
-        odd = self._stated_update(tr, pred, z, stated, brk)
+        # The restart of a ball seen again where it rested is the detector's, not a turn of
+        # the ball's course: the hand test (`_course_breaks`) must not count it.
+        odd = self._stated_update(tr, pred, z, stated, brk) and not at_rest
         # One detection off the cushion places the ball but does not measure its new velocity;
         # two in a row do, and from then on the ball is followed, not lost at the contact.
         if tr.misses == 0:
@@ -1384,6 +1522,20 @@ def _restarted(z: np.ndarray, v: np.ndarray, r_var: float, min_speed_sigma: floa
     and ``P`` (4, 4)."""
     sv = max(min_speed_sigma, float(np.hypot(*v)))
     return np.array([z[0], v[0], z[1], v[1]]), np.diag([r_var, sv**2, r_var, sv**2])
+
+
+def _moved_to(x: np.ndarray, P: np.ndarray, z: np.ndarray,
+              r_var: float) -> tuple[np.ndarray, np.ndarray]:
+    """The state ``x`` (4,) [x, vx, y, vy], covariance ``P`` (4, 4), with its position moved
+    to ``z`` (2,) mm of variance ``r_var`` mm^2 per axis and its velocity kept, no longer
+    correlated with the position."""
+    x = x.copy()
+    x[0::2] = z
+    P = P.copy()
+    P[0::2, :] = 0.0
+    P[:, 0::2] = 0.0
+    P[0, 0] = P[2, 2] = r_var
+    return x, P
 
 
 def _kalman_update(kf, x: np.ndarray, P: np.ndarray, z: np.ndarray,
