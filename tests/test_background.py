@@ -477,3 +477,27 @@ def test_a_rack_in_the_first_frame_is_not_baked_into_the_background(name):
             checked += 1
             assert err < 12.0, (name, u, v, err, seen)
     assert checked >= n - 3, (name, checked)
+
+
+@pytest.mark.parametrize("length_balls,across,covers", [(3.3, False, False), (3.7, False, True), (5.0, False, True), (1.4, True, False)])
+def test_only_a_cluster_lying_along_the_rail_takes_over_its_median(length_balls, across, covers):
+    # A straight rail band along the top of a synthetic image, the cloth below it. rail_model
+    # takes each band pixel's median over the pixel and 1.5, 2.5, 3.5 ball diameters either way
+    # along the rail: a stretch of L diameters holds 4 of those 7 samples of some pixel (half
+    # or more: the median is then the cluster's) iff L >= 3.5 (analytic: 0, 1.5, 2.5, 3.5), so
+    # a frozen row of four balls or more takes the medians over and a row of three does not;
+    # a piece crossing the band (a cue and its grown rim, 1.4 diameters) holds 2 at most.
+    from vision.background import _covers_rail_median
+
+    ball_px, h, w = 20.0, 120, 600
+    cloth = np.zeros((h, w), bool)
+    cloth[20:, :] = True
+    band = np.zeros((h, w), bool)
+    band[10:30, :] = True  # 10 px off the cloth and half a diameter on it
+    cluster = np.zeros((h, w), bool)
+    span = int(round(length_balls * ball_px))
+    if across:
+        cluster[0:h, 300 : 300 + span] = True
+    else:
+        cluster[10:60, 300 : 300 + span] = True
+    assert _covers_rail_median(cluster, band, cloth, ball_px) is covers

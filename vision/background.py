@@ -262,7 +262,10 @@ def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px:
     ``config.max_blob_balls`` balls' area, and not reaching the outer border of ``zone``: what
     comes in over the rail (an arm, a cue) or opens off it (a pocket) is no resting ball. Kept
     blobs are grown by ``fill_margin_radii`` ball radii and filled: in the rail band from the
-    rail model, elsewhere by Telea inpainting (``cv2.inpaint``).
+    rail model, elsewhere by Telea inpainting (``cv2.inpaint``). Where a kept blob of over three
+    ball areas lies along the rail on half or more of a band pixel's rail samples (a rack's row
+    frozen to a cushion, :func:`_covers_rail_median`; not a cue crossing the band), the rail
+    beside it is modelled again from beyond it and the blobs are found again.
     """
     return _clean(image, zone, cloth, ball_px, config, whole=True)[:2]
 
@@ -297,7 +300,15 @@ def _clean(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: floa
     # more for the blob's rim. No further: beyond, the longer reach takes in the pocket jaws
     # (a rack's blob joined a side pocket's mouth at a diameter).
     d = 2 * (int(round(ball_px / 2)) + 2) + 1
-    exclude = cv2.dilate(big[lab].astype(np.uint8), cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (d, d))) > 0 if big.any() else None
+    disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (d, d))
+    # Only a blob that, so grown, holds half or more of some band pixel's seven samples takes
+    # its median over (a row of four frozen balls or more); the pass is for those alone. A cue
+    # crossing the band holds one or two: pass one models the rail under it already, and the
+    # pass run on it anyway (cheapwide_25fps's first frame, no rack) changed the model there
+    # by up to 55 DN, which the rest of the clip's detections and events then carried.
+    for i in np.flatnonzero(big):
+        big[i] = _covers_rail_median(cv2.dilate((lab == i).astype(np.uint8), disc) > 0, band, cloth, ball_px)
+    exclude = cv2.dilate(big[lab].astype(np.uint8), disc) > 0 if big.any() else None
     if exclude is not None and (exclude & band).any():
         # Only beside the cluster: elsewhere the longer reach would take in pocket jaws and
         # corners the seven samples do not reach (a pocket's mouth joined a rack's blob).
@@ -433,29 +444,17 @@ def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: 
     """
     h, w = band.shape
     out = np.full((h, w, 3), np.nan, np.float32)
-    vv, uu = np.nonzero(band)
+    vv, uu, tx, ty = _rail_tangents(band, cloth, ball_px)
     if len(vv) == 0:
         return out
-    c8 = cloth.astype(np.uint8)
-    signed = cv2.distanceTransform(1 - c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE) - cv2.distanceTransform(c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
-    # The cloth's border is a staircase of pixels; the direction along it must hold to a
-    # fraction of a pixel over 3.5 ball diameters, so the distance is smoothed over a ball.
-    signed = cv2.GaussianBlur(signed, (0, 0), ball_px)
-    gx = cv2.Sobel(signed, cv2.CV_32F, 1, 0, ksize=5)[vv, uu]
-    gy = cv2.Sobel(signed, cv2.CV_32F, 0, 1, ksize=5)[vv, uu]
-    norm = np.maximum(np.hypot(gx, gy), 1e-6)
-    tx, ty = -gy / norm, gx / norm
     on = band if band_all is None else band_all
     steps = (0.0,) + tuple(x for k in np.arange(1.5, reach + 0.01, 1.0) for x in (float(k), -float(k)))
     samp = np.full((len(steps), len(vv), 3), np.nan, np.float32)
     for k, s in enumerate(steps):
-        su = (uu + s * ball_px * tx).astype(np.float32)
-        sv = (vv + s * ball_px * ty).astype(np.float32)
-        iu, iv = np.round(su).astype(int), np.round(sv).astype(int)
-        ok = (iu >= 0) & (iu < w) & (iv >= 0) & (iv < h)
-        ok[ok] &= on[iv[ok], iu[ok]]
+        su, sv, ok = _rail_step(vv, uu, tx, ty, s * ball_px, on)
         if exclude is not None:
-            ok[ok] &= ~exclude[iv[ok], iu[ok]]
+            iu, iv = np.round(su[ok]).astype(int), np.round(sv[ok]).astype(int)
+            ok[ok] &= ~exclude[iv, iu]
         samp[k, ok] = _sample(image, su[ok], sv[ok])
     if exclude is not None:
         # Beside a cluster only the three nearest samples either way past it: the lamps' light
@@ -481,6 +480,60 @@ def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: 
     valid = (cnt >= (5 if exclude is None else 3)) & (spread <= max_spread_dn)
     out[vv[valid], uu[valid]] = med[valid]
     return out
+
+
+def _rail_tangents(band: np.ndarray, cloth: np.ndarray, ball_px: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The pixels of ``band`` ((H, W) bool) as (vv, uu) int arrays (N,) and the unit image
+    direction along the rail at each, (tx, ty) float32 (N,): perpendicular to the gradient of
+    the signed distance from the border of ``cloth`` ((H, W) bool), smoothed over a ball
+    (``ball_px`` px)."""
+    vv, uu = np.nonzero(band)
+    if len(vv) == 0:
+        empty = np.zeros(0, np.float32)
+        return vv, uu, empty, empty
+    c8 = cloth.astype(np.uint8)
+    signed = cv2.distanceTransform(1 - c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE) - cv2.distanceTransform(c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+    # The cloth's border is a staircase of pixels; the direction along it must hold to a
+    # fraction of a pixel over 3.5 ball diameters, so the distance is smoothed over a ball.
+    signed = cv2.GaussianBlur(signed, (0, 0), ball_px)
+    gx = cv2.Sobel(signed, cv2.CV_32F, 1, 0, ksize=5)[vv, uu]
+    gy = cv2.Sobel(signed, cv2.CV_32F, 0, 1, ksize=5)[vv, uu]
+    norm = np.maximum(np.hypot(gx, gy), 1e-6)
+    return vv, uu, -gy / norm, gx / norm
+
+
+def _rail_step(vv: np.ndarray, uu: np.ndarray, tx: np.ndarray, ty: np.ndarray, step_px: float, on: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The points ``step_px`` px along the rail from the pixels (vv, uu) (N,) with tangents
+    (tx, ty) (N,) (:func:`_rail_tangents`): (su, sv) float32 (N,) px and ok (N,) bool, the
+    points whose nearest pixel lies in the image and on ``on`` ((H, W) bool)."""
+    h, w = on.shape
+    su = (uu + step_px * tx).astype(np.float32)
+    sv = (vv + step_px * ty).astype(np.float32)
+    iu, iv = np.round(su).astype(int), np.round(sv).astype(int)
+    ok = (iu >= 0) & (iu < w) & (iv >= 0) & (iv < h)
+    ok[ok] &= on[iv[ok], iu[ok]]
+    return su, sv, ok
+
+
+def _covers_rail_median(cluster: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: float) -> bool:
+    """Whether ``cluster`` ((H, W) bool) lies on at least half of the rail samples of some
+    pixel of ``band`` ((H, W) bool) next to it: :func:`rail_model`'s seven (the pixel and 1.5,
+    2.5, 3.5 ball diameters either way, those on the band), whose median is then the cluster's
+    colour, not the rail's."""
+    near = band & cv2.dilate(cluster.astype(np.uint8), cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (3, 3))).astype(bool)
+    if not near.any():
+        return False
+    vv, uu, tx, ty = _rail_tangents(band, cloth, ball_px)
+    sel = near[vv, uu]
+    vv, uu, tx, ty = vv[sel], uu[sel], tx[sel], ty[sel]
+    on = np.zeros(len(vv), int)
+    cnt = np.zeros(len(vv), int)
+    for s in (0.0, 1.5, -1.5, 2.5, -2.5, 3.5, -3.5):
+        su, sv, ok = _rail_step(vv, uu, tx, ty, s * ball_px, band)
+        cnt += ok
+        on[ok] += cluster[np.round(sv[ok]).astype(int), np.round(su[ok]).astype(int)]
+    # Fewer than five samples: no model there in any case (rail_model), cluster or not.
+    return bool(np.any((cnt >= 5) & (2 * on >= cnt)))
 
 
 class Background:
