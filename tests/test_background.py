@@ -487,7 +487,7 @@ def test_only_a_cluster_lying_along_the_rail_takes_over_its_median(length_balls,
     # or more: the median is then the cluster's) iff L >= 3.5 (analytic: 0, 1.5, 2.5, 3.5), so
     # a frozen row of four balls or more takes the medians over and a row of three does not;
     # a piece crossing the band (a cue and its grown rim, 1.4 diameters) holds 2 at most.
-    from vision.background import _covers_rail_median
+    from vision.background import _covers_rail_median, _rail_tangents
 
     ball_px, h, w = 20.0, 120, 600
     cloth = np.zeros((h, w), bool)
@@ -500,4 +500,4 @@ def test_only_a_cluster_lying_along_the_rail_takes_over_its_median(length_balls,
         cluster[0:h, 300 : 300 + span] = True
     else:
         cluster[10:60, 300 : 300 + span] = True
-    assert _covers_rail_median(cluster, band, cloth, ball_px) is covers
+    assert _covers_rail_median(cluster, band, _rail_tangents(band, cloth, ball_px), ball_px) is covers

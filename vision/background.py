@@ -306,8 +306,10 @@ def _clean(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: floa
     # crossing the band holds one or two: pass one models the rail under it already, and the
     # pass run on it anyway (cheapwide_25fps's first frame, no rack) changed the model there
     # by up to 55 DN, which the rest of the clip's detections and events then carried.
-    for i in np.flatnonzero(big):
-        big[i] = _covers_rail_median(cv2.dilate((lab == i).astype(np.uint8), disc) > 0, band, cloth, ball_px)
+    if big.any():
+        tangents = _rail_tangents(band, cloth, ball_px)
+        for i in np.flatnonzero(big):
+            big[i] = _covers_rail_median(cv2.dilate((lab == i).astype(np.uint8), disc) > 0, band, tangents, ball_px)
     exclude = cv2.dilate(big[lab].astype(np.uint8), disc) > 0 if big.any() else None
     if exclude is not None and (exclude & band).any():
         # Only beside the cluster: elsewhere the longer reach would take in pocket jaws and
@@ -448,7 +450,7 @@ def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: 
     if len(vv) == 0:
         return out
     on = band if band_all is None else band_all
-    steps = (0.0,) + tuple(x for k in np.arange(1.5, reach + 0.01, 1.0) for x in (float(k), -float(k)))
+    steps = _rail_steps(reach)
     samp = np.full((len(steps), len(vv), 3), np.nan, np.float32)
     for k, s in enumerate(steps):
         su, sv, ok = _rail_step(vv, uu, tx, ty, s * ball_px, on)
@@ -480,6 +482,12 @@ def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: 
     valid = (cnt >= (5 if exclude is None else 3)) & (spread <= max_spread_dn)
     out[vv[valid], uu[valid]] = med[valid]
     return out
+
+
+def _rail_steps(reach: float) -> tuple[float, ...]:
+    """Offsets along the rail (ball diameters) of :func:`rail_model`'s samples: 0, then 1.5,
+    2.5, ... either way out to ``reach``."""
+    return (0.0,) + tuple(x for k in np.arange(1.5, reach + 0.01, 1.0) for x in (float(k), -float(k)))
 
 
 def _rail_tangents(band: np.ndarray, cloth: np.ndarray, ball_px: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -515,20 +523,21 @@ def _rail_step(vv: np.ndarray, uu: np.ndarray, tx: np.ndarray, ty: np.ndarray, s
     return su, sv, ok
 
 
-def _covers_rail_median(cluster: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: float) -> bool:
+def _covers_rail_median(cluster: np.ndarray, band: np.ndarray, tangents: tuple[np.ndarray, ...], ball_px: float) -> bool:
     """Whether ``cluster`` ((H, W) bool) lies on at least half of the rail samples of some
     pixel of ``band`` ((H, W) bool) next to it: :func:`rail_model`'s seven (the pixel and 1.5,
     2.5, 3.5 ball diameters either way, those on the band), whose median is then the cluster's
-    colour, not the rail's."""
+    colour, not the rail's. ``tangents``: the band's pixels and directions along the rail
+    (:func:`_rail_tangents`)."""
     near = band & cv2.dilate(cluster.astype(np.uint8), cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (3, 3))).astype(bool)
     if not near.any():
         return False
-    vv, uu, tx, ty = _rail_tangents(band, cloth, ball_px)
+    vv, uu, tx, ty = tangents
     sel = near[vv, uu]
     vv, uu, tx, ty = vv[sel], uu[sel], tx[sel], ty[sel]
     on = np.zeros(len(vv), int)
     cnt = np.zeros(len(vv), int)
-    for s in (0.0, 1.5, -1.5, 2.5, -2.5, 3.5, -3.5):
+    for s in _rail_steps(3.5):
         su, sv, ok = _rail_step(vv, uu, tx, ty, s * ball_px, band)
         cnt += ok
         on[ok] += cluster[np.round(sv[ok]).astype(int), np.round(su[ok]).astype(int)]
