@@ -1683,25 +1683,31 @@ RACKS = {
 }
 
 
-@pytest.fixture(scope="module")
-def racks():
-    """Detections of each rack (RACKS) in the frame after an empty table's, and the truth."""
+def _rack_renderer(name):
+    """(renderer, truth centres (N, 2) mm, rotations (1, N, 3, 3)) of the rack ``name`` (RACKS),
+    every ball turned at random."""
     from scipy.spatial.transform import Rotation
 
     from vision.render import pool_balls
 
+    s = RACKS[name]
+    pool = pool_balls()
+    balls = pool[s["balls"]] if isinstance(s["balls"], slice) else tuple(pool[k] for k in s["balls"])
+    at = s["at"]
+    rot = Rotation.random(len(at), random_state=np.random.default_rng(5)).as_matrix()[None]
+    return Renderer(NINE_FOOT, s["camera"], s["look"], balls, seed=5), at, rot
+
+
+@pytest.fixture(scope="module")
+def racks():
+    """Detections of each rack (RACKS) in the frame after an empty table's, and the truth."""
     done = {}
 
     def run(name):
         if name not in done:
-            s = RACKS[name]
-            pool = pool_balls()
-            balls = pool[s["balls"]] if isinstance(s["balls"], slice) else tuple(pool[k] for k in s["balls"])
-            at = s["at"]
+            ren, at, rot = _rack_renderer(name)
             n = len(at)
-            rot = Rotation.random(n, random_state=np.random.default_rng(5)).as_matrix()[None]
-            ren = Renderer(NINE_FOOT, s["camera"], s["look"], balls, seed=5)
-            det = BallDetector(s["camera"], NINE_FOOT)
+            det = BallDetector(RACKS[name]["camera"], NINE_FOOT)
             det.process(0, 0.0, ren.render(at[None], rot, np.zeros((1, n), bool), np.array([0.0])))
             done[name] = (det.process(1, 1 / 60, ren.render(at[None], rot, np.ones((1, n), bool), np.array([1 / 60]))), at)
         return done[name]
@@ -1729,6 +1735,39 @@ def test_racked_balls_are_placed_within_the_resting_p95(racks, name):
     # here (see the strict xfail below).
     det, at = racks(name)
     err, _ = _match(det, at)
+    assert np.median(err) <= 2.5, (name, err)
+
+
+@pytest.fixture(scope="module")
+def racks_from_start():
+    """Detections of each rack (RACKS) standing from the clip's first frame (the empty-table
+    model is made from that frame: real break footage starts so), and the truth."""
+    done = {}
+
+    def run(name):
+        if name not in done:
+            ren, at, rot = _rack_renderer(name)
+            det = BallDetector(RACKS[name]["camera"], NINE_FOOT)
+            done[name] = (det.process(0, 0.0, ren.render(at[None], rot, np.ones((1, len(at)), bool), np.array([0.0]))), at)
+        return done[name]
+
+    return run
+
+
+FROZEN_END = "an end ball of a row frozen to a cushion stays in the empty-table model (its rail half is not modelled)"
+
+
+@pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=FROZEN_END)) if "frozen" in n else n for n in RACKS])
+def test_a_rack_standing_from_the_first_frame_is_found(racks_from_start, name):
+    # The empty-table model is made from the first frame and must not keep the rack (a 15-ball
+    # rack is one blob of about 20 ball areas; frozen to a cushion, its row covers the rail
+    # model's samples): every ball found by its own detection within a ball radius (the
+    # benchmark's match gate), no false one, the median within the resting p95 (2.5 mm), as
+    # for the same racks after an empty frame above.
+    det, at = racks_from_start(name)
+    err, j = _match(det, at)
+    assert np.all(np.isfinite(err)), (name, err)
+    assert len(set(j.tolist())) == len(at) and len(det) == len(at), (name, det)
     assert np.median(err) <= 2.5, (name, err)
 
 

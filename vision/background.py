@@ -47,6 +47,14 @@ from vision.camera import Camera
 from vision.table import TableSpec
 
 
+#: The largest cluster of balls on a table: 15 racked object balls and the cue ball (common
+#: practice: the fifteen-ball games).
+RACK_BALLS = 16
+#: The most balls a rack puts in a row along a cushion: the side of the 15-ball triangle
+#: (common practice).
+RACK_SIDE_BALLS = 5
+
+
 @dataclass(frozen=True)
 class BackgroundConfig:
     """Knobs of the empty-table model.
@@ -69,7 +77,18 @@ class BackgroundConfig:
     blob_sigmas: float = 5.0
     blob_min_dn: float = 10.0
     fill_margin_radii: float = 0.45
-    max_blob_balls: float = 14.0
+    # Two ball areas for each ball of the largest cluster the game has (15 racked balls and the
+    # cue ball, common practice): a ball's silhouette, and its cast shadow where it lies outside
+    # it (a sphere's shadow from a lamp at elevation e is an ellipse of pi R^2 / sin e centred
+    # R cot e from the contact point: for lamps above 45 deg under 0.8 of the ball's area lies
+    # outside its silhouette, from geometry). A 15-ball rack present in the first frame was one
+    # blob of 19-22 ball areas (three rendered rooms), over the 14 used before: kept in the
+    # model, never detected. An arm or cue reaches in over the rail and is never filled.
+    max_blob_balls: float = 2.0 * RACK_BALLS
+    # The cap in a re-seeded window (a ghost left where an arm or moved ball was): the value used
+    # before for the whole model. Racks stand from the first frame, not in ghosts; 32 there too
+    # changed the extra set's detections (dim_540p_60fps: 1677 -> 1702 rows) with no rack in them.
+    window_blob_balls: float = 14.0
     update_rate: float = 0.1
     ghost_rate: float = 0.5
     downscale_ball_px: float = 4.0
@@ -77,7 +96,7 @@ class BackgroundConfig:
     weak_share: float = 0.5
 
     def __post_init__(self) -> None:
-        for name in ("cloth_scale_balls", "blob_sigmas", "max_blob_balls", "downscale_ball_px"):
+        for name in ("cloth_scale_balls", "blob_sigmas", "max_blob_balls", "window_blob_balls", "downscale_ball_px"):
             if not getattr(self, name) > 0:
                 raise ValueError(f"BackgroundConfig.{name} = {getattr(self, name)!r} must be positive")
         if not 0 < self.weak_share <= 1:
@@ -243,16 +262,21 @@ def clean_frame(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px:
     ``config.max_blob_balls`` balls' area, and not reaching the outer border of ``zone``: what
     comes in over the rail (an arm, a cue) or opens off it (a pocket) is no resting ball. Kept
     blobs are grown by ``fill_margin_radii`` ball radii and filled: in the rail band from the
-    rail model, elsewhere by Telea inpainting (``cv2.inpaint``).
+    rail model, elsewhere by Telea inpainting (``cv2.inpaint``). Where a kept blob of over three
+    ball areas lies along the rail on half or more of a band pixel's rail samples (a rack's row
+    frozen to a cushion, :func:`_covers_rail_median`; not a cue crossing the band), the rail
+    beside it is modelled again from beyond it and the blobs are found again.
     """
-    return _clean(image, zone, cloth, ball_px, config)[:2]
+    return _clean(image, zone, cloth, ball_px, config, whole=True)[:2]
 
 
-def _clean(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig()) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def _clean(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: BackgroundConfig = BackgroundConfig(), whole: bool = False) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """:func:`clean_frame`, and two (H, W) bool masks: the blobs it leaves as they are (grown by
     ``fill_margin_radii`` ball radii: no empty table), and the pixels of ``zone`` that may stand
     out: by more than ``weak_share`` of the blob threshold, wherever they lie, or with no model
-    of the rail to judge them by (what a blob may be part of)."""
+    of the rail to judge them by (what a blob may be part of). ``whole``: the frame the model is
+    made from (a rack may stand in it: blobs up to ``max_blob_balls``, racks along a cushion
+    modelled again); else a re-seeded window (``window_blob_balls``)."""
     img = np.asarray(image)
     f32 = img.astype(np.float32)
     model, _ = cloth_model(img, cloth, ball_px, config)
@@ -261,7 +285,76 @@ def _clean(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: floa
     noise = noise_sigma(f32 - model, open_cloth if open_cloth.any() else cloth)
     thr = max(config.blob_sigmas * noise * math.sqrt(3), config.blob_min_dn)
     rail = rail_model(f32, band, cloth, ball_px, 0.5 * thr)
-    ref = np.where(band[..., None], rail, model)
+    cap = config.max_blob_balls if whole else config.window_blob_balls
+    weak, mask, lab, stats, keep = _blobs(f32, np.where(band[..., None], rail, model), zone, thr, ball_px, config, cap)
+    area_ball = math.pi * (ball_px / 2) ** 2
+    # A cluster frozen to a cushion (a rack's row along it) covers most of the rail model's
+    # samples beside it, whose median is then the balls, not the rail: the rows' rail halves
+    # matched "the empty table" and stayed in the model. One ball, or two touching, cover at
+    # most three of the seven samples, so only a larger kept blob that reaches the band makes
+    # the rail be modelled again without the samples on it, from further along.
+    big = keep & (stats[:, cv2.CC_STAT_AREA] > 3.0 * area_ball) & whole
+    big[0] = False
+    # A frozen ball's rail half lies within a ball radius of its open-cloth half (the band is
+    # ``rail_band_balls`` = half a diameter deep), where pass one may have had no model; 2 px
+    # more for the blob's rim. No further: beyond, the longer reach takes in the pocket jaws
+    # (a rack's blob joined a side pocket's mouth at a diameter).
+    d = 2 * (int(round(ball_px / 2)) + 2) + 1
+    disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (d, d))
+    # Only a blob that, so grown, holds half or more of some band pixel's seven samples takes
+    # its median over (a row of four frozen balls or more); the pass is for those alone. A cue
+    # crossing the band holds one or two: pass one models the rail under it already, and the
+    # pass run on it anyway (cheapwide_25fps's first frame, no rack) changed the model there
+    # by up to 55 DN, which the rest of the clip's detections and events then carried.
+    if big.any():
+        tangents = _rail_tangents(band, cloth, ball_px)
+        for i in np.flatnonzero(big):
+            big[i] = _covers_rail_median(cv2.dilate((lab == i).astype(np.uint8), disc) > 0, band, tangents, ball_px)
+    exclude = cv2.dilate(big[lab].astype(np.uint8), disc) > 0 if big.any() else None
+    if exclude is not None and (exclude & band).any():
+        # Only beside the cluster: elsewhere the longer reach would take in pocket jaws and
+        # corners the seven samples do not reach (a pocket's mouth joined a rack's blob).
+        far = rail_model(f32, band & exclude, cloth, ball_px, 0.5 * thr, exclude=exclude, reach=RACK_SIDE_BALLS + 2.5, band_all=band)
+        rail = np.where(exclude[..., None], far, rail)
+        first = big[lab]
+        weak, mask, lab, stats, keep = _blobs(f32, np.where(band[..., None], rail, model), zone, thr, ball_px, config, cap)
+        # Pass one judged these clusters: none came in over the rail. With their rail halves
+        # and contact shadows they can touch the zone's outer border, or a pocket's mouth that
+        # opens off it (a rendered 15-ball rack frozen to a cushion beside a side pocket was
+        # kept whole as an arm), so what holds one is kept if no larger than a cluster.
+        held = np.zeros(len(keep), bool)
+        held[np.unique(lab[first])] = True
+        keep |= held & (stats[:, cv2.CC_STAT_AREA] <= cap * area_ball)
+    keep[0] = False
+    fill = keep[lab].astype(np.uint8)
+    if fill.any():
+        grow = max(1, int(round(config.fill_margin_radii * ball_px / 2)))
+        kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * grow + 1, 2 * grow + 1))
+        fill = cv2.dilate(fill, kernel) & zone.astype(np.uint8)
+        src = np.clip(img, 0, 255).astype(np.uint8)
+        from_rail = (fill > 0) & band & np.all(np.isfinite(rail), axis=2)
+        src[from_rail] = np.clip(rail[from_rail] + 0.5, 0, 255).astype(np.uint8)
+        radius = max(3.0, ball_px / 6)
+        out = cv2.inpaint(src, ((fill > 0) & ~from_rail).astype(np.uint8), radius, cv2.INPAINT_TELEA).astype(np.float32)
+        # Keep the sub-DN precision of the input outside the filled area.
+        keepers = fill == 0
+        out[keepers] = f32[keepers]
+    else:
+        out = f32
+    # What is left in the frame as it is (blobs that reach in over the rail, larger than
+    # max_blob_balls or too small to be a ball), grown like the filled blobs to take its rim
+    # and cast shadow with it.
+    grow = max(1, int(round(config.fill_margin_radii * ball_px / 2)))
+    kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * grow + 1, 2 * grow + 1))
+    left = cv2.dilate(((mask > 0) & ~keep[lab]).astype(np.uint8), kernel) > 0
+    return out, fill.astype(bool), left, weak
+
+
+def _blobs(f32: np.ndarray, ref: np.ndarray, zone: np.ndarray, thr: float, ball_px: float, config: BackgroundConfig, cap: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The blobs of :func:`_clean`: what of ``f32`` (H, W, 3) float32 stands out from the empty
+    table ``ref`` (H, W, 3) float32, NaN where it has no model) by more than ``thr`` DN within
+    ``zone``; blobs over ``cap`` ball areas are not filled. Returns (weak (H, W) bool, mask (H, W) uint8 of the blobs, their 8-connected
+    labels (H, W) int32 and stats (n, 5) int32, keep (n,) bool: the blobs to fill)."""
     # Pixels with no model (rail band round the pockets) are taken as empty table.
     dist = np.linalg.norm(f32 - ref, axis=2)
     unknown = np.isnan(dist)
@@ -292,30 +385,9 @@ def _clean(image: np.ndarray, zone: np.ndarray, cloth: np.ndarray, ball_px: floa
     out_raw[0] = False
     reaches = np.zeros(n, bool)
     reaches[np.unique(lab[(mask > 0) & out_raw[lab_raw]])] = True
-    keep = (area >= 0.3 * area_ball) & (area <= config.max_blob_balls * area_ball) & ~reaches
+    keep = (area >= 0.3 * area_ball) & (area <= cap * area_ball) & ~reaches
     keep[0] = False
-    fill = keep[lab].astype(np.uint8)
-    if fill.any():
-        grow = max(1, int(round(config.fill_margin_radii * ball_px / 2)))
-        kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * grow + 1, 2 * grow + 1))
-        fill = cv2.dilate(fill, kernel) & zone.astype(np.uint8)
-        src = np.clip(img, 0, 255).astype(np.uint8)
-        from_rail = (fill > 0) & band & np.all(np.isfinite(rail), axis=2)
-        src[from_rail] = np.clip(rail[from_rail] + 0.5, 0, 255).astype(np.uint8)
-        radius = max(3.0, ball_px / 6)
-        out = cv2.inpaint(src, ((fill > 0) & ~from_rail).astype(np.uint8), radius, cv2.INPAINT_TELEA).astype(np.float32)
-        # Keep the sub-DN precision of the input outside the filled area.
-        keepers = fill == 0
-        out[keepers] = f32[keepers]
-    else:
-        out = f32
-    # What is left in the frame as it is (blobs that reach in over the rail, larger than
-    # max_blob_balls or too small to be a ball), grown like the filled blobs to take its rim
-    # and cast shadow with it.
-    grow = max(1, int(round(config.fill_margin_radii * ball_px / 2)))
-    kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * grow + 1, 2 * grow + 1))
-    left = cv2.dilate(((mask > 0) & ~keep[lab]).astype(np.uint8), kernel) > 0
-    return out, fill.astype(bool), left, weak
+    return weak, mask, lab, stats, keep
 
 
 def _sample(image: np.ndarray, u: np.ndarray, v: np.ndarray) -> np.ndarray:
@@ -353,7 +425,7 @@ def rail_band(zone: np.ndarray, cloth: np.ndarray, ball_px: float, config: Backg
     return zone & (inside <= config.rail_band_balls * ball_px)
 
 
-def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: float, max_spread_dn: float) -> np.ndarray:
+def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: float, max_spread_dn: float, exclude: np.ndarray | None = None, reach: float = 3.5, band_all: np.ndarray | None = None) -> np.ndarray:
     """The rail band as the empty table shows it: (H, W, 3) float32, NaN off ``band`` and where
     the rail is not uniform along itself.
 
@@ -366,31 +438,35 @@ def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: 
     direction along the rail is the image tangent of the cloth's border: perpendicular to the
     gradient of the signed distance from it. Where the median colour distance of the samples
     from their median exceeds ``max_spread_dn`` (the rail changes along the tangent: pocket
-    jaws, corners), or fewer than five samples lie in the band, the model is NaN.
+    jaws, corners), or fewer than five samples lie in the band, the model is NaN. With
+    ``exclude`` ((H, W) bool: a cluster of balls along the rail) samples on it are dropped too,
+    and ``reach`` (ball diameters) takes samples at every further 1 diameter out to it, so a
+    pixel beside the cluster is modelled from the rail beyond it; ``band_all`` ((H, W) bool,
+    default ``band``) is the band samples may lie on when only ``band``'s pixels are modelled.
     """
     h, w = band.shape
     out = np.full((h, w, 3), np.nan, np.float32)
-    vv, uu = np.nonzero(band)
+    vv, uu, tx, ty = _rail_tangents(band, cloth, ball_px)
     if len(vv) == 0:
         return out
-    c8 = cloth.astype(np.uint8)
-    signed = cv2.distanceTransform(1 - c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE) - cv2.distanceTransform(c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
-    # The cloth's border is a staircase of pixels; the direction along it must hold to a
-    # fraction of a pixel over 3.5 ball diameters, so the distance is smoothed over a ball.
-    signed = cv2.GaussianBlur(signed, (0, 0), ball_px)
-    gx = cv2.Sobel(signed, cv2.CV_32F, 1, 0, ksize=5)[vv, uu]
-    gy = cv2.Sobel(signed, cv2.CV_32F, 0, 1, ksize=5)[vv, uu]
-    norm = np.maximum(np.hypot(gx, gy), 1e-6)
-    tx, ty = -gy / norm, gx / norm
-    steps = (0.0, 1.5, -1.5, 2.5, -2.5, 3.5, -3.5)
+    on = band if band_all is None else band_all
+    steps = _rail_steps(reach)
     samp = np.full((len(steps), len(vv), 3), np.nan, np.float32)
     for k, s in enumerate(steps):
-        su = (uu + s * ball_px * tx).astype(np.float32)
-        sv = (vv + s * ball_px * ty).astype(np.float32)
-        iu, iv = np.round(su).astype(int), np.round(sv).astype(int)
-        ok = (iu >= 0) & (iu < w) & (iv >= 0) & (iv < h)
-        ok[ok] &= band[iv[ok], iu[ok]]
+        su, sv, ok = _rail_step(vv, uu, tx, ty, s * ball_px, on)
+        if exclude is not None:
+            iu, iv = np.round(su[ok]).astype(int), np.round(sv[ok]).astype(int)
+            ok[ok] &= ~exclude[iv, iu]
         samp[k, ok] = _sample(image, su[ok], sv[ok])
+    if exclude is not None:
+        # Beside a cluster only the three nearest samples either way past it: the lamps' light
+        # changes along a rail over the longer reach (a rendered bright room: the median of all
+        # out to 7.5 diameters failed the spread test and left a rack's row in the model).
+        for side in (slice(1, None, 2), slice(2, None, 2)):
+            part = samp[side]
+            got = ~np.isnan(part[:, :, 0])
+            part[(np.cumsum(got, axis=0) > 3) & got] = np.nan
+            samp[side] = part
     srt = np.sort(samp, axis=0)  # NaN last
     cnt = np.sum(~np.isnan(samp[:, :, 0]), axis=0)
     lo, hi = np.clip((cnt - 1) // 2, 0, None), cnt // 2
@@ -401,9 +477,72 @@ def rail_model(image: np.ndarray, band: np.ndarray, cloth: np.ndarray, ball_px: 
     dev = np.linalg.norm(samp - med[None], axis=2)  # (7, N), NaN for dropped samples
     dev_srt = np.sort(dev, axis=0)
     spread = dev_srt[np.clip((cnt - 1) // 2, 0, None), idx]
-    valid = (cnt >= 5) & (spread <= max_spread_dn)
+    # Beside a cluster the rail may go on past it one way only (a rack's row near a corner, or
+    # a strip of cushion shadow joined to its blob): three samples, a side's worth, suffice.
+    valid = (cnt >= (5 if exclude is None else 3)) & (spread <= max_spread_dn)
     out[vv[valid], uu[valid]] = med[valid]
     return out
+
+
+def _rail_steps(reach: float) -> tuple[float, ...]:
+    """Offsets along the rail (ball diameters) of :func:`rail_model`'s samples: 0, then 1.5,
+    2.5, ... either way out to ``reach``."""
+    return (0.0,) + tuple(x for k in np.arange(1.5, reach + 0.01, 1.0) for x in (float(k), -float(k)))
+
+
+def _rail_tangents(band: np.ndarray, cloth: np.ndarray, ball_px: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The pixels of ``band`` ((H, W) bool) as (vv, uu) int arrays (N,) and the unit image
+    direction along the rail at each, (tx, ty) float32 (N,): perpendicular to the gradient of
+    the signed distance from the border of ``cloth`` ((H, W) bool), smoothed over a ball
+    (``ball_px`` px)."""
+    vv, uu = np.nonzero(band)
+    if len(vv) == 0:
+        empty = np.zeros(0, np.float32)
+        return vv, uu, empty, empty
+    c8 = cloth.astype(np.uint8)
+    signed = cv2.distanceTransform(1 - c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE) - cv2.distanceTransform(c8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+    # The cloth's border is a staircase of pixels; the direction along it must hold to a
+    # fraction of a pixel over 3.5 ball diameters, so the distance is smoothed over a ball.
+    signed = cv2.GaussianBlur(signed, (0, 0), ball_px)
+    gx = cv2.Sobel(signed, cv2.CV_32F, 1, 0, ksize=5)[vv, uu]
+    gy = cv2.Sobel(signed, cv2.CV_32F, 0, 1, ksize=5)[vv, uu]
+    norm = np.maximum(np.hypot(gx, gy), 1e-6)
+    return vv, uu, -gy / norm, gx / norm
+
+
+def _rail_step(vv: np.ndarray, uu: np.ndarray, tx: np.ndarray, ty: np.ndarray, step_px: float, on: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The points ``step_px`` px along the rail from the pixels (vv, uu) (N,) with tangents
+    (tx, ty) (N,) (:func:`_rail_tangents`): (su, sv) float32 (N,) px and ok (N,) bool, the
+    points whose nearest pixel lies in the image and on ``on`` ((H, W) bool)."""
+    h, w = on.shape
+    su = (uu + step_px * tx).astype(np.float32)
+    sv = (vv + step_px * ty).astype(np.float32)
+    iu, iv = np.round(su).astype(int), np.round(sv).astype(int)
+    ok = (iu >= 0) & (iu < w) & (iv >= 0) & (iv < h)
+    ok[ok] &= on[iv[ok], iu[ok]]
+    return su, sv, ok
+
+
+def _covers_rail_median(cluster: np.ndarray, band: np.ndarray, tangents: tuple[np.ndarray, ...], ball_px: float) -> bool:
+    """Whether ``cluster`` ((H, W) bool) lies on at least half of the rail samples of some
+    pixel of ``band`` ((H, W) bool) next to it: :func:`rail_model`'s seven (the pixel and 1.5,
+    2.5, 3.5 ball diameters either way, those on the band), whose median is then the cluster's
+    colour, not the rail's. ``tangents``: the band's pixels and directions along the rail
+    (:func:`_rail_tangents`)."""
+    near = band & cv2.dilate(cluster.astype(np.uint8), cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (3, 3))).astype(bool)
+    if not near.any():
+        return False
+    vv, uu, tx, ty = tangents
+    sel = near[vv, uu]
+    vv, uu, tx, ty = vv[sel], uu[sel], tx[sel], ty[sel]
+    on = np.zeros(len(vv), int)
+    cnt = np.zeros(len(vv), int)
+    for s in _rail_steps(3.5):
+        su, sv, ok = _rail_step(vv, uu, tx, ty, s * ball_px, band)
+        cnt += ok
+        on[ok] += cluster[np.round(sv[ok]).astype(int), np.round(su[ok]).astype(int)]
+    # Fewer than five samples: no model there in any case (rail_model), cluster or not.
+    return bool(np.any((cnt >= 5) & (2 * on >= cnt)))
 
 
 class Background:

@@ -146,8 +146,9 @@ pressed into a touching triangle can still be about 4 mm off; balls inside a tou
 their coarse fit (every ray of the local edge meets a neighbour), 0.1-3 mm off and a few up to
 13 mm (tests/test_detect.py, strict xfail), and a rack holding a ball of the cloth's own hue (a
 green ball on green cloth, a blue one on blue), or a black ball on grey cloth, is not explained
-and is lost until the break spreads it, as is a rack of more than 14 balls' area present in the
-clip's first frame, which the empty-table model keeps (``BackgroundConfig.max_blob_balls``); a
+and is lost until the break spreads it; a rack present from the clip's first frame is taken
+out of the empty-table model up to 16 balls with their shadows (``BackgroundConfig.max_blob_balls``),
+but a ball at the end of a row frozen to a cushion can stay in it (tests/test_detect.py); a
 ball merged with an arm or cue in the
 image is reported only when its outline is clearly separate and at most about a quarter of the
 ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
