@@ -123,12 +123,18 @@ Method
    noise (the impulse acts along that line, ``_impulse_sigmas``): two balls passing a few
    millimetres apart. Three or more balls whose rough contacts share balls within three frames
    (a ball driven into touching balls, a rack) meet within a fraction of a millisecond, so
-   each ball's samples show only the sum of its impulses: the pairs are found by splitting
-   each ball's velocity change into non-negative impulses along the lines of centres of the
-   balls in contact at the driven ball's first touch (``_Finder.cluster``). A driven ball
-   touching one ball of the cluster that leaves it slower along their line of centres than
-   that ball came (which one impact never does) was struck back by it: that pair's second
-   contact is reported where their departure paths touch (``_Finder._kiss_back``).
+   each ball's samples show only the sum of its impulses. The contacts are the impacts of a
+   model of the wave that runs through the cluster, one impact at a time in the order the
+   balls' paths bring them together (a ball pushed on, caught up again, some pairs meeting
+   twice), its resting centres fitted within their detection error to every ball's velocity
+   change (``_Finder._wave_rows``, ``_fit_wave``, ``_wave``); a pair meeting again is timed by
+   the departure paths too. Where that model leaves most balls unexplained, the pairs are
+   found by splitting each ball's velocity change into non-negative impulses along the lines
+   of centres of the balls in contact at the driven ball's first touch (``_Finder.cluster``),
+   and a driven ball touching one ball of the cluster that leaves it slower along their line
+   of centres than that ball came (which one impact never does) was struck back by it: that
+   pair's second contact is reported where their departure paths touch
+   (``_Finder._kiss_back``).
    *Start*:
    the first moving samples' fit extrapolated back to the rest position; a motion that begins
    at a collision has none, unless the ball left rest at an earlier frame than the ball it
@@ -275,6 +281,23 @@ class EventConfig:
     reversal line (mm), the prior of the rail's offset measured from the clip's contacts
     (``_rail_offsets``); an automatic calibration on compressed footage places a cushion nose
     to about 0.3 px, about 1 mm on a table filling a 720p frame (``benchmarks/calib_accuracy.py``).
+
+    A cluster's contact wave (``_Finder._wave_rows``, ``_fit_wave``): ``ball_restitution`` and
+    ``ball_friction`` of the impacts (Alciatore 2004 ranges 0.92-0.98 and 0.03-0.08, typical
+    0.95 and 0.06 [secondary]; as ``analysis.physics``). ``wave_position_sd_mm``: sd of the
+    prior on each resting ball's centre, which the fit may move: resting balls' detection
+    error, median 0.54-3.14 mm on the extra rendered set and 1.25 mm on
+    ``benchmarks/detect_accuracy.py`` (session 13), far above a rack's gaps.
+    ``wave_model_share``: the model's own error in a velocity change, as a share of it: the
+    restitution range moves ``(1 + e) / 2`` by 1.5 % and the friction range the tangential
+    impulse by 2.5 % of the normal one. ``wave_misfit_sigmas``: scale of the robust misfit, and
+    the misfit beyond which a ball is not explained. ``wave_search_rounds``: most rounds of
+    the coordinate search (20 instead changes nothing on the rack-break harness of session
+    14).
+    ``wave_max_outlier_share``: the wave is used where it explains all balls but at most this
+    share; in that harness (3-, 6- and 9-ball racks at 50-120 fps) up to 5 of 10 balls lay
+    beyond 3 sigmas where the wave still found more contacts and fewer false pairs than the
+    pair-impulse solution (each ball's departure fit may hold a later contact).
     """
 
     rest_speed_mm_s: float = 50.0
@@ -317,6 +340,13 @@ class EventConfig:
     outlier_sigmas: float = 5.0
     outlier_max: int = 2
     reversal_line_sd_mm: float = 1.0
+    ball_restitution: float = 0.95
+    ball_friction: float = 0.06
+    wave_position_sd_mm: float = 1.0
+    wave_model_share: float = 0.03
+    wave_misfit_sigmas: float = 3.0
+    wave_search_rounds: int = 5
+    wave_max_outlier_share: float = 0.5
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -2512,16 +2542,20 @@ class _Finder:
         friction impulse is at most the ball-ball friction 0.03-0.08 of it, Alciatore 2004
         [secondary]). So ``dv_k = sum_e J_e s_ke n_e`` over the pairs e in contact at ``t_c``
         (centres within a diameter plus ``collision_margin_mm`` on the approach fits), with
-        ``J_e >= 0`` and ``s_ke = +1 / -1`` for the pair's first / second ball; the ``J_e``
-        are solved by non-negative least squares (Lawson & Hanson 1974, ``scipy.optimize.nnls``)
-        with each ball's equations weighted by the standard error of its ``dv``, each bounded
-        by the impulse that can reach its pair (``_cradle_bound``: a later contact's impulse in
-        a ball's departure fit otherwise goes to a touching neighbour it never pushed). A pair is a
-        collision where its impulse exceeds ``min_velocity_change_mm_s`` and
-        ``collision_impulse_sigmas`` standard errors (from the active pairs' normal equations).
-        Its time is the pair's own approach touch, else ``t_c`` (balls at rest in contact pass
-        the impulse on within a fraction of a millisecond; the departure fits show every
-        contact's sum, so they time none).
+        ``J_e >= 0`` and ``s_ke = +1 / -1`` for the pair's first / second ball. Within one
+        frame a wave of contacts runs through a rack: a ball is pushed by one neighbour, pushes
+        the next, is caught up again, and meets some pairs twice. So the contacts are first
+        taken from the impacts of a sequential-impulse model of that wave fitted to the
+        ``dv_k`` (``_wave_rows``, ``_fit_wave``), each at its own time in the wave. Where that
+        model leaves more than ``wave_max_outlier_share`` of the balls unexplained, the
+        ``J_e`` are solved by non-negative least squares (Lawson & Hanson 1974,
+        ``scipy.optimize.nnls``) with each ball's equations weighted by the standard error of
+        its ``dv``, each bounded by the impulse that can reach its pair (``_cradle_bound``: a
+        later contact's impulse in a ball's departure fit otherwise goes to a touching
+        neighbour it never pushed). A pair is a collision where its impulse exceeds
+        ``min_velocity_change_mm_s`` and ``collision_impulse_sigmas`` standard errors (from
+        the active pairs' normal equations). Its time is the pair's own approach touch, else
+        ``t_c`` (the departure fits show every contact's sum, so they time none).
 
         ``group`` is the rough collisions (time s, track i, track j). Returns (t_c, rows, pairs
         (i, j) with i < j in contact at ``t_c``), or None where some ball lacks a fit on either
@@ -2541,7 +2575,10 @@ class _Finder:
         # detections may shift as the driven ball closes in on it (rendered rack, 60 fps).
         left = {b.track: _left_rest(self, b, t_lo) for b in balls}
         driver = min(ids, key=lambda k: left[k])
-        t_c = t_lo
+        # Searched from the driven ball's own first rough contact: touching resting balls'
+        # noise may join the group frames before it arrives (a six-ball rack's rough times
+        # from 0.50 s for a break at 0.554 s, 50 fps), and a fit from there holds too little.
+        t_c = min((g[0] for g in group if driver in g[1:]), default=t_lo)
         fits = None
         for it in range(3):
             fits = {b.track: self._quadratic_fits(b, t_c, *lims[b.track], exclude=it > 0,
@@ -2567,6 +2604,9 @@ class _Finder:
         touching = {(min(p), max(p)) for p in pairs}
         if not pairs:
             return t_c, [], touching
+        wave = self._wave_rows(ids, driver, fits, pos, dv, sd, t_c)
+        if wave is not None:
+            return t_c, wave, touching
         # A (2 x balls, pairs) design: column e holds +n_e / sd on its first ball's rows and
         # -n_e / sd on its second's, n_e the unit vector from the second centre to the first.
         row_of = {k: 2 * r for r, k in enumerate(ids)}
@@ -2602,6 +2642,81 @@ class _Finder:
         if rows:
             rows += self._kiss_back(driver, pairs, fits, pos, t_c)
         return t_c, rows, touching
+
+    def _wave_rows(self, ids: list[int], driver: int, fits: dict, pos: dict, dv: dict,
+                   sd: dict, t_c: float) -> list[dict] | None:
+        """Rows of a cluster's contacts from its fitted contact wave (``_fit_wave``), where the
+        wave explains every ball's measured velocity change but at most a share
+        ``wave_max_outlier_share`` of the balls (beyond ``wave_misfit_sigmas``); None otherwise
+        (the cluster's impulses are then solved pair by pair, ``cluster``).
+
+        The wave runs for half a frame interval from ``t_c``: a ball's departure fit begins at
+        the first frame after the contact, on average that much later, so its velocity change
+        holds the contacts until then (run for a whole frame interval, the rack-break harness
+        of session 14 found one contact more and one false pair more). Each impact is reported
+        at ``t_c`` plus its time in the wave, with the wave's speeds before and after it and
+        its centres there (a repeat timed by the departure fits, at their centres then).
+
+        Not met: a frozen rack (no gaps), whose balls our simulator presses apart at one
+        instant; the fitted gaps of a millimetre or so make the wave meet some pairs twice or
+        across (the rack-break harness with no gaps: 28 false pairs against 22 without the
+        wave, 119 of 135 contacts found against 122)."""
+        P = np.array([pos[k] for k in ids])
+        V = np.zeros_like(P)
+        fixed = ids.index(driver)
+        V[fixed] = fits[driver][0].vel(t_c)
+        M = np.array([dv[k] for k in ids])
+        S = np.array([sd[k] for k in ids])
+        contacts, r, s, _ = _fit_wave(P, V, M, S, fixed, self.table.ball_diameter_mm,
+                                      self.cfg, 0.5 * self.dt)
+        if np.mean(r > self.cfg.wave_misfit_sigmas) > self.cfg.wave_max_outlier_share:
+            return None
+        # A contact is kept at ``min_velocity_change_mm_s`` as any other, or below it where its
+        # impulse exceeds ``collision_impulse_sigmas`` standard errors of both balls' measured
+        # changes: a slow late meeting in the wave (bright_pocket_1080p50 of the extra set:
+        # about 40 mm/s, 0.83 frame after the break) that the measurements can tell.
+        kept = [c for c in contacts if c[3] >= min(
+            self.cfg.min_velocity_change_mm_s,
+            self.cfg.collision_impulse_sigmas * math.hypot(s[c[1]], s[c[2]]))]
+        rows = []
+        for n_c, (tau, i, j, imp, vi0, vj0, vi1, vj1, pi, pj) in enumerate(kept):
+            t_e = t_c + tau
+            earlier = [c[0] for c in kept[:n_c] if {c[1], c[2]} == {i, j}]
+            if earlier and not any({i, j} & {c[1], c[2]} for c in kept[n_c + 1:]):
+                # A pair meeting again, for the last time for both: their departure fits hold
+                # their paths from it and time it too (``_repeat_time``). The wave's clock runs
+                # on gaps it knows only to the centres' prior: its time is uncertain by about
+                # hypot(sd_p, sd_p) over the closing speed 2 J / (1 + e).
+                w = 2.0 * imp / (1.0 + self.cfg.ball_restitution)
+                sd_w = math.sqrt(2.0) * self.cfg.wave_position_sd_mm / max(w, 1e-9)
+                t_r = self._repeat_time(fits[ids[i]][1], fits[ids[j]][1], t_c + earlier[-1],
+                                        t_c + earlier[-1] + self.dt, (t_e, sd_w))
+                if t_r is not None:
+                    t_e, pi, pj = t_r, fits[ids[i]][1].pos(t_r), fits[ids[j]][1].pos(t_r)
+            for me, other, v0, v1, pm in ((i, j, vi0, vi1, pi), (j, i, vj0, vj1, pj)):
+                r_ = _row(t_e, "collision", ids[me], pm, speed_in=float(np.hypot(*v0)),
+                          speed_out=float(np.hypot(*v1)), other=ids[other])
+                r_["driver"] = driver if ids[me] != driver else ids[other]
+                rows.append(r_)
+        return rows or None
+
+    def _repeat_time(self, f_i: _Fit, f_j: _Fit, lo: float, hi: float,
+                     prior: tuple[float, float] | None = None) -> float | None:
+        """Time (s) of two balls' last contact from their departure fits ``f_i``, ``f_j``: where
+        those paths are one diameter apart, drawing apart (``_touch_time``), known to a few
+        milliseconds; combined with ``prior`` (time s, sd s; inverse-variance weights) where
+        given, and restricted to where the contact can lie, ``lo`` to ``hi`` (s): the mean of
+        that Gaussian estimate truncated there (common practice; see ``_kiss_back``). None
+        where the paths give no such touch."""
+        s = self._touch_time(f_i, f_j, lo, approach=False)
+        if s is None:
+            return None
+        mu, var = s[0], max(s[1], 1e-18)
+        if prior is not None:
+            w0, w1 = 1.0 / var, 1.0 / max(prior[1] ** 2, 1e-18)
+            mu, var = (w0 * mu + w1 * prior[0]) / (w0 + w1), 1.0 / (w0 + w1)
+        sd_t = math.sqrt(var)
+        return float(truncnorm.mean((lo - mu) / sd_t, (hi - mu) / sd_t, loc=mu, scale=sd_t))
 
     def _kiss_back(self, driver: int, pairs: list[tuple[int, int]], fits: dict, pos: dict,
                    t_c: float) -> list[dict]:
@@ -2639,15 +2754,9 @@ class _Finder:
         sd = math.sqrt(max(d_out.vel_var(t_c) + p_in.vel_var(t_c), 1e-12))
         if gap < self.cfg.collision_impulse_sigmas * sd:
             return []
-        s = self._touch_time(d_out, p_out, t_c, approach=False)
-        if s is None:
+        t_k = self._repeat_time(d_out, p_out, t_c, t_c + self.dt)
+        if t_k is None:
             return []
-        # The touch's Gaussian estimate N(mu, var) restricted to where the second contact can
-        # lie, after the first and before the frame after it: the mean of the truncated normal
-        # (common practice).
-        mu, sd_t = s[0], math.sqrt(max(s[1], 1e-18))
-        t_k = float(truncnorm.mean((t_c - mu) / sd_t, (t_c + self.dt - mu) / sd_t, loc=mu,
-                                   scale=sd_t))
         rows = []
         for me, other, fout in ((driver, partner, d_out), (partner, driver, p_out)):
             r = _row(t_k, "collision", me, fout.pos(t_k),
@@ -2882,6 +2991,141 @@ def _cradle_bound(J0: np.ndarray, A: np.ndarray, y: np.ndarray, driver: int,
                    bounds=[(0.0, None)] * E,
                    constraints=[LinearConstraint(M, -np.inf, c)])
     return np.maximum(res.x, 0.0) if res.success else J0
+
+
+def _wave(pos: np.ndarray, vel: np.ndarray, spin: np.ndarray, D: float, e: float, mu: float,
+          horizon_s: float, max_events: int = 400):
+    """The contacts of equal smooth-sided spheres on a plane, one impact at a time, in the order
+    the balls' straight paths bring them together, up to ``horizon_s`` (s) after the start.
+
+    ``pos`` (N, 2) centres (mm), ``vel`` (N, 2) velocities (mm/s), ``spin`` (N, 3) angular
+    velocities (rad/s), table frame; D the ball diameter (mm), e the ball-ball restitution, mu
+    the ball-ball friction. Method: event-driven hard-sphere dynamics (Alder & Wainwright 1959,
+    from memory): the next contact is the earliest time two approaching centres come one
+    diameter apart (balls already within a diameter and approaching meet at once, the faster
+    closing pair first); the impact is the one ``analysis.physics`` applies, a normal impulse
+    ``(1 + e) / 2`` times the closing speed per unit mass (Newton's restitution law with
+    momentum conservation) and a Coulomb friction impulse ``min(mu P, |g_t| / 7)`` against the
+    contact points' tangential slip (Alciatore 2004 [secondary]). A row of touching balls struck
+    at one end passes the impulse on ball by ball (Newton's cradle as a sequence of binary
+    collisions; Herrmann & Seitz 1982, Am. J. Phys. 50, 977, from memory), and so does a rack
+    whose balls stand a fraction of a millimetre apart: which pairs meet, how often and in what
+    order follows from the gaps. Over a few milliseconds the cloth's friction (mu_s g, about
+    2 m/s^2) changes a velocity by a few mm/s, so the paths between impacts are straight.
+
+    Returns (contacts, final velocities (N, 2)): contacts a list of (time s from the start, i,
+    j, normal impulse mm/s, velocity of i before, of j before, of i after, of j after (2,),
+    centre of i, of j at the contact (2,)). ``max_events`` only bounds the loop (a six-ball
+    break's wave has eight to ten impacts; at e < 1 balls pressed together could exchange ever
+    smaller impulses, the inelastic collapse of McNamara & Young 1992, from memory).
+    """
+    p = np.array(pos, float)
+    v = np.array(vel, float)
+    w = np.array(spin, float)
+    n = len(p)
+    R, k = 0.5 * D, 0.1 * D * D  # radius; k = 2/5 R^2 (solid sphere)
+    I, J = np.triu_indices(n, 1)
+    # Centres given closer than a diameter (their errors exceed the gaps) are taken as touching
+    # there: each pair meets at the smaller of D and its given distance.
+    D2 = np.minimum(D * D, np.einsum("ij,ij->i", p[J] - p[I], p[J] - p[I]))
+    t, out = 0.0, []
+    for _ in range(max_events):
+        dp, dv = p[J] - p[I], v[J] - v[I]
+        b = np.einsum("ij,ij->i", dp, dv)
+        c = np.einsum("ij,ij->i", dp, dp) - D2
+        a = np.einsum("ij,ij->i", dv, dv)
+        disc = b * b - a * c
+        ok = (b < 0) & ((c <= 0) | (disc >= 0))
+        if not ok.any():
+            break
+        with np.errstate(invalid="ignore", divide="ignore"):
+            tau = np.where(c <= 0, 0.0,
+                           (-b - np.sqrt(np.maximum(disc, 0.0))) / np.maximum(a, 1e-30))
+        cand = np.flatnonzero(ok)
+        t_next = tau[cand].min()
+        if t + t_next > horizon_s:
+            break
+        first = cand[tau[cand] <= t_next]
+        m = first[np.argmax(-b[first] / np.sqrt(np.maximum(c[first] + D2[first], 1e-12)))]
+        p += v * t_next
+        t += float(t_next)
+        i, j = int(I[m]), int(J[m])
+        dx, dy = p[j] - p[i]
+        h = max(math.hypot(dx, dy), 1e-12)
+        nx, ny = dx / h, dy / h
+        vi0, vj0 = v[i].copy(), v[j].copy()
+        P = 0.5 * (1.0 + e) * max((vi0[0] - vj0[0]) * nx + (vi0[1] - vj0[1]) * ny, 0.0)
+        v[i] -= (P * nx, P * ny)
+        v[j] += (P * nx, P * ny)
+        # Slip of the contact points, v + w x r with r = +R n on i and -R n on j (n = (nx, ny, 0)).
+        wi, wj = w[i], w[j]
+        gx = v[i, 0] - v[j, 0] - R * ny * (wi[2] + wj[2])
+        gy = v[i, 1] - v[j, 1] + R * nx * (wi[2] + wj[2])
+        gz = R * (wi[0] * ny - wi[1] * nx) + R * (wj[0] * ny - wj[1] * nx)
+        gn = gx * nx + gy * ny
+        gx, gy = gx - gn * nx, gy - gn * ny
+        gmag = math.sqrt(gx * gx + gy * gy + gz * gz)
+        if gmag > 0.0 and mu > 0.0:
+            f = -min(mu * P, gmag / 7.0) / gmag  # on i at +R n; its vertical part: the cloth
+            Fx, Fy, Fz = f * gx, f * gy, f * gz
+            v[i] += (Fx, Fy)
+            v[j] -= (Fx, Fy)
+            tq = np.array([ny * Fz, -nx * Fz, nx * Fy - ny * Fx]) * (R / k)  # (R n) x F / k
+            w[i] += tq
+            w[j] += tq
+        out.append((t, i, j, P, vi0, vj0, v[i].copy(), v[j].copy(), p[i].copy(), p[j].copy()))
+    return out, v
+
+
+def _fit_wave(pos: np.ndarray, vel: np.ndarray, dv: np.ndarray, dv_sd: np.ndarray, fixed: int,
+              D: float, cfg: "EventConfig", horizon_s: float):
+    """The cluster's contact wave (``_wave``) whose velocity changes best match the measured ones.
+
+    ``pos`` (N, 2) centres at the cluster's instant (mm), ``vel`` (N, 2) approach velocities
+    (mm/s), ``dv`` (N, 2) measured velocity changes (departure minus approach fit, mm/s) with
+    standard errors ``dv_sd`` (N,); ``fixed`` the driven ball's index (its path is measured in
+    motion, to a fraction of the others' rest errors). The gaps that decide the wave's order
+    are fractions of a millimetre, below the detections' bias at rest, so the other centres
+    are moved within ``wave_position_sd_mm`` (a Gaussian prior) to minimise a robust misfit:
+    ``sum_k rho(r_k) + |delta_k|^2 / sd_p^2`` with ``r_k = |dv_sim_k - dv_k| / s_k``,
+    ``s_k^2 = dv_sd_k^2 + (wave_model_share |dv_k|)^2`` and Cauchy's ``rho(r) = c^2 log(1 +
+    r^2 / c^2)``, c = ``wave_misfit_sigmas`` (Hampel et al. 1986, robust statistics, from
+    memory), so one ball whose departure fit holds a later contact does not bend the rest.
+    The misfit is piecewise smooth in the centres (the order of the impacts jumps), so it is
+    searched by coordinate descent (one ball, one axis, steps of a quarter, half and one sd
+    at a time), which is deterministic and needs no gradient.
+
+    Returns (contacts of ``_wave``, per-ball r (N,), per-ball s (N,) mm/s, moved centres
+    (N, 2)).
+    """
+    sd_p = cfg.wave_position_sd_mm
+    c = cfg.wave_misfit_sigmas
+    s = np.sqrt(dv_sd ** 2 + (cfg.wave_model_share * np.hypot(*dv.T)) ** 2)
+    spin = np.zeros((len(pos), 3))  # at rest, and the driven ball taken as stunned (unknown)
+
+    def misfit(q):
+        out, vf = _wave(q, vel, spin, D, cfg.ball_restitution, cfg.ball_friction, horizon_s)
+        r = np.hypot(*(vf - vel - dv).T) / s
+        prior = np.sum(((q - pos) / sd_p) ** 2)
+        return float(np.sum(c * c * np.log1p((r / c) ** 2)) + prior), out, r
+    best = np.array(pos, float)
+    L, out, r = misfit(best)
+    steps = [np.array(d, float) * f * sd_p for f in (0.25, 0.5, 1.0)
+             for d in ((1, 0), (-1, 0), (0, 1), (0, -1))]
+    for _ in range(cfg.wave_search_rounds):
+        moved = False
+        for kk in range(len(pos)):
+            if kk == fixed:
+                continue
+            for st in steps:
+                q = best.copy()
+                q[kk] += st
+                L2, out2, r2 = misfit(q)
+                if L2 < L - 1e-9:
+                    L, best, out, r, moved = L2, q, out2, r2, True
+        if not moved:
+            break
+    return out, r, s, best
 
 
 def _impulse_sigmas(fits: tuple["_Fit", "_Fit", "_Fit", "_Fit"], t_c: float) -> float:
