@@ -47,7 +47,9 @@ Method
     Pocket Billiards", from memory);
   - *jump*: a detection within ``max_speed_mm_s * dt`` of the ball's previous position, for the
     velocity jumps of cue strikes and collisions, if it is sure enough to start a track
-    (``birth_min_quality``): a doubtful one off the ball's path (the dark of a pocket mouth
+    (``birth_min_quality``; for a ball struck from rest at its last detection and unseen since,
+    within what ``max_speed_mm_s`` covers from that detection in the time since, read as its
+    own labels but not surely): a doubtful one off the ball's path (the dark of a pocket mouth
     beside a ball dropping in) would turn the ball there. It costs at least the gate
     ``g``, more than a gated prediction of a ball followed closely, and grows with the distance
     from the previous position, so at a collision each ball keeps the detection nearest to
@@ -455,6 +457,11 @@ class Tracker:
         # of the position, sigma_a tau^2 / 2 per axis (Bar-Shalom et al. 2001 sec. 6.3.3),
         # times the gate's sqrt(chi2) reaches a diameter. Past it, position no longer says which
         # object in the gate is the ball, so only a detection whose labels say so may be it.
+        # Longest step (in per-axis noise sigmas) between two detections of a ball at rest: the
+        # difference of two positions each of sigma per axis has sigma sqrt 2 per axis, its
+        # squared length over 2 sigma^2 is chi-square with 2 degrees of freedom, whose 99.73 %
+        # point (the 3-sigma share) is chi2.ppf(0.9973, 2) = 11.8 (analytic).
+        self._still_step = math.sqrt(2.0 * float(chi2.ppf(0.9973, 2)))
         self._reid_s = math.sqrt(2.0 * table.ball_diameter_mm
                                  / (math.sqrt(self._gate) * self.config.accel_sigma_mm_s2))
         # Per rail: the state block of its normal coordinate (0 x, 1 y), its reversal line (mm)
@@ -914,6 +921,7 @@ class Tracker:
         is_obj = (patterns == "solid") | (patterns == "stripe")
         known_colour = colours != ""
         idents: list[np.ndarray] = []  # per track (D,): identity cost of each detection
+        jumps: list[tuple[np.ndarray, float, bool]] = []  # per track: jump distances (D,) mm, interval s, struck
         for i, tr in enumerate(group):
             pr = preds[tr.key]
             kind = tr.kind()
@@ -974,8 +982,42 @@ class Tracker:
             # unknown when seen again: `turned_unseen` lasts until two detections in a row). A
             # jump still needs the labels.
             forbid &= ~((hyps[i] >= 1) | ((hyps[i] == 0) & tr.turned_unseen))
+            # A ball struck from rest at its last detection (its two detections before it within
+            # `_still_step` times the track's scatter of each other, and that detection off the
+            # one before by more) and unseen since: the strike blurred it past what the detector
+            # finds, and its speed is unknown. It may have gone anywhere a ball reaches from
+            # that detection since, read as its own labels (as a ball found again after a long
+            # gap, above) but not surely (extra clip lamp_50fps: the cue ball seen 4 mm off in
+            # the strike frame, missed five frames at 3.2 m/s, found 370 mm on at quality 0.38
+            # and read black later: a new track, 2 id switches).
+            k = len(tr.seen) - 1 - tr.seen[::-1].index(1) if 1 in tr.seen else None
+            struck = False
+            if tr.misses > 0 and k is not None and k > 1 and tr.seen[k - 1] and tr.seen[k - 2]:
+                lim = self._still_step * max(tr.noise_mm(cfg.meas_sigma_mm), cfg.min_meas_sigma_mm)
+                shift = np.subtract(tr.zs[k], tr.zs[k - 1])
+                struck = math.hypot(*np.subtract(tr.zs[k - 1], tr.zs[k - 2])) <= lim < math.hypot(*shift)
+            if struck:
+                own = (is_cue if kind == "cue" else is_obj & ((patterns == tp) | (tp == "unknown"))
+                       if kind == "object" else ~clash)
+                if 2 * tr.patterns["unknown"] > tr.hits:
+                    own = own | (patterns == "unknown")
+                if colour:
+                    own = own & (~known_colour | (colours == colour))
+                forbid = ~own & (hyps[i] < 1)
             ident[forbid] = _INFEASIBLE
+            # Velocity jump: anywhere a ball could reach from its previous position this frame
+            # (a struck ball: from its last detection, in the time since).
+            prev, dt_j = (np.asarray(tr.zs[k], float), pr["unseen_s"]) if struck else (pr["prev"], pr["dt"])
+            dist = np.hypot(*(Z - prev).T)
+            if struck:
+                # ...and on along the line of its first shift: a ball runs straight from the
+                # cue until a contact (Alciatore 2004); within 45 degrees, for the shift's own
+                # noise and a swerve (a guess, not a measured figure).
+                along = (Z - prev) @ shift / max(math.hypot(*shift), 1e-9)
+                forbid = forbid | ((hyps[i] < 1) & (along < math.cos(math.pi / 4) * dist))
+                ident[forbid] = _INFEASIBLE
             idents.append(ident)
+            jumps.append((dist, dt_j, struck))
         # A detection inside another ball's gate and nearer to where that ball was than to
         # where this one was is the other ball's: this ball could reach it only through or
         # past the other (balls cannot pass through each other), so it is neither a jump nor a
@@ -992,11 +1034,10 @@ class Tracker:
         gated = hyps >= 0
         for i, tr in enumerate(group):
             pr = preds[tr.key]
-            # Velocity jump: anywhere a ball could reach from its previous position this frame.
-            reach = cfg.max_speed_mm_s * pr["dt"] + 3.0 * (
+            dist, dt_j, struck = jumps[i]
+            reach = cfg.max_speed_mm_s * dt_j + 3.0 * (
                 math.sqrt(np.trace(pr["prev_P"])) + sig)
-            dist = dists[i]
-            passed = np.any(gated & (dists < dist[None, :]), axis=0)
+            passed = np.any(gated & (dists < dists[i][None, :]), axis=0)
             cost[i, passed & gated[i]] = _INFEASIBLE
             hyps[i, passed & gated[i]] = _NO_HYP
             # Nearer is cheaper. On the likelihood scale of the predictions, a detection spread
@@ -1013,7 +1054,8 @@ class Tracker:
             # radius beside it, turned it to 1.3 m/s and lost it: 2 id switches). A ball at rest
             # keeps the lower bar: a cue strike hides it in the strike frame and blurs it after
             # (sample multi_rail_30fps, frame 31: quality 0.43, 121 mm from where it rested).
-            moving = math.hypot(pr["x"][1], pr["x"][3]) > cfg.respot_rest_speed_mm_s
+            # So does a ball just struck from rest (above): its speed is not yet measured.
+            moving = math.hypot(pr["x"][1], pr["x"][3]) > cfg.respot_rest_speed_mm_s and not struck
             sure = self._sure_quality([tr]) if tr.misses and moving else cfg.birth_min_quality
             ok = (dist <= reach) & (hyps[i] == _NO_HYP) & (quality >= sure) & ~passed
             cost[i, ok] = cj[ok]
