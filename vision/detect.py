@@ -66,8 +66,13 @@ Method
    its fits straddle them) is seeded again as a cluster, by a circle Hough transform of the
    frame's colour edges at the ball's image radius (every ball's rim votes for its centre,
    against the cloth or a neighbour), then ball by ball in what those fits leave, however many
-   balls it holds; those fits replace the first where they explain the piece (the tests above),
-   and the piece is judged as before where they do not (:meth:`BallDetector._cluster_retry`). Small holes in a component (a highlight or mark of
+   balls it holds, then where those fits leave room for a ball (a ball whose fit failed among
+   its neighbours leaves its whole disc, touching balls only creases) a ball placed touching its
+   fitted neighbours, as racked balls lie, when its disc stands out and is no cast shadow; those
+   fits replace the first where they explain the piece (the tests above), and the piece is
+   judged as before where they do not (:meth:`BallDetector._cluster_retry`). A piece whose first
+   fits explain it is seeded so too where they leave room for a ball, or take a ball off the
+   cloth's hue for its neighbours' shadow (:meth:`BallDetector._settled`). Small holes in a component (a highlight or mark of
    the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
    fitted streak must fade in and out along its motion over about a ball's length at both ends,
    as a swept ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded,
@@ -1853,12 +1858,16 @@ class BallDetector:
         """Whether the first fits ``rows`` of a free piece larger than ``_CLUSTER_BALLS`` ball
         images (``comp`` at ``origin`` px) need no second look as a touching cluster
         (:meth:`_cluster_retry`): they explain it (:meth:`_explained`), leave no room for
-        another ball in it (:meth:`_rooms`: less than a ball's area left over can still be most
-        of a ball, the limb of a dark ball not standing out), and every row they take for a
+        another ball touching them in it (:meth:`_rooms`, :meth:`_room_ball`: less than a
+        ball's area left over can still be most of a ball, the limb of a dark ball not standing
+        out; a room in the shadow beside them is no ball's), and every row they take for a
         ball's cast shadow keeps the cloth's hue (a dark ball of another hue in a rack lies
         beside lit balls as their shadow would, :meth:`_casters_only`)."""
         explained, shadows = self._explained(img, comp, origin, rows)
-        if not explained or self._rooms(comp, origin, [r for r in rows if not any(r is s for s in shadows)]):
+        if not explained:
+            return False
+        balls = [r for r in rows if not any(r is s for s in shadows)]
+        if any(self._room_ball(img, uv, balls) is not None for uv in self._rooms(comp, origin, rows)):
             return False
         return len(shadows) == len(self._explained(img, comp, origin, rows, cluster=True)[1]) if shadows else True
 
@@ -1896,8 +1905,7 @@ class BallDetector:
         out: list[np.ndarray] = []
         for j in np.argsort(-dtm[ys, xs]):
             p = np.array([xs[j] + origin[0], ys[j] + origin[1]], float)
-            r_px = self._image_radius_px(p)
-            if dtm[ys[j], xs[j]] >= _ROOM_DEPTH * r_px and all(np.hypot(*(p - q)) > 1.1 * r_px for q in out):
+            if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in out) and dtm[ys[j], xs[j]] >= _ROOM_DEPTH * self._image_radius_px(p):
                 out.append(p)
         return out
 
@@ -1909,8 +1917,8 @@ class BallDetector:
         most = int(comp.sum() / (math.pi * self.r_min_px**2)) + 1
         for _ in range(most):
             rows = [r for r in fits if r is not None]
-            if not rows:
-                return
+            if not rows or self._leftover(comp, origin, rows)[0].sum() > 6 * math.pi * self.r_max_px**2:
+                return  # more than six balls unexplained: no cluster (as _unexplained_seeds)
             for uv in self._rooms(comp, origin, rows):
                 ball = self._room_ball(img, uv, rows)
                 if ball is not None:
