@@ -1740,11 +1740,12 @@ def test_racked_balls_meet_the_resting_target(racks):
 
 
 # Racks in other rooms, under other cameras (scenes of the widened rack study of session 14,
-# scratch harness: random cloth, height, lens, placement and look), each of which main's
-# detector lost balls of: a ball whose fit failed among fitted neighbours left its room
-# unexplained and the whole rack was dropped as an arm (grey six, electric diamond frozen to a
-# cushion, red triangle), or a dark green ball on grey cloth was taken for its neighbours'
-# cast shadow and a purple one left as less than a ball's area (grey diamond). Balls whose
+# scratch harness: random cloth, height, lens, placement and look), in which main's detector
+# lost balls: a ball whose fit failed among fitted neighbours left its room unexplained and the
+# whole rack was dropped as an arm (grey six, electric diamond frozen to a cushion; the red
+# triangle so in the harness, found whole by main with these balls' turns), or a dark green
+# ball on grey cloth was taken for its neighbours' cast shadow and a purple one left as less
+# than a ball's area (grey diamond). Balls whose
 # colour lies within the detector's hue step of the cloth are left out (a ball of the cloth's
 # own hue is a stated limit of the module).
 WIDE_RACKS = {
