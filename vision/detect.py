@@ -149,7 +149,11 @@ matches the cloth's brightness over half its area, fails the filled-disc test an
 hue much brighter or darker than it keeps the colour-step outline; a dark ball
 pressed into a touching triangle can still be about 4 mm off; balls inside a touching rack keep
 their coarse fit (every ray of the local edge meets a neighbour), 0.1-3 mm off and a few up to
-13 mm (tests/test_detect.py, strict xfail), and a rack holding a ball of the cloth's own hue (a
+13 mm (tests/test_detect.py, strict xfail), and a ball placed in the room its fitted neighbours
+leave (:meth:`BallDetector._room_ball`) rests on their fits; a rack all of whose balls are fitted
+can still be dropped as an arm where two fits a few mm toward each other (centres under 2 R
+apart) have the creases beside them, wider than a hand's waist test allows, left between them
+(:meth:`BallDetector._bridged`; 2 of 30 scenes of the session-14 rack study); a rack holding a ball of the cloth's own hue (a
 green ball on green cloth, a blue one on blue), or a black ball on grey cloth, is not explained
 and is lost until the break spreads it, as is a rack of more than 14 balls' area present in the
 clip's first frame, which the empty-table model keeps (``BackgroundConfig.max_blob_balls``); a
