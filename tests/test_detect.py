@@ -1778,6 +1778,66 @@ def test_racked_balls_meet_the_resting_target(racks):
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, err
 
 
+# Racks in other rooms, under other cameras (scenes of the widened rack study of session 14,
+# scratch harness: random cloth, height, lens, placement and look), in which main's detector
+# lost balls: a ball whose fit failed among fitted neighbours left its room unexplained and the
+# whole rack was dropped as an arm (grey six, electric diamond frozen to a cushion; the red
+# triangle so in the harness, found whole by main with these balls' turns), or a dark green
+# ball on grey cloth was taken for its neighbours' cast shadow and a purple one left as less
+# than a ball's area (grey diamond). Balls whose
+# colour lies within the detector's hue step of the cloth are left out (a ball of the cloth's
+# own hue is a stated limit of the module).
+WIDE_RACKS = {
+    "six on grey cloth, high": dict(
+        camera=Camera.overhead(NINE_FOOT, 2950.0, (1280, 720), offset_mm=(-173, -33), roll_deg=0.9, dist=(-0.14, 0.006, 0, 0, 0)),
+        look=Look(cloth_bgr=(120, 118, 112), cushion_bgr=(104, 102, 96), noise_sigma=2.2, exposure=1.02, ambient=0.26, specular=0.64),
+        at=_rack(np.array([944.0, 820.7]), (1, 2, 3), 1.918),
+        balls=(11, 5, 2, 15, 14, 12),
+    ),
+    "diamond9 frozen to a cushion, electric cloth, low wide lens": dict(
+        camera=Camera.overhead(NINE_FOOT, 1913.0, (1280, 720), offset_mm=(-130, 181), roll_deg=1.6, dist=(-0.31, 0.029, 0, 0, 0)),
+        look=Look(cloth_bgr=(190, 130, 40), cushion_bgr=(165, 112, 34), noise_sigma=2.4, exposure=1.10, ambient=0.50, specular=1.03),
+        at=_rack(np.array([NINE_FOOT.length_mm - R, 1089.9]), (1, 2, 3, 2, 1), math.pi),
+        balls=(9, 3, 12, 14, 4, 6, 13, 15, 8),
+    ),
+    "triangle15 on red cloth, noisy": dict(
+        camera=Camera.overhead(NINE_FOOT, 2162.0, (1280, 720), offset_mm=(49, -183), roll_deg=3.1, dist=(-0.04, 0.0, 0, 0, 0)),
+        look=Look(cloth_bgr=(40, 38, 150), cushion_bgr=(34, 32, 130), noise_sigma=3.0, exposure=1.28, ambient=0.29, specular=1.07),
+        at=_rack(np.array([1201.4, 639.3]), (1, 2, 3, 4, 5), 3.053),
+        balls=(14, 9, 8, 6, 10, 4, 1, 12, 2, 0, 14, 9, 8, 6, 10),
+    ),
+    "diamond9 on grey cloth, low, 1080p": dict(
+        camera=Camera.overhead(NINE_FOOT, 1822.0, (1920, 1080), offset_mm=(-170, -120), roll_deg=1.0, dist=(-0.05, 0.001, 0, 0, 0)),
+        look=Look(cloth_bgr=(120, 118, 112), cushion_bgr=(104, 102, 96), noise_sigma=1.2, exposure=0.91, ambient=0.27, specular=0.51),
+        at=_rack(np.array([855.5, 631.1]), (1, 2, 3, 2, 1), 1.666),
+        balls=(15, 6, 10, 12, 7, 2, 9, 4, 14),
+    ),
+}
+
+
+@pytest.mark.parametrize("name", list(WIDE_RACKS))
+def test_every_ball_of_a_rack_in_other_rooms_is_found(name):
+    # Issue acceptance (every visible ball, no false balls): each ball found within a ball
+    # radius (the benchmark's match gate, benchmarks/detect_accuracy.py) by its own detection,
+    # nothing else; against the renderer's truth.
+    from scipy.spatial.transform import Rotation
+
+    from vision.render import pool_balls
+
+    s = WIDE_RACKS[name]
+    pool = pool_balls()
+    at = s["at"]
+    n = len(at)
+    rot = Rotation.random(n, random_state=np.random.default_rng(5)).as_matrix()[None]
+    ren = Renderer(NINE_FOOT, s["camera"], s["look"], tuple(pool[k] for k in s["balls"]), seed=5)
+    det = BallDetector(s["camera"], NINE_FOOT)
+    det.process(0, 0.0, ren.render(at[None], rot, np.zeros((1, n), bool), np.array([0.0])))
+    out = det.process(1, 1 / 60, ren.render(at[None], rot, np.ones((1, n), bool), np.array([1 / 60])))
+    err, j = _match(out, at)
+    assert np.all(np.isfinite(err)), (name, err)
+    assert len(set(j.tolist())) == n and len(out) == n, (name, out[["x", "y"]].to_numpy())
+
+
 @pytest.mark.parametrize("heading_deg,bridge_mm", [(180.0, 230.0), (200.0, 150.0)])
 def test_arm_over_or_beside_a_rack_gives_no_ball(heading_deg, bridge_mm):
     # A stroke on a ball lying just in front of a touching 15-ball triangle, sent away from

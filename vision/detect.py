@@ -66,8 +66,13 @@ Method
    its fits straddle them) is seeded again as a cluster, by a circle Hough transform of the
    frame's colour edges at the ball's image radius (every ball's rim votes for its centre,
    against the cloth or a neighbour), then ball by ball in what those fits leave, however many
-   balls it holds; those fits replace the first where they explain the piece (the tests above),
-   and the piece is judged as before where they do not (:meth:`BallDetector._cluster_retry`). Small holes in a component (a highlight or mark of
+   balls it holds, then where those fits leave room for a ball (a ball whose fit failed among
+   its neighbours leaves its whole disc, touching balls only creases) a ball placed touching its
+   fitted neighbours, as racked balls lie, when its disc stands out and is no cast shadow; those
+   fits replace the first where they explain the piece (the tests above), and the piece is
+   judged as before where they do not (:meth:`BallDetector._cluster_retry`). A piece whose first
+   fits explain it is seeded so too where they leave room for a ball, or take a ball off the
+   cloth's hue for its neighbours' shadow (:meth:`BallDetector._settled`). Small holes in a component (a highlight or mark of
    the cloth's colour) are filled before its distance transform. A piece narrower across than a ball's radius (a cue, a finger) seeds no streak, and a
    fitted streak must fade in and out along its motion over about a ball's length at both ends,
    as a swept ball does (:meth:`BallDetector._soft_ends`); a still hand, ball-wide and rounded,
@@ -144,7 +149,11 @@ matches the cloth's brightness over half its area, fails the filled-disc test an
 hue much brighter or darker than it keeps the colour-step outline; a dark ball
 pressed into a touching triangle can still be about 4 mm off; balls inside a touching rack keep
 their coarse fit (every ray of the local edge meets a neighbour), 0.1-3 mm off and a few up to
-13 mm (tests/test_detect.py, strict xfail), and a rack holding a ball of the cloth's own hue (a
+13 mm (tests/test_detect.py, strict xfail), and a ball placed in the room its fitted neighbours
+leave (:meth:`BallDetector._room_ball`) rests on their fits; a rack all of whose balls are fitted
+can still be dropped as an arm where two fits a few mm toward each other (centres under 2 R
+apart) have the creases beside them, wider than a hand's waist test allows, left between them
+(:meth:`BallDetector._bridged`; 2 of 30 scenes of the session-14 rack study); a rack holding a ball of the cloth's own hue (a
 green ball on green cloth, a blue one on blue), or a black ball on grey cloth, is not explained
 and is lost until the break spreads it; a rack present from the clip's first frame is taken
 out of the empty-table model up to 16 balls with their shadows (``BackgroundConfig.max_blob_balls``),
@@ -304,6 +313,20 @@ _CLUSTER_BALLS = 2.5
 # outline against the cloth), and the peaks between balls (votes of the neighbours' rims) 0.07
 # or less: between the two.
 _CLUSTER_VOTE_SHARE = 0.12
+# A room for a ball no fit took in a touching cluster (:meth:`BallDetector._rooms`): the
+# leftover's distance transform at least this share of the image radius deep. Geometry of
+# touching circles: the creases between three leave a hole of inscribed radius 0.155 r, a fit
+# 3 mm off (0.1 R, the racked balls' usual error, tests/test_detect.py) a crescent 0.1 r wide;
+# a ball no fit took leaves its disc less a pixel, or, where its shaded limb falls below the
+# foreground threshold on dark cloth, its lit part, over half its radius deep.
+_ROOM_DEPTH = 0.5
+# A room ball is placed touching the fitted balls within this many radii of the room's point
+# (touching neighbours lie 2 R from its centre; the room's deepest point can lie up to about
+# half a radius off it where part of the disc is not foreground) ...
+_ROOM_REACH = 2.6
+# ... and stands when at least two of them touch it within this share of R (5.7 mm: two
+# neighbours each off by the racked balls' usual 0.1-3 mm error, tests/test_detect.py).
+_ROOM_TOUCH = 0.2
 # The local edge places the outline by the colour off the surround's hue
 # (:func:`_off_hue_edges`) where the rim's colour lies at least this sine (about 14 degrees)
 # off the surround's, twice the cloth's texture and a dark rim's noise (not a measured
@@ -1830,6 +1853,34 @@ class BallDetector:
         is at most the largest ball's image area, and no two of the balls among them
         (:meth:`_casters_only`) are bridged (:meth:`_bridged`); and the rows that are the balls'
         cast shadows (:meth:`_casters_only`, asking for the cloth's hue with ``cluster``)."""
+        rest, mask = self._leftover(comp, origin, rows)
+        balls = self._casters_only(img, rows, hue=cluster)
+        shadows = [r for r in rows if not any(r is b for b in balls)]
+        explained = float(rest.sum()) <= math.pi * self.r_max_px**2 and not self._bridged(comp, origin, mask, balls, shadows)
+        return explained, shadows
+
+    def _settled(self, img: np.ndarray, comp: np.ndarray, origin, rows: list[dict]) -> bool:
+        """Whether the first fits ``rows`` of a free piece larger than ``_CLUSTER_BALLS`` ball
+        images (``comp`` at ``origin`` px) need no second look as a touching cluster
+        (:meth:`_cluster_retry`): they explain it (:meth:`_explained`), leave no room for
+        another ball touching them in it (:meth:`_rooms`, :meth:`_room_ball`: less than a
+        ball's area left over can still be most of a ball, the limb of a dark ball not standing
+        out; a room in the shadow beside them is no ball's), and every row they take for a
+        ball's cast shadow keeps the cloth's hue (a dark ball of another hue in a rack lies
+        beside lit balls as their shadow would, :meth:`_casters_only`)."""
+        explained, shadows = self._explained(img, comp, origin, rows)
+        if not explained:
+            return False
+        balls = [r for r in rows if not any(r is s for s in shadows)]
+        if any(self._room_ball(img, uv, balls) is not None for uv in self._rooms(comp, origin, rows)):
+            return False
+        return len(shadows) == len(self._explained(img, comp, origin, rows, cluster=True)[1]) if shadows else True
+
+    def _leftover(self, comp: np.ndarray, origin, rows: list[dict]) -> tuple[np.ndarray, np.ndarray]:
+        """(rest, mask) of a free piece (``comp``, (h, w) uint8 at ``origin`` px) and the
+        detection rows fitted in it: ``mask`` their outlines (sharp or swept) filled in the
+        piece's frame, ``rest`` the piece less the mask grown by a pixel (the blurred rim),
+        opened by a 3 x 3 square (the thin rims a fit a pixel off leaves)."""
         mask = np.zeros_like(comp)
         for r in rows:
             travel = math.hypot(r["blur_x"], r["blur_y"])
@@ -1840,10 +1891,97 @@ class BallDetector:
         rest = comp.copy()
         rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
         rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-        balls = self._casters_only(img, rows, hue=cluster)
-        shadows = [r for r in rows if not any(r is b for b in balls)]
-        explained = float(rest.sum()) <= math.pi * self.r_max_px**2 and not self._bridged(comp, origin, mask, balls, shadows)
-        return explained, shadows
+        return rest, mask
+
+    def _rooms(self, comp: np.ndarray, origin, rows: list[dict]) -> list[np.ndarray]:
+        """Image points (2,) px, deepest first, where what the sharp balls ``rows`` fitted in a
+        free piece (``comp``, (h, w) uint8 at ``origin`` px) leave of it (:meth:`_leftover`)
+        has room for another ball: peaks of its distance transform at least ``_ROOM_DEPTH`` of
+        the image radius there deep, more than 1.1 radii apart. Touching balls leave only the
+        creases between them (three touching circles of radius r leave a hole whose inscribed
+        circle has radius (2 / sqrt(3) - 1) r = 0.155 r) and the crescents of fits a few mm off
+        (a few tenths of r wide); a ball no fit took leaves its whole disc, less a pixel."""
+        rest, _ = self._leftover(comp, origin, rows)
+        if not rest.any():
+            return []
+        dtm = cv2.distanceTransform(rest, cv2.DIST_L2, 5)
+        peaks = (dtm >= _ROOM_DEPTH * self.r_min_px) & (dtm >= cv2.dilate(dtm, np.ones((3, 3), np.uint8)) - 1e-3)
+        ys, xs = np.nonzero(peaks)
+        out: list[np.ndarray] = []
+        for j in np.argsort(-dtm[ys, xs]):
+            p = np.array([xs[j] + origin[0], ys[j] + origin[1]], float)
+            if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in out) and dtm[ys[j], xs[j]] >= _ROOM_DEPTH * self._image_radius_px(p):
+                out.append(p)
+        return out
+
+    def _fill_rooms(self, img: np.ndarray, comp: np.ndarray, origin, seeds: list[dict], fits: list[dict | None]) -> None:
+        """Extend ``seeds`` and ``fits`` (parallel lists of a touching cluster's piece
+        ``comp`` at ``origin`` px, in place) by the balls its fits leave room for
+        (:meth:`_rooms`, :meth:`_room_ball`), one room at a time, the rooms sought again after
+        each ball placed (at most one per ball image of the piece)."""
+        most = int(comp.sum() / (math.pi * self.r_min_px**2)) + 1
+        for _ in range(most):
+            rows = [r for r in fits if r is not None]
+            if not rows or self._leftover(comp, origin, rows)[0].sum() > 6 * math.pi * self.r_max_px**2:
+                return  # more than six balls unexplained: no cluster (as _unexplained_seeds)
+            for uv in self._rooms(comp, origin, rows):
+                ball = self._room_ball(img, uv, rows)
+                if ball is not None:
+                    seeds.append({"uv": np.array([ball["u"], ball["v"]]), "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False, "piece": (comp, origin)})
+                    fits.append(ball)
+                    break
+            else:
+                return
+
+    def _room_ball(self, img: np.ndarray, uv: np.ndarray, rows: list[dict]) -> dict | None:
+        """A detection row for the ball of a touching cluster that no fit took, lying in a room
+        of its piece (:meth:`_rooms`, image point ``uv`` px) among the sharp balls ``rows``
+        fitted there: placed touching its neighbours (Gauss-Newton on |c - n_i| = 2 R, table
+        frame at ball-centre height, over the rows within ``_ROOM_REACH`` radii of the room's
+        point), as balls in a rack lie. It stands when at least two neighbours touch it so
+        (each |c - n_i| within ``_ROOM_TOUCH`` R of 2 R, no other row nearer than 2 R less that),
+        its disc stands out from the empty table over as much as a fitted ball's must
+        (:meth:`_filled_share`) and, less its neighbours' pixels, is no cast shadow (the cloth
+        darkened with its hue kept and no highlight, :func:`_cast_shadow`). None otherwise.
+        The stated sigma is the touching residuals' RMS with the neighbours' own sigmas."""
+        R = self.R
+        sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
+        if len(sharp) < 2:
+            return None
+        xy = np.array([[r["x"], r["y"]] for r in sharp])
+        c = self.rays.backproject(np.asarray(uv, float)[None], R)[0][:2].astype(float)
+        near = np.hypot(*(xy - c).T) < _ROOM_REACH * R
+        if near.sum() < 2:
+            return None
+        n = xy[near]
+        for _ in range(10):
+            d = np.maximum(np.hypot(*(c - n).T), 1e-6)
+            J = (c - n) / d[:, None]  # d|c - n_i| / dc
+            step = np.linalg.lstsq(J, 2 * R - d, rcond=None)[0]
+            c = c + step
+            if math.hypot(*step) < 0.01:
+                break
+        d_all = np.hypot(*(xy - c).T)
+        touch = np.abs(d_all - 2 * R) <= _ROOM_TOUCH * R
+        if touch.sum() < 2 or np.any(d_all < (2 - _ROOM_TOUCH) * R) or not self._on_table(c[0], c[1]):
+            return None
+        uv_c = self.rays.project(np.array([[c[0], c[1], R]]))[0]
+        r_loc = self._image_radius_px(uv_c)
+        if self._filled_share(img, uv_c, r_loc) < 0.6:
+            return None
+        row = {"frame": 0, "t": 0.0, "x": float(c[0]), "y": float(c[1]), "u": float(uv_c[0]), "v": float(uv_c[1]),
+               "blur_x": 0.0, "blur_y": 0.0, "joined": False}
+        if self._disc_cast_shadow(img, row, sharp):
+            return None
+        colour, pattern = self._identity(img, uv_c, r_loc)
+        res = d_all[touch] - 2 * R
+        sig = math.sqrt(float(np.mean(res**2)) + float(np.mean([sharp[k]["sigma_mm"] ** 2 for k in np.nonzero(touch)[0]])))
+        # Quality as a fit's (share of agreeing rays times exp(-rms / limit)), with the share
+        # of the ball's outline it shares with its touching neighbours instead: a room ball's
+        # position rests on theirs.
+        quality = float(np.clip(min(touch.sum(), 6) / 6 * math.exp(-math.sqrt(float(np.mean(res**2))) / self.config.max_rms_mm), 0.0, 1.0))
+        row.update(quality=quality, colour=colour, pattern=pattern, sigma_mm=max(sig, 0.15))
+        return row
 
     def _cluster_retry(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None]) -> tuple[list[dict], list[dict | None]]:
         """Seeds and fits (parallel lists, as in :meth:`_detect_box`) with each free piece that
@@ -1868,11 +2006,12 @@ class BallDetector:
                 continue  # within reach of an arm coming in over the rail: judged as touching it
             ys, xs = np.nonzero(comp)
             r_loc = self._image_radius_px(np.array([xs.mean() + origin[0], ys.mean() + origin[1]]))
-            if len(xs) <= _CLUSTER_BALLS * math.pi * r_loc**2 or (rows and self._explained(img, comp, origin, rows)[0]):
+            if len(xs) <= _CLUSTER_BALLS * math.pi * r_loc**2 or (rows and self._settled(img, comp, origin, rows)):
                 continue
             new = [dict(q, piece=(comp, origin)) for q in self._cluster_seeds(img, comp, origin, r_loc)]
             got = [self._fit_one(img, q) for q in new]
             self._fit_remainder(img, new, got, cluster=True)
+            self._fill_rooms(img, comp, origin, new, got)
             found = [r for r in got if r is not None]
             if found and self._explained(img, comp, origin, found, cluster=True)[0]:
                 # The balls of an explained cluster have their rings crossed by their
