@@ -402,8 +402,14 @@ class _Track:
             return
         z0, z1, z2, z3 = self.zs[-4:]
         # Third difference z3 - 3 z2 + 3 z1 - z0 per axis: zero along any quadratic path.
+        # Taken as differences of the steps, so repeated detections give exactly 0: summed
+        # as written, rounding of 3 z left 1e-13 mm or nothing depending on the coordinates'
+        # last bits, and the track's noise (``_update``: stated when 0) with it (extra clip
+        # uneven_60fps, frame 48: 0.5 um rounding of a resting ball's detections turned its
+        # filter's spread 0.51 -> 1.6 mm and an assignment with it).
         for ax in (0, 1):
-            self.d3.append(abs(z3[ax] - 3.0 * z2[ax] + 3.0 * z1[ax] - z0[ax]))
+            s1, s2, s3 = z1[ax] - z0[ax], z2[ax] - z1[ax], z3[ax] - z2[ax]
+            self.d3.append(abs((s3 - s2) - (s2 - s1)))
         while len(self.d3) > 2 * window:
             self.d3.popleft()
         n = len(self.d3)
