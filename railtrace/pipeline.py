@@ -158,9 +158,9 @@ def analyse_clip(
     done("detection")
     detections_csv = detections.to_csv(index=False, float_format="%.6f")
     # Tracking and events run on the detections as written (micrometre decimals), so what
-    # they find is what detections.csv reproduces: assignments that hang on a tie were seen
-    # to turn on a 0.5 um difference (extra clip uneven_60fps, frame 48: 2 identity switches
-    # on the unrounded detections, none on the written ones).
+    # they find is what detections.csv reproduces (extra clip uneven_60fps once gave 2 identity
+    # switches on the unrounded detections and none on the written ones, through the tracker's
+    # inexact third differences since mended: _Track.note_scatter).
     detections = pd.read_csv(io.StringIO(detections_csv), dtype={"colour": str, "pattern": str})
     tracks = track(detections, table, config.tracker)
     done("tracking")
