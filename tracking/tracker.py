@@ -328,7 +328,7 @@ class _Track:
         # not lifted (``Tracker._assign``).
         self.turned_unseen = False
         # Where the ball rested when it was last seen, while it is hidden and nothing moving
-        # has come near enough to touch it (``Tracker._note_rest``), else None: (2,) mm.
+        # has come near enough to touch it (``Tracker._resting_at``), else None: (2,) mm.
         self.rest_spot: np.ndarray | None = None
         self.last_seen_t = t
         self.ended: str | None = None
@@ -927,6 +927,21 @@ class Tracker:
         is_obj = (patterns == "solid") | (patterns == "stripe")
         known_colour = colours != ""
         idents: list[np.ndarray] = []  # per track (D,): identity cost of each detection
+
+        def own_reads(tr: _Track, kind: str, tp: str, colour: str, clash: np.ndarray) -> np.ndarray:
+            """(D,) bool: detections read as ``tr``'s own labels (cue ball; object ball of its
+            pattern or unread; a ball of unknown kind: any but the other kind's), its colour
+            where both are known."""
+            own = (is_cue if kind == "cue" else is_obj & ((patterns == tp) | (tp == "unknown"))
+                   if kind == "object" else ~clash)
+            if 2 * tr.patterns["unknown"] > tr.hits:
+                # A ball the detector mostly cannot read is known again by a read like
+                # most of its own, as by a quality like its own (`_sure_quality`).
+                own = own | (patterns == "unknown")
+            if colour:
+                own = own & (~known_colour | (colours == colour))
+            return own
+
         jumps: list[tuple[np.ndarray, float, bool]] = []  # per track: jump distances (D,) mm, interval s, struck
         for i, tr in enumerate(group):
             pr = preds[tr.key]
@@ -944,15 +959,7 @@ class Tracker:
             clash = is_cue if kind == "object" else is_obj if kind == "cue" else np.zeros(D, bool)
             forbid = np.zeros(D, bool)
             if kind != "unknown" and pr["unseen_s"] > self._reid_s:
-                own = is_cue if kind == "cue" else is_obj & ((patterns == tp) | (tp == "unknown"))
-                if 2 * tr.patterns["unknown"] > tr.hits:
-                    # A ball the detector mostly cannot read is known again by a read like
-                    # most of its own, as by a quality like its own (`_sure_quality`).
-                    own = own | (patterns == "unknown")
-                ok = own & (quality >= self._sure_quality([tr]))
-                if colour:
-                    ok &= ~known_colour | (colours == colour)
-                forbid = ~ok
+                forbid = ~(own_reads(tr, kind, tp, colour, clash) & (quality >= self._sure_quality([tr])))
             ident = cfg.pattern_cost * clash
             if colour:
                 ident += cfg.colour_cost * (known_colour & (colours != colour))
@@ -1003,13 +1010,7 @@ class Tracker:
                 shift = np.subtract(tr.zs[k], tr.zs[k - 1])
                 struck = math.hypot(*np.subtract(tr.zs[k - 1], tr.zs[k - 2])) <= lim < math.hypot(*shift)
             if struck:
-                own = (is_cue if kind == "cue" else is_obj & ((patterns == tp) | (tp == "unknown"))
-                       if kind == "object" else ~clash)
-                if 2 * tr.patterns["unknown"] > tr.hits:
-                    own = own | (patterns == "unknown")
-                if colour:
-                    own = own & (~known_colour | (colours == colour))
-                forbid = ~own & (hyps[i] < 1)
+                forbid = ~own_reads(tr, kind, tp, colour, clash) & (hyps[i] < 1)
             ident[forbid] = _INFEASIBLE
             # Velocity jump: anywhere a ball could reach from its previous position this frame
             # (a struck ball: from its last detection, in the time since).

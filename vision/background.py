@@ -214,8 +214,7 @@ def chroma_sigma(image: np.ndarray, model: np.ndarray) -> float:
         return 2.0
     I = np.asarray(image, np.float64).reshape(-1, 3)
     M = np.asarray(model, np.float64).reshape(-1, 3)
-    a = np.einsum("nc,nc->n", I, M) / np.maximum(np.einsum("nc,nc->n", M, M), 1.0)
-    cd = np.linalg.norm(I - a[:, None] * M, axis=1)
+    _, cd = _brightness_chroma(I, M)
     return float(max(np.median(cd) / math.sqrt(2.0 * math.log(2.0)), 0.5))
 
 
@@ -456,11 +455,17 @@ def _chroma_distortion(f: np.ndarray, model: np.ndarray, unclipped: bool = False
         f, model_u = np.where(use, f, 0.0), np.where(use, model, 0.0)
     else:
         model_u = model
-    mm = np.maximum(np.einsum("...c,...c->...", model_u, model_u), 1.0)
-    a = np.einsum("...c,...c->...", f, model_u) / mm
+    a, cd = _brightness_chroma(f, model_u)
     scale = np.maximum(np.sqrt(np.einsum("...c,...c->...", model, model)), 30.0)
-    cd = np.linalg.norm(f - a[..., None] * model_u, axis=-1) / scale
-    return a, cd
+    return a, cd / scale
+
+
+def _brightness_chroma(f: np.ndarray, model: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Brightness ratio ``a = I.M / max(M.M, 1)`` and the chromaticity residual ``|I - a M|``
+    (DN; Horprasert, Harwood & Davis 1999) of (..., 3) colours ``f`` against ``model``; each
+    (...)."""
+    a = np.einsum("...c,...c->...", f, model) / np.maximum(np.einsum("...c,...c->...", model, model), 1.0)
+    return a, np.linalg.norm(f - a[..., None] * model, axis=-1)
 
 
 def _light_pools(f32: np.ndarray, model: np.ndarray, open_cloth: np.ndarray, lab: np.ndarray, keep: np.ndarray, ball_px: float, cap: float) -> np.ndarray:
