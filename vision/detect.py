@@ -1881,6 +1881,15 @@ class BallDetector:
         detection rows fitted in it: ``mask`` their outlines (sharp or swept) filled in the
         piece's frame, ``rest`` the piece less the mask grown by a pixel (the blurred rim),
         opened by a 3 x 3 square (the thin rims a fit a pixel off leaves)."""
+        mask = self._silhouettes(comp, origin, rows)
+        rest = comp.copy()
+        rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
+        rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+        return rest, mask
+
+    def _silhouettes(self, comp: np.ndarray, origin, rows: list[dict]) -> np.ndarray:
+        """(h, w) uint8 in the frame of the piece ``comp`` (at ``origin`` px): the outlines
+        (sharp or swept) of the detection rows ``rows`` filled with 1."""
         mask = np.zeros_like(comp)
         for r in rows:
             travel = math.hypot(r["blur_x"], r["blur_y"])
@@ -1888,10 +1897,7 @@ class BallDetector:
             half = max(0.5 * travel - self.R, 0.0)
             outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
             cv2.fillPoly(mask, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
-        rest = comp.copy()
-        rest[cv2.dilate(mask, np.ones((3, 3), np.uint8)) > 0] = 0
-        rest = cv2.morphologyEx(rest, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
-        return rest, mask
+        return mask
 
     def _rooms(self, comp: np.ndarray, origin, rows: list[dict]) -> list[np.ndarray]:
         """Image points (2,) px, deepest first, where what the sharp balls ``rows`` fitted in a
@@ -2289,11 +2295,7 @@ class BallDetector:
         point along the perpendicular (half-pixel steps), in units of a ball's image diameter
         there (0 when the middle point is not foreground)."""
         if others:
-            gone = np.zeros_like(comp)
-            for r in others:
-                half = max(0.5 * math.hypot(r["blur_x"], r["blur_y"]) - self.R, 0.0)
-                outl = _swept_outline_px(self.camera, r["x"], r["y"], half, math.atan2(r["blur_y"], r["blur_x"]), self.R, self.rays)
-                cv2.fillPoly(gone, [np.round(outl - np.array(origin, float)).astype(np.int32)], 1)
+            gone = self._silhouettes(comp, origin, others)
             comp = comp.copy()
             comp[cv2.dilate(gone, np.ones((3, 3), np.uint8)) > 0] = 0
         p, q = np.array([a["u"], a["v"]], float), np.array([b["u"], b["v"]], float)
