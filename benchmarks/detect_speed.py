@@ -21,8 +21,14 @@ more run of decoding plus detection that charges processor time to the detector'
 stage's own time, its sub-stages' taken out: decoding, the change grid, the background model
 and its update, candidates, the coarse and local outlines, the sphere fits, look-ups of rays
 and projections, labels) and prints them in ms per frame with their call counts; the timers
-themselves add about a tenth. The machine's load averages (1, 5 and 15 minutes) are printed at
-the start and the end: the timings mean little on a machine busy with other jobs.
+themselves add about a tenth; it also splits the frame loop's processor time (decoding left out)
+between the frames detected and those carried over because no cell of the table area changed
+(nothing moved: the detector hands back the previous frame's detections), with the count and
+the cost of each kind. The machine's load averages (1, 5 and 15 minutes) are printed at
+the start and the end: the timings mean little on a machine busy with other jobs. Each run of the
+whole clip also decodes it to downscaled luma alone, as calibration's own pass does
+(``vision.video.iter_grey``), and the medians are printed with the bound the two decoding passes
+set on calibration plus detection: decode-only over both passes' processor time.
 
 Run: ``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3`` and
 ``taskset -c 0 .venv/bin/python benchmarks/detect_speed.py --runs 3 --clip
@@ -51,7 +57,8 @@ from vision.calibrate import calibrate  # noqa: E402
 import vision.background  # noqa: E402
 import vision.detect  # noqa: E402
 from vision.detect import BallDetector, stack_detections  # noqa: E402
-from vision.video import iter_frames, probe  # noqa: E402
+from vision.video import iter_frames, iter_grey, probe  # noqa: E402
+from vision.calibrate import _SMALL_WIDTH_PX  # noqa: E402
 
 # (owner, attribute) of the timed stages, grouped under a name each.
 STAGES = {
@@ -104,6 +111,7 @@ def stage_times(clip, camera, table, frames) -> tuple[int, dict, dict]:
         det = BallDetector(camera, table)
         it = iter_frames(clip, read_ahead=0, stop=frames)
         n = 0
+        rows = None
         while True:
             t0 = time.process_time()
             item = next(it, None)
@@ -111,7 +119,13 @@ def stage_times(clip, camera, table, frames) -> tuple[int, dict, dict]:
             if item is None:
                 break
             calls["decode to BGR"] += 1
-            det.step_rows(*item)
+            t0 = time.process_time()
+            prev, rows = rows, det.step_rows(*item)
+            # The detector hands back the previous frame's very tuple when no cell of the table
+            # area changed (nothing moved): such a frame was carried over, not detected.
+            kind = "carried over" if n and rows is prev else "processed"
+            secs[kind] += time.process_time() - t0
+            calls[kind] += 1
             n += 1
     finally:
         for owner, attr, f in saved:
@@ -143,7 +157,9 @@ def main(argv=None) -> int:
     info = probe(clip)
     whole = args.frames is None or args.frames >= info.frame_count
     print("load averages at the start: " + ", ".join(f"{v:.2f}" for v in os.getloadavg()), flush=True)
-    dec, cal_t, det_t, cpu_dec, cpu_cal, cpu_det = [], [], [], [], [], []
+    dec, cal_t, det_t, cpu_dec, cpu_cal, cpu_det, cpu_luma = [], [], [], [], [], [], []
+    # Calibration's own pass decodes the clip to downscaled luma (vision.calibrate._small_frames).
+    luma_scale = min(1.0, _SMALL_WIDTH_PX / max(info.width, 1))
     camera = truth_camera
     for k in range(args.runs):
         t0, c0 = time.perf_counter(), time.process_time()
@@ -154,6 +170,11 @@ def main(argv=None) -> int:
         found = calibrate(clip, table).camera if whole else truth_camera
         cal_t.append(time.perf_counter() - t0)
         cpu_cal.append(time.process_time() - c0)
+        if whole:
+            c0 = time.process_time()
+            for _ in iter_grey(clip, luma_scale, read_ahead=0):
+                pass
+            cpu_luma.append(time.process_time() - c0)
         camera = truth_camera if args.truth_camera else found
         t0, c0 = time.perf_counter(), time.process_time()
         det = BallDetector(camera, table)
@@ -177,12 +198,24 @@ def main(argv=None) -> int:
             both = med([x + y for x, y in zip(*secs[1:])])
             print(f"  calibration+detection ({what}): {n / both:.1f} frames/s ({1000 * both / n:.2f} ms per frame) = "
                   f"{n / both / fps:.2f}x real time on one core, {d / both:.2f} of decode-only speed")
+            if what == "processor":
+                # Calibration decodes the clip once more, to luma: with no other work at all,
+                # calibration plus detection would still cost both passes.
+                luma = med(cpu_luma)
+                print(f"  calibration's decoding to downscaled luma alone: {1000 * luma / n:.2f} processor ms per frame; "
+                      f"the two passes' decoding bounds calibration+detection at {d / (d + luma):.2f} of decode-only speed")
     if args.stages:
         n, secs, calls = stage_times(clip, camera, table, args.frames)
-        total = sum(secs.values())
+        total = sum(v for k, v in secs.items() if k in STAGES)
         print(f"processor time by stage (one timed run, {n} frames, {1000 * total / n:.1f} ms per frame with the timers):")
         for name in STAGES:
             print(f"  {name:50s} {1000 * secs[name] / n:6.2f} ms per frame  {calls[name] / n:7.2f} calls per frame")
+        # The frame loop's time (decoding left out) by whether the frame was detected or carried
+        # over unchanged; a background update falls on either kind.
+        for kind in ("processed", "carried over"):
+            k = calls[kind]
+            print(f"  frames {kind + ':':14s} {k:6d} of {n} ({100 * k / max(n, 1):5.1f} %), "
+                  f"{1000 * secs[kind] / max(k, 1):7.2f} ms each, {100 * secs[kind] / max(total, 1e-9):5.1f} % of the timed run's processor time")
     print("load averages at the end: " + ", ".join(f"{v:.2f}" for v in os.getloadavg()))
     return 0
 
