@@ -29,7 +29,7 @@ next is what that step costs; a bias that is the lens's shows as ``no_lens`` muc
 ``codec``.
 
 Run: ``.venv/bin/python benchmarks/rest_causes.py [NAME ...] [--seed N] [--work DIR]`` (names
-are extra scene stems; default all five; a few seconds of processor time per scene and variant).
+are extra scene stems; default all seven; a few seconds of processor time per scene and variant).
 """
 
 from __future__ import annotations
