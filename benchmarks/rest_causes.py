@@ -15,7 +15,12 @@ scene's true camera. Variants, each the one before it with one thing added:
   4:2:0 chroma sampling kept);
 * ``codec``: through the scene's own quality, as the extra clips are filmed;
 * ``no_lens``: ``codec`` with the camera's lens distortion set to zero for both the renderer
-  and the detector, so any difference from ``codec`` is the lens's own.
+  and the detector, so any difference from ``codec`` is the lens's own;
+* ``codec_luma`` and ``codec_chroma`` split the ``codec`` step in two: the ``codec`` frames' luma
+  with the ``lossless`` frames' chroma, and the ``lossless`` frames' luma with the ``codec``
+  frames' chroma (both decoded the same way, BT.601, and recombined in OpenCV's BT.601 YCrCb,
+  whose luma and chroma subspaces are the decoder's; rounding aside). H.264 keeps chroma at half
+  resolution (4:2:0) and quantises it on its own; what each half of the step costs shows here.
 
 Each row gives the balls found, the median and p95 of the centre error (mm, table frame, nearest
 detection within a ball radius), and the medians of its component away from the camera's nadir
@@ -24,7 +29,7 @@ next is what that step costs; a bias that is the lens's shows as ``no_lens`` muc
 ``codec``.
 
 Run: ``.venv/bin/python benchmarks/rest_causes.py [NAME ...] [--seed N] [--work DIR]`` (names
-are extra scene stems; default all five; a few seconds of processor time per scene and variant).
+are extra scene stems; default all seven; a few seconds of processor time per scene and variant).
 """
 
 from __future__ import annotations
@@ -35,6 +40,7 @@ import sys
 import tempfile
 from pathlib import Path
 
+import cv2
 import numpy as np
 import pandas as pd
 from scipy.spatial.transform import Rotation
@@ -48,6 +54,8 @@ from vision.render import BallLook, Renderer  # noqa: E402
 from vision.video import iter_frames, write_video  # noqa: E402
 
 VARIANTS = ("clean", "noise", "lossless", "codec", "no_lens")
+# Variants made from two rendered ones (:func:`mixed_frames`): (luma from, chroma from).
+MIXED = {"codec_luma": ("codec", "lossless"), "codec_chroma": ("lossless", "codec")}
 # Grid of resting balls: 7 x 4 over the bed, 2.5 radii in from the noses (clear of the cushion
 # faces, whose own pull rail_bias.py measures), each nudged up to NUDGE_MM so the outlines fall
 # at every phase of the pixel grid.
@@ -85,6 +93,16 @@ def still_frames(scene: Scene, variant: str, at: np.ndarray, rot: np.ndarray, wo
     return frames, cam
 
 
+def mixed_frames(luma: list[np.ndarray], chroma: list[np.ndarray]) -> list[np.ndarray]:
+    """Frames (BGR uint8) with the luma of ``luma``'s frames and the chroma of ``chroma``'s (the
+    same scene, pixel for pixel), recombined in OpenCV's BT.601 YCrCb."""
+    out = []
+    for a, b in zip(luma, chroma):
+        ya, yb = cv2.cvtColor(a, cv2.COLOR_BGR2YCrCb), cv2.cvtColor(b, cv2.COLOR_BGR2YCrCb)
+        out.append(cv2.cvtColor(np.concatenate([ya[..., :1], yb[..., 1:]], axis=2), cv2.COLOR_YCrCb2BGR))
+    return out
+
+
 def errors(scene: Scene, cam, frames: list[np.ndarray], at: np.ndarray) -> pd.DataFrame:
     """Per true ball (N rows): the error (mm) of the nearest detection of the last frame within a
     ball radius (NaN if none) and its components away from the camera's nadir and across."""
@@ -116,8 +134,13 @@ def run(name: str, seed: int, work: Path) -> list[dict]:
     at = grid_positions(scene, rng)
     rot = Rotation.random(len(at), random_state=seed).as_matrix()[None]
     out = []
-    for variant in VARIANTS:
-        frames, cam = still_frames(scene, variant, at, rot, work)
+    made = {}
+    for variant in VARIANTS + tuple(MIXED):
+        if variant in MIXED:
+            frames, cam = mixed_frames(made[MIXED[variant][0]], made[MIXED[variant][1]]), scene.camera
+        else:
+            frames, cam = still_frames(scene, variant, at, rot, work)
+            made[variant] = frames
         E = errors(scene, cam, frames, at)
         ok = E["error"].notna()
         out.append({
@@ -140,7 +163,8 @@ def main(argv: list[str] | None = None) -> int:
         work.mkdir(parents=True, exist_ok=True)
         rows = [r for n in names for r in run(n, args.seed, work)]
     with pd.option_context("display.width", 200):
-        print("resting balls on a grid, centre error (mm): each variant adds one step to the one above it")
+        print("resting balls on a grid, centre error (mm): each variant adds one step to the one above it "
+              "(codec_luma, codec_chroma: the codec step's luma or chroma alone)")
         print(pd.DataFrame(rows).set_index(["scene", "variant"]).round(2).to_string())
     return 0
 

@@ -1,0 +1,39 @@
+"""``benchmarks/rest_causes.py``'s luma/chroma split of the codec step (:func:`mixed_frames`)
+checked against the BT.601 luma and colour-difference formulas written out here (ITU-R BT.601,
+the full-range form of JFIF: Y = 0.299 R + 0.587 G + 0.114 B, Cb = 0.564 (B - Y),
+Cr = 0.713 (R - Y)), not against OpenCV, which the function uses."""
+
+import numpy as np
+
+from benchmarks.rest_causes import mixed_frames
+
+
+def _ycbcr(bgr: np.ndarray) -> np.ndarray:
+    """(..., 3) Y, Cb, Cr (DN, Cb and Cr about 0) of BGR colours by BT.601 (full range)."""
+    b, g, r = (bgr[..., k].astype(float) for k in range(3))
+    y = 0.299 * r + 0.587 * g + 0.114 * b
+    return np.stack([y, 0.564 * (b - y), 0.713 * (r - y)], axis=-1)
+
+
+def test_mixed_frame_takes_luma_from_one_and_chroma_from_the_other():
+    rng = np.random.default_rng(3)
+    # Colours kept within 100..156 so the recombined colours stay inside 0..255 (no clipping,
+    # which would change both parts).
+    a = rng.integers(100, 157, (40, 60, 3), dtype=np.uint8)
+    b = rng.integers(100, 157, (40, 60, 3), dtype=np.uint8)
+    m = mixed_frames([a], [b])[0]
+    ya, yb, ym = _ycbcr(a), _ycbcr(b), _ycbcr(m)
+    # Rounding to 8 bits twice (to YCrCb and back) moves each part by at most about 1.5 DN.
+    assert np.abs(ym[..., 0] - ya[..., 0]).max() <= 1.5
+    assert np.abs(ym[..., 1:] - yb[..., 1:]).max() <= 2.0
+    # ...and the two sources differ by far more than that, so the check can fail.
+    assert np.abs(ya[..., 0] - yb[..., 0]).mean() > 10
+    assert np.abs(ya[..., 1:] - yb[..., 1:]).mean() > 5
+
+
+def test_mixing_a_frame_with_itself_keeps_it():
+    rng = np.random.default_rng(4)
+    a = rng.integers(0, 256, (30, 50, 3), dtype=np.uint8)
+    m = mixed_frames([a], [a])[0]
+    # A BT.601 round trip in 8 bits: within 2 DN per channel (common practice).
+    assert np.abs(m.astype(int) - a).max() <= 2
