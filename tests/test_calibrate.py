@@ -228,19 +228,45 @@ def test_pose_against_opencv_solvepnp(rendered, calibrated):
     assert np.linalg.norm(c_ref - got.centre_mm) < 0.01 * cam.centre_mm[2]
 
 
-def test_plumb_line_recovers_known_distortion():
-    # Analytic: points on straight lines pushed through OpenCV's model (cv2.projectPoints as the
-    # reference) must give back kappa1 = k1 / f^2 within 3 %.
-    cam = Camera.overhead(NINE_FOOT, 2400, SIZE, dist=(-0.2, 0.0, 0, 0, 0), offset_mm=(50, 20))
+def _nose_lines_by_opencv(cam, s):
+    """The four nose lines of a 9 ft table at fractions ``s`` along each, imaged through ``cam``
+    by cv2.projectPoints (OpenCV's own lens model): list of four (N, 2) pixel arrays."""
     h = NINE_FOOT.nose_height_mm
-    s = np.linspace(0.1, 0.9, 40)
     lines = []
     for p0, p1 in zip(NINE_FOOT.outline(), np.roll(NINE_FOOT.outline(), -1, axis=0)):
         X = np.column_stack([p0 + s[:, None] * (p1 - p0), np.full(len(s), h)])
         ref, _ = cv2.projectPoints(X, cam.rvec, cam.tvec, cam.K, cam.dist)
         lines.append(ref[:, 0])
+    return lines
+
+
+def test_plumb_line_recovers_known_distortion():
+    # Analytic: points on straight lines pushed through OpenCV's model (cv2.projectPoints as the
+    # reference) must give back kappa1 = k1 / f^2 within 3 %.
+    cam = Camera.overhead(NINE_FOOT, 2400, SIZE, dist=(-0.2, 0.0, 0, 0, 0), offset_mm=(50, 20))
+    lines = _nose_lines_by_opencv(cam, np.linspace(0.1, 0.9, 40))
     k1, _ = plumb_line_distortion(lines, SIZE, fit_k2=False)
     assert abs(k1 * cam.K[0, 0] ** 2 / -0.2 - 1) < 0.03
+
+
+def test_plumb_line_two_term_lens_undistorts_as_opencv():
+    # Reference: points on the straight nose lines pushed through OpenCV's model with k1 and k2
+    # (cv2.projectPoints) and brought back by OpenCV's own inverse (cv2.undistortPoints, P=K,
+    # iterated to convergence: its default of 5 iterations errs toward the corners, OpenCV's
+    # documentation): the plumb-line fit with k2 free must undistort them to within 0.05 px of
+    # OpenCV's answer everywhere on the lines (a strong wide lens, as the extra set's phone camera)
+    # and give k1 within 3 % (our tolerance).
+    from vision.calibrate import _undistort_px
+
+    cam = Camera.overhead(NINE_FOOT, 2000, SIZE, dist=(-0.32, 0.11, 0, 0, 0), offset_mm=(80, -40), roll_deg=1.0)
+    lines = _nose_lines_by_opencv(cam, np.linspace(0.05, 0.95, 60))
+    kappa = plumb_line_distortion(lines, SIZE, fit_k2=True)
+    f = cam.K[0, 0]
+    assert abs(kappa[0] * f**2 / -0.32 - 1) < 0.03
+    pts = np.concatenate(lines)
+    crit = (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 100, 1e-12)
+    ref = cv2.undistortPoints(pts.reshape(-1, 1, 2), cam.K, cam.dist, R=None, P=cam.K, criteria=crit)[:, 0]
+    assert np.max(np.linalg.norm(_undistort_px(pts, kappa, SIZE) - ref, axis=1)) < 0.05
 
 
 # --- bad input ---------------------------------------------------------------------------------
