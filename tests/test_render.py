@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 
+import cv2
 import numpy as np
 import pytest
 from scipy import ndimage
@@ -322,3 +323,25 @@ def test_fast_path_matches_full_recompute(r_small):
     got = r.render(pos, rot, present, times).astype(float)
     ref = np.clip(r._compose_reference(pos, rot, present, times), 0, 255)
     assert np.abs(got - ref).max() <= 0.5 + 0.25
+
+
+def test_occluder_outlines_are_what_is_drawn(r720):
+    # The outlines benchmarks/visibility.py judges visibility by, against the rendered frame
+    # itself: inside them (less 2 px of anti-aliased edge) the cue and arms replace the
+    # table's colours; outside them (beyond 2 px) the stroke can only dim the table by its
+    # cast shadows, never brighten it (a shadow takes light away; common practice).
+    xy = XY9
+    rest = _frame(r720, xy, t=10.0).astype(int)
+    for t in (0.1, 0.7, 1.0, 1.3):
+        f = _frame(r720, xy, t=t).astype(int)
+        mask = np.zeros(rest.shape[:2], np.uint8)
+        outlines = r720.occluder_outlines(t)
+        assert outlines, t
+        for poly in outlines:
+            cv2.fillConvexPoly(mask, np.round(poly * 16).astype(np.int32), 1, cv2.LINE_8, 4)
+        inside = cv2.erode(mask, np.ones((5, 5), np.uint8)) > 0
+        outside = cv2.dilate(mask, np.ones((5, 5), np.uint8)) == 0
+        changed = np.abs(f - rest).sum(axis=2) > 6
+        assert changed[inside].mean() > 0.9, (t, changed[inside].mean())
+        assert (f - rest)[outside].max() <= 1, t
+    assert r720.occluder_outlines(10.0) == []

@@ -187,6 +187,18 @@ _ZERO4.flags.writeable = False
 _NO_HYP, _JUMP = -1, -2
 
 
+# A ball lost at rest and found again moving was struck in between when its found speed is at
+# least this many times its speed at the last sighting (a strike takes a ball from rest to
+# metres per second; a resting track's velocity noise and the strike's first millimetres in
+# the last sighting give it tens to a couple of hundred mm/s) ...
+_STRIKE_GAIN = 4.0
+# ... and its found heading lies within this angle of the line from that sighting: a struck
+# ball runs straight from its spot until its first contact (common practice); a ball turned by
+# a contact in the gap does not. Not a measured figure: wider than the heading's noise one
+# frame into a run (a few degrees at 1 mm detections over 50 mm steps).
+_STRIKE_AIM_DEG = 10.0
+
+
 @dataclass(frozen=True)
 class TrackerConfig:
     """Knobs of the tracker, each with its physical meaning (mm, s, mm/s).
@@ -1539,7 +1551,58 @@ class Tracker:
         out = np.empty_like(xs)
         for a, b in zip(starts[:-1], starts[1:]):
             out[a:b], _ = rts_smooth(xs[a:b], Ps[a:b], Fs[a:b], Qs[a:b])
+        self._struck_from_rest(tr, out)
         return out
+
+    def _struck_from_rest(self, tr: _Track, xs: np.ndarray) -> None:
+        """Re-estimate, in place in the smoothed states ``xs`` (N, 4) of ``tr``, the frames a
+        ball at rest went unseen before it was found again moving, its velocity restarted
+        there (a break): struck from rest (a cue's strike, or a moving ball's), lost in the
+        frames of the strike (the cue beside it, its first streak) and coasted on its spot
+        meanwhile, so those rows lay where it no longer was.
+
+        A struck ball leaves its spot at once at about the speed it is found with: its speed
+        falls by the sliding friction's deceleration, mu g = 0.2 x 9.81 m/s^2 (DEVELOPERS.md's
+        cloth figure), about 0.2 m/s over the 0.1 s of a few lost frames, a few per cent of a
+        strike's metres per second, and its path is straight until its first contact (common
+        practice). So the rows run back from the first sighting along the line to the rest
+        spot at the found speed; the strike is where that line meets the spot, and the rows
+        before it keep the spot (at rest). Taken for such a strike: a gap ended by a break
+        whose found speed exceeds ``respot_rest_speed_mm_s`` (the events' move-speed scale)
+        and ``_STRIKE_GAIN`` times the speed at the last sighting (which may hold the strike's
+        first millimetres already: 83 mm/s on lamp_50fps's break, 220 mm/s in
+        tests/test_tracker.py), heading within ``_STRIKE_AIM_DEG`` of the line from that
+        sighting (a straight run from the spot; a ball turned by a contact in the gap heads
+        elsewhere). Other gaps keep the coasting."""
+        seen, brk, times = tr.seen, tr.breaks, tr.times
+        rest = self.config.respot_rest_speed_mm_s
+        aim = math.cos(math.radians(_STRIKE_AIM_DEG))
+        for k in range(1, len(xs)):
+            if not (brk[k] and seen[k]) or seen[k - 1]:
+                continue
+            j = k - 1
+            while j >= 0 and not seen[j]:
+                j -= 1
+            if j < 0:
+                continue
+            p0, p1 = xs[j, [0, 2]], xs[k, [0, 2]]
+            speed = math.hypot(xs[k, 1], xs[k, 3])
+            d = float(np.hypot(*(p1 - p0)))
+            if speed < max(rest, _STRIKE_GAIN * math.hypot(xs[j, 1], xs[j, 3])) or d <= 0.0:
+                continue
+            u = (p1 - p0) / d
+            if (xs[k, 1] * u[0] + xs[k, 3] * u[1]) < aim * speed:
+                continue
+            # No earlier than the last sighting at rest: a slower ball than its found speed
+            # says (one that slowed in between) left then.
+            t_strike = max(times[k] - d / speed, times[j])
+            speed = d / (times[k] - t_strike)
+            for m in range(j + 1, k):
+                if times[m] <= t_strike:
+                    xs[m] = (p0[0], 0.0, p0[1], 0.0)
+                else:
+                    p = p0 + u * speed * (times[m] - t_strike)
+                    xs[m] = (p[0], u[0] * speed, p[1], u[1] * speed)
 
     # Tracks are also reachable for tests and callers that want the raw forward estimates.
     def filtered(self) -> pd.DataFrame:

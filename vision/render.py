@@ -1205,6 +1205,21 @@ class Renderer:
         parts.append((elbow_r, r_sh, 45.0, 55.0, sleeve))
         return parts
 
+    def occluder_outlines(self, t_s: float) -> list[np.ndarray]:
+        """The image outlines (each (N, 2) px, pixel frame of ``vision.camera``) of the cue's
+        and arms' bodies at time ``t_s`` (s), as :meth:`_draw_occluder` fills them (their faint
+        cast shadows left out: they only dim what lies under them); empty without an occluder
+        or with no stroke under way. For benchmarks that must know what the occluder hides."""
+        if self.occluder is None:
+            return []
+        out = []
+        for stroke in self.occluder.active(float(t_s)):
+            for p0, p1, r0, r1, _ in self._occluder_parts(stroke, float(t_s) - stroke.t_strike):
+                body = self._capsule_polys(p0, p1, r0, r1)[0]
+                if np.all(np.isfinite(body)):
+                    out.append(body)
+        return out
+
     def _draw_occluder(self, out: np.ndarray, times: np.ndarray, blur_each: bool = False) -> None:
         """Draw the cue and arms over ``out`` (in place): the mean over sub-samples of their
         coverage and colour, and their faint shadows on the cloth from each lamp.
