@@ -1682,3 +1682,29 @@ def test_a_ball_left_creeping_by_a_collision_gets_its_stop(seed):
     assert np.hypot(sp.loc[0, "x"] - rest[0], sp.loc[0, "y"] - rest[1]) < 3.0, (sp, rest)
     assert "start" not in set(mine["kind"]), mine
 
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_a_ball_unseen_for_frames_after_the_strike_keeps_its_start(seed):
+    # A ball struck from rest at 3.3 m/s, seen once 20 mm on and then undetected for five
+    # frames (its streak missed, as lamp_50fps's cue ball under the lamp): the tracker coasts
+    # it under its id at the velocity its one moving sample gave and finds it again some
+    # 230 mm from the coasted place. That jump is the strike, not a ball put down elsewhere: a
+    # ball only slows between contacts, so it can have travelled up to its speed when seen
+    # again times the time unseen (uniformly decelerated motion, Meriam & Kraige, Engineering
+    # Mechanics: Dynamics, ch. 2, from memory). The start (a resting ball set moving by the
+    # cue, results format) must be found within a quarter frame of the strike (before: none,
+    # the motion taken for one already under way when first seen; with only the break mended,
+    # the launch fitted to the samples within ``start_fit_s`` of the first moving one, which
+    # is that one alone, so no fit and the start clipped to that sample's time, 0.3 frames
+    # late on all three seeds; lamp_50fps: the motion's first row, a frame early).
+    fps, t0, v0 = 50.0, 0.5 - 0.3 / 50.0, 3300.0
+    a = decel_path((600.0, 300.0), 40.0, v0, 0.01 * G, t_start=t0)
+    times = np.arange(int(0.8 * fps)) / fps  # 0.3 s and 0.9 m after the strike: on the table
+    k0 = int(math.ceil(t0 * fps))
+    det = detections({"a": a}, times, np.random.default_rng(seed), noise_mm=0.7,
+                     labels={"a": ("white", "cue")}, gaps=[("a", k0 + 1, k0 + 5)])
+    tr = track(det, TABLE)
+    assert tr["track"].nunique() == 1 and (tr["seen"] == 0).sum() == 5  # coasted, as there
+    ev, _ = find_events(tr, TABLE, det)
+    st = _only(ev, "start")
+    assert len(st) == 1 and abs(st.loc[0, "t"] - t0) < 0.25 / fps, (seed, ev[["t", "kind"]])
