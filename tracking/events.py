@@ -35,7 +35,12 @@ Method
    nudged by a break and first seen parted from the rack) or within reach of where a track
    vanished rolling (a slow ball lost and found again under a new id; its motion then counts
    from the loss, so the shot runs on to its stop; ``_add_found_rolling``): it has a stop and
-   no start; a ball put down by hand between shots gets neither.
+   no start; a ball put down by hand between shots gets neither. A ball a solved collision
+   sets going that never reaches the move speed or ``min_travel_mm`` (the far ball of a
+   cluster, left creeping a few centimetres) has a motion too, from the collision to its
+   first rest (``_add_struck_slow``): a stop and no start. A jump onto a seen row from rows
+   the tracker only coasted that the seen row's path traced back explains is a strike the
+   detector missed, not a put-down (``_breaks``).
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
@@ -866,6 +871,7 @@ class _Ball:
     respots: list = field(default_factory=list)  # times the ball was put down elsewhere, s
     strikes: list = field(default_factory=list)  # first instants past a strike from rest, s
     begun: dict = field(default_factory=dict)  # first row -> s a found-rolling motion began
+    struck: dict = field(default_factory=dict)  # first row -> s of the collision that set a slow motion going
     firsts: tuple = (0,)  # first row of each stay on the table (``_motion``)
     fast: list = field(default_factory=list)  # [(i0, i1)] stretches above the rest speed
     weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
@@ -951,13 +957,41 @@ def _breaks(ball: _Ball, diameter_mm: float) -> np.ndarray:
     between consecutive rows further than its smoothed speeds allow: a ball lifted and put down
     elsewhere keeps its id (``tracking.tracker``) but is not one stay on the table. Allowed: a
     diameter (a strike from rest within one frame) plus twice the distance the faster of the
-    two rows' speeds covers in the interval."""
+    two rows' speeds covers in the interval.
+
+    A jump onto a seen row from rows the tracker only coasted (unseen: its prediction, not the
+    ball) is no break where it is a strike the detector missed: the seen row's path, traced
+    back along its velocity, passes within a diameter of the last seen place, no farther back
+    than a diameter plus twice its speed times the time unseen (a ball only slows after a
+    strike, so it covered at most that), and that speed carries it over a diameter in that
+    time (it is moving when seen again). lamp_50fps: the cue ball struck from rest, unseen for
+    five frames at 3.3 m/s and coasted at its resting velocity, was found 269 mm from the
+    coasted place, 8 mm off that traced-back line; the break cost the shot its start. A ball
+    put down by hand lies still when seen again, so its jump stays a break (cushion_check: the
+    cue ball lost rolling and put down 51 mm from where it was last seen, 0.37 s later)."""
     if len(ball.t) < 2:
         return np.zeros(0, dtype=int)
     step = np.hypot(*np.diff(ball.p, axis=0).T)
     sp = np.hypot(*ball.v.T)
     allow = diameter_mm + 2.0 * np.maximum(sp[:-1], sp[1:]) * np.diff(ball.t)
-    return np.flatnonzero((step > allow) | (np.diff(ball.frame) > 1))
+    seen = np.isfinite(ball.raw[:, 0])
+    out = []
+    for j in np.flatnonzero((step > allow) | (np.diff(ball.frame) > 1)):
+        m = j + 1
+        prev = np.flatnonzero(seen[:m])
+        if ball.frame[m] - ball.frame[j] == 1 and seen[m] and len(prev) and prev[-1] < j \
+                and np.all(np.diff(ball.frame[prev[-1]:m + 1]) == 1) and sp[m] > 0:
+            k = int(prev[-1])
+            back = ball.p[k] - ball.p[m]
+            u = ball.v[m] / sp[m]
+            s_back = -float(back @ u)
+            perp = float(np.hypot(*(back + s_back * u)))
+            reach = sp[m] * (ball.t[m] - ball.t[k])
+            if reach > diameter_mm and perp <= diameter_mm and \
+                    0.0 <= s_back <= diameter_mm + 2.0 * reach:
+                continue  # a strike unseen, not a put-down
+        out.append(int(j))
+    return np.asarray(out, dtype=int)
 
 
 def _respots(ball: _Ball, diameter_mm: float) -> list[float]:
@@ -1202,6 +1236,41 @@ def _add_found_rolling(balls: list[_Ball], cfg: EventConfig, diameter_mm: float)
                 b.begun[a] = t_b
 
 
+def _add_struck_slow(balls: list[_Ball], collisions: dict[int, list[tuple[float, int]]],
+                     cfg: EventConfig, dt: float, diameter_mm: float) -> None:
+    """Add to each ball's motions those a collision sets going that the speed hysteresis never
+    counts (``_motion``): a ball struck thinly or at the far end of a cluster (a rack, a ball
+    driven through touching balls) leaves at a few centimetres per second and rolls to rest
+    within ``min_travel_mm`` without its smoothed speed reaching ``move_speed_mm_s``. It has
+    moved all the same (a collision is a velocity change of both balls: equal masses exchange
+    equal and opposite momentum, common practice), so it has a stop. The motion runs from the
+    first row at or after the collision (``collisions``: track -> [(time s, other track)], the
+    solved collision rows) to the row before the ball's first rest window from there on
+    (``_resting``), within its stay on the table; a collision within an existing motion (from
+    three frames before its first row to one frame after its last, as ``_set_moving`` and the
+    stop's last contact count them) adds none, nor one after which the ball never rests on
+    the table (pocketed, lifted, or still rolling at the clip's end). ``_Ball.struck`` holds
+    each added motion's collision time, where the motion begins (no start: the collision set
+    it going)."""
+    for b in balls:
+        times = sorted(t for t, _ in collisions.get(b.track, []))
+        if not times or len(b.t) < 2:
+            continue
+        _, _, piece_end = _stays(b, diameter_mm)
+        rest, _ = _rest_windows(b, cfg, piece_end)
+        for tc in times:
+            if any(b.t[i0] - 3 * dt <= tc <= b.t[i1] + dt for i0, i1 in b.moves):
+                continue
+            i0 = int(np.searchsorted(b.t, tc))
+            if i0 >= len(b.t):
+                continue
+            still = np.flatnonzero(rest[i0:piece_end[i0] + 1])
+            if not len(still):
+                continue
+            b.moves = sorted(b.moves + [(i0, max(i0, i0 + int(still[0]) - 1))])
+            b.struck[i0] = float(tc)
+
+
 def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
     """Detection noise per axis (mm), (white, at the fits' scale).
 
@@ -1339,6 +1408,7 @@ def find_events(
         if r is not None:
             rows.append(r)
     _add_found_rolling(balls, cfg, table.ball_diameter_mm)
+    _add_struck_slow(balls, collisions_by_ball, cfg, dt, table.ball_diameter_mm)
     moves = []  # (track, t_begin, t_end)
     for b in balls:
         # Last row of each stay on the table: before a gap in the frames or a jump.
@@ -1348,6 +1418,8 @@ def find_events(
                    if _set_moving(finder, b, (i0, i1), by_id[o], tc)]
             if hit:
                 t_begin = min(hit)
+            elif i0 in b.struck:
+                t_begin = b.struck[i0]
             elif i0 in b.firsts:
                 t_begin = b.begun.get(i0, float(b.t[i0]))  # already moving when first seen
             else:
@@ -2790,7 +2862,10 @@ class _Finder:
         """The instant ``b`` leaves rest, from its first moving samples extrapolated back."""
         p_rest, rest_t, ts, ps = self._leaving(b, i0)
         if len(ts):  # none where the ball was unseen all along (coasted under an arm)
-            keep = ts <= ts[0] + self.cfg.start_fit_s
+            # Two samples at least, the fewest a line needs: a ball struck from rest may go
+            # unseen for frames while its streak is missed, and the sample after that gap
+            # still fixes its launch better than the motion's first row (a frame early).
+            keep = ts <= max(ts[0] + self.cfg.start_fit_s, ts[min(1, len(ts) - 1)])
             ts, ps = ts[keep], ps[keep]
         t_prev = float(rest_t[-1]) if len(rest_t) else b.t[i0] - self.dt
         if len(ts) >= 2:
