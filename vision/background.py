@@ -439,6 +439,16 @@ _POOL_WINDOW_BALLS = 5.0
 _POOL_SAMPLE_CHROMA = 0.1
 
 
+# The ball score's constants (vision.detect.ballness, and _pool_distance here), after Horprasert,
+# Harwood & Davis (1999)'s brightness/chromaticity split: a brightness ratio above LIT_RATIO is a
+# lit ball or a highlight, below DARK_RATIO darker than a cast shadow leaves the cloth (from memory,
+# see ballness), weighted DARK_WEIGHT; chromaticity is scaled by the colour's norm floored at
+# COLOUR_FLOOR_DN (DN) so a near-black cloth's ratio stays finite.
+LIT_RATIO = 1.15
+DARK_RATIO = 0.5
+DARK_WEIGHT = 1.5
+COLOUR_FLOOR_DN = 30.0
+
 # A channel at or above this level (DN of 0..255) is taken as clipped by the sensor (255, less
 # a codec's ringing): its share of the colour is not measured.
 _CLIPPED_DN = 250.0
@@ -456,7 +466,7 @@ def _chroma_distortion(f: np.ndarray, model: np.ndarray, unclipped: bool = False
     else:
         model_u = model
     a, cd = _brightness_chroma(f, model_u)
-    scale = np.maximum(np.sqrt(np.einsum("...c,...c->...", model, model)), 30.0)
+    scale = np.maximum(np.sqrt(np.einsum("...c,...c->...", model, model)), COLOUR_FLOOR_DN)
     return a, cd / scale
 
 
@@ -531,8 +541,8 @@ def _pool_distance(f: np.ndarray, local: np.ndarray) -> np.ndarray:
     shadow do not stand out by it; a ball's colour, a white ball's brightness and a black ball's
     darkness do."""
     a, cd = _chroma_distortion(f, local)
-    score = cd + np.maximum(a - 1.15, 0.0) + 1.5 * np.maximum(0.5 - a, 0.0)
-    return score * np.maximum(np.sqrt(np.einsum("nc,nc->n", local, local)), 30.0)
+    score = cd + np.maximum(a - LIT_RATIO, 0.0) + DARK_WEIGHT * np.maximum(DARK_RATIO - a, 0.0)
+    return score * np.maximum(np.sqrt(np.einsum("nc,nc->n", local, local)), COLOUR_FLOOR_DN)
 
 
 def _sample(image: np.ndarray, u: np.ndarray, v: np.ndarray) -> np.ndarray:

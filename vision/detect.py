@@ -190,7 +190,8 @@ import cv2
 import numpy as np
 import pandas as pd
 
-from vision.background import Background, BackgroundConfig, ball_zone, cloth_zone, components_8, max_abs_diff
+from vision.background import (COLOUR_FLOOR_DN, DARK_RATIO, DARK_WEIGHT, LIT_RATIO, Background, BackgroundConfig, ball_zone,
+                               cloth_zone, components_8, max_abs_diff)
 from vision.camera import Camera
 from vision.table import TableSpec
 from vision.video import area_down, iter_frames
@@ -454,7 +455,7 @@ def _background_terms(B: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
     ``B``: ``B.B``, ``max(B.B, 1)`` and ``max(|B|, 30)``, each (...) float32. A model that
     stays the same over many frames has them made once (:meth:`BallDetector._reaching`)."""
     bb = _dot3_f32(B, B)
-    return bb, np.maximum(bb, 1.0), np.maximum(np.sqrt(bb), 30.0)
+    return bb, np.maximum(bb, 1.0), np.maximum(np.sqrt(bb), COLOUR_FLOOR_DN)
 
 
 def _ballness(I: np.ndarray, B: np.ndarray, bb: np.ndarray, bb1: np.ndarray, bn: np.ndarray) -> np.ndarray:
@@ -480,12 +481,12 @@ def _ballness_of(ib: np.ndarray, a: np.ndarray, s: np.ndarray, bb: np.ndarray, b
     np.maximum(s, 0.0, out=s)
     np.sqrt(s, out=s)
     s /= bn
-    np.subtract(a, 1.15, out=t)
+    np.subtract(a, LIT_RATIO, out=t)
     np.maximum(t, 0.0, out=t)
     s += t
-    np.subtract(0.5, a, out=t)
+    np.subtract(DARK_RATIO, a, out=t)
     np.maximum(t, 0.0, out=t)
-    t *= 1.5
+    t *= DARK_WEIGHT
     s += t
     return s
 
@@ -990,7 +991,7 @@ def _cast_shadow(I: np.ndarray, B: np.ndarray) -> bool:
     I = np.asarray(I, np.float32)
     B = np.asarray(B, np.float32)
     a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
-    if float(a.max()) > 1.15:
+    if float(a.max()) > LIT_RATIO:
         return False
     am, same_hue = _mean_brightness_hue(I, B)
     return am < 1.0 / _SAME_BRIGHT and same_hue
@@ -1022,7 +1023,7 @@ def _unlit(I: np.ndarray, B: np.ndarray) -> bool:
     B = np.asarray(B, np.float32)
     a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
     Im, Bm = I.mean(axis=0), B.mean(axis=0)
-    return float(a.max()) <= 1.15 and float(Im @ Bm) / max(float(Bm @ Bm), 1.0) < 1.0 / _SAME_BRIGHT
+    return float(a.max()) <= LIT_RATIO and float(Im @ Bm) / max(float(Bm @ Bm), 1.0) < 1.0 / _SAME_BRIGHT
 
 
 def _off_white_cloth(I: np.ndarray, W: np.ndarray, C: np.ndarray) -> np.ndarray:
@@ -1429,7 +1430,7 @@ class BallDetector:
         its sigma rose from 1.3 to 7.2 DN, the chromaticity's stayed 0.8-1.1, extra clip
         cheapwide_25fps)."""
         sigma = min(self.background.sigma, _LIGHT_CHANGE_RATIO * self.background.chroma_sigma)
-        return max(self.config.fg_sigmas * sigma * math.sqrt(2) / max(self._b_norm, 30.0), self.config.fg_min_score)
+        return max(self.config.fg_sigmas * sigma * math.sqrt(2) / max(self._b_norm, COLOUR_FLOOR_DN), self.config.fg_min_score)
 
     def _protect_mask(self, det: tuple[dict, ...]) -> np.ndarray:
         w, h = self.size
@@ -1671,7 +1672,7 @@ class BallDetector:
             us, vs = xs + bx + u0, ys + by + v0
             I = img[vs, us].astype(np.float32)
             B = self.background.image[vs, us]
-            if np.mean(_dot3(I, B) / np.maximum(_dot3(B, B), 1.0)) < 1.15:
+            if np.mean(_dot3(I, B) / np.maximum(_dot3(B, B), 1.0)) < LIT_RATIO:
                 continue
             uv = np.array([us.mean(), vs.mean()])
             if len(done) and np.min(np.hypot(done[:, 0] - uv[0], done[:, 1] - uv[1])) < self.ball_px:
@@ -2174,7 +2175,7 @@ class BallDetector:
         I = img[vs, us].astype(np.float32)
         B = self.background.image[vs, us]
         a = _dot3(I, B) / np.maximum(_dot3(B, B), 1.0)
-        lit = (_chroma_off(I, B, a) >= _HUE_STEP) | (a > 1.15)
+        lit = (_chroma_off(I, B, a) >= _HUE_STEP) | (a > LIT_RATIO)
         others = [r for r in found if r is not shadow]
         if others:
             lit &= ~self._inside_any(us, vs, others)
@@ -2378,7 +2379,7 @@ class BallDetector:
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
         # |I - B| is linear in the coverage for a ball of one colour (I = c P + (1 - c) B).
-        D = (np.linalg.norm(f - b, axis=2) / np.maximum(np.linalg.norm(b, axis=2), 30.0)).mean(axis=0)
+        D = (np.linalg.norm(f - b, axis=2) / np.maximum(np.linalg.norm(b, axis=2), COLOUR_FLOOR_DN)).mean(axis=0)
         D = np.convolve(D, np.ones(3) / 3, mode="same")
         plateau = float(np.percentile(D[np.abs(s) <= h], 90))
         if plateau <= 0:
@@ -2608,7 +2609,7 @@ class BallDetector:
         # The dot products below serve D, the shade test and :func:`ballness` alike (the same
         # float32 values as each computing its own: tests/test_detect.py).
         bb_raw = _dot3(bprof, bprof)
-        bn = np.maximum(np.sqrt(bb_raw), 30.0)
+        bn = np.maximum(np.sqrt(bb_raw), COLOUR_FLOOR_DN)
         D = _norm3(prof - ref[:, None]) / bn
         # A cast shadow differs from the cloth just beyond it but only dims the empty table: a
         # sample no brighter than the model and within ~4.6 degrees of its colour's direction
@@ -3087,7 +3088,7 @@ class BallDetector:
         prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
         P, S = prof[:, :4].mean(axis=1), prof[:, 4:].mean(axis=1)
         a = _dot3(P, S) / np.maximum(_dot3(S, S), 1.0)
-        shade = (a >= 0.5) & (a <= 1.15) & (_chroma_off(P, S, a) < 0.08)
+        shade = (a >= DARK_RATIO) & (a <= LIT_RATIO) & (_chroma_off(P, S, a) < 0.08)
         return float(np.mean(~shade))
 
     def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
