@@ -40,7 +40,10 @@ Method
    cluster, left creeping a few centimetres) has a motion too, from the collision to its
    first rest (``_add_struck_slow``): a stop and no start. A jump onto a seen row from rows
    the tracker only coasted that the seen row's path traced back explains is a strike the
-   detector missed, not a put-down (``_breaks``).
+   detector missed, not a put-down (``_breaks``). A stretch begins where the ball left its
+   rest for good: reads off the spot that come back to it, or back onto such an off read,
+   before the ball has travelled ``min_travel_mm`` are the detector flicking, not a start
+   (``_left_for_good``; a ball struck from rest never returns before its next contact).
 2. Contacts are found roughly, at frame level: a cushion contact where the velocity component
    normal to a rail changes sign near that rail's reversal line (``TableSpec.reversal_line``);
    a collision where two balls' centres come within a diameter (plus a margin) and at least one
@@ -1129,6 +1132,10 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     # A motion is real only if the ball travels: a resting ball's jittery detections, a new
     # track's first velocity estimates or a flickering false detection can lift the smoothed
     # speed over the threshold in place.
+    # Nor does it begin before the ball has left its spot for good (``_left_for_good``).
+    stay_of = [int(firsts[np.searchsorted(firsts, a, side="right") - 1]) for a, _ in runs]
+    runs = [r for r in (_left_for_good(ball, a, b, cfg, p0) for (a, b), p0 in zip(runs, stay_of))
+            if r is not None]
     runs = [(a, b) for a, b in runs
             if (ball.t[b] - ball.t[a] >= cfg.min_move_s or b > a + 2)
             and np.max(np.hypot(*(ball.p[a:b + 1] - ball.p[a]).T)) >= cfg.min_travel_mm]
@@ -1167,6 +1174,69 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
         b = b + int(still[0]) if len(still) else int(piece_end[b])
         merged.append((a, max(a, b)))
     ball.moves = merged
+
+
+def _rest_position(b: _Ball, i0: int, lo: float, dt: float) -> tuple[np.ndarray, np.ndarray, float]:
+    """Where ``b`` rests before row ``i0``: the median (2,) mm of its raw samples over the half
+    second before that row (after ``lo``, s), their times (n,) s, and the distance (mm) beyond
+    which a sample is clearly off that place (three times the samples' median scatter about it,
+    at least 1 mm)."""
+    rest_t, rest_p = b.samples(max(lo, b.t[i0] - 0.5) - 1e-9, b.t[i0] - 0.5 * dt)
+    if not len(rest_p):
+        rest_p = b.p[max(0, i0 - 1)][None]
+        rest_t = b.t[max(0, i0 - 1)][None]
+    p_rest = np.median(rest_p, axis=0)
+    scatter = float(np.median(np.hypot(*(rest_p - p_rest).T))) if len(rest_p) > 2 else 0.0
+    return p_rest, rest_t, max(3.0 * scatter, 1.0)
+
+
+def _returned(raw: np.ndarray, p_rest: np.ndarray, thr: float, reach_mm: float) -> int | None:
+    """Index into ``raw`` (n, 2) mm (NaN where unseen), samples from a ball's rest at
+    ``p_rest`` (2,) mm on, of the last seen sample that is back where the ball has lain
+    since, after one clearly off it (beyond ``thr`` mm), or None. Back where it has lain:
+    within ``thr`` of the rest position, or of a sample off it that the reads came back from
+    (the detector flicking between the ball and its error). Scanned until a sample lies
+    ``reach_mm`` from the rest position (the ball has then travelled)."""
+    places = [np.asarray(p_rest, float)]
+    offs: list[np.ndarray] = []
+    last = None
+    for k, z in enumerate(raw):
+        if not np.isfinite(z[0]):
+            continue
+        if math.hypot(*(z - p_rest)) > reach_mm:
+            break
+        if min(math.hypot(*(z - q)) for q in places) <= thr:
+            if offs or last is not None:
+                last = k
+            places.extend(offs)
+            offs = []
+        else:
+            offs.append(z)
+    return last
+
+
+def _left_for_good(ball: _Ball, a: int, b: int, cfg: EventConfig, p0: int) -> tuple[int, int] | None:
+    """The moving stretch rows ``a..b`` of ``ball`` (stay beginning at row ``p0``) begun where
+    the ball left its rest position for good, or None when nothing of it is left.
+
+    A ball struck from rest runs away from its spot until its next contact (it only slows;
+    Alciatore 2004): it never comes back to where it lay, nor to a place it has been, before
+    it has travelled. So raw samples back on the rest position (``_rest_position``) after
+    samples off it, or back on such an off sample, show that the ball had not left yet: the
+    detector was flicking between the ball and an error. The stretch begins after the last
+    such return, found before the ball is ``min_travel_mm`` from its spot (``_returned``).
+    Extra clip uneven_60fps (automatic calibration): ball 15, resting, read 4.2 mm off its spot
+    toward the cue ball rolling at it in frames 595, 596, 598 and 599 and back on it in 597
+    (stated sigma 0.6-0.9 mm, a carried-over read's scatter 0), was struck at frame 599.1;
+    the tracker's velocity restarts lifted its smoothed speed over the move speed from frame
+    597, so its stretch began at frame 594, the collision came too late after it to count as
+    what set it going (``_set_moving``) and a start at 9.917 s (23 mm/s) was reported."""
+    dt = float(np.median(np.diff(ball.t))) if len(ball.t) > 1 else 0.0
+    p_rest, _, thr = _rest_position(ball, a, float(ball.t[p0]) - 1e-9, dt)
+    r = _returned(ball.raw[a:b + 1], p_rest, thr, cfg.min_travel_mm)
+    if r is None:
+        return a, b
+    return (a + r + 1, b) if a + r + 1 <= b else None
 
 
 def _rest_windows(ball: _Ball, cfg: EventConfig, piece_end: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -2844,17 +2914,16 @@ class _Finder:
         one clearly off the rest position on (more than three times the rest samples' median
         scatter, at least 1 mm; times (m,) s, positions (m, 2) mm)."""
         lo, hi = b.bounds(b.t[i0], 1.5 * self.dt)
-        t_rest0 = max(lo, b.t[i0] - 0.5)
-        rest_t, rest_p = b.samples(t_rest0 - 1e-9, b.t[i0] - 0.5 * self.dt)
-        if not len(rest_p):
-            rest_p = b.p[max(0, i0 - 1)][None]
-            rest_t = b.t[max(0, i0 - 1)][None]
-        p_rest = np.median(rest_p, axis=0)
-        scatter = float(np.median(np.hypot(*(rest_p - p_rest).T))) if len(rest_p) > 2 else 0.0
-        thr = max(3.0 * scatter, 1.0)
+        p_rest, rest_t, thr = _rest_position(b, i0, lo, self.dt)
         ts, ps = b.samples(b.t[max(0, i0 - 3)] - 1e-9, min(hi, b.t[i0] + self.cfg.start_fit_s
                                                           + 4 * self.dt))
+        # Reads off the spot that come back by the motion's first row are not its leaving
+        # (``_left_for_good``).
+        bt, bp = b.samples(max(lo, b.t[i0] - 0.5) - 1e-9, b.t[i0] + 1e-9)
+        back = _returned(bp, p_rest, thr, self.cfg.min_travel_mm)
         off = np.hypot(*(ps - p_rest).T) > thr
+        if back is not None:
+            off &= ts > bt[back]
         first = int(np.argmax(off)) if off.any() else 0
         return p_rest, rest_t, ts[first:], ps[first:]
 
