@@ -1081,8 +1081,9 @@ class Tracker:
             sure = self._sure_quality([tr]) if tr.misses and moving else cfg.birth_min_quality
             ok = (dist <= reach) & (hyps[i] == _NO_HYP) & (quality >= sure) & ~passed
             # A ball at rest with a ball rolling at it, not yet there, has not been struck: it
-            # cannot jump yet (`_awaits_striker`).
-            if self._awaits_striker(tr, preds):
+            # cannot jump yet (`_awaits_striker`; asked only where a jump is open, as it looks
+            # at every live track).
+            if ok.any() and self._awaits_striker(tr, preds):
                 ok[:] = False
             cost[i, ok] = cj[ok]
             hyps[i, ok] = _JUMP
