@@ -53,10 +53,10 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from scipy.optimize import linear_sum_assignment
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
+from benchmarks.visibility import POCKET_MM, match_frame  # noqa: E402
 from railtrace.filming import film_scene, simulate_scene  # noqa: E402
 from railtrace.scene import parse_scene  # noqa: E402
 from vision.calibfile import read_calibration  # noqa: E402
@@ -367,13 +367,10 @@ def evaluate(name: str, work: Path, save: Path | None = None, scenes: dict = SCE
         matched_t, matched_d = set(), set()
         if d is not None and len(d):
             Q = d[["x", "y"]].to_numpy()
-            D = np.linalg.norm(P[:, None] - Q[None], axis=2)
-            ri, ci = linear_sum_assignment(D)
-            for a, b in zip(ri, ci):
-                if D[a, b] < gate:
-                    matched_t.add(a)
-                    matched_d.add(b)
-                    rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), D[a, b], bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a], P[a, 0], P[a, 1], Q[b, 0] - P[a, 0], Q[b, 1] - P[a, 1], d["sigma_mm"].iloc[b], ball_gap[a], rail_gap[a]))
+            for a, b in match_frame(P, Q, gate):
+                matched_t.add(a)
+                matched_d.add(b)
+                rows.append((f, g["label"].iloc[a], float(np.hypot(g["vx"].iloc[a], g["vy"].iloc[a])), float(np.linalg.norm(P[a] - Q[b])), bool(g["hidden"].iloc[a]), d["pattern"].iloc[b], g["pattern"].iloc[a], P[a, 0], P[a, 1], Q[b, 0] - P[a, 0], Q[b, 1] - P[a, 1], d["sigma_mm"].iloc[b], ball_gap[a], rail_gap[a]))
             for b in set(range(len(Q))) - matched_d:
                 false_rows.append((f, Q[b, 0], Q[b, 1], bool(g["hidden"].any())))
         for a in set(range(len(P))) - matched_t:
@@ -385,7 +382,7 @@ def evaluate(name: str, work: Path, save: Path | None = None, scenes: dict = SCE
     pockets = np.array([p.mouth_centre for p in table.pockets()])
     if len(F):
         dp = np.linalg.norm(F[["x", "y"]].to_numpy()[:, None] - pockets[None], axis=2).min(axis=1)
-        F["pocket"] = dp < 80
+        F["pocket"] = dp < POCKET_MM
     else:
         F["pocket"] = pd.Series(dtype=bool)
     if save is not None:

@@ -99,10 +99,21 @@ def occluder_cover(scene: Scene, tracks: pd.DataFrame, grow_px: float = 1.0,
     return cover
 
 
+def match_frame(truth_xy: np.ndarray, det_xy: np.ndarray, gate_mm: float) -> list[tuple[int, int]]:
+    """One frame's one-to-one matching of detections to truth balls: the Hungarian assignment
+    (Kuhn 1955, scipy's ``linear_sum_assignment``) on centre distance (mm), pairs farther apart
+    than ``gate_mm`` dropped. ``truth_xy`` (N, 2) and ``det_xy`` (M, 2) in table mm; returns
+    (truth row, detection row) pairs. The one matching rule of detect_accuracy and this module."""
+    if not len(truth_xy) or not len(det_xy):
+        return []
+    D = np.linalg.norm(np.asarray(truth_xy, float)[:, None] - np.asarray(det_xy, float)[None], axis=2)
+    return [(int(a), int(b)) for a, b in zip(*linear_sum_assignment(D)) if D[a, b] < gate_mm]
+
+
 def _frame_matches(truth: pd.DataFrame, det: pd.DataFrame, gate_mm: float) -> tuple[np.ndarray, list[int]]:
-    """Per frame, Hungarian assignment of detections to truth balls within ``gate_mm``
-    (benchmarks/detect_accuracy.py's rule): (len(truth),) bool matched, and the row positions
-    in ``det`` of the detections left unmatched."""
+    """Per frame, :func:`match_frame` of detections to truth balls within ``gate_mm``:
+    (len(truth),) bool matched, and the row positions in ``det`` of the detections left
+    unmatched."""
     matched = np.zeros(len(truth), bool)
     unmatched: list[int] = []
     tpos = truth[["x", "y"]].to_numpy(dtype=float)
@@ -110,13 +121,9 @@ def _frame_matches(truth: pd.DataFrame, det: pd.DataFrame, gate_mm: float) -> tu
     t_by = truth.groupby("frame").indices
     for f, di in det.groupby("frame").indices.items():
         ti = t_by.get(f, np.zeros(0, int))
-        used = set()
-        if len(ti):
-            D = np.linalg.norm(tpos[ti][:, None] - dpos[di][None], axis=2)
-            for a, b in zip(*linear_sum_assignment(D)):
-                if D[a, b] < gate_mm:
-                    matched[ti[a]] = True
-                    used.add(b)
+        pairs = match_frame(tpos[ti], dpos[di], gate_mm)
+        matched[ti[[a for a, _ in pairs]]] = True
+        used = {b for _, b in pairs}
         unmatched += [int(di[b]) for b in range(len(di)) if b not in used]
     return matched, unmatched
 

@@ -104,3 +104,30 @@ def test_cover_matches_the_rendered_frames(scene_truth):
         assert abs(cover[row] - changed) <= 0.05, (f, changed, cover[row])
         checked += 1
     assert checked >= 5
+
+
+def test_match_frame_is_the_optimal_gated_assignment():
+    # Reference: the assignment problem's optimum by exhaustive search over permutations
+    # (Kuhn 1955 defines the problem; brute force is its definition, outside scipy).
+    import itertools
+
+    from benchmarks.visibility import match_frame
+
+    rng = np.random.default_rng(3)
+    for _ in range(40):
+        n, m = int(rng.integers(1, 5)), int(rng.integers(1, 5))
+        T = rng.uniform(0, 200, (n, 2))
+        Q = np.vstack([T[: min(n, m)] + rng.normal(0, 15, (min(n, m), 2)), rng.uniform(0, 200, (m - min(n, m), 2))])
+        D = np.linalg.norm(T[:, None] - Q[None], axis=2)
+        k = min(n, m)
+        best = min(
+            sum(D[a, b] for a, b in zip(rows, cols))
+            for rows in itertools.combinations(range(n), k)
+            for cols in itertools.permutations(range(m), k)
+        )
+        pairs = match_frame(T, Q, gate_mm=28.6)
+        full = match_frame(T, Q, gate_mm=np.inf)
+        assert len(full) == k
+        assert abs(sum(D[a, b] for a, b in full) - best) < 1e-9
+        assert sorted(pairs) == sorted((a, b) for a, b in full if D[a, b] < 28.6)
+    assert match_frame(np.zeros((0, 2)), np.ones((2, 2)), 10.0) == []
