@@ -20,7 +20,13 @@ scene's true camera. Variants, each the one before it with one thing added:
   with the ``lossless`` frames' chroma, and the ``lossless`` frames' luma with the ``codec``
   frames' chroma (both decoded the same way, BT.601, and recombined in OpenCV's BT.601 YCrCb,
   whose luma and chroma subspaces are the decoder's; rounding aside). H.264 keeps chroma at half
-  resolution (4:2:0) and quantises it on its own; what each half of the step costs shows here.
+  resolution (4:2:0) and quantises it on its own; what each half of the step costs shows here;
+* ``codec_seeded``: the ``codec`` frames, each ball fitted once more after the detector has run
+  (its empty-table model made) from a sharp seed at the image of its true centre, instead of
+  the seed its piece of foreground gave: what is left is the outline's own error (the coarse and
+  sub-pixel outline rounds drifting from the right start), and what ``codec`` adds over it comes
+  from where the fit started (the piece's seed and the coarse rounds, which a shadow the codec
+  has coloured like the ball pulls toward itself).
 
 Each row gives the balls found, the median and p95 of the centre error (mm, table frame, nearest
 detection within a ball radius), and the medians of its component away from the camera's nadir
@@ -103,13 +109,17 @@ def mixed_frames(luma: list[np.ndarray], chroma: list[np.ndarray]) -> list[np.nd
     return out
 
 
-def errors(scene: Scene, cam, frames: list[np.ndarray], at: np.ndarray) -> pd.DataFrame:
+def errors(scene: Scene, cam, frames: list[np.ndarray], at: np.ndarray, seeded: bool = False) -> pd.DataFrame:
     """Per true ball (N rows): the error (mm) of the nearest detection of the last frame within a
-    ball radius (NaN if none) and its components away from the camera's nadir and across."""
+    ball radius (NaN if none) and its components away from the camera's nadir and across.
+    ``seeded``: each ball's detection is instead the detector's fit of the last frame from a
+    sharp seed at the image of its true centre (:func:`seeded_fits`)."""
     det = BallDetector(cam, scene.table)
     out = None
     for i, f in enumerate(frames):
         out = det.process(i, i / scene.film.fps, f)
+    if seeded:
+        out = seeded_fits(det, frames[-1], at, scene.table.radius_mm)
     q = out[["x", "y"]].to_numpy() if len(out) else np.zeros((0, 2))
     nadir = np.asarray(cam.centre_mm[:2], float)
     rows = []
@@ -126,6 +136,19 @@ def errors(scene: Scene, cam, frames: list[np.ndarray], at: np.ndarray) -> pd.Da
     return pd.DataFrame(rows)
 
 
+def seeded_fits(det: BallDetector, frame: np.ndarray, at: np.ndarray, R: float) -> pd.DataFrame:
+    """Fits (columns x, y, mm) of ``frame`` by ``det`` (its empty-table model already made by
+    :meth:`BallDetector.process`) from a sharp seed at the image of each true centre ``at``
+    ((N, 2) mm, R above the cloth); balls whose fit fails are left out."""
+    uv = det.rays.project(np.column_stack([at, np.full(len(at), R)]))
+    rows = []
+    for p in uv:
+        fit = det._fit_seed(frame, {"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": False})
+        if fit is not None:
+            rows.append({"x": fit["x"], "y": fit["y"]})
+    return pd.DataFrame(rows, columns=["x", "y"])
+
+
 def run(name: str, seed: int, work: Path) -> list[dict]:
     """One row per variant of scene ``name``: balls found, error median and p95, radial and
     across medians (mm)."""
@@ -135,13 +158,15 @@ def run(name: str, seed: int, work: Path) -> list[dict]:
     rot = Rotation.random(len(at), random_state=seed).as_matrix()[None]
     out = []
     made = {}
-    for variant in VARIANTS + tuple(MIXED):
+    for variant in VARIANTS + tuple(MIXED) + ("codec_seeded",):
         if variant in MIXED:
             frames, cam = mixed_frames(made[MIXED[variant][0]], made[MIXED[variant][1]]), scene.camera
+        elif variant == "codec_seeded":
+            frames, cam = made["codec"], scene.camera
         else:
             frames, cam = still_frames(scene, variant, at, rot, work)
             made[variant] = frames
-        E = errors(scene, cam, frames, at)
+        E = errors(scene, cam, frames, at, seeded=variant == "codec_seeded")
         ok = E["error"].notna()
         out.append({
             "scene": name, "variant": variant, "found": f"{int(ok.sum())}/{len(E)}",
@@ -164,7 +189,8 @@ def main(argv: list[str] | None = None) -> int:
         rows = [r for n in names for r in run(n, args.seed, work)]
     with pd.option_context("display.width", 200):
         print("resting balls on a grid, centre error (mm): each variant adds one step to the one above it "
-              "(codec_luma, codec_chroma: the codec step's luma or chroma alone)")
+              "(codec_luma, codec_chroma: the codec step's luma or chroma alone; codec_seeded: the codec frames, "
+              "each ball fitted from a seed at its true centre)")
         print(pd.DataFrame(rows).set_index(["scene", "variant"]).round(2).to_string())
     return 0
 
