@@ -1708,3 +1708,72 @@ def test_a_ball_unseen_for_frames_after_the_strike_keeps_its_start(seed):
     ev, _ = find_events(tr, TABLE, det)
     st = _only(ev, "start")
     assert len(st) == 1 and abs(st.loc[0, "t"] - t0) < 0.25 / fps, (seed, ev[["t", "kind"]])
+
+
+def _nudge_case(seed: int, fps: float, moving_sigma_mm: float, gap_mm: float):
+    """A ball struck rolling (``tip_height`` 0.4: rolling at once, Alciatore 2004) at 330-450
+    mm/s from 0.5 m away, past a ball at rest with its centre line offset a diameter plus
+    ``gap_mm`` (negative: a glancing touch; 0.5-3 mm of overlap leaves the resting ball
+    16-93 mm/s, rolled 0.7-23 mm on), simulated by ``analysis.physics``; detections as in
+    ``benchmarks/event_accuracy.py`` (resting sigma 1 mm, moving ``moving_sigma_mm``). Returns
+    (found events, tracks, the simulator's collision time or None)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections as sim_detections
+
+    rng = np.random.default_rng(seed)
+    rest = np.array([1200.0, 600.0])
+    heading = rng.uniform(-math.pi, math.pi)
+    u = np.array([math.cos(heading), math.sin(heading)])
+    side = rng.choice([-1.0, 1.0]) * np.array([-u[1], u[0]])
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": tuple(rest - 500.0 * u + (D + gap_mm) * side),
+                                             "obj": tuple(rest)})
+    sim.strike(0.3, Strike("cue", rng.uniform(330.0, 450.0), heading, 0.0, 0.4))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    t_c = next((e.t for e in traj.events if e.kind == "collision"), None)
+    det = sim_detections(traj, 4.0, fps, rng, rest_sigma_mm=1.0, moving_sigma_mm=moving_sigma_mm,
+                         drop=0.0)
+    det["pattern"] = np.where(det["truth"] == "cue", "cue", "solid")
+    det["colour"] = det["truth"].map({"cue": "white", "obj": "red"})
+    tr = track(det, TABLE)
+    return find_events(tr, TABLE, det)[0], tr, t_c
+
+
+@pytest.mark.parametrize("fps,noise_mm", [(60.0, 1.0), (30.0, 1.0), (60.0, 2.5), (30.0, 2.5)])
+def test_a_gentle_nudge_of_a_resting_ball_is_a_collision(fps, noise_mm):
+    # A ball at rest moves only when the cue or another ball strikes it (Newton's first law):
+    # a rolling ball glancing off it, bent along the line of centres and leaving it a few
+    # millimetres on (equal masses: equal and opposite impulses along the line of centres,
+    # Meriam & Kraige, Engineering Mechanics: Dynamics, oblique central impact, from memory)
+    # struck it, though the velocity changes stay under min_velocity_change_mm_s. Cases: the
+    # simulator's struck ball leaves at 35-93 mm/s and rolls 3.3-23 mm (gap -3 mm, seeds 0-2:
+    # the first is phone_wide_30fps's 2 -> 8 at 7.357 s, 133 mm/s in, 41 out, 4.5 mm; gap
+    # -1.5 mm, seeds 1-2). Before: 5 of these 20 found (all of seed 2, the fastest, four at
+    # 30 fps). Both rows must name the pair within the scorer's 0.1 s (benchmarks/score.py
+    # DEFAULT_WINDOW_S) of the simulator's touch, and the nudged ball get its stop and no
+    # start (a collision set it going, not the cue). The touch's time rests on where the
+    # resting ball lies along the line of centres over the speed it leaves at: 1 mm of
+    # resting detection error at 41 mm/s is 24 ms, so the issue's half frame is not asserted
+    # (measured here: median 0.39 frame, max 2.03; 12 of the 20 within half a frame).
+    for gap_mm, seed in ((-3.0, 0), (-3.0, 1), (-3.0, 2), (-1.5, 1), (-1.5, 2)):
+        ev, tr, t_c = _nudge_case(seed, fps, noise_mm, gap_mm)
+        col = _only(ev, "collision")
+        assert t_c is not None and len(col) == 2, (gap_mm, seed, col)
+        assert np.all(np.abs(col["t"] - t_c) < 0.1), (gap_mm, seed, t_c, col)
+        obj = int(tr.loc[tr["colour"] == "red", "track"].iloc[0])
+        mine = ev[ev["track"] == obj]
+        assert set(col["track"]) == set(col["other"]) and obj in set(col["track"]), col
+        assert "start" not in set(mine["kind"]) and "stop" in set(mine["kind"]), (seed, mine)
+
+
+@pytest.mark.parametrize("gap_mm", [1.0, 2.0, 4.0])
+@pytest.mark.parametrize("fps,noise_mm", [(60.0, 1.0), (30.0, 1.0), (60.0, 2.5), (30.0, 2.5)])
+def test_a_near_miss_beside_a_resting_ball_is_no_collision(gap_mm, fps, noise_mm):
+    # The same shots passing 1-4 mm clear: no impulse, so the passing ball runs straight on
+    # and the resting one stays put (Newton's first law); no collision may be reported (none
+    # before; a first version of the nudge finder without the struck ball's own move took a
+    # slow ball passing 2 mm clear at 0.5 mm noise for one).
+    for seed in range(3):
+        ev, _, t_c = _nudge_case(seed, fps, noise_mm, gap_mm)
+        assert t_c is None
+        assert len(_only(ev, "collision")) == 0, (seed, ev)

@@ -143,6 +143,17 @@ Method
    of centres than that ball came (which one impact never does) was struck back by it: that
    pair's second contact is reported where their departure paths touch
    (``_Finder._kiss_back``).
+   *Nudge*: a rolling ball that glances off a ball at rest changes both velocities by far
+   less than ``min_velocity_change_mm_s`` (a 170 mm/s ball grazing a resting one leaves it
+   40 mm/s and a few millimetres of travel), so no rough collision marks it, or the balance
+   and impulse tests above drop it. Where a moving ball's centre passes within a diameter
+   plus ``collision_margin_mm`` of a ball at rest and no collision of the pair was solved
+   there (``_nudge_candidates``), the moving ball's samples on both sides (those within
+   ``nudge_halo_mm`` of the other's surface left out), the resting ball's reads of its spot
+   before and after, and the touch are fitted at once with the impulse along the line of
+   centres (``_nudge``). It is a collision where the moving ball bends along that line beyond
+   its noise (a near miss bends nothing) and the resting ball's reads agree with its spot and
+   the travel that impulse gives it; its time is where the centres are one diameter apart.
    *Start*:
    the first moving samples' fit extrapolated back to the rest position; a motion that begins
    at a collision has none, unless the ball left rest at an earlier frame than the ball it
@@ -167,7 +178,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from scipy.optimize import LinearConstraint, minimize, minimize_scalar, nnls
+from scipy.optimize import LinearConstraint, least_squares, minimize, minimize_scalar, nnls
 from scipy.stats import chi2, truncnorm
 
 from vision.table import RAILS, TableSpec, cushion_angles, rail_inward_normal
@@ -306,6 +317,14 @@ class EventConfig:
     share; in that harness (3-, 6- and 9-ball racks at 50-120 fps) up to 5 of 10 balls lay
     beyond 3 sigmas where the wave still found more contacts and fewer false pairs than the
     pair-impulse solution (each ball's departure fit may hold a later contact).
+
+    A resting ball nudged by a moving one (``_nudge``): ``nudge_halo_mm``: the moving ball's
+    detections within this gap of the resting ball's surface are left out of the fit (two
+    balls that near make one blob for the detector: phone_wide_30fps's blue 2 read 3-5 mm
+    toward the black 8 at gaps of 5-16 mm, 5 mm away from it once touching; one ball radius).
+    ``nudge_rest_window_s``: the resting ball's spot is read from its samples over this long
+    before the halo and after it (at least three each side; the 8 was unseen for 0.5 s before
+    its nudge); each read carries the resting detection error ``wave_position_sd_mm``.
     """
 
     rest_speed_mm_s: float = 50.0
@@ -355,6 +374,8 @@ class EventConfig:
     wave_misfit_sigmas: float = 3.0
     wave_search_rounds: int = 5
     wave_max_outlier_share: float = 0.5
+    nudge_halo_mm: float = 28.575
+    nudge_rest_window_s: float = 1.0
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -1445,6 +1466,7 @@ def find_events(
     finder.slide_measured = finder.slide_decel_sd < cfg.slide_decel_sigma_mm_s2
 
     rows = _collision_rows(finder, rough_collisions, by_id)
+    rows += _nudges(finder, balls, [(r["t"], r["track"], r["other"]) for r in rows])
     collisions_by_ball: dict[int, list[tuple[float, int]]] = {}
     for r in rows:
         # (time, the ball whose leaving rest is compared in ``_set_moving``)
@@ -1580,6 +1602,213 @@ def _collision_rows(finder: "_Finder", rough: list[tuple[float, int, int]],
             if (min(i, j), max(i, j)) in touching:
                 continue
             rows += finder.collision(by_id[i], by_id[j], max(tg, t_c + 1.5 * dt))
+    return rows
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    """(first, last) index of each run of True in the boolean array ``mask`` (n,)."""
+    k = np.flatnonzero(np.diff(np.r_[0, mask.astype(np.int8), 0]))
+    return [(int(a), int(b) - 1) for a, b in zip(k[::2], k[1::2])]
+
+
+def _rolling_line(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float,
+                  decel_mm_s2: float) -> tuple[np.ndarray, np.ndarray] | None:
+    """A rolling ball's path through samples ts (n,) s, ps (n, 2) mm: a straight line slowing at
+    ``decel_mm_s2`` (mu_r g) along its own heading (Alciatore 2004), fitted by least squares
+    about ``t0``. Returns (position (2,) mm, velocity (2,) mm/s) at ``t0``, or None with fewer
+    than three samples. The heading comes from a first straight-line fit."""
+    if len(ts) < 3:
+        return None
+    f = _fit(ts, ps, t0, 1, sigma_mm)
+    v = f.coef[1]
+    h = v / max(float(np.hypot(*v)), 1e-9)
+    tau = ts - t0
+    g = _fit(ts, ps + 0.5 * decel_mm_s2 * h[None, :] * tau[:, None] ** 2, t0, 1, sigma_mm)
+    return g.coef[0].copy(), g.coef[1].copy()
+
+
+def _nudge_candidates(finder: "_Finder", balls: list[_Ball],
+                      rough: list[tuple[float, int, int]]) -> list[tuple[float, _Ball, _Ball, int, int]]:
+    """Where a moving ball's centre passes within a diameter plus ``collision_margin_mm`` of a
+    ball at rest (no motion of its own there, ``_motion``) with no rough collision of the pair
+    within three frames (``rough_collisions`` wants a velocity change of
+    ``min_velocity_change_mm_s``, which a glancing touch on a slow ball never gives the ball it
+    nudges). Returns (time s of the closest approach, moving ball, resting ball, first and last
+    row of the moving ball within ``nudge_halo_mm`` of the resting one's surface)."""
+    D, cfg, dt = finder.table.ball_diameter_mm, finder.cfg, finder.dt
+    out = []
+    for r in balls:
+        rest = np.ones(len(r.t), bool)
+        for i0, i1 in r.moves:
+            rest[i0:i1 + 1] = False
+        for m in balls:
+            if m is r or not m.moves:
+                continue
+            common, km, kr = np.intersect1d(m.frame, r.frame, return_indices=True)
+            if len(common) < 3:
+                continue
+            moving = np.zeros(len(m.t), bool)
+            for i0, i1 in m.moves:
+                moving[i0:i1 + 1] = True
+            d = np.hypot(*(m.p[km] - r.p[kr]).T)
+            close = (d < D + cfg.collision_margin_mm) & moving[km] & rest[kr] & (
+                np.hypot(*m.v[km].T) > cfg.rest_speed_mm_s)
+            halo = d < D + cfg.nudge_halo_mm
+            for k, k1 in _runs(close):
+                ks = k + int(np.argmin(d[k:k1 + 1]))
+                t_s = float(m.t[km[ks]])
+                if any(abs(t - t_s) <= _CLUSTER_FRAMES * dt and {i, j} == {m.track, r.track}
+                       for t, i, j in rough):
+                    continue
+                x0 = x1 = ks
+                while x0 > 0 and halo[x0 - 1]:
+                    x0 -= 1
+                while x1 + 1 < len(halo) and halo[x1 + 1]:
+                    x1 += 1
+                out.append((t_s, m, r, int(km[x0]), int(km[x1])))
+    return out
+
+
+def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) -> list[dict]:
+    """Collision rows of a moving ball ``m`` nudging a resting ball ``r`` about ``t_s`` (s), or
+    [] where the samples do not show one; rows x0..x1 of ``m`` lie within ``nudge_halo_mm``
+    of ``r``'s surface (their detections, of two balls nearly touching, are left out).
+
+    Model (a smooth ball-ball impact of equal masses, e.g. Meriam & Kraige, Engineering
+    Mechanics: Dynamics, ch. 3, oblique central impact, from memory; Alciatore 2004 for the
+    cloth): ``m`` rolls in on a straight line slowing at mu_r g; at ``t_c``, where its centre
+    is one diameter from ``r``'s, the impulse along the line of centres ``n`` (from ``m`` to
+    ``r``) takes ``w`` of ``m``'s velocity along ``n`` (what its departure shows once its
+    slide is over) and gives it to ``r``, which departs along ``n`` (the struck ball of
+    Newton's cradle: no tangential impulse but friction's few percent) and rolls to rest
+    ``travel(w)`` further on. ``r``'s rest position before the touch and after it (medians of
+    its samples over ``nudge_rest_window_s``) each read its spot with the resting detection
+    error ``wave_position_sd_mm``. All of ``m``'s samples on both sides, both rest reads and
+    the touch are fitted at once (``scipy.optimize.least_squares``: path, ``t_c``, ``w``,
+    ``r``'s spot). It is a collision where that beats ``m`` rolling straight past
+    (``w = 0``) on ``m``'s own samples by more than chi-squared with two degrees of freedom
+    at the tail ``collision_impulse_sigmas`` gives one-sided, with ``w`` positive beyond
+    ``collision_impulse_sigmas`` of its standard error (a near miss bends nothing), where
+    ``r``'s reads moved on along ``n`` by as many standard errors of their difference (a ball
+    at rest moves only when struck, Newton's first law: the struck ball must show it too), and
+    where those reads agree with one spot and ``travel(w)`` within chi-squared's 99th
+    percentile (``_REST_CHI2``; else the detector misplaces the resting ball by more than its
+    resting error, and its spot, which times the touch, is not known).
+    """
+    cfg, D, dt = finder.cfg, finder.table.ball_diameter_mm, finder.dt
+    a_r = cfg.roll_decel_mm_s2
+    sb = cfg.wave_position_sd_mm
+    W = finder.collision_window_s + (m.t[x1] - m.t[x0]) / 2  # reach t_s from the halo's edge
+    t_in, t_out = float(m.t[x0]), float(m.t[x1])
+    # Bounded by m's other events; a rough mark within the halo is this touch's own (found by
+    # ``rough_collisions`` and dropped by ``collision``).
+    lo = max([t for t in m.marks + m.strikes if t < t_in - _CLUSTER_FRAMES * dt], default=-math.inf)
+    hi = min([t for t in m.marks + m.strikes if t > t_out + _CLUSTER_FRAMES * dt], default=math.inf)
+    # A ball that crawls on within the halo until its next event (it stops beside the one it
+    # nudged) keeps its samples from a frame and a half past the closest approach.
+    if len(m.samples(t_out, hi)[0]) < 3:
+        t_out = min(t_out, t_s + 1.5 * dt)
+    if len(m.samples(lo, t_in)[0]) < 3:
+        t_in = max(t_in, t_s - 1.5 * dt)
+    ti, pi_ = m.samples(max(lo, t_in - W), t_in)
+    to, po = m.samples(t_out, min(hi, t_out + W))
+    rb = r.samples(m.t[x0] - cfg.nudge_rest_window_s, m.t[x0])
+    ra = r.samples(m.t[x1], m.t[x1] + cfg.nudge_rest_window_s)
+    if len(ti) < 3 or len(to) < 3 or len(rb[0]) < 3 or len(ra[0]) < 3:
+        return []
+    pb, pa = np.median(rb[1], axis=0), np.median(ra[1], axis=0)
+    sm = max(m.sigma, 1e-3)
+    u_slip = 7.0 / 5.0  # a stunned ball's speed over its rolling speed (Alciatore 2004)
+    mu_s_g = finder.slide_decel or cfg.slide_decel_mm_s2
+
+    def travel(w: float) -> float:
+        # Slide from u0 to 5 u0 / 7 at mu_s g, then roll to rest at mu_r g (Alciatore 2004).
+        u0 = u_slip * max(w, 0.0)
+        return 12.0 * u0 * u0 / (49.0 * mu_s_g) + 25.0 * u0 * u0 / (98.0 * a_r)
+
+    line0 = _rolling_line(np.r_[ti, to], np.r_[pi_, po], t_s, sm, a_r)
+    p0, v0 = _rolling_line(ti, pi_, t_s, sm, a_r)
+    h0 = v0 / max(float(np.hypot(*v0)), 1e-9)
+
+    def path(x, t):
+        tau = np.asarray(t, float) - t_s
+        return x[0:2] + x[2:4] * tau[..., None] - 0.5 * a_r * h0 * tau[..., None] ** 2
+
+    def after(x, t_c, w, n):
+        # From the touch on, rolling again along its new heading once its slide is over.
+        v1 = x[2:4] - a_r * h0 * (t_c - t_s) - w * n
+        h1 = v1 / max(float(np.hypot(*v1)), 1e-9)
+        tau = to - t_c
+        return path(x, t_c) + v1 * tau[:, None] - 0.5 * a_r * h1 * tau[:, None] ** 2
+
+    def parts(x):
+        t_c, w, pr = x[4], x[5], x[6:8]
+        dn = pr - path(x, t_c)
+        L = max(float(np.hypot(*dn)), 1e-9)
+        n = dn / L
+        res_m = np.r_[((path(x, ti) - pi_) / sm).ravel(), ((after(x, t_c, w, n) - po) / sm).ravel()]
+        res_r = np.r_[(pb - pr) / sb, (pa - pr - travel(w) * n) / sb]
+        return res_m, res_r, (L - D) / (0.01 * sb)
+
+    def res(x):
+        res_m, res_r, touch = parts(x)
+        return np.r_[res_m, res_r, touch]
+
+    x0_ = np.r_[p0, v0, t_s, 0.0, pb]
+    try:
+        sol = least_squares(res, x0_, x_scale=np.r_[sm, sm, 10 * sm, 10 * sm, dt, 10.0, sb, sb])
+    except ValueError:
+        return []
+    x = sol.x
+    t_c, w, pr = float(x[4]), float(x[5]), x[6:8]
+    if not (m.t[x0] - dt <= t_c <= m.t[x1] + dt):
+        return []
+    J = sol.jac
+    cov = np.linalg.pinv(J.T @ J)
+    sd_w = math.sqrt(max(cov[5, 5], 1e-12))
+    res_m, res_r, _ = parts(x)
+    # m rolling straight past on its own samples (w = 0): one line through both sides.
+    p_l, v_l = line0
+    h_l = v_l / max(float(np.hypot(*v_l)), 1e-9)
+    ts_all, ps_all = np.r_[ti, to], np.r_[pi_, po]
+    tau = ts_all - t_s
+    straight = p_l + v_l * tau[:, None] - 0.5 * a_r * h_l * tau[:, None] ** 2
+    rss0 = float(np.sum(((straight - ps_all) / sm) ** 2))
+    tail = float(1.0 - 0.5 * math.erfc(-cfg.collision_impulse_sigmas / math.sqrt(2.0)))
+    gain = rss0 - float(res_m @ res_m)
+    n = (pr - path(x, t_c)) / D
+    if gain < chi2.ppf(1.0 - tail, 2) or w < cfg.collision_impulse_sigmas * sd_w:
+        return []
+    # The struck ball's own reads must show it moved on along n (two reads, each sb).
+    if float((pa - pb) @ n) < cfg.collision_impulse_sigmas * math.sqrt(2.0) * sb:
+        return []
+    if float(res_r @ res_r) > _REST_CHI2:
+        return []
+    # Just after the impact, before either slide: r leaves at u0 = 7 w / 5 along n, and m has
+    # lost as much (equal and opposite impulses).
+    u0 = u_slip * w
+    v_in = x[2:4] - a_r * h0 * (t_c - t_s)
+    return [
+        _row(t_c, "collision", m.track, path(x, t_c), speed_in=float(np.hypot(*v_in)),
+             speed_out=float(np.hypot(*(v_in - u0 * n))), other=r.track),
+        _row(t_c, "collision", r.track, pr, speed_in=0.0, speed_out=u0, other=m.track),
+    ]
+
+
+def _nudges(finder: "_Finder", balls: list[_Ball],
+            rough: list[tuple[float, int, int]]) -> list[dict]:
+    """Collision rows of resting balls nudged by moving ones (``_nudge_candidates``,
+    ``_nudge``): a ball at rest stays at rest until the cue or another ball strikes it
+    (Newton's first law), so a moving ball that passes within contact of it, bends along the
+    line of centres there and leaves it a few millimetres on has struck it, however little
+    its speed changed."""
+    rows: list[dict] = []
+    for t_s, m, r, x0, x1 in _nudge_candidates(finder, balls, rough):
+        # One touch per pair: both balls moving by turns make two candidates of one touch.
+        if not any(x["track"] in (m.track, r.track) and x["other"] in (m.track, r.track)
+                   and abs(x["t"] - t_s) <= m.t[x1] - m.t[x0] + _CLUSTER_FRAMES * finder.dt
+                   for x in rows):
+            rows += _nudge(finder, m, r, t_s, x0, x1)
     return rows
 
 
@@ -2553,14 +2782,7 @@ class _Finder:
                 edge[-2:] |= kb[-2:] >= len(b.t) - 2
                 reach = np.where(edge, np.hypot(*a.v[ka].T) + np.hypot(*b.v[kb].T), vrel)
                 close = d < D + cfg.collision_margin_mm + reach * self.dt
-                k = 0
-                while k < len(close):
-                    if not close[k]:
-                        k += 1
-                        continue
-                    k1 = k
-                    while k1 + 1 < len(close) and close[k1 + 1]:
-                        k1 += 1
+                for k, k1 in _runs(close):
                     # The closest approach; else, for balls that rested touching (a rack, a
                     # frozen pair) and whose closest approach is wherever their noise put it,
                     # the moment in the stretch where the velocities change most: the middle
@@ -2591,7 +2813,6 @@ class _Finder:
                         out.append((float(a.t[ka[ks_d]]), a.track, b.track))
                     elif ks_c in kick:
                         out.append((float(a.t[ka[ks_c]]), a.track, b.track))
-                    k = k1 + 1
         return sorted(out)
 
     def _touch_time(self, f1: _Fit, f2: _Fit, tg: float, approach: bool):
