@@ -3,6 +3,8 @@ two quite different cameras and looks (non-square images so swapped axes fail)."
 
 import math
 
+import cv2
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -1191,6 +1193,68 @@ def test_identical_frame_gives_identical_rows_and_a_nudged_ball_is_refitted(monk
     assert row_a is not old_a
     assert abs((row_a["x"] - old_a["x"]) - nudge[0]) < 0.5 and abs(row_a["y"] - old_a["y"]) < 0.5
 
+
+
+@pytest.mark.parametrize("setup", list(SETUPS))
+@pytest.mark.parametrize("ball", [0, 2, 3])  # the cue ball, the black 8, the dark striped 12
+def test_ball_nudged_half_a_millimetre_is_refitted_and_sensor_noise_alone_is_not(setup, ball, monkeypatch):
+    # The brief of issue 3's speed point: skip work where nothing moves, but never hide a ball
+    # that moved. A 0.5 mm nudge moves the rim a quarter pixel or less (about 2-3 mm per px
+    # here): too little for the change grid's cell means (which carried such a ball over
+    # before), seen by the patch's Lucas-Kanade shift. A frame that differs only by the
+    # renderer's fresh sensor noise changes nothing: no fit at all, the very rows again. After
+    # the nudge the ball is refitted and lies within the issue's resting p95 target (2.5 mm) of
+    # the renderer's truth, and the ball far from it is carried over untouched.
+    s = SETUPS[setup]
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], (BALLS[ball], BALLS[4]), seed=21)
+    a, b = np.array([900.0, 450.0]), np.array([1900.0, 800.0])
+    render = lambda p: ren.render(np.array([[p, b]]), _rot(2), np.ones((1, 2), bool), np.array([0.0]))
+    nudge = np.array([0.5 * math.cos(0.4), 0.5 * math.sin(0.4)])
+    still, noise_only, nudged = render(a), render(a), render(a + nudge)
+    det = BallDetector(cam, NINE_FOOT)
+    first = det.step_rows(0, 0.0, still)
+    fits = []
+    real = det._fit_seed
+    monkeypatch.setattr(det, "_fit_seed", lambda *args, **kw: fits.append(1) or real(*args, **kw))
+    assert det.step_rows(1, 1 / 60, noise_only) is first and not fits
+    moved = det.step_rows(2, 2 / 60, nudged)
+    assert fits
+    near = lambda rows, p: min(rows, key=lambda r: math.hypot(r["x"] - p[0], r["y"] - p[1]))
+    assert near(moved, a) is not near(first, a)
+    assert math.hypot(near(moved, a)["x"] - a[0] - nudge[0], near(moved, a)["y"] - a[1] - nudge[1]) < 2.5
+    assert near(moved, b) is near(first, b)
+
+
+def test_patch_shift_agrees_with_opencvs_lucas_kanade():
+    # The nudge test's shift of a ball's patch (one Lucas-Kanade step, Lucas & Kanade 1981)
+    # against OpenCV's own Lucas-Kanade (cv2.calcOpticalFlowPyrLK, one level, iterated to
+    # convergence) on the same patch, for sub-pixel translations (cv2.warpAffine, bicubic) of a
+    # rendered ball: the same direction, and the size within 15 % (+ 0.01 px) of OpenCV's,
+    # never below 0.95 of it. One linearised step measures a sharp rim's shift a little long
+    # (measured 8-13 % here; a 0.5 mm nudge read 0.50-0.64 mm): it errs toward a refit.
+    from vision.detect import _patch_shift, _shift_terms
+
+    for setup, bl in (("green_high", 3), ("blue_low_wide", 2)):
+        cam = SETUPS[setup]["camera"]
+        ren = Renderer(NINE_FOOT, cam, SETUPS[setup]["look"], BALLS[bl : bl + 1], seed=3)
+        img = ren.render(np.array([[[1200.0, 600.0]]]), _rot(1), np.ones((1, 1), bool), np.array([0.0]))
+        u, v = (int(round(c)) for c in cam.project(np.array([[1200.0, 600.0, R]]))[0])
+        half = 16
+        box = (slice(v - half, v + half + 1), slice(u - half, u + half + 1))
+        ref = img[box].astype(np.float32)
+        terms = _shift_terms(ref)
+        grey = cv2.cvtColor(img, cv2.COLOR_BGR2GRAY)
+        for du, dv in ((0.3, 0.0), (0.0, -0.25), (0.35, 0.35), (-0.5, 0.1), (0.1, 0.0)):
+            moved = cv2.warpAffine(img, np.array([[1.0, 0.0, du], [0.0, 1.0, dv]]), img.shape[1::-1], flags=cv2.INTER_CUBIC)
+            got = np.array(_patch_shift(terms, ref, moved[box].astype(np.float32)))
+            p0 = np.array([[[u, v]]], np.float32)
+            p1, st, _ = cv2.calcOpticalFlowPyrLK(grey, cv2.cvtColor(moved, cv2.COLOR_BGR2GRAY), p0, None, winSize=(2 * half + 1, 2 * half + 1), maxLevel=0,
+                                                 criteria=(cv2.TERM_CRITERIA_EPS | cv2.TERM_CRITERIA_COUNT, 50, 1e-4))
+            assert st[0, 0] == 1
+            want = (p1[0, 0] - p0[0, 0]).astype(float)
+            assert np.linalg.norm(got - want) <= 0.15 * np.linalg.norm(want) + 0.01, (setup, du, dv, got, want)
+            assert np.linalg.norm(got) >= 0.95 * np.linalg.norm(want), (setup, du, dv, got, want)
 
 
 # One low lamp and little room light, as over a table in a dark room: each ball casts a long,

@@ -29,7 +29,9 @@ Method
    processing (frame differencing); only cells that changed, grown by a ball, are processed, and
    detections elsewhere are carried over, as is a sharp ball inside a processed region whose own
    cells did not change (its silhouette is taken out of that region's foreground; it is refitted
-   only beside a ball found there, step 5). A frame where nothing changed costs one resize.
+   only beside a ball found there, step 5). A frame where nothing changed costs one resize and,
+   per sharp ball, one Lucas-Kanade step (Lucas & Kanade 1981) against its image patch when
+   it was last fitted: a ball nudged by less than a cell's mean shows (0.5 mm) is refitted.
 3. *Candidates*: pixels of the ball zone whose colour distance from the background exceeds a
    noise-scaled threshold (the running model's noise, or where a change of light that only scales
    the colours inflates it beyond ``_LIGHT_CHANGE_RATIO`` times the noise of the chromaticity
@@ -298,6 +300,10 @@ _SEED_RING_SLACK = 7 / 64
 _NEAR_R = 2.4
 _AVOID_R = 1.2
 _MIN_FREE_RAYS = 12
+# Half side, in largest ball image radii, of the square patch round a sharp ball's centre
+# whose shift since its fit (:meth:`BallDetector._nudged`) is measured: the whole rim and a
+# little cloth beyond it, where a translation changes the pixels.
+_NUDGE_PATCH_R = 1.3
 # Rounds of seeding what the fitted balls leave unexplained in a piece of foreground.
 _REMAINDER_ROUNDS = 2
 # A free piece of foreground holding more than this many ball images (at its centroid's scale),
@@ -393,7 +399,10 @@ class DetectConfig:
     agree with, ``_NOISY_MIN_SHARE``).
     ``max_half_travel_mm``: longest half streak accepted (4 m/s for 1/30 s is 67 mm).
     ``local_min_sigmas``: least rim contrast, in noise sigmas of a colour
-    difference, for a ray of the local sub-pixel edge. ``update_every_s``: interval of the background's running update. ``background``: the
+    difference, for a ray of the local sub-pixel edge. ``nudge_mm``: a sharp ball whose cells of
+    the change grid did not change is still refitted when its image patch has shifted by more
+    than this (mm on the table, by a Lucas-Kanade step against its patch when last fitted:
+    :meth:`BallDetector._nudged`). ``update_every_s``: interval of the background's running update. ``background``: the
     background model's own knobs.
     """
 
@@ -404,12 +413,18 @@ class DetectConfig:
     min_inlier_share: float = 0.45
     max_rms_mm: float = 2.0
     local_min_sigmas: float = 6.0
+    # Measured: a rendered 0.5 mm nudge reads 0.50-0.64 mm, the renderer's sensor noise alone
+    # under 0.06 mm (tests/test_detect.py's setups); balls at rest (truth) in the encoded clips,
+    # against their patch when last fitted, read at most 0.27 mm (bank_practice, first 900
+    # frames), 0.23 (uneven_60fps), 0.46 (lamp_50fps), 0.61 (phone_wide_30fps) and 1.2
+    # (dim_540p_60fps: 49 of 622 checks above 0.35 mm, each one refit more than needed).
+    nudge_mm: float = 0.35
     max_half_travel_mm: float = 200.0
     update_every_s: float = 0.25
     background: BackgroundConfig = field(default_factory=BackgroundConfig)
 
     def __post_init__(self) -> None:
-        for name in ("fg_sigmas", "fg_min_score", "change_dn", "max_rms_mm", "max_half_travel_mm", "update_every_s"):
+        for name in ("fg_sigmas", "fg_min_score", "change_dn", "max_rms_mm", "max_half_travel_mm", "update_every_s", "nudge_mm"):
             if not getattr(self, name) > 0:
                 raise ValueError(f"DetectConfig.{name} = {getattr(self, name)!r} must be positive")
         if int(self.cell_px) < 2:
@@ -871,6 +886,31 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     return p, r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
 
 
+def _shift_terms(ref: np.ndarray) -> tuple[np.ndarray, np.ndarray, tuple[float, float, float] | None]:
+    """Gradients of a (h, w, 3) float32 patch along u and v (px^-1: the 3 x 3 Sobel operator
+    divided by 8) and the inverse (a, b, c of the symmetric 2 x 2) of their normal matrix
+    ``G^T G`` summed over pixels and channels, None where it is singular (a flat patch), for
+    :func:`_patch_shift`."""
+    gx = cv2.Sobel(ref, cv2.CV_32F, 1, 0, ksize=3) * np.float32(0.125)
+    gy = cv2.Sobel(ref, cv2.CV_32F, 0, 1, ksize=3) * np.float32(0.125)
+    a, b, c = float(np.sum(gx * gx)), float(np.sum(gx * gy)), float(np.sum(gy * gy))
+    det = a * c - b * b
+    return gx, gy, (None if det <= 1e-9 * max(a * c, 1.0) else (c / det, -b / det, a / det))
+
+
+def _patch_shift(terms: tuple, ref: np.ndarray, now: np.ndarray) -> tuple[float, float]:
+    """Translation (du, dv) px of the image content from patch ``ref`` to patch ``now`` (both
+    (h, w, 3), pixel frame of ``vision.camera``) by one Lucas-Kanade step (Lucas & Kanade 1981):
+    the least-squares d with ``now(x) = ref(x - d)`` to first order, ``d = (G^T G)^-1 G^T (ref -
+    now)``, G the gradients of ``ref`` (``terms`` of :func:`_shift_terms`, which must not be
+    singular). One linearised step reads a sharp rim's sub-pixel shift 8-13 % longer than
+    OpenCV's iterated Lucas-Kanade does (tests/test_detect.py): it errs toward a refit."""
+    gx, gy, (ia, ib, ic) = terms
+    diff = ref - now
+    bx, by = float(np.sum(gx * diff)), float(np.sum(gy * diff))
+    return ia * bx + ib * by, ib * bx + ic * by
+
+
 def _stated_sigma(cov_xy: np.ndarray, bias_mm: float, walk_mm: float, disagree_mm: float, half_mm: float) -> float:
     """Standard deviation (mm, per axis of the table frame) stated for a fitted centre: the
     least-squares covariance of x, y (``cov_xy`` (2, 2) mm^2, from independent rays) scaled by
@@ -1280,7 +1320,8 @@ class BallDetector:
     ``step_rows`` are the same frame loop without the per-frame copy (a DataFrame, or a tuple of
     row dicts, shared with the previous frame when nothing changed) for whole clips
     (:func:`stack_detections`). Configuration is one frozen :class:`DetectConfig`; the detector
-    holds the background and the previous detections as its only state.
+    holds the background, the previous detections and each sharp one's image patch from the
+    frame it was fitted in as its only state.
     """
 
     def __init__(self, camera: Camera, table: TableSpec, config: DetectConfig = DetectConfig()):
@@ -1311,6 +1352,10 @@ class BallDetector:
         self.background: Background | None = None
         self._ref_small: np.ndarray | None = None
         self._prev: tuple[dict, ...] = ()
+        # Per sharp detection row (by identity): the row, its patch box and the frame's patch as
+        # it was when the row was fitted, and (filled in when first needed) the patch's
+        # gradients and the inverse of their normal matrix (:meth:`_nudged`).
+        self._patches: dict[int, list] = {}
         # The last step's rows and their DataFrame (:meth:`step`), so a still stretch builds none.
         self._table: tuple[tuple[dict, ...], pd.DataFrame] | None = None
         # Per frame: which foreground of the whole frame reaches the zone's border (built on
@@ -1404,6 +1449,10 @@ class BallDetector:
             cells = (slice(v0 // cs, -(-v1 // cs)), slice(u0 // cs, -(-u1 // cs)))
             changed[cells] |= self._zone_small[cells]
         self._revisit = ()
+        # A ball nudged by less than the grid sees (a cell's mean moves by a few levels) is
+        # looked at again too.
+        for j0n, j1n, i0n, i1n in self._nudged(img, changed):
+            changed[j0n:j1n, i0n:i1n] |= self._zone_small[j0n:j1n, i0n:i1n]
         dt = 0.0 if self._last_t is None else max(t_s - self._last_t, 0.0)
         self._last_t = t_s
         if changed.any():
@@ -1417,7 +1466,72 @@ class BallDetector:
             self.background.update(img, self._protect_mask(det))
             self._revisit = self.background.revised
         self._prev = det
+        self._keep_patches(img, det)
         return det
+
+    def _ball_cells(self, row: dict) -> tuple[int, int, int, int]:
+        """Cells (j0, j1, i0, i1) of the change grid that :meth:`_unchanged` reads for a row:
+        the square of half side 1.5 of the largest ball image radius round its centre's image."""
+        cs = int(self.config.cell_px)
+        rad = 1.5 * self.r_max_px
+        j0, j1 = max(int((row["v"] - rad) // cs), 0), int((row["v"] + rad) // cs) + 1
+        i0, i1 = max(int((row["u"] - rad) // cs), 0), int((row["u"] + rad) // cs) + 1
+        return j0, j1, i0, i1
+
+    def _keep_patches(self, img: np.ndarray, det: tuple[dict, ...]) -> None:
+        """Keep, for each sharp row of ``det``, the frame's patch round it from the frame it was
+        fitted in: a row carried over keeps its old patch, so a ball creeping by less than
+        :meth:`_nudged` sees per frame is measured against where it was fitted."""
+        h, w = img.shape[:2]
+        half = int(math.ceil(_NUDGE_PATCH_R * self.r_max_px))
+        keep = {}
+        for r in det:
+            if r["blur_x"] or r["blur_y"]:
+                continue
+            old = self._patches.get(id(r))
+            if old is not None and old[0] is r:
+                keep[id(r)] = old
+                continue
+            u, v = int(round(r["u"])), int(round(r["v"]))
+            box = (max(v - half, 0), min(v + half + 1, h), max(u - half, 0), min(u + half + 1, w))
+            if box[1] - box[0] < 3 or box[3] - box[2] < 3:
+                continue
+            keep[id(r)] = [r, box, img[box[0] : box[1], box[2] : box[3]].astype(np.float32), None]
+        self._patches = keep
+
+    def _nudged(self, img: np.ndarray, changed: np.ndarray) -> list[tuple[int, int, int, int]]:
+        """Cells (j0, j1, i0, i1) of the change grid round each sharp ball of the last frame that
+        :meth:`_unchanged` would carry over although its image patch (:meth:`_keep_patches`) has
+        shifted by more than ``config.nudge_mm`` since it was fitted.
+
+        The shift is one Lucas-Kanade step (Lucas & Kanade 1981, :func:`_patch_shift`): the
+        least-squares translation that explains the patch's change by its gradients, over the
+        three colour channels. A ball nudged 0.5 mm (a quarter pixel at about 2 mm per px) moves
+        a cell's mean by a few levels, under the grid's ``change_dn`` (it was carried over,
+        tests/test_detect.py); the step sees it in the hundreds of rim pixels' gradients, while
+        a change of light that scales the patch sums to little over a closed outline's
+        gradients. Scaled to mm by the ball's image size at mid-table. The limit's margin over
+        the codec's noise was measured (``config.nudge_mm``)."""
+        out = []
+        px_mm = self.ball_px / (2 * self.R)
+        limit = self.config.nudge_mm * px_mm
+        for r in self._prev:
+            entry = self._patches.get(id(r))
+            if entry is None or entry[0] is not r:
+                continue
+            cells = self._ball_cells(r)
+            j0, j1, i0, i1 = cells
+            if changed[j0:j1, i0:i1].any():
+                continue  # refitted or searched anyway
+            _, (v0, v1, u0, u1), ref, terms = entry
+            if terms is None:
+                entry[3] = terms = _shift_terms(ref)
+            if terms[2] is None:
+                continue  # a flat patch: nothing to measure a shift by
+            dx, dy = _patch_shift(terms, ref, img[v0:v1, u0:u1])
+            if math.hypot(dx, dy) > limit:
+                out.append(cells)
+        return out
 
     @property
     def _score_thr(self) -> float:
@@ -1495,10 +1609,7 @@ class BallDetector:
         searches (the ball's outline and the cloth or shadow just outside it)."""
         if row["blur_x"] or row["blur_y"]:
             return False
-        cs = int(self.config.cell_px)
-        rad = 1.5 * self.r_max_px
-        j0, j1 = max(int((row["v"] - rad) // cs), 0), int((row["v"] + rad) // cs) + 1
-        i0, i1 = max(int((row["u"] - rad) // cs), 0), int((row["u"] + rad) // cs) + 1
+        j0, j1, i0, i1 = self._ball_cells(row)
         return not changed[j0:j1, i0:i1].any()
 
     def _dedupe(self, rows: list[dict]) -> list[dict]:
