@@ -61,7 +61,10 @@ Method
    poorly, whose ring something crosses and whose outline does not step from ball to surround
    is the rounded end of something else (:meth:`BallDetector._joined_no_rim`: a stroking cue's
    shaft-to-butt colour step against a model that holds the cue); it stands while its box's
-   pieces are explained and is dropped at the end. Once a free piece's seeds are
+   pieces are explained and is dropped at the end, unless its piece holds a ball's lit
+   pixels whose own fit is no such end and what it held beside that ball is the ball's cast
+   shadow (a dim ball and its long shadow fitted as one: :meth:`BallDetector._joined_casters`).
+   Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). A free piece of more than 2.5 balls that its fits do not explain
    (a rack of touching balls, one solid piece whose distance transform peaks between balls, so
@@ -1699,6 +1702,7 @@ class BallDetector:
         fits = self._free_occluders(img, seeds, fits)
         tested: dict[int, tuple[dict, bool]] = {}  # rows' shadow tests, for the second pass
         fits = self._drop_cast_shadows(img, fits, known, seeds, tested)
+        fits = self._joined_casters(img, seeds, fits, known)
         crowns = self._crown_seeds(img, box, lab, stats, small, fits + list(known), blocked)
         seeds += crowns
         fits += [self._fit_crown(img, s) for s in crowns]
@@ -2234,6 +2238,35 @@ class BallDetector:
                 ball = self._caster_of(img, r, seeds[k])
                 if ball is not None:
                     out[k] = ball
+        return out
+
+    def _joined_casters(self, img: np.ndarray, seeds: list[dict], fits: list[dict | None], known: list[dict] = ()) -> list[dict | None]:
+        """``fits`` with each fit marked joined (:meth:`_joined_no_rim`, dropped at the end)
+        in a free piece replaced by the ball whose lit pixels the piece holds
+        (:meth:`_caster_of`), where that ball's own fit is not joined and no other fit or
+        ``known`` ball is already there. A dim ball under a low lamp makes one piece with its
+        long shadow; seeded once near the piece's middle (or as a streak along it), its fit
+        straddles ball and shadow, its outline half on the shadow's soft end with no rim step
+        there, and is marked joined (lamp_50fps's cue ball 900-1000 mm from its one lamp, 22 mm
+        onto its shadow); the rounded end of a cue or hand it is marked for has lit pixels too,
+        but their fit is joined again, or what the joined fit held beside them is no cast shadow
+        (:func:`_cast_shadow` of its disc less the ball's silhouette: a stroking cue's shaft fitted
+        from its lit pixels beside the butt, which is of the cue's own colour)."""
+        out = list(fits)
+        for k, r in enumerate(fits):
+            if r is None or not r.get("joined") or "piece" not in seeds[k]:
+                continue
+            others = [f for f in out if f is not None and f is not r] + list(known)
+            ball = self._caster_of(img, r, seeds[k], others)
+            if ball is None or ball.get("joined") or any(math.hypot(f["x"] - ball["x"], f["y"] - ball["y"]) < 2 * self.R for f in others):
+                continue
+            # What the joined fit held beside the ball must be that ball's cast shadow: the
+            # cloth darkened with its own hue, nothing lit (Horprasert et al. 1999's split of
+            # shade from colour). The rounded end of a cue or hand is of its own colour.
+            I, B = self._disc_own_pixels(img, r, [ball], least=0.2)
+            if not _cast_shadow(I, B):
+                continue
+            out[k] = ball
         return out
 
     def _off_own_shadow(self, img: np.ndarray, row: dict, seed: dict, found: list[dict]) -> dict:
