@@ -1155,7 +1155,8 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
     # speed over the threshold in place.
     # Nor does it begin before the ball has left its spot for good (``_left_for_good``).
     stay_of = [int(firsts[np.searchsorted(firsts, a, side="right") - 1]) for a, _ in runs]
-    runs = [r for r in (_left_for_good(ball, a, b, cfg, p0) for (a, b), p0 in zip(runs, stay_of))
+    dt = float(np.median(np.diff(ball.t))) if len(ball.t) > 1 else 0.0
+    runs = [r for r in (_left_for_good(ball, a, b, cfg, p0, dt) for (a, b), p0 in zip(runs, stay_of))
             if r is not None]
     runs = [(a, b) for a, b in runs
             if (ball.t[b] - ball.t[a] >= cfg.min_move_s or b > a + 2)
@@ -1236,9 +1237,10 @@ def _returned(raw: np.ndarray, p_rest: np.ndarray, thr: float, reach_mm: float) 
     return last
 
 
-def _left_for_good(ball: _Ball, a: int, b: int, cfg: EventConfig, p0: int) -> tuple[int, int] | None:
-    """The moving stretch rows ``a..b`` of ``ball`` (stay beginning at row ``p0``) begun where
-    the ball left its rest position for good, or None when nothing of it is left.
+def _left_for_good(ball: _Ball, a: int, b: int, cfg: EventConfig, p0: int, dt: float) -> tuple[int, int] | None:
+    """The moving stretch rows ``a..b`` of ``ball`` (stay beginning at row ``p0``; ``dt`` s its
+    frame interval) begun where the ball left its rest position for good, or None when nothing
+    of it is left.
 
     A ball struck from rest runs away from its spot until its next contact (it only slows;
     Alciatore 2004): it never comes back to where it lay, nor to a place it has been, before
@@ -1252,7 +1254,6 @@ def _left_for_good(ball: _Ball, a: int, b: int, cfg: EventConfig, p0: int) -> tu
     the tracker's velocity restarts lifted its smoothed speed over the move speed from frame
     597, so its stretch began at frame 594, the collision came too late after it to count as
     what set it going (``_set_moving``) and a start at 9.917 s (23 mm/s) was reported."""
-    dt = float(np.median(np.diff(ball.t))) if len(ball.t) > 1 else 0.0
     p_rest, _, thr = _rest_position(ball, a, float(ball.t[p0]) - 1e-9, dt)
     r = _returned(ball.raw[a:b + 1], p_rest, thr, cfg.min_travel_mm)
     if r is None:
@@ -1387,9 +1388,7 @@ def _noise_sigma(ball: _Ball, cfg: EventConfig) -> tuple[float, float]:
     """
     r = ball.raw
     ok = np.isfinite(r[:, 0])
-    moving = np.zeros(len(r), bool)
-    for i0, i1 in ball.moves:
-        moving[i0:i1 + 1] = True
+    moving = _moving_rows(ball)
     white = _d3_sigma(ball, moving)
     if white is None:
         return cfg.meas_sigma_mm, cfg.meas_sigma_mm
@@ -1605,6 +1604,14 @@ def _collision_rows(finder: "_Finder", rough: list[tuple[float, int, int]],
     return rows
 
 
+def _moving_rows(ball: _Ball) -> np.ndarray:
+    """(n,) bool over ``ball``'s rows: True within its motions (``ball.moves``, inclusive)."""
+    moving = np.zeros(len(ball.t), bool)
+    for i0, i1 in ball.moves:
+        moving[i0:i1 + 1] = True
+    return moving
+
+
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
     """(first, last) index of each run of True in the boolean array ``mask`` (n,)."""
     k = np.flatnonzero(np.diff(np.r_[0, mask.astype(np.int8), 0]))
@@ -1637,21 +1644,16 @@ def _nudge_candidates(finder: "_Finder", balls: list[_Ball],
     row of the moving ball within ``nudge_halo_mm`` of the resting one's surface)."""
     D, cfg, dt = finder.table.ball_diameter_mm, finder.cfg, finder.dt
     out = []
+    moving = {id(b): _moving_rows(b) for b in balls}
     for r in balls:
-        rest = np.ones(len(r.t), bool)
-        for i0, i1 in r.moves:
-            rest[i0:i1 + 1] = False
         for m in balls:
             if m is r or not m.moves:
                 continue
             common, km, kr = np.intersect1d(m.frame, r.frame, return_indices=True)
             if len(common) < 3:
                 continue
-            moving = np.zeros(len(m.t), bool)
-            for i0, i1 in m.moves:
-                moving[i0:i1 + 1] = True
             d = np.hypot(*(m.p[km] - r.p[kr]).T)
-            close = (d < D + cfg.collision_margin_mm) & moving[km] & rest[kr] & (
+            close = (d < D + cfg.collision_margin_mm) & moving[id(m)][km] & ~moving[id(r)][kr] & (
                 np.hypot(*m.v[km].T) > cfg.rest_speed_mm_s)
             halo = d < D + cfg.nudge_halo_mm
             for k, k1 in _runs(close):
