@@ -300,6 +300,64 @@ def test_a_resting_ball_read_flicking_toward_the_incoming_one_gets_no_start():
             assert not (ev["kind"] == "start").any(), (cut, seed, ev[ev["kind"] == "start"])
 
 
+def _pushed_rest_shot(fps: float, cut_deg: float, seed: int, push_mm: float = 5.0):
+    """A cue ball rolling at 0.3 m/s (struck 0.4 R above centre, Alciatore 2004) meets a ball
+    at rest ``cut_deg`` off full, simulated by ``analysis.physics``; detections as in
+    ``benchmarks/event_accuracy.py`` (0.3 mm at rest, 0.5 mm moving). The resting ball's read
+    is carried over unchanged until the frame of the contact (the detector's step for a ball
+    at rest), and in the frames before the contact where the two balls are less than 16.5 mm apart it is pushed
+    ``push_mm`` along the line of centres, the way the struck ball then goes (the cut_bank
+    sample: ball 2 read 2-8 mm off its spot in the four frames before the 1-2 ball met it,
+    16.5 mm apart at the first). Returns (events, the simulator's contact time)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections as sim_detections
+
+    rng = np.random.default_rng(seed)
+    p_obj = np.array([1300.0, 600.0])
+    heading = np.radians(200.0 + 7.0 * seed)
+    n = np.array([np.cos(heading + np.radians(cut_deg)), np.sin(heading + np.radians(cut_deg))])
+    p_cue = p_obj - D * n - 250.0 * np.array([np.cos(heading), np.sin(heading)])
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": tuple(p_cue), "obj": tuple(p_obj)})
+    sim.strike(0.5, Strike("cue", 300.0, float(heading), 0.0, 0.4))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    t_c = min(e.t for e in traj.events if e.kind == "collision")
+    det = sim_detections(traj, 3.5, fps, rng, rest_sigma_mm=0.3, moving_sigma_mm=0.5, drop=0.0)
+    obj = det["truth"] == "obj"
+    det.loc[obj & (det["t"] < t_c - 0.5 / fps), ["x", "y"]] = p_obj + rng.normal(0.0, 0.3, 2)
+    cue = det[det["truth"] == "cue"].set_index("frame")[["x", "y"]]
+    pushed = 0
+    for i in det.index[obj & (det["t"] < t_c)]:
+        c = cue.loc[det.at[i, "frame"]].to_numpy(float)
+        gap = np.hypot(*(c - p_obj)) - D
+        if gap < 16.5:
+            det.loc[i, ["x", "y"]] += push_mm * (p_obj - c) / (gap + D)
+            pushed += 1
+    assert pushed >= 1  # the case asked for
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return ev, t_c
+
+
+@pytest.mark.parametrize("fps", [30.0, 60.0])
+def test_a_resting_ball_read_pushed_by_the_arriving_one_gets_no_start(fps):
+    # A ball at rest stays at rest until struck (Newton's first law), and no cue strikes a ball
+    # while another is arriving within a radius of it (common practice: a stroke is played
+    # with the balls at rest). Reads pushed off the spot the way the ball then goes never come
+    # back to it (``_left_for_good`` does not apply), so the motion seemed to begin frames
+    # before the contact; the struck ball leaves along the line of centres (turned by at most
+    # atan(0.06) = 3.4 degrees, Coulomb friction at the impact), so the collision set it going
+    # and it gets no start: only the cue ball's, at its strike, and both collision rows.
+    # Before: a start about two frames before the contact in all 6 draws at 30 fps (and in 8
+    # of 12 over cuts 0, 20, 40 and seeds 0-3; none at 60 fps, where they stay none).
+    for cut in (0.0, 20.0):
+        for seed in range(3):
+            ev, t_c = _pushed_rest_shot(fps, cut, seed)
+            starts = ev[ev["kind"] == "start"]
+            assert len(starts) == 1 and abs(starts["t"].iloc[0] - 0.5) <= 1.0 / fps, (
+                cut, seed, t_c, starts)
+            assert (ev["kind"] == "collision").sum() == 2, (cut, seed, ev)
+
+
 def test_a_ball_unseen_at_rest_is_met_as_it_leaves_the_contact():
     # A cue ball at 3 m/s meets a resting ball that the detector never found at rest (taken
     # into the empty-table model, as in a dim room of our own rendered set), and the cue ball's

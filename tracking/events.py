@@ -157,7 +157,10 @@ Method
    *Start*:
    the first moving samples' fit extrapolated back to the rest position; a motion that begins
    at a collision has none, unless the ball left rest at an earlier frame than the ball it
-   met (struck by the cue a frame or two before meeting it, ``_set_moving``). *Stop*:
+   met (struck by the cue a frame or two before meeting it, ``_set_moving``). Nor has one
+   that seems to begin frames before a collision with a ball already moving and then within
+   ``nudge_halo_mm`` of its surface, where it leaves along their line of centres: the two
+   balls' one blob pushed its reads (``_met_at_rest``). *Stop*:
    a ball comes to rest rolling, so the samples about the start of its rest are fitted by a
    path decelerating uniformly along a straight line to rest at the stop (``_Finder.stop``):
    the stop's time is where that path's speed reaches zero (never before the ball's last
@@ -1835,14 +1838,74 @@ def _set_moving(finder: "_Finder", b: _Ball, move: tuple[int, int], other: _Ball
     i0, i1) going: it comes between three frames before the motion's first row and one and a
     half frames after its first row above ``move_speed_mm_s``, and ``b`` did not leave rest
     at an earlier frame than ``other`` did (a ball struck by the cue a frame or two before it
-    meets another was moving first; the one it meets was set moving by it)."""
+    meets another was moving first; the one it meets was set moving by it). A collision
+    later than that still set it going where ``other`` met it at rest and its reads were
+    pushed before (``_met_at_rest``)."""
     i0, i1 = move
     dt = finder.dt
     speed = np.hypot(*b.v[i0:i1 + 1].T)
     t_fast = b.t[i0 + int(np.argmax(speed > finder.cfg.move_speed_mm_s))]
-    if not b.t[i0] - 3 * dt <= tc <= t_fast + 1.5 * dt:
+    if not b.t[i0] - 3 * dt <= tc:
+        return False
+    if tc > t_fast + 1.5 * dt and not _met_at_rest(finder, b, i0, other, tc):
         return False
     return not _left_rest(finder, b, tc) < _left_rest(finder, other, tc) - 0.5 * dt
+
+
+def _met_at_rest(finder: "_Finder", b: _Ball, i0: int, other: _Ball, tc: float) -> bool:
+    """Whether ``other`` struck ``b`` at rest at the contact about ``tc`` (s) although ``b``'s
+    motion seems to begin at row ``i0``, frames before it: ``other`` was already moving then,
+    within ``nudge_halo_mm`` of ``b``'s surface, and ``b`` leaves its rest position along the
+    line of centres from where ``other`` comes one diameter from it.
+
+    Two balls that near make one blob for the detector, and the resting ball's reads are
+    pulled by millimetres (cut_bank sample: ball 2, at rest, read 2-8 mm off its spot in the
+    four frames before the 1-2 ball met it at 3.590 s, 16 mm apart and closing; the tracker's
+    velocity on them 340-570 mm/s): the motion's first row then lies before the contact. A
+    cue strike that moment is out of play (a ball arriving within a radius of the struck
+    one), and a ball at rest struck by another leaves along their line of centres, turned
+    from it by the impact's friction only, by at most atan(mu) (the tangential impulse is at
+    most mu times the normal one, Coulomb; Alciatore 2004 for mu 0.03-0.08). A ball already
+    moving when met leaves along its own velocity plus the impulse. The angle is tested
+    against atan(``ball_friction``) plus three standard errors of the departure's direction
+    (its fit over ``start_fit_s``) and of the line of centres (both balls' noise over a
+    diameter)."""
+    cfg, dt = finder.cfg, finder.dt
+    D = finder.table.ball_diameter_mm
+    if not _left_rest(finder, other, tc) < b.t[i0] - 0.5 * dt:
+        return False
+    p_rest = finder._leaving(b, i0)[0]
+    k = np.flatnonzero((other.t >= b.t[i0] - dt) & (other.t <= tc + 2 * dt))
+    if len(k) < 2:
+        return False
+    d = np.hypot(*(other.p[k] - p_rest).T)
+    onset = np.interp(b.t[i0], other.t[k], d)
+    if not onset < D + cfg.nudge_halo_mm:
+        return False
+    inside = np.flatnonzero(d <= D)
+    if len(inside) and inside[0] > 0:
+        # Where the arriving centre comes one diameter from the rest position, between rows.
+        j = int(inside[0])
+        w = (d[j - 1] - D) / (d[j - 1] - d[j])
+        t_x = float(other.t[k[j - 1]] + w * (other.t[k[j]] - other.t[k[j - 1]]))
+        q = other.p[k[j - 1]] + w * (other.p[k[j]] - other.p[k[j - 1]])
+    else:
+        j = int(inside[0]) if len(inside) else int(np.argmin(d))
+        if d[j] > D + cfg.collision_margin_mm:
+            return False
+        t_x, q = float(other.t[k[j]]), other.p[k[j]]
+    t0 = t_x + 0.5 * finder.exposure
+    ts, ps = b.samples(t0, t0 + max(cfg.start_fit_s, 2.5 * dt))
+    f = _fit(ts, ps, t0, 1, b.sigma_fit) if len(ts) >= 2 else None
+    if f is None:
+        return False
+    v = f.vel(t0)
+    s = float(np.hypot(*v))
+    n = p_rest - q
+    n = n / max(float(np.hypot(*n)), 1e-12)
+    cos = float(v @ n) / max(s, 1e-12)
+    sd = math.sqrt(f.vel_var(t0) / max(s * s, 1e-12) + (b.sigma ** 2 + other.sigma ** 2) / D ** 2)
+    return math.acos(min(1.0, max(-1.0, cos))) <= math.atan(cfg.ball_friction) + 3.0 * sd
 
 
 def _strikes(finder: "_Finder", balls: list[_Ball], by_id: dict[int, _Ball],
