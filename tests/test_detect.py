@@ -559,6 +559,35 @@ def test_three_parameter_fit_agrees_with_the_general_fit(setup):
 
 
 @pytest.mark.parametrize("setup", list(SETUPS))
+def test_streak_fit_agrees_with_the_general_fit(setup):
+    # Two implementations of one Levenberg-Marquardt with Tukey reweighting on the swept-sphere
+    # (streak) model must agree to rounding (cross-check of two forms, as filterpy's
+    # procedure-form tests do; common practice); the rays grazing a known swept sphere (its
+    # outline from OpenCV's projectPoints through sphere_outline_px) must give back its centre,
+    # half length and heading (analytic: every grazing ray has residual 0 there).
+    from vision.detect import _robust_fit_general, _robust_fit_streak, _swept_outline_px
+
+    cam = SETUPS[setup]["camera"]
+    rng = np.random.default_rng(3)
+    for k, (xy, half, heading) in enumerate([((600.0, 400.0), 40.0, 0.3), ((2300.0, 1000.0), 90.0, 2.5), ((150.0, 1100.0), 25.0, -1.2)]):
+        poly = _swept_outline_px(cam, xy[0], xy[1], half, heading, R)
+        idx = np.linspace(0, len(poly), 48, endpoint=False).astype(int)
+        uv = poly[idx] + rng.normal(0, 0.05, (48, 2))
+        uv[::9] += 4.0  # stray edges
+        d = cam.rays(uv)
+        start = np.array([xy[0] + 9.0, xy[1] - 6.0, 0.0, 0.7 * half, heading + 0.1])
+        p1, r1, w1, c1 = _robust_fit_general(start, cam.centre_mm, d, R, True)
+        p2, r2, w2, c2 = _robust_fit_streak(start, cam.centre_mm, d, R)
+        assert np.max(np.abs(p1 - p2)) < 1e-9
+        assert np.max(np.abs(r1 - r2)) < 1e-9 and np.max(np.abs(w1 - w2)) < 1e-9
+        assert np.max(np.abs(c1() - c2())) < 1e-12
+        # The hull of 32-point outlines is a polygon whose chords lie inside the true envelope,
+        # and 0.05 px noise: within 0.3 mm, 0.5 mm and 0.01 rad (0.14 mm, 0.13 mm, 0.002 seen).
+        assert math.hypot(p2[0] - xy[0], p2[1] - xy[1]) < 0.3
+        assert abs(p2[3] - half) < 0.5 and abs(p2[4] - heading) < 0.01
+
+
+@pytest.mark.parametrize("setup", list(SETUPS))
 def test_ray_map_projection_and_outline_match_opencv(setup):
     # RayMap.project must agree with OpenCV's projectPoints (reference library) and its
     # one-sphere outline with sphere_outline_px, whose points are again OpenCV projections.

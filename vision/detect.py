@@ -737,10 +737,11 @@ def _residuals_jacobian(p: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, c
 
 
 def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
-    """:func:`_robust_fit_general`, by :func:`_robust_fit_sharp` for a sharp ball."""
+    """:func:`_robust_fit_general`, by :func:`_robust_fit_sharp` for a sharp ball and
+    :func:`_robust_fit_streak` for a streak."""
     if not capsule:
         return _robust_fit_sharp(p0, C, d, R, iters)
-    return _robust_fit_general(p0, C, d, R, capsule, iters)
+    return _robust_fit_streak(p0, C, d, R, iters)
 
 
 def _robust_fit_general(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
@@ -887,6 +888,95 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     dof = max(int(np.count_nonzero(wts > 0)) - 3, 1)
     s2 = float(wts @ (r * r)) / dof
     return p, r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
+
+
+def _streak_res_jac(p: list, dx: np.ndarray, dy: np.ndarray, dz: np.ndarray, C0: float, C1: float, wz: float, R: float) -> tuple[np.ndarray, np.ndarray]:
+    """Ray residuals (K,) of a streak and their Jacobian transposed (5, K) at parameters ``p``
+    (x, y, bias, half length, heading; mm, rad, table frame), for rays ``d`` given by their
+    components (K,) each, from a camera centre (C0, C1, R - wz): :func:`_residuals_jacobian`'s
+    arithmetic, operation for operation, without the bias prior's row (added by the caller)."""
+    px, py, pb, ph, pt = p
+    wx, wy = px - C0, py - C1
+    nx = wy * dz - wz * dy
+    ny = wz * dx - wx * dz
+    nz = wx * dy - wy * dx
+    half = max(ph, 0.0)
+    ex, ey = math.cos(pt), math.sin(pt)
+    # e x d with e = (ex, ey, 0); s the point of the segment nearest the ray.
+    ax, ay, az = ey * dz, -ex * dz, ex * dy - ey * dx
+    den = np.maximum(ax * ax + ay * ay + az * az, 1e-12)
+    s_free = -(nx * ax + ny * ay + nz * az) / den
+    s = np.clip(s_free, -half, half)
+    nx, ny, nz = nx + s * ax, ny + s * ay, nz + s * az
+    dist = np.sqrt(nx * nx + ny * ny + nz * nz)
+    inv = 1.0 / np.maximum(dist, 1e-12)
+    M = np.empty((5, len(dx)))
+    M[0] = (-ny * dz + nz * dy) * inv
+    M[1] = (nx * dz - nz * dx) * inv
+    M[2] = 1.0
+    if ph > 0:
+        M[3] = np.where(np.abs(s_free) > half, np.sign(s_free) * (nx * ax + ny * ay + nz * az) * inv, 0.0)
+    else:
+        M[3] = 0.0
+    # e' x d with e' = d e / d heading = (-sin, cos, 0).
+    bx, by, bz = ex * dz, ey * dz, -ey * dy - ex * dx
+    M[4] = s * (nx * bx + ny * by + nz * bz) * inv
+    return dist - (R - pb), M
+
+
+def _robust_fit_streak(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, iters: int = 10):
+    """:func:`_robust_fit_general` for a streak, parameters (x, y, bias, half length, heading)
+    (mm, rad, table frame; ``C`` (3,) the camera centre, ``d`` (K, 3) unit rays): the same
+    Levenberg-Marquardt (Marquardt 1963) with Tukey biweight reweighting (Holland & Welsch
+    1977), step for step, as :func:`_robust_fit_sharp` is for a sharp ball: the residuals and
+    Jacobian of a trial step are worked out together (:func:`_streak_res_jac`) and kept when the
+    step is taken, the bias prior's row is added to the normal equations as a number, and the
+    parameters are plain floats between steps. Agrees with :func:`_robust_fit_general` to
+    rounding (tests/test_detect.py). Returns what it returns."""
+    K = len(d)
+    dx, dy, dz = (np.ascontiguousarray(d[:, k]) for k in range(3))
+    C0, C1, wz = float(C[0]), float(C[1]), R - float(C[2])
+    inv_sig = 1.0 / _BIAS_SIGMA_MM
+    prior = np.zeros(5)
+    lams = (1.0, 8.0, 64.0, 512.0)
+    lo_b, hi_b = -0.3 * R, 0.3 * R
+    p = [float(v) for v in p0]
+    r, M = _streak_res_jac(p, dx, dy, dz, C0, C1, wz, R)
+    wts = np.ones(K)
+    lam = 1e-3
+    for _ in range(iters):
+        scale = max(1.4826 * _median(np.abs(r)), 0.2)
+        u = r / (4.685 * scale)
+        wts = np.where(np.abs(u) < 1, (1 - u * u) ** 2, 0.0)
+        MW = M * wts
+        A = MW @ M.T
+        A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
+        g = MW @ r
+        prior[2] = inv_sig * (p[2] * inv_sig)
+        g += prior
+        cost = float(wts @ (r * r)) + (p[2] * inv_sig) ** 2
+        # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
+        # tried in order until one lowers the cost.
+        damp = np.diag(A) + 1e-6
+        for k in range(4):
+            delta = np.linalg.solve(A + np.diag(lam * lams[k] * damp), -g)
+            q = [a + b for a, b in zip(p, delta.tolist())]
+            q[2] = min(max(q[2], lo_b), hi_b)
+            q[3] = min(max(q[3], 0.0), 400.0)
+            rq, Mq = _streak_res_jac(q, dx, dy, dz, C0, C1, wz, R)
+            if float(wts @ (rq * rq)) + (q[2] * inv_sig) ** 2 <= cost:
+                break
+        else:
+            break
+        p, r, M = q, rq, Mq
+        lam = max(lam * lams[k] / 5, 1e-6)
+        if max(abs(delta[0]), abs(delta[1])) < 0.005:
+            break
+    A = (M * wts) @ M.T
+    A[2, 2] += inv_sig * inv_sig
+    dof = max(int(np.count_nonzero(wts > 0)) - 5, 1)
+    s2 = float(wts @ (r * r)) / dof
+    return np.array(p), r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
 
 
 def _shift_terms(ref: np.ndarray) -> tuple[np.ndarray, np.ndarray, tuple[float, float, float] | None]:
