@@ -831,34 +831,35 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     C0, C1 = float(C[0]), float(C[1])
 
     def res_jac(px, py, pb):
-        # Residuals and Jacobian (3, K) at (px, py, pb), a new array each call: a trial step's
-        # are kept when the step is taken (not worked out again from its parameters).
+        # Jacobian and residuals as one (4, K) array at (px, py, pb) (rows d/dx, d/dy, d/dbias,
+        # residual), a new array each call: a trial step's are kept when the step is taken
+        # (not worked out again from its parameters). |n|^2 and its two gradient numerators
+        # come from one product with Q.
         wx, wy = px - C0, py - C1
-        dist = np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0))
-        G = np.array([[0.0, 0.5, 0.0, wx, 0.5 * wy, 0.0], [0.0, 0.0, 0.5, 0.0, 0.5 * wx, wy]])
-        M = np.empty((3, K))
-        M[:2] = (G @ Q) / np.maximum(dist, 1e-12)
-        M[2] = 1.0
-        return dist - (R - pb), M
+        V = np.array([[1.0, wx, wy, wx * wx, wx * wy, wy * wy], [0.0, 0.5, 0.0, wx, 0.5 * wy, 0.0], [0.0, 0.0, 0.5, 0.0, 0.5 * wx, wy]]) @ Q
+        dist = np.sqrt(np.maximum(V[0], 0.0))
+        N = np.empty((4, K))
+        N[:2] = V[1:] / np.maximum(dist, 1e-12)
+        N[2] = 1.0
+        N[3] = dist - (R - pb)
+        return N
 
     lam = 1e-3
     px, py, pb = p.tolist()
-    r, M = res_jac(px, py, pb)
+    N = res_jac(px, py, pb)
     wts = np.ones(K)
     lo_b, hi_b = -0.3 * R, 0.3 * R
     for _ in range(iters):
+        r = N[3]
         scale = max(1.4826 * _median(np.abs(r)), 0.2)
         u = r / (4.685 * scale)
         wts = np.maximum(1 - u * u, 0.0)  # Tukey: (1 - u^2)^2 inside |u| < 1, else 0
         wts *= wts
-        MW = M * wts
-        A = MW @ M.T
-        A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
-        g = MW @ r
-        g[2] += inv_sig * (pb * inv_sig)
-        cost = float(wts @ (r * r)) + (pb * inv_sig) ** 2
-        (a0, b, c), (_, e0, f), (_, _, i0) = A.tolist()
-        g0, g1, g2 = g.tolist()
+        # The normal matrix, the gradient and the cost from one product: [M; r] W [M; r]^T.
+        (a0, b, c, g0), (_, e0, f, g1), (_, _, i0, g2), (_, _, _, rr) = ((N * wts) @ N.T).tolist()
+        i0 += inv_sig * inv_sig  # the bias prior's row, weight 1
+        g2 += inv_sig * (pb * inv_sig)
+        cost = rr + (pb * inv_sig) ** 2
         # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
         # tried in order until one lowers the cost (the first of the ladder that would);
         # a symmetric 3 x 3 system solved by its adjugate, delta = -adj(B) g / det B.
@@ -872,17 +873,19 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
             d1 = -(c01 * g0 + c11 * g1 + c12 * g2) / det
             d2 = -(c02 * g0 + c12 * g1 + c22 * g2) / det
             qx, qy, qb = px + d0, py + d1, min(max(pb + d2, lo_b), hi_b)
-            rq, Mq = res_jac(qx, qy, qb)
+            Nq = res_jac(qx, qy, qb)
+            rq = Nq[3]
             if float(wts @ (rq * rq)) + (qb * inv_sig) ** 2 <= cost:
                 break
         else:
             break
         px, py, pb = qx, qy, qb
         lam = max(ll / 5, 1e-6)
-        r, M = rq, Mq
+        N = Nq
         if max(abs(d0), abs(d1)) < 0.005:
             break
     p = np.array([px, py, pb])
+    M, r = N[:3], N[3]
     A = (M * wts) @ M.T
     A[2, 2] += inv_sig * inv_sig
     dof = max(int(np.count_nonzero(wts > 0)) - 3, 1)
@@ -890,8 +893,8 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     return p, r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
 
 
-def _streak_res_jac(p: list, dx: np.ndarray, dy: np.ndarray, dz: np.ndarray, C0: float, C1: float, wz: float, R: float) -> tuple[np.ndarray, np.ndarray]:
-    """Ray residuals (K,) of a streak and their Jacobian transposed (5, K) at parameters ``p``
+def _streak_res_jac(p: list, dx: np.ndarray, dy: np.ndarray, dz: np.ndarray, C0: float, C1: float, wz: float, R: float) -> np.ndarray:
+    """The Jacobian transposed (rows 0-4) and the ray residuals (row 5) of a streak, (6, K), at parameters ``p``
     (x, y, bias, half length, heading; mm, rad, table frame), for rays ``d`` given by their
     components (K,) each, from a camera centre (C0, C1, R - wz): :func:`_residuals_jacobian`'s
     arithmetic, operation for operation, without the bias prior's row (added by the caller)."""
@@ -910,18 +913,19 @@ def _streak_res_jac(p: list, dx: np.ndarray, dy: np.ndarray, dz: np.ndarray, C0:
     nx, ny, nz = nx + s * ax, ny + s * ay, nz + s * az
     dist = np.sqrt(nx * nx + ny * ny + nz * nz)
     inv = 1.0 / np.maximum(dist, 1e-12)
-    M = np.empty((5, len(dx)))
-    M[0] = (-ny * dz + nz * dy) * inv
-    M[1] = (nx * dz - nz * dx) * inv
-    M[2] = 1.0
+    N = np.empty((6, len(dx)))
+    N[0] = (-ny * dz + nz * dy) * inv
+    N[1] = (nx * dz - nz * dx) * inv
+    N[2] = 1.0
     if ph > 0:
-        M[3] = np.where(np.abs(s_free) > half, np.sign(s_free) * (nx * ax + ny * ay + nz * az) * inv, 0.0)
+        N[3] = np.where(np.abs(s_free) > half, np.sign(s_free) * (nx * ax + ny * ay + nz * az) * inv, 0.0)
     else:
-        M[3] = 0.0
+        N[3] = 0.0
     # e' x d with e' = d e / d heading = (-sin, cos, 0).
     bx, by, bz = ex * dz, ey * dz, -ey * dy - ex * dx
-    M[4] = s * (nx * bx + ny * by + nz * bz) * inv
-    return dist - (R - pb), M
+    N[4] = s * (nx * bx + ny * by + nz * bz) * inv
+    N[5] = dist - (R - pb)
+    return N
 
 
 def _robust_fit_streak(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, iters: int = 10):
@@ -941,37 +945,43 @@ def _robust_fit_streak(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, i
     lams = (1.0, 8.0, 64.0, 512.0)
     lo_b, hi_b = -0.3 * R, 0.3 * R
     p = [float(v) for v in p0]
-    r, M = _streak_res_jac(p, dx, dy, dz, C0, C1, wz, R)
+    N = _streak_res_jac(p, dx, dy, dz, C0, C1, wz, R)
     wts = np.ones(K)
     lam = 1e-3
     for _ in range(iters):
+        r = N[5]
         scale = max(1.4826 * _median(np.abs(r)), 0.2)
         u = r / (4.685 * scale)
         wts = np.where(np.abs(u) < 1, (1 - u * u) ** 2, 0.0)
-        MW = M * wts
-        A = MW @ M.T
+        # The normal matrix, the gradient and the cost from one product: [M; r] W [M; r]^T.
+        H = (N * wts) @ N.T
+        A = H[:5, :5]
         A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
-        g = MW @ r
+        g = H[:5, 5]
         prior[2] = inv_sig * (p[2] * inv_sig)
         g += prior
-        cost = float(wts @ (r * r)) + (p[2] * inv_sig) ** 2
+        cost = float(H[5, 5]) + (p[2] * inv_sig) ** 2
         # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
         # tried in order until one lowers the cost.
-        damp = np.diag(A) + 1e-6
+        damp = A.diagonal() + 1e-6
         for k in range(4):
-            delta = np.linalg.solve(A + np.diag(lam * lams[k] * damp), -g)
+            B = A.copy()
+            B.flat[::6] += lam * lams[k] * damp
+            delta = np.linalg.solve(B, -g)
             q = [a + b for a, b in zip(p, delta.tolist())]
             q[2] = min(max(q[2], lo_b), hi_b)
             q[3] = min(max(q[3], 0.0), 400.0)
-            rq, Mq = _streak_res_jac(q, dx, dy, dz, C0, C1, wz, R)
+            Nq = _streak_res_jac(q, dx, dy, dz, C0, C1, wz, R)
+            rq = Nq[5]
             if float(wts @ (rq * rq)) + (q[2] * inv_sig) ** 2 <= cost:
                 break
         else:
             break
-        p, r, M = q, rq, Mq
+        p, N = q, Nq
         lam = max(lam * lams[k] / 5, 1e-6)
         if max(abs(delta[0]), abs(delta[1])) < 0.005:
             break
+    M, r = N[:5], N[5]
     A = (M * wts) @ M.T
     A[2, 2] += inv_sig * inv_sig
     dof = max(int(np.count_nonzero(wts > 0)) - 5, 1)
