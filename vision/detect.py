@@ -239,6 +239,23 @@ _STEP_PX = 0.25
 # bands sit 1.75..2.75 px either side, beyond a blurred edge's half-width (about 1.5 px for an
 # optical blur of 0.6 px plus the pixel's own box).
 _LOCAL_REACH_PX = 3.0
+def _band(off: np.ndarray, lo: float, hi: float) -> slice:
+    """The slice of the increasing offsets ``off`` (px) lying in [lo, hi]: a band of samples
+    taken as a view, not copied out by a boolean mask."""
+    k = np.flatnonzero((off >= lo) & (off <= hi))
+    return slice(int(k[0]), int(k[-1]) + 1)
+
+
+# The local edge's sample offsets (px, outward) about the predicted outline, made once (read
+# only), and its bands: the rim colour 1.75..2.75 px inside, the surround's as far outside
+# (:meth:`BallDetector._edges_local`) and the off-hue rim band 1.25..2 px inside
+# (:func:`_off_hue_edges`).
+_LOCAL_OFF = np.arange(-_LOCAL_REACH_PX, _LOCAL_REACH_PX + 1e-9, _STEP_PX)
+_LOCAL_OFF.flags.writeable = False
+_LOCAL_INNER = _band(_LOCAL_OFF, -2.75, -1.75)
+_LOCAL_OUTER = _band(_LOCAL_OFF, 1.75, 2.75)
+_HUE_BAND = _band(_LOCAL_OFF, -2.0, -1.25)
+
 # A fitted half streak shorter than this share of R is refitted as a sharp ball. The outline
 # found is the half-coverage contour of the blurred image; for a sphere swept h <= R each way it
 # lies R from the mid-exposure centre along the motion (a point there is covered for half the
@@ -909,7 +926,7 @@ def _streak_res_jac(p: list, dx: np.ndarray, dy: np.ndarray, dz: np.ndarray, C0:
     ax, ay, az = ey * dz, -ex * dz, ex * dy - ey * dx
     den = np.maximum(ax * ax + ay * ay + az * az, 1e-12)
     s_free = -(nx * ax + ny * ay + nz * az) / den
-    s = np.clip(s_free, -half, half)
+    s = np.minimum(np.maximum(s_free, -half), half)  # np.clip's arithmetic without its wrappers
     nx, ny, nz = nx + s * ax, ny + s * ay, nz + s * az
     dist = np.sqrt(nx * nx + ny * ny + nz * nz)
     inv = 1.0 / np.maximum(dist, 1e-12)
@@ -1218,8 +1235,7 @@ def _off_hue_edges(prof: np.ndarray, off: np.ndarray, S: np.ndarray, min_step: f
     least ``_HUE_STEP`` (the sine of the angle between the two colours) off the surround's
     direction and its off-hue part exceeds ``min_step`` DN.
     """
-    band = (off >= -2.0) & (off <= -1.25)
-    P = prof[:, band].mean(axis=1)
+    P = _band_mean(prof, _HUE_BAND if off is _LOCAL_OFF else _band(off, -2.0, -1.25))
     Sh = S / np.maximum(_norm3(S), 1.0)[:, None]
     e = P - _dot3(P, Sh)[:, None] * Sh
     en = _norm3(e)
@@ -1232,6 +1248,13 @@ def _off_hue_edges(prof: np.ndarray, off: np.ndarray, S: np.ndarray, min_step: f
     edge = pos[np.arange(len(pos)), np.argmin(np.abs(pos), axis=1)]
     ok = np.isfinite(edge) & (en > min_step) & (en > _HUE_STEP * _norm3(P))
     return edge, ok
+
+
+def _band_mean(prof: np.ndarray, band: slice) -> np.ndarray:
+    """(K, 3) mean colour of the samples ``band`` of each ray of ``prof`` (K, N, 3) float32:
+    ``prof[:, band].mean(axis=1)`` to the last bit (a float32 sum along the band in order,
+    divided by its length), without ``np.mean``'s argument handling."""
+    return np.add.reduce(prof[:, band], axis=1) / np.float32(band.stop - band.start)
 
 
 def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
@@ -1254,8 +1277,9 @@ def _row_median(a: np.ndarray) -> np.ndarray:
     NaN last, so the median is read at half each row's count without ``np.nanmedian``'s loop."""
     srt = np.sort(a, axis=1)
     cnt = np.sum(~np.isnan(a), axis=1)
-    lo = np.clip((cnt - 1) // 2, 0, a.shape[1] - 1)
-    hi = np.clip(cnt // 2, 0, a.shape[1] - 1)
+    top = a.shape[1] - 1
+    lo = np.minimum(np.maximum((cnt - 1) // 2, 0), top)
+    hi = np.minimum(cnt // 2, top)  # cnt >= 0
     rows = np.arange(len(a))
     out = 0.5 * (srt[rows, lo] + srt[rows, hi])
     out[cnt == 0] = np.nan
@@ -2880,13 +2904,14 @@ class BallDetector:
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
         # match the cloth's hue too. ``shadows`` False skips the test.
-        shade = np.flip(np.logical_and.accumulate(np.flip(shade, axis=1), axis=1), axis=1) & (rho >= rho_pred[:, None])
+        shade = np.logical_and.accumulate(shade[:, ::-1], axis=1)[:, ::-1] & (rho >= rho_pred[:, None])
         if shadows and shade.any():
             lower = np.minimum(D, _ballness_of(ib, a, ii, bb_raw, bn))
             self._discounted |= bool(np.any(shade & (lower != D)))  # NaN counts as lowered
             D = np.where(shade, lower, D)
         inner_sel = rho <= 0.8 * rho_pred[:, None]
-        inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
+        inner = _row_median(np.where(inner_sel, D, np.nan))
+        inner[np.isnan(inner)] = 0.0  # D is finite or NaN, so this is np.nan_to_num's result
         # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
         # above a cast shadow's dimming) marks the outline; its level is half the ball's value
         # 1.5 px further in, so a stripe's band at the rim sets its own level.
@@ -2896,16 +2921,16 @@ class BallDetector:
         has = on.any(axis=1)
         k_out = nstep - 1 - np.argmax(on[:, ::-1], axis=1)
         back = int(round(1.5 / _STEP_PX))
-        lo_k = np.clip(k_out - back, 0, nstep - 1)
+        lo_k = np.maximum(k_out - back, 0)  # k_out <= nstep - 1
         local = np.max(np.where((idx[None, :] >= lo_k[:, None]) & (idx[None, :] <= k_out[:, None]), D, 0.0), axis=1)
         level = 0.5 * local
         after = (idx[None, :] >= lo_k[:, None]) & (D < level[:, None])
         has &= after.any(axis=1)
         j = np.argmax(after, axis=1)
-        jj = np.clip(j, 1, nstep - 1)
+        jj = np.minimum(np.maximum(j, 1), nstep - 1)  # np.clip's arithmetic
         d0 = D[np.arange(K), jj - 1]
         d1 = D[np.arange(K), jj]
-        frac = np.clip((d0 - level) / np.maximum(d0 - d1, 1e-6), 0.0, 1.0)
+        frac = np.minimum(np.maximum((d0 - level) / np.maximum(d0 - d1, 1e-6), 0.0), 1.0)  # np.clip's arithmetic
         r_edge = rho[np.arange(K), jj - 1] + frac * _STEP_PX
         ok = has & (j > 0) & (inner > 2 * self._score_thr) & (d0 >= level) & (k_out < nstep - 3)
         # A ball of the cloth's own hue (blue on blue, red on red) differs from the cloth by its
@@ -2940,15 +2965,13 @@ class BallDetector:
         rim colour sampled 2 px in is brighter than the limb at the outline (Lambert's cosine
         law), both on one side of a ball lit from one side.
         """
-        off = np.arange(-_LOCAL_REACH_PX, _LOCAL_REACH_PX + 1e-9, _STEP_PX)
+        off = _LOCAL_OFF
         rho = np.maximum(rho_pred[:, None] + off[None, :], 0.0)
         mx = (c[0] + rho * dirs[:, 0:1]).astype(np.float32)
         my = (c[1] + rho * dirs[:, 1:2]).astype(np.float32)
         prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        inner = (off >= -2.75) & (off <= -1.75)
-        outer = (off >= 1.75) & (off <= 2.75)
-        P = prof[:, inner].mean(axis=1)
-        S = prof[:, outer].mean(axis=1)
+        P = _band_mean(prof, _LOCAL_INNER)
+        S = _band_mean(prof, _LOCAL_OUTER)
         ps = P - S
         n2 = np.sum(ps * ps, axis=1)
         alpha = _dot3(prof - S[:, None], ps[:, None]) / np.maximum(n2, 1e-6)[:, None]
