@@ -610,6 +610,29 @@ def test_ray_map_projection_and_outline_match_opencv(setup):
         assert np.max(np.abs(rm.sphere_outline(x, y, R) - want)) < 1e-9
 
 
+def test_ray_map_projection_of_both_lens_forms_matches_opencv():
+    # RayMap.project takes a shorter path for a lens of k1, k2 alone (the SETUPS cameras and
+    # automatic calibration's); both it and the full radial-tangential path must agree with
+    # OpenCV's projectPoints (reference library), and the radial path must equal the full
+    # formula to the last bit (its left-out terms are exact zeros).
+    import cv2
+
+    from vision.detect import RayMap
+
+    rng = np.random.default_rng(8)
+    P = np.column_stack([rng.uniform(0, NINE_FOOT.length_mm, 200), rng.uniform(0, NINE_FOOT.width_mm, 200), rng.uniform(0, 60, 200)])
+    for dist in ((-0.3, 0.09, 0.0, 0.0, 0.0), (-0.42, 0.16, -0.0008, 0.0005, -0.025)):
+        cam = Camera.overhead(NINE_FOOT, 1700.0, (1280, 720), offset_mm=(-250, 150), roll_deg=3.0, dist=dist)
+        rm = RayMap(cam)
+        assert rm._radial_only == (dist[2:] == (0.0, 0.0, 0.0))
+        ref, _ = cv2.projectPoints(P, cam.rvec, cam.tvec, cam.K, cam.dist)
+        got = rm.project(P)
+        assert np.max(np.abs(got - ref.reshape(-1, 2))) < 1e-6
+        if rm._radial_only:
+            rm._radial_only = False  # the full formula on the same camera
+            assert np.array_equal(rm.project(P), got)
+
+
 def test_sphere_fit_places_an_off_axis_ball_from_its_projected_silhouette():
     # Under a pinhole camera the outline of a sphere is a conic whose centre is not the image of
     # the sphere's centre (Hartley & Zisserman, Multiple View Geometry, 2nd ed., the outline of

@@ -593,9 +593,12 @@ def _median(x: np.ndarray) -> float:
     machinery dominates its cost on 48 values)."""
     n = len(x)
     h = n // 2
+    # A copy partitioned in place: np.partition's own steps without its dispatch wrappers.
+    q = x.copy()
     if n % 2:
-        return float(np.partition(x, h)[h])
-    q = np.partition(x, (h - 1, h))
+        q.partition(h)
+        return float(q[h])
+    q.partition((h - 1, h))
     return 0.5 * float(q[h - 1] + q[h])
 
 
@@ -623,7 +626,7 @@ def _ray_polygon(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarra
     arithmetic for that edge); the search of every edge (:func:`_ray_polygon_all`) stands
     where that does not give a crossing ahead of ``c`` on every ray."""
     t = _ray_polygon_convex(c, dirs, poly)
-    if np.all(t > 0):  # False for NaN
+    if (t > 0).all():  # False for NaN
         return t
     return _ray_polygon_all(c, dirs, poly)
 
@@ -1318,6 +1321,10 @@ class RayMap:
         self._dist = [float(v) for v in camera.dist]
         K = camera.K
         self._k = (float(K[0, 0]), float(K[0, 1]), float(K[0, 2]), float(K[1, 1]), float(K[1, 2]))
+        # A lens of radial terms k1, k2 alone and no skew (what automatic calibration fits):
+        # the tangential, k3 and skew terms then add exact zeros, so :meth:`project` leaves
+        # them out and gives the same pixels.
+        self._radial_only = self._dist[2] == 0.0 and self._dist[3] == 0.0 and self._dist[4] == 0.0 and self._k[1] == 0.0
         ang = np.linspace(0, 2 * np.pi, 32, endpoint=False)
         self._cos32, self._sin32 = np.cos(ang), np.sin(ang)
 
@@ -1333,8 +1340,14 @@ class RayMap:
         g = uv / self.step
         i0 = np.floor(g)
         nv, nu = self.shape
-        inside = (i0[:, 0] >= 0) & (i0[:, 0] < nu - 1) & (i0[:, 1] >= 0) & (i0[:, 1] < nv - 1)
-        every = bool(inside.all())
+        # Every point on the grid (the usual case) is told from the corner cells alone; NaN
+        # fails every comparison, as it does per point below.
+        if len(i0):
+            lo, hi = i0.min(axis=0), i0.max(axis=0)
+            every = bool(lo[0] >= 0 and hi[0] < nu - 1 and lo[1] >= 0 and hi[1] < nv - 1)
+        else:
+            every = True
+        inside = None if every else (i0[:, 0] >= 0) & (i0[:, 0] < nu - 1) & (i0[:, 1] >= 0) & (i0[:, 1] < nv - 1)
         out = np.empty_like(uv)
         if every or inside.any():
             gi, ii, uvi = (g, i0, uv) if every else (g[inside], i0[inside], uv[inside])
@@ -1385,11 +1398,16 @@ class RayMap:
         x, y = cam[:, 0] / z, cam[:, 1] / z
         k1, k2, p1, p2, k3 = self._dist
         r2 = x * x + y * y
+        out = np.empty((len(cam), 2))
+        k00, k01, k02, k11, k12 = self._k
+        if self._radial_only:
+            radial = 1 + r2 * (k1 + r2 * k2)
+            out[:, 0] = k00 * (x * radial) + k02
+            out[:, 1] = k11 * (y * radial) + k12
+            return out
         radial = 1 + r2 * (k1 + r2 * (k2 + r2 * k3))
         xd = x * radial + 2 * p1 * x * y + p2 * (r2 + 2 * x * x)
         yd = y * radial + p1 * (r2 + 2 * y * y) + 2 * p2 * x * y
-        out = np.empty((len(cam), 2))
-        k00, k01, k02, k11, k12 = self._k
         out[:, 0] = k00 * xd + k01 * yd + k02
         out[:, 1] = k11 * yd + k12
         return out
@@ -3077,10 +3095,10 @@ class BallDetector:
             hd = p[4] if capsule else 0.0
             poly = _swept_outline_px(cam, p[0], p[1], half, hd, R, self.rays)
             c = self.rays.project(np.array([[p[0], p[1], R]]))[0]
-            if not np.all(np.isfinite(c)):
+            if not (math.isfinite(c[0]) and math.isfinite(c[1])):
                 return None
             rho = _ray_polygon(c, dirs, poly)
-            if np.any(~np.isfinite(rho)):
+            if not np.isfinite(rho).all():
                 return None
             r_loc = _median(rho) if not capsule else r_px
             if win is None:
@@ -3121,7 +3139,7 @@ class BallDetector:
             if masked:
                 pts[~free] = np.nan
             n_rays = int(free.sum()) if masked else _N_RAYS
-            good = np.all(np.isfinite(pts), axis=1)
+            good = np.isfinite(pts).all(axis=1)
             if good.sum() < self.config.min_inlier_share * n_rays:
                 if win is None and result is not None:
                     break  # keep the coarse fit: the rim is too faint for the local edge
