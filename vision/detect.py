@@ -239,6 +239,8 @@ _STEP_PX = 0.25
 # bands sit 1.75..2.75 px either side, beyond a blurred edge's half-width (about 1.5 px for an
 # optical blur of 0.6 px plus the pixel's own box).
 _LOCAL_REACH_PX = 3.0
+
+
 def _band(off: np.ndarray, lo: float, hi: float) -> slice:
     """The slice of the increasing offsets ``off`` (px) lying in [lo, hi]: a band of samples
     taken as a view, not copied out by a boolean mask."""
@@ -914,8 +916,8 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
 
 
 def _streak_res_jac(p: list, dx: np.ndarray, dy: np.ndarray, dz: np.ndarray, C0: float, C1: float, wz: float, R: float) -> np.ndarray:
-    """The Jacobian transposed (rows 0-4) and the ray residuals (row 5) of a streak, (6, K), at parameters ``p``
-    (x, y, bias, half length, heading; mm, rad, table frame), for rays ``d`` given by their
+    """The Jacobian transposed (rows 0-4) and the ray residuals (row 5) of a streak, (6, K), at
+    parameters ``p`` (x, y, bias, half length, heading; mm, rad, table frame), for rays ``d`` given by their
     components (K,) each, from a camera centre (C0, C1, R - wz): :func:`_residuals_jacobian`'s
     arithmetic, operation for operation, without the bias prior's row (added by the caller)."""
     px, py, pb, ph, pt = p
