@@ -535,6 +535,16 @@ def _grazing_rays(cam: Camera, centre_xy, n: int = 48, outliers: int = 0, seed: 
     return cam.rays(uv)
 
 
+def _same_fit(general, special):
+    """Assert two fits' (params, ray residuals, ray weights, covariance function) agree to
+    rounding; returns the second."""
+    (p1, r1, w1, c1), (p2, r2, w2, c2) = general, special
+    assert np.max(np.abs(p1 - p2)) < 1e-9
+    assert np.max(np.abs(r1 - r2)) < 1e-9 and np.max(np.abs(w1 - w2)) < 1e-9
+    assert np.max(np.abs(c1() - c2())) < 1e-12
+    return special
+
+
 @pytest.mark.parametrize("setup", list(SETUPS))
 def test_three_parameter_fit_agrees_with_the_general_fit(setup):
     # Two implementations of one Levenberg-Marquardt with Tukey reweighting must agree to
@@ -547,11 +557,7 @@ def test_three_parameter_fit_agrees_with_the_general_fit(setup):
     for k, (xy, n_out) in enumerate([((600.0, 400.0), 0), ((2300.0, 1000.0), 6), ((150.0, 1100.0), 3)]):
         d = _grazing_rays(cam, xy, outliers=n_out, seed=k)
         start = np.array([xy[0] + 9.0, xy[1] - 6.0, 0.0])  # a third of a radius off
-        p1, r1, w1, c1 = _robust_fit_general(start, cam.centre_mm, d, R, False)
-        p2, r2, w2, c2 = _robust_fit_sharp(start, cam.centre_mm, d, R)
-        assert np.max(np.abs(p1 - p2)) < 1e-9
-        assert np.max(np.abs(r1 - r2)) < 1e-9 and np.max(np.abs(w1 - w2)) < 1e-9
-        assert np.max(np.abs(c1() - c2())) < 1e-12
+        p2, _, w2, _ = _same_fit(_robust_fit_general(start, cam.centre_mm, d, R, False), _robust_fit_sharp(start, cam.centre_mm, d, R))
         # 0.05 px of outline noise at about 2 mm per px moves a 48-ray centre by well under 0.1 mm.
         assert math.hypot(p2[0] - xy[0], p2[1] - xy[1]) < 0.1
         if n_out:
@@ -576,11 +582,7 @@ def test_streak_fit_agrees_with_the_general_fit(setup):
         uv[::9] += 4.0  # stray edges
         d = cam.rays(uv)
         start = np.array([xy[0] + 9.0, xy[1] - 6.0, 0.0, 0.7 * half, heading + 0.1])
-        p1, r1, w1, c1 = _robust_fit_general(start, cam.centre_mm, d, R, True)
-        p2, r2, w2, c2 = _robust_fit_streak(start, cam.centre_mm, d, R)
-        assert np.max(np.abs(p1 - p2)) < 1e-9
-        assert np.max(np.abs(r1 - r2)) < 1e-9 and np.max(np.abs(w1 - w2)) < 1e-9
-        assert np.max(np.abs(c1() - c2())) < 1e-12
+        p2 = _same_fit(_robust_fit_general(start, cam.centre_mm, d, R, True), _robust_fit_streak(start, cam.centre_mm, d, R))[0]
         # The hull of 32-point outlines is a polygon whose chords lie inside the true envelope,
         # and 0.05 px noise: within 0.3 mm, 0.5 mm and 0.01 rad (0.14 mm, 0.13 mm, 0.002 seen).
         assert math.hypot(p2[0] - xy[0], p2[1] - xy[1]) < 0.3
