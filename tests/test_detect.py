@@ -535,6 +535,16 @@ def _grazing_rays(cam: Camera, centre_xy, n: int = 48, outliers: int = 0, seed: 
     return cam.rays(uv)
 
 
+def _same_fit(general, special):
+    """Assert two fits' (params, ray residuals, ray weights, covariance function) agree to
+    rounding; returns the second."""
+    (p1, r1, w1, c1), (p2, r2, w2, c2) = general, special
+    assert np.max(np.abs(p1 - p2)) < 1e-9
+    assert np.max(np.abs(r1 - r2)) < 1e-9 and np.max(np.abs(w1 - w2)) < 1e-9
+    assert np.max(np.abs(c1() - c2())) < 1e-12
+    return special
+
+
 @pytest.mark.parametrize("setup", list(SETUPS))
 def test_three_parameter_fit_agrees_with_the_general_fit(setup):
     # Two implementations of one Levenberg-Marquardt with Tukey reweighting must agree to
@@ -547,15 +557,36 @@ def test_three_parameter_fit_agrees_with_the_general_fit(setup):
     for k, (xy, n_out) in enumerate([((600.0, 400.0), 0), ((2300.0, 1000.0), 6), ((150.0, 1100.0), 3)]):
         d = _grazing_rays(cam, xy, outliers=n_out, seed=k)
         start = np.array([xy[0] + 9.0, xy[1] - 6.0, 0.0])  # a third of a radius off
-        p1, r1, w1, c1 = _robust_fit_general(start, cam.centre_mm, d, R, False)
-        p2, r2, w2, c2 = _robust_fit_sharp(start, cam.centre_mm, d, R)
-        assert np.max(np.abs(p1 - p2)) < 1e-9
-        assert np.max(np.abs(r1 - r2)) < 1e-9 and np.max(np.abs(w1 - w2)) < 1e-9
-        assert np.max(np.abs(c1() - c2())) < 1e-12
+        p2, _, w2, _ = _same_fit(_robust_fit_general(start, cam.centre_mm, d, R, False), _robust_fit_sharp(start, cam.centre_mm, d, R))
         # 0.05 px of outline noise at about 2 mm per px moves a 48-ray centre by well under 0.1 mm.
         assert math.hypot(p2[0] - xy[0], p2[1] - xy[1]) < 0.1
         if n_out:
             assert np.all(w2[np.arange(0, 48, 8)[:n_out]] < 0.2)  # the pushed rays are outliers to the biweight
+
+
+@pytest.mark.parametrize("setup", list(SETUPS))
+def test_streak_fit_agrees_with_the_general_fit(setup):
+    # Two implementations of one Levenberg-Marquardt with Tukey reweighting on the swept-sphere
+    # (streak) model must agree to rounding (cross-check of two forms, as filterpy's
+    # procedure-form tests do; common practice); the rays grazing a known swept sphere (its
+    # outline from OpenCV's projectPoints through sphere_outline_px) must give back its centre,
+    # half length and heading (analytic: every grazing ray has residual 0 there).
+    from vision.detect import _robust_fit_general, _robust_fit_streak, _swept_outline_px
+
+    cam = SETUPS[setup]["camera"]
+    rng = np.random.default_rng(3)
+    for k, (xy, half, heading) in enumerate([((600.0, 400.0), 40.0, 0.3), ((2300.0, 1000.0), 90.0, 2.5), ((150.0, 1100.0), 25.0, -1.2)]):
+        poly = _swept_outline_px(cam, xy[0], xy[1], half, heading, R)
+        idx = np.linspace(0, len(poly), 48, endpoint=False).astype(int)
+        uv = poly[idx] + rng.normal(0, 0.05, (48, 2))
+        uv[::9] += 4.0  # stray edges
+        d = cam.rays(uv)
+        start = np.array([xy[0] + 9.0, xy[1] - 6.0, 0.0, 0.7 * half, heading + 0.1])
+        p2 = _same_fit(_robust_fit_general(start, cam.centre_mm, d, R, True), _robust_fit_streak(start, cam.centre_mm, d, R))[0]
+        # The hull of 32-point outlines is a polygon whose chords lie inside the true envelope,
+        # and 0.05 px noise: within 0.3 mm, 0.5 mm and 0.01 rad (0.14 mm, 0.13 mm, 0.002 seen).
+        assert math.hypot(p2[0] - xy[0], p2[1] - xy[1]) < 0.3
+        assert abs(p2[3] - half) < 0.5 and abs(p2[4] - heading) < 0.01
 
 
 @pytest.mark.parametrize("setup", list(SETUPS))
@@ -579,6 +610,29 @@ def test_ray_map_projection_and_outline_match_opencv(setup):
     for x, y in P[:10, :2]:
         want = sphere_outline_px(cam, np.array([[x, y, R]]), R, 32)[0]
         assert np.max(np.abs(rm.sphere_outline(x, y, R) - want)) < 1e-9
+
+
+def test_ray_map_projection_of_both_lens_forms_matches_opencv():
+    # RayMap.project takes a shorter path for a lens of k1, k2 alone (the SETUPS cameras and
+    # automatic calibration's); both it and the full radial-tangential path must agree with
+    # OpenCV's projectPoints (reference library), and the radial path must equal the full
+    # formula to the last bit (its left-out terms are exact zeros).
+    import cv2
+
+    from vision.detect import RayMap
+
+    rng = np.random.default_rng(8)
+    P = np.column_stack([rng.uniform(0, NINE_FOOT.length_mm, 200), rng.uniform(0, NINE_FOOT.width_mm, 200), rng.uniform(0, 60, 200)])
+    for dist in ((-0.3, 0.09, 0.0, 0.0, 0.0), (-0.42, 0.16, -0.0008, 0.0005, -0.025)):
+        cam = Camera.overhead(NINE_FOOT, 1700.0, (1280, 720), offset_mm=(-250, 150), roll_deg=3.0, dist=dist)
+        rm = RayMap(cam)
+        assert rm._radial_only == (dist[2:] == (0.0, 0.0, 0.0))
+        ref, _ = cv2.projectPoints(P, cam.rvec, cam.tvec, cam.K, cam.dist)
+        got = rm.project(P)
+        assert np.max(np.abs(got - ref.reshape(-1, 2))) < 1e-6
+        if rm._radial_only:
+            rm._radial_only = False  # the full formula on the same camera
+            assert np.array_equal(rm.project(P), got)
 
 
 def test_sphere_fit_places_an_off_axis_ball_from_its_projected_silhouette():

@@ -239,6 +239,25 @@ _STEP_PX = 0.25
 # bands sit 1.75..2.75 px either side, beyond a blurred edge's half-width (about 1.5 px for an
 # optical blur of 0.6 px plus the pixel's own box).
 _LOCAL_REACH_PX = 3.0
+
+
+def _band(off: np.ndarray, lo: float, hi: float) -> slice:
+    """The slice of the increasing offsets ``off`` (px) lying in [lo, hi]: a band of samples
+    taken as a view, not copied out by a boolean mask."""
+    k = np.flatnonzero((off >= lo) & (off <= hi))
+    return slice(int(k[0]), int(k[-1]) + 1)
+
+
+# The local edge's sample offsets (px, outward) about the predicted outline, made once (read
+# only), and its bands: the rim colour 1.75..2.75 px inside, the surround's as far outside
+# (:meth:`BallDetector._edges_local`) and the off-hue rim band 1.25..2 px inside
+# (:func:`_off_hue_edges`).
+_LOCAL_OFF = np.arange(-_LOCAL_REACH_PX, _LOCAL_REACH_PX + 1e-9, _STEP_PX)
+_LOCAL_OFF.flags.writeable = False
+_LOCAL_INNER = _band(_LOCAL_OFF, -2.75, -1.75)
+_LOCAL_OUTER = _band(_LOCAL_OFF, 1.75, 2.75)
+_HUE_BAND = _band(_LOCAL_OFF, -2.0, -1.25)
+
 # A fitted half streak shorter than this share of R is refitted as a sharp ball. The outline
 # found is the half-coverage contour of the blurred image; for a sphere swept h <= R each way it
 # lies R from the mid-exposure centre along the motion (a point there is covered for half the
@@ -576,9 +595,12 @@ def _median(x: np.ndarray) -> float:
     machinery dominates its cost on 48 values)."""
     n = len(x)
     h = n // 2
+    # A copy partitioned in place: np.partition's own steps without its dispatch wrappers.
+    q = x.copy()
     if n % 2:
-        return float(np.partition(x, h)[h])
-    q = np.partition(x, (h - 1, h))
+        q.partition(h)
+        return float(q[h])
+    q.partition((h - 1, h))
     return 0.5 * float(q[h - 1] + q[h])
 
 
@@ -606,7 +628,7 @@ def _ray_polygon(c: np.ndarray, dirs: np.ndarray, poly: np.ndarray) -> np.ndarra
     arithmetic for that edge); the search of every edge (:func:`_ray_polygon_all`) stands
     where that does not give a crossing ahead of ``c`` on every ray."""
     t = _ray_polygon_convex(c, dirs, poly)
-    if np.all(t > 0):  # False for NaN
+    if (t > 0).all():  # False for NaN
         return t
     return _ray_polygon_all(c, dirs, poly)
 
@@ -737,10 +759,11 @@ def _residuals_jacobian(p: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, c
 
 
 def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
-    """:func:`_robust_fit_general`, by :func:`_robust_fit_sharp` for a sharp ball."""
+    """:func:`_robust_fit_general`, by :func:`_robust_fit_sharp` for a sharp ball and
+    :func:`_robust_fit_streak` for a streak."""
     if not capsule:
         return _robust_fit_sharp(p0, C, d, R, iters)
-    return _robust_fit_general(p0, C, d, R, capsule, iters)
+    return _robust_fit_streak(p0, C, d, R, iters)
 
 
 def _robust_fit_general(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
@@ -830,34 +853,35 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
     C0, C1 = float(C[0]), float(C[1])
 
     def res_jac(px, py, pb):
-        # Residuals and Jacobian (3, K) at (px, py, pb), a new array each call: a trial step's
-        # are kept when the step is taken (not worked out again from its parameters).
+        # Jacobian and residuals as one (4, K) array at (px, py, pb) (rows d/dx, d/dy, d/dbias,
+        # residual), a new array each call: a trial step's are kept when the step is taken
+        # (not worked out again from its parameters). |n|^2 and its two gradient numerators
+        # come from one product with Q.
         wx, wy = px - C0, py - C1
-        dist = np.sqrt(np.maximum(np.array([1.0, wx, wy, wx * wx, wx * wy, wy * wy]) @ Q, 0.0))
-        G = np.array([[0.0, 0.5, 0.0, wx, 0.5 * wy, 0.0], [0.0, 0.0, 0.5, 0.0, 0.5 * wx, wy]])
-        M = np.empty((3, K))
-        M[:2] = (G @ Q) / np.maximum(dist, 1e-12)
-        M[2] = 1.0
-        return dist - (R - pb), M
+        V = np.array([[1.0, wx, wy, wx * wx, wx * wy, wy * wy], [0.0, 0.5, 0.0, wx, 0.5 * wy, 0.0], [0.0, 0.0, 0.5, 0.0, 0.5 * wx, wy]]) @ Q
+        dist = np.sqrt(np.maximum(V[0], 0.0))
+        N = np.empty((4, K))
+        N[:2] = V[1:] / np.maximum(dist, 1e-12)
+        N[2] = 1.0
+        N[3] = dist - (R - pb)
+        return N
 
     lam = 1e-3
     px, py, pb = p.tolist()
-    r, M = res_jac(px, py, pb)
+    N = res_jac(px, py, pb)
     wts = np.ones(K)
     lo_b, hi_b = -0.3 * R, 0.3 * R
     for _ in range(iters):
+        r = N[3]
         scale = max(1.4826 * _median(np.abs(r)), 0.2)
         u = r / (4.685 * scale)
         wts = np.maximum(1 - u * u, 0.0)  # Tukey: (1 - u^2)^2 inside |u| < 1, else 0
         wts *= wts
-        MW = M * wts
-        A = MW @ M.T
-        A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
-        g = MW @ r
-        g[2] += inv_sig * (pb * inv_sig)
-        cost = float(wts @ (r * r)) + (pb * inv_sig) ** 2
-        (a0, b, c), (_, e0, f), (_, _, i0) = A.tolist()
-        g0, g1, g2 = g.tolist()
+        # The normal matrix, the gradient and the cost from one product: [M; r] W [M; r]^T.
+        (a0, b, c, g0), (_, e0, f, g1), (_, _, i0, g2), (_, _, _, rr) = ((N * wts) @ N.T).tolist()
+        i0 += inv_sig * inv_sig  # the bias prior's row, weight 1
+        g2 += inv_sig * (pb * inv_sig)
+        cost = rr + (pb * inv_sig) ** 2
         # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
         # tried in order until one lowers the cost (the first of the ladder that would);
         # a symmetric 3 x 3 system solved by its adjugate, delta = -adj(B) g / det B.
@@ -871,22 +895,120 @@ def _robust_fit_sharp(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, it
             d1 = -(c01 * g0 + c11 * g1 + c12 * g2) / det
             d2 = -(c02 * g0 + c12 * g1 + c22 * g2) / det
             qx, qy, qb = px + d0, py + d1, min(max(pb + d2, lo_b), hi_b)
-            rq, Mq = res_jac(qx, qy, qb)
+            Nq = res_jac(qx, qy, qb)
+            rq = Nq[3]
             if float(wts @ (rq * rq)) + (qb * inv_sig) ** 2 <= cost:
                 break
         else:
             break
         px, py, pb = qx, qy, qb
         lam = max(ll / 5, 1e-6)
-        r, M = rq, Mq
+        N = Nq
         if max(abs(d0), abs(d1)) < 0.005:
             break
     p = np.array([px, py, pb])
+    M, r = N[:3], N[3]
     A = (M * wts) @ M.T
     A[2, 2] += inv_sig * inv_sig
     dof = max(int(np.count_nonzero(wts > 0)) - 3, 1)
     s2 = float(wts @ (r * r)) / dof
     return p, r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
+
+
+def _streak_res_jac(p: list, dx: np.ndarray, dy: np.ndarray, dz: np.ndarray, C0: float, C1: float, wz: float, R: float) -> np.ndarray:
+    """The Jacobian transposed (rows 0-4) and the ray residuals (row 5) of a streak, (6, K), at
+    parameters ``p`` (x, y, bias, half length, heading; mm, rad, table frame), for rays ``d`` given by their
+    components (K,) each, from a camera centre (C0, C1, R - wz): :func:`_residuals_jacobian`'s
+    arithmetic, operation for operation, without the bias prior's row (added by the caller)."""
+    px, py, pb, ph, pt = p
+    wx, wy = px - C0, py - C1
+    nx = wy * dz - wz * dy
+    ny = wz * dx - wx * dz
+    nz = wx * dy - wy * dx
+    half = max(ph, 0.0)
+    ex, ey = math.cos(pt), math.sin(pt)
+    # e x d with e = (ex, ey, 0); s the point of the segment nearest the ray.
+    ax, ay, az = ey * dz, -ex * dz, ex * dy - ey * dx
+    den = np.maximum(ax * ax + ay * ay + az * az, 1e-12)
+    s_free = -(nx * ax + ny * ay + nz * az) / den
+    s = np.minimum(np.maximum(s_free, -half), half)  # np.clip's arithmetic without its wrappers
+    nx, ny, nz = nx + s * ax, ny + s * ay, nz + s * az
+    dist = np.sqrt(nx * nx + ny * ny + nz * nz)
+    inv = 1.0 / np.maximum(dist, 1e-12)
+    N = np.empty((6, len(dx)))
+    N[0] = (-ny * dz + nz * dy) * inv
+    N[1] = (nx * dz - nz * dx) * inv
+    N[2] = 1.0
+    if ph > 0:
+        N[3] = np.where(np.abs(s_free) > half, np.sign(s_free) * (nx * ax + ny * ay + nz * az) * inv, 0.0)
+    else:
+        N[3] = 0.0
+    # e' x d with e' = d e / d heading = (-sin, cos, 0).
+    bx, by, bz = ex * dz, ey * dz, -ey * dy - ex * dx
+    N[4] = s * (nx * bx + ny * by + nz * bz) * inv
+    N[5] = dist - (R - pb)
+    return N
+
+
+def _robust_fit_streak(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, iters: int = 10):
+    """:func:`_robust_fit_general` for a streak, parameters (x, y, bias, half length, heading)
+    (mm, rad, table frame; ``C`` (3,) the camera centre, ``d`` (K, 3) unit rays): the same
+    Levenberg-Marquardt (Marquardt 1963) with Tukey biweight reweighting (Holland & Welsch
+    1977), step for step, as :func:`_robust_fit_sharp` is for a sharp ball: the residuals and
+    Jacobian of a trial step are worked out together (:func:`_streak_res_jac`) and kept when the
+    step is taken, the bias prior's row is added to the normal equations as a number, and the
+    parameters are plain floats between steps. Agrees with :func:`_robust_fit_general` to
+    rounding (tests/test_detect.py). Returns what it returns."""
+    K = len(d)
+    dx, dy, dz = (np.ascontiguousarray(d[:, k]) for k in range(3))
+    C0, C1, wz = float(C[0]), float(C[1]), R - float(C[2])
+    inv_sig = 1.0 / _BIAS_SIGMA_MM
+    prior = np.zeros(5)
+    lams = (1.0, 8.0, 64.0, 512.0)
+    lo_b, hi_b = -0.3 * R, 0.3 * R
+    p = [float(v) for v in p0]
+    N = _streak_res_jac(p, dx, dy, dz, C0, C1, wz, R)
+    wts = np.ones(K)
+    lam = 1e-3
+    for _ in range(iters):
+        r = N[5]
+        scale = max(1.4826 * _median(np.abs(r)), 0.2)
+        u = r / (4.685 * scale)
+        wts = np.where(np.abs(u) < 1, (1 - u * u) ** 2, 0.0)
+        # The normal matrix, the gradient and the cost from one product: [M; r] W [M; r]^T.
+        H = (N * wts) @ N.T
+        A = H[:5, :5]
+        A[2, 2] += inv_sig * inv_sig  # the bias prior's row, weight 1
+        g = H[:5, 5]
+        prior[2] = inv_sig * (p[2] * inv_sig)
+        g += prior
+        cost = float(H[5, 5]) + (p[2] * inv_sig) ** 2
+        # (A + lambda diag(A)) delta = -g (Marquardt's scaling) for a ladder of damping values,
+        # tried in order until one lowers the cost.
+        damp = A.diagonal() + 1e-6
+        for k in range(4):
+            B = A.copy()
+            B.flat[::6] += lam * lams[k] * damp
+            delta = np.linalg.solve(B, -g)
+            q = [a + b for a, b in zip(p, delta.tolist())]
+            q[2] = min(max(q[2], lo_b), hi_b)
+            q[3] = min(max(q[3], 0.0), 400.0)
+            Nq = _streak_res_jac(q, dx, dy, dz, C0, C1, wz, R)
+            rq = Nq[5]
+            if float(wts @ (rq * rq)) + (q[2] * inv_sig) ** 2 <= cost:
+                break
+        else:
+            break
+        p, N = q, Nq
+        lam = max(lam * lams[k] / 5, 1e-6)
+        if max(abs(delta[0]), abs(delta[1])) < 0.005:
+            break
+    M, r = N[:5], N[5]
+    A = (M * wts) @ M.T
+    A[2, 2] += inv_sig * inv_sig
+    dof = max(int(np.count_nonzero(wts > 0)) - 5, 1)
+    s2 = float(wts @ (r * r)) / dof
+    return np.array(p), r, wts, lambda: np.linalg.pinv(A)[:2, :2] * max(s2, 0.05**2)
 
 
 def _shift_terms(ref: np.ndarray) -> tuple[np.ndarray, np.ndarray, tuple[float, float, float] | None]:
@@ -1118,8 +1240,7 @@ def _off_hue_edges(prof: np.ndarray, off: np.ndarray, S: np.ndarray, min_step: f
     least ``_HUE_STEP`` (the sine of the angle between the two colours) off the surround's
     direction and its off-hue part exceeds ``min_step`` DN.
     """
-    band = (off >= -2.0) & (off <= -1.25)
-    P = prof[:, band].mean(axis=1)
+    P = _band_mean(prof, _HUE_BAND if off is _LOCAL_OFF else _band(off, -2.0, -1.25))
     Sh = S / np.maximum(_norm3(S), 1.0)[:, None]
     e = P - _dot3(P, Sh)[:, None] * Sh
     en = _norm3(e)
@@ -1132,6 +1253,13 @@ def _off_hue_edges(prof: np.ndarray, off: np.ndarray, S: np.ndarray, min_step: f
     edge = pos[np.arange(len(pos)), np.argmin(np.abs(pos), axis=1)]
     ok = np.isfinite(edge) & (en > min_step) & (en > _HUE_STEP * _norm3(P))
     return edge, ok
+
+
+def _band_mean(prof: np.ndarray, band: slice) -> np.ndarray:
+    """(K, 3) mean colour of the samples ``band`` of each ray of ``prof`` (K, N, 3) float32:
+    ``prof[:, band].mean(axis=1)`` to the last bit (a float32 sum along the band in order,
+    divided by its length), without ``np.mean``'s argument handling."""
+    return np.add.reduce(prof[:, band], axis=1) / np.float32(band.stop - band.start)
 
 
 def _fill_small_holes(mask: np.ndarray, max_area: float) -> np.ndarray:
@@ -1154,8 +1282,9 @@ def _row_median(a: np.ndarray) -> np.ndarray:
     NaN last, so the median is read at half each row's count without ``np.nanmedian``'s loop."""
     srt = np.sort(a, axis=1)
     cnt = np.sum(~np.isnan(a), axis=1)
-    lo = np.clip((cnt - 1) // 2, 0, a.shape[1] - 1)
-    hi = np.clip(cnt // 2, 0, a.shape[1] - 1)
+    top = a.shape[1] - 1
+    lo = np.minimum(np.maximum((cnt - 1) // 2, 0), top)
+    hi = np.minimum(cnt // 2, top)  # cnt >= 0
     rows = np.arange(len(a))
     out = 0.5 * (srt[rows, lo] + srt[rows, hi])
     out[cnt == 0] = np.nan
@@ -1194,6 +1323,10 @@ class RayMap:
         self._dist = [float(v) for v in camera.dist]
         K = camera.K
         self._k = (float(K[0, 0]), float(K[0, 1]), float(K[0, 2]), float(K[1, 1]), float(K[1, 2]))
+        # A lens of radial terms k1, k2 alone and no skew (what automatic calibration fits):
+        # the tangential, k3 and skew terms then add exact zeros, so :meth:`project` leaves
+        # them out and gives the same pixels.
+        self._radial_only = self._dist[2] == 0.0 and self._dist[3] == 0.0 and self._dist[4] == 0.0 and self._k[1] == 0.0
         ang = np.linspace(0, 2 * np.pi, 32, endpoint=False)
         self._cos32, self._sin32 = np.cos(ang), np.sin(ang)
 
@@ -1209,8 +1342,14 @@ class RayMap:
         g = uv / self.step
         i0 = np.floor(g)
         nv, nu = self.shape
-        inside = (i0[:, 0] >= 0) & (i0[:, 0] < nu - 1) & (i0[:, 1] >= 0) & (i0[:, 1] < nv - 1)
-        every = bool(inside.all())
+        # Every point on the grid (the usual case) is told from the corner cells alone; NaN
+        # fails every comparison, as it does per point below.
+        if len(i0):
+            lo, hi = i0.min(axis=0), i0.max(axis=0)
+            every = bool(lo[0] >= 0 and hi[0] < nu - 1 and lo[1] >= 0 and hi[1] < nv - 1)
+        else:
+            every = True
+        inside = None if every else (i0[:, 0] >= 0) & (i0[:, 0] < nu - 1) & (i0[:, 1] >= 0) & (i0[:, 1] < nv - 1)
         out = np.empty_like(uv)
         if every or inside.any():
             gi, ii, uvi = (g, i0, uv) if every else (g[inside], i0[inside], uv[inside])
@@ -1261,11 +1400,16 @@ class RayMap:
         x, y = cam[:, 0] / z, cam[:, 1] / z
         k1, k2, p1, p2, k3 = self._dist
         r2 = x * x + y * y
+        out = np.empty((len(cam), 2))
+        k00, k01, k02, k11, k12 = self._k
+        if self._radial_only:
+            radial = 1 + r2 * (k1 + r2 * k2)
+            out[:, 0] = k00 * (x * radial) + k02
+            out[:, 1] = k11 * (y * radial) + k12
+            return out
         radial = 1 + r2 * (k1 + r2 * (k2 + r2 * k3))
         xd = x * radial + 2 * p1 * x * y + p2 * (r2 + 2 * x * x)
         yd = y * radial + p1 * (r2 + 2 * y * y) + 2 * p2 * x * y
-        out = np.empty((len(cam), 2))
-        k00, k01, k02, k11, k12 = self._k
         out[:, 0] = k00 * xd + k01 * yd + k02
         out[:, 1] = k11 * yd + k12
         return out
@@ -2752,9 +2896,12 @@ class BallDetector:
         ref = np.sort(prof[:, -5:], axis=1)[:, 2]  # the median of five
         # The dot products below serve D, the shade test and :func:`ballness` alike (the same
         # float32 values as each computing its own: tests/test_detect.py).
-        bb_raw = _dot3(bprof, bprof)
+        # prof and bprof are float32 (K, n, 3): their dot products by _dot3_f32, the same
+        # values as _dot3's in about half the time.
+        bb_raw = _dot3_f32(bprof, bprof)
         bn = np.maximum(np.sqrt(bb_raw), COLOUR_FLOOR_DN)
-        D = _norm3(prof - ref[:, None]) / bn
+        dref = prof - ref[:, None]
+        D = np.sqrt(_dot3_f32(dref, dref)) / bn
         # A cast shadow differs from the cloth just beyond it but only dims the empty table: a
         # sample no brighter than the model and within ~4.6 degrees of its colour's direction
         # (sin 0.08: the cloth's texture and noise; a stripe's band or a black ball lie tens of
@@ -2763,10 +2910,11 @@ class BallDetector:
         # for the ball's while a ghost in the model, unlike the frame just outside, still does
         # not count.
         bb = np.maximum(bb_raw, 1.0)
-        ib = _dot3(prof, bprof)
+        ib = _dot3_f32(prof, bprof)
         a = ib / bb
-        ii = _dot3(prof, prof)
-        dev = _norm3(prof - a[..., None] * bprof)
+        ii = _dot3_f32(prof, prof)
+        dres = prof - a[..., None] * bprof
+        dev = np.sqrt(_dot3_f32(dres, dres))
         off_hue = dev / np.maximum(np.sqrt(ii), 20.0)  # _chroma_off
         # A shadow's light is not the lamps' (room light, the cloth's own bounce), so a deep
         # one can turn its colour further than the sine bound above, above all on dim pale
@@ -2780,13 +2928,14 @@ class BallDetector:
         # Only shade that reaches out to the cloth along the ray, beyond the predicted outline,
         # is a cast shadow: a pixel mixing a white cap with a dark band inside the ball can
         # match the cloth's hue too. ``shadows`` False skips the test.
-        shade = np.flip(np.logical_and.accumulate(np.flip(shade, axis=1), axis=1), axis=1) & (rho >= rho_pred[:, None])
+        shade = np.logical_and.accumulate(shade[:, ::-1], axis=1)[:, ::-1] & (rho >= rho_pred[:, None])
         if shadows and shade.any():
             lower = np.minimum(D, _ballness_of(ib, a, ii, bb_raw, bn))
             self._discounted |= bool(np.any(shade & (lower != D)))  # NaN counts as lowered
             D = np.where(shade, lower, D)
         inner_sel = rho <= 0.8 * rho_pred[:, None]
-        inner = np.nan_to_num(_row_median(np.where(inner_sel, D, np.nan)), nan=0.0)
+        inner = _row_median(np.where(inner_sel, D, np.nan))
+        inner[np.isnan(inner)] = 0.0  # D is finite or NaN, so this is np.nan_to_num's result
         # Coming in from outside, the first sample clearly on the ball (40 % of the inner level:
         # above a cast shadow's dimming) marks the outline; its level is half the ball's value
         # 1.5 px further in, so a stripe's band at the rim sets its own level.
@@ -2796,16 +2945,16 @@ class BallDetector:
         has = on.any(axis=1)
         k_out = nstep - 1 - np.argmax(on[:, ::-1], axis=1)
         back = int(round(1.5 / _STEP_PX))
-        lo_k = np.clip(k_out - back, 0, nstep - 1)
+        lo_k = np.maximum(k_out - back, 0)  # k_out <= nstep - 1
         local = np.max(np.where((idx[None, :] >= lo_k[:, None]) & (idx[None, :] <= k_out[:, None]), D, 0.0), axis=1)
         level = 0.5 * local
         after = (idx[None, :] >= lo_k[:, None]) & (D < level[:, None])
         has &= after.any(axis=1)
         j = np.argmax(after, axis=1)
-        jj = np.clip(j, 1, nstep - 1)
+        jj = np.minimum(np.maximum(j, 1), nstep - 1)  # np.clip's arithmetic
         d0 = D[np.arange(K), jj - 1]
         d1 = D[np.arange(K), jj]
-        frac = np.clip((d0 - level) / np.maximum(d0 - d1, 1e-6), 0.0, 1.0)
+        frac = np.minimum(np.maximum((d0 - level) / np.maximum(d0 - d1, 1e-6), 0.0), 1.0)  # np.clip's arithmetic
         r_edge = rho[np.arange(K), jj - 1] + frac * _STEP_PX
         ok = has & (j > 0) & (inner > 2 * self._score_thr) & (d0 >= level) & (k_out < nstep - 3)
         # A ball of the cloth's own hue (blue on blue, red on red) differs from the cloth by its
@@ -2840,15 +2989,13 @@ class BallDetector:
         rim colour sampled 2 px in is brighter than the limb at the outline (Lambert's cosine
         law), both on one side of a ball lit from one side.
         """
-        off = np.arange(-_LOCAL_REACH_PX, _LOCAL_REACH_PX + 1e-9, _STEP_PX)
+        off = _LOCAL_OFF
         rho = np.maximum(rho_pred[:, None] + off[None, :], 0.0)
         mx = (c[0] + rho * dirs[:, 0:1]).astype(np.float32)
         my = (c[1] + rho * dirs[:, 1:2]).astype(np.float32)
         prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        inner = (off >= -2.75) & (off <= -1.75)
-        outer = (off >= 1.75) & (off <= 2.75)
-        P = prof[:, inner].mean(axis=1)
-        S = prof[:, outer].mean(axis=1)
+        P = _band_mean(prof, _LOCAL_INNER)
+        S = _band_mean(prof, _LOCAL_OUTER)
         ps = P - S
         n2 = np.sum(ps * ps, axis=1)
         alpha = _dot3(prof - S[:, None], ps[:, None]) / np.maximum(n2, 1e-6)[:, None]
@@ -2954,10 +3101,10 @@ class BallDetector:
             hd = p[4] if capsule else 0.0
             poly = _swept_outline_px(cam, p[0], p[1], half, hd, R, self.rays)
             c = self.rays.project(np.array([[p[0], p[1], R]]))[0]
-            if not np.all(np.isfinite(c)):
+            if not (math.isfinite(c[0]) and math.isfinite(c[1])):
                 return None
             rho = _ray_polygon(c, dirs, poly)
-            if np.any(~np.isfinite(rho)):
+            if not np.isfinite(rho).all():
                 return None
             r_loc = _median(rho) if not capsule else r_px
             if win is None:
@@ -2998,7 +3145,7 @@ class BallDetector:
             if masked:
                 pts[~free] = np.nan
             n_rays = int(free.sum()) if masked else _N_RAYS
-            good = np.all(np.isfinite(pts), axis=1)
+            good = np.isfinite(pts).all(axis=1)
             if good.sum() < self.config.min_inlier_share * n_rays:
                 if win is None and result is not None:
                     break  # keep the coarse fit: the rim is too faint for the local edge
