@@ -328,6 +328,21 @@ _MIN_FREE_RAYS = 12
 _NUDGE_PATCH_R = 1.3
 # Rounds of seeding what the fitted balls leave unexplained in a piece of foreground.
 _REMAINDER_ROUNDS = 2
+# A sharp fit of a piece elongated beyond one ball (a ball with its cast shadow, or a slow
+# streak) is fitted again from each end of the piece's long axis (:meth:`BallDetector._ends`);
+# an end's fit replaces it where it lies more than _END_MOVE_MM away (a different answer, not
+# the same one moved by noise), more of its disc is lit (luma above the empty table's, a share
+# at least _END_LIT_GAIN higher: a cast shadow is never brighter than the cloth) and its fitted
+# radius bias is at least _END_BIAS_GAIN_MM larger (an outline straddling ball and shadow takes
+# the shadow-side terminator inside the limb: too small a circle). Chosen on
+# benchmarks/rest_causes.py's stills (7 rooms x seeds 0, 1, codec and lossless, session 17):
+# of the 86 end fits lying over 5 mm from the first fit, those rules took 22, every one nearer
+# the truth (by 0.3-17.9 mm, 20 of them by over 4 mm). The lit share alone took 24, none over
+# 2 mm worse; the radius bias alone 47, 18 of them 3-24 mm worse; a higher fit quality 54, 28
+# worse: the bias gain is a second guard, not the test.
+_END_MOVE_MM = 5.0
+_END_LIT_GAIN = 0.05
+_END_BIAS_GAIN_MM = 0.3
 # A free piece of foreground holding more than this many ball images (at its centroid's scale),
 # no streak, that its first fits do not explain is seeded again by a circle Hough transform
 # (:meth:`BallDetector._cluster_retry`): in a touching cluster the foreground is one solid piece
@@ -1972,7 +1987,56 @@ class BallDetector:
         r = self._fit_either(img, s)
         if r is not None and (r["blur_x"] or r["blur_y"]) and not self._soft_ends(img, r):
             r = None
+        if r is not None and not (r["blur_x"] or r["blur_y"]) and s["half_px"] > 0 and not s["strict"]:
+            r = self._ends(img, s, r)
         return r
+
+    def _ends(self, img: np.ndarray, s: dict, r: dict) -> dict:
+        """The sharp fit ``r`` of an elongated seed ``s`` (``half_px`` > 0: its piece is longer
+        than one ball), or a fit from one end of the seed's streak instead. A resting ball's
+        piece of foreground can take in its cast shadow where the codec has coloured the shadow
+        like the ball (H.264's 4:2:0 chroma at half resolution; block blur): the seed then lies
+        at the middle of ball and shadow, and the coarse outline started there can settle
+        astride both (rest_causes.py's ``codec_seeded`` row: the same fits from the true centre
+        halve uneven's median). The ends (``half_px`` along ``axis`` either side) are where the
+        ball and the shadow each lie alone; an end whose disc is more lit than ``r``'s is
+        fitted as a sharp seed, and its fit is taken (the largest fitted radius bias of those that qualify) where it lies over
+        ``_END_MOVE_MM`` from ``r``, its disc's lit share (:meth:`_lit_share`) beats ``r``'s
+        by ``_END_LIT_GAIN`` and its radius bias ``r``'s by ``_END_BIAS_GAIN_MM``."""
+        lit0 = self._lit_share(img, r)
+        # Only an end whose own disc is the more lit is fitted (the shadow's end never is):
+        # most elongated pieces are a slow ball's short streak, whose ends are as lit as its
+        # middle, and two more fits for each would cost about a third of the detector's time
+        # (uneven_60fps, first 150 frames: 30 of 280 pieces have such an end, and every fit
+        # that replaced the first one came from them).
+        ends = [s["uv"] + sign * s["half_px"] * s["axis"] for sign in (1.0, -1.0)]
+        ends = [uv for uv in ends if self._lit_share(img, {"u": uv[0], "v": uv[1]}) >= lit0 + _END_LIT_GAIN]
+        if not ends or self._disc_cast_shadow(img, r) or self._disc_brightness(img, r) < 1.0 / _SAME_BRIGHT:
+            # No lit end, or a fit on the shadow (its disc dark, the caster's lit rim in it or
+            # not): the cast-shadow tests downstream find its caster (:meth:`_drop_cast_shadows`,
+            # :meth:`_off_own_shadow`) and refit it with the shadow's rays left out.
+            return r
+        best = r
+        for uv in ends:
+            f = self._fit_either(img, {"uv": uv, "axis": s["axis"], "half_px": 0.0, "strict": False})
+            if (f is None or f["blur_x"] or f["blur_y"]
+                    or math.hypot(f["x"] - r["x"], f["y"] - r["y"]) <= _END_MOVE_MM
+                    or f["bias_mm"] < r["bias_mm"] + _END_BIAS_GAIN_MM
+                    or f["bias_mm"] <= best["bias_mm"] and best is not r
+                    or self._lit_share(img, f) < lit0 + _END_LIT_GAIN):
+                continue
+            best = f
+        return best
+
+    def _lit_share(self, img: np.ndarray, row: dict) -> float:
+        """Share of the pixels within the image radius of detection ``row``'s centre image
+        whose luma (ITU-R BT.601 weights) exceeds the empty table's there: the ball's lit
+        surface and highlight; a shadow on the cloth has none (it only dims the table)."""
+        I, B, _ = self._disc_pixels(img, np.array([row["u"], row["v"]]), self._image_radius_px(np.array([row["u"], row["v"]])))
+        if len(I) == 0:
+            return 0.0
+        w = np.array([0.114, 0.587, 0.299], np.float32)  # BT.601 luma of B, G, R
+        return float(np.mean(I.astype(np.float32) @ w > B.astype(np.float32) @ w))
 
     def _fit_either(self, img: np.ndarray, s: dict, avoid: np.ndarray | None = None) -> dict | None:
         """:meth:`_fit_seed` with the coarse outline's cast-shadow discount, and, for a seed
@@ -3225,6 +3289,7 @@ class BallDetector:
             "blur_y": travel * math.sin(hd),
             "sigma_mm": sig,
             "joined": joined,
+            "bias_mm": float(p[2]),
         }
 
     def _outline_noise_mm(self, img: np.ndarray, p: np.ndarray, capsule: bool, dirs: np.ndarray) -> float:
