@@ -1478,6 +1478,46 @@ def test_detection_noise_is_measured_on_the_moving_samples_not_the_repeated_rest
     assert abs(white / sd - 1.0) < 0.3, white
 
 
+def test_fit_scale_noise_sees_a_drifting_error_on_a_track_with_gaps():
+    # A striped ball's outline error turns with its roll (cheapwide_25fps extra clip, the
+    # green-stripe 14 at 400 mm/s: along its path, swinging about +-7 mm with a period of about
+    # ten frames, 2 pi R / v = 0.45 s at 25 fps), and the detector misses it every few frames.
+    # Here: rolling at 500 mm/s, decelerating at mu_r g (Alciatore 2004), with an error of
+    # amplitude A = 4 mm and a 10-frame period along the heading, 0.5 mm of white noise per
+    # axis, and every fifth frame missed, so no run of 2 quadratic_min_samples frames is seen
+    # whole. Third differences pass a sinusoid of angular step w times |2 sin(w / 2)|^3
+    # (the difference operator's frequency response; common practice), 0.236 at w = 2 pi / 10,
+    # so the white estimate sees about 0.5 mm; the fits over 0.3 s see the drift, whose rms
+    # per axis is A / 2 = 2 mm (half the variance A^2 / 2 on each of two axes), which a
+    # quadratic over 12 frames (1.2 periods) removes little of. Measured over seeds 0-9: white
+    # 0.41-0.59 mm, at the fits' scale 1.52-1.69 mm; before runs with gaps counted, the
+    # fit-scale estimate fell back to the white one (0.48 mm at this seed).
+    from tracking.events import _balls, _motion, _noise_sigma
+    fps, amp, sd = 25.0, 4.0, 0.5
+    t = np.arange(int(5.0 * fps)) / fps
+    tau = np.clip(t - 0.5, 0.0, None)
+    s = 500.0 * tau - 0.5 * 98.1 * tau**2
+    heading = np.array([0.8, 0.6])
+    p = np.array([300.0, 250.0]) + s[:, None] * heading
+    rng = np.random.default_rng(5)
+    moving = t >= 0.5
+    drift = amp * np.sin(2 * np.pi * np.arange(len(t)) / 10.0)
+    z = p.copy()
+    z[moving] += drift[moving, None] * heading + rng.normal(0.0, sd, (int(moving.sum()), 2))
+    seen = ~(moving & (np.arange(len(t)) % 5 == 0))
+    v = np.gradient(p, t, axis=0)
+    tracks = pd.DataFrame({"frame": np.arange(len(t)), "t": t, "track": 0, "ball": "object",
+                           "x": p[:, 0], "y": p[:, 1], "vx": v[:, 0], "vy": v[:, 1],
+                           "seen": seen.astype(int), "x_meas": np.where(seen, z[:, 0], np.nan),
+                           "y_meas": np.where(seen, z[:, 1], np.nan)})
+    cfg = EventConfig()
+    (ball,) = _balls(tracks, None, 28.575)
+    _motion(ball, cfg, D)
+    white, at_fits = _noise_sigma(ball, cfg)
+    assert white < 0.5 * amp / 2, white
+    assert 0.6 * amp / 2 < at_fits < 1.2 * amp / 2, at_fits
+
+
 @pytest.mark.parametrize("fps,noise_mm,v0,mu_r,seed", [
     (60.0, 1.0, 600.0, 0.01, 21),
     (30.0, 1.5, 500.0, 0.01, 22),
