@@ -64,6 +64,10 @@ Method
    pieces are explained and is dropped at the end, unless its piece holds a ball's lit
    pixels whose own fit is no such end and what it held beside that ball is the ball's cast
    shadow (a dim ball and its long shadow fitted as one: :meth:`BallDetector._joined_casters`).
+   A sharp fit whose disc runs on into a straight body narrower than a ball, at least two
+   ball diameters long, and is itself no wider across it than that body is the rounded end of
+   a cue (its butt beyond the grip hand, or its tip), not a ball, which is a whole free disc
+   whatever touches it (:meth:`BallDetector._cue_end`, measured on the frame's foreground).
    Once a free piece's seeds are
    fitted, what the fitted balls' silhouettes leave of it is seeded again (a triangle of touching balls is
    deepest between them). A free piece of more than 2.5 balls that its fits do not explain
@@ -167,7 +171,9 @@ ball merged with an arm or cue in the
 image is reported only when its outline is clearly separate and at most about a quarter of the
 ring round it is covered (a ball pressed against a sleeve, or partly under the bridge hand, is
 lost for those frames); the end of an arm exactly a ball wide and still is not told from a ball
-by its ring; a dark ball of the cloth's hue, or a black ball on grey cloth, with no highlight
+by its ring; a ball seen by its crown alone (of the cloth's own hue) under a cue lying across
+its middle would read as the cue's end (:meth:`BallDetector._cue_end`; reasoned, not seen in
+the renders); a dark ball of the cloth's hue, or a black ball on grey cloth, with no highlight
 within 0.7 of its radius and another ball within 3 R is taken for a cast shadow and missed, and
 a ball whose long shadow from a low lamp joins it in one piece can be placed on the shadow
 (about 25 mm off on blue and grey cloth in tests/test_detect.py); in a dark, vignetted corner
@@ -309,6 +315,22 @@ _JOINED_RING = 0.95
 # ring (a moving ball's own streak and shadow) stepped over 0.854 or more of their outline,
 # the fits on the cue over 0.77 or less (a 0.45 s re-film of tele_120fps): 39 of 48 rays.
 _COVERED_RIM = 39 / 48
+# A sharp fit is the rounded end of a cue, not a ball (:meth:`BallDetector._cue_end`), when its
+# disc runs on into a straight body at least _BODY_R image radii long (from the fit's centre),
+# narrower than _BODY_D of a ball's image diameter all along, and the disc is no wider across
+# that body than _END_D of the diameter. A cue is narrowest at its tip (about 13 mm) and widest
+# at its butt, about 30 mm (0.53 of a 57.15 mm ball; common practice, from memory; the
+# renderer draws 13-30 mm); a forearm or hand is wider than a ball. A ball's own foreground
+# across its centre is its diameter: the cue ball at the strike on lamp_50fps (frame 25, the
+# shaft running off it 0.33-0.37 wide) measured 1.17; of 170 fits within 30 mm of a true ball
+# in the first 70 frames of uneven_60fps and lamp_50fps (the player down on the shot) no other
+# had a body 4 radii long; the 165 fits on the arms and hands there with one had discs
+# 0.92-1.51 wide (a hand or sleeve, not a cue's end: left to the other tests). The butt cap of
+# cushion_check frame 3978 measured 0.60 with its body 0.58-0.68 over 2-3.5 radii, running on
+# past 8 radii. Not published figures.
+_BODY_R = 4.0
+_BODY_D = 0.75
+_END_D = 0.8
 # Least share of the ring a strict seed (inside an arm or cue component) must leave free
 # before it is fitted, below _ISOLATED_SHARE: seven of its 64 samples, a fit's move of several
 # pixels. Measured on bank_practice (all) and cushion_check (first 1200 frames): the 34 strict
@@ -1140,6 +1162,21 @@ def _shaded_share(I: np.ndarray, B: np.ndarray, r2: np.ndarray, stands_out: np.n
     if np.percentile(a, 95) < 1.1 or a[core].mean() - a[ring].mean() < 0.15:
         return 0.0
     return float(np.mean(stands_out | (np.abs(a - 1.0) > 0.1)))
+
+
+def _run_through(row: np.ndarray, mid: int, reach: int) -> int:
+    """Length (samples) of the run of True in the 1-D bool ``row`` that holds the True sample
+    nearest ``mid`` within ``reach`` samples of it; 0 when there is none."""
+    lo, hi = max(mid - reach, 0), min(mid + reach + 1, len(row))
+    near = np.nonzero(row[lo:hi])[0]
+    if len(near) == 0:
+        return 0
+    c = lo + int(near[np.argmin(np.abs(near + lo - mid))])
+    off = np.nonzero(~row[c:])[0]
+    end = c + (int(off[0]) if len(off) else len(row) - c)
+    off = np.nonzero(~row[: c + 1][::-1])[0]
+    start = c + 1 - (int(off[0]) if len(off) else c + 1)
+    return end - start
 
 
 def _free_pieces(seeds: list[dict], fits: list[dict | None] | None = None) -> dict[int, tuple[np.ndarray, tuple[int, int], list[int]]]:
@@ -3267,6 +3304,8 @@ class BallDetector:
             return None
         if not capsule and self._filled_share(img, uv, r_loc) < 0.6:
             return None
+        if not capsule and self._cue_end(img, uv):
+            return None
         hd = float(p[4]) if capsule else 0.0
         travel = 2 * half + 2 * R if capsule else 0.0
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
@@ -3446,6 +3485,61 @@ class BallDetector:
         a = _dot3(P, S) / np.maximum(_dot3(S, S), 1.0)
         shade = (a >= DARK_RATIO) & (a <= LIT_RATIO) & (_chroma_off(P, S, a) < 0.08)
         return float(np.mean(~shade))
+
+    def _fg_samples(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
+        """Foreground (:func:`ballness` above the threshold) of the frame at the sub-pixel points
+        ``mx``, ``my`` (float32 arrays of one shape, px; bilinear, replicated at the border)."""
+        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        return ballness(f, b) > self._score_thr
+
+    def _cue_end(self, img: np.ndarray, uv: np.ndarray) -> bool:
+        """Whether a sharp fit round ``uv`` (px) is the rounded end of a cue (its butt or tip)
+        rather than a ball: measured on the frame's foreground (:meth:`_body_across`), the
+        fit's disc continues along some direction into a straight body at least ``_BODY_R``
+        image radii long (leading to the grip hand or off the table), narrower than ``_BODY_D``
+        of a ball's image at every station along it, and the disc itself is no wider across
+        that body than ``_END_D`` of a ball. A ball is a free disc: its foreground across its
+        centre is its whole diameter, whatever touches it (a cue tip at the strike, a hand), so
+        the end of something narrower than a ball is no ball however round its outline. Only
+        a fit whose ring (:meth:`_ring_share`) something crosses is measured: a body leaving
+        the disc crosses it."""
+        if self._ring_share(img, uv) >= 1.0:
+            return False
+        got = self._body_across(img, uv)
+        if got is None:
+            return False
+        disc, body = got
+        return bool(body.min() > 0 and body.max() < _BODY_D and disc < _END_D)
+
+    def _body_across(self, img: np.ndarray, uv: np.ndarray) -> tuple[float, np.ndarray] | None:
+        """The widths, in ball image diameters, of the frame's foreground across the longest
+        body leaving the disc of a ball fitted round ``uv`` (px): (the disc's, the body's at 2,
+        2.5, 3 and 3.5 image radii out (4,)); None when no run of foreground leaves the disc
+        for ``_BODY_R`` radii.
+
+        The body's direction is the one, of 90 from the centre, along which the foreground runs
+        on farthest from 0.8 of the image radius outward; a width is the run of foreground
+        across it through the axis (from the foreground sample nearest the axis, within a
+        pixel of it), the disc's the widest such run within half a radius of the centre."""
+        r = self._image_radius_px(uv)
+        ang = np.linspace(0, 2 * np.pi, 90, endpoint=False)
+        rad = np.arange(0.8 * r, (_BODY_R + 1.0) * r, 0.5)
+        fg = self._fg_samples(img, (uv[0] + rad[None] * np.cos(ang)[:, None]).astype(np.float32),
+                              (uv[1] + rad[None] * np.sin(ang)[:, None]).astype(np.float32))
+        # Length of the run of foreground from the disc's edge outward, per direction.
+        run = np.where(fg.all(axis=1), len(rad), np.argmin(fg, axis=1))
+        j = int(np.argmax(run))
+        if rad[0] + 0.5 * run[j] < _BODY_R * r:
+            return None
+        ax = np.array([math.cos(ang[j]), math.sin(ang[j])])
+        pe = np.array([-ax[1], ax[0]])
+        s = np.array([-0.5, -0.25, 0.0, 0.25, 0.5, 2.0, 2.5, 3.0, 3.5]) * r
+        t = np.arange(-1.5 * r, 1.5 * r + 0.125, 0.25)
+        pts = uv[None, None] + s[:, None, None] * ax + t[None, :, None] * pe
+        g = self._fg_samples(img, pts[..., 0].astype(np.float32), pts[..., 1].astype(np.float32))
+        width = np.array([_run_through(row, len(t) // 2, 4) for row in g]) * 0.25 / (2 * r)
+        return float(width[:5].max()), width[5:]
 
     def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
         """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background."""
