@@ -1445,6 +1445,21 @@ def test_a_creeping_ball_is_not_given_a_contact_where_its_smoothed_velocity_swun
     assert len(errors) >= 6 and max(errors) < 2.0 and np.median(errors) < 1.0
 
 
+def _noise_of_one_ball(t, p, z, seen):
+    """(white, at the fits' scale) noise sigma (mm) the event finder states for one ball whose
+    true path is p (N, 2) mm at times t (s), read as z where seen (bool (N,))."""
+    from tracking.events import _balls, _motion, _noise_sigma
+    v = np.gradient(p, t, axis=0)
+    tracks = pd.DataFrame({"frame": np.arange(len(t)), "t": t, "track": 0, "ball": "object",
+                           "x": p[:, 0], "y": p[:, 1], "vx": v[:, 0], "vy": v[:, 1],
+                           "seen": seen.astype(int), "x_meas": np.where(seen, z[:, 0], np.nan),
+                           "y_meas": np.where(seen, z[:, 1], np.nan)})
+    cfg = EventConfig()
+    (ball,) = _balls(tracks, None, 28.575)
+    _motion(ball, cfg, D)
+    return _noise_sigma(ball, cfg)
+
+
 def test_detection_noise_is_measured_on_the_moving_samples_not_the_repeated_resting_ones():
     # A ball rests 4 s, its detection carried over unchanged frame to frame as the detector
     # does for a ball at rest (vision.detect, step 2), then rolls 4 s (decelerating at mu_r g,
@@ -1454,7 +1469,6 @@ def test_detection_noise_is_measured_on_the_moving_samples_not_the_repeated_rest
     # have variance 20 s^2 (binomial weights 1, 3, 3, 1), and the median of the ~190 here
     # (neighbours correlated) scattered within -20 % .. +25 % of s over seeds 0-19; repeating
     # the resting detection gives zeros, which put it at the 0.05 mm floor.
-    from tracking.events import _balls, _motion, _noise_sigma
     fps, sd = 30.0, 1.5
     t = np.arange(int(8.0 * fps)) / fps
     rest = t < 4.0
@@ -1466,15 +1480,7 @@ def test_detection_noise_is_measured_on_the_moving_samples_not_the_repeated_rest
     z[rest] = p[rest] + rng.normal(0.0, sd, 2)  # one detection, repeated while at rest
     z[~rest] += rng.normal(0.0, sd, (int((~rest).sum()), 2))
     seen = ~((~rest) & (np.arange(len(t)) % 10 == 0))
-    v = np.gradient(p, t, axis=0)
-    tracks = pd.DataFrame({"frame": np.arange(len(t)), "t": t, "track": 0, "ball": "object",
-                           "x": p[:, 0], "y": p[:, 1], "vx": v[:, 0], "vy": v[:, 1],
-                           "seen": seen.astype(int), "x_meas": np.where(seen, z[:, 0], np.nan),
-                           "y_meas": np.where(seen, z[:, 1], np.nan)})
-    cfg = EventConfig()
-    (ball,) = _balls(tracks, None, 28.575)
-    _motion(ball, cfg, D)
-    white, _ = _noise_sigma(ball, cfg)
+    white, _ = _noise_of_one_ball(t, p, z, seen)
     assert abs(white / sd - 1.0) < 0.3, white
 
 
@@ -1492,7 +1498,6 @@ def test_fit_scale_noise_sees_a_drifting_error_on_a_track_with_gaps():
     # quadratic over 12 frames (1.2 periods) removes little of. Measured over seeds 0-9: white
     # 0.41-0.59 mm, at the fits' scale 1.52-1.69 mm; before runs with gaps counted, the
     # fit-scale estimate fell back to the white one (0.48 mm at this seed).
-    from tracking.events import _balls, _motion, _noise_sigma
     fps, amp, sd = 25.0, 4.0, 0.5
     t = np.arange(int(5.0 * fps)) / fps
     tau = np.clip(t - 0.5, 0.0, None)
@@ -1505,15 +1510,7 @@ def test_fit_scale_noise_sees_a_drifting_error_on_a_track_with_gaps():
     z = p.copy()
     z[moving] += drift[moving, None] * heading + rng.normal(0.0, sd, (int(moving.sum()), 2))
     seen = ~(moving & (np.arange(len(t)) % 5 == 0))
-    v = np.gradient(p, t, axis=0)
-    tracks = pd.DataFrame({"frame": np.arange(len(t)), "t": t, "track": 0, "ball": "object",
-                           "x": p[:, 0], "y": p[:, 1], "vx": v[:, 0], "vy": v[:, 1],
-                           "seen": seen.astype(int), "x_meas": np.where(seen, z[:, 0], np.nan),
-                           "y_meas": np.where(seen, z[:, 1], np.nan)})
-    cfg = EventConfig()
-    (ball,) = _balls(tracks, None, 28.575)
-    _motion(ball, cfg, D)
-    white, at_fits = _noise_sigma(ball, cfg)
+    white, at_fits = _noise_of_one_ball(t, p, z, seen)
     assert white < 0.5 * amp / 2, white
     assert 0.6 * amp / 2 < at_fits < 1.2 * amp / 2, at_fits
 
