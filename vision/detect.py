@@ -3486,12 +3486,17 @@ class BallDetector:
         shade = (a >= DARK_RATIO) & (a <= LIT_RATIO) & (_chroma_off(P, S, a) < 0.08)
         return float(np.mean(~shade))
 
-    def _fg_samples(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
-        """Foreground (:func:`ballness` above the threshold) of the frame at the sub-pixel points
-        ``mx``, ``my`` (float32 arrays of one shape, px; bilinear, replicated at the border)."""
+    def _ballness_at(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
+        """:func:`ballness` of the frame against the empty table at the sub-pixel points ``mx``,
+        ``my`` (float32 arrays of one shape, px; bilinear, replicated at the border)."""
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-        return ballness(f, b) > self._score_thr
+        return ballness(f, b)
+
+    def _fg_samples(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
+        """Foreground (:meth:`_ballness_at` above the threshold) at the sub-pixel points ``mx``,
+        ``my`` (px)."""
+        return self._ballness_at(img, mx, my) > self._score_thr
 
     def _cue_end(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """Whether a sharp fit round ``uv`` (px) is the rounded end of a cue (its butt or tip)
@@ -3547,9 +3552,7 @@ class BallDetector:
         a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
         mx = (uv[0] + r * np.cos(a)).astype(np.float32)[None]
         my = (uv[1] + r * np.sin(a)).astype(np.float32)[None]
-        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)[0]
-        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)[0]
-        return float(np.mean(ballness(f, b) < self._score_thr))
+        return float(np.mean(self._ballness_at(img, mx, my)[0] < self._score_thr))
 
     def _band_seen(self, I: np.ndarray, B: np.ndarray, white: np.ndarray, S: np.ndarray, V: np.ndarray, cloth_s: float) -> bool:
         """Whether a ball's pixels ``I`` (N, 3) BGR over the empty table ``B`` (N, 3), with their
