@@ -32,8 +32,9 @@ where it came from: the view, or a typical mount height for a square-on view) an
 ball-position sd are printed beside the scores; a clip the calibration refuses is listed with
 its message instead of scores.
 
-``--reuse DIR`` skips the vision stage: it re-runs tracking and events on ``DIR/NAME/
-detections.csv`` written by an earlier run (same clip, same calibration), which is how the
+``--reuse DIR`` skips the vision stage: it re-runs tracking and events (and holds each stay at
+rest at one place, ``tracking.rests``, as ``analyse`` does) on ``DIR/NAME/detections.csv``
+written by an earlier run (same clip, same calibration), which is how the
 tracking and event stages are compared before and after a change while the detector stays
 fixed.
 
@@ -79,7 +80,8 @@ from railtrace.filming import film_scene  # noqa: E402
 from railtrace.pipeline import AnalyseConfig, analyse_clip  # noqa: E402
 from railtrace.results import write_results  # noqa: E402
 from railtrace.scene import Scene, load_scene  # noqa: E402
-from tracking.events import find_events  # noqa: E402
+from tracking.events import find_events_and_rests  # noqa: E402
+from tracking.rests import hold_rests  # noqa: E402
 from tracking.tracker import track  # noqa: E402
 from vision.calibfile import read_calibration  # noqa: E402
 from vision.calibrate import CalibrationError  # noqa: E402
@@ -163,7 +165,8 @@ def run_clip(name: str, folder: Path, out: Path, reuse: Path | None, auto: bool 
     tr = track(det, table)
     timing["track_s"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    ev, sh = find_events(tr, table, det)
+    ev, sh, rests = find_events_and_rests(tr, table, det)
+    tr = hold_rests(tr, rests, det)
     timing["events_s"] = time.perf_counter() - t0
     if reuse is not None:
         write_results(out, tr, ev, sh, calib_doc, overwrite=True,

@@ -2,7 +2,7 @@
 
 frames -> calibrated table coordinates (``vision.calibrate`` or a calibration file) ->
 detections (``vision.detect``) -> tracks (``tracking.tracker``) -> events and shots
-(``tracking.events``) -> ``tracks.csv``, ``events.csv``, ``shots.csv``, ``calibration.json``,
+(``tracking.events``), with each stay at rest held at one place (``tracking.rests``) -> ``tracks.csv``, ``events.csv``, ``shots.csv``, ``calibration.json``,
 ``detections.csv`` and ``run.json`` (``railtrace.results``), written all at once or not at all.
 
 The clip is streamed: frames are decoded, detected and dropped one at a time, decoding in a
@@ -31,7 +31,8 @@ from typing import Callable
 import pandas as pd
 
 from railtrace.results import write_results
-from tracking.events import EventConfig, find_events
+from tracking.events import EventConfig, find_events_and_rests
+from tracking.rests import hold_rests
 from tracking.tracker import TrackerConfig, track
 from vision.calibfile import calibration_dict, read_calibration
 from vision.calibrate import CalibConfig, calibrate
@@ -164,7 +165,9 @@ def analyse_clip(
     detections = pd.read_csv(io.StringIO(detections_csv), dtype={"colour": str, "pattern": str})
     tracks = track(detections, table, config.tracker)
     done("tracking")
-    events, shots = find_events(tracks, table, detections, config.events)
+    events, shots, rests = find_events_and_rests(tracks, table, detections, config.events)
+    # A resting ball lies in one place until something touches it (tracking.rests).
+    tracks = hold_rests(tracks, rests, detections)
     done("events")
     run_info = {
         "clip": str(clip),

@@ -13,6 +13,9 @@ Output, following the results format exactly:
   angle_in, angle_out, restitution`` plus the extra column ``pocket`` (pocket name for a
   ``pocket`` event, else ""). ``other`` is a nullable integer; empty fields are NaN / "".
 * shots: ``shot, t_start, t_end, cue_track, balls_moved, cushions, collisions, pocketed``.
+* (``find_events_and_rests`` only) each ball's stays at rest, ``track, t_begin, t_end``: its
+  rows clear of its motions, of its events and of another ball moving within touching reach
+  (``_rests``), for ``tracking.rests.hold_rests``.
 
 Method
 ------
@@ -1448,6 +1451,20 @@ def find_events(
     time order, numbered from 0. ValueError if ``tracks`` lacks a required column. Inputs are not
     modified.
     """
+    events, shots, _ = find_events_and_rests(tracks, table, detections, config)
+    return events, shots
+
+
+def find_events_and_rests(
+    tracks: pd.DataFrame,
+    table: TableSpec,
+    detections: pd.DataFrame | None = None,
+    config: EventConfig | None = None,
+) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    """:func:`find_events`, and beside its events and shots each ball's stays at rest: a
+    DataFrame ``track, t_begin, t_end`` (s, the first and last row of the stay), one row per
+    stretch of a track that no motion, event of that ball or gap in its frames reaches
+    (:func:`_rests`), for ``tracking.rests.hold_rests``."""
     cfg = config or EventConfig()
     if not isinstance(tracks, pd.DataFrame):
         raise ValueError(f"tracks must be a pandas DataFrame, got {type(tracks).__name__}")
@@ -1456,7 +1473,7 @@ def find_events(
         raise ValueError(f"tracks lack column(s) {', '.join(missing)}; pass the output of "
                          "tracking.tracker.track")
     if tracks.empty:
-        return empty_events(), empty_shots()
+        return empty_events(), empty_shots(), empty_rests()
     tracks = tracks.copy()
     balls = _balls(tracks, detections, table.radius_mm)
     dts = np.diff(np.unique(tracks["t"].to_numpy(float)))
@@ -1567,7 +1584,67 @@ def find_events(
                 rows.append(r)
                 t_end = r["t"]
             moves.append((b.track, t_begin, t_end))
-    return _assemble(rows, moves, dt)
+    events, shots = _assemble(rows, moves, dt)
+    reach = table.ball_diameter_mm + cfg.collision_margin_mm
+    return events, shots, _rests(balls, moves, rows, dt, reach, cfg.rest_speed_mm_s)
+
+
+def _rests(balls: list[_Ball], moves: list[tuple[int, float, float]], rows: list[dict],
+           dt: float, reach_mm: float, rest_speed_mm_s: float) -> pd.DataFrame:
+    """Each ball's stays at rest (columns of :func:`empty_rests`): maximal runs of its rows
+    more than a frame interval ``dt`` (s) clear of each of its motions ``moves`` (track,
+    t_begin, t_end s), of every event row of ``rows`` that names it, and of every row in which
+    another ball moving faster than ``rest_speed_mm_s`` (smoothed) lies within ``reach_mm`` of
+    it (a graze or a nudge the event finder did not solve may still have moved it: the phone
+    clip's 8, pushed 4 mm by the 11 with no collision found), and not across a gap or jump in
+    its rows (``_respots``: put down elsewhere). A ball at rest does not move until something
+    touches it (Newton's first law), so each such run is one place."""
+    out = []
+    for b in balls:
+        busy = np.zeros(len(b.t), bool)
+        for tid, t0, t1 in moves:
+            if tid == b.track:
+                busy |= (b.t >= t0 - dt) & (b.t <= t1 + dt)
+        for r in rows:
+            if b.track in (r["track"], r.get("other")):
+                busy |= np.abs(b.t - r["t"]) <= dt
+        for o in balls:
+            if o is not b:
+                busy |= _passed_by(b, o, reach_mm, rest_speed_mm_s)
+        cut = np.zeros(len(b.t), bool)
+        for t in b.respots:
+            cut[min(int(np.searchsorted(b.t, t)), len(b.t) - 1)] = True
+        k = 0
+        while k < len(b.t):
+            if busy[k]:
+                k += 1
+                continue
+            m = k
+            while m + 1 < len(b.t) and not busy[m + 1] and not cut[m + 1]:
+                m += 1
+            out.append((b.track, float(b.t[k]), float(b.t[m])))
+            k = m + 1
+    if not out:
+        return empty_rests()
+    return pd.DataFrame(out, columns=["track", "t_begin", "t_end"]).astype(
+        {"track": "int64", "t_begin": "float64", "t_end": "float64"})
+
+
+def _passed_by(b: _Ball, o: _Ball, reach_mm: float, speed_mm_s: float) -> np.ndarray:
+    """(N,) bool over ``b``'s rows: ``o`` is seen in the same frame within ``reach_mm`` of
+    ``b`` (smoothed centres) and moving faster than ``speed_mm_s``."""
+    out = np.zeros(len(b.t), bool)
+    _, ib, io = np.intersect1d(b.frame, o.frame, assume_unique=True, return_indices=True)
+    if len(ib):
+        near = np.hypot(*(b.p[ib] - o.p[io]).T) < reach_mm
+        out[ib] = near & (np.hypot(*o.v[io].T) > speed_mm_s)
+    return out
+
+
+def empty_rests() -> pd.DataFrame:
+    """The stays-at-rest table with no rows: ``track`` (int64), ``t_begin, t_end`` (s)."""
+    return pd.DataFrame({"track": pd.Series(dtype="int64"), "t_begin": pd.Series(dtype="float64"),
+                         "t_end": pd.Series(dtype="float64")})
 
 
 def _velocity_change(b: _Ball, rows: np.ndarray) -> np.ndarray:
