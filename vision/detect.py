@@ -3466,8 +3466,9 @@ class BallDetector:
         u1, v1 = min(int(math.ceil(uv[0] + r)) + 1, w), min(int(math.ceil(uv[1] + r)) + 1, h)
         if u1 <= u0 or v1 <= v0:
             return np.zeros((0, 3), img.dtype), np.zeros((0, 3), np.float32), np.zeros(0)
-        # Open grids broadcast to the same squared distances as full ones, without building them.
-        yy, xx = np.ogrid[v0:v1, u0:u1]
+        # Open grids (the row and column indices, as np.ogrid's) broadcast to the same squared
+        # distances as full ones, without building them; np.arange skips ogrid's index machinery.
+        yy, xx = np.arange(v0, v1)[:, None], np.arange(u0, u1)[None, :]
         d2 = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2
         inside = d2 <= r * r
         return img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside], d2[inside]
@@ -3654,7 +3655,7 @@ class BallDetector:
         if u0 < 0 or v0 < 0 or u1 > w or v1 > h:
             return "", "unknown"
         patch = img[v0:v1, u0:u1]
-        yy, xx = np.ogrid[v0:v1, u0:u1]
+        yy, xx = np.arange(v0, v1)[:, None], np.arange(u0, u1)[None, :]
         inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
         hsv = cv2.cvtColor(patch, cv2.COLOR_BGR2HSV)[inside].astype(float)
         if len(hsv) < 12:
