@@ -612,6 +612,51 @@ def test_ray_map_projection_and_outline_match_opencv(setup):
         assert np.max(np.abs(rm.sphere_outline(x, y, R) - want)) < 1e-9
 
 
+def test_ray_map_image_radius_matches_opencv_and_the_array_path():
+    # RayMap.image_radius (the ball's image radius, in plain floats) against OpenCV's
+    # projectPoints (reference library) of the analytic silhouette: the image of the tangency
+    # circle, centre X - v R^2/|v|^2 and radius R sqrt(1 - R^2/|v|^2) normal to v = X - C
+    # (textbook cone-sphere tangency; Hartley & Zisserman 2003 on the image of a quadric's
+    # contour generator). And backproject_one / image_radius must equal the array path they
+    # replace (RayMap.backproject, sphere_outline_px, RayMap.project) to the last bit, on both
+    # lens forms and on pixels off the correction grid.
+    import cv2
+
+    from vision.detect import RayMap, sphere_outline_px
+
+    rng = np.random.default_rng(9)
+    for dist in ((-0.3, 0.09, 0.0, 0.0, 0.0), (-0.42, 0.16, -0.0008, 0.0005, -0.025)):
+        cam = Camera.overhead(NINE_FOOT, 1700.0, (1280, 720), offset_mm=(-250, 150), roll_deg=3.0, dist=dist)
+        rm = RayMap(cam)
+        w, h = cam.image_size
+        uv = rng.uniform([-3.0, -3.0], [w + 3.0, h + 3.0], (300, 2))
+        uv[:3] = [[0.0, 0.0], [w - 1.0, h - 1.0], [w + 1.0, 10.0]]
+        for u, v in uv:
+            X = rm.backproject(np.array([[u, v]]), R)[0]
+            assert np.array_equal(np.array(rm.backproject_one(u, v, R)), X, equal_nan=True)
+            old = float(np.mean(np.linalg.norm(sphere_outline_px(cam, X[None], R, 16, rm)[0] - rm.project(X[None])[0], axis=1)))
+            got = rm.image_radius(u, v, R)
+            # Both NaN where the lens model gives no ray (a pixel past the image's edge).
+            assert got == old or (math.isnan(got) and math.isnan(old))
+        # Against OpenCV where the lens model maps the pixel to a ray (the strong lenses' far
+        # corners fold back, where neither gives a usable point).
+        for u, v in rng.uniform([0.2 * w, 0.2 * h], [0.8 * w, 0.8 * h], (40, 2)):
+            X = rm.backproject(np.array([[u, v]]), R)[0]
+            vv = X - cam.centre_mm
+            d2 = float(vv @ vv)
+            q = X - vv * R**2 / d2
+            rho = R * math.sqrt(1 - R**2 / d2)
+            e1 = np.cross(vv, [0.0, 0.0, 1.0])
+            e1 /= np.linalg.norm(e1)
+            e2 = np.cross(vv / math.sqrt(d2), e1)
+            a = np.linspace(0, 2 * np.pi, 16, endpoint=False)[:, None]
+            ring = q + rho * (np.cos(a) * e1 + np.sin(a) * e2)
+            pts, _ = cv2.projectPoints(np.vstack([ring, X[None]]), cam.rvec, cam.tvec, cam.K, cam.dist)
+            pts = pts.reshape(-1, 2)
+            ref = float(np.mean(np.linalg.norm(pts[:16] - pts[16], axis=1)))
+            assert abs(rm.image_radius(u, v, R) - ref) < 1e-6
+
+
 def test_ray_map_projection_of_both_lens_forms_matches_opencv():
     # RayMap.project takes a shorter path for a lens of k1, k2 alone (the SETUPS cameras and
     # automatic calibration's); both it and the full radial-tangential path must agree with

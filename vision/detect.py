@@ -1381,6 +1381,8 @@ class RayMap:
         self._radial_only = self._dist[2] == 0.0 and self._dist[3] == 0.0 and self._dist[4] == 0.0 and self._k[1] == 0.0
         ang = np.linspace(0, 2 * np.pi, 32, endpoint=False)
         self._cos32, self._sin32 = np.cos(ang), np.sin(ang)
+        ang = np.linspace(0, 2 * np.pi, 16, endpoint=False)
+        self._cos16, self._sin16 = np.cos(ang)[:, None], np.sin(ang)[:, None]
 
     def _pinhole(self, uv: np.ndarray) -> np.ndarray:
         """(N, 2) pixels -> (N, 2) normalised coordinates ignoring the lens: K^-1 (u, v, 1)."""
@@ -1501,6 +1503,67 @@ class RayMap:
         e1 = np.array([e1x, e1y, e1z])
         pts = q[None] + rho * (self._cos32[:, None] * e1[None] + self._sin32[:, None] * e2[None])
         return self.project(pts)
+
+    def backproject_one(self, u: float, v: float, z_mm: float) -> tuple[float, float, float]:
+        """:meth:`backproject` of one pixel (``u``, ``v``) as a table point (mm), operation for
+        operation in plain floats (the grid's bilinear correction summed in the order numpy's
+        sum over the four corners takes), so to the last bit; the rotation stays numpy's
+        product. Off the grid it falls back to :meth:`backproject`."""
+        gu, gv = u / self.step, v / self.step
+        nv, nu = self.shape
+        if not (0 <= gu < nu - 1 and 0 <= gv < nv - 1):  # off the grid (NaN too): as numpy's floor tells it
+            return tuple(self.backproject(np.array([[u, v]]), z_mm)[0].tolist())
+        iu, iv = math.floor(gu), math.floor(gv)
+        au, av = gu - iu, gv - iv
+        bu, bv = 1 - au, 1 - av
+        k = iv * nu + iu
+        f = self._flat
+        c00, c10, c01, c11 = f[k].tolist(), f[k + 1].tolist(), f[k + nu].tolist(), f[k + nu + 1].tolist()
+        w00, w10, w01, w11 = bu * bv, au * bv, bu * av, au * av
+        cx = c00[0] * w00 + c10[0] * w10 + c01[0] * w01 + c11[0] * w11
+        cy = c00[1] * w00 + c10[1] * w10 + c01[1] * w01 + c11[1] * w11
+        k00, k01, k02, k11, k12 = self._k
+        y = (v - k12) / k11
+        d = np.array([[cx + (u - k02 - k01 * y) / k00, cy + y, 1.0]]) @ self.camera.R
+        dx, dy, dz = d[0].tolist()
+        n = math.sqrt(dx * dx + dy * dy + dz * dz)
+        dx, dy, dz = dx / n, dy / n, dz / n
+        c = self._centre
+        s = (float(z_mm) - c[2]) / dz
+        return c[0] + s * dx, c[1] + s * dy, c[2] + s * dz
+
+    def backproject_point(self, uv_px, z_mm: float) -> np.ndarray:
+        """(3,) table point (mm) where the ray of one pixel ``uv_px`` (2,) meets ``z = z_mm``:
+        :meth:`backproject_one` as an array, to the last bit :meth:`backproject`'s."""
+        return np.array(self.backproject_one(float(uv_px[0]), float(uv_px[1]), z_mm))
+
+    def image_radius(self, u: float, v: float, radius_mm: float) -> float:
+        """Mean distance (px) from the projection of the centre of the sphere of radius
+        ``radius_mm`` whose centre's image is (``u``, ``v``) px (at ``z = radius_mm``) to 16
+        points of its silhouette: what ``BallDetector._image_radius_px`` asked of
+        :meth:`backproject`, :func:`sphere_outline_px` (16 points) and :meth:`project`,
+        with the same arithmetic in plain floats to the last bit (a ball's image size is
+        asked several times per fitted ball, where the numpy calls on one point cost far
+        more than their arithmetic)."""
+        R = float(radius_mm)
+        X0, X1, X2 = self.backproject_one(u, v, R)
+        C = self._centre
+        vx, vy, vz = X0 - C[0], X1 - C[1], X2 - C[2]
+        d2 = vx * vx + vy * vy + vz * vz
+        R2 = R**2
+        q = np.array([X0 - vx * R2 / d2, X1 - vy * R2 / d2, X2 - vz * R2 / d2])
+        rho = R * math.sqrt(1 - R2 / d2)
+        n = math.sqrt(d2)
+        hx, hy, hz = vx / n, vy / n, vz / n
+        ax, ay, az = (0.0, 0.0, 1.0) if abs(hz) < 0.9 else (1.0, 0.0, 0.0)
+        e1x, e1y, e1z = hy * az - hz * ay, hz * ax - hx * az, hx * ay - hy * ax
+        m = math.sqrt(e1x * e1x + e1y * e1y + e1z * e1z)
+        e1x, e1y, e1z = e1x / m, e1y / m, e1z / m
+        e2 = np.array([hy * e1z - hz * e1y, hz * e1x - hx * e1z, hx * e1y - hy * e1x])
+        e1 = np.array([e1x, e1y, e1z])
+        pts = q[None] + rho * (self._cos16 * e1[None] + self._sin16 * e2[None])
+        rel = self.project(pts) - self.project(np.array([[X0, X1, X2]]))[0]
+        return float(np.mean(np.sqrt(rel[:, 0] * rel[:, 0] + rel[:, 1] * rel[:, 1])))
 
     def backproject(self, uv_px: np.ndarray, z_mm: float = 0.0) -> np.ndarray:
         """(N, 2) pixels -> (N, 3) table points where their rays meet the plane ``z = z_mm``."""
@@ -2316,7 +2379,7 @@ class BallDetector:
         if len(sharp) < 2:
             return None
         xy = np.array([[r["x"], r["y"]] for r in sharp])
-        c = self.rays.backproject(np.asarray(uv, float)[None], R)[0][:2].astype(float)
+        c = self.rays.backproject_point(uv, R)[:2]
         near = np.hypot(*(xy - c).T) < _ROOM_REACH * R
         if near.sum() < 2:
             return None
@@ -2691,7 +2754,7 @@ class BallDetector:
         p, q = np.array([a["u"], a["v"]], float), np.array([b["u"], b["v"]], float)
         m = 0.5 * (p + q)
         e = (q - p) / max(math.hypot(*(q - p)), 1e-9)
-        mid = self.rays.backproject(m[None], self.R)[0]
+        mid = self.rays.backproject_point(m, self.R)
         r_px = float(np.mean(np.hypot(*(self.rays.sphere_outline(mid[0], mid[1], self.R) - m).T)))
         s = np.arange(-2.0 * r_px, 2.0 * r_px + 0.25, 0.5)
         uv = np.round(m[None] - np.array(origin, float) + s[:, None] * np.array([-e[1], e[0]])).astype(int)
@@ -2853,8 +2916,7 @@ class BallDetector:
     def _image_radius_px(self, uv: np.ndarray) -> float:
         """Mean radius (px) of the image of a ball whose centre's image is ``uv`` (2,) px: its
         silhouette (:func:`sphere_outline_px`, 16 rays) about its centre's projection."""
-        X = self.rays.backproject(np.asarray(uv, float)[None], self.R)[0]
-        return float(np.mean(np.linalg.norm(sphere_outline_px(self.camera, X[None], self.R, 16, self.rays)[0] - self.rays.project(X[None])[0], axis=1)))
+        return self.rays.image_radius(float(uv[0]), float(uv[1]), self.R)
 
     def _seeds_of(self, comp: np.ndarray, pts: np.ndarray, origin, occluder: bool) -> list[dict]:
         """Seeds (image centre, half streak px along a unit axis, strict flag) of one component."""
@@ -3164,10 +3226,10 @@ class BallDetector:
         the shadow on that side, so it takes the terminator there instead, inside the outline,
         and pulls the centre away from the shadow)."""
         cam, R = self.camera, self.R
-        X = self.rays.backproject(seed["uv"][None], R)[0]
+        X = self.rays.backproject_point(seed["uv"], R)
         half_mm, heading = 0.0, 0.0
         if seed["half_px"] > 0:
-            tip = self.rays.backproject((seed["uv"] + seed["axis"] * max(seed["half_px"], 1.0))[None], R)[0]
+            tip = self.rays.backproject_point(seed["uv"] + seed["axis"] * max(seed["half_px"], 1.0), R)
             heading = math.atan2(tip[1] - X[1], tip[0] - X[0])
             px_mm = math.hypot(tip[0] - X[0], tip[1] - X[1]) / max(seed["half_px"], 1.0)
             half_mm = seed["half_px"] * px_mm
@@ -3404,7 +3466,9 @@ class BallDetector:
         u1, v1 = min(int(math.ceil(uv[0] + r)) + 1, w), min(int(math.ceil(uv[1] + r)) + 1, h)
         if u1 <= u0 or v1 <= v0:
             return np.zeros((0, 3), img.dtype), np.zeros((0, 3), np.float32), np.zeros(0)
-        yy, xx = np.mgrid[v0:v1, u0:u1]
+        # Open grids (the row and column indices, as np.ogrid's) broadcast to the same squared
+        # distances as full ones, without building them; np.arange skips ogrid's index machinery.
+        yy, xx = np.arange(v0, v1)[:, None], np.arange(u0, u1)[None, :]
         d2 = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2
         inside = d2 <= r * r
         return img[v0:v1, u0:u1][inside], self.background.image[v0:v1, u0:u1][inside], d2[inside]
@@ -3472,7 +3536,7 @@ class BallDetector:
         its shadow or an arm it touches all round; an outline fitted to the end of a cue and
         the edge of its cast shadow has no step where the cue runs on and where the shadow's
         edge stands for the rim."""
-        X = self.rays.backproject(np.asarray(uv, float)[None], self.R)[0]
+        X = self.rays.backproject_point(uv, self.R)
         rho = _ray_polygon(np.asarray(uv, float), _RAY_DIRS, self.rays.sphere_outline(X[0], X[1], self.R))
         if np.any(~np.isfinite(rho)):
             return 0.0
@@ -3591,7 +3655,7 @@ class BallDetector:
         if u0 < 0 or v0 < 0 or u1 > w or v1 > h:
             return "", "unknown"
         patch = img[v0:v1, u0:u1]
-        yy, xx = np.mgrid[v0:v1, u0:u1]
+        yy, xx = np.arange(v0, v1)[:, None], np.arange(u0, u1)[None, :]
         inside = (xx - uv[0]) ** 2 + (yy - uv[1]) ** 2 <= r * r
         hsv = cv2.cvtColor(patch, cv2.COLOR_BGR2HSV)[inside].astype(float)
         if len(hsv) < 12:
