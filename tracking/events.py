@@ -59,7 +59,13 @@ Method
    four of the smoothed velocity's sign change, where they part most significantly, and the
    turn's rough time where their lines meet, since a smoother blurs a slow turn's sign change
    by frames), the most significant such turn within a leg's reach; its contact time is then
-   where the two sides' paths come nearest the line when neither fit reaches it. A ball last
+   where the two sides' paths come nearest the line when neither fit reaches it. Every rough
+   cushion contact, a fast one too, must show such a turn beyond ``turn_sigmas`` in its raw
+   legs bounded by the ball's neighbouring rough contacts, or have a leg too short to say
+   (``_Finder.reverses``, ``_real_turns``): a tracker that follows a few reads pulled toward
+   the rail swings its smoothed normal velocity through zero and back while the ball runs on
+   away from it, and the false contact's rough time would also cut the true one's departure
+   short. A ball last
    seen (then not for ``fit_window_s``: lifted or hidden) within reach of a rail's line and
    running into it faster than ``min_velocity_change_mm_s / 2`` touched that cushion; it is
    solved from its approach alone (``_Finder._arrival``: speed and angle out and restitution
@@ -1473,6 +1479,7 @@ def find_events(
         _motion(b, cfg, table.ball_diameter_mm)
     rough_cushions = {b.track: finder.rough_cushions(b) for b in balls}
     rough_collisions = finder.rough_collisions(balls)
+    rough_cushions = _real_turns(finder, balls, rough_cushions, rough_collisions)
     for b in balls:
         contacts = [tg for tg, _ in rough_cushions[b.track]] + [
             tg for tg, i, j in rough_collisions if b.track in (i, j)]
@@ -1568,6 +1575,23 @@ def find_events(
                 t_end = r["t"]
             moves.append((b.track, t_begin, t_end))
     return _assemble(rows, moves, dt)
+
+
+def _real_turns(finder: "_Finder", balls: list[_Ball], rough_cushions: dict,
+                rough_collisions: list[tuple[float, int, int]]) -> dict:
+    """``rough_cushions`` (track -> [(s, rail)]) without the contacts whose raw path does
+    not turn away from the rail beyond its noise (``_Finder.reverses``), the legs bounded by
+    the ball's other rough contacts; a ball last seen at the rail (``_Finder._arrival``) has
+    no departure to test and is kept."""
+    out = {}
+    for b in balls:
+        found = rough_cushions[b.track]
+        others = [tg for tg, _ in found] + [tg for tg, i, j in rough_collisions
+                                            if b.track in (i, j)]
+        out[b.track] = [(tg, rail) for tg, rail in found
+                        if tg in finder.arrivals.get(b.track, ())
+                        or finder.reverses(b, tg, rail, [t for t in others if t != tg])]
+    return out
 
 
 def _velocity_change(b: _Ball, rows: np.ndarray) -> np.ndarray:
@@ -2619,27 +2643,62 @@ class _Finder:
         within the interval between rows k - 1 and k (its ends where the lines meet beyond).
         """
         cfg = self.cfg
-        slopes, var, lines = [], 0.0, []
         rows = np.arange(len(b.t))
-        for z in (-1, 1):
-            if z < 0:
-                ok = (b.t > b.t[k] - cfg.fit_window_s) & (rows >= i0) & (rows < k)
-            else:
-                ok = (b.t < b.t[k] + cfg.fit_window_s) & (rows >= k) & (rows <= i1)
-            leg = self._leg_line(b, ok, ax, sign)
-            if leg is None:
-                return 0.0, float(b.t[k])
-            slope, var_slope, t_mean, y_mean = leg
-            slopes.append(slope)
-            lines.append((t_mean, y_mean))
-            var += var_slope
-        s_a, s_d = slopes
-        if not (s_a < 0.0 < s_d) or k < 1:
+        ok_a = (b.t > b.t[k] - cfg.fit_window_s) & (rows >= i0) & (rows < k)
+        ok_d = (b.t < b.t[k] + cfg.fit_window_s) & (rows >= k) & (rows <= i1)
+        z, lines = self._legs_turn(b, ok_a, ok_d, ax, sign)
+        if lines is None or z <= 0.0 or k < 1:
             return 0.0, float(b.t[k])
-        (ta, ya), (td, yd) = lines
+        (ta, ya, s_a), (td, yd, s_d) = lines
         # y_a + s_a (t - t_a) = y_d + s_d (t - t_d)
         t_apex = (yd - ya + s_a * ta - s_d * td) / (s_a - s_d)
-        return (s_d - s_a) / math.sqrt(var), float(np.clip(t_apex, b.t[k - 1], b.t[k]))
+        return z, float(np.clip(t_apex, b.t[k - 1], b.t[k]))
+
+    def _legs_turn(self, b: _Ball, ok_a: np.ndarray, ok_d: np.ndarray, ax: int, sign: float):
+        """(z, legs): the turn away from a rail between the approach leg (rows where ``ok_a``)
+        and the departure leg (``ok_d``), each a straight line of the raw normal coordinate
+        (``_leg_line``), as ``(s_d - s_a) / sqrt(se_a^2 + se_d^2)`` (the two-sample test of
+        equal slopes), 0 when a leg heads the wrong way (the approach away from the rail or the
+        departure into it); legs ``((t_mean, y_mean, slope) approach, (...) departure)``, or
+        None (and z 0) when a leg has fewer than three samples."""
+        legs, var = [], 0.0
+        for ok in (ok_a, ok_d):
+            leg = self._leg_line(b, ok, ax, sign)
+            if leg is None:
+                return 0.0, None
+            slope, var_slope, t_mean, y_mean = leg
+            legs.append((t_mean, y_mean, slope))
+            var += var_slope
+        s_a, s_d = legs[0][2], legs[1][2]
+        return ((s_d - s_a) / math.sqrt(var) if s_a < 0.0 < s_d else 0.0), legs
+
+    def reverses(self, b: _Ball, tg: float, rail: str, others: list[float]) -> bool:
+        """Whether the raw path of ``b`` turns away from ``rail`` at the rough contact time
+        ``tg`` (s) beyond its noise: legs (``_legs_turn``) of the raw samples within
+        ``fit_window_s`` before and after ``tg``, each bounded by the ball's neighbouring rough
+        contacts ``others`` (s) and its motion, must part by more than ``turn_sigmas``
+        standard errors, or have too few samples to say (a contact a frame or two after a
+        strike or a collision keeps what the smoothed velocity found).
+
+        A smoothed velocity that reverses near a rail is no contact when the raw samples
+        between the neighbouring contacts do not turn: a tracker that follows a few reads
+        pulled millimetres toward the rail (a ball's own shadow on the cushion, a read jumping
+        by 9 mm for 4 frames) swings its velocity through zero and back while the ball runs on
+        away from the rail (``benchmarks/analyse_accuracy.py --extra`` uneven_60fps on better
+        detections: a false contact 0.14 s after a true slow one, ``restitution`` 1.31)."""
+        ax = 1 if rail in ("bottom", "top") else 0
+        sign = float(rail_inward_normal(rail)[ax])
+        guard = 1.5 * self.dt
+        lo = max([t for t in others if t < tg - guard], default=-math.inf)
+        hi = min([t for t in others if t > tg + guard], default=math.inf)
+        i = int(np.clip(np.searchsorted(b.t, tg), 0, len(b.t) - 1))
+        move = next(((i0, i1) for i0, i1 in b.moves if i0 <= i <= i1), (0, len(b.t) - 1))
+        inside = (b.t >= b.t[move[0]]) & (b.t <= b.t[move[1]])
+        w = self.cfg.fit_window_s
+        ok_a = inside & (b.t > max(lo, tg - w)) & (b.t < tg)
+        ok_d = inside & (b.t > tg) & (b.t < min(hi, tg + w))
+        z, legs = self._legs_turn(b, ok_a, ok_d, ax, sign)
+        return legs is None or z > self.cfg.turn_sigmas
 
     def cushion(self, b: _Ball, rail: str, tg: float, apex_only: bool = False):
         """A cushion event solved from both sides' fits, or None (no fit, or a jaw contact).
