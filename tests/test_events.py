@@ -1479,6 +1479,47 @@ def test_reads_pulled_toward_the_rail_after_a_contact_make_no_second_contact():
         assert abs(found.loc[0, "t"] - t_c) < 1.0 / fps
 
 
+
+def test_a_dip_of_the_tracked_speed_after_a_slow_contact_does_not_cut_its_departure():
+    # Slow near-square banks off the top cushion (0.26-0.33 m/s struck with roll, 10 degrees
+    # off square at most), simulated by ``analysis.physics`` (Alciatore 2004 cloth, Mathavan,
+    # Jackson & Parkin 2010 impacts), 60 fps, 1 mm noise moving. Six frames after the contact
+    # the tracks' speed dips to 30 mm/s for three frames, under the rest speed, as the
+    # tracker's did on uneven_60fps's ball 1 after its slow contact (30-39 mm/s smoothed, 83
+    # true: a few reads off), while the ball rolls on. The contact's measures must not change
+    # for it (the issue's targets are 3 % and 0.03; with 1 mm noise on slow contacts these
+    # draws reach 3.2 % and 0.033 in the median without the dip). Measured: median |speed_out|
+    # error 3.2 %, |restitution| 0.033 (0.032 and 0.034 without the dip); before: 20 % and
+    # 0.205 (the dip ended the ball's fast stretch, and that end bounded the departure fit).
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    errs = []
+    for seed in range(12):
+        rng = np.random.default_rng(400 + seed)
+        vn, ang = rng.uniform(260.0, 330.0), rng.uniform(-10.0, 10.0)
+        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(800.0, 2000.0), 1050.0)})
+        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
+                               math.radians(90.0 + ang), 0.0, 0.4))
+        sim.run_until_rest()
+        traj = sim.trajectory()
+        det = detections(traj, 3.5, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=1.0, drop=0.0)
+        truth = truth_events(TABLE, traj, 3.5)
+        tr = truth[truth["kind"] == "cushion"].iloc[0]
+        tracks = track(det, TABLE)
+        k0 = int(math.ceil(tr["t"] * 60)) + 6
+        dip = tracks["frame"].isin(range(k0, k0 + 3)).to_numpy()
+        v = tracks.loc[dip, ["vx", "vy"]].to_numpy()
+        tracks.loc[dip, ["vx", "vy"]] = v * (30.0 / np.hypot(*v.T))[:, None]
+        found = _only(find_events(tracks, TABLE, det)[0], "cushion")
+        assert len(found) == 1
+        errs.append((found.loc[0, "speed_out"] / tr["speed_out"] - 1,
+                     found.loc[0, "restitution"] - tr["restitution"]))
+    errs = np.abs(np.array(errs))
+    print("median |speed_out|, |restitution|", np.round(np.median(errs, axis=0), 3))
+    assert np.median(errs[:, 0]) < 0.05 and np.median(errs[:, 1]) < 0.05
+
+
 def _noise_of_one_ball(t, p, z, seen):
     """(white, at the fits' scale) noise sigma (mm) the event finder states for one ball whose
     true path is p (N, 2) mm at times t (s), read as z where seen (bool (N,))."""

@@ -28,11 +28,13 @@ Method
    motion never runs across it, and a motion running into the gap ends in a pocket event or
    in none. A motion of a ball seen moving and never seen resting before it since it came
    onto the table (put down by hand, a track picked up mid-roll) has no start. The contacts
-   (below) are bounded and found on the fast stretches as before: their fits and the noise
-   estimate never reach into a slow tail. A stay on the table that never exceeds the move
-   speed but begins with the ball rolling (its first rest window's velocity beyond its noise)
-   and ends at rest is a motion too, when it begins during another ball's motion (a rack ball
-   nudged by a break and first seen parted from the rack) or within reach of where a track
+   (below) are found on the fast stretches as before, and their fits bounded by the motion's
+   ends (a fast stretch's end inside a motion is the smoothed speed dipping, not the ball
+   stopping); the noise estimate never reaches into a slow tail. A stay on the table that
+   never exceeds the move speed but begins with the ball rolling (its first rest window's
+   velocity beyond its noise) and ends at rest is a motion too, when it begins during
+   another ball's motion (a rack ball nudged by a break and first seen parted from the
+   rack) or within reach of where a track
    vanished rolling (a slow ball lost and found again under a new id; its motion then counts
    from the loss, so the shot runs on to its stop; ``_add_found_rolling``): it has a stop and
    no start; a ball put down by hand between shots gets neither. A ball a solved collision
@@ -1136,7 +1138,7 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
 
     Sets ``ball.moves`` (the motions), ``ball.firsts`` (each stay's first row), ``ball.fast``
     (the stretches above the rest speed, merged across dips shorter than ``min_rest_s``: the
-    contacts are found and their fits bounded on these, so a slow tail never enters them) and
+    contacts are found on these; their fits are bounded by the motions, ``find_events``) and
     ``ball.sigma, ball.sigma_fit`` (``_noise_sigma`` over the fast stretches; the rest test's
     scale is the larger of that and the noise off them, ``_still_sigma``).
     """
@@ -1483,8 +1485,13 @@ def find_events(
     for b in balls:
         contacts = [tg for tg, _ in rough_cushions[b.track]] + [
             tg for tg, i, j in rough_collisions if b.track in (i, j)]
-        # A motion that begins or ends at a contact is bounded by the contact itself.
-        ends = [b.t[i] for move in b.fast for i in move]
+        # A motion that begins or ends at a contact is bounded by the contact itself. The
+        # motion's own ends bound the fits, not its fast stretches': within a motion a
+        # stretch ends only where the smoothed speed dips under the rest speed, which a few
+        # reads a few frames after a slow contact can make it do while the ball rolls on
+        # (uneven_60fps extra clip, ball 1 at 2.98 s: 30-39 mm/s smoothed, 83 true; the
+        # contact 0.11 s before had its departure cut to 5-6 samples).
+        ends = [b.t[i] for move in b.moves for i in move]
         ends = [m for m in ends if all(abs(m - c) > 3 * dt for c in contacts)]
         b.respots = _respots(b, table.ball_diameter_mm)
         b.marks = sorted(ends + contacts + b.respots)
