@@ -1520,6 +1520,51 @@ def test_a_dip_of_the_tracked_speed_after_a_slow_contact_does_not_cut_its_depart
     assert np.median(errs[:, 0]) < 0.05 and np.median(errs[:, 1]) < 0.05
 
 
+
+def test_one_trusted_read_among_biased_ones_does_not_turn_a_slow_approach():
+    # Slow near-square banks off the top cushion simulated by ``analysis.physics`` (Alciatore
+    # 2004 cloth, Mathavan, Jackson & Parkin 2010 impacts), 60 fps, 0.7 mm noise. Every moving
+    # read is pulled 4.5 mm along the rail (a ball's shadow, as uneven_60fps's ball 1 read 3-7
+    # mm toward its shadow) and states 2.5 mm of noise, except two reads eight and seven
+    # frames before the contact that state 0.9 and 1.0 mm, the second of them 1.3 mm from the
+    # true centre (uneven's frames 164 and 165: weighed 2.8 and 2.5 against 0.6-1.0 around).
+    # The approach's direction must not turn on them (the issue's target is 1 degree; the
+    # shared pull itself moves no velocity). Measured: median |angle_in| error 1.02 degrees
+    # (max 3.4); before: 11.3 (max 34), the trusted read bending the weighted fit so its plain
+    # residual stayed under the outlier test.
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    errs = []
+    for seed in range(12):
+        rng = np.random.default_rng(500 + seed)
+        vn, ang = rng.uniform(260.0, 330.0), rng.uniform(-10.0, 10.0)
+        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(800.0, 2000.0), 1050.0)})
+        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
+                               math.radians(90.0 + ang), 0.0, 0.4))
+        sim.run_until_rest()
+        traj = sim.trajectory()
+        det = detections(traj, 3.5, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=0.7, drop=0.0)
+        truth = truth_events(TABLE, traj, 3.5)
+        truth = truth[truth["kind"] == "cushion"]
+        if not len(truth):
+            continue  # the ball stopped short of the rail
+        tr = truth.iloc[0]
+        moving = (det["sigma_mm"] > 0.6).to_numpy()
+        det.loc[moving, "x"] -= 4.5
+        det.loc[moving, "sigma_mm"] = 2.5
+        k = int(math.floor(tr["t"] * 60)) - 8
+        det.loc[det["frame"] == k, "sigma_mm"] = 0.9
+        right = det["frame"] == k + 1
+        det.loc[right, "x"] += 4.5 + 1.3
+        det.loc[right, "sigma_mm"] = 1.0
+        found = _only(find_events(track(det, TABLE), TABLE, det)[0], "cushion")
+        assert len(found) == 1
+        errs.append(abs(found.loc[0, "angle_in"] - tr["angle_in"]))
+    print("median |angle_in|", round(float(np.median(errs)), 2), "max", round(max(errs), 2))
+    assert len(errs) >= 8 and np.median(errs) < 2.0
+
+
 def _noise_of_one_ball(t, p, z, seen):
     """(white, at the fits' scale) noise sigma (mm) the event finder states for one ball whose
     true path is p (N, 2) mm at times t (s), read as z where seen (bool (N,))."""

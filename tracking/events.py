@@ -2372,7 +2372,9 @@ class _Finder:
                     straight: tuple[float, float] | None = None):
         """``_piecewise_fit`` of samples ts (n,) s, ps (n, 2) mm with gross outliers struck.
 
-        A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance; for
+        A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance
+        times the sample's weight, so in units of its own stated noise where the detections
+        state one; for
         Gaussian noise a chance of exp(-s^2 / 2), 4e-6 at 5; the noise ``sigma`` or the
         residuals' robust scatter, whichever is larger) is not this ball's centre (a detection
         pulled by the cushion's shadow or a hand next to the ball, which the detector need not
@@ -2390,6 +2392,14 @@ class _Finder:
                     or len(ts) <= self.cfg.quadratic_min_samples:
                 return f, ts, ps, weight, struck
             res = np.hypot(*(ps - np.array([f.pos(t) for t in ts])).T)
+            if weight is not None:
+                # In units of each read's own stated noise, as the weighted fit holds it: a read
+                # the detector trusts more than its neighbours pulls the fit toward itself, so
+                # its plain residual stays small however far it lies from the path they trace
+                # (uneven_60fps ball 1, 2.75 s: one read weighed 2.5 among reads weighed
+                # 0.6-1.0 lay 5-8 mm from them along the rail and turned the approach of its
+                # slow contact 29 degrees, speed_in 30 % high).
+                res = res * weight
             j = int(np.argmax(res))
             # The median 2-D residual of Gaussian noise is sigma sqrt(2 ln 2) = 1.177 sigma,
             # and one outlier hardly moves it.
