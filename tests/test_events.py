@@ -1445,6 +1445,126 @@ def test_a_creeping_ball_is_not_given_a_contact_where_its_smoothed_velocity_swun
     assert len(errors) >= 6 and max(errors) < 2.0 and np.median(errors) < 1.0
 
 
+
+def test_reads_pulled_toward_the_rail_after_a_contact_make_no_second_contact():
+    # A ball rolling into the top cushion at 230 mm/s, 30 degrees off square, banks off it
+    # (analytic rolling bank, ``_rolling_bank_case``: Alciatore 2004's slide then roll), 60 fps,
+    # 0.7 mm noise, eight phases. Eight frames after the contact four reads are pulled 5.4, 8.8,
+    # 7.2 and 7.3 mm toward the rail, as the detector read the uneven_60fps extra clip's ball 1
+    # 0.11-0.16 s after its slow contact (benchmarks/analyse_accuracy.py --extra on the along
+    # branch's detections), and the tracker follows them: there its positions are the reads
+    # and its velocities their central differences, so its normal velocity swings into the
+    # rail and back. The ball runs on away from the rail throughout, so the one contact is the
+    # bank (common practice: a ball leaving a cushion does not meet it again without turning;
+    # a cushion's speed ratio stays below 1, Mathavan et al. 2009 measured at most about
+    # 0.95). Measured: one contact each, within 0.5 frame; before, a second contact 0.17 s
+    # later in all eight (restitution 1.6-2.1).
+    fps = 60.0
+    times = np.arange(int(1.4 * fps)) / fps
+    for seed in range(8):
+        t_c = 0.6 + (0.1 + 0.11 * seed) / fps
+        f, _, _ = _rolling_bank_case("top", 1700.0, -30.0, 230.0, 0.77, t_c, mu_s=0.2)
+        det = detections({"a": f}, times, np.random.default_rng(seed), noise_mm=0.7)
+        k0 = int(math.ceil(t_c * fps)) + 8
+        det.loc[det["frame"].isin(range(k0, k0 + 4)), "y"] += [5.4, 8.8, 7.2, 7.3]
+        tr = track(det, TABLE)
+        xy = det.sort_values("frame")[["x", "y"]].to_numpy()
+        v = np.gradient(xy, axis=0) * fps
+        rows = tr["frame"].isin(range(k0 - 1, k0 + 5)).to_numpy()
+        tr.loc[rows, ["x", "y"]] = xy[tr.loc[rows, "frame"]]
+        tr.loc[rows, ["vx", "vy"]] = v[tr.loc[rows, "frame"]]
+        found = _only(find_events(tr, TABLE, det)[0], "cushion")
+        print(found[["t", "speed_in", "speed_out", "restitution"]].round(3).values.tolist())
+        assert len(found) == 1 and found.loc[0, "rail"] == "top"
+        assert abs(found.loc[0, "t"] - t_c) < 1.0 / fps
+
+
+
+def test_a_dip_of_the_tracked_speed_after_a_slow_contact_does_not_cut_its_departure():
+    # Slow near-square banks off the top cushion (0.26-0.33 m/s struck with roll, 10 degrees
+    # off square at most), simulated by ``analysis.physics`` (Alciatore 2004 cloth, Mathavan,
+    # Jackson & Parkin 2010 impacts), 60 fps, 1 mm noise moving. Six frames after the contact
+    # the tracks' speed dips to 30 mm/s for three frames, under the rest speed, as the
+    # tracker's did on uneven_60fps's ball 1 after its slow contact (30-39 mm/s smoothed, 83
+    # true: a few reads off), while the ball rolls on. The contact's measures must not change
+    # for it (the issue's targets are 3 % and 0.03; with 1 mm noise on slow contacts these
+    # draws reach 3.2 % and 0.033 in the median without the dip). Measured: median |speed_out|
+    # error 3.2 %, |restitution| 0.033 (0.032 and 0.034 without the dip); before: 20 % and
+    # 0.205 (the dip ended the ball's fast stretch, and that end bounded the departure fit).
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    errs = []
+    for seed in range(12):
+        rng = np.random.default_rng(400 + seed)
+        vn, ang = rng.uniform(260.0, 330.0), rng.uniform(-10.0, 10.0)
+        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(800.0, 2000.0), 1050.0)})
+        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
+                               math.radians(90.0 + ang), 0.0, 0.4))
+        sim.run_until_rest()
+        traj = sim.trajectory()
+        det = detections(traj, 3.5, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=1.0, drop=0.0)
+        truth = truth_events(TABLE, traj, 3.5)
+        tr = truth[truth["kind"] == "cushion"].iloc[0]
+        tracks = track(det, TABLE)
+        k0 = int(math.ceil(tr["t"] * 60)) + 6
+        dip = tracks["frame"].isin(range(k0, k0 + 3)).to_numpy()
+        v = tracks.loc[dip, ["vx", "vy"]].to_numpy()
+        tracks.loc[dip, ["vx", "vy"]] = v * (30.0 / np.hypot(*v.T))[:, None]
+        found = _only(find_events(tracks, TABLE, det)[0], "cushion")
+        assert len(found) == 1
+        errs.append((found.loc[0, "speed_out"] / tr["speed_out"] - 1,
+                     found.loc[0, "restitution"] - tr["restitution"]))
+    errs = np.abs(np.array(errs))
+    print("median |speed_out|, |restitution|", np.round(np.median(errs, axis=0), 3))
+    assert np.median(errs[:, 0]) < 0.05 and np.median(errs[:, 1]) < 0.05
+
+
+
+def test_one_trusted_read_among_biased_ones_does_not_turn_a_slow_approach():
+    # Slow near-square banks off the top cushion simulated by ``analysis.physics`` (Alciatore
+    # 2004 cloth, Mathavan, Jackson & Parkin 2010 impacts), 60 fps, 0.7 mm noise. Every moving
+    # read is pulled 4.5 mm along the rail (a ball's shadow, as uneven_60fps's ball 1 read 3-7
+    # mm toward its shadow) and states 2.5 mm of noise, except two reads eight and seven
+    # frames before the contact that state 0.9 and 1.0 mm, the second of them 1.3 mm from the
+    # true centre (uneven's frames 164 and 165: weighed 2.8 and 2.5 against 0.6-1.0 around).
+    # The approach's direction must not turn on them (the issue's target is 1 degree; the
+    # shared pull itself moves no velocity). Measured: median |angle_in| error 1.02 degrees
+    # (max 3.4); before: 11.3 (max 34), the trusted read bending the weighted fit so its plain
+    # residual stayed under the outlier test.
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    errs = []
+    for seed in range(12):
+        rng = np.random.default_rng(500 + seed)
+        vn, ang = rng.uniform(260.0, 330.0), rng.uniform(-10.0, 10.0)
+        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(800.0, 2000.0), 1050.0)})
+        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
+                               math.radians(90.0 + ang), 0.0, 0.4))
+        sim.run_until_rest()
+        traj = sim.trajectory()
+        det = detections(traj, 3.5, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=0.7, drop=0.0)
+        truth = truth_events(TABLE, traj, 3.5)
+        truth = truth[truth["kind"] == "cushion"]
+        if not len(truth):
+            continue  # the ball stopped short of the rail
+        tr = truth.iloc[0]
+        moving = (det["sigma_mm"] > 0.6).to_numpy()
+        det.loc[moving, "x"] -= 4.5
+        det.loc[moving, "sigma_mm"] = 2.5
+        k = int(math.floor(tr["t"] * 60)) - 8
+        det.loc[det["frame"] == k, "sigma_mm"] = 0.9
+        right = det["frame"] == k + 1
+        det.loc[right, "x"] += 4.5 + 1.3
+        det.loc[right, "sigma_mm"] = 1.0
+        found = _only(find_events(track(det, TABLE), TABLE, det)[0], "cushion")
+        assert len(found) == 1
+        errs.append(abs(found.loc[0, "angle_in"] - tr["angle_in"]))
+    print("median |angle_in|", round(float(np.median(errs)), 2), "max", round(max(errs), 2))
+    assert len(errs) >= 8 and np.median(errs) < 2.0
+
+
 def _noise_of_one_ball(t, p, z, seen):
     """(white, at the fits' scale) noise sigma (mm) the event finder states for one ball whose
     true path is p (N, 2) mm at times t (s), read as z where seen (bool (N,))."""

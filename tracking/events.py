@@ -31,11 +31,13 @@ Method
    motion never runs across it, and a motion running into the gap ends in a pocket event or
    in none. A motion of a ball seen moving and never seen resting before it since it came
    onto the table (put down by hand, a track picked up mid-roll) has no start. The contacts
-   (below) are bounded and found on the fast stretches as before: their fits and the noise
-   estimate never reach into a slow tail. A stay on the table that never exceeds the move
-   speed but begins with the ball rolling (its first rest window's velocity beyond its noise)
-   and ends at rest is a motion too, when it begins during another ball's motion (a rack ball
-   nudged by a break and first seen parted from the rack) or within reach of where a track
+   (below) are found on the fast stretches as before, and their fits bounded by the motion's
+   ends (a fast stretch's end inside a motion is the smoothed speed dipping, not the ball
+   stopping); the noise estimate never reaches into a slow tail. A stay on the table that
+   never exceeds the move speed but begins with the ball rolling (its first rest window's
+   velocity beyond its noise) and ends at rest is a motion too, when it begins during
+   another ball's motion (a rack ball nudged by a break and first seen parted from the
+   rack) or within reach of where a track
    vanished rolling (a slow ball lost and found again under a new id; its motion then counts
    from the loss, so the shot runs on to its stop; ``_add_found_rolling``): it has a stop and
    no start; a ball put down by hand between shots gets neither. A ball a solved collision
@@ -62,7 +64,13 @@ Method
    four of the smoothed velocity's sign change, where they part most significantly, and the
    turn's rough time where their lines meet, since a smoother blurs a slow turn's sign change
    by frames), the most significant such turn within a leg's reach; its contact time is then
-   where the two sides' paths come nearest the line when neither fit reaches it. A ball last
+   where the two sides' paths come nearest the line when neither fit reaches it. Every rough
+   cushion contact, a fast one too, must show such a turn beyond ``turn_sigmas`` in its raw
+   legs bounded by the ball's neighbouring rough contacts, or have a leg too short to say
+   (``_Finder.reverses``, ``_real_turns``): a tracker that follows a few reads pulled toward
+   the rail swings its smoothed normal velocity through zero and back while the ball runs on
+   away from it, and the false contact's rough time would also cut the true one's departure
+   short. A ball last
    seen (then not for ``fit_window_s``: lifted or hidden) within reach of a rail's line and
    running into it faster than ``min_velocity_change_mm_s / 2`` touched that cushion; it is
    solved from its approach alone (``_Finder._arrival``: speed and angle out and restitution
@@ -1133,7 +1141,7 @@ def _motion(ball: _Ball, cfg: EventConfig, diameter_mm: float) -> None:
 
     Sets ``ball.moves`` (the motions), ``ball.firsts`` (each stay's first row), ``ball.fast``
     (the stretches above the rest speed, merged across dips shorter than ``min_rest_s``: the
-    contacts are found and their fits bounded on these, so a slow tail never enters them) and
+    contacts are found on these; their fits are bounded by the motions, ``find_events``) and
     ``ball.sigma, ball.sigma_fit`` (``_noise_sigma`` over the fast stretches; the rest test's
     scale is the larger of that and the noise off them, ``_still_sigma``).
     """
@@ -1490,11 +1498,17 @@ def find_events_and_rests(
         _motion(b, cfg, table.ball_diameter_mm)
     rough_cushions = {b.track: finder.rough_cushions(b) for b in balls}
     rough_collisions = finder.rough_collisions(balls)
+    rough_cushions = _real_turns(finder, balls, rough_cushions, rough_collisions)
     for b in balls:
         contacts = [tg for tg, _ in rough_cushions[b.track]] + [
             tg for tg, i, j in rough_collisions if b.track in (i, j)]
-        # A motion that begins or ends at a contact is bounded by the contact itself.
-        ends = [b.t[i] for move in b.fast for i in move]
+        # A motion that begins or ends at a contact is bounded by the contact itself. The
+        # motion's own ends bound the fits, not its fast stretches': within a motion a
+        # stretch ends only where the smoothed speed dips under the rest speed, which a few
+        # reads a few frames after a slow contact can make it do while the ball rolls on
+        # (uneven_60fps extra clip, ball 1 at 2.98 s: 30-39 mm/s smoothed, 83 true; the
+        # contact 0.11 s before had its departure cut to 5-6 samples).
+        ends = [b.t[i] for move in b.moves for i in move]
         ends = [m for m in ends if all(abs(m - c) > 3 * dt for c in contacts)]
         b.respots = _respots(b, table.ball_diameter_mm)
         b.marks = sorted(ends + contacts + b.respots)
@@ -1645,6 +1659,23 @@ def empty_rests() -> pd.DataFrame:
     """The stays-at-rest table with no rows: ``track`` (int64), ``t_begin, t_end`` (s)."""
     return pd.DataFrame({"track": pd.Series(dtype="int64"), "t_begin": pd.Series(dtype="float64"),
                          "t_end": pd.Series(dtype="float64")})
+
+
+def _real_turns(finder: "_Finder", balls: list[_Ball], rough_cushions: dict,
+                rough_collisions: list[tuple[float, int, int]]) -> dict:
+    """``rough_cushions`` (track -> [(s, rail)]) without the contacts whose raw path does
+    not turn away from the rail beyond its noise (``_Finder.reverses``), the legs bounded by
+    the ball's other rough contacts; a ball last seen at the rail (``_Finder._arrival``) has
+    no departure to test and is kept."""
+    out = {}
+    for b in balls:
+        found = rough_cushions[b.track]
+        others = [tg for tg, _ in found] + [tg for tg, i, j in rough_collisions
+                                            if b.track in (i, j)]
+        out[b.track] = [(tg, rail) for tg, rail in found
+                        if tg in finder.arrivals.get(b.track, ())
+                        or finder.reverses(b, tg, rail, [t for t in others if t != tg])]
+    return out
 
 
 def _velocity_change(b: _Ball, rows: np.ndarray) -> np.ndarray:
@@ -2418,7 +2449,9 @@ class _Finder:
                     straight: tuple[float, float] | None = None):
         """``_piecewise_fit`` of samples ts (n,) s, ps (n, 2) mm with gross outliers struck.
 
-        A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance; for
+        A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance
+        times the sample's weight, so in units of its own stated noise where the detections
+        state one; for
         Gaussian noise a chance of exp(-s^2 / 2), 4e-6 at 5; the noise ``sigma`` or the
         residuals' robust scatter, whichever is larger) is not this ball's centre (a detection
         pulled by the cushion's shadow or a hand next to the ball, which the detector need not
@@ -2436,6 +2469,14 @@ class _Finder:
                     or len(ts) <= self.cfg.quadratic_min_samples:
                 return f, ts, ps, weight, struck
             res = np.hypot(*(ps - np.array([f.pos(t) for t in ts])).T)
+            if weight is not None:
+                # In units of each read's own stated noise, as the weighted fit holds it: a read
+                # the detector trusts more than its neighbours pulls the fit toward itself, so
+                # its plain residual stays small however far it lies from the path they trace
+                # (uneven_60fps ball 1, 2.75 s: one read weighed 2.5 among reads weighed
+                # 0.6-1.0 lay 5-8 mm from them along the rail and turned the approach of its
+                # slow contact 29 degrees, speed_in 30 % high).
+                res = res * weight
             j = int(np.argmax(res))
             # The median 2-D residual of Gaussian noise is sigma sqrt(2 ln 2) = 1.177 sigma,
             # and one outlier hardly moves it.
@@ -2696,27 +2737,68 @@ class _Finder:
         within the interval between rows k - 1 and k (its ends where the lines meet beyond).
         """
         cfg = self.cfg
-        slopes, var, lines = [], 0.0, []
         rows = np.arange(len(b.t))
-        for z in (-1, 1):
-            if z < 0:
-                ok = (b.t > b.t[k] - cfg.fit_window_s) & (rows >= i0) & (rows < k)
-            else:
-                ok = (b.t < b.t[k] + cfg.fit_window_s) & (rows >= k) & (rows <= i1)
-            leg = self._leg_line(b, ok, ax, sign)
-            if leg is None:
-                return 0.0, float(b.t[k])
-            slope, var_slope, t_mean, y_mean = leg
-            slopes.append(slope)
-            lines.append((t_mean, y_mean))
-            var += var_slope
-        s_a, s_d = slopes
-        if not (s_a < 0.0 < s_d) or k < 1:
+        ok_a = (b.t > b.t[k] - cfg.fit_window_s) & (rows >= i0) & (rows < k)
+        ok_d = (b.t < b.t[k] + cfg.fit_window_s) & (rows >= k) & (rows <= i1)
+        z, lines = self._legs_turn(b, ok_a, ok_d, ax, sign)
+        if lines is None or z <= 0.0 or k < 1:
             return 0.0, float(b.t[k])
-        (ta, ya), (td, yd) = lines
+        (ta, ya, s_a), (td, yd, s_d) = lines
         # y_a + s_a (t - t_a) = y_d + s_d (t - t_d)
         t_apex = (yd - ya + s_a * ta - s_d * td) / (s_a - s_d)
-        return (s_d - s_a) / math.sqrt(var), float(np.clip(t_apex, b.t[k - 1], b.t[k]))
+        return z, float(np.clip(t_apex, b.t[k - 1], b.t[k]))
+
+    def _legs_turn(self, b: _Ball, ok_a: np.ndarray, ok_d: np.ndarray, ax: int, sign: float):
+        """(z, legs): the turn away from a rail between the approach leg (rows where ``ok_a``)
+        and the departure leg (``ok_d``), each a straight line of the raw normal coordinate
+        (``_leg_line``), as ``(s_d - s_a) / sqrt(se_a^2 + se_d^2)`` (the two-sample test of
+        equal slopes), 0 when a leg heads the wrong way (the approach away from the rail or the
+        departure into it); legs ``((t_mean, y_mean, slope) approach, (...) departure)``, or
+        None (and z 0) when a leg has fewer than three samples."""
+        legs, var = [], 0.0
+        for ok in (ok_a, ok_d):
+            leg = self._leg_line(b, ok, ax, sign)
+            if leg is None:
+                return 0.0, None
+            slope, var_slope, t_mean, y_mean = leg
+            legs.append((t_mean, y_mean, slope))
+            var += var_slope
+        s_a, s_d = legs[0][2], legs[1][2]
+        return ((s_d - s_a) / math.sqrt(var) if s_a < 0.0 < s_d else 0.0), legs
+
+    def reverses(self, b: _Ball, tg: float, rail: str, others: list[float]) -> bool:
+        """Whether the raw path of ``b`` turns away from ``rail`` at the rough contact time
+        ``tg`` (s) beyond its noise: legs (``_legs_turn``) of the raw samples within
+        ``fit_window_s`` before and after ``tg``, each bounded by the ball's neighbouring rough
+        contacts ``others`` (s) and its motion, must part by more than ``turn_sigmas``
+        standard errors, or a leg have fewer than ``quadratic_min_samples`` samples: a contact
+        a frame or two after a strike or a collision keeps what the smoothed velocity found
+        (its approach line runs back to the rest before the strike, 30 fps struck-near shots
+        of ``tests/test_events.py``).
+
+        A smoothed velocity that reverses near a rail is no contact when the raw samples
+        between the neighbouring contacts do not turn: a tracker that follows a few reads
+        pulled millimetres toward the rail (a ball's own shadow on the cushion, a read jumping
+        by 9 mm for 4 frames) swings its velocity through zero and back while the ball runs on
+        away from the rail (``benchmarks/analyse_accuracy.py --extra`` uneven_60fps on better
+        detections: a false contact 0.14 s after a true slow one, ``restitution`` 1.31)."""
+        ax = 1 if rail in ("bottom", "top") else 0
+        sign = float(rail_inward_normal(rail)[ax])
+        guard = 1.5 * self.dt
+        lo = max([t for t in others if t < tg - guard], default=-math.inf)
+        hi = min([t for t in others if t > tg + guard], default=math.inf)
+        i = int(np.clip(np.searchsorted(b.t, tg), 0, len(b.t) - 1))
+        move = next(((i0, i1) for i0, i1 in b.moves if i0 <= i <= i1), (0, len(b.t) - 1))
+        inside = (b.t >= b.t[move[0]]) & (b.t <= b.t[move[1]])
+        w = self.cfg.fit_window_s
+        ok_a = inside & (b.t > max(lo, tg - w)) & (b.t < tg)
+        ok_d = inside & (b.t > tg) & (b.t < min(hi, tg + w))
+        n_min = self.cfg.quadratic_min_samples
+        seen = np.isfinite(b.raw[:, 0])
+        if min(int(np.sum(ok_a & seen)), int(np.sum(ok_d & seen))) < n_min:
+            return True
+        z, legs = self._legs_turn(b, ok_a, ok_d, ax, sign)
+        return legs is None or z > self.cfg.turn_sigmas
 
     def cushion(self, b: _Ball, rail: str, tg: float, apex_only: bool = False):
         """A cushion event solved from both sides' fits, or None (no fit, or a jaw contact).
