@@ -1226,6 +1226,40 @@ def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_nei
     assert det._neither_ring_nor_rim(cue, bare), name
 
 
+def test_two_balls_apart_are_not_held_apart_and_a_hands_two_ends_are(resting):
+    # _held_apart: two balls whose centres lie 2.5 R apart (not touching) have cloth between
+    # them (analytic: the gap is half a radius wide), while the two rounded ends of a
+    # hand-shaped bar a ball wide (the renderer's Occluder skin colour) fitted as balls at the
+    # same centres have the bar's full width between them (analytic: 1 ball >= _JOIN_WIDTH).
+    import cv2
+
+    from vision.detect import ballness
+
+    name, s, _ = resting
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
+    empty = ren.render(AT[None], _rot(len(BALLS)), np.zeros((1, len(BALLS)), bool), np.array([0.0]))
+    det = BallDetector(cam, NINE_FOOT)
+    det.process(0, 0.0, empty)
+    xy = np.array([[1500.0, 600.0], [1500.0 + 2.5 * R, 600.0]])
+    uv = cam.project(np.column_stack([xy, np.full(2, R)]))
+    rows = [{"x": p[0], "y": p[1], "u": q[0], "v": q[1], "blur_x": 0.0, "blur_y": 0.0} for p, q in zip(xy, uv)]
+    r_px = det.ball_px / 2
+    skin = Occluder(()).skin_bgr
+    pieces = []
+    for join in (False, True):
+        img = empty.copy()
+        for q in uv:
+            cv2.circle(img, tuple(int(round(c)) for c in q), int(round(r_px)), skin, -1)
+        if join:
+            cv2.line(img, tuple(int(round(c)) for c in uv[0]), tuple(int(round(c)) for c in uv[1]), skin, int(round(2 * r_px)))
+        u0, v0 = int(uv[:, 0].min() - 3 * r_px), int(uv[:, 1].min() - 3 * r_px)
+        u1, v1 = int(uv[:, 0].max() + 3 * r_px), int(uv[:, 1].max() + 3 * r_px)
+        comp = (ballness(img[v0:v1, u0:u1], det.background.image[v0:v1, u0:u1]) > det._score_thr).astype(np.uint8)
+        pieces.append(det._held_apart(comp, (u0, v0), rows[0], rows[1], []))
+    assert pieces == [False, True], (name, pieces)
+
+
 @pytest.mark.parametrize("side", ["above", "at the arm's end"])
 def test_ball_just_clear_of_an_arm_is_found(side):
     # A ball a pixel or two clear of an arm that comes in over the rail (a skin-coloured bar

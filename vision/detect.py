@@ -2634,7 +2634,8 @@ class BallDetector:
         ``origin`` px; ``mask`` their outlines filled in its frame) that do not touch (centres
         more than 2.25 R apart, table frame: a gap of a quarter radius, well beyond the fits'
         errors) are joined by foreground all along the line between their centres' images,
-        outside both outlines (grown by a pixel). Spheres that do not touch meet only through
+        outside both outlines (grown by a pixel), or held apart by something a ball wide
+        (:meth:`_held_apart`). Spheres that do not touch meet only through
         something else lying between them: the two ends of a hand or of a forearm fitted as
         two balls, whose middle the outlines leave less than a ball's area of. Two fitted
         spheres that overlap (centres 1.2 to 2 R apart: nearer, they are one ball fitted twice,
@@ -2666,6 +2667,8 @@ class BallDetector:
                     # the foreground between them is the chain's balls' and the creases
                     # between those.
                     continue
+                if self._held_apart(comp, origin, a, b, [r for r in rows if r is not a and r is not b] + list(shadows)):
+                    return True
                 p, q = np.array([a["u"], a["v"]]) - origin, np.array([b["u"], b["v"]]) - origin
                 n = int(math.ceil(2 * math.hypot(*(q - p)))) + 1
                 t = np.linspace(0.0, 1.0, n)[:, None]
@@ -2676,6 +2679,18 @@ class BallDetector:
                 if gap.any() and np.all(comp[uv[gap, 1], uv[gap, 0]] > 0):
                     return True
         return False
+
+    def _held_apart(self, comp: np.ndarray, origin, a: dict, b: dict, others: list[dict]) -> bool:
+        """Whether two fitted balls ``a`` and ``b`` of a free piece (``comp`` at ``origin`` px)
+        that do not touch are held apart by something as wide as a ball between them: the piece
+        is at least ``_JOIN_WIDTH`` of a ball's image wide across the line between their
+        centres' images at its middle (:meth:`_join_width`). Between two balls that do not touch
+        lies the cloth, or their shadows (which only dim it); the two rounded ends of a bridge
+        hand fitted as two balls a few mm more than a diameter apart have the hand's middle
+        there, whose foreground the outer gap test of :meth:`_bridged` misses when the two
+        outlines, grown by a pixel, close the line between the centres (rendered extra clip
+        dim_540p_60fps frame 214: centres 2.49 R apart, a gap of one or two pixels at 540p)."""
+        return self._join_width(comp, origin, a, b, others) >= _JOIN_WIDTH
 
     def _join_width(self, comp: np.ndarray, origin, a: dict, b: dict, others: list[dict]) -> float:
         """Width of the piece ``comp`` ((h, w) uint8 at ``origin`` px), less the silhouettes of
