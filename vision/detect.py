@@ -2667,8 +2667,6 @@ class BallDetector:
                     # the foreground between them is the chain's balls' and the creases
                     # between those.
                     continue
-                if self._held_apart(comp, origin, a, b, [r for r in rows if r is not a and r is not b] + list(shadows)):
-                    return True
                 p, q = np.array([a["u"], a["v"]]) - origin, np.array([b["u"], b["v"]]) - origin
                 n = int(math.ceil(2 * math.hypot(*(q - p)))) + 1
                 t = np.linspace(0.0, 1.0, n)[:, None]
@@ -2677,6 +2675,8 @@ class BallDetector:
                 uv = uv[ok]
                 gap = grown[uv[:, 1], uv[:, 0]] == 0
                 if gap.any() and np.all(comp[uv[gap, 1], uv[gap, 0]] > 0):
+                    return True
+                if self._held_apart(comp, origin, a, b, [r for r in rows if r is not a and r is not b] + list(shadows)):
                     return True
         return False
 
