@@ -3488,7 +3488,10 @@ class BallDetector:
         (rendered extra clip tele_120fps frame 43: ring 0.59, rim 0.48, outline rms under
         :data:`_JOINED_RMS_MM`). Measured on every sharp fit of tele_120fps (frames 0-199),
         dim_540p_60fps (0-299) and uneven_60fps (all): none within a ball radius of a true
-        ball fails both (those have ring 0.77 or more), 131 fits on cues, arms and hands do."""
+        ball fails both (those have ring 0.77 or more), 131 fits on cues, arms and hands do. On
+        lamp_50fps (low lamp, long shadows) it drops two fits 23-26 mm off the moving cue ball,
+        on its shadow side (frames 145 and 164: ring 0.56, rim 0.54-0.58): at 145 a fit 0.4 mm
+        off takes its place, at 164 the ball goes unseen for that frame."""
         return self._ring_share(img, uv) < _ISOLATED_SHARE and self._rim_share(img, uv) < _ISOLATED_SHARE
 
     def _rim_share(self, img: np.ndarray, uv: np.ndarray) -> float:
