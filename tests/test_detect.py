@@ -1241,6 +1241,70 @@ def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting):
     assert det._rim_share(arm, bare) == 0.0, name
 
 
+def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_neither(resting):
+    # A free fit is joined to something whatever its outline's rms (_neither_ring_nor_rim) when
+    # it fails both halves of the occluder test. A rendered ball standing alone, and the same
+    # ball with a sleeve-coloured bar (the renderer's Occluder sleeve) laid against it, keep
+    # their rim step all round (a ball's silhouette steps to whatever lies outside it); a circle
+    # a ball wide centred on a cue-coloured bar 0.7 of a ball wide running on past the ring
+    # on both sides has its ring crossed twice (2 x 0.7 D over 2 pi 1.4 R: 32 % covered,
+    # analytic) and the same colour either side of its outline everywhere (analytic).
+    import cv2
+
+    name, s, _ = resting
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
+    frame = ren.render(AT[None], _rot(len(BALLS)), np.ones((1, len(BALLS)), bool), np.array([0.0]))
+    det = BallDetector(cam, NINE_FOOT)
+    det.process(0, 0.0, frame)
+    r_px = det.ball_px / 2
+    ball = cam.project(np.array([[AT[0, 0], AT[0, 1], R]]))[0]
+    assert not det._neither_ring_nor_rim(frame, ball), name
+    arm = frame.copy()
+    x0 = int(round(ball[0] + r_px + 1))
+    cv2.rectangle(arm, (x0, int(ball[1] - 3 * r_px)), (x0 + int(4 * r_px), int(ball[1] + 3 * r_px)), Occluder(()).sleeve_bgr, -1)
+    assert not det._neither_ring_nor_rim(arm, ball), name
+    bare = cam.project(np.array([[1600.0, 600.0, R]]))[0]
+    cue = frame.copy()
+    ends = [(int(round(bare[0] + k * 5 * r_px)), int(round(bare[1]))) for k in (-1, 1)]
+    cv2.line(cue, ends[0], ends[1], (40, 60, 90), int(round(1.4 * r_px)))
+    assert det._neither_ring_nor_rim(cue, bare), name
+
+
+def test_two_balls_apart_are_not_held_apart_and_a_hands_two_ends_are(resting):
+    # _held_apart: two balls whose centres lie 2.5 R apart (not touching) have cloth between
+    # them (analytic: the gap is half a radius wide), while the two rounded ends of a
+    # hand-shaped bar a ball wide (the renderer's Occluder skin colour) fitted as balls at the
+    # same centres have the bar's full width between them (analytic: 1 ball >= _JOIN_WIDTH).
+    import cv2
+
+    from vision.detect import ballness
+
+    name, s, _ = resting
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
+    empty = ren.render(AT[None], _rot(len(BALLS)), np.zeros((1, len(BALLS)), bool), np.array([0.0]))
+    det = BallDetector(cam, NINE_FOOT)
+    det.process(0, 0.0, empty)
+    xy = np.array([[1500.0, 600.0], [1500.0 + 2.5 * R, 600.0]])
+    uv = cam.project(np.column_stack([xy, np.full(2, R)]))
+    rows = [{"x": p[0], "y": p[1], "u": q[0], "v": q[1], "blur_x": 0.0, "blur_y": 0.0} for p, q in zip(xy, uv)]
+    r_px = det.ball_px / 2
+    skin = Occluder(()).skin_bgr
+    pieces = []
+    for join in (False, True):
+        img = empty.copy()
+        for q in uv:
+            cv2.circle(img, tuple(int(round(c)) for c in q), int(round(r_px)), skin, -1)
+        if join:
+            cv2.line(img, tuple(int(round(c)) for c in uv[0]), tuple(int(round(c)) for c in uv[1]), skin, int(round(2 * r_px)))
+        u0, v0 = int(uv[:, 0].min() - 3 * r_px), int(uv[:, 1].min() - 3 * r_px)
+        u1, v1 = int(uv[:, 0].max() + 3 * r_px), int(uv[:, 1].max() + 3 * r_px)
+        comp = (ballness(img[v0:v1, u0:u1], det.background.image[v0:v1, u0:u1]) > det._score_thr).astype(np.uint8)
+        pieces.append(det._held_apart(comp, (u0, v0), rows[0], rows[1], []))
+    assert pieces == [False, True], (name, pieces)
+
+
 @pytest.mark.parametrize("side", ["above", "at the arm's end"])
 def test_ball_just_clear_of_an_arm_is_found(side):
     # A ball a pixel or two clear of an arm that comes in over the rail (a skin-coloured bar
@@ -2005,6 +2069,42 @@ def test_racked_balls_are_placed_within_the_resting_p95(racks, name):
     det, at = racks(name)
     err, _ = _match(det, at)
     assert np.median(err) <= 2.5, (name, err)
+
+
+def test_a_racks_balls_step_at_their_rims_and_circles_along_a_sleeve_do_not():
+    # The touching-cluster explanation of a free piece must be of balls (_cluster_rims): each
+    # rendered racked ball's silhouette steps from the ball to the cloth or to its neighbour's
+    # darkened limb (a lit sphere's shading falls toward its contour: Lambert's cosine law,
+    # common practice), so the median rim share over the rack's true centres is near 1; three
+    # touching circles laid along a sleeve-coloured bar 1.6 balls wide (the renderer's
+    # Occluder sleeve colour) have the same colour either side of every outline point (analytic),
+    # as circles fitted into the player's sleeve and hand of the rendered extra clip lamp_50fps
+    # had (rim shares 0.19-0.58 there).
+    import cv2
+
+    from vision.render import pool_balls
+
+    name = "triangle15 electric cloth"
+    s = RACKS[name]
+    cam, at = s["camera"], s["at"]
+    n = len(at)
+    ren = Renderer(NINE_FOOT, cam, s["look"], pool_balls()[s["balls"]], seed=5)
+    det = BallDetector(cam, NINE_FOOT)
+    empty = ren.render(at[None], _rot(n), np.zeros((1, n), bool), np.array([0.0]))
+    det.process(0, 0.0, empty)
+    frame = ren.render(at[None], _rot(n), np.ones((1, n), bool), np.array([0.0]))
+    uv = cam.project(np.column_stack([at, np.full(n, R)]))
+    rows = [{"u": p[0], "v": p[1], "blur_x": 0.0, "blur_y": 0.0} for p in uv]
+    assert det._cluster_rims(frame, rows), name
+    # The bar and its circles on the empty table, clear of the rack (mid-table, toward the foot).
+    chain = np.array([[800.0 + 2 * R * k, 700.0, R] for k in range(3)])
+    cuv = cam.project(chain)
+    r_px = det.ball_px / 2
+    sleeve = empty.copy()
+    p0, p1 = cuv[0] - np.array([3 * r_px, 0.0]), cuv[-1] + np.array([3 * r_px, 0.0])
+    cv2.line(sleeve, tuple(int(round(c)) for c in p0), tuple(int(round(c)) for c in p1), Occluder(()).sleeve_bgr, int(round(3.2 * r_px)))
+    circles = [{"u": p[0], "v": p[1], "blur_x": 0.0, "blur_y": 0.0} for p in cuv]
+    assert not det._cluster_rims(sleeve, circles), name
 
 
 @pytest.fixture(scope="module")

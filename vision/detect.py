@@ -2443,7 +2443,7 @@ class BallDetector:
             self._fit_remainder(img, new, got, cluster=True)
             self._fill_rooms(img, comp, origin, new, got)
             found = [r for r in got if r is not None]
-            if found and self._explained(img, comp, origin, found, cluster=True)[0]:
+            if found and self._explained(img, comp, origin, found, cluster=True)[0] and self._cluster_rims(img, found):
                 # The balls of an explained cluster have their rings crossed by their
                 # neighbours, not by something joined to them (_joined_no_rim).
                 for q in new:
@@ -2697,7 +2697,8 @@ class BallDetector:
         ``origin`` px; ``mask`` their outlines filled in its frame) that do not touch (centres
         more than 2.25 R apart, table frame: a gap of a quarter radius, well beyond the fits'
         errors) are joined by foreground all along the line between their centres' images,
-        outside both outlines (grown by a pixel). Spheres that do not touch meet only through
+        outside both outlines (grown by a pixel), or held apart by something a ball wide
+        (:meth:`_held_apart`). Spheres that do not touch meet only through
         something else lying between them: the two ends of a hand or of a forearm fitted as
         two balls, whose middle the outlines leave less than a ball's area of. Two fitted
         spheres that overlap (centres 1.2 to 2 R apart: nearer, they are one ball fitted twice,
@@ -2738,7 +2739,21 @@ class BallDetector:
                 gap = grown[uv[:, 1], uv[:, 0]] == 0
                 if gap.any() and np.all(comp[uv[gap, 1], uv[gap, 0]] > 0):
                     return True
+                if self._held_apart(comp, origin, a, b, [r for r in rows if r is not a and r is not b] + list(shadows)):
+                    return True
         return False
+
+    def _held_apart(self, comp: np.ndarray, origin, a: dict, b: dict, others: list[dict]) -> bool:
+        """Whether two fitted balls ``a`` and ``b`` of a free piece (``comp`` at ``origin`` px)
+        that do not touch are held apart by something as wide as a ball between them: the piece
+        is at least ``_JOIN_WIDTH`` of a ball's image wide across the line between their
+        centres' images at its middle (:meth:`_join_width`). Between two balls that do not touch
+        lies the cloth, or their shadows (which only dim it); the two rounded ends of a bridge
+        hand fitted as two balls a few mm more than a diameter apart have the hand's middle
+        there, whose foreground the outer gap test of :meth:`_bridged` misses when the two
+        outlines, grown by a pixel, close the line between the centres (rendered extra clip
+        dim_540p_60fps frame 214: centres 2.49 R apart, a gap of one or two pixels at 540p)."""
+        return self._join_width(comp, origin, a, b, others) >= _JOIN_WIDTH
 
     def _join_width(self, comp: np.ndarray, origin, a: dict, b: dict, others: list[dict]) -> float:
         """Width of the piece ``comp`` ((h, w) uint8 at ``origin`` px), less the silhouettes of
@@ -3375,7 +3390,8 @@ class BallDetector:
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         # Marked, not refused: the fit stands while the box's pieces are explained (a fit
         # straddling two colliding balls seeds the search that finds both, and is dropped then).
-        joined = not capsule and not seed["strict"] and not seed.get("cluster") and rms > _JOINED_RMS_MM and self._joined_no_rim(img, uv)
+        joined = not capsule and not seed["strict"] and not seed.get("cluster") and (
+            rms > _JOINED_RMS_MM and self._joined_no_rim(img, uv) or self._neither_ring_nor_rim(img, uv))
         return {
             "frame": 0,
             "t": 0.0,
@@ -3525,6 +3541,23 @@ class BallDetector:
         rim = self._rim_share(img, uv)
         return rim < _ISOLATED_SHARE or (ring < _ISOLATED_SHARE and rim < _COVERED_RIM)
 
+    def _neither_ring_nor_rim(self, img: np.ndarray, uv: np.ndarray) -> bool:
+        """Whether a free ball's fit round ``uv`` (px), however well its outline fits, fails
+        both halves of :meth:`_isolated`: its ring (:meth:`_ring_share`) is covered beyond what
+        a whole ball touching a straight edge allows, and its outline steps from ball to
+        surround (:meth:`_rim_share`) over less than the same share. A ball touching something
+        keeps its rim step all round, and a moving ball whose soft rim fails the rim bound has
+        a free ring; a circle fitted to a short piece of a stroking cue that the empty-table
+        model holds a few mm away (its shaft-to-butt step) fails both with a tight outline
+        (rendered extra clip tele_120fps frame 43: ring 0.59, rim 0.48, outline rms under
+        :data:`_JOINED_RMS_MM`). Measured on every sharp fit of tele_120fps (frames 0-199),
+        dim_540p_60fps (0-299) and uneven_60fps (all): none within a ball radius of a true
+        ball fails both (those have ring 0.77 or more), 131 fits on cues, arms and hands do. On
+        lamp_50fps (low lamp, long shadows) it drops two fits 23-26 mm off the moving cue ball,
+        on its shadow side (frames 145 and 164: ring 0.56, rim 0.54-0.58): at 145 a fit 0.4 mm
+        off takes its place, at 164 the ball goes unseen for that frame."""
+        return self._ring_share(img, uv) < _ISOLATED_SHARE and self._rim_share(img, uv) < _ISOLATED_SHARE
+
     def _rim_share(self, img: np.ndarray, uv: np.ndarray) -> float:
         """Share of the 48 rays of the outline of the ball whose centre's image is ``uv`` (px)
         along which the frame steps at the outline from a ball to what lies outside it: the
@@ -3609,6 +3642,23 @@ class BallDetector:
         g = self._fg_samples(img, pts[..., 0].astype(np.float32), pts[..., 1].astype(np.float32))
         width = np.array([_run_through(row, len(t) // 2, 4) for row in g]) * 0.25 / (2 * r)
         return float(width[:5].max()), width[5:]
+
+    def _cluster_rims(self, img: np.ndarray, rows: list[dict]) -> bool:
+        """Whether the balls fitted as a touching cluster (``rows``, :meth:`_cluster_retry`)
+        are balls by their rims: the median over the sharp ones of :meth:`_rim_share` is at
+        least ``_ISOLATED_SHARE``. Every ball of a rack steps from ball to what lies outside
+        its outline nearly all round, against the cloth and against its neighbours alike (a
+        lit sphere's limb darkens toward its contour; Lambert's cosine law, common practice);
+        circles fitted inside a sleeve, a hand or a cue, which run on past the outline in the
+        same colour, do not (tests/test_detect.py's racks: 0.77-1.0, median 1.0; rendered
+        extra clip lamp_50fps frames 18-44, a bridge hand, sleeve and cue explained as a
+        cluster of 5-6 balls: 0.19-0.52). The median keeps a rack whose one ball of the
+        cloth's hue steps weakly."""
+        sharp = [r for r in rows if not (r["blur_x"] or r["blur_y"])]
+        if not sharp:
+            return True
+        rims = [self._rim_share(img, np.array([r["u"], r["v"]])) for r in sharp]
+        return float(np.median(rims)) >= _ISOLATED_SHARE
 
     def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
         """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background."""
