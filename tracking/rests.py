@@ -53,21 +53,33 @@ def weighted_geometric_median(points: np.ndarray, weights: np.ndarray) -> np.nda
     return est
 
 
-def _read_sigmas(rows: pd.DataFrame, detections: pd.DataFrame | None) -> np.ndarray:
+def _by_frame(detections: pd.DataFrame | None) -> tuple[np.ndarray, ...] | None:
+    """``detections``' ``frame, x, y, sigma_mm`` as arrays sorted by frame (a stable sort, so
+    each frame keeps its rows' order), for :func:`_read_sigmas`; None without ``sigma_mm``."""
+    if detections is None or "sigma_mm" not in detections.columns:
+        return None
+    order = np.argsort(detections["frame"].to_numpy(), kind="stable")
+    return tuple(detections[c].to_numpy()[order] for c in ("frame", "x", "y", "sigma_mm"))
+
+
+def _read_sigmas(rows: pd.DataFrame, by_frame: tuple[np.ndarray, ...] | None) -> np.ndarray:
     """The detector's ``sigma_mm`` (n,) of each seen row's read (``x_meas, y_meas``) of
-    ``rows``, found in ``detections`` by frame and position; 1 where there is none to find."""
+    ``rows``: the nearest detection of its frame in ``by_frame`` (:func:`_by_frame`; the first
+    of equally near ones), taken when it lies on the read; 1 where there is none to find."""
     sig = np.ones(len(rows))
-    if detections is None or "sigma_mm" not in detections.columns or not len(rows):
+    if by_frame is None or not len(rows):
         return sig
-    det = detections[detections["frame"].isin(rows["frame"])]
-    by_frame = {f: g for f, g in det.groupby("frame")}
-    for i, (f, x, y) in enumerate(zip(rows["frame"], rows["x_meas"], rows["y_meas"])):
-        g = by_frame.get(f)
-        if g is None:
-            continue
-        d = np.hypot(g["x"].to_numpy(float) - x, g["y"].to_numpy(float) - y)
+    frame, dx, dy, ds = by_frame
+    rf = rows["frame"].to_numpy()
+    lo = np.searchsorted(frame, rf, side="left")
+    hi = np.searchsorted(frame, rf, side="right")
+    rx = rows["x_meas"].to_numpy(float)
+    ry = rows["y_meas"].to_numpy(float)
+    for i in np.flatnonzero(hi > lo):
+        a, b = lo[i], hi[i]
+        d = np.hypot(dx[a:b].astype(float) - rx[i], dy[a:b].astype(float) - ry[i])
         j = int(np.argmin(d))
-        s = float(g["sigma_mm"].iloc[j])
+        s = float(ds[a + j])
         if d[j] < 1e-3 and np.isfinite(s) and s > 0:
             sig[i] = s
     return sig
@@ -82,6 +94,7 @@ def hold_rests(tracks: pd.DataFrame, rests: pd.DataFrame,
     out = tracks.copy()
     if not len(rests) or not {"x_meas", "y_meas"} <= set(tracks.columns):
         return out
+    by_frame = _by_frame(detections)
     tid = out["track"].to_numpy()
     t = out["t"].to_numpy(float)
     for r in rests.itertuples(index=False):
@@ -91,7 +104,7 @@ def hold_rests(tracks: pd.DataFrame, rests: pd.DataFrame,
         if seen.sum() < MIN_READS:
             continue
         reads = rows[seen]
-        sig = _read_sigmas(reads, detections)
+        sig = _read_sigmas(reads, by_frame)
         spot = weighted_geometric_median(reads[["x_meas", "y_meas"]].to_numpy(float), 1.0 / sig**2)
         cols = [out.columns.get_loc(c) for c in ("x", "y", "vx", "vy")]
         out.iloc[idx, cols[0]] = spot[0]
