@@ -1216,6 +1216,20 @@ def test_bridge_hand_is_not_taken_for_two_balls():
     assert sum(missed) == 0, missed
 
 
+def _seen_once(resting, shown: bool):
+    """(scene name, camera, frame, detector) for the ``resting`` scene: its balls at ``AT``
+    rendered (seed 3), or the empty table where not ``shown``, and a detector that has
+    processed that one frame."""
+    name, s, _ = resting
+    cam = s["camera"]
+    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
+    vis = np.full((1, len(BALLS)), shown, dtype=bool)
+    frame = ren.render(AT[None], _rot(len(BALLS)), vis, np.array([0.0]))
+    det = BallDetector(cam, NINE_FOOT)
+    det.process(0, 0.0, frame)
+    return name, cam, frame, det
+
+
 def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting):
     # A sphere's silhouette steps from the ball to the cloth (or its own shadow) all round, so
     # the occluder test's rim share of each rendered ball standing alone is near 1; a sphere's
@@ -1223,12 +1237,7 @@ def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting):
     # anywhere (analytic: the colour is the same either side of it).
     import cv2
 
-    name, s, _ = resting
-    cam = s["camera"]
-    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
-    frame = ren.render(AT[None], _rot(len(BALLS)), np.ones((1, len(BALLS)), bool), np.array([0.0]))
-    det = BallDetector(cam, NINE_FOOT)
-    det.process(0, 0.0, frame)
+    name, cam, frame, det = _seen_once(resting, True)
     alone = AT[:4]  # balls 5 and 13 touch each other
     uv = cam.project(np.column_stack([alone, np.full(len(alone), R)]))
     shares = [det._rim_share(frame, p) for p in uv]
@@ -1251,12 +1260,7 @@ def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_nei
     # analytic) and the same colour either side of its outline everywhere (analytic).
     import cv2
 
-    name, s, _ = resting
-    cam = s["camera"]
-    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
-    frame = ren.render(AT[None], _rot(len(BALLS)), np.ones((1, len(BALLS)), bool), np.array([0.0]))
-    det = BallDetector(cam, NINE_FOOT)
-    det.process(0, 0.0, frame)
+    name, cam, frame, det = _seen_once(resting, True)
     r_px = det.ball_px / 2
     ball = cam.project(np.array([[AT[0, 0], AT[0, 1], R]]))[0]
     assert not det._neither_ring_nor_rim(frame, ball), name
@@ -1280,12 +1284,7 @@ def test_two_balls_apart_are_not_held_apart_and_a_hands_two_ends_are(resting):
 
     from vision.detect import ballness
 
-    name, s, _ = resting
-    cam = s["camera"]
-    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
-    empty = ren.render(AT[None], _rot(len(BALLS)), np.zeros((1, len(BALLS)), bool), np.array([0.0]))
-    det = BallDetector(cam, NINE_FOOT)
-    det.process(0, 0.0, empty)
+    name, cam, empty, det = _seen_once(resting, False)
     xy = np.array([[1500.0, 600.0], [1500.0 + 2.5 * R, 600.0]])
     uv = cam.project(np.column_stack([xy, np.full(2, R)]))
     rows = [{"x": p[0], "y": p[1], "u": q[0], "v": q[1], "blur_x": 0.0, "blur_y": 0.0} for p, q in zip(xy, uv)]

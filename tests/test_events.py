@@ -1480,6 +1480,28 @@ def test_reads_pulled_toward_the_rail_after_a_contact_make_no_second_contact():
 
 
 
+def _slow_square_bank(rng, moving_sigma_mm: float):
+    """One slow near-square bank off the top cushion: the cue ball struck with roll at 0.26-0.33
+    m/s normal speed, at most 10 degrees off square, from a random spot (simulated by
+    ``analysis.physics``: Alciatore 2004 cloth, Mathavan, Jackson & Parkin 2010 impacts), read at
+    60 fps with 0.5 mm noise at rest and ``moving_sigma_mm`` moving. Returns (detections, the
+    simulator's first cushion contact, or None where the ball stopped short of the rail)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections, truth_events
+
+    vn, ang = rng.uniform(260.0, 330.0), rng.uniform(-10.0, 10.0)
+    sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(800.0, 2000.0), 1050.0)})
+    sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
+                           math.radians(90.0 + ang), 0.0, 0.4))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    det = detections(traj, 3.5, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=moving_sigma_mm,
+                     drop=0.0)
+    truth = truth_events(TABLE, traj, 3.5)
+    truth = truth[truth["kind"] == "cushion"]
+    return det, (truth.iloc[0] if len(truth) else None)
+
+
 def test_a_dip_of_the_tracked_speed_after_a_slow_contact_does_not_cut_its_departure():
     # Slow near-square banks off the top cushion (0.26-0.33 m/s struck with roll, 10 degrees
     # off square at most), simulated by ``analysis.physics`` (Alciatore 2004 cloth, Mathavan,
@@ -1491,21 +1513,10 @@ def test_a_dip_of_the_tracked_speed_after_a_slow_contact_does_not_cut_its_depart
     # draws reach 3.2 % and 0.033 in the median without the dip). Measured: median |speed_out|
     # error 3.2 %, |restitution| 0.033 (0.032 and 0.034 without the dip); before: 20 % and
     # 0.205 (the dip ended the ball's fast stretch, and that end bounded the departure fit).
-    from analysis.physics import PhysicsParams, Simulator, Strike
-    from benchmarks.event_accuracy import detections, truth_events
-
     errs = []
     for seed in range(12):
-        rng = np.random.default_rng(400 + seed)
-        vn, ang = rng.uniform(260.0, 330.0), rng.uniform(-10.0, 10.0)
-        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(800.0, 2000.0), 1050.0)})
-        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
-                               math.radians(90.0 + ang), 0.0, 0.4))
-        sim.run_until_rest()
-        traj = sim.trajectory()
-        det = detections(traj, 3.5, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=1.0, drop=0.0)
-        truth = truth_events(TABLE, traj, 3.5)
-        tr = truth[truth["kind"] == "cushion"].iloc[0]
+        det, tr = _slow_square_bank(np.random.default_rng(400 + seed), 1.0)
+        assert tr is not None
         tracks = track(det, TABLE)
         k0 = int(math.ceil(tr["t"] * 60)) + 6
         dip = tracks["frame"].isin(range(k0, k0 + 3)).to_numpy()
@@ -1532,24 +1543,11 @@ def test_one_trusted_read_among_biased_ones_does_not_turn_a_slow_approach():
     # shared pull itself moves no velocity). Measured: median |angle_in| error 1.02 degrees
     # (max 3.4); before: 11.3 (max 34), the trusted read bending the weighted fit so its plain
     # residual stayed under the outlier test.
-    from analysis.physics import PhysicsParams, Simulator, Strike
-    from benchmarks.event_accuracy import detections, truth_events
-
     errs = []
     for seed in range(12):
-        rng = np.random.default_rng(500 + seed)
-        vn, ang = rng.uniform(260.0, 330.0), rng.uniform(-10.0, 10.0)
-        sim = Simulator(TABLE, PhysicsParams(), {"cue": (rng.uniform(800.0, 2000.0), 1050.0)})
-        sim.strike(0.3, Strike("cue", vn / math.cos(math.radians(ang)),
-                               math.radians(90.0 + ang), 0.0, 0.4))
-        sim.run_until_rest()
-        traj = sim.trajectory()
-        det = detections(traj, 3.5, 60.0, rng, rest_sigma_mm=0.5, moving_sigma_mm=0.7, drop=0.0)
-        truth = truth_events(TABLE, traj, 3.5)
-        truth = truth[truth["kind"] == "cushion"]
-        if not len(truth):
+        det, tr = _slow_square_bank(np.random.default_rng(500 + seed), 0.7)
+        if tr is None:
             continue  # the ball stopped short of the rail
-        tr = truth.iloc[0]
         moving = (det["sigma_mm"] > 0.6).to_numpy()
         det.loc[moving, "x"] -= 4.5
         det.loc[moving, "sigma_mm"] = 2.5
