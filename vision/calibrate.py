@@ -105,6 +105,7 @@ import logging
 import math
 import os
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator
 
@@ -257,7 +258,9 @@ class Calibration:
       in table order (0,0), (L,0), (L,W), (0,W);
     * ``noses``: one :class:`NoseFit` per rail (bottom, right, top, left);
     * ``sights_px``: (M, 2) found sights (u, v) and ``sights_mm`` (M, 2) their table (x, y);
-    * ``check_image``: (H, W, 3) uint8 BGR top-down view with the fit drawn on it;
+    * ``check_image``: (H, W, 3) uint8 BGR top-down view with the fit drawn on it, drawn by
+      ``draw_check`` when first asked for (``analyse`` never asks, and drawing it took 0.27
+      processor s on the 720p bank sample, all in calibration's serial stretch);
     * ``origin``: the origin corner in words;
     * ``camera_changes``: [(t_from_s, Camera)], first entry (0.0, camera); more after each bump;
     * ``background``: (H, W, 3) uint8 BGR background frame of the first segment.
@@ -269,10 +272,15 @@ class Calibration:
     noses: tuple[NoseFit, ...]
     sights_px: np.ndarray
     sights_mm: np.ndarray
-    check_image: np.ndarray
     origin: str
     camera_changes: tuple[tuple[float, Camera], ...]
     background: np.ndarray = field(repr=False)
+    draw_check: Callable[[], np.ndarray] = field(repr=False, compare=False)
+
+    @cached_property
+    def check_image(self) -> np.ndarray:
+        """The (H, W, 3) uint8 BGR check image (:func:`check_image`), drawn once, when first read."""
+        return self.draw_check()
 
 
 # ================================================================================================
@@ -2086,9 +2094,12 @@ def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, c
         raise CalibrationError(str(exc), check_image(bg, None, table, None, config.check_px_per_mm, f"FAILED: {exc}", quad)) from None
     problem = _verdict_problems(fit, table, config, size)
     verdict = "OK" if problem is None else f"REFUSED: {problem}"
-    img = check_image(bg, fit.camera, table, fit, config.check_px_per_mm, verdict)
+
+    def draw() -> np.ndarray:
+        return check_image(bg, fit.camera, table, fit, config.check_px_per_mm, verdict)
+
     if problem is not None:
-        raise CalibrationError(problem, img)
+        raise CalibrationError(problem, draw())
     changes = [(0.0, fit.camera)]
     intr = (float(fit.camera.K[0, 0]), float(fit.camera.dist[0]), float(fit.camera.dist[1]))
     # After a bump: same lens, new pose, origin pinned to the same physical corner.
@@ -2097,10 +2108,10 @@ def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, c
         try:
             fk = _fit_background(bg_k, table, cfg, intrinsics=intr, run_map=run_map)
         except ValueError as exc:
-            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view could not be calibrated ({exc})", img) from None
+            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view could not be calibrated ({exc})", draw()) from None
         pk = _verdict_problems(fk, table, config, size)
         if pk is not None:
-            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view fits poorly: {pk}", img)
+            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view fits poorly: {pk}", draw())
         changes.append((float(t_k), fk.camera))
     quality = dict(fit.quality)
     quality["still_frames"] = int(n_stills[0])
@@ -2113,7 +2124,7 @@ def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, c
         noses=fit.noses,
         sights_px=fit.sights_px,
         sights_mm=fit.sights_mm,
-        check_image=img,
+        draw_check=draw,
         origin=fit.origin,
         camera_changes=tuple(changes),
         background=bg,
