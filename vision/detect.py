@@ -1654,6 +1654,11 @@ class BallDetector:
         # Whether a coarse outline (:meth:`_edges`) lowered a sample by the cast-shadow discount
         # since :meth:`_fit_either` last cleared it.
         self._discounted = False
+        # The ring of :meth:`_ring_share` (64 angles), and its shares already read in the last
+        # frame asked (the frame itself, and a dict by centre); emptied every frame.
+        a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
+        self._ring_cos, self._ring_sin = np.cos(a), np.sin(a)
+        self._ring_memo: tuple[np.ndarray | None, dict] = (None, {})
 
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
@@ -1681,6 +1686,7 @@ class BallDetector:
         :func:`stack_detections`; a pandas frame per frame cost more than finding the balls
         that moved."""
         img = np.asarray(image)
+        self._ring_memo = (None, {})
         w, h = self.size
         if img.shape != (h, w, 3) or img.dtype != np.uint8:
             raise ValueError(f"frame {frame_index} is {img.shape} {img.dtype}; the camera expects ({h}, {w}, 3) uint8 BGR")
@@ -1722,6 +1728,7 @@ class BallDetector:
             self._ref_small[cell_changed] = small[cell_changed]
         else:
             det = self._prev
+        self._ring_memo = (None, {})  # the model may change below
         self._since_update += dt
         if self._since_update >= self.config.update_every_s:
             self._since_update = 0.0
@@ -3390,8 +3397,7 @@ class BallDetector:
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         # Marked, not refused: the fit stands while the box's pieces are explained (a fit
         # straddling two colliding balls seeds the search that finds both, and is dropped then).
-        joined = not capsule and not seed["strict"] and not seed.get("cluster") and (
-            rms > _JOINED_RMS_MM and self._joined_no_rim(img, uv) or self._neither_ring_nor_rim(img, uv))
+        joined = not capsule and not seed["strict"] and not seed.get("cluster") and self._joined_mark(img, uv, rms)
         return {
             "frame": 0,
             "t": 0.0,
@@ -3541,6 +3547,24 @@ class BallDetector:
         rim = self._rim_share(img, uv)
         return rim < _ISOLATED_SHARE or (ring < _ISOLATED_SHARE and rim < _COVERED_RIM)
 
+    def _joined_mark(self, img: np.ndarray, uv: np.ndarray, rms: float) -> bool:
+        """Whether a free ball's fit round ``uv`` (px) with outline rms ``rms`` (mm) is marked
+        joined: :meth:`_joined_no_rim` where the outline fits worse than ``_JOINED_RMS_MM``, or
+        :meth:`_neither_ring_nor_rim`. The same tests, with the ring (:meth:`_ring_share`) and
+        the rim (:meth:`_rim_share`) each sampled at most once, and the rim only when a test
+        reads it (the two tests asked for both again when the first failed)."""
+        ring = self._ring_share(img, uv)
+        rim = None
+        if rms > _JOINED_RMS_MM and ring < _JOINED_RING:
+            rim = self._rim_share(img, uv)
+            if rim < _ISOLATED_SHARE or (ring < _ISOLATED_SHARE and rim < _COVERED_RIM):
+                return True
+        if ring >= _ISOLATED_SHARE:
+            return False
+        if rim is None:
+            rim = self._rim_share(img, uv)
+        return rim < _ISOLATED_SHARE
+
     def _neither_ring_nor_rim(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """Whether a free ball's fit round ``uv`` (px), however well its outline fits, fails
         both halves of :meth:`_isolated`: its ring (:meth:`_ring_share`) is covered beyond what
@@ -3661,12 +3685,22 @@ class BallDetector:
         return float(np.median(rims)) >= _ISOLATED_SHARE
 
     def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
-        """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background."""
-        r = _RING_R * self.ball_px / 2
-        a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
-        mx = (uv[0] + r * np.cos(a)).astype(np.float32)[None]
-        my = (uv[1] + r * np.sin(a)).astype(np.float32)[None]
-        return float(np.mean(self._ballness_at(img, mx, my)[0] < self._score_thr))
+        """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background.
+
+        Kept per frame and centre (``_ring_memo``: the frame it was read from, and the shares
+        by ``uv``): a sharp fit asks it of one centre twice (:meth:`_cue_end`, then
+        :meth:`_joined_mark`), and neither the frame nor the empty-table model changes
+        between (the model is updated after the frame's detections, :meth:`step_rows`)."""
+        if self._ring_memo[0] is not img:
+            self._ring_memo = (img, {})
+        key = (float(uv[0]), float(uv[1]))
+        got = self._ring_memo[1].get(key)
+        if got is None:
+            r = _RING_R * self.ball_px / 2
+            mx = (uv[0] + r * self._ring_cos).astype(np.float32)[None]
+            my = (uv[1] + r * self._ring_sin).astype(np.float32)[None]
+            got = self._ring_memo[1][key] = float(np.mean(self._ballness_at(img, mx, my)[0] < self._score_thr))
+        return got
 
     def _band_seen(self, I: np.ndarray, B: np.ndarray, white: np.ndarray, S: np.ndarray, V: np.ndarray, cloth_s: float) -> bool:
         """Whether a ball's pixels ``I`` (N, 3) BGR over the empty table ``B`` (N, 3), with their
