@@ -641,6 +641,19 @@ def _median(x: np.ndarray) -> float:
     return 0.5 * float(q[h - 1] + q[h])
 
 
+def _share(mask: np.ndarray) -> float:
+    """Share of True in a non-empty bool array: ``float(np.mean(mask))`` to the last bit (the
+    float64 count over the size, both exact), without ``np.mean``'s argument handling, which
+    costs several times the count on the few dozen to few hundred samples asked per fit."""
+    return np.count_nonzero(mask) / mask.size
+
+
+def _mean1(x: np.ndarray) -> float:
+    """Mean of a non-empty 1-D float64 array: ``float(np.mean(x))`` to the last bit (the same
+    pairwise ``np.add.reduce`` over the same elements, divided by their count)."""
+    return float(np.add.reduce(x) / len(x))
+
+
 def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float, rays: RayMap | None = None) -> np.ndarray:
     """Convex hull (M, 2) px of the silhouette of a sphere swept along a segment (table frame).
     ``rays``: the camera's :class:`RayMap`, whose lean single-sphere outline
@@ -1090,7 +1103,7 @@ def _fit_rms(result) -> float:
     """RMS (mm) of the agreeing rays' residuals (Tukey weight above 0.2) of a fit result."""
     res, wts = result[1], result[2]
     inl = wts > 0.2
-    return float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
+    return math.sqrt(_mean1(res[inl] ** 2)) if inl.any() else np.inf
 
 
 def _chroma_off(I: np.ndarray, B: np.ndarray, a: np.ndarray) -> np.ndarray:
@@ -1563,7 +1576,7 @@ class RayMap:
         e1 = np.array([e1x, e1y, e1z])
         pts = q[None] + rho * (self._cos16 * e1[None] + self._sin16 * e2[None])
         rel = self.project(pts) - self.project(np.array([[X0, X1, X2]]))[0]
-        return float(np.mean(np.sqrt(rel[:, 0] * rel[:, 0] + rel[:, 1] * rel[:, 1])))
+        return _mean1(np.sqrt(rel[:, 0] * rel[:, 0] + rel[:, 1] * rel[:, 1]))
 
     def backproject(self, uv_px: np.ndarray, z_mm: float = 0.0) -> np.ndarray:
         """(N, 2) pixels -> (N, 3) table points where their rays meet the plane ``z = z_mm``."""
@@ -2143,7 +2156,7 @@ class BallDetector:
         if len(I) == 0:
             return 0.0
         w = np.array([0.114, 0.587, 0.299], np.float32)  # BT.601 luma of B, G, R
-        return float(np.mean(I.astype(np.float32) @ w > B.astype(np.float32) @ w))
+        return _share(I.astype(np.float32) @ w > B.astype(np.float32) @ w)
 
     def _fit_either(self, img: np.ndarray, s: dict, avoid: np.ndarray | None = None) -> dict | None:
         """:meth:`_fit_seed` with the coarse outline's cast-shadow discount, and, for a seed
@@ -3362,7 +3375,7 @@ class BallDetector:
         p, res, wts, cov, good, capsule, n_rays = result
         inl = wts > 0.2
         share = inl.sum() / n_rays
-        rms = float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
+        rms = math.sqrt(_mean1(res[inl] ** 2)) if inl.any() else np.inf
         max_rms = self.config.max_rms_mm * (2.0 if capsule else 1.0)
         if rms > max_rms and share >= _NOISY_MIN_SHARE:
             # A dim ball's outline is noisier, not worse: the limit is what the image noise
@@ -3474,7 +3487,7 @@ class BallDetector:
         if len(I) == 0:
             return 0.0
         out = ballness(I, B) > self._score_thr
-        share = float(np.mean(out))
+        share = _share(out)
         if share < 0.6:
             share = max(share, _shaded_share(I, B, r2 / (r * r), out))
         return share
@@ -3503,9 +3516,9 @@ class BallDetector:
         two-colour edge (a rim colour against the surface outside) has no colour step to
         find there and follows the ramp of the shading instead, so the coarse fit stands."""
         r = 0.5 * self.ball_px * np.array([0.55, 0.75])
-        ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
-        mx = (uv[0] + r[None, :] * np.cos(ang)[:, None]).astype(np.float32)
-        my = (uv[1] + r[None, :] * np.sin(ang)[:, None]).astype(np.float32)
+        # _RAY_DIRS holds the cosines and sines of the same 48 angles (_RAY_ANG).
+        mx = (uv[0] + r[None, :] * _RAY_DIRS[:, 0:1]).astype(np.float32)
+        my = (uv[1] + r[None, :] * _RAY_DIRS[:, 1:2]).astype(np.float32)
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
         a = _dot3(f, b) / np.maximum(_dot3(b, b), 1.0)
@@ -3605,7 +3618,7 @@ class BallDetector:
         P, S = prof[:, :4].mean(axis=1), prof[:, 4:].mean(axis=1)
         a = _dot3(P, S) / np.maximum(_dot3(S, S), 1.0)
         shade = (a >= DARK_RATIO) & (a <= LIT_RATIO) & (_chroma_off(P, S, a) < 0.08)
-        return float(np.mean(~shade))
+        return _share(~shade)
 
     def _ballness_at(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
         """:func:`ballness` of the frame against the empty table at the sub-pixel points ``mx``,
@@ -3699,7 +3712,7 @@ class BallDetector:
             r = _RING_R * self.ball_px / 2
             mx = (uv[0] + r * self._ring_cos).astype(np.float32)[None]
             my = (uv[1] + r * self._ring_sin).astype(np.float32)[None]
-            got = self._ring_memo[1][key] = float(np.mean(self._ballness_at(img, mx, my)[0] < self._score_thr))
+            got = self._ring_memo[1][key] = _share(self._ballness_at(img, mx, my)[0] < self._score_thr)
         return got
 
     def _band_seen(self, I: np.ndarray, B: np.ndarray, white: np.ndarray, S: np.ndarray, V: np.ndarray, cloth_s: float) -> bool:
@@ -3759,7 +3772,7 @@ class BallDetector:
         # Tinted: any visible saturation off the cloth's hue (a dark band at the rim, shaded
         # toward the limb, keeps only part of its saturation).
         tinted = (S >= 50) & ~white & ~near_cloth
-        fw, fc, fd, ft = white.mean(), coloured.mean(), dark.mean(), tinted.mean()
+        fw, fc, fd, ft = _share(white), _share(coloured), _share(dark), _share(tinted)
         if fw > 0.85 and ft < 0.03 and fd < 0.03:
             self._white_v = float(np.median(V[white]))
             return "white", "cue"
@@ -3769,7 +3782,7 @@ class BallDetector:
             # A ball of the cloth's own hue and brightness: its body, left out as cloth-like
             # above, is its colour, and so is its limb, shaded dark toward the cloth's level.
             coloured = (S >= 90) & ~white
-            fc = coloured.mean()
+            fc = _share(coloured)
         if fc < 0.04:
             # No colour inside 0.88 of the radius: a stripe whose band lies round the limb, or a
             # white ball shaded toward its limb (dim or one-sided light) or smeared with the cloth
