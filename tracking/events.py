@@ -105,7 +105,8 @@ Method
    by the cushion's friction (``_slide_direction``, Mathavan, Jackson & Parkin 2010), and on its
    duration from the clip's other cushion contacts
    (``_cushion_slide_ratio``: the normal speed lost sliding is about a fixed fraction of the
-   normal speed arriving).
+   normal speed arriving). A striped ball, whose reads err with its roll, has its departure
+   fitted over two of its turns where one window holds less (``_Finder._depart_reach``).
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
    meet it at the same instant, so the two crossing times are combined by inverse-variance
    weighting (the linearised least-squares time where both fits cross the line). The line is the
@@ -339,6 +340,31 @@ class EventConfig:
     ``nudge_rest_window_s``: the resting ball's spot is read from its samples over this long
     before the halo and after it (at least three each side; the 8 was unseen for 0.5 s before
     its nudge); each read carries the resting detection error ``wave_position_sd_mm``.
+
+    A striped ball's cushion departure (``_Finder._depart_reach``) is fitted past
+    ``fit_window_s`` to ``depart_roll_turns`` turns of the ball (``2 pi R / v`` each, at the
+    speed it leaves with), at most ``depart_max_s`` and never past its next event, so its read
+    error, which repeats with its roll, averages out instead of passing for velocity.
+    ``depart_max_s`` bounds the reach of a ball slow enough to stop within it. Measured
+    (session 19): rendered through the cheapwide_25fps camera, room and codec, a rolling
+    stripe's read runs ahead of its centre along the heading by up to 4-6 mm for three or four
+    frames and drops back, twice per turn (second harmonic of the roll angle 1.4-2.9 mm, by the
+    band's tilt); a solid's number discs give one too (band tilted 60 deg: 3.9 mm across, first
+    harmonic; not tried as a gate). On slow striped top-rail banks read with that error
+    (tests/test_events.py ``_striped_top_bank``, 23 contacts at 25 fps) one window gave
+    restitution 0.057, angle out 0.60 deg, speed out 4.2 %; two turns 0.027, 0.63 deg, 5.5 %
+    (worse); at 30 fps (15 contacts) 0.043, 0.80 deg, 5.6 % and 0.028, 0.82 deg, 5.2 %. Only
+    striped balls (the tracker's ``pattern`` label): a longer rolling leg makes a plain ball's
+    slow contact lean harder on its line (tests/test_events.py, a slow departure moved with the
+    line: angle_out spread 2.8 deg over +-0.5 mm, 1.8 allowed), and the earlier gate on a
+    drifting noise estimate (``_Ball.sigma_fit`` over ``_Ball.sigma``) opened on
+    phone_wide_30fps's and lamp_50fps's cue balls (ratios 3.5, 2.2) and missed their stripes
+    (1.5, 1.6) and most simulated stripes (1.2-1.8, white noise alone 1.0-1.5).
+    On the extra rendered set (``benchmarks/analyse_accuracy.py --extra --reuse``, against one
+    window): cheapwide_25fps speed out 3.64 -> 1.98 %, restitution 0.045 -> 0.028, angle out
+    1.39 -> 1.01 deg; phone_wide_30fps angle out 2.12 -> 1.38; uneven_60fps angle out 0.93 ->
+    0.91, restitution 0.023 -> 0.022; but bright_pocket_1080p50 angle out 0.41 -> 0.51,
+    restitution 0.002 -> 0.004, speed in 0.49 -> 0.66 % (not explained; all within target).
     """
 
     rest_speed_mm_s: float = 50.0
@@ -390,6 +416,8 @@ class EventConfig:
     wave_max_outlier_share: float = 0.5
     nudge_halo_mm: float = 28.575
     nudge_rest_window_s: float = 1.0
+    depart_roll_turns: float = 2.0
+    depart_max_s: float = 1.5
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
@@ -913,6 +941,7 @@ class _Ball:
     firsts: tuple = (0,)  # first row of each stay on the table (``_motion``)
     fast: list = field(default_factory=list)  # [(i0, i1)] stretches above the rest speed
     weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
+    striped: bool = False  # the tracker's pattern label is ``stripe`` (``_Finder._depart_reach``)
 
     def weights(self, ts: np.ndarray) -> np.ndarray | None:
         """Relative weights (n,) of the samples at times ts (from ``samples``), or None."""
@@ -986,8 +1015,17 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
             raw = p.copy()
             raw[~seen] = np.nan
         out.append(_Ball(int(tid), g["t"].to_numpy(float), frames, p,
-                         g[["vx", "vy"]].to_numpy(float), raw, weight=weight))
+                         g[["vx", "vy"]].to_numpy(float), raw, weight=weight,
+                         striped=_striped(g)))
     return out
+
+
+def _striped(g: pd.DataFrame) -> bool:
+    """Whether one track's rows ``g`` are mostly labelled ``stripe`` (the tracker's
+    ``pattern`` column, from the detector's labels); False without the column."""
+    if "pattern" not in g.columns or not len(g):
+        return False
+    return bool(np.mean(g["pattern"].to_numpy() == "stripe") > 0.5)
 
 
 def _breaks(ball: _Ball, diameter_mm: float) -> np.ndarray:
@@ -2353,7 +2391,7 @@ class _Finder:
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure) if exclude else None
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
-        td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
+        td, pd_ = b.samples(t_c, min(hi, t_c + self._depart_reach(b, t_c, hi)), ex)
         step = self.cfg.kink_step_frames * self.dt
         fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta),
                                straight=self._slid_from_rest(b, lo, t_c))
@@ -2364,6 +2402,35 @@ class _Finder:
         for t_bad in bad_a + bad_d:
             b.raw[np.searchsorted(b.t, t_bad)] = np.nan
         return fa, fd
+
+    def _depart_reach(self, b: _Ball, t_c: float, hi: float) -> float:
+        """How far (s) past a cushion contact at ``t_c`` its departure fits reach: at least
+        ``fit_window_s``, and at least ``depart_roll_turns`` turns of the ball, ``2 pi R / v``
+        at the speed ``v`` it leaves with (the chord over ``fit_window_s``), within its next
+        event ``hi``.
+
+        A striped ball's reads err by its orientation (the outline fit rides the band, whose
+        top moves at twice the centre's speed, then drops back: cheapwide_25fps's green-stripe
+        14, off by up to 8 mm along its path; the same rendered, EventConfig), and a rolling
+        ball turns once every ``2 pi R`` it travels (rolling without slipping, omega = v / R:
+        Marlow 1995, from memory), so that error repeats with period ``2 pi R / v`` and its
+        halves. Over less than one period it is a drift that a least-squares path takes for
+        velocity; over whole periods it averages out (the least-squares slope of
+        ``A sin(w t + phi)`` over a window T of whole periods is ``-12 A cos(phi) / (w T^2)``,
+        integrating by parts: it falls as the square of the periods held). A slow departure's
+        period outlasts the usual window (0.82 s at 220 mm/s against 0.48 s at 25 fps), a fast
+        one's does not, so the window grows only for slow balls; the rolling piece of the path,
+        a straight line slowing at mu_r g (Alciatore 2004), holds over it until the next event.
+        """
+        w = self.cfg.fit_window_s
+        ts, ps = b.samples(t_c, min(hi, t_c + w))
+        # Only striped balls, whose error was measured: a longer rolling leg makes any slow
+        # contact lean harder on its line (EventConfig).
+        if not b.striped or len(ts) < 2 or ts[-1] <= ts[0]:
+            return w
+        v = float(np.hypot(*(ps[-1] - ps[0]))) / float(ts[-1] - ts[0])
+        turn = 2.0 * math.pi * self.table.radius_mm / max(v, 1e-9)
+        return max(w, min(self.cfg.depart_roll_turns * turn, self.cfg.depart_max_s))
 
     def _slid_from_rest(self, b: _Ball, lo: float, t_c: float) -> tuple[float, float] | None:
         """(mu_s g, its sd) mm/s^2 where the approach to a contact at ``t_c`` may slide
@@ -2540,7 +2607,7 @@ class _Finder:
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure)
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
-        td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
+        td, pd_ = b.samples(t_c, min(hi, t_c + self._depart_reach(b, t_c, hi)), ex)
         if len(ta) < 3 or len(td) < 3:
             return None
         if slide_tk is not None:
