@@ -10,7 +10,8 @@ thread ahead of the detector where there is a spare core. With ``workers`` other
 detection, most of the work, runs in parallel: the clip is cut in time into one part per worker
 process (:func:`split_frames`), each part's detector starting ``chunk_warmup_s`` before its
 part (its first frame builds the background, as at the start of a clip) and keeping only its
-own frames; tracking and events then run once over the joined detections. The later parts'
+own frames; tracking and events then run once over the joined detections (the event
+finder's contact fits shared with a forked copy per spare core, ``EventConfig.workers``). The later parts'
 processes are started before calibration, so their start-up and their decoding up to their
 part overlap it; while they wait for the cameras they take on pieces of the calibration's own
 work (``vision.calibrate.calibrate``'s ``run_map``: half of the cushion sides' nose searches),

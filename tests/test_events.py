@@ -21,7 +21,7 @@ from test_tracker import (
     detections,
     stun_roll_path,
 )
-from tracking.events import EVENT_COLUMNS, SHOT_COLUMNS, EventConfig, find_events
+from tracking.events import EVENT_COLUMNS, SHOT_COLUMNS, EventConfig, find_events, find_events_and_rests
 from tracking.tracker import track
 from vision.table import cushion_angles, rail_direction, rail_inward_normal
 
@@ -539,6 +539,16 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
     short of it, on the top rail beyond it), as a calibration off by that much places them;
     ``mu_slide``: the cloth's ball-cloth sliding friction (Alciatore 2004 range 0.15-0.4).
     Returns (found cushion events, the simulator's cushion events)."""
+    det, truth = _cushion_session_detections(seed, fps, noise_mm, drift_mm, drift_s, outlier_mm,
+                                             shift_mm, mu_slide)
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return _only(ev, "cushion"), truth
+
+
+def _cushion_session_detections(seed, fps, noise_mm, drift_mm, drift_s, outlier_mm, shift_mm,
+                                mu_slide):
+    """The detections of ``_cushion_session`` (same arguments) and the simulator's cushion
+    events."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
@@ -574,8 +584,37 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
         for t_c in truth["t"].to_numpy()[::3]:
             rows = det.index[det["frame"] == int(math.floor(t_c * fps)) + 2]
             det.loc[rows[:1], "x"] += outlier_mm
-    ev, _ = find_events(track(det, TABLE), TABLE, det)
-    return _only(ev, "cushion"), truth
+    return det, truth
+
+
+def test_events_shared_with_a_forked_process_equal_those_of_one_process(monkeypatch):
+    # The contact solves shared among processes (EventConfig.workers, tracking.share) must
+    # give what one process gives, to the bit: the same events, shots and stays at rest. The
+    # session's twelve contacts, each in its own motion, make twelve runs (_contact_units),
+    # enough to share; the drift and outliers make the fits strike samples, whose taking over
+    # from the forked copy this checks too.
+    det, truth = _cushion_session_detections(3, 60.0, 1.0, 1.0, (0.45, 0.7), 15.0, 0.0, 0.2)
+    import tracking.events
+    from tracking.share import Shared
+
+    forks = []
+
+    class Counted(Shared):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            forks.append(self.forked)
+
+    monkeypatch.setattr(tracking.events, "Shared", Counted)
+    tracks = track(det, TABLE)
+    one = find_events_and_rests(tracks, TABLE, det, EventConfig(workers=1))
+    assert forks == [0, 0]  # the slide profile and the contacts, each in this process
+    two = find_events_and_rests(tracks, TABLE, det, EventConfig(workers=2))
+    assert forks[2:] == [1, 1]  # each shared with one forked copy
+    assert len(_only(one[0], "cushion")) == len(truth) >= 10
+    for a, b in zip(one, two):
+        assert a.equals(b)
+    with pytest.raises(ValueError, match="workers"):
+        EventConfig(workers=-1)
 
 
 def test_cushion_session_outgoing_measures():

@@ -196,6 +196,7 @@ import pandas as pd
 from scipy.optimize import LinearConstraint, least_squares, minimize, minimize_scalar, nnls
 from scipy.stats import chi2, truncnorm
 
+from tracking.share import Shared
 from vision.table import RAILS, TableSpec, cushion_angles, rail_inward_normal
 
 EVENT_COLUMNS = [
@@ -365,6 +366,10 @@ class EventConfig:
     1.39 -> 1.01 deg; phone_wide_30fps angle out 2.12 -> 1.38; uneven_60fps angle out 0.93 ->
     0.91, restitution 0.023 -> 0.022; but bright_pocket_1080p50 angle out 0.41 -> 0.51,
     restitution 0.002 -> 0.004, speed in 0.49 -> 0.66 % (not explained; all within target).
+    ``workers``: processes that share the independent fits (``tracking.share``): the profile
+    over the cloth's sliding deceleration (``_cloth_slide_decel``) and the balls' cushion
+    contacts (``_cushion_rows``); 0, the default, is one per core this process may run on, 1
+    none forked. The events are the same to the bit for any count; only the time differs.
     """
 
     rest_speed_mm_s: float = 50.0
@@ -418,10 +423,15 @@ class EventConfig:
     nudge_rest_window_s: float = 1.0
     depart_roll_turns: float = 2.0
     depart_max_s: float = 1.5
+    workers: int = 0
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
             if name == "exposure_s" and value is None:
+                continue
+            if name == "workers":
+                if not (isinstance(value, int) and value >= 0):
+                    raise ValueError(f"EventConfig.workers = {value!r} must be 0 (one process per core) or a positive count")
                 continue
             if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
                 raise ValueError(f"EventConfig.{name} = {value!r} must be a positive number")
@@ -1564,32 +1574,7 @@ def find_events_and_rests(
         collisions_by_ball.setdefault(r["track"], []).append((r["t"], r.get("driver", r["other"])))
     # Each rail's contact line from the apexes of all its contacts (``_rail_offsets``): the
     # calibration's reversal line may be off by a millimetre, and every contact is pinned to it.
-    apexes: dict[str, list[tuple[float, float]]] = {r: [] for r in RAILS}
-    for b in balls:
-        raw = b.raw.copy()  # the side fits strike outliers; the contacts below strike their own
-        for tg, rail in rough_cushions[b.track]:
-            a = finder.cushion(b, rail, tg, apex_only=True)
-            if a is not None:
-                apexes[rail].append(a)
-        b.raw = raw
-    finder.rail_offset, finder.rail_line_sd = _rail_offsets(apexes, cfg.reversal_line_sd_mm)
-    first = []  # (ball, rail, rough time, row or None)
-    for b in balls:
-        for tg, rail in rough_cushions[b.track]:
-            # The first solve measures each slide (``finder.slides``) for the clip's ratio.
-            first.append((b, rail, tg, finder.cushion(b, rail, tg)))
-    finder.slide_ratio = _cushion_slide_ratio(finder)
-    for b, rail, tg, r in first:
-        # Every departure of a ball arriving rolling is solved again with the slide's duration
-        # prior, a well-seen one too (five samples of slide or more; before, only the others):
-        # where its samples fix the slide they outweigh the prior, and where they do not the
-        # prior holds it (event_accuracy.py --fps 30 seeds 1/2/3 restitution
-        # 0.0303/0.0289/0.0257 -> 0.0296/0.0289/0.0249, 60 fps 0.0268/0.0224/0.0209 ->
-        # 0.0241/0.0215/0.0185).
-        if finder.slide_ratio is not None:
-            r = finder.cushion(b, rail, tg)
-        if r is not None:
-            rows.append(r)
+    rows += _cushion_rows(finder, balls, rough_cushions)
     _add_found_rolling(balls, cfg, table.ball_diameter_mm)
     _add_struck_slow(balls, collisions_by_ball, cfg, dt, table.ball_diameter_mm)
     moves = []  # (track, t_begin, t_end)
@@ -1639,6 +1624,111 @@ def find_events_and_rests(
     events, shots = _assemble(rows, moves, dt)
     reach = table.ball_diameter_mm + cfg.collision_margin_mm
     return events, shots, _rests(balls, moves, rows, dt, reach, cfg.rest_speed_mm_s)
+
+
+def _cushion_rows(finder: "_Finder", balls: list[_Ball], rough_cushions: dict) -> list[dict]:
+    """The cushion events of every ball's rough contacts (``rough_cushions``: track -> [(rough
+    time s, rail)]), in ball and contact order; sets the finder's rail lines and slide ratio on
+    the way and leaves each ball's samples with the contact fits' outliers struck.
+
+    Three passes: the unpinned apexes of every contact (each ball's samples put back after it),
+    which fix each rail's contact line (``_rail_offsets``); every contact solved, which
+    measures the slides (``finder.slides``) for the clip's ratio (``_cushion_slide_ratio``);
+    and, that ratio known, every contact solved again with it. A contact's solve reads and
+    strikes only its ball's samples within its reach (``_contact_units``) and reads the
+    finder's clip-wide values, so runs of contacts whose reaches do not meet are shared among
+    ``cfg.workers`` processes (``tracking.share``), each run's calls in one process in their
+    serial order, and their answers (rows, slides, struck samples) gathered in order."""
+    cfg = finder.cfg
+    units = _contact_units(finder, balls, rough_cushions)
+
+    def solve(unit: tuple, step: tuple) -> tuple:
+        """One pass over a unit's contacts: ``("apex", None)``, ``("first", (rail offsets,
+        line sds))`` or ``("again", slide ratio)``."""
+        b, contacts, i0, i1 = unit
+        kind, value = step
+        if kind == "apex":
+            raw = b.raw.copy()  # the side fits strike outliers; the contacts strike their own
+            out = [(rail, finder.cushion(b, rail, tg, apex_only=True)) for tg, rail in contacts]
+            b.raw = raw
+            return out
+        if kind == "first":
+            finder.rail_offset, finder.rail_line_sd = value
+        else:
+            finder.slide_ratio = value
+        n0 = len(finder.slides)
+        out = [finder.cushion(b, rail, tg) for tg, rail in contacts]
+        return out, finder.slides[n0:], b.raw[i0:i1].copy()
+
+    def gather(answers: list, slides0: list) -> list:
+        """Rows of a solving pass in order; the slides and struck samples taken over."""
+        finder.slides = list(slides0)
+        out = []
+        for (b, _, i0, i1), (found, slides, raw) in zip(units, answers):
+            b.raw[i0:i1] = raw
+            finder.slides += slides
+            out += found
+        return out
+
+    # Each contact costs about alike (three solves of two side fits, some 50 ms); a fork
+    # costs 30-80 ms (measured on the loaded 2-core machine).
+    with Shared(solve, units, [len(u[1]) for u in units], cfg.workers, min_cost=4) as pool:
+        apexes: dict[str, list[tuple[float, float]]] = {r: [] for r in RAILS}
+        for found in pool.map(("apex", None)):
+            for rail, a in found:
+                if a is not None:
+                    apexes[rail].append(a)
+        finder.rail_offset, finder.rail_line_sd = _rail_offsets(apexes, cfg.reversal_line_sd_mm)
+        # The first solve measures each slide (``finder.slides``) for the clip's ratio.
+        slides0 = list(finder.slides)  # before this process's own solves add theirs
+        first = gather(pool.map(("first", (finder.rail_offset, finder.rail_line_sd))), slides0)
+        finder.slide_ratio = _cushion_slide_ratio(finder)
+        if finder.slide_ratio is not None:
+            # Every departure of a ball arriving rolling is solved again with the slide's
+            # duration prior, a well-seen one too (five samples of slide or more; before, only
+            # the others): where its samples fix the slide they outweigh the prior, and where
+            # they do not the prior holds it (event_accuracy.py --fps 30 seeds 1/2/3
+            # restitution 0.0303/0.0289/0.0257 -> 0.0296/0.0289/0.0249, 60 fps
+            # 0.0268/0.0224/0.0209 -> 0.0241/0.0215/0.0185).
+            slides0 = list(finder.slides)
+            first = gather(pool.map(("again", finder.slide_ratio)), slides0)
+    return [r for r in first if r is not None]
+
+
+def _contact_units(finder: "_Finder", balls: list[_Ball], rough_cushions: dict) -> list[tuple]:
+    """Each ball's rough cushion contacts cut into runs that can be solved apart: a list of
+    ``(ball, [(rough time s, rail)], i0, i1)`` in ball and contact order, rows ``i0:i1`` of the
+    ball's samples holding every sample the run's solves can read or strike.
+
+    A contact's solve (``_Finder.cushion``) fits the samples within ``fit_window_s`` of its
+    time, which lies within two frame intervals of the rough time (the crossings it looks for),
+    and strikes outliers among them only: its reach is the rough time plus or minus the window
+    and three intervals. Two consecutive contacts of a ball start a new run where their
+    reaches do not meet and a sample lies between them (so the last sample before the later
+    one, which a departure-only solve reads, is outside the earlier one's reach); a ball whose
+    contacts are not in time order stays one run. A striped ball's departure may reach on to
+    ``depart_max_s`` (``_Finder._depart_reach``), so its reach after a contact is that long."""
+    reach = finder.cfg.fit_window_s + 3.0 * finder.dt
+    units = []
+    for b in balls:
+        contacts = list(rough_cushions[b.track])
+        if not contacts:
+            continue
+        after = reach + max(finder.cfg.depart_max_s - finder.cfg.fit_window_s, 0.0) * b.striped
+        times = [tg for tg, _ in contacts]
+        seen = b.t[np.isfinite(b.raw[:, 0])]
+        runs = [[contacts[0]]]
+        for prev, cur in zip(contacts[:-1], contacts[1:]):
+            lo, hi = prev[0] + after, cur[0] - reach
+            if times == sorted(times) and lo < hi and np.any((seen > lo) & (seen < hi)):
+                runs.append([cur])
+            else:
+                runs[-1].append(cur)
+        for run in runs:
+            i0 = int(np.searchsorted(b.t, run[0][0] - reach, "left"))
+            i1 = int(np.searchsorted(b.t, run[-1][0] + after, "right"))
+            units.append((b, run, i0, i1))
+    return units
 
 
 def _rests(balls: list[_Ball], moves: list[tuple[int, float, float]], rows: list[dict],
@@ -2166,16 +2256,39 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     if not found:
         return mu0, sd0
 
-    def total(r: float) -> float:
-        out = ((r - mu0) / sd0) ** 2
-        for ts, ps, tg, sigma, wt, cache in found:
-            f = _piecewise_fit(ts, ps, tg, sigma, step, cfg, slide_decel=r, weight=wt,
-                               penalised=True, cache=cache)
-            if f is not None:
-                m = 2 * f.n
-                out += m * math.log(max(f.rss, m * 1e-18) / m) + f.k * math.log(m)
-        return out
+    def term(item: tuple, r: float) -> float | None:
+        """One departure's criterion at the trial deceleration r, or None (no fit)."""
+        ts, ps, tg, sigma, wt, cache = item
+        f = _piecewise_fit(ts, ps, tg, sigma, step, cfg, slide_decel=r, weight=wt,
+                           penalised=True, cache=cache)
+        if f is None:
+            return None
+        m = 2 * f.n
+        return m * math.log(max(f.rss, m * 1e-18) / m) + f.k * math.log(m)
 
+    # The departures are shared among processes (``tracking.share``), each keeping its own
+    # fits' caches; the terms are summed here in the departures' order, as one process would.
+    # A fork costs some 30-80 ms (tracking/share.py), the 30-odd criterion values about 20 ms
+    # of processor time per departure.
+    with Shared(term, found, [1.0] * len(found), cfg.workers, min_cost=4) as pool:
+        return _slide_decel_minimum(lambda r: _summed(((r - mu0) / sd0) ** 2, pool.map(r)),
+                                    cfg, len(found))
+
+
+def _summed(first: float, terms: list) -> float:
+    """``first`` plus each term that is not None, added in order."""
+    out = first
+    for x in terms:
+        if x is not None:
+            out += x
+    return out
+
+
+def _slide_decel_minimum(total, cfg: "EventConfig", n_found: int) -> tuple[float, float]:
+    """The minimum of the criterion ``total(r)`` over the cloth's sliding deceleration r
+    (mm/s^2) and its Laplace standard deviation (``_cloth_slide_decel``), with ``n_found``
+    measured departures."""
+    sd0 = cfg.slide_decel_sigma_mm_s2
     lo, hi = cfg.slide_decel_min_mm_s2, cfg.slide_decel_max_mm_s2
     grid = np.geomspace(lo, hi, 9)  # steps of 35 %
     vals = [total(float(r)) for r in grid]
@@ -2189,7 +2302,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     r = rg + float(res.x) if res.fun <= vals[g] else rg
     # Second difference over a step that the criterion's own scale sets (the prior's curvature
     # bounds the posterior sd by sd0, so a step of a few percent of it resolves the curve).
-    h = max(0.05 * sd0 * min(1.0, 1.0 / math.sqrt(len(found))), 1.0)
+    h = max(0.05 * sd0 * min(1.0, 1.0 / math.sqrt(n_found)), 1.0)
     h = min(h, r - lo, hi - r) if lo < r < hi else h
     f0 = total(r)
     curv = (total(r + h) - 2.0 * f0 + total(r - h)) / (h * h)
