@@ -320,26 +320,11 @@ class _Helpers:
         out = [fn(*job) for job in groups[0]]
         sender.join()
         for conn, _ in asked:
-            try:
-                kind, value = conn.recv()
-            except EOFError:
-                raise ValueError("a detection worker process ended while calibrating (out of memory?); run again with --workers 1 (AnalyseConfig.workers = 1)") from None
-            if kind == "error":
-                raise value
-            out += value
+            out += _answer(conn, "while calibrating")
         return out
 
     def results(self) -> list[pd.DataFrame]:
-        out = []
-        for conn in self.conns:
-            try:
-                kind, value = conn.recv()
-            except EOFError:
-                raise ValueError("a detection worker process ended without its results (out of memory?); run again with --workers 1 (AnalyseConfig.workers = 1)") from None
-            if kind == "error":
-                raise value
-            out.append(value)
-        return out
+        return [_answer(conn, "without its results") for conn in self.conns]
 
     def close(self) -> None:
         """Tell waiting workers to stop, and end them (a worker that fails to end in 10 s is
@@ -355,6 +340,18 @@ class _Helpers:
                 proc.terminate()
                 proc.join()
             conn.close()
+
+
+def _answer(conn, ended: str):
+    """A worker's next answer on ``conn``: its value, or its ValueError raised here; a worker
+    gone before answering is a ValueError saying it ended ``ended``."""
+    try:
+        kind, value = conn.recv()
+    except EOFError:
+        raise ValueError(f"a detection worker process ended {ended} (out of memory?); run again with --workers 1 (AnalyseConfig.workers = 1)") from None
+    if kind == "error":
+        raise value
+    return value
 
 
 def _part_worker(conn, clip: str, read_from: int, keep: tuple[int, int | None], n_frames: int) -> None:
