@@ -4,11 +4,15 @@ from __future__ import annotations
 
 import itertools
 import os
+import sys
 
 import numpy as np
 import pytest
 
 from tracking.share import Shared, split_costs, worker_count
+
+# worker_count forks nothing from Python 3.12 on (tracking.share.worker_count).
+FORKS = pytest.mark.skipif(sys.version_info >= (3, 12), reason="no fork from Python 3.12 on")
 
 
 def _makespan(costs, groups) -> float:
@@ -40,6 +44,7 @@ def _bump(item: dict, arg: int):
     return item["k"], item["n"], os.getpid()
 
 
+@FORKS
 def test_shared_map_answers_as_one_process_in_the_items_order():
     # Each item keeps its own changes from one map to the next in the process that holds it,
     # and the answers come back in the items' order: what one process computes.
@@ -74,6 +79,7 @@ def _dies_in_the_copy(item: dict, arg: int):
     return item["k"] * arg
 
 
+@FORKS
 def test_a_copy_that_dies_has_its_share_run_here():
     items = [{"k": k, "parent": os.getpid()} for k in range(6)]
     with Shared(_dies_in_the_copy, items, [1.0] * 6, workers=2) as pool:

@@ -18,6 +18,7 @@ copies call nothing but numpy and scipy.
 from __future__ import annotations
 
 import multiprocessing
+import sys
 from typing import Any, Callable, Sequence
 
 from vision.video import usable_cores
@@ -42,9 +43,12 @@ def split_costs(costs: Sequence[float], parts: int) -> list[list[int]]:
 def worker_count(workers: int) -> int:
     """Processes to use: ``workers``, or one per core this process may run on for 0. One
     (no fork) inside a daemonic process, which may not have children, or where the system
-    cannot fork."""
+    cannot fork, or from Python 3.12 on, which warns (DeprecationWarning) at every fork of a
+    process with more than one thread, as numpy's BLAS threads make this one; the results are
+    the same either way, only slower."""
     n = int(workers) or usable_cores()
-    if multiprocessing.current_process().daemon or "fork" not in multiprocessing.get_all_start_methods():
+    if multiprocessing.current_process().daemon or "fork" not in multiprocessing.get_all_start_methods() \
+            or sys.version_info >= (3, 12):
         return 1
     return max(n, 1)
 
