@@ -24,7 +24,6 @@ import io
 import itertools
 import logging
 import math
-import multiprocessing
 import resource
 import threading
 import time
@@ -37,6 +36,7 @@ import pandas as pd
 from railtrace.results import write_results
 from tracking.events import EventConfig, find_events_and_rests
 from tracking.rests import hold_rests
+from tracking.share import start_process, stop_processes
 from tracking.tracker import TrackerConfig, track
 from vision.calibfile import calibration_dict, read_calibration
 from vision.calibrate import CalibConfig, calibrate
@@ -281,16 +281,12 @@ class _Helpers:
     pools in whatever state they are."""
 
     def __init__(self, clip: Path, parts: list[tuple[int, int, int | None]], n_frames: int):
-        ctx = multiprocessing.get_context("spawn")
         self.procs, self.conns = [], []
         try:
             for a, b, e in parts:
-                mine, theirs = ctx.Pipe()
-                proc = ctx.Process(target=_part_worker, args=(theirs, str(clip), a, (b, e), n_frames), daemon=True, name="railtrace-detect")
-                proc.start()
-                theirs.close()
+                proc, conn = start_process("spawn", _part_worker, (str(clip), a, (b, e), n_frames), "railtrace-detect")
                 self.procs.append(proc)
-                self.conns.append(mine)
+                self.conns.append(conn)
         except BaseException:
             self.close()
             raise
@@ -329,17 +325,7 @@ class _Helpers:
     def close(self) -> None:
         """Tell waiting workers to stop, and end them (a worker that fails to end in 10 s is
         terminated)."""
-        for conn in self.conns:
-            try:
-                conn.send(None)
-            except (OSError, ValueError):  # already finished and gone: nothing to tell
-                pass
-        for proc, conn in zip(self.procs, self.conns):
-            proc.join(timeout=10.0)
-            if proc.is_alive():
-                proc.terminate()
-                proc.join()
-            conn.close()
+        stop_processes(self.procs, self.conns, None)
 
 
 def _answer(conn, ended: str):

@@ -53,6 +53,33 @@ def worker_count(workers: int) -> int:
     return max(n, 1)
 
 
+def start_process(method: str, target: Callable, args: tuple, name: str):
+    """``(process, conn)``: a daemonic process, started by ``method`` ("fork" or "spawn"), that
+    runs ``target(its_conn, *args)``, and this process's end of the pipe between them."""
+    ctx = multiprocessing.get_context(method)
+    mine, theirs = ctx.Pipe()
+    proc = ctx.Process(target=target, args=(theirs, *args), daemon=True, name=name)
+    proc.start()
+    theirs.close()
+    return proc, mine
+
+
+def stop_processes(procs: list, conns: list, stop: Any) -> None:
+    """Send ``stop`` on each of ``conns`` (a process already gone needs no telling), then join
+    each of ``procs`` (one that fails to end in 10 s is terminated) and close its pipe."""
+    for conn in conns:
+        try:
+            conn.send(stop)
+        except (OSError, ValueError):
+            pass
+    for proc, conn in zip(procs, conns):
+        proc.join(timeout=10.0)
+        if proc.is_alive():
+            proc.terminate()
+            proc.join()
+        conn.close()
+
+
 class Shared:
     """``fn(item, arg)`` over a list of items, split between this process and forked copies.
 
@@ -76,16 +103,10 @@ class Shared:
             self.groups = [list(range(len(self.items)))]
             return
         self.groups = [g for g in split_costs(costs, n) if g]
-        ctx = multiprocessing.get_context("fork")
         try:
             for g in self.groups[1:]:
-                mine, theirs = ctx.Pipe()
-                share = [self.items[i] for i in g]
-                proc = ctx.Process(target=_serve, args=(theirs, fn, share), daemon=True,
-                                   name="railtrace-share")
-                proc.start()
-                theirs.close()
-                self.conns.append(mine)
+                proc, conn = start_process("fork", _serve, (fn, [self.items[i] for i in g]), "railtrace-share")
+                self.conns.append(conn)
                 self.procs.append(proc)
         except BaseException:
             self.close()
@@ -137,17 +158,7 @@ class Shared:
 
     def close(self) -> None:
         """End every copy (one that fails to end in 10 s is terminated)."""
-        for conn in self.conns:
-            try:
-                conn.send(_STOP)
-            except (OSError, ValueError):
-                pass
-        for proc, conn in zip(self.procs, self.conns):
-            proc.join(timeout=10.0)
-            if proc.is_alive():
-                proc.terminate()
-                proc.join()
-            conn.close()
+        stop_processes(self.procs, self.conns, _STOP)
         self.conns, self.procs = [], []
 
     def __enter__(self) -> "Shared":
