@@ -2126,3 +2126,54 @@ def test_a_striped_balls_slow_bank_restitution(striped_banks):
 def test_a_striped_balls_slow_bank_speed_out(striped_banks):
     # Issue 4 acceptance: cushion speed median error <= 3 %.
     assert np.median(striped_banks[:, 0]) <= 0.03, np.median(striped_banks, axis=0)
+
+
+def test_a_rolling_piece_held_straight_joins_the_axes_as_one_dense_solve():
+    # _straighten and _straight_slide_terms solve the per-axis least squares joined by the
+    # prior k (n . c_roll)^2 through the Sherman-Morrison formula (Sherman & Morrison 1950);
+    # the reference is numpy.linalg's dense solve of the joined normal equations (both axes'
+    # coefficients in one system with k u u^T added), on random well-posed systems.
+    from tracking.events import _straight_slide_terms, _straighten
+
+    rng = np.random.default_rng(7)
+    G, q, k = 3, 4, 7.5
+    n_hat = np.array([0.6, 0.8])
+    N = [np.einsum("gni,gnj->gij", a, a) for a in rng.normal(size=(2, G, 10, q))]
+    h = [rng.normal(size=(G, q)) for _ in range(2)]
+    roll, slide = [2, 1], [3, 0]
+    solo = [(np.linalg.solve(N[ax], h[ax][..., None])[..., 0], np.linalg.inv(N[ax]))
+            for ax in range(2)]
+    joined = _straighten(solo, roll, n_hat, k)
+    x = np.array([0.7, -1.3])  # held slide coefficients of the second check
+    others = [[i for i in range(q) if i != slide[ax]] for ax in range(2)]
+    parts = [(np.linalg.inv(N[ax][:, o][:, :, o]), N[ax][:, o, slide[ax]], h[ax][:, o])
+             for ax, o in enumerate(others)]
+    kappa, w0, m, cols = _straight_slide_terms(parts, [o.index(r) for o, r in zip(others, roll)],
+                                               n_hat, k)
+    for g in range(G):
+        u = np.zeros(2 * q)
+        u[roll[0]], u[q + roll[1]] = n_hat
+        J = np.zeros((2 * q, 2 * q))
+        J[:q, :q], J[q:, q:] = N[0][g], N[1][g]
+        J += k * np.outer(u, u)
+        c = np.linalg.solve(J, np.concatenate([h[0][g], h[1][g]]))
+        Ji = np.linalg.inv(J)
+        for ax in range(2):
+            assert np.allclose(joined[ax][0][g], c[ax * q:(ax + 1) * q], rtol=1e-9, atol=1e-12)
+            assert np.allclose(joined[ax][1][g], Ji[ax * q:(ax + 1) * q, ax * q:(ax + 1) * q],
+                               rtol=1e-9, atol=1e-12)
+        # With each axis' slide coefficient held at x: the joined minimum over the others.
+        p = q - 1
+        Jb, rhs = np.zeros((2 * p, 2 * p)), np.zeros(2 * p)
+        for ax, o in enumerate(others):
+            Jb[ax * p:(ax + 1) * p, ax * p:(ax + 1) * p] = N[ax][g][np.ix_(o, o)]
+            rhs[ax * p:(ax + 1) * p] = h[ax][g][o] - N[ax][g][o, slide[ax]] * x[ax]
+        ub = np.zeros(2 * p)
+        ub[others[0].index(roll[0])], ub[p + others[1].index(roll[1])] = n_hat
+        b_solo = np.linalg.solve(Jb, rhs)
+        b_joined = np.linalg.solve(Jb + k * np.outer(ub, ub), rhs)
+        gap = w0[g] - m[0][g] * x[0] - m[1][g] * x[1]
+        assert rhs @ b_solo - rhs @ b_joined == pytest.approx(kappa[g] * gap**2, rel=1e-9)
+        for ax in range(2):
+            assert np.allclose(b_solo[ax * p:(ax + 1) * p] - kappa[g] * gap * n_hat[ax] * cols[ax][g],
+                               b_joined[ax * p:(ax + 1) * p], rtol=1e-9, atol=1e-12)

@@ -276,7 +276,10 @@ class EventConfig:
     free parameters the criterion charges a kink beyond a rolling piece (its time and the slip
     direction: the prior fixes the deceleration's size); ``roll_decel_mm_s2`` /
     ``roll_decel_sigma_mm_s2`` prior of the rolling deceleration ``mu_r g`` (Alciatore 2004
-    mu_r 0.005-0.015, typical 0.01 [secondary]); ``slide_decel_mm_s2`` /
+    mu_r 0.005-0.015, typical 0.01 [secondary]); ``roll_lateral_sigma_mm_s2`` sd of a rolling
+    piece's acceleration across its heading, for the departures of striped balls
+    (``_lateral_prior``: a rolling ball's path is straight, and a table out of level by 0.42 mm
+    per metre turns it at 2.9 mm/s^2); ``slide_decel_mm_s2`` /
     ``slide_decel_sigma_mm_s2`` prior of the sliding deceleration ``mu_s g`` (Alciatore 2004
     typical 0.2, range 0.15-0.4 [secondary]; Mathavan et al. 2009: 1.75-2.40 m/s^2);
     ``slide_decel_min_mm_s2`` / ``slide_decel_max_mm_s2`` hard bounds (0.05 g and 0.6 g).
@@ -365,7 +368,14 @@ class EventConfig:
     window): cheapwide_25fps speed out 3.64 -> 1.98 %, restitution 0.045 -> 0.028, angle out
     1.39 -> 1.01 deg; phone_wide_30fps angle out 2.12 -> 1.38; uneven_60fps angle out 0.93 ->
     0.91, restitution 0.023 -> 0.022; but bright_pocket_1080p50 angle out 0.41 -> 0.51,
-    restitution 0.002 -> 0.004, speed in 0.49 -> 0.66 % (not explained; all within target).
+    restitution 0.002 -> 0.004, speed in 0.49 -> 0.66 % (all within target). Over so long a
+    leg the rolling piece's acceleration is held to its heading (``roll_lateral_sigma_mm_s2``,
+    ``_lateral_prior``): with the same sd both ways (50 mm/s^2) cheapwide's 14 fitted a curve
+    of 9.8 mm/s^2 across its 1.46 s departure out of its read error, 7 mm/s across at the
+    contact, angle out 1.1 deg off (session 20; held straight: 0.16 deg; the clip's angle out
+    1.01 -> 0.52 deg; bright_pocket_1080p50 angle out 0.51 -> 0.42, speed out 0.68 -> 0.36 %;
+    the simulated striped banks above, 23 contacts: angle out 0.63 -> 0.32 deg, speed out
+    5.5 -> 4.9 %, restitution 0.027 unchanged).
     ``workers``: processes that share the independent fits (``tracking.share``): the profile
     over the cloth's sliding deceleration (``_cloth_slide_decel``) and the balls' cushion
     contacts (``_cushion_rows``); 0, the default, is one per core this process may run on, 1
@@ -401,6 +411,7 @@ class EventConfig:
     slide_decel_mm_s2: float = 1962.0
     slide_decel_sigma_mm_s2: float = 600.0
     roll_decel_sigma_mm_s2: float = 50.0
+    roll_lateral_sigma_mm_s2: float = 3.0
     slide_min_samples: int = 5
     cloth_slide_min_samples: int = 3
     slide_dir_sigma_deg: float = 3.0
@@ -539,6 +550,89 @@ def _batch_inv(N: np.ndarray) -> np.ndarray:
         return np.linalg.pinv(N)
 
 
+def _lateral_prior(v: np.ndarray, sigma_mm: float, cfg: "EventConfig") -> tuple[np.ndarray, float]:
+    """The rolling piece's prior across its heading: (unit vector (2,) across the velocity
+    ``v`` (2,) mm/s, extra ridge weight k >= 0), so that the prior on a rolling piece's
+    coefficient ``c`` (half its acceleration, mm/s^2) is ``lam |c - c_prior|^2 + k (n . c)^2``
+    (``_piecewise_fit``), i.e. sd ``roll_decel_sigma_mm_s2`` along the heading and
+    ``roll_lateral_sigma_mm_s2`` across it (in units of the sample noise ``sigma_mm``, as
+    ``lam``). k is 0 for a ball without a heading.
+
+    A rolling ball's path is straight: the cloth's rolling resistance acts against the velocity
+    and a spin about the vertical moves no point of the cloth contact, so no force turns it
+    (Alciatore 2004 [secondary]: a rolling ball keeps a straight line; only a sliding ball,
+    whose slip is not along its velocity, curves). What is left across the heading is a table
+    out of level: a rolling solid sphere on a slope of angle b accelerates at (5/7) g sin b
+    (rolling without slipping down an incline, e.g. Halliday, Resnick & Walker, Fundamentals
+    of Physics, ch. 11, from memory), 2.9 mm/s^2 for 0.42 mm per metre (0.005 in per foot,
+    the first graduation of a machinist's precision level: common practice). An isotropic
+    prior with the along-heading sd (50 mm/s^2, the spread of mu_r g) let a striped ball's
+    read error, which swings across the heading with its roll, and a detector bias that
+    changes across the table pass for a curve: cheapwide_25fps's green 14 after its top-rail
+    contact fitted 9.8 mm/s^2 across its 1.46 s departure, 7 mm/s at the contact, angle out
+    1.1 degrees off."""
+    speed = float(np.hypot(*v))
+    if not speed > 0:
+        return np.zeros(2), 0.0
+    lam_along = (2.0 * max(sigma_mm, 0.05) / cfg.roll_decel_sigma_mm_s2) ** 2
+    lam_across = (2.0 * max(sigma_mm, 0.05) / cfg.roll_lateral_sigma_mm_s2) ** 2
+    return np.array([-v[1], v[0]]) / speed, max(lam_across - lam_along, 0.0)
+
+
+def _far_heading(tau: np.ndarray, P: np.ndarray) -> np.ndarray:
+    """Velocity (2,) mm/s of a straight line fitted to the half of a departure's samples
+    furthest from the contact (``tau`` (n,) s sorted by ``|tau|``, ``P`` (n, 2) mm): the
+    rolling piece's heading, clear of the slide next to the contact, whose direction differs
+    (the slide takes normal speed, not along-rail speed)."""
+    far = slice(len(tau) // 2, None)
+    A = np.stack([np.ones(len(tau[far])), tau[far]], axis=1)
+    return np.linalg.lstsq(A, P[far], rcond=None)[0][1]
+
+
+def _straighten(systems: list, roll: list[int], n_hat: np.ndarray, k: float) -> list:
+    """Per-axis least-squares solutions joined by the prior ``k (n_hat . c_roll)^2`` on the
+    rolling coefficients of both axes (``_lateral_prior``).
+
+    ``systems``: per axis (x then y) ``(c (G, q), Ai (G, q, q))``, the solution and inverse
+    normal matrix of that axis alone; ``roll``: the rolling coefficient's index in each. The
+    joint normal matrix is block-diagonal plus ``k u u^T`` (u: ``n_hat`` at the two rolling
+    coefficients), and the prior, centred on no acceleration across the heading, adds nothing
+    to the right-hand side; so by the Sherman-Morrison formula (Sherman & Morrison 1950) the
+    joint solution is ``c - k Ai u (u^T c) / (1 + k u^T Ai u)`` and the diagonal blocks of the
+    joint inverse ``Ai - k Ai u u^T Ai / (1 + k u^T Ai u)``. Returns the list of corrected
+    ``(c, Ai)``."""
+    cols = [Ai[:, :, r] for (_, Ai), r in zip(systems, roll)]  # Ai u per axis, up to n_hat
+    s = sum(n_hat[ax] ** 2 * cols[ax][:, r] for ax, r in enumerate(roll))
+    d = sum(n_hat[ax] * c[:, r] for ax, ((c, _), r) in enumerate(zip(systems, roll)))
+    f = k / (1.0 + k * s)  # (G,)
+    out = []
+    for ax, (c, Ai) in enumerate(systems):
+        col = cols[ax]
+        out.append((c - (f * n_hat[ax] * d)[:, None] * col,
+                    Ai - (f * n_hat[ax] ** 2)[:, None, None] * col[:, :, None] * col[:, None, :]))
+    return out
+
+
+def _straight_slide_terms(parts: list, roll: list[int], n_hat: np.ndarray, k: float) -> tuple:
+    """``_straighten`` for the fits whose slide coefficients x (per axis) are held to a circle
+    (``_piecewise_fit``'s ``solve_fixed``): per axis the other coefficients b minimise
+    ``b^T N_bb b - 2 b^T (h_b - N_bx x)``, and the prior ``k (n_hat . b_roll)^2`` joins the
+    axes' N_bb by ``k u u^T``. By the Sherman-Morrison formula the minimum over b gains
+    ``kappa (W0 - sum_ax m_ax x_ax)^2`` with ``kappa = k / (1 + k u^T D u)``, ``D`` the per-axis
+    inverses ``N_bb^-1``, ``W0 = u^T D h_b`` and ``m_ax = n_ax (D N_bx)[roll]``, and each axis'
+    b moves by ``-kappa n_ax D u (W0 - sum m x)``.
+
+    ``parts``: per axis ``(N_bb^-1 (G, q, q), N_bx (G, q), h_b (G, q))``; ``roll``: the rolling
+    coefficient's index among b. Returns (kappa (G,), W0 (G,), m (2, G), columns ``D u`` per
+    axis (G, q) up to ``n_hat``)."""
+    cols = [Di[:, :, r] for (Di, _, _), r in zip(parts, roll)]
+    s = sum(n_hat[ax] ** 2 * cols[ax][:, r] for ax, r in enumerate(roll))
+    w0 = sum(n_hat[ax] * np.einsum("gj,gj->g", cols[ax], hb) for ax, (_, _, hb) in enumerate(parts))
+    m = np.stack([n_hat[ax] * np.einsum("gj,gj->g", cols[ax], nbx)
+                  for ax, (_, nbx, _) in enumerate(parts)])
+    return k / (1.0 + k * s), w0, m, cols
+
+
 def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, step_s: float,
                    cfg: "EventConfig", pin: np.ndarray | None = None,
                    slide_decel: float | None = None,
@@ -547,7 +641,8 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                    weight: np.ndarray | None = None, average: bool = False,
                    penalised: bool = False, cache: dict | None = None,
                    held: bool = False,
-                   straight: tuple[float, float] | None = None) -> _Fit | None:
+                   straight: tuple[float, float] | None = None,
+                   lateral: bool = False) -> _Fit | None:
     """Fit one side of a contact: samples ts (n,) s, ps (n, 2) mm, all before or all after t0.
 
     Physics (Alciatore 2004): a sliding ball decelerates at ``mu_s g`` along a constant slip
@@ -675,6 +770,9 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     speed = float(np.hypot(*lc[1]))
     c_prior = -0.5 * cfg.roll_decel_mm_s2 * lc[1] / speed if speed > 0 else np.zeros(2)
     lam = (2.0 * max(sigma_mm, 0.05) / cfg.roll_decel_sigma_mm_s2) ** 2  # (sigma / sd of c)^2
+    n_hat, k_lat = np.zeros(2), 0.0
+    if lateral and after:
+        n_hat, k_lat = _lateral_prior(_far_heading(tau, P), sigma_mm, cfg)
 
     def normal_equations(A, ax, roll_col, prior=None):
         """Per axis ``ax``: (j0, A without a pinned c0, pin-shifted y, N = A^T A, h = A^T y),
@@ -700,10 +798,15 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         coef = np.zeros((G, q, 2))
         inv = np.zeros((G, 2, q, q))
         rss = np.zeros(G)
-        for ax in range(2):
-            j0, Aa, y, AtA, Atb = normal_equations(A, ax, roll_col, prior)
+        eqs = [normal_equations(A, ax, roll_col, prior) for ax in range(2)]
+        systems = []
+        for j0, Aa, y, AtA, Atb in eqs:
             Ai = _batch_inv(AtA)
-            c = np.einsum("gij,gj->gi", Ai, Atb)
+            systems.append((np.einsum("gij,gj->gi", Ai, Atb), Ai))
+        if roll_col is not None and prior is None and k_lat > 0:
+            # The rolling piece held straight (``_lateral_prior``): the axes' solves joined.
+            systems = _straighten(systems, [roll_col - e[0] for e in eqs], n_hat, k_lat)
+        for ax, ((j0, Aa, y, _, _), (c, Ai)) in enumerate(zip(eqs, systems)):
             rss += np.sum((y[None] - np.einsum("gni,gi->gn", Aa, c)) ** 2, axis=1)
             coef[:, j0:, ax] = c
             if not free0[ax]:
@@ -723,9 +826,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         their reductions do not depend on r: with ``cache`` they are kept under ``key``."""
         G, _, q = A.shape
         coef = np.zeros((G, q, 2))
-        if cache is not None and key in cache:
-            parts, inv = cache[key]
-        else:
+        if cache is None or key not in cache:
             inv = np.zeros((G, 2, q, q))
             parts = []
             for ax in range(2):
@@ -738,14 +839,28 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                 alpha = N[:, sc, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, Nbx)
                 beta = h[:, sc] - np.einsum("gi,gij,gj->g", Nbx, Nbb_i, hb)
                 parts.append((j0, o, sc, Aa, y, Nbb_i, Nbx, hb, alpha, beta))
+            lat = None
+            if roll_col is not None and k_lat > 0:
+                # The rolling piece held straight (``_lateral_prior``): the axes joined.
+                roll = [p[1].index(roll_col - p[0]) for p in parts]
+                lat = (_straight_slide_terms([p[5:8] for p in parts], roll, n_hat, k_lat),)
+                full = [(np.zeros((G, q)), inv[:, ax]) for ax in range(2)]
+                for ax, (_, Ai) in enumerate(_straighten(full, [roll_col] * 2, n_hat, k_lat)):
+                    inv[:, ax] = Ai
             if cache is not None:
-                cache[key] = (parts, inv)
+                cache[key] = (parts, inv, lat)
+        else:
+            parts, inv, lat = cache[key]
         (ax_, ay_) = parts
 
         def J(th, w):  # th (G, K) angles, w (G,) prior weight mm^2 -> J (G, K) up to a constant
             c, s_ = np.cos(th), np.sin(th)
             out = r * r * (ax_[8][:, None] * c**2 + ay_[8][:, None] * s_**2) \
                 - 2.0 * r * (ax_[9][:, None] * c + ay_[9][:, None] * s_)
+            if lat is not None:
+                kappa, w0, m, _ = lat[0]
+                out = out + kappa[:, None] * (w0[:, None] - r * (m[0][:, None] * c
+                                                                 + m[1][:, None] * s_)) ** 2
             if dir_prior is not None:
                 d = np.angle(np.exp(1j * (th - dir_prior)))  # wrapped to (-pi, pi]
                 out = out + w[:, None] * (d / math.radians(cfg.slide_dir_sigma_deg)) ** 2
@@ -760,9 +875,14 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
             fine = th0[:, None] + fine_offsets[None, :]
             th = fine[np.arange(G), np.argmin(J(fine, w), axis=1)]
             rss = np.zeros(G)
+            if lat is not None:
+                kappa, w0, m, cols = lat[0]
+                shift = kappa * (w0 - r * (m[0] * np.cos(th) + m[1] * np.sin(th)))  # (G,)
             for ax, (j0, o, sc, Aa, y, Nbb_i, Nbx, hb, _, _) in enumerate(parts):
                 x = r * (np.cos(th) if ax == 0 else np.sin(th))  # (G,)
                 b = np.einsum("gij,gj->gi", Nbb_i, hb - Nbx * x[:, None])
+                if lat is not None:
+                    b = b - (shift * n_hat[ax])[:, None] * cols[ax]
                 c = np.zeros((G, Aa.shape[2]))
                 c[:, o] = b
                 c[:, sc] = x
@@ -871,7 +991,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
                 # ridge prior included: a "rolling" piece that decelerates like a slide, which
                 # a weak ridge against a long piece lets through, shows in it.
                 rss_p = rss + lam * np.sum((coef[:, roll_col, :] - c_prior[None, :]) ** 2,
-                                           axis=1)
+                                           axis=1) + k_lat * (coef[:, roll_col, :] @ n_hat) ** 2
                 r_sc = rss_p if penalised else rss
                 sc = bic(r_sc + tk_prior(grid) * np.maximum(r_sc, floor) / m_obs, k)
                 score, cg, g, tkg = on_grid(sc, coef, tk)
@@ -2511,7 +2631,8 @@ class _Finder:
         # mu_s g from the prior alone is not held here: a slide forced to last to the first
         # sample would pull a slow contact's rough time by frames (``_cloth_slide_decel``).
         decel = self.slide_decel if self.slide_measured else None
-        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, decel, b.weights(td))
+        fd, bad_d = self._side(td, pd_, t_c, b.sigma_fit, step, decel, b.weights(td),
+                               lateral=b.striped)
         for t_bad in bad_a + bad_d:
             b.raw[np.searchsorted(b.t, t_bad)] = np.nan
         return fa, fd
@@ -2626,7 +2747,7 @@ class _Finder:
 
     def _robust_fit(self, ts: np.ndarray, ps: np.ndarray, t0: float, sigma: float, step: float,
                     slide_decel: float | None = None, weight: np.ndarray | None = None,
-                    straight: tuple[float, float] | None = None):
+                    straight: tuple[float, float] | None = None, lateral: bool = False):
         """``_piecewise_fit`` of samples ts (n,) s, ps (n, 2) mm with gross outliers struck.
 
         A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance
@@ -2644,7 +2765,7 @@ class _Finder:
         struck: list[float] = []
         while True:
             f = _piecewise_fit(ts, ps, t0, sigma, step, self.cfg, slide_decel=slide_decel,
-                               weight=weight, straight=straight)
+                               weight=weight, straight=straight, lateral=lateral)
             if f is None or len(struck) >= self.cfg.outlier_max \
                     or len(ts) <= self.cfg.quadratic_min_samples:
                 return f, ts, ps, weight, struck
@@ -2670,7 +2791,7 @@ class _Finder:
 
     def _side(self, ts: np.ndarray, ps: np.ndarray, t_c: float, sigma: float, step: float,
               slide_decel: float | None = None, weight: np.ndarray | None = None,
-              straight: tuple[float, float] | None = None):
+              straight: tuple[float, float] | None = None, lateral: bool = False):
         """Piecewise (slide then roll) fit of one side's samples with gross outliers struck
         (``_robust_fit``); returns (fit, times of the samples struck). A path the chosen model
         still cannot explain within the noise (chi-square test ``RSS / sigma^2 >
@@ -2679,7 +2800,7 @@ class _Finder:
         struck: list[float] = []
         for halved in range(3):
             f, ts, ps, weight, bad = self._robust_fit(ts, ps, t_c, sigma, step, slide_decel,
-                                                      weight, straight)
+                                                      weight, straight, lateral)
             struck += bad
             if f is None or halved == 2 or len(ts) < 2 * self.cfg.quadratic_min_samples:
                 return f, struck
@@ -2760,7 +2881,8 @@ class _Finder:
             fa = _piecewise_fit(ta, pa, t, b.sigma_fit, step, self.cfg, pin, weight=wa,
                                 average=True, held=True, straight=straight)
             fd = _piecewise_fit(td, pd_, t, b.sigma_fit, step, self.cfg, pin, self.slide_decel,
-                                slide_dir, slide_tk, weight=wd, average=True, held=True)
+                                slide_dir, slide_tk, weight=wd, average=True, held=True,
+                                lateral=b.striped)
             if fa is None or fd is None:
                 return math.inf, fa, fd
             return fa.bic + fd.bic + line, fa, fd
