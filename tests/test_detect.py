@@ -1819,10 +1819,12 @@ DARK_ROOMS = {
 
 
 @pytest.mark.xfail(strict=True, reason="issues 3 and 4: a dark ball's unlit limb meeting the cloth it shades has no "
-                   "colour step; a56ae1e places the four balls 2.9/5.6/10.8/2.3 mm (green), 4.6/1.3/10.3/1.3 (blue) "
-                   "and 5.4/5.6/2.6/4.3 (grey) off, the maroon one about as far as the phone clip's black ball; "
-                   "a lit-side refit tried in session 13 (not adopted) gave 2.9/5.6/8.9/7.8, 4.6/1.3/3.8/1.3 "
-                   "and 5.4/5.4/2.6/5.9")
+                   "colour step; a56ae1e placed the four balls 2.9/5.6/10.8/2.3 mm (green), 4.6/1.3/10.3/1.3 (blue) "
+                   "and 5.4/5.6/2.6/4.3 (grey) off, 6856aeb 2.95/5.55/10.84/2.32, 4.61/1.30/10.25/missed, "
+                   "5.36/5.61/2.60/4.26; the dark balls' brightness-rise outline (session 20, _dark_edges) "
+                   "2.14/5.45/0.67/1.22, 4.45/3.33/4.80/missed, 5.41/5.63/2.60/4.39 (the blue room's fourth ball "
+                   "is fitted 1.5 mm off and dropped later, as on 6856aeb); a lit-side refit tried in session 13 "
+                   "(not adopted) gave 2.9/5.6/8.9/7.8, 4.6/1.3/3.8/1.3 and 5.4/5.4/2.6/5.9")
 @pytest.mark.parametrize("name", list(DARK_ROOMS))
 def test_dark_balls_toward_the_corners_of_a_dim_room_are_placed_within_the_resting_target(name, tmp_path):
     from scipy.spatial.transform import Rotation
@@ -1845,6 +1847,46 @@ def test_dark_balls_toward_the_corners_of_a_dim_room_are_placed_within_the_resti
     err, _ = _match(outs[-1], at)
     # Renderer's truth; every ball within the resting target's p95 (2.5 mm, README: issue 3).
     assert np.all(err <= 2.5), (name, err)
+
+
+def _phone_room_black_balls(folder) -> tuple[np.ndarray, pd.DataFrame]:
+    """Truth (4, 2) mm and the detections of the second frame of a two-frame clip of the extra
+    set's phone room (benchmarks/extra_scenes/phone_wide_30fps.toml: its table, camera, wide
+    lens, lamps, dim look and crf 28) with four black balls resting toward its corners from the
+    first frame on, as the clip's 8 ball is: the first at the 8's own spot, upright, so its
+    white number disc faces up and, seen from the camera's side, lies against the far rim."""
+    from pathlib import Path
+
+    from scipy.spatial.transform import Rotation
+
+    from railtrace.scene import load_scene
+    from vision.video import iter_frames, write_video
+
+    scene = load_scene(Path(__file__).resolve().parents[1] / "benchmarks" / "extra_scenes" / "phone_wide_30fps.toml")
+    at = np.array([[1700.0, 820.0], [300.0, 180.0], [1650.0, 150.0], [330.0, 800.0]])
+    balls = tuple(BallLook(str(8 + i), "solid", (24, 24, 24)) for i in range(len(at)))
+    rot = np.concatenate([np.eye(3)[None], Rotation.random(len(at) - 1, random_state=5).as_matrix()])[None]
+    ren = Renderer(scene.table, scene.camera, scene.look, balls, seed=7)
+    frames = [ren.render(at[None], rot, np.ones((1, len(at)), bool), np.array([t])) for t in (0.0, 1 / 30)]
+    clip = folder / "black.mp4"
+    write_video(clip, frames, 30, codec="h264", quality=scene.film.quality)
+    det = BallDetector(scene.camera, scene.table)
+    outs = [det.process(i, t, img) for i, t, img in iter_frames(clip)]
+    return at, outs[-1]
+
+
+def test_black_balls_resting_in_the_phone_rooms_dark_corners_are_placed_past_their_number_disc(tmp_path):
+    # Issues 3 and 4: the phone clip's 8 ball was read 7-10 mm toward the camera's nadir (its
+    # collision with the 2 untimed): its colour-step outline stopped at the edge of its number
+    # disc on the far rim and ran out along the cloth it shades on the near side. A dark ball
+    # is outlined where the brightness rises from its limb to the surround, coming in from
+    # outside (vision.detect.BallDetector._dark_edges). Renderer's truth; issue 3's resting
+    # p95 bound (2.5 mm, README) for the upright ball at the 8's spot, every ball found.
+    # Measured: main at 6856aeb 10.30, 3.05, 6.46, 2.14 mm; with _dark_edges 2.07, 3.05, 5.71,
+    # 1.89 (the others are not held to the bound: their median is 2.56 mm).
+    at, out = _phone_room_black_balls(tmp_path)
+    err, _ = _match(out, at)
+    assert np.all(np.isfinite(err)) and err[0] <= 2.5, err
 
 
 # The extra set's one-lamp room (benchmarks/extra_scenes: a low lamp at one end of an 8 ft
