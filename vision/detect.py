@@ -823,6 +823,60 @@ def _spread_seeds(uv: np.ndarray, diam_px: np.ndarray, sweeps: int = 20) -> np.n
     return p
 
 
+def _held_apart_fits(rows: list[dict], R: float, camera: Camera, sweeps: int = 20) -> list[dict]:
+    """Detection rows with the centres of sharp fits that overlap (closer than a diameter
+    ``2 R`` mm, table frame, but more than ``R`` apart: two balls, not one fitted twice)
+    moved apart to a diameter, each pair's shortfall shared by the two fits in proportion to
+    their centres' variance along the line joining them (``cov_xy``, (2, 2) mm^2 of each
+    fit): the least change in the fits' own least-squares cost that meets the constraint,
+    linearised (the update of a Kalman filter by an exact measurement), repeated over the
+    pairs Gauss-Seidel fashion (Jakobsen 2001's relaxation of distance constraints). Two
+    solid balls cannot overlap; a fit pulled into its touching neighbours (a dark ball whose
+    limb is taken for its shadow on one side while its neighbours' rays are left out on the
+    other, uneven_60fps's rack) does. A fit whose outline leaves it free along the line (a
+    one-sided outline, where the radius bias and the centre trade off) moves most. The
+    rows moved get ``sigma_mm`` at least the move and their image centre (u, v) projected
+    anew at ball-centre height by ``camera``. Returns new row dicts (the others as they
+    were)."""
+    idx = [k for k, r in enumerate(rows) if not (r["blur_x"] or r["blur_y"]) and "cov_xy" in r]
+    if len(idx) < 2:
+        return rows
+    c = np.array([[rows[k]["x"], rows[k]["y"]] for k in idx], float)
+    c0 = c.copy()
+    # The least-squares covariance gives the shape (which way the outline leaves the centre
+    # free); its size is the stated sigma's, which adds what the rays' scatter does not show
+    # (radius bias, a coarse fit kept over the local one, an unsettled edge).
+    cov = []
+    for k in idx:
+        C = np.asarray(rows[k]["cov_xy"], float)
+        cov.append(C * float(rows[k]["sigma_mm"]) ** 2 / max(float(np.trace(C)) / 2, 1e-9))
+    n = len(idx)
+    for _ in range(sweeps):
+        moved = False
+        for i in range(n):
+            for j in range(i + 1, n):
+                d = c[j] - c[i]
+                dist = math.hypot(d[0], d[1])
+                if dist >= 2 * R - 1e-3 or dist <= R:
+                    continue
+                u = d / dist
+                vi, vj = float(u @ cov[i] @ u), float(u @ cov[j] @ u)
+                lam = (2 * R - dist) / max(vi + vj, 1e-9)
+                c[i] -= lam * vi * u
+                c[j] += lam * vj * u
+                moved = True
+        if not moved:
+            break
+    out = list(rows)
+    for m, k in enumerate(idx):
+        step = math.hypot(*(c[m] - c0[m]))
+        if step > 1e-6:
+            uv = camera.project(np.array([[c[m, 0], c[m, 1], R]]))[0]
+            out[k] = dict(rows[k], x=float(c[m, 0]), y=float(c[m, 1]), u=float(uv[0]), v=float(uv[1]),
+                          sigma_mm=max(float(rows[k]["sigma_mm"]), step))
+    return out
+
+
 def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
     """:func:`_robust_fit_general`, by :func:`_robust_fit_sharp` for a sharp ball and
     :func:`_robust_fit_streak` for a streak."""
@@ -2005,7 +2059,7 @@ class BallDetector:
                 kept.append(r)
         # Refitted with its neighbours' rays left out, a fit that had straddled a ball and its
         # shadow can slide onto the shadow: the shadow test again on what stands.
-        rows = kept + self._refit_touching(img, seeds, fits)
+        rows = kept + _held_apart_fits(self._refit_touching(img, seeds, fits), self.R, self.camera)
         return [r for r in self._drop_cast_shadows(img, rows, tested=tested) if r is not None and not r.get("joined")]
 
     def _worth_fitting(self, img: np.ndarray, s: dict) -> bool:
@@ -2829,13 +2883,15 @@ class BallDetector:
         if len(sharp) < 2:
             return [r for r in fits if r is not None]
         xy = np.array([[r["x"], r["y"]] for _, r in sharp])
+        uv = np.array([[r["u"], r["v"]] for _, r in sharp])
+        starts = _spread_seeds(uv, np.array([2 * self._image_radius_px(q) for q in uv]))
         out = list(fits)
         for k, (i, r) in enumerate(sharp):
             d = np.hypot(xy[:, 0] - xy[k, 0], xy[:, 1] - xy[k, 1])
             near = (d < _NEAR_R * self.R) & (np.arange(len(sharp)) != k)
             if not near.any():
                 continue
-            start = dict(seeds[i], uv=np.array([r["u"], r["v"]]), half_px=0.0)
+            start = dict(seeds[i], uv=starts[k], half_px=0.0)
             again = self._fit_either(img, start, avoid=xy[near])
             if again is not None:
                 out[i] = again
@@ -3012,8 +3068,6 @@ class BallDetector:
             p = np.array([xs[j] + origin[0], ys[j] + origin[1]], float)
             if all(np.hypot(*(p - q)) > 1.1 * self.r_min_px for q in chosen):
                 chosen.append(p)
-        if not occluder and len(chosen) > 1:
-            chosen = list(_spread_seeds(np.array(chosen), np.array([2 * self._image_radius_px(p) for p in chosen])))
         return [{"uv": p, "axis": np.array([1.0, 0.0]), "half_px": 0.0, "strict": occluder} for p in chosen]
 
     def _cluster_seeds(self, img: np.ndarray, comp: np.ndarray, origin, r_px: float) -> list[dict]:
@@ -3416,7 +3470,8 @@ class BallDetector:
         hd = float(p[4]) if capsule else 0.0
         travel = 2 * half + 2 * R if capsule else 0.0
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
-        sig = _stated_sigma(cov(), float(p[2]), unsettled, disagree, half)
+        cov_xy = cov()
+        sig = _stated_sigma(cov_xy, float(p[2]), unsettled, disagree, half)
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         # Marked, not refused: the fit stands while the box's pieces are explained (a fit
         # straddling two colliding balls seeds the search that finds both, and is dropped then).
@@ -3437,6 +3492,7 @@ class BallDetector:
             "sigma_mm": sig,
             "joined": joined,
             "bias_mm": float(p[2]),
+            "cov_xy": cov_xy,
         }
 
     def _outline_noise_mm(self, img: np.ndarray, p: np.ndarray, capsule: bool, dirs: np.ndarray) -> float:
