@@ -342,6 +342,10 @@ _SEED_RING_SLACK = 7 / 64
 # _AVOID_R radii of the neighbour's centre (+-27 degrees round the contact of touching balls);
 # the local edge needs at least _MIN_FREE_RAYS rays left (a quarter of the outline).
 _NEAR_R = 2.4
+# Least centre distance, in radii, of two overlapping sharp fits that
+# :func:`_held_apart_fits` moves apart: uneven_60fps's rack fits overlapped down to 1.54 R;
+# lamp_50fps's cue ball and a false fit on the cue tip beside it lay 1.24 R apart.
+_HELD_APART_MIN_R = 1.5
 _AVOID_R = 1.2
 _MIN_FREE_RAYS = 12
 # Half side, in largest ball image radii, of the square patch round a sharp ball's centre
@@ -825,7 +829,10 @@ def _spread_seeds(uv: np.ndarray, diam_px: np.ndarray, sweeps: int = 20) -> np.n
 
 def _held_apart_fits(rows: list[dict], R: float, camera: Camera, sweeps: int = 20) -> list[dict]:
     """Detection rows with the centres of sharp fits that overlap (closer than a diameter
-    ``2 R`` mm, table frame, but more than ``R`` apart: two balls, not one fitted twice)
+    ``2 R`` mm, table frame, but more than ``_HELD_APART_MIN_R`` radii apart: two balls
+    biased toward each other, not one fitted twice nor a ball and a false fit on the cue's tip
+    beside it, lamp_50fps's 1.24 R, whose push moved the struck cue ball 4.4 mm a frame
+    before its start and timed the start 57 ms early)
     moved apart to a diameter, each pair's shortfall shared by the two fits in proportion to
     their centres' variance along the line joining them (``cov_xy``, (2, 2) mm^2 of each
     fit): the least change in the fits' own least-squares cost that meets the constraint,
@@ -857,7 +864,7 @@ def _held_apart_fits(rows: list[dict], R: float, camera: Camera, sweeps: int = 2
             for j in range(i + 1, n):
                 d = c[j] - c[i]
                 dist = math.hypot(d[0], d[1])
-                if dist >= 2 * R - 1e-3 or dist <= R:
+                if dist >= 2 * R - 1e-3 or dist <= _HELD_APART_MIN_R * R:
                     continue
                 u = d / dist
                 vi, vj = float(u @ cov[i] @ u), float(u @ cov[j] @ u)
