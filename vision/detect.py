@@ -827,29 +827,33 @@ def _spread_seeds(uv: np.ndarray, diam_px: np.ndarray, sweeps: int = 20) -> np.n
     return p
 
 
-def _held_apart_fits(rows: list[dict], R: float, camera: Camera, sweeps: int = 20) -> list[dict]:
+def _held_apart_fits(rows: list[dict], R: float, camera: Camera, sweeps: int = 50) -> list[dict]:
     """Detection rows with the centres of sharp fits that overlap (closer than a diameter
     ``2 R`` mm, table frame, but more than ``_HELD_APART_MIN_R`` radii apart: two balls
     biased toward each other, not one fitted twice nor a ball and a false fit on the cue's tip
     beside it, lamp_50fps's 1.24 R, whose push moved the struck cue ball 4.4 mm a frame
-    before its start and timed the start 57 ms early)
-    moved apart to a diameter, each pair's shortfall shared by the two fits in proportion to
-    their centres' variance along the line joining them (``cov_xy``, (2, 2) mm^2 of each
-    fit): the least change in the fits' own least-squares cost that meets the constraint,
-    linearised (the update of a Kalman filter by an exact measurement), repeated over the
-    pairs Gauss-Seidel fashion (Jakobsen 2001's relaxation of distance constraints). Two
-    solid balls cannot overlap; a fit pulled into its touching neighbours (a dark ball whose
-    limb is taken for its shadow on one side while its neighbours' rays are left out on the
-    other, uneven_60fps's rack) does. A fit whose outline leaves it free along the line (a
-    one-sided outline, where the radius bias and the centre trade off) moves most. The
-    rows moved get ``sigma_mm`` at least the move and their image centre (u, v) projected
-    anew at ball-centre height by ``camera``. Returns new row dicts (the others as they
-    were)."""
+    before its start and timed the start 57 ms early) moved apart to a diameter: the least
+    change in the fits' own least-squares cost (the Mahalanobis distance by each centre's
+    covariance ``cov_xy``, (2, 2) mm^2) that keeps every such pair a diameter apart. Solved
+    by projected Gauss-Seidel on the pairs' Lagrange multipliers (Jakobsen 2001's relaxation
+    of distance constraints, weighted), the centres at each step placed where the first-order
+    conditions put them for the multipliers so far (``c_i = c0_i - sum_j lambda_ij C_i n_ij``,
+    ``n_ij`` the unit vector from i to j). Two solid balls cannot overlap; a fit pulled into
+    its touching neighbours (a dark ball whose limb is taken for its shadow on one side while
+    its neighbours' rays are left out on the other, uneven_60fps's rack) does. A fit whose
+    outline leaves it free along the line (a one-sided outline, where the radius bias and
+    the centre trade off) moves most. The rows moved get ``sigma_mm`` at least the move and
+    their image centre (u, v) projected anew at ball-centre height by ``camera``. Returns new
+    row dicts (the others as they were)."""
     idx = [k for k, r in enumerate(rows) if not (r["blur_x"] or r["blur_y"]) and "cov_xy" in r]
     if len(idx) < 2:
         return rows
-    c = np.array([[rows[k]["x"], rows[k]["y"]] for k in idx], float)
-    c0 = c.copy()
+    c0 = np.array([[rows[k]["x"], rows[k]["y"]] for k in idx], float)
+    n = len(idx)
+    d0 = np.linalg.norm(c0[:, None] - c0[None], axis=2)
+    pairs = [(i, j) for i in range(n) for j in range(i + 1, n) if _HELD_APART_MIN_R * R < d0[i, j] < 3 * R]
+    if not any(d0[i, j] < 2 * R for i, j in pairs):
+        return rows
     # The least-squares covariance gives the shape (which way the outline leaves the centre
     # free); its size is the stated sigma's, which adds what the rays' scatter does not show
     # (radius bias, a coarse fit kept over the local one, an unsettled edge).
@@ -857,23 +861,37 @@ def _held_apart_fits(rows: list[dict], R: float, camera: Camera, sweeps: int = 2
     for k in idx:
         C = np.asarray(rows[k]["cov_xy"], float)
         cov.append(C * float(rows[k]["sigma_mm"]) ** 2 / max(float(np.trace(C)) / 2, 1e-9))
-    n = len(idx)
+    lam = {q: 0.0 for q in pairs}
+    unit = {(i, j): (c0[j] - c0[i]) / d0[i, j] for i, j in pairs}
+
+    def placed() -> np.ndarray:
+        c = c0.copy()
+        for (i, j), lv in lam.items():
+            if lv > 0:
+                c[i] -= lv * (cov[i] @ unit[(i, j)])
+                c[j] += lv * (cov[j] @ unit[(i, j)])
+        return c
+
+    c = c0
     for _ in range(sweeps):
-        moved = False
-        for i in range(n):
-            for j in range(i + 1, n):
-                d = c[j] - c[i]
-                dist = math.hypot(d[0], d[1])
-                if dist >= 2 * R - 1e-3 or dist <= _HELD_APART_MIN_R * R:
-                    continue
-                u = d / dist
-                vi, vj = float(u @ cov[i] @ u), float(u @ cov[j] @ u)
-                lam = (2 * R - dist) / max(vi + vj, 1e-9)
-                c[i] -= lam * vi * u
-                c[j] += lam * vj * u
-                moved = True
-        if not moved:
+        worst = 0.0
+        for i, j in pairs:
+            c = placed()
+            d = c[j] - c[i]
+            dist = math.hypot(d[0], d[1])
+            u = d / max(dist, 1e-9)
+            unit[(i, j)] = u
+            c = placed()
+            dist = math.hypot(*(c[j] - c[i]))
+            g = 2 * R - dist
+            step = g / max(float(u @ (cov[i] + cov[j]) @ u), 1e-9)
+            new = max(lam[(i, j)] + step, 0.0)
+            if new > 0 or lam[(i, j)] > 0:
+                worst = max(worst, abs(g))
+            lam[(i, j)] = new
+        if worst < 1e-4:
             break
+    c = placed()
     out = list(rows)
     for m, k in enumerate(idx):
         step = math.hypot(*(c[m] - c0[m]))
