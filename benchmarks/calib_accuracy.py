@@ -283,9 +283,9 @@ def _snapped_to_truth(table: TableSpec, true: Camera, locate):
     point onto the true nose line of its rail (along the line's normal in the nose plane)."""
     h, L, W = table.nose_height_mm, table.length_mm, table.width_mm
 
-    def snapped(grey, quad, tb, config):
+    def snapped(grey, quad, tb, config, run_map=None):
         out = []
-        for pts in locate(grey, quad, tb, config):
+        for pts in locate(grey, quad, tb, config, run_map=run_map):
             if len(pts) == 0:
                 out.append(pts)
                 continue

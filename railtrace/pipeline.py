@@ -10,9 +10,12 @@ thread ahead of the detector where there is a spare core. With ``workers`` other
 detection, most of the work, runs in parallel: the clip is cut in time into one part per worker
 process (:func:`split_frames`), each part's detector starting ``chunk_warmup_s`` before its
 part (its first frame builds the background, as at the start of a clip) and keeping only its
-own frames; tracking and events then run once over the joined detections. The later parts'
+own frames; tracking and events then run once over the joined detections (the event
+finder's contact fits shared with a forked copy per spare core, ``EventConfig.workers``). The later parts'
 processes are started before calibration, so their start-up and their decoding up to their
-part overlap it; they wait for the cameras before detecting.
+part overlap it; while they wait for the cameras they take on pieces of the calibration's own
+work (``vision.calibrate.calibrate``'s ``run_map``: half of the cushion sides' nose searches),
+which give the same results to the last bit in any process.
 """
 
 from __future__ import annotations
@@ -21,8 +24,8 @@ import io
 import itertools
 import logging
 import math
-import multiprocessing
 import resource
+import threading
 import time
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -33,6 +36,7 @@ import pandas as pd
 from railtrace.results import write_results
 from tracking.events import EventConfig, find_events_and_rests
 from tracking.rests import hold_rests
+from tracking.share import start_process, stop_processes
 from tracking.tracker import TrackerConfig, track
 from vision.calibfile import calibration_dict, read_calibration
 from vision.calibrate import CalibConfig, calibrate
@@ -150,7 +154,7 @@ def analyse_clip(
     # calibrates; they wait for the cameras before detecting.
     helpers = _Helpers(clip, parts[1:], info.frame_count) if len(parts) > 1 else None
     try:
-        table, cameras, source, quality, calib_doc = _calibration(clip, config)
+        table, cameras, source, quality, calib_doc = _calibration(clip, config, None if helpers is None else helpers.run_map)
         done("calibration")
         detections = _detect_parts(clip, table, cameras, config, info, parts, helpers, progress)
     finally:
@@ -204,15 +208,16 @@ def _cpu_seconds() -> float:
     return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
 
 
-def _calibration(clip: Path, config: AnalyseConfig):
-    """(table, [(t_from_s, Camera)], source, quality dict, calibration.json dict)."""
+def _calibration(clip: Path, config: AnalyseConfig, run_map: Callable | None = None):
+    """(table, [(t_from_s, Camera)], source, quality dict, calibration.json dict); ``run_map``
+    as :func:`vision.calibrate.calibrate`'s."""
     if config.calibration_path is not None:
         table, camera, doc = read_calibration(config.calibration_path)
         if camera is None:
             raise ValueError(f"{config.calibration_path} holds no camera model; run 'railtrace calibrate' on a clip from this camera")
         changes = [(float(c["t"]), Camera.from_dict(c["camera"])) for c in doc.get("camera_changes", [])]
         return table, changes or [(0.0, camera)], "file", doc.get("quality", {}), doc
-    cal = calibrate(clip, config.table, config.calib)
+    cal = calibrate(clip, config.table, config.calib, run_map=run_map)
     changes = list(cal.camera_changes) or [(0.0, cal.camera)]
     doc = calibration_dict(
         config.table, cal.camera, "auto",
@@ -271,62 +276,77 @@ def _detect_parts(clip, table, cameras, config: AnalyseConfig, info, parts, help
 
 class _Helpers:
     """Worker processes, one per later part of the clip (:func:`_part_worker`), started before
-    calibration. Spawned, not forked: a fork copies this process's decoder and OpenCV thread
+    calibration, which may hand them work through :meth:`run_map` until :meth:`go` gives them
+    the cameras. Spawned, not forked: a fork copies this process's decoder and OpenCV thread
     pools in whatever state they are."""
 
     def __init__(self, clip: Path, parts: list[tuple[int, int, int | None]], n_frames: int):
-        ctx = multiprocessing.get_context("spawn")
         self.procs, self.conns = [], []
         try:
             for a, b, e in parts:
-                mine, theirs = ctx.Pipe()
-                proc = ctx.Process(target=_part_worker, args=(theirs, str(clip), a, (b, e), n_frames), daemon=True, name="railtrace-detect")
-                proc.start()
-                theirs.close()
+                proc, conn = start_process("spawn", _part_worker, (str(clip), a, (b, e), n_frames), "railtrace-detect")
                 self.procs.append(proc)
-                self.conns.append(mine)
+                self.conns.append(conn)
         except BaseException:
             self.close()
             raise
 
     def go(self, table, cameras, detect_config) -> None:
         for conn in self.conns:
-            conn.send((table, cameras, detect_config))
+            conn.send(("go", table, cameras, detect_config))
+
+    def run_map(self, fn: Callable, jobs: list[tuple]) -> list:
+        """``[fn(*job) for job in jobs]``, in order, the jobs shared in near-equal consecutive
+        groups between this process (the first group) and the waiting workers (:func:`_serve`).
+        ``fn`` must be a top-level function and the jobs picklable. The requests are sent from
+        a thread, as a large one blocks until its worker reads it (a worker still decoding up
+        to its part reads it only then), while this process works through its own group."""
+        n = 1 + len(self.conns)
+        groups = [jobs[round(k * len(jobs) / n) : round((k + 1) * len(jobs) / n)] for k in range(n)]
+        asked = [(conn, group) for conn, group in zip(self.conns, groups[1:]) if group]
+        def send() -> None:
+            for conn, group in asked:
+                try:
+                    conn.send(("run", fn, group))
+                except OSError:  # the worker is gone: its recv below says so
+                    pass
+
+        sender = threading.Thread(target=send, daemon=True, name="railtrace-calibration-requests")
+        sender.start()
+        out = [fn(*job) for job in groups[0]]
+        sender.join()
+        for conn, _ in asked:
+            out += _answer(conn, "while calibrating")
+        return out
 
     def results(self) -> list[pd.DataFrame]:
-        out = []
-        for conn in self.conns:
-            try:
-                kind, value = conn.recv()
-            except EOFError:
-                raise ValueError("a detection worker process ended without its results (out of memory?); run again with --workers 1 (AnalyseConfig.workers = 1)") from None
-            if kind == "error":
-                raise value
-            out.append(value)
-        return out
+        return [_answer(conn, "without its results") for conn in self.conns]
 
     def close(self) -> None:
         """Tell waiting workers to stop, and end them (a worker that fails to end in 10 s is
         terminated)."""
-        for conn in self.conns:
-            try:
-                conn.send(None)
-            except (OSError, ValueError):  # already finished and gone: nothing to tell
-                pass
-        for proc, conn in zip(self.procs, self.conns):
-            proc.join(timeout=10.0)
-            if proc.is_alive():
-                proc.terminate()
-                proc.join()
-            conn.close()
+        stop_processes(self.procs, self.conns, None)
+
+
+def _answer(conn, ended: str):
+    """A worker's next answer on ``conn``: its value, or its ValueError raised here; a worker
+    gone before answering is a ValueError saying it ended ``ended``."""
+    try:
+        kind, value = conn.recv()
+    except EOFError:
+        raise ValueError(f"a detection worker process ended {ended} (out of memory?); run again with --workers 1 (AnalyseConfig.workers = 1)") from None
+    if kind == "error":
+        raise value
+    return value
 
 
 def _part_worker(conn, clip: str, read_from: int, keep: tuple[int, int | None], n_frames: int) -> None:
     """A worker process's whole life: decode up to its part, wait for ``(table, cameras,
-    detect config)`` on ``conn`` (None: stop), detect its part, send ``("ok", detections)`` or
-    ``("error", ValueError)``. Top-level, so a spawned process can run it."""
+    detect config)`` on ``conn`` (None: stop) while running the calibration's requests
+    (:func:`_serve`), detect its part, send ``("ok", detections)`` or ``("error", ValueError)``.
+    Top-level, so a spawned process can run it."""
     try:
-        out = _detect(Path(clip), None, None, None, read_from, keep, n_frames, None, wait=conn.recv)
+        out = _detect(Path(clip), None, None, None, read_from, keep, n_frames, None, wait=lambda: _serve(conn))
         if out is not None:
             conn.send(("ok", out))
     except EOFError:  # the analysis ended without starting this part
@@ -337,6 +357,28 @@ def _part_worker(conn, clip: str, read_from: int, keep: tuple[int, int | None], 
             conn.send(("error", ValueError(message)))
         except OSError:
             pass
+
+
+def _serve(conn):
+    """A waiting worker's side of :meth:`_Helpers.run_map`: answers each ``("run", fn, jobs)``
+    on ``conn`` with ``("ok", [fn(*job) for job in jobs])`` (or ``("error", exception)``) until
+    ``("go", table, cameras, detect config)`` comes, and returns that triple (None for None)."""
+    while True:
+        message = conn.recv()
+        if message is None:
+            return None
+        kind, *rest = message
+        if kind == "go":
+            return tuple(rest)
+        fn, jobs = rest
+        try:
+            reply = ("ok", [fn(*job) for job in jobs])
+        except Exception as exc:  # raised in the calibrating process, where it belongs
+            reply = ("error", exc)
+        try:
+            conn.send(reply)
+        except Exception:  # an exception that does not pickle: its words still do
+            conn.send(("error", ValueError(f"calibration work failed in a worker process ({type(reply[1]).__name__}: {reply[1]})")))
 
 
 def _detect(clip, table, cameras, detect_config, read_from, keep, n_frames, progress, read_ahead: int = 0, wait=None) -> pd.DataFrame | None:

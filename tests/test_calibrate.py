@@ -919,3 +919,25 @@ def test_faint_sights_on_a_dark_rail_found_and_noise_alone_is_not():
     assert np.max(np.linalg.norm(found_px - cam.project(found_mm), axis=1)) < 0.3
     none_px, _ = _find_sights(np.round(noise).astype(np.float32), cam, table)
     assert len(none_px) == 0
+
+
+def test_check_image_is_drawn_only_when_asked_for(rendered, calibrated, monkeypatch):
+    # `analyse` never looks at the check image, so calibrating must not draw it (it cost 0.27
+    # processor s on the 720p bank sample); `railtrace calibrate` reads it, and gets the drawing
+    # of the fitted camera with the verdict, once however often it reads it. The reference
+    # image is check_image() called directly on the calibration's own background, camera and
+    # fit figures (its documented inputs).
+    import vision.calibrate as vc
+
+    table, _, img = rendered["green9"]
+    calls = []
+    draw = vc.check_image
+    monkeypatch.setattr(vc, "check_image", lambda *a, **k: calls.append(a) or draw(*a, **k))
+    cal = calibrate(img, table, CalibConfig())
+    assert calls == []
+    first = cal.check_image
+    assert cal.check_image is first and len(calls) == 1
+    bg, cam, tb, fit, px_per_mm, verdict = calls[0][:6]
+    assert bg is cal.background and cam is cal.camera and verdict == "OK" and px_per_mm == CalibConfig().check_px_per_mm
+    assert np.array_equal(first, draw(bg, cam, tb, fit, px_per_mm, verdict))
+    assert first.ndim == 3 and first.shape[1] == round((table.length_mm + 2 * (table.rail_width_mm + 60.0)) * px_per_mm)

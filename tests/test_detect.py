@@ -1355,6 +1355,14 @@ def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_nei
     ends = [(int(round(bare[0] + k * 5 * r_px)), int(round(bare[1]))) for k in (-1, 1)]
     cv2.line(cue, ends[0], ends[1], (40, 60, 90), int(round(1.4 * r_px)))
     assert det._neither_ring_nor_rim(cue, bare), name
+    # The fit's joined mark (_joined_mark, ring and rim sampled once) is the two tests' verdict:
+    # _neither_ring_nor_rim alone for an outline within _JOINED_RMS_MM, either of the two beyond.
+    from vision.detect import _JOINED_RMS_MM
+
+    for img, uv in ((frame, ball), (arm, ball), (cue, bare)):
+        assert det._joined_mark(img, uv, 0.5 * _JOINED_RMS_MM) == det._neither_ring_nor_rim(img, uv), name
+        both = det._joined_no_rim(img, uv) or det._neither_ring_nor_rim(img, uv)
+        assert det._joined_mark(img, uv, 2.0 * _JOINED_RMS_MM) == both, name
 
 
 def test_two_balls_apart_are_not_held_apart_and_a_hands_two_ends_are(resting):

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import math
 import os
+import sys
 
 import numpy as np
 import pandas as pd
@@ -21,7 +22,7 @@ from test_tracker import (
     detections,
     stun_roll_path,
 )
-from tracking.events import EVENT_COLUMNS, SHOT_COLUMNS, EventConfig, find_events
+from tracking.events import EVENT_COLUMNS, SHOT_COLUMNS, EventConfig, find_events, find_events_and_rests
 from tracking.tracker import track
 from vision.table import cushion_angles, rail_direction, rail_inward_normal
 
@@ -539,6 +540,16 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
     short of it, on the top rail beyond it), as a calibration off by that much places them;
     ``mu_slide``: the cloth's ball-cloth sliding friction (Alciatore 2004 range 0.15-0.4).
     Returns (found cushion events, the simulator's cushion events)."""
+    det, truth = _cushion_session_detections(seed, fps, noise_mm, drift_mm, drift_s, outlier_mm,
+                                             shift_mm, mu_slide)
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    return _only(ev, "cushion"), truth
+
+
+def _cushion_session_detections(seed, fps, noise_mm, drift_mm, drift_s, outlier_mm, shift_mm,
+                                mu_slide):
+    """The detections of ``_cushion_session`` (same arguments) and the simulator's cushion
+    events."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections, truth_events
 
@@ -574,8 +585,38 @@ def _cushion_session(seed: int, fps: float = 60.0, noise_mm: float = 1.0, drift_
         for t_c in truth["t"].to_numpy()[::3]:
             rows = det.index[det["frame"] == int(math.floor(t_c * fps)) + 2]
             det.loc[rows[:1], "x"] += outlier_mm
-    ev, _ = find_events(track(det, TABLE), TABLE, det)
-    return _only(ev, "cushion"), truth
+    return det, truth
+
+
+@pytest.mark.skipif(sys.version_info >= (3, 12), reason="no fork from Python 3.12 on (tracking.share.worker_count)")
+def test_events_shared_with_a_forked_process_equal_those_of_one_process(monkeypatch):
+    # The contact solves shared among processes (EventConfig.workers, tracking.share) must
+    # give what one process gives, to the bit: the same events, shots and stays at rest. The
+    # session's twelve contacts, each in its own motion, make twelve runs (_contact_units),
+    # enough to share; the drift and outliers make the fits strike samples, whose taking over
+    # from the forked copy this checks too.
+    det, truth = _cushion_session_detections(3, 60.0, 1.0, 1.0, (0.45, 0.7), 15.0, 0.0, 0.2)
+    import tracking.events
+    from tracking.share import Shared
+
+    forks = []
+
+    class Counted(Shared):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            forks.append(self.forked)
+
+    monkeypatch.setattr(tracking.events, "Shared", Counted)
+    tracks = track(det, TABLE)
+    one = find_events_and_rests(tracks, TABLE, det, EventConfig(workers=1))
+    assert forks == [0, 0]  # the slide profile and the contacts, each in this process
+    two = find_events_and_rests(tracks, TABLE, det, EventConfig(workers=2))
+    assert forks[2:] == [1, 1]  # each shared with one forked copy
+    assert len(_only(one[0], "cushion")) == len(truth) >= 10
+    for a, b in zip(one, two):
+        assert a.equals(b)
+    with pytest.raises(ValueError, match="workers"):
+        EventConfig(workers=-1)
 
 
 def test_cushion_session_outgoing_measures():
@@ -1932,3 +1973,156 @@ def test_a_near_miss_beside_a_resting_ball_is_no_collision(gap_mm, fps, noise_mm
         ev, _, t_c = _nudge_case(seed, fps, noise_mm, gap_mm)
         assert t_c is None
         assert len(_only(ev, "collision")) == 0, (seed, ev)
+
+
+
+@pytest.mark.parametrize("striped, speed, turns", [(True, 220.0, 2.0), (True, 900.0, 0.0),
+                                                   (False, 220.0, 0.0)])
+def test_a_striped_balls_slow_departure_reaches_two_of_its_turns(striped, speed, turns):
+    # A rolling ball turns once per 2 pi R travelled (rolling without slipping, omega = v / R:
+    # Marlow 1995, The Physics of Pocket Billiards, from memory), so a read error tied to a
+    # striped ball's orientation repeats with period 2 pi R / v or its halves (measured on the
+    # renderer: _STRIPE_ALONG below), and the least-squares slope of A sin(w t + phi) over a
+    # window T of whole periods is -12 A cos(phi) / (w T^2) (integrating by parts): it averages
+    # out over whole turns and passes for velocity over less than one. A striped ball's
+    # departure therefore reaches two turns, here 2 * 2 pi R / 220 mm/s = 1.63 s, capped at
+    # EventConfig.depart_max_s 1.5 s; a fast stripe (two turns 0.40 s) and a plain ball keep
+    # the 12-interval window (0.48 s at 25 fps). Path: rolling straight, noise-free, 25 fps.
+    from dataclasses import replace
+    from tracking.events import _Ball, _Finder
+
+    dt = 1.0 / 25.0
+    t = np.arange(100) * dt
+    p = np.stack([300.0 + speed * t, np.full_like(t, 600.0)], axis=1)
+    b = _Ball(0, t, np.arange(len(t)), p, np.gradient(p, dt, axis=0), p.copy(), sigma=0.5,
+              sigma_fit=0.5, striped=striped)
+    cfg = replace(EventConfig(), fit_window_s=12 * dt)  # as find_events stretches it at 25 fps
+    finder = _Finder(TABLE, cfg, dt, 0.5 * dt)
+    reach = finder._depart_reach(b, 0.5, math.inf)
+    expect = 12 * dt if turns == 0 else min(turns * 2 * math.pi * R / speed, cfg.depart_max_s)
+    assert reach == pytest.approx(expect, rel=1e-6)
+
+# A striped ball's read error against its roll, measured on our renderer and detector (not an
+# outside source; scratch script of session 19, stripe_roll.py): one green-banded stripe rolling
+# without slipping at 220 mm/s under the extra set's cheapwide_25fps camera and room (1.6 m up,
+# strong barrel lens, open 1/25 s shutter over 8 sub-samples, H.264 crf 32), 60 frames read by
+# vision.detect.BallDetector, read minus truth along and across its heading fitted by a Fourier
+# series in the roll angle theta (harmonics 1..4, cos then sin of each; the mean left out: a
+# constant offset moves no velocity). Rows: the band's axis at _STRIPE_PSI degrees from the roll
+# axis (theta = 0 with the axis tipped toward the zenith). The second harmonic along the heading
+# (-1.4 .. -2.9 mm) is a sawtooth twice per turn: the outline rides the band, whose top moves at
+# twice the centre's speed, for three or four frames and drops back; cheapwide's own green 14
+# reads the same way after its top-rail contact (along its heading -8.1, -7.0, -4.0, -2.2, +0.8,
+# +3.6, +6.5 mm, then back). Rendered sharp and without the codec (band at 0, 30, 60 deg, 300
+# mm/s) the harmonics stay under 0.7 mm.
+_STRIPE_PSI = np.array([0.0, 20.0, 45.0, 60.0, 75.0, 90.0])
+_STRIPE_ALONG = np.array([
+    [-0.18, -0.10, 0.64, -1.47, 0.23, 0.01, -0.31, -0.74],
+    [-0.27, 0.01, 0.78, -1.85, -0.20, 0.11, -0.04, -0.57],
+    [-0.16, 0.74, 0.53, -2.25, -0.64, -0.06, 0.82, -0.36],
+    [0.48, 0.06, 0.94, -2.91, 0.40, -0.02, 0.61, 0.56],
+    [0.33, -0.08, 0.35, -2.70, -0.12, 0.18, 0.08, 1.10],
+    [-0.44, -0.64, 0.40, -1.42, -0.31, -0.12, 1.38, 2.08]])
+_STRIPE_ACROSS = np.array([
+    [-0.19, 0.12, 0.04, 0.01, 0.06, 0.07, 0.15, 0.06],
+    [-0.65, -0.00, -0.07, 0.03, -0.06, -0.18, -0.02, 0.08],
+    [-0.86, -0.35, 0.01, -0.02, 0.53, -0.31, -0.59, 0.10],
+    [-0.93, -0.01, -0.34, -0.27, 0.18, -0.25, -0.16, -0.05],
+    [0.88, -0.52, 0.61, -0.33, 1.21, 0.32, 0.40, 0.48],
+    [0.55, -0.08, -0.04, 0.77, -0.72, -0.12, 0.70, -0.75]])
+
+
+def _stripe_read_error(rot: np.ndarray, vel: np.ndarray) -> np.ndarray:
+    """(T, 2) mm read error of a striped ball with body-to-table rotations ``rot`` (T, 3, 3)
+    (band about the body z axis, as vision.render draws it) moving at ``vel`` (T, 2) mm/s: the
+    band axis ``a`` (sign-free) in the heading frame gives psi = angle(a, roll axis) and
+    theta = atan2(a . heading, a . up); the tables above, interpolated in psi."""
+    out = np.zeros((len(rot), 2))
+    for i, (m, v) in enumerate(zip(rot, vel)):
+        sp = math.hypot(*v)
+        if sp < 1.0:
+            continue
+        h = np.array([v[0] / sp, v[1] / sp, 0.0])
+        r = np.array([-h[1], h[0], 0.0])  # the roll axis, z x heading
+        a = m[:, 2] if m[:, 2] @ r >= 0 else -m[:, 2]
+        psi = math.degrees(math.acos(min(1.0, float(a @ r))))
+        th = math.atan2(float(a @ h), float(a[2]))
+        f = np.array([g(k * th) for k in range(1, 5) for g in (math.cos, math.sin)])
+        along = f @ np.array([np.interp(psi, _STRIPE_PSI, c) for c in _STRIPE_ALONG.T])
+        across = f @ np.array([np.interp(psi, _STRIPE_PSI, c) for c in _STRIPE_ACROSS.T])
+        out[i] = along * h[:2] + across * r[:2]
+    return out
+
+
+def _striped_top_bank(seed: int, fps: float, cfg: EventConfig):
+    """A striped ball struck rolling up the table into the top rail (270-470 mm/s arriving,
+    within 15 degrees of square), simulated by analysis.physics (Mathavan, Jackson & Parkin
+    2010 cushion impulse, then the slide to rolling on the cloth: Han 2005, Alciatore 2004),
+    its orientation integrated from a random start (Trajectory.rotations), read with
+    ``_stripe_read_error`` plus 0.8 mm white noise. Returns (found cushion row, truth row)."""
+    from scipy.spatial.transform import Rotation
+
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import truth_events
+
+    rng = np.random.default_rng(seed)
+    ang, v0 = float(rng.uniform(-15.0, 15.0)), float(rng.uniform(480.0, 640.0))
+    sim = Simulator(TABLE, PhysicsParams(), {"s": (1000.0, 300.0)})
+    sim.strike(0.2, Strike("s", v0, math.radians(90.0 + ang), 0.0, 0.4))
+    t_end = 4.5
+    sim.lift(t_end, "s")
+    traj = sim.trajectory()
+    times = np.arange(int(t_end * fps)) / fps
+    s = traj.sample(times)
+    rot = traj.rotations(times, start=(0.0, Rotation.random(random_state=seed).as_matrix()[None]))
+    pos, vel = s.pos[:, 0], np.nan_to_num(s.vel[:, 0])
+    moving = (np.hypot(*vel.T) > 1.0)[:, None]
+    z = pos + _stripe_read_error(rot[:, 0], vel) + rng.normal(0.0, 0.8, pos.shape) * moving
+    det = pd.DataFrame(dict(frame=np.arange(len(times)), t=times, x=z[:, 0], y=z[:, 1], u=0.0,
+                            v=0.0, quality=0.9, colour="", pattern="stripe", blur_x=0.0,
+                            blur_y=0.0, sigma_mm=1.0, truth="s"))
+    truth = truth_events(TABLE, traj, t_end)
+    truth = truth[(truth.kind == "cushion") & (truth.rail == "top")]
+    found = _only(find_events(track(det, TABLE), TABLE, det, cfg)[0], "cushion")
+    if len(truth) == 0 or len(found) == 0:
+        return None, None
+    tr = truth.iloc[0]
+    return found.iloc[int(np.argmin(np.abs(found.t - tr.t)))], tr
+
+
+@pytest.fixture(scope="module")
+def striped_banks():
+    """(speed_out relative, angle_out deg, restitution) errors of the striped top-rail banks of
+    seeds 0..11 at 25 fps (``_striped_top_bank``; seed 3 stops short of the rail)."""
+    errs = []
+    for seed in range(12):
+        found, tr = _striped_top_bank(seed, 25.0, EventConfig())
+        if tr is None:
+            continue
+        errs.append((found.speed_out / tr.speed_out - 1.0, found.angle_out - tr.angle_out,
+                     found.restitution - tr.restitution))
+    return np.abs(np.array(errs))
+
+
+def test_a_striped_balls_slow_bank_read_with_its_roll_error(striped_banks):
+    # Issue 4 acceptance, cushion figures: restitution median error <= 0.03 and angle out
+    # <= 1 degree, here on slow striped banks whose reads carry the renderer-measured
+    # roll-periodic error (``_stripe_read_error``) against the simulator's truth (Mathavan
+    # et al. 2010 cushion). Measured (session 19, 23 contacts of seeds 0..23): one fit window
+    # restitution 0.057, angle out 0.60 deg, speed out 4.2 % with one fit window; 0.027,
+    # 0.63 deg, 5.5 % with the departure over two turns (``_Finder._depart_reach``).
+    med = np.median(striped_banks, axis=0)
+    assert len(striped_banks) >= 10, striped_banks
+    assert med[1] <= 1.0, med
+
+
+def test_a_striped_balls_slow_bank_restitution(striped_banks):
+    # Issue 4 acceptance: cushion restitution median error <= 0.03 (one fit window: 0.057).
+    assert np.median(striped_banks[:, 2]) <= 0.03, np.median(striped_banks, axis=0)
+
+
+@pytest.mark.xfail(strict=True, reason="speed out of slow striped banks misses issue 4's 3 %: "
+                   "4.2 % with one fit window, 5.5 % with two turns (session 19, 23 contacts)")
+def test_a_striped_balls_slow_bank_speed_out(striped_banks):
+    # Issue 4 acceptance: cushion speed median error <= 3 %.
+    assert np.median(striped_banks[:, 0]) <= 0.03, np.median(striped_banks, axis=0)

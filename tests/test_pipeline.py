@@ -243,3 +243,60 @@ def test_worker_processes_end_when_calibration_fails(tmp_path):
         analyse_clip(bad, out, config)
     assert not out.exists()
     assert multiprocessing.active_children() == []
+
+
+def test_calibration_helped_by_a_waiting_worker_is_the_same(small_clip):
+    # While the later parts' processes wait for the cameras, calibration hands one of them half
+    # of the cushion sides' nose searches (run_map). Each side's search depends on its
+    # arguments alone, so the calibration must come out the same to the last bit as in one
+    # process: the same camera, nose points and quality figures (the refinement amplifies a
+    # one-ulp change of its input to micrometres of camera position, so any difference shows).
+    import multiprocessing
+
+    import numpy as np
+
+    from railtrace.pipeline import _Helpers
+    from vision.calibfile import read_calibration
+    from vision.calibrate import CalibConfig, calibrate
+    from vision.video import probe
+
+    clip, truth = small_clip
+    table = read_calibration(truth / "calibration.json")[0]
+    alone = calibrate(clip, table, CalibConfig())
+    helpers = _Helpers(clip, [(5, 5, None)], probe(clip).frame_count)
+    try:
+        shared = calibrate(clip, table, CalibConfig(), run_map=helpers.run_map)
+    finally:
+        helpers.close()
+    for name in ("K", "dist", "rvec", "tvec"):
+        assert np.array_equal(getattr(shared.camera, name), getattr(alone.camera, name)), name
+    assert [n.rail for n in shared.noses] == [n.rail for n in alone.noses]
+    for a, b in zip(alone.noses, shared.noses):
+        assert np.array_equal(a.points_px, b.points_px) and np.array_equal(a.residuals_px, b.residuals_px), a.rail
+    assert shared.quality == alone.quality
+    assert np.array_equal(shared.corners_px, alone.corners_px)
+    assert multiprocessing.active_children() == []
+
+
+def test_worker_runs_requests_in_order_and_returns_their_errors(small_clip):
+    # _Helpers.run_map shares the jobs between this process and a waiting worker: the results
+    # must come back in the jobs' order, and an error raised in the worker must be raised here
+    # as the same ValueError (its message names the bad value), leaving no process behind.
+    import multiprocessing
+
+    from railtrace.pipeline import _Helpers
+    from vision.table import parse_table
+    from vision.video import probe
+
+    clip, _ = small_clip
+    jobs = [("9ft", None), ("8ft", None), ("2000x1000", None), ("7ft", None), ("9ft", None)]
+    helpers = _Helpers(clip, [(5, 5, None)], probe(clip).frame_count)
+    try:
+        assert helpers.run_map(parse_table, jobs) == [parse_table(*job) for job in jobs]
+        with pytest.raises(ValueError, match="snooker-ish"):
+            parse_table("snooker-ish", None)  # the error this process gives, as reference
+        with pytest.raises(ValueError, match="snooker-ish"):
+            helpers.run_map(parse_table, [("9ft", None), ("snooker-ish", None)])  # the second job runs in the worker
+    finally:
+        helpers.close()
+    assert multiprocessing.active_children() == []

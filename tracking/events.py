@@ -105,7 +105,8 @@ Method
    by the cushion's friction (``_slide_direction``, Mathavan, Jackson & Parkin 2010), and on its
    duration from the clip's other cushion contacts
    (``_cushion_slide_ratio``: the normal speed lost sliding is about a fixed fraction of the
-   normal speed arriving).
+   normal speed arriving). A striped ball, whose reads err with its roll, has its departure
+   fitted over two of its turns where one window holds less (``_Finder._depart_reach``).
    *Cushion*: each side's fit is intersected with the reversal line; in a rigid impact both
    meet it at the same instant, so the two crossing times are combined by inverse-variance
    weighting (the linearised least-squares time where both fits cross the line). The line is the
@@ -195,6 +196,7 @@ import pandas as pd
 from scipy.optimize import LinearConstraint, least_squares, minimize, minimize_scalar, nnls
 from scipy.stats import chi2, truncnorm
 
+from tracking.share import Shared
 from vision.table import RAILS, TableSpec, cushion_angles, rail_inward_normal
 
 EVENT_COLUMNS = [
@@ -339,6 +341,35 @@ class EventConfig:
     ``nudge_rest_window_s``: the resting ball's spot is read from its samples over this long
     before the halo and after it (at least three each side; the 8 was unseen for 0.5 s before
     its nudge); each read carries the resting detection error ``wave_position_sd_mm``.
+
+    A striped ball's cushion departure (``_Finder._depart_reach``) is fitted past
+    ``fit_window_s`` to ``depart_roll_turns`` turns of the ball (``2 pi R / v`` each, at the
+    speed it leaves with), at most ``depart_max_s`` and never past its next event, so its read
+    error, which repeats with its roll, averages out instead of passing for velocity.
+    ``depart_max_s`` bounds the reach of a ball slow enough to stop within it. Measured
+    (session 19): rendered through the cheapwide_25fps camera, room and codec, a rolling
+    stripe's read runs ahead of its centre along the heading by up to 4-6 mm for three or four
+    frames and drops back, twice per turn (second harmonic of the roll angle 1.4-2.9 mm, by the
+    band's tilt); a solid's number discs give one too (band tilted 60 deg: 3.9 mm across, first
+    harmonic; not tried as a gate). On slow striped top-rail banks read with that error
+    (tests/test_events.py ``_striped_top_bank``, 23 contacts at 25 fps) one window gave
+    restitution 0.057, angle out 0.60 deg, speed out 4.2 %; two turns 0.027, 0.63 deg, 5.5 %
+    (worse); at 30 fps (15 contacts) 0.043, 0.80 deg, 5.6 % and 0.028, 0.82 deg, 5.2 %. Only
+    striped balls (the tracker's ``pattern`` label): a longer rolling leg makes a plain ball's
+    slow contact lean harder on its line (tests/test_events.py, a slow departure moved with the
+    line: angle_out spread 2.8 deg over +-0.5 mm, 1.8 allowed), and the earlier gate on a
+    drifting noise estimate (``_Ball.sigma_fit`` over ``_Ball.sigma``) opened on
+    phone_wide_30fps's and lamp_50fps's cue balls (ratios 3.5, 2.2) and missed their stripes
+    (1.5, 1.6) and most simulated stripes (1.2-1.8, white noise alone 1.0-1.5).
+    On the extra rendered set (``benchmarks/analyse_accuracy.py --extra --reuse``, against one
+    window): cheapwide_25fps speed out 3.64 -> 1.98 %, restitution 0.045 -> 0.028, angle out
+    1.39 -> 1.01 deg; phone_wide_30fps angle out 2.12 -> 1.38; uneven_60fps angle out 0.93 ->
+    0.91, restitution 0.023 -> 0.022; but bright_pocket_1080p50 angle out 0.41 -> 0.51,
+    restitution 0.002 -> 0.004, speed in 0.49 -> 0.66 % (not explained; all within target).
+    ``workers``: processes that share the independent fits (``tracking.share``): the profile
+    over the cloth's sliding deceleration (``_cloth_slide_decel``) and the balls' cushion
+    contacts (``_cushion_rows``); 0, the default, is one per core this process may run on, 1
+    none forked. The events are the same to the bit for any count; only the time differs.
     """
 
     rest_speed_mm_s: float = 50.0
@@ -390,10 +421,17 @@ class EventConfig:
     wave_max_outlier_share: float = 0.5
     nudge_halo_mm: float = 28.575
     nudge_rest_window_s: float = 1.0
+    depart_roll_turns: float = 2.0
+    depart_max_s: float = 1.5
+    workers: int = 0
 
     def __post_init__(self) -> None:
         for name, value in self.__dict__.items():
             if name == "exposure_s" and value is None:
+                continue
+            if name == "workers":
+                if not (isinstance(value, int) and value >= 0):
+                    raise ValueError(f"EventConfig.workers = {value!r} must be 0 (one process per core) or a positive count")
                 continue
             if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
                 raise ValueError(f"EventConfig.{name} = {value!r} must be a positive number")
@@ -913,6 +951,7 @@ class _Ball:
     firsts: tuple = (0,)  # first row of each stay on the table (``_motion``)
     fast: list = field(default_factory=list)  # [(i0, i1)] stretches above the rest speed
     weight: np.ndarray | None = None  # (N,) typical detection sigma over each sample's, or None
+    striped: bool = False  # the tracker's pattern label is ``stripe`` (``_Finder._depart_reach``)
 
     def weights(self, ts: np.ndarray) -> np.ndarray | None:
         """Relative weights (n,) of the samples at times ts (from ``samples``), or None."""
@@ -986,8 +1025,17 @@ def _balls(tracks: pd.DataFrame, detections: pd.DataFrame | None, radius_mm: flo
             raw = p.copy()
             raw[~seen] = np.nan
         out.append(_Ball(int(tid), g["t"].to_numpy(float), frames, p,
-                         g[["vx", "vy"]].to_numpy(float), raw, weight=weight))
+                         g[["vx", "vy"]].to_numpy(float), raw, weight=weight,
+                         striped=_striped(g)))
     return out
+
+
+def _striped(g: pd.DataFrame) -> bool:
+    """Whether one track's rows ``g`` are mostly labelled ``stripe`` (the tracker's
+    ``pattern`` column, from the detector's labels); False without the column."""
+    if "pattern" not in g.columns or not len(g):
+        return False
+    return bool(np.mean(g["pattern"].to_numpy() == "stripe") > 0.5)
 
 
 def _breaks(ball: _Ball, diameter_mm: float) -> np.ndarray:
@@ -1526,32 +1574,7 @@ def find_events_and_rests(
         collisions_by_ball.setdefault(r["track"], []).append((r["t"], r.get("driver", r["other"])))
     # Each rail's contact line from the apexes of all its contacts (``_rail_offsets``): the
     # calibration's reversal line may be off by a millimetre, and every contact is pinned to it.
-    apexes: dict[str, list[tuple[float, float]]] = {r: [] for r in RAILS}
-    for b in balls:
-        raw = b.raw.copy()  # the side fits strike outliers; the contacts below strike their own
-        for tg, rail in rough_cushions[b.track]:
-            a = finder.cushion(b, rail, tg, apex_only=True)
-            if a is not None:
-                apexes[rail].append(a)
-        b.raw = raw
-    finder.rail_offset, finder.rail_line_sd = _rail_offsets(apexes, cfg.reversal_line_sd_mm)
-    first = []  # (ball, rail, rough time, row or None)
-    for b in balls:
-        for tg, rail in rough_cushions[b.track]:
-            # The first solve measures each slide (``finder.slides``) for the clip's ratio.
-            first.append((b, rail, tg, finder.cushion(b, rail, tg)))
-    finder.slide_ratio = _cushion_slide_ratio(finder)
-    for b, rail, tg, r in first:
-        # Every departure of a ball arriving rolling is solved again with the slide's duration
-        # prior, a well-seen one too (five samples of slide or more; before, only the others):
-        # where its samples fix the slide they outweigh the prior, and where they do not the
-        # prior holds it (event_accuracy.py --fps 30 seeds 1/2/3 restitution
-        # 0.0303/0.0289/0.0257 -> 0.0296/0.0289/0.0249, 60 fps 0.0268/0.0224/0.0209 ->
-        # 0.0241/0.0215/0.0185).
-        if finder.slide_ratio is not None:
-            r = finder.cushion(b, rail, tg)
-        if r is not None:
-            rows.append(r)
+    rows += _cushion_rows(finder, balls, rough_cushions)
     _add_found_rolling(balls, cfg, table.ball_diameter_mm)
     _add_struck_slow(balls, collisions_by_ball, cfg, dt, table.ball_diameter_mm)
     moves = []  # (track, t_begin, t_end)
@@ -1601,6 +1624,111 @@ def find_events_and_rests(
     events, shots = _assemble(rows, moves, dt)
     reach = table.ball_diameter_mm + cfg.collision_margin_mm
     return events, shots, _rests(balls, moves, rows, dt, reach, cfg.rest_speed_mm_s)
+
+
+def _cushion_rows(finder: "_Finder", balls: list[_Ball], rough_cushions: dict) -> list[dict]:
+    """The cushion events of every ball's rough contacts (``rough_cushions``: track -> [(rough
+    time s, rail)]), in ball and contact order; sets the finder's rail lines and slide ratio on
+    the way and leaves each ball's samples with the contact fits' outliers struck.
+
+    Three passes: the unpinned apexes of every contact (each ball's samples put back after it),
+    which fix each rail's contact line (``_rail_offsets``); every contact solved, which
+    measures the slides (``finder.slides``) for the clip's ratio (``_cushion_slide_ratio``);
+    and, that ratio known, every contact solved again with it. A contact's solve reads and
+    strikes only its ball's samples within its reach (``_contact_units``) and reads the
+    finder's clip-wide values, so runs of contacts whose reaches do not meet are shared among
+    ``cfg.workers`` processes (``tracking.share``), each run's calls in one process in their
+    serial order, and their answers (rows, slides, struck samples) gathered in order."""
+    cfg = finder.cfg
+    units = _contact_units(finder, balls, rough_cushions)
+
+    def solve(unit: tuple, step: tuple) -> tuple:
+        """One pass over a unit's contacts: ``("apex", None)``, ``("first", (rail offsets,
+        line sds))`` or ``("again", slide ratio)``."""
+        b, contacts, i0, i1 = unit
+        kind, value = step
+        if kind == "apex":
+            raw = b.raw.copy()  # the side fits strike outliers; the contacts strike their own
+            out = [(rail, finder.cushion(b, rail, tg, apex_only=True)) for tg, rail in contacts]
+            b.raw = raw
+            return out
+        if kind == "first":
+            finder.rail_offset, finder.rail_line_sd = value
+        else:
+            finder.slide_ratio = value
+        n0 = len(finder.slides)
+        out = [finder.cushion(b, rail, tg) for tg, rail in contacts]
+        return out, finder.slides[n0:], b.raw[i0:i1].copy()
+
+    def gather(answers: list, slides0: list) -> list:
+        """Rows of a solving pass in order; the slides and struck samples taken over."""
+        finder.slides = list(slides0)
+        out = []
+        for (b, _, i0, i1), (found, slides, raw) in zip(units, answers):
+            b.raw[i0:i1] = raw
+            finder.slides += slides
+            out += found
+        return out
+
+    # Each contact costs about alike (three solves of two side fits, some 50 ms); a fork
+    # costs 30-80 ms (measured on the loaded 2-core machine).
+    with Shared(solve, units, [len(u[1]) for u in units], cfg.workers, min_cost=4) as pool:
+        apexes: dict[str, list[tuple[float, float]]] = {r: [] for r in RAILS}
+        for found in pool.map(("apex", None)):
+            for rail, a in found:
+                if a is not None:
+                    apexes[rail].append(a)
+        finder.rail_offset, finder.rail_line_sd = _rail_offsets(apexes, cfg.reversal_line_sd_mm)
+        # The first solve measures each slide (``finder.slides``) for the clip's ratio.
+        slides0 = list(finder.slides)  # before this process's own solves add theirs
+        first = gather(pool.map(("first", (finder.rail_offset, finder.rail_line_sd))), slides0)
+        finder.slide_ratio = _cushion_slide_ratio(finder)
+        if finder.slide_ratio is not None:
+            # Every departure of a ball arriving rolling is solved again with the slide's
+            # duration prior, a well-seen one too (five samples of slide or more; before, only
+            # the others): where its samples fix the slide they outweigh the prior, and where
+            # they do not the prior holds it (event_accuracy.py --fps 30 seeds 1/2/3
+            # restitution 0.0303/0.0289/0.0257 -> 0.0296/0.0289/0.0249, 60 fps
+            # 0.0268/0.0224/0.0209 -> 0.0241/0.0215/0.0185).
+            slides0 = list(finder.slides)
+            first = gather(pool.map(("again", finder.slide_ratio)), slides0)
+    return [r for r in first if r is not None]
+
+
+def _contact_units(finder: "_Finder", balls: list[_Ball], rough_cushions: dict) -> list[tuple]:
+    """Each ball's rough cushion contacts cut into runs that can be solved apart: a list of
+    ``(ball, [(rough time s, rail)], i0, i1)`` in ball and contact order, rows ``i0:i1`` of the
+    ball's samples holding every sample the run's solves can read or strike.
+
+    A contact's solve (``_Finder.cushion``) fits the samples within ``fit_window_s`` of its
+    time, which lies within two frame intervals of the rough time (the crossings it looks for),
+    and strikes outliers among them only: its reach is the rough time plus or minus the window
+    and three intervals. Two consecutive contacts of a ball start a new run where their
+    reaches do not meet and a sample lies between them (so the last sample before the later
+    one, which a departure-only solve reads, is outside the earlier one's reach); a ball whose
+    contacts are not in time order stays one run. A striped ball's departure may reach on to
+    ``depart_max_s`` (``_Finder._depart_reach``), so its reach after a contact is that long."""
+    reach = finder.cfg.fit_window_s + 3.0 * finder.dt
+    units = []
+    for b in balls:
+        contacts = list(rough_cushions[b.track])
+        if not contacts:
+            continue
+        after = reach + max(finder.cfg.depart_max_s - finder.cfg.fit_window_s, 0.0) * b.striped
+        times = [tg for tg, _ in contacts]
+        seen = b.t[np.isfinite(b.raw[:, 0])]
+        runs = [[contacts[0]]]
+        for prev, cur in zip(contacts[:-1], contacts[1:]):
+            lo, hi = prev[0] + after, cur[0] - reach
+            if times == sorted(times) and lo < hi and np.any((seen > lo) & (seen < hi)):
+                runs.append([cur])
+            else:
+                runs[-1].append(cur)
+        for run in runs:
+            i0 = int(np.searchsorted(b.t, run[0][0] - reach, "left"))
+            i1 = int(np.searchsorted(b.t, run[-1][0] + after, "right"))
+            units.append((b, run, i0, i1))
+    return units
 
 
 def _rests(balls: list[_Ball], moves: list[tuple[int, float, float]], rows: list[dict],
@@ -2128,16 +2256,39 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     if not found:
         return mu0, sd0
 
-    def total(r: float) -> float:
-        out = ((r - mu0) / sd0) ** 2
-        for ts, ps, tg, sigma, wt, cache in found:
-            f = _piecewise_fit(ts, ps, tg, sigma, step, cfg, slide_decel=r, weight=wt,
-                               penalised=True, cache=cache)
-            if f is not None:
-                m = 2 * f.n
-                out += m * math.log(max(f.rss, m * 1e-18) / m) + f.k * math.log(m)
-        return out
+    def term(item: tuple, r: float) -> float | None:
+        """One departure's criterion at the trial deceleration r, or None (no fit)."""
+        ts, ps, tg, sigma, wt, cache = item
+        f = _piecewise_fit(ts, ps, tg, sigma, step, cfg, slide_decel=r, weight=wt,
+                           penalised=True, cache=cache)
+        if f is None:
+            return None
+        m = 2 * f.n
+        return m * math.log(max(f.rss, m * 1e-18) / m) + f.k * math.log(m)
 
+    # The departures are shared among processes (``tracking.share``), each keeping its own
+    # fits' caches; the terms are summed here in the departures' order, as one process would.
+    # A fork costs some 30-80 ms (tracking/share.py), the 30-odd criterion values about 20 ms
+    # of processor time per departure.
+    with Shared(term, found, [1.0] * len(found), cfg.workers, min_cost=4) as pool:
+        return _slide_decel_minimum(lambda r: _summed(((r - mu0) / sd0) ** 2, pool.map(r)),
+                                    cfg, len(found))
+
+
+def _summed(first: float, terms: list) -> float:
+    """``first`` plus each term that is not None, added in order."""
+    out = first
+    for x in terms:
+        if x is not None:
+            out += x
+    return out
+
+
+def _slide_decel_minimum(total, cfg: "EventConfig", n_found: int) -> tuple[float, float]:
+    """The minimum of the criterion ``total(r)`` over the cloth's sliding deceleration r
+    (mm/s^2) and its Laplace standard deviation (``_cloth_slide_decel``), with ``n_found``
+    measured departures."""
+    sd0 = cfg.slide_decel_sigma_mm_s2
     lo, hi = cfg.slide_decel_min_mm_s2, cfg.slide_decel_max_mm_s2
     grid = np.geomspace(lo, hi, 9)  # steps of 35 %
     vals = [total(float(r)) for r in grid]
@@ -2151,7 +2302,7 @@ def _cloth_slide_decel(finder: "_Finder", balls: list[_Ball], rough_cushions: di
     r = rg + float(res.x) if res.fun <= vals[g] else rg
     # Second difference over a step that the criterion's own scale sets (the prior's curvature
     # bounds the posterior sd by sd0, so a step of a few percent of it resolves the curve).
-    h = max(0.05 * sd0 * min(1.0, 1.0 / math.sqrt(len(found))), 1.0)
+    h = max(0.05 * sd0 * min(1.0, 1.0 / math.sqrt(n_found)), 1.0)
     h = min(h, r - lo, hi - r) if lo < r < hi else h
     f0 = total(r)
     curv = (total(r + h) - 2.0 * f0 + total(r - h)) / (h * h)
@@ -2353,7 +2504,7 @@ class _Finder:
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure) if exclude else None
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
-        td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
+        td, pd_ = b.samples(t_c, min(hi, t_c + self._depart_reach(b, t_c, hi)), ex)
         step = self.cfg.kink_step_frames * self.dt
         fa, bad_a = self._side(ta, pa, t_c, b.sigma_fit, step, weight=b.weights(ta),
                                straight=self._slid_from_rest(b, lo, t_c))
@@ -2364,6 +2515,35 @@ class _Finder:
         for t_bad in bad_a + bad_d:
             b.raw[np.searchsorted(b.t, t_bad)] = np.nan
         return fa, fd
+
+    def _depart_reach(self, b: _Ball, t_c: float, hi: float) -> float:
+        """How far (s) past a cushion contact at ``t_c`` its departure fits reach: at least
+        ``fit_window_s``, and at least ``depart_roll_turns`` turns of the ball, ``2 pi R / v``
+        at the speed ``v`` it leaves with (the chord over ``fit_window_s``), within its next
+        event ``hi``.
+
+        A striped ball's reads err by its orientation (the outline fit rides the band, whose
+        top moves at twice the centre's speed, then drops back: cheapwide_25fps's green-stripe
+        14, off by up to 8 mm along its path; the same rendered, EventConfig), and a rolling
+        ball turns once every ``2 pi R`` it travels (rolling without slipping, omega = v / R:
+        Marlow 1995, from memory), so that error repeats with period ``2 pi R / v`` and its
+        halves. Over less than one period it is a drift that a least-squares path takes for
+        velocity; over whole periods it averages out (the least-squares slope of
+        ``A sin(w t + phi)`` over a window T of whole periods is ``-12 A cos(phi) / (w T^2)``,
+        integrating by parts: it falls as the square of the periods held). A slow departure's
+        period outlasts the usual window (0.82 s at 220 mm/s against 0.48 s at 25 fps), a fast
+        one's does not, so the window grows only for slow balls; the rolling piece of the path,
+        a straight line slowing at mu_r g (Alciatore 2004), holds over it until the next event.
+        """
+        w = self.cfg.fit_window_s
+        ts, ps = b.samples(t_c, min(hi, t_c + w))
+        # Only striped balls, whose error was measured: a longer rolling leg makes any slow
+        # contact lean harder on its line (EventConfig).
+        if not b.striped or len(ts) < 2 or ts[-1] <= ts[0]:
+            return w
+        v = float(np.hypot(*(ps[-1] - ps[0]))) / float(ts[-1] - ts[0])
+        turn = 2.0 * math.pi * self.table.radius_mm / max(v, 1e-9)
+        return max(w, min(self.cfg.depart_roll_turns * turn, self.cfg.depart_max_s))
 
     def _slid_from_rest(self, b: _Ball, lo: float, t_c: float) -> tuple[float, float] | None:
         """(mu_s g, its sd) mm/s^2 where the approach to a contact at ``t_c`` may slide
@@ -2540,7 +2720,7 @@ class _Finder:
         w = self.cfg.fit_window_s
         ex = (t_c, 0.5 * self.exposure)
         ta, pa = b.samples(max(lo, t_c - w), t_c, ex)
-        td, pd_ = b.samples(t_c, min(hi, t_c + w), ex)
+        td, pd_ = b.samples(t_c, min(hi, t_c + self._depart_reach(b, t_c, hi)), ex)
         if len(ta) < 3 or len(td) < 3:
             return None
         if slide_tk is not None:

@@ -1719,8 +1719,11 @@ def _kalman_update(kf, x: np.ndarray, P: np.ndarray, z: np.ndarray,
     rolling on and a cushion bounce, so it is set on the filter before the update."""
     kf.x = x.reshape(4, 1)
     kf.P = P
-    kf.update(z.reshape(2, 1), R=R)
-    return kf.x.reshape(4).copy(), kf.P.copy()
+    # z given as the column and H passed: filterpy then skips its reshape of z. Its update
+    # binds new arrays to x and P (nothing is changed in place), so they are returned as they
+    # are, not copied again.
+    kf.update(z.reshape(2, 1), R=R, H=kf.H)
+    return kf.x.reshape(4), kf.P
 
 
 def _mahalanobis2(Z: np.ndarray, mean: np.ndarray, Ppos: np.ndarray, sig: np.ndarray) -> np.ndarray:

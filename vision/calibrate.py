@@ -105,6 +105,7 @@ import logging
 import math
 import os
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator
 
@@ -257,7 +258,9 @@ class Calibration:
       in table order (0,0), (L,0), (L,W), (0,W);
     * ``noses``: one :class:`NoseFit` per rail (bottom, right, top, left);
     * ``sights_px``: (M, 2) found sights (u, v) and ``sights_mm`` (M, 2) their table (x, y);
-    * ``check_image``: (H, W, 3) uint8 BGR top-down view with the fit drawn on it;
+    * ``check_image``: (H, W, 3) uint8 BGR top-down view with the fit drawn on it, drawn by
+      ``draw_check`` when first asked for (``analyse`` never asks, and drawing it took 0.27
+      processor s on the 720p bank sample, all in calibration's serial stretch);
     * ``origin``: the origin corner in words;
     * ``camera_changes``: [(t_from_s, Camera)], first entry (0.0, camera); more after each bump;
     * ``background``: (H, W, 3) uint8 BGR background frame of the first segment.
@@ -269,10 +272,15 @@ class Calibration:
     noses: tuple[NoseFit, ...]
     sights_px: np.ndarray
     sights_mm: np.ndarray
-    check_image: np.ndarray
     origin: str
     camera_changes: tuple[tuple[float, Camera], ...]
     background: np.ndarray = field(repr=False)
+    draw_check: Callable[[], np.ndarray] = field(repr=False, compare=False)
+
+    @cached_property
+    def check_image(self) -> np.ndarray:
+        """The (H, W, 3) uint8 BGR check image (:func:`check_image`), drawn once, when first read."""
+        return self.draw_check()
 
 
 # ================================================================================================
@@ -977,90 +985,99 @@ def _band_centroids(s: np.ndarray, prof: np.ndarray, centre: np.ndarray, half: f
     return c
 
 
-def _nose_points(grey: np.ndarray, quad: np.ndarray, table: TableSpec, config: CalibConfig) -> list[np.ndarray]:
+def _nose_points(grey: np.ndarray, quad: np.ndarray, table: TableSpec, config: CalibConfig,
+                 run_map: "Callable | None" = None) -> list[np.ndarray]:
     """Sub-pixel nose points per side of ``quad`` (visually anticlockwise), list of four (N, 2)
-    arrays (u, v), side k running from quad[k] to quad[k+1]."""
+    arrays (u, v), side k running from quad[k] to quad[k+1]. Each side is searched on its own
+    (:func:`_side_nose_points`), through ``run_map`` where given (see :func:`calibrate`)."""
+    return (run_map or _run_here)(_side_nose_points, [(grey, quad, k, table, config) for k in range(4)])
+
+
+def _run_here(fn: Callable, jobs: list[tuple]) -> list:
+    """``[fn(*job) for job in jobs]``: the ``run_map`` of :func:`calibrate` in this process."""
+    return [fn(*job) for job in jobs]
+
+
+def _side_nose_points(grey: np.ndarray, quad: np.ndarray, k: int, table: TableSpec, config: CalibConfig) -> np.ndarray:
+    """(N, 2) sub-pixel nose points (u, v) of side ``k`` of ``quad`` (:func:`_nose_points`),
+    running from quad[k] to quad[k+1]; (0, 2) when the side shows no nose. Depends on nothing
+    but its arguments (its RANSAC draws are seeded by ``k``), so any process gives the same."""
     centre = quad.mean(axis=0)
     lens = np.linalg.norm(np.roll(quad, -1, axis=0) - quad, axis=1)
     long_pair = 0 if lens[0] + lens[2] >= lens[1] + lens[3] else 1
     px_per_mm = (lens[long_pair] + lens[long_pair + 2]) / (2 * table.length_mm)
-    out = []
-    for k in range(4):
-        a, b = quad[k], quad[(k + 1) % 4]
-        long_side = (k % 2) == long_pair
-        length_mm = table.length_mm if long_side else table.width_mm
-        tang = (b - a) / np.linalg.norm(b - a)
-        nrm = np.array([tang[1], -tang[0]])
-        if nrm @ (a - centre) < 0:
-            nrm = -nrm  # outward
-        fr = _side_stations(a, b, long_side, config.profiles_per_side, table, length_mm)
-        base = a[None] + fr[:, None] * (b - a)[None]
-        # Coarse pass: from well inside (cushion width and more) to beyond the rough outline.
-        step = 0.5
-        s = np.arange(-140.0 * px_per_mm - 12, 90.0 * px_per_mm + 12, step)
-        pts = base[:, None, :] + s[None, :, None] * nrm[None, None, :]
-        prof = sum(_sample(grey, pts + o * tang[None, None, :]) for o in (-1.0, 0.0, 1.0)) / 3
-        cands = []
-        min_depth = _min_step_dn(_profile_noise(prof, step))
-        for i in range(len(base)):
-            for pos, score in _band_candidates(prof[i], step, max(4.0, 40.0 * px_per_mm), min_depth):
-                cands.append((i, fr[i], s[0] + pos, score))
-        if len(cands) < 8:
-            log.debug("side %d: only %d band candidates", k, len(cands))
-            out.append(np.zeros((0, 2)))
+    a, b = quad[k], quad[(k + 1) % 4]
+    long_side = (k % 2) == long_pair
+    length_mm = table.length_mm if long_side else table.width_mm
+    tang = (b - a) / np.linalg.norm(b - a)
+    nrm = np.array([tang[1], -tang[0]])
+    if nrm @ (a - centre) < 0:
+        nrm = -nrm  # outward
+    fr = _side_stations(a, b, long_side, config.profiles_per_side, table, length_mm)
+    base = a[None] + fr[:, None] * (b - a)[None]
+    # Coarse pass: from well inside (cushion width and more) to beyond the rough outline.
+    step = 0.5
+    s = np.arange(-140.0 * px_per_mm - 12, 90.0 * px_per_mm + 12, step)
+    pts = base[:, None, :] + s[None, :, None] * nrm[None, None, :]
+    prof = sum(_sample(grey, pts + o * tang[None, None, :]) for o in (-1.0, 0.0, 1.0)) / 3
+    cands = []
+    min_depth = _min_step_dn(_profile_noise(prof, step))
+    for i in range(len(base)):
+        for pos, score in _band_candidates(prof[i], step, max(4.0, 40.0 * px_per_mm), min_depth):
+            cands.append((i, fr[i], s[0] + pos, score))
+    if len(cands) < 8:
+        log.debug("side %d: only %d band candidates", k, len(cands))
+        return np.zeros((0, 2))
+    cands = np.array(cands)
+    # RANSAC: a quadratic curve s(f) through the candidates (a straight nose bent by the lens).
+    rng = np.random.default_rng(k)
+    best, best_score = None, -1.0
+    for _ in range(400):
+        pick = rng.choice(len(cands), 3, replace=False)
+        f3, s3 = cands[pick, 1], cands[pick, 2]
+        if np.ptp(f3) < 0.2 or np.min(np.abs(np.diff(np.sort(f3)))) < 0.03:
             continue
-        cands = np.array(cands)
-        # RANSAC: a quadratic curve s(f) through the candidates (a straight nose bent by the lens).
-        rng = np.random.default_rng(k)
-        best, best_score = None, -1.0
-        for _ in range(400):
-            pick = rng.choice(len(cands), 3, replace=False)
-            f3, s3 = cands[pick, 1], cands[pick, 2]
-            if np.ptp(f3) < 0.2 or np.min(np.abs(np.diff(np.sort(f3)))) < 0.03:
-                continue
-            coef = np.linalg.solve(np.vander(f3, 3), s3)
-            res = np.abs(np.polyval(coef, cands[:, 1]) - cands[:, 2])
-            inl = res < 1.5
-            # One point per profile counts; strong bands count more.
-            sc = 0.0
-            for i in np.unique(cands[inl, 0]):
-                sc += 1.0 + cands[inl & (cands[:, 0] == i), 3].max()
-            if sc > best_score:
-                best, best_score = coef, sc
-        if best is None:
-            out.append(np.zeros((0, 2)))
-            continue
-        res = np.abs(np.polyval(best, cands[:, 1]) - cands[:, 2])
-        inl = cands[res < 1.5]
-        if len(np.unique(inl[:, 0])) >= 6:
-            best = np.linalg.lstsq(np.vander(inl[:, 1], 3), inl[:, 2], rcond=None)[0]
-        # Fine pass: profiles along the curve's normal around it, two-edge model fit.
-        fr_f = fr
-        s_curve = np.polyval(best, fr_f)
-        dsdf = np.polyval(np.polyder(best), fr_f)
-        pts_c = a[None] + fr_f[:, None] * (b - a)[None] + s_curve[:, None] * nrm[None]
-        t_vec = (b - a)[None] + dsdf[:, None] * nrm[None]
-        t_vec /= np.linalg.norm(t_vec, axis=1, keepdims=True)
-        n_vec = np.column_stack([t_vec[:, 1], -t_vec[:, 0]])
-        n_vec *= np.sign(np.sum(n_vec * nrm[None], axis=1))[:, None]
-        step_f = 0.25
-        sf = np.arange(-max(10.0, 30 * px_per_mm), 8.0 + 1e-9, step_f)
-        fp = pts_c[:, None, :] + sf[None, :, None] * n_vec[:, None, :]
-        offs = np.linspace(-3.0, 3.0, 13)
-        prof_f = sum(_sample(grey, fp + o * t_vec[:, None, :]) for o in offs) / len(offs)
-        bpos, rms, sig_side = _locate_noses(sf, prof_f, along=fr_f)
-        keep = np.isfinite(bpos) & (np.abs(np.nan_to_num(bpos, nan=99.0)) <= 2.5)
-        if sig_side is None or sig_side > 3.5:
-            keep[:] = False
-        found = [(pts_c[i] + bpos[i] * n_vec[i], float(rms[i])) for i in np.nonzero(keep)[0]]
-        log.debug("side %d: %d candidates, %d fine fits kept, blur %s px", k, len(cands), len(found), sig_side)
-        pts_k = np.array([p for p, _ in found]) if found else np.zeros((0, 2))
-        if len(found) >= 6:
-            rms_all = np.array([r for _, r in found])
-            keep = rms_all < np.median(rms_all) + 4 * 1.4826 * np.median(np.abs(rms_all - np.median(rms_all))) + 1e-6
-            pts_k = pts_k[keep]
-        out.append(pts_k)
-    return out
+        coef = np.linalg.solve(np.vander(f3, 3), s3)
+        res = np.abs(np.polyval(coef, cands[:, 1]) - cands[:, 2])
+        inl = res < 1.5
+        # One point per profile counts; strong bands count more.
+        sc = 0.0
+        for i in np.unique(cands[inl, 0]):
+            sc += 1.0 + cands[inl & (cands[:, 0] == i), 3].max()
+        if sc > best_score:
+            best, best_score = coef, sc
+    if best is None:
+        return np.zeros((0, 2))
+    res = np.abs(np.polyval(best, cands[:, 1]) - cands[:, 2])
+    inl = cands[res < 1.5]
+    if len(np.unique(inl[:, 0])) >= 6:
+        best = np.linalg.lstsq(np.vander(inl[:, 1], 3), inl[:, 2], rcond=None)[0]
+    # Fine pass: profiles along the curve's normal around it, two-edge model fit.
+    fr_f = fr
+    s_curve = np.polyval(best, fr_f)
+    dsdf = np.polyval(np.polyder(best), fr_f)
+    pts_c = a[None] + fr_f[:, None] * (b - a)[None] + s_curve[:, None] * nrm[None]
+    t_vec = (b - a)[None] + dsdf[:, None] * nrm[None]
+    t_vec /= np.linalg.norm(t_vec, axis=1, keepdims=True)
+    n_vec = np.column_stack([t_vec[:, 1], -t_vec[:, 0]])
+    n_vec *= np.sign(np.sum(n_vec * nrm[None], axis=1))[:, None]
+    step_f = 0.25
+    sf = np.arange(-max(10.0, 30 * px_per_mm), 8.0 + 1e-9, step_f)
+    fp = pts_c[:, None, :] + sf[None, :, None] * n_vec[:, None, :]
+    offs = np.linspace(-3.0, 3.0, 13)
+    prof_f = sum(_sample(grey, fp + o * t_vec[:, None, :]) for o in offs) / len(offs)
+    bpos, rms, sig_side = _locate_noses(sf, prof_f, along=fr_f)
+    keep = np.isfinite(bpos) & (np.abs(np.nan_to_num(bpos, nan=99.0)) <= 2.5)
+    if sig_side is None or sig_side > 3.5:
+        keep[:] = False
+    found = [(pts_c[i] + bpos[i] * n_vec[i], float(rms[i])) for i in np.nonzero(keep)[0]]
+    log.debug("side %d: %d candidates, %d fine fits kept, blur %s px", k, len(cands), len(found), sig_side)
+    pts_k = np.array([p for p, _ in found]) if found else np.zeros((0, 2))
+    if len(found) >= 6:
+        rms_all = np.array([r for _, r in found])
+        keep = rms_all < np.median(rms_all) + 4 * 1.4826 * np.median(np.abs(rms_all - np.median(rms_all))) + 1e-6
+        pts_k = pts_k[keep]
+    return pts_k
 
 
 # ================================================================================================
@@ -1669,7 +1686,8 @@ class _Fit:
     corners_px: np.ndarray
 
 
-def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intrinsics: tuple | None = None) -> _Fit:
+def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intrinsics: tuple | None = None,
+                    run_map: Callable | None = None) -> _Fit:
     h, w = bg.shape[:2]
     size = (w, h)
     grey = cv2.cvtColor(bg, cv2.COLOR_BGR2GRAY).astype(np.float32)
@@ -1681,7 +1699,7 @@ def _fit_background(bg: np.ndarray, table: TableSpec, config: CalibConfig, intri
         quad = quad_table
     else:
         quad = _rough_quad(bg)
-    side_pts = _nose_points(grey, quad, table, config)
+    side_pts = _nose_points(grey, quad, table, config, run_map=run_map)
     counts = [len(p) for p in side_pts]
     if sum(c >= 5 for c in counts) < 4 and config.corners_px is None:
         raise ValueError(f"found cushion noses on only {sum(c >= 5 for c in counts)} of 4 sides ({counts} points); make sure all four cushions are in view and lit, or give --corners")
@@ -2028,7 +2046,7 @@ def calibrate_background(bg: np.ndarray, table: TableSpec, config: CalibConfig =
     return _calibrate_segments([(0.0, bg)], table, config, n_frames=1, n_stills=[1])
 
 
-def calibrate(source, table: TableSpec, config: CalibConfig = CalibConfig()) -> Calibration:
+def calibrate(source, table: TableSpec, config: CalibConfig = CalibConfig(), run_map: Callable | None = None) -> Calibration:
     """Calibrate the camera that filmed ``source`` (a clip path, one (H, W, 3) uint8 BGR frame,
     or an iterable of frames or (t_s, frame) pairs) looking at ``table``.
 
@@ -2038,6 +2056,12 @@ def calibrate(source, table: TableSpec, config: CalibConfig = CalibConfig()) -> 
     image attached where one could be drawn) with a one-line message saying what is wrong and what
     to do: no table in view, too dark, table cut off, a ``table`` whose shape disagrees with the
     picture, or a fit too poor to trust.
+
+    ``run_map(fn, jobs)``: where given, calibration hands it independent pieces of work (the
+    four cushion sides' nose searches) as a top-level function and a list of argument tuples,
+    and takes back ``[fn(*job) for job in jobs]``, in order; it may run them in other processes
+    (:mod:`railtrace.pipeline` lends its waiting detection process), and as each piece depends
+    on its arguments alone, the calibration is the same to the last bit either way.
     """
     if isinstance(source, np.ndarray) and source.ndim == 3:
         return calibrate_background(_check_frame(source, None), table, config)
@@ -2050,14 +2074,15 @@ def calibrate(source, table: TableSpec, config: CalibConfig = CalibConfig()) -> 
             continue
         bgs.append((seg.t0, _median_background(seg.stills)))
         counts.append(len(seg.stills))
-    return _calibrate_segments(bgs, table, config, n_frames=n, n_stills=counts)
+    return _calibrate_segments(bgs, table, config, n_frames=n, n_stills=counts, run_map=run_map)
 
 
-def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, config: CalibConfig, n_frames: int, n_stills: list[int]) -> Calibration:
+def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, config: CalibConfig, n_frames: int, n_stills: list[int],
+                        run_map: Callable | None = None) -> Calibration:
     t0, bg = bgs[0]
     size = (bg.shape[1], bg.shape[0])
     try:
-        fit = _fit_background(bg, table, config)
+        fit = _fit_background(bg, table, config, run_map=run_map)
     except CalibrationError:
         raise
     except ValueError as exc:
@@ -2069,21 +2094,24 @@ def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, c
         raise CalibrationError(str(exc), check_image(bg, None, table, None, config.check_px_per_mm, f"FAILED: {exc}", quad)) from None
     problem = _verdict_problems(fit, table, config, size)
     verdict = "OK" if problem is None else f"REFUSED: {problem}"
-    img = check_image(bg, fit.camera, table, fit, config.check_px_per_mm, verdict)
+
+    def draw() -> np.ndarray:
+        return check_image(bg, fit.camera, table, fit, config.check_px_per_mm, verdict)
+
     if problem is not None:
-        raise CalibrationError(problem, img)
+        raise CalibrationError(problem, draw())
     changes = [(0.0, fit.camera)]
     intr = (float(fit.camera.K[0, 0]), float(fit.camera.dist[0]), float(fit.camera.dist[1]))
     # After a bump: same lens, new pose, origin pinned to the same physical corner.
     for t_k, bg_k in bgs[1:]:
         cfg = replace(config, origin_near_px=tuple(fit.corners_px[0]), corners_px=None)
         try:
-            fk = _fit_background(bg_k, table, cfg, intrinsics=intr)
+            fk = _fit_background(bg_k, table, cfg, intrinsics=intr, run_map=run_map)
         except ValueError as exc:
-            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view could not be calibrated ({exc})", img) from None
+            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view could not be calibrated ({exc})", draw()) from None
         pk = _verdict_problems(fk, table, config, size)
         if pk is not None:
-            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view fits poorly: {pk}", img)
+            raise CalibrationError(f"the camera moved at t = {t_k:.2f} s and the new view fits poorly: {pk}", draw())
         changes.append((float(t_k), fk.camera))
     quality = dict(fit.quality)
     quality["still_frames"] = int(n_stills[0])
@@ -2096,7 +2124,7 @@ def _calibrate_segments(bgs: list[tuple[float, np.ndarray]], table: TableSpec, c
         noses=fit.noses,
         sights_px=fit.sights_px,
         sights_mm=fit.sights_mm,
-        check_image=img,
+        draw_check=draw,
         origin=fit.origin,
         camera_changes=tuple(changes),
         background=bg,

@@ -645,6 +645,19 @@ def _median(x: np.ndarray) -> float:
     return 0.5 * float(q[h - 1] + q[h])
 
 
+def _share(mask: np.ndarray) -> float:
+    """Share of True in a non-empty bool array: ``float(np.mean(mask))`` to the last bit (the
+    float64 count over the size, both exact), without ``np.mean``'s argument handling, which
+    costs several times the count on the few dozen to few hundred samples asked per fit."""
+    return np.count_nonzero(mask) / mask.size
+
+
+def _mean1(x: np.ndarray) -> float:
+    """Mean of a non-empty 1-D float64 array: ``float(np.mean(x))`` to the last bit (the same
+    pairwise ``np.add.reduce`` over the same elements, divided by their count)."""
+    return float(np.add.reduce(x) / len(x))
+
+
 def _swept_outline_px(camera: Camera, x: float, y: float, half: float, heading: float, R: float, rays: RayMap | None = None) -> np.ndarray:
     """Convex hull (M, 2) px of the silhouette of a sphere swept along a segment (table frame).
     ``rays``: the camera's :class:`RayMap`, whose lean single-sphere outline
@@ -1197,7 +1210,7 @@ def _fit_rms(result) -> float:
     """RMS (mm) of the agreeing rays' residuals (Tukey weight above 0.2) of a fit result."""
     res, wts = result[1], result[2]
     inl = wts > 0.2
-    return float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
+    return math.sqrt(_mean1(res[inl] ** 2)) if inl.any() else np.inf
 
 
 def _chroma_off(I: np.ndarray, B: np.ndarray, a: np.ndarray) -> np.ndarray:
@@ -1670,7 +1683,7 @@ class RayMap:
         e1 = np.array([e1x, e1y, e1z])
         pts = q[None] + rho * (self._cos16 * e1[None] + self._sin16 * e2[None])
         rel = self.project(pts) - self.project(np.array([[X0, X1, X2]]))[0]
-        return float(np.mean(np.sqrt(rel[:, 0] * rel[:, 0] + rel[:, 1] * rel[:, 1])))
+        return _mean1(np.sqrt(rel[:, 0] * rel[:, 0] + rel[:, 1] * rel[:, 1]))
 
     def backproject(self, uv_px: np.ndarray, z_mm: float = 0.0) -> np.ndarray:
         """(N, 2) pixels -> (N, 3) table points where their rays meet the plane ``z = z_mm``."""
@@ -1761,6 +1774,11 @@ class BallDetector:
         # Whether a coarse outline (:meth:`_edges`) lowered a sample by the cast-shadow discount
         # since :meth:`_fit_either` last cleared it.
         self._discounted = False
+        # The ring of :meth:`_ring_share` (64 angles), and its shares already read in the last
+        # frame asked (the frame itself, and a dict by centre); emptied every frame.
+        a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
+        self._ring_cos, self._ring_sin = np.cos(a), np.sin(a)
+        self._ring_memo: tuple[np.ndarray | None, dict] = (None, {})
 
     # -- per frame --
     def process(self, frame_index: int, t_s: float, image: np.ndarray) -> pd.DataFrame:
@@ -1788,6 +1806,7 @@ class BallDetector:
         :func:`stack_detections`; a pandas frame per frame cost more than finding the balls
         that moved."""
         img = np.asarray(image)
+        self._ring_memo = (None, {})
         w, h = self.size
         if img.shape != (h, w, 3) or img.dtype != np.uint8:
             raise ValueError(f"frame {frame_index} is {img.shape} {img.dtype}; the camera expects ({h}, {w}, 3) uint8 BGR")
@@ -1829,6 +1848,7 @@ class BallDetector:
             self._ref_small[cell_changed] = small[cell_changed]
         else:
             det = self._prev
+        self._ring_memo = (None, {})  # the model may change below
         self._since_update += dt
         if self._since_update >= self.config.update_every_s:
             self._since_update = 0.0
@@ -2243,7 +2263,7 @@ class BallDetector:
         if len(I) == 0:
             return 0.0
         w = np.array([0.114, 0.587, 0.299], np.float32)  # BT.601 luma of B, G, R
-        return float(np.mean(I.astype(np.float32) @ w > B.astype(np.float32) @ w))
+        return _share(I.astype(np.float32) @ w > B.astype(np.float32) @ w)
 
     def _fit_either(self, img: np.ndarray, s: dict, avoid: np.ndarray | None = None) -> dict | None:
         """:meth:`_fit_seed` with the coarse outline's cast-shadow discount, and, for a seed
@@ -3464,7 +3484,7 @@ class BallDetector:
         p, res, wts, cov, good, capsule, n_rays = result
         inl = wts > 0.2
         share = inl.sum() / n_rays
-        rms = float(np.sqrt(np.mean(res[inl] ** 2))) if inl.any() else np.inf
+        rms = math.sqrt(_mean1(res[inl] ** 2)) if inl.any() else np.inf
         max_rms = self.config.max_rms_mm * (2.0 if capsule else 1.0)
         if rms > max_rms and share >= _NOISY_MIN_SHARE:
             # A dim ball's outline is noisier, not worse: the limit is what the image noise
@@ -3500,8 +3520,7 @@ class BallDetector:
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         # Marked, not refused: the fit stands while the box's pieces are explained (a fit
         # straddling two colliding balls seeds the search that finds both, and is dropped then).
-        joined = not capsule and not seed["strict"] and not seed.get("cluster") and (
-            rms > _JOINED_RMS_MM and self._joined_no_rim(img, uv) or self._neither_ring_nor_rim(img, uv))
+        joined = not capsule and not seed["strict"] and not seed.get("cluster") and self._joined_mark(img, uv, rms)
         return {
             "frame": 0,
             "t": 0.0,
@@ -3579,7 +3598,7 @@ class BallDetector:
         if len(I) == 0:
             return 0.0
         out = ballness(I, B) > self._score_thr
-        share = float(np.mean(out))
+        share = _share(out)
         if share < 0.6:
             share = max(share, _shaded_share(I, B, r2 / (r * r), out))
         return share
@@ -3608,9 +3627,9 @@ class BallDetector:
         two-colour edge (a rim colour against the surface outside) has no colour step to
         find there and follows the ramp of the shading instead, so the coarse fit stands."""
         r = 0.5 * self.ball_px * np.array([0.55, 0.75])
-        ang = np.linspace(0, 2 * np.pi, _N_RAYS, endpoint=False)
-        mx = (uv[0] + r[None, :] * np.cos(ang)[:, None]).astype(np.float32)
-        my = (uv[1] + r[None, :] * np.sin(ang)[:, None]).astype(np.float32)
+        # _RAY_DIRS holds the cosines and sines of the same 48 angles (_RAY_ANG).
+        mx = (uv[0] + r[None, :] * _RAY_DIRS[:, 0:1]).astype(np.float32)
+        my = (uv[1] + r[None, :] * _RAY_DIRS[:, 1:2]).astype(np.float32)
         f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
         b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
         a = _dot3(f, b) / np.maximum(_dot3(b, b), 1.0)
@@ -3652,6 +3671,24 @@ class BallDetector:
         rim = self._rim_share(img, uv)
         return rim < _ISOLATED_SHARE or (ring < _ISOLATED_SHARE and rim < _COVERED_RIM)
 
+    def _joined_mark(self, img: np.ndarray, uv: np.ndarray, rms: float) -> bool:
+        """Whether a free ball's fit round ``uv`` (px) with outline rms ``rms`` (mm) is marked
+        joined: :meth:`_joined_no_rim` where the outline fits worse than ``_JOINED_RMS_MM``, or
+        :meth:`_neither_ring_nor_rim`. The same tests, with the ring (:meth:`_ring_share`) and
+        the rim (:meth:`_rim_share`) each sampled at most once, and the rim only when a test
+        reads it (the two tests asked for both again when the first failed)."""
+        ring = self._ring_share(img, uv)
+        rim = None
+        if rms > _JOINED_RMS_MM and ring < _JOINED_RING:
+            rim = self._rim_share(img, uv)
+            if rim < _ISOLATED_SHARE or (ring < _ISOLATED_SHARE and rim < _COVERED_RIM):
+                return True
+        if ring >= _ISOLATED_SHARE:
+            return False
+        if rim is None:
+            rim = self._rim_share(img, uv)
+        return rim < _ISOLATED_SHARE
+
     def _neither_ring_nor_rim(self, img: np.ndarray, uv: np.ndarray) -> bool:
         """Whether a free ball's fit round ``uv`` (px), however well its outline fits, fails
         both halves of :meth:`_isolated`: its ring (:meth:`_ring_share`) is covered beyond what
@@ -3692,7 +3729,7 @@ class BallDetector:
         P, S = prof[:, :4].mean(axis=1), prof[:, 4:].mean(axis=1)
         a = _dot3(P, S) / np.maximum(_dot3(S, S), 1.0)
         shade = (a >= DARK_RATIO) & (a <= LIT_RATIO) & (_chroma_off(P, S, a) < 0.08)
-        return float(np.mean(~shade))
+        return _share(~shade)
 
     def _ballness_at(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
         """:func:`ballness` of the frame against the empty table at the sub-pixel points ``mx``,
@@ -3772,12 +3809,22 @@ class BallDetector:
         return float(np.median(rims)) >= _ISOLATED_SHARE
 
     def _ring_share(self, img: np.ndarray, uv: np.ndarray) -> float:
-        """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background."""
-        r = _RING_R * self.ball_px / 2
-        a = np.linspace(0, 2 * np.pi, 64, endpoint=False)
-        mx = (uv[0] + r * np.cos(a)).astype(np.float32)[None]
-        my = (uv[1] + r * np.sin(a)).astype(np.float32)[None]
-        return float(np.mean(self._ballness_at(img, mx, my)[0] < self._score_thr))
+        """Share of the ring of :meth:`_isolated` round ``uv`` (px) that is background.
+
+        Kept per frame and centre (``_ring_memo``: the frame it was read from, and the shares
+        by ``uv``): a sharp fit asks it of one centre twice (:meth:`_cue_end`, then
+        :meth:`_joined_mark`), and neither the frame nor the empty-table model changes
+        between (the model is updated after the frame's detections, :meth:`step_rows`)."""
+        if self._ring_memo[0] is not img:
+            self._ring_memo = (img, {})
+        key = (float(uv[0]), float(uv[1]))
+        got = self._ring_memo[1].get(key)
+        if got is None:
+            r = _RING_R * self.ball_px / 2
+            mx = (uv[0] + r * self._ring_cos).astype(np.float32)[None]
+            my = (uv[1] + r * self._ring_sin).astype(np.float32)[None]
+            got = self._ring_memo[1][key] = _share(self._ballness_at(img, mx, my)[0] < self._score_thr)
+        return got
 
     def _band_seen(self, I: np.ndarray, B: np.ndarray, white: np.ndarray, S: np.ndarray, V: np.ndarray, cloth_s: float) -> bool:
         """Whether a ball's pixels ``I`` (N, 3) BGR over the empty table ``B`` (N, 3), with their
@@ -3836,7 +3883,7 @@ class BallDetector:
         # Tinted: any visible saturation off the cloth's hue (a dark band at the rim, shaded
         # toward the limb, keeps only part of its saturation).
         tinted = (S >= 50) & ~white & ~near_cloth
-        fw, fc, fd, ft = white.mean(), coloured.mean(), dark.mean(), tinted.mean()
+        fw, fc, fd, ft = _share(white), _share(coloured), _share(dark), _share(tinted)
         if fw > 0.85 and ft < 0.03 and fd < 0.03:
             self._white_v = float(np.median(V[white]))
             return "white", "cue"
@@ -3846,7 +3893,7 @@ class BallDetector:
             # A ball of the cloth's own hue and brightness: its body, left out as cloth-like
             # above, is its colour, and so is its limb, shaded dark toward the cloth's level.
             coloured = (S >= 90) & ~white
-            fc = coloured.mean()
+            fc = _share(coloured)
         if fc < 0.04:
             # No colour inside 0.88 of the radius: a stripe whose band lies round the limb, or a
             # white ball shaded toward its limb (dim or one-sided light) or smeared with the cloth
