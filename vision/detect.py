@@ -348,9 +348,11 @@ _NEAR_R = 2.4
 _HELD_APART_MIN_R = 1.5
 # Share of a sharp fit's own contrast against the empty table (mean over its disc) that
 # changed since the previous frame, above which the fit is of a ball in motion
-# (:meth:`BallDetector._at_rest`): measured mean change / contrast on the rendered sets, balls
-# at rest under 0.1 (uneven_60fps's rack, even at the break's frame), moving under an open
-# shutter 0.6 and over (multi_rail_30fps's cue ball, split into two sharp fits).
+# (:meth:`BallDetector._at_rest`): measured mean change / contrast, balls at rest 0.00-0.08
+# (uneven_60fps's rack, even in the break's frame), fast balls 0.79-1.17 (multi_rail_30fps's
+# cue ball at 1.2-2 m/s under an open 1/30 s shutter, split into two sharp fits; uneven's at
+# 3.4 m/s), a cue ball rolling 250 mm/s at 30 fps 0.22 (counted at rest: held apart from a
+# real neighbour it is still a solid ball).
 _MOVED_SHARE = 0.35
 # Least centre distance, in radii, of two sharp fits whose refits :meth:`BallDetector._refit_starts`
 # starts a ball's image diameter apart: closer, they are one ball fitted twice (the distance
