@@ -348,6 +348,23 @@ _SEED_RING_SLACK = 7 / 64
 # _AVOID_R radii of the neighbour's centre (+-27 degrees round the contact of touching balls);
 # the local edge needs at least _MIN_FREE_RAYS rays left (a quarter of the outline).
 _NEAR_R = 2.4
+# Least centre distance, in radii, of two overlapping sharp fits that
+# :func:`_held_apart_fits` moves apart: uneven_60fps's rack fits overlapped down to 1.54 R;
+# lamp_50fps's cue ball and a false fit on the cue tip beside it lay 1.24 R apart.
+_HELD_APART_MIN_R = 1.5
+# Share of a sharp fit's own contrast against the empty table (mean over its disc) that
+# changed since the previous frame, above which the fit is of a ball in motion
+# (:meth:`BallDetector._at_rest`): measured mean change / contrast, balls at rest 0.00-0.08
+# (uneven_60fps's rack, even in the break's frame), fast balls 0.79-1.17 (multi_rail_30fps's
+# cue ball at 1.2-2 m/s under an open 1/30 s shutter, split into two sharp fits; uneven's at
+# 3.4 m/s), a cue ball rolling 250 mm/s at 30 fps 0.22 (counted at rest: held apart from a
+# real neighbour it is still a solid ball).
+_MOVED_SHARE = 0.35
+# Least centre distance, in radii, of two sharp fits whose refits :meth:`BallDetector._refit_starts`
+# starts a ball's image diameter apart: closer, they are one ball fitted twice (the distance
+# under which :meth:`BallDetector._dedupe` keeps one of two rows). uneven_60fps's touching 3
+# and 7 were first fitted 1.37 R apart.
+_SPREAD_MIN_R = 1.2
 _AVOID_R = 1.2
 _MIN_FREE_RAYS = 12
 # Half side, in largest ball image radii, of the square patch round a sharp ball's centre
@@ -818,6 +835,126 @@ def _residuals_jacobian(p: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, c
     r[:K] = dist - (R - p[2])
     r[K] = p[2] / _BIAS_SIGMA_MM
     return r, J
+
+
+def _spread_seeds(uv: np.ndarray, diam_px: np.ndarray, sweeps: int = 20, pairs: np.ndarray | None = None) -> np.ndarray:
+    """Seeds ``uv`` (N, 2) px of one foreground piece moved apart until no two are closer
+    than their balls' mean image diameter (``diam_px`` (N,) px each; only the pairs ``pairs``
+    marks, (N, N) bool, when given), by Gauss-Seidel
+    projection of the pairwise distance constraints (Jakobsen 2001), each pair's shortfall
+    shared evenly. Two balls cannot overlap, but a piece of touching balls is deepest
+    between them (a rack is a filled triangle), so its distance-transform peaks lie inward
+    of the true centres and closer together than a diameter (uneven_60fps's touching 3 and 7
+    started 3-4 px inward and were fitted 9-10 mm into the rack). Returns (N, 2) px."""
+    p = np.array(uv, float)
+    n = len(p)
+    for _ in range(sweeps):
+        moved = False
+        for i in range(n):
+            for j in range(i + 1, n):
+                if pairs is not None and not pairs[i, j]:
+                    continue
+                d = p[j] - p[i]
+                dist = math.hypot(d[0], d[1])
+                need = 0.5 * (diam_px[i] + diam_px[j])
+                if dist >= need - 1e-3 or dist < 1e-6:
+                    continue
+                step = 0.5 * (need - dist) * d / dist
+                p[i] -= step
+                p[j] += step
+                moved = True
+        if not moved:
+            break
+    return p
+
+
+def _held_apart_fits(rows: list[dict], R: float, camera: Camera, sweeps: int = 50, still=None) -> list[dict]:
+    """Detection rows with the centres of sharp fits that overlap (closer than a diameter
+    ``2 R`` mm, table frame, but more than ``_HELD_APART_MIN_R`` radii apart: two balls
+    biased toward each other, not one fitted twice nor a ball and a false fit on the cue's tip
+    beside it, lamp_50fps's 1.24 R, whose push moved the struck cue ball 4.4 mm a frame
+    before its start and timed the start 57 ms early) moved apart to a diameter: the least
+    change in the fits' own least-squares cost (the Mahalanobis distance by each centre's
+    covariance ``cov_xy``, (2, 2) mm^2) that keeps every such pair a diameter apart. Solved
+    by projected Gauss-Seidel on the pairs' Lagrange multipliers (Jakobsen 2001's relaxation
+    of distance constraints, weighted), the centres at each step placed where the first-order
+    conditions put them for the multipliers so far (``c_i = c0_i - sum_j lambda_ij C_i n_ij``,
+    ``n_ij`` the unit vector from i to j). Two solid balls cannot overlap; a fit pulled into
+    its touching neighbours (a dark ball whose limb is taken for its shadow on one side while
+    its neighbours' rays are left out on the other, uneven_60fps's rack) does. A fit whose
+    outline leaves it free along the line (a one-sided outline, where the radius bias and
+    the centre trade off) moves most. The rows moved get ``sigma_mm`` at least the move and
+    their image centre (u, v) projected anew at ball-centre height by ``camera``. Returns new
+    row dicts (the others as they were).
+
+    ``still`` (a row -> bool, :meth:`BallDetector._at_rest`; None: every row) picks the
+    fits taken part: only balls at rest. A fast ball's streak that the seeds split into two
+    sharp fits 1.5 R apart (multi_rail_30fps's cue ball under an open shutter) is no pair of
+    balls, and a moving ball's fit beside its own shadow's neither; pushing them a diameter
+    apart moved the cue ball's reads 8-16 mm."""
+    idx = [k for k, r in enumerate(rows) if not (r["blur_x"] or r["blur_y"]) and "cov_xy" in r]
+    if len(idx) < 2:
+        return rows
+    c0 = np.array([[rows[k]["x"], rows[k]["y"]] for k in idx], float)
+    d0 = np.linalg.norm(c0[:, None] - c0[None], axis=2)
+    close = (d0 > _HELD_APART_MIN_R * R) & (d0 < 2 * R)
+    if not close.any():
+        return rows
+    if still is not None:
+        # Asked only of fits in an overlapping pair (each costs a disc's pixels).
+        keep = [m for m in range(len(idx)) if not close[m].any() or still(rows[idx[m]])]
+        idx = [idx[m] for m in keep]
+        c0, d0 = c0[keep], d0[np.ix_(keep, keep)]
+    n = len(idx)
+    pairs = [(i, j) for i in range(n) for j in range(i + 1, n) if _HELD_APART_MIN_R * R < d0[i, j] < 3 * R]
+    if not any(d0[i, j] < 2 * R for i, j in pairs):
+        return rows
+    # The least-squares covariance gives the shape (which way the outline leaves the centre
+    # free); its size is the stated sigma's, which adds what the rays' scatter does not show
+    # (radius bias, a coarse fit kept over the local one, an unsettled edge).
+    cov = []
+    for k in idx:
+        C = np.asarray(rows[k]["cov_xy"], float)
+        cov.append(C * float(rows[k]["sigma_mm"]) ** 2 / max(float(np.trace(C)) / 2, 1e-9))
+    lam = {q: 0.0 for q in pairs}
+    unit = {(i, j): (c0[j] - c0[i]) / d0[i, j] for i, j in pairs}
+
+    def placed() -> np.ndarray:
+        c = c0.copy()
+        for (i, j), lv in lam.items():
+            if lv > 0:
+                c[i] -= lv * (cov[i] @ unit[(i, j)])
+                c[j] += lv * (cov[j] @ unit[(i, j)])
+        return c
+
+    c = c0
+    for _ in range(sweeps):
+        worst = 0.0
+        for i, j in pairs:
+            c = placed()
+            d = c[j] - c[i]
+            dist = math.hypot(d[0], d[1])
+            u = d / max(dist, 1e-9)
+            unit[(i, j)] = u
+            c = placed()
+            dist = math.hypot(*(c[j] - c[i]))
+            g = 2 * R - dist
+            step = g / max(float(u @ (cov[i] + cov[j]) @ u), 1e-9)
+            new = max(lam[(i, j)] + step, 0.0)
+            if new > 0 or lam[(i, j)] > 0:
+                worst = max(worst, abs(g))
+            lam[(i, j)] = new
+        if worst < 1e-4:
+            break
+    c = placed()
+    out = list(rows)
+    for m, k in enumerate(idx):
+        step = math.hypot(*(c[m] - c0[m]))
+        if step > 1e-6:
+            uv = camera.project(np.array([[c[m, 0], c[m, 1], R]]))[0]
+            out[k] = dict(rows[k], x=float(c[m, 0]), y=float(c[m, 1]), u=float(uv[0]), v=float(uv[1]),
+                          sigma_mm=max(float(rows[k]["sigma_mm"]), step))
+    return out
 
 
 def _robust_fit(p0: np.ndarray, C: np.ndarray, d: np.ndarray, R: float, capsule: bool, iters: int = 10):
@@ -1653,6 +1790,8 @@ class BallDetector:
         # outright (:attr:`vision.background.Background.revised`), for the next frame.
         self._revisit: tuple[tuple[int, int, int, int], ...] = ()
         self._last_t: float | None = None
+        # The previous frame (:meth:`_at_rest`); None before the first.
+        self._last_img: np.ndarray | None = None
         self._white_v: float | None = None
         cs = int(config.cell_px)
         self._small_size = (max(w // cs, 1), max(h // cs, 1))
@@ -1761,6 +1900,7 @@ class BallDetector:
             self._revisit = self.background.revised
         self._prev = det
         self._keep_patches(img, det)
+        self._last_img = img
         return det
 
     def _ball_cells(self, row: dict) -> tuple[int, int, int, int]:
@@ -2009,7 +2149,7 @@ class BallDetector:
                 kept.append(r)
         # Refitted with its neighbours' rays left out, a fit that had straddled a ball and its
         # shadow can slide onto the shadow: the shadow test again on what stands.
-        rows = kept + self._refit_touching(img, seeds, fits)
+        rows = kept + _held_apart_fits(self._refit_touching(img, seeds, fits), self.R, self.camera, still=lambda r: self._at_rest(img, r))
         return [r for r in self._drop_cast_shadows(img, rows, tested=tested) if r is not None and not r.get("joined")]
 
     def _worth_fitting(self, img: np.ndarray, s: dict) -> bool:
@@ -2833,17 +2973,62 @@ class BallDetector:
         if len(sharp) < 2:
             return [r for r in fits if r is not None]
         xy = np.array([[r["x"], r["y"]] for _, r in sharp])
+        starts = self._refit_starts(img, [r for _, r in sharp])
         out = list(fits)
         for k, (i, r) in enumerate(sharp):
             d = np.hypot(xy[:, 0] - xy[k, 0], xy[:, 1] - xy[k, 1])
             near = (d < _NEAR_R * self.R) & (np.arange(len(sharp)) != k)
             if not near.any():
                 continue
-            start = dict(seeds[i], uv=np.array([r["u"], r["v"]]), half_px=0.0)
+            start = dict(seeds[i], uv=starts[k], half_px=0.0)
             again = self._fit_either(img, start, avoid=xy[near])
             if again is not None:
                 out[i] = again
         return [r for r in out if r is not None]
+
+    def _refit_starts(self, img: np.ndarray, sharp: list[dict]) -> np.ndarray:
+        """Image centres (N, 2) px from which :meth:`_refit_touching` refits the sharp rows
+        ``sharp``: their own, spread so that no two balls at rest (:meth:`_at_rest`) whose
+        fits overlap (``_SPREAD_MIN_R`` to 2 radii apart, table frame) are closer than a ball
+        image's diameter (:func:`_spread_seeds`).
+        Only balls at rest: the two sharp fits a fast ball's streak was split into lie 1.5 R
+        apart and are one ball (multi_rail_30fps's cue ball, moved 8 mm when spread); and not
+        one ball fitted twice (multi_rail_30fps frame 234, 0.01 R apart)."""
+        uv = np.array([[r["u"], r["v"]] for r in sharp], float)
+        xy = np.array([[r["x"], r["y"]] for r in sharp], float)
+        d = np.linalg.norm(xy[:, None] - xy[None], axis=2)
+        pairs = (d > _SPREAD_MIN_R * self.R) & (d < 2 * self.R)
+        if not pairs.any():
+            return uv
+        rest = np.array([bool(pairs[k].any()) and self._at_rest(img, r) for k, r in enumerate(sharp)], bool)
+        pairs &= rest[:, None] & rest[None]
+        if not pairs.any():
+            return uv
+        diam = np.array([2 * self._image_radius_px(q) for q in uv])
+        return _spread_seeds(uv, diam, pairs=pairs)
+
+    def _at_rest(self, img: np.ndarray, row: dict) -> bool:
+        """Whether the sharp detection row ``row`` is of a ball that did not move since the
+        previous frame: over its disc (0.8 of its image radius), the frame's mean change from
+        the previous frame (largest of the three channels' absolute differences, DN) is under
+        ``_MOVED_SHARE`` of its mean difference from the empty table (its contrast; at least
+        four noise sigmas). A ball at rest changes by the noise and the codec's flicker; one
+        that moved by a good part of its width changes by about its contrast. With no previous
+        frame (the first one) nothing is known to move: at rest. Frame differencing (Jain &
+        Nagel 1979)."""
+        prev = self._last_img
+        if prev is None or prev.shape != img.shape:
+            return True
+        uv = np.array([row["u"], row["v"]], float)
+        r = 0.8 * self._image_radius_px(uv)
+        now, empty, _ = self._disc_pixels(img, uv, r)
+        if len(now) == 0:
+            return True
+        before, _, _ = self._disc_pixels(prev, uv, r)
+        now = now.astype(np.float32)
+        moved = float(np.abs(now - before).max(axis=1).mean())
+        contrast = float(np.abs(now - empty).max(axis=1).mean())
+        return moved < _MOVED_SHARE * max(contrast, 4.0 * self.background.sigma)
 
     def _soft_ends(self, img: np.ndarray, row: dict) -> bool:
         """Whether a fitted streak (a detection row with a nonzero blur vector) fades in and out
@@ -3507,7 +3692,8 @@ class BallDetector:
         hd = float(p[4]) if capsule else 0.0
         travel = 2 * half + 2 * R if capsule else 0.0
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
-        sig = _stated_sigma(cov(), float(p[2]), unsettled, disagree, half)
+        cov_xy = cov()
+        sig = _stated_sigma(cov_xy, float(p[2]), unsettled, disagree, half)
         quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
         # Marked, not refused: the fit stands while the box's pieces are explained (a fit
         # straddling two colliding balls seeds the search that finds both, and is dropped then).
@@ -3527,6 +3713,7 @@ class BallDetector:
             "sigma_mm": sig,
             "joined": joined,
             "bias_mm": float(p[2]),
+            "cov_xy": cov_xy,
         }
 
     def _outline_noise_mm(self, img: np.ndarray, p: np.ndarray, capsule: bool, dirs: np.ndarray) -> float:
