@@ -3060,8 +3060,7 @@ class BallDetector:
         pts = self.camera.project(np.column_stack([xy.reshape(-1, 2), np.full(xy.shape[0] * xy.shape[1], R)]))
         mx = pts[:, 0].astype(np.float32).reshape(xy.shape[:2])
         my = pts[:, 1].astype(np.float32).reshape(xy.shape[:2])
-        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        f, b = self._frame_and_empty(img, mx, my)
         # |I - B| is linear in the coverage for a ball of one colour (I = c P + (1 - c) B).
         D = (np.linalg.norm(f - b, axis=2) / np.maximum(np.linalg.norm(b, axis=2), COLOUR_FLOOR_DN)).mean(axis=0)
         D = np.convolve(D, np.ones(3) / 3, mode="same")
@@ -3284,8 +3283,7 @@ class BallDetector:
         rho = lo[:, None] + t[None, :]
         mx = (c[0] + rho * dirs[:, 0:1]).astype(np.float32)
         my = (c[1] + rho * dirs[:, 1:2]).astype(np.float32)
-        prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        bprof = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        prof, bprof = self._frame_and_empty(img, mx, my)
         # Reference colour: the frame itself just outside the predicted outline (the last
         # samples of each ray), so an imperfect background under a resting ball does not matter.
         ref = np.sort(prof[:, -5:], axis=1)[:, 2]  # the median of five
@@ -3432,8 +3430,7 @@ class BallDetector:
         # _RAY_DIRS holds the cosines and sines of the same 48 angles (_RAY_ANG).
         mx = (uv[0] + rr[None, :] * _RAY_DIRS[:, 0:1]).astype(np.float32)
         my = (uv[1] + rr[None, :] * _RAY_DIRS[:, 1:2]).astype(np.float32)
-        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        f, b = self._frame_and_empty(img, mx, my)
         a_out = _median((_dot3_f32(f, b) / np.maximum(_dot3_f32(b, b), 1.0)).ravel())
         return a_in < _DARK_BODY * a_out
 
@@ -3472,8 +3469,7 @@ class BallDetector:
             inside = rho <= rho_pred[:, None]
         mx = (c[0] + rho * dirs[:, 0:1]).astype(np.float32)
         my = (c[1] + rho * dirs[:, 1:2]).astype(np.float32)
-        prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        bprof = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        prof, bprof = self._frame_and_empty(img, mx, my)
         bb = np.maximum(_dot3_f32(bprof, bprof), 1.0)
         a = _dot3_f32(prof, bprof) / bb
         if half_win is None:
@@ -3562,8 +3558,9 @@ class BallDetector:
         dropped = False
         rounds = (0.45, 0.25) + (None,) * _LOCAL_ROUNDS
         # A dark ball (:meth:`_dark_body`) is outlined by :meth:`_dark_edges` while it is
-        # fitted as a sharp ball.
-        dark = self._dark_body(img, seed["uv"]) if resume is None else resume[6]
+        # fitted as a sharp ball; asked when first needed (None: not yet), as a streak's fit
+        # or one refused before its outline never needs it.
+        dark = None if resume is None else resume[6]
         if resume is not None:
             p, capsule, result, coarse, same_hue, r_loc = resume[:6]
             p = p.copy()
@@ -3589,6 +3586,8 @@ class BallDetector:
             if not np.isfinite(rho).all():
                 return None
             r_loc = _median(rho) if not capsule else r_px
+            if not capsule and dark is None:
+                dark = self._dark_body(img, seed["uv"])
             if dark and not capsule:
                 pts = self._dark_edges(img, c, rho, dirs, None if win is None else win * r_loc)
             elif win is None:
@@ -3807,8 +3806,7 @@ class BallDetector:
         # _RAY_DIRS holds the cosines and sines of the same 48 angles (_RAY_ANG).
         mx = (uv[0] + r[None, :] * _RAY_DIRS[:, 0:1]).astype(np.float32)
         my = (uv[1] + r[None, :] * _RAY_DIRS[:, 1:2]).astype(np.float32)
-        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        f, b = self._frame_and_empty(img, mx, my)
         a = _dot3(f, b) / np.maximum(_dot3(b, b), 1.0)
         return _plain_body(_chroma_off(f, b, a).ravel(), a.ravel())
 
@@ -3908,12 +3906,18 @@ class BallDetector:
         shade = (a >= DARK_RATIO) & (a <= LIT_RATIO) & (_chroma_off(P, S, a) < 0.08)
         return _share(~shade)
 
+    def _frame_and_empty(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The frame (as float32) and the empty table (the background model's image) at the
+        sub-pixel points ``mx``, ``my`` (float32 arrays of one shape, px; bilinear, replicated at
+        the border): two arrays of that shape by 3 channels."""
+        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
+        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        return f, b
+
     def _ballness_at(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
         """:func:`ballness` of the frame against the empty table at the sub-pixel points ``mx``,
         ``my`` (float32 arrays of one shape, px; bilinear, replicated at the border)."""
-        f = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float32)
-        b = cv2.remap(self.background.image, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-        return ballness(f, b)
+        return ballness(*self._frame_and_empty(img, mx, my))
 
     def _fg_samples(self, img: np.ndarray, mx: np.ndarray, my: np.ndarray) -> np.ndarray:
         """Foreground (:meth:`_ballness_at` above the threshold) at the sub-pixel points ``mx``,
