@@ -550,6 +550,13 @@ def _batch_inv(N: np.ndarray) -> np.ndarray:
         return np.linalg.pinv(N)
 
 
+def _ridge_weight(sigma_mm: float, sd_mm_s2: float) -> float:
+    """Weight of a ridge prior of sd ``sd_mm_s2`` (mm/s^2) on an acceleration, for a path
+    coefficient ``c`` (half the acceleration) fitted to samples of noise ``sigma_mm`` (mm, at
+    least 0.05): ``(sigma / sd of c)^2``, the sd of c being half the acceleration's."""
+    return (2.0 * max(sigma_mm, 0.05) / sd_mm_s2) ** 2
+
+
 def _lateral_prior(v: np.ndarray, sigma_mm: float, cfg: "EventConfig") -> tuple[np.ndarray, float]:
     """The rolling piece's prior across its heading: (unit vector (2,) across the velocity
     ``v`` (2,) mm/s, extra ridge weight k >= 0), so that the prior on a rolling piece's
@@ -574,8 +581,8 @@ def _lateral_prior(v: np.ndarray, sigma_mm: float, cfg: "EventConfig") -> tuple[
     speed = float(np.hypot(*v))
     if not speed > 0:
         return np.zeros(2), 0.0
-    lam_along = (2.0 * max(sigma_mm, 0.05) / cfg.roll_decel_sigma_mm_s2) ** 2
-    lam_across = (2.0 * max(sigma_mm, 0.05) / cfg.roll_lateral_sigma_mm_s2) ** 2
+    lam_along = _ridge_weight(sigma_mm, cfg.roll_decel_sigma_mm_s2)
+    lam_across = _ridge_weight(sigma_mm, cfg.roll_lateral_sigma_mm_s2)
     return np.array([-v[1], v[0]]) / speed, max(lam_across - lam_along, 0.0)
 
 
@@ -769,7 +776,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     lc, *_ = np.linalg.lstsq(np.stack([np.ones(n), tau], axis=1), P, rcond=None)
     speed = float(np.hypot(*lc[1]))
     c_prior = -0.5 * cfg.roll_decel_mm_s2 * lc[1] / speed if speed > 0 else np.zeros(2)
-    lam = (2.0 * max(sigma_mm, 0.05) / cfg.roll_decel_sigma_mm_s2) ** 2  # (sigma / sd of c)^2
+    lam = _ridge_weight(sigma_mm, cfg.roll_decel_sigma_mm_s2)
     n_hat, k_lat = np.zeros(2), 0.0
     if lateral and after:
         n_hat, k_lat = _lateral_prior(_far_heading(tau, P), sigma_mm, cfg)
@@ -947,7 +954,7 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
         # is floored at 1 mm/s^2 (0.05 % of mu_s g) only so a clip whose slides agree exactly
         # (2 mm/s^2 on true centres) gives a finite weight.
         out = solve(one, 2, (-0.5 * straight[0] * lc[1] / speed,
-                             (2.0 * max(sigma_mm, 0.05) / max(straight[1], 1.0)) ** 2))
+                             _ridge_weight(sigma_mm, max(straight[1], 1.0))))
         coef, rss, inv = out
         c4 = np.zeros((4, 2))
         c4[:3] = coef[0]
