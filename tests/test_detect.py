@@ -1103,6 +1103,24 @@ def test_striped_balls_whose_band_meets_the_crease_are_found_and_placed(spin_see
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (spin_seed, err)
 
 
+def test_percentile_and_median_of_a_disc_match_numpy():
+    # The ball identity's order statistics (the 95th percentile of the brightness, medians of
+    # hue and brightness) must be numpy's own (reference: np.percentile's default "linear"
+    # method, Hyndman & Fan 1996 definition 7, and np.median) to the last bit, on the 0..255
+    # integer values of HSV pixels and on fractional values, for every length a disc gives.
+    from vision.detect import _median, _percentile_linear
+
+    rng = np.random.default_rng(5)
+    for n in list(range(1, 300)) + [517, 1024, 2049]:
+        for x in (rng.integers(0, 256, n).astype(float), rng.uniform(0.0, 255.0, n)):
+            for q in (95, 50, 5, 99, 100, 0):
+                assert np.float64(_percentile_linear(x, q)).tobytes() == np.float64(np.percentile(x, q)).tobytes(), (n, q)
+            assert np.float64(_median(x)).tobytes() == np.float64(np.median(x)).tobytes(), n
+    # A worked value (Hyndman & Fan 1996, definition 7): 1..10 at 95 % lies at index 8.55,
+    # 9 + 0.55 (10 - 9).
+    assert _percentile_linear(np.arange(1.0, 11.0), 95) == pytest.approx(9.55, abs=1e-12)
+
+
 def test_ballness_by_opencv_matches_the_written_out_score():
     # The score's OpenCV dot products and in-place arithmetic must give Horprasert et al.'s
     # (1999) brightness and chromaticity distortions as written out in numpy (reference: numpy's
