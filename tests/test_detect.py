@@ -1121,6 +1121,23 @@ def test_percentile_and_median_of_a_disc_match_numpy():
     assert _percentile_linear(np.arange(1.0, 11.0), 95) == pytest.approx(9.55, abs=1e-12)
 
 
+def test_planar_band_means_match_numpys_mean_of_interleaved_samples():
+    # The local edge keeps its samples channel by channel (3, K, N); its band means must be
+    # numpy's own mean over the band of the interleaved (K, N, 3) samples (reference: np.mean)
+    # to the last bit, for 8-bit samples as cv2.remap gives them and for fractional ones.
+    from vision.detect import _LOCAL_INNER, _LOCAL_OFF, _LOCAL_OUTER, _HUE_BAND, _band_mean_planar, _planar_profiles
+
+    rng = np.random.default_rng(3)
+    n = len(_LOCAL_OFF)
+    for x in (rng.integers(0, 256, (48, n, 3)).astype(np.uint8), rng.uniform(0, 255, (17, n, 3)).astype(np.float32)):
+        planes = _planar_profiles(x)
+        assert planes.dtype == np.float32 and planes.flags.c_contiguous and planes.shape == (3,) + x.shape[:2]
+        for band in (_LOCAL_INNER, _LOCAL_OUTER, _HUE_BAND):
+            want = x[:, band].astype(np.float32).mean(axis=1)
+            got = _band_mean_planar(planes, band)
+            assert got.shape == (3, len(x)) and np.array_equal(got.T, want), band
+
+
 def test_ballness_by_opencv_matches_the_written_out_score():
     # The score's OpenCV dot products and in-place arithmetic must give Horprasert et al.'s
     # (1999) brightness and chromaticity distortions as written out in numpy (reference: numpy's
