@@ -1103,6 +1103,24 @@ def test_striped_balls_whose_band_meets_the_crease_are_found_and_placed(spin_see
     assert np.median(err) <= 1.0 and np.percentile(err, 95) <= 2.5, (spin_seed, err)
 
 
+def test_one_point_projection_matches_the_cameras():
+    # A fitted centre's image (RayMap.project_point) must be Camera.project's to the last bit,
+    # for a radial lens and one with tangential and k3 terms, and OpenCV's projectPoints
+    # (reference) within 1e-6 px.
+    from vision.detect import RayMap
+
+    rng = np.random.default_rng(9)
+    for dist in ((-0.3, 0.1, 0.0, 0.0, 0.0), (-0.42, 0.16, -0.0008, 0.0005, -0.025)):
+        cam = Camera.overhead(NINE_FOOT, 2500.0, (1280, 720), offset_mm=(120, -70), roll_deg=1.2, dist=dist)
+        rays = RayMap(cam)
+        for _ in range(2000):
+            p = np.array([[rng.uniform(-50, NINE_FOOT.length_mm + 50), rng.uniform(-50, NINE_FOOT.width_mm + 50), NINE_FOOT.radius_mm]])
+            got = rays.project_point(*p[0].tolist())
+            assert got.shape == (2,) and got.tobytes() == cam.project(p)[0].tobytes()
+        ref, _ = cv2.projectPoints(p, cv2.Rodrigues(cam.R)[0], cam.tvec, cam.K, np.array(dist))
+        assert np.allclose(got, ref.reshape(2), atol=1e-6)
+
+
 def test_percentile_and_median_of_a_disc_match_numpy():
     # The ball identity's order statistics (the 95th percentile of the brightness, medians of
     # hue and brightness) must be numpy's own (reference: np.percentile's default "linear"

@@ -1686,6 +1686,16 @@ class RayMap:
         k00, k01, k02, k11, k12 = self._k
         return np.array([[k00 * xd + k01 * yd + k02, k11 * yd + k12]])
 
+    def project_point(self, x_mm: float, y_mm: float, z_mm: float) -> np.ndarray:
+        """(2,) pixel of one table point (mm): :meth:`Camera.project`'s value to the last bit.
+        The rotation is the camera's own product with its transposed ``R`` (the BLAS kernel for
+        that layout rounds differently from :meth:`project`'s contiguous copy in about one
+        point in six), the rest :meth:`_project_one`'s plain floats, operation for operation
+        :meth:`Camera.project`'s (tests/test_detect.py), without its array bookkeeping (a
+        fitted ball's centre image is asked once per fit)."""
+        cam = np.array([[x_mm, y_mm, z_mm]]) @ self.camera.R.T + self.camera.tvec
+        return self._project_one(*cam[0].tolist())[0]
+
     def sphere_outline(self, x_mm: float, y_mm: float, radius_mm: float) -> np.ndarray:
         """(32, 2) pixels of the silhouette of the sphere of radius ``radius_mm`` centred
         ``radius_mm`` above the table point (``x_mm``, ``y_mm``): :func:`sphere_outline_px`
@@ -3725,7 +3735,7 @@ class BallDetector:
         x, y = float(p[0]), float(p[1])
         if not self._on_table(x, y):
             return None
-        uv = cam.project(np.array([[x, y, R]]))[0]
+        uv = self.rays.project_point(x, y, R)
         if seed["strict"] and not self._isolated(img, uv):
             return None
         if not capsule and self._filled_share(img, uv, r_loc) < 0.6:
