@@ -3530,8 +3530,10 @@ class BallDetector:
             a_out = _band_mean(a[..., None], _LOCAL_OUTER)[:, 0]
             b_out = _band_mean(np.sqrt(bb)[..., None], _LOCAL_OUTER)[:, 0]
         else:
-            a_out = np.median(a[:, -5:], axis=1)
-            b_out = np.median(np.sqrt(bb[:, -5:]), axis=1)
+            # Medians of five (np.median's values: the third of each row's five, finite here),
+            # by one partition each instead of np.median's generic reduction.
+            a_out = np.partition(a[:, -5:], 2, axis=1)[:, 2]
+            b_out = np.partition(np.sqrt(bb[:, -5:]), 2, axis=1)[:, 2]
         K, n = a.shape
         rows = np.arange(K)
         sm = a.copy()
@@ -3747,7 +3749,7 @@ class BallDetector:
         colour, pattern = ("", "unknown") if capsule else self._identity(img, uv, r_loc)
         cov_xy = cov()
         sig = _stated_sigma(cov_xy, float(p[2]), unsettled, disagree, half)
-        quality = float(np.clip(share * math.exp(-rms / max_rms), 0.0, 1.0))
+        quality = float(min(max(share * math.exp(-rms / max_rms), 0.0), 1.0))  # np.clip's value, without its wrappers
         # Marked, not refused: the fit stands while the box's pieces are explained (a fit
         # straddling two colliding balls seeds the search that finds both, and is dropped then).
         joined = not capsule and not seed["strict"] and not seed.get("cluster") and self._joined_mark(img, uv, rms)
@@ -4104,7 +4106,7 @@ class BallDetector:
         if len(hsv) < 12:
             return "", "unknown"
         cloth = self.background.image[int(round(uv[1])), int(round(uv[0]))]
-        ch, cs, _ = cv2.cvtColor(np.clip(cloth, 0, 255).astype(np.uint8)[None, None], cv2.COLOR_BGR2HSV)[0, 0].astype(float)
+        ch, cs, _ = cv2.cvtColor(np.minimum(np.maximum(cloth, 0), 255).astype(np.uint8)[None, None], cv2.COLOR_BGR2HSV)[0, 0].astype(float)
         H, S, V = hsv[:, 0], hsv[:, 1], hsv[:, 2]
         # Order statistics by _percentile_linear and _median: np.percentile's and np.median's
         # values, at a fraction of their cost on a disc of pixels.
