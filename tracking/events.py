@@ -173,10 +173,11 @@ Method
    that seems to begin frames before a collision with a ball already moving and then within
    ``nudge_halo_mm`` of its surface, where it leaves along their line of centres: the two
    balls' one blob pushed its reads (``_met_at_rest``). *Stop*:
-   a ball comes to rest rolling, so the samples about the start of its rest are fitted by a
-   path decelerating uniformly along a straight line to rest at the stop (``_Finder.stop``):
-   the stop's time is where that path's speed reaches zero (never before the ball's last
-   contact), its place the mean of the samples at rest after it. A ball that leaves the table
+   a ball comes to rest rolling, so the samples of its last rolling piece (from the end of
+   the slide after its last contact into the start of its rest) are fitted by a path
+   decelerating uniformly along a straight line to rest at the stop, at the median of its
+   reads at rest (``_Finder.stop``): the stop's time is where that path's speed reaches zero
+   (never before the ball's last contact), its place the mean of the samples at rest after it. A ball that leaves the table
    or the clip before it has lain still for ``min_rest_s`` (caught, or still rolling at the
    clip's end) gets no stop.
    *Pocket*: a track that ends (before the clip does, or before a gap) heading into a pocket
@@ -264,8 +265,12 @@ class EventConfig:
     (median 30; the lowest, 2.8 at 30 fps, a ball meeting a cushion two frames after), and
     -0.02 for the near miss (3 mm apart) that seed 2 at 30 fps took for one.
     ``start_fit_s`` / ``stop_fit_s``: samples fitted to solve a start / stop (for a stop, that
-    long on each side of the start of the rest, ``_Finder.stop``: at mu_r g a ball covers 18 mm
-    in its last 0.6 s, dozens of detection sigmas, enough to fix the deceleration).
+    long after the start of the rest, and before it the whole last rolling piece, but at most
+    ``stop_back_s``, ``_Finder.stop``: at mu_r g a ball covers only 18 mm in its last 0.6 s,
+    where a crawling ball's reads can be off by several mm together, and about 200 mm in its
+    last 2 s; a slide ends within ``2 v / (7 mu_s g)``, 0.22 s from 1.5 m/s, so a spin left
+    over after a contact that the roll's start takes too short (bank_practice's cue ball at
+    12.33 s, its stop lost when fitted over 4 s) is out of the window).
     ``pocket_reach_mm`` / ``pocket_horizon_s``: a track ending within this of a pocket mouth whose
     path crosses the mouth within this time was pocketed. ``meas_sigma_mm``: detection noise
     assumed where it cannot be estimated.
@@ -399,6 +404,7 @@ class EventConfig:
     turn_sigmas: float = 5.0
     start_fit_s: float = 0.1
     stop_fit_s: float = 0.6
+    stop_back_s: float = 1.5
     pocket_reach_mm: float = 150.0
     pocket_horizon_s: float = 0.5
     meas_sigma_mm: float = 2.0
@@ -1399,6 +1405,16 @@ def _rest_position(b: _Ball, i0: int, lo: float, dt: float) -> tuple[np.ndarray,
     p_rest = np.median(rest_p, axis=0)
     scatter = float(np.median(np.hypot(*(rest_p - p_rest).T))) if len(rest_p) > 2 else 0.0
     return p_rest, rest_t, max(3.0 * scatter, 1.0)
+
+
+def _rest_point(ts: np.ndarray, ps: np.ndarray) -> np.ndarray | None:
+    """Where a ball lies through a stay at rest (2,) mm: the median of each coordinate of its
+    raw reads ps (n, 2) mm at times ts (n,) s, robust to the crawl's last reads and a stray
+    read; None under three reads (too few to outvote one). Unweighted: a read carried over
+    unchanged frames keeps its stated sd, and weighted it would hardly count."""
+    if len(ts) < 3:
+        return None
+    return np.median(ps, axis=0)
 
 
 def _returned(raw: np.ndarray, p_rest: np.ndarray, thr: float, reach_mm: float) -> int | None:
@@ -3735,21 +3751,31 @@ class _Finder:
         with the stop at ``t_s`` and the rest point ``p_s`` its centre is
         ``p(t) = p_s - (a / 2) u (t_s - t)^2`` before ``t_s`` and ``p_s`` after, for the
         deceleration ``a`` along the travel direction ``u`` (uniformly accelerated rectilinear
-        motion). The raw samples from ``stop_fit_s`` before the rest (never before
-        the last contact and half an exposure) to ``stop_fit_s`` after it (never past
+        motion). The raw samples of the whole last rolling piece (from the last contact's
+        slide on, ``_roll_start``, at most ``stop_back_s`` before the rest's start) to
+        ``stop_fit_s`` after it (never past
         ``t_rest_end``) are fitted by weighted least squares, linear in ``p_s, a`` for a given
         ``t_s`` (``_stop_fit``) with the prior ``roll_decel_mm_s2 +- roll_decel_sigma_mm_s2``
         on ``a``, ``u`` the chord from the first samples to the last; ``t_s`` is scanned from
-        the last contact on (``_stop_scan``), and fitted again without the samples left over
-        ``outlier_sigmas`` noise sigmas off. A ball that a contact stops dead gets ``t_s`` at
+        the last contact on (``_stop_scan``). That first fit's stop starts the stay at rest,
+        whose median read (``_rest_point``) then pins ``p_s``, and ``t_s`` and ``a`` are
+        fitted again, and once more without the samples left over ``outlier_sigmas`` noise
+        sigmas off. A ball that a contact stops dead gets ``t_s`` at
         the contact: running on beyond it must beat lying still from it by more than the
         Bayesian information criterion's penalty of its two parameters. The stop's position
         is the mean of the raw samples after ``t_s`` in the rest (``p_s`` where there are
-        none)."""
+        none).
+
+        Why the whole piece and a pinned rest point: the last stretch alone fixes the stop
+        by where its reads reach the rest point, and lamp_50fps's crawling 4 ball (extra set)
+        is read 3-7 mm ahead in its last 0.4 s, up to 5 mm past where it comes to lie, while
+        its stay's reads (one read carried over unchanged frames, stated sd 5 mm) hardly
+        weigh: its stop came 0.155 s early (0.6 s each side of the rest's start). The
+        piece's earlier reads fix its deceleration, and the stay's median its end."""
         cfg = self.cfg
         t_rest = float(b.t[min(i1 + 1, len(b.t) - 1)])
         t_lo = t_last_event + 0.5 * self.exposure
-        ts, ps = b.samples(max(t_lo, t_rest - cfg.stop_fit_s) - 1e-9,
+        ts, ps = b.samples(max(self._roll_start(b, t_lo), t_rest - cfg.stop_back_s) - 1e-9,
                            min(t_rest_end, t_rest + cfg.stop_fit_s) + 1e-9)
         t_s = t_rest
         p_s = b.p[min(i1 + 1, len(b.t) - 1)]
@@ -3762,10 +3788,12 @@ class _Finder:
                 ps[:q], axis=0, weights=w[:q])
             u = chord / max(float(np.hypot(*chord)), 1e-9)
             lo_s = max(t_last_event, ts[0] - self.dt)
+            t_s, _, _ = self._stop_scan(ts, ps, w, u, b.sigma_fit, lo_s)
+            rest = _rest_point(*b.samples(t_s, t_rest_end + 1e-9))
             for _ in range(2):
                 # Once more without the samples the first fit leaves over ``outlier_sigmas``
                 # noise sigmas off: detections of something else beside a dim ball.
-                t_s, p_s, keep = self._stop_scan(ts, ps, w, u, b.sigma_fit, lo_s)
+                t_s, p_s, keep = self._stop_scan(ts, ps, w, u, b.sigma_fit, lo_s, rest)
                 if keep.all() or keep.sum() < 3:
                     break
                 ts, ps, w = ts[keep], ps[keep], w[keep]
@@ -3774,20 +3802,32 @@ class _Finder:
         xy = np.mean(after_p, axis=0) if len(after_p) else p_s
         return _row(t_s, "stop", b.track, xy, speed_in=0.0, speed_out=0.0)
 
+    def _roll_start(self, b: _Ball, t_lo: float) -> float:
+        """Time (s) from which ``b``'s motion after its last contact (``t_lo``, half an
+        exposure past it) rolls: after the slide, ``2 |slip| / (7 mu_s g)`` (Alciatore 2004),
+        taken with the slip at the ball's smoothed speed just after the contact (a ball hit by
+        another leaves with no spin, so its slip is its speed) and ``mu_s g`` the clip's
+        measured sliding deceleration or ``slide_decel_mm_s2``. The slide's samples would
+        bend the rolling fit at its start."""
+        k = min(int(np.searchsorted(b.t, t_lo)) + 1, len(b.t) - 1)
+        decel = self.slide_decel if self.slide_measured else self.cfg.slide_decel_mm_s2
+        return t_lo + 2.0 * float(np.hypot(*b.v[k])) / (7.0 * decel)
+
     def _stop_scan(self, ts: np.ndarray, ps: np.ndarray, w: np.ndarray, u: np.ndarray,
-                   sigma_mm: float, lo_s: float) -> tuple[float, np.ndarray, np.ndarray]:
+                   sigma_mm: float, lo_s: float,
+                   rest: np.ndarray | None = None) -> tuple[float, np.ndarray, np.ndarray]:
         """Best stop time (s) from ``lo_s`` on and its rest point (2,) mm (``_stop_fit`` on a
         grid of ``kink_step_frames`` frame intervals, then Brent's bounded method between the
         best grid point's neighbours), and which samples (n,) bool lie within
-        ``outlier_sigmas`` noise sigmas of that path."""
+        ``outlier_sigmas`` noise sigmas of that path; ``rest`` (2,) mm pins the rest point."""
         step = self.cfg.kink_step_frames * self.dt
         grid = np.arange(lo_s, max(float(ts[-1]), lo_s) + 0.5 * step, step)
-        cost = [self._stop_fit(tg, ts, ps, w, u, sigma_mm)[0] for tg in grid]
+        cost = [self._stop_fit(tg, ts, ps, w, u, sigma_mm, rest)[0] for tg in grid]
         k = int(np.argmin(cost))
         a, c = grid[max(k - 1, 0)], grid[min(k + 1, len(grid) - 1)]
         t_s = float(grid[k])
         if c > a:
-            res = minimize_scalar(lambda tg: self._stop_fit(tg, ts, ps, w, u, sigma_mm)[0],
+            res = minimize_scalar(lambda tg: self._stop_fit(tg, ts, ps, w, u, sigma_mm, rest)[0],
                                   bounds=(a, c), method="bounded", options={"xatol": 1e-4})
             if res.fun <= cost[k]:
                 t_s = float(res.x)
@@ -3796,22 +3836,24 @@ class _Finder:
         # penalty of its two parameters (``t_s``, ``a``), 2 ln n, in units of the resting
         # model's own residual variance: a ball stopped dead by a contact lies still, and a
         # path fitted to its noise must not run it on.
-        rss_lo = self._stop_fit(lo_s, ts, ps, w, u, sigma_mm)[0]
+        rss_lo = self._stop_fit(lo_s, ts, ps, w, u, sigma_mm, rest)[0]
         s2_lo = rss_lo / max(2 * len(ts) - 2, 1)
         if s2_lo > 0 and (rss_lo - min(cost)) / s2_lo < 2.0 * math.log(len(ts)):
             t_s = lo_s
-        _, p_s, pred = self._stop_fit(t_s, ts, ps, w, u, sigma_mm)
+        _, p_s, pred = self._stop_fit(t_s, ts, ps, w, u, sigma_mm, rest)
         keep = np.hypot(*(ps - pred).T) <= self.cfg.outlier_sigmas * sigma_mm
         return t_s, p_s, keep
 
     def _stop_fit(self, t_s: float, ts: np.ndarray, ps: np.ndarray, w: np.ndarray,
-                  u: np.ndarray, sigma_mm: float) -> tuple[float, np.ndarray, np.ndarray]:
+                  u: np.ndarray, sigma_mm: float,
+                  rest: np.ndarray | None = None) -> tuple[float, np.ndarray, np.ndarray]:
         """Criterion, rest point (2,) mm and fitted path (n, 2) mm of the stop model of
         ``stop`` at trial ``t_s`` (s): ``p(t) = p_s - (a / 2) u max(t_s - t, 0)^2``.
 
         Samples ts (n,) s, ps (n, 2) mm, weights w (n,); travel direction u (2,) (a straight
-        path: nothing across it for the noise to fit). Unknowns ``[px, py, a]``, linear;
-        criterion the weighted RSS / sigma^2 plus the prior ``((a - a0) / sd)^2``."""
+        path: nothing across it for the noise to fit). Unknowns ``[px, py, a]``, linear, or
+        ``a`` alone where ``rest`` (2,) mm gives ``p_s``; criterion the weighted RSS /
+        sigma^2 plus the prior ``((a - a0) / sd)^2``."""
         cfg = self.cfg
         qq = -0.5 * np.clip(t_s - ts, 0.0, None) ** 2
         n = len(ts)
@@ -3827,7 +3869,12 @@ class _Finder:
         N[2, 2] += prior_w
         rhs = (A * ww[:, None]).T @ y
         rhs[2] += prior_w * cfg.roll_decel_mm_s2
-        th = np.linalg.solve(N, rhs)
+        if rest is not None:
+            # p_s known: a's normal equation alone, with the rest point's columns moved over.
+            th = np.array([rest[0], rest[1], 0.0])
+            th[2] = (rhs[2] - N[2, :2] @ th[:2]) / N[2, 2]
+        else:
+            th = np.linalg.solve(N, rhs)
         r = y - A @ th
         cost = float(ww @ r**2) + prior_w * float(th[2] - cfg.roll_decel_mm_s2) ** 2
         return cost, th[:2], np.column_stack([r[:n], r[n:]]) * -1.0 + ps
