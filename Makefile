@@ -15,8 +15,10 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/python -m railtrace.demo
 
+# The suite as two pytest processes at once (tests/halves.py holds the split; DEVELOPERS.md, "Tests").
+# `$(BIN)/python -m pytest -q` runs it all in one process.
 test: $(STAMP) browser
-	$(BIN)/python -m pytest -q
+	$(BIN)/python tests/halves.py
 
 # Headless Chromium for the report's browser test (tests/test_browser.py), from Debian's packages.
 # Installed only when missing, and only where we are root with apt-get (CI); elsewhere the

@@ -54,10 +54,26 @@ def _match(det: pd.DataFrame, truth: np.ndarray, gate: float = R):
     return np.where(e < gate, e, np.inf), j
 
 
+@pytest.fixture(scope="module")
+def stage():
+    """``stage(s)``: a Renderer of set-up ``s``'s camera and look on the 9 ft table (one of
+    SETUPS or RACKS), its static scene traced once per module, the costly part of a Renderer
+    (about 2.5 processor seconds at 960 x 540); ``.with_balls(balls, occluder, seed)`` of it
+    films what a new Renderer of those gives, to the bit (tests/test_render.py)."""
+    done = {}
+
+    def get(s):
+        if id(s) not in done:
+            done[id(s)] = (s, Renderer(NINE_FOOT, s["camera"], s["look"], ()))
+        return done[id(s)][1]
+
+    return get
+
+
 @pytest.fixture(scope="module", params=list(SETUPS))
-def resting(request):
+def resting(request, stage):
     s = SETUPS[request.param]
-    ren = Renderer(NINE_FOOT, s["camera"], s["look"], BALLS, seed=3)
+    ren = stage(s).with_balls(BALLS, seed=3)
     n = len(BALLS)
     frames = [ren.render(AT[None], _rot(n), np.ones((1, n), bool), np.array([t])) for t in (0.0, 1 / 60)]
     det = BallDetector(s["camera"], NINE_FOOT)
@@ -129,11 +145,11 @@ def test_cue_stripe_and_solid_told_apart(resting):
 
 
 @pytest.fixture(scope="module")
-def moving():
+def moving(stage):
     """A ball crossing at 4 m/s, 60 fps, 1/250 s shutter (16 mm of blur), and one at 1/60 s
     (67 mm: a streak longer than the ball)."""
     s = SETUPS["green_high"]
-    ren = Renderer(NINE_FOOT, s["camera"], s["look"], BALLS[:2], seed=5)
+    ren = stage(s).with_balls(BALLS[:2], seed=5)
     out = {}
     for shutter in (1 / 250, 1 / 60):
         det = BallDetector(s["camera"], NINE_FOOT)
@@ -172,11 +188,11 @@ def test_long_streak_reports_its_travel(moving):
     assert np.all(np.abs(np.array(got) - travel) < 15.0), got
 
 
-def test_arm_and_cue_are_not_detected():
+def test_arm_and_cue_are_not_detected(stage):
     s = SETUPS["green_high"]
     balls = BALLS[:1]
     occ = Occluder((CueStroke(1.0, (1270.0, 635.0), math.radians(30.0)),))
-    ren = Renderer(NINE_FOOT, s["camera"], s["look"], balls, occluder=occ, seed=2)
+    ren = stage(s).with_balls(balls, occluder=occ, seed=2)
     det = BallDetector(s["camera"], NINE_FOOT)
     pos = np.array([[[1270.0, 635.0]]])
     frames = [ren.render(pos, _rot(1), np.ones((1, 1), bool), np.array([t])) for t in (0.0, 0.4, 0.6, 0.85)]
@@ -481,14 +497,14 @@ CLUSTER_AT = np.array(
 
 
 @pytest.fixture(scope="module")
-def cluster():
+def cluster(stage):
     """Detections of the cluster in two frames, per setup name, rendered once per module."""
     done = {}
 
     def run(name):
         if name not in done:
             s = SETUPS[name]
-            ren = Renderer(NINE_FOOT, s["camera"], s["look"], CLUSTER, seed=8)
+            ren = stage(s).with_balls(CLUSTER, seed=8)
             n = len(CLUSTER)
             det = BallDetector(s["camera"], NINE_FOOT)
             frames = [ren.render(CLUSTER_AT[None], _rot(n), np.ones((1, n), bool), np.array([t])) for t in (0.0, 1 / 60)]
@@ -1424,13 +1440,13 @@ def test_bridge_hand_is_not_taken_for_two_balls():
     assert sum(missed) == 0, missed
 
 
-def _seen_once(resting, shown: bool):
+def _seen_once(resting, shown: bool, stage):
     """(scene name, camera, frame, detector) for the ``resting`` scene: its balls at ``AT``
     rendered (seed 3), or the empty table where not ``shown``, and a detector that has
     processed that one frame."""
     name, s, _ = resting
     cam = s["camera"]
-    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS, seed=3)
+    ren = stage(s).with_balls(BALLS, seed=3)
     vis = np.full((1, len(BALLS)), shown, dtype=bool)
     frame = ren.render(AT[None], _rot(len(BALLS)), vis, np.array([0.0]))
     det = BallDetector(cam, NINE_FOOT)
@@ -1438,14 +1454,14 @@ def _seen_once(resting, shown: bool):
     return name, cam, frame, det
 
 
-def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting):
+def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting, stage):
     # A sphere's silhouette steps from the ball to the cloth (or its own shadow) all round, so
     # the occluder test's rim share of each rendered ball standing alone is near 1; a sphere's
     # outline laid on bare cloth, or inside a bar wider than a ball (an arm), crosses no step
     # anywhere (analytic: the colour is the same either side of it).
     import cv2
 
-    name, cam, frame, det = _seen_once(resting, True)
+    name, cam, frame, det = _seen_once(resting, True, stage)
     alone = AT[:4]  # balls 5 and 13 touch each other
     uv = cam.project(np.column_stack([alone, np.full(len(alone), R)]))
     shares = [det._rim_share(frame, p) for p in uv]
@@ -1458,7 +1474,7 @@ def test_rim_steps_all_round_a_ball_and_nowhere_on_cloth_or_an_arm(resting):
     assert det._rim_share(arm, bare) == 0.0, name
 
 
-def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_neither(resting):
+def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_neither(resting, stage):
     # A free fit is joined to something whatever its outline's rms (_neither_ring_nor_rim) when
     # it fails both halves of the occluder test. A rendered ball standing alone, and the same
     # ball with a sleeve-coloured bar (the renderer's Occluder sleeve) laid against it, keep
@@ -1468,7 +1484,7 @@ def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_nei
     # analytic) and the same colour either side of its outline everywhere (analytic).
     import cv2
 
-    name, cam, frame, det = _seen_once(resting, True)
+    name, cam, frame, det = _seen_once(resting, True, stage)
     r_px = det.ball_px / 2
     ball = cam.project(np.array([[AT[0, 0], AT[0, 1], R]]))[0]
     assert not det._neither_ring_nor_rim(frame, ball), name
@@ -1491,7 +1507,7 @@ def test_a_ball_against_an_arm_keeps_ring_or_rim_and_a_circle_on_a_cue_keeps_nei
         assert det._joined_mark(img, uv, 2.0 * _JOINED_RMS_MM) == both, name
 
 
-def test_two_balls_apart_are_not_held_apart_and_a_hands_two_ends_are(resting):
+def test_two_balls_apart_are_not_held_apart_and_a_hands_two_ends_are(resting, stage):
     # _held_apart: two balls whose centres lie 2.5 R apart (not touching) have cloth between
     # them (analytic: the gap is half a radius wide), while the two rounded ends of a
     # hand-shaped bar a ball wide (the renderer's Occluder skin colour) fitted as balls at the
@@ -1500,7 +1516,7 @@ def test_two_balls_apart_are_not_held_apart_and_a_hands_two_ends_are(resting):
 
     from vision.detect import ballness
 
-    name, cam, empty, det = _seen_once(resting, False)
+    name, cam, empty, det = _seen_once(resting, False, stage)
     xy = np.array([[1500.0, 600.0], [1500.0 + 2.5 * R, 600.0]])
     uv = cam.project(np.column_stack([xy, np.full(2, R)]))
     rows = [{"x": p[0], "y": p[1], "u": q[0], "v": q[1], "blur_x": 0.0, "blur_y": 0.0} for p, q in zip(xy, uv)]
@@ -1586,7 +1602,7 @@ def test_still_bridge_hand_and_its_faded_trace_give_no_streak(start, first, last
     assert sum(missed.values()) == 0, {k: v for k, v in missed.items() if v}
 
 
-def test_identical_frame_gives_identical_rows_and_a_nudged_ball_is_refitted(monkeypatch):
+def test_identical_frame_gives_identical_rows_and_a_nudged_ball_is_refitted(monkeypatch, stage):
     # A frame identical to the last one changes no cell of the change grid: its rows are the
     # previous frame's very rows, and nothing is fitted. A ball nudged by about one pixel
     # changes its cells (its rim moves a pixel against the cloth): it is refitted and found
@@ -1594,7 +1610,7 @@ def test_identical_frame_gives_identical_rows_and_a_nudged_ball_is_refitted(monk
     # edge at about 2 mm per px), while the ball far from it is carried over untouched.
     s = SETUPS["green_high"]
     cam = s["camera"]
-    ren = Renderer(NINE_FOOT, cam, s["look"], BALLS[:2], seed=11)
+    ren = stage(s).with_balls(BALLS[:2], seed=11)
     a, b = np.array([900.0, 450.0]), np.array([1900.0, 800.0])
     # One pixel at ball a, in mm on the plane of ball centres, along x.
     uv = cam.project(np.array([[*a, R]]))[0]
@@ -1622,7 +1638,7 @@ def test_identical_frame_gives_identical_rows_and_a_nudged_ball_is_refitted(monk
 
 @pytest.mark.parametrize("setup", list(SETUPS))
 @pytest.mark.parametrize("ball", [0, 2, 3])  # the cue ball, the black 8, the dark striped 12
-def test_ball_nudged_half_a_millimetre_is_refitted_and_sensor_noise_alone_is_not(setup, ball, monkeypatch):
+def test_ball_nudged_half_a_millimetre_is_refitted_and_sensor_noise_alone_is_not(setup, ball, monkeypatch, stage):
     # The brief of issue 3's speed point: skip work where nothing moves, but never hide a ball
     # that moved. A 0.5 mm nudge moves the rim a quarter pixel or less (about 2-3 mm per px
     # here): too little for the change grid's cell means (which carried such a ball over
@@ -1632,7 +1648,7 @@ def test_ball_nudged_half_a_millimetre_is_refitted_and_sensor_noise_alone_is_not
     # the renderer's truth, and the ball far from it is carried over untouched.
     s = SETUPS[setup]
     cam = s["camera"]
-    ren = Renderer(NINE_FOOT, cam, s["look"], (BALLS[ball], BALLS[4]), seed=21)
+    ren = stage(s).with_balls((BALLS[ball], BALLS[4]), seed=21)
     a, b = np.array([900.0, 450.0]), np.array([1900.0, 800.0])
     render = lambda p: ren.render(np.array([[p, b]]), _rot(2), np.ones((1, 2), bool), np.array([0.0]))
     nudge = np.array([0.5 * math.cos(0.4), 0.5 * math.sin(0.4)])
@@ -1651,7 +1667,7 @@ def test_ball_nudged_half_a_millimetre_is_refitted_and_sensor_noise_alone_is_not
     assert near(moved, b) is near(first, b)
 
 
-def test_patch_shift_agrees_with_opencvs_lucas_kanade():
+def test_patch_shift_agrees_with_opencvs_lucas_kanade(stage):
     # The nudge test's shift of a ball's patch (one Lucas-Kanade step, Lucas & Kanade 1981)
     # against OpenCV's own Lucas-Kanade (cv2.calcOpticalFlowPyrLK, one level, iterated to
     # convergence) on the same patch, for sub-pixel translations (cv2.warpAffine, bicubic) of a
@@ -1662,7 +1678,7 @@ def test_patch_shift_agrees_with_opencvs_lucas_kanade():
 
     for setup, bl in (("green_high", 3), ("blue_low_wide", 2)):
         cam = SETUPS[setup]["camera"]
-        ren = Renderer(NINE_FOOT, cam, SETUPS[setup]["look"], BALLS[bl : bl + 1], seed=3)
+        ren = stage(SETUPS[setup]).with_balls(BALLS[bl : bl + 1], seed=3)
         img = ren.render(np.array([[[1200.0, 600.0]]]), _rot(1), np.ones((1, 1), bool), np.array([0.0]))
         u, v = (int(round(c)) for c in cam.project(np.array([[1200.0, 600.0, R]]))[0])
         half = 16
@@ -2273,7 +2289,7 @@ RACKS = {
 }
 
 
-def _rack_renderer(name):
+def _rack_renderer(name, stage):
     """(renderer, truth centres (N, 2) mm, rotations (1, N, 3, 3)) of the rack ``name`` (RACKS),
     every ball turned at random."""
     from scipy.spatial.transform import Rotation
@@ -2285,17 +2301,17 @@ def _rack_renderer(name):
     balls = pool[s["balls"]] if isinstance(s["balls"], slice) else tuple(pool[k] for k in s["balls"])
     at = s["at"]
     rot = Rotation.random(len(at), random_state=np.random.default_rng(5)).as_matrix()[None]
-    return Renderer(NINE_FOOT, s["camera"], s["look"], balls, seed=5), at, rot
+    return stage(s).with_balls(balls, seed=5), at, rot
 
 
 @pytest.fixture(scope="module")
-def racks():
+def racks(stage):
     """Detections of each rack (RACKS) in the frame after an empty table's, and the truth."""
     done = {}
 
     def run(name):
         if name not in done:
-            ren, at, rot = _rack_renderer(name)
+            ren, at, rot = _rack_renderer(name, stage)
             n = len(at)
             det = BallDetector(RACKS[name]["camera"], NINE_FOOT)
             det.process(0, 0.0, ren.render(at[None], rot, np.zeros((1, n), bool), np.array([0.0])))
@@ -2328,7 +2344,7 @@ def test_racked_balls_are_placed_within_the_resting_p95(racks, name):
     assert np.median(err) <= 2.5, (name, err)
 
 
-def test_a_racks_balls_step_at_their_rims_and_circles_along_a_sleeve_do_not():
+def test_a_racks_balls_step_at_their_rims_and_circles_along_a_sleeve_do_not(stage):
     # The touching-cluster explanation of a free piece must be of balls (_cluster_rims): each
     # rendered racked ball's silhouette steps from the ball to the cloth or to its neighbour's
     # darkened limb (a lit sphere's shading falls toward its contour: Lambert's cosine law,
@@ -2345,7 +2361,7 @@ def test_a_racks_balls_step_at_their_rims_and_circles_along_a_sleeve_do_not():
     s = RACKS[name]
     cam, at = s["camera"], s["at"]
     n = len(at)
-    ren = Renderer(NINE_FOOT, cam, s["look"], pool_balls()[s["balls"]], seed=5)
+    ren = stage(s).with_balls(pool_balls()[s["balls"]], seed=5)
     det = BallDetector(cam, NINE_FOOT)
     empty = ren.render(at[None], _rot(n), np.zeros((1, n), bool), np.array([0.0]))
     det.process(0, 0.0, empty)
@@ -2365,14 +2381,14 @@ def test_a_racks_balls_step_at_their_rims_and_circles_along_a_sleeve_do_not():
 
 
 @pytest.fixture(scope="module")
-def racks_from_start():
+def racks_from_start(stage):
     """Detections of each rack (RACKS) standing from the clip's first frame (the empty-table
     model is made from that frame: real break footage starts so), and the truth."""
     done = {}
 
     def run(name):
         if name not in done:
-            ren, at, rot = _rack_renderer(name)
+            ren, at, rot = _rack_renderer(name, stage)
             det = BallDetector(RACKS[name]["camera"], NINE_FOOT)
             done[name] = (det.process(0, 0.0, ren.render(at[None], rot, np.ones((1, len(at)), bool), np.array([0.0]))), at)
         return done[name]
@@ -2465,7 +2481,7 @@ def test_every_ball_of_a_rack_in_other_rooms_is_found(name):
 
 
 @pytest.mark.parametrize("heading_deg,bridge_mm", [(180.0, 230.0), (200.0, 150.0)])
-def test_arm_over_or_beside_a_rack_gives_no_ball(heading_deg, bridge_mm):
+def test_arm_over_or_beside_a_rack_gives_no_ball(heading_deg, bridge_mm, stage):
     # A stroke on a ball lying just in front of a touching 15-ball triangle, sent away from
     # it: the cue, the bridge hand and the arms lie back over the rack or beside it, joining it
     # in one piece of foreground with it (racked balls under or against the hand may be lost
@@ -2477,7 +2493,7 @@ def test_arm_over_or_beside_a_rack_gives_no_ball(heading_deg, bridge_mm):
     balls = pool_balls()[1:16] + (pool_balls()[0],)
     n = len(at)
     occ = Occluder((CueStroke(1.5, tuple(at[-1]), math.radians(heading_deg)),), bridge_mm=bridge_mm)
-    ren = Renderer(NINE_FOOT, s["camera"], s["look"], balls, occluder=occ, seed=7)
+    ren = stage(s).with_balls(balls, occluder=occ, seed=7)
     det = BallDetector(s["camera"], NINE_FOOT)
     extra = []
     # The empty-table model from a frame with the balls and no player, then 60 fps while the
@@ -2510,8 +2526,13 @@ def test_a_dark_ball_is_found_after_a_shadow_dims_the_whole_table(cloth_bgr, bal
     at = np.array([[900.0, 500.0]])
     det = BallDetector(cam, NINE_FOOT)
     t = 0.0
+    # One static scene per exposure, each frame with its own noise seed (Renderer.with_balls
+    # gives what a new Renderer of that seed gives without tracing the scene again).
+    scenes = {}
     for k, gain in enumerate((1.0, 1.0, 1.0, 0.93, 0.86, 0.8, 0.8, 0.8, 0.8, 0.8)):
-        ren = Renderer(NINE_FOOT, cam, Look(cloth_bgr=cloth_bgr, exposure=gain, noise_sigma=noise), balls, seed=k)
+        if gain not in scenes:
+            scenes[gain] = Renderer(NINE_FOOT, cam, Look(cloth_bgr=cloth_bgr, exposure=gain, noise_sigma=noise), balls, seed=k)
+        ren = scenes[gain].with_balls(balls, seed=k)
         present = np.array([[k >= 7]])
         out = det.process(k, t, ren.render(at[None], _rot(1), present, np.array([t])))
         t += det.config.update_every_s

@@ -243,6 +243,38 @@ def test_sensor_noise_matches_sigma():
     assert np.array_equal(fa1, Renderer(SEVEN_FOOT, cam, look, (), seed=1).render(*empty))
 
 
+def test_a_renderer_with_other_balls_films_what_a_new_one_does():
+    # Renderer.with_balls shares the static scene of a renderer of the same table, camera and
+    # look (tests reuse one to skip its ray cast): its frames must be those of a new Renderer
+    # of those balls, occluder and seed to the bit (the reference is the new renderer itself,
+    # noise and flicker drawn), whatever the first renderer filmed before (resting balls
+    # cached in its static frame, its own noise), and deriving it must not change the first
+    # renderer's frames either.
+    cam = Camera.overhead(SEVEN_FOOT, 1800.0, (480, 270), offset_mm=(60.0, -40.0), roll_deg=1.0, dist=(-0.1, 0.02, 0.0, 0.0, 0.0))
+    look = Look(noise_sigma=2.0, shot_noise=0.5, flicker=0.02)
+    occ = Occluder((CueStroke(t_strike=1.0, ball_xy_mm=(700.0, 420.0), heading_rad=0.4),))
+    rest = np.array([[700.0, 420.0], [1200.0, 700.0], [300.0, 300.0]])
+    rot = np.broadcast_to(np.eye(3), (2, 3, 3, 3))
+    moving = rest.copy()
+    moving[0] += [60.0, 20.0]
+    clip = [(np.repeat(rest[None], 2, axis=0), 0.2), (np.repeat(rest[None], 2, axis=0), 0.9),
+            (np.stack([rest, moving]), 1.02)]
+
+    def film(ren):
+        return [ren.render(pos, rot, np.ones((2, 3), bool), np.array([t - 0.002, t + 0.002])) for pos, t in clip]
+
+    first = Renderer(SEVEN_FOOT, cam, look, BALLS[:3], seed=9)
+    before = film(first)
+    other = first.with_balls(BALLS[2:], occluder=occ, seed=5)
+    got = film(other)
+    want = film(Renderer(SEVEN_FOOT, cam, look, BALLS[2:], occluder=occ, seed=5))
+    assert all(np.array_equal(g, w) for g, w in zip(got, want))
+    # ...and the frames differ from the first renderer's (other balls, the cue over the table).
+    assert not any(np.array_equal(g, b) for g, b in zip(got, before))
+    again = Renderer(SEVEN_FOOT, cam, look, BALLS[:3], seed=9)
+    assert all(np.array_equal(a, b) for a, b in zip(film(again) + film(again), before + film(first)))
+
+
 def test_ray_grid_matches_camera_inversion(cam720):
     grid = _RayGrid(cam720)
     rng = np.random.default_rng(0)
