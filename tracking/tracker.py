@@ -592,9 +592,7 @@ class Tracker:
         # unseen while it rolls does not hold its predicted spot: a detection there that it
         # could not take (too doubtful after a gap, ``_assign``) is as likely that ball found
         # again, which, as a track of its own, keeps its id offline (``_resumed_ids``).
-        occupied = np.array([tr.xs[-1][0::2] for tr in live if tr.frames[-1] == frame
-                             and (tr.seen[-1] or math.hypot(tr.xs[-1][1], tr.xs[-1][3])
-                                  < self.config.rest_speed_mm_s)])
+        occupied = np.array([tr.xs[-1][0::2] for tr in live if self._holds_spot(tr, frame)])
         order = sorted(np.flatnonzero(free), key=lambda j: (Z[j, 0], Z[j, 1]))
         for j in order:
             if quality[j] < self.config.birth_min_quality:
@@ -1153,6 +1151,23 @@ class Tracker:
                        for q in others if q is not o):
                 return True
         return False
+
+    def _holds_spot(self, tr: _Track, frame: int) -> bool:
+        """Whether ``tr``'s row of ``frame`` (x, y of its last state) bars a new track within a
+        radius of it: a ball seen in that frame, or one lying still unseen, which needs both its
+        filtered speed below ``rest_speed_mm_s`` and its reads to show it at rest (a tentative
+        track, whose reads are too few to, or a confirmed one with its ``rest_spot``). A slow
+        filtered speed alone is no rest: a restart on two reads a millimetre apart (the
+        detector's error moving, ``_update``) leaves a ball still rolling at 100 mm/s coasting at
+        37 mm/s, and holding its own continuation off for ``coast_s`` then gave it a new id
+        (cheapwide_25fps of ``benchmarks/analyse_accuracy.py --extra``, the 14 stripe, frames
+        185-197)."""
+        if tr.frames[-1] != frame:
+            return False
+        if tr.seen[-1]:
+            return True
+        slow = math.hypot(tr.xs[-1][1], tr.xs[-1][3]) < self.config.rest_speed_mm_s
+        return slow and (not tr.confirmed or tr.rest_spot is not None)
 
     def _resting_at(self, tr: _Track) -> np.ndarray | None:
         """Where ``tr``, seen in the last frame and missed in this one, rests: its rest spot
