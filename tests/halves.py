@@ -30,11 +30,12 @@ import time
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
-# Balanced on processor seconds measured on a loaded machine (session 21, load 15-50, one
-# fresh-clone run of these halves: test_detect.py 202 s for its first 100 of 143 tests with its
-# renders sharing their static scenes, so about 280; test_events.py 155 s, test_background.py
-# 55 s) and estimated for the rest; re-measure quietly with --junitxml and --times (DEVELOPERS.md, "Tests") and move
-# files until the totals agree.
+# Balanced on measured seconds: one fresh-clone run of these halves on a quiet machine
+# (session 21, both halves at once, --junitxml, then --times): half a 580 s (test_detect.py 447,
+# test_render.py 52, test_pipeline.py 37), half b 551 s (test_events.py 226, test_bank_chart.py
+# 88, test_events_collisions.py 63, test_calibrate.py 62, test_background.py 56); the whole
+# `make test` 621 s wall, install included. Re-measure with --junitxml and --times
+# (DEVELOPERS.md, "Tests") and move files until the totals agree.
 HALF_A = (
     "test_detect.py",
     "test_tracker.py",
