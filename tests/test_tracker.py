@@ -444,6 +444,19 @@ def test_step_by_step_equals_track():
 
 
 # --- balls put down by hand between shots ---------------------------------------------------------
+def _followed(tr, frames, truth, within_mm):
+    """Track ids (set) nearest the true path ``truth`` (n, 2) mm in each of ``frames``, and how
+    many of those frames have a track row within ``within_mm`` of it."""
+    ids, followed = set(), 0
+    for f in frames:
+        rows_f = tr[tr["frame"] == f]
+        d = np.hypot(rows_f["x"] - truth[f, 0], rows_f["y"] - truth[f, 1]).to_numpy()
+        if len(d) and d.min() < within_mm:
+            followed += 1
+            ids.add(int(rows_f["track"].to_numpy()[np.argmin(d)]))
+    return ids, followed
+
+
 def _still(p):
     return decel_path(p, 0.0, 0.0, 1.0)
 
@@ -1138,13 +1151,7 @@ def test_ball_lost_rolling_slowly_and_found_slower_keeps_its_id(found_as, one_id
     assert 60.0 < v_found < TrackerConfig().respot_rest_speed_mm_s
     tr = track(det, TABLE)
     truth = path(times)
-    ids, followed = set(), 0
-    for k in det["frame"]:
-        rows_k = tr[tr["frame"] == k]
-        d = np.hypot(rows_k["x"] - truth[k, 0], rows_k["y"] - truth[k, 1]).to_numpy()
-        if len(d) and d.min() < 5.0:  # within five noise sd
-            followed += 1
-            ids.add(int(rows_k["track"].to_numpy()[np.argmin(d)]))
+    ids, followed = _followed(tr, det["frame"], truth, 5.0)  # within five noise sd
     # Followed before the loss and after it (a new track's first two detections, before it
     # is confirmed, may have no rows).
     assert followed >= len(det) - 2, (followed, len(det))
@@ -1479,13 +1486,7 @@ def test_ball_read_nearly_still_then_lost_while_rolling_keeps_its_id(seed):
     assert v_k * 5 / fps < R
     tr = track(det, TABLE)
     truth = path(times)
-    ids, followed = set(), 0
-    for f in det["frame"]:
-        rows_f = tr[tr["frame"] == f]
-        d = np.hypot(rows_f["x"] - truth[f, 0], rows_f["y"] - truth[f, 1]).to_numpy()
-        if len(d) and d.min() < 8.0:  # the three reads ahead lie up to 7 mm off
-            followed += 1
-            ids.add(int(rows_f["track"].to_numpy()[np.argmin(d)]))
+    ids, followed = _followed(tr, det["frame"], truth, 8.0)  # the three reads ahead lie up to 7 mm off
     # Followed before the loss and after it (a new track's first two detections, before it
     # is confirmed, may have no rows).
     assert followed >= len(det) - 2, (followed, len(det))
