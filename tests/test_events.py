@@ -1975,6 +1975,47 @@ def test_a_near_miss_beside_a_resting_ball_is_no_collision(gap_mm, fps, noise_mm
         assert len(_only(ev, "collision")) == 0, (seed, ev)
 
 
+def _thin_nudge_case(seed: int, mu_roll: float):
+    """phone_wide_30fps's 11 -> 8 nudge in the simulator: at 30 fps a ball struck rolling at
+    355 mm/s from 0.5 m meets a resting one 1.8 mm inside a diameter of its line (75 deg from
+    head-on; 168 mm/s at the touch and the struck ball 41 mm/s on the clip's cloth, mu_r 0.01),
+    detections as ``_nudge_case`` with 1.5 mm moving noise. Returns (found collisions, the
+    simulator's collision time)."""
+    from analysis.physics import PhysicsParams, Simulator, Strike
+    from benchmarks.event_accuracy import detections as sim_detections
+
+    rng = np.random.default_rng(seed)
+    rest = np.array([1200.0, 600.0])
+    h = math.radians(45.9)
+    u = np.array([math.cos(h), math.sin(h)])
+    start = rest - 500.0 * u + (D - 1.8) * np.array([-u[1], u[0]])
+    sim = Simulator(TABLE, PhysicsParams(mu_roll=mu_roll), {"cue": tuple(start), "obj": tuple(rest)})
+    sim.strike(0.3, Strike("cue", 355.0, h, 0.0, 0.4))
+    sim.run_until_rest()
+    traj = sim.trajectory()
+    t_c = next(e.t for e in traj.events if e.kind == "collision")
+    det = sim_detections(traj, 5.0, 30.0, rng, rest_sigma_mm=1.0, moving_sigma_mm=1.5, drop=0.0)
+    det["pattern"] = np.where(det["truth"] == "cue", "cue", "solid")
+    det["colour"] = det["truth"].map({"cue": "white", "obj": "red"})
+    return _only(find_events(track(det, TABLE), TABLE, det)[0], "collision"), t_c
+
+
+def test_a_thin_nudge_on_a_slower_cloth_is_found_and_timed():
+    # The cloth's rolling resistance mu_r spans 0.005-0.015 (Alciatore 2004 [secondary];
+    # Mathavan et al. 2009 about 0.0128), while the finder assumes 0.01: on a cloth of 0.007 the
+    # nudged ball's approach slows at 69 mm/s^2, not 98. A nudge's fit with the deceleration
+    # held at 0.01 g bent its long approach and lost the touch (seeds 0-3: one of four found,
+    # 12 seeds: 4); with one deceleration fitted for both sides under its prior all are found
+    # within the scorer's 0.1 s (benchmarks/score.py DEFAULT_WINDOW_S), and the median time
+    # error is within the issue's half frame (issue 4; measured 0.02-1.05 frame, median 0.27).
+    errs = []
+    for seed in range(4):
+        col, t_c = _thin_nudge_case(seed, 0.007)
+        assert len(col) == 2 and np.all(np.abs(col["t"] - t_c) < 0.1), (seed, t_c, col)
+        errs.append(abs(float(col["t"].iloc[0]) - t_c) * 30.0)
+    assert np.median(errs) <= 0.5, errs
+
+
 
 @pytest.mark.parametrize("striped, speed, turns", [(True, 220.0, 2.0), (True, 900.0, 0.0),
                                                    (False, 220.0, 0.0)])
