@@ -2266,3 +2266,18 @@ def test_stun_ball_stop_against_the_analytic_stop_with_crawl_reads_ahead(ahead_m
         assert np.hypot(sp["x"] - rest[0], sp["y"] - rest[1]) < 3.0
     print("stop error (s)", np.round(errs, 3))
     assert np.max(np.abs(errs)) < 0.1, errs
+
+
+def test_a_read_carried_over_unchanged_frames_counts_once_in_the_rest_point():
+    """The stay's rest point is the median of its distinct reads: a detector that finds nothing
+    new in unchanged frames carries one read over them, and counted once per frame that single
+    read would outvote every other (phone_wide_30fps's nudged 8: one read carried seven times
+    pulled its stop 0.19 s late). The median of three distinct values is the middle one
+    (definition of the median, common practice)."""
+    from tracking.events import _rest_point
+
+    ts = np.arange(7) / 30.0
+    ps = np.array([[0.0, 0.0], [2.0, 1.0]] + [[6.0, 3.0]] * 5)
+    assert np.allclose(_rest_point(ts, ps), [2.0, 1.0])
+    # Three distinct reads are the fewest that can outvote one stray read.
+    assert _rest_point(ts[:4], np.array([[0.0, 0.0]] * 2 + [[1.0, 1.0]] * 2)) is None

@@ -1420,9 +1420,14 @@ def _rest_position(b: _Ball, i0: int, lo: float, dt: float) -> tuple[np.ndarray,
 def _rest_point(ts: np.ndarray, ps: np.ndarray) -> np.ndarray | None:
     """Where a ball lies through a stay at rest (2,) mm: the median of each coordinate of its
     raw reads ps (n, 2) mm at times ts (n,) s, robust to the crawl's last reads and a stray
-    read; None under three reads (too few to outvote one). Unweighted: a read carried over
-    unchanged frames keeps its stated sd, and weighted it would hardly count."""
-    if len(ts) < 3:
+    read; None under three distinct reads (too few to outvote one). Unweighted: a read carried
+    over unchanged frames keeps its stated sd, and weighted it would hardly count; counted once
+    (consecutive identical reads are one), since once per frame it would outvote the rest
+    (phone_wide_30fps's nudged 8: one read carried seven times pulled its stop 0.19 s late)."""
+    if len(ts) > 1:
+        # A read carried over unchanged frames is one read, however many frames repeat it.
+        ps = ps[np.r_[True, np.any(ps[1:] != ps[:-1], axis=1)]]
+    if len(ps) < 3:
         return None
     return np.median(ps, axis=0)
 
