@@ -2276,8 +2276,7 @@ def test_a_read_carried_over_unchanged_frames_counts_once_in_the_rest_point():
     (definition of the median, common practice)."""
     from tracking.events import _rest_point
 
-    ts = np.arange(7) / 30.0
     ps = np.array([[0.0, 0.0], [2.0, 1.0]] + [[6.0, 3.0]] * 5)
-    assert np.allclose(_rest_point(ts, ps), [2.0, 1.0])
+    assert np.allclose(_rest_point(ps), [2.0, 1.0])
     # Three distinct reads are the fewest that can outvote one stray read.
-    assert _rest_point(ts[:4], np.array([[0.0, 0.0]] * 2 + [[1.0, 1.0]] * 2)) is None
+    assert _rest_point(np.array([[0.0, 0.0]] * 2 + [[1.0, 1.0]] * 2)) is None

@@ -1417,14 +1417,14 @@ def _rest_position(b: _Ball, i0: int, lo: float, dt: float) -> tuple[np.ndarray,
     return p_rest, rest_t, max(3.0 * scatter, 1.0)
 
 
-def _rest_point(ts: np.ndarray, ps: np.ndarray) -> np.ndarray | None:
+def _rest_point(ps: np.ndarray) -> np.ndarray | None:
     """Where a ball lies through a stay at rest (2,) mm: the median of each coordinate of its
-    raw reads ps (n, 2) mm at times ts (n,) s, robust to the crawl's last reads and a stray
+    raw reads ps (n, 2) mm in time order, robust to the crawl's last reads and a stray
     read; None under three distinct reads (too few to outvote one). Unweighted: a read carried
     over unchanged frames keeps its stated sd, and weighted it would hardly count; counted once
     (consecutive identical reads are one), since once per frame it would outvote the rest
     (phone_wide_30fps's nudged 8: one read carried seven times pulled its stop 0.19 s late)."""
-    if len(ts) > 1:
+    if len(ps) > 1:
         # A read carried over unchanged frames is one read, however many frames repeat it.
         ps = ps[np.r_[True, np.any(ps[1:] != ps[:-1], axis=1)]]
     if len(ps) < 3:
@@ -3867,7 +3867,7 @@ class _Finder:
             u = chord / max(float(np.hypot(*chord)), 1e-9)
             lo_s = max(t_last_event, ts[0] - self.dt)
             t_s, _, _ = self._stop_scan(ts, ps, w, u, b.sigma_fit, lo_s)
-            rest = _rest_point(*b.samples(t_s, t_rest_end + 1e-9))
+            rest = _rest_point(b.samples(t_s, t_rest_end + 1e-9)[1])
             for _ in range(2):
                 # Once more without the samples the first fit leaves over ``outlier_sigmas``
                 # noise sigmas off: detections of something else beside a dim ball.
