@@ -2088,13 +2088,13 @@ def _nudge_candidates(finder: "_Finder", balls: list[_Ball],
     return out
 
 
-def _nudge_windows(finder: "_Finder", m: _Ball, t_in: float, t_out: float, lo: float, hi: float,
-                   reach: float) -> tuple[float, float]:
+def _nudge_windows(m: _Ball, t_in: float, t_out: float, lo: float, hi: float, reach: float,
+                   mu_s_g: float) -> tuple[float, float]:
     """The span (s) of the moving ball ``m``'s samples a nudge fits: from ``reach`` before the
     halo's first row ``t_in`` and to ``reach`` after its last ``t_out``, within ``m``'s
     neighbouring events ``lo`` and ``hi`` and, before, past the slide the event at ``lo`` may
     have left: a stunned ball slides ``2 v / (7 mu_s g)`` before it rolls (Alciatore 2004), at
-    most its largest speed ``v`` (smoothed) on the way in.
+    most its largest speed ``v`` (smoothed) on the way in, ``mu_s_g`` in mm/s^2.
 
     Why reach: the touch's time rests on where the approach line passes the resting ball, and a
     thin touch (phone_wide_30fps's 11 meets the 8 75 deg from head-on, closing at 42 of its
@@ -2103,7 +2103,6 @@ def _nudge_windows(finder: "_Finder", m: _Ball, t_in: float, t_out: float, lo: f
     runs straight until its next event (Alciatore 2004), so all of that stretch may be used."""
     way_in = (m.t > max(lo, t_in - reach)) & (m.t < t_in)
     v = float(np.max(np.hypot(*m.v[way_in].T))) if way_in.any() else 0.0
-    mu_s_g = finder.slide_decel or finder.cfg.slide_decel_mm_s2
     start = max(lo + 2.0 * v / (7.0 * mu_s_g), t_in - reach) if math.isfinite(lo) else t_in - reach
     return start, min(hi, t_out + reach)
 
@@ -2196,7 +2195,8 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
         t_out = min(t_out, t_s + 1.5 * dt)
     if len(m.samples(lo, t_in)[0]) < 3:
         t_in = max(t_in, t_s - 1.5 * dt)
-    t_from, t_to = _nudge_windows(finder, m, t_in, t_out, lo, hi, max(W, cfg.nudge_reach_s))
+    mu_s_g = finder.slide_decel or cfg.slide_decel_mm_s2
+    t_from, t_to = _nudge_windows(m, t_in, t_out, lo, hi, max(W, cfg.nudge_reach_s), mu_s_g)
     ti, pi_ = m.samples(t_from, t_in)
     to, po = m.samples(t_out, t_to)
     rb = r.samples(m.t[x0] - cfg.nudge_rest_window_s, m.t[x0])
@@ -2206,7 +2206,6 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
     pb, pa = np.median(rb[1], axis=0), np.median(ra[1], axis=0)
     sm = max(m.sigma, 1e-3)
     u_slip = 7.0 / 5.0  # a stunned ball's speed over its rolling speed (Alciatore 2004)
-    mu_s_g = finder.slide_decel or cfg.slide_decel_mm_s2
 
     def travel(w: float) -> float:
         # Slide from u0 to 5 u0 / 7 at mu_s g, then roll to rest at mu_r g (Alciatore 2004).
