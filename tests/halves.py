@@ -72,6 +72,7 @@ HALF_B = (
     "test_overlay.py",
     "test_report.py",
     "test_rests.py",
+    "test_detect_states.py",
 )
 
 TESTS = Path(__file__).resolve().parent
