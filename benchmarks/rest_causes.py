@@ -34,8 +34,18 @@ detection within a ball radius), and the medians of its component away from the 
 next is what that step costs; a bias that is the lens's shows as ``no_lens`` much below
 ``codec``.
 
+``--clip SCENE.toml`` instead splits one scene's own resting balls the same way, ball by ball
+(:func:`run_clip`): the scene's opening frames as ``railtrace.filming.film_scene`` forms them (its
+simulation, each ball's true turn, the occluder), with the variants above and ``clip``, the
+frames decoded from the clip filmed beside the scene file (``SCENE.mp4``; its encode ran over the
+whole clip, so its first frame may differ from a short ``codec`` encode of the same frames), and
+the luma/chroma mixes and seeded fit taken of ``clip``. Each row is a variant, each column one
+resting ball's error (x, y) mm in the table frame. A sample clip's resting figure rests on a
+handful of balls, each nearly one measurement, so this says which step moves which ball.
+
 Run: ``.venv/bin/python benchmarks/rest_causes.py [NAME ...] [--seed N] [--work DIR]`` (names
-are extra scene stems; default all seven; a few seconds of processor time per scene and variant).
+are extra scene stems; default all seven; a few seconds of processor time per scene and variant),
+or ``.venv/bin/python benchmarks/rest_causes.py --clip sample_clips/multi_rail_30fps.toml``.
 """
 
 from __future__ import annotations
@@ -54,9 +64,10 @@ from scipy.spatial.transform import Rotation
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from benchmarks.analyse_accuracy import EXTRA_SCENES, extra_scenes  # noqa: E402
+from railtrace import filming  # noqa: E402
 from railtrace.scene import Scene, load_scene  # noqa: E402
 from vision.detect import BallDetector  # noqa: E402
-from vision.render import BallLook, Renderer  # noqa: E402
+from vision.render import BallLook, CueStroke, Occluder, Renderer  # noqa: E402
 from vision.video import iter_frames, write_video  # noqa: E402
 
 VARIANTS = ("clean", "noise", "lossless", "codec", "no_lens")
@@ -176,12 +187,115 @@ def run(name: str, seed: int, work: Path) -> list[dict]:
     return out
 
 
+# Opening frames of a scene's clip that run_clip forms; the detector's empty-table model is made
+# from the first, as at the start of a clip, and the balls are measured in the last.
+CLIP_FRAMES = 3
+
+
+def clip_frames(scene: Scene, variant: str, work: Path, n: int = CLIP_FRAMES) -> tuple[list[np.ndarray], object, np.ndarray, list[str]]:
+    """The first ``n`` frames (BGR uint8) of ``scene``'s clip as ``railtrace.filming.film_scene``
+    forms them (the simulated balls with their true turns, exposure sub-samples and occluder), with
+    the look and encode ``variant`` says (as :func:`still_frames`), the camera they were formed
+    with, and the true centres (N, 2) mm and ids of the balls that do not move over those frames."""
+    sim = filming.simulate_scene(scene)
+    traj = sim.trajectory
+    fps = scene.film.fps
+    look = scene.look
+    if variant == "clean":
+        look = dataclasses.replace(look, noise_sigma=0.0, flicker=0.0)
+    cam = filming.camera_timeline(scene)[0][1]
+    if variant == "no_lens":
+        cam = dataclasses.replace(cam, dist=np.zeros(5))
+    occluder = Occluder(tuple(CueStroke(r.t_strike, r.ball_xy_mm, r.heading_rad) for r in sim.shots)) if scene.occluder else None
+    balls = [filming._ball_look(scene, b) for b in traj.ball_ids]
+    ren = Renderer(scene.table, cam, look, balls, occluder, seed=scene.seed)
+    subs = filming._exposure_times(traj, np.arange(n) / fps, scene.film.shutter_s, scene.table)
+    all_t = np.concatenate(subs)
+    s = traj.sample(all_t)
+    rot = traj.rotations(all_t)
+    frames, k = [], 0
+    for sub in subs:
+        frames.append(ren.render(s.pos[k : k + len(sub)], rot[k : k + len(sub)], s.present[k : k + len(sub)], sub))
+        k += len(sub)
+    if variant in ("lossless", "codec", "no_lens"):
+        clip = work / f"{variant}.mp4"
+        write_video(clip, frames, fps, codec="h264", quality=0 if variant == "lossless" else scene.film.quality)
+        frames = [f for _, _, f in iter_frames(clip)]
+    pos = s.pos[:, :, :2]
+    still = np.all(s.present, axis=0) & np.all(np.abs(pos - pos[:1]).max(axis=0) < 1e-9, axis=1)
+    return frames, cam, pos[-1, still], [b for b, ok in zip(traj.ball_ids, still) if ok]
+
+
+def decoded_opening(path: Path, n: int = CLIP_FRAMES) -> list[np.ndarray]:
+    """The first ``n`` frames (BGR uint8) decoded from the clip at ``path``."""
+    out = []
+    for i, _, f in iter_frames(path):
+        if i >= n:
+            break
+        out.append(f)
+    return out
+
+
+def ball_errors(table, cam, frames: list[np.ndarray], fps: float, at: np.ndarray, seeded: bool = False) -> np.ndarray:
+    """(N, 2) error (x, y) mm of each true centre ``at``'s nearest detection within a ball
+    radius in the last of ``frames`` (NaN where none); ``seeded`` as :func:`errors`."""
+    det = BallDetector(cam, table)
+    out = None
+    for i, f in enumerate(frames):
+        out = det.process(i, i / fps, f)
+    if seeded:
+        out = seeded_fits(det, frames[-1], at, table.radius_mm)
+    q = out[["x", "y"]].to_numpy() if len(out) else np.zeros((0, 2))
+    err = np.full((len(at), 2), np.nan)
+    for b, p in enumerate(at):
+        if len(q):
+            j = int(np.argmin(np.hypot(*(q - p).T)))
+            if np.hypot(*(q[j] - p)) <= table.radius_mm:
+                err[b] = q[j] - p
+    return err
+
+
+def run_clip(path: Path, work: Path) -> pd.DataFrame:
+    """One row per variant (:func:`clip_frames`; ``clip`` and its mixes and seeded fit when the
+    clip ``path.with_suffix('.mp4')`` exists), one column per resting ball: its error as
+    "(dx, dy) |e|" mm."""
+    scene = load_scene(path)
+    made, rows = {}, {}
+    at, ids = None, None
+    for variant in VARIANTS:
+        frames, cam, at, ids = clip_frames(scene, variant, work)
+        made[variant] = (frames, cam)
+    film = path.with_suffix(".mp4")
+    if film.exists():
+        made["clip"] = (decoded_opening(film), made["codec"][1])
+        base = "clip"
+    else:
+        base = "codec"
+    made["codec_luma"] = (mixed_frames(made[base][0], made["lossless"][0]), made[base][1])
+    made["codec_chroma"] = (mixed_frames(made["lossless"][0], made[base][0]), made[base][1])
+    for name, (frames, cam) in list(made.items()) + [("codec_seeded", made[base])]:
+        E = ball_errors(scene.table, cam, frames, scene.film.fps, at, seeded=name == "codec_seeded")
+        rows[name] = [f"({dx:+.2f},{dy:+.2f}) {np.hypot(dx, dy):.2f}" for dx, dy in E]
+    return pd.DataFrame.from_dict(rows, orient="index", columns=ids)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("names", nargs="*", help="extra scene names (default: all of benchmarks/extra_scenes)")
     ap.add_argument("--seed", type=int, default=0, help="seed of the balls' nudges and orientations")
     ap.add_argument("--work", type=Path, default=None, help="folder for the encoded stills (default: a temporary one)")
+    ap.add_argument("--clip", type=Path, default=None, help="a scene file (e.g. sample_clips/multi_rail_30fps.toml): split its own resting balls' errors ball by ball")
     args = ap.parse_args(argv)
+    if args.clip is not None:
+        with tempfile.TemporaryDirectory() as tmp:
+            work = args.work or Path(tmp)
+            work.mkdir(parents=True, exist_ok=True)
+            table = run_clip(args.clip, work)
+        with pd.option_context("display.width", 250, "display.max_columns", 50):
+            print(f"{args.clip}: each resting ball's error (x, y) mm, table frame, and its length, by variant "
+                  "(codec_luma, codec_chroma and codec_seeded taken of the clip's own frames when it is there)")
+            print(table.to_string())
+        return 0
     names = extra_scenes(args.names)
     with tempfile.TemporaryDirectory() as tmp:
         work = args.work or Path(tmp)

@@ -64,3 +64,65 @@ def test_seeded_fits_land_on_the_rendered_balls():
     assert np.all(np.linalg.norm(fits - at, axis=1) <= 2.5), fits - at
     # A seed on empty cloth fits no ball: it is left out, not reported.
     assert len(seeded_fits(det, frames[-1], np.array([[1800.0, 600.0]]), R)) == 0
+
+
+_CLIP_SCENE = """
+name = "rest causes clip split"
+lead_s = 0.5
+tail_s = 0.2
+max_duration_s = 2.0
+seed = 5
+
+[table]
+preset = "9ft"
+
+[camera]
+height_mm = 2600
+offset_mm = [150, -60]
+resolution = [640, 360]
+fps = 30
+shutter_s = 0.01
+quality = 20
+
+[look]
+noise = 1.5
+occluder = true
+
+[[ball]]
+id = "cue"
+kind = "cue"
+at = [700, 400]
+
+[[ball]]
+id = "4"
+kind = "solid"
+colour = "#6a2a8a"
+at = [1600, 850]
+
+[[shot]]
+ball = "cue"
+aim = { rail = "top", diamond = 2.0 }
+speed_mm_s = 1500
+"""
+
+
+def test_clip_frames_lay_the_scene_files_balls_where_it_puts_them(tmp_path):
+    from benchmarks.rest_causes import ball_errors, clip_frames
+    from railtrace.scene import load_scene
+
+    path = tmp_path / "split.toml"
+    path.write_text(_CLIP_SCENE)
+    scene = load_scene(path)
+    frames, cam, at, ids = clip_frames(scene, "clean", tmp_path)
+    # The scene file's own ball places (the shot comes after lead_s = 0.5 s, so every ball is
+    # still at rest over the opening frames).
+    assert len(frames) == 3 and frames[0].shape == (360, 640, 3)
+    assert ids == ["cue", "4"]
+    assert np.abs(at - np.array([[700.0, 400.0], [1600.0, 850.0]])).max() < 1e-6
+    err = ball_errors(scene.table, cam, frames, scene.film.fps, at)
+    # Each ball found within issue 3's resting p95 of 2.5 mm of the scene file's place, on the
+    # renderer's clean frames (tests/test_detect.py holds the detector to it on frames like these).
+    assert np.all(np.hypot(*err.T) <= 2.5), err
+    # A point on empty cloth has no detection within a ball radius: NaN, not the nearest ball.
+    far = ball_errors(scene.table, cam, frames, scene.film.fps, np.array([[1200.0, 300.0]]))
+    assert np.isnan(far).all()
