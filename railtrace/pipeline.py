@@ -11,9 +11,11 @@ detection, most of the work, runs in parallel: the clip is cut in time into one 
 process (:func:`split_frames`), each part's detector starting ``chunk_warmup_s`` before its
 part (its first frame builds the background, as at the start of a clip) and keeping only its
 own frames; tracking and events then run once over the joined detections (the event
-finder's contact fits shared with a forked copy per spare core, ``EventConfig.workers``). The later parts'
+finder's contact fits shared with a forked copy per spare core, ``EventConfig.workers``); this
+process begins tracking its own part as soon as it is detected, while the others' processes
+still detect (:class:`_EarlyTracks`). The later parts'
 processes are started before calibration, so their start-up and their decoding up to their
-part overlap it; while they wait for the cameras they take on pieces of the calibration's own
+part (from the last keyframe before it, ``vision.video.iter_frames``) overlap it; while they wait for the cameras they take on pieces of the calibration's own
 work (``vision.calibrate.calibrate``'s ``run_map``: half of the cushion sides' nose searches),
 which give the same results to the last bit in any process.
 """
@@ -37,7 +39,7 @@ from railtrace.results import write_results
 from tracking.events import EventConfig, find_events_and_rests
 from tracking.rests import hold_rests
 from tracking.share import start_process, stop_processes
-from tracking.tracker import TrackerConfig, track
+from tracking.tracker import TrackerConfig, TrackFeed, track
 from vision.calibfile import calibration_dict, read_calibration
 from vision.calibrate import CalibConfig, calibrate
 from vision.camera import Camera
@@ -156,7 +158,8 @@ def analyse_clip(
     try:
         table, cameras, source, quality, calib_doc = _calibration(clip, config, None if helpers is None else helpers.run_map)
         done("calibration")
-        detections = _detect_parts(clip, table, cameras, config, info, parts, helpers, progress)
+        early = _EarlyTracks(table, config.tracker)
+        detections = _detect_parts(clip, table, cameras, config, info, parts, helpers, progress, early.take)
     finally:
         if helpers is not None:
             helpers.close()
@@ -167,7 +170,7 @@ def analyse_clip(
     # switches on the unrounded detections and none on the written ones, through the tracker's
     # inexact third differences since mended: _Track.note_scatter).
     detections = pd.read_csv(io.StringIO(detections_csv), dtype={"colour": str, "pattern": str})
-    tracks = track(detections, table, config.tracker)
+    tracks = early.finish(detections)
     done("tracking")
     events, shots, rests = find_events_and_rests(tracks, table, detections, config.events)
     # A resting ball lies in one place until something touches it (tracking.rests).
@@ -259,9 +262,11 @@ def _plan_parts(info, config: AnalyseConfig) -> list[tuple[int, int, int | None]
     return split_frames(n, workers, int(math.ceil(config.chunk_warmup_s * fps)))
 
 
-def _detect_parts(clip, table, cameras, config: AnalyseConfig, info, parts, helpers, progress) -> pd.DataFrame:
+def _detect_parts(clip, table, cameras, config: AnalyseConfig, info, parts, helpers, progress,
+                  own_done: Callable[[pd.DataFrame], None] | None = None) -> pd.DataFrame:
     """Detections of the whole clip: the first part in this process (which alone reports
-    progress), the others in the ``helpers`` processes, alongside."""
+    progress), the others in the ``helpers`` processes, alongside; ``own_done(detections)`` is
+    called with the first part's as soon as they are complete, before the others are awaited."""
     if helpers is None:
         # A decoding thread only helps with a spare core.
         return _detect(clip, table, cameras, config.detect, 0, None, info.frame_count, progress,
@@ -269,9 +274,60 @@ def _detect_parts(clip, table, cameras, config: AnalyseConfig, info, parts, help
     helpers.go(table, cameras, config.detect)
     a, b, e = parts[0]
     results = [_detect(clip, table, cameras, config.detect, a, (b, e), info.frame_count, progress)]
+    if own_done is not None:
+        own_done(results[0])
     results += helpers.results()
     filled = [r for r in results if len(r)]
     return pd.concat(filled, ignore_index=True) if filled else results[0]
+
+
+class _EarlyTracks:
+    """Tracking begun on the clip's first part while the other parts' processes still detect
+    (:class:`tracking.tracker.TrackFeed`), so this process's core does not wait idle; the
+    tracks are those of :func:`tracking.tracker.track` on the whole, to the bit.
+
+    :meth:`take` steps the tracker through the first part's detections as written and read
+    back (micrometre decimals, as the whole's are); :meth:`finish` checks that those rows are
+    the whole's first rows, value for value, and steps through the rest, or tracks the whole
+    afresh where they are not (or the first part could not be tracked on its own)."""
+
+    def __init__(self, table: TableSpec, config: TrackerConfig):
+        self.table, self.config = table, config
+        self.feed: TrackFeed | None = None
+        self.head: pd.DataFrame | None = None
+
+    def take(self, part: pd.DataFrame) -> None:
+        if not len(part):
+            return
+        head = pd.read_csv(io.StringIO(part.to_csv(index=False, float_format="%.6f")), dtype={"colour": str, "pattern": str})
+        feed = TrackFeed(self.table, self.config)
+        try:
+            feed.add(head)
+        except ValueError:  # raised again, where it belongs, by the whole's tracking
+            return
+        self.feed, self.head = feed, head
+
+    def finish(self, detections: pd.DataFrame) -> pd.DataFrame:
+        """The tracks of ``detections`` (the whole clip's, as read back)."""
+        n = 0 if self.head is None else len(self.head)
+        if self.feed is None or not _same_rows(detections.iloc[:n].reset_index(drop=True), self.head):
+            return track(detections, self.table, self.config)
+        self.feed.add(detections.iloc[n:])
+        return self.feed.result()
+
+
+def _same_rows(a: pd.DataFrame, b: pd.DataFrame) -> bool:
+    """True when ``a`` and ``b`` hold the same columns, dtypes and values (floats bit for bit)."""
+    if list(a.columns) != list(b.columns) or not a.dtypes.equals(b.dtypes) or len(a) != len(b):
+        return False
+    for c in a.columns:
+        x, y = a[c].to_numpy(), b[c].to_numpy()
+        if x.dtype.kind == "f":
+            if x.tobytes() != y.tobytes():
+                return False
+        elif not a[c].equals(b[c]):
+            return False
+    return True
 
 
 class _Helpers:

@@ -167,6 +167,32 @@ def test_detection_in_parallel_parts_agrees_with_one_pass(analysed, small_clip, 
     assert s["events"]["cushion"]["recall"] == 1.0
 
 
+def test_tracks_begun_on_the_first_part_equal_those_of_the_whole(analysed):
+    # analyse tracks its own part's detections while the other part's process still detects
+    # (_EarlyTracks): the tracks must be track()'s on the whole clip's detections as written,
+    # to the bit (one tracker, two entry points; common practice), and a first part whose
+    # rows are not the whole's first rows, value for value, is not used.
+    from railtrace.pipeline import _EarlyTracks, _same_rows
+    from tracking.tracker import TrackerConfig, track
+    from vision.calibfile import read_calibration
+
+    out, truth = analysed
+    det = pd.read_csv(out / "detections.csv", dtype={"colour": str, "pattern": str})
+    table = read_calibration(truth / "calibration.json")[0]
+    whole = track(det, table)
+    cut = int(det["frame"].median())
+    early = _EarlyTracks(table, TrackerConfig())
+    early.take(det[det["frame"] < cut])
+    assert early.head is not None and 0 < len(early.head) < len(det)
+    pd.testing.assert_frame_equal(early.finish(det), whole, check_exact=True)
+    moved = det.copy()
+    moved.loc[3, "x"] += 0.001  # a micrometre: the written precision
+    late = _EarlyTracks(table, TrackerConfig())
+    late.take(moved[moved["frame"] < cut])
+    assert not _same_rows(det.iloc[: len(late.head)], late.head)
+    pd.testing.assert_frame_equal(late.finish(det), whole, check_exact=True)
+
+
 def test_stack_detections_equals_joining_each_frames_table():
     # A clip's steps (with a frame repeated unchanged, and empty frames) stacked at once must
     # equal concatenating the per-frame tables that BallDetector.process returns (exactly).

@@ -22,7 +22,7 @@ import pandas as pd
 import pytest
 
 from tracking.events import EventConfig
-from tracking.tracker import TRACK_COLUMNS, Tracker, TrackerConfig, _innovation_nll, track
+from tracking.tracker import TRACK_COLUMNS, Tracker, TrackerConfig, TrackFeed, _innovation_nll, track
 from vision.table import NINE_FOOT
 
 TABLE = NINE_FOOT
@@ -441,6 +441,36 @@ def test_step_by_step_equals_track():
         tracker.step(det[det["frame"] == k], frame=k, t=float(t))
     pd.testing.assert_frame_equal(tracker.result(), whole, check_exact=True)
     assert whole["track"].nunique() == 3
+
+
+@pytest.mark.parametrize("cuts", [(45,), (42,), (20, 42, 70)])
+def test_parts_fed_in_turn_equal_track(cuts):
+    # A clip's detections given in consecutive parts (analyse tracks the first part while the
+    # others are still detected) give track()'s tracks on the whole, to the bit (one tracker,
+    # two entry points, as test_step_by_step_equals_track; common practice). The frame times
+    # jitter, as a variable-rate clip's do, and frames 40-44 hold no detection at all, so
+    # their times are interpolated across the cut at 42 from frames on both of its sides.
+    fps = 60.0
+    rng = np.random.default_rng(7)
+    times = np.cumsum(rng.uniform(0.8, 1.2, int(1.5 * fps))) / fps
+    cue, obj = collision_paths((1300.0, 640.0), (1500.0, 200.0), 25.0, 0.6)
+    det = detections({"cue": cue, "obj": obj, "c": _still((400.0, 900.0))}, times,
+                     np.random.default_rng(32), noise_mm=1.0, drop=0.05,
+                     gaps=[(name, 40, 44) for name in ("cue", "obj", "c")],
+                     labels={"cue": ("white", "cue"), "obj": ("red", "solid"),
+                             "c": ("blue", "stripe")}, present={"c": (0, 50)})
+    whole = track(det, TABLE)
+    feed = TrackFeed(TABLE)
+    edges = [0, *cuts, len(times)]
+    for a, b in zip(edges, edges[1:]):
+        feed.add(det[(det["frame"] >= a) & (det["frame"] < b)])
+    pd.testing.assert_frame_equal(feed.result(), whole, check_exact=True)
+    assert whole["track"].nunique() == 3
+    # A part must come after the last one.
+    late = TrackFeed(TABLE)
+    late.add(det[det["frame"] >= 50])
+    with pytest.raises(ValueError, match="frame order"):
+        late.add(det[det["frame"] < 50])
 
 
 # --- balls put down by hand between shots ---------------------------------------------------------

@@ -8,7 +8,7 @@ import cv2
 import numpy as np
 import pytest
 
-from vision.video import VideoInfo, area_down, iter_frames, iter_grey, probe, write_video
+from vision.video import VideoInfo, _keyframe_before, area_down, iter_frames, iter_grey, probe, write_video
 
 
 def _frames(n=30, w=320, h=240):
@@ -129,6 +129,30 @@ def test_frame_range_gives_the_same_frames_as_the_whole_clip(tmp_path):
         assert all(np.array_equal(a[2], b[2]) for a, b in zip(part, want))
     with pytest.raises(ValueError, match="start"):
         list(iter_frames(path, start=5, stop=2))
+
+
+def test_frame_range_decoded_from_its_keyframe_gives_the_frames_of_the_whole_clip(tmp_path):
+    # A part read from frame k begins decoding at the last keyframe before it, not at frame 0.
+    # The scene changes at frames 30 and 60, where libx264 puts keyframes (scene cuts; IDR
+    # pictures, after which nothing refers back: ITU-T Rec. H.264 sec. 3.69, 8.2.1), so the
+    # frames from there must be FFmpeg's own decode of the whole clip, pixel for pixel, with its
+    # indices and times.
+    def scene(i):
+        k = i // 30
+        img = np.full((64, 96, 3), (40 + 70 * k, 200 - 60 * k, 90 + 50 * (k % 2)), np.uint8)
+        img[20:36, 10 + 2 * (i % 30): 22 + 2 * (i % 30)] = (230, 235, 240) if k != 1 else (10, 20, 30)
+        return img
+
+    path = tmp_path / "cuts.mp4"
+    write_video(path, (scene(i) for i in range(90)), 29.97, quality=18)
+    assert _keyframe_before(path, 45)[0] == 30 and _keyframe_before(path, 75)[0] == 60
+    assert _keyframe_before(path, 29) is None  # no keyframe but frame 0 before it: nothing to skip
+    whole = list(iter_frames(path))
+    for start, stop, ahead in [(30, 40, 0), (31, None, 3), (45, 70, 0), (60, 61, 0), (89, None, 2)]:
+        part = list(iter_frames(path, read_ahead=ahead, start=start, stop=stop))
+        want = whole[start:stop]
+        assert [(i, t) for i, t, _ in part] == [(i, t) for i, t, _ in want]
+        assert all(np.array_equal(a[2], b[2]) for a, b in zip(part, want))
 
 
 @pytest.mark.parametrize("read_ahead", [0, 3])

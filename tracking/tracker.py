@@ -1860,35 +1860,66 @@ def track(detections: pd.DataFrame, table: TableSpec,
     first and last frame are processed as frames without detections, their times interpolated
     linearly in frame index from the frames present. The input is not modified.
     """
-    cfg = config or TrackerConfig()
-    det = _checked(detections, cfg)
-    tracker = Tracker(cfg, table)
-    if det.empty:
-        return tracker.result()
-    det["frame"] = det["frame"].astype(np.int64)
-    det = det.sort_values(["frame"], kind="stable")
-    per_frame = det.groupby("frame")["t"].agg(["first", "nunique"])
-    if (per_frame["nunique"] > 1).any():
-        bad = per_frame.index[per_frame["nunique"] > 1][0]
-        raise ValueError(f"frame {bad} carries several times t; one frame has one presentation time")
-    known_f = per_frame.index.to_numpy(np.int64)
-    known_t = per_frame["first"].to_numpy(float)
-    if np.any(np.diff(known_t) <= 0):
-        raise ValueError("frame times t must increase with the frame index; check the timestamps")
-    all_f = np.arange(known_f[0], known_f[-1] + 1)
-    all_t = np.interp(all_f, known_f, known_t)
-    # Columns as arrays once, each frame a slice of them (frames are sorted, each frame's rows
-    # in their input order).
-    frames = det["frame"].to_numpy(np.int64)
-    Z = det[["x", "y"]].to_numpy(float)
-    sig = det["sigma_mm"].to_numpy(float)
-    quality = det["quality"].to_numpy(float)
-    colours = det["colour"].tolist()
-    patterns = det["pattern"].tolist()
-    lo = np.searchsorted(frames, all_f, "left")
-    hi = np.searchsorted(frames, all_f, "right")
-    t_det = det["t"].to_numpy(float)
-    for f, t, a, b in zip(all_f.tolist(), all_t.tolist(), lo.tolist(), hi.tolist()):
-        tracker._step(f, float(t_det[a]) if b > a else t, Z[a:b], sig[a:b], colours[a:b],
-                      patterns[a:b], quality[a:b])
-    return tracker.result()
+    feed = TrackFeed(table, config)
+    feed.add(detections)
+    return feed.result()
+
+
+class TrackFeed:
+    """:func:`track` on detections given in consecutive parts, each part's frames all after the
+    last part's (a clip's detections as they come from its parts in time): ``add`` each part,
+    then ``result``; the tracks are those :func:`track` gives the parts joined, to the bit.
+
+    Each part's frames are stepped through the tracker at once, except the frames without
+    detections after its last one: their times are interpolated between the frames with
+    detections either side (as :func:`track` does), so they wait for the next part's first."""
+
+    def __init__(self, table: TableSpec, config: TrackerConfig | None = None):
+        self.config = config or TrackerConfig()
+        self.tracker = Tracker(self.config, table)
+        self.last: tuple[int, float] | None = None  # (frame, t) of the last frame with detections stepped
+
+    def add(self, detections: pd.DataFrame) -> None:
+        """Step the tracker through the frames of ``detections`` (ValueError as :func:`track`,
+        also for a frame not after the last part's)."""
+        det = _checked(detections, self.config)
+        if det.empty:
+            return
+        det["frame"] = det["frame"].astype(np.int64)
+        det = det.sort_values(["frame"], kind="stable")
+        per_frame = det.groupby("frame")["t"].agg(["first", "nunique"])
+        if (per_frame["nunique"] > 1).any():
+            bad = per_frame.index[per_frame["nunique"] > 1][0]
+            raise ValueError(f"frame {bad} carries several times t; one frame has one presentation time")
+        known_f = per_frame.index.to_numpy(np.int64)
+        known_t = per_frame["first"].to_numpy(float)
+        if self.last is not None:
+            if known_f[0] <= self.last[0]:
+                raise ValueError(f"frame {known_f[0]} comes after frame {self.last[0]}; give the parts in frame order")
+            # The frames between the parts are interpolated between their two neighbours, as
+            # np.interp does on the whole (each value from its own interval's end points).
+            known_f = np.concatenate([[self.last[0]], known_f])
+            known_t = np.concatenate([[self.last[1]], known_t])
+        if np.any(np.diff(known_t) <= 0):
+            raise ValueError("frame times t must increase with the frame index; check the timestamps")
+        all_f = np.arange(known_f[0] if self.last is None else known_f[0] + 1, known_f[-1] + 1)
+        all_t = np.interp(all_f, known_f, known_t)
+        # Columns as arrays once, each frame a slice of them (frames are sorted, each frame's rows
+        # in their input order).
+        frames = det["frame"].to_numpy(np.int64)
+        Z = det[["x", "y"]].to_numpy(float)
+        sig = det["sigma_mm"].to_numpy(float)
+        quality = det["quality"].to_numpy(float)
+        colours = det["colour"].tolist()
+        patterns = det["pattern"].tolist()
+        lo = np.searchsorted(frames, all_f, "left")
+        hi = np.searchsorted(frames, all_f, "right")
+        t_det = det["t"].to_numpy(float)
+        for f, t, a, b in zip(all_f.tolist(), all_t.tolist(), lo.tolist(), hi.tolist()):
+            self.tracker._step(f, float(t_det[a]) if b > a else t, Z[a:b], sig[a:b], colours[a:b],
+                               patterns[a:b], quality[a:b])
+        self.last = (int(known_f[-1]), float(known_t[-1]))
+
+    def result(self) -> pd.DataFrame:
+        """The tracks DataFrame of every part added (:meth:`Tracker.result`)."""
+        return self.tracker.result()
