@@ -2833,8 +2833,10 @@ class BallDetector:
         # Two balls cannot overlap: a caster nearer than 2 R is the only ball there, and
         # whatever of the disc its silhouette leaves is judged, however little.
         gap = math.hypot(ball["x"] - row["x"], ball["y"] - row["y"])
-        # A dark ball's hue is noise (the chromaticity of a few DN): no evidence there.
-        if gap < self.R and not self._dark_body(img, np.array([ball["u"], ball["v"]])):
+        # A dark ball's hue is noise (the chromaticity of a few DN), and a touching neighbour's
+        # rim lies in the outline's outer band: no evidence there.
+        alone = all(math.hypot(f["x"] - row["x"], f["y"] - row["y"]) >= _NEAR_R * self.R for f in found if f is not row)
+        if gap < self.R and alone and not self._dark_body(img, np.array([ball["u"], ball["v"]])):
             pick = self._by_outline(img, row, ball, seed)
             if pick is not row:
                 return pick
