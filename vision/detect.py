@@ -438,6 +438,22 @@ _HUE_RAYS = 0.75
 # hue whose fit has slid half onto its own shadow is kept rather than taken for a neighbour's
 # shadow.
 _CASTER_R = 3.0
+# Two fits of one ball (centres within a radius: a fit astride the ball and its own shadow, and
+# the fit of the ball's lit pixels, :meth:`BallDetector._caster_of`) are told apart by the
+# outline evidence of each (:meth:`BallDetector._hue_step`): the lit pixels' fit is taken where
+# its outline's hue step beats the other's by at least this much (a sine; the two fits of
+# uneven_60fps's maroon 7 differ by 0.04-0.16 where the lit pixels' fit is the nearer the
+# truth by 5-14 mm; not a tuned figure beyond that clip).
+_STEP_GAIN = 0.03
+# The outline evidence's bands: from 0.5 to 1.5 px either side of a fit's predicted outline
+# (the blurred rim's half-width about the edge; the local edge's own bands start at 1.75 px).
+_STEP_BAND_PX = (0.5, 1.0, 1.5)
+# The evidence's compass search (:meth:`BallDetector._hue_climb`): its step sizes (mm, about
+# 1.6, 0.8, 0.4 and 0.2 px at uneven_60fps's 2.5 mm/px) and at most _CLIMB_MOVES moves.
+_CLIMB_STEPS_MM = (4.0, 2.0, 1.0, 0.5)
+_CLIMB_MOVES = 20
+_COMPASS = np.array([[1.0, 0.0], [-1.0, 0.0], [0.0, 1.0], [0.0, -1.0], [0.7071, 0.7071], [0.7071, -0.7071], [-0.7071, 0.7071], [-0.7071, -0.7071]])
+_COMPASS.flags.writeable = False
 # A dim ball's outline RMS is accepted up to this many times the spread the image noise alone
 # gives its outline (:meth:`BallDetector._outline_noise_mm`) where that exceeds ``max_rms_mm``
 # (the model's own misfit on a clean rim): the larger of the two, not their quadrature sum,
@@ -2816,8 +2832,90 @@ class BallDetector:
             return row
         # Two balls cannot overlap: a caster nearer than 2 R is the only ball there, and
         # whatever of the disc its silhouette leaves is judged, however little.
-        near = math.hypot(ball["x"] - row["x"], ball["y"] - row["y"]) < 2 * self.R
-        return ball if _unlit(*self._disc_own_pixels(img, row, [ball], 0.0 if near else 0.5)) else row
+        gap = math.hypot(ball["x"] - row["x"], ball["y"] - row["y"])
+        # A dark ball's hue is noise (the chromaticity of a few DN), and a touching neighbour's
+        # rim lies in the outline's outer band: no evidence there.
+        alone = all(math.hypot(f["x"] - row["x"], f["y"] - row["y"]) >= _NEAR_R * self.R for f in found if f is not row)
+        if gap < self.R and alone and not self._dark_body(img, np.array([ball["u"], ball["v"]])):
+            pick = self._by_outline(img, row, ball, seed)
+            if pick is not row:
+                return pick
+        return ball if _unlit(*self._disc_own_pixels(img, row, [ball], 0.0 if gap < 2 * self.R else 0.5)) else row
+
+    def _by_outline(self, img: np.ndarray, row: dict, ball: dict, seed: dict) -> dict:
+        """Of two sharp fits of one ball (``row``, astride the ball and its own shadow, and
+        ``ball``, the fit of its lit pixels, :meth:`_caster_of`; ``seed`` the piece's seed),
+        the one with the better outline evidence (:meth:`_better_outline`), or a third fit
+        started where the evidence is highest (:meth:`_hue_climb` from the better of the
+        two), taken when its evidence beats that one's; ``row`` when none does. Both fits'
+        local rounds can walk onto the shadow from a start beyond the local edge's reach
+        (the edge's bands then straddle the lit limb on one side and the shadow's outer edge
+        on the other), so a start by the evidence gives the rounds a start within it."""
+        best = ball if self._better_outline(img, ball, row) else row
+        xy = self._hue_climb(img, best)
+        moved = {"x": float(xy[0]), "y": float(xy[1])}
+        if self._better_outline(img, moved, best):
+            step = math.hypot(moved["x"] - best["x"], moved["y"] - best["y"])
+            uv = self.rays.project_point(moved["x"], moved["y"], self.R)
+            best = dict(best, **moved, u=float(uv[0]), v=float(uv[1]), sigma_mm=max(float(best["sigma_mm"]), step))
+        return best
+
+    def _hue_climb(self, img: np.ndarray, row: dict) -> np.ndarray:
+        """Centre (x, y) mm, table frame, near the sharp fit ``row`` where its outline evidence
+        (:meth:`_hue_step`) is highest: a compass search (Hooke & Jeeves 1961's exploratory
+        moves along the axes and diagonals) from ``row``'s centre in steps of
+        ``_CLIMB_STEPS_MM``, each step tried until no move raises the evidence, at most
+        ``_CLIMB_MOVES`` moves in all."""
+        xy = np.array([float(row["x"]), float(row["y"])])
+        e = self._hue_step(img, {"x": xy[0], "y": xy[1]})
+        moves = 0
+        for step in _CLIMB_STEPS_MM:
+            while moves < _CLIMB_MOVES:
+                tries = [xy + step * d for d in _COMPASS]
+                es = [self._hue_step(img, {"x": q[0], "y": q[1]}) for q in tries]
+                k = int(np.argmax(es))
+                if not es[k] > e:
+                    break
+                xy, e = tries[k], es[k]
+                moves += 1
+        return xy
+
+    def _better_outline(self, img: np.ndarray, a: dict, b: dict) -> bool:
+        """Whether sharp fit ``a`` (a detection row) has the better outline evidence than fit
+        ``b`` of the same ball: its :meth:`_hue_step` larger by at least ``_STEP_GAIN``. A fit
+        astride a coloured ball and its own shadow puts one side of its outline inside the
+        ball's lit limb (the ball's hue on both sides) and the other on the shadow's outer
+        edge (the cloth's hue on both sides); the codec's chroma spill makes that shadow look
+        as coloured as the ball near the limb, so the disc tests (:func:`_unlit`) keep it,
+        while the hue still steps at the true outline on both sides."""
+        return self._hue_step(img, a) >= self._hue_step(img, b) + _STEP_GAIN
+
+    def _hue_step(self, img: np.ndarray, row: dict) -> float:
+        """Outline evidence of the sharp fit ``row`` (a detection row): the median over
+        ``_N_RAYS`` rays from its centre's image of the chromaticity distortion against the
+        empty table (:func:`_chroma_off`, Horprasert, Harwood & Davis 1999: the sine of the
+        angle between the two colours, which a shadow only scales) averaged ``_STEP_BAND_PX``
+        inside the predicted outline at ball-centre height, less that averaged as far outside.
+        A ball whose hue differs from the cloth's steps from its own hue to the cloth's (or
+        to the cloth's shadow, of the cloth's hue) across its true outline on every ray;
+        -inf where the outline does not project."""
+        x, y, R = float(row["x"]), float(row["y"]), self.R
+        c = self.rays.project(np.array([[x, y, R]]))[0]
+        if not (math.isfinite(c[0]) and math.isfinite(c[1])):
+            return -math.inf
+        rho = _ray_polygon(c, _RAY_DIRS, _swept_outline_px(self.camera, x, y, 0.0, 0.0, R, self.rays))
+        if not np.isfinite(rho).all():
+            return -math.inf
+        band = np.asarray(_STEP_BAND_PX, np.float32)
+        off = np.concatenate([-band[::-1], band])
+        r = np.maximum(rho[:, None] + off[None, :], 0.0)
+        mx = (c[0] + r * _RAY_DIRS[:, 0:1]).astype(np.float32)
+        my = (c[1] + r * _RAY_DIRS[:, 1:2]).astype(np.float32)
+        I, B = self._frame_and_empty(img, mx, my)
+        B = B.astype(np.float32)
+        ch = _chroma_off(I, B, _dot3_f32(I, B) / np.maximum(_dot3_f32(B, B), 1.0))
+        n = len(band)
+        return _median(ch[:, :n].mean(axis=1) - ch[:, n:].mean(axis=1))
 
     def _inside_any(self, us: np.ndarray, vs: np.ndarray, rows: list[dict]) -> np.ndarray:
         """(N,) bool: whether pixels ``us``, ``vs`` (int arrays, px) lie inside the silhouette
