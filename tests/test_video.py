@@ -155,6 +155,61 @@ def test_frame_range_decoded_from_its_keyframe_gives_the_frames_of_the_whole_cli
         assert all(np.array_equal(a[2], b[2]) for a, b in zip(part, want))
 
 
+def _encode(path, codec, options, n=120):
+    """A 320x192 60 fps clip of a moving patch with noise and scene cuts at 50 and 90, encoded by
+    PyAV's ``codec`` with encoder ``options`` (B-frames, open groups: as phones and cameras
+    record, unlike write_video's settings)."""
+    import av
+
+    rng = np.random.default_rng(3)
+    with av.open(str(path), "w") as out:
+        stream = out.add_stream(codec, rate=60)
+        stream.width, stream.height, stream.pix_fmt = 320, 192, "yuv420p"
+        stream.options = options
+        for i in range(n):
+            img = np.empty((192, 320, 3), np.uint8)
+            img[:] = (40, 120, 30) if i < 50 else (120, 40, 30) if i < 90 else (30, 40, 140)
+            x = int(20 + 1.7 * i) % 290
+            img[80:100, x:x + 24] = 245
+            img = np.clip(img + rng.normal(0, 4, img.shape), 0, 255).astype(np.uint8)
+            for packet in stream.encode(av.VideoFrame.from_ndarray(img, format="bgr24")):
+                out.mux(packet)
+        for packet in stream.encode():
+            out.mux(packet)
+
+
+@pytest.mark.parametrize(
+    "name, codec, options",
+    [
+        ("open.mp4", "libx264", {"bf": "3", "x264-params": "keyint=30:min-keyint=10:open-gop=1"}),
+        ("open.mkv", "libx264", {"bf": "3", "x264-params": "keyint=30:min-keyint=10:open-gop=1"}),
+        ("hevc.mp4", "libx265", {"x265-params": "keyint=30:min-keyint=10:bframes=4:open-gop=1:log-level=error"}),
+        ("hevc.mkv", "libx265", {"x265-params": "keyint=30:min-keyint=10:bframes=4:open-gop=0:log-level=error"}),
+        ("vp9.webm", "libvpx-vp9", {"g": "30"}),
+        ("mpeg4.avi", "mpeg4", {"g": "30", "bf": "2"}),
+    ],
+)
+def test_frame_range_of_footage_with_b_frames_and_open_groups_gives_the_frames_of_the_whole_clip(tmp_path, name, codec, options):
+    # Footage from phones and cameras reorders pictures (B-frames) and may open its groups (a
+    # keyframe whose following B-pictures refer back past it: not an IDR, ITU-T Rec. H.264 sec.
+    # 3.69 and 8.2.1; H.265's CRA pictures likewise). A part read from frame k must still be
+    # FFmpeg's own decode of the whole clip from frame 0, pixel for pixel, with its indices and
+    # times, whether or not the keyframe start is taken.
+    import av
+
+    if codec not in av.codecs_available:
+        pytest.skip(f"this FFmpeg build has no {codec} encoder")
+    path = tmp_path / name
+    _encode(path, codec, options)
+    whole = list(iter_frames(path, read_ahead=0))
+    assert len(whole) == 120
+    for start in (1, 29, 30, 31, 50, 51, 61, 89, 90, 91, 110, 119):
+        part = list(iter_frames(path, read_ahead=0, start=start, stop=start + 8))
+        want = whole[start:start + 8]
+        assert [(i, t) for i, t, _ in part] == [(i, t) for i, t, _ in want], (name, start)
+        assert all(np.array_equal(a[2], b[2]) for a, b in zip(part, want)), (name, start)
+
+
 @pytest.mark.parametrize("read_ahead", [0, 3])
 def test_grey_frames_match_the_grey_of_the_bgr_frames(tmp_path, read_ahead):
     # iter_grey skips the colour conversion; its small grey must be cv2's BGR-to-grey of the
