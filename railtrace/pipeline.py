@@ -164,12 +164,11 @@ def analyse_clip(
         if helpers is not None:
             helpers.close()
     done("detection")
-    detections_csv = detections.to_csv(index=False, float_format="%.6f")
     # Tracking and events run on the detections as written (micrometre decimals), so what
     # they find is what detections.csv reproduces (extra clip uneven_60fps once gave 2 identity
     # switches on the unrounded detections and none on the written ones, through the tracker's
     # inexact third differences since mended: _Track.note_scatter).
-    detections = pd.read_csv(io.StringIO(detections_csv), dtype={"colour": str, "pattern": str})
+    detections_csv, detections = _as_written(detections)
     tracks = early.finish(detections)
     done("tracking")
     events, shots, rests = find_events_and_rests(tracks, table, detections, config.events)
@@ -281,6 +280,13 @@ def _detect_parts(clip, table, cameras, config: AnalyseConfig, info, parts, help
     return pd.concat(filled, ignore_index=True) if filled else results[0]
 
 
+def _as_written(detections: pd.DataFrame) -> tuple[str, pd.DataFrame]:
+    """``detections`` as detections.csv holds them (CSV text, micrometre decimals) and as read
+    back from that text."""
+    text = detections.to_csv(index=False, float_format="%.6f")
+    return text, pd.read_csv(io.StringIO(text), dtype={"colour": str, "pattern": str})
+
+
 class _EarlyTracks:
     """Tracking begun on the clip's first part while the other parts' processes still detect
     (:class:`tracking.tracker.TrackFeed`), so this process's core does not wait idle; the
@@ -299,7 +305,7 @@ class _EarlyTracks:
     def take(self, part: pd.DataFrame) -> None:
         if not len(part):
             return
-        head = pd.read_csv(io.StringIO(part.to_csv(index=False, float_format="%.6f")), dtype={"colour": str, "pattern": str})
+        head = _as_written(part)[1]
         feed = TrackFeed(self.table, self.config)
         try:
             feed.add(head)
