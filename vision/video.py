@@ -327,23 +327,28 @@ def _seek(container, stream, plan: tuple[int, int, int]):
     return itertools.chain([head], frames), k, float(pts0 * head.time_base)
 
 
+def _open_threaded(path):
+    """(container, its video stream) of :func:`_open`, the stream decoding with FFmpeg's own
+    threads."""
+    container = _open(path)
+    stream = container.streams.video[0]
+    stream.thread_type = "AUTO"
+    return container, stream
+
+
 def _decode(path, start: int = 0, stop: int | None = None, convert=_bgr) -> Iterator:
     """:func:`iter_frames` in the caller's thread; ``convert(index, t, av.VideoFrame)`` makes
     each item yielded. With ``start`` > 0, decoding begins at the last keyframe before it where
     that gives the same frames (:func:`_keyframe_before`, :func:`_seek`), else at frame 0."""
     plan = _keyframe_before(path, start)
-    container = _open(path)
+    container, stream = _open_threaded(path)
     try:
-        stream = container.streams.video[0]
-        stream.thread_type = "AUTO"
         first, i0, frames = None, 0, None
         if plan is not None:
             seeked = _seek(container, stream, plan)
             if seeked is None:
                 container.close()
-                container = _open(path)
-                stream = container.streams.video[0]
-                stream.thread_type = "AUTO"
+                container, stream = _open_threaded(path)
             else:
                 frames, i0, first = seeked
         if frames is None:
