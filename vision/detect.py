@@ -2830,44 +2830,49 @@ class BallDetector:
         ball = self._caster_of(img, row, seed, found)
         if ball is None or any(math.hypot(f["x"] - ball["x"], f["y"] - ball["y"]) < self.R for f in found if f is not row):
             return row
-        # Two balls cannot overlap: a caster nearer than 2 R is the only ball there, and
-        # whatever of the disc its silhouette leaves is judged, however little.
         gap = math.hypot(ball["x"] - row["x"], ball["y"] - row["y"])
         # A dark ball's hue is noise (the chromaticity of a few DN), and a touching neighbour's
         # rim lies in the outline's outer band: no evidence there.
-        alone = all(math.hypot(f["x"] - row["x"], f["y"] - row["y"]) >= _NEAR_R * self.R for f in found if f is not row)
-        if gap < self.R and alone and not self._dark_body(img, np.array([ball["u"], ball["v"]])):
-            pick = self._by_outline(img, row, ball, seed)
+        alone = (math.hypot(f["x"] - row["x"], f["y"] - row["y"]) >= _NEAR_R * self.R for f in found if f is not row)
+        if gap < self.R and all(alone) and not self._dark_body(img, np.array([ball["u"], ball["v"]])):
+            pick = self._by_outline(img, row, ball)
             if pick is not row:
                 return pick
+        # Two balls cannot overlap: a caster nearer than 2 R is the only ball there, and
+        # whatever of the disc its silhouette leaves is judged, however little.
         return ball if _unlit(*self._disc_own_pixels(img, row, [ball], 0.0 if gap < 2 * self.R else 0.5)) else row
 
-    def _by_outline(self, img: np.ndarray, row: dict, ball: dict, seed: dict) -> dict:
+    def _by_outline(self, img: np.ndarray, row: dict, ball: dict) -> dict:
         """Of two sharp fits of one ball (``row``, astride the ball and its own shadow, and
-        ``ball``, the fit of its lit pixels, :meth:`_caster_of`; ``seed`` the piece's seed),
-        the one with the better outline evidence (:meth:`_better_outline`), or a third fit
-        started where the evidence is highest (:meth:`_hue_climb` from the better of the
-        two), taken when its evidence beats that one's; ``row`` when none does. Both fits'
-        local rounds can walk onto the shadow from a start beyond the local edge's reach
-        (the edge's bands then straddle the lit limb on one side and the shadow's outer edge
-        on the other), so a start by the evidence gives the rounds a start within it."""
-        best = ball if self._better_outline(img, ball, row) else row
-        xy = self._hue_climb(img, best)
-        moved = {"x": float(xy[0]), "y": float(xy[1])}
-        if self._better_outline(img, moved, best):
+        ``ball``, the fit of its lit pixels, :meth:`_caster_of`), ``ball`` where its outline
+        evidence (:meth:`_hue_step`) beats ``row``'s by at least ``_STEP_GAIN``, else ``row``;
+        or a third fit started where the evidence is highest (:meth:`_hue_climb` from the
+        chosen one), taken when its evidence beats the chosen one's by as much. A fit astride
+        a coloured ball and its own shadow puts one side of its outline inside the ball's lit
+        limb (the ball's hue on both sides) and the other on the shadow's outer edge (the
+        cloth's hue on both sides); the codec's chroma spill makes that shadow look as
+        coloured as the ball near the limb, so the disc tests (:func:`_unlit`) keep it, while
+        the hue still steps at the true outline on both sides. Both fits' local rounds can
+        walk onto the shadow from a start beyond the local edge's reach (the edge's bands then
+        straddle the lit limb on one side and the shadow's outer edge on the other), so a
+        start by the evidence gives the rounds a start within it."""
+        e_ball, e_row = self._hue_step(img, ball), self._hue_step(img, row)
+        best, e_best = (ball, e_ball) if e_ball >= e_row + _STEP_GAIN else (row, e_row)
+        xy, e = self._hue_climb(img, best, e_best)
+        if e >= e_best + _STEP_GAIN:
+            moved = {"x": float(xy[0]), "y": float(xy[1])}
             step = math.hypot(moved["x"] - best["x"], moved["y"] - best["y"])
             uv = self.rays.project_point(moved["x"], moved["y"], self.R)
             best = dict(best, **moved, u=float(uv[0]), v=float(uv[1]), sigma_mm=max(float(best["sigma_mm"]), step))
         return best
 
-    def _hue_climb(self, img: np.ndarray, row: dict) -> np.ndarray:
-        """Centre (x, y) mm, table frame, near the sharp fit ``row`` where its outline evidence
-        (:meth:`_hue_step`) is highest: a compass search (Hooke & Jeeves 1961's exploratory
-        moves along the axes and diagonals) from ``row``'s centre in steps of
-        ``_CLIMB_STEPS_MM``, each step tried until no move raises the evidence, at most
-        ``_CLIMB_MOVES`` moves in all."""
+    def _hue_climb(self, img: np.ndarray, row: dict, e: float) -> tuple[np.ndarray, float]:
+        """Centre (x, y) mm, table frame, near the sharp fit ``row`` (whose outline evidence
+        :meth:`_hue_step` is ``e``) where that evidence is highest, and the evidence there: a
+        compass search (Hooke & Jeeves 1961's exploratory moves along the axes and diagonals)
+        from ``row``'s centre in steps of ``_CLIMB_STEPS_MM``, each step tried until no move
+        raises the evidence, at most ``_CLIMB_MOVES`` moves in all."""
         xy = np.array([float(row["x"]), float(row["y"])])
-        e = self._hue_step(img, {"x": xy[0], "y": xy[1]})
         moves = 0
         for step in _CLIMB_STEPS_MM:
             while moves < _CLIMB_MOVES:
@@ -2878,17 +2883,7 @@ class BallDetector:
                     break
                 xy, e = tries[k], es[k]
                 moves += 1
-        return xy
-
-    def _better_outline(self, img: np.ndarray, a: dict, b: dict) -> bool:
-        """Whether sharp fit ``a`` (a detection row) has the better outline evidence than fit
-        ``b`` of the same ball: its :meth:`_hue_step` larger by at least ``_STEP_GAIN``. A fit
-        astride a coloured ball and its own shadow puts one side of its outline inside the
-        ball's lit limb (the ball's hue on both sides) and the other on the shadow's outer
-        edge (the cloth's hue on both sides); the codec's chroma spill makes that shadow look
-        as coloured as the ball near the limb, so the disc tests (:func:`_unlit`) keep it,
-        while the hue still steps at the true outline on both sides."""
-        return self._hue_step(img, a) >= self._hue_step(img, b) + _STEP_GAIN
+        return xy, e
 
     def _hue_step(self, img: np.ndarray, row: dict) -> float:
         """Outline evidence of the sharp fit ``row`` (a detection row): the median over
