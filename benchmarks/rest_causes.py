@@ -125,25 +125,15 @@ def errors(scene: Scene, cam, frames: list[np.ndarray], at: np.ndarray, seeded: 
     ball radius (NaN if none) and its components away from the camera's nadir and across.
     ``seeded``: each ball's detection is instead the detector's fit of the last frame from a
     sharp seed at the image of its true centre (:func:`seeded_fits`)."""
-    det = BallDetector(cam, scene.table)
-    out = None
-    for i, f in enumerate(frames):
-        out = det.process(i, i / scene.film.fps, f)
-    if seeded:
-        out = seeded_fits(det, frames[-1], at, scene.table.radius_mm)
-    q = out[["x", "y"]].to_numpy() if len(out) else np.zeros((0, 2))
     nadir = np.asarray(cam.centre_mm[:2], float)
     rows = []
-    for x, y in at:
-        e = np.hypot(q[:, 0] - x, q[:, 1] - y) if len(q) else np.array([np.inf])
-        j = int(np.argmin(e))
-        if not e[j] <= scene.table.radius_mm:
+    for (x, y), d in zip(at, ball_errors(scene.table, cam, frames, scene.film.fps, at, seeded)):
+        if np.isnan(d[0]):
             rows.append({"error": np.nan, "radial": np.nan, "across": np.nan})
             continue
-        d = q[j] - (x, y)
         u = np.array([x, y]) - nadir
         u = u / max(float(np.hypot(*u)), 1e-9)
-        rows.append({"error": float(e[j]), "radial": float(d @ u), "across": float(d[1] * u[0] - d[0] * u[1])})
+        rows.append({"error": float(np.hypot(*d)), "radial": float(d @ u), "across": float(d[1] * u[0] - d[0] * u[1])})
     return pd.DataFrame(rows)
 
 
@@ -238,7 +228,9 @@ def decoded_opening(path: Path, n: int = CLIP_FRAMES) -> list[np.ndarray]:
 
 def ball_errors(table, cam, frames: list[np.ndarray], fps: float, at: np.ndarray, seeded: bool = False) -> np.ndarray:
     """(N, 2) error (x, y) mm of each true centre ``at``'s nearest detection within a ball
-    radius in the last of ``frames`` (NaN where none); ``seeded`` as :func:`errors`."""
+    radius in the last of ``frames`` (NaN where none); ``seeded``: each ball's detection is
+    instead the detector's fit of the last frame from a sharp seed at the image of its true
+    centre (:func:`seeded_fits`)."""
     det = BallDetector(cam, table)
     out = None
     for i, f in enumerate(frames):
