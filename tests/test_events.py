@@ -907,6 +907,41 @@ def test_a_gross_outlier_the_detector_did_not_flag_is_struck():
     assert med[0] <= 0.03 and med[1] <= 1.0 and med[2] <= 0.03
 
 
+@pytest.mark.parametrize("rail, along, angle", [
+    ("bottom", 700.0, 30.0), ("right", 500.0, -45.0), ("top", 1200.0, 30.0), ("left", 800.0, 60.0),
+])
+def test_one_gross_read_beside_a_mirror_bounce_is_struck_and_the_bounce_recovered_exactly(
+        rail, along, angle):
+    # The exact mirror bounce of ``test_mirror_bounce_recovered_exactly_without_noise`` (e = 1,
+    # rolling in, sliding off; analytic truth, ``_rolling_bank_case``), with the first read
+    # after the contact 5 mm off toward the table's centre (a read pulled by the cushion's
+    # shadow) and the same stated sigma_mm as every other read. That read sets the departure's
+    # short slide, which follows it: its plain residual is the smallest of the side while
+    # the good reads beyond it are left off the bent path. Ranked by studentised residuals
+    # (Cook & Weisberg 1982: residual over sqrt(1 - leverage)) it is the read struck, and the
+    # rest, exact, give the bounce back exactly. (Before: restitution 0.80, angle out 2.5
+    # degrees off, time 0.2 frame early, on the top rail.)
+    fps = 60.0
+    t_c = 0.5 + 0.37 / fps
+    f, v_in, v_out = _rolling_bank_case(rail, along, angle, 1500.0, 1.0, t_c)
+    t_slide = 2.0 * 2.0 * 1500.0 * math.cos(math.radians(angle)) / (7.0 * 0.25 * G)
+    times = np.arange(int(1.0 * fps)) / fps
+    times = times[times < t_c + t_slide]
+    det = detections({"a": f}, times, np.random.default_rng(0), noise_mm=0.0)
+    det["sigma_mm"] = 1.0
+    row = det.index[det["frame"] == int(np.searchsorted(times, t_c))][0]
+    det.loc[row, ["x", "y"]] += 5.0 * np.asarray(rail_inward_normal(rail))
+    ev, _ = find_events(track(det, TABLE), TABLE, det)
+    cu = _only(ev, "cushion")
+    assert len(cu) == 1 and cu.loc[0, "rail"] == rail
+    # Exact, as without the gross read (constant-acceleration pieces fitted exactly).
+    assert abs(cu.loc[0, "t"] - t_c) < 1e-6
+    truth = f(np.array([t_c]))[0]
+    assert abs(cu.loc[0, "x"] - truth[0]) < 1e-6 and abs(cu.loc[0, "y"] - truth[1]) < 1e-6
+    assert abs(cu.loc[0, "angle_in"] - angle) < 1e-6 and abs(cu.loc[0, "angle_out"] - angle) < 1e-6
+    assert abs(cu.loc[0, "restitution"] - 1.0) < 1e-9
+
+
 def test_two_tracks_ending_as_they_touch_make_no_collision():
     # Two false tracks (a hand's knuckles, swept together over the middle of the table and
     # lifted) close on each other, turn and both end in the first frame past the touch. Two balls

@@ -319,7 +319,8 @@ class EventConfig:
     fewer well-seen slides (the middle of the model's 0.28-0.43; a clip of a few shots, whose
     slides after a cushion last only a few frames, would otherwise fit them unconstrained).
     ``outlier_sigmas`` / ``outlier_max``: a sample a contact's side fit leaves more than this
-    many noise sigmas off is struck, at most this many per fit (``_Finder._robust_fit``).
+    many noise sigmas off (studentised: over ``sqrt(1 - leverage)``, ``_leverage``) is struck,
+    at most this many per fit (``_Finder._robust_fit``).
     ``slide_fit_s``: longest stretch fitted to measure one slide (a stun at 3 m/s on a 0.2
     cloth slides 0.44 s, Alciatore 2004: 2 v0 / (7 mu_s g)).
     ``reversal_line_sd_mm``: standard deviation of where the calibration puts each rail's
@@ -1054,6 +1055,65 @@ def _piecewise_fit(ts: np.ndarray, ps: np.ndarray, t0: float, sigma_mm: float, s
     return _Fit(t0, c4[:3].copy(), cov.copy(), s2, n, 2, tk=tk,
                 far=c4[3].copy() if tk is not None else None, k=k, bic=score, rss=rss_pen,
                 slid=slid, s2_measured=measured)
+
+
+def _leverage(ts: np.ndarray, f: _Fit, sigma_mm: float, cfg: "EventConfig",
+              weight: np.ndarray | None = None, slide_decel: float | None = None) -> np.ndarray:
+    """Leverage (n,) of each sample ts (n,) s on the fit ``f`` of one side of a contact
+    (``_piecewise_fit``, unpinned): the mean over the two axes of the hat matrix's diagonal
+    ``h = diag(X (X^T X + L)^-1 X^T)`` of the chosen model linearised at its kink time, rows
+    weighted by ``weight`` as the fit weighs them.
+
+    The model's columns, per axis: ``1, tau`` and the acceleration pieces (``_piecewise_fit``:
+    one quadratic, or sliding and rolling pieces joined at ``f.tk``); ``L`` the rolling piece's
+    ridge prior (``_ridge_weight``; a model of four parameters, rolling or sliding straight,
+    has its one piece held so, a six-parameter one's is free). With the cloth's ``slide_decel``
+    held on a departure, the slide's two coefficients are one parameter, its direction: the
+    column is the derivative of the slide term along the circle, shared by both axes
+    (Gauss-Newton linearisation). The kink time itself is left out (a profile over a grid).
+
+    A sample's residual has variance ``sigma^2 (1 - h)`` in a linear least-squares fit, so one
+    the fit leans on (``h`` near 1, as a departure's first sample is on its short slide) shows
+    little residual however far off it lies, while it pulls its neighbours' residuals up:
+    the internally studentised residual ``r / sqrt(1 - h)`` puts every sample on one scale
+    (Cook & Weisberg 1982, Residuals and Influence in Regression, ch. 2; Belsley, Kuh & Welsch
+    1980), and for one gross error in otherwise exact samples it is largest at that sample
+    (``I - H`` is a projection, so ``h_ij^2 <= (1 - h_ii)(1 - h_jj)``)."""
+    n = len(ts)
+    tau = ts - f.t0
+    after = bool(np.max(tau) > 0)
+    wt = np.ones(n) if weight is None else np.asarray(weight, float)
+    if f.tk is not None:
+        m = np.where(np.abs(tau) <= abs(f.tk), tau, f.tk)
+        r = tau - m
+        cols = [np.ones(n), tau, m * m + 2 * m * r, r * r]
+        roll_col, slide_col = (3, 2) if after else (2, 3)
+    else:
+        cols = [np.ones(n), tau, tau * tau][: f.deg + 1]
+        roll_col = 2 if f.deg == 2 and f.k <= 4 else None
+        slide_col = 2 if f.deg == 2 and f.k > 4 else None
+    X = np.stack(cols, axis=1) * wt[:, None]  # (n, q) per axis
+    q = X.shape[1]
+    fixed = slide_decel is not None and after and slide_col is not None
+    own = [j for j in range(q) if not (fixed and j == slide_col)]
+    # Joint design over both axes (2n rows: x then y): each axis' own columns, and with the
+    # slide held to its circle one shared column for its direction.
+    blocks = [np.kron(np.eye(2)[:, [ax]], X[:, own]) for ax in range(2)]
+    J = np.concatenate(blocks, axis=1)
+    ridge = np.zeros(J.shape[1])
+    if roll_col is not None:
+        lam = _ridge_weight(sigma_mm, cfg.roll_decel_sigma_mm_s2)
+        k = own.index(roll_col)
+        ridge[[k, len(own) + k]] = lam
+    if fixed:
+        c = f.coef[slide_col] if slide_col < 3 else f.far
+        d = np.array([-c[1], c[0]])  # d(c)/d(angle) along the circle
+        J = np.concatenate([J, np.concatenate([X[:, slide_col] * d[0],
+                                               X[:, slide_col] * d[1]])[:, None]], axis=1)
+        ridge = np.append(ridge, 0.0)
+    N = J.T @ J + np.diag(ridge)
+    h = np.einsum("ij,ji->i", J, np.linalg.pinv(N) @ J.T)
+    return 0.5 * (h[:n] + h[n:])
 
 
 def _real_roots(coeffs_high_first, lo: float, hi: float) -> np.ndarray:
@@ -2850,9 +2910,10 @@ class _Finder:
                     straight: tuple[float, float] | None = None, lateral: bool = False):
         """``_piecewise_fit`` of samples ts (n,) s, ps (n, 2) mm with gross outliers struck.
 
-        A sample the fit leaves more than ``outlier_sigmas`` noise sigmas off (2-D distance
-        times the sample's weight, so in units of its own stated noise where the detections
-        state one; for
+        A sample whose studentised residual exceeds ``outlier_sigmas`` noise sigmas (2-D
+        distance times the sample's weight, so in units of its own stated noise where the
+        detections state one, over ``sqrt(1 - leverage)``: the root of how far the residual sum
+        falls without it, refitted without it for the samples nearest the contact; for
         Gaussian noise a chance of exp(-s^2 / 2), 4e-6 at 5; the noise ``sigma`` or the
         residuals' robust scatter, whichever is larger) is not this ball's centre (a detection
         pulled by the cushion's shadow or a hand next to the ball, which the detector need not
@@ -2863,9 +2924,16 @@ class _Finder:
         session with hands over the table: ``mu_s g`` 3.6 instead of 2.1 m/s^2). Returns (fit or None, ts, ps, weight of the samples kept, times struck).
         """
         struck: list[float] = []
+
+        def fit(keep: np.ndarray | None = None) -> _Fit | None:
+            sel = slice(None) if keep is None else keep
+            return _piecewise_fit(ts[sel], ps[sel], t0, sigma, step, self.cfg,
+                                  slide_decel=slide_decel,
+                                  weight=None if weight is None else weight[sel],
+                                  straight=straight, lateral=lateral)
+
+        f = fit()
         while True:
-            f = _piecewise_fit(ts, ps, t0, sigma, step, self.cfg, slide_decel=slide_decel,
-                               weight=weight, straight=straight, lateral=lateral)
             if f is None or len(struck) >= self.cfg.outlier_max \
                     or len(ts) <= self.cfg.quadratic_min_samples:
                 return f, ts, ps, weight, struck
@@ -2878,14 +2946,33 @@ class _Finder:
                 # 0.6-1.0 lay 5-8 mm from them along the rail and turned the approach of its
                 # slow contact 29 degrees, speed_in 30 % high).
                 res = res * weight
-            j = int(np.argmax(res))
+            # How far the residual sum falls when a read is left out (mm^2, weighted): in a
+            # linear fit r^2 / (1 - h) (``_leverage``), the square of its studentised residual,
+            # the likelihood-ratio test of one read shifted off the path (Cook & Weisberg
+            # 1982, ch. 2.2). The read next to the contact, which the short slide there
+            # follows, otherwise shows the least residual however far off it lies, and the
+            # good reads the bent path then misses are struck in its place.
+            fall = res**2 / np.maximum(1.0 - _leverage(ts, f, sigma, self.cfg, weight,
+                                                       slide_decel), 1e-6)
             # The median 2-D residual of Gaussian noise is sigma sqrt(2 ln 2) = 1.177 sigma,
             # and one outlier hardly moves it.
-            scale = max(sigma, float(np.median(res)) / 1.177)
-            if res[j] <= self.cfg.outlier_sigmas * scale:
+            scale = max(sigma, float(np.median(np.sqrt(fall))) / 1.177)
+            # The reads nearest the contact are refitted without, each: there the slide's
+            # kink and direction move with one read, which the linearisation at the chosen
+            # kink misjudges (a mirror bounce's first read 5 mm off: a kink 0.05 s out fitted
+            # to it, its linearised fall 1.0 against 8.8 mm^2 refitted, a good read's 3.0).
+            refits = {}
+            if math.isfinite(f.rss):
+                for j in np.argsort(np.abs(ts - t0), kind="stable")[:self.cfg.kink_min_samples + 1]:
+                    g = fit(np.arange(len(ts)) != j)
+                    if g is not None and math.isfinite(g.rss):
+                        fall[j], refits[int(j)] = max(f.rss - g.rss, 0.0), g
+            j = int(np.argmax(fall))
+            if math.sqrt(fall[j]) <= self.cfg.outlier_sigmas * scale:
                 return f, ts, ps, weight, struck
             struck.append(float(ts[j]))
             keep = np.arange(len(ts)) != j
+            f = refits[j] if j in refits else fit(keep)
             ts, ps = ts[keep], ps[keep]
             weight = None if weight is None else weight[keep]
 
