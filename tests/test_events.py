@@ -1941,13 +1941,14 @@ def test_a_ball_unseen_for_frames_after_the_strike_keeps_its_start(seed):
     assert len(st) == 1 and abs(st.loc[0, "t"] - t0) < 0.25 / fps, (seed, ev[["t", "kind"]])
 
 
-def _nudge_case(seed: int, fps: float, moving_sigma_mm: float, gap_mm: float):
+def _nudge_case(seed: int, fps: float, moving_sigma_mm: float, gap_mm: float, edit=None):
     """A ball struck rolling (``tip_height`` 0.4: rolling at once, Alciatore 2004) at 330-450
     mm/s from 0.5 m away, past a ball at rest with its centre line offset a diameter plus
     ``gap_mm`` (negative: a glancing touch; 0.5-3 mm of overlap leaves the resting ball
     16-93 mm/s, rolled 0.7-23 mm on), simulated by ``analysis.physics``; detections as in
-    ``benchmarks/event_accuracy.py`` (resting sigma 1 mm, moving ``moving_sigma_mm``). Returns
-    (found events, tracks, the simulator's collision time or None)."""
+    ``benchmarks/event_accuracy.py`` (resting sigma 1 mm, moving ``moving_sigma_mm``), changed
+    by ``edit(detections, collision time)`` where given. Returns (found events, tracks, the
+    simulator's collision time or None)."""
     from analysis.physics import PhysicsParams, Simulator, Strike
     from benchmarks.event_accuracy import detections as sim_detections
 
@@ -1966,6 +1967,8 @@ def _nudge_case(seed: int, fps: float, moving_sigma_mm: float, gap_mm: float):
                          drop=0.0)
     det["pattern"] = np.where(det["truth"] == "cue", "cue", "solid")
     det["colour"] = det["truth"].map({"cue": "white", "obj": "red"})
+    if edit is not None:
+        det = edit(det, t_c)
     tr = track(det, TABLE)
     return find_events(tr, TABLE, det)[0], tr, t_c
 
@@ -2008,6 +2011,51 @@ def test_a_near_miss_beside_a_resting_ball_is_no_collision(gap_mm, fps, noise_mm
         ev, _, t_c = _nudge_case(seed, fps, noise_mm, gap_mm)
         assert t_c is None
         assert len(_only(ev, "collision")) == 0, (seed, ev)
+
+
+def _carry_a_read(off_mm: float, carried_s: float):
+    """An ``edit`` for ``_nudge_case``: the resting ball's reads over the ``carried_s`` before
+    the touch become one read, ``off_mm`` from its spot toward the moving ball's read nearest
+    the touch, repeated every frame (the detector carries a resting ball's read over frames in
+    which nothing changed around it, ``vision.detect``)."""
+    def edit(det: pd.DataFrame, t_c: float) -> pd.DataFrame:
+        det = det.copy()
+        obj, cue = det["truth"] == "obj", det["truth"] == "cue"
+        spot = det.loc[obj & (det["t"] < t_c), ["x", "y"]].median().to_numpy()
+        near = det.loc[cue].iloc[int(np.argmin(np.abs(det.loc[cue, "t"] - t_c)))]
+        u = np.array([near["x"], near["y"]]) - spot
+        held = obj & (det["t"] > t_c - carried_s) & (det["t"] < t_c)
+        det.loc[held, ["x", "y"]] = spot + off_mm * u / np.hypot(*u)
+        det.loc[held, "sigma_mm"] = 1.0
+        return det
+    return edit
+
+
+def test_a_resting_read_carried_over_many_frames_does_not_time_a_nudge():
+    # A ball at rest stays where it lies until struck (Newton's first law), so the nudged
+    # ball's spot is where all its reads of that stay put it, and a read the detector carried
+    # over unchanged frames is one read, not one per frame (phone_wide_30fps extra clip: the
+    # black 8's read 1.8 mm toward the 11 carried over twelve frames of the second before its
+    # nudge was that second's median). Here the resting ball's reads over the 1.2 s before the
+    # touch become one read 3 mm toward the moving ball, among the 13-20 distinct reads of its
+    # stay before that: counted once it moves their median by a small fraction of their 1 mm
+    # sd, so the touch, a diameter from the spot, may move by a quarter frame at most
+    # (measured: 0.00-0.08 frame); taken per frame it made the spot (measured before: the
+    # touch 0.25-1.24 frames earlier). The touch itself is still within the scorer's 0.1 s
+    # (benchmarks/score.py DEFAULT_WINDOW_S) and the median within the issue's half frame
+    # (issue 4), since a nudge's time scatters by that much on unbiased reads
+    # (test_a_gentle_nudge_of_a_resting_ball_is_a_collision: 12 of 20 within half a frame).
+    errs = []
+    for gap_mm, seed in ((-3.0, 0), (-3.0, 1), (-3.0, 2), (-1.5, 1), (-1.5, 2)):
+        t_found = []
+        for off_mm in (0.0, 3.0):
+            ev, _, t_c = _nudge_case(seed, 30.0, 1.0, gap_mm, edit=_carry_a_read(off_mm, 1.2))
+            col = _only(ev, "collision")
+            assert len(col) == 2 and np.all(np.abs(col["t"] - t_c) < 0.1), (gap_mm, seed, col)
+            t_found.append(float(col["t"].iloc[0]))
+        assert abs(t_found[1] - t_found[0]) * 30.0 <= 0.25, (gap_mm, seed, t_found)
+        errs.append(abs(t_found[1] - t_c) * 30.0)
+    assert np.median(errs) <= 0.5, errs
 
 
 def _thin_nudge_case(seed: int, mu_roll: float):

@@ -349,9 +349,9 @@ class EventConfig:
     detections within this gap of the resting ball's surface are left out of the fit (two
     balls that near make one blob for the detector: phone_wide_30fps's blue 2 read 3-5 mm
     toward the black 8 at gaps of 5-16 mm, 5 mm away from it once touching; one ball radius).
-    ``nudge_rest_window_s``: the resting ball's spot is read from its samples over this long
-    before the halo and after it (at least three each side; the 8 was unseen for 0.5 s before
-    its nudge); each read carries the resting detection error ``wave_position_sd_mm``.
+    The resting ball's spot before the touch and after it is read from its whole stay at rest
+    on each side, each distinct read once (``_stay_spots``); each spot carries the resting
+    detection error ``wave_position_sd_mm``.
     ``nudge_reach_s``: the moving ball's samples reach this far from the halo on each side
     (within its neighbouring events and past the slide after the one before,
     ``_nudge_windows``), its rolling deceleration fitted once for both sides under the prior
@@ -447,7 +447,6 @@ class EventConfig:
     wave_search_rounds: int = 5
     wave_max_outlier_share: float = 0.5
     nudge_halo_mm: float = 28.575
-    nudge_rest_window_s: float = 1.0
     nudge_reach_s: float = 1.5
     depart_roll_turns: float = 2.0
     depart_max_s: float = 1.5
@@ -2226,11 +2225,12 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
     ``r``) takes ``w`` of ``m``'s velocity along ``n`` (what its departure shows once its
     slide is over) and gives it to ``r``, which departs along ``n`` (the struck ball of
     Newton's cradle: no tangential impulse but friction's few percent) and rolls to rest
-    ``travel(w)`` further on. ``r``'s rest position before the touch and after it (medians of
-    its samples over ``nudge_rest_window_s``) each read its spot with the resting detection
-    error ``wave_position_sd_mm``. All of ``m``'s samples on both sides, both rest reads and
-    the touch are fitted at once (``scipy.optimize.least_squares``: path, ``t_c``, ``w``,
-    ``r``'s spot, the deceleration). It is a collision where that beats ``m`` rolling straight
+    ``travel(w)`` further on. ``r``'s rest position before the touch and after it
+    (``_stay_spots``: its distinct reads over its whole stay at rest on each side) each read
+    its spot with the resting detection error ``wave_position_sd_mm``. All of ``m``'s samples
+    on both sides, both rest reads and the touch are fitted at once
+    (``scipy.optimize.least_squares``: path, ``t_c``, ``w``, ``r``'s spot, the deceleration).
+    It is a collision where that beats ``m`` rolling straight
     past (``w = 0``, ``_rolling_past``) on ``m``'s own samples by more than chi-squared with
     two degrees of freedom at the tail ``collision_impulse_sigmas`` gives one-sided, with ``w`` positive beyond
     ``collision_impulse_sigmas`` of its standard error (a near miss bends nothing), where
@@ -2247,8 +2247,7 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
     t_in, t_out = float(m.t[x0]), float(m.t[x1])
     # Bounded by m's other events; a rough mark within the halo is this touch's own (found by
     # ``rough_collisions`` and dropped by ``collision``).
-    lo = max([t for t in m.marks + m.strikes if t < t_in - _CLUSTER_FRAMES * dt], default=-math.inf)
-    hi = min([t for t in m.marks + m.strikes if t > t_out + _CLUSTER_FRAMES * dt], default=math.inf)
+    lo, hi = _events_around(m, t_in, t_out, _CLUSTER_FRAMES * dt)
     # A ball that crawls on within the halo until its next event (it stops beside the one it
     # nudged) keeps its samples from a frame and a half past the closest approach.
     if len(m.samples(t_out, hi)[0]) < 3:
@@ -2259,11 +2258,9 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
     t_from, t_to = _nudge_windows(m, t_in, t_out, lo, hi, max(W, cfg.nudge_reach_s), mu_s_g)
     ti, pi_ = m.samples(t_from, t_in)
     to, po = m.samples(t_out, t_to)
-    rb = r.samples(m.t[x0] - cfg.nudge_rest_window_s, m.t[x0])
-    ra = r.samples(m.t[x1], m.t[x1] + cfg.nudge_rest_window_s)
-    if len(ti) < 3 or len(to) < 3 or len(rb[0]) < 3 or len(ra[0]) < 3:
+    pb, pa = _stay_spots(r, float(m.t[x0]), float(m.t[x1]), _CLUSTER_FRAMES * dt)
+    if len(ti) < 3 or len(to) < 3 or pb is None or pa is None:
         return []
-    pb, pa = np.median(rb[1], axis=0), np.median(ra[1], axis=0)
     sm = max(m.sigma, 1e-3)
     u_slip = 7.0 / 5.0  # a stunned ball's speed over its rolling speed (Alciatore 2004)
 
@@ -2334,6 +2331,31 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
              speed_out=float(np.hypot(*(v_in - u0 * n))), other=r.track),
         _row(t_c, "collision", r.track, pr, speed_in=0.0, speed_out=u0, other=m.track),
     ]
+
+
+def _events_around(b: _Ball, t_in: float, t_out: float, guard: float) -> tuple[float, float]:
+    """The last of ``b``'s rough events and strikes (s) before ``t_in - guard`` and the first
+    after ``t_out + guard`` (-inf, inf where none): what bounds a touch's fits on ``b``."""
+    marks = b.marks + b.strikes
+    return (max([t for t in marks if t < t_in - guard], default=-math.inf),
+            min([t for t in marks if t > t_out + guard], default=math.inf))
+
+
+def _stay_spots(r: _Ball, t_in: float, t_out: float, guard: float
+                ) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """Where the resting ball ``r`` lay (2,) mm before ``t_in`` (s) and after ``t_out``: the
+    ``_rest_point`` of its reads over its whole stay at rest on each side (its rows outside its
+    motions, bounded by its events beyond ``guard`` s of the touch), or None under three
+    distinct reads. A ball at rest stays where it lies until struck (Newton's first law), so
+    every read of the stay measures the same spot, and a read carried over unchanged frames is
+    one read: over the second before its nudge phone_wide_30fps's black 8 had six distinct reads,
+    one 1.8 mm toward the 11 carried over twelve frames (the median's) and two 5 mm toward the
+    camera's nadir; its 32 distinct reads since the clip began put it 0.7 mm off."""
+    lo, hi = _events_around(r, t_in, t_out, guard)
+    still = ~_moving_rows(r) & np.isfinite(r.raw[:, 0])
+    before = still & (r.t > lo) & (r.t < t_in)
+    after = still & (r.t > t_out) & (r.t < hi)
+    return _rest_point(r.raw[before]), _rest_point(r.raw[after])
 
 
 def _nudges(finder: "_Finder", balls: list[_Ball],
