@@ -2585,3 +2585,40 @@ def test_a_coloured_ball_beside_its_own_shadow_is_placed_by_its_outlines_hue_ste
     outs = [det.process(i, t, img) for i, t, img in iter_frames(clip)]
     err, _ = _match(outs[1], at[None], scene.table.radius_mm)
     assert len(outs[1]) == 1 and err[0] <= 8.0, (outs[1], err)
+
+
+@pytest.mark.xfail(strict=True, reason="an upright stripe whose band shows at one side of the rim only is outlined by two rules "
+                   "(the band's rays by the hue step, the white cap's by the two-colour mixing model, which lies about 1 px "
+                   "further in), so the centre moves toward the band: 1.6-1.7 mm on clean renders")
+@pytest.mark.parametrize("band_bgr", [(58, 122, 31), (176, 79, 29)], ids=["green", "blue"])
+def test_upright_stripes_resting_off_the_nadir_are_placed_within_a_millimetre(band_bgr):
+    # Issue 3 (resting median <= 1 mm): cut_bank's resting 14, an upright green stripe 0.7 m
+    # from the camera's nadir, is its resting p95 (clip 3.39 mm; 2.14 mm rendered without noise
+    # or encode). Seen off the nadir, an upright stripe's band (|z_body| < R/2, vision.render)
+    # meets the silhouette on the side away from the nadir only; there the local edge places the
+    # outline by the hue step (0.2-0.35 px inside on the rendered 14), round the white cap by
+    # the mixing model (1.0-1.7 px inside: its rim band 1.75-2.75 px in is brighter than the
+    # limb at the outline, Lambert's cosine law, and its surround band lies beyond the darker
+    # crease), and the two biases differ, so the centre moves toward the band. Renderer's truth,
+    # no sensor noise, no encode, the sample clip's camera and tan cloth. Measured on main
+    # (8005e7d): medians 1.74 / 1.57 mm (green / blue, eight places each); the outline placed by
+    # the hue step on every ray (its sine bound lowered to 0.15) gives 0.23 / 0.45 mm, but on
+    # H.264 4:2:0 encodes of the extra scenes' rooms that choice raises other balls' errors
+    # (chroma at half resolution), so it is not made.
+    import dataclasses
+    from pathlib import Path
+
+    from railtrace.scene import load_scene
+
+    scene = load_scene(Path(__file__).resolve().parents[1] / "sample_clips" / "cut_bank.toml")
+    look = dataclasses.replace(scene.look, noise_sigma=0.0, flicker=0.0)
+    at = np.array([[740.0, 250.0], [400.0, 300.0], [1800.0, 250.0], [2000.0, 900.0],
+                   [500.0, 950.0], [1500.0, 1000.0], [300.0, 600.0], [2100.0, 600.0]])
+    n = len(at)
+    ren = Renderer(scene.table, scene.camera, look, tuple(BallLook(f"s{i}", "stripe", band_bgr) for i in range(n)), seed=1)
+    frames = [ren.render(at[None], _rot(n), np.ones((1, n), bool), np.array([t])) for t in (0.0, 1 / 60)]
+    det = BallDetector(scene.camera, scene.table)
+    out = [det.process(i, i / 60, f) for i, f in enumerate(frames)][-1]
+    err, _ = _match(out, at, scene.table.radius_mm)
+    assert np.all(np.isfinite(err)), err  # every ball found
+    assert np.median(err) <= 1.0, err
