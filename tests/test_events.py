@@ -79,6 +79,34 @@ def _only(events, kind):
     return events[events["kind"] == kind].reset_index(drop=True)
 
 
+def _exact_bounce_reads(rail: str, along: float, angle: float):
+    """A ball rolling at 1500 mm/s into ``rail`` at ``along`` (mm) and ``angle`` (deg), its
+    contact between frames of 60 fps, read noise-free (sd stated 1 mm) until it still slides
+    after the contact: the slide's end, were it seen, is placed on a grid of a quarter frame
+    (``kink_step_frames``), which is exact only on the grid. Returns the path, contact time
+    (s), frame times (s) and detections."""
+    fps = 60.0
+    t_c = 0.5 + 0.37 / fps  # between frames
+    f, _, _ = _rolling_bank_case(rail, along, angle, 1500.0, 1.0, t_c)
+    t_slide = 2.0 * 2.0 * 1500.0 * math.cos(math.radians(angle)) / (7.0 * 0.25 * G)
+    times = np.arange(int(1.0 * fps)) / fps
+    times = times[times < t_c + t_slide]
+    det = detections({"a": f}, times, np.random.default_rng(0), noise_mm=0.0)
+    det["sigma_mm"] = 1.0
+    return f, t_c, times, det
+
+
+def _assert_exact_bounce(cu, f, t_c: float, angle: float) -> None:
+    """The one cushion row ``cu`` is the mirror bounce of path ``f`` at ``t_c`` (s) and
+    ``angle`` (deg) to the fits' rounding: time 1e-6 s, point 1e-6 mm, angles 1e-6 deg,
+    restitution 1e-9."""
+    assert abs(cu.loc[0, "t"] - t_c) < 1e-6
+    truth = f(np.array([t_c]))[0]
+    assert abs(cu.loc[0, "x"] - truth[0]) < 1e-6 and abs(cu.loc[0, "y"] - truth[1]) < 1e-6
+    assert abs(cu.loc[0, "angle_in"] - angle) < 1e-6 and abs(cu.loc[0, "angle_out"] - angle) < 1e-6
+    assert abs(cu.loc[0, "restitution"] - 1.0) < 1e-9
+
+
 @pytest.mark.parametrize("rail, along, angle", [
     ("bottom", 700.0, 30.0), ("right", 500.0, -45.0), ("top", 1900.0, 0.0), ("left", 800.0, 60.0),
 ])
@@ -86,26 +114,13 @@ def test_mirror_bounce_recovered_exactly_without_noise(rail, along, angle):
     # A ball rolling in and, the normal velocity reversed whole (e = 1), sliding off and then
     # rolling (``_rolling_bank_case``; a ball leaving a cushion always slides first, so a
     # drag-free departure would be no physical input).
-    fps = 60.0
-    t_c = 0.5 + 0.37 / fps  # between frames
-    f, v_in, v_out = _rolling_bank_case(rail, along, angle, 1500.0, 1.0, t_c)
-    # The clip ends while the ball still slides: the slide's end, were it seen, is placed on
-    # a grid of a quarter frame (``kink_step_frames``), which is exact only on the grid.
-    t_slide = 2.0 * 2.0 * 1500.0 * math.cos(math.radians(angle)) / (7.0 * 0.25 * G)
-    times = np.arange(int(1.0 * fps)) / fps
-    times = times[times < t_c + t_slide]
-    det = detections({"a": f}, times, np.random.default_rng(0), noise_mm=0.0)
-    det["sigma_mm"] = 1.0
+    f, t_c, times, det = _exact_bounce_reads(rail, along, angle)
     tr = track(det, TABLE)
     ev, _ = find_events(tr, TABLE, det)
     cu = _only(ev, "cushion")
     assert len(cu) == 1 and cu.loc[0, "rail"] == rail
     # Exact: constant-acceleration pieces are reproduced exactly by the fits (analytic truth).
-    assert abs(cu.loc[0, "t"] - t_c) < 1e-6
-    truth = f(np.array([t_c]))[0]
-    assert abs(cu.loc[0, "x"] - truth[0]) < 1e-6 and abs(cu.loc[0, "y"] - truth[1]) < 1e-6
-    assert abs(cu.loc[0, "angle_in"] - angle) < 1e-6 and abs(cu.loc[0, "angle_out"] - angle) < 1e-6
-    assert abs(cu.loc[0, "restitution"] - 1.0) < 1e-9
+    _assert_exact_bounce(cu, f, t_c, angle)
     assert cu.loc[0, "diamond"] == pytest.approx(TABLE.to_diamonds(rail, along), abs=1e-9)
 
 
@@ -921,25 +936,14 @@ def test_one_gross_read_beside_a_mirror_bounce_is_struck_and_the_bounce_recovere
     # (Cook & Weisberg 1982: residual over sqrt(1 - leverage)) it is the read struck, and the
     # rest, exact, give the bounce back exactly. (Before: restitution 0.80, angle out 2.5
     # degrees off, time 0.2 frame early, on the top rail.)
-    fps = 60.0
-    t_c = 0.5 + 0.37 / fps
-    f, v_in, v_out = _rolling_bank_case(rail, along, angle, 1500.0, 1.0, t_c)
-    t_slide = 2.0 * 2.0 * 1500.0 * math.cos(math.radians(angle)) / (7.0 * 0.25 * G)
-    times = np.arange(int(1.0 * fps)) / fps
-    times = times[times < t_c + t_slide]
-    det = detections({"a": f}, times, np.random.default_rng(0), noise_mm=0.0)
-    det["sigma_mm"] = 1.0
+    f, t_c, times, det = _exact_bounce_reads(rail, along, angle)
     row = det.index[det["frame"] == int(np.searchsorted(times, t_c))][0]
     det.loc[row, ["x", "y"]] += 5.0 * np.asarray(rail_inward_normal(rail))
     ev, _ = find_events(track(det, TABLE), TABLE, det)
     cu = _only(ev, "cushion")
     assert len(cu) == 1 and cu.loc[0, "rail"] == rail
     # Exact, as without the gross read (constant-acceleration pieces fitted exactly).
-    assert abs(cu.loc[0, "t"] - t_c) < 1e-6
-    truth = f(np.array([t_c]))[0]
-    assert abs(cu.loc[0, "x"] - truth[0]) < 1e-6 and abs(cu.loc[0, "y"] - truth[1]) < 1e-6
-    assert abs(cu.loc[0, "angle_in"] - angle) < 1e-6 and abs(cu.loc[0, "angle_out"] - angle) < 1e-6
-    assert abs(cu.loc[0, "restitution"] - 1.0) < 1e-9
+    _assert_exact_bounce(cu, f, t_c, angle)
 
 
 def test_two_tracks_ending_as_they_touch_make_no_collision():
