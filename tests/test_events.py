@@ -114,7 +114,7 @@ def test_mirror_bounce_recovered_exactly_without_noise(rail, along, angle):
     # A ball rolling in and, the normal velocity reversed whole (e = 1), sliding off and then
     # rolling (``_rolling_bank_case``; a ball leaving a cushion always slides first, so a
     # drag-free departure would be no physical input).
-    f, t_c, times, det = _exact_bounce_reads(rail, along, angle)
+    f, t_c, _, det = _exact_bounce_reads(rail, along, angle)
     tr = track(det, TABLE)
     ev, _ = find_events(tr, TABLE, det)
     cu = _only(ev, "cushion")

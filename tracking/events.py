@@ -2247,7 +2247,7 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
     t_in, t_out = float(m.t[x0]), float(m.t[x1])
     # Bounded by m's other events; a rough mark within the halo is this touch's own (found by
     # ``rough_collisions`` and dropped by ``collision``).
-    lo, hi = _events_around(m, t_in, t_out, _CLUSTER_FRAMES * dt)
+    lo, hi = _times_around(m.marks + m.strikes, t_in, t_out, _CLUSTER_FRAMES * dt)
     # A ball that crawls on within the halo until its next event (it stops beside the one it
     # nudged) keeps its samples from a frame and a half past the closest approach.
     if len(m.samples(t_out, hi)[0]) < 3:
@@ -2333,12 +2333,12 @@ def _nudge(finder: "_Finder", m: _Ball, r: _Ball, t_s: float, x0: int, x1: int) 
     ]
 
 
-def _events_around(b: _Ball, t_in: float, t_out: float, guard: float) -> tuple[float, float]:
-    """The last of ``b``'s rough events and strikes (s) before ``t_in - guard`` and the first
-    after ``t_out + guard`` (-inf, inf where none): what bounds a touch's fits on ``b``."""
-    marks = b.marks + b.strikes
-    return (max([t for t in marks if t < t_in - guard], default=-math.inf),
-            min([t for t in marks if t > t_out + guard], default=math.inf))
+def _times_around(times: list[float], t_in: float, t_out: float, guard: float
+                  ) -> tuple[float, float]:
+    """The last of ``times`` (s) before ``t_in - guard`` and the first after ``t_out + guard``
+    (-inf, inf where none): what bounds a stretch's fits between a ball's other events."""
+    return (max([t for t in times if t < t_in - guard], default=-math.inf),
+            min([t for t in times if t > t_out + guard], default=math.inf))
 
 
 def _stay_spots(r: _Ball, t_in: float, t_out: float, guard: float
@@ -2351,7 +2351,7 @@ def _stay_spots(r: _Ball, t_in: float, t_out: float, guard: float
     one read: over the second before its nudge phone_wide_30fps's black 8 had six distinct reads,
     one 1.8 mm toward the 11 carried over twelve frames (the median's) and two 5 mm toward the
     camera's nadir; its 32 distinct reads since the clip began put it 0.7 mm off."""
-    lo, hi = _events_around(r, t_in, t_out, guard)
+    lo, hi = _times_around(r.marks + r.strikes, t_in, t_out, guard)
     still = ~_moving_rows(r) & np.isfinite(r.raw[:, 0])
     before = still & (r.t > lo) & (r.t < t_in)
     after = still & (r.t > t_out) & (r.t < hi)
@@ -3296,8 +3296,7 @@ class _Finder:
         ax = 1 if rail in ("bottom", "top") else 0
         sign = float(rail_inward_normal(rail)[ax])
         guard = 1.5 * self.dt
-        lo = max([t for t in others if t < tg - guard], default=-math.inf)
-        hi = min([t for t in others if t > tg + guard], default=math.inf)
+        lo, hi = _times_around(others, tg, tg, guard)
         i = int(np.clip(np.searchsorted(b.t, tg), 0, len(b.t) - 1))
         move = next(((i0, i1) for i0, i1 in b.moves if i0 <= i <= i1), (0, len(b.t) - 1))
         inside = (b.t >= b.t[move[0]]) & (b.t <= b.t[move[1]])
